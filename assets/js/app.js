@@ -1,0 +1,94 @@
+// cohortdesk page behaviour. Served from our own origin: the Content-Security-
+// Policy forbids inline scripts, so every behaviour is wired here from data-*
+// attributes. Pages work without it; it only improves them.
+(function () {
+  "use strict";
+
+  // Charts: the server renders each chart's options as JSON in the data-chart
+  // attribute of an empty element; this draws them with the vendored library.
+  function drawCharts(root) {
+    if (typeof echarts === "undefined") return;
+    root.querySelectorAll("[data-chart]").forEach(function (target) {
+      if (target.getAttribute("data-drawn")) return;
+      var opts;
+      try { opts = JSON.parse(target.getAttribute("data-chart")); } catch (e) { return; }
+      var chart = echarts.init(target, null, { renderer: "svg" });
+      chart.setOption(opts);
+      target.setAttribute("data-drawn", "1");
+      window.addEventListener("resize", function () { chart.resize(); });
+      window.addEventListener("beforeprint", function () { chart.resize(); });
+    });
+  }
+
+  // Keyboard shortcuts: elements with data-key="g t" (a sequence) or "j".
+  var seq = "";
+  var seqTimer = null;
+  function onKey(ev) {
+    var t = ev.target;
+    if (ev.ctrlKey || ev.metaKey || ev.altKey) return;
+    if (t && (t.isContentEditable || /^(INPUT|TEXTAREA|SELECT)$/.test(t.tagName))) return;
+    seq = seq ? seq + " " + ev.key : ev.key;
+    clearTimeout(seqTimer);
+    seqTimer = setTimeout(function () { seq = ""; }, 900);
+    var el = document.querySelector('[data-key="' + CSS.escape(seq) + '"]');
+    if (el) {
+      ev.preventDefault();
+      seq = "";
+      if (el.tagName === "A" || el.tagName === "BUTTON") el.click(); else el.focus();
+      return;
+    }
+    if (ev.key === "j" || ev.key === "k") { moveRow(ev.key === "j" ? 1 : -1); ev.preventDefault(); seq = ""; }
+  }
+  function moveRow(step) {
+    var rows = Array.prototype.slice.call(document.querySelectorAll("[data-row]"));
+    if (!rows.length) return;
+    var i = rows.indexOf(document.activeElement.closest ? document.activeElement.closest("[data-row]") : null);
+    var next = rows[Math.max(0, Math.min(rows.length - 1, i + step))];
+    var focusable = next.querySelector("a, button") || next;
+    focusable.focus();
+  }
+
+  // Uploads with visible progress: forms with data-upload show a progress bar.
+  function wireUploads(root) {
+    root.querySelectorAll("form[data-upload]").forEach(function (form) {
+      if (form.getAttribute("data-wired")) return;
+      form.setAttribute("data-wired", "1");
+      form.addEventListener("submit", function (ev) {
+        var bar = form.querySelector("progress");
+        if (!bar || !window.XMLHttpRequest) return;
+        ev.preventDefault();
+        var xhr = new XMLHttpRequest();
+        xhr.open("POST", form.action);
+        xhr.upload.addEventListener("progress", function (e) {
+          if (e.lengthComputable) { bar.max = e.total; bar.value = e.loaded; }
+        });
+        xhr.onload = function () {
+          document.open(); document.write(xhr.responseText); document.close();
+          if (xhr.responseURL) history.replaceState(null, "", xhr.responseURL);
+        };
+        bar.hidden = false;
+        xhr.send(new FormData(form));
+      });
+    });
+  }
+
+  // Confirmations for consequential buttons: data-confirm="text".
+  document.addEventListener("click", function (ev) {
+    var el = ev.target.closest ? ev.target.closest("[data-confirm]") : null;
+    if (el && !window.confirm(el.getAttribute("data-confirm"))) ev.preventDefault();
+  });
+
+  // Select-all checkboxes: data-select-all="name".
+  document.addEventListener("change", function (ev) {
+    var el = ev.target;
+    if (el.matches && el.matches("[data-select-all]")) {
+      var name = el.getAttribute("data-select-all");
+      document.querySelectorAll('input[type=checkbox][name="' + name + '"]').forEach(function (c) { c.checked = el.checked; });
+    }
+  });
+
+  function init(root) { drawCharts(root); wireUploads(root); }
+  document.addEventListener("DOMContentLoaded", function () { init(document); });
+  document.addEventListener("keydown", onKey);
+  document.addEventListener("htmx:afterSettle", function (ev) { init(ev.target || document); });
+})();

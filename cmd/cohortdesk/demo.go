@@ -1,0 +1,105 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"os"
+	"time"
+
+	"cohortdesk/db"
+	"cohortdesk/db/cluster"
+	"cohortdesk/migrations"
+
+	"github.com/jackc/pgx/v5/pgxpool"
+)
+
+const demoDatabase = "cohortdesk"
+
+func runDemo(ctx context.Context, e env, args []string) error {
+	fs := flag.NewFlagSet("demo", flag.ContinueOnError)
+	fs.SetOutput(e.stderr)
+	var cfg serverConfig
+	cfg.bind(fs, e.getenv, "127.0.0.1:8080")
+	dataDir := fs.String("data", defaultDataDir(e.getenv), "folder for the private PostgreSQL cluster (env COHORTDESK_DATA)")
+	seed := fs.Uint64("seed", 20260301, "seed of the fictional cohort")
+	participants := fs.Int("participants", 240, "participants in the fictional cohort")
+	reset := fs.Bool("reset", false, "drop the demo database and load the cohort again")
+	if err := fs.Parse(args); err != nil {
+		return err
+	}
+	if err := cfg.validate(); err != nil {
+		return err
+	}
+	log := cfg.logger(os.Stderr)
+	start := time.Now()
+
+	cl, err := cluster.Start(ctx, cluster.Config{Dir: *dataDir}, e.getenv)
+	if err != nil {
+		var ue *cluster.UnreachableError
+		if errors.As(err, &ue) {
+			return fmt.Errorf("demo: %w", err)
+		}
+		return fmt.Errorf("demo: %w", err)
+	}
+	// Stop PostgreSQL last, after the web server has finished its requests.
+	defer func() {
+		if err := cl.Stop(); err != nil {
+			log.Warn("postgres stop", "err", err)
+		} else {
+			log.Info("postgres stopped")
+		}
+	}()
+	log.Info("postgres ready", "data", cl.Dir(), "after", time.Since(start).Round(time.Millisecond).String())
+
+	if err := ensureDatabase(ctx, cl, *reset); err != nil {
+		return err
+	}
+	cfg.DatabaseURL = cl.URL(demoDatabase)
+	pool, err := db.Open(ctx, cfg.DatabaseURL, int32(cfg.MaxConns))
+	if err != nil {
+		return err
+	}
+	defer pool.Close()
+	if _, err := migrations.Up(ctx, pool); err != nil {
+		return err
+	}
+	store := db.New(pool, nil)
+	loaded, err := seedDemo(ctx, store, demoOptions{Seed: *seed, Participants: *participants, Log: log})
+	if err != nil {
+		return fmt.Errorf("demo: load the fictional cohort: %w", err)
+	}
+	if loaded {
+		log.Info("fictional cohort loaded", "participants", *participants, "after", time.Since(start).Round(time.Millisecond).String())
+	}
+	return serveApp(ctx, cfg, pool, log, demoSignIn(), func(addr string) {
+		fmt.Fprintf(e.stdout, "\ncohortdesk demo is running at http://%s/  (started in %s)\n", addr, time.Since(start).Round(100*time.Millisecond))
+		fmt.Fprint(e.stdout, demoSignIn())
+		fmt.Fprintf(e.stdout, "Data folder: %s. Press Ctrl-C to stop.\n\n", cl.Dir())
+	})
+}
+
+// ensureDatabase creates the demo database on first use (or after -reset).
+func ensureDatabase(ctx context.Context, cl *cluster.Cluster, reset bool) error {
+	admin, err := pgxpool.New(ctx, cl.URL("postgres"))
+	if err != nil {
+		return err
+	}
+	defer admin.Close()
+	if reset {
+		if _, err := admin.Exec(ctx, "DROP DATABASE IF EXISTS "+demoDatabase+" WITH (FORCE)"); err != nil {
+			return fmt.Errorf("demo: drop database: %w", err)
+		}
+	}
+	var exists bool
+	if err := admin.QueryRow(ctx, "SELECT EXISTS (SELECT 1 FROM pg_database WHERE datname = $1)", demoDatabase).Scan(&exists); err != nil {
+		return fmt.Errorf("demo: %w", err)
+	}
+	if !exists {
+		if _, err := admin.Exec(ctx, "CREATE DATABASE "+demoDatabase); err != nil {
+			return fmt.Errorf("demo: create database: %w", err)
+		}
+	}
+	return nil
+}

@@ -1,0 +1,85 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"log/slog"
+	"os"
+	"time"
+
+	"cohortdesk/db"
+	"cohortdesk/migrations"
+	"cohortdesk/web"
+
+	"github.com/jackc/pgx/v5/pgxpool"
+)
+
+func runServe(ctx context.Context, e env, args []string) error {
+	fs := flag.NewFlagSet("serve", flag.ContinueOnError)
+	fs.SetOutput(e.stderr)
+	var cfg serverConfig
+	cfg.bind(fs, e.getenv, ":8080")
+	fs.StringVar(&cfg.DatabaseURL, "database-url", e.getenv("DATABASE_URL"), "PostgreSQL URL (env DATABASE_URL)")
+	if err := fs.Parse(args); err != nil {
+		return err
+	}
+	if cfg.DatabaseURL == "" {
+		return errors.New("serve: DATABASE_URL is not set; for a demo on a private database run `cohortdesk demo`")
+	}
+	if cfg.Secret == "" {
+		return errors.New("serve: COHORTDESK_SECRET is not set; it keys the pseudonymous referral codes and must stay the same for the life of the study (generate one with `head -c 32 /dev/urandom | base64`)")
+	}
+	if err := cfg.validate(); err != nil {
+		return err
+	}
+	log := cfg.logger(os.Stderr)
+	pool, err := db.Open(ctx, cfg.DatabaseURL, int32(cfg.MaxConns))
+	if err != nil {
+		return err
+	}
+	defer pool.Close()
+	if cfg.Migrate {
+		n, err := migrations.Up(ctx, pool)
+		if err != nil {
+			return err
+		}
+		log.Info("migrations applied", "count", n)
+	}
+	return serveApp(ctx, cfg, pool, log, "", func(addr string) {
+		log.Info("listening", "addr", addr, "database", redactURL(cfg.DatabaseURL))
+	})
+}
+
+// serveApp runs the web server until ctx ends, then shuts it down gracefully.
+func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *slog.Logger, demoNote string, ready func(string)) error {
+	store := db.New(pool, nil)
+	proxies, err := cfg.proxies()
+	if err != nil {
+		return err
+	}
+	srv := web.New(web.Config{
+		Store:          store,
+		Pool:           pool,
+		Logger:         log,
+		TrustedProxies: proxies,
+		Session: web.SessionConfig{
+			Idle:     cfg.SessionIdle,
+			Lifetime: cfg.SessionLifetime,
+			Secure:   cfg.TLSCert != "" || len(proxies) > 0,
+		},
+		DemoNote: demoNote,
+	})
+	hs := web.NewHTTPServer(cfg.Addr, srv.Handler())
+	if cfg.TLSCert != "" {
+		srv.UseTLS(cfg.TLSCert, cfg.TLSKey)
+	}
+	start := time.Now()
+	err = srv.Serve(ctx, hs, ready)
+	log.Info("web server stopped", "uptime", time.Since(start).Round(time.Second).String())
+	if err != nil {
+		return fmt.Errorf("serve: %w", err)
+	}
+	return nil
+}

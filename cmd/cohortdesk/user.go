@@ -1,0 +1,135 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"strings"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db"
+	"cohortdesk/migrations"
+	"cohortdesk/web/auth"
+)
+
+// runUser manages staff accounts from the command line: the way to create the
+// first administrator, and a way back in when every administrator is locked out.
+func runUser(ctx context.Context, e env, args []string) error {
+	fs := flag.NewFlagSet("user", flag.ContinueOnError)
+	fs.SetOutput(e.stderr)
+	url := fs.String("database-url", e.getenv("DATABASE_URL"), "PostgreSQL URL (env DATABASE_URL)")
+	email := fs.String("email", "", "the account's e-mail address (its sign-in name)")
+	name := fs.String("name", "", "the person's name (add)")
+	role := fs.String("role", "admin", "admin, coordinator, investigator or monitor (add)")
+	stdin := fs.Bool("password-stdin", false, "read the password from standard input instead of generating one")
+	fs.Usage = func() {
+		fmt.Fprintln(e.stderr, "usage: cohortdesk user [flags] add|reset-password|list")
+		fs.PrintDefaults()
+	}
+	if err := fs.Parse(args); err != nil {
+		return err
+	}
+	if fs.NArg() != 1 {
+		fs.Usage()
+		return errors.New("user: name one action: add, reset-password or list")
+	}
+	if *url == "" {
+		return errors.New("user: DATABASE_URL is not set")
+	}
+	pool, err := db.Open(ctx, *url, 2)
+	if err != nil {
+		return err
+	}
+	defer pool.Close()
+	if _, err := migrations.Up(ctx, pool); err != nil {
+		return err
+	}
+	store := db.New(pool, nil)
+	actor := cohort.Actor{Name: "command line (" + osUser() + ")"}
+
+	password := func() (string, bool, error) {
+		if !*stdin {
+			return auth.RandomPassword(16), true, nil
+		}
+		pw, err := bufio.NewReader(os.Stdin).ReadString('\n')
+		if err != nil && !errors.Is(err, io.EOF) {
+			return "", false, err
+		}
+		pw = strings.TrimRight(pw, "\r\n")
+		if err := auth.CheckPolicy(pw); err != nil {
+			return "", false, fmt.Errorf("user: password: %w", err)
+		}
+		return pw, false, nil
+	}
+
+	switch fs.Arg(0) {
+	case "add":
+		r, err := cohort.ParseRole(*role)
+		if err != nil {
+			return fmt.Errorf("user: %w", err)
+		}
+		pw, generated, err := password()
+		if err != nil {
+			return err
+		}
+		hash, err := auth.Hash(pw, auth.DefaultParams)
+		if err != nil {
+			return err
+		}
+		u, err := store.CreateUser(ctx, actor, db.NewUser{Email: *email, Name: *name, Role: r, PasswordHash: hash})
+		if err != nil {
+			return fmt.Errorf("user: %w", err)
+		}
+		fmt.Fprintf(e.stdout, "created %s (%s), id %d\n", u.Email, u.Role.Label(), u.ID)
+		if generated {
+			fmt.Fprintf(e.stdout, "password: %s\n", pw)
+		}
+		return nil
+	case "reset-password":
+		u, err := store.UserForSignIn(ctx, *email)
+		if err != nil {
+			return fmt.Errorf("user: no account %q: %w", *email, err)
+		}
+		pw, generated, err := password()
+		if err != nil {
+			return err
+		}
+		hash, err := auth.Hash(pw, auth.DefaultParams)
+		if err != nil {
+			return err
+		}
+		if err := store.SetPassword(ctx, actor, u.ID, hash); err != nil {
+			return err
+		}
+		fmt.Fprintf(e.stdout, "password reset for %s\n", u.Email)
+		if generated {
+			fmt.Fprintf(e.stdout, "password: %s\n", pw)
+		}
+		return nil
+	case "list":
+		us, err := store.Users(ctx)
+		if err != nil {
+			return err
+		}
+		for _, u := range us {
+			state := "active"
+			if !u.Active {
+				state = "deactivated"
+			}
+			fmt.Fprintf(e.stdout, "%4d  %-32s %-14s %-11s %s\n", u.ID, u.Email, u.Role, state, u.Name)
+		}
+		return nil
+	}
+	return fmt.Errorf("user: unknown action %q", fs.Arg(0))
+}
+
+func osUser() string {
+	if u := os.Getenv("USER"); u != "" {
+		return u
+	}
+	return fmt.Sprintf("uid %d", os.Getuid())
+}

@@ -1,0 +1,101 @@
+// Package db is cohortdesk's PostgreSQL store: one Store over a pgx pool, one
+// file per aggregate, raw SQL beside each method. Exported methods own their
+// transaction; unexported (ctx, tx) helpers do the work inside it.
+package db
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"time"
+
+	"cohortdesk/cohort"
+
+	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/pgconn"
+	"github.com/jackc/pgx/v5/pgxpool"
+)
+
+// Store is the application's access to PostgreSQL.
+type Store struct {
+	pool *pgxpool.Pool
+	now  func() time.Time
+}
+
+// New wraps a pool. now is the clock; nil means time.Now.
+func New(pool *pgxpool.Pool, now func() time.Time) *Store {
+	if now == nil {
+		now = time.Now
+	}
+	return &Store{pool: pool, now: now}
+}
+
+// Pool exposes the pool for migrations and tests.
+func (s *Store) Pool() *pgxpool.Pool { return s.pool }
+
+// Open connects a pool to url and checks that the server answers.
+func Open(ctx context.Context, url string, maxConns int32) (*pgxpool.Pool, error) {
+	cfg, err := pgxpool.ParseConfig(url)
+	if err != nil {
+		return nil, fmt.Errorf("db: database URL: %w", err)
+	}
+	if maxConns > 0 {
+		cfg.MaxConns = maxConns
+	}
+	cfg.ConnConfig.RuntimeParams["application_name"] = "cohortdesk"
+	cfg.ConnConfig.RuntimeParams["timezone"] = "UTC"
+	pool, err := pgxpool.NewWithConfig(ctx, cfg)
+	if err != nil {
+		return nil, fmt.Errorf("db: %w", err)
+	}
+	pctx, cancel := context.WithTimeout(ctx, 10*time.Second)
+	defer cancel()
+	if err := pool.Ping(pctx); err != nil {
+		pool.Close()
+		return nil, fmt.Errorf("db: cannot reach the database: %w", err)
+	}
+	return pool, nil
+}
+
+// Ping reports whether the database answers, for the readiness check.
+func (s *Store) Ping(ctx context.Context) error {
+	ctx, cancel := context.WithTimeout(ctx, 2*time.Second)
+	defer cancel()
+	var one int
+	if err := s.pool.QueryRow(ctx, "SELECT 1").Scan(&one); err != nil {
+		return fmt.Errorf("db: ping: %w", err)
+	}
+	return nil
+}
+
+// inTx runs fn in a transaction, committing when fn returns nil.
+func (s *Store) inTx(ctx context.Context, fn func(pgx.Tx) error) error {
+	return pgx.BeginFunc(ctx, s.pool, fn)
+}
+
+// mapErr turns driver errors into the domain's errors so callers never look at
+// pgx types: no rows becomes ErrNotFound, unique and exclusion violations
+// ErrConflict, a read-only or full database a clear message.
+func mapErr(op string, err error) error {
+	if err == nil {
+		return nil
+	}
+	if errors.Is(err, pgx.ErrNoRows) {
+		return fmt.Errorf("db: %s: %w", op, cohort.ErrNotFound)
+	}
+	var pg *pgconn.PgError
+	if errors.As(err, &pg) {
+		switch pg.Code {
+		case "23505", "23P01":
+			return fmt.Errorf("db: %s: %s: %w", op, pg.Detail, cohort.ErrConflict)
+		case "25006":
+			return fmt.Errorf("db: %s: the database is read-only: %w", op, ErrUnavailable)
+		case "53100", "53200":
+			return fmt.Errorf("db: %s: the database is out of space or memory: %w", op, ErrUnavailable)
+		}
+	}
+	return fmt.Errorf("db: %s: %w", op, err)
+}
+
+// ErrUnavailable means the database cannot take changes now (read-only, full).
+var ErrUnavailable = errors.New("database unavailable for changes")

@@ -1,0 +1,55 @@
+package web
+
+import (
+	"strings"
+
+	"cohortdesk/cohort"
+)
+
+// access says who may use a route: anyone (public), or signed-in users with one
+// of the listed roles.
+type access struct {
+	public bool
+	roles  []cohort.Role
+}
+
+func allow(roles ...cohort.Role) access { return access{roles: roles} }
+
+// allows reports whether role may use the route.
+func (a access) allows(role cohort.Role) bool {
+	if a.public {
+		return true
+	}
+	for _, r := range a.roles {
+		if r == role {
+			return true
+		}
+	}
+	return false
+}
+
+// String lists the roles, for the route table in the docs and tests.
+func (a access) String() string {
+	if a.public {
+		return "public"
+	}
+	parts := make([]string, len(a.roles))
+	for i, r := range a.roles {
+		parts[i] = string(r)
+	}
+	return strings.Join(parts, ", ")
+}
+
+// The access levels the route table uses. Read them as sentences: "this route
+// is for <level>".
+var (
+	public     = access{public: true}
+	everyone   = allow(cohort.Coordinator, cohort.Investigator, cohort.Monitor, cohort.Admin)
+	caseWork   = allow(cohort.Coordinator, cohort.Investigator, cohort.Admin)                 // see and work cases with PHI
+	coordWork  = allow(cohort.Coordinator, cohort.Admin)                                      // contact, shipments, imports
+	clinical   = allow(cohort.Investigator)                                                   // over-reads, referral sign-off
+	analysis   = allow(cohort.Investigator, cohort.Monitor, cohort.Admin, cohort.Coordinator) // statistics and progress
+	deidExport = allow(cohort.Investigator, cohort.Admin)                                     // de-identified dataset export
+	referrals  = allow(cohort.Coordinator, cohort.Investigator)                               // referral summaries
+	adminOnly  = allow(cohort.Admin)
+)

@@ -1,0 +1,158 @@
+package web
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"net/http"
+	"strconv"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db"
+	"cohortdesk/views"
+	"cohortdesk/web/auth"
+
+	"github.com/go-chi/chi/v5"
+)
+
+type adminStore interface {
+	Users(ctx context.Context) ([]db.User, error)
+	CreateUser(ctx context.Context, a cohort.Actor, n db.NewUser) (db.User, error)
+	UpdateUser(ctx context.Context, a cohort.Actor, id int64, c db.UserChange) (db.User, error)
+	SetPassword(ctx context.Context, a cohort.Actor, id int64, hash string) error
+	AuditEvents(ctx context.Context, f db.AuditFilter) ([]db.AuditEvent, error)
+	EachAuditEvent(ctx context.Context, f db.AuditFilter, fn func(db.AuditEvent) error) error
+}
+
+func (s *Server) adminHome(w http.ResponseWriter, r *http.Request) error {
+	return s.ok(w, r, views.AdminHome(views.AdminHomeModel{Page: s.page(r, "Administration", "admin")}))
+}
+
+func roleOptions() []views.Option {
+	out := make([]views.Option, len(cohort.Roles))
+	for i, r := range cohort.Roles {
+		out[i] = views.Option{Value: string(r), Label: r.Label()}
+	}
+	return out
+}
+
+func userRows(us []db.User) []views.UserRow {
+	rows := make([]views.UserRow, len(us))
+	for i, u := range us {
+		last := "never"
+		if u.LastSignIn != nil {
+			last = u.LastSignIn.UTC().Format("2006-01-02 15:04 UTC")
+		}
+		rows[i] = views.UserRow{ID: u.ID, Email: u.Email, Name: u.Name, Role: u.Role.Label(), Active: u.Active, LastSignIn: last}
+	}
+	return rows
+}
+
+func (s *Server) usersPage(w http.ResponseWriter, r *http.Request, status int, form views.UserForm, flash string) error {
+	us, err := s.store.Users(r.Context())
+	if err != nil {
+		return err
+	}
+	p := s.page(r, "Staff accounts", "admin")
+	p.Flash = flash
+	s.render(w, r, status, views.Users(views.UsersModel{Page: p, Users: userRows(us), Form: form, Roles: roleOptions()}))
+	return nil
+}
+
+func (s *Server) usersList(w http.ResponseWriter, r *http.Request) error {
+	return s.usersPage(w, r, http.StatusOK, views.UserForm{Role: string(cohort.Coordinator)}, "")
+}
+
+// userCreate adds an account with a generated first password, shown once.
+func (s *Server) userCreate(w http.ResponseWriter, r *http.Request) error {
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	f := views.UserForm{Email: r.PostForm.Get("email"), Name: r.PostForm.Get("name"), Role: r.PostForm.Get("role")}
+	pw := auth.RandomPassword(16)
+	hash, err := auth.Hash(pw, s.pwParams)
+	if err != nil {
+		return err
+	}
+	u, err := s.store.CreateUser(r.Context(), s.actor(r), db.NewUser{Email: f.Email, Name: f.Name, Role: cohort.Role(f.Role), PasswordHash: hash})
+	var ve *cohort.ValidationError
+	switch {
+	case errors.As(err, &ve):
+		f.Errors = ve.Fields
+		return s.usersPage(w, r, http.StatusUnprocessableEntity, f, "")
+	case errors.Is(err, cohort.ErrConflict):
+		f.Errors = map[string]string{"email": "an account with this e-mail address already exists"}
+		return s.usersPage(w, r, http.StatusConflict, f, "")
+	case err != nil:
+		return err
+	}
+	return s.usersPage(w, r, http.StatusOK, views.UserForm{Role: string(cohort.Coordinator)},
+		fmt.Sprintf("Account created for %s. First password (shown once, give it to them privately): %s", u.Email, pw))
+}
+
+func (s *Server) userByParam(r *http.Request) (db.User, error) {
+	id, err := strconv.ParseInt(chi.URLParam(r, "id"), 10, 64)
+	if err != nil {
+		return db.User{}, errNotFound
+	}
+	return s.store.UserByID(r.Context(), id)
+}
+
+func (s *Server) userEdit(w http.ResponseWriter, r *http.Request) error {
+	u, err := s.userByParam(r)
+	if err != nil {
+		return err
+	}
+	return s.ok(w, r, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u})[0],
+		Form: views.UserForm{Name: u.Name, Role: string(u.Role), Active: u.Active, Version: u.Version}, Roles: roleOptions()}))
+}
+
+func (s *Server) userUpdate(w http.ResponseWriter, r *http.Request) error {
+	u, err := s.userByParam(r)
+	if err != nil {
+		return err
+	}
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	version, _ := strconv.Atoi(r.PostForm.Get("version"))
+	f := views.UserForm{Name: r.PostForm.Get("name"), Role: r.PostForm.Get("role"), Active: r.PostForm.Get("active") == "on", Version: version}
+	_, err = s.store.UpdateUser(r.Context(), s.actor(r), u.ID, db.UserChange{Name: f.Name, Role: cohort.Role(f.Role), Active: f.Active, Version: version})
+	var ve *cohort.ValidationError
+	var ce *cohort.ConflictError
+	switch {
+	case errors.As(err, &ve):
+		f.Errors = ve.Fields
+	case errors.As(err, &ce):
+		f.Errors = map[string]string{"form": ce.Message}
+	case err != nil:
+		return err
+	default:
+		http.Redirect(w, r, "/admin/users", http.StatusSeeOther)
+		return nil
+	}
+	status := http.StatusUnprocessableEntity
+	if ce != nil {
+		status = http.StatusConflict
+	}
+	s.render(w, r, status, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u})[0], Form: f, Roles: roleOptions()}))
+	return nil
+}
+
+// userResetPassword sets a new random password and shows it once.
+func (s *Server) userResetPassword(w http.ResponseWriter, r *http.Request) error {
+	u, err := s.userByParam(r)
+	if err != nil {
+		return err
+	}
+	pw := auth.RandomPassword(16)
+	hash, err := auth.Hash(pw, s.pwParams)
+	if err != nil {
+		return err
+	}
+	if err := s.store.SetPassword(r.Context(), s.actor(r), u.ID, hash); err != nil {
+		return err
+	}
+	return s.usersPage(w, r, http.StatusOK, views.UserForm{Role: string(cohort.Coordinator)},
+		fmt.Sprintf("New password for %s (shown once, give it to them privately): %s", u.Email, pw))
+}

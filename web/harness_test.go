@@ -1,0 +1,113 @@
+package web
+
+import (
+	"context"
+	"io"
+	"net/http"
+	"net/http/cookiejar"
+	"net/http/httptest"
+	"net/url"
+	"strconv"
+	"strings"
+	"testing"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db"
+	"cohortdesk/db/dbtest"
+	"cohortdesk/web/auth"
+)
+
+// testPassword is every test account's password.
+const testPassword = "test password 1234"
+
+// app is a running server on a fresh database with one account per role.
+type app struct {
+	t     *testing.T
+	ts    *httptest.Server
+	store *db.Store
+	srv   *Server
+	users map[cohort.Role]db.User
+}
+
+func newApp(t *testing.T) *app {
+	t.Helper()
+	pool := dbtest.Pool(t)
+	store := db.New(pool, nil)
+	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams})
+	ts := httptest.NewServer(srv.Handler())
+	t.Cleanup(ts.Close)
+	a := &app{t: t, ts: ts, store: store, srv: srv, users: map[cohort.Role]db.User{}}
+	hash, err := auth.Hash(testPassword, auth.TestParams)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range cohort.Roles {
+		u, err := store.CreateUser(context.Background(), cohort.System,
+			db.NewUser{Email: string(r) + "@example.org", Name: "Test " + r.Label(), Role: r, PasswordHash: hash})
+		if err != nil {
+			t.Fatal(err)
+		}
+		a.users[r] = u
+	}
+	return a
+}
+
+// client is a browser-like client with its own cookie jar that does not follow
+// redirects, so tests see them.
+func (a *app) client() *http.Client {
+	jar, _ := cookiejar.New(nil)
+	return &http.Client{Jar: jar, CheckRedirect: func(*http.Request, []*http.Request) error { return http.ErrUseLastResponse }}
+}
+
+// signIn returns a client signed in as role.
+func (a *app) signIn(role cohort.Role) *http.Client {
+	a.t.Helper()
+	c := a.client()
+	res := a.postForm(c, "/signin", url.Values{"email": {string(role) + "@example.org"}, "password": {testPassword}})
+	if res.StatusCode != http.StatusSeeOther {
+		a.t.Fatalf("sign in as %s: status %d", role, res.StatusCode)
+	}
+	return c
+}
+
+func (a *app) get(c *http.Client, path string) (*http.Response, string) {
+	a.t.Helper()
+	res, err := c.Get(a.ts.URL + path)
+	if err != nil {
+		a.t.Fatal(err)
+	}
+	defer res.Body.Close()
+	b, _ := io.ReadAll(res.Body)
+	return res, string(b)
+}
+
+func (a *app) postForm(c *http.Client, path string, v url.Values) *http.Response {
+	a.t.Helper()
+	res, err := c.PostForm(a.ts.URL+path, v)
+	if err != nil {
+		a.t.Fatal(err)
+	}
+	io.Copy(io.Discard, res.Body)
+	res.Body.Close()
+	return res
+}
+
+func (a *app) postFormBody(c *http.Client, path string, v url.Values) (*http.Response, string) {
+	a.t.Helper()
+	res, err := c.PostForm(a.ts.URL+path, v)
+	if err != nil {
+		a.t.Fatal(err)
+	}
+	defer res.Body.Close()
+	b, _ := io.ReadAll(res.Body)
+	return res, string(b)
+}
+
+func (a *app) exec(sql string, args ...any) {
+	a.t.Helper()
+	if _, err := a.store.Pool().Exec(context.Background(), sql, args...); err != nil {
+		a.t.Fatalf("exec %s: %v", strings.SplitN(sql, "\n", 2)[0], err)
+	}
+}
+
+func strconvFormat(n int64) string { return strconv.FormatInt(n, 10) }

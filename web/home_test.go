@@ -1,0 +1,134 @@
+package web
+
+import (
+	"context"
+	"errors"
+	"io"
+	"net/http"
+	"net/http/httptest"
+	"strings"
+	"testing"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db/dbtest"
+)
+
+func TestMain(m *testing.M) { dbtest.Main(m) }
+
+func get(t *testing.T, url string) (*http.Response, string) {
+	t.Helper()
+	res, err := http.Get(url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer res.Body.Close()
+	b, _ := io.ReadAll(res.Body)
+	return res, string(b)
+}
+
+func TestHomeShowsCountsFromDatabase(t *testing.T) {
+	a := newApp(t)
+	ctx := context.Background()
+	_, err := a.store.Pool().Exec(ctx, `
+		INSERT INTO sites (code, name) VALUES ('NW', 'North West'), ('SE', 'South East');
+		INSERT INTO participants (study_id, site_id, time_zone, enrolled_on, withdrawn_on)
+		SELECT 'P' || g, 1 + g % 2, 'UTC', date '2026-01-01', CASE WHEN g = 3 THEN date '2026-02-01' END
+		FROM generate_series(1, 7) g;`)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, body := a.get(a.signIn(cohort.Monitor), "/")
+	if res.StatusCode != 200 {
+		t.Fatalf("status %d", res.StatusCode)
+	}
+	for _, want := range []string{
+		`data-testid="tile-participants"><div class="num">7<`,
+		`data-testid="tile-active"><div class="num">6<`,
+		`data-testid="tile-sites"><div class="num">2<`,
+		`data-testid="cautions"`,
+	} {
+		if !strings.Contains(body, want) {
+			t.Errorf("home page lacks %s", want)
+		}
+	}
+}
+
+func TestHealthAndReadiness(t *testing.T) {
+	a := newApp(t)
+	for _, p := range []string{"/healthz", "/readyz"} {
+		if res, _ := get(t, a.ts.URL+p); res.StatusCode != 200 {
+			t.Errorf("%s: status %d", p, res.StatusCode)
+		}
+	}
+}
+
+// downStore fails every query, as a database that went away.
+type downStore struct{ Store }
+
+func (downStore) Ping(context.Context) error { return errors.New("connection refused") }
+
+func TestReadyzIs503WhenDatabaseIsDown(t *testing.T) {
+	ts := httptest.NewServer(New(Config{Store: downStore{}}).Handler())
+	defer ts.Close()
+	if res, _ := get(t, ts.URL+"/readyz"); res.StatusCode != http.StatusServiceUnavailable {
+		t.Fatalf("status %d, want 503", res.StatusCode)
+	}
+	if res, _ := get(t, ts.URL+"/healthz"); res.StatusCode != 200 {
+		t.Fatalf("healthz status %d, want 200 while the process runs", res.StatusCode)
+	}
+}
+
+func TestSecurityHeadersAndNotFound(t *testing.T) {
+	a := newApp(t)
+	res, body := a.get(a.signIn(cohort.Coordinator), "/no/such/page")
+	if res.StatusCode != 404 {
+		t.Fatalf("status %d, want 404", res.StatusCode)
+	}
+	if !strings.Contains(body, `data-testid="error-heading"`) {
+		t.Error("404 is not our error page")
+	}
+	h := res.Header
+	for k, want := range map[string]string{
+		"X-Content-Type-Options": "nosniff",
+		"Referrer-Policy":        "same-origin",
+	} {
+		if got := h.Get(k); got != want {
+			t.Errorf("%s = %q, want %q", k, got, want)
+		}
+	}
+	csp := h.Get("Content-Security-Policy")
+	for _, want := range []string{"script-src 'self'", "frame-ancestors 'none'"} {
+		if !strings.Contains(csp, want) {
+			t.Errorf("CSP %q lacks %q", csp, want)
+		}
+	}
+	if strings.Contains(csp, "unsafe-inline") {
+		t.Errorf("CSP allows inline code: %q", csp)
+	}
+	if h.Get("X-Request-Id") == "" {
+		t.Error("no request id")
+	}
+}
+
+func TestAssetsAreHashedAndLocal(t *testing.T) {
+	a := newApp(t)
+	ts := a.ts
+	_, body := a.get(a.signIn(cohort.Coordinator), "/")
+	for _, tag := range []string{`src="`, `href="`} {
+		for _, part := range strings.Split(body, tag)[1:] {
+			u := part[:strings.IndexByte(part, '"')]
+			if strings.HasPrefix(u, "http") || strings.HasPrefix(u, "//") {
+				t.Errorf("page loads %s from another host", u)
+			}
+			if strings.HasPrefix(u, "/assets/") {
+				res, _ := get(t, ts.URL+u)
+				if res.StatusCode != 200 {
+					t.Errorf("%s: status %d", u, res.StatusCode)
+				}
+				if !strings.Contains(res.Header.Get("Cache-Control"), "immutable") {
+					t.Errorf("%s not cached as immutable", u)
+				}
+			}
+		}
+	}
+}

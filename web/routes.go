@@ -1,0 +1,64 @@
+package web
+
+import (
+	"net/http"
+
+	"cohortdesk/assets"
+
+	"github.com/go-chi/chi/v5"
+)
+
+// route is one entry of the route table.
+type route struct {
+	method  string
+	pattern string
+	access  access
+	h       appHandler
+}
+
+// routes is the index of the application: every page and action, in one list.
+func (s *Server) routes() []route {
+	return []route{
+		{"GET", "/healthz", public, s.healthz},
+		{"GET", "/readyz", public, s.readyz},
+		{"GET", "/signin", public, s.signInForm},
+		{"POST", "/signin", public, s.signIn},
+		{"POST", "/signout", public, s.signOut},
+
+		{"GET", "/", everyone, s.home},
+
+		{"GET", "/admin", adminOnly, s.adminHome},
+		{"GET", "/admin/users", adminOnly, s.usersList},
+		{"POST", "/admin/users", adminOnly, s.userCreate},
+		{"GET", "/admin/users/{id}", adminOnly, s.userEdit},
+		{"POST", "/admin/users/{id}", adminOnly, s.userUpdate},
+		{"POST", "/admin/users/{id}/password", adminOnly, s.userResetPassword},
+		{"GET", "/admin/audit", adminOnly, s.auditList},
+		{"GET", "/admin/audit.csv", adminOnly, s.auditCSV},
+	}
+}
+
+func (s *Server) buildRouter() chi.Router {
+	s.routeTable = s.routes()
+	r := chi.NewRouter()
+	for _, rt := range s.routeTable {
+		r.Method(rt.method, rt.pattern, s.guard(rt.access, s.wrap(rt.h)))
+	}
+	r.Handle(assets.Prefix+"*", assets.Handler())
+	// Unknown addresses: visitors go to sign-in like everywhere else, staff get 404.
+	r.NotFound(s.guard(everyone, s.wrap(func(w http.ResponseWriter, r *http.Request) error { return errNotFound })).ServeHTTP)
+	r.MethodNotAllowed(func(w http.ResponseWriter, r *http.Request) {
+		http.Error(w, "method not allowed", http.StatusMethodNotAllowed)
+	})
+	return r
+}
+
+// accessOf finds the access level of a route in the table.
+func (s *Server) accessOf(method, pattern string) (access, bool) {
+	for _, rt := range s.routeTable {
+		if rt.method == method && rt.pattern == pattern {
+			return rt.access, true
+		}
+	}
+	return access{}, false
+}

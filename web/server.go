@@ -1,0 +1,154 @@
+// Package web is cohortdesk's HTTP side: the chi router (routes.go lists every
+// route with the roles allowed on it), handlers (one file per resource),
+// middleware, and the adapter that turns errors into pages.
+package web
+
+import (
+	"context"
+	"log/slog"
+	"net/http"
+	"net/netip"
+	"sync"
+	"time"
+
+	"cohortdesk/assets"
+	"cohortdesk/cohort"
+	"cohortdesk/views"
+	"cohortdesk/web/auth"
+
+	"github.com/alexedwards/scs/v2"
+	"github.com/go-chi/chi/v5"
+	"github.com/jackc/pgx/v5/pgxpool"
+)
+
+// Store is everything the handlers need from the database, made of the small
+// interfaces each handler file declares. *db.Store satisfies it.
+type Store interface {
+	homeStore
+	healthStore
+	userStore
+	signInStore
+	adminStore
+}
+
+// Config is what the server is built from.
+type Config struct {
+	Store          Store
+	Pool           *pgxpool.Pool // for the session store; nil keeps sessions in memory (tests only)
+	Logger         *slog.Logger
+	Now            func() time.Time // the clock; nil means time.Now
+	Session        SessionConfig
+	TrustedProxies []netip.Prefix // peers whose X-Forwarded-For is believed
+	Password       auth.Params    // argon2id cost for new passwords; zero means auth.DefaultParams
+	DemoNote       string         // demo sign-in help shown on the sign-in page; empty in production
+}
+
+// Server holds the dependencies of the handlers.
+type Server struct {
+	store          Store
+	log            *slog.Logger
+	now            func() time.Time
+	assets         views.AssetURLs
+	router         chi.Router
+	sessions       *scs.SessionManager
+	trustedProxies []netip.Prefix
+	pwParams       auth.Params
+	demoNote       string
+	routeTable     []route
+	tlsCert        string
+	tlsKey         string
+	dummyOnce      sync.Once
+	dummy          string
+}
+
+// New builds the server and its routes.
+func New(cfg Config) *Server {
+	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
+		pwParams: cfg.Password, demoNote: cfg.DemoNote}
+	if s.pwParams.Memory == 0 {
+		s.pwParams = auth.DefaultParams
+	}
+	s.sessions = newSessions(cfg.Pool, cfg.Session)
+	if s.log == nil {
+		s.log = slog.New(slog.DiscardHandler)
+	}
+	if s.now == nil {
+		s.now = time.Now
+	}
+	s.assets = views.AssetURLs{
+		CSS:  assets.URL("css/app.css"),
+		JS:   assets.URL("js/app.js"),
+		HTMX: assets.URL("vendor/htmx/htmx.min.js"),
+	}
+	s.router = s.buildRouter()
+	return s
+}
+
+// Handler is the whole application with its middleware.
+func (s *Server) Handler() http.Handler {
+	var h http.Handler = s.router
+	h = s.sessions.LoadAndSave(h)
+	// Refuses state-changing requests that browsers mark as cross-origin
+	// (Sec-Fetch-Site, or an Origin that is not this host).
+	h = http.NewCrossOriginProtection().Handler(h)
+	h = s.withRecover(h)
+	h = withSecurityHeaders(h)
+	h = s.withLogging(h)
+	h = withRequestID(h)
+	return h
+}
+
+// page builds the layout model every page shares.
+func (s *Server) page(r *http.Request, title, area string) views.Page {
+	p := views.Page{Title: title, Area: area, Assets: s.assets}
+	if name, err := s.store.StudyName(r.Context()); err == nil {
+		p.Study = name
+	}
+	if u, ok := userFrom(r.Context()); ok {
+		p.User = &views.User{Name: u.Name, RoleLabel: u.Role.Label()}
+		p.Nav = s.navFor(u.Role)
+	}
+	return p
+}
+
+// area is one entry of the main navigation.
+type area struct {
+	key, label, href, shortcut string
+}
+
+// areas are the main areas in order; each shows only to roles its landing
+// route allows, so the navigation can never offer a page that answers 403.
+var areas = []area{
+	{"home", "Overview", "/", "h"},
+	{"triage", "Triage", "/triage", "t"},
+	{"participants", "Participants", "/participants", "p"},
+	{"cases", "Cases", "/cases", "c"},
+	{"confirmations", "Confirmations", "/confirmations", "e"},
+	{"progress", "Progress", "/progress", "g"},
+	{"exports", "Exports", "/exports", "x"},
+	{"admin", "Administration", "/admin", "a"},
+}
+
+func (s *Server) navFor(role cohort.Role) []views.NavItem {
+	var out []views.NavItem
+	for _, a := range areas {
+		acc, ok := s.accessOf("GET", a.href)
+		if !ok || !acc.allows(role) {
+			continue
+		}
+		out = append(out, views.NavItem{Key: a.key, Label: a.label, Href: a.href, Key1: a.shortcut})
+	}
+	return out
+}
+
+// shutdownTimeout bounds how long in-flight requests may finish at shutdown.
+const shutdownTimeout = 20 * time.Second
+
+// Serve runs the HTTP server on addr until ctx ends, then shuts it down
+// gracefully. ready, when not nil, receives the bound address.
+func (s *Server) Serve(ctx context.Context, srv *http.Server, ready func(addr string)) error {
+	return serve(ctx, srv, s.tlsCert, s.tlsKey, ready)
+}
+
+// UseTLS makes Serve answer HTTPS with the given certificate and key files.
+func (s *Server) UseTLS(cert, key string) { s.tlsCert, s.tlsKey = cert, key }

@@ -1,0 +1,160 @@
+package web
+
+import (
+	"context"
+	"net"
+	"net/http"
+	"net/netip"
+	"net/url"
+	"strconv"
+	"strings"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db"
+
+	"github.com/alexedwards/scs/pgxstore"
+	"github.com/alexedwards/scs/v2"
+	"github.com/jackc/pgx/v5/pgxpool"
+)
+
+// SessionConfig sets the session cookie and its timeouts.
+type SessionConfig struct {
+	Idle     time.Duration // signed out after this long without a request (default 30 min)
+	Lifetime time.Duration // signed out this long after sign-in, however active (default 12 h)
+	Secure   bool          // cookie only over HTTPS
+}
+
+func newSessions(pool *pgxpool.Pool, c SessionConfig) *scs.SessionManager {
+	sm := scs.New()
+	if pool != nil {
+		sm.Store = pgxstore.NewWithCleanupInterval(pool, 10*time.Minute)
+	}
+	sm.IdleTimeout = c.Idle
+	if sm.IdleTimeout <= 0 {
+		sm.IdleTimeout = 30 * time.Minute
+	}
+	sm.Lifetime = c.Lifetime
+	if sm.Lifetime <= 0 {
+		sm.Lifetime = 12 * time.Hour
+	}
+	sm.Cookie.Name = "cohortdesk_session"
+	sm.Cookie.HttpOnly = true
+	sm.Cookie.SameSite = http.SameSiteLaxMode
+	sm.Cookie.Secure = c.Secure
+	sm.Cookie.Path = "/"
+	sm.Cookie.Persist = false // a browser session cookie; the server enforces the timeouts
+	return sm
+}
+
+const sessionUserKey = "uid"
+
+type userStore interface {
+	UserByID(ctx context.Context, id int64) (db.User, error)
+}
+
+// currentUser loads the signed-in, still active user of the request.
+func (s *Server) currentUser(r *http.Request) (db.User, bool) {
+	marker := s.sessions.GetString(r.Context(), sessionUserKey)
+	if marker == "" {
+		return db.User{}, false
+	}
+	id, err := strconv.ParseInt(strings.TrimSuffix(strings.TrimPrefix(marker, "cdu:"), ":"), 10, 64)
+	if err != nil {
+		return db.User{}, false
+	}
+	u, err := s.store.UserByID(r.Context(), id)
+	if err != nil || !u.Active {
+		return db.User{}, false
+	}
+	return u, true
+}
+
+// userFrom returns the user the guard put in the context.
+func userFrom(ctx context.Context) (db.User, bool) {
+	u, ok := ctx.Value(keyUser).(db.User)
+	return u, ok
+}
+
+// actor is the signed-in user as the author of a change.
+func (s *Server) actor(r *http.Request) cohort.Actor {
+	u, ok := userFrom(r.Context())
+	if !ok {
+		return cohort.Actor{Name: "anonymous", Addr: s.clientAddr(r), RequestID: requestID(r.Context())}
+	}
+	return u.Actor(s.clientAddr(r), requestID(r.Context()))
+}
+
+// role is the signed-in user's role, or "" for visitors.
+func role(r *http.Request) cohort.Role {
+	u, _ := userFrom(r.Context())
+	return u.Role
+}
+
+// guard enforces the route table: visitors are sent to sign in, users whose role
+// is not listed get 403.
+func (s *Server) guard(a access, h http.Handler) http.Handler {
+	if a.public {
+		return h
+	}
+	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		u, ok := s.currentUser(r)
+		if !ok {
+			s.toSignIn(w, r)
+			return
+		}
+		if !a.allows(u.Role) {
+			ctx := context.WithValue(r.Context(), keyUser, u)
+			s.serveError(w, r.WithContext(ctx), cohort.ErrForbidden)
+			return
+		}
+		w.Header().Set("Cache-Control", "no-store")
+		h.ServeHTTP(w, r.WithContext(context.WithValue(r.Context(), keyUser, u)))
+	})
+}
+
+// toSignIn redirects a visitor to the sign-in page, remembering where they were
+// going when it was a page view.
+func (s *Server) toSignIn(w http.ResponseWriter, r *http.Request) {
+	target := "/signin"
+	if r.Method == http.MethodGet && r.URL.Path != "/" {
+		target += "?next=" + url.QueryEscape(r.URL.RequestURI())
+	}
+	if r.Header.Get("HX-Request") == "true" {
+		w.Header().Set("HX-Redirect", target)
+		w.WriteHeader(http.StatusUnauthorized)
+		return
+	}
+	http.Redirect(w, r, target, http.StatusSeeOther)
+}
+
+// clientAddr is the address of the client: the connection's peer, or, when that
+// peer is a trusted proxy, the last address it appended to X-Forwarded-For.
+func (s *Server) clientAddr(r *http.Request) string {
+	host, _, err := net.SplitHostPort(r.RemoteAddr)
+	if err != nil {
+		host = r.RemoteAddr
+	}
+	peer, err := netip.ParseAddr(host)
+	if err != nil {
+		return host
+	}
+	if s.trusted(peer) {
+		if xff := r.Header.Get("X-Forwarded-For"); xff != "" {
+			parts := strings.Split(xff, ",")
+			if a, err := netip.ParseAddr(strings.TrimSpace(parts[len(parts)-1])); err == nil {
+				return a.String()
+			}
+		}
+	}
+	return peer.String()
+}
+
+func (s *Server) trusted(a netip.Addr) bool {
+	for _, p := range s.trustedProxies {
+		if p.Contains(a.Unmap()) {
+			return true
+		}
+	}
+	return false
+}
