@@ -1,0 +1,95 @@
+package deid
+
+import (
+	"fmt"
+	"slices"
+)
+
+// Export names a kind of document or file that leaves cohortdesk.
+type Export string
+
+// The exports the tool produces. Each has its own allow-list below.
+const (
+	// ReferralSummary is the document for the participant's physician.
+	ReferralSummary Export = "referral-summary"
+	// MonitorCases is the case-handling listing of the read-only monitor view.
+	MonitorCases Export = "monitor-cases"
+	// ScreeningResults is the per participant-week results file for analysis.
+	ScreeningResults Export = "screening-results"
+)
+
+// allowList holds, per export, every column that may leave the system. A
+// handler that adds a column must add it here too, where review sees it.
+// Free text (notes, contact log entries, reasons typed by staff) is on no
+// list: it can hold anything, so it never leaves. Sites appear as an opaque
+// site code, never a name or place: a site's location is a geographic unit
+// smaller than a state. Digests of a participant's input data stay inside
+// too; a digest is a unique code of its own.
+var allowList = map[Export][]string{
+	ReferralSummary: {
+		"referral_code", "age", "sex",
+		"flag_study_week", "recording_study_day", "recording_duration_s",
+		"over_read_rhythm", "over_read_study_day",
+		"cha2ds2_vasc", "cha2ds2_vasc_complete", "cha2ds2_va", "cha2ds2_va_complete",
+		"risk_items", "protocol_version",
+	},
+	MonitorCases: {
+		"referral_code", "site_code", "age_band", "sex",
+		"flag_study_week", "case_state", "state_study_day", "overdue",
+		"contact_attempts", "over_read_rhythm",
+	},
+	ScreeningResults: {
+		"referral_code", "site_code", "age_band", "sex", "zip3", "study_week",
+		"protocol_version", "verdict", "usable_windows", "irregular_windows", "wear_hours",
+	},
+}
+
+// neverAllowed lists columns that hold identifiers or free text. No
+// allow-list may name them; a test holds the two lists apart.
+var neverAllowed = []string{
+	"name", "first_name", "last_name", "email", "phone", "fax", "address",
+	"street", "city", "county", "zip", "birth_date", "enrolment_date",
+	"withdrawal_date", "study_id", "participant_id", "device_serial",
+	"recorder_serial", "ip_address", "notes", "note", "contact_log",
+	"withdrawal_reason", "free_text", "waveform", "site_name", "input_digest",
+}
+
+// Exports lists every export kind, sorted.
+func Exports() []Export {
+	out := make([]Export, 0, len(allowList))
+	for e := range allowList {
+		out = append(out, e)
+	}
+	slices.Sort(out)
+	return out
+}
+
+// AllowedFields returns the columns an export may contain, in the order an
+// export should print them. It returns a copy.
+func AllowedFields(e Export) ([]string, error) {
+	f, ok := allowList[e]
+	if !ok {
+		return nil, fmt.Errorf("deid: export %q is unknown: %w", e, ErrInvalid)
+	}
+	return slices.Clone(f), nil
+}
+
+// NeverAllowed returns the columns that no export may contain, for tests
+// and for the data protection review.
+func NeverAllowed() []string { return slices.Clone(neverAllowed) }
+
+// CheckFields returns an error wrapping ErrNotAllowed naming the first column
+// of an export that is not on its allow-list. Exporters call it with their
+// header before writing a row, so a column added by accident fails loudly.
+func CheckFields(e Export, columns []string) error {
+	allowed, ok := allowList[e]
+	if !ok {
+		return fmt.Errorf("deid: export %q is unknown: %w", e, ErrInvalid)
+	}
+	for i, c := range columns {
+		if !slices.Contains(allowed, c) {
+			return fmt.Errorf("deid: export %s: column %d %q: %w", e, i+1, c, ErrNotAllowed)
+		}
+	}
+	return nil
+}
