@@ -1,0 +1,15 @@
+// Package followup holds the rules of a follow-up case, from a screen-positive
+// episode to a referral or a closing: the case states and the moves between
+// them, how positive weeks merge into episodes and episodes into cases, what a
+// contact attempt implies, the study's working-day calendar, the service levels
+// that set when the next action is due, the order of the triage list, and the
+// field comparison behind a clear edit-conflict message.
+//
+// Everything here is pure: no I/O, no logging, no clock. The caller passes the
+// current time and the study's calendar in, so the same facts always give the
+// same answer and tests can pin any moment, time zone or daylight-saving change.
+//
+// The state names, action names, defaults and ordering rule are ours; only
+// trade terms (participant, over-read) are borrowed. The service-level defaults
+// are illustrative, not taken from any guideline.
+package followup
