@@ -27,6 +27,17 @@ func (s *Server) routes() []route {
 
 		{"GET", "/", everyone, s.home},
 
+		{"GET", "/participants", everyone, s.participantsList},
+		{"GET", "/participants.csv", everyone, s.participantsCSV},
+		{"GET", "/participants/new", coordWork, s.participantNew},
+		{"POST", "/participants", coordWork, s.participantCreate},
+		{"GET", "/participants/{id}", everyone, s.participantShow},
+		{"GET", "/participants/{id}/edit", coordWork, s.participantEdit},
+		{"POST", "/participants/{id}/edit", coordWork, s.participantUpdate},
+		{"GET", "/participants/{id}/withdraw", coordWork, s.participantWithdrawForm},
+		{"POST", "/participants/{id}/withdraw", coordWork, s.participantWithdraw},
+		{"POST", "/participants/{id}/notes", caseWork, s.participantNote},
+
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},
 		{"POST", "/admin/users", adminOnly, s.userCreate},

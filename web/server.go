@@ -29,6 +29,7 @@ type Store interface {
 	userStore
 	signInStore
 	adminStore
+	participantStore
 }
 
 // Config is what the server is built from.

@@ -1,0 +1,500 @@
+package web
+
+import (
+	"context"
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"net/http"
+	"net/url"
+	"strconv"
+	"strings"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/stats"
+	"cohortdesk/db"
+	"cohortdesk/views"
+	"cohortdesk/views/components"
+
+	"github.com/go-chi/chi/v5"
+)
+
+type participantStore interface {
+	Sites(ctx context.Context) ([]db.Site, error)
+	Participants(ctx context.Context, f db.ParticipantFilter) (db.ParticipantPage, error)
+	Participant(ctx context.Context, id int64) (db.Participant, error)
+	Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (db.Identity, error)
+	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
+	UpdateParticipant(ctx context.Context, a cohort.Actor, id int64, in db.ParticipantInput) (db.Participant, error)
+	Withdraw(ctx context.Context, a cohort.Actor, id int64, on, reason string, version int) (db.Participant, error)
+	Timeline(ctx context.Context, p db.Participant) ([]db.WeekLine, error)
+	Notes(ctx context.Context, participantID int64) ([]db.Note, error)
+	AddNote(ctx context.Context, a cohort.Actor, participantID int64, body string) error
+	Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error
+}
+
+// ageBands are the subgroup bands shown instead of exact ages.
+var ageBands, _ = stats.NewAgeBands(50, 60, 70, 80)
+
+// ageBand of a participant today, from the age at enrolment (no PHI needed).
+func ageBand(p db.Participant, now time.Time) string {
+	if p.AgeAtEnrolment == nil {
+		return "not recorded"
+	}
+	age := *p.AgeAtEnrolment + cohort.DateOf(now).DaysSince(p.EnrolledOn)/365
+	return ageBands.Label(age)
+}
+
+func status(p db.Participant) (string, components.Tone) {
+	if p.WithdrawnOn != nil {
+		return "withdrawn", components.Neutral
+	}
+	return "active", components.OK
+}
+
+func sexLabel(s cohort.Sex) string {
+	switch s {
+	case cohort.Female:
+		return "female"
+	case cohort.Male:
+		return "male"
+	}
+	return "not recorded"
+}
+
+// participantFilter reads the filter from the query string.
+func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
+	form := views.ParticipantFilterForm{Search: q.Get("q"), SiteID: q.Get("site"), Status: q.Get("status"),
+		PositiveWeeks: q.Get("positive"), OpenCase: q.Get("open_case") == "on", Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
+	f := db.ParticipantFilter{Search: form.Search, Status: form.Status, OpenCase: form.OpenCase, Sort: form.Sort,
+		Desc: form.Desc, After: q.Get("after"), WithNames: seesPHI}
+	f.SiteID, _ = strconv.Atoi(form.SiteID)
+	f.PositiveWeeks, _ = strconv.Atoi(form.PositiveWeeks)
+	return f, form
+}
+
+func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, error) {
+	sites, err := s.store.Sites(ctx)
+	if err != nil {
+		return nil, nil, err
+	}
+	opts := make([]views.Option, len(sites))
+	for i, st := range sites {
+		opts[i] = views.Option{Value: strconv.Itoa(st.ID), Label: st.Code + " · " + st.Name}
+	}
+	return opts, sites, nil
+}
+
+func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	seesPHI := role(r).SeesPHI()
+	f, form := participantFilter(r.URL.Query(), seesPHI)
+	page, err := s.store.Participants(ctx, f)
+	if err != nil {
+		return err
+	}
+	sites, _, err := s.siteOptions(ctx)
+	if err != nil {
+		return err
+	}
+	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
+		CanEnrol: coordWork.allows(role(r)), Total: page.Total, Active: page.Active, Withdrawn: page.Withdrawn}
+	now := s.now()
+	ids := make([]int64, 0, len(page.Rows))
+	for _, p := range page.Rows {
+		st, tone := status(p.Participant)
+		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: sexLabel(p.Sex),
+			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
+		if p.LastPositive != nil {
+			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
+		}
+		m.Rows = append(m.Rows, row)
+		ids = append(ids, p.ID)
+	}
+	if seesPHI && len(ids) > 0 {
+		// Names on a list are a view of PHI: record whose.
+		if err := s.store.Audit(ctx, s.actor(r), "participant.list_phi", "participant_list", "", nil, map[string]any{"participant_ids": ids}); err != nil {
+			return err
+		}
+	}
+	q := r.URL.Query()
+	if page.Next != "" {
+		q.Set("after", page.Next)
+		m.Next = "/participants?" + q.Encode()
+	}
+	if f.After != "" {
+		q.Del("after")
+		m.First = "/participants?" + q.Encode()
+	}
+	q.Del("after")
+	m.CSV = "/participants.csv?" + q.Encode()
+	return s.ok(w, r, views.Participants(m))
+}
+
+// participantsCSV streams the whole filtered list. Names and contact details
+// only for roles that see PHI; the download is audited.
+func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	seesPHI := role(r).SeesPHI()
+	f, _ := participantFilter(r.URL.Query(), seesPHI)
+	f.After, f.Limit = "", 500
+	if err := s.store.Audit(ctx, s.actor(r), "participant.export_list", "participant_list", "",
+		nil, map[string]any{"filter": r.URL.RawQuery, "with_phi": seesPHI}); err != nil {
+		return err
+	}
+	w.Header().Set("Content-Type", "text/csv; charset=utf-8")
+	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="participants-%s.csv"`, s.now().UTC().Format("20060102")))
+	cw := csv.NewWriter(w)
+	head := []string{"study_id", "site", "sex", "age_band", "enrolled_on", "status", "withdrawn_on", "last_positive_week", "open_cases"}
+	if seesPHI {
+		head = append(head, "name")
+	}
+	_ = cw.Write(head)
+	now := s.now()
+	for {
+		page, err := s.store.Participants(ctx, f)
+		if err != nil {
+			return err
+		}
+		for _, p := range page.Rows {
+			st, _ := status(p.Participant)
+			withdrawn, last := "", ""
+			if p.WithdrawnOn != nil {
+				withdrawn = p.WithdrawnOn.String()
+			}
+			if p.LastPositive != nil {
+				last = strconv.Itoa(*p.LastPositive)
+			}
+			rec := []string{csvSafe(p.StudyID), p.SiteCode, sexLabel(p.Sex), ageBand(p.Participant, now), p.EnrolledOn.String(), st, withdrawn, last, strconv.Itoa(p.OpenCases)}
+			if seesPHI {
+				rec = append(rec, csvSafe(p.Name))
+			}
+			_ = cw.Write(rec)
+		}
+		cw.Flush()
+		if page.Next == "" {
+			return cw.Error()
+		}
+		f.After = page.Next
+	}
+}
+
+func (s *Server) participantParam(r *http.Request) (db.Participant, error) {
+	id, err := strconv.ParseInt(chi.URLParam(r, "id"), 10, 64)
+	if err != nil {
+		return db.Participant{}, errNotFound
+	}
+	return s.store.Participant(r.Context(), id)
+}
+
+func yesNo(b *bool) string {
+	switch {
+	case b == nil:
+		return "not answered"
+	case *b:
+		return "yes"
+	}
+	return "no"
+}
+
+func verdictTone(v string) components.Tone {
+	switch v {
+	case "positive":
+		return components.Alarm
+	case "negative":
+		return components.OK
+	case "insufficient":
+		return components.Neutral
+	}
+	return components.Neutral
+}
+
+func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	p, err := s.participantParam(r)
+	if err != nil {
+		return err
+	}
+	st, tone := status(p)
+	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st, StatusTone: tone,
+		CanEdit: coordWork.allows(role(r)), CanNote: caseWork.allows(role(r)), Withdrawn: p.WithdrawnOn != nil}
+	m.Facts = []views.Fact{
+		{Label: "Site", Value: p.SiteCode},
+		{Label: "Sex", Value: sexLabel(p.Sex)},
+		{Label: "Age band", Value: ageBand(p, s.now())},
+		{Label: "Enrolled", Value: p.EnrolledOn.String()},
+		{Label: "Time zone", Value: p.TimeZone},
+		{Label: "Consent version", Value: p.ConsentVersion},
+		{Label: "Watch", Value: p.WatchModel},
+		{Label: "Beat intervals", Value: map[bool]string{true: "supplied by the watch", false: "not supplied"}[p.RRCapable]},
+	}
+	if p.WithdrawnOn != nil {
+		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: p.WithdrawnOn.String() + " (" + p.WithdrawalReason + ")"})
+	}
+	m.Risk = []views.Fact{
+		{Label: "High blood pressure", Value: yesNo(p.Risk.Hypertension)},
+		{Label: "Diabetes", Value: yesNo(p.Risk.Diabetes)},
+		{Label: "Heart failure", Value: yesNo(p.Risk.HeartFailure)},
+		{Label: "Prior stroke, TIA or thromboembolism", Value: yesNo(p.Risk.PriorStroke)},
+		{Label: "Vascular disease", Value: yesNo(p.Risk.VascularDisease)},
+	}
+	if role(r).SeesPHI() {
+		id, err := s.store.Identity(ctx, s.actor(r), p.ID, "participant page")
+		if err != nil {
+			return err
+		}
+		birth := ""
+		if id.BirthDate != nil {
+			birth = id.BirthDate.String()
+		}
+		m.Identity = []views.Fact{{Label: "Name", Value: id.FullName()}, {Label: "Birth date", Value: birth}, {Label: "Phone", Value: id.Phone},
+			{Label: "E-mail", Value: id.Email}, {Label: "Address", Value: strings.TrimSpace(id.Street + ", " + id.City + " " + id.ZIP)},
+			{Label: "Watch serial", Value: id.DeviceSerial}}
+	}
+	lines, err := s.store.Timeline(ctx, p)
+	if err != nil {
+		return err
+	}
+	chartWeek := -1
+	if wk, err := strconv.Atoi(r.URL.Query().Get("week")); err == nil {
+		chartWeek = wk
+	}
+	if chartWeek < 0 {
+		chartWeek = defaultChartWeek(lines)
+	}
+	m.ChartWeek = chartWeek
+	loc := p.Location()
+	for _, l := range lines {
+		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
+		row := views.TimelineRow{Week: l.Week, Dates: start.Format("Jan 2") + " – " + end.AddDate(0, 0, -1).Format("Jan 2"), Readings: l.Readings,
+			Verdict: l.Verdict, Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
+			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
+		if l.WearHours > 0 {
+			row.WearHours = strconv.FormatFloat(l.WearHours, 'f', 1, 64)
+		}
+		if l.CaseID != 0 {
+			row.CaseHref, row.CaseState = fmt.Sprintf("/cases/%d", l.CaseID), caseStateLabel(l.CaseState)
+		}
+		m.Timeline = append(m.Timeline, row)
+	}
+	if err := s.participantCharts(r, p, lines, &m); err != nil {
+		return err
+	}
+	notes, err := s.store.Notes(ctx, p.ID)
+	if err != nil {
+		return err
+	}
+	for _, n := range notes {
+		m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
+	}
+	return s.ok(w, r, views.ParticipantPage(m))
+}
+
+// defaultChartWeek is the latest screen-positive week, else the latest week
+// with readings.
+func defaultChartWeek(lines []db.WeekLine) int {
+	best := -1
+	for _, l := range lines {
+		if l.Verdict == "positive" {
+			best = l.Week
+		}
+	}
+	if best >= 0 {
+		return best
+	}
+	for _, l := range lines {
+		if l.Readings > 0 {
+			best = l.Week
+		}
+	}
+	if best < 0 {
+		return 0
+	}
+	return best
+}
+
+// formValues reads the participant form.
+func participantInput(r *http.Request) (db.ParticipantInput, map[string]string) {
+	f := r.PostForm
+	vals := map[string]string{}
+	for k := range f {
+		vals[k] = f.Get(k)
+	}
+	in := db.ParticipantInput{StudyID: f.Get("study_id"), Sex: cohort.Sex(f.Get("sex")), TimeZone: strings.TrimSpace(f.Get("time_zone")),
+		EnrolledOn: f.Get("enrolled_on"), ConsentVersion: strings.TrimSpace(f.Get("consent_version")), WatchModel: strings.TrimSpace(f.Get("watch_model")),
+		RRCapable: f.Get("rr_capable") == "on", BirthDate: f.Get("birth_date"),
+		Identity: db.Identity{GivenName: f.Get("given_name"), FamilyName: f.Get("family_name"), Phone: f.Get("phone"), Email: f.Get("email"),
+			Street: f.Get("street"), City: f.Get("city"), ZIP: f.Get("zip"), DeviceSerial: f.Get("device_serial")}}
+	in.SiteID, _ = strconv.Atoi(f.Get("site_id"))
+	in.Version, _ = strconv.Atoi(f.Get("version"))
+	answer := func(k string) *bool {
+		switch f.Get(k) {
+		case "yes":
+			t := true
+			return &t
+		case "no":
+			b := false
+			return &b
+		}
+		return nil
+	}
+	in.Risk = db.Risk{Hypertension: answer("hypertension"), Diabetes: answer("diabetes"), HeartFailure: answer("heart_failure"),
+		PriorStroke: answer("prior_stroke"), VascularDisease: answer("vascular_disease")}
+	return in, vals
+}
+
+func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
+	sites, _, err := s.siteOptions(r.Context())
+	if err != nil {
+		return err
+	}
+	vals := map[string]string{"enrolled_on": s.now().Format("2006-01-02"), "sex": "U"}
+	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
+		Action: "/participants", Heading: "Enrol a participant", Values: vals, Sites: sites, ShowPHI: true}))
+}
+
+// formFailure renders a form again with messages: 422 for invalid input, 409
+// when someone else changed the record.
+func formFailure(err error) (map[string]string, int, bool) {
+	var ve *cohort.ValidationError
+	var ce *cohort.ConflictError
+	switch {
+	case errors.As(err, &ve):
+		return ve.Fields, http.StatusUnprocessableEntity, true
+	case errors.As(err, &ce):
+		return map[string]string{"form": ce.Message}, http.StatusConflict, true
+	case errors.Is(err, cohort.ErrConflict):
+		return map[string]string{"form": "this clashes with a stored record (for example the study ID is taken)", "study_id": "already in use"}, http.StatusConflict, true
+	}
+	return nil, 0, false
+}
+
+func (s *Server) participantCreate(w http.ResponseWriter, r *http.Request) error {
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	in, vals := participantInput(r)
+	p, err := s.store.Enrol(r.Context(), s.actor(r), in)
+	if errs, status, ok := formFailure(err); ok {
+		sites, _, serr := s.siteOptions(r.Context())
+		if serr != nil {
+			return serr
+		}
+		s.render(w, r, status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
+			Action: "/participants", Heading: "Enrol a participant", Values: vals, Errors: errs, Sites: sites, ShowPHI: true}))
+		return nil
+	} else if err != nil {
+		return err
+	}
+	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
+	return nil
+}
+
+func (s *Server) participantEdit(w http.ResponseWriter, r *http.Request) error {
+	p, err := s.participantParam(r)
+	if err != nil {
+		return err
+	}
+	id, err := s.store.Identity(r.Context(), s.actor(r), p.ID, "edit form")
+	if err != nil {
+		return err
+	}
+	sites, _, err := s.siteOptions(r.Context())
+	if err != nil {
+		return err
+	}
+	ans := func(b *bool) string {
+		if b == nil {
+			return ""
+		}
+		return map[bool]string{true: "yes", false: "no"}[*b]
+	}
+	vals := map[string]string{"study_id": p.StudyID, "site_id": strconv.Itoa(p.SiteID), "sex": string(p.Sex), "enrolled_on": p.EnrolledOn.String(),
+		"time_zone": p.TimeZone, "consent_version": p.ConsentVersion, "watch_model": p.WatchModel,
+		"hypertension": ans(p.Risk.Hypertension), "diabetes": ans(p.Risk.Diabetes), "heart_failure": ans(p.Risk.HeartFailure),
+		"prior_stroke": ans(p.Risk.PriorStroke), "vascular_disease": ans(p.Risk.VascularDisease),
+		"given_name": id.GivenName, "family_name": id.FamilyName, "phone": id.Phone, "email": id.Email, "street": id.Street, "city": id.City,
+		"zip": id.ZIP, "device_serial": id.DeviceSerial}
+	if p.RRCapable {
+		vals["rr_capable"] = "on"
+	}
+	if id.BirthDate != nil {
+		vals["birth_date"] = id.BirthDate.String()
+	}
+	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
+		Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: vals, Sites: sites, Version: p.Version, ShowPHI: true}))
+}
+
+func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error {
+	p, err := s.participantParam(r)
+	if err != nil {
+		return err
+	}
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	in, vals := participantInput(r)
+	_, err = s.store.UpdateParticipant(r.Context(), s.actor(r), p.ID, in)
+	if errs, status, ok := formFailure(err); ok {
+		sites, _, serr := s.siteOptions(r.Context())
+		if serr != nil {
+			return serr
+		}
+		s.render(w, r, status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
+			Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: vals, Errors: errs, Sites: sites, Version: in.Version, ShowPHI: true}))
+		return nil
+	} else if err != nil {
+		return err
+	}
+	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
+	return nil
+}
+
+func (s *Server) participantWithdrawForm(w http.ResponseWriter, r *http.Request) error {
+	p, err := s.participantParam(r)
+	if err != nil {
+		return err
+	}
+	return s.ok(w, r, views.Withdraw(views.WithdrawModel{Page: s.page(r, "Withdraw "+p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID,
+		Values: map[string]string{"withdrawn_on": s.now().Format("2006-01-02")}, Version: p.Version}))
+}
+
+func (s *Server) participantWithdraw(w http.ResponseWriter, r *http.Request) error {
+	p, err := s.participantParam(r)
+	if err != nil {
+		return err
+	}
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	version, _ := strconv.Atoi(r.PostForm.Get("version"))
+	_, err = s.store.Withdraw(r.Context(), s.actor(r), p.ID, r.PostForm.Get("withdrawn_on"), r.PostForm.Get("reason"), version)
+	if errs, status, ok := formFailure(err); ok {
+		s.render(w, r, status, views.Withdraw(views.WithdrawModel{Page: s.page(r, "Withdraw "+p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID,
+			Values: map[string]string{"withdrawn_on": r.PostForm.Get("withdrawn_on"), "reason": r.PostForm.Get("reason")}, Errors: errs, Version: version}))
+		return nil
+	} else if err != nil {
+		return err
+	}
+	if err := s.afterWithdrawal(r, p.ID); err != nil {
+		return err
+	}
+	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
+	return nil
+}
+
+func (s *Server) participantNote(w http.ResponseWriter, r *http.Request) error {
+	p, err := s.participantParam(r)
+	if err != nil {
+		return err
+	}
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	if err := s.store.AddNote(r.Context(), s.actor(r), p.ID, r.PostForm.Get("body")); err != nil {
+		return err
+	}
+	http.Redirect(w, r, fmt.Sprintf("/participants/%d#notes", p.ID), http.StatusSeeOther)
+	return nil
+}
