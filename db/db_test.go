@@ -188,4 +188,3 @@ func TestEnrolValidatesAndAudits(t *testing.T) {
 		t.Fatal(err)
 	}
 }
-

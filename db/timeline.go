@@ -14,13 +14,13 @@ import (
 // WeekLine is one study week of a participant's timeline.
 type WeekLine struct {
 	Week      int
-	Readings  int64   // all kinds
+	Readings  int64 // all kinds
 	HRCount   int64
 	RRCount   int64
 	WearHours float64 // from the screen result, when screened
 	Verdict   string  // positive, negative, insufficient, or "" when not screened
 	Reason    string
-	CaseID    int64  // a case covering this week
+	CaseID    int64 // a case covering this week
 	CaseState string
 	ECG       int // recordings taken this week
 }
