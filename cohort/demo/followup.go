@@ -1,0 +1,674 @@
+package demo
+
+import (
+	"math"
+	"math/rand/v2"
+	"slices"
+	"time"
+
+	"cohortdesk/cohort"
+)
+
+// State is a follow-up case state. The values are the stored values the
+// follow-up package uses, listed here as plain strings so this package needs
+// nothing but cohort; the loader maps them one to one:
+//
+//	open                 flagged, nobody has tried to reach the participant yet
+//	contacting           at least one attempt made, participant not yet reached
+//	reached              participant spoken to and agreed to record
+//	recorder_sent        handheld recorder shipped, recording awaited
+//	recording_received   recording in, waiting for a usable over-read
+//	over_read            a clinician has given an interpretable verdict
+//	referred             final: summary sent to the participant's physician
+//	closed_not_confirmed final: the over-read did not confirm AF
+//	closed_unreachable   final: the participant could not be reached
+//	closed_declined      final: the participant declined follow-up
+//	closed_withdrawn     final: the participant left the study
+//
+// The script only makes these moves: open to contacting, reached,
+// closed_withdrawn; contacting to reached, closed_unreachable,
+// closed_withdrawn; reached to recorder_sent, closed_declined,
+// closed_withdrawn; recorder_sent to recording_received, closed_withdrawn;
+// recording_received to over_read, recorder_sent (a repeat recording after an
+// unusable one), closed_withdrawn; over_read to referred, closed_not_confirmed,
+// closed_withdrawn.
+type State string
+
+// The case states.
+const (
+	StateOpen               State = "open"
+	StateContacting         State = "contacting"
+	StateReached            State = "reached"
+	StateRecorderSent       State = "recorder_sent"
+	StateRecordingReceived  State = "recording_received"
+	StateOverRead           State = "over_read"
+	StateReferred           State = "referred"
+	StateClosedNotConfirmed State = "closed_not_confirmed"
+	StateClosedUnreachable  State = "closed_unreachable"
+	StateClosedDeclined     State = "closed_declined"
+	StateClosedWithdrawn    State = "closed_withdrawn"
+)
+
+// States lists every case state in life-cycle order.
+func States() []State {
+	return []State{StateOpen, StateContacting, StateReached, StateRecorderSent, StateRecordingReceived,
+		StateOverRead, StateReferred, StateClosedNotConfirmed, StateClosedUnreachable, StateClosedDeclined,
+		StateClosedWithdrawn}
+}
+
+// Channel is how a contact attempt was made.
+type Channel string
+
+// The contact channels.
+const (
+	ChannelPhone  Channel = "phone"
+	ChannelText   Channel = "text"
+	ChannelEmail  Channel = "email"
+	ChannelLetter Channel = "letter"
+)
+
+// Outcome is what came of a contact attempt.
+type Outcome string
+
+// The contact outcomes.
+const (
+	OutcomeNoAnswer    Outcome = "no_answer"    // phone: nobody picked up
+	OutcomeLeftMessage Outcome = "left_message" // phone: voicemail left
+	OutcomeNoReply     Outcome = "no_reply"     // text, e-mail or letter sent, nothing back
+	OutcomeReached     Outcome = "reached"
+	OutcomeDeclined    Outcome = "declined"
+)
+
+// Rhythm is a rhythm verdict on an ECG recording: an over-read, or the rhythm
+// a synthetic recording was made with.
+type Rhythm string
+
+// The over-read verdicts (the trade's categories).
+const (
+	RhythmAF              Rhythm = "af"
+	RhythmFlutter         Rhythm = "atrial_flutter"
+	RhythmSinus           Rhythm = "sinus_rhythm"
+	RhythmOther           Rhythm = "other_arrhythmia"
+	RhythmUninterpretable Rhythm = "uninterpretable"
+)
+
+// AutoResult is the handheld recorder's own automatic interpretation.
+type AutoResult string
+
+// The recorder's automatic interpretations.
+const (
+	AutoAF           AutoResult = "af"
+	AutoSinus        AutoResult = "sinus_rhythm"
+	AutoUnclassified AutoResult = "unclassified"
+	AutoNoAnalysis   AutoResult = "no_analysis" // too short or too noisy to analyse
+)
+
+// Transition is one state change of a case.
+type Transition struct {
+	At       time.Time
+	From, To State
+	By       string // user login
+}
+
+// Attempt is one logged contact attempt. Notes are short invented texts
+// without identifying details; free-text notes never leave the system anyway.
+type Attempt struct {
+	At      time.Time
+	By      string
+	Channel Channel
+	Outcome Outcome
+	Note    string
+}
+
+// Recording is one handheld single-lead ECG recording and what became of it.
+// Beats fall at FirstBeat, FirstBeat+RR[0], FirstBeat+RR[0]+RR[1], ... seconds
+// from the start, so the loader can synthesise a waveform with beats at known
+// times. Recordings under 30 s occur on purpose
+// (AF needs at least 30 s of ECG to be diagnosed).
+type Recording struct {
+	Taken     time.Time
+	Received  time.Time
+	Seconds   float64   // duration of the recording
+	FirstBeat float64   // seconds from the start to the first beat
+	RR        []float64 // seconds between successive beats; FirstBeat plus their sum is at most Seconds
+	Rhythm    Rhythm    // rhythm the RR series was made with (ground truth)
+	Noisy     bool      // synthesise with heavy artefact: an over-reader cannot read it
+	Auto      AutoResult
+	OverRead  Rhythm    // empty until read
+	ReadAt    time.Time // zero until read
+	Reader    string    // login of the over-reader
+}
+
+// FollowUp is the scripted history of one case as of the study's today.
+type FollowUp struct {
+	Case        CaseInput
+	Site        string
+	Owner       string      // coordinator login
+	Truth       EpisodeKind // episode behind the flag; empty for a false alarm
+	Final       State       // state as of today
+	Transitions []Transition
+	Attempts    []Attempt
+	Recordings  []Recording
+}
+
+// PlanFollowUps scripts the given cases (in any order; the result is in the
+// same order). Cases of participants who withdrew end closed_withdrawn at the
+// withdrawal. Then it makes sure every other state occurs at least once, when
+// the cases allow: a referral needs a case with an AF episode behind it, and
+// terminal states need time before today. The remaining cases follow their
+// natural course from the ground truth, cut at today. An unknown study ID
+// gives a case that stays open. Every event lies between the case's opening
+// and the study's today.
+func (s *Study) PlanFollowUps(cases []CaseInput) []FollowUp {
+	out := make([]FollowUp, len(cases))
+	done := make([]bool, len(cases))
+	truth := make([]EpisodeKind, len(cases))
+	covered := map[State]bool{}
+	for i, c := range cases {
+		p, ok := s.Participant(c.StudyID)
+		if !ok {
+			out[i] = FollowUp{Case: c, Final: StateOpen}
+			done[i] = true
+			continue
+		}
+		truth[i] = s.caseTruth(p, c)
+		if w, ok := s.withdrawalTime(p); ok && !w.After(s.Today) {
+			// The participant left while the recorder was out (or before the
+			// case opened); either way the case ends closed_withdrawn.
+			out[i] = s.simulate(c, p, truth[i], StateRecorderSent)
+			done[i] = true
+			covered[out[i].Final] = true
+		}
+	}
+	// Cover every state: terminal states from the oldest cases, states in
+	// progress from the newest, as a real triage list would look.
+	order := []State{StateReferred, StateClosedNotConfirmed, StateClosedUnreachable, StateClosedDeclined,
+		StateOverRead, StateRecordingReceived, StateRecorderSent, StateReached, StateContacting, StateOpen}
+	for _, st := range order {
+		if covered[st] {
+			continue
+		}
+		idx := make([]int, 0, len(cases))
+		for i := range cases {
+			if !done[i] {
+				idx = append(idx, i)
+			}
+		}
+		slices.SortStableFunc(idx, func(a, b int) int { return cases[a].Opened.Compare(cases[b].Opened) })
+		if !terminal(st) {
+			slices.Reverse(idx)
+		}
+		if st == StateReferred {
+			// A canary's referral summary is the one the leak tests read.
+			slices.SortStableFunc(idx, func(a, b int) int {
+				pa, _ := s.Participant(cases[a].StudyID)
+				pb, _ := s.Participant(cases[b].StudyID)
+				return boolRank(pb.Canary) - boolRank(pa.Canary)
+			})
+		}
+		for _, pass := range []int{0, 1} {
+			found := false
+			for _, i := range idx {
+				if !compatible(st, truth[i], pass) {
+					continue
+				}
+				p, _ := s.Participant(cases[i].StudyID)
+				f := s.simulate(cases[i], p, truth[i], st)
+				if f.Final == st {
+					out[i], done[i] = f, true
+					covered[st] = true
+					found = true
+					break
+				}
+			}
+			if found {
+				break
+			}
+		}
+	}
+	for i, c := range cases {
+		if done[i] {
+			continue
+		}
+		p, _ := s.Participant(c.StudyID)
+		out[i] = s.simulate(c, p, truth[i], s.naturalTarget(c, truth[i]))
+	}
+	return out
+}
+
+func boolRank(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+func terminal(st State) bool {
+	switch st {
+	case StateReferred, StateClosedNotConfirmed, StateClosedUnreachable, StateClosedDeclined, StateClosedWithdrawn:
+		return true
+	}
+	return false
+}
+
+// compatible says whether a case with this truth may be steered to st. On the
+// second pass a "not confirmed" close may also come from an AF case whose
+// recording caught sinus rhythm (the episode had ended).
+func compatible(st State, truth EpisodeKind, pass int) bool {
+	switch st {
+	case StateReferred:
+		return truth == EpisodeAF
+	case StateClosedNotConfirmed:
+		return truth != EpisodeAF || pass == 1
+	}
+	return true
+}
+
+// caseTruth is the episode kind behind a case: any episode overlapping the
+// flagged week or the week after, AF taking precedence.
+func (s *Study) caseTruth(p Participant, c CaseInput) EpisodeKind {
+	pl, ok := s.planOf(p)
+	if !ok {
+		return ""
+	}
+	ws, _ := cohort.WeekBounds(p.Enrolled, p.Loc, c.Week)
+	_, we := cohort.WeekBounds(p.Enrolled, p.Loc, c.Week+1)
+	var k EpisodeKind
+	for _, e := range pl.episodes {
+		if e.a < we.UnixMilli() && e.b > ws.UnixMilli() && k != EpisodeAF {
+			k = e.kind
+		}
+	}
+	return k
+}
+
+// withdrawalTime is when p's withdrawal was recorded: 10:00 on the withdrawal
+// day in p's zone.
+func (s *Study) withdrawalTime(p Participant) (time.Time, bool) {
+	if p.Withdrawn.IsZero() {
+		return time.Time{}, false
+	}
+	return p.Withdrawn.In(p.Loc).Add(10 * time.Hour), true
+}
+
+// caseRand is the generator of one case, keyed by participant and week so a
+// case's script does not change when other cases are added.
+func (s *Study) caseRand(c CaseInput, salt uint64) *rand.Rand {
+	return newRand(s.seed, streamCase, hashString(c.StudyID), uint64(int64(c.Week))<<8|salt)
+}
+
+// naturalTarget is where a case would end if left to its course: a few
+// participants cannot be reached or decline, the rest are over-read and
+// referred or closed by the verdict (drawn in simulate from the truth).
+func (s *Study) naturalTarget(c CaseInput, truth EpisodeKind) State {
+	r := s.caseRand(c, 1)
+	switch u := r.Float64(); {
+	case u < 0.07:
+		return StateClosedUnreachable
+	case u < 0.13:
+		return StateClosedDeclined
+	}
+	return "" // decided by the over-read
+}
+
+// Invented note texts, by outcome.
+var notes = map[Outcome][]string{
+	OutcomeNoAnswer:    {"No answer; will try again.", "Phone rang out, no voicemail set up."},
+	OutcomeLeftMessage: {"Left a message asking for a call back.", "Left a voicemail with the study line number."},
+	OutcomeNoReply:     {"Sent the standard follow-up message.", "Follow-up sent; no reply so far."},
+	OutcomeReached:     {"Spoke with the participant; agreed to make a recording.", "Reached; explained the recorder and the next steps."},
+	OutcomeDeclined:    {"Participant prefers not to continue with follow-up; thanked them."},
+}
+
+// sim carries one case's script while it is written.
+type sim struct {
+	s     *Study
+	r     *rand.Rand
+	p     Participant
+	f     FollowUp
+	state State
+	inv   string
+}
+
+func (m *sim) move(at time.Time, to State, by string) {
+	m.f.Transitions = append(m.f.Transitions, Transition{At: at, From: m.state, To: to, By: by})
+	m.state = to
+}
+
+func (m *sim) attempt(at time.Time, ch Channel, o Outcome) {
+	txt := notes[o]
+	m.f.Attempts = append(m.f.Attempts, Attempt{At: at, By: m.f.Owner, Channel: ch, Outcome: o, Note: txt[m.r.IntN(len(txt))]})
+}
+
+// simulate writes the script of one case steered to target (empty: decided by
+// the over-read), then cuts it at a withdrawal and at today.
+func (s *Study) simulate(c CaseInput, p Participant, truth EpisodeKind, target State) FollowUp {
+	inv, _ := s.User(RoleInvestigator)
+	m := &sim{s: s, r: s.caseRand(c, 2), p: p, state: StateOpen, inv: inv.Login}
+	m.f = FollowUp{Case: c, Site: p.Site, Owner: s.coordinatorFor(p.Site), Truth: truth}
+	m.script(target)
+	s.cut(m)
+	return m.f
+}
+
+// script writes the full course towards target, ignoring today.
+func (m *sim) script(target State) {
+	s, r, owner := m.s, m.r, m.f.Owner
+	if target == StateOpen {
+		return
+	}
+	if w, ok := s.withdrawalTime(m.p); ok && !w.After(m.f.Case.Opened) {
+		m.move(s.workTime(r, m.f.Case.Opened, 0, 1), StateClosedWithdrawn, owner)
+		return
+	}
+	// Contact attempts.
+	fails := pick(r, []float64{0.45, 0.35, 0.2})
+	switch target {
+	case StateContacting:
+		fails = 1 + r.IntN(2)
+	case StateClosedUnreachable:
+		fails = 4 + r.IntN(2)
+	}
+	channels := []Channel{ChannelPhone, ChannelPhone, ChannelText, ChannelEmail, ChannelLetter}
+	t := m.f.Case.Opened
+	for i := range fails {
+		if i == 0 {
+			t = s.workTime(r, t, 0, 2)
+		} else {
+			t = s.workTime(r, t, 1, 3)
+		}
+		ch := channels[i%len(channels)]
+		o := OutcomeNoReply
+		if ch == ChannelPhone {
+			o = []Outcome{OutcomeNoAnswer, OutcomeLeftMessage}[r.IntN(2)]
+		}
+		m.attempt(t, ch, o)
+		if i == 0 {
+			m.move(t, StateContacting, owner)
+		}
+	}
+	switch target {
+	case StateContacting:
+		return
+	case StateClosedUnreachable:
+		m.move(s.workTime(r, t, 5, 7), StateClosedUnreachable, owner)
+		return
+	}
+	if fails == 0 {
+		t = s.workTime(r, t, 0, 2)
+	} else {
+		t = s.workTime(r, t, 1, 2)
+	}
+	m.attempt(t, ChannelPhone, OutcomeReached)
+	if target == StateClosedDeclined {
+		m.f.Attempts[len(m.f.Attempts)-1].Note = "Reached; wants a few days to think about the recorder."
+		m.move(t, StateReached, owner)
+		t = s.workTime(r, t, 1, 3)
+		m.attempt(t, ChannelPhone, OutcomeDeclined)
+		m.move(t, StateClosedDeclined, owner)
+		return
+	}
+	m.move(t, StateReached, owner)
+	if target == StateReached {
+		return
+	}
+	t = s.workTime(r, t, 1, 3)
+	m.move(t, StateRecorderSent, owner)
+	if target == StateRecorderSent {
+		return
+	}
+	rhythm := m.drawRhythm(target)
+	// One recording in seven is unusable at first (too short or too noisy)
+	// and a repeat is asked for.
+	unusable := r.Float64() < 1.0/7
+	for {
+		rec := m.record(t, rhythm, unusable)
+		t = rec.Received
+		m.move(t, StateRecordingReceived, owner)
+		if target == StateRecordingReceived {
+			m.f.Recordings = append(m.f.Recordings, rec)
+			return
+		}
+		t = s.workTime(r, t, 1, 3)
+		rec.ReadAt, rec.Reader = t, m.inv
+		rec.OverRead = m.read(rec)
+		m.f.Recordings = append(m.f.Recordings, rec)
+		if rec.OverRead != RhythmUninterpretable {
+			break
+		}
+		t = s.workTime(r, t, 0, 1)
+		m.move(t, StateRecorderSent, owner)
+		unusable = false
+	}
+	m.move(t, StateOverRead, m.inv)
+	if target == StateOverRead {
+		return
+	}
+	t = s.workTime(r, t, 1, 3)
+	if v := m.f.Recordings[len(m.f.Recordings)-1].OverRead; v == RhythmAF || v == RhythmFlutter {
+		m.move(t, StateReferred, m.inv)
+	} else {
+		m.move(t, StateClosedNotConfirmed, m.inv)
+	}
+}
+
+// drawRhythm draws the rhythm a recording catches. It follows the truth with
+// noise: a paroxysm may have ended by the time of the recording, and ectopy
+// may or may not show. Steered terminal states fix the verdict's side.
+func (m *sim) drawRhythm(target State) Rhythm {
+	r := m.r
+	var opts []Rhythm
+	var ws []float64
+	switch m.f.Truth {
+	case EpisodeAF:
+		opts, ws = []Rhythm{RhythmAF, RhythmFlutter, RhythmSinus}, []float64{0.78, 0.07, 0.15}
+	case EpisodeEctopy:
+		opts, ws = []Rhythm{RhythmOther, RhythmSinus}, []float64{0.6, 0.4}
+	default:
+		opts, ws = []Rhythm{RhythmSinus, RhythmOther, RhythmAF}, []float64{0.88, 0.1, 0.02}
+	}
+	switch target {
+	case StateReferred:
+		opts, ws = []Rhythm{RhythmAF, RhythmFlutter}, []float64{0.9, 0.1}
+	case StateClosedNotConfirmed:
+		if m.f.Truth == EpisodeAF {
+			opts, ws = []Rhythm{RhythmSinus}, []float64{1}
+		} else {
+			opts, ws = []Rhythm{RhythmSinus, RhythmOther}, []float64{0.6, 0.4}
+		}
+	}
+	return opts[pick(r, ws)]
+}
+
+// record makes one recording taken a few days after t and received by the
+// office a working day or three later.
+func (m *sim) record(t time.Time, rhythm Rhythm, unusable bool) Recording {
+	r := m.r
+	rec := Recording{Rhythm: rhythm}
+	rec.Taken = m.s.participantTime(r, m.p, t, 2, 6)
+	rec.Received = m.s.workTime(r, rec.Taken, 1, 3)
+	rec.Seconds = math.Round(between(r, 30, 60))
+	short := false
+	if unusable {
+		if r.IntN(2) == 0 {
+			rec.Seconds, short = math.Round(between(r, 12, 29)), true
+		} else {
+			rec.Noisy = true
+		}
+	}
+	rec.FirstBeat, rec.RR = recordingRR(r, rhythm, rec.Seconds)
+	rec.Auto = autoResult(r, rhythm, short, rec.Noisy)
+	return rec
+}
+
+// read is the over-reader's verdict: unreadable recordings (too short to
+// diagnose, or noisy) are uninterpretable; otherwise the truth, with an
+// occasional confusion between AF and flutter.
+func (m *sim) read(rec Recording) Rhythm {
+	if rec.Noisy || rec.Seconds < 30 {
+		return RhythmUninterpretable
+	}
+	if m.r.Float64() < 0.04 {
+		switch rec.Rhythm {
+		case RhythmAF:
+			return RhythmFlutter
+		case RhythmFlutter:
+			return RhythmAF
+		}
+	}
+	return rec.Rhythm
+}
+
+// autoResult imitates a recorder's own algorithm: right most of the time,
+// unclassified for rhythms it was not built for, silent on short or noisy
+// recordings.
+func autoResult(r *rand.Rand, rh Rhythm, short, noisy bool) AutoResult {
+	opts := []AutoResult{AutoAF, AutoSinus, AutoUnclassified, AutoNoAnalysis}
+	var ws []float64
+	switch {
+	case short:
+		ws = []float64{0, 0, 0.2, 0.8}
+	case noisy:
+		ws = []float64{0, 0, 0.6, 0.4}
+	case rh == RhythmAF:
+		ws = []float64{0.85, 0.05, 0.1, 0}
+	case rh == RhythmFlutter:
+		ws = []float64{0.3, 0.2, 0.5, 0}
+	case rh == RhythmOther:
+		ws = []float64{0.2, 0.3, 0.5, 0}
+	default:
+		ws = []float64{0.03, 0.9, 0.07, 0}
+	}
+	return opts[pick(r, ws)]
+}
+
+// recordingRR draws beat intervals (seconds, millisecond resolution) filling
+// at most seconds. Sinus rhythm swings a few percent with breathing; AF draws
+// independent intervals with a wide spread; flutter conducts every second
+// (sometimes third or fourth) flutter wave of a 190-230 ms cycle; other
+// arrhythmia is sinus rhythm with early beats and compensatory pauses.
+func recordingRR(r *rand.Rand, rh Rhythm, seconds float64) (first float64, rr []float64) {
+	base := 60 / between(r, 58, 88)
+	amp := between(r, 0.02, 0.05)
+	breath := between(r, 3.8, 5.5)
+	phase := between(r, 0, 2*math.Pi)
+	afMean := 60 / between(r, 85, 125)
+	cycle := between(r, 0.19, 0.23)
+	variable := r.Float64() < 0.3
+	out := make([]float64, 0, int(seconds*2.5)+2)
+	first = math.Round(between(r, 0.2, 0.8)*1000) / 1000
+	total := first
+	prevEarly := false
+	for i := 0; ; i++ {
+		var rr float64
+		switch rh {
+		case RhythmAF:
+			rr = max(0.3, min(1.8, afMean*math.Exp(0.2*r.NormFloat64())))
+		case RhythmFlutter:
+			block := 2.0
+			if variable {
+				block = float64(2 + pick(r, []float64{0.6, 0.3, 0.1}))
+			}
+			rr = cycle*block + 0.005*r.NormFloat64()
+		default:
+			rr = base*(1+amp*math.Sin(2*math.Pi*float64(i)/breath+phase)) + 0.01*r.NormFloat64()
+			if rh == RhythmOther {
+				switch {
+				case prevEarly:
+					rr *= 1.38
+					prevEarly = false
+				case r.Float64() < 0.2:
+					rr *= 0.62
+					prevEarly = true
+				}
+			}
+		}
+		rr = math.Round(rr*1000) / 1000
+		if total+rr > seconds {
+			return first, out
+		}
+		total += rr
+		out = append(out, rr)
+	}
+}
+
+// cut trims a script at the participant's withdrawal (closing the case as
+// withdrawn there) and at today, and sets the final state.
+func (s *Study) cut(m *sim) {
+	f := &m.f
+	limit := s.Today
+	w, withdrawn := s.withdrawalTime(m.p)
+	if withdrawn && w.After(f.Case.Opened) && !w.After(s.Today) {
+		limit = w
+	} else {
+		withdrawn = false
+	}
+	keepT := f.Transitions[:0]
+	for _, tr := range f.Transitions {
+		if !tr.At.After(limit) {
+			keepT = append(keepT, tr)
+		}
+	}
+	f.Transitions = keepT
+	keepA := f.Attempts[:0]
+	for _, a := range f.Attempts {
+		if !a.At.After(limit) {
+			keepA = append(keepA, a)
+		}
+	}
+	f.Attempts = keepA
+	keepR := f.Recordings[:0]
+	for _, rec := range f.Recordings {
+		if rec.Received.After(limit) {
+			continue
+		}
+		if rec.ReadAt.After(limit) {
+			rec.OverRead, rec.ReadAt, rec.Reader = "", time.Time{}, ""
+		}
+		keepR = append(keepR, rec)
+	}
+	f.Recordings = keepR
+	f.Final = StateOpen
+	if n := len(f.Transitions); n > 0 {
+		f.Final = f.Transitions[n-1].To
+	}
+	if withdrawn && !terminal(f.Final) {
+		f.Transitions = append(f.Transitions, Transition{At: w, From: f.Final, To: StateClosedWithdrawn, By: f.Owner})
+		f.Final = StateClosedWithdrawn
+	}
+}
+
+// workTime is when office staff next act after t: minDays to maxDays working
+// days later (weekends and closure days skipped), during office hours in the
+// study zone. Zero days means later the same day when the office is still open.
+func (s *Study) workTime(r *rand.Rand, t time.Time, minDays, maxDays int) time.Time {
+	local := t.In(s.Loc)
+	d := cohort.DateOf(local)
+	k := betweenInt(r, minDays, maxDays)
+	if k == 0 {
+		if s.workingDay(d) && local.Hour() >= 8 && local.Hour() < 15 {
+			return local.Add(time.Duration(20+r.IntN(100)) * time.Minute)
+		}
+		if !s.workingDay(d) || local.Hour() >= 8 {
+			k = 1
+		}
+	}
+	for k > 0 {
+		d = d.AddDays(1)
+		if s.workingDay(d) {
+			k--
+		}
+	}
+	return d.In(s.Loc).Add(8*time.Hour + 30*time.Minute + time.Duration(r.IntN(8*60))*time.Minute)
+}
+
+// participantTime is when the participant next acts after t: minDays to
+// maxDays later, between 07:00 and 21:00 in their zone.
+func (s *Study) participantTime(r *rand.Rand, p Participant, t time.Time, minDays, maxDays int) time.Time {
+	d := cohort.DateOf(t.In(p.Loc)).AddDays(betweenInt(r, minDays, maxDays))
+	at := d.In(p.Loc).Add(7*time.Hour + time.Duration(r.IntN(14*60))*time.Minute)
+	if !at.After(t) {
+		at = t.Add(time.Hour)
+	}
+	return at
+}
