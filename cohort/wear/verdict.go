@@ -1,0 +1,180 @@
+package wear
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+)
+
+// Verdict is an external algorithm's call on one participant-week.
+type Verdict uint8
+
+// The verdicts an external algorithm may give, matching the screen's own.
+const (
+	VerdictPositive     Verdict = 1 // screen-positive
+	VerdictNegative     Verdict = 2 // screen-negative
+	VerdictInsufficient Verdict = 3 // not enough data to call
+)
+
+// String gives the name used in verdict files.
+func (v Verdict) String() string {
+	switch v {
+	case VerdictPositive:
+		return "positive"
+	case VerdictNegative:
+		return "negative"
+	case VerdictInsufficient:
+		return "insufficient"
+	}
+	return "verdict(" + strconv.Itoa(int(v)) + ")"
+}
+
+// ParseVerdict reads a verdict name, ignoring case and surrounding spaces.
+func ParseVerdict(s string) (Verdict, error) {
+	switch strings.ToLower(strings.TrimSpace(s)) {
+	case "positive":
+		return VerdictPositive, nil
+	case "negative":
+		return VerdictNegative, nil
+	case "insufficient":
+		return VerdictInsufficient, nil
+	}
+	return 0, fmt.Errorf("unknown verdict %q (want positive, negative or insufficient)", s)
+}
+
+// VerdictRow is one accepted line of an external verdicts file.
+type VerdictRow struct {
+	StudyID      string
+	Week         int     // study week, 0-based
+	Score        float64 // the model's score; meaningful only when HasScore
+	HasScore     bool    // false when the score column was empty
+	Verdict      Verdict
+	ModelName    string
+	ModelVersion string
+	Line         int
+}
+
+var verdictColumns = []column{
+	{"study_id", true},
+	{"study_week", true},
+	{"score", true},
+	{"verdict", true},
+	{"model_name", true},
+	{"model_version", true},
+}
+
+// VerdictReader streams an external verdicts CSV: a header naming the
+// columns study_id, study_week, score, verdict, model_name and model_version
+// in any order (no others), then one line per participant-week. The CSV rules
+// are those of the readings format. study_week is a whole number from 0;
+// score is a decimal number (exponent allowed, since models print floats) or
+// empty when the model gave none; verdict is positive, negative or
+// insufficient in any letter case; model name and version are required text.
+// Bad lines are refused one by one with a Reason, as for readings.
+type VerdictReader struct {
+	name    string
+	rr      *recordReader
+	idx     []int
+	ncols   int
+	started bool
+	row     VerdictRow
+	rej     *Rejection
+	err     error
+	ids     interner
+	models  interner
+}
+
+// NewVerdictReader reads verdicts from r; name is used in messages.
+func NewVerdictReader(r io.Reader, name string) *VerdictReader {
+	return &VerdictReader{name: name, rr: newRecordReader(r)}
+}
+
+// Next moves to the next verdict or rejection; false at the end or after a
+// file-level error (see Err).
+func (v *VerdictReader) Next() bool {
+	if v.err != nil {
+		return false
+	}
+	if !v.started {
+		v.started = true
+		v.idx, v.ncols, v.err = readHeader(v.rr, v.name, verdictColumns)
+		if v.err != nil {
+			return false
+		}
+	}
+	v.rej = nil
+	if err := v.rr.next(); err != nil {
+		var qe *quoteError
+		switch {
+		case err == io.EOF:
+			return false
+		case errors.As(err, &qe):
+			v.reject(ReasonBadQuoting, "", "%s at column %d", qe.msg, qe.col)
+			return true
+		default:
+			v.err = fileErr(v.name, err)
+			return false
+		}
+	}
+	v.parse()
+	return true
+}
+
+// Verdict is the current row; meaningful only when Rejection is nil.
+func (v *VerdictReader) Verdict() VerdictRow { return v.row }
+
+// Rejection is the current refused line, or nil.
+func (v *VerdictReader) Rejection() *Rejection { return v.rej }
+
+// Err is the *FileError that stopped reading, or nil at a clean end.
+func (v *VerdictReader) Err() error { return v.err }
+
+func (v *VerdictReader) reject(why Reason, field, format string, args ...any) {
+	v.rej = &Rejection{Reason: why, File: v.name, Line: v.rr.start, Entry: -1, Offset: -1, Field: field,
+		Msg: fmt.Sprintf(format, args...), Raw: string(v.rr.raw)}
+}
+
+func (v *VerdictReader) parse() {
+	f := v.rr.fields
+	if len(f) != v.ncols {
+		v.reject(ReasonFieldCount, "", "record has %d fields, header has %d", len(f), v.ncols)
+		return
+	}
+	get := func(c int) []byte { return trimSpace(f[v.idx[c]]) }
+	for c, col := range verdictColumns {
+		if col.name != "score" && len(get(c)) == 0 {
+			v.reject(ReasonMissingField, col.name, "%s is empty", col.name)
+			return
+		}
+	}
+	row := VerdictRow{Line: v.rr.start}
+	wb := get(1)
+	d, ok := parseDecimal(wb)
+	if !ok || d.neg || d.fraction || d.intPart > math.MaxInt32 {
+		v.reject(ReasonBadWeek, "study_week", "study_week %s is not a whole number from 0", quote(wb))
+		return
+	}
+	row.Week = int(d.intPart)
+	if sb := get(2); len(sb) > 0 {
+		s, err := strconv.ParseFloat(string(sb), 64)
+		if err != nil || math.IsNaN(s) || math.IsInf(s, 0) {
+			v.reject(ReasonBadNumber, "score", "score %s is not a finite number", quote(sb))
+			return
+		}
+		row.Score, row.HasScore = s, true
+	}
+	vb := get(3)
+	verdict, err := ParseVerdict(string(vb))
+	if err != nil {
+		v.reject(ReasonBadVerdict, "verdict", "verdict %s is not positive, negative or insufficient", quote(vb))
+		return
+	}
+	row.Verdict = verdict
+	row.StudyID = v.ids.get(get(0))
+	row.ModelName = v.models.get(get(4))
+	row.ModelVersion = string(get(5))
+	v.row = row
+}
