@@ -1,0 +1,53 @@
+package ecg
+
+import "testing"
+
+// benchSignal makes a noisy sinus recording of the given length at 500 Hz.
+func benchSignal(b *testing.B, seconds float64) Waveform {
+	b.Helper()
+	n := int(seconds / 0.8)
+	s, err := Synthesize(SinusRR(n, 800, 1), SynthOptions{RateHz: 500, WanderMV: 0.2, WanderHz: 0.2, Noise: true, SNRdB: 12, Seed: 1})
+	if err != nil {
+		b.Fatal(err)
+	}
+	return s.Waveform
+}
+
+func benchDetect(b *testing.B, seconds float64) {
+	w := benchSignal(b, seconds)
+	b.ResetTimer()
+	for b.Loop() {
+		if _, err := Detect(w); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(len(w.Samples))*float64(b.N)/b.Elapsed().Seconds(), "samples/s")
+}
+
+// BenchmarkDetect30s runs the detector over a 30 s strip at 500 Hz.
+func BenchmarkDetect30s(b *testing.B) { benchDetect(b, 30) }
+
+// BenchmarkDetect5min runs the detector over a 5 min recording at 500 Hz.
+func BenchmarkDetect5min(b *testing.B) { benchDetect(b, 300) }
+
+// BenchmarkSynthesize30s generates a 30 s strip at 500 Hz.
+func BenchmarkSynthesize30s(b *testing.B) {
+	rr := SinusRR(37, 800, 1)
+	for b.Loop() {
+		if _, err := Synthesize(rr, SynthOptions{RateHz: 500}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
+// BenchmarkBaselineLowPass5min runs the published low-pass filter alone over
+// the samples of the 5 min recording: the baseline against which
+// BenchmarkDetect5min is read as a ratio in the same run.
+func BenchmarkBaselineLowPass5min(b *testing.B) {
+	w := benchSignal(b, 300)
+	b.ResetTimer()
+	for b.Loop() {
+		_ = lowPass(w.Samples)
+	}
+	b.ReportMetric(float64(len(w.Samples))*float64(b.N)/b.Elapsed().Seconds(), "samples/s")
+}

@@ -1,0 +1,50 @@
+// Package ecg reads single-lead ECG recordings, finds the beats in them and lays
+// them out on ECG paper, so that an over-reader can look at a strip beside the
+// beat-interval figures computed from it.
+//
+// Everything here is pure: callers pass bytes in and get values back; nothing
+// reads files, the clock or the network, and nothing logs.
+//
+// # Inputs
+//
+// ReadEDF reads EDF and EDF+ files (Kemp B et al. 1992; EDF+ 2003). The local
+// patient and recording identification fields of an EDF header often carry a
+// name, a birth date or a hospital code, so they come back in their own struct
+// (EDFIdentity) and never in the Waveform; callers that store or show a strip
+// should drop them or pass them to the de-identification step. The start date
+// and time are dates under HIPAA Safe Harbor as well; Waveform.Start carries
+// them, so the same care applies.
+//
+// ReadCSV reads our own plain-text format (see ReadCSV for the grammar).
+//
+// # Checks
+//
+// CheckRecording refuses sampling rates outside 100-2000 Hz (our bounds: below
+// 100 Hz the QRS is too coarsely sampled for beat timing, above 2000 Hz the
+// data are unlike a single-lead screening recorder) and marks recordings shorter
+// than 30 s as too short for a diagnosis (2020 ESC AF guidelines: AF is
+// diagnosed on a single-lead tracing of at least 30 s; verified, secondary).
+//
+// # Beats
+//
+// Detect implements the QRS detector of Pan J, Tompkins WJ. A real-time QRS
+// detection algorithm. IEEE Trans Biomed Eng 1985;32(3):230-6, run offline at
+// 200 samples/s, and refines every beat to the R peak of the original signal.
+//
+// # Strips
+//
+// Layout places a waveform on standard ECG paper (25 mm/s, 10 mm/mV, 1 mm and
+// 5 mm squares; common practice, Kligfield P et al. Circulation 2007, from
+// memory) in rows of 10 s, and PathD turns a row into SVG path data.
+//
+// # Hints
+//
+// Hint scores an RR series with package cohortdesk/cohort/rr. The result is a
+// hint for the over-reader, never a verdict.
+//
+// # Test signals
+//
+// Synthesize generates ECG from the dynamical model of McSharry PE, Clifford GD,
+// Tarassenko L, Smith LA. IEEE Trans Biomed Eng 2003;50(3):289-94, with the RR
+// intervals as input, so the true R-peak times are known.
+package ecg

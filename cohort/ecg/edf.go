@@ -1,0 +1,608 @@
+package ecg
+
+import (
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+	"time"
+)
+
+// Limits of the readers. They are ours: EDF allows up to 9999 signals and any
+// rate, but a single-lead screening file never comes close, and bounding them
+// keeps a hostile header from steering the reader. The rate bounds are wider
+// than CheckRecording's on purpose: a file at 50 Hz is read, and then refused
+// for analysis with a message about the recording rather than the file.
+const (
+	MaxEDFSignals = 512    // signals per EDF file
+	MaxFileRateHz = 100000 // samples per second of the signal read
+	MinFileRateHz = 1      // ditto, lower bound
+)
+
+// Errors wrapped inside InputError, for callers that want to tell them apart.
+var (
+	// ErrTruncated means the file ends before the header or the data records
+	// it announces.
+	ErrTruncated = errors.New("file is truncated")
+	// ErrUnsupported means valid EDF that this reader does not handle
+	// (for example EDF+D with gaps, or the 24-bit variant).
+	ErrUnsupported = errors.New("not supported")
+)
+
+// The fixed header, from the EDF specification (Kemp B et al. 1992): byte
+// offsets and widths of the first 256 bytes.
+const (
+	edfOffVersion     = 0
+	edfOffPatient     = 8
+	edfOffRecording   = 88
+	edfOffStartDate   = 168
+	edfOffStartTime   = 176
+	edfOffHeaderBytes = 184
+	edfOffReserved    = 192
+	edfOffRecords     = 236
+	edfOffDuration    = 244
+	edfOffSignals     = 252
+	edfFixedBytes     = 256
+	edfPerSignalBytes = 256
+)
+
+// edfSignalFields lists the per-signal header fields in file order with their
+// widths; each is stored for all signals before the next field begins.
+var edfSignalFields = [...]struct {
+	name  string
+	width int
+}{
+	{"label", 16},
+	{"transducer type", 80},
+	{"physical dimension", 8},
+	{"physical minimum", 8},
+	{"physical maximum", 8},
+	{"digital minimum", 8},
+	{"digital maximum", 8},
+	{"prefiltering", 80},
+	{"number of samples in each data record", 8},
+	{"reserved", 32},
+}
+
+// edfAnnotationLabel marks the EDF+ annotation channel.
+const edfAnnotationLabel = "EDF Annotations"
+
+// EDFOptions steer ReadEDF.
+type EDFOptions struct {
+	// Label picks the signal whose label matches (case-insensitive, spaces
+	// trimmed). Empty picks the first signal that is not an annotation signal.
+	Label string
+	// Location is the time zone of the header's start date and time, which EDF
+	// stores as local clock time without a zone. Nil means UTC.
+	Location *time.Location
+}
+
+// EDFSignal is one signal's header, as written in the file.
+type EDFSignal struct {
+	Label            string
+	Transducer       string
+	Dimension        string // physical unit, e.g. "uV"
+	PhysMin, PhysMax float64
+	DigMin, DigMax   int
+	Prefilter        string
+	SamplesPerRecord int
+	Annotation       bool // an EDF+ "EDF Annotations" signal
+}
+
+// EDFHeader is the technical part of an EDF header: everything except the
+// patient and recording identification.
+type EDFHeader struct {
+	Variant       string    // "EDF", "EDF+C" or "EDF+D"
+	Start         time.Time // zero when the file says the start date is unknown
+	HeaderBytes   int
+	Records       int     // data records read
+	RecordSeconds float64 // duration of one data record
+	Signals       []EDFSignal
+	Chosen        int      // index into Signals of the signal returned
+	Warnings      []string // oddities that did not stop reading
+}
+
+// EDFIdentity holds the two free-text identification fields of an EDF header.
+// They often contain a name, a birth date or a hospital number (EDF+ even
+// prescribes "code sex birthdate name"), so they are protected health
+// information: do not store or show them; pass them to de-identification or
+// drop them.
+type EDFIdentity struct {
+	Patient   string // "local patient identification", 80 bytes
+	Recording string // "local recording identification", 80 bytes
+}
+
+// EDFFile is the result of ReadEDF.
+type EDFFile struct {
+	Waveform Waveform
+	Header   EDFHeader
+	Identity EDFIdentity // PHI; see EDFIdentity
+}
+
+// edfReader carries the input and builds positioned errors.
+type edfReader struct {
+	data []byte
+}
+
+func (r *edfReader) fail(field string, off int64, signal, record int, err error) error {
+	return &InputError{Format: "edf", Field: field, Offset: off, Signal: signal, Record: record, Err: err}
+}
+
+// text decodes a header field. EDF allows printable ASCII only; we read the
+// other bytes as Latin-1 (old files write the micro sign that way) and turn
+// control bytes into spaces, so a bad byte cannot corrupt a log or a page.
+func edfText(b []byte) string {
+	var sb strings.Builder
+	for _, c := range b {
+		switch {
+		case c < 32 || c == 127:
+			sb.WriteByte(' ')
+		case c < 128:
+			sb.WriteByte(c)
+		default:
+			sb.WriteRune(rune(c))
+		}
+	}
+	return strings.TrimSpace(sb.String())
+}
+
+// edfNumber parses a numeric header field: plain decimal notation only, so
+// that "NaN", "Inf" or hexadecimal floats are rejected like any other junk.
+func edfNumber(b []byte) (float64, error) {
+	s := strings.TrimSpace(string(b))
+	if s == "" {
+		return 0, errors.New("empty, want a number")
+	}
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		if !(c >= '0' && c <= '9' || c == '.' || c == '-' || c == '+' || c == 'e' || c == 'E') {
+			return 0, fmt.Errorf("%q is not a number", s)
+		}
+	}
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil || math.IsInf(v, 0) {
+		return 0, fmt.Errorf("%q is not a number", s)
+	}
+	return v, nil
+}
+
+// edfInt parses an integer header field.
+func edfInt(b []byte) (int, error) {
+	s := strings.TrimSpace(string(b))
+	if s == "" {
+		return 0, errors.New("empty, want an integer")
+	}
+	v, err := strconv.Atoi(s)
+	if err != nil || strings.ContainsAny(s, "_") {
+		return 0, fmt.Errorf("%q is not an integer", s)
+	}
+	return v, nil
+}
+
+// ReadEDF reads one signal of an EDF or EDF+ file and converts it to
+// millivolts.
+//
+// Digital values d become physical values with the line through (DigMin,
+// PhysMin) and (DigMax, PhysMax), then the physical dimension (nV, uV, µV, mV
+// or V) is scaled to mV. Annotation signals are skipped. A record count of -1
+// (allowed by the specification only while recording) is replaced by the
+// number of whole records in the file. EDF+D files are read when their records
+// are contiguous; a real gap is refused, because the waveform would otherwise
+// join two moments that are not adjacent.
+//
+// Errors are *InputError values naming the field, its byte offset, and the
+// signal and data record concerned; they match ErrFormat.
+func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
+	r := &edfReader{data: data}
+	var f EDFFile
+	if len(data) < edfFixedBytes {
+		return f, r.fail("fixed header", int64(len(data)), 0, 0,
+			fmt.Errorf("file has %d bytes, the fixed header alone needs %d: %w", len(data), edfFixedBytes, ErrTruncated))
+	}
+	field := func(off, width int) []byte { return data[off : off+width] }
+
+	// Version.
+	if data[0] == 0xFF {
+		return f, r.fail("version", edfOffVersion, 0, 0, fmt.Errorf("24-bit variant: %w", ErrUnsupported))
+	}
+	if v := string(field(edfOffVersion, 8)); strings.TrimRight(v, " ") != "0" {
+		return f, r.fail("version", edfOffVersion, 0, 0, fmt.Errorf("%q, want \"0\" padded with spaces", edfText([]byte(v))))
+	}
+	f.Identity.Patient = edfText(field(edfOffPatient, 80))
+	f.Identity.Recording = edfText(field(edfOffRecording, 80))
+
+	h := &f.Header
+	reserved := edfText(field(edfOffReserved, 44))
+	switch {
+	case strings.HasPrefix(reserved, "EDF+C"):
+		h.Variant = "EDF+C"
+	case strings.HasPrefix(reserved, "EDF+D"):
+		h.Variant = "EDF+D"
+	case strings.HasPrefix(reserved, "EDF+"):
+		return f, r.fail("reserved", edfOffReserved, 0, 0, fmt.Errorf("%q, want EDF+C or EDF+D", reserved))
+	default:
+		h.Variant = "EDF"
+		if reserved != "" {
+			h.Warnings = append(h.Warnings, fmt.Sprintf("reserved field (byte %d) is not blank: %q", edfOffReserved, reserved))
+		}
+	}
+	plus := h.Variant != "EDF"
+
+	start, err := edfStart(field(edfOffStartDate, 8), field(edfOffStartTime, 8), plus, f.Identity.Recording, opt.Location)
+	if err != nil {
+		var fe *fieldErr
+		if errors.As(err, &fe) {
+			return f, r.fail(fe.field, int64(fe.off), 0, 0, fe.err)
+		}
+		return f, err
+	}
+	h.Start = start
+
+	hb, err := edfInt(field(edfOffHeaderBytes, 8))
+	if err != nil {
+		return f, r.fail("number of bytes in header record", edfOffHeaderBytes, 0, 0, err)
+	}
+	nrec, err := edfInt(field(edfOffRecords, 8))
+	if err != nil {
+		return f, r.fail("number of data records", edfOffRecords, 0, 0, err)
+	}
+	if nrec < -1 {
+		return f, r.fail("number of data records", edfOffRecords, 0, 0, fmt.Errorf("%d, want -1 or more", nrec))
+	}
+	dur, err := edfNumber(field(edfOffDuration, 8))
+	if err != nil {
+		return f, r.fail("duration of a data record", edfOffDuration, 0, 0, err)
+	}
+	ns, err := edfInt(field(edfOffSignals, 4))
+	if err != nil {
+		return f, r.fail("number of signals", edfOffSignals, 0, 0, err)
+	}
+	if ns < 1 {
+		return f, r.fail("number of signals", edfOffSignals, 0, 0, fmt.Errorf("%d, want at least 1", ns))
+	}
+	if ns > MaxEDFSignals {
+		return f, r.fail("number of signals", edfOffSignals, 0, 0, fmt.Errorf("%d signals, this reader accepts at most %d", ns, MaxEDFSignals))
+	}
+	want := edfFixedBytes + ns*edfPerSignalBytes
+	if hb != want {
+		return f, r.fail("number of bytes in header record", edfOffHeaderBytes, 0, 0,
+			fmt.Errorf("says %d, but 256 + %d signals x 256 = %d", hb, ns, want))
+	}
+	h.HeaderBytes = hb
+	if len(data) < hb {
+		return f, r.fail("signal header", int64(len(data)), 0, 0,
+			fmt.Errorf("file has %d bytes, the header of %d signals needs %d: %w", len(data), ns, hb, ErrTruncated))
+	}
+
+	// Per-signal fields: field k of signal i sits at base_k + i*width_k.
+	var bases [len(edfSignalFields)]int
+	off := edfFixedBytes
+	for k, fd := range edfSignalFields {
+		bases[k] = off
+		off += ns * fd.width
+	}
+	at := func(k, i int) (int, []byte) {
+		o := bases[k] + i*edfSignalFields[k].width
+		return o, data[o : o+edfSignalFields[k].width]
+	}
+	h.Signals = make([]EDFSignal, ns)
+	recBytes := 0
+	for i := range h.Signals {
+		s := &h.Signals[i]
+		_, b := at(0, i)
+		s.Label = edfText(b)
+		_, b = at(1, i)
+		s.Transducer = edfText(b)
+		_, b = at(2, i)
+		s.Dimension = edfText(b)
+		_, b = at(7, i)
+		s.Prefilter = edfText(b)
+		s.Annotation = s.Label == edfAnnotationLabel
+
+		o, b := at(3, i)
+		if s.PhysMin, err = edfNumber(b); err != nil {
+			return f, r.fail("physical minimum", int64(o), i+1, 0, err)
+		}
+		o, b = at(4, i)
+		if s.PhysMax, err = edfNumber(b); err != nil {
+			return f, r.fail("physical maximum", int64(o), i+1, 0, err)
+		}
+		o, b = at(5, i)
+		if s.DigMin, err = edfInt(b); err != nil {
+			return f, r.fail("digital minimum", int64(o), i+1, 0, err)
+		}
+		if s.DigMin < math.MinInt16 || s.DigMin > math.MaxInt16 {
+			return f, r.fail("digital minimum", int64(o), i+1, 0, fmt.Errorf("%d outside the 16-bit range", s.DigMin))
+		}
+		o, b = at(6, i)
+		if s.DigMax, err = edfInt(b); err != nil {
+			return f, r.fail("digital maximum", int64(o), i+1, 0, err)
+		}
+		if s.DigMax < math.MinInt16 || s.DigMax > math.MaxInt16 {
+			return f, r.fail("digital maximum", int64(o), i+1, 0, fmt.Errorf("%d outside the 16-bit range", s.DigMax))
+		}
+		if s.DigMin >= s.DigMax {
+			return f, r.fail("digital minimum", int64(bases[5]+i*8), i+1, 0,
+				fmt.Errorf("%d is not below the digital maximum %d", s.DigMin, s.DigMax))
+		}
+		if s.PhysMin == s.PhysMax && !s.Annotation {
+			return f, r.fail("physical minimum", int64(bases[3]+i*8), i+1, 0,
+				fmt.Errorf("equals the physical maximum %g, so no gain can be derived", s.PhysMax))
+		}
+		o, b = at(8, i)
+		if s.SamplesPerRecord, err = edfInt(b); err != nil {
+			return f, r.fail("number of samples in each data record", int64(o), i+1, 0, err)
+		}
+		if s.SamplesPerRecord < 1 {
+			return f, r.fail("number of samples in each data record", int64(o), i+1, 0,
+				fmt.Errorf("%d, want at least 1", s.SamplesPerRecord))
+		}
+		if s.SamplesPerRecord > len(data) {
+			return f, r.fail("number of samples in each data record", int64(o), i+1, 0,
+				fmt.Errorf("%d samples per record cannot fit in a file of %d bytes: %w", s.SamplesPerRecord, len(data), ErrTruncated))
+		}
+		recBytes += 2 * s.SamplesPerRecord
+	}
+
+	// Choose the signal.
+	chosen := -1
+	for i, s := range h.Signals {
+		if s.Annotation {
+			continue
+		}
+		if opt.Label == "" || strings.EqualFold(strings.TrimSpace(opt.Label), s.Label) {
+			chosen = i
+			break
+		}
+	}
+	if chosen < 0 {
+		var labels []string
+		for _, s := range h.Signals {
+			if !s.Annotation {
+				labels = append(labels, strconv.Quote(s.Label))
+			}
+		}
+		if len(labels) == 0 {
+			return f, r.fail("label", int64(bases[0]), 0, 0, errors.New("the file holds annotation signals only"))
+		}
+		return f, r.fail("label", int64(bases[0]), 0, 0,
+			fmt.Errorf("no signal labelled %q (labels: %s)", opt.Label, strings.Join(labels, ", ")))
+	}
+	h.Chosen = chosen
+	sig := h.Signals[chosen]
+
+	if math.IsNaN(dur) || dur <= 0 {
+		return f, r.fail("duration of a data record", edfOffDuration, 0, 0, fmt.Errorf("%g s, want a positive duration", dur))
+	}
+	h.RecordSeconds = dur
+	rate := float64(sig.SamplesPerRecord) / dur
+	if rate < MinFileRateHz || rate > MaxFileRateHz {
+		return f, r.fail("number of samples in each data record", int64(bases[8]+chosen*8), chosen+1, 0,
+			fmt.Errorf("%d samples per %g s record is %g Hz, outside %d-%d Hz", sig.SamplesPerRecord, dur, rate, MinFileRateHz, MaxFileRateHz))
+	}
+	scale, err := mvPerUnit(sig.Dimension)
+	if err != nil {
+		return f, r.fail("physical dimension", int64(bases[2]+chosen*8), chosen+1, 0, err)
+	}
+
+	// Data records.
+	body := len(data) - hb
+	whole := body / recBytes
+	switch {
+	case nrec == -1:
+		nrec = whole
+		if rest := body - whole*recBytes; rest != 0 {
+			h.Warnings = append(h.Warnings, fmt.Sprintf("record count -1; %d trailing bytes after %d whole records ignored", rest, whole))
+		}
+	case nrec > whole:
+		missing := whole + 1
+		return f, r.fail("", int64(len(data)), 0, missing,
+			fmt.Errorf("header promises %d data records of %d bytes, file holds %d whole ones: %w", nrec, recBytes, whole, ErrTruncated))
+	case body > nrec*recBytes:
+		h.Warnings = append(h.Warnings, fmt.Sprintf("%d bytes after the last of %d data records ignored", body-nrec*recBytes, nrec))
+	}
+	if nrec == 0 {
+		return f, r.fail("number of data records", edfOffRecords, 0, 0, errors.New("the file holds no data records"))
+	}
+	h.Records = nrec
+
+	sigOff, annOff, annSig := 0, -1, -1
+	for i, s := range h.Signals {
+		if i < chosen {
+			sigOff += 2 * s.SamplesPerRecord
+		}
+		if s.Annotation && annSig < 0 {
+			annSig = i
+			annOff = 0
+			for _, t := range h.Signals[:i] {
+				annOff += 2 * t.SamplesPerRecord
+			}
+		}
+	}
+
+	gain := (sig.PhysMax - sig.PhysMin) / float64(sig.DigMax-sig.DigMin)
+	spr := sig.SamplesPerRecord
+	samples := make([]float64, nrec*spr)
+	for rec := 0; rec < nrec; rec++ {
+		p := hb + rec*recBytes + sigOff
+		out := samples[rec*spr : (rec+1)*spr]
+		for k := range out {
+			d := int16(binary.LittleEndian.Uint16(data[p+2*k:]))
+			out[k] = (sig.PhysMin + float64(int(d)-sig.DigMin)*gain) * scale
+		}
+	}
+
+	// EDF+ time keeping: the first annotation of each record gives its onset.
+	if plus {
+		if annSig < 0 {
+			if h.Variant == "EDF+D" {
+				return f, r.fail("label", int64(bases[0]), 0, 0,
+					errors.New("EDF+D file without an \"EDF Annotations\" signal has no record times"))
+			}
+			h.Warnings = append(h.Warnings, "EDF+ file without an \"EDF Annotations\" signal")
+		} else {
+			alen := 2 * h.Signals[annSig].SamplesPerRecord
+			var first float64
+			for rec := 0; rec < nrec; rec++ {
+				p := hb + rec*recBytes + annOff
+				onset, err := talOnset(data[p : p+alen])
+				if err != nil {
+					if h.Variant == "EDF+D" {
+						return f, r.fail("time-keeping annotation", int64(p), annSig+1, rec+1, err)
+					}
+					h.Warnings = append(h.Warnings, fmt.Sprintf("data record %d: time-keeping annotation: %v", rec+1, err))
+					break
+				}
+				if rec == 0 {
+					first = onset
+					if !h.Start.IsZero() && onset > 0 && onset < 86400 {
+						h.Start = h.Start.Add(time.Duration(math.Round(onset * float64(time.Second))))
+					}
+					continue
+				}
+				if h.Variant != "EDF+D" {
+					break // EDF+C is contiguous by definition; only the start matters
+				}
+				expect := first + float64(rec)*dur
+				if math.Abs(onset-expect) > 0.5/rate {
+					return f, r.fail("time-keeping annotation", int64(p), annSig+1, rec+1,
+						fmt.Errorf("record starts at %g s, %g s after the previous one ends; discontinuous recordings: %w", onset, onset-expect, ErrUnsupported))
+				}
+			}
+		}
+	}
+
+	f.Waveform = Waveform{
+		Samples: samples,
+		RateHz:  rate,
+		Start:   h.Start,
+		Label:   sig.Label,
+		Source: fmt.Sprintf("%s signal %d of %d %q, %g Hz, %s, transducer %q, prefiltering %q",
+			h.Variant, chosen+1, ns, sig.Label, rate, sig.Dimension, sig.Transducer, sig.Prefilter),
+	}
+	return f, nil
+}
+
+// mvPerUnit gives the factor from a physical dimension to millivolts.
+func mvPerUnit(dim string) (float64, error) {
+	switch dim {
+	case "nV":
+		return 1e-6, nil
+	case "uV", "µV":
+		return 1e-3, nil
+	case "mV":
+		return 1, nil
+	case "V":
+		return 1e3, nil
+	}
+	return 0, fmt.Errorf("%q, want nV, uV (or µV), mV or V", dim)
+}
+
+// fieldErr positions an error found by a helper.
+type fieldErr struct {
+	field string
+	off   int
+	err   error
+}
+
+func (e *fieldErr) Error() string { return e.field + ": " + e.err.Error() }
+
+var edfMonths = map[string]time.Month{
+	"JAN": 1, "FEB": 2, "MAR": 3, "APR": 4, "MAY": 5, "JUN": 6,
+	"JUL": 7, "AUG": 8, "SEP": 9, "OCT": 10, "NOV": 11, "DEC": 12,
+}
+
+// edfStart reads the start date (dd.mm.yy) and time (hh.mm.ss). Two-digit
+// years 85-99 are 1985-1999 and 00-84 are 2000-2084 (the EDF+ clipping rule,
+// from memory);
+// in EDF+ the recording field "Startdate dd-MMM-yyyy" gives the full year, and
+// "Startdate X" says the date is unknown, which yields the zero time.
+func edfStart(dateF, timeF []byte, plus bool, recording string, loc *time.Location) (time.Time, error) {
+	if loc == nil {
+		loc = time.UTC
+	}
+	two := func(b []byte) (int, bool) {
+		if b[0] < '0' || b[0] > '9' || b[1] < '0' || b[1] > '9' {
+			return 0, false
+		}
+		return int(b[0]-'0')*10 + int(b[1]-'0'), true
+	}
+	fullYear := 0
+	if plus {
+		fs := strings.Fields(recording)
+		if len(fs) >= 2 && fs[0] == "Startdate" {
+			if fs[1] == "X" {
+				return time.Time{}, nil
+			}
+			p := strings.Split(fs[1], "-")
+			if len(p) == 3 && len(p[2]) == 4 {
+				if y, err := strconv.Atoi(p[2]); err == nil {
+					if _, ok := edfMonths[strings.ToUpper(p[1])]; ok {
+						fullYear = y
+					}
+				}
+			}
+		}
+	}
+	if dateF[2] != '.' || dateF[5] != '.' {
+		return time.Time{}, &fieldErr{"startdate", edfOffStartDate, fmt.Errorf("%q, want dd.mm.yy", edfText(dateF))}
+	}
+	day, ok1 := two(dateF[0:2])
+	mon, ok2 := two(dateF[3:5])
+	yy, ok3 := two(dateF[6:8])
+	if !ok3 && string(dateF[6:8]) == "yy" && fullYear != 0 {
+		ok3 = true
+	}
+	if !ok1 || !ok2 || !ok3 {
+		return time.Time{}, &fieldErr{"startdate", edfOffStartDate, fmt.Errorf("%q, want dd.mm.yy", edfText(dateF))}
+	}
+	year := 1900 + yy
+	if yy < 85 {
+		year = 2000 + yy
+	}
+	if fullYear != 0 {
+		year = fullYear
+	}
+	if timeF[2] != '.' || timeF[5] != '.' {
+		return time.Time{}, &fieldErr{"starttime", edfOffStartTime, fmt.Errorf("%q, want hh.mm.ss", edfText(timeF))}
+	}
+	hh, ok1 := two(timeF[0:2])
+	mm, ok2 := two(timeF[3:5])
+	ss, ok3 := two(timeF[6:8])
+	if !ok1 || !ok2 || !ok3 || hh > 23 || mm > 59 || ss > 59 {
+		return time.Time{}, &fieldErr{"starttime", edfOffStartTime, fmt.Errorf("%q, want hh.mm.ss", edfText(timeF))}
+	}
+	t := time.Date(year, time.Month(mon), day, hh, mm, ss, 0, loc)
+	if mon < 1 || mon > 12 || t.Day() != day {
+		return time.Time{}, &fieldErr{"startdate", edfOffStartDate, fmt.Errorf("%q is not a calendar date", edfText(dateF))}
+	}
+	return t, nil
+}
+
+// talOnset reads the onset of the first time-stamped annotation list in an
+// EDF+ annotation signal: a sign, decimal seconds, then byte 20 or 21.
+func talOnset(b []byte) (float64, error) {
+	if len(b) == 0 || (b[0] != '+' && b[0] != '-') {
+		return 0, errors.New("does not start with + or -")
+	}
+	end := -1
+	for i := 1; i < len(b) && i < 64; i++ {
+		if b[i] == 20 || b[i] == 21 {
+			end = i
+			break
+		}
+		if !(b[i] >= '0' && b[i] <= '9' || b[i] == '.') {
+			return 0, fmt.Errorf("onset contains byte %d", b[i])
+		}
+	}
+	if end < 2 {
+		return 0, errors.New("onset is not terminated")
+	}
+	v, err := strconv.ParseFloat(string(b[:end]), 64)
+	if err != nil {
+		return 0, fmt.Errorf("onset %q is not a number", string(b[:end]))
+	}
+	return v, nil
+}
