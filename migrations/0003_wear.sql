@@ -24,20 +24,25 @@ CREATE TABLE imports (
     -- reason code -> count, and the first few examples per reason
     reasons      jsonb NOT NULL DEFAULT '{}'::jsonb,
     message      text NOT NULL DEFAULT '',
-    -- progress of a running import, updated outside its transaction
-    bytes_read   bigint NOT NULL DEFAULT 0
+    -- progress of a running import, updated outside its transaction; an
+    -- import whose heartbeat stops is marked interrupted
+    bytes_read   bigint NOT NULL DEFAULT 0,
+    heartbeat_at timestamptz NOT NULL DEFAULT now()
 );
 CREATE INDEX imports_started_idx ON imports (started_at DESC);
 CREATE INDEX imports_sha_idx ON imports (kind, file_sha256);
 
--- Rejected rows, kept with their file line so they can be fixed and sent again.
+-- Rejected rows, kept with their place in the file (line; for FHIR also the
+-- entry) so they can be fixed and sent again.
 CREATE TABLE import_rejects (
     import_id bigint NOT NULL REFERENCES imports(id) ON DELETE CASCADE,
+    seq       integer NOT NULL,
     line      bigint NOT NULL,
+    entry     integer,
     reason    text NOT NULL,
     message   text NOT NULL,
     raw       text NOT NULL,
-    PRIMARY KEY (import_id, line)
+    PRIMARY KEY (import_id, seq)
 );
 
 CREATE TABLE wear_weeks (
