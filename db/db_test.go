@@ -3,6 +3,7 @@ package db_test
 import (
 	"context"
 	"fmt"
+	"os"
 	"strings"
 	"testing"
 	"time"
@@ -12,7 +13,13 @@ import (
 	"cohortdesk/db/dbtest"
 )
 
-func TestMain(m *testing.M) { dbtest.Main(m) }
+func TestMain(m *testing.M) {
+	if os.Getenv(childEnv) != "" {
+		// The child process of the kill test uses its parent's database.
+		os.Exit(m.Run())
+	}
+	dbtest.Main(m)
+}
 
 // fixedNow is the clock of store tests.
 var fixedNow = time.Date(2026, 6, 1, 12, 0, 0, 0, time.UTC)
