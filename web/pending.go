@@ -1,6 +1,7 @@
 package web
 
 import (
+	"context"
 	"net/http"
 
 	"cohortdesk/cohort/followup"
@@ -24,3 +25,7 @@ func (s *Server) afterWithdrawal(r *http.Request, participantID int64) error { r
 func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db.WeekLine, m *views.ParticipantModel) error {
 	return nil
 }
+
+// afterImport starts background screening of the participants whose data
+// changed.
+func (s *Server) afterImport(ctx context.Context, rep db.ImportReport) {}

@@ -38,6 +38,12 @@ func (s *Server) routes() []route {
 		{"POST", "/participants/{id}/withdraw", coordWork, s.participantWithdraw},
 		{"POST", "/participants/{id}/notes", caseWork, s.participantNote},
 
+		{"GET", "/imports", coordWork, s.importsList},
+		{"GET", "/imports/new", coordWork, s.importNew},
+		{"POST", "/imports", coordWork, s.importCreate},
+		{"GET", "/imports/{id}", coordWork, s.importShow},
+		{"GET", "/imports/{id}/rejects.csv", coordWork, s.importRejects},
+
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},
 		{"POST", "/admin/users", adminOnly, s.userCreate},
@@ -73,3 +79,6 @@ func (s *Server) accessOf(method, pattern string) (access, bool) {
 	}
 	return access{}, false
 }
+
+// urlParam reads a path parameter.
+func urlParam(r *http.Request, name string) string { return chi.URLParam(r, name) }

@@ -30,6 +30,7 @@ type Store interface {
 	signInStore
 	adminStore
 	participantStore
+	importStore
 }
 
 // Config is what the server is built from.

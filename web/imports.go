@@ -1,0 +1,206 @@
+package web
+
+import (
+	"context"
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"mime/multipart"
+	"net/http"
+	"strconv"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db"
+	"cohortdesk/views"
+)
+
+type importStore interface {
+	ImportReadings(ctx context.Context, a cohort.Actor, r io.Reader, o db.ImportOptions) (db.ImportReport, error)
+	Import(ctx context.Context, id int64) (db.ImportReport, error)
+	Imports(ctx context.Context, limit int) ([]db.ImportReport, error)
+	EachReject(ctx context.Context, importID int64, fn func(db.Reject) error) error
+}
+
+// maxUploadBytes bounds one upload; imports stream, so this guards the disk
+// of the database rather than the server's memory.
+const maxUploadBytes = 8 << 30
+
+func statusTone(status string) string {
+	switch status {
+	case "done":
+		return "ok"
+	case "running":
+		return "info"
+	case "failed", "interrupted":
+		return "alarm"
+	}
+	return "neutral"
+}
+
+func kindLabel(kind string) string {
+	switch kind {
+	case db.ImportReadingsCSV:
+		return "readings CSV"
+	case db.ImportFHIRBundle:
+		return "FHIR Bundle"
+	case db.ImportVerdictsCSV:
+		return "external verdicts CSV"
+	}
+	return kind
+}
+
+func (s *Server) importsList(w http.ResponseWriter, r *http.Request) error {
+	reps, err := s.store.Imports(r.Context(), 200)
+	if err != nil {
+		return err
+	}
+	m := views.ImportsModel{Page: s.page(r, "Imports", "participants")}
+	for _, rep := range reps {
+		m.Rows = append(m.Rows, views.ImportRow{ID: rep.ID, File: rep.FileName, Kind: kindLabel(rep.Kind), Status: rep.Status, Tone: statusTone(rep.Status),
+			Started: rep.StartedAt.UTC().Format("2006-01-02 15:04"), Actor: rep.Actor, Accepted: rep.Accepted, Rejected: rep.Rejected, Duplicate: rep.Duplicates})
+	}
+	return s.ok(w, r, views.Imports(m))
+}
+
+func (s *Server) importNew(w http.ResponseWriter, r *http.Request) error {
+	return s.ok(w, r, views.ImportForm(views.ImportFormModel{Page: s.page(r, "Import wear data", "participants"), MaxBytes: humanBytes(maxUploadBytes)}))
+}
+
+// importCreate streams the uploaded file straight into the importer: the file
+// is never held whole in memory or on the server's disk.
+func (s *Server) importCreate(w http.ResponseWriter, r *http.Request) error {
+	r.Body = http.MaxBytesReader(w, r.Body, maxUploadBytes)
+	mr, err := r.MultipartReader()
+	if err != nil {
+		return &cohort.ValidationError{Fields: map[string]string{"file": "send the file as a multipart form upload"}}
+	}
+	kind := db.ImportReadingsCSV
+	for {
+		part, err := mr.NextPart()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return uploadErr(err)
+		}
+		switch part.FormName() {
+		case "kind":
+			b, _ := io.ReadAll(io.LimitReader(part, 64))
+			kind = string(b)
+		case "file":
+			return s.importPart(w, r, part, kind)
+		}
+		part.Close()
+	}
+	return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose a file to import.")
+}
+
+func uploadErr(err error) error {
+	var mbe *http.MaxBytesError
+	if errors.As(err, &mbe) {
+		return &cohort.PublicError{Message: fmt.Sprintf("the file is larger than %s; split it into several files", humanBytes(mbe.Limit)), Kind: errPayloadTooLarge}
+	}
+	return err
+}
+
+func (s *Server) renderImportForm(w http.ResponseWriter, r *http.Request, status int, msg string) error {
+	s.render(w, r, status, views.ImportForm(views.ImportFormModel{Page: s.page(r, "Import wear data", "participants"), MaxBytes: humanBytes(maxUploadBytes), Error: msg}))
+	return nil
+}
+
+func (s *Server) importPart(w http.ResponseWriter, r *http.Request, part *multipart.Part, kind string) error {
+	defer part.Close()
+	if kind != db.ImportReadingsCSV && kind != db.ImportFHIRBundle {
+		return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose the file's format.")
+	}
+	name := part.FileName()
+	if name == "" {
+		return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose a file to import.")
+	}
+	rep, err := s.store.ImportReadings(r.Context(), s.actor(r), part, db.ImportOptions{Kind: kind, FileName: name, Size: r.ContentLength})
+	if err != nil {
+		if rep.ID == 0 {
+			return uploadErr(err)
+		}
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			return uploadErr(err)
+		}
+	} else {
+		s.afterImport(r.Context(), rep)
+	}
+	http.Redirect(w, r, fmt.Sprintf("/imports/%d", rep.ID), http.StatusSeeOther)
+	return nil
+}
+
+func (s *Server) importParam(r *http.Request) (db.ImportReport, error) {
+	id, err := strconv.ParseInt(urlParam(r, "id"), 10, 64)
+	if err != nil {
+		return db.ImportReport{}, errNotFound
+	}
+	return s.store.Import(r.Context(), id)
+}
+
+func (s *Server) importShow(w http.ResponseWriter, r *http.Request) error {
+	rep, err := s.importParam(r)
+	if err != nil {
+		return err
+	}
+	m := views.ImportReportModel{Page: s.page(r, "Import "+rep.FileName, "participants"), ID: rep.ID, File: rep.FileName, Kind: kindLabel(rep.Kind),
+		Status: rep.Status, Tone: statusTone(rep.Status), Message: rep.Message, SHA256: rep.SHA256, Size: humanBytes(max(rep.Size, rep.BytesRead)),
+		Started: rep.StartedAt.UTC().Format("2006-01-02 15:04:05 UTC"), Actor: rep.Actor, Rows: rep.Rows, Accepted: rep.Accepted,
+		Rejected: rep.Rejected, Duplicates: rep.Duplicates, Rejects: fmt.Sprintf("/imports/%d/rejects.csv", rep.ID)}
+	if rep.FinishedAt != nil {
+		m.Finished = rep.FinishedAt.UTC().Format("15:04:05 UTC")
+	}
+	if rep.Status == "done" && rep.Accepted == 0 && rep.Duplicates > 0 {
+		m.SameAs = "Every reading in this file was already stored: nothing changed."
+	}
+	for _, rc := range rep.Reasons {
+		v := views.ReasonView{Code: rc.Code, Label: db.ReasonLabel(rc.Code), Count: rc.Count}
+		for _, e := range rc.Examples {
+			v.Examples = append(v.Examples, fmt.Sprintf("line %d: %s", e.Line, e.Message))
+		}
+		m.Reasons = append(m.Reasons, v)
+	}
+	return s.ok(w, r, views.ImportReport(m))
+}
+
+// importRejects downloads the quarantined rows with their line and reason, so
+// they can be corrected and sent again.
+func (s *Server) importRejects(w http.ResponseWriter, r *http.Request) error {
+	rep, err := s.importParam(r)
+	if err != nil {
+		return err
+	}
+	if err := s.store.Audit(r.Context(), s.actor(r), "import.rejects_download", "import", strconv.FormatInt(rep.ID, 10), nil, nil); err != nil {
+		return err
+	}
+	w.Header().Set("Content-Type", "text/csv; charset=utf-8")
+	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="import-%d-refused.csv"`, rep.ID))
+	cw := csv.NewWriter(w)
+	_ = cw.Write([]string{"line", "entry", "reason", "message", "row"})
+	err = s.store.EachReject(r.Context(), rep.ID, func(rj db.Reject) error {
+		entry := ""
+		if rj.Entry != nil {
+			entry = strconv.Itoa(int(*rj.Entry))
+		}
+		return cw.Write([]string{strconv.FormatInt(rj.Line, 10), entry, rj.Reason, rj.Message, csvSafe(rj.Raw)})
+	})
+	cw.Flush()
+	return err
+}
+
+func humanBytes(n int64) string {
+	const unit = 1024
+	if n < unit {
+		return fmt.Sprintf("%d B", n)
+	}
+	div, exp := int64(unit), 0
+	for m := n / unit; m >= unit; m /= unit {
+		div *= unit
+		exp++
+	}
+	return fmt.Sprintf("%.1f %ciB", float64(n)/float64(div), "KMGTPE"[exp])
+}
