@@ -73,9 +73,11 @@ func runDemo(ctx context.Context, e env, args []string) error {
 	if loaded {
 		log.Info("fictional cohort loaded", "participants", *participants, "after", time.Since(start).Round(time.Millisecond).String())
 	}
-	return serveApp(ctx, cfg, pool, log, demoSignIn(), func(addr string) {
+	signIn := demoSignIn(ctx, store)
+	return serveApp(ctx, cfg, pool, log, signIn, func(addr string) {
 		fmt.Fprintf(e.stdout, "\ncohortdesk demo is running at http://%s/  (started in %s)\n", addr, time.Since(start).Round(100*time.Millisecond))
-		fmt.Fprint(e.stdout, demoSignIn())
+		fmt.Fprint(e.stdout, signIn)
+		fmt.Fprintf(e.stdout, "Database (for the import and user commands): DATABASE_URL='%s'\n", cfg.DatabaseURL)
 		fmt.Fprintf(e.stdout, "Data folder: %s. Press Ctrl-C to stop.\n\n", cl.Dir())
 	})
 }

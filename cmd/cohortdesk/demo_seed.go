@@ -2,9 +2,13 @@ package main
 
 import (
 	"context"
+	"fmt"
 	"log/slog"
+	"strings"
+	"time"
 
 	"cohortdesk/db"
+	"cohortdesk/db/seed"
 )
 
 type demoOptions struct {
@@ -20,8 +24,22 @@ func seedDemo(ctx context.Context, store *db.Store, o demoOptions) (bool, error)
 	if err != nil || name != "" {
 		return false, err
 	}
-	return false, nil
+	// The study's "today" is the real day, so due dates and recent weeks look
+	// as they would in use.
+	_, err = seed.Load(ctx, store, seed.Options{Seed: o.Seed, Participants: o.Participants, Today: time.Now(), Log: o.Log})
+	return err == nil, err
 }
 
 // demoSignIn is the text printed with the address: who to sign in as.
-func demoSignIn() string { return "" }
+func demoSignIn(ctx context.Context, store *db.Store) string {
+	users, err := store.Users(ctx)
+	if err != nil || len(users) == 0 {
+		return ""
+	}
+	var b strings.Builder
+	fmt.Fprintf(&b, "Sign in with any of these fictional accounts (password %q):\n", seed.DemoPassword)
+	for _, u := range users {
+		fmt.Fprintf(&b, "  %-36s %s\n", u.Email, u.Role.Label())
+	}
+	return b.String()
+}

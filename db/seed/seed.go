@@ -1,0 +1,234 @@
+// Package seed loads the fictional demo study into an empty database through
+// the application's own paths: sites and staff through the store, participants
+// through enrolment, wear data through the file importer (as a readings CSV
+// streamed from the generator), screening through the screening job, follow-up
+// through the case actions. What the demo shows is therefore what the code does.
+package seed
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"log/slog"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/demo"
+	"cohortdesk/db"
+	"cohortdesk/web/auth"
+
+	"github.com/jackc/pgx/v5"
+)
+
+// Options choose the fictional study.
+type Options struct {
+	Seed         uint64
+	Participants int
+	Today        time.Time   // the study's "now"; zero means demo.DefaultToday()
+	Password     string      // every demo account's password
+	PasswordCost auth.Params // zero means auth.DefaultParams
+	Log          *slog.Logger
+}
+
+// DemoPassword is the demo accounts' password, printed by the demo command.
+const DemoPassword = "demo-cohortdesk"
+
+// Result says what was loaded.
+type Result struct {
+	Study        *demo.Study
+	Users        []demo.User
+	Readings     int64
+	Participants int
+	ImportID     int64
+	Timings      map[string]time.Duration
+}
+
+// Load fills an empty database with the demo study and reports what it did.
+// It refuses a database that already holds a study.
+func Load(ctx context.Context, store *db.Store, o Options) (Result, error) {
+	res := Result{Timings: map[string]time.Duration{}}
+	if o.Log == nil {
+		o.Log = slog.New(slog.DiscardHandler)
+	}
+	if o.Password == "" {
+		o.Password = DemoPassword
+	}
+	if o.PasswordCost.Memory == 0 {
+		o.PasswordCost = auth.DefaultParams
+	}
+	name, err := store.StudyName(ctx)
+	if err != nil {
+		return res, err
+	}
+	if name != "" {
+		return res, fmt.Errorf("seed: the database already holds study %q", name)
+	}
+	step := func(label string, start time.Time) {
+		res.Timings[label] = time.Since(start)
+		o.Log.Info("demo load", "step", label, "took", time.Since(start).Round(time.Millisecond).String())
+	}
+
+	t0 := time.Now()
+	st, err := demo.New(demo.Config{Seed: o.Seed, Participants: o.Participants, Today: o.Today})
+	if err != nil {
+		return res, fmt.Errorf("seed: %w", err)
+	}
+	res.Study = st
+	actor := cohort.Actor{Name: "demo loader"}
+	if err := loadStudy(ctx, store, actor, st); err != nil {
+		return res, err
+	}
+	users, err := loadUsers(ctx, store, actor, st, o)
+	if err != nil {
+		return res, err
+	}
+	res.Users = users
+	if err := loadParticipants(ctx, store, actor, st); err != nil {
+		return res, err
+	}
+	res.Participants = len(st.Participants)
+	step("study, staff and participants", t0)
+
+	t1 := time.Now()
+	rep, err := importReadings(ctx, store, actor, st)
+	if err != nil {
+		return res, err
+	}
+	res.Readings, res.ImportID = rep.Accepted, rep.ID
+	step("wear data import", t1)
+
+	t2 := time.Now()
+	if _, err := importBadRows(ctx, store, actor, st); err != nil {
+		return res, err
+	}
+	step("import of deliberately bad rows", t2)
+	return res, nil
+}
+
+func loadStudy(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.Study) error {
+	target := 0
+	for _, s := range st.Sites {
+		target += s.Target
+	}
+	closures := make([]string, len(st.Closures))
+	for i, c := range st.Closures {
+		closures[i] = c.Date.String()
+	}
+	err := pgx.BeginFunc(ctx, store.Pool(), func(tx pgx.Tx) error {
+		_, err := tx.Exec(ctx, `INSERT INTO study (id, name, time_zone, contact_route, closure_days, enrolment_target)
+			VALUES (1, $1, $2, $3, $4::date[], $5)`,
+			st.Name, st.TimeZone, "Study coordinating office, "+st.Name+": reply through the study's secure message line quoting the referral code.",
+			closures, target)
+		return err
+	})
+	if err != nil {
+		return fmt.Errorf("seed: study: %w", err)
+	}
+	for _, s := range st.Sites {
+		opened := s.Opened.In(time.UTC)
+		if _, err := store.CreateSite(ctx, a, db.Site{Code: s.Code, Name: s.Name + " (" + s.Town + ")", TimeZone: s.TimeZone, Target: s.Target, OpenedOn: &opened}); err != nil {
+			return fmt.Errorf("seed: site %s: %w", s.Code, err)
+		}
+	}
+	return nil
+}
+
+func loadUsers(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.Study, o Options) ([]demo.User, error) {
+	hash, err := auth.Hash(o.Password, o.PasswordCost)
+	if err != nil {
+		return nil, err
+	}
+	for _, u := range st.Users {
+		if _, err := store.CreateUser(ctx, a, db.NewUser{Email: u.Email, Name: u.Name, Role: cohort.Role(u.Role), PasswordHash: hash}); err != nil {
+			return nil, fmt.Errorf("seed: user %s: %w", u.Email, err)
+		}
+	}
+	return st.Users, nil
+}
+
+func answer(a demo.Answer) *bool {
+	switch a {
+	case demo.Yes:
+		t := true
+		return &t
+	case demo.No:
+		f := false
+		return &f
+	}
+	return nil
+}
+
+func loadParticipants(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.Study) error {
+	sites, err := store.Sites(ctx)
+	if err != nil {
+		return err
+	}
+	siteID := map[string]int{}
+	for _, s := range sites {
+		siteID[s.Code] = s.ID
+	}
+	for _, p := range st.Participants {
+		in := db.ParticipantInput{StudyID: p.StudyID, SiteID: siteID[p.Site], Sex: p.Sex, TimeZone: p.TimeZone, EnrolledOn: p.Enrolled.String(),
+			ConsentVersion: p.ConsentVersion, WatchModel: p.Watch, RRCapable: p.HasRR, BirthDate: p.BirthDate.String(),
+			Risk: db.Risk{Hypertension: answer(p.Intake.Hypertension), Diabetes: answer(p.Intake.Diabetes), HeartFailure: answer(p.Intake.HeartFailure),
+				PriorStroke: answer(p.Intake.StrokeTIA), VascularDisease: answer(p.Intake.Vascular)},
+			Identity: db.Identity{GivenName: p.GivenName, FamilyName: p.FamilyName, Phone: p.Phone, Email: p.Email, Street: p.Street,
+				City: p.City, ZIP: p.ZIP, DeviceSerial: p.Serial}}
+		enrolled, err := store.Enrol(ctx, a, in)
+		if err != nil {
+			return fmt.Errorf("seed: enrol %s: %w", p.StudyID, err)
+		}
+		if !p.Withdrawn.IsZero() {
+			if _, err := store.Withdraw(ctx, a, enrolled.ID, p.Withdrawn.String(), p.WithdrawalReason, enrolled.Version); err != nil {
+				return fmt.Errorf("seed: withdraw %s: %w", p.StudyID, err)
+			}
+		}
+	}
+	return nil
+}
+
+// importReadings streams the generated wear data as a readings CSV into the
+// importer, the same path a study's files take.
+func importReadings(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.Study) (db.ImportReport, error) {
+	pr, pw := io.Pipe()
+	go func() {
+		w := demo.NewCSVWriter(pw)
+		for _, p := range st.Participants {
+			for wk := range st.Weeks(p) {
+				if err := w.WriteWeek(p, wk); err != nil {
+					pw.CloseWithError(err)
+					return
+				}
+			}
+		}
+		pw.CloseWithError(w.Flush())
+	}()
+	rep, err := store.ImportReadings(ctx, a, pr, db.ImportOptions{Kind: db.ImportReadingsCSV, FileName: "demo-wear-data.csv"})
+	pr.Close()
+	if err != nil {
+		return rep, fmt.Errorf("seed: wear data: %w", err)
+	}
+	return rep, nil
+}
+
+// importBadRows imports a small file of deliberately faulty rows so the demo
+// shows quarantine at work.
+func importBadRows(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.Study) (db.ImportReport, error) {
+	pr, pw := io.Pipe()
+	go func() {
+		w := demo.NewCSVWriter(pw)
+		for _, b := range st.BadRows() {
+			if err := w.WriteBad(b); err != nil {
+				pw.CloseWithError(err)
+				return
+			}
+		}
+		pw.CloseWithError(w.Flush())
+	}()
+	rep, err := store.ImportReadings(ctx, a, pr, db.ImportOptions{Kind: db.ImportReadingsCSV, FileName: "demo-late-upload-with-faults.csv"})
+	pr.Close()
+	if err != nil {
+		return rep, fmt.Errorf("seed: bad rows: %w", err)
+	}
+	return rep, nil
+}
