@@ -43,6 +43,7 @@ func commands() []command {
 		{"serve", "run the app against DATABASE_URL (production)", runServe},
 		{"migrate", "apply database migrations (up) or list them (status) on DATABASE_URL", runMigrate},
 		{"import", "import wear-data files (readings CSV, FHIR R4 Bundles) into DATABASE_URL", runImport},
+		{"example-data", "write the fictional study's wear data as a readings CSV (to try the importer)", runExampleData},
 		{"user", "add a staff account (e.g. the first administrator), reset a password, list accounts", runUser},
 		{"healthcheck", "probe a running server (for container health checks)", runHealthcheck},
 	}
