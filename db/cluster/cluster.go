@@ -135,7 +135,12 @@ func Start(ctx context.Context, cfg Config, getenv func(string) string) (*Cluste
 			return nil, err
 		}
 	}
-	if err := os.MkdirAll(dir, 0o700); err != nil {
+	// Missing parents are made traversable (0755) so the server user can pass
+	// them; the data folder itself stays private to that user.
+	if err := mkdirTraversable(filepath.Dir(dir)); err != nil {
+		return nil, fmt.Errorf("cluster: create data folder: %w", err)
+	}
+	if err := os.Mkdir(dir, 0o700); err != nil && !errors.Is(err, fs.ErrExist) {
 		return nil, fmt.Errorf("cluster: create data folder: %w", err)
 	}
 	if err := c.chown(dir); err != nil {
@@ -207,6 +212,21 @@ func checkReachable(dir string, cred *syscall.Credential) error {
 		}
 	}
 	return nil
+}
+
+// mkdirTraversable creates dir and its missing parents with mode 0755 whatever
+// the umask, so another user can pass through them.
+func mkdirTraversable(dir string) error {
+	if _, err := os.Stat(dir); err == nil {
+		return nil
+	}
+	if err := mkdirTraversable(filepath.Dir(dir)); err != nil {
+		return err
+	}
+	if err := os.Mkdir(dir, 0o755); err != nil && !errors.Is(err, fs.ErrExist) {
+		return err
+	}
+	return os.Chmod(dir, 0o755)
 }
 
 func canEnter(st fs.FileInfo, cred *syscall.Credential) bool {
