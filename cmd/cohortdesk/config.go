@@ -2,6 +2,7 @@ package main
 
 import (
 	"flag"
+	"io"
 	"fmt"
 	"log/slog"
 	"net/netip"
@@ -95,7 +96,7 @@ func (c *serverConfig) validate() error {
 	return nil
 }
 
-func (c *serverConfig) logger(w *os.File) *slog.Logger {
+func (c *serverConfig) logger(w io.Writer) *slog.Logger {
 	lvl, _ := parseLevel(c.LogLevel)
 	o := &slog.HandlerOptions{Level: lvl}
 	if c.LogFormat == "json" {

@@ -5,7 +5,6 @@ import (
 	"errors"
 	"flag"
 	"fmt"
-	"os"
 	"time"
 
 	"cohortdesk/db"
@@ -32,7 +31,7 @@ func runDemo(ctx context.Context, e env, args []string) error {
 	if err := cfg.validate(); err != nil {
 		return err
 	}
-	log := cfg.logger(os.Stderr)
+	log := cfg.logger(e.stderr)
 	start := time.Now()
 
 	cl, err := cluster.Start(ctx, cluster.Config{Dir: *dataDir}, e.getenv)

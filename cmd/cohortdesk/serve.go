@@ -6,7 +6,6 @@ import (
 	"flag"
 	"fmt"
 	"log/slog"
-	"os"
 	"time"
 
 	"cohortdesk/db"
@@ -34,7 +33,7 @@ func runServe(ctx context.Context, e env, args []string) error {
 	if err := cfg.validate(); err != nil {
 		return err
 	}
-	log := cfg.logger(os.Stderr)
+	log := cfg.logger(e.stderr)
 	pool, err := db.Open(ctx, cfg.DatabaseURL, int32(cfg.MaxConns))
 	if err != nil {
 		return err
