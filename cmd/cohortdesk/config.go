@@ -2,8 +2,8 @@ package main
 
 import (
 	"flag"
-	"io"
 	"fmt"
+	"io"
 	"log/slog"
 	"net/netip"
 	"os"
