@@ -29,3 +29,6 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 // afterImport starts background screening of the participants whose data
 // changed.
 func (s *Server) afterImport(ctx context.Context, rep db.ImportReport) {}
+
+// progressCascade adds the screening cascade to the progress page.
+func (s *Server) progressCascade(r *http.Request, m *views.ProgressModel) {}

@@ -38,6 +38,8 @@ func (s *Server) routes() []route {
 		{"POST", "/participants/{id}/withdraw", coordWork, s.participantWithdraw},
 		{"POST", "/participants/{id}/notes", caseWork, s.participantNote},
 
+		{"GET", "/progress", analysis, s.progress},
+
 		{"GET", "/imports", coordWork, s.importsList},
 		{"GET", "/imports/new", coordWork, s.importNew},
 		{"POST", "/imports", coordWork, s.importCreate},

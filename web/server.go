@@ -31,6 +31,7 @@ type Store interface {
 	adminStore
 	participantStore
 	importStore
+	progressStore
 }
 
 // Config is what the server is built from.

@@ -1,0 +1,184 @@
+package db
+
+import (
+	"context"
+	"time"
+
+	"cohortdesk/cohort"
+)
+
+// SiteEnrolment is one site's enrolment history: counts per calendar week
+// (weeks start on Monday, in UTC dates) from the study's first enrolment week
+// to the week holding today.
+type SiteEnrolment struct {
+	SiteID    int
+	Code      string
+	Name      string
+	Target    int
+	Enrolled  int
+	Withdrawn int
+	Weekly    []int // enrolments per week, aligned with EnrolmentHistory.Weeks
+}
+
+// EnrolmentHistory is every site's weekly enrolment on a common week axis.
+type EnrolmentHistory struct {
+	Weeks []cohort.Date // Monday of each week
+	Sites []SiteEnrolment
+	Today cohort.Date
+}
+
+// mondayOf is the Monday on or before d.
+func mondayOf(d cohort.Date) cohort.Date {
+	wd := int(d.In(time.UTC).Weekday())
+	return d.AddDays(-((wd + 6) % 7))
+}
+
+// Enrolment reads every site's weekly enrolment counts.
+func (s *Store) Enrolment(ctx context.Context) (EnrolmentHistory, error) {
+	today := cohort.DateOf(s.now().UTC())
+	h := EnrolmentHistory{Today: today}
+	sites, err := s.Sites(ctx)
+	if err != nil {
+		return h, err
+	}
+	rows, err := s.pool.Query(ctx, `SELECT site_id, enrolled_on, withdrawn_on IS NOT NULL FROM participants ORDER BY enrolled_on`)
+	if err != nil {
+		return h, mapErr("enrolment", err)
+	}
+	type rec struct {
+		site      int
+		on        cohort.Date
+		withdrawn bool
+	}
+	var recs []rec
+	for rows.Next() {
+		var r rec
+		var on time.Time
+		if err := rows.Scan(&r.site, &on, &r.withdrawn); err != nil {
+			rows.Close()
+			return h, mapErr("enrolment", err)
+		}
+		r.on = cohort.DateOf(on)
+		recs = append(recs, r)
+	}
+	if err := rows.Err(); err != nil {
+		return h, mapErr("enrolment", err)
+	}
+	first := mondayOf(today)
+	if len(recs) > 0 && recs[0].on.Before(first) {
+		first = mondayOf(recs[0].on)
+	}
+	for d := first; !today.Before(d); d = d.AddDays(7) {
+		h.Weeks = append(h.Weeks, d)
+	}
+	idx := map[int]int{}
+	for i, st := range sites {
+		idx[st.ID] = i
+		h.Sites = append(h.Sites, SiteEnrolment{SiteID: st.ID, Code: st.Code, Name: st.Name, Target: st.Target, Weekly: make([]int, len(h.Weeks))})
+	}
+	for _, r := range recs {
+		i, ok := idx[r.site]
+		if !ok {
+			continue
+		}
+		se := &h.Sites[i]
+		se.Enrolled++
+		if r.withdrawn {
+			se.Withdrawn++
+		}
+		if w := mondayOf(r.on).DaysSince(first) / 7; w >= 0 && w < len(se.Weekly) {
+			se.Weekly[w]++
+		}
+	}
+	return h, nil
+}
+
+// SufficiencyWeek is the share of active participants whose study week, ending
+// in this calendar week, had enough usable wear under the active protocol.
+type SufficiencyWeek struct {
+	Week       cohort.Date // Monday of the calendar week in which the study weeks end
+	Active     int         // participant-weeks due (enrolled, not withdrawn, week complete)
+	Sufficient int         // of those, screened as positive or negative (not "insufficient" or missing)
+}
+
+// DataSufficiency counts, per calendar week, complete participant-weeks and
+// those with enough wear. A participant-week with no data at all counts as
+// insufficient: silence is the commonest way to have too little data.
+func (s *Store) DataSufficiency(ctx context.Context) ([]SufficiencyWeek, error) {
+	now := s.now().UTC()
+	rows, err := s.pool.Query(ctx, `
+		WITH active AS (SELECT id FROM protocols WHERE active),
+		weeks AS (
+		  SELECT p.id, w.n AS week,
+		         p.enrolled_on + (w.n + 1) * 7 - 1 AS last_day
+		  FROM participants p
+		  CROSS JOIN LATERAL generate_series(0, greatest(0, ($1::date - p.enrolled_on) / 7 - 1)) AS w(n)
+		  WHERE p.enrolled_on + (w.n + 1) * 7 <= coalesce(p.withdrawn_on, $1::date)
+		)
+		SELECT date_trunc('week', wk.last_day)::date AS monday,
+		       count(*) AS due,
+		       count(*) FILTER (WHERE sr.verdict IN ('positive', 'negative')) AS sufficient
+		FROM weeks wk
+		LEFT JOIN screen_results sr ON sr.participant_id = wk.id AND sr.week = wk.week
+		  AND sr.protocol_id = (SELECT id FROM active)
+		GROUP BY 1 ORDER BY 1`, now)
+	if err != nil {
+		return nil, mapErr("data sufficiency", err)
+	}
+	defer rows.Close()
+	var out []SufficiencyWeek
+	for rows.Next() {
+		var w SufficiencyWeek
+		var monday time.Time
+		if err := rows.Scan(&monday, &w.Active, &w.Sufficient); err != nil {
+			return nil, mapErr("data sufficiency", err)
+		}
+		w.Week = cohort.DateOf(monday)
+		out = append(out, w)
+	}
+	return out, mapErr("data sufficiency", rows.Err())
+}
+
+// SilentParticipant is an active participant whose watch has sent nothing for
+// a while.
+type SilentParticipant struct {
+	ID       int64
+	StudyID  string
+	SiteCode string
+	LastData *time.Time // nil: never sent anything
+	Days     int        // whole days since the last reading (or since enrolment)
+}
+
+// SilentParticipants lists active participants with no reading in the last
+// days days, longest silence first.
+func (s *Store) SilentParticipants(ctx context.Context, days int) ([]SilentParticipant, error) {
+	now := s.now()
+	rows, err := s.pool.Query(ctx, `
+		SELECT p.id, p.study_id, st.code, last.ms, p.enrolled_on
+		FROM participants p JOIN sites st ON st.id = p.site_id
+		LEFT JOIN LATERAL (SELECT max(last_ms) AS ms FROM wear_weeks w WHERE w.participant_id = p.id) last ON true
+		WHERE p.withdrawn_on IS NULL
+		  AND coalesce(last.ms, extract(epoch FROM p.enrolled_on::timestamptz) * 1000) < $1
+		ORDER BY coalesce(last.ms, 0), p.study_id`, now.Add(-time.Duration(days)*24*time.Hour).UnixMilli())
+	if err != nil {
+		return nil, mapErr("silent participants", err)
+	}
+	defer rows.Close()
+	var out []SilentParticipant
+	for rows.Next() {
+		var sp SilentParticipant
+		var ms *int64
+		var enrolled time.Time
+		if err := rows.Scan(&sp.ID, &sp.StudyID, &sp.SiteCode, &ms, &enrolled); err != nil {
+			return nil, mapErr("silent participants", err)
+		}
+		since := enrolled
+		if ms != nil {
+			t := time.UnixMilli(*ms).UTC()
+			sp.LastData, since = &t, t
+		}
+		sp.Days = int(now.Sub(since).Hours() / 24)
+		out = append(out, sp)
+	}
+	return out, mapErr("silent participants", rows.Err())
+}
