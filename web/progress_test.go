@@ -19,7 +19,7 @@ func TestProgressPageShowsEnrolmentProjectionAndSilence(t *testing.T) {
 	if res.StatusCode != 200 {
 		t.Fatalf("status %d", res.StatusCode)
 	}
-	for _, want := range []string{"AA · Site A", "target reached", "Poisson", `data-testid="chart-enrolment"`, `data-testid="silent-table"`, "A-1"} {
+	for _, want := range []string{"AA · Site A", "target reached", "Poisson", `data-testid="chart-enrolment"`, `data-testid="silent-table"`, "A-2"} {
 		if !strings.Contains(body, want) {
 			t.Errorf("progress page lacks %q", want)
 		}
