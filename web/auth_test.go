@@ -7,8 +7,12 @@ import (
 	"net/url"
 	"strings"
 	"testing"
+	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/db"
+	"cohortdesk/db/dbtest"
+	"cohortdesk/web/auth"
 
 	"github.com/go-chi/chi/v5"
 )
@@ -283,3 +287,28 @@ func TestAdminManagesUsersAndEveryChangeIsAudited(t *testing.T) {
 }
 
 func itoa(n int64) string { return strconvFormat(n) }
+
+func TestSessionIdleTimeoutSignsOut(t *testing.T) {
+	a := newApp(t)
+	a.srv.sessions.IdleTimeout = 1500 * time.Millisecond
+	c := a.signIn(cohort.Coordinator)
+	if res, _ := a.get(c, "/"); res.StatusCode != 200 {
+		t.Fatalf("fresh session: %d", res.StatusCode)
+	}
+	time.Sleep(2 * time.Second)
+	if res, _ := a.get(c, "/"); res.StatusCode != http.StatusSeeOther {
+		t.Fatalf("after the idle timeout: status %d, want a redirect to sign-in", res.StatusCode)
+	}
+}
+
+func TestSecureCookieBehindTrustedProxy(t *testing.T) {
+	pool := dbtest.Pool(t)
+	store := db.New(pool, nil)
+	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams, Session: SessionConfig{Secure: true}})
+	if !srv.sessions.Cookie.Secure || !srv.sessions.Cookie.HttpOnly || srv.sessions.Cookie.SameSite != http.SameSiteLaxMode {
+		t.Fatalf("cookie flags: %+v", srv.sessions.Cookie)
+	}
+	if srv.sessions.Lifetime != 12*time.Hour || New(Config{Store: store}).sessions.IdleTimeout != 30*time.Minute {
+		t.Fatal("default timeouts are not 30 min idle and 12 h absolute")
+	}
+}
