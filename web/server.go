@@ -30,6 +30,8 @@ type Store interface {
 	signInStore
 	adminStore
 	participantStore
+	caseStore
+	studyStore
 }
 
 // Config is what the server is built from.
