@@ -749,7 +749,7 @@ func TestTriageGroupsAndRecordingsWaiting(t *testing.T) {
 	mustExec(t, f.s, `UPDATE cases SET state = 'recording_received', owner_id = $2, recording_back_at = $3, due_at = $4, reached_at = $3, recorder_sent_at = $3 WHERE id = $1`,
 		p4, f.coord.UserID, fixedNow.Add(-48*time.Hour), fixedNow.Add(96*time.Hour))
 	mustExec(t, f.s, `INSERT INTO recordings (case_id, participant_id, taken_at, duration_s) VALUES ($1, $2, $3, 30)`, p4, f.pids["P4"], fixedNow.Add(-50*time.Hour))
-	tr, err := f.s.Triage(ctx)
+	tr, err := f.s.Triage(ctx, 0)
 	if err != nil {
 		t.Fatal(err)
 	}

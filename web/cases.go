@@ -25,7 +25,7 @@ import (
 type caseStore interface {
 	Case(ctx context.Context, id int64) (db.Case, error)
 	Cases(ctx context.Context, f db.CaseFilter) (db.CasePage, error)
-	Triage(ctx context.Context) (db.Triage, error)
+	Triage(ctx context.Context, perGroup int) (db.Triage, error)
 	TriageCase(ctx context.Context, id int64) (db.Triage, error)
 	CaseTimeline(ctx context.Context, c db.Case, loc *time.Location) ([]db.CaseEvent, error)
 	FlaggedWeeks(ctx context.Context, participantID int64) ([]db.FlaggedWeek, error)
@@ -141,7 +141,7 @@ func caseIDParam(r *http.Request) (int64, error) {
 func workerOptions(us []db.User, withNobody bool) []views.Option {
 	var out []views.Option
 	if withNobody {
-		out = append(out, views.Option{Value: "", Label: "nobody"})
+		out = append(out, views.Option{Value: "none", Label: "nobody"})
 	}
 	for _, u := range us {
 		out = append(out, views.Option{Value: strconv.FormatInt(u.ID, 10), Label: u.Name + " (" + u.Role.Label() + ")"})
@@ -149,13 +149,15 @@ func workerOptions(us []db.User, withNobody bool) []views.Option {
 	return out
 }
 
-// ownerParam reads an owner choice: "me", "" for nobody, or an account id.
+// ownerParam reads an owner choice: "me", "none" for nobody, or an account
+// id. Anything else (an unchosen placeholder) is -1, never an account, which
+// the store refuses with a message.
 func ownerParam(r *http.Request, v string) int64 {
 	switch v = strings.TrimSpace(v); v {
 	case "me":
 		u, _ := userFrom(r.Context())
 		return u.ID
-	case "":
+	case "none":
 		return 0
 	}
 	id, err := strconv.ParseInt(v, 10, 64)
@@ -443,6 +445,7 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 	for _, ch := range followup.Channels() {
 		m.Channels = append(m.Channels, views.Option{Value: string(ch), Label: ch.Label()})
 	}
+	m.Outcomes = []views.Option{{Value: "", Label: "choose…"}}
 	for _, o := range followup.Outcomes() {
 		m.Outcomes = append(m.Outcomes, views.Option{Value: string(o), Label: o.Label()})
 	}

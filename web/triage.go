@@ -52,7 +52,7 @@ func (s *Server) triageRow(r *http.Request, t db.Triage, row db.TriageRow, worke
 // followup.Urgency, with counts and one-step actions.
 func (s *Server) triage(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
-	t, err := s.store.Triage(ctx)
+	t, err := s.store.Triage(ctx, triageGroupLimit)
 	if err != nil {
 		return err
 	}
@@ -67,9 +67,7 @@ func (s *Server) triage(w http.ResponseWriter, r *http.Request) error {
 	m.Page.Flash = doneMessages[r.URL.Query().Get("done")]
 	byBucket := map[followup.Bucket][]db.TriageRow{}
 	for _, row := range t.Rows {
-		if len(byBucket[row.Bucket]) < triageGroupLimit {
-			byBucket[row.Bucket] = append(byBucket[row.Bucket], row)
-		}
+		byBucket[row.Bucket] = append(byBucket[row.Bucket], row)
 	}
 	for _, g := range triageGroups {
 		tg := views.TriageGroup{Key: g.key, Title: g.title, Hint: g.hint, Count: t.Counts[g.bucket]}
