@@ -334,6 +334,7 @@ var actionWords = map[string]string{
 	"case.recording_back": "recorded the recording's return",
 	"case.note":           "changed the working note",
 	"case.withdrawn":      "closed the case after the participant withdrew",
+	"case.advance":        "moved the case on after a step recorded elsewhere",
 }
 
 // ActionWords is the wording of an audit action on a case, for the timeline.
@@ -889,6 +890,55 @@ func (s *Store) CloseCasesForWithdrawal(ctx context.Context, a cohort.Actor, par
 		return 0, mapCaseErr("close cases after withdrawal", err)
 	}
 	return n, nil
+}
+
+// AdvanceCase moves a case as the consequence of a step recorded elsewhere
+// (a recording uploaded, an interpretable over-read entered, a referral
+// issued), whatever version the case is at: whoever caused it did not edit the
+// case, so there is no stale copy to refuse. A case already in to is left as
+// it is; a move the state table does not allow is refused with the allowed
+// states named, as for people. at is when the step happened (zero: now);
+// a final state needs a reason. Audited as "case.advance".
+func (s *Store) AdvanceCase(ctx context.Context, a cohort.Actor, id int64, to followup.State, at time.Time, reason string) (Case, error) {
+	var out Case
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		cur, err := lockCase(ctx, tx, id)
+		if err != nil {
+			return err
+		}
+		if cur.State == to {
+			out = cur
+			return nil
+		}
+		out, err = s.editCase(ctx, tx, a, id, anyVersion, caseEdit{
+			action: "case.advance",
+			intent: stateIntent(to),
+			apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
+				if err := followup.Move(cur.State, to); err != nil {
+					return err
+				}
+				reason = strings.TrimSpace(reason)
+				if to.Terminal() && reason == "" {
+					return &cohort.ValidationError{Fields: map[string]string{"reason": "say why the case ends this way"}}
+				}
+				when := at
+				if when.IsZero() {
+					when = s.now()
+				}
+				enterState(next, cur.State, to, when)
+				if to.Terminal() {
+					next.ClosingNote = reason
+				}
+				rec.Reason = reason
+				return nil
+			},
+		})
+		return err
+	})
+	if err != nil {
+		return Case{}, mapCaseErr("advance case", err)
+	}
+	return out, nil
 }
 
 // rescheduleOpenCases recomputes the next action and deadline of every case

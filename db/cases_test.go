@@ -779,3 +779,31 @@ func TestTriageGroupsAndRecordingsWaiting(t *testing.T) {
 		t.Fatalf("metrics %s", got)
 	}
 }
+
+func TestAdvanceCaseFollowsStepsRecordedElsewhere(t *testing.T) {
+	f := newCaseFixture(t, 1)
+	f.positive(f.proto, "P1", 3)
+	f.sync()
+	ctx := context.Background()
+	id := f.caseID("P1")
+	// A recording cannot arrive for a case nobody has reached: refused, with
+	// the allowed states named.
+	var ve *cohort.ValidationError
+	if _, err := f.s.AdvanceCase(ctx, cohort.System, id, followup.RecordingReceived, time.Time{}, ""); !errors.As(err, &ve) || !strings.Contains(ve.Fields["state"], "allowed next states") {
+		t.Fatalf("advance from open: %v", err)
+	}
+	f.s.LogAttempt(ctx, f.coord, id, db.AttemptInput{Version: 1, Channel: "phone", Outcome: "reached"})
+	f.s.RecordShipment(ctx, f.coord, id, 2, "2026-06-01", "")
+	// The version is 3, but a system step does not need it.
+	back := fixedNow
+	c, err := f.s.AdvanceCase(ctx, cohort.System, id, followup.RecordingReceived, back, "")
+	if err != nil || c.State != followup.RecordingReceived || !c.RecordingBackAt.Equal(back) || c.Version != 4 {
+		t.Fatalf("advance: %s %v v%d (%v)", c.State, c.RecordingBackAt, c.Version, err)
+	}
+	if c, err := f.s.AdvanceCase(ctx, cohort.System, id, followup.RecordingReceived, time.Time{}, ""); err != nil || c.Version != 4 {
+		t.Fatalf("repeated advance changed the case: v%d (%v)", c.Version, err)
+	}
+	if n := f.count(`SELECT count(*) FROM audit_events WHERE action = 'case.advance'`); n != 1 {
+		t.Fatalf("advance audit events %d, want 1", n)
+	}
+}

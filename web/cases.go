@@ -119,7 +119,11 @@ func caseRow(c db.Case, st db.StudySettings, now time.Time, deid bool) views.Cas
 		row.NextAction = c.NextAction.Label()
 	}
 	if deid {
-		row.Flagged = plural(cal.DateOf(now).DaysSince(cal.DateOf(c.FlaggedAt)), "day") + " ago"
+		if days := cal.DateOf(now).DaysSince(cal.DateOf(c.FlaggedAt)); days > 0 {
+			row.Flagged = plural(days, "day") + " ago"
+		} else {
+			row.Flagged = "today"
+		}
 		return row
 	}
 	row.Href = fmt.Sprintf("/cases/%d", c.ID)
