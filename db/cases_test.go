@@ -431,23 +431,24 @@ func TestDueDatesCountWorkingDaysInTheStudyZone(t *testing.T) {
 		want    time.Time
 	}{
 		{
-			// 2026-07-02 is a Thursday; Chicago is on UTC-5 (CDT) in July (IANA
-			// time zone database). The flag is Thursday evening in Chicago but
-			// already Friday in UTC. With Monday 6 July a closure day, two working
-			// days after Thursday are Friday 3 and Tuesday 7 July, so the case is
-			// due by the end of Tuesday, local midnight = 2026-07-08 05:00 UTC
-			// (computed by hand from the counting rule of
-			// followup.Calendar.AddWorkingDays, ours). Counting from the UTC day
-			// (Friday) would give the end of Wednesday instead.
+			// 2026-07-02 is a Thursday and Chicago is on UTC-5 (CDT) in July
+			// (verified: GNU date with the IANA time zone database). The flag is
+			// Thursday evening in Chicago but already Friday in UTC. With Monday
+			// 6 July a closure day, two working days after Thursday are Friday 3
+			// and Tuesday 7 July, so the case is due by the end of Tuesday, local
+			// midnight = 2026-07-08 05:00 UTC (computed by hand from the counting
+			// rule of followup.Calendar.AddWorkingDays, which is ours). Counting
+			// from the UTC day (Friday) would give the end of Wednesday instead.
 			name: "zone and closure day", now: time.Date(2026, 7, 3, 1, 0, 0, 0, time.UTC), closure: "2026-07-06",
 			want: time.Date(2026, 7, 8, 5, 0, 0, 0, time.UTC),
 		},
 		{
-			// 2026-03-06 is a Friday; US daylight saving time starts on Sunday
-			// 8 March 2026 (second Sunday of March, IANA rules). Flag Friday 10:00
-			// CST; two working days: Monday 9 and Tuesday 10 March, due at local
-			// midnight after Tuesday, which is in CDT: 2026-03-11 05:00 UTC
-			// (computed by hand, as above).
+			// 2026-03-06 is a Friday and US daylight saving time starts on
+			// Sunday 8 March 2026, the second Sunday of March (verified: GNU date
+			// with the IANA time zone database). Flag Friday 10:00 CST; two
+			// working days: Monday 9 and Tuesday 10 March, due at local midnight
+			// after Tuesday, which is in CDT: 2026-03-11 05:00 UTC (computed by
+			// hand, as above).
 			name: "daylight saving starts", now: time.Date(2026, 3, 6, 16, 0, 0, 0, time.UTC),
 			want: time.Date(2026, 3, 11, 5, 0, 0, 0, time.UTC),
 		},
@@ -472,13 +473,15 @@ func TestSettingsChangeReschedulesOpenCases(t *testing.T) {
 	f.sync()
 	id := f.caseID("P1")
 	before := f.get(id).DueAt
-	// fixedNow is Monday 2026-06-01 12:00 UTC: 2 working days -> end of Wednesday
-	// 3 June (computed by hand from the counting rule, ours).
+	// fixedNow is Monday 2026-06-01 12:00 UTC (verified: GNU date): 2 working
+	// days -> end of Wednesday 3 June (computed by hand from the counting rule,
+	// which is ours).
 	if want := time.Date(2026, 6, 4, 0, 0, 0, 0, time.UTC); !before.Equal(want) {
 		t.Fatalf("due %v, want %v", before, want)
 	}
 	saveSettings(t, f.s, func(in *db.StudySettingsInput) { in.FirstContactWorkingDays = "4" })
-	// Four working days after Monday: Tue, Wed, Thu, Fri -> end of Friday 5 June.
+	// Four working days after Monday: Tue, Wed, Thu, Fri -> end of Friday 5 June
+	// (computed by hand).
 	if got, want := f.get(id).DueAt, time.Date(2026, 6, 6, 0, 0, 0, 0, time.UTC); !got.Equal(want) {
 		t.Fatalf("after the settings change due %v, want %v", got, want)
 	}
@@ -534,7 +537,8 @@ func TestCaseLifecycleIsAuditedAndScheduled(t *testing.T) {
 	}
 	c = step("shipped", func(v int) (db.Case, error) { return f.s.RecordShipment(ctx, f.coord, id, v, "2026-06-01", "TRK-0042") })
 	// Sent Monday 1 June; the recording is due back 14 calendar days later,
-	// Monday 15 June, by its end (default service level, ours).
+	// Monday 15 June, by its end (computed by hand; the 14 days are our
+	// illustrative default).
 	if c.State != followup.RecorderSent || c.TrackingNumber != "TRK-0042" || !c.DueAt.Equal(time.Date(2026, 6, 16, 0, 0, 0, 0, time.UTC)) {
 		t.Fatalf("after shipping: %s %q due %v", c.State, c.TrackingNumber, c.DueAt)
 	}

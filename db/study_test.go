@@ -3,6 +3,7 @@ package db_test
 import (
 	"context"
 	"errors"
+	"slices"
 	"strings"
 	"testing"
 
@@ -56,4 +57,41 @@ func TestStudySettingsDefaultsValidationAndAudit(t *testing.T) {
 	if n != 1 {
 		t.Fatalf("settings audit events %d, want 1", n)
 	}
+}
+
+// FuzzClosureDays feeds arbitrary text to the closure-days field: it never
+// panics, and whatever it accepts is sorted, free of duplicates and reads back
+// the same when written one date per line.
+func FuzzClosureDays(f *testing.F) {
+	for _, seed := range []string{"", "2026-12-25", "2026-12-25\n2026-01-01, 2026-12-25", " 2026-02-29", "2026-13-01", "1999-12-31",
+		"2026-07-04;2026-07-03\r\n", "\t,,;", "2026-1-5", "20261225"} {
+		f.Add(seed)
+	}
+	base := db.StudySettingsInput{Name: "s", TimeZone: "UTC", EnrolmentTarget: "0", FirstContactWorkingDays: "2", MaxAttempts: "5",
+		GiveUpAfterDays: "14", RecorderSendWithinDays: "5", RecordingBackWithinDays: "14", OverReadWithinDays: "7",
+		ReferOrCloseWithinDays: "3", EpisodeGapWeeks: "2"}
+	f.Fuzz(func(t *testing.T, text string) {
+		in := base
+		in.ClosureDays = text
+		st, err := in.Parse()
+		if err != nil {
+			var ve *cohort.ValidationError
+			if !errors.As(err, &ve) || len(ve.Fields) != 1 || ve.Fields["closure_days"] == "" {
+				t.Fatalf("%q: %v, want a message on closure_days only", text, err)
+			}
+			return
+		}
+		var lines []string
+		for i, d := range st.ClosureDays {
+			if i > 0 && !st.ClosureDays[i-1].Before(d) {
+				t.Fatalf("%q: days not sorted and unique: %v", text, st.ClosureDays)
+			}
+			lines = append(lines, d.String())
+		}
+		in.ClosureDays = strings.Join(lines, "\n")
+		again, err := in.Parse()
+		if err != nil || !slices.Equal(again.ClosureDays, st.ClosureDays) {
+			t.Fatalf("%q: round trip gave %v (%v), want %v", text, again.ClosureDays, err, st.ClosureDays)
+		}
+	})
 }
