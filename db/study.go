@@ -102,8 +102,13 @@ func encodeService(st StudySettings) serviceJSON {
 		&sl.RecordingBackWithinDays, &sl.OverReadWithinDays, &sl.ReferOrCloseWithinDays, &st.EpisodeGapWeeks}
 }
 
-// studySettings reads the settings inside a transaction (or from the pool).
-func studySettings(ctx context.Context, q pgx.Tx) (StudySettings, error) {
+// rowQuerier is a transaction or the pool.
+type rowQuerier interface {
+	QueryRow(ctx context.Context, sql string, args ...any) pgx.Row
+}
+
+// studySettings reads the settings inside a transaction or from the pool.
+func studySettings(ctx context.Context, q rowQuerier) (StudySettings, error) {
 	st := DefaultStudySettings()
 	var raw []byte
 	var days []time.Time
@@ -128,12 +133,7 @@ func studySettings(ctx context.Context, q pgx.Tx) (StudySettings, error) {
 // StudySettings returns the study's settings, or the defaults before the study
 // is set up.
 func (s *Store) StudySettings(ctx context.Context) (StudySettings, error) {
-	var st StudySettings
-	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly}, func(tx pgx.Tx) error {
-		var err error
-		st, err = studySettings(ctx, tx)
-		return err
-	})
+	st, err := studySettings(ctx, s.pool)
 	return st, mapErr("study settings", err)
 }
 

@@ -12,7 +12,7 @@ import (
 
 // triageGroupLimit bounds the rows shown per group; the rest are a link away
 // on the case list, so the page stays quick on a busy morning.
-const triageGroupLimit = 50
+const triageGroupLimit = 25
 
 // triageGroups are the page's groups, in the order of followup.Bucket.
 var triageGroups = []struct {
@@ -39,14 +39,21 @@ func (s *Server) triageRow(r *http.Request, t db.Triage, row db.TriageRow, worke
 		v.ShowAttempt, v.ShowShipment, v.Mine = false, false, true
 		v.Group = "closed"
 	}
-	for _, ch := range followup.Channels() {
-		v.Channels = append(v.Channels, views.Option{Value: string(ch), Label: ch.Label()})
-	}
-	for _, o := range followup.Outcomes() {
-		v.Outcomes = append(v.Outcomes, views.Option{Value: string(o), Label: o.Label()})
-	}
+	v.Channels, v.Outcomes = channelOptions, outcomeOptions
 	return v
 }
+
+// channelOptions and outcomeOptions are the choices of the attempt forms,
+// built once: every row of the page shares them.
+var channelOptions, outcomeOptions = func() (ch, out []views.Option) {
+	for _, c := range followup.Channels() {
+		ch = append(ch, views.Option{Value: string(c), Label: c.Label()})
+	}
+	for _, o := range followup.Outcomes() {
+		out = append(out, views.Option{Value: string(o), Label: o.Label()})
+	}
+	return ch, out
+}()
 
 // triage is the coordinators' morning list: the urgent groups in the order of
 // followup.Urgency, with counts and one-step actions.
