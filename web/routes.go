@@ -46,6 +46,19 @@ func (s *Server) routes() []route {
 		{"GET", "/imports/{id}", coordWork, s.importShow},
 		{"GET", "/imports/{id}/rejects.csv", coordWork, s.importRejects},
 
+		{"GET", "/triage", caseWork, s.triage},
+		{"GET", "/cases", everyone, s.casesList}, // de-identified for monitors
+		{"POST", "/cases/bulk/assign", caseWork, s.casesBulkAssign},
+		{"POST", "/cases/bulk/letter", coordWork, s.casesBulkLetter},
+		{"GET", "/cases/{id}", caseWork, s.caseShow},
+		{"POST", "/cases/{id}/assign", caseWork, s.caseAssign},
+		{"POST", "/cases/{id}/attempts", coordWork, s.caseAttempt},
+		{"POST", "/cases/{id}/move", caseWork, s.caseMove},
+		{"POST", "/cases/{id}/close", caseWork, s.caseClose},
+		{"POST", "/cases/{id}/shipment", coordWork, s.caseShipment},
+		{"POST", "/cases/{id}/return", coordWork, s.caseReturn},
+		{"POST", "/cases/{id}/note", caseWork, s.caseNote},
+
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},
 		{"POST", "/admin/users", adminOnly, s.userCreate},
@@ -54,6 +67,8 @@ func (s *Server) routes() []route {
 		{"POST", "/admin/users/{id}/password", adminOnly, s.userResetPassword},
 		{"GET", "/admin/audit", adminOnly, s.auditList},
 		{"GET", "/admin/audit.csv", adminOnly, s.auditCSV},
+		{"GET", "/admin/study", adminOnly, s.studySettings},
+		{"POST", "/admin/study", adminOnly, s.studySettingsSave},
 	}
 }
 

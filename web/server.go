@@ -32,6 +32,8 @@ type Store interface {
 	participantStore
 	importStore
 	progressStore
+	caseStore
+	studyStore
 }
 
 // Config is what the server is built from.

@@ -31,6 +31,11 @@
     clearTimeout(seqTimer);
     seqTimer = setTimeout(function () { seq = ""; }, 900);
     var el = document.querySelector('[data-key="' + CSS.escape(seq) + '"]');
+    // Keys of the focused row: data-row-key="a" inside the [data-row] that
+    // holds the focus wins over a page-wide key.
+    var row = document.activeElement && document.activeElement.closest ? document.activeElement.closest("[data-row]") : null;
+    var inRow = row ? row.querySelector('[data-row-key="' + CSS.escape(seq) + '"]') : null;
+    if (inRow) el = inRow;
     if (el) {
       ev.preventDefault();
       seq = "";
@@ -85,6 +90,28 @@
       var name = el.getAttribute("data-select-all");
       document.querySelectorAll('input[type=checkbox][name="' + name + '"]').forEach(function (c) { c.checked = el.checked; });
     }
+  });
+
+  // htmx leaves 4xx answers unswapped; ours for a refused row action (409 a
+  // stale copy, 422 a refused input) carry the row with the reason, so show it.
+  document.addEventListener("htmx:beforeSwap", function (ev) {
+    var status = ev.detail.xhr ? ev.detail.xhr.status : 0;
+    if (status === 409 || status === 422) { ev.detail.shouldSwap = true; ev.detail.isError = false; }
+  });
+  // A row replaced by htmx takes the keyboard focus back, so the next key
+  // works on the same case.
+  var swappedRow = "";
+  document.addEventListener("htmx:beforeRequest", function (ev) {
+    var row = ev.detail.elt && ev.detail.elt.closest ? ev.detail.elt.closest("[data-row]") : null;
+    swappedRow = row && row.id ? row.id : "";
+  });
+  document.addEventListener("htmx:afterSettle", function () {
+    if (!swappedRow) return;
+    var row = document.getElementById(swappedRow);
+    swappedRow = "";
+    if (!row) return;
+    var target = row.querySelector("[role=alert]") ? row.querySelector("select, input:not([type=hidden]), button") : row.querySelector("[data-row-focus]");
+    if (target) target.focus();
   });
 
   function init(root) { drawCharts(root); wireUploads(root); }

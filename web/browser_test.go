@@ -1,0 +1,100 @@
+package web
+
+import (
+	"context"
+	"fmt"
+	"strings"
+	"testing"
+	"time"
+
+	"cohortdesk/cohort/followup"
+	"cohortdesk/web/browsertest"
+
+	"github.com/chromedp/chromedp"
+)
+
+// TestBrowserCoordinatorWorksACaseFromTriage drives headless Chromium: a
+// coordinator signs in, opens triage, takes a new case, logs a phone call that
+// reaches the participant and marks the recorder sent, each step updating the
+// row in place; then the keyboard takes the next case.
+func TestBrowserCoordinatorWorksACaseFromTriage(t *testing.T) {
+	a := newApp(t)
+	ids := seedFollowUp(t, a.store, 3)
+	b := browsertest.Start(t, 90*time.Second)
+	base := a.ts.URL
+	row := fmt.Sprintf("#case-%d", ids[0])
+
+	b.Do("sign in",
+		chromedp.Navigate(base+"/signin"),
+		chromedp.WaitVisible(chromedp.ID("email")),
+		chromedp.SendKeys(chromedp.ID("email"), "coordinator@example.org"),
+		chromedp.SendKeys(chromedp.ID("password"), testPassword),
+		chromedp.Click(chromedp.CSS(`[data-testid="signin-submit"]`)),
+		chromedp.WaitVisible(chromedp.CSS(`[data-testid="nav-triage"]`)),
+	)
+	b.Do("open triage", chromedp.Click(chromedp.CSS(`[data-testid="nav-triage"]`)), chromedp.WaitVisible(chromedp.CSS(row)))
+	if got := b.Text("new count", `[data-testid="count-new"] .num`); got != "3" {
+		t.Fatalf("new flags counted %q, want 3", got)
+	}
+	if !strings.Contains(b.Text("order rule", `[data-testid="order-rule"]`), "overdue cases first") {
+		t.Fatal("the ordering rule is not shown")
+	}
+
+	b.Do("take the case",
+		chromedp.Click(chromedp.CSS(row+` [data-testid="take"] button`)),
+		chromedp.WaitVisible(chromedp.CSS(row+` [data-testid="row-done"]`)),
+	)
+	if got := b.Text("owner", row+` [data-testid="row-owner"]`); got != "Test Coordinator" {
+		t.Fatalf("owner after taking the case %q", got)
+	}
+	if strings.Contains(b.Location(), "/cases/") {
+		t.Fatal("the action left the triage page; htmx should have updated the row")
+	}
+
+	b.Do("log a call that reaches the participant",
+		chromedp.SetValue(chromedp.ID(fmt.Sprintf("channel-%d", ids[0])), string(followup.ChannelPhone)),
+		chromedp.SetValue(chromedp.ID(fmt.Sprintf("outcome-%d", ids[0])), string(followup.OutcomeReached)),
+		chromedp.Click(chromedp.CSS(row+` [data-testid="attempt"] button`)),
+		chromedp.WaitVisible(chromedp.CSS(row+` [data-testid="ship"]`)),
+	)
+	if got := b.Text("state after the call", row+` [data-testid="row-state"]`); got != "reached" {
+		t.Fatalf("state after reaching %q", got)
+	}
+	if got := b.Text("next action", row+` [data-testid="row-next"]`); got != followup.ActionSendRecorder.Label() {
+		t.Fatalf("next action %q", got)
+	}
+
+	b.Do("mark the recorder sent",
+		chromedp.SendKeys(chromedp.ID(fmt.Sprintf("tracking-%d", ids[0])), "TRK-7781"),
+		chromedp.Click(chromedp.CSS(row+` [data-testid="ship"] button`)),
+		chromedp.WaitVisible(chromedp.CSS(`tr[data-state="recorder sent"]`+row)),
+	)
+	if got := b.Text("state after shipping", row+` [data-testid="row-state"]`); got != "recorder sent" {
+		t.Fatalf("state after shipping %q", got)
+	}
+
+	b.Do("open the case page", chromedp.Click(chromedp.CSS(row+` a[data-row-key="o"]`)), chromedp.WaitVisible(chromedp.CSS(`[data-testid="case-timeline"]`)))
+	if got := b.Text("tracking number", `[data-testid="case-tracking"]`); got != "TRK-7781" {
+		t.Fatalf("tracking number on the case page %q", got)
+	}
+	if tl := b.Text("timeline", `[data-testid="case-timeline"]`); !strings.Contains(tl, "Contact attempt by phone: reached") || !strings.Contains(tl, "Recorded the recorder shipment") {
+		t.Fatalf("timeline lacks the steps:\n%s", tl)
+	}
+	c, err := a.store.Case(context.Background(), ids[0])
+	if err != nil || c.State != followup.RecorderSent || c.TrackingNumber != "TRK-7781" || c.Version != 4 {
+		t.Fatalf("stored case %s %q v%d (%v)", c.State, c.TrackingNumber, c.Version, err)
+	}
+
+	// Keyboard only: j focuses the first row (the next new flag), a takes it.
+	next := fmt.Sprintf("#case-%d", ids[1])
+	b.Do("keyboard: take the next case",
+		chromedp.Navigate(base+"/triage"),
+		chromedp.WaitVisible(chromedp.CSS(next)),
+		chromedp.KeyEvent("j"),
+		chromedp.KeyEvent("a"),
+		chromedp.WaitVisible(chromedp.CSS(next+` [data-testid="row-done"]`)),
+	)
+	if got := b.Text("owner via keyboard", next+` [data-testid="row-owner"]`); got != "Test Coordinator" {
+		t.Fatalf("owner after the keyboard action %q", got)
+	}
+}

@@ -1,0 +1,118 @@
+package web
+
+import (
+	"fmt"
+	"net/http"
+	"strconv"
+
+	"cohortdesk/cohort/followup"
+	"cohortdesk/db"
+	"cohortdesk/views"
+)
+
+// triageGroupLimit bounds the rows shown per group; the rest are a link away
+// on the case list, so the page stays quick on a busy morning.
+const triageGroupLimit = 25
+
+// triageGroups are the page's groups, in the order of followup.Bucket.
+var triageGroups = []struct {
+	bucket followup.Bucket
+	key    string
+	title  string
+	hint   string
+	more   string
+}{
+	{followup.BucketOverdue, "overdue", "Overdue", "The next action's deadline has passed; the most overdue first.", "/cases?overdue=on"},
+	{followup.BucketDueToday, "today", "Due today", "Deadlines that fall at the end of today in the study's time zone.", "/cases"},
+	{followup.BucketNewUnowned, "new", "New flags nobody has taken on", "Open cases without an owner, oldest flag first.", "/cases?state=open&owner=none"},
+	{followup.BucketAwaitingOverRead, "overread", "Recordings waiting for an over-read", "Recordings back from participants that no clinician has read yet, oldest first.", "/cases?state=recording_received"},
+}
+
+// triageRow builds one row with the actions the signed-in person may take.
+func (s *Server) triageRow(r *http.Request, t db.Triage, row db.TriageRow, workers []views.Option) views.TriageRowView {
+	u, _ := userFrom(r.Context())
+	v := views.TriageRowView{CaseRowView: caseRow(row.Case, t.Settings, t.Now, false), Group: row.Bucket.Label(),
+		Mine: row.OwnerID == u.ID, Me: strconv.FormatInt(u.ID, 10), CanContact: coordWork.allows(u.Role),
+		ShowAttempt:  row.State == followup.Open || row.State == followup.Contacting || row.State == followup.RecorderSent,
+		ShowShipment: row.State == followup.Reached, Assignees: workers, Today: t.Settings.Calendar().DateOf(t.Now).String()}
+	if row.State.Terminal() {
+		v.ShowAttempt, v.ShowShipment, v.Mine = false, false, true
+		v.Group = "closed"
+	}
+	v.Channels, v.Outcomes = channelOptions, outcomeOptions
+	return v
+}
+
+// channelOptions and outcomeOptions are the choices of the attempt forms,
+// built once: every row of the page shares them.
+var channelOptions, outcomeOptions = func() (ch, out []views.Option) {
+	for _, c := range followup.Channels() {
+		ch = append(ch, views.Option{Value: string(c), Label: c.Label()})
+	}
+	for _, o := range followup.Outcomes() {
+		out = append(out, views.Option{Value: string(o), Label: o.Label()})
+	}
+	return ch, out
+}()
+
+// triage is the coordinators' morning list: the urgent groups in the order of
+// followup.Urgency, with counts and one-step actions.
+func (s *Server) triage(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	t, err := s.store.Triage(ctx, triageGroupLimit)
+	if err != nil {
+		return err
+	}
+	us, err := s.store.CaseWorkers(ctx)
+	if err != nil {
+		return err
+	}
+	workers := workerOptions(us, false)
+	m := views.TriageModel{Page: s.page(r, "Triage", "triage"), OrderRule: followup.OrderRule, UnreadRecordings: t.UnreadRecordings,
+		Scheduled: t.Counts[followup.BucketOther],
+		AsOf:      fmt.Sprintf("As of %s, %s (%s).", dayLabel(t.Settings.Calendar().DateOf(t.Now)), t.Now.Format("15:04"), t.Settings.Location())}
+	m.Page.Flash = doneMessages[r.URL.Query().Get("done")]
+	byBucket := map[followup.Bucket][]db.TriageRow{}
+	for _, row := range t.Rows {
+		byBucket[row.Bucket] = append(byBucket[row.Bucket], row)
+	}
+	for _, g := range triageGroups {
+		tg := views.TriageGroup{Key: g.key, Title: g.title, Hint: g.hint, Count: t.Counts[g.bucket]}
+		for _, row := range byBucket[g.bucket] {
+			tg.Rows = append(tg.Rows, s.triageRow(r, t, row, workers))
+		}
+		if tg.Count > len(tg.Rows) {
+			tg.More = g.more
+		}
+		m.Groups = append(m.Groups, tg)
+	}
+	return s.ok(w, r, views.Triage(m))
+}
+
+// triageRowAnswer answers an htmx action from the triage page with just the
+// case's row as it now is, saying what happened or why nothing did. A refusal
+// keeps its status (409, 422); the page script lets htmx swap those in.
+func (s *Server) triageRowAnswer(w http.ResponseWriter, r *http.Request, id int64, actionErr error, done string) error {
+	ctx := r.Context()
+	t, err := s.store.TriageCase(ctx, id)
+	if err != nil {
+		return err
+	}
+	us, err := s.store.CaseWorkers(ctx)
+	if err != nil {
+		return err
+	}
+	row := s.triageRow(r, t, t.Rows[0], workerOptions(us, false))
+	status := http.StatusOK
+	if actionErr != nil {
+		status = statusOf(actionErr)
+		if status != http.StatusUnprocessableEntity && status != http.StatusConflict {
+			return actionErr
+		}
+		row.Error = humanMessage(actionErr)
+	} else {
+		row.Done = doneMessages[done] + " Now: " + row.Group + "."
+	}
+	s.render(w, r, status, views.TriageRow(row))
+	return nil
+}
