@@ -16,7 +16,7 @@ CREATE TABLE recordings (
     file_name           text NOT NULL DEFAULT '',
     file_sha256         bytea,
     sampling_hz         real,
-    -- samples in microvolts as little-endian int16 pairs; empty without waveform
+    -- samples in microvolts as little-endian int16 (db.EncodeSamples); empty without waveform
     samples             bytea,
     -- detected R peaks (sample indices) and the beat-interval hint
     beats               integer[] NOT NULL DEFAULT '{}',
