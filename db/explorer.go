@@ -261,7 +261,7 @@ func (s *Store) overReadLabels(ctx context.Context) (map[WeekKey]int, error) {
 		  FROM cases c JOIN rec r ON r.case_id = c.id
 		  GROUP BY c.id
 		)
-		SELECT participant_id, generate_series(first_week, last_week)::int AS week, label FROM cs`)
+		SELECT participant_id, generate_series(first_week::int, last_week::int) AS week, label FROM cs`)
 	if err != nil {
 		return nil, mapErr("over-read labels", err)
 	}
