@@ -41,16 +41,16 @@ func TestImportVerdicts(t *testing.T) {
 	dbtest.AddParticipant(t, s.Pool(), "V-2", enrolDay)
 	file := strings.Join([]string{
 		"study_id,study_week,score,verdict,model_name,model_version", // line 1
-		"V-1,0,0.12,negative,rhythm-net,2.1",                        // 2 ok
-		"V-1,1,0.91,POSITIVE,rhythm-net,2.1",                        // 3 ok (any case)
-		"V-2,1,,insufficient,rhythm-net,2.1",                        // 4 ok, no score
-		"V-2,1,,insufficient,rhythm-net,2.1",                        // 5 exact repeat: duplicate
-		"V-2,1,0.4,negative,rhythm-net,2.1",                         // 6 conflicts with line 4
-		"V-9,1,0.5,negative,rhythm-net,2.1",                         // 7 unknown participant
-		"V-1,-1,0.5,negative,rhythm-net,2.1",                        // 8 bad week
-		"V-1,2,0.5,maybe,rhythm-net,2.1",                            // 9 bad verdict
-		"V-1,3,0.5,negative,,2.1",                                   // 10 missing model name
-		"V-1,0,0.30,negative,other-model,0.9",                       // 11 ok, other model
+		"V-1,0,0.12,negative,rhythm-net,2.1",                         // 2 ok
+		"V-1,1,0.91,POSITIVE,rhythm-net,2.1",                         // 3 ok (any case)
+		"V-2,1,,insufficient,rhythm-net,2.1",                         // 4 ok, no score
+		"V-2,1,,insufficient,rhythm-net,2.1",                         // 5 exact repeat: duplicate
+		"V-2,1,0.4,negative,rhythm-net,2.1",                          // 6 conflicts with line 4
+		"V-9,1,0.5,negative,rhythm-net,2.1",                          // 7 unknown participant
+		"V-1,-1,0.5,negative,rhythm-net,2.1",                         // 8 bad week
+		"V-1,2,0.5,maybe,rhythm-net,2.1",                             // 9 bad verdict
+		"V-1,3,0.5,negative,,2.1",                                    // 10 missing model name
+		"V-1,0,0.30,negative,other-model,0.9",                        // 11 ok, other model
 	}, "\r\n") + "\r\n"
 	got, err := s.ImportVerdicts(ctx, coord, "verdicts.csv", strings.NewReader(file))
 	if err != nil {
