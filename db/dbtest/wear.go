@@ -3,7 +3,6 @@ package dbtest
 import (
 	"context"
 	"math/rand/v2"
-	"testing"
 	"time"
 
 	"cohortdesk/cohort"
@@ -11,6 +10,13 @@ import (
 
 	"github.com/jackc/pgx/v5/pgxpool"
 )
+
+// TB is the part of testing.TB the data helpers use, so one-time benchmark
+// setup outside any test can pass its own.
+type TB interface {
+	Helper()
+	Fatalf(format string, args ...any)
+}
 
 // Rhythm selects the pattern of synthetic heart-rate readings.
 type Rhythm int
@@ -50,7 +56,7 @@ func SynthHR(seed uint64, r Rhythm, start time.Time, hours int, cadence time.Dur
 
 // PutWearWeek stores one participant-week series the way imports do: encoded
 // with the wear codec, one row per participant, week and kind.
-func PutWearWeek(tb testing.TB, pool *pgxpool.Pool, participantID int64, week int, kind cohort.Kind, s cohort.Samples) {
+func PutWearWeek(tb TB, pool *pgxpool.Pool, participantID int64, week int, kind cohort.Kind, s cohort.Samples) {
 	tb.Helper()
 	if s.Len() == 0 {
 		tb.Fatalf("dbtest: PutWearWeek: participant %d week %d: no readings", participantID, week)
@@ -67,7 +73,7 @@ func PutWearWeek(tb testing.TB, pool *pgxpool.Pool, participantID int64, week in
 
 // AddParticipant enrols a fictional participant in UTC at a site (created on
 // first use) and returns its id.
-func AddParticipant(tb testing.TB, pool *pgxpool.Pool, studyID string, enrolled cohort.Date) int64 {
+func AddParticipant(tb TB, pool *pgxpool.Pool, studyID string, enrolled cohort.Date) int64 {
 	tb.Helper()
 	ctx := context.Background()
 	if _, err := pool.Exec(ctx, `INSERT INTO sites (code, name) VALUES ('TS', 'Test site') ON CONFLICT (code) DO NOTHING`); err != nil {
