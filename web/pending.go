@@ -4,8 +4,6 @@ import (
 	"net/http"
 
 	"cohortdesk/cohort/followup"
-	"cohortdesk/db"
-	"cohortdesk/views"
 )
 
 // caseStateLabel shows a stored case state in words.
@@ -19,8 +17,3 @@ func caseStateLabel(s string) string {
 
 // afterWithdrawal closes the participant's open cases as withdrawn.
 func (s *Server) afterWithdrawal(r *http.Request, participantID int64) error { return nil }
-
-// participantCharts adds the heart-rate chart of the chosen week.
-func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db.WeekLine, m *views.ParticipantModel) error {
-	return nil
-}

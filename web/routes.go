@@ -38,6 +38,11 @@ func (s *Server) routes() []route {
 		{"POST", "/participants/{id}/withdraw", coordWork, s.participantWithdraw},
 		{"POST", "/participants/{id}/notes", caseWork, s.participantNote},
 
+		{"GET", "/screening", caseWork, s.screeningJobs},
+		{"GET", "/screening/external", coordWork, s.externalVerdictsForm},
+		{"POST", "/screening/external", coordWork, s.externalVerdictsImport},
+		{"GET", "/explorer", tuning, s.explorer},
+
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},
 		{"POST", "/admin/users", adminOnly, s.userCreate},
@@ -46,6 +51,11 @@ func (s *Server) routes() []route {
 		{"POST", "/admin/users/{id}/password", adminOnly, s.userResetPassword},
 		{"GET", "/admin/audit", adminOnly, s.auditList},
 		{"GET", "/admin/audit.csv", adminOnly, s.auditCSV},
+		{"GET", "/admin/protocols", adminOnly, s.protocolsList},
+		{"POST", "/admin/protocols", adminOnly, s.protocolCreate},
+		{"GET", "/admin/protocols/{id}", adminOnly, s.protocolShow},
+		{"GET", "/admin/protocols/{id}/new", adminOnly, s.protocolNew},
+		{"POST", "/admin/protocols/{id}/activate", adminOnly, s.protocolActivate},
 	}
 }
 

@@ -30,6 +30,7 @@ type Store interface {
 	signInStore
 	adminStore
 	participantStore
+	screeningStore
 }
 
 // Config is what the server is built from.
@@ -123,6 +124,7 @@ var areas = []area{
 	{"home", "Overview", "/", "h"},
 	{"triage", "Triage", "/triage", "t"},
 	{"participants", "Participants", "/participants", "p"},
+	{"screening", "Screening", "/screening", "s"},
 	{"cases", "Cases", "/cases", "c"},
 	{"confirmations", "Confirmations", "/confirmations", "e"},
 	{"progress", "Progress", "/progress", "g"},
