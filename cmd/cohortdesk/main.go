@@ -42,6 +42,7 @@ func commands() []command {
 		{"demo", "run the app with a fictional cohort on a private PostgreSQL it starts itself", runDemo},
 		{"serve", "run the app against DATABASE_URL (production)", runServe},
 		{"migrate", "apply database migrations (up) or list them (status) on DATABASE_URL", runMigrate},
+		{"screen", "screen stored wear data again with a chosen protocol version, showing progress", runScreen},
 		{"user", "add a staff account (e.g. the first administrator), reset a password, list accounts", runUser},
 		{"healthcheck", "probe a running server (for container health checks)", runHealthcheck},
 	}
