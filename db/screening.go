@@ -29,11 +29,16 @@ type screenPayload struct {
 // week of each participant is screened again, since a new week can change a
 // personal baseline and the cost is small next to reading the data.
 func (s *Store) EnqueueScreen(ctx context.Context, participantIDs []int64, protocolID int) (int64, error) {
-	p, err := s.screenProtocol(ctx, protocolID)
+	var id int64
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var err error
+		id, err = enqueueScreen(ctx, tx, participantIDs, protocolID)
+		return err
+	})
 	if err != nil {
-		return 0, err
+		return 0, fmt.Errorf("db: %w", err)
 	}
-	return s.Enqueue(ctx, screenJob(p, participantIDs, "system"))
+	return id, nil
 }
 
 // EnqueueScreenBy is EnqueueScreen on behalf of a person, who is named on the
@@ -52,6 +57,23 @@ func (s *Store) EnqueueScreenBy(ctx context.Context, a cohort.Actor, participant
 		return audit(ctx, tx, a, "screen.enqueue", "job", strconv.FormatInt(id, 10), nil,
 			map[string]any{"protocol_id": p.ID, "participants": len(participantIDs)})
 	})
+	return id, mapErr("enqueue screening", err)
+}
+
+// enqueueScreen is EnqueueScreen inside the caller's transaction, for an
+// import that wants its rows and the screening job that follows them to commit
+// together (a crash between the two would otherwise leave data unscreened).
+func enqueueScreen(ctx context.Context, tx pgx.Tx, participantIDs []int64, protocolID int) (int64, error) {
+	q := `SELECT ` + protocolCols + ` FROM protocols WHERE active`
+	args := []any{}
+	if protocolID != 0 {
+		q, args = `SELECT `+protocolCols+` FROM protocols WHERE id = $1`, []any{protocolID}
+	}
+	p, err := scanProtocol(tx.QueryRow(ctx, q, args...))
+	if err != nil {
+		return 0, mapErr("enqueue screening", err)
+	}
+	id, err := enqueue(ctx, tx, screenJob(p, participantIDs, "system"))
 	return id, mapErr("enqueue screening", err)
 }
 

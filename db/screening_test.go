@@ -3,6 +3,7 @@ package db_test
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"slices"
 	"strconv"
 	"strings"
@@ -200,12 +201,15 @@ func TestScreeningWithPersonalBaseline(t *testing.T) {
 
 func TestScreenUnknownProtocolIsNotFound(t *testing.T) {
 	s := newStore(t)
-	if _, err := s.EnqueueScreen(context.Background(), nil, 0); err == nil {
-		t.Fatal("enqueue without any protocol succeeded")
+	if _, err := s.EnqueueScreen(context.Background(), nil, 0); !errors.Is(err, cohort.ErrNotFound) {
+		t.Fatalf("enqueue without any protocol: %v, want not found", err)
 	}
 	mustDefault(t, s)
-	if _, err := s.EnqueueScreen(context.Background(), nil, 4242); err == nil {
-		t.Fatal("enqueue with an unknown protocol succeeded")
+	if _, err := s.EnqueueScreen(context.Background(), nil, 4242); !errors.Is(err, cohort.ErrNotFound) {
+		t.Fatalf("enqueue with an unknown protocol: %v, want not found", err)
+	}
+	if jobs, _ := s.Jobs(context.Background(), 10); len(jobs) != 0 {
+		t.Fatalf("refused enqueues left %d jobs", len(jobs))
 	}
 }
 

@@ -278,6 +278,7 @@ type countingReader struct {
 	n int64
 }
 
+// Read counts the bytes read through it.
 func (c *countingReader) Read(p []byte) (int, error) {
 	n, err := c.r.Read(p)
 	c.n += int64(n)

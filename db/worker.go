@@ -23,7 +23,10 @@ type JobFunc func(ctx context.Context, j Job, progress func(done, total int64) e
 // exist, a malformed payload).
 type permanent struct{ err error }
 
+// Error is the wrapped error's message.
 func (p permanent) Error() string { return p.err.Error() }
+
+// Unwrap exposes the wrapped error.
 func (p permanent) Unwrap() error { return p.err }
 
 // Permanent wraps err so the worker fails the job at once instead of retrying.

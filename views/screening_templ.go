@@ -1816,7 +1816,7 @@ func External(m ExternalModel) templ.Component {
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
-			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 144, "<p class=\"hint\">Columns, in any order: <span class=\"mono\">study_id, study_week, score, verdict, model_name, model_version</span>. The score may be empty; the verdict is positive, negative or insufficient. Importing the same file again changes nothing.</p><progress hidden value=\"0\" max=\"1\"></progress><div><button type=\"submit\">Import</button></div></form><h2>Recent verdict files</h2><table class=\"grid\" data-testid=\"verdict-imports\"><thead><tr><th class=\"num\">#</th><th>File</th><th>Status</th><th>When</th><th>By</th><th>Result</th></tr></thead> <tbody>")
+			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 144, "<p class=\"hint\">Columns, in any order: <span class=\"mono\">study_id, study_week, score, verdict, model_name, model_version</span>. The score may be empty; the verdict is positive, negative or insufficient. Importing the same file again changes nothing.</p><progress hidden value=\"0\" max=\"1\" aria-label=\"Upload progress\"></progress><div><button type=\"submit\">Import</button></div></form><h2>Recent verdict files</h2><table class=\"grid\" data-testid=\"verdict-imports\"><thead><tr><th class=\"num\">#</th><th>File</th><th>Status</th><th>When</th><th>By</th><th>Result</th></tr></thead> <tbody>")
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
