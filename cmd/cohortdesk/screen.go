@@ -88,7 +88,7 @@ func runScreen(ctx context.Context, e env, args []string) error {
 	fmt.Fprintf(e.stdout, "job %d queued: %s\n", id, j.Label)
 
 	// Work the job here; a server's worker may take it first, which is fine.
-	w := &db.Worker{Store: store, Handlers: newScreener(store).Handlers(), Poll: *poll}
+	w := &db.Worker{Store: store, Name: db.NewWorkerName(), Handlers: newScreener(store).Handlers(), Poll: *poll}
 	local := make(chan error, 1)
 	go func() {
 		for {
