@@ -251,3 +251,12 @@ func (s *Store) openCase(ctx context.Context, tx pgx.Tx, a cohort.Actor, pid int
 	snap.WeeksAdded = nums
 	return audit(ctx, tx, a, "case.open", "case", strconv.FormatInt(c.ID, 10), nil, snap)
 }
+
+// CaseSync is the after-screen hook that opens and extends follow-up cases
+// from the results of the active protocol, as the system.
+func CaseSync(s *Store) AfterScreen {
+	return func(ctx context.Context, protocolID int, participantIDs []int64) error {
+		_, _, err := s.SyncCases(ctx, cohort.System, protocolID, participantIDs)
+		return err
+	}
+}

@@ -58,6 +58,10 @@ type ImportOptions struct {
 	// Budget bounds the memory holding readings before they are written
 	// (the grouper may use about twice this). Zero means 64 MiB.
 	Budget int
+	// NoScreening leaves out the background screening job that an import
+	// otherwise queues for the participants whose data changed (the demo
+	// loader screens at once instead).
+	NoScreening bool
 }
 
 // ReasonCount is how many rows were refused for one reason, with the first
@@ -335,6 +339,19 @@ func (s *Store) importTx(ctx context.Context, a cohort.Actor, cr *countingReader
 			rep.Participants = append(rep.Participants, id)
 		}
 		sort.Slice(rep.Participants, func(i, j int) bool { return rep.Participants[i] < rep.Participants[j] })
+		// Screening of the changed participants is queued in the same
+		// transaction: it exists exactly when the data does. Before any
+		// protocol is stored there is nothing to screen with; activating the
+		// first one offers to screen everyone.
+		var haveProtocol bool
+		if err := tx.QueryRow(ctx, `SELECT EXISTS (SELECT 1 FROM protocols WHERE active)`).Scan(&haveProtocol); err != nil {
+			return err
+		}
+		if len(rep.Participants) > 0 && !o.NoScreening && haveProtocol {
+			if _, err := enqueueScreen(ctx, tx, rep.Participants, 0); err != nil {
+				return err
+			}
+		}
 		if _, err := tx.Exec(ctx, `UPDATE imports SET status = 'done', file_sha256 = decode($2, 'hex'), rows_total = $3, accepted = $4,
 			rejected = $5, duplicates = $6, reasons = $7, finished_at = $8, bytes_read = $9, size_bytes = greatest(size_bytes, $9),
 			message = $10 WHERE id = $1`,
@@ -409,29 +426,18 @@ func (s *Store) participantLookup(ctx context.Context) (wear.Lookup, error) {
 	return func(studyID string) (wear.Participant, bool) { p, ok := m[studyID]; return p, ok }, nil
 }
 
-// ActiveProtocol returns the active screening protocol's id and parameters, or
-// id 0 and the defaults before any protocol is stored.
-func (s *Store) ActiveProtocol(ctx context.Context) (int, screen.Protocol, error) {
-	var id int
-	var params []byte
-	err := s.pool.QueryRow(ctx, `SELECT id, params FROM protocols WHERE active`).Scan(&id, &params)
-	if errors.Is(err, pgx.ErrNoRows) {
-		return 0, screen.DefaultProtocol(), nil
-	}
-	if err != nil {
-		return 0, screen.Protocol{}, mapErr("active protocol", err)
-	}
-	var p screen.Protocol
-	if err := json.Unmarshal(params, &p); err != nil {
-		return 0, p, fmt.Errorf("db: protocol %d: %w", id, err)
-	}
-	return id, p, nil
-}
-
+// plausibleBPM is the active protocol's plausible heart-rate range, or the
+// default protocol's before any protocol is stored.
 func (s *Store) plausibleBPM(ctx context.Context) (int32, int32, error) {
-	_, p, err := s.ActiveProtocol(ctx)
-	if err != nil {
+	var p screen.Protocol
+	pv, err := s.ActiveProtocol(ctx)
+	switch {
+	case errors.Is(err, cohort.ErrNotFound):
+		p = screen.DefaultProtocol()
+	case err != nil:
 		return 0, 0, err
+	default:
+		p = pv.Params
 	}
 	if p.MinBPM <= 0 || p.MaxBPM <= p.MinBPM {
 		d := screen.DefaultProtocol()

@@ -56,7 +56,7 @@ func benchCSV(participants int) (string, int) {
 	return b.String(), rows
 }
 
-func benchStore(b *testing.B, participants int) *db.Store {
+func importBenchStore(b *testing.B, participants int) *db.Store {
 	b.Helper()
 	s := db.New(dbtest.Pool(b), nil)
 	ctx := context.Background()
@@ -100,7 +100,7 @@ func BenchmarkImportVersusCopy(b *testing.B) {
 	var oursBytes, copyBytes int64
 	for i := 0; i < b.N; i++ {
 		b.StopTimer()
-		s := benchStore(b, participants)
+		s := importBenchStore(b, participants)
 		_, err := s.Pool().Exec(ctx, `CREATE TABLE naive_readings (participant_id bigint, t bigint, kind smallint, value integer, end_ms bigint)`)
 		if err != nil {
 			b.Fatal(err)

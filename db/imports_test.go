@@ -224,3 +224,24 @@ func TestBytesPerReadingIsCompact(t *testing.T) {
 		t.Fatalf("%.1f bytes per reading", perReading)
 	}
 }
+
+func TestImportQueuesScreeningOfChangedParticipants(t *testing.T) {
+	s := newStore(t)
+	seedTwo(t, s)
+	if _, err := s.EnsureDefaultProtocol(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	importString(t, s, "a.csv", readingsCSV([]string{"P-2"}, 100, 0), 0)
+	var jobs int
+	var payload string
+	s.Pool().QueryRow(context.Background(), `SELECT count(*), max(payload::text) FROM jobs WHERE state = 'queued'`).Scan(&jobs, &payload)
+	if jobs != 1 || !strings.Contains(payload, "[2]") {
+		t.Fatalf("queued %d jobs, payload %s; want one job for participant 2", jobs, payload)
+	}
+	// Importing the same file again changes nothing, so queues nothing.
+	importString(t, s, "a.csv", readingsCSV([]string{"P-2"}, 100, 0), 0)
+	s.Pool().QueryRow(context.Background(), `SELECT count(*) FROM jobs`).Scan(&jobs)
+	if jobs != 1 {
+		t.Fatalf("a re-import queued another job (%d jobs)", jobs)
+	}
+}

@@ -52,4 +52,5 @@ var (
 	deidExport = allow(cohort.Investigator, cohort.Admin)                                     // de-identified dataset export
 	referrals  = allow(cohort.Coordinator, cohort.Investigator)                               // referral summaries
 	adminOnly  = allow(cohort.Admin)
+	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold explorer: investigators weigh, admins set protocols
 )

@@ -127,8 +127,6 @@ func (s *Server) importPart(w http.ResponseWriter, r *http.Request, part *multip
 		if errors.As(err, &mbe) {
 			return uploadErr(err)
 		}
-	} else {
-		s.afterImport(r.Context(), rep)
 	}
 	http.Redirect(w, r, fmt.Sprintf("/imports/%d", rep.ID), http.StatusSeeOther)
 	return nil

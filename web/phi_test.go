@@ -85,14 +85,14 @@ func TestMonitorSeesNoPHI(t *testing.T) {
 
 	monitor := a.signIn(cohort.Monitor)
 	pages := crawl(t, a, monitor, start, 400, func(path, body string) {
-		if leaks := deid.Leaks(body, canaries); len(leaks) > 0 {
+		if leaks := leaksIn(body, canaries); len(leaks) > 0 {
 			t.Errorf("monitor page %s shows PHI: %v", path, leaks)
 		}
 	})
 	t.Logf("monitor crawl: %d pages and downloads", pages)
 	found := 0
 	crawl(t, a, a.signIn(cohort.Coordinator), pids, 10, func(path, body string) {
-		found += len(deid.Leaks(body, canaries))
+		found += len(leaksIn(body, canaries))
 	})
 	if found == 0 {
 		t.Fatal("a coordinator sees no canary either: the test cannot tell a leak")
@@ -107,4 +107,35 @@ func canaryStudyIDs(res seed.Result) []string {
 		}
 	}
 	return out
+}
+
+var (
+	digitsOnly = regexp.MustCompile(`^[0-9]+$`)
+	// Machine data inside a page: chart options and SVG path geometry.
+	machineData = regexp.MustCompile(`(data-chart|d|points|viewBox)="[^"]*"`)
+)
+
+// leaksIn finds canaries in a page. Everywhere, a canary's exact text counts
+// (a number made only of digits - a ZIP code, a phone number's digits - only as
+// a whole number: "03601" inside the timestamp 1759403601000 is not a ZIP
+// code). In the readable part of the page, deid.Leaks also finds reformatted
+// phone numbers and dates; chart data and SVG geometry are left out of that
+// looser search, where runs of unrelated numbers would match by chance.
+func leaksIn(text string, canaries []string) []string {
+	var out []string
+	var words []string
+	for _, c := range canaries {
+		if digitsOnly.MatchString(c) {
+			if regexp.MustCompile(`(^|[^0-9])` + c + `($|[^0-9])`).MatchString(text) {
+				out = append(out, c)
+			}
+			continue
+		}
+		if strings.Contains(text, c) {
+			out = append(out, c)
+			continue
+		}
+		words = append(words, c)
+	}
+	return append(out, deid.Leaks(machineData.ReplaceAllString(text, ""), words)...)
 }

@@ -58,6 +58,10 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/{id}/shipment", coordWork, s.caseShipment},
 		{"POST", "/cases/{id}/return", coordWork, s.caseReturn},
 		{"POST", "/cases/{id}/note", caseWork, s.caseNote},
+		{"GET", "/screening", caseWork, s.screeningJobs},
+		{"GET", "/screening/external", coordWork, s.externalVerdictsForm},
+		{"POST", "/screening/external", coordWork, s.externalVerdictsImport},
+		{"GET", "/explorer", tuning, s.explorer},
 
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},
@@ -69,6 +73,11 @@ func (s *Server) routes() []route {
 		{"GET", "/admin/audit.csv", adminOnly, s.auditCSV},
 		{"GET", "/admin/study", adminOnly, s.studySettings},
 		{"POST", "/admin/study", adminOnly, s.studySettingsSave},
+		{"GET", "/admin/protocols", adminOnly, s.protocolsList},
+		{"POST", "/admin/protocols", adminOnly, s.protocolCreate},
+		{"GET", "/admin/protocols/{id}", adminOnly, s.protocolShow},
+		{"GET", "/admin/protocols/{id}/new", adminOnly, s.protocolNew},
+		{"POST", "/admin/protocols/{id}/activate", adminOnly, s.protocolActivate},
 	}
 }
 

@@ -34,6 +34,7 @@ type Store interface {
 	progressStore
 	caseStore
 	studyStore
+	screeningStore
 }
 
 // Config is what the server is built from.
@@ -127,6 +128,7 @@ var areas = []area{
 	{"home", "Overview", "/", "h"},
 	{"triage", "Triage", "/triage", "t"},
 	{"participants", "Participants", "/participants", "p"},
+	{"screening", "Screening", "/screening", "s"},
 	{"cases", "Cases", "/cases", "c"},
 	{"confirmations", "Confirmations", "/confirmations", "e"},
 	{"progress", "Progress", "/progress", "g"},

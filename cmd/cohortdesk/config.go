@@ -29,6 +29,7 @@ type serverConfig struct {
 	TLSCert         string
 	TLSKey          string
 	Secret          string
+	Workers         int
 }
 
 // bind registers the flags, with defaults taken from the environment.
@@ -43,6 +44,7 @@ func (c *serverConfig) bind(fs *flag.FlagSet, getenv func(string) string, defaul
 	fs.StringVar(&c.TrustedProxies, "trusted-proxies", getenv("COHORTDESK_TRUSTED_PROXIES"), "comma-separated CIDRs of reverse proxies whose X-Forwarded-For is believed; when set, cookies are marked Secure (env COHORTDESK_TRUSTED_PROXIES)")
 	fs.StringVar(&c.TLSCert, "tls-cert", getenv("COHORTDESK_TLS_CERT"), "serve HTTPS with this certificate file (env COHORTDESK_TLS_CERT)")
 	fs.StringVar(&c.TLSKey, "tls-key", getenv("COHORTDESK_TLS_KEY"), "key file of -tls-cert (env COHORTDESK_TLS_KEY)")
+	fs.IntVar(&c.Workers, "workers", envInt(getenv, "COHORTDESK_WORKERS", 1), "background job workers in this instance (screening after imports); 0 leaves the queue to other instances (env COHORTDESK_WORKERS)")
 	fs.StringVar(&c.Secret, "secret", getenv("COHORTDESK_SECRET"), "deployment secret keying the pseudonymous referral codes, 32+ characters (env COHORTDESK_SECRET)")
 }
 
@@ -89,6 +91,9 @@ func (c *serverConfig) validate() error {
 	}
 	if c.Secret != "" && len(c.Secret) < 32 {
 		return fmt.Errorf("config: -secret is %d characters; use at least 32 random characters", len(c.Secret))
+	}
+	if c.Workers < 0 || c.Workers > 64 {
+		return fmt.Errorf("config: -workers %d: want 0 to 64", c.Workers)
 	}
 	if _, err := c.proxies(); err != nil {
 		return err

@@ -65,6 +65,11 @@ func runDemo(ctx context.Context, e env, args []string) error {
 		return err
 	}
 	store := db.New(pool, nil)
+	// The loader screens what it loads (newScreener(store).ScreenNow), so the
+	// protocol must exist first.
+	if _, err := store.EnsureDefaultProtocol(ctx); err != nil {
+		return err
+	}
 	loaded, err := seedDemo(ctx, store, demoOptions{Seed: *seed, Participants: *participants, Log: log})
 	if err != nil {
 		return fmt.Errorf("demo: load the fictional cohort: %w", err)

@@ -59,9 +59,6 @@ func runImport(ctx context.Context, e env, args []string) error {
 			failed++
 			continue
 		}
-		if err := enqueueAfterImport(ctx, store, rep); err != nil {
-			fmt.Fprintf(e.stderr, "  screening not queued: %v\n", err)
-		}
 	}
 	if failed > 0 {
 		return fmt.Errorf("import: %d of %d files refused; nothing from them was stored", failed, fs.NArg())
@@ -121,7 +118,7 @@ func printReport(e env, path string, rep db.ImportReport, err error) {
 	if rep.Rejected > 0 {
 		fmt.Fprintf(e.stdout, "  refused rows are kept; download them from /imports/%d in the app\n", rep.ID)
 	}
+	if len(rep.Participants) > 0 {
+		fmt.Fprintf(e.stdout, "  screening of %d participants is queued; a running server's workers take it\n", len(rep.Participants))
+	}
 }
-
-// enqueueAfterImport queues background screening of the changed participants.
-func enqueueAfterImport(ctx context.Context, store *db.Store, rep db.ImportReport) error { return nil }

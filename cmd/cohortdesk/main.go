@@ -44,6 +44,7 @@ func commands() []command {
 		{"migrate", "apply database migrations (up) or list them (status) on DATABASE_URL", runMigrate},
 		{"import", "import wear-data files (readings CSV, FHIR R4 Bundles) into DATABASE_URL", runImport},
 		{"example-data", "write the fictional study's wear data as a readings CSV (to try the importer)", runExampleData},
+		{"screen", "screen stored wear data again with a chosen protocol version, showing progress", runScreen},
 		{"user", "add a staff account (e.g. the first administrator), reset a password, list accounts", runUser},
 		{"healthcheck", "probe a running server (for container health checks)", runHealthcheck},
 	}

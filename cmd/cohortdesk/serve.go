@@ -51,9 +51,17 @@ func runServe(ctx context.Context, e env, args []string) error {
 	})
 }
 
-// serveApp runs the web server until ctx ends, then shuts it down gracefully.
+// serveApp runs the web server and the background workers until ctx ends,
+// then shuts both down gracefully.
 func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *slog.Logger, demoNote string, ready func(string)) error {
 	store := db.New(pool, nil)
+	active, err := store.EnsureDefaultProtocol(ctx)
+	if err != nil {
+		return err
+	}
+	log.Info("screening protocol", "active", active.Label())
+	stopWorkers := startWorkers(ctx, store, cfg.Workers, log)
+	defer stopWorkers()
 	proxies, err := cfg.proxies()
 	if err != nil {
 		return err

@@ -111,9 +111,12 @@ func DefaultProtocol() Protocol {
 			// ours, illustrative: dense readings (exercise-rate sampling or
 			// continuous modes) are needed to judge a 5-minute window.
 			{Minutes: 5, MASDThreshold: 8, MaxGapSeconds: 60, MinReadings: 5, MaxSteps: 50, RunLength: 6, MinShare: 0.10},
-			// ours, illustrative: at-rest sampling every few minutes can fill
-			// a 30-minute window.
-			{Minutes: 30, MASDThreshold: 7, MaxGapSeconds: 300, MinReadings: 6, MaxSteps: 300, RunLength: 2, MinShare: 0.10},
+			// ours, illustrative: at-rest sampling every few minutes (gaps up
+			// to 15 minutes) fills a 30-minute window with 3 or more readings.
+			// The threshold (9 bpm) and run (3 windows, 90 minutes) were picked
+			// on our own synthetic demo cohort so that its few AF weeks flag and
+			// ordinary weeks mostly do not; that says nothing about real people.
+			{Minutes: 30, MASDThreshold: 9, MaxGapSeconds: 900, MinReadings: 3, MaxSteps: 300, RunLength: 3, MinShare: 0.10},
 		},
 		MinWearHours: 24, // ours, illustrative
 		RR: RRRule{

@@ -26,7 +26,7 @@ func TestProtocolValidate(t *testing.T) {
 		{"min bpm zero", func(p *Protocol) { p.MinBPM = 0 }, []string{"min_bpm"}},
 		{"bounds crossed", func(p *Protocol) { p.MaxBPM = 20 }, []string{"max_bpm"}},
 		{"window minutes", func(p *Protocol) { p.Windows[1].Minutes = 0 }, []string{"windows[1].minutes"}},
-		{"window repeated", func(p *Protocol) { p.Windows[1].Minutes = 5 }, []string{"windows[1].minutes"}},
+		{"window repeated", func(p *Protocol) { p.Windows[1].Minutes = 5; p.Windows[1].MaxGapSeconds = 60 }, []string{"windows[1].minutes"}},
 		{"threshold", func(p *Protocol) { p.Windows[0].MASDThreshold = math.NaN() }, []string{"windows[0].masd_threshold"}},
 		{"gap beyond window", func(p *Protocol) { p.Windows[0].MaxGapSeconds = 301 }, []string{"windows[0].max_gap_seconds"}},
 		{"one reading", func(p *Protocol) { p.Windows[0].MinReadings = 1 }, []string{"windows[0].min_readings"}},

@@ -40,6 +40,7 @@ type Result struct {
 	Readings     int64
 	Participants int
 	ImportID     int64
+	Screened     db.ScreenSummary
 	Timings      map[string]time.Duration
 }
 
@@ -102,6 +103,17 @@ func Load(ctx context.Context, store *db.Store, o Options) (Result, error) {
 		return res, err
 	}
 	step("import of deliberately bad rows", t2)
+
+	t3 := time.Now()
+	if _, err := store.EnsureDefaultProtocol(ctx); err != nil {
+		return res, err
+	}
+	sum, err := db.NewScreener(store, db.CaseSync(store)).ScreenNow(ctx, nil, 0, nil)
+	if err != nil {
+		return res, fmt.Errorf("seed: screening: %w", err)
+	}
+	res.Screened = sum
+	step("screening and case opening", t3)
 	return res, nil
 }
 
@@ -203,7 +215,7 @@ func importReadings(ctx context.Context, store *db.Store, a cohort.Actor, st *de
 		}
 		pw.CloseWithError(w.Flush())
 	}()
-	rep, err := store.ImportReadings(ctx, a, pr, db.ImportOptions{Kind: db.ImportReadingsCSV, FileName: "demo-wear-data.csv"})
+	rep, err := store.ImportReadings(ctx, a, pr, db.ImportOptions{Kind: db.ImportReadingsCSV, FileName: "demo-wear-data.csv", NoScreening: true})
 	pr.Close()
 	if err != nil {
 		return rep, fmt.Errorf("seed: wear data: %w", err)
@@ -225,7 +237,7 @@ func importBadRows(ctx context.Context, store *db.Store, a cohort.Actor, st *dem
 		}
 		pw.CloseWithError(w.Flush())
 	}()
-	rep, err := store.ImportReadings(ctx, a, pr, db.ImportOptions{Kind: db.ImportReadingsCSV, FileName: "demo-late-upload-with-faults.csv"})
+	rep, err := store.ImportReadings(ctx, a, pr, db.ImportOptions{Kind: db.ImportReadingsCSV, FileName: "demo-late-upload-with-faults.csv", NoScreening: true})
 	pr.Close()
 	if err != nil {
 		return rep, fmt.Errorf("seed: bad rows: %w", err)

@@ -1,0 +1,227 @@
+package web
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"net/http"
+	"strconv"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/screen"
+	"cohortdesk/db"
+	"cohortdesk/views"
+	"cohortdesk/views/components"
+
+	"github.com/go-echarts/go-echarts/v2/charts"
+	"github.com/go-echarts/go-echarts/v2/opts"
+)
+
+// Limits that keep the heart-rate chart light in the page: above maxHRPoints
+// readings the week is drawn as means over hrBucket, and at most maxAreas
+// stretches of irregular windows are shaded.
+const (
+	maxHRPoints = 5000
+	hrBucketMs  = 2 * 60_000
+	maxAreas    = 400
+)
+
+// participantCharts fills the screening parts of the participant page: the
+// heart rate of the chosen week with irregular windows shaded, the weekly
+// screening metrics, and the verdicts of external models (kept apart from
+// ours). Everything follows the active protocol version.
+func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db.WeekLine, m *views.ParticipantModel) error {
+	ctx := r.Context()
+	ext, err := s.store.ExternalVerdicts(ctx, p.ID)
+	if err != nil {
+		return err
+	}
+	m.External = externalRows(ext)
+	pv, err := s.store.ActiveProtocol(ctx)
+	if errors.Is(err, cohort.ErrNotFound) {
+		m.ChartNote = "No screening protocol is active yet, so nothing has been screened."
+		return nil
+	}
+	if err != nil {
+		return err
+	}
+	results, err := s.store.ScreenResults(ctx, p.ID, pv.ID)
+	if err != nil {
+		return err
+	}
+	var scripts []string
+	if len(results) > 0 {
+		tc, sc, err := trendChart(results, pv)
+		if err != nil {
+			return err
+		}
+		m.TrendChart, scripts = &tc, append(scripts, sc...)
+	}
+	hasHR := false
+	for _, l := range lines {
+		hasHR = hasHR || (l.Week == m.ChartWeek && l.HRCount > 0)
+	}
+	if hasHR && len(pv.Params.Windows) > 0 {
+		wk, err := s.store.WearWeek(ctx, p, m.ChartWeek)
+		if err != nil {
+			return err
+		}
+		rule := pv.Params.Windows[0]
+		threshold := rule.MASDThreshold
+		for _, res := range results {
+			if res.Week == m.ChartWeek && len(res.Result.Windows) > 0 {
+				threshold = res.Result.Windows[0].Threshold // a personal baseline may have raised it
+			}
+		}
+		hc, sc, n, err := hrChart(&wk, pv.Params, threshold, s.now().UnixMilli())
+		if err != nil {
+			return err
+		}
+		m.HRChart, scripts = &hc, append(scripts, sc...)
+		m.ChartNote = fmt.Sprintf("Shaded: %d-minute windows that %s calls irregular (mean absolute successive difference at or above %s bpm); %d such windows this week. ",
+			rule.Minutes, pv.Label(), strconv.FormatFloat(threshold, 'g', -1, 64), n)
+	} else {
+		m.ChartNote = "No heart-rate readings in this week. "
+	}
+	m.ChartNote += views.IllustrativeNote
+	for _, sc := range scripts {
+		if !contains(m.Page.Scripts, sc) {
+			m.Page.Scripts = append(m.Page.Scripts, sc)
+		}
+	}
+	return nil
+}
+
+func contains(list []string, s string) bool {
+	for _, x := range list {
+		if x == s {
+			return true
+		}
+	}
+	return false
+}
+
+// hrChart draws a week's cleaned heart rate on a time axis with the irregular
+// windows of the protocol's first window size shaded, and returns how many
+// windows were irregular.
+func hrChart(w *cohort.Week, p screen.Protocol, threshold float64, now int64) (components.ChartModel, []string, int, error) {
+	cleaned, _ := screen.Clean(w, p, now)
+	pr := screen.Prepare(&cleaned, p)
+	rule := p.Windows[0]
+	l := int64(rule.Minutes) * 60_000
+	var areas [][]opts.MarkAreaData
+	irregular := 0
+	runStart := int64(-1)
+	closeRun := func(end int64) {
+		if runStart >= 0 && len(areas) < maxAreas {
+			areas = append(areas, []opts.MarkAreaData{{XAxis: runStart}, {XAxis: end}})
+		}
+		runStart = -1
+	}
+	for i, sum := range pr.Summaries(0) {
+		start := cleaned.Start + int64(i)*l
+		if rule.Classify(sum, threshold) == screen.WindowIrregular {
+			irregular++
+			if runStart < 0 {
+				runStart = start
+			}
+			continue
+		}
+		closeRun(start)
+	}
+	closeRun(min(cleaned.End, cleaned.Start+int64(len(pr.Summaries(0)))*l))
+
+	hr := cleaned.HR
+	var pts []opts.LineData
+	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{t, "-"}}) }
+	if hr.Len() <= maxHRPoints {
+		for i, t := range hr.T {
+			if i > 0 && t-hr.T[i-1] > 10*60_000 {
+				gap(t - 1)
+			}
+			pts = append(pts, opts.LineData{Value: []any{t, hr.V[i]}})
+		}
+	} else {
+		// Means over fixed buckets aligned to the week's start.
+		var sum, n int64
+		bucket := int64(-1)
+		flush := func() {
+			if n > 0 {
+				t := cleaned.Start + bucket*hrBucketMs + hrBucketMs/2
+				pts = append(pts, opts.LineData{Value: []any{t, math.Round(float64(sum)/float64(n)*10) / 10}})
+			}
+		}
+		for i, t := range hr.T {
+			b := (t - cleaned.Start) / hrBucketMs
+			if b != bucket {
+				flush()
+				if bucket >= 0 && b-bucket > 5 {
+					gap(cleaned.Start + (bucket+1)*hrBucketMs)
+				}
+				bucket, sum, n = b, 0, 0
+			}
+			sum += int64(hr.V[i])
+			n++
+		}
+		flush()
+	}
+	line := charts.NewLine()
+	line.SetGlobalOptions(
+		charts.WithInitializationOpts(chartInit("hr-chart")),
+		charts.WithAnimation(false),
+		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
+		charts.WithXAxisOpts(opts.XAxis{Type: "time", Min: cleaned.Start, Max: cleaned.End}),
+		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value", Scale: opts.Bool(true)}),
+		charts.WithDataZoomOpts(opts.DataZoom{Type: "inside"}, opts.DataZoom{Type: "slider"}),
+	)
+	line.AddSeries("Heart rate", pts,
+		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+		charts.WithLineStyleOpts(opts.LineStyle{Width: 1}),
+		charts.WithMarkAreaData(areas...),
+		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: "rgba(200, 60, 50, 0.18)"}}),
+	)
+	label := fmt.Sprintf("Heart rate in study week %d with %d irregular %d-minute windows shaded", w.Week, irregular, rule.Minutes)
+	c, sc, err := chartView("hr-chart", label, line, true)
+	return c, sc, irregular, err
+}
+
+// trendChart draws the weekly figures of the first window size: mean MASD and
+// the share of irregular windows, with the threshold for comparison.
+func trendChart(results []db.StoredResult, pv db.ProtocolVersion) (components.ChartModel, []string, error) {
+	var x []string
+	var masd, share, threshold []opts.LineData
+	for _, r := range results {
+		x = append(x, "week "+strconv.Itoa(r.Week))
+		if len(r.Result.Windows) == 0 || r.Result.Windows[0].Usable == 0 {
+			masd = append(masd, opts.LineData{Value: "-"})
+			share = append(share, opts.LineData{Value: "-"})
+		} else {
+			wr := r.Result.Windows[0]
+			masd = append(masd, opts.LineData{Value: math.Round(wr.MeanMASD*100) / 100})
+			share = append(share, opts.LineData{Value: math.Round(wr.Share*1000) / 10})
+		}
+		th := "-"
+		if len(r.Result.Windows) > 0 {
+			th = strconv.FormatFloat(r.Result.Windows[0].Threshold, 'g', -1, 64)
+		}
+		threshold = append(threshold, opts.LineData{Value: th})
+	}
+	minutes := 0
+	if len(pv.Params.Windows) > 0 {
+		minutes = pv.Params.Windows[0].Minutes
+	}
+	line := charts.NewLine()
+	line.SetGlobalOptions(
+		charts.WithInitializationOpts(chartInit("trend-chart")),
+		charts.WithAnimation(false),
+		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Bottom: "0"}),
+		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value"}),
+	)
+	line.ExtendYAxis(opts.YAxis{Name: "% irregular", Type: "value", Min: 0, Max: 100, Position: "right"})
+	line.SetXAxis(x).
+		AddSeries(fmt.Sprintf("Mean MASD, %d-min windows (bpm)", minutes), masd).
+		AddSeries("Threshold (bpm)", threshold, charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})).
+		AddSeries("Irregular windows (%)", share, charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1}))
+	return chartView("trend-chart", fmt.Sprintf("Weekly mean MASD and share of irregular windows under %s", pv.Label()), line, false)
+}

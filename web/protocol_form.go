@@ -1,0 +1,282 @@
+package web
+
+import (
+	"bytes"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"reflect"
+	"strconv"
+	"strings"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/screen"
+)
+
+// paramLeaf is one editable value of a protocol, named by its JSON path, the
+// same path Protocol.Validate and Protocol.Diff use, so a message lands beside
+// its own input.
+type paramLeaf struct {
+	Path  string
+	Kind  string // "int", "float" or "bool"
+	Value string
+}
+
+// protocolLeaves lists every value of p in stored field order, by walking the
+// struct through its JSON tags: fields added to the protocol later appear in
+// the form without edits here.
+func protocolLeaves(p screen.Protocol) []paramLeaf {
+	var out []paramLeaf
+	walkLeaves(reflect.ValueOf(p), "", &out)
+	return out
+}
+
+func jsonName(f reflect.StructField) (name string, inline, skip bool) {
+	tag := f.Tag.Get("json")
+	if tag == "-" || !f.IsExported() {
+		return "", false, true
+	}
+	name, _, _ = strings.Cut(tag, ",")
+	if name == "" && f.Anonymous && f.Type.Kind() == reflect.Struct {
+		return "", true, false
+	}
+	if name == "" {
+		name = f.Name
+	}
+	return name, false, false
+}
+
+func join(prefix, name string) string {
+	if prefix == "" {
+		return name
+	}
+	return prefix + "." + name
+}
+
+func walkLeaves(v reflect.Value, prefix string, out *[]paramLeaf) {
+	switch v.Kind() {
+	case reflect.Struct:
+		t := v.Type()
+		for i := range t.NumField() {
+			name, inline, skip := jsonName(t.Field(i))
+			switch {
+			case skip:
+			case inline:
+				walkLeaves(v.Field(i), prefix, out)
+			default:
+				walkLeaves(v.Field(i), join(prefix, name), out)
+			}
+		}
+	case reflect.Slice, reflect.Array:
+		for i := range v.Len() {
+			walkLeaves(v.Index(i), prefix+"["+strconv.Itoa(i)+"]", out)
+		}
+	case reflect.Bool:
+		*out = append(*out, paramLeaf{Path: prefix, Kind: "bool", Value: strconv.FormatBool(v.Bool())})
+	case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64:
+		*out = append(*out, paramLeaf{Path: prefix, Kind: "int", Value: strconv.FormatInt(v.Int(), 10)})
+	case reflect.Float32, reflect.Float64:
+		*out = append(*out, paramLeaf{Path: prefix, Kind: "float", Value: strconv.FormatFloat(v.Float(), 'g', -1, 64)})
+	}
+}
+
+// setLeaf stores the text of one form input into the protocol at path; the
+// error is the message to show beside the input.
+func setLeaf(p *screen.Protocol, path, text string) error {
+	v := reflect.ValueOf(p).Elem()
+	f, err := locate(v, path)
+	if err != nil {
+		return err
+	}
+	text = strings.TrimSpace(text)
+	switch f.Kind() {
+	case reflect.Bool:
+		switch strings.ToLower(text) {
+		case "true", "yes", "on":
+			f.SetBool(true)
+		case "false", "no", "":
+			f.SetBool(false)
+		default:
+			return errors.New("choose yes or no")
+		}
+	case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64:
+		n, err := strconv.ParseInt(text, 10, 64)
+		if err != nil || f.OverflowInt(n) {
+			return errors.New("enter a whole number")
+		}
+		f.SetInt(n)
+	case reflect.Float32, reflect.Float64:
+		x, err := strconv.ParseFloat(text, 64)
+		if err != nil {
+			return errors.New("enter a number, e.g. 7.5")
+		}
+		f.SetFloat(x)
+	default:
+		return fmt.Errorf("%s cannot be edited here", path)
+	}
+	return nil
+}
+
+// locate finds the settable value at a JSON path such as "windows[1].min_share"
+// or "rr.segment_beats".
+func locate(v reflect.Value, path string) (reflect.Value, error) {
+	for part := range strings.SplitSeq(path, ".") {
+		name, idx, hasIdx := strings.Cut(part, "[")
+		f, ok := fieldByJSON(v, name)
+		if !ok {
+			return reflect.Value{}, fmt.Errorf("no parameter %s", path)
+		}
+		v = f
+		if hasIdx {
+			i, err := strconv.Atoi(strings.TrimSuffix(idx, "]"))
+			if err != nil || v.Kind() != reflect.Slice || i < 0 || i >= v.Len() {
+				return reflect.Value{}, fmt.Errorf("no parameter %s", path)
+			}
+			v = v.Index(i)
+		}
+	}
+	return v, nil
+}
+
+func fieldByJSON(v reflect.Value, name string) (reflect.Value, bool) {
+	if v.Kind() != reflect.Struct {
+		return reflect.Value{}, false
+	}
+	t := v.Type()
+	for i := range t.NumField() {
+		n, inline, skip := jsonName(t.Field(i))
+		switch {
+		case skip:
+		case inline:
+			if f, ok := fieldByJSON(v.Field(i), name); ok {
+				return f, true
+			}
+		case n == name:
+			return v.Field(i), true
+		}
+	}
+	return reflect.Value{}, false
+}
+
+// cloneProtocol copies p so edits never reach the original's window slice.
+func cloneProtocol(p screen.Protocol) screen.Protocol {
+	q := p
+	q.Windows = append([]screen.WindowRule(nil), p.Windows...)
+	return q
+}
+
+// protocolFromForm applies the submitted inputs ("p." + path) to a copy of
+// base. Inputs left out keep the base's value. It returns the edited protocol,
+// the submitted texts by path (to show the form again) and the inputs that
+// could not be read.
+func protocolFromForm(base screen.Protocol, get func(string) (string, bool)) (screen.Protocol, map[string]string, map[string]string) {
+	p := cloneProtocol(base)
+	vals := map[string]string{}
+	errs := map[string]string{}
+	for _, l := range protocolLeaves(base) {
+		text, ok := get("p." + l.Path)
+		if !ok {
+			vals[l.Path] = l.Value
+			continue
+		}
+		vals[l.Path] = text
+		if err := setLeaf(&p, l.Path, text); err != nil {
+			errs[l.Path] = err.Error()
+		}
+	}
+	return p, vals, errs
+}
+
+// decodeProtocolJSON reads parameters an administrator typed as JSON. Unknown
+// fields are refused, since a misspelt name would otherwise be ignored and the
+// old value silently kept; problems are reported with line and column.
+func decodeProtocolJSON(text string) (screen.Protocol, error) {
+	var p screen.Protocol
+	dec := json.NewDecoder(strings.NewReader(text))
+	dec.DisallowUnknownFields()
+	fail := func(msg string) (screen.Protocol, error) {
+		return p, &cohort.ValidationError{Fields: map[string]string{"params": msg}}
+	}
+	if err := dec.Decode(&p); err != nil {
+		var syn *json.SyntaxError
+		var typ *json.UnmarshalTypeError
+		switch {
+		case errors.As(err, &syn):
+			line, col := lineCol(text, syn.Offset)
+			return fail(fmt.Sprintf("not valid JSON near line %d, column %d: %s", line, col, strings.TrimPrefix(syn.Error(), "json: ")))
+		case errors.As(err, &typ):
+			line, col := lineCol(text, typ.Offset)
+			return fail(fmt.Sprintf("line %d, column %d: %s needs a %s, not a JSON %s", line, col, typ.Field, typ.Type, typ.Value))
+		case errors.Is(err, io.EOF), errors.Is(err, io.ErrUnexpectedEOF):
+			return fail("the JSON ends too early; give one complete object")
+		}
+		msg := err.Error()
+		if f, ok := strings.CutPrefix(msg, "json: unknown field "); ok {
+			return fail("unknown field " + f + "; the fields are those shown on the version's page")
+		}
+		return fail(msg)
+	}
+	if dec.More() {
+		return fail("there is more text after the closing brace; give one JSON object")
+	}
+	return p, nil
+}
+
+func lineCol(text string, off int64) (int, int) {
+	off = max(0, min(off, int64(len(text))))
+	before := text[:off]
+	return strings.Count(before, "\n") + 1, int(off) - strings.LastIndex(before, "\n")
+}
+
+// protocolJSON formats parameters indented, in stored field order.
+func protocolJSON(p screen.Protocol) string {
+	b, err := json.Marshal(p)
+	if err != nil {
+		return ""
+	}
+	var out bytes.Buffer
+	if err := json.Indent(&out, b, "", "  "); err != nil {
+		return string(b)
+	}
+	return out.String()
+}
+
+// paramLabels are the words shown beside each parameter, keyed by the last
+// part of its path.
+var paramLabels = map[string]string{
+	"min_bpm":              "Lowest plausible heart rate (bpm)",
+	"max_bpm":              "Highest plausible heart rate (bpm)",
+	"min_wear_hours":       "Usable wear a week needs before it is called (hours)",
+	"minutes":              "Window length (minutes)",
+	"masd_threshold":       "Irregular when the mean absolute successive difference is at least (bpm)",
+	"max_gap_seconds":      "Longest gap between readings in a usable window (seconds)",
+	"min_readings":         "Fewest readings in a usable window",
+	"max_steps":            "Most steps in a usable window",
+	"run_length":           "Positive after this many irregular windows in a row (0 turns it off)",
+	"min_share":            "Positive when at least this share of usable windows is irregular (0 to 1; 0 turns it off)",
+	"rr.enabled":           "Use beat-to-beat (RR) intervals when the watch supplies them",
+	"max_join_error_ms":    "Largest timing mismatch that still joins two beats (ms)",
+	"min_af_like_segments": "Positive after this many AF-like beat segments",
+	"segment_beats":        "Beats per segment",
+	"nrmssd_min":           "AF-like when normalised RMSSD is above",
+	"entropy_min":          "AF-like when normalised Shannon entropy is above",
+	"bins":                 "Bins for the entropy",
+	"trim":                 "Shortest and longest intervals dropped before the entropy (each)",
+	"tpr_band_sd":          "AF-like when turning points lie within this many SD of a random series",
+	"baseline.enabled":     "Raise thresholds to the participant's own first weeks",
+	"weeks":                "Baseline weeks (K)",
+	"factor":               "Threshold is at least this multiple of the baseline level",
+}
+
+// paramLabel words a parameter path.
+func paramLabel(path string) string {
+	if l, ok := paramLabels[path]; ok {
+		return l
+	}
+	last := path[strings.LastIndex(path, ".")+1:]
+	if l, ok := paramLabels[last]; ok {
+		return l
+	}
+	return path
+}
