@@ -43,14 +43,28 @@ func audit(ctx context.Context, tx pgx.Tx, a cohort.Actor, action, objType, objI
 	if a.UserID != 0 {
 		actorID = &a.UserID
 	}
+	var at any // NULL: the database's clock
+	if clk, ok := ctx.Value(historyClockKey{}).(func() time.Time); ok {
+		at = clk()
+	}
 	_, err = tx.Exec(ctx, `
-		INSERT INTO audit_events (actor_id, actor, action, object_type, object_id, old_value, new_value, client_addr, request_id)
-		VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9)`,
-		actorID, a.Label(), action, objType, objID, oldJ, newJ, a.Addr, a.RequestID)
+		INSERT INTO audit_events (at, actor_id, actor, action, object_type, object_id, old_value, new_value, client_addr, request_id)
+		VALUES (coalesce($10::timestamptz, now()), $1, $2, $3, $4, $5, $6, $7, $8, $9)`,
+		actorID, a.Label(), action, objType, objID, oldJ, newJ, a.Addr, a.RequestID, at)
 	if err != nil {
 		return fmt.Errorf("db: audit %s: %w", action, err)
 	}
 	return nil
+}
+
+type historyClockKey struct{}
+
+// WithHistoryClock marks ctx as entering past events: audit events written
+// under it carry clock's time instead of the database's. Only the demo loader
+// uses it, to lay down a fictional study's history with the times it happened;
+// the application never does.
+func WithHistoryClock(ctx context.Context, clock func() time.Time) context.Context {
+	return context.WithValue(ctx, historyClockKey{}, clock)
 }
 
 func toJSON(v any) ([]byte, error) {

@@ -994,3 +994,19 @@ func attemptsOf(ctx context.Context, tx pgx.Tx, sql string, args ...any) (map[in
 	}
 	return out, rows.Err()
 }
+
+// RescheduleOpenCases recomputes the next action and deadline of every case
+// still being worked from the stored settings, after cases were changed
+// outside the usual edits (the demo loader dating its cases in the past).
+func (s *Store) RescheduleOpenCases(ctx context.Context) (int, error) {
+	st, err := s.StudySettings(ctx)
+	if err != nil {
+		return 0, err
+	}
+	var n int
+	err = s.inTx(ctx, func(tx pgx.Tx) error {
+		n, err = s.rescheduleOpenCases(ctx, tx, st)
+		return err
+	})
+	return n, mapErr("reschedule cases", err)
+}

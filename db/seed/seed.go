@@ -41,6 +41,7 @@ type Result struct {
 	Participants int
 	ImportID     int64
 	Screened     db.ScreenSummary
+	Cases        int
 	Timings      map[string]time.Duration
 }
 
@@ -108,12 +109,26 @@ func Load(ctx context.Context, store *db.Store, o Options) (Result, error) {
 	if _, err := store.EnsureDefaultProtocol(ctx); err != nil {
 		return res, err
 	}
-	sum, err := db.NewScreener(store, db.CaseSync(store)).ScreenNow(ctx, nil, 0, nil)
+	sum, err := db.NewScreener(store, nil).ScreenNow(ctx, nil, 0, nil)
 	if err != nil {
 		return res, fmt.Errorf("seed: screening: %w", err)
 	}
 	res.Screened = sum
-	step("screening and case opening", t3)
+	step("screening", t3)
+
+	t4 := time.Now()
+	byLogin := map[string]db.User{}
+	for _, u := range st.Users {
+		du, err := store.UserForSignIn(ctx, u.Email)
+		if err != nil {
+			return res, err
+		}
+		byLogin[u.Login] = du
+	}
+	if res.Cases, err = followUps(ctx, store, st, byLogin); err != nil {
+		return res, err
+	}
+	step("follow-up history", t4)
 	return res, nil
 }
 

@@ -1,0 +1,225 @@
+package seed
+
+import (
+	"context"
+	"fmt"
+	"sort"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/demo"
+	"cohortdesk/cohort/followup"
+	"cohortdesk/db"
+)
+
+// clock is the demo loader's settable clock: follow-up events are entered with
+// the store's "now" set to when they happened in the fictional study, so the
+// case fields carry those times. (The audit trail keeps its own database
+// clock: it records when the loader entered each event.)
+type clock struct{ t time.Time }
+
+func (c *clock) now() time.Time { return c.t }
+
+// caseEvent is one scripted step of a case, in time order.
+type caseEvent struct {
+	at      time.Time
+	attempt *demo.Attempt
+	move    *demo.Transition
+}
+
+var channelOf = map[demo.Channel]followup.Channel{
+	demo.ChannelPhone:  followup.ChannelPhone,
+	demo.ChannelEmail:  followup.ChannelEmail,
+	demo.ChannelText:   followup.ChannelText,
+	demo.ChannelLetter: followup.ChannelLetter,
+}
+
+var outcomeOf = map[demo.Outcome]followup.Outcome{
+	demo.OutcomeNoAnswer:    followup.OutcomeNoAnswer,
+	demo.OutcomeLeftMessage: followup.OutcomeMessageLeft,
+	demo.OutcomeNoReply:     followup.OutcomeMessageLeft,
+	demo.OutcomeReached:     followup.OutcomeReached,
+	demo.OutcomeDeclined:    followup.OutcomeDeclined,
+}
+
+// flagTime is when the study would have flagged a participant's week: the
+// morning after the week ended (capped at the study's today).
+func flagTime(st *demo.Study, p demo.Participant, week int) time.Time {
+	_, end := cohort.WeekBounds(p.Enrolled, p.Loc, week)
+	opened := end.Add(9 * time.Hour)
+	if latest := st.Today.Add(-time.Hour); opened.After(latest) {
+		opened = latest
+	}
+	return opened
+}
+
+// followUps opens the cases as if the study had been running all along - each
+// participant's cases synced at the morning after their first flagged week -
+// asks the generator for each case's scripted history, and enters it through
+// the case store as the scripted staff member, with the store's clock (and the
+// audit trail's) set to when each step happened.
+func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[string]db.User) (int, error) {
+	clk := &clock{}
+	cs := db.New(store.Pool(), clk.now)
+	ctx = db.WithHistoryClock(ctx, clk.now)
+	pv, err := store.ActiveProtocol(ctx)
+	if err != nil {
+		return 0, err
+	}
+	rows, err := store.Pool().Query(ctx, `SELECT p.id, p.study_id, min(sr.week) FROM screen_results sr JOIN participants p ON p.id = sr.participant_id
+		WHERE sr.protocol_id = $1 AND sr.verdict = 'positive' GROUP BY 1, 2`, pv.ID)
+	if err != nil {
+		return 0, err
+	}
+	type first struct {
+		id   int64
+		when time.Time
+	}
+	var firsts []first
+	for rows.Next() {
+		var id int64
+		var sid string
+		var week int16
+		if err := rows.Scan(&id, &sid, &week); err != nil {
+			rows.Close()
+			return 0, err
+		}
+		if p, ok := st.Participant(sid); ok {
+			firsts = append(firsts, first{id, flagTime(st, p, int(week))})
+		}
+	}
+	if err := rows.Err(); err != nil {
+		return 0, err
+	}
+	sort.Slice(firsts, func(i, j int) bool { return firsts[i].when.Before(firsts[j].when) })
+	for _, f := range firsts {
+		clk.t = f.when
+		if _, _, err := cs.SyncCases(ctx, cohort.System, pv.ID, []int64{f.id}); err != nil {
+			return 0, err
+		}
+	}
+	page, err := store.Cases(ctx, db.CaseFilter{Limit: 10000})
+	if err != nil {
+		return 0, err
+	}
+	var inputs []demo.CaseInput
+	var ids []int64
+	for _, c := range page.Rows {
+		p, ok := st.Participant(c.StudyID)
+		if !ok {
+			continue
+		}
+		// A participant's later episodes were opened with the first; date them
+		// at their own flag time.
+		opened := flagTime(st, p, c.FirstWeek)
+		if !opened.Equal(c.FlaggedAt) {
+			if _, err := store.Pool().Exec(ctx, `UPDATE cases SET flagged_at = $2, created_at = $2 WHERE id = $1`, c.ID, opened); err != nil {
+				return 0, err
+			}
+		}
+		inputs = append(inputs, demo.CaseInput{StudyID: c.StudyID, Week: c.FirstWeek, Opened: opened})
+		ids = append(ids, c.ID)
+	}
+	clk.t = st.Today
+	if _, err := cs.RescheduleOpenCases(ctx); err != nil {
+		return 0, err
+	}
+	plans := st.PlanFollowUps(inputs)
+	for i, f := range plans {
+		if err := playCase(ctx, cs, clk, ids[i], f, users); err != nil {
+			return i, fmt.Errorf("seed: case %d (%s): %w", ids[i], f.Case.StudyID, err)
+		}
+	}
+	return len(plans), nil
+}
+
+func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.FollowUp, users map[string]db.User) error {
+	var evs []caseEvent
+	for i := range f.Attempts {
+		evs = append(evs, caseEvent{at: f.Attempts[i].At, attempt: &f.Attempts[i]})
+	}
+	for i := range f.Transitions {
+		evs = append(evs, caseEvent{at: f.Transitions[i].At, move: &f.Transitions[i]})
+	}
+	sort.SliceStable(evs, func(i, j int) bool { return evs[i].at.Before(evs[j].at) })
+	actor := func(login string) cohort.Actor {
+		if u, ok := users[login]; ok {
+			return u.Actor("", "demo")
+		}
+		return cohort.Actor{Name: "demo loader"}
+	}
+	if owner, ok := users[f.Owner]; ok && len(evs) > 0 {
+		clk.t = evs[0].at.Add(-time.Minute)
+		c, err := cs.Case(ctx, id)
+		if err != nil {
+			return err
+		}
+		if _, err := cs.AssignCase(ctx, actor(f.Owner), id, c.Version, owner.ID); err != nil {
+			return err
+		}
+	}
+	for _, ev := range evs {
+		clk.t = ev.at
+		c, err := cs.Case(ctx, id)
+		if err != nil {
+			return err
+		}
+		switch {
+		case ev.attempt != nil:
+			a := ev.attempt
+			_, err = cs.LogAttempt(ctx, actor(a.By), id, db.AttemptInput{Version: c.Version, Channel: string(channelOf[a.Channel]),
+				Outcome: string(outcomeOf[a.Outcome]), Note: a.Note})
+		case ev.move != nil:
+			err = playMove(ctx, cs, actor(ev.move.By), c, followup.State(ev.move.To), ev.at)
+		}
+		if err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// playMove enters one scripted state change through the action a person would
+// use for it. Moves that attempts make by themselves (first attempt, reached,
+// declined) are already done when their turn comes.
+func playMove(ctx context.Context, cs *db.Store, a cohort.Actor, c db.Case, to followup.State, at time.Time) error {
+	if c.State == to {
+		return nil
+	}
+	day := at.Format("2006-01-02")
+	var err error
+	switch to {
+	case followup.RecorderSent:
+		_, err = cs.RecordShipment(ctx, a, c.ID, c.Version, day, fmt.Sprintf("DM%09d", c.ID*7919%1000000000))
+	case followup.RecordingReceived:
+		_, err = cs.RecordReturn(ctx, a, c.ID, c.Version, day)
+	case followup.OverRead, followup.Referred:
+		// Entered with the recording's over-read and the referral sign-off.
+		reason := ""
+		if to == followup.Referred {
+			reason = "referral summary sent to the participant's physician"
+		}
+		_, err = cs.AdvanceCase(ctx, a, c.ID, to, at, reason)
+	default:
+		if to.Terminal() {
+			_, err = cs.CloseCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: string(to), Reason: closingReason(to)})
+		} else {
+			_, err = cs.MoveCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: string(to)})
+		}
+	}
+	return err
+}
+
+func closingReason(s followup.State) string {
+	switch s {
+	case followup.ClosedNotConfirmed:
+		return "over-read did not show atrial fibrillation"
+	case followup.ClosedUnreachable:
+		return "no answer after the attempts the study allows"
+	case followup.ClosedDeclined:
+		return "participant declined the recording"
+	case followup.ClosedWithdrawn:
+		return "participant withdrew from the study"
+	}
+	return "closed"
+}
