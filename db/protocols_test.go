@@ -118,7 +118,7 @@ func TestCreateProtocolVersionValidatesAndAudits(t *testing.T) {
 	}
 
 	v2 := newVersion(t, s, v1.ID, func(q *screen.Protocol) { q.Windows[0].MASDThreshold = 9.5 })
-	v3 := newVersion(t, s, v1.ID, func(q *screen.Protocol) { q.Windows[1].RunLength = 3 })
+	v3 := newVersion(t, s, v1.ID, func(q *screen.Protocol) { q.Windows[1].RunLength = 5 })
 	if v2.Version != 2 || v3.Version != 3 || v2.BasedOn != v1.ID || v2.Active || v2.Used {
 		t.Fatalf("versions: v2 %+v v3 %+v", v2, v3)
 	}
