@@ -114,6 +114,7 @@ func (s *Store) DataSufficiency(ctx context.Context) ([]SufficiencyWeek, error) 
 		  FROM participants p
 		  CROSS JOIN LATERAL generate_series(0, greatest(0, ($1::date - p.enrolled_on) / 7 - 1)) AS w(n)
 		  WHERE p.enrolled_on + (w.n + 1) * 7 <= coalesce(p.withdrawn_on, $1::date)
+		    AND (w.n < (SELECT follow_up_weeks FROM study WHERE id = 1) OR coalesce((SELECT follow_up_weeks FROM study WHERE id = 1), 0) = 0)
 		)
 		SELECT date_trunc('week', wk.last_day)::date AS monday,
 		       count(*) AS due,
@@ -158,8 +159,10 @@ func (s *Store) SilentParticipants(ctx context.Context, days int) ([]SilentParti
 		FROM participants p JOIN sites st ON st.id = p.site_id
 		LEFT JOIN LATERAL (SELECT max(last_ms) AS ms FROM wear_weeks w WHERE w.participant_id = p.id) last ON true
 		WHERE p.withdrawn_on IS NULL
+		  AND (coalesce((SELECT follow_up_weeks FROM study WHERE id = 1), 0) = 0
+		       OR p.enrolled_on + 7 * (SELECT follow_up_weeks FROM study WHERE id = 1) > $2::date)
 		  AND coalesce(last.ms, extract(epoch FROM p.enrolled_on::timestamptz) * 1000) < $1
-		ORDER BY coalesce(last.ms, 0), p.study_id`, now.Add(-time.Duration(days)*24*time.Hour).UnixMilli())
+		ORDER BY coalesce(last.ms, 0), p.study_id`, now.Add(-time.Duration(days)*24*time.Hour).UnixMilli(), now.UTC())
 	if err != nil {
 		return nil, mapErr("silent participants", err)
 	}

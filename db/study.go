@@ -34,6 +34,7 @@ type StudySettings struct {
 	TimeZone        string
 	ContactRoute    string // generic contact route printed on referral summaries
 	EnrolmentTarget int
+	FollowUpWeeks   int // weeks of wear data per participant; 0: open-ended
 	Service         followup.ServiceLevels
 	EpisodeGapWeeks int
 	ClosureDays     []cohort.Date // days the team does not work, besides weekends; sorted
@@ -112,8 +113,10 @@ func studySettings(ctx context.Context, q rowQuerier) (StudySettings, error) {
 	st := DefaultStudySettings()
 	var raw []byte
 	var days []time.Time
-	err := q.QueryRow(ctx, `SELECT name, time_zone, contact_route, enrolment_target, service_levels, closure_days FROM study WHERE id = 1`).
-		Scan(&st.Name, &st.TimeZone, &st.ContactRoute, &st.EnrolmentTarget, &raw, &days)
+	var fw int16
+	err := q.QueryRow(ctx, `SELECT name, time_zone, contact_route, enrolment_target, follow_up_weeks, service_levels, closure_days FROM study WHERE id = 1`).
+		Scan(&st.Name, &st.TimeZone, &st.ContactRoute, &st.EnrolmentTarget, &fw, &raw, &days)
+	st.FollowUpWeeks = int(fw)
 	if err == pgx.ErrNoRows {
 		return st, nil
 	}
@@ -145,6 +148,7 @@ type StudySettingsInput struct {
 	TimeZone        string
 	ContactRoute    string
 	EnrolmentTarget string
+	FollowUpWeeks   string
 	// followup.ServiceLevels fields, named as the form (and ServiceLevels.Validate) names them
 	FirstContactWorkingDays string
 	MaxAttempts             string
@@ -184,6 +188,12 @@ func (in StudySettingsInput) Parse() (StudySettings, error) {
 	number("enrolment_target", in.EnrolmentTarget, &st.EnrolmentTarget)
 	if _, bad := ve.Fields["enrolment_target"]; !bad && (st.EnrolmentTarget < 0 || st.EnrolmentTarget > 10_000_000) {
 		ve.Add("enrolment_target", "enter a target from 0 to 10,000,000 participants")
+	}
+	if strings.TrimSpace(in.FollowUpWeeks) != "" {
+		number("follow_up_weeks", in.FollowUpWeeks, &st.FollowUpWeeks)
+		if _, bad := ve.Fields["follow_up_weeks"]; !bad && (st.FollowUpWeeks < 0 || st.FollowUpWeeks > 520) {
+			ve.Add("follow_up_weeks", "enter 0 (open-ended) to 520 weeks")
+		}
 	}
 	sl := &st.Service
 	number("first_contact_working_days", in.FirstContactWorkingDays, &sl.FirstContactWorkingDays)
@@ -246,6 +256,7 @@ type studyAudit struct {
 	TimeZone         string                 `json:"time_zone"`
 	ContactRoute     string                 `json:"contact_route"`
 	EnrolmentTarget  int                    `json:"enrolment_target"`
+	FollowUpWeeks    int                    `json:"follow_up_weeks"`
 	Service          followup.ServiceLevels `json:"service_levels"`
 	EpisodeGapWeeks  int                    `json:"episode_gap_weeks"`
 	ClosureDays      []string               `json:"closure_days"`
@@ -254,7 +265,7 @@ type studyAudit struct {
 
 func auditOfStudy(st StudySettings) studyAudit {
 	a := studyAudit{Name: st.Name, TimeZone: st.TimeZone, ContactRoute: st.ContactRoute, EnrolmentTarget: st.EnrolmentTarget,
-		Service: st.Service, EpisodeGapWeeks: st.EpisodeGapWeeks, ClosureDays: []string{}}
+		FollowUpWeeks: st.FollowUpWeeks, Service: st.Service, EpisodeGapWeeks: st.EpisodeGapWeeks, ClosureDays: []string{}}
 	for _, d := range st.ClosureDays {
 		a.ClosureDays = append(a.ClosureDays, d.String())
 	}
@@ -286,11 +297,11 @@ func (s *Store) SaveStudySettings(ctx context.Context, a cohort.Actor, in StudyS
 			days[i] = d.String()
 		}
 		_, err = tx.Exec(ctx, `
-			INSERT INTO study (id, name, time_zone, contact_route, enrolment_target, service_levels, closure_days, updated_at)
-			VALUES (1, $1, $2, $3, $4, $5, $6::date[], now())
+			INSERT INTO study (id, name, time_zone, contact_route, enrolment_target, service_levels, closure_days, follow_up_weeks, updated_at)
+			VALUES (1, $1, $2, $3, $4, $5, $6::date[], $7, now())
 			ON CONFLICT (id) DO UPDATE SET name = $1, time_zone = $2, contact_route = $3, enrolment_target = $4,
-			  service_levels = $5, closure_days = $6::date[], updated_at = now()`,
-			st.Name, st.TimeZone, st.ContactRoute, st.EnrolmentTarget, svc, days)
+			  service_levels = $5, closure_days = $6::date[], follow_up_weeks = $7, updated_at = now()`,
+			st.Name, st.TimeZone, st.ContactRoute, st.EnrolmentTarget, svc, days, st.FollowUpWeeks)
 		if err != nil {
 			return err
 		}

@@ -35,6 +35,13 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 	if p.WithdrawnOn != nil {
 		maxWeek = cohort.StudyWeek(p.EnrolledOn, loc, p.WithdrawnOn.In(loc))
 	}
+	var fw int16
+	if err := s.pool.QueryRow(ctx, `SELECT coalesce((SELECT follow_up_weeks FROM study WHERE id = 1), 0)`).Scan(&fw); err != nil {
+		return nil, mapErr("timeline", err)
+	}
+	if fw > 0 && maxWeek > int(fw)-1 {
+		maxWeek = int(fw) - 1 // weeks after the participant's follow-up are not due
+	}
 	rows, err := s.pool.Query(ctx, `
 		WITH w AS (
 		  SELECT week, sum(n) AS n, sum(n) FILTER (WHERE kind = 1) AS hr, sum(n) FILTER (WHERE kind = 3) AS rr

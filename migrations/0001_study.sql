@@ -16,6 +16,9 @@ CREATE TABLE study (
     -- Days on which the study team does not work, besides weekends.
     closure_days     date[] NOT NULL DEFAULT '{}',
     enrolment_target integer NOT NULL DEFAULT 0 CHECK (enrolment_target >= 0),
+    -- Weeks of wear data each participant gives; 0 means open-ended. After
+    -- them a participant has completed the study: no longer due for data.
+    follow_up_weeks  smallint NOT NULL DEFAULT 0 CHECK (follow_up_weeks BETWEEN 0 AND 520),
     updated_at       timestamptz NOT NULL DEFAULT now()
 );
 

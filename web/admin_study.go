@@ -28,6 +28,7 @@ func studyValues(st db.StudySettings) map[string]string {
 	return map[string]string{
 		"name": st.Name, "time_zone": st.TimeZone, "contact_route": st.ContactRoute,
 		"enrolment_target":           strconv.Itoa(st.EnrolmentTarget),
+		"follow_up_weeks":            strconv.Itoa(st.FollowUpWeeks),
 		"first_contact_working_days": strconv.Itoa(sl.FirstContactWorkingDays),
 		"max_attempts":               strconv.Itoa(sl.MaxAttempts),
 		"give_up_after_days":         strconv.Itoa(sl.GiveUpAfterDays),
@@ -60,7 +61,7 @@ func (s *Server) studySettingsSave(w http.ResponseWriter, r *http.Request) error
 	}
 	f := r.PostForm
 	in := db.StudySettingsInput{Name: f.Get("name"), TimeZone: f.Get("time_zone"), ContactRoute: f.Get("contact_route"),
-		EnrolmentTarget: f.Get("enrolment_target"), FirstContactWorkingDays: f.Get("first_contact_working_days"),
+		EnrolmentTarget: f.Get("enrolment_target"), FollowUpWeeks: f.Get("follow_up_weeks"), FirstContactWorkingDays: f.Get("first_contact_working_days"),
 		MaxAttempts: f.Get("max_attempts"), GiveUpAfterDays: f.Get("give_up_after_days"),
 		RecorderSendWithinDays: f.Get("recorder_send_within_days"), RecordingBackWithinDays: f.Get("recording_back_within_days"),
 		OverReadWithinDays: f.Get("over_read_within_days"), ReferOrCloseWithinDays: f.Get("refer_or_close_within_days"),

@@ -46,11 +46,26 @@ func ageBand(p db.Participant, now time.Time) string {
 	return ageBands.Label(age)
 }
 
-func status(p db.Participant) (string, components.Tone) {
+// status is withdrawn, completed (past the study's weeks of wear data) or
+// active. followUpWeeks 0 means open-ended.
+func status(p db.Participant, followUpWeeks int, now time.Time) (string, components.Tone) {
 	if p.WithdrawnOn != nil {
 		return "withdrawn", components.Neutral
 	}
+	if followUpWeeks > 0 && !cohort.DateOf(now).Before(p.EnrolledOn.AddDays(7*followUpWeeks)) {
+		return "completed", components.Info
+	}
 	return "active", components.OK
+}
+
+// followUpWeeks is the study's weeks of wear data per participant (0 when
+// unset or unreadable: treated as open-ended).
+func (s *Server) followUpWeeks(ctx context.Context) int {
+	st, err := s.store.StudySettings(ctx)
+	if err != nil {
+		return 0
+	}
+	return st.FollowUpWeeks
 }
 
 func sexLabel(s cohort.Sex) string {
@@ -101,9 +116,10 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
 		CanEnrol: coordWork.allows(role(r)), Total: page.Total, Active: page.Active, Withdrawn: page.Withdrawn}
 	now := s.now()
+	fw := s.followUpWeeks(ctx)
 	ids := make([]int64, 0, len(page.Rows))
 	for _, p := range page.Rows {
-		st, tone := status(p.Participant)
+		st, tone := status(p.Participant, fw, now)
 		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: sexLabel(p.Sex),
 			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
 		if p.LastPositive != nil {
@@ -152,13 +168,14 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 	}
 	_ = cw.Write(head)
 	now := s.now()
+	fw := s.followUpWeeks(ctx)
 	for {
 		page, err := s.store.Participants(ctx, f)
 		if err != nil {
 			return err
 		}
 		for _, p := range page.Rows {
-			st, _ := status(p.Participant)
+			st, _ := status(p.Participant, fw, now)
 			withdrawn, last := "", ""
 			if p.WithdrawnOn != nil {
 				withdrawn = p.WithdrawnOn.String()
@@ -216,7 +233,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	st, tone := status(p)
+	st, tone := status(p, s.followUpWeeks(ctx), s.now())
 	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st, StatusTone: tone,
 		CanEdit: coordWork.allows(role(r)), CanNote: caseWork.allows(role(r)), Withdrawn: p.WithdrawnOn != nil}
 	m.Facts = []views.Fact{
