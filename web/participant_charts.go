@@ -50,8 +50,9 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 		return err
 	}
 	var scripts []string
+	wi := mainWindow(results, pv)
 	if len(results) > 0 {
-		tc, sc, err := trendChart(results, pv)
+		tc, sc, err := trendChart(results, pv, wi)
 		if err != nil {
 			return err
 		}
@@ -66,14 +67,14 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 		if err != nil {
 			return err
 		}
-		rule := pv.Params.Windows[0]
+		rule := pv.Params.Windows[wi]
 		threshold := rule.MASDThreshold
 		for _, res := range results {
-			if res.Week == m.ChartWeek && len(res.Result.Windows) > 0 {
-				threshold = res.Result.Windows[0].Threshold // a personal baseline may have raised it
+			if res.Week == m.ChartWeek && len(res.Result.Windows) > wi {
+				threshold = res.Result.Windows[wi].Threshold // a personal baseline may have raised it
 			}
 		}
-		hc, sc, n, err := hrChart(&wk, pv.Params, threshold, s.now().UnixMilli())
+		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli())
 		if err != nil {
 			return err
 		}
@@ -92,6 +93,25 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 	return nil
 }
 
+// mainWindow picks the window size the charts show: the one with the most
+// usable windows over the participant's weeks, since a watch that samples every
+// few minutes fills no 5-minute window and a chart of those would be empty.
+func mainWindow(results []db.StoredResult, pv db.ProtocolVersion) int {
+	best, bestUsable := 0, -1
+	for i := range pv.Params.Windows {
+		usable := 0
+		for _, r := range results {
+			if len(r.Result.Windows) > i {
+				usable += r.Result.Windows[i].Usable
+			}
+		}
+		if usable > bestUsable {
+			best, bestUsable = i, usable
+		}
+	}
+	return best
+}
+
 func contains(list []string, s string) bool {
 	for _, x := range list {
 		if x == s {
@@ -102,12 +122,12 @@ func contains(list []string, s string) bool {
 }
 
 // hrChart draws a week's cleaned heart rate on a time axis with the irregular
-// windows of the protocol's first window size shaded, and returns how many
+// windows of the protocol's window size wi shaded, and returns how many
 // windows were irregular.
-func hrChart(w *cohort.Week, p screen.Protocol, threshold float64, now int64) (components.ChartModel, []string, int, error) {
+func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64) (components.ChartModel, []string, int, error) {
 	cleaned, _ := screen.Clean(w, p, now)
 	pr := screen.Prepare(&cleaned, p)
-	rule := p.Windows[0]
+	rule := p.Windows[wi]
 	l := int64(rule.Minutes) * 60_000
 	var areas [][]opts.MarkAreaData
 	irregular := 0
@@ -118,7 +138,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, threshold float64, now int64) (c
 		}
 		runStart = -1
 	}
-	for i, sum := range pr.Summaries(0) {
+	for i, sum := range pr.Summaries(wi) {
 		start := cleaned.Start + int64(i)*l
 		if rule.Classify(sum, threshold) == screen.WindowIrregular {
 			irregular++
@@ -129,7 +149,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, threshold float64, now int64) (c
 		}
 		closeRun(start)
 	}
-	closeRun(min(cleaned.End, cleaned.Start+int64(len(pr.Summaries(0)))*l))
+	closeRun(min(cleaned.End, cleaned.Start+int64(len(pr.Summaries(wi)))*l))
 
 	hr := cleaned.HR
 	var pts []opts.LineData
@@ -185,30 +205,30 @@ func hrChart(w *cohort.Week, p screen.Protocol, threshold float64, now int64) (c
 	return c, sc, irregular, err
 }
 
-// trendChart draws the weekly figures of the first window size: mean MASD and
-// the share of irregular windows, with the threshold for comparison.
-func trendChart(results []db.StoredResult, pv db.ProtocolVersion) (components.ChartModel, []string, error) {
+// trendChart draws the weekly figures of window size wi: mean MASD and the
+// share of irregular windows, with the threshold for comparison.
+func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (components.ChartModel, []string, error) {
 	var x []string
 	var masd, share, threshold []opts.LineData
 	for _, r := range results {
 		x = append(x, "week "+strconv.Itoa(r.Week))
-		if len(r.Result.Windows) == 0 || r.Result.Windows[0].Usable == 0 {
+		if len(r.Result.Windows) <= wi || r.Result.Windows[wi].Usable == 0 {
 			masd = append(masd, opts.LineData{Value: "-"})
 			share = append(share, opts.LineData{Value: "-"})
 		} else {
-			wr := r.Result.Windows[0]
+			wr := r.Result.Windows[wi]
 			masd = append(masd, opts.LineData{Value: math.Round(wr.MeanMASD*100) / 100})
 			share = append(share, opts.LineData{Value: math.Round(wr.Share*1000) / 10})
 		}
 		th := "-"
-		if len(r.Result.Windows) > 0 {
-			th = strconv.FormatFloat(r.Result.Windows[0].Threshold, 'g', -1, 64)
+		if len(r.Result.Windows) > wi {
+			th = strconv.FormatFloat(r.Result.Windows[wi].Threshold, 'g', -1, 64)
 		}
 		threshold = append(threshold, opts.LineData{Value: th})
 	}
 	minutes := 0
-	if len(pv.Params.Windows) > 0 {
-		minutes = pv.Params.Windows[0].Minutes
+	if len(pv.Params.Windows) > wi {
+		minutes = pv.Params.Windows[wi].Minutes
 	}
 	line := charts.NewLine()
 	line.SetGlobalOptions(
