@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"flag"
 	"fmt"
 	"io"
@@ -11,6 +12,9 @@ import (
 	"strconv"
 	"strings"
 	"time"
+
+	"cohortdesk/db"
+	"cohortdesk/migrations"
 )
 
 // serverConfig is the configuration shared by serve and demo. Every field comes
@@ -183,4 +187,21 @@ func redactURL(u string) string {
 		return u[:scheme+3] + name + ":***" + u[at:]
 	}
 	return u
+}
+
+// openStore connects the tools (import, user, screen) to DATABASE_URL and
+// brings the schema up to date, as serve would. close releases the pool.
+func openStore(ctx context.Context, command, url string, conns int32) (store *db.Store, close func(), err error) {
+	if url == "" {
+		return nil, nil, fmt.Errorf("%s: DATABASE_URL is not set (for the demo's database, run the demo and use the DATABASE_URL it prints)", command)
+	}
+	pool, err := db.Open(ctx, url, conns)
+	if err != nil {
+		return nil, nil, err
+	}
+	if _, err := migrations.Up(ctx, pool); err != nil {
+		pool.Close()
+		return nil, nil, err
+	}
+	return db.New(pool, nil), pool.Close, nil
 }

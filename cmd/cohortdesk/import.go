@@ -12,7 +12,6 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 )
 
 // runImport imports wear-data files from the command line, one transaction per
@@ -34,18 +33,11 @@ func runImport(ctx context.Context, e env, args []string) error {
 		fs.Usage()
 		return errors.New("import: name at least one file")
 	}
-	if *url == "" {
-		return errors.New("import: DATABASE_URL is not set")
-	}
-	pool, err := db.Open(ctx, *url, 4)
+	store, closeDB, err := openStore(ctx, "import", *url, 4)
 	if err != nil {
 		return err
 	}
-	defer pool.Close()
-	if _, err := migrations.Up(ctx, pool); err != nil {
-		return err
-	}
-	store := db.New(pool, nil)
+	defer closeDB()
 	actor := cohort.Actor{Name: "command line (" + osUser() + ")"}
 	failed := 0
 	for _, path := range fs.Args() {

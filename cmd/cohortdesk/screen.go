@@ -10,7 +10,6 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 )
 
 // runScreen re-screens stored wear data with a chosen protocol version. It
@@ -36,21 +35,14 @@ func runScreen(ctx context.Context, e env, args []string) error {
 		fs.Usage()
 		return errors.New("screen: give either -all or -participant")
 	}
-	if *url == "" {
-		return errors.New("screen: DATABASE_URL is not set")
-	}
 	if *poll < 10*time.Millisecond {
 		*poll = 10 * time.Millisecond
 	}
-	pool, err := db.Open(ctx, *url, 4)
+	store, closeDB, err := openStore(ctx, "screen", *url, 4)
 	if err != nil {
 		return err
 	}
-	defer pool.Close()
-	if _, err := migrations.Up(ctx, pool); err != nil {
-		return err
-	}
-	store := db.New(pool, nil)
+	defer closeDB()
 	if _, err := store.EnsureDefaultProtocol(ctx); err != nil {
 		return err
 	}

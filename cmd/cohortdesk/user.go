@@ -12,7 +12,6 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 	"cohortdesk/web/auth"
 )
 
@@ -37,18 +36,11 @@ func runUser(ctx context.Context, e env, args []string) error {
 		fs.Usage()
 		return errors.New("user: name one action: add, reset-password or list")
 	}
-	if *url == "" {
-		return errors.New("user: DATABASE_URL is not set")
-	}
-	pool, err := db.Open(ctx, *url, 2)
+	store, closeDB, err := openStore(ctx, "user", *url, 2)
 	if err != nil {
 		return err
 	}
-	defer pool.Close()
-	if _, err := migrations.Up(ctx, pool); err != nil {
-		return err
-	}
-	store := db.New(pool, nil)
+	defer closeDB()
 	actor := cohort.Actor{Name: "command line (" + osUser() + ")"}
 
 	password := func() (string, bool, error) {
