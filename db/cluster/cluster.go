@@ -160,18 +160,26 @@ func Start(ctx context.Context, cfg Config, getenv func(string) string) (*Cluste
 	if err := c.clearStalePID(); err != nil {
 		return nil, err
 	}
-	// A zombie of a killed server can hold the lock file for a moment: retry.
+	// After a crash, a zombie of the old server can hold the lock file, and
+	// its children the shared memory, for a moment: retry.
 	var lastErr error
-	for attempt := 0; attempt < 5; attempt++ {
+	for attempt := 0; attempt < 6; attempt++ {
 		if lastErr = c.start(ctx); lastErr == nil {
 			return c, nil
 		}
-		if !strings.Contains(lastErr.Error(), "lock file") {
+		if !transientStartError(lastErr) {
 			break
 		}
 		time.Sleep(time.Duration(100<<attempt) * time.Millisecond)
 	}
 	return nil, lastErr
+}
+
+// transientStartError reports start failures that a crashed server's leftover
+// processes cause and that pass once they are gone.
+func transientStartError(err error) bool {
+	msg := err.Error()
+	return strings.Contains(msg, "lock file") || strings.Contains(msg, "shared memory block")
 }
 
 // credentialFor looks up the unprivileged user that runs the server for root.
@@ -470,13 +478,15 @@ func (c *Cluster) Stop() error {
 	}
 }
 
-// Kill stops the server without a clean shutdown, as a crash would: for tests
-// of recovery.
+// Kill stops the server and its children without a clean shutdown, as a
+// machine crash would: for tests of recovery.
 func (c *Cluster) Kill() {
 	if c == nil || c.cmd == nil || c.cmd.Process == nil {
 		return
 	}
-	_ = c.cmd.Process.Signal(syscall.SIGKILL)
+	// The server leads its own process group (Setpgid), so this reaches the
+	// backends too.
+	_ = syscall.Kill(-c.cmd.Process.Pid, syscall.SIGKILL)
 	<-c.done
 }
 
@@ -486,9 +496,9 @@ func (c *Cluster) Restart(ctx context.Context) error {
 		return err
 	}
 	var err error
-	for attempt := 0; attempt < 5; attempt++ {
-		if err = c.start(ctx); err == nil {
-			return nil
+	for attempt := 0; attempt < 6; attempt++ {
+		if err = c.start(ctx); err == nil || !transientStartError(err) {
+			return err
 		}
 		time.Sleep(time.Duration(100<<attempt) * time.Millisecond)
 	}
