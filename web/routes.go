@@ -58,6 +58,13 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/{id}/shipment", coordWork, s.caseShipment},
 		{"POST", "/cases/{id}/return", coordWork, s.caseReturn},
 		{"POST", "/cases/{id}/note", caseWork, s.caseNote},
+		{"POST", "/cases/{id}/recordings", coordWork, s.caseRecordingAdd},
+
+		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
+		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
+		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
+		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
+		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},
 
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},

@@ -34,6 +34,7 @@ type Store interface {
 	progressStore
 	caseStore
 	studyStore
+	recordingStore
 }
 
 // Config is what the server is built from.
