@@ -115,7 +115,10 @@ func statRow(g db.AgreementGroup) views.StatRowView {
 	if g.Dimension != "all" && g.Dimension != "protocol" {
 		label = g.Dimension + ": " + g.Label
 	}
-	med, ci := medianText(g.Median)
+	med, ci := "—", "—"
+	if g.Flagged > 0 {
+		med, ci = medianText(g.Median)
+	}
 	ppv := "—"
 	if g.OverRead > 0 {
 		ppv = fmt.Sprintf("%d/%d = %s", g.Confirmed, g.OverRead, pct(g.PPV.Value()))
@@ -238,6 +241,7 @@ func round4(v float64) float64 {
 func ppvChart(groups []db.AgreementGroup) (*charts.BoxPlot, bool) {
 	var labels []string
 	var data []opts.BoxPlotData
+	var points []opts.ScatterData
 	for _, g := range groups {
 		if g.OverRead == 0 {
 			continue
@@ -249,6 +253,7 @@ func ppvChart(groups []db.AgreementGroup) (*charts.BoxPlot, bool) {
 		p := round4(g.PPV.Value())
 		labels = append(labels, label)
 		data = append(data, opts.BoxPlotData{Name: label, Value: []float64{round4(g.Wilson.Lo), p, p, p, round4(g.Wilson.Hi)}})
+		points = append(points, opts.ScatterData{Name: fmt.Sprintf("%s: %d/%d", label, g.Confirmed, g.OverRead), Value: p, Symbol: "diamond", SymbolSize: 12})
 	}
 	if len(data) == 0 {
 		return nil, false
@@ -257,7 +262,10 @@ func ppvChart(groups []db.AgreementGroup) (*charts.BoxPlot, bool) {
 	bp.SetGlobalOptions(charts.WithInitializationOpts(chartInit("ppv")),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "item"}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "PPV (95% Wilson interval)", Min: 0, Max: 1}))
-	bp.SetXAxis(labels).AddSeries("PPV", data)
+	bp.SetXAxis(labels).AddSeries("95% Wilson interval", data)
+	est := charts.NewScatter()
+	est.SetXAxis(labels).AddSeries("PPV", points)
+	bp.Overlap(est)
 	return bp, true
 }
 

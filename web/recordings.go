@@ -76,7 +76,15 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 		return nil, err
 	}
 	m := views.CaseECGModel{CaseID: c.ID, CanAdd: coordWork.allows(role(r)), Closed: acceptsRecordings(c.State), Errors: errs,
-		Today: now.Format("2006-01-02"), MaxBytes: humanBytes(db.MaxRecordingFileBytes)}
+		MaxBytes: humanBytes(db.MaxRecordingFileBytes), Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
+	if r.MultipartForm != nil {
+		// A refused upload: show what was entered (a browser never refills a file field).
+		for _, k := range []string{"auto", "taken_at", "duration_s", "rate_hz", "received_on"} {
+			if v := r.MultipartForm.Value[k]; len(v) > 0 {
+				m.Values[k] = v[0]
+			}
+		}
+	}
 	for _, a := range overread.Autos() {
 		m.Autos = append(m.Autos, views.Option{Value: string(a), Label: a.Label()})
 	}
@@ -289,7 +297,17 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	case next == overread.Second && rec.Readings[0].ReaderID == u.ID:
 		m.FormNote = "You gave the first reading. A second reading, if the study wants one, comes from another investigator."
 	default:
-		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name}
+		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain)}
+		if r.PostForm.Get("role") == string(next) {
+			// A refused entry: show it again.
+			f.Rhythm, f.Comment = r.PostForm.Get("rhythm"), r.PostForm.Get("comment")
+			if v := r.PostForm.Get("confidence"); v != "" {
+				f.Confidence = v
+			}
+			if v := r.PostForm.Get("read_on"); v != "" {
+				f.Today = v
+			}
+		}
 		switch next {
 		case overread.First:
 			f.Title, f.Intro = "Over-read", "Your reading is the recording's verdict unless a second reader disagrees."
