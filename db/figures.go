@@ -444,13 +444,15 @@ func (s *Store) figureRows(ctx context.Context, f CascadeFilter) (figureRows, er
 			d := cohort.DateOf(f.To).String()
 			to = &d
 		}
+		// The chosen participants, as a condition every query below repeats.
+		const chosen = `($1 = 0 OR p.site_id = $1) AND ($2::date IS NULL OR p.enrolled_on >= $2::date) AND ($3::date IS NULL OR p.enrolled_on < $3::date)`
 		rows, err = tx.Query(ctx, `
-			SELECT p.id, st.code, p.sex, p.age_at_enrolment, p.withdrawn_on IS NOT NULL,
-			       EXISTS (SELECT 1 FROM screen_results sr WHERE sr.participant_id = p.id AND sr.protocol_id = $1 AND sr.verdict <> 'insufficient'),
-			       EXISTS (SELECT 1 FROM screen_results sr WHERE sr.participant_id = p.id AND sr.protocol_id = $1 AND sr.verdict = 'positive')
-			FROM participants p JOIN sites st ON st.id = p.site_id
-			WHERE ($2 = 0 OR p.site_id = $2) AND ($3::date IS NULL OR p.enrolled_on >= $3::date) AND ($4::date IS NULL OR p.enrolled_on < $4::date)
-			ORDER BY p.id`, out.protocol.ID, f.SiteID, from, to)
+			WITH sr AS (
+			  SELECT participant_id, bool_or(verdict <> 'insufficient') AS sufficient, bool_or(verdict = 'positive') AS positive
+			  FROM screen_results WHERE protocol_id = $4 GROUP BY participant_id)
+			SELECT p.id, st.code, p.sex, p.age_at_enrolment, p.withdrawn_on IS NOT NULL, coalesce(sr.sufficient, false), coalesce(sr.positive, false)
+			FROM participants p JOIN sites st ON st.id = p.site_id LEFT JOIN sr ON sr.participant_id = p.id
+			WHERE `+chosen+` ORDER BY p.id`, f.SiteID, from, to, out.protocol.ID)
 		if err != nil {
 			return err
 		}
@@ -469,13 +471,9 @@ func (s *Store) figureRows(ctx context.Context, f CascadeFilter) (figureRows, er
 		if err != nil {
 			return err
 		}
-		ids := make([]int64, len(out.people))
-		for i, p := range out.people {
-			ids[i] = p.id
-		}
 		rows, err = tx.Query(ctx, `
-			SELECT id, participant_id, protocol_id, state, flagged_at, reached_at, closed_at
-			FROM cases WHERE participant_id = ANY($1) ORDER BY id`, ids)
+			SELECT c.id, c.participant_id, c.protocol_id, c.state, c.flagged_at, c.reached_at, c.closed_at
+			FROM cases c JOIN participants p ON p.id = c.participant_id WHERE `+chosen+` ORDER BY c.id`, f.SiteID, from, to)
 		if err != nil {
 			return err
 		}
@@ -491,12 +489,12 @@ func (s *Store) figureRows(ctx context.Context, f CascadeFilter) (figureRows, er
 			return err
 		}
 		byCase := make(map[int64]int, len(out.episodes))
-		caseIDs := make([]int64, len(out.episodes))
 		for i, e := range out.episodes {
 			byCase[e.caseID] = i
-			caseIDs[i] = e.caseID
 		}
-		rows, err = tx.Query(ctx, `SELECT id, case_id, auto_interpretation, too_short FROM recordings WHERE case_id = ANY($1) ORDER BY taken_at, id`, caseIDs)
+		rows, err = tx.Query(ctx, `
+			SELECT r.id, r.case_id, r.auto_interpretation, r.too_short
+			FROM recordings r JOIN participants p ON p.id = r.participant_id WHERE `+chosen+` ORDER BY r.taken_at, r.id`, f.SiteID, from, to)
 		if err != nil {
 			return err
 		}
