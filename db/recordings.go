@@ -456,14 +456,8 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 	} else if !(dur > 0 && dur <= MaxRecordingSeconds) {
 		ve.Add("duration_s", fmt.Sprintf("enter the duration in seconds (more than 0, at most %d), or upload the waveform", MaxRecordingSeconds))
 	}
-	switch c.State {
-	case followup.RecorderSent, followup.RecordingReceived, followup.OverRead:
-	default:
-		if c.State.Terminal() {
-			ve.Add("case", "the case is closed ("+c.State.Label()+"); no recording can be added")
-		} else {
-			ve.Add("case", "record the recorder's shipment first: the case is "+c.State.Label())
-		}
+	if msg := TakesRecordings(c.State); msg != "" {
+		ve.Add("case", msg)
 	}
 	if err := ve.Err(); err != nil {
 		return Recording{}, err
@@ -476,6 +470,9 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		cur, err := lockCase(ctx, tx, caseID)
 		if err != nil {
 			return err
+		}
+		if msg := TakesRecordings(cur.State); msg != "" { // changed since it was read
+			return &cohort.ValidationError{Fields: map[string]string{"case": msg}}
 		}
 		var samples, sum []byte
 		var rate *float64
@@ -540,6 +537,19 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		return Recording{}, mapCaseErr("add recording", err)
 	}
 	return s.Recording(ctx, id)
+}
+
+// TakesRecordings says why a case in state st cannot take a recording, ""
+// when it can: it must be waiting for or holding recordings ("recorder
+// sent", "recording received", "over-read").
+func TakesRecordings(st followup.State) string {
+	switch {
+	case st == followup.RecorderSent || st == followup.RecordingReceived || st == followup.OverRead:
+		return ""
+	case st.Terminal():
+		return "the case is closed (" + st.Label() + "); no recording can be added"
+	}
+	return "record the recorder's shipment first: the case is " + st.Label()
 }
 
 func truncate(s string, n int) string {

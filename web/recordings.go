@@ -58,15 +58,13 @@ func verdictView(r db.Recording) (string, components.Tone) {
 func seconds(s float64) string { return strconv.FormatFloat(s, 'f', 1, 64) + " s" }
 
 // acceptsRecordings says why a case cannot take a recording now, "" when it
-// can: the store enforces the same rule.
+// can (the store's rule, as a sentence).
 func acceptsRecordings(st followup.State) string {
-	switch {
-	case st == followup.RecorderSent || st == followup.RecordingReceived || st == followup.OverRead:
+	msg := db.TakesRecordings(st)
+	if msg == "" {
 		return ""
-	case st.Terminal():
-		return "The case is closed; no recording can be added."
 	}
-	return "Recordings can be added once the recorder's shipment is recorded."
+	return strings.ToUpper(msg[:1]) + msg[1:] + "."
 }
 
 // caseECG builds the recordings panel of a case page.

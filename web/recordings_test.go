@@ -332,3 +332,24 @@ func between(s, from, to string) string {
 	}
 	return s
 }
+
+// TestRecordingNeedsShipment: an open case offers no intake form, says why,
+// and refuses a posted recording.
+func TestRecordingNeedsShipment(t *testing.T) {
+	a := newApp(t)
+	ids := seedFollowUp(t, a.store, 1)
+	coord := a.signIn(cohort.Coordinator)
+	_, body := a.get(coord, fmt.Sprintf("/cases/%d", ids[0]))
+	if strings.Contains(body, `data-testid="form-recording"`) || !strings.Contains(body, "Record the recorder&#39;s shipment first") {
+		t.Error("an open case offers the intake form")
+	}
+	res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"duration_s": "40", "taken_at": time.Now().UTC().Format("2006-01-02T15:04")}, "x.csv", nil)
+	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, "shipment first") {
+		t.Errorf("status %d", res.StatusCode)
+	}
+	// Investigators see the recordings but get no intake form.
+	_, body = a.get(a.signIn(cohort.Investigator), fmt.Sprintf("/cases/%d", ids[0]))
+	if !strings.Contains(body, `data-testid="case-recordings"`) || strings.Contains(body, `data-testid="recording-closed"`) {
+		t.Error("investigator's case page")
+	}
+}
