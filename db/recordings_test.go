@@ -399,3 +399,32 @@ func TestLoaderPath(t *testing.T) {
 		t.Fatalf("case recordings %+v %v", recs, err)
 	}
 }
+
+// TestConcurrentFirstReadings: two investigators entering the first reading
+// at once: the recording row lock lets one in and refuses the other.
+func TestConcurrentFirstReadings(t *testing.T) {
+	f, cases, second := newRecordingFixture(t, 1)
+	ctx := context.Background()
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], db.RecordingInput{TakenAt: fixedNow, DurationS: 40})
+	if err != nil {
+		t.Fatal(err)
+	}
+	errs := make(chan error, 2)
+	for _, a := range []cohort.Actor{f.inv, second} {
+		go func() {
+			_, err := f.s.AddOverRead(ctx, a, rec.ID, db.OverReadInput{Role: "first", Rhythm: "sinus", Confidence: "certain", ReaderID: a.UserID})
+			errs <- err
+		}()
+	}
+	var ok, refused int
+	for range 2 {
+		if err := <-errs; err == nil {
+			ok++
+		} else if strings.Contains(fieldMsg(t, err, "role"), "second reading") {
+			refused++
+		}
+	}
+	if ok != 1 || refused != 1 {
+		t.Fatalf("%d accepted, %d refused", ok, refused)
+	}
+}
