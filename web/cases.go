@@ -13,6 +13,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
 	"cohortdesk/views"
 	"cohortdesk/views/components"
@@ -475,6 +476,9 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		}
 		m.Weeks = append(m.Weeks, v)
 	}
+	if m.ECG, err = s.caseECG(r, c, errs, now); err != nil {
+		return err
+	}
 	events, err := s.store.CaseTimeline(ctx, c, loc)
 	if err != nil {
 		return err
@@ -501,7 +505,7 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 		rec := e.Recording
 		out.Title = fmt.Sprintf("ECG recording taken (%.0f s)", rec.DurationS)
 		if rec.AutoInterpretation != "" && rec.AutoInterpretation != "none" {
-			out.Lines = append(out.Lines, "recorder's own reading: "+rec.AutoInterpretation)
+			out.Lines = append(out.Lines, "recorder's own reading: "+overread.Auto(rec.AutoInterpretation).Label())
 		}
 		if rec.TooShort {
 			out.Lines = append(out.Lines, "shorter than 30 s: not enough for a diagnostic read")
@@ -511,7 +515,7 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 		}
 	case db.EventOverRead:
 		o := e.OverRead
-		out.Title = fmt.Sprintf("Over-read (%s reader): %s, %s", o.Role, o.Rhythm, o.Confidence)
+		out.Title = fmt.Sprintf("Over-read (%s): %s, %s", overread.Role(o.Role).Label(), overread.Rhythm(o.Rhythm).Label(), o.Confidence)
 		out.Lines = []string{"read on " + o.ReadOn.String()}
 	default:
 		w := db.ActionWords(e.Action)

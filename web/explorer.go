@@ -60,7 +60,7 @@ func sweepValues(from, to float64, steps int, integer bool) []float64 {
 	return out
 }
 
-func pct(f stats.Fraction) string {
+func fractionPct(f stats.Fraction) string {
 	if f.N == 0 {
 		return "no weeks"
 	}
@@ -173,7 +173,7 @@ func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
 	for _, row := range ex.Rows {
 		m.Rows = append(m.Rows, views.ExplorerRow{Value: strconv.FormatFloat(row.Value, 'g', -1, 64), Current: row.Value == curVal,
 			Flagged: row.Flagged, TP: row.Table.TP, FP: row.Table.FP, FN: row.Table.FN,
-			PPV: pct(row.PPV), PPVCI: ciText(row.PPVCI), Sensitivity: pct(row.Sensitivity), SensCI: ciText(row.SensitivityCI)})
+			PPV: fractionPct(row.PPV), PPVCI: ciText(row.PPVCI), Sensitivity: fractionPct(row.Sensitivity), SensCI: ciText(row.SensitivityCI)})
 	}
 	chart, scripts, err := explorerChart(ex)
 	if err != nil {

@@ -1,8 +1,10 @@
 package web
 
 import (
+	"bytes"
 	"context"
 	"io"
+	"mime/multipart"
 	"net/http"
 	"net/http/cookiejar"
 	"net/http/httptest"
@@ -111,3 +113,29 @@ func (a *app) exec(sql string, args ...any) {
 }
 
 func strconvFormat(n int64) string { return strconv.FormatInt(n, 10) }
+
+// postFile posts a multipart form as a browser does: the fields (in order of
+// the keys given), then one file under fileField.
+func (a *app) postFile(c *http.Client, path string, fields [][2]string, fileField, name string, data []byte) (*http.Response, string) {
+	a.t.Helper()
+	var body bytes.Buffer
+	mw := multipart.NewWriter(&body)
+	for _, kv := range fields {
+		mw.WriteField(kv[0], kv[1])
+	}
+	fw, err := mw.CreateFormFile(fileField, name)
+	if err != nil {
+		a.t.Fatal(err)
+	}
+	fw.Write(data)
+	mw.Close()
+	req, _ := http.NewRequest("POST", a.ts.URL+path, &body)
+	req.Header.Set("Content-Type", mw.FormDataContentType())
+	res, err := c.Do(req)
+	if err != nil {
+		a.t.Fatal(err)
+	}
+	defer res.Body.Close()
+	b, _ := io.ReadAll(res.Body)
+	return res, string(b)
+}

@@ -1,9 +1,6 @@
 package web
 
 import (
-	"bytes"
-	"io"
-	"mime/multipart"
 	"net/http"
 	"strings"
 	"testing"
@@ -13,21 +10,9 @@ import (
 
 func upload(t *testing.T, a *app, c *http.Client, kind, name, body string) (*http.Response, string) {
 	t.Helper()
-	var buf bytes.Buffer
-	mw := multipart.NewWriter(&buf)
-	mw.WriteField("kind", kind)
-	fw, _ := mw.CreateFormFile("file", name)
-	io.WriteString(fw, body)
-	mw.Close()
-	req, _ := http.NewRequest("POST", a.ts.URL+"/imports", &buf)
-	req.Header.Set("Content-Type", mw.FormDataContentType())
-	res, err := c.Do(req)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res.Body.Close()
+	res, page := a.postFile(c, "/imports", [][2]string{{"kind", kind}}, "file", name, []byte(body))
 	if res.StatusCode != http.StatusSeeOther {
-		return res, ""
+		return res, page
 	}
 	return a.get(c, res.Header.Get("Location"))
 }

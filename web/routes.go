@@ -62,6 +62,13 @@ func (s *Server) routes() []route {
 		{"GET", "/screening/external", coordWork, s.externalVerdictsForm},
 		{"POST", "/screening/external", coordWork, s.externalVerdictsImport},
 		{"GET", "/explorer", tuning, s.explorer},
+		{"POST", "/cases/{id}/recordings", coordWork, s.caseRecordingAdd},
+
+		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
+		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
+		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
+		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
+		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},
 
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},

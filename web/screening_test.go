@@ -1,10 +1,7 @@
 package web
 
 import (
-	"bytes"
 	"context"
-	"io"
-	"mime/multipart"
 	"net/http"
 	"net/url"
 	"regexp"
@@ -175,22 +172,9 @@ func TestScreeningProgressPage(t *testing.T) {
 	}
 }
 
-func (a *app) upload(c *http.Client, path, field, name, content string) (*http.Response, string) {
+func (a *app) uploadOne(c *http.Client, path, field, name, content string) (*http.Response, string) {
 	a.t.Helper()
-	var buf bytes.Buffer
-	mw := multipart.NewWriter(&buf)
-	fw, _ := mw.CreateFormFile(field, name)
-	io.WriteString(fw, content)
-	mw.Close()
-	req, _ := http.NewRequest("POST", a.ts.URL+path, &buf)
-	req.Header.Set("Content-Type", mw.FormDataContentType())
-	res, err := c.Do(req)
-	if err != nil {
-		a.t.Fatal(err)
-	}
-	defer res.Body.Close()
-	b, _ := io.ReadAll(res.Body)
-	return res, string(b)
+	return a.postFile(c, path, nil, field, name, []byte(content))
 }
 
 func TestExternalVerdictsUploadAndParticipantPage(t *testing.T) {
@@ -199,20 +183,20 @@ func TestExternalVerdictsUploadAndParticipantPage(t *testing.T) {
 	pid := a.screenedParticipant("EV-1")
 	c := a.signIn(cohort.Coordinator)
 	file := "study_id,study_week,score,verdict,model_name,model_version\nEV-1,1,0.93,positive,pulse-judge,4\nEV-404,1,0.1,negative,pulse-judge,4\nEV-1,2,x,negative,pulse-judge,4\n"
-	res, body := a.upload(c, "/screening/external", "file", "ext.csv", file)
+	res, body := a.uploadOne(c, "/screening/external", "file", "ext.csv", file)
 	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="import-result"`) || !strings.Contains(body, "1 new") ||
 		!regexp.MustCompile(`<td class="num">3</td><td>[^<]+</td>`).MatchString(body) || !strings.Contains(body, "EV-404") {
 		t.Fatalf("upload: status %d\n%.2000s", res.StatusCode, body)
 	}
-	res, body = a.upload(c, "/screening/external", "file", "ext.csv", file)
+	res, body = a.uploadOne(c, "/screening/external", "file", "ext.csv", file)
 	if res.StatusCode != 200 || !strings.Contains(body, "0 new, 0 changed, 1 duplicates") {
 		t.Fatalf("second upload: status %d", res.StatusCode)
 	}
-	res, body = a.upload(c, "/screening/external", "file", "bad.csv", "who,when\n")
+	res, body = a.uploadOne(c, "/screening/external", "file", "bad.csv", "who,when\n")
 	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-file"`) {
 		t.Fatalf("bad header: status %d", res.StatusCode)
 	}
-	if res, _ := a.upload(a.signIn(cohort.Investigator), "/screening/external", "file", "ext.csv", file); res.StatusCode != http.StatusForbidden {
+	if res, _ := a.uploadOne(a.signIn(cohort.Investigator), "/screening/external", "file", "ext.csv", file); res.StatusCode != http.StatusForbidden {
 		t.Fatalf("investigator upload: %d, want 403", res.StatusCode)
 	}
 	res, body = a.get(c, "/participants/"+strconv.FormatInt(pid, 10))

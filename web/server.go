@@ -35,6 +35,7 @@ type Store interface {
 	caseStore
 	studyStore
 	screeningStore
+	recordingStore
 }
 
 // Config is what the server is built from.

@@ -1,0 +1,380 @@
+// Package overread holds the rules of clinicians' over-reads of ECG
+// recordings: the verdict categories, the recorder's own automatic
+// interpretation, the order in which readings may be entered (a first reading,
+// an optional second reading by another investigator, and an adjudication when
+// the two disagree) and the effective verdict those readings give.
+//
+// The categories of the over-read (AF, atrial flutter, sinus rhythm, other
+// arrhythmia, uninterpretable) are the trade's. The rules for entering readings
+// and the effective verdict are ours (a common design for blinded double
+// reading with adjudication; no single source).
+//
+// The package is pure: no I/O, no clock, no logging.
+package overread
+
+import (
+	"fmt"
+	"strings"
+
+	"cohortdesk/cohort"
+)
+
+// Rhythm is a clinician's rhythm verdict. The string value is stored.
+type Rhythm string
+
+// The over-read verdicts.
+const (
+	AF              Rhythm = "af"
+	Flutter         Rhythm = "flutter"
+	Sinus           Rhythm = "sinus"
+	Other           Rhythm = "other"
+	Uninterpretable Rhythm = "uninterpretable"
+)
+
+var rhythmLabels = map[Rhythm]string{
+	AF:              "atrial fibrillation",
+	Flutter:         "atrial flutter",
+	Sinus:           "sinus rhythm",
+	Other:           "other arrhythmia",
+	Uninterpretable: "uninterpretable",
+}
+
+// Rhythms lists the verdicts in the order the form offers them.
+func Rhythms() []Rhythm { return []Rhythm{AF, Flutter, Sinus, Other, Uninterpretable} }
+
+// ParseRhythm reads a stored or submitted verdict.
+func ParseRhythm(s string) (Rhythm, error) {
+	r := Rhythm(strings.TrimSpace(s))
+	if !r.Valid() {
+		return "", fmt.Errorf("overread: unknown rhythm %q", s)
+	}
+	return r, nil
+}
+
+// Valid reports whether r is a defined verdict.
+func (r Rhythm) Valid() bool { _, ok := rhythmLabels[r]; return ok }
+
+// Label is the wording on pages; unknown values are shown quoted.
+func (r Rhythm) Label() string {
+	if l, ok := rhythmLabels[r]; ok {
+		return l
+	}
+	return fmt.Sprintf("%q", string(r))
+}
+
+// Interpretable reports whether the verdict names a rhythm. Only an
+// interpretable verdict moves a case on to "over-read"; an uninterpretable one
+// leaves it waiting for a repeat recording.
+func (r Rhythm) Interpretable() bool { return r.Valid() && r != Uninterpretable }
+
+// Confidence is how sure the reader is. The string value is stored.
+type Confidence string
+
+// The confidence levels.
+const (
+	Certain   Confidence = "certain"
+	Probable  Confidence = "probable"
+	Uncertain Confidence = "uncertain"
+)
+
+// Confidences lists the levels in the order the form offers them.
+func Confidences() []Confidence { return []Confidence{Certain, Probable, Uncertain} }
+
+// ParseConfidence reads a stored or submitted confidence.
+func ParseConfidence(s string) (Confidence, error) {
+	c := Confidence(strings.TrimSpace(s))
+	if c != Certain && c != Probable && c != Uncertain {
+		return "", fmt.Errorf("overread: unknown confidence %q", s)
+	}
+	return c, nil
+}
+
+// Label is the wording on pages.
+func (c Confidence) Label() string { return string(c) }
+
+// Auto is the recorder's own automatic interpretation, mapped to our
+// categories. The string value is stored.
+type Auto string
+
+// The automatic interpretations. AutoNone: the recorder gave none (or the
+// study does not record it); AutoUnreadable: the recorder said the tracing was
+// too short or too noisy to analyse.
+const (
+	AutoNone         Auto = "none"
+	AutoAF           Auto = "af"
+	AutoSinus        Auto = "sinus"
+	AutoUnclassified Auto = "unclassified"
+	AutoUnreadable   Auto = "unreadable"
+)
+
+var autoLabels = map[Auto]string{
+	AutoNone:         "none given",
+	AutoAF:           "possible AF",
+	AutoSinus:        "sinus rhythm",
+	AutoUnclassified: "unclassified",
+	AutoUnreadable:   "unreadable",
+}
+
+// Autos lists the automatic interpretations in the order the form offers them.
+func Autos() []Auto { return []Auto{AutoNone, AutoAF, AutoSinus, AutoUnclassified, AutoUnreadable} }
+
+// ParseAuto reads a stored or submitted automatic interpretation; an empty
+// value is AutoNone.
+func ParseAuto(s string) (Auto, error) {
+	a := Auto(strings.TrimSpace(s))
+	if a == "" {
+		return AutoNone, nil
+	}
+	if _, ok := autoLabels[a]; !ok {
+		return "", fmt.Errorf("overread: unknown automatic interpretation %q", s)
+	}
+	return a, nil
+}
+
+// Label is the wording on pages.
+func (a Auto) Label() string {
+	if l, ok := autoLabels[a]; ok {
+		return l
+	}
+	return fmt.Sprintf("%q", string(a))
+}
+
+// Role is the place of a reading in the double-reading scheme. The string
+// value is stored.
+type Role string
+
+// The reading roles.
+const (
+	First        Role = "first"
+	Second       Role = "second"
+	Adjudication Role = "adjudication"
+)
+
+// Label is the wording on pages.
+func (r Role) Label() string {
+	switch r {
+	case First:
+		return "first reading"
+	case Second:
+		return "second reading"
+	case Adjudication:
+		return "adjudication"
+	}
+	return fmt.Sprintf("%q", string(r))
+}
+
+// Reading is one entered over-read.
+type Reading struct {
+	Role       Role
+	Rhythm     Rhythm
+	Confidence Confidence
+	ReaderID   int64
+	Reader     string
+	On         cohort.Date // the day of the reading
+}
+
+// Status says where a recording's readings stand.
+type Status string
+
+// The reading statuses.
+const (
+	Unread      Status = "unread"      // no reading yet
+	Single      Status = "single"      // one reading; it is the verdict (a second reading is optional)
+	Agreed      Status = "agreed"      // two readers gave the same rhythm
+	Disagreed   Status = "disagreed"   // two readers differ and nobody has adjudicated yet
+	Adjudicated Status = "adjudicated" // the readers differed and an adjudication settled it
+)
+
+// Label is the wording on pages.
+func (s Status) Label() string {
+	switch s {
+	case Unread:
+		return "waiting for an over-read"
+	case Single:
+		return "read once"
+	case Agreed:
+		return "two readers agree"
+	case Disagreed:
+		return "readers disagree: waiting for adjudication"
+	case Adjudicated:
+		return "adjudicated"
+	}
+	return string(s)
+}
+
+// Verdict is the effective verdict of a recording's readings.
+type Verdict struct {
+	Status Status
+	// Final is true when the readings settle a rhythm: one reading, two that
+	// agree, or an adjudication. Rhythm and SettledOn are set only then.
+	Final     bool
+	Rhythm    Rhythm
+	SettledOn cohort.Date // the day of the latest reading the verdict rests on
+	// ConfidenceDiffers marks two agreeing readers who differ in confidence,
+	// which the page highlights without asking for adjudication.
+	ConfidenceDiffers bool
+}
+
+// byRole picks the readings apart and checks there is at most one of each.
+func byRole(rs []Reading) (first, second, adj *Reading, err error) {
+	for i := range rs {
+		r := &rs[i]
+		var slot **Reading
+		switch r.Role {
+		case First:
+			slot = &first
+		case Second:
+			slot = &second
+		case Adjudication:
+			slot = &adj
+		default:
+			return nil, nil, nil, fmt.Errorf("overread: reading %d has unknown role %q", i+1, r.Role)
+		}
+		if *slot != nil {
+			return nil, nil, nil, fmt.Errorf("overread: two readings in the role %s", r.Role)
+		}
+		*slot = r
+	}
+	return first, second, adj, nil
+}
+
+func later(a, b cohort.Date) cohort.Date {
+	if a.Before(b) {
+		return b
+	}
+	return a
+}
+
+// Resolve gives the effective verdict of a recording's readings: the
+// adjudication when there is one, else the agreed rhythm of two readers, else
+// the single reading. Two readers who give different rhythms leave the
+// recording without a verdict until an adjudication is entered. Readings that
+// could not have been entered under Check (a second without a first, an
+// adjudication without a disagreement) are an error.
+func Resolve(rs []Reading) (Verdict, error) {
+	first, second, adj, err := byRole(rs)
+	if err != nil {
+		return Verdict{}, err
+	}
+	switch {
+	case first == nil && (second != nil || adj != nil):
+		return Verdict{}, fmt.Errorf("overread: a later reading without a first reading")
+	case first == nil:
+		return Verdict{Status: Unread}, nil
+	case second == nil && adj != nil:
+		return Verdict{}, fmt.Errorf("overread: an adjudication without a second reading")
+	case second == nil:
+		return Verdict{Status: Single, Final: true, Rhythm: first.Rhythm, SettledOn: first.On}, nil
+	case first.Rhythm == second.Rhythm:
+		if adj != nil {
+			return Verdict{}, fmt.Errorf("overread: an adjudication of readers who agree")
+		}
+		return Verdict{Status: Agreed, Final: true, Rhythm: first.Rhythm, SettledOn: later(first.On, second.On),
+			ConfidenceDiffers: first.Confidence != second.Confidence}, nil
+	case adj == nil:
+		return Verdict{Status: Disagreed}, nil
+	}
+	return Verdict{Status: Adjudicated, Final: true, Rhythm: adj.Rhythm, SettledOn: adj.On}, nil
+}
+
+// Next says which reading a recording can take now, given those entered:
+// First when there is none; Second when only a first exists (optional);
+// Adjudication when two readers disagree; "" when nothing more can be entered.
+func Next(rs []Reading) Role {
+	first, second, adj, err := byRole(rs)
+	switch {
+	case err != nil:
+		return ""
+	case first == nil:
+		return First
+	case second == nil:
+		return Second
+	case first.Rhythm != second.Rhythm && adj == nil:
+		return Adjudication
+	}
+	return ""
+}
+
+// Check says whether next may be added to the readings entered so far. The
+// rules: readings come in the order first, second, adjudication; each role
+// once; the second reader is another person than the first (a second reading
+// by the same person is not independent); an adjudication only settles a
+// disagreement. The adjudicator may be one of the two readers (a consensus
+// after discussion); the page says so when it happens. A refusal is a
+// *cohort.ValidationError on the field "role" or "reader".
+func Check(existing []Reading, next Reading) error {
+	want := Next(existing)
+	first, _, _, err := byRole(existing)
+	if err != nil {
+		return err
+	}
+	var ve cohort.ValidationError
+	switch {
+	case !next.Rhythm.Valid():
+		ve.Add("rhythm", "choose the rhythm you see")
+	}
+	switch {
+	case want == "":
+		ve.Add("role", "this recording's readings are complete; nothing more can be entered")
+	case next.Role != want:
+		ve.Add("role", fmt.Sprintf("the next entry for this recording is the %s, not the %s", want.Label(), next.Role.Label()))
+	case next.Role == Second && first != nil && next.ReaderID != 0 && next.ReaderID == first.ReaderID:
+		ve.Add("reader", "the second reading must come from another investigator than the first")
+	}
+	return ve.Err()
+}
+
+// Category is one class of the common category set in which the recorder's
+// automatic interpretation and the over-read are compared (Cohen's kappa).
+// The recorder knows fewer rhythms than a clinician, so the over-read's atrial
+// flutter and other arrhythmia fall together with the recorder's
+// "unclassified". The mapping is ours.
+type Category string
+
+// The common categories.
+const (
+	CatAF         Category = "AF"
+	CatSinus      Category = "sinus rhythm"
+	CatOther      Category = "other or unclassified"
+	CatUnreadable Category = "unreadable"
+)
+
+// Categories lists the common categories in table order.
+func Categories() []Category { return []Category{CatAF, CatSinus, CatOther, CatUnreadable} }
+
+// AutoCategory maps an automatic interpretation to the common categories;
+// ok is false for AutoNone (nothing to compare) and unknown values.
+func AutoCategory(a Auto) (c Category, ok bool) {
+	switch a {
+	case AutoAF:
+		return CatAF, true
+	case AutoSinus:
+		return CatSinus, true
+	case AutoUnclassified:
+		return CatOther, true
+	case AutoUnreadable:
+		return CatUnreadable, true
+	}
+	return "", false
+}
+
+// RhythmCategory maps an over-read verdict to the common categories; ok is
+// false for unknown values.
+func RhythmCategory(r Rhythm) (c Category, ok bool) {
+	switch r {
+	case AF:
+		return CatAF, true
+	case Sinus:
+		return CatSinus, true
+	case Flutter, Other:
+		return CatOther, true
+	case Uninterpretable:
+		return CatUnreadable, true
+	}
+	return "", false
+}
+
+// CategoryMapping describes the mapping in words, for the statistics page.
+const CategoryMapping = "Categories compared: AF (recorder: possible AF; reader: atrial fibrillation), " +
+	"sinus rhythm (both), other or unclassified (recorder: unclassified; reader: atrial flutter or other arrhythmia), " +
+	"unreadable (recorder: unreadable; reader: uninterpretable). Recordings without an automatic interpretation are left out."

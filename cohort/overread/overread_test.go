@@ -1,0 +1,145 @@
+package overread
+
+import (
+	"errors"
+	"testing"
+
+	"cohortdesk/cohort"
+)
+
+var (
+	d1 = cohort.Date{Year: 2026, Month: 3, Day: 2}
+	d2 = cohort.Date{Year: 2026, Month: 3, Day: 4}
+	d3 = cohort.Date{Year: 2026, Month: 3, Day: 9}
+)
+
+func rd(role Role, r Rhythm, c Confidence, reader int64, on cohort.Date) Reading {
+	return Reading{Role: role, Rhythm: r, Confidence: c, ReaderID: reader, Reader: "reader", On: on}
+}
+
+// TestResolve walks the double-reading scheme: the verdict is the single
+// reading, the agreed rhythm, or the adjudication; a disagreement has none.
+func TestResolve(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		in   []Reading
+		want Verdict
+	}{
+		{"none", nil, Verdict{Status: Unread}},
+		{"single", []Reading{rd(First, AF, Certain, 1, d1)}, Verdict{Status: Single, Final: true, Rhythm: AF, SettledOn: d1}},
+		{"single uninterpretable", []Reading{rd(First, Uninterpretable, Certain, 1, d1)},
+			Verdict{Status: Single, Final: true, Rhythm: Uninterpretable, SettledOn: d1}},
+		{"agreed, settled on the later day", []Reading{rd(Second, Sinus, Probable, 2, d1), rd(First, Sinus, Certain, 1, d2)},
+			Verdict{Status: Agreed, Final: true, Rhythm: Sinus, SettledOn: d2, ConfidenceDiffers: true}},
+		{"disagreed", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Flutter, Certain, 2, d2)}, Verdict{Status: Disagreed}},
+		{"adjudicated", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Flutter, Certain, 2, d2), rd(Adjudication, Flutter, Probable, 3, d3)},
+			Verdict{Status: Adjudicated, Final: true, Rhythm: Flutter, SettledOn: d3}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			got, err := Resolve(tc.in)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got != tc.want {
+				t.Fatalf("got %+v, want %+v", got, tc.want)
+			}
+		})
+	}
+}
+
+func TestResolveRefusesImpossibleSets(t *testing.T) {
+	for name, in := range map[string][]Reading{
+		"second alone":            {rd(Second, AF, Certain, 2, d1)},
+		"two firsts":              {rd(First, AF, Certain, 1, d1), rd(First, AF, Certain, 2, d1)},
+		"adjudication of agreed":  {rd(First, AF, Certain, 1, d1), rd(Second, AF, Certain, 2, d1), rd(Adjudication, AF, Certain, 3, d1)},
+		"adjudication, no second": {rd(First, AF, Certain, 1, d1), rd(Adjudication, AF, Certain, 3, d1)},
+		"unknown role":            {{Role: "third", Rhythm: AF}},
+	} {
+		if _, err := Resolve(in); err == nil {
+			t.Errorf("%s: accepted", name)
+		}
+	}
+}
+
+func TestCheckOrderAndReaders(t *testing.T) {
+	first := rd(First, AF, Certain, 1, d1)
+	second := rd(Second, Sinus, Certain, 2, d2)
+	agree := rd(Second, AF, Certain, 2, d2)
+	for _, tc := range []struct {
+		name     string
+		existing []Reading
+		next     Reading
+		field    string // "" when accepted
+	}{
+		{"first", nil, first, ""},
+		{"second before first", nil, second, "role"},
+		{"second", []Reading{first}, second, ""},
+		{"second by the first reader", []Reading{first}, rd(Second, Sinus, Certain, 1, d2), "reader"},
+		{"another first", []Reading{first}, rd(First, AF, Certain, 2, d2), "role"},
+		{"adjudication of a disagreement", []Reading{first, second}, rd(Adjudication, AF, Certain, 3, d3), ""},
+		{"adjudication by a reader (consensus)", []Reading{first, second}, rd(Adjudication, AF, Certain, 1, d3), ""},
+		{"adjudication when they agree", []Reading{first, agree}, rd(Adjudication, AF, Certain, 3, d3), "role"},
+		{"anything after adjudication", []Reading{first, second, rd(Adjudication, AF, Certain, 3, d3)}, rd(Adjudication, AF, Certain, 3, d3), "role"},
+		{"bad rhythm", nil, Reading{Role: First, Rhythm: "irregular"}, "rhythm"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			err := Check(tc.existing, tc.next)
+			if tc.field == "" {
+				if err != nil {
+					t.Fatalf("refused: %v", err)
+				}
+				return
+			}
+			var ve *cohort.ValidationError
+			if !errors.As(err, &ve) || ve.Fields[tc.field] == "" {
+				t.Fatalf("got %v, want a message on %q", err, tc.field)
+			}
+		})
+	}
+}
+
+func TestNext(t *testing.T) {
+	first := rd(First, AF, Certain, 1, d1)
+	if got := Next(nil); got != First {
+		t.Errorf("empty: %q", got)
+	}
+	if got := Next([]Reading{first}); got != Second {
+		t.Errorf("after first: %q", got)
+	}
+	if got := Next([]Reading{first, rd(Second, AF, Probable, 2, d1)}); got != "" {
+		t.Errorf("after agreement: %q", got)
+	}
+	if got := Next([]Reading{first, rd(Second, Other, Probable, 2, d1)}); got != Adjudication {
+		t.Errorf("after disagreement: %q", got)
+	}
+}
+
+// TestCategoriesCoverEveryValue checks that every verdict maps to a common
+// category and every automatic interpretation except "none" does.
+func TestCategoriesCoverEveryValue(t *testing.T) {
+	in := map[Category]bool{}
+	for _, c := range Categories() {
+		in[c] = true
+	}
+	for _, r := range Rhythms() {
+		c, ok := RhythmCategory(r)
+		if !ok || !in[c] {
+			t.Errorf("rhythm %s maps to %q", r, c)
+		}
+	}
+	for _, a := range Autos() {
+		c, ok := AutoCategory(a)
+		if ok != (a != AutoNone) || (ok && !in[c]) {
+			t.Errorf("auto %s maps to %q, %v", a, c, ok)
+		}
+	}
+	if _, err := ParseAuto(""); err != nil {
+		t.Error("empty automatic interpretation is refused")
+	}
+	if _, err := ParseRhythm("sinus_rhythm"); err == nil {
+		t.Error("a demo-style value is accepted as a rhythm")
+	}
+	if Uninterpretable.Interpretable() || !Flutter.Interpretable() {
+		t.Error("interpretable")
+	}
+}

@@ -1,0 +1,361 @@
+package web
+
+import (
+	"encoding/csv"
+	"fmt"
+	"math"
+	"net/http"
+	"net/url"
+	"strconv"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/overread"
+	"cohortdesk/cohort/stats"
+	"cohortdesk/db"
+	"cohortdesk/views"
+
+	"github.com/go-echarts/go-echarts/v2/charts"
+	"github.com/go-echarts/go-echarts/v2/opts"
+)
+
+// confirmationsLimit bounds each work list; a study rarely has more waiting.
+const confirmationsLimit = 200
+
+// confirmations is the over-read work area. Monitors see counts only:
+// the lists name participants' study IDs and dates.
+func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	lists, err := s.store.Confirmations(ctx, confirmationsLimit)
+	if err != nil {
+		return err
+	}
+	m := views.ConfirmationsModel{Page: s.page(r, "Confirmations", "confirmations"), DeIdentified: !role(r).SeesPHI(),
+		UnreadCount: len(lists.Unread), DisagreedCount: len(lists.Disagreed), CanRead: clinical.allows(role(r))}
+	if m.DeIdentified {
+		return s.ok(w, r, views.Confirmations(m))
+	}
+	st, err := s.store.StudySettings(ctx)
+	if err != nil {
+		return err
+	}
+	loc := st.Location()
+	today := cohort.DateOf(s.now().In(loc))
+	day := func(t time.Time) string { return t.In(loc).Format("2006-01-02") }
+	row := func(q db.QueueRecording) views.QueueRowView {
+		return views.QueueRowView{Href: fmt.Sprintf("/recordings/%d", q.ID), CaseHref: fmt.Sprintf("/cases/%d", q.CaseID), StudyID: q.StudyID,
+			Site: q.SiteCode, Taken: day(q.TakenAt), Received: day(q.ReceivedAt), Duration: seconds(q.DurationS), TooShort: q.TooShort,
+			Auto: q.Auto.Label(), Waiting: plural(max(0, today.DaysSince(cohort.DateOf(q.ReceivedAt.In(loc)))), "day")}
+	}
+	for _, q := range lists.Unread {
+		m.Unread = append(m.Unread, row(q))
+	}
+	for _, q := range lists.Disagreed {
+		v := row(q)
+		for _, o := range q.Readings {
+			switch o.Role {
+			case overread.First:
+				v.First = o.Rhythm.Label() + " (" + o.Reader + ")"
+			case overread.Second:
+				v.Second = o.Rhythm.Label() + " (" + o.Reader + ")"
+			}
+		}
+		m.Disagreed = append(m.Disagreed, v)
+	}
+	for _, o := range lists.Recent {
+		m.Recent = append(m.Recent, views.RecentReadingView{Href: fmt.Sprintf("/recordings/%d", o.RecordingID), StudyID: o.StudyID, Site: o.SiteCode,
+			Role: o.Role.Label(), Rhythm: o.Rhythm.Label(), Reader: o.Reader, On: o.On.String(), TooShort: o.TooShort})
+	}
+	return s.ok(w, r, views.Confirmations(m))
+}
+
+// statsFilter reads the statistics page's protocol and site choice.
+func statsFilter(q url.Values) db.CascadeFilter {
+	var f db.CascadeFilter
+	f.ProtocolID, _ = strconv.Atoi(q.Get("protocol"))
+	f.SiteID, _ = strconv.Atoi(q.Get("site"))
+	return f
+}
+
+func pct(v float64) string {
+	if math.IsNaN(v) {
+		return "—"
+	}
+	return strconv.FormatFloat(100*v, 'f', 1, 64) + "%"
+}
+
+func intervalText(iv stats.Interval, n int) string {
+	if n == 0 {
+		return "—"
+	}
+	return pct(iv.Lo) + " – " + pct(iv.Hi)
+}
+
+func fractionText(f stats.Fraction) string {
+	if f.N == 0 {
+		return "—"
+	}
+	return fmt.Sprintf("%d/%d (%s)", f.X, f.N, pct(f.Value()))
+}
+
+// medianText words a Kaplan-Meier median and its interval, "not reached"
+// where the curve or its band never gets down to one half.
+func medianText(m stats.Median) (string, string) {
+	day := func(ok bool, v float64) string {
+		if !ok {
+			return "not reached"
+		}
+		return strconv.FormatFloat(v, 'f', -1, 64)
+	}
+	return day(m.Reached, m.Time), day(m.LoReached, m.Lo) + " – " + day(m.HiReached, m.Hi)
+}
+
+func statRow(g db.AgreementGroup) views.StatRowView {
+	label := g.Label
+	if g.Dimension != "all" && g.Dimension != "protocol" {
+		label = g.Dimension + ": " + g.Label
+	}
+	med, ci := "—", "—"
+	if g.Flagged > 0 {
+		med, ci = medianText(g.Median)
+	}
+	ppv := "—"
+	if g.OverRead > 0 {
+		ppv = fmt.Sprintf("%d/%d = %s", g.Confirmed, g.OverRead, pct(g.PPV.Value()))
+	}
+	return views.StatRowView{Group: label, Flagged: g.Flagged, WithRecording: g.WithRecording, OverRead: g.OverRead, Confirmed: g.Confirmed,
+		PPV: ppv, Wilson: intervalText(g.Wilson, g.OverRead), Exact: intervalText(g.Exact, g.OverRead),
+		Uninterpretable: fractionText(g.Uninterpretable), Median: med, MedianCI: ci, Censored: g.Censored}
+}
+
+// statsCSVHref is the download address of one table with the page's choice.
+func statsCSVHref(table string, q url.Values) string {
+	v := url.Values{"table": {table}}
+	for _, k := range []string{"protocol", "site"} {
+		if q.Get(k) != "" {
+			v.Set(k, q.Get(k))
+		}
+	}
+	return "/confirmations/statistics.csv?" + v.Encode()
+}
+
+// confirmationStats is the agreement statistics page: aggregate,
+// de-identified numbers only, so monitors may see it.
+func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	q := r.URL.Query()
+	a, err := s.store.Agreement(ctx, statsFilter(q))
+	if err != nil {
+		return err
+	}
+	sites, _, err := s.siteOptions(ctx)
+	if err != nil {
+		return err
+	}
+	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.String(), Protocol: a.Protocol.Label(),
+		ProtoID: strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
+	for _, t := range []string{"versions", "groups", "km", "kappa"} {
+		m.CSV[t] = statsCSVHref(t, q)
+	}
+	for _, v := range a.Versions {
+		label := v.Label()
+		if v.Active {
+			label += " (active)"
+		}
+		m.Protocols = append(m.Protocols, views.Option{Value: strconv.Itoa(v.ID), Label: label})
+	}
+	for _, g := range a.ByVersion {
+		m.ByVersion = append(m.ByVersion, statRow(g))
+	}
+	for _, g := range a.Groups {
+		m.Groups = append(m.Groups, statRow(g))
+	}
+	for _, st := range a.Curve.Steps {
+		m.KM = append(m.KM, views.KMRowView{Day: strconv.FormatFloat(st.Time, 'f', -1, 64), AtRisk: st.AtRisk, Events: st.Events,
+			Censored: st.Censored, Survival: pct(st.Survival), Band: pct(st.Lo) + " – " + pct(st.Hi)})
+	}
+	m.Kappa = kappaView(a.Kappa)
+
+	km, scripts, err := chartView("km", "Kaplan-Meier curve: share of flagged episodes still without an over-read by days since the flag, with its 95% band", kmChart(a.Curve), false)
+	if err != nil {
+		return err
+	}
+	m.KMChart, m.Page.Scripts = km, scripts
+	if ppv, ok := ppvChart(a.Groups); ok {
+		if m.PPVChart, _, err = chartView("ppv", "PPV of the flag by subgroup, each with its 95% Wilson interval", ppv, false); err != nil {
+			return err
+		}
+		m.HasPPV = true
+	}
+	return s.ok(w, r, views.Statistics(m))
+}
+
+func kappaView(k db.KappaResult) views.KappaView {
+	v := views.KappaView{Rows: k.Table, N: k.N, Note: k.Err, Mapping: overread.CategoryMapping}
+	for _, c := range k.Categories {
+		v.Categories = append(v.Categories, string(c))
+	}
+	if k.Err == "" {
+		f := func(x float64) string { return strconv.FormatFloat(x, 'f', 3, 64) }
+		v.Kappa, v.CI, v.Po, v.Pe = f(k.Kappa.Kappa), f(k.CI.Lo)+" – "+f(k.CI.Hi), f(k.Kappa.Po), f(k.Kappa.Pe)
+	}
+	return v
+}
+
+// kmChart draws the Kaplan-Meier estimate as a step line (the curve drops at
+// each over-read day and stays flat between), with its pointwise band dashed.
+func kmChart(c stats.Curve) *charts.Line {
+	line := charts.NewLine()
+	line.SetGlobalOptions(charts.WithInitializationOpts(chartInit("km")),
+		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Bottom: "0"}),
+		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: "days since the flag", Min: 0}),
+		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: "still without an over-read", Min: 0, Max: 1}))
+	est := []opts.LineData{{Value: []float64{0, 1}}}
+	lo := []opts.LineData{{Value: []float64{0, 1}}}
+	hi := []opts.LineData{{Value: []float64{0, 1}}}
+	for _, st := range c.Steps {
+		est = append(est, opts.LineData{Value: []float64{st.Time, round4(st.Survival)}})
+		lo = append(lo, opts.LineData{Value: []float64{st.Time, round4(st.Lo)}})
+		hi = append(hi, opts.LineData{Value: []float64{st.Time, round4(st.Hi)}})
+	}
+	step := charts.WithLineChartOpts(opts.LineChart{Step: "end", ShowSymbol: opts.Bool(false)})
+	dashed := charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})
+	line.AddSeries("Kaplan-Meier estimate", est, step)
+	line.AddSeries("95% band, lower", lo, step, dashed)
+	line.AddSeries("95% band, upper", hi, step, dashed)
+	return line
+}
+
+func round4(v float64) float64 {
+	if math.IsNaN(v) {
+		return 0
+	}
+	return math.Round(v*10000) / 10000
+}
+
+// ppvChart draws each subgroup's PPV with its Wilson interval as a box plot
+// whose box collapses onto the estimate and whose whiskers are the interval
+// (ECharts has no error bars of its own). Groups without an over-read are
+// left out; false when none is left.
+func ppvChart(groups []db.AgreementGroup) (*charts.BoxPlot, bool) {
+	var labels []string
+	var data []opts.BoxPlotData
+	var points []opts.ScatterData
+	for _, g := range groups {
+		if g.OverRead == 0 {
+			continue
+		}
+		label := g.Label
+		if g.Dimension != "all" {
+			label = g.Dimension + " " + g.Label
+		}
+		p := round4(g.PPV.Value())
+		labels = append(labels, label)
+		data = append(data, opts.BoxPlotData{Name: label, Value: []float64{round4(g.Wilson.Lo), p, p, p, round4(g.Wilson.Hi)}})
+		points = append(points, opts.ScatterData{Name: fmt.Sprintf("%s: %d/%d", label, g.Confirmed, g.OverRead), Value: p, Symbol: "diamond", SymbolSize: 12})
+	}
+	if len(data) == 0 {
+		return nil, false
+	}
+	bp := charts.NewBoxPlot()
+	bp.SetGlobalOptions(charts.WithInitializationOpts(chartInit("ppv")),
+		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "item"}),
+		charts.WithYAxisOpts(opts.YAxis{Name: "PPV (95% Wilson interval)", Min: 0, Max: 1}))
+	bp.SetXAxis(labels).AddSeries("95% Wilson interval", data)
+	est := charts.NewScatter()
+	est.SetXAxis(labels).AddSeries("PPV", points)
+	bp.Overlap(est)
+	return bp, true
+}
+
+// confirmationStatsCSV downloads one table of the statistics page: versions,
+// groups, km or kappa.
+func (s *Server) confirmationStatsCSV(w http.ResponseWriter, r *http.Request) error {
+	q := r.URL.Query()
+	table := q.Get("table")
+	if table == "" {
+		table = "groups"
+	}
+	if table != "versions" && table != "groups" && table != "km" && table != "kappa" {
+		return errNotFound
+	}
+	a, err := s.store.Agreement(r.Context(), statsFilter(q))
+	if err != nil {
+		return err
+	}
+	if err := s.store.Audit(r.Context(), s.actor(r), "statistics.download", "statistics", table, nil,
+		map[string]any{"protocol_id": a.Protocol.ID, "site_id": q.Get("site")}); err != nil {
+		return err
+	}
+	num := func(v float64) string {
+		if math.IsNaN(v) {
+			return ""
+		}
+		return strconv.FormatFloat(v, 'f', 6, 64)
+	}
+	var rows [][]string
+	switch table {
+	case "versions", "groups":
+		rows = append(rows, []string{"protocol", "dimension", "group", "flagged_episodes", "with_recording", "over_read", "af_confirmed",
+			"ppv", "wilson_lo", "wilson_hi", "exact_lo", "exact_hi", "uninterpretable", "settled_read", "median_days", "median_lo", "median_hi",
+			"events", "censored"})
+		gs := a.Groups
+		if table == "versions" {
+			gs = a.ByVersion
+		}
+		for _, g := range gs {
+			ci := func(iv stats.Interval) (string, string) {
+				if g.OverRead == 0 {
+					return "", ""
+				}
+				return num(iv.Lo), num(iv.Hi)
+			}
+			wl, wh := ci(g.Wilson)
+			el, eh := ci(g.Exact)
+			med := func(ok bool, v float64) string {
+				if !ok {
+					return ""
+				}
+				return num(v)
+			}
+			proto := a.Protocol.Label()
+			if table == "versions" {
+				proto = g.Label
+			}
+			rows = append(rows, []string{csvSafe(proto), g.Dimension, csvSafe(g.Label), strconv.Itoa(g.Flagged), strconv.Itoa(g.WithRecording),
+				strconv.Itoa(g.OverRead), strconv.Itoa(g.Confirmed), num(g.PPV.Value()), wl, wh, el, eh,
+				strconv.Itoa(g.Uninterpretable.X), strconv.Itoa(g.Uninterpretable.N),
+				med(g.Median.Reached, g.Median.Time), med(g.Median.LoReached, g.Median.Lo), med(g.Median.HiReached, g.Median.Hi),
+				strconv.Itoa(g.Events), strconv.Itoa(g.Censored)})
+		}
+	case "km":
+		rows = append(rows, []string{"day", "at_risk", "over_read", "censored", "survival", "se", "lo", "hi"})
+		for _, st := range a.Curve.Steps {
+			rows = append(rows, []string{num(st.Time), strconv.Itoa(st.AtRisk), strconv.Itoa(st.Events), strconv.Itoa(st.Censored),
+				num(st.Survival), num(st.SE), num(st.Lo), num(st.Hi)})
+		}
+	case "kappa":
+		head := []string{"recorder \\ over-read"}
+		for _, c := range a.Kappa.Categories {
+			head = append(head, string(c))
+		}
+		rows = append(rows, head)
+		for i, row := range a.Kappa.Table {
+			line := []string{string(a.Kappa.Categories[i])}
+			for _, v := range row {
+				line = append(line, strconv.Itoa(v))
+			}
+			rows = append(rows, line)
+		}
+		if a.Kappa.Err == "" {
+			rows = append(rows, []string{"kappa", num(a.Kappa.Kappa.Kappa)}, []string{"kappa_ci_lo", num(a.Kappa.CI.Lo)},
+				[]string{"kappa_ci_hi", num(a.Kappa.CI.Hi)}, []string{"n", strconv.Itoa(a.Kappa.N)})
+		}
+	}
+	w.Header().Set("Content-Type", "text/csv; charset=utf-8")
+	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="agreement-%s-protocol-%d.csv"`, table, a.Protocol.ID))
+	cw := csv.NewWriter(w)
+	_ = cw.WriteAll(rows)
+	return cw.Error()
+}

@@ -1,0 +1,407 @@
+package web
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"net/http"
+	"strconv"
+	"strings"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
+	"cohortdesk/db"
+	"cohortdesk/views"
+	"cohortdesk/views/components"
+
+	"github.com/a-h/templ"
+)
+
+// recordingStore is what the recording pages, the confirmations area and the
+// agreement statistics need from the database.
+type recordingStore interface {
+	AddRecording(ctx context.Context, a cohort.Actor, caseID int64, in db.RecordingInput) (db.Recording, error)
+	Recording(ctx context.Context, id int64) (db.Recording, error)
+	CaseRecordings(ctx context.Context, caseID int64) ([]db.Recording, error)
+	RecordingWaveform(ctx context.Context, id int64) (ecg.Waveform, error)
+	AddOverRead(ctx context.Context, a cohort.Actor, recordingID int64, in db.OverReadInput) (db.Recording, error)
+	Confirmations(ctx context.Context, limit int) (db.Confirmations, error)
+	Agreement(ctx context.Context, f db.CascadeFilter) (db.Agreement, error)
+}
+
+// recordingMemory is how much of an upload is held in memory; the rest of a
+// (rare) large file waits in a temporary file until intake has read it.
+const recordingMemory = 8 << 20
+
+// verdictView words a recording's verdict for badges.
+func verdictView(r db.Recording) (string, components.Tone) {
+	v := r.Verdict
+	switch {
+	case v.Status == overread.Unread:
+		return "waiting for an over-read", components.Warn
+	case v.Status == overread.Disagreed:
+		return "readers disagree", components.Alarm
+	case r.TooShort:
+		return v.Rhythm.Label() + " (under 30 s, not diagnostic)", components.Neutral
+	case v.Rhythm == overread.AF:
+		return v.Rhythm.Label(), components.Alarm
+	case v.Rhythm == overread.Uninterpretable:
+		return v.Rhythm.Label(), components.Warn
+	}
+	return v.Rhythm.Label(), components.Info
+}
+
+func seconds(s float64) string { return strconv.FormatFloat(s, 'f', 1, 64) + " s" }
+
+// acceptsRecordings says why a case cannot take a recording now, "" when it
+// can (the store's rule, as a sentence).
+func acceptsRecordings(st followup.State) string {
+	msg := db.TakesRecordings(st)
+	if msg == "" {
+		return ""
+	}
+	return strings.ToUpper(msg[:1]) + msg[1:] + "."
+}
+
+// caseECG builds the recordings panel of a case page.
+func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now time.Time) (templ.Component, error) {
+	recs, err := s.store.CaseRecordings(r.Context(), c.ID)
+	if err != nil {
+		return nil, err
+	}
+	m := views.CaseECGModel{CaseID: c.ID, CanAdd: coordWork.allows(role(r)), Closed: acceptsRecordings(c.State), Errors: errs,
+		MaxBytes: humanBytes(db.MaxRecordingFileBytes), Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
+	if r.MultipartForm != nil {
+		// A refused upload: show what was entered (a browser never refills a file field).
+		for _, k := range []string{"auto", "taken_at", "duration_s", "rate_hz", "received_on"} {
+			if v := r.MultipartForm.Value[k]; len(v) > 0 {
+				m.Values[k] = v[0]
+			}
+		}
+	}
+	for _, a := range overread.Autos() {
+		m.Autos = append(m.Autos, views.Option{Value: string(a), Label: a.Label()})
+	}
+	for _, rec := range recs {
+		verdict, tone := verdictView(rec)
+		m.Recordings = append(m.Recordings, views.RecordingLinkView{Href: fmt.Sprintf("/recordings/%d", rec.ID),
+			Taken: rec.TakenAt.In(now.Location()).Format("2006-01-02 15:04"), Duration: seconds(rec.DurationS), TooShort: rec.TooShort,
+			Auto: rec.Auto.Label(), Waveform: rec.HasWaveform(), Verdict: verdict, VerdictTone: tone})
+	}
+	return views.CaseECG(m), nil
+}
+
+// recordingInput reads the intake form: times in the study's zone, numbers,
+// and the optional file.
+func (s *Server) recordingInput(r *http.Request, loc *time.Location) (db.RecordingInput, error) {
+	var in db.RecordingInput
+	var ve cohort.ValidationError
+	f := r.MultipartForm.Value
+	val := func(k string) string {
+		if v := f[k]; len(v) > 0 {
+			return strings.TrimSpace(v[0])
+		}
+		return ""
+	}
+	in.Auto = val("auto")
+	if v := val("taken_at"); v != "" {
+		t, err := time.ParseInLocation("2006-01-02T15:04", v, loc)
+		if err != nil {
+			ve.Add("taken_at", "enter the time as YYYY-MM-DD HH:MM")
+		}
+		in.TakenAt = t
+	}
+	if v := val("received_on"); v != "" {
+		d, err := cohort.ParseDate(v)
+		switch {
+		case err != nil:
+			ve.Add("received_on", "enter the date as YYYY-MM-DD")
+		case d != cohort.DateOf(s.now().In(loc)):
+			// A past day: noon of that day keeps the right day in every
+			// zone; today is now, which the store takes for a zero time.
+			in.ReceivedAt = time.Date(d.Year, d.Month, d.Day, 12, 0, 0, 0, loc)
+		}
+	}
+	if v := val("duration_s"); v != "" {
+		d, err := strconv.ParseFloat(v, 64)
+		if err != nil {
+			ve.Add("duration_s", "enter the duration as a number of seconds")
+		}
+		in.DurationS = d
+	}
+	if v := val("rate_hz"); v != "" {
+		hz, err := strconv.ParseFloat(v, 64)
+		if err != nil || !(hz > 0) {
+			ve.Add("rate_hz", "enter the sampling rate as a number of samples per second")
+		}
+		in.CSVRateHz = hz
+	}
+	if fhs := r.MultipartForm.File["waveform"]; len(fhs) > 0 && fhs[0].Size > 0 {
+		fh := fhs[0]
+		if fh.Size > db.MaxRecordingFileBytes {
+			ve.Add("waveform", fmt.Sprintf("the file is larger than %s, more than any handheld recording; nothing was stored", humanBytes(db.MaxRecordingFileBytes)))
+		} else {
+			file, err := fh.Open()
+			if err != nil {
+				return in, err
+			}
+			defer file.Close()
+			if in.File, err = io.ReadAll(file); err != nil {
+				return in, err
+			}
+			in.FileName = fh.Filename
+		}
+	}
+	return in, ve.Err()
+}
+
+// caseRecordingAdd stores a recording from the case page's form. A refusal
+// shows the case page again with the reasons beside the fields; nothing is
+// stored.
+func (s *Server) caseRecordingAdd(w http.ResponseWriter, r *http.Request) error {
+	id, err := caseIDParam(r)
+	if err != nil {
+		return err
+	}
+	if _, err := s.store.Case(r.Context(), id); err != nil {
+		return err
+	}
+	r.Body = http.MaxBytesReader(w, r.Body, db.MaxRecordingFileBytes+1<<20)
+	err = r.ParseMultipartForm(recordingMemory)
+	if err == nil {
+		defer r.MultipartForm.RemoveAll()
+		var st db.StudySettings
+		if st, err = s.store.StudySettings(r.Context()); err != nil {
+			return err
+		}
+		var in db.RecordingInput
+		if in, err = s.recordingInput(r, st.Location()); err == nil {
+			var rec db.Recording
+			if rec, err = s.store.AddRecording(r.Context(), s.actor(r), id, in); err == nil {
+				http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=added", rec.ID), http.StatusSeeOther)
+				return nil
+			}
+		}
+	} else {
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			return uploadErr(err)
+		}
+		err = &cohort.ValidationError{Fields: map[string]string{"waveform": "send the form as a multipart upload"}}
+	}
+	if statusOf(err) != http.StatusUnprocessableEntity {
+		return err
+	}
+	var ve *cohort.ValidationError
+	errors.As(err, &ve)
+	c, err := s.store.Case(r.Context(), id)
+	if err != nil {
+		return err
+	}
+	return s.renderCase(w, r, c, http.StatusUnprocessableEntity, ve.Fields, "The recording was not stored: "+humanMessage(ve))
+}
+
+func recordingIDParam(r *http.Request) (int64, error) {
+	id, err := strconv.ParseInt(urlParam(r, "id"), 10, 64)
+	if err != nil || id <= 0 {
+		return 0, errNotFound
+	}
+	return id, nil
+}
+
+// recordingShow is a recording's page.
+func (s *Server) recordingShow(w http.ResponseWriter, r *http.Request) error {
+	id, err := recordingIDParam(r)
+	if err != nil {
+		return err
+	}
+	rec, err := s.store.Recording(r.Context(), id)
+	if err != nil {
+		return err
+	}
+	return s.renderRecording(w, r, rec, http.StatusOK, nil, "")
+}
+
+var recordingDone = map[string]string{
+	"added": "Recording stored.",
+	"read":  "Reading entered.",
+}
+
+func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.Recording, status int, errs map[string]string, msg string) error {
+	ctx := r.Context()
+	st, err := s.store.StudySettings(ctx)
+	if err != nil {
+		return err
+	}
+	loc := st.Location()
+	now := s.now().In(loc)
+	when := func(t time.Time) string { return t.In(loc).Format("2006-01-02 15:04 MST") }
+	verdict, tone := verdictView(rec)
+	m := views.RecordingModel{Page: s.page(r, "Recording "+rec.StudyID, "confirmations"), ID: rec.ID, StudyID: rec.StudyID,
+		CaseHref: fmt.Sprintf("/cases/%d", rec.CaseID), ParticipantHref: fmt.Sprintf("/participants/%d", rec.ParticipantID),
+		TooShort: rec.TooShort, Hint: rec.Hint.Text, Warnings: rec.Hint.Warnings, Verdict: verdict, VerdictTone: tone,
+		Disagreement: rec.Verdict.Status == overread.Disagreed, Errors: errs, Message: msg}
+	if msg == "" {
+		m.Flash = recordingDone[r.URL.Query().Get("done")]
+	}
+	duration := seconds(rec.DurationS)
+	if rec.TooShort {
+		duration += " (too short for a diagnostic read)"
+	}
+	m.Facts = []views.FactView{
+		{Label: "Site", Value: rec.SiteCode},
+		{Label: "Case state", Value: rec.CaseState.Label()},
+		{Label: "Taken", Value: when(rec.TakenAt), Testid: "recording-taken"},
+		{Label: "Received", Value: when(rec.ReceivedAt)},
+		{Label: "Duration", Value: duration, Testid: "recording-duration"},
+		{Label: "Recorder's own interpretation", Value: rec.Auto.Label(), Testid: "recording-auto"},
+		{Label: "Readings", Value: rec.Verdict.Status.Label()},
+	}
+	if rec.HasWaveform() {
+		m.Facts = append(m.Facts,
+			views.FactView{Label: "Waveform", Value: strings.ToUpper(rec.Format) + ", " + strconv.FormatFloat(rec.RateHz, 'f', -1, 64) + " Hz", Testid: "recording-format"},
+			views.FactView{Label: "Lead", Value: rec.LeadLabel},
+			views.FactView{Label: "Beats detected", Value: fmt.Sprintf("%d (mean heart rate %.0f bpm)", rec.Hint.Beats, rec.Hint.MeanHR), Testid: "recording-beats"})
+		if rec.FileName != "" {
+			m.Facts = append(m.Facts, views.FactView{Label: "File", Value: rec.FileName})
+		}
+		if rec.SHA256 != "" {
+			m.Facts = append(m.Facts, views.FactView{Label: "SHA-256", Value: rec.SHA256[:16] + "…"})
+		}
+	} else if m.Hint == "" {
+		m.Hint = "No waveform: no beat analysis."
+	}
+	m.Facts = append(m.Facts, views.FactView{Label: "Entered by", Value: rec.CreatedBy + ", " + when(rec.CreatedAt)})
+	if rec.HasWaveform() {
+		wf, err := s.store.RecordingWaveform(ctx, rec.ID)
+		if err != nil {
+			return err
+		}
+		caption := fmt.Sprintf("25 mm/s · 10 mm/mV · %s · %d beats detected (ticks above the trace)", seconds(rec.DurationS), len(rec.Beats))
+		m.HasStrip, m.Strip = true, stripView(fmt.Sprintf("rec%d", rec.ID), ecg.Layout(wf, rec.Beats, ecg.StripOptions{}), caption)
+	}
+	m.Readings = readingViews(rec)
+	u, _ := userFrom(ctx)
+	next := overread.Next(readingsOf(rec))
+	switch {
+	case !clinical.allows(role(r)):
+		m.FormNote = "Over-reads are entered by investigators."
+	case next == "":
+		m.FormNote = "This recording's readings are complete."
+	case next == overread.Second && rec.Readings[0].ReaderID == u.ID:
+		m.FormNote = "You gave the first reading. A second reading, if the study wants one, comes from another investigator."
+	default:
+		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain)}
+		if r.PostForm.Get("role") == string(next) {
+			// A refused entry: show it again.
+			f.Rhythm, f.Comment = r.PostForm.Get("rhythm"), r.PostForm.Get("comment")
+			if v := r.PostForm.Get("confidence"); v != "" {
+				f.Confidence = v
+			}
+			if v := r.PostForm.Get("read_on"); v != "" {
+				f.Today = v
+			}
+		}
+		switch next {
+		case overread.First:
+			f.Title, f.Intro = "Over-read", "Your reading is the recording's verdict unless a second reader disagrees."
+		case overread.Second:
+			f.Title, f.Intro, f.Blind = "Second reading (optional)", "An independent second reading: enter yours before opening the first one. If the rhythms differ, the recording waits for an adjudication.", true
+		case overread.Adjudication:
+			f.Title, f.Intro = "Adjudication", "The two readers disagree. Your entry settles the recording's verdict."
+		}
+		for _, rh := range overread.Rhythms() {
+			f.Rhythms = append(f.Rhythms, views.Option{Value: string(rh), Label: rh.Label()})
+		}
+		for _, c := range overread.Confidences() {
+			f.Confidences = append(f.Confidences, views.Option{Value: string(c), Label: c.Label()})
+		}
+		m.Form = f
+	}
+	s.render(w, r, status, views.RecordingPage(m))
+	return nil
+}
+
+func readingsOf(rec db.Recording) []overread.Reading {
+	out := make([]overread.Reading, len(rec.Readings))
+	for i, o := range rec.Readings {
+		out[i] = o.Reading
+	}
+	return out
+}
+
+// readingViews lists the readings; when two readers differ, their rhythm
+// cells are marked, and differing confidence of agreeing readers is marked
+// more softly.
+func readingViews(rec db.Recording) []views.ReadingView {
+	var first, second *db.OverRead
+	for i := range rec.Readings {
+		switch rec.Readings[i].Role {
+		case overread.First:
+			first = &rec.Readings[i]
+		case overread.Second:
+			second = &rec.Readings[i]
+		}
+	}
+	differ := first != nil && second != nil && first.Rhythm != second.Rhythm
+	var out []views.ReadingView
+	for _, o := range rec.Readings {
+		v := views.ReadingView{Role: o.Role.Label(), Rhythm: o.Rhythm.Label(), Confidence: o.Confidence.Label(), Reader: o.Reader,
+			On: o.On.String(), Comment: o.Comment}
+		if o.Role != overread.Adjudication {
+			v.RhythmDiffers = differ
+			v.ConfidenceDiffers = rec.Verdict.ConfidenceDiffers
+		} else if first != nil && second != nil && (o.ReaderID == first.ReaderID || o.ReaderID == second.ReaderID) {
+			v.Note = "by one of the two readers"
+		}
+		if o.CreatedBy != "" && o.CreatedBy != o.Reader {
+			v.Note = strings.TrimPrefix(v.Note+"; entered by "+o.CreatedBy, "; ")
+		}
+		out = append(out, v)
+	}
+	return out
+}
+
+// recordingOverRead enters a reading by the signed-in investigator.
+func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error {
+	id, err := recordingIDParam(r)
+	if err != nil {
+		return err
+	}
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	u, _ := userFrom(r.Context())
+	in := db.OverReadInput{Role: r.PostForm.Get("role"), Rhythm: r.PostForm.Get("rhythm"), Confidence: r.PostForm.Get("confidence"),
+		Comment: r.PostForm.Get("comment"), ReaderID: u.ID}
+	var ve cohort.ValidationError
+	if v := strings.TrimSpace(r.PostForm.Get("read_on")); v != "" {
+		d, err := cohort.ParseDate(v)
+		if err != nil {
+			ve.Add("read_on", "enter the date as YYYY-MM-DD")
+		}
+		in.ReadOn = d
+	}
+	err = ve.Err()
+	if err == nil {
+		_, err = s.store.AddOverRead(r.Context(), s.actor(r), id, in)
+	}
+	if err == nil {
+		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=read", id), http.StatusSeeOther)
+		return nil
+	}
+	if statusOf(err) != http.StatusUnprocessableEntity {
+		return err
+	}
+	rec, lerr := s.store.Recording(r.Context(), id)
+	if lerr != nil {
+		return lerr
+	}
+	var fe *cohort.ValidationError
+	errors.As(err, &fe)
+	return s.renderRecording(w, r, rec, http.StatusUnprocessableEntity, fe.Fields, "The reading was not entered: "+humanMessage(err))
+}
