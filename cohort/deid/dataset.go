@@ -194,16 +194,16 @@ type ScreenRecord struct {
 
 // CaseRecord is one follow-up case. Zero times are unset.
 type CaseRecord struct {
-	StudyID    string
-	EnrolledOn cohort.Date
-	Location   *time.Location // the participant's time zone
-	Number     int            // 1, 2, ... within the participant
-	ProtocolID int
-	FirstWeek  int
-	LastWeek   int
-	State      string
+	StudyID                                                                     string
+	EnrolledOn                                                                  cohort.Date
+	Location                                                                    *time.Location // the participant's time zone
+	Number                                                                      int            // 1, 2, ... within the participant
+	ProtocolID                                                                  int
+	FirstWeek                                                                   int
+	LastWeek                                                                    int
+	State                                                                       string
 	FlaggedAt, ReachedAt, RecorderSentAt, RecordingBackAt, OverReadAt, ClosedAt time.Time
-	Attempts   int
+	Attempts                                                                    int
 }
 
 // OverReadRecord is one over-read with its recording.
