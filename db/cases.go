@@ -902,43 +902,49 @@ func (s *Store) CloseCasesForWithdrawal(ctx context.Context, a cohort.Actor, par
 func (s *Store) AdvanceCase(ctx context.Context, a cohort.Actor, id int64, to followup.State, at time.Time, reason string) (Case, error) {
 	var out Case
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		cur, err := lockCase(ctx, tx, id)
-		if err != nil {
-			return err
-		}
-		if cur.State == to {
-			out = cur
-			return nil
-		}
-		out, err = s.editCase(ctx, tx, a, id, anyVersion, caseEdit{
-			action: "case.advance",
-			intent: stateIntent(to),
-			apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
-				if err := followup.Move(cur.State, to); err != nil {
-					return err
-				}
-				reason = strings.TrimSpace(reason)
-				if to.Terminal() && reason == "" {
-					return &cohort.ValidationError{Fields: map[string]string{"reason": "say why the case ends this way"}}
-				}
-				when := at
-				if when.IsZero() {
-					when = s.now()
-				}
-				enterState(next, cur.State, to, when)
-				if to.Terminal() {
-					next.ClosingNote = reason
-				}
-				rec.Reason = reason
-				return nil
-			},
-		})
+		var err error
+		out, err = s.advanceCase(ctx, tx, a, id, to, at, reason)
 		return err
 	})
 	if err != nil {
 		return Case{}, mapCaseErr("advance case", err)
 	}
 	return out, nil
+}
+
+// advanceCase is AdvanceCase inside the caller's transaction, for steps that
+// must commit together with the move (a referral's sign-off).
+func (s *Store) advanceCase(ctx context.Context, tx pgx.Tx, a cohort.Actor, id int64, to followup.State, at time.Time, reason string) (Case, error) {
+	cur, err := lockCase(ctx, tx, id)
+	if err != nil {
+		return Case{}, err
+	}
+	if cur.State == to {
+		return cur, nil
+	}
+	return s.editCase(ctx, tx, a, id, anyVersion, caseEdit{
+		action: "case.advance",
+		intent: stateIntent(to),
+		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
+			if err := followup.Move(cur.State, to); err != nil {
+				return err
+			}
+			reason = strings.TrimSpace(reason)
+			if to.Terminal() && reason == "" {
+				return &cohort.ValidationError{Fields: map[string]string{"reason": "say why the case ends this way"}}
+			}
+			when := at
+			if when.IsZero() {
+				when = s.now()
+			}
+			enterState(next, cur.State, to, when)
+			if to.Terminal() {
+				next.ClosingNote = reason
+			}
+			rec.Reason = reason
+			return nil
+		},
+	})
 }
 
 // rescheduleOpenCases recomputes the next action and deadline of every case
