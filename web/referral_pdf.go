@@ -160,7 +160,6 @@ func referralPDF(sum referral.Summary, paper string) ([]byte, error) {
 	d.heading("Contacting the study team")
 	d.body(orDash(sum.ContactRoute))
 
-
 	var buf bytes.Buffer
 	if err := f.Output(&buf); err != nil {
 		return nil, fmt.Errorf("web: referral PDF: %w", err)
