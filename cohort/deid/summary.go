@@ -4,6 +4,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/stats"
 )
 
 // ReviewCaution is the caution every de-identified document and export
@@ -21,7 +22,7 @@ func SummaryAgeCuts() []int { return []int{50, 55, 60, 65, 70, 75, 80, 85, 90} }
 
 // ExportAgeCuts are the age bands of the dataset export: the statistics
 // pages' subgroup bands, so analyses of the export match the tool's own.
-func ExportAgeCuts() []int { return []int{50, 60, 70, 80} }
+func ExportAgeCuts() []int { return stats.DefaultAgeCuts() }
 
 // PlaceholderDate is the date written where a file format insists on one
 // (PDF creation and modification dates, zip entry times). A real day would
