@@ -2,6 +2,7 @@ package web
 
 import (
 	"bytes"
+	"context"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -15,6 +16,7 @@ import (
 	"cohortdesk/cohort/referral"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
+	"cohortdesk/views"
 	"cohortdesk/views/components"
 )
 
@@ -129,4 +131,30 @@ func TestReferralPDF(t *testing.T) {
 			t.Errorf("%s: the PDF bytes hold a year of the participant's dates", tt.paper)
 		}
 	}
+}
+
+// BenchmarkReferralPDF measures drawing a summary as a PDF on the server,
+// with drawing the same summary's HTML print view as the baseline measured
+// in the same run; it reports the PDF's size and the time ratio.
+func BenchmarkReferralPDF(b *testing.B) {
+	sum := testSummary(b)
+	doc := referralDoc(sum)
+	var html time.Duration
+	var size int
+	for b.Loop() {
+		t0 := time.Now()
+		var buf bytes.Buffer
+		if err := views.ReferralDocument(doc, paperA4, false).Render(context.Background(), &buf); err != nil {
+			b.Fatal(err)
+		}
+		html += time.Since(t0)
+		pdf, err := referralPDF(sum, paperA4)
+		if err != nil {
+			b.Fatal(err)
+		}
+		size = len(pdf)
+	}
+	b.ReportMetric(float64(size)/1024, "pdf-kB")
+	b.ReportMetric(float64(html.Nanoseconds())/float64(b.N), "html-ns/op")
+	b.ReportMetric(float64(b.Elapsed()-html)/float64(html), "pdf/html")
 }
