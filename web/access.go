@@ -51,6 +51,7 @@ var (
 	analysis   = allow(cohort.Investigator, cohort.Monitor, cohort.Admin, cohort.Coordinator) // statistics and progress
 	deidExport = allow(cohort.Investigator, cohort.Admin)                                     // de-identified dataset export
 	referrals  = allow(cohort.Coordinator, cohort.Investigator)                               // referral summaries
+	exportArea = allow(cohort.Coordinator, cohort.Investigator, cohort.Admin)                 // the exports page: summaries and dataset exports
 	adminOnly  = allow(cohort.Admin)
 	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold explorer: investigators weigh, admins set protocols
 )

@@ -3,13 +3,21 @@ package web
 import (
 	"context"
 	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
 
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/views/components"
 	"cohortdesk/web/browsertest"
 
+	"github.com/chromedp/cdproto/page"
 	"github.com/chromedp/chromedp"
 )
 
@@ -96,5 +104,69 @@ func TestBrowserCoordinatorWorksACaseFromTriage(t *testing.T) {
 	)
 	if got := b.Text("owner via keyboard", next+` [data-testid="row-owner"]`); got != "Test Coordinator" {
 		t.Fatalf("owner after the keyboard action %q", got)
+	}
+}
+
+// TestBrowserPrintsReferralOnChosenPaper prints the summary's print view
+// from headless Chromium with the page size the CSS asks for: A4 is 595 x
+// 842 pt and US Letter 612 x 792 pt (ISO 216 and ANSI paper sizes; common
+// knowledge). The printout holds the referral code and the cautions, not
+// the application's navigation, and none of the demo's canary identifiers.
+func TestBrowserPrintsReferralOnChosenPaper(t *testing.T) {
+	a := newApp(t)
+	_, canaries, pids, cases := demoCanaries(t, a)
+	var sid string
+	for k := range pids {
+		sid = k
+		break
+	}
+	b := browsertest.Start(t, 90*time.Second)
+	b.Do("sign in",
+		chromedp.Navigate(a.ts.URL+"/signin"),
+		chromedp.WaitVisible(chromedp.ID("email")),
+		chromedp.SendKeys(chromedp.ID("email"), "coordinator@example.org"),
+		chromedp.SendKeys(chromedp.ID("password"), testPassword),
+		chromedp.Click(chromedp.CSS(`[data-testid="signin-submit"]`)),
+		chromedp.WaitVisible(chromedp.CSS(`[data-testid="nav-exports"]`)),
+	)
+	mediaBox := regexp.MustCompile(`/MediaBox\s*\[\s*0\s+0\s+([0-9.]+)\s+([0-9.]+)\s*\]`)
+	for _, tt := range []struct {
+		paper string
+		w, h  float64
+	}{{"a4", 595.28, 841.89}, {"letter", 612, 792}} {
+		b.Do("open the print view on "+tt.paper,
+			chromedp.Navigate(fmt.Sprintf("%s/participants/%d/referral?case=%d&paper=%s", a.ts.URL, pids[sid], cases[sid], tt.paper)),
+			chromedp.WaitVisible(chromedp.CSS(`[data-testid="referral-code"]`)),
+		)
+		pdf, err := chromedp.Run(b.Context(), chromedp.PrintToPDF(func(p *page.PrintToPDFParams) {
+			yes := true
+			p.PreferCSSPageSize = &yes
+			p.PrintBackground = &yes
+		}))
+		if err != nil {
+			t.Fatalf("print %s: %v", tt.paper, err)
+		}
+		m := mediaBox.FindSubmatch(pdf)
+		if m == nil {
+			t.Fatalf("%s: no page size in the printout", tt.paper)
+		}
+		w, _ := strconv.ParseFloat(string(m[1]), 64)
+		h, _ := strconv.ParseFloat(string(m[2]), 64)
+		if math.Abs(w-tt.w) > 1 || math.Abs(h-tt.h) > 1 {
+			t.Errorf("%s printed on %.2f x %.2f pt, want %.2f x %.2f", tt.paper, w, h, tt.w, tt.h)
+		}
+		text := pdfText(t, pdf)
+		if !strings.Contains(text, deid.Code([]byte(testSecret), sid)) || !containsWrapped(text, components.CautionItems[0]) || !containsWrapped(text, "Preview, not issued") {
+			t.Errorf("%s printout lacks the code, the cautions or the preview mark", tt.paper)
+		}
+		if strings.Contains(text, "Triage") || strings.Contains(text, "Issue summary") {
+			t.Errorf("%s printout shows the application's navigation or forms", tt.paper)
+		}
+		if leaks := deid.Leaks(text, canaries); len(leaks) > 0 {
+			t.Errorf("%s printout leaks %v", tt.paper, leaks)
+		}
+		if os.Getenv("COHORTDESK_KEEP_PRINT") != "" {
+			os.WriteFile(filepath.Join(os.TempDir(), "referral-print-"+tt.paper+".pdf"), pdf, 0o644)
+		}
 	}
 }

@@ -486,6 +486,9 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 	for _, e := range events {
 		m.Timeline = append(m.Timeline, timelineEntry(e, loc))
 	}
+	if referrals.allows(role(r)) {
+		m.ReferralHref = fmt.Sprintf("/participants/%d/referral?case=%d", c.ParticipantID, c.ID)
+	}
 	s.render(w, r, status, views.Case(m))
 	return nil
 }

@@ -22,6 +22,9 @@ import (
 // testPassword is every test account's password.
 const testPassword = "test password 1234"
 
+// testSecret keys the test server's referral codes.
+const testSecret = "web test deployment secret, fixed for the tests"
+
 // app is a running server on a fresh database with one account per role.
 type app struct {
 	t     *testing.T
@@ -35,7 +38,7 @@ func newApp(t *testing.T) *app {
 	t.Helper()
 	pool := dbtest.Pool(t)
 	store := db.New(pool, nil)
-	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams})
+	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams, Secret: []byte(testSecret)})
 	ts := httptest.NewServer(srv.Handler())
 	t.Cleanup(ts.Close)
 	a := &app{t: t, ts: ts, store: store, srv: srv, users: map[cohort.Role]db.User{}}

@@ -70,6 +70,16 @@ func (s *Server) routes() []route {
 		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
 		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},
 
+		{"GET", "/participants/{id}/referral", referrals, s.referralPreview},
+		{"POST", "/participants/{id}/referral", referrals, s.referralIssue},
+		{"GET", "/referrals/new", referrals, s.referralFind},
+		{"GET", "/referrals/{id}", referrals, s.referralShow},
+		{"GET", "/referrals/{id}/pdf", referrals, s.referralPDFFile},
+		{"POST", "/referrals/{id}/signoff", clinical, s.referralSignOff},
+		{"GET", "/exports", exportArea, s.exportsPage},
+		{"POST", "/exports/referrals", referrals, s.referralBatch},
+		{"POST", "/exports/dataset", deidExport, s.datasetExport},
+
 		{"GET", "/admin", adminOnly, s.adminHome},
 		{"GET", "/admin/users", adminOnly, s.usersList},
 		{"POST", "/admin/users", adminOnly, s.userCreate},

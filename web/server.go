@@ -36,6 +36,8 @@ type Store interface {
 	studyStore
 	screeningStore
 	recordingStore
+	referralStore
+	exportStore
 }
 
 // Config is what the server is built from.
@@ -48,6 +50,10 @@ type Config struct {
 	TrustedProxies []netip.Prefix // peers whose X-Forwarded-For is believed
 	Password       auth.Params    // argon2id cost for new passwords; zero means auth.DefaultParams
 	DemoNote       string         // demo sign-in help shown on the sign-in page; empty in production
+	// Secret keys the pseudonymous referral codes (deid.Code). It must stay
+	// the same for the life of the study; without one, summaries and
+	// exports are refused.
+	Secret []byte
 }
 
 // Server holds the dependencies of the handlers.
@@ -66,12 +72,13 @@ type Server struct {
 	tlsKey         string
 	dummyOnce      sync.Once
 	dummy          string
+	secret         []byte
 }
 
 // New builds the server and its routes.
 func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
-		pwParams: cfg.Password, demoNote: cfg.DemoNote}
+		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret}
 	if s.pwParams.Memory == 0 {
 		s.pwParams = auth.DefaultParams
 	}

@@ -52,6 +52,11 @@ func runDemo(ctx context.Context, e env, args []string) error {
 	}()
 	log.Info("postgres ready", "data", cl.Dir(), "after", time.Since(start).Round(time.Millisecond).String())
 
+	if cfg.Secret == "" {
+		if cfg.Secret, err = demoSecret(cl.Dir()); err != nil {
+			return err
+		}
+	}
 	if err := ensureDatabase(ctx, cl, *reset); err != nil {
 		return err
 	}

@@ -7,6 +7,7 @@ import (
 	"net/http/cookiejar"
 	"net/url"
 	"os"
+	"path/filepath"
 	"regexp"
 	"strings"
 	"sync"
@@ -45,6 +46,7 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 	}
 	os.Chmod(dir, 0o755)
 	defer os.RemoveAll(dir)
+	var secret string
 	for pass := 1; pass <= 2; pass++ {
 		ctx, cancel := context.WithCancel(context.Background())
 		var out, errs syncBuffer
@@ -108,5 +110,16 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 		if pass == 2 && strings.Contains(errs.String(), "fictional cohort loaded") {
 			t.Error("the second run loaded the cohort again")
 		}
+		// The demo keeps a random deployment secret in its data folder,
+		// readable by its owner only, the same on the second run.
+		st, err := os.Stat(filepath.Join(dir, demoSecretFile))
+		if err != nil || st.Mode().Perm() != 0o600 {
+			t.Fatalf("pass %d: secret file: %v, mode %v", pass, err, st)
+		}
+		b, _ := os.ReadFile(filepath.Join(dir, demoSecretFile))
+		if len(strings.TrimSpace(string(b))) < 32 || (pass == 2 && string(b) != secret) {
+			t.Errorf("pass %d: secret %d characters, changed %v", pass, len(b), pass == 2 && string(b) != secret)
+		}
+		secret = string(b)
 	}
 }

@@ -77,6 +77,7 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 			Secure:   cfg.TLSCert != "" || len(proxies) > 0,
 		},
 		DemoNote: demoNote,
+		Secret:   []byte(cfg.Secret),
 	})
 	hs := web.NewHTTPServer(cfg.Addr, srv.Handler())
 	if cfg.TLSCert != "" {

@@ -109,3 +109,13 @@ func checkDate(field string, d cohort.Date) error {
 	}
 	return nil
 }
+
+// FoldAge applies the Safe Harbor age rule to an age already in whole years
+// (an age recorded at enrolment, when the birth date is not at hand): 89
+// stays 89, 90 and above become "90 or older". No birth year comes with it.
+func FoldAge(years int) Age {
+	if years > 89 {
+		return Age{Years: 90, Over89: true}
+	}
+	return Age{Years: max(years, 0)}
+}

@@ -55,7 +55,7 @@ var safeHarbor = [18]Identifier{
 	{13, "device identifiers and serial numbers", Removed, "watch and recorder serials are kept for logistics, never exported"},
 	{14, "web universal resource locators (URLs)", NotCollected, "no participant URL is stored"},
 	{15, "internet protocol (IP) address numbers", Removed, "client addresses in the audit trail are never exported"},
-	{16, "biometric identifiers, including finger and voice prints", Removed, "raw heart-rate, beat-interval and ECG waveform data are not part of exports"},
+	{16, "biometric identifiers, including finger and voice prints", Removed, "dataset exports carry no heart-rate readings, beat intervals or ECG waveforms; a referral summary shows its physician one ECG strip of up to 30 s and binned heart rates of one week, which the human review before release must accept"},
 	{17, "full face photographic images and any comparable images", NotCollected, "no images of participants are stored"},
 	{18, "any other unique identifying number, characteristic, or code", Removed, "the study ID is replaced by a keyed referral code (Code); whether that code meets 164.514(c) is for the privacy review to confirm"},
 }

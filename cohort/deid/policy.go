@@ -14,33 +14,32 @@ const (
 	ReferralSummary Export = "referral-summary"
 	// MonitorCases is the case-handling listing of the read-only monitor view.
 	MonitorCases Export = "monitor-cases"
-	// ScreeningResults is the per participant-week results file for analysis.
-	ScreeningResults Export = "screening-results"
+	// ScreeningResults is the dataset export's file of per participant-week
+	// screening results.
+	ScreeningResults Export = "dataset-screen-results"
 )
 
 // allowList holds, per export, every column that may leave the system. A
-// handler that adds a column must add it here too, where review sees it.
-// Free text (notes, contact log entries, reasons typed by staff) is on no
-// list: it can hold anything, so it never leaves. Sites appear as an opaque
-// site code, never a name or place: a site's location is a geographic unit
-// smaller than a state. Digests of a participant's input data stay inside
-// too; a digest is a unique code of its own.
+// handler that adds a column must add it here too, where review sees it. The
+// dataset export's files add theirs from their data dictionary (dataset.go).
+// Free text typed by staff (notes, contact log entries, closing reasons,
+// over-read comments) is on no list: it can hold anything, so it never
+// leaves. Sites appear as an opaque site code, never a name or place: a
+// site's location is a geographic unit smaller than a state. Digests of a
+// participant's input data stay inside too; a digest is a unique code of its
+// own.
 var allowList = map[Export][]string{
+	// The top-level fields of a referral summary's content (cohort/referral
+	// Summary as JSON), in the order the document shows them.
 	ReferralSummary: {
-		"referral_code", "age", "sex",
-		"flag_study_week", "recording_study_day", "recording_duration_s",
-		"over_read_rhythm", "over_read_study_day",
-		"cha2ds2_vasc", "cha2ds2_vasc_complete", "cha2ds2_va", "cha2ds2_va_complete",
-		"risk_items", "protocol_version",
+		"format_version", "referral_code", "issued_study_day", "protocol",
+		"age_band", "sex", "flagged_weeks", "heart_rate", "recording",
+		"over_read", "risk", "contact_route", "cautions",
 	},
 	MonitorCases: {
 		"referral_code", "site_code", "age_band", "sex",
 		"flag_study_week", "case_state", "state_study_day", "overdue",
 		"contact_attempts", "over_read_rhythm",
-	},
-	ScreeningResults: {
-		"referral_code", "site_code", "age_band", "sex", "zip3", "study_week",
-		"protocol_version", "verdict", "usable_windows", "irregular_windows", "wear_hours",
 	},
 }
 
@@ -52,6 +51,8 @@ var neverAllowed = []string{
 	"withdrawal_date", "study_id", "participant_id", "device_serial",
 	"recorder_serial", "ip_address", "notes", "note", "contact_log",
 	"withdrawal_reason", "free_text", "waveform", "site_name", "input_digest",
+	"comment", "closing_note", "tracking_number", "reader", "owner", "case_id",
+	"recording_id", "file_name", "taken_at", "read_on", "enrolled_on",
 }
 
 // Exports lists every export kind, sorted.

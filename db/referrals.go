@@ -1,0 +1,441 @@
+package db
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"strconv"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/referral"
+	"cohortdesk/cohort/risk"
+
+	"github.com/jackc/pgx/v5"
+)
+
+// effectiveRead joins a recording (alias r) to its effective over-read: the
+// adjudication when there is one, else the first reader's. A second reader's
+// verdict alone decides nothing.
+const effectiveRead = `JOIN LATERAL (
+	    SELECT o.role, o.rhythm, o.confidence, o.read_on FROM over_reads o
+	    WHERE o.recording_id = r.id AND o.role IN ('adjudication', 'first')
+	    ORDER BY o.role = 'adjudication' DESC LIMIT 1) eff ON true`
+
+// ReferralBasis is what a referral summary is built from: the source for
+// referral.Build and the records it belongs to.
+type ReferralBasis struct {
+	ParticipantID int64
+	StudyID       string
+	CaseID        int64          // 0 for a participant without a case
+	CaseState     followup.State // "" without a case
+	ProtocolID    int            // 0 when no protocol applies
+	Source        referral.Source
+}
+
+// ConfirmedAF reports whether the summary's over-read is atrial
+// fibrillation: only such a summary can be signed off.
+func (b ReferralBasis) ConfirmedAF() bool {
+	return b.Source.OverRead != nil && b.Source.OverRead.Rhythm == "af"
+}
+
+// ReferralSource gathers a summary's source for a participant: for one of
+// their cases when caseID is set (a case of another participant is not
+// found), else for their latest case, else for the participant alone (the
+// screen-positive weeks under the active protocol and their latest
+// over-read). The birth date is read to compute the age band and goes no
+// further; the summary's issue is what gets audited. Cautions and the issue
+// time are the caller's.
+func (s *Store) ReferralSource(ctx context.Context, participantID, caseID int64) (ReferralBasis, error) {
+	p, err := s.Participant(ctx, participantID)
+	if err != nil {
+		return ReferralBasis{}, err
+	}
+	b := ReferralBasis{ParticipantID: p.ID, StudyID: p.StudyID}
+	src := &b.Source
+	src.StudyID, src.EnrolledOn, src.Location, src.Sex = p.StudyID, p.EnrolledOn, p.Location(), p.Sex
+	src.AgeAtEnrolment = p.AgeAtEnrolment
+	src.Intake = risk.Intake{HeartFailure: answerOf(p.Risk.HeartFailure), Hypertension: answerOf(p.Risk.Hypertension),
+		Diabetes: answerOf(p.Risk.Diabetes), StrokeTIA: answerOf(p.Risk.PriorStroke), Vascular: answerOf(p.Risk.VascularDisease)}
+
+	var birth *time.Time
+	err = s.pool.QueryRow(ctx, `SELECT birth_date FROM participant_identity WHERE participant_id = $1`, p.ID).Scan(&birth)
+	if err != nil && !errors.Is(err, pgx.ErrNoRows) {
+		return b, mapErr("referral birth date", err)
+	}
+	if birth != nil {
+		d := cohort.DateOf(*birth)
+		src.BirthDate = &d
+	}
+
+	if caseID == 0 {
+		err := s.pool.QueryRow(ctx, `SELECT id FROM cases WHERE participant_id = $1 ORDER BY flagged_at DESC, id DESC LIMIT 1`, p.ID).Scan(&caseID)
+		if err != nil && !errors.Is(err, pgx.ErrNoRows) {
+			return b, mapErr("referral latest case", err)
+		}
+	}
+	if caseID != 0 {
+		c, err := s.Case(ctx, caseID)
+		if err != nil {
+			return b, err
+		}
+		if c.ParticipantID != p.ID {
+			return b, fmt.Errorf("db: referral: case %d is not participant %d's: %w", caseID, p.ID, cohort.ErrNotFound)
+		}
+		b.CaseID, b.CaseState, b.ProtocolID = c.ID, c.State, c.ProtocolID
+	} else {
+		err := s.pool.QueryRow(ctx, `SELECT id FROM protocols WHERE active`).Scan(&b.ProtocolID)
+		if err != nil && !errors.Is(err, pgx.ErrNoRows) {
+			return b, mapErr("referral protocol", err)
+		}
+	}
+
+	if b.ProtocolID != 0 {
+		var raw []byte
+		pr := &src.Protocol
+		if err := s.pool.QueryRow(ctx, `SELECT id, name, version, params FROM protocols WHERE id = $1`, b.ProtocolID).
+			Scan(&pr.ID, &pr.Name, &pr.Version, &raw); err != nil {
+			return b, mapErr("referral protocol", err)
+		}
+		pr.ParamsOK = json.Unmarshal(raw, &pr.Params) == nil && pr.Params.Validate() == nil
+	}
+
+	var rows pgx.Rows
+	if b.CaseID != 0 {
+		rows, err = s.pool.Query(ctx, `
+			SELECT sr.week, sr.verdict, sr.reason, sr.wear_hours, sr.result
+			FROM case_weeks cw JOIN screen_results sr
+			  ON sr.participant_id = cw.participant_id AND sr.protocol_id = cw.protocol_id AND sr.week = cw.week
+			WHERE cw.case_id = $1 ORDER BY sr.week`, b.CaseID)
+	} else {
+		rows, err = s.pool.Query(ctx, `
+			SELECT week, verdict, reason, wear_hours, result FROM screen_results
+			WHERE participant_id = $1 AND protocol_id = $2 AND verdict = 'positive' ORDER BY week`, p.ID, b.ProtocolID)
+	}
+	if err != nil {
+		return b, mapErr("referral weeks", err)
+	}
+	src.Weeks, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (referral.Week, error) {
+		var w referral.Week
+		var week int16
+		var hours float32
+		var raw []byte
+		if err := r.Scan(&week, &w.Verdict, &w.Reason, &hours, &raw); err != nil {
+			return w, err
+		}
+		w.Week, w.WearHours = int(week), float64(hours)
+		_ = json.Unmarshal(raw, &w.Result) // a result of another shape shows without figures
+		return w, nil
+	})
+	if err != nil {
+		return b, mapErr("referral weeks", err)
+	}
+	if i := referral.MostIrregular(src.Weeks); i >= 0 {
+		w, err := s.WearWeek(ctx, p, src.Weeks[i].Week)
+		if err != nil {
+			return b, err
+		}
+		if len(w.HR.T) > 0 {
+			src.HeartRate = &w
+		}
+	}
+
+	if err := s.referralRecording(ctx, &b); err != nil {
+		return b, err
+	}
+	if err := s.pool.QueryRow(ctx, `SELECT contact_route FROM study WHERE id = 1`).Scan(&src.ContactRoute); err != nil && !errors.Is(err, pgx.ErrNoRows) {
+		return b, mapErr("referral contact route", err)
+	}
+	return b, nil
+}
+
+// referralRecording picks the recording the summary reports: of the case
+// (else of the participant), the latest one whose effective over-read is AF,
+// else the latest one with any effective over-read.
+func (s *Store) referralRecording(ctx context.Context, b *ReferralBasis) error {
+	where, arg := "r.case_id = $1", b.CaseID
+	if b.CaseID == 0 {
+		where, arg = "r.participant_id = $1", b.ParticipantID
+	}
+	var rec referral.Recording
+	var o referral.OverRead
+	var hz *float32
+	var dur float32
+	var samples []byte
+	var beats []int32
+	var readOn time.Time
+	err := s.pool.QueryRow(ctx, `
+		SELECT r.taken_at, r.duration_s, r.auto_interpretation, r.sampling_hz, r.samples, r.beats,
+		       eff.role, eff.rhythm, eff.confidence, eff.read_on
+		FROM recordings r `+effectiveRead+`
+		WHERE `+where+`
+		ORDER BY eff.rhythm = 'af' DESC, eff.read_on DESC, r.taken_at DESC, r.id DESC LIMIT 1`, arg).
+		Scan(&rec.TakenAt, &dur, &rec.AutoInterpretation, &hz, &samples, &beats, &o.Role, &o.Rhythm, &o.Confidence, &readOn)
+	if errors.Is(err, pgx.ErrNoRows) {
+		return nil
+	}
+	if err != nil {
+		return mapErr("referral recording", err)
+	}
+	rec.DurationS = float64(dur)
+	if hz != nil && len(samples) > 0 {
+		mv, err := DecodeSamples(samples)
+		if err != nil {
+			return err
+		}
+		rec.RateHz, rec.Samples = float64(*hz), mv
+		for _, bt := range beats {
+			rec.Beats = append(rec.Beats, int(bt))
+		}
+	}
+	o.ReadOn = cohort.DateOf(readOn)
+	b.Source.Recording, b.Source.OverRead = &rec, &o
+	return nil
+}
+
+func answerOf(b *bool) risk.Answer {
+	switch {
+	case b == nil:
+		return risk.Unknown
+	case *b:
+		return risk.Yes
+	}
+	return risk.No
+}
+
+// Referral is an issued summary as recorded. Zero SignedOffAt: not signed
+// off yet.
+type Referral struct {
+	ID            int64
+	ParticipantID int64
+	StudyID       string
+	CaseID        int64 // 0: made on request without a case
+	ProtocolID    int
+	Code          string
+	Content       []byte // the summary's JSON as stored (empty in lists)
+	ContentSHA256 string
+	Format        string
+	Paper         string
+	PDFSHA256     string
+	IssuedBy      string
+	IssuedAt      time.Time
+	SignedOffBy   string
+	SignedOffAt   time.Time
+}
+
+// ReferralIssue is a summary to record as issued.
+type ReferralIssue struct {
+	Basis     ReferralBasis
+	Summary   referral.Summary
+	Format    string // html, pdf or zip
+	Paper     string // a4 or letter
+	PDFSHA256 string // digest of the PDF made from Summary on Paper
+}
+
+// Referral formats and papers as stored.
+var (
+	referralFormats = map[string]bool{"html": true, "pdf": true, "zip": true}
+	referralPapers  = map[string]bool{"a4": true, "letter": true}
+)
+
+// IssueReferral records an issued summary (who, when, which participant,
+// case and protocol version, the content and its digest) and audits it.
+func (s *Store) IssueReferral(ctx context.Context, a cohort.Actor, in ReferralIssue) (Referral, error) {
+	if !referralFormats[in.Format] || !referralPapers[in.Paper] || len(in.PDFSHA256) != 64 {
+		return Referral{}, fmt.Errorf("db: issue referral: format %q, paper %q, pdf digest %q: not a recordable summary", in.Format, in.Paper, in.PDFSHA256)
+	}
+	content, err := referral.Content(in.Summary)
+	if err != nil {
+		return Referral{}, err
+	}
+	digest, err := referral.Digest(in.Summary)
+	if err != nil {
+		return Referral{}, err
+	}
+	r := Referral{ParticipantID: in.Basis.ParticipantID, StudyID: in.Basis.StudyID, CaseID: in.Basis.CaseID, ProtocolID: in.Basis.ProtocolID,
+		Code: in.Summary.ReferralCode, Content: content, ContentSHA256: digest, Format: in.Format, Paper: in.Paper, PDFSHA256: in.PDFSHA256,
+		IssuedBy: a.Label()}
+	err = s.inTx(ctx, func(tx pgx.Tx) error {
+		if err := tx.QueryRow(ctx, `
+			INSERT INTO referrals (participant_id, case_id, referral_code, protocol_id, content, content_sha256, format, paper, pdf_sha256,
+			                       issued_by_id, issued_by, issued_at)
+			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12) RETURNING id`,
+			r.ParticipantID, nullID(r.CaseID), r.Code, nullInt(r.ProtocolID), content, digest, r.Format, r.Paper, r.PDFSHA256,
+			actorID(a), r.IssuedBy, s.now()).Scan(&r.ID); err != nil {
+			return err
+		}
+		return audit(ctx, tx, a, "referral.issue", "referral", strconv.FormatInt(r.ID, 10), nil, map[string]any{
+			"participant_id": r.ParticipantID, "case_id": r.CaseID, "protocol_id": r.ProtocolID, "referral_code": r.Code,
+			"content_sha256": digest, "pdf_sha256": r.PDFSHA256, "format": r.Format, "paper": r.Paper})
+	})
+	if err != nil {
+		return Referral{}, mapErr("issue referral", err)
+	}
+	return s.Referral(ctx, r.ID)
+}
+
+func nullID(id int64) any {
+	if id == 0 {
+		return nil
+	}
+	return id
+}
+
+func nullInt(n int) any {
+	if n == 0 {
+		return nil
+	}
+	return n
+}
+
+func actorID(a cohort.Actor) any {
+	if a.UserID == 0 {
+		return nil
+	}
+	return a.UserID
+}
+
+const referralCols = `f.id, f.participant_id, p.study_id, coalesce(f.case_id, 0), coalesce(f.protocol_id, 0), f.referral_code,
+	f.content_sha256, f.format, f.paper, f.pdf_sha256, f.issued_by, f.issued_at, f.signed_off_by, f.signed_off_at`
+
+func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
+	var r Referral
+	var signed *time.Time
+	dest := []any{&r.ID, &r.ParticipantID, &r.StudyID, &r.CaseID, &r.ProtocolID, &r.Code, &r.ContentSHA256, &r.Format, &r.Paper,
+		&r.PDFSHA256, &r.IssuedBy, &r.IssuedAt, &r.SignedOffBy, &signed}
+	err := row.Scan(append(dest, extra...)...)
+	r.SignedOffAt = timeOf(signed)
+	return r, err
+}
+
+// Referral returns one issued summary with its content.
+func (s *Store) Referral(ctx context.Context, id int64) (Referral, error) {
+	var content []byte
+	r, err := scanReferral(s.pool.QueryRow(ctx, `SELECT `+referralCols+`, f.content
+		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content)
+	r.Content = content
+	return r, mapErr("referral", err)
+}
+
+// Referrals lists issued summaries, newest first, without their content.
+func (s *Store) Referrals(ctx context.Context, limit int) ([]Referral, error) {
+	if limit <= 0 || limit > 1000 {
+		limit = 100
+	}
+	rows, err := s.pool.Query(ctx, `SELECT `+referralCols+`
+		FROM referrals f JOIN participants p ON p.id = f.participant_id ORDER BY f.issued_at DESC, f.id DESC LIMIT $1`, limit)
+	if err != nil {
+		return nil, mapErr("referrals", err)
+	}
+	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Referral, error) { return scanReferral(r) })
+	return out, mapErr("referrals", err)
+}
+
+// ReadyCase is a case ready to refer.
+type ReadyCase struct {
+	CaseID        int64
+	ParticipantID int64
+	StudyID       string
+	State         followup.State
+	FirstWeek     int
+	LastWeek      int
+}
+
+// ReadyToRefer lists the cases still being worked that have a recording
+// whose effective over-read is atrial fibrillation: their summaries are due.
+// A case is referred when an investigator signs its summary off.
+func (s *Store) ReadyToRefer(ctx context.Context) ([]ReadyCase, error) {
+	rows, err := s.pool.Query(ctx, `
+		SELECT c.id, c.participant_id, p.study_id, c.state, c.first_week, c.last_week
+		FROM cases c JOIN participants p ON p.id = c.participant_id
+		WHERE c.closed_at IS NULL AND EXISTS (
+		    SELECT 1 FROM recordings r `+effectiveRead+` WHERE r.case_id = c.id AND eff.rhythm = 'af')
+		ORDER BY c.id`)
+	if err != nil {
+		return nil, mapErr("ready to refer", err)
+	}
+	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (ReadyCase, error) {
+		var c ReadyCase
+		var st string
+		var fw, lw int16
+		err := r.Scan(&c.CaseID, &c.ParticipantID, &c.StudyID, &st, &fw, &lw)
+		c.State, c.FirstWeek, c.LastWeek = followup.State(st), int(fw), int(lw)
+		return c, err
+	})
+	return out, mapErr("ready to refer", err)
+}
+
+// SignOffReferral records an investigator's sign-off of an issued summary and
+// moves its case to referred, in one transaction, audited. Refused: a summary
+// already signed off or whose case is already referred (conflict); a summary
+// without a case, or whose recorded over-read is not AF, or whose case no
+// longer has an AF over-read or has ended otherwise (invalid). A case still
+// waiting in "recording received" is first moved to "over-read", the step
+// the over-read itself should have made.
+func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (Referral, error) {
+	if a.Role != cohort.Investigator {
+		return Referral{}, fmt.Errorf("db: sign off referral: role %s: %w", a.Role, cohort.ErrForbidden)
+	}
+	refuse := func(msg string) error { return &cohort.ValidationError{Fields: map[string]string{"referral": msg}} }
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var caseID *int64
+		var content []byte
+		var signedBy string
+		if err := tx.QueryRow(ctx, `SELECT case_id, content, signed_off_by FROM referrals WHERE id = $1 FOR UPDATE`, id).
+			Scan(&caseID, &content, &signedBy); err != nil {
+			return err
+		}
+		if signedBy != "" {
+			return &cohort.PublicError{Message: "This summary was already signed off by " + signedBy + ".", Kind: cohort.ErrConflict}
+		}
+		if caseID == nil {
+			return refuse("this summary was made on request for a participant without a case; only a case's summary can be signed off")
+		}
+		sum, err := referral.Decode(content)
+		if err != nil {
+			return err
+		}
+		if sum.OverRead == nil || sum.OverRead.Rhythm != "af" {
+			return refuse("the summary does not report an over-read confirming atrial fibrillation; it cannot be signed off as a referral")
+		}
+		var readOn *time.Time
+		if err := tx.QueryRow(ctx, `SELECT max(eff.read_on) FROM recordings r `+effectiveRead+`
+			WHERE r.case_id = $1 AND eff.rhythm = 'af'`, *caseID).Scan(&readOn); err != nil {
+			return err
+		}
+		if readOn == nil {
+			return refuse("the case no longer has an over-read confirming atrial fibrillation; issue a new summary")
+		}
+		c, err := lockCase(ctx, tx, *caseID)
+		if err != nil {
+			return err
+		}
+		switch {
+		case c.State == followup.Referred:
+			return &cohort.PublicError{Message: "The case was already referred.", Kind: cohort.ErrConflict}
+		case c.State.Terminal():
+			return refuse("the case has ended as " + c.State.Label() + "; it cannot be referred")
+		case c.State == followup.RecordingReceived:
+			at := cohort.DateOf(*readOn).In(time.UTC).Add(12 * time.Hour)
+			if _, err := s.advanceCase(ctx, tx, a, c.ID, followup.OverRead, at, ""); err != nil {
+				return err
+			}
+		}
+		reason := fmt.Sprintf("referral summary %d signed off", id)
+		if _, err := s.advanceCase(ctx, tx, a, c.ID, followup.Referred, time.Time{}, reason); err != nil {
+			return err
+		}
+		if _, err := tx.Exec(ctx, `UPDATE referrals SET signed_off_by_id = $2, signed_off_by = $3, signed_off_at = $4 WHERE id = $1`,
+			id, actorID(a), a.Label(), s.now()); err != nil {
+			return err
+		}
+		return audit(ctx, tx, a, "referral.signoff", "referral", strconv.FormatInt(id, 10), nil,
+			map[string]any{"case_id": *caseID, "referral_code": sum.ReferralCode})
+	})
+	if err != nil {
+		return Referral{}, mapCaseErr("sign off referral", err)
+	}
+	return s.Referral(ctx, id)
+}
