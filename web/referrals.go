@@ -19,6 +19,7 @@ import (
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
 	"cohortdesk/views"
+	"cohortdesk/views/referralpdf"
 	"cohortdesk/views/components"
 )
 
@@ -434,7 +435,7 @@ func referralDoc(sum referral.Summary) views.ReferralDocView {
 			views.Fact{Label: "Recorder's own reading", Value: rec.AutoInterpretation})
 		if len(rec.MicroVolts) > 0 {
 			l := rec.Strip()
-			sv := stripView("summary-ecg", l, stripCaption(*rec, l))
+			sv := stripView("summary-ecg", l, referralpdf.StripCaption(*rec, l))
 			d.Strip = &sv
 			d.StripNote = "Print at 100% (no fit to page) for the scale to hold."
 		}
@@ -456,7 +457,7 @@ func referralDoc(sum referral.Summary) views.ReferralDocView {
 		d.RiskFactors = append(d.RiskFactors, views.Fact{Label: f.Label, Value: f.Answer})
 	}
 	for _, sc := range sum.Risk.Scores {
-		d.Scores = append(d.Scores, views.ScoreBlockView{Name: sc.Name, Total: sc.ScoreText(), Items: scoreItems(sc), StrokeRate: sc.StrokeRate, Source: sc.Source})
+		d.Scores = append(d.Scores, views.ScoreBlockView{Name: sc.Name, Total: sc.ScoreText(), Items: referralpdf.ScoreItems(sc), StrokeRate: sc.StrokeRate, Source: sc.Source})
 	}
 	d.Cautions = sum.Cautions
 	return d
@@ -470,7 +471,7 @@ func hrChartView(hr referral.HeartRateView) views.HRChartView {
 	l := hr.Layout(hrChartWidthMM, hrChartHeightMM)
 	mm := func(v float64) string { return strconv.FormatFloat(v, 'f', 2, 64) }
 	c := views.HRChartView{Width: mm(l.WidthMM), Height: mm(l.HeightMM), Left: mm(l.Left), Top: mm(l.Top), Right: mm(l.Right), Bottom: mm(l.Bottom),
-		PlotW: mm(l.Right - l.Left), PlotH: mm(l.Bottom - l.Top), Caption: chartCaption(hr),
+		PlotW: mm(l.Right - l.Left), PlotH: mm(l.Bottom - l.Top), Caption: referralpdf.ChartCaption(hr),
 		Label: fmt.Sprintf("Heart rate over study week %d, lowest to highest in each %d-minute bin", hr.StudyWeek, hr.BinMinutes)}
 	var b strings.Builder
 	for _, bar := range l.Bars {
