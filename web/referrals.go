@@ -19,8 +19,8 @@ import (
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/views/referralpdf"
 	"cohortdesk/views/components"
+	"cohortdesk/views/referralpdf"
 )
 
 // referralStore is what referral summaries need from the database.
