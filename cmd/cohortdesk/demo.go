@@ -75,7 +75,7 @@ func runDemo(ctx context.Context, e env, args []string) error {
 	if _, err := store.EnsureDefaultProtocol(ctx); err != nil {
 		return err
 	}
-	loaded, err := seedDemo(ctx, store, demoOptions{Seed: *seed, Participants: *participants, Log: log})
+	loaded, err := seedDemo(ctx, store, demoOptions{Seed: *seed, Participants: *participants, Secret: cfg.Secret, Log: log})
 	if err != nil {
 		return fmt.Errorf("demo: load the fictional cohort: %w", err)
 	}

@@ -14,6 +14,7 @@ import (
 type demoOptions struct {
 	Seed         uint64
 	Participants int
+	Secret       string
 	Log          *slog.Logger
 }
 
@@ -26,7 +27,7 @@ func seedDemo(ctx context.Context, store *db.Store, o demoOptions) (bool, error)
 	}
 	// The study's "today" is the real day, so due dates and recent weeks look
 	// as they would in use.
-	_, err = seed.Load(ctx, store, seed.Options{Seed: o.Seed, Participants: o.Participants, Today: time.Now(), Log: o.Log})
+	_, err = seed.Load(ctx, store, seed.Options{Seed: o.Seed, Participants: o.Participants, Today: time.Now(), Secret: []byte(o.Secret), Log: o.Log})
 	return err == nil, err
 }
 

@@ -43,7 +43,7 @@ func Hint(rrMs []float64, p rr.Params) rr.Summary {
 }
 
 // HintText is Hint in words for the over-read form, for example "Hint for the
-// over-reader, not a verdict: RR irregular (AF-like in 1 of 1 segment of 37
+// over-reader, not a verdict: RR irregular, AF-like (AF-like in 1 of 1 segment of 37
 // beats): normalised RMSSD 0.18, entropy 0.81, turning-point ratio 0.66."
 func HintText(rrMs []float64, p rr.Params) string {
 	const lead = "Hint for the over-reader, not a verdict: "
@@ -58,11 +58,13 @@ func HintText(rrMs []float64, p rr.Params) string {
 	var pattern string
 	switch {
 	case s.AFLike == 0:
-		pattern = "RR regular"
+		// Not "regular": an irregular rhythm other than AF (frequent early
+		// beats, say) also fails the combined criteria.
+		pattern = "RR not AF-like"
 	case s.AFLike == s.Segments:
-		pattern = "RR irregular"
+		pattern = "RR irregular, AF-like"
 	default:
-		pattern = "RR irregular in part"
+		pattern = "RR AF-like in part"
 	}
 	noun := "segments"
 	if s.Segments == 1 {

@@ -25,6 +25,8 @@ type caseEvent struct {
 	at      time.Time
 	attempt *demo.Attempt
 	move    *demo.Transition
+	arrive  *demo.Recording // a recording reaches the study
+	read    *demo.Recording // a clinician reads it
 }
 
 var channelOf = map[demo.Channel]followup.Channel{
@@ -58,7 +60,7 @@ func flagTime(st *demo.Study, p demo.Participant, week int) time.Time {
 // asks the generator for each case's scripted history, and enters it through
 // the case store as the scripted staff member, with the store's clock (and the
 // audit trail's) set to when each step happened.
-func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[string]db.User) (int, error) {
+func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[string]db.User, secret []byte) (int, error) {
 	clk := &clock{}
 	cs := db.New(store.Pool(), clk.now)
 	ctx = db.WithHistoryClock(ctx, clk.now)
@@ -126,20 +128,35 @@ func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[s
 	}
 	plans := st.PlanFollowUps(inputs)
 	for i, f := range plans {
-		if err := playCase(ctx, cs, clk, ids[i], f, users); err != nil {
+		p, _ := st.Participant(f.Case.StudyID)
+		if err := playCase(ctx, cs, clk, ids[i], f, users, p.Loc, secret); err != nil {
 			return i, fmt.Errorf("seed: case %d (%s): %w", ids[i], f.Case.StudyID, err)
 		}
 	}
 	return len(plans), nil
 }
 
-func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.FollowUp, users map[string]db.User) error {
+func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.FollowUp, users map[string]db.User, loc *time.Location, secret []byte) error {
 	var evs []caseEvent
 	for i := range f.Attempts {
 		evs = append(evs, caseEvent{at: f.Attempts[i].At, attempt: &f.Attempts[i]})
 	}
 	for i := range f.Transitions {
 		evs = append(evs, caseEvent{at: f.Transitions[i].At, move: &f.Transitions[i]})
+	}
+	for i := range f.Recordings {
+		r := &f.Recordings[i]
+		evs = append(evs, caseEvent{at: r.Received, arrive: r})
+		if !r.ReadAt.IsZero() && r.OverRead != "" {
+			evs = append(evs, caseEvent{at: r.ReadAt, read: r})
+		}
+	}
+	recID := map[*demo.Recording]int64{}
+	var signer db.User
+	for _, u := range users {
+		if u.Role == cohort.Investigator {
+			signer = u
+		}
 	}
 	sort.SliceStable(evs, func(i, j int) bool { return evs[i].at.Before(evs[j].at) })
 	actor := func(login string) cohort.Actor {
@@ -169,6 +186,16 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 			a := ev.attempt
 			_, err = cs.LogAttempt(ctx, actor(a.By), id, db.AttemptInput{Version: c.Version, Channel: string(channelOf[a.Channel]),
 				Outcome: string(outcomeOf[a.Outcome]), Note: a.Note})
+		case ev.arrive != nil:
+			recID[ev.arrive], err = addRecording(ctx, cs, actor(f.Owner), id, *ev.arrive, uint64(id)*31+uint64(len(recID)))
+		case ev.read != nil:
+			reader, ok := users[ev.read.Reader]
+			if !ok {
+				reader = signer
+			}
+			err = addOverRead(ctx, cs, reader, recID[ev.read], *ev.read, loc)
+		case ev.move != nil && followup.State(ev.move.To) == followup.Referred && len(secret) > 0:
+			err = refer(ctx, cs, actor(ev.move.By), signer, c, secret, ev.at)
 		case ev.move != nil:
 			err = playMove(ctx, cs, actor(ev.move.By), c, followup.State(ev.move.To), ev.at)
 		}
@@ -191,15 +218,12 @@ func playMove(ctx context.Context, cs *db.Store, a cohort.Actor, c db.Case, to f
 	switch to {
 	case followup.RecorderSent:
 		_, err = cs.RecordShipment(ctx, a, c.ID, c.Version, day, fmt.Sprintf("DM%09d", c.ID*7919%1000000000))
-	case followup.RecordingReceived:
-		_, err = cs.RecordReturn(ctx, a, c.ID, c.Version, day)
-	case followup.OverRead, followup.Referred:
-		// Entered with the recording's over-read and the referral sign-off.
-		reason := ""
-		if to == followup.Referred {
-			reason = "referral summary sent to the participant's physician"
-		}
-		_, err = cs.AdvanceCase(ctx, a, c.ID, to, at, reason)
+	case followup.RecordingReceived, followup.OverRead:
+		// The recording's arrival and its over-read move the case themselves.
+		return nil
+	case followup.Referred:
+		// Without a deployment secret no summary can be issued: move only.
+		_, err = cs.AdvanceCase(ctx, a, c.ID, to, at, "referral summary sent to the participant's physician")
 	default:
 		if to.Terminal() {
 			_, err = cs.CloseCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: string(to), Reason: closingReason(to)})

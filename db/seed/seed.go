@@ -27,7 +27,10 @@ type Options struct {
 	Today        time.Time   // the study's "now"; zero means demo.DefaultToday()
 	Password     string      // every demo account's password
 	PasswordCost auth.Params // zero means auth.DefaultParams
-	Log          *slog.Logger
+	// Secret keys the pseudonymous referral codes of the summaries the
+	// demo issues; without one, referred cases get no issued summary.
+	Secret []byte
+	Log    *slog.Logger
 }
 
 // DemoPassword is the demo accounts' password, printed by the demo command.
@@ -125,7 +128,7 @@ func Load(ctx context.Context, store *db.Store, o Options) (Result, error) {
 		}
 		byLogin[u.Login] = du
 	}
-	if res.Cases, err = followUps(ctx, store, st, byLogin); err != nil {
+	if res.Cases, err = followUps(ctx, store, st, byLogin, o.Secret); err != nil {
 		return res, err
 	}
 	step("follow-up history", t4)

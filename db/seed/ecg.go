@@ -1,0 +1,118 @@
+package seed
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"fmt"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/demo"
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/overread"
+	"cohortdesk/cohort/referral"
+	"cohortdesk/db"
+	"cohortdesk/views/components"
+	"cohortdesk/views/referralpdf"
+)
+
+var autoOf = map[demo.AutoResult]overread.Auto{
+	demo.AutoAF:           overread.AutoAF,
+	demo.AutoSinus:        overread.AutoSinus,
+	demo.AutoUnclassified: overread.AutoUnclassified,
+	demo.AutoNoAnalysis:   overread.AutoUnreadable,
+}
+
+var rhythmOf = map[demo.Rhythm]overread.Rhythm{
+	demo.RhythmAF:              overread.AF,
+	demo.RhythmFlutter:         overread.Flutter,
+	demo.RhythmSinus:           overread.Sinus,
+	demo.RhythmOther:           overread.Other,
+	demo.RhythmUninterpretable: overread.Uninterpretable,
+}
+
+// synthRecording makes the waveform of a scripted recording with the
+// dynamical ECG model (cohort/ecg): its beats fall at the script's intervals,
+// with breathing wander, and heavy noise when the script says an over-reader
+// could not read it.
+func synthRecording(r demo.Recording, seed uint64) (ecg.Waveform, error) {
+	rr := make([]float64, len(r.RR))
+	for i, s := range r.RR {
+		rr[i] = s * 1000
+	}
+	o := ecg.SynthOptions{RateHz: 300, WanderMV: 0.08, WanderHz: 0.22, Seed: seed}
+	if r.Noisy {
+		o.Noise, o.SNRdB = true, -6
+	}
+	syn, err := ecg.Synthesize(rr, o)
+	if err != nil {
+		return ecg.Waveform{}, err
+	}
+	return syn.Waveform, nil
+}
+
+// addRecording enters a scripted recording as the study would: the waveform
+// arrives, is checked and analysed, and the case moves to "recording received".
+func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int64, r demo.Recording, seed uint64) (int64, error) {
+	w, err := synthRecording(r, seed)
+	if err != nil {
+		return 0, err
+	}
+	auto := string(autoOf[r.Auto])
+	if auto == "" {
+		auto = string(overread.AutoNone)
+	}
+	rec, err := cs.AddRecording(ctx, a, caseID, db.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: auto,
+		Samples: w.Samples, RateHz: w.RateHz})
+	if err != nil {
+		return 0, fmt.Errorf("recording: %w", err)
+	}
+	return rec.ID, nil
+}
+
+// addOverRead enters the scripted clinician's reading.
+func addOverRead(ctx context.Context, cs *db.Store, reader db.User, recID int64, r demo.Recording, loc *time.Location) error {
+	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: string(rhythmOf[r.OverRead]),
+		Confidence: string(overread.Certain), ReaderID: reader.ID, ReadOn: cohort.DateOf(r.ReadAt.In(loc))})
+	if err != nil {
+		return fmt.Errorf("over-read: %w", err)
+	}
+	return nil
+}
+
+// refer issues the case's referral summary (drawn as the app draws it) and has
+// the investigator sign it off, which moves the case to "referred".
+func refer(ctx context.Context, cs *db.Store, issuer cohort.Actor, signer db.User, c db.Case, secret []byte, at time.Time) error {
+	b, err := cs.ReferralSource(ctx, c.ParticipantID, c.ID)
+	if err != nil {
+		return err
+	}
+	b.Source.Cautions = components.CautionItems
+	b.Source.IssuedAt = at
+	sum, err := referral.Build(b.Source, secret)
+	if err != nil {
+		return err
+	}
+	if sum.OverRead == nil || sum.OverRead.Rhythm != string(overread.AF) {
+		// The script refers some cases whose reading is not AF (atrial
+		// flutter, say); the sign-off is for confirmed AF only, so these are
+		// moved by hand as a person would, without a signed summary.
+		_, err := cs.AdvanceCase(ctx, issuer, c.ID, "referred", at, "referred by the investigator after the over-read")
+		return err
+	}
+	pdf, err := referralpdf.Render(sum, referralpdf.PaperLetter)
+	if err != nil {
+		return err
+	}
+	digest := sha256.Sum256(pdf)
+	ref, err := cs.IssueReferral(ctx, issuer, db.ReferralIssue{Basis: b, Summary: sum, Format: "pdf", Paper: referralpdf.PaperLetter,
+		PDFSHA256: hex.EncodeToString(digest[:])})
+	if err != nil {
+		return fmt.Errorf("issue referral: %w", err)
+	}
+	if _, err := cs.SignOffReferral(ctx, signer.Actor("", "demo"), ref.ID); err != nil {
+		return fmt.Errorf("sign off referral: %w", err)
+	}
+	return nil
+}
