@@ -107,7 +107,7 @@ type Scale struct {
 	WearParticipants int   `json:"wear_participants"`
 	WearWeeks        int   `json:"wear_weeks"`   // participant-weeks with generated wear data
 	SparseWeeks      int   `json:"sparse_weeks"` // one sparse week for each other participant who is not silent
-	Readings         int64 `json:"readings"`   // wear readings imported
+	Readings         int64 `json:"readings"`     // wear readings imported
 	ScreenResults    int64 `json:"screen_results"`
 	Cases            int64 `json:"cases"`
 	WorkingCases     int   `json:"working_cases"`

@@ -462,4 +462,3 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 	}
 	return out, nil
 }
-
