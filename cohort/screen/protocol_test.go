@@ -158,12 +158,13 @@ func TestProtocolDiff(t *testing.T) {
 
 func TestProtocolWith(t *testing.T) {
 	p := DefaultProtocol()
-	q, err := p.With("windows[1].run_length", 4)
+	orig := p.Windows[1].RunLength
+	q, err := p.With("windows[1].run_length", float64(orig+1))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if q.Windows[1].RunLength != 4 || p.Windows[1].RunLength != 2 {
-		t.Errorf("With changed %d (original now %d), want 4 with the original kept at 2", q.Windows[1].RunLength, p.Windows[1].RunLength)
+	if q.Windows[1].RunLength != orig+1 || p.Windows[1].RunLength != orig {
+		t.Errorf("With changed %d (original now %d), want %d with the original kept at %d", q.Windows[1].RunLength, p.Windows[1].RunLength, orig+1, orig)
 	}
 	for _, bad := range []struct {
 		param string
