@@ -36,6 +36,7 @@ type Options struct {
 	Import, Screen, Pages bool // the parts to measure; the cohort is built whatever they are
 
 	Clients  int           // concurrent signed-in clients of the page load (default 50)
+	Only     []string      // names of the pages to load (PageNames); empty: all
 	Duration time.Duration // of the page load (default 30 s)
 	MaxConns int           // database connections of the server under load (default 20, as serve)
 

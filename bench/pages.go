@@ -208,6 +208,30 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 	}
 }
 
+// PageNames are the names of the main pages, in the order the load visits
+// them.
+var PageNames = []string{"overview", "triage", "participants", "cases", "progress", "participant", "case"}
+
+// pickPages keeps the pages named in only (all when empty).
+func pickPages(all []page, only []string) ([]page, error) {
+	if len(only) == 0 {
+		return all, nil
+	}
+	var out []page
+	for _, name := range only {
+		found := false
+		for _, p := range all {
+			if p.name == name {
+				out, found = append(out, p), true
+			}
+		}
+		if !found {
+			return nil, fmt.Errorf("bench: no page named %q; the pages are %s", name, strings.Join(PageNames, ", "))
+		}
+	}
+	return out, nil
+}
+
 func wearIDs(c synthCohort) []int64 {
 	out := make([]int64, len(c.Wear))
 	for i, p := range c.Wear {
@@ -315,7 +339,10 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 	defer hs.Close()
 	base := "http://" + ln.Addr().String()
 
-	pages := mainPages(store, c, c.Coordinators[0])
+	pages, err := pickPages(mainPages(store, c, c.Coordinators[0]), o.Only)
+	if err != nil {
+		return nil, err
+	}
 	for _, p := range pages {
 		if strings.Contains(p.path, "%d") && len(p.ids) == 0 {
 			return nil, fmt.Errorf("bench: no ids for the %s page (the cohort has no cases or participants to show)", p.name)

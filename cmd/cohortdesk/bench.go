@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"time"
 
@@ -33,6 +34,7 @@ func runBench(ctx context.Context, e env, args []string) error {
 	fs.IntVar(&o.WearParticipants, "wear", 500, "participants whose wear data is generated and imported (the rest get screening results and cases by SQL)")
 	parts := fs.String("parts", "import,screen,pages", "what to measure, comma-separated: import, screen, pages")
 	fs.IntVar(&o.Clients, "clients", 50, "concurrent signed-in clients of the page load")
+	pages := fs.String("pages", "", "the pages to load, comma-separated (default all: "+strings.Join(bench.PageNames, ", ")+")")
 	fs.DurationVar(&o.Duration, "duration", 30*time.Second, "how long the page load runs")
 	fs.IntVar(&o.MaxConns, "db-max-conns", 20, "database connections of the server under load (serve's default)")
 	seed := fs.Uint64("seed", 1, "seed of the synthetic data")
@@ -68,6 +70,14 @@ func runBench(ctx context.Context, e env, args []string) error {
 		return fmt.Errorf("bench: -duration %s: want 1s to 1h", o.Duration)
 	case o.MaxConns < 2 || o.MaxConns > 180:
 		return fmt.Errorf("bench: -db-max-conns %d: want 2 to 180", o.MaxConns)
+	}
+	for _, p := range strings.Split(*pages, ",") {
+		if p = strings.TrimSpace(p); p != "" {
+			if !slices.Contains(bench.PageNames, p) {
+				return fmt.Errorf("bench: -pages: %q is not one of %s", p, strings.Join(bench.PageNames, ", "))
+			}
+			o.Only = append(o.Only, p)
+		}
 	}
 	o.Seed = *seed
 	o.Progress = e.stderr

@@ -51,6 +51,7 @@ func TestBenchCommand(t *testing.T) {
 		{"bench", "-wear", "15000"},
 		{"bench", "-clients", "0"},
 		{"bench", "-duration", "10ms"},
+		{"bench", "-pages", "triage,dashboard"},
 	} {
 		if err := run(context.Background(), bad, getenv, &stdout, &stderr); err == nil {
 			t.Errorf("%v: no error", bad)
