@@ -24,6 +24,7 @@ import (
 	"cohortdesk/db"
 	"cohortdesk/migrations"
 
+	"github.com/jackc/pgx/v5/pgconn"
 	"github.com/jackc/pgx/v5/pgxpool"
 )
 
@@ -144,10 +145,11 @@ func Run(ctx context.Context, url string, o Options) (Report, error) {
 	if err := pool.QueryRow(ctx, `SHOW server_version`).Scan(&rep.Machine.PostgreSQL); err != nil {
 		return rep, fmt.Errorf("bench: %w", err)
 	}
-	if _, err := migrations.Up(ctx, pool); err != nil {
+	// Refuse a database in use before migrating anything in it.
+	if err := mustBeEmpty(ctx, pool); err != nil {
 		return rep, err
 	}
-	if err := mustBeEmpty(ctx, pool); err != nil {
+	if _, err := migrations.Up(ctx, pool); err != nil {
 		return rep, err
 	}
 	store := db.New(pool, func() time.Time { return time.Now().Add(o.Now.Sub(started)) })
@@ -208,7 +210,12 @@ func Run(ctx context.Context, url string, o Options) (Report, error) {
 // thousands of fictional participants and must never meet real ones.
 func mustBeEmpty(ctx context.Context, pool *pgxpool.Pool) error {
 	var n int64
-	if err := pool.QueryRow(ctx, `SELECT (SELECT count(*) FROM participants) + (SELECT count(*) FROM study) + (SELECT count(*) FROM users)`).Scan(&n); err != nil {
+	err := pool.QueryRow(ctx, `SELECT (SELECT count(*) FROM participants) + (SELECT count(*) FROM study) + (SELECT count(*) FROM users)`).Scan(&n)
+	var pg *pgconn.PgError
+	if errors.As(err, &pg) && pg.Code == "42P01" { // undefined_table: a database never migrated
+		return nil
+	}
+	if err != nil {
 		return fmt.Errorf("bench: %w", err)
 	}
 	if n > 0 {

@@ -26,7 +26,8 @@ var loadDuration = flag.Duration("load-duration", 3*time.Second, "duration of th
 // without a server error and measured against its store calls.
 func TestRunSmall(t *testing.T) {
 	var progress bytes.Buffer
-	rep, err := Run(context.Background(), dbtest.URL(t), Options{Participants: 400, Weeks: 3, WearParticipants: 6,
+	url := dbtest.URL(t)
+	rep, err := Run(context.Background(), url, Options{Participants: 400, Weeks: 3, WearParticipants: 6,
 		Import: true, Screen: true, Pages: true, Clients: 4, Duration: time.Second, Dir: t.TempDir(), Progress: &progress})
 	if err != nil {
 		t.Fatalf("%v\n%s", err, progress.String())
@@ -65,6 +66,10 @@ func TestRunSmall(t *testing.T) {
 		t.Fatal(err)
 	}
 	t.Logf("\n%s", table.String())
+	// A database that holds a study is never used again.
+	if _, err := Run(context.Background(), url, Options{Participants: 400}); err == nil || !strings.Contains(err.Error(), "already holds") {
+		t.Errorf("a second run on the same database: %v, want a refusal", err)
+	}
 }
 
 // TestPagesUnderLoad is the load requirement: 200 concurrent signed-in
