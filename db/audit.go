@@ -84,9 +84,9 @@ func toJSON(v any) ([]byte, error) {
 // Audit records an event on its own, for things that change nothing else
 // (sign-in, sign-out, a view of PHI, a download).
 func (s *Store) Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error {
-	return s.inTx(ctx, func(tx pgx.Tx) error {
+	return mapErr("record audit event", s.inTx(ctx, func(tx pgx.Tx) error {
 		return audit(ctx, tx, a, action, objType, objID, old, new)
-	})
+	}))
 }
 
 // AuditFilter narrows the audit list.

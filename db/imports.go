@@ -185,6 +185,8 @@ func (s *Store) ImportReadings(ctx context.Context, a cohort.Actor, r io.Reader,
 		if errors.As(err, &fe) {
 			msg = fe.Error()
 			err = &cohort.PublicError{Message: "the file was refused and nothing was stored: " + msg, Kind: ErrImportRefused}
+		} else if Unavailable(err) {
+			err = mapErr("import", err) // a read-only, full or lost database: the caller answers 503
 		}
 		rep.Status, rep.Message = "failed", msg
 		now := s.now()

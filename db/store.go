@@ -7,6 +7,10 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
+	"net"
+	"strings"
+	"syscall"
 	"time"
 
 	"cohortdesk/cohort"
@@ -44,6 +48,12 @@ func Open(ctx context.Context, url string, maxConns int32) (*pgxpool.Pool, error
 	}
 	cfg.ConnConfig.RuntimeParams["application_name"] = "cohortdesk"
 	cfg.ConnConfig.RuntimeParams["timezone"] = "UTC"
+	// JIT compilation pays off for long analytic queries, not for the app's
+	// short ones: on the bench's 20,000-participant study it added about
+	// 0.6 s to the progress page's queries (sufficiency 0.7 -> 1.3 s, silent
+	// participants 0.04 -> 0.37 s), compiling plans whose cost estimates
+	// crossed jit_above_cost.
+	cfg.ConnConfig.RuntimeParams["jit"] = "off"
 	pool, err := pgxpool.NewWithConfig(ctx, cfg)
 	if err != nil {
 		return nil, fmt.Errorf("db: %w", err)
@@ -94,8 +104,45 @@ func mapErr(op string, err error) error {
 			return fmt.Errorf("db: %s: the database is out of space or memory: %w", op, ErrUnavailable)
 		}
 	}
+	if Unavailable(err) {
+		return fmt.Errorf("db: %s: the database is unreachable (%v): %w", op, err, ErrUnavailable)
+	}
 	return fmt.Errorf("db: %s: %w", op, err)
 }
 
-// ErrUnavailable means the database cannot take changes now (read-only, full).
+// ErrUnavailable means the database cannot take changes now (read-only, full)
+// or cannot be reached at all.
 var ErrUnavailable = errors.New("database unavailable for changes")
+
+// Unavailable reports whether err says the database cannot serve at the
+// moment rather than that the request was wrong: ErrUnavailable itself, a
+// read-only or full database, a server shutting down or starting up, or a
+// connection that could not be made or was lost. The web layer answers these
+// with 503 instead of 500, and they pass once the database is back.
+func Unavailable(err error) bool {
+	if err == nil {
+		return false
+	}
+	if errors.Is(err, ErrUnavailable) {
+		return true
+	}
+	if errors.Is(err, context.Canceled) || errors.Is(err, context.DeadlineExceeded) {
+		return false // the caller gave up; that says nothing about the database
+	}
+	var pg *pgconn.PgError
+	if errors.As(err, &pg) {
+		switch {
+		case pg.Code == "25006", pg.Code == "53100", pg.Code == "53200":
+			return true
+		case strings.HasPrefix(pg.Code, "08"), strings.HasPrefix(pg.Code, "57P"):
+			// connection exceptions; admin shutdown, crash shutdown, cannot
+			// connect now (starting up or shutting down)
+			return true
+		}
+		return false
+	}
+	var ce *pgconn.ConnectError
+	var ne net.Error
+	return errors.As(err, &ce) || errors.As(err, &ne) || errors.Is(err, io.ErrUnexpectedEOF) ||
+		errors.Is(err, syscall.ECONNREFUSED) || errors.Is(err, syscall.ECONNRESET)
+}

@@ -127,6 +127,9 @@ func (s *Server) importPart(w http.ResponseWriter, r *http.Request, part *multip
 		if errors.As(err, &mbe) {
 			return uploadErr(err)
 		}
+		if errors.Is(err, db.ErrUnavailable) {
+			return err // nothing was stored; the failed import is on the list
+		}
 	}
 	http.Redirect(w, r, fmt.Sprintf("/imports/%d", rep.ID), http.StatusSeeOther)
 	return nil

@@ -83,6 +83,7 @@ func New(cfg Config) *Server {
 		s.pwParams = auth.DefaultParams
 	}
 	s.sessions = newSessions(cfg.Pool, cfg.Session)
+	s.sessions.ErrorFunc = s.sessionError
 	if s.log == nil {
 		s.log = slog.New(slog.DiscardHandler)
 	}
@@ -101,7 +102,7 @@ func New(cfg Config) *Server {
 // Handler is the whole application with its middleware.
 func (s *Server) Handler() http.Handler {
 	var h http.Handler = s.router
-	h = s.sessions.LoadAndSave(h)
+	h = s.withSessions(h)
 	// Refuses state-changing requests that browsers mark as cross-origin
 	// (Sec-Fetch-Site, or an Origin that is not this host).
 	h = http.NewCrossOriginProtection().Handler(h)

@@ -2,12 +2,14 @@ package web
 
 import (
 	"context"
+	"fmt"
 	"net"
 	"net/http"
 	"net/netip"
 	"net/url"
 	"strconv"
 	"strings"
+	"sync/atomic"
 	"time"
 
 	"cohortdesk/cohort"
@@ -157,4 +159,45 @@ func (s *Server) trusted(a netip.Addr) bool {
 		}
 	}
 	return false
+}
+
+// sessionStage tells the session error handler whether the application has
+// already taken the request: scs reports a failure to load a session before
+// the handler runs and a failure to save it while the handler writes its
+// answer.
+type sessionStage struct{ handled atomic.Bool }
+
+type sessionStageKey struct{}
+
+// withSessions loads and saves sessions around h (scs), marking when h starts
+// so sessionError knows which of the two failed.
+func (s *Server) withSessions(h http.Handler) http.Handler {
+	inner := s.sessions.LoadAndSave(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		if st, ok := r.Context().Value(sessionStageKey{}).(*sessionStage); ok {
+			st.handled.Store(true)
+		}
+		h.ServeHTTP(w, r)
+	}))
+	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		inner.ServeHTTP(w, r.WithContext(context.WithValue(r.Context(), sessionStageKey{}, &sessionStage{})))
+	})
+}
+
+// sessionError answers a failure of the session store, which is PostgreSQL.
+// When a session cannot be loaded (the database is down) nothing else can
+// work either: the 503 page says so. When a session cannot be saved after the
+// handler has answered (a read-only or full database refuses the idle-timeout
+// refresh), the answer stands and only the refresh is lost, so pages that
+// only read keep working while the database takes no changes.
+func (s *Server) sessionError(w http.ResponseWriter, r *http.Request, err error) {
+	if st, ok := r.Context().Value(sessionStageKey{}).(*sessionStage); ok && st.handled.Load() {
+		s.log.Warn("session not saved", "request_id", requestID(r.Context()), "err", err)
+		return
+	}
+	if db.Unavailable(err) {
+		err = fmt.Errorf("web: load session: %w (%w)", db.ErrUnavailable, err)
+	} else {
+		err = fmt.Errorf("web: load session: %w", err)
+	}
+	s.serveError(w, r, err)
 }

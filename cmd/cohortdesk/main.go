@@ -47,6 +47,7 @@ func commands() []command {
 		{"screen", "screen stored wear data again with a chosen protocol version, showing progress", runScreen},
 		{"user", "add a staff account (e.g. the first administrator), reset a password, list accounts", runUser},
 		{"healthcheck", "probe a running server (for container health checks)", runHealthcheck},
+		{"bench", "measure import, screening and page load on a synthetic study, each against a baseline in the same run", runBench},
 	}
 }
 

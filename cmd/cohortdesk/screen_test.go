@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"context"
+	"os"
 	"strings"
 	"testing"
 	"time"
@@ -12,7 +13,12 @@ import (
 	"cohortdesk/db/dbtest"
 )
 
-func TestMain(m *testing.M) { dbtest.Main(m) }
+func TestMain(m *testing.M) {
+	if os.Getenv(serveChildEnv) != "" {
+		os.Exit(m.Run()) // a server child of the kill test: the parent owns the database
+	}
+	dbtest.Main(m)
+}
 
 func TestScreenCommand(t *testing.T) {
 	url := dbtest.URL(t)

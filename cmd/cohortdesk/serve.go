@@ -60,6 +60,8 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 		return err
 	}
 	log.Info("screening protocol", "active", active.Label())
+	stopWatch := watchInterruptedImports(ctx, store, interruptedEvery, log)
+	defer stopWatch()
 	stopWorkers := startWorkers(ctx, store, cfg.Workers, log)
 	defer stopWorkers()
 	proxies, err := cfg.proxies()
