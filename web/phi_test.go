@@ -109,24 +109,20 @@ func canaryStudyIDs(res seed.Result) []string {
 	return out
 }
 
-var (
-	digitsOnly = regexp.MustCompile(`^[0-9]+$`)
-	// Machine data inside a page: chart options and SVG path geometry.
-	machineData = regexp.MustCompile(`(data-chart|d|points|viewBox)="[^"]*"`)
-)
-
 // leaksIn finds canaries in a page. Everywhere, a canary's exact text counts
 // (a number made only of digits - a ZIP code, a phone number's digits - only as
 // a whole number: "03601" inside the timestamp 1759403601000 is not a ZIP
 // code). In the readable part of the page, deid.Leaks also finds reformatted
 // phone numbers and dates; chart data and SVG geometry are left out of that
 // looser search, where runs of unrelated numbers would match by chance.
+// Plain string scanning, not regular expressions: the crawl reads hundreds of
+// large pages.
 func leaksIn(text string, canaries []string) []string {
 	var out []string
 	var words []string
 	for _, c := range canaries {
-		if digitsOnly.MatchString(c) {
-			if regexp.MustCompile(`(^|[^0-9])` + c + `($|[^0-9])`).MatchString(text) {
+		if isDigits(c) {
+			if containsNumber(text, c) {
 				out = append(out, c)
 			}
 			continue
@@ -137,5 +133,63 @@ func leaksIn(text string, canaries []string) []string {
 		}
 		words = append(words, c)
 	}
-	return append(out, deid.Leaks(machineData.ReplaceAllString(text, ""), words)...)
+	return append(out, deid.Leaks(withoutMachineData(text), words)...)
+}
+
+func isDigits(s string) bool {
+	if s == "" {
+		return false
+	}
+	for _, r := range s {
+		if r < '0' || r > '9' {
+			return false
+		}
+	}
+	return true
+}
+
+func isDigitByte(b byte) bool { return b >= '0' && b <= '9' }
+
+// containsNumber reports whether n stands in text as a whole number.
+func containsNumber(text, n string) bool {
+	for i := 0; ; {
+		j := strings.Index(text[i:], n)
+		if j < 0 {
+			return false
+		}
+		at := i + j
+		end := at + len(n)
+		if (at == 0 || !isDigitByte(text[at-1])) && (end == len(text) || !isDigitByte(text[end])) {
+			return true
+		}
+		i = at + 1
+	}
+}
+
+// machineAttrs are attributes that hold machine data: chart options and SVG
+// geometry.
+var machineAttrs = []string{` data-chart="`, ` d="`, ` points="`, ` viewBox="`}
+
+// withoutMachineData removes the values of machineAttrs from an HTML page.
+func withoutMachineData(text string) string {
+	var b strings.Builder
+	for {
+		first, which := -1, ""
+		for _, a := range machineAttrs {
+			if k := strings.Index(text, a); k >= 0 && (first < 0 || k < first) {
+				first, which = k, a
+			}
+		}
+		if first < 0 {
+			b.WriteString(text)
+			return b.String()
+		}
+		b.WriteString(text[:first])
+		rest := text[first+len(which):]
+		q := strings.IndexByte(rest, '"')
+		if q < 0 {
+			return b.String()
+		}
+		text = rest[q+1:]
+	}
 }
