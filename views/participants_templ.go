@@ -950,7 +950,7 @@ func ParticipantPage(m ParticipantModel) templ.Component {
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
-			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 99, "<h2>Weekly timeline</h2><table class=\"grid\" data-testid=\"timeline\"><thead><tr><th class=\"num\">Week</th><th>Dates</th><th class=\"num\">Readings</th><th class=\"num\">Usable wear (h)</th><th>Screen</th><th>Why</th><th>Case</th><th class=\"num\">ECG</th><th></th></tr></thead> <tbody>")
+			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 99, "<h2>Weekly timeline</h2><table class=\"grid\" data-testid=\"timeline\"><thead><tr><th class=\"num\">Week</th><th>Dates</th><th class=\"num\">Readings</th><th class=\"num\">Usable wear (h)</th><th>Screen</th><th>Why</th><th>Case</th><th class=\"num\">ECG</th><th><span class=\"vh\">Chart of the week</span></th></tr></thead> <tbody>")
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}

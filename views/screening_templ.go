@@ -114,7 +114,7 @@ func Protocols(m ProtocolsModel) templ.Component {
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
-			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 4, "<table class=\"grid\" data-testid=\"protocols-table\"><thead><tr><th>Version</th><th>Status</th><th class=\"num\">Results</th><th>Based on</th><th>Created</th><th>Note</th><th></th></tr></thead> <tbody>")
+			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 4, "<table class=\"grid\" data-testid=\"protocols-table\"><thead><tr><th>Version</th><th>Status</th><th class=\"num\">Results</th><th>Based on</th><th>Created</th><th>Note</th><th><span class=\"vh\">Actions</span></th></tr></thead> <tbody>")
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
