@@ -115,6 +115,24 @@ const a11yKit = `window.__a11y = (() => {
 			}
 			return out;
 		},
+		// Refusals a screen reader would not tie to their field: a control
+		// marked invalid whose description says nothing, and a field's
+		// message (id NAME-error) that its control does not point to.
+		unlinkedErrors() {
+			const out = [];
+			for (const el of document.querySelectorAll('[aria-invalid="true"]')) {
+				const ids = (el.getAttribute('aria-describedby') || '').split(/\s+/).filter(Boolean);
+				const said = ids.map(id => document.getElementById(id)).filter(Boolean).map(e => e.textContent.trim()).join(' ');
+				if (!said) out.push(describe(el) + ' is marked invalid but its description says nothing');
+			}
+			for (const e of document.querySelectorAll('.field-error[id$="-error"]')) {
+				const name = e.id.slice(0, -'-error'.length);
+				const controls = [document.getElementById(name), ...document.getElementsByName(name)].filter(Boolean);
+				if (controls.length && !controls.some(c => (c.getAttribute('aria-describedby') || '').split(/\s+/).includes(e.id)))
+					out.push(describe(e) + ' is not tied to its control');
+			}
+			return out;
+		},
 		// The focused element, its row and form, and how visible its focus
 		// mark is: the outline's width and its contrast with the colour
 		// beside the outline on each side that is on screen.
@@ -220,11 +238,11 @@ type a11yPage struct{ name, pattern, path string }
 // TestAccessibilityOfMainPages runs axe-core in headless Chromium on every
 // main page, as each role that may open it (the route table says which),
 // on the sign-in, not-allowed and not-found pages, and on a few states a
-// page reaches by use: a refused sign-in, a triage row after an action, a
-// sign-off refused for a missing box. Any violation of impact serious or
+// page reaches by use: a refused sign-in, a triage row after an action, an
+// enrolment with refused fields, a sign-off refused for a missing box. Any violation of impact serious or
 // critical fails, with the rule, its impact and the offending elements; the
 // moderate and minor ones are logged. Every form control must have a label
-// and an edge that can be seen. The roles run side by side, each in its own
+// and an edge that can be seen, and every refusal must be tied to its field. The roles run side by side, each in its own
 // browser.
 func TestAccessibilityOfMainPages(t *testing.T) {
 	src, err := os.ReadFile(axeScript)
@@ -286,6 +304,15 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 					)
 					tb.a11yCheck(who, "triage after a row action")
 					checked.Add(1)
+				case role == cohort.Coordinator && pg.name == "new participant":
+					// The form leaves checking to the server (novalidate):
+					// sent empty, it comes back with a message per field.
+					tb.follow("enrol nobody", `[data-testid="participant-form"] button[type="submit"]`, `.field-error`)
+					if st := tb.status(); st != 422 {
+						t.Errorf("an empty enrolment answers %d, want 422", st)
+					}
+					tb.a11yCheck(who, "new participant with refused fields")
+					checked.Add(1)
 				case role == cohort.Investigator && pg.name == "referral summary":
 					// The box is required in the browser; without that the
 					// server refuses, and the page shows why.
@@ -332,6 +359,9 @@ func (tb *tab) a11yCheck(who, name string) {
 	}
 	if bad := tb.eval(unlabelled); bad != "[]" && bad != "" {
 		t.Errorf("%s, as %s: form controls without a label: %s", name, who, bad)
+	}
+	if bad := tb.eval(a11yKit + `.unlinkedErrors()`); bad != "[]" && bad != "" {
+		t.Errorf("%s, as %s: refusals not tied to their fields: %s", name, who, bad)
 	}
 	if bad := tb.eval(a11yKit + `.faintControls()`); bad != "[]" && bad != "" {
 		t.Errorf("%s, as %s: form controls whose edge is too faint to find (WCAG 1.4.11 asks 3:1): %s", name, who, bad)
