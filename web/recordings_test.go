@@ -91,7 +91,9 @@ func TestRecordingUploads(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 2)
 	coord := a.signIn(cohort.Coordinator)
-	taken := time.Now().UTC().Add(-2 * time.Hour).Format("2006-01-02T15:04")
+	// Now, to the minute: an earlier hour can fall on the day before the
+	// case was flagged (just after midnight), which the intake refuses.
+	taken := time.Now().UTC().Format("2006-01-02T15:04")
 	for i, tc := range []struct {
 		name, format string
 		data         []byte
@@ -181,7 +183,7 @@ func TestOverReadFlow(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 1)
 	ctx := context.Background()
-	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], db.RecordingInput{TakenAt: time.Now().Add(-time.Hour), DurationS: 45, Auto: "af"})
+	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], db.RecordingInput{TakenAt: time.Now().Truncate(time.Minute), DurationS: 45, Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}
