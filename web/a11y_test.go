@@ -270,7 +270,7 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	for _, role := range cohort.Roles {
 		t.Run(string(role), func(t *testing.T) {
 			t.Parallel()
-			tb := newTab(t, a, 4*time.Minute)
+			tb := newTab(t, a, 6*time.Minute)
 			tb.preload(string(src))
 			tb.signIn(role)
 			who := string(role)

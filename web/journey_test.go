@@ -28,13 +28,13 @@ import (
 // may not open answers with the "Not allowed" page and status 403. A
 // visitor asking for a page is sent to the sign-in form.
 //
-// The expected areas are written out here from the access rules of the
-// domain notes (monitors see aggregates and de-identified lists only;
-// administration is the administrators'), not read from the route table,
-// so a change to the table that opens an area to a role fails here.
+// The expected areas are written out here from the roles of the domain
+// notes (a monitor has a read-only, de-identified view of progress and case
+// handling; administration is the administrators'), not read from the route
+// table, so a change to the table that opens an area to a role fails here.
 func TestBrowserNavigationByRole(t *testing.T) {
 	a := newApp(t)
-	tb := newTab(t, a, 90*time.Second)
+	tb := newTab(t, a, 3*time.Minute)
 
 	tb.open("/triage", "#email")
 	if loc := tb.b.Location(); !strings.Contains(loc, "/signin") || !strings.Contains(loc, "next=%2Ftriage") {
@@ -202,7 +202,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	f := newJourneyFixture(t, a)
 	file := afRecordingFile(t, f)
 	ctx := context.Background()
-	tb := newTab(t, a, 3*time.Minute)
+	tb := newTab(t, a, 5*time.Minute)
 	b := tb.b
 	row := fmt.Sprintf("#case-%d", f.caseID)
 
@@ -371,7 +371,7 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 	a := newApp(t)
 	study, _, pids, _ := demoCanaries(t, a)
 	canaries := monitorCanaries(study)
-	tb := newTab(t, a, 2*time.Minute)
+	tb := newTab(t, a, 3*time.Minute)
 	pages := []string{"/", "/participants", "/cases", "/confirmations", "/confirmations/statistics", "/progress"}
 	sids := make([]string, 0, len(pids))
 	for sid := range pids {
