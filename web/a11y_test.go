@@ -242,7 +242,9 @@ type a11yPage struct{ name, pattern, path string }
 // enrolment with refused fields, a sign-off refused for a missing box. Any violation of impact serious or
 // critical fails, with the rule, its impact and the offending elements; the
 // moderate and minor ones are logged. Every form control must have a label
-// and an edge that can be seen, and every refusal must be tied to its field. The roles run side by side, each in its own
+// and an edge that can be seen, and every refusal must be tied to its field.
+// Planted faults show the checker can fail, with the page's
+// Content-Security-Policy still in force. The roles run side by side, each in its own
 // browser.
 func TestAccessibilityOfMainPages(t *testing.T) {
 	src, err := os.ReadFile(axeScript)
@@ -266,6 +268,27 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 		tb.follow("submit a wrong password", `[data-testid="signin-submit"]`, `[data-testid="signin-error"]`)
 		tb.a11yCheck("a visitor", "sign-in with its error")
 		checked.Add(2)
+
+		// The checker can fail: planted faults are found, with the
+		// impact that fails the test, while the page's
+		// Content-Security-Policy still refuses inline script.
+		tb.eval(`(() => {
+			const m = document.querySelector('main');
+			m.insertAdjacentHTML('beforeend', '<img src="data:,"><button type="button"></button>');
+			const s = document.createElement('script'); s.textContent = 'window.__inline = 1'; m.appendChild(s);
+		})()`)
+		found := map[string]string{}
+		for _, v := range tb.axe() {
+			found[v.ID] = v.Impact
+		}
+		for _, rule := range []string{"image-alt", "button-name"} {
+			if found[rule] != "critical" {
+				t.Errorf("a planted %s fault was reported as %q, want critical (found %v)", rule, found[rule], found)
+			}
+		}
+		if tb.eval(`typeof window.__inline`) != "undefined" {
+			t.Error("an inline script ran: the page under test is not under its Content-Security-Policy")
+		}
 	})
 	for _, role := range cohort.Roles {
 		t.Run(string(role), func(t *testing.T) {
