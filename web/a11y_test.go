@@ -93,6 +93,13 @@ const a11yKit = `window.__a11y = (() => {
 		}
 		return {r: 255, g: 255, b: 255, a: 1};
 	};
+	// A stable name for an element across calls; the radios of a group
+	// share one, as Tab stops once per group.
+	const key = el => {
+		if (el.type === 'radio' && el.name) return 'radio:' + (el.form ? el.form.getAttribute('data-testid') || '' : '') + ':' + el.name;
+		if (!el.__a11yKey) { window.__a11yN = (window.__a11yN || 0) + 1; el.__a11yKey = 'el' + window.__a11yN; }
+		return el.__a11yKey;
+	};
 	const describe = el => el.tagName.toLowerCase() + (el.id ? '#' + el.id : '') +
 		(el.getAttribute('data-testid') ? '[data-testid=' + el.getAttribute('data-testid') + ']' : '') +
 		(el.className && typeof el.className === 'string' ? '.' + el.className.trim().split(/\s+/).join('.') : '');
@@ -133,6 +140,21 @@ const a11yKit = `window.__a11y = (() => {
 			}
 			return out;
 		},
+		// The controls a person can see and use, by key: links, buttons,
+		// fields, the summaries of folded sections, anything given a
+		// tab stop.
+		controls() {
+			const out = {};
+			for (const el of document.querySelectorAll('a[href], button, input:not([type=hidden]), select, textarea, summary, [tabindex]')) {
+				if (el.disabled || el.getAttribute('tabindex') === '-1' || el.closest('[inert], [hidden]')) continue;
+				const d = el.closest('details');
+				if (d && !d.open && !(el.tagName === 'SUMMARY' && el.parentElement === d)) continue;
+				const s = getComputedStyle(el); if (s.visibility === 'hidden') continue;
+				const r = el.getBoundingClientRect(); if (!r.width || !r.height) continue;
+				out[key(el)] = describe(el);
+			}
+			return out;
+		},
 		// The focused element, its row and form, and how visible its focus
 		// mark is: the outline's width and its contrast with the colour
 		// beside the outline on each side that is on screen.
@@ -152,7 +174,8 @@ const a11yKit = `window.__a11y = (() => {
 					.map(([x, y]) => Math.round(ratio(ring, behind(el, x, y)) * 100) / 100);
 			}
 			const row = el.closest('[data-row]'), form = el.closest('form');
-			return {what: describe(el), id: el.id, tag: el.tagName.toLowerCase(), row: row ? row.id : '',
+			return {key: key(el), body: el === document.body || el === document.documentElement, inner: !el.matches(':focus'),
+				what: describe(el), id: el.id, tag: el.tagName.toLowerCase(), row: row ? row.id : '',
 				form: form ? form.getAttribute('data-testid') || '' : '', outline: w, sides: sides,
 				onScreen: r.width > 0 && r.height > 0 && r.right > 0 && r.bottom > 0 && r.left < innerWidth && r.top < innerHeight};
 		},
@@ -239,7 +262,10 @@ type a11yPage struct{ name, pattern, path string }
 // main page, as each role that may open it (the route table says which),
 // on the sign-in, not-allowed and not-found pages, and on a few states a
 // page reaches by use: a refused sign-in, a triage row after an action, an
-// enrolment with refused fields, a sign-off refused for a missing box. Any violation of impact serious or
+// enrolment with refused fields, a sign-off refused for a missing box. The
+// pages whose work is done in forms are also walked with Tab from top to
+// bottom: every control a person can see must be reached, with its focus
+// ringed clearly. Any violation of impact serious or
 // critical fails, with the rule, its impact and the offending elements; the
 // moderate and minor ones are logged. Every form control must have a label
 // and an edge that can be seen, and every refusal must be tied to its field.
@@ -254,6 +280,10 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	a := newApp(t)
 	pages := a11yFixture(t, a)
 	var checked atomic.Int32
+	// Pages walked with Tab from top to bottom: the ones whose work is
+	// done in forms.
+	tabWalked := map[string]bool{"case page": true, "recording page": true, "referral preview": true, "referral summary": true,
+		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true}
 
 	t.Run("visitor", func(t *testing.T) {
 		t.Parallel()
@@ -261,6 +291,7 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 		tb.preload(string(src))
 		tb.open("/signin", "#email")
 		tb.a11yCheck("a visitor", "sign-in")
+		tb.tabWalk("a visitor", "sign-in")
 		tb.b.Do("type a wrong password",
 			chromedp.SendKeys(chromedp.ID("email"), "coordinator@example.org"),
 			chromedp.SendKeys(chromedp.ID("password"), "not the password"),
@@ -319,6 +350,10 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 				}
 				tb.a11yCheck(who, pg.name)
 				checked.Add(1)
+				if tabWalked[pg.name] {
+					tb.open(pg.path, "main") // from the top, as a person arrives
+					tb.tabWalk(who, pg.name)
+				}
 				switch {
 				case role == cohort.Coordinator && pg.name == "triage":
 					tb.b.Do("take a case on triage",
@@ -391,6 +426,108 @@ func (tb *tab) a11yCheck(who, name string) {
 	}
 }
 
+// focusStop is where one Tab left the focus, and how the focus shows.
+type focusStop struct {
+	Key      string    `json:"key"`
+	Body     bool      `json:"body"`  // nothing focused
+	Inner    bool      `json:"inner"` // the focus is inside the browser's own parts of a field (a date field's picker button)
+	What     string    `json:"what"`
+	ID       string    `json:"id"`
+	Tag      string    `json:"tag"`
+	Row      string    `json:"row"`
+	Form     string    `json:"form"`
+	Outline  float64   `json:"outline"`
+	Sides    []float64 `json:"sides"`
+	OnScreen bool      `json:"onScreen"`
+}
+
+// press sends one key to the page and reports where the focus is then.
+func (tb *tab) press(key string) focusStop {
+	tb.t.Helper()
+	tb.b.Do("press "+strconv.Quote(key), chromedp.KeyEvent(key))
+	got, err := chromedp.Run(tb.b.Context(), chromedp.Evaluate[focusStop](a11yKit+`.focused()`))
+	if err != nil {
+		tb.t.Fatalf("focused element: %v", err)
+	}
+	return got
+}
+
+// ringed fails the test when the focused element does not show its focus
+// clearly: an outline of at least 2 px, on screen, contrasting 3:1 with the
+// colour beside it. The ring may meet a neighbouring control on one side (a
+// dark button beside a select); on the other sides it must stand out.
+//
+// Focus inside the browser's own parts of a field, such as a date field's
+// picker button, is drawn by the browser and out of the page's reach
+// (WCAG 1.4.11 exempts what the user agent draws); it is not checked.
+func (tb *tab) ringed(s focusStop) {
+	tb.t.Helper()
+	if s.Inner {
+		return
+	}
+	short := 0
+	for _, c := range s.Sides {
+		if c < 3 {
+			short++
+		}
+	}
+	if s.Outline < 2 || len(s.Sides) < 2 || short > 1 || !s.OnScreen {
+		tb.t.Errorf("%s has focus but shows it poorly: outline %.1f px, contrast with the colour beside it %v (:1), on screen %v", s.What, s.Outline, s.Sides, s.OnScreen)
+	}
+}
+
+// tabWalk tabs through the page shown from its start until the focus
+// leaves the page or comes round again, and fails for every control a
+// person can see that Tab never reaches, and for every stop whose focus
+// does not show.
+func (tb *tab) tabWalk(who, name string) {
+	t := tb.t
+	t.Helper()
+	want, err := chromedp.Run(tb.b.Context(), chromedp.Evaluate[map[string]string](a11yKit+`.controls()`))
+	if err != nil {
+		t.Fatalf("controls of %s: %v", name, err)
+	}
+	if len(want) == 0 {
+		t.Fatalf("%s, as %s: no control to walk to; is the page there?", name, who)
+	}
+	reached := map[string]bool{}
+	first := ""
+	// A field the page focuses itself (autofocus) is where a person starts.
+	if s, err := chromedp.Run(tb.b.Context(), chromedp.Evaluate[focusStop](a11yKit+`.focused()`)); err != nil {
+		t.Fatalf("focused element: %v", err)
+	} else if !s.Body {
+		first, reached[s.Key] = s.Key, true
+	}
+	for i := 0; ; i++ {
+		if i > 2*len(want)+20 {
+			t.Errorf("%s, as %s: Tab went round %d times without leaving the page", name, who, i)
+			break
+		}
+		s := tb.press(kb.Tab)
+		if s.Body || s.Key == first {
+			if len(reached) > 0 {
+				break
+			}
+			continue
+		}
+		if first == "" {
+			first = s.Key
+		}
+		reached[s.Key] = true
+		tb.ringed(s)
+	}
+	var missed []string
+	for k, what := range want {
+		if !reached[k] {
+			missed = append(missed, what)
+		}
+	}
+	slices.Sort(missed)
+	if len(missed) > 0 {
+		t.Errorf("%s, as %s: Tab never reaches %d of %d controls: %v", name, who, len(missed), len(want), missed)
+	}
+}
+
 // TestKeyboardWorksTriage uses the triage page with the keyboard alone, as
 // the brief of the page promises: the first Tab reaches the skip link,
 // which shows and moves the focus to the main content; Tab then reaches
@@ -407,39 +544,7 @@ func TestKeyboardWorksTriage(t *testing.T) {
 	tb.signIn(cohort.Coordinator)
 	tb.open("/triage", "#"+row)
 
-	type stop struct {
-		What     string    `json:"what"`
-		ID       string    `json:"id"`
-		Tag      string    `json:"tag"`
-		Row      string    `json:"row"`
-		Form     string    `json:"form"`
-		Outline  float64   `json:"outline"`
-		Sides    []float64 `json:"sides"`
-		OnScreen bool      `json:"onScreen"`
-	}
-	press := func(key string) stop {
-		t.Helper()
-		tb.b.Do("press "+strconv.Quote(key), chromedp.KeyEvent(key))
-		got, err := chromedp.Run(tb.b.Context(), chromedp.Evaluate[stop](a11yKit+`.focused()`))
-		if err != nil {
-			t.Fatalf("focused element: %v", err)
-		}
-		return got
-	}
-	// A ring may meet a neighbouring control on one side (a dark button
-	// beside a select); on the other sides it must stand out.
-	ringed := func(s stop) {
-		t.Helper()
-		short := 0
-		for _, c := range s.Sides {
-			if c < 3 {
-				short++
-			}
-		}
-		if s.Outline < 2 || len(s.Sides) < 2 || short > 1 || !s.OnScreen {
-			t.Errorf("%s has focus but shows it poorly: outline %.1f px, contrast with the colour beside it %v (:1), on screen %v", s.What, s.Outline, s.Sides, s.OnScreen)
-		}
-	}
+	press, ringed := tb.press, tb.ringed
 
 	// The header: skip link, home link, sign out.
 	first := press(kb.Tab)
@@ -498,7 +603,7 @@ func TestKeyboardWorksTriage(t *testing.T) {
 	if got := tb.b.Text("owner", "#"+row+` [data-testid="row-owner"]`); got != "Test Coordinator" {
 		t.Errorf("owner after Enter on take: %q", got)
 	}
-	s := stop{}
+	s := focusStop{}
 	for range 10 {
 		if s = press(kb.Tab); s.ID == fmt.Sprintf("outcome-%d", ids[0]) {
 			break
