@@ -5,26 +5,44 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
+
+	"github.com/jackc/pgx/v5"
 )
 
-// SiteEnrolment is one site's enrolment history: counts per calendar week
-// (weeks start on Monday, in UTC dates) from the study's first enrolment week
-// to the week holding today.
+// SiteEnrolment is one site's enrolment history as of a day: counts per
+// calendar week (weeks start on Monday, in UTC dates) from the study's first
+// enrolment week to the week holding that day, for the chart, and counts in
+// the seven-day periods that end on that day, for the projection.
 type SiteEnrolment struct {
 	SiteID    int
 	Code      string
 	Name      string
 	Target    int
-	Enrolled  int
-	Withdrawn int
+	Enrolled  int   // enrolled on or before the day
+	Withdrawn int   // of those, withdrawn on or before the day
 	Weekly    []int // enrolments per week, aligned with EnrolmentHistory.Weeks
+	// Trailing holds the enrolments in each of the TrailingWeeks seven-day
+	// periods before the day, oldest first; the last period is the six days
+	// before the day and the day itself. A calendar week still under way is
+	// not a whole week, so a recent rate is taken over these periods instead.
+	Trailing []int
 }
+
+// TrailingWeeks is how many seven-day periods SiteEnrolment.Trailing holds:
+// the longest history the projection may use.
+const TrailingWeeks = 52
 
 // EnrolmentHistory is every site's weekly enrolment on a common week axis.
 type EnrolmentHistory struct {
 	Weeks []cohort.Date // Monday of each week
 	Sites []SiteEnrolment
-	Today cohort.Date
+	Today cohort.Date // the day the history runs to
+	// Periods is how many of the Trailing periods reach back no further
+	// than the study's first enrolment (at most TrailingWeeks; 0 before any
+	// enrolment): a rate over older periods would count weeks before the
+	// study began recruiting as weeks without enrolment.
+	Periods int
 }
 
 // mondayOf is the Monday on or before d.
@@ -33,15 +51,24 @@ func mondayOf(d cohort.Date) cohort.Date {
 	return d.AddDays(-((wd + 6) % 7))
 }
 
-// Enrolment reads every site's weekly enrolment counts.
-func (s *Store) Enrolment(ctx context.Context) (EnrolmentHistory, error) {
+// Enrolment reads every site's enrolment counts as they stood at the end of
+// the day asOf (UTC dates): participants enrolled later are left out, and
+// withdrawals after it do not count. A zero asOf, or one after today, is
+// today.
+func (s *Store) Enrolment(ctx context.Context, asOf cohort.Date) (EnrolmentHistory, error) {
 	today := cohort.DateOf(s.now().UTC())
+	if asOf.IsZero() || today.Before(asOf) {
+		asOf = today
+	}
+	today = asOf
 	h := EnrolmentHistory{Today: today}
 	sites, err := s.Sites(ctx)
 	if err != nil {
 		return h, err
 	}
-	rows, err := s.pool.Query(ctx, `SELECT site_id, enrolled_on, withdrawn_on IS NOT NULL FROM participants ORDER BY enrolled_on`)
+	rows, err := s.pool.Query(ctx, `
+		SELECT site_id, enrolled_on, withdrawn_on IS NOT NULL AND withdrawn_on <= $1::date
+		FROM participants WHERE enrolled_on <= $1::date ORDER BY enrolled_on`, today.String())
 	if err != nil {
 		return h, mapErr("enrolment", err)
 	}
@@ -68,13 +95,17 @@ func (s *Store) Enrolment(ctx context.Context) (EnrolmentHistory, error) {
 	if len(recs) > 0 && recs[0].on.Before(first) {
 		first = mondayOf(recs[0].on)
 	}
+	if len(recs) > 0 {
+		h.Periods = min(TrailingWeeks, today.DaysSince(recs[0].on)/7+1)
+	}
 	for d := first; !today.Before(d); d = d.AddDays(7) {
 		h.Weeks = append(h.Weeks, d)
 	}
 	idx := map[int]int{}
 	for i, st := range sites {
 		idx[st.ID] = i
-		h.Sites = append(h.Sites, SiteEnrolment{SiteID: st.ID, Code: st.Code, Name: st.Name, Target: st.Target, Weekly: make([]int, len(h.Weeks))})
+		h.Sites = append(h.Sites, SiteEnrolment{SiteID: st.ID, Code: st.Code, Name: st.Name, Target: st.Target,
+			Weekly: make([]int, len(h.Weeks)), Trailing: make([]int, TrailingWeeks)})
 	}
 	for _, r := range recs {
 		i, ok := idx[r.site]
@@ -88,6 +119,11 @@ func (s *Store) Enrolment(ctx context.Context) (EnrolmentHistory, error) {
 		}
 		if w := mondayOf(r.on).DaysSince(first) / 7; w >= 0 && w < len(se.Weekly) {
 			se.Weekly[w]++
+		}
+		// Days 0..6 before today fall in the last period, 7..13 in the one
+		// before, and so on.
+		if back := today.DaysSince(r.on) / 7; back >= 0 && back < TrailingWeeks {
+			se.Trailing[TrailingWeeks-1-back]++
 		}
 	}
 	return h, nil
@@ -184,4 +220,87 @@ func (s *Store) SilentParticipants(ctx context.Context, days int) ([]SilentParti
 		out = append(out, sp)
 	}
 	return out, mapErr("silent participants", rows.Err())
+}
+
+// CascadeMember is a participant as a box of the cascade lists them: study
+// ID, site and their cases, nothing identifying.
+type CascadeMember struct {
+	ID         int64
+	StudyID    string
+	SiteCode   string
+	EnrolledOn cohort.Date
+	Withdrawn  bool
+	Cases      []MemberCase // under the cascade's protocol version, oldest flag first
+}
+
+// MemberCase is one case of a CascadeMember.
+type MemberCase struct {
+	ID        int64
+	State     followup.State
+	FlaggedAt time.Time
+	FirstWeek int
+	LastWeek  int
+}
+
+// CascadeMembers reads the participants with the given ids, in the order
+// given (ids not found are left out), each with their cases under protocol
+// version protocolID. It counts nothing: the ids come from Cascade, which is
+// the one place that decides who is in which box.
+func (s *Store) CascadeMembers(ctx context.Context, protocolID int, ids []int64) ([]CascadeMember, error) {
+	if len(ids) == 0 {
+		return nil, nil
+	}
+	byID := make(map[int64]*CascadeMember, len(ids))
+	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly, IsoLevel: pgx.RepeatableRead}, func(tx pgx.Tx) error {
+		rows, err := tx.Query(ctx, `
+			SELECT p.id, p.study_id, st.code, p.enrolled_on, p.withdrawn_on IS NOT NULL
+			FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = ANY($1)`, ids)
+		if err != nil {
+			return err
+		}
+		for rows.Next() {
+			var m CascadeMember
+			var on time.Time
+			if err := rows.Scan(&m.ID, &m.StudyID, &m.SiteCode, &on, &m.Withdrawn); err != nil {
+				rows.Close()
+				return err
+			}
+			m.EnrolledOn = cohort.DateOf(on)
+			byID[m.ID] = &m
+		}
+		if err := rows.Err(); err != nil {
+			return err
+		}
+		rows, err = tx.Query(ctx, `
+			SELECT id, participant_id, state, flagged_at, first_week, last_week
+			FROM cases WHERE participant_id = ANY($1) AND protocol_id = $2 ORDER BY flagged_at, id`, ids, protocolID)
+		if err != nil {
+			return err
+		}
+		for rows.Next() {
+			var c MemberCase
+			var pid int64
+			var state string
+			var first, last int16
+			if err := rows.Scan(&c.ID, &pid, &state, &c.FlaggedAt, &first, &last); err != nil {
+				rows.Close()
+				return err
+			}
+			c.State, c.FirstWeek, c.LastWeek = followup.State(state), int(first), int(last)
+			if m := byID[pid]; m != nil {
+				m.Cases = append(m.Cases, c)
+			}
+		}
+		return rows.Err()
+	})
+	if err != nil {
+		return nil, mapErr("cascade members", err)
+	}
+	out := make([]CascadeMember, 0, len(ids))
+	for _, id := range ids {
+		if m := byID[id]; m != nil {
+			out = append(out, *m)
+		}
+	}
+	return out, nil
 }

@@ -39,6 +39,7 @@ func (s *Server) routes() []route {
 		{"POST", "/participants/{id}/notes", caseWork, s.participantNote},
 
 		{"GET", "/progress", analysis, s.progress},
+		{"GET", "/progress/cascade/{box}", analysis, s.cascadeBox},
 
 		{"GET", "/imports", coordWork, s.importsList},
 		{"GET", "/imports/new", coordWork, s.importNew},
