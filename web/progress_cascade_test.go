@@ -441,7 +441,12 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 		{"/progress?site=AA", http.StatusUnprocessableEntity},
 		{"/progress?protocol=-1", http.StatusUnprocessableEntity},
 		{"/progress?protocol=999", http.StatusNotFound},
+		{"/progress/report?from=2026-02-01&to=2026-01-01", http.StatusUnprocessableEntity},
+		{"/progress/report?to=0001-01-01", http.StatusUnprocessableEntity},
+		{"/progress/report.zip?protocol=abc", http.StatusUnprocessableEntity},
+		{"/progress/report.zip?protocol=999", http.StatusNotFound},
 		{"/progress/cascade/enrolled?exit=declined", http.StatusOK}, // a known reason nobody left by here: an empty list
+		{"/progress/report?window=999&paper=legal", http.StatusOK},  // out-of-range choices fall back to the defaults
 	} {
 		res, _ := a.get(c, tt.path)
 		if res.StatusCode != tt.want {

@@ -40,6 +40,8 @@ func (s *Server) routes() []route {
 
 		{"GET", "/progress", analysis, s.progress},
 		{"GET", "/progress/cascade/{box}", analysis, s.cascadeBox},
+		{"GET", "/progress/report", analysis, s.progressReport},
+		{"GET", "/progress/report.zip", analysis, s.progressReportZip},
 
 		{"GET", "/imports", coordWork, s.importsList},
 		{"GET", "/imports/new", coordWork, s.importNew},
