@@ -454,3 +454,53 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 		}
 	}
 }
+
+// TestDataSufficiencyWorkedExample checks the weekly data sufficiency table
+// against a count by hand. Today is Wednesday 2026-03-11; the study follows
+// each participant for 3 weeks. A participant-week n covers days
+// [7n, 7n+7) after enrolment and counts in the calendar week (from Monday)
+// in which it ends.
+//
+//	S1, enrolled Monday 2026-02-09: weeks 0, 1, 2 end 02-15, 02-22, 03-01
+//	  (calendar weeks of 02-09, 02-16, 02-23); week 3 is past follow-up.
+//	  Verdicts: negative, positive, insufficient, and negative in week 3.
+//	S2, enrolled Wednesday 2026-02-11, withdrew 2026-02-26: weeks 0 and 1
+//	  end 02-17 and 02-24 (calendar weeks of 02-16, 02-23); week 2 would
+//	  end after the withdrawal. Verdicts: negative, negative, and positive
+//	  in week 2.
+//	S3, enrolled 2026-03-09: no week complete.
+//	A positive week 2 of S1 under an inactive protocol version is ignored.
+//
+// Due: 02-09: 1; 02-16: 2; 02-23: 2. With enough wear: 02-09: 1 (S1 w0);
+// 02-16: 2 (S1 w1, S2 w0); 02-23: 1 (S2 w1; S1 w2 was insufficient).
+func TestDataSufficiencyWorkedExample(t *testing.T) {
+	a := newAppAt(t, time.Date(2026, 3, 11, 12, 0, 0, 0, time.UTC))
+	for _, q := range []string{
+		`INSERT INTO study (id, name, follow_up_weeks) VALUES (1, 'Sufficiency study', 3)`,
+		`INSERT INTO sites (code, name) VALUES ('AA', 'Site A')`,
+		`INSERT INTO protocols (name, version, params, active, used) VALUES ('weekly screen', 1, '{}', true, true), ('weekly screen', 2, '{}', false, true)`,
+		`INSERT INTO participants (study_id, site_id, time_zone, enrolled_on, withdrawn_on) VALUES
+		 ('S1', 1, 'UTC', '2026-02-09', NULL), ('S2', 1, 'UTC', '2026-02-11', '2026-02-26'), ('S3', 1, 'UTC', '2026-03-09', NULL)`,
+		`INSERT INTO screen_results (participant_id, protocol_id, week, verdict, reason, result, input_digest)
+		 SELECT p.id, v.protocol, v.week, v.verdict, 'test', '{}', 'd' FROM participants p
+		 JOIN (VALUES ('S1', 1, 0, 'negative'), ('S1', 1, 1, 'positive'), ('S1', 1, 2, 'insufficient'), ('S1', 1, 3, 'negative'),
+		              ('S2', 1, 0, 'negative'), ('S2', 1, 1, 'negative'), ('S2', 1, 2, 'positive'), ('S1', 2, 2, 'positive'))
+		      AS v(sid, protocol, week, verdict) ON v.sid = p.study_id`,
+	} {
+		a.exec(q)
+	}
+	_, body := a.get(a.signIn(cohort.Monitor), "/progress")
+	want := map[string]string{
+		"sufficiency-2026-02-09": "2026-02-09 1 1 100%",
+		"sufficiency-2026-02-16": "2026-02-16 2 2 100%",
+		"sufficiency-2026-02-23": "2026-02-23 2 1 50%",
+	}
+	if got := testIDs(body, "sufficiency-2"); len(got) != len(want) {
+		t.Errorf("weeks shown %v, want %d", got, len(want))
+	}
+	for id, w := range want {
+		if got := byTestID(body, id); got != w {
+			t.Errorf("%s: %q, want %q", id, got, w)
+		}
+	}
+}
