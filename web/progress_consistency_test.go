@@ -96,7 +96,7 @@ func pctText(v string) string {
 // episode boxes must also be the statistics page's episode counts.
 func TestReportAgreesWithThePagesOnTheDemo(t *testing.T) {
 	a := newApp(t)
-	loadDemo(t, a, 120)
+	loadDemo(t, a, 80)
 	// Readings give the agreement figures something to disagree about:
 	// every reached case without a recording gets a 45 s recording, and
 	// five in six recordings without a reading get one, rhythms and
