@@ -122,6 +122,13 @@ func (r ExitReason) Label() string {
 	return string(r)
 }
 
+// Known reports whether r is one of the reasons above, so a reason read from
+// a request can be told from a typing error.
+func (r ExitReason) Known() bool {
+	_, ok := exitLabels[r]
+	return ok
+}
+
 // InProgress reports whether the reason is a wait rather than a final exit.
 func (r ExitReason) InProgress() bool {
 	switch r {
@@ -189,6 +196,7 @@ func (b CascadeBox) Count() int { return len(b.Participants) }
 type Cascade struct {
 	Filter   CascadeFilter // as given, with ProtocolID resolved
 	Protocol ProtocolRef
+	Versions []ProtocolRef // every version, for choosing
 	Boxes    []CascadeBox
 }
 
@@ -544,7 +552,7 @@ func (s *Store) Cascade(ctx context.Context, f CascadeFilter) (Cascade, error) {
 
 func (fr figureRows) cascade(f CascadeFilter) Cascade {
 	f.ProtocolID = fr.protocol.ID
-	out := Cascade{Filter: f, Protocol: fr.protocol}
+	out := Cascade{Filter: f, Protocol: fr.protocol, Versions: fr.versions}
 	// Each participant's furthest case under the version.
 	type best struct {
 		stage Stage
@@ -689,6 +697,21 @@ func (s *Store) Agreement(ctx context.Context, f CascadeFilter) (Agreement, erro
 		return Agreement{}, err
 	}
 	return fr.agreement()
+}
+
+// Figures computes the cascade and the agreement statistics from one read,
+// so a report that shows both shows them as the database stood at one
+// moment; each is exactly what Cascade and Agreement return for f.
+func (s *Store) Figures(ctx context.Context, f CascadeFilter) (Cascade, Agreement, error) {
+	fr, err := s.figureRows(ctx, f)
+	if err != nil {
+		return Cascade{}, Agreement{}, err
+	}
+	a, err := fr.agreement()
+	if err != nil {
+		return Cascade{}, Agreement{}, err
+	}
+	return fr.cascade(f), a, nil
 }
 
 func sexLabel(s cohort.Sex) string {

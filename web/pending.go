@@ -1,10 +1,4 @@
 package web
 
-import (
-	"net/http"
-
-	"cohortdesk/views"
-)
-
-// progressCascade adds the screening cascade to the progress page.
-func (s *Server) progressCascade(r *http.Request, m *views.ProgressModel) {}
+// Placeholders for work in progress on other issues go here until their
+// handlers land in files of their own.

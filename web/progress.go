@@ -4,8 +4,10 @@ import (
 	"context"
 	"fmt"
 	"net/http"
+	"net/url"
 	"strconv"
 
+	"cohortdesk/cohort"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -15,47 +17,127 @@ import (
 )
 
 type progressStore interface {
-	Enrolment(ctx context.Context) (db.EnrolmentHistory, error)
+	Enrolment(ctx context.Context, asOf cohort.Date) (db.EnrolmentHistory, error)
 	DataSufficiency(ctx context.Context) ([]db.SufficiencyWeek, error)
 	SilentParticipants(ctx context.Context, days int) ([]db.SilentParticipant, error)
+	Cascade(ctx context.Context, f db.CascadeFilter) (db.Cascade, error)
+	CascadeMembers(ctx context.Context, protocolID int, ids []int64) ([]db.CascadeMember, error)
+	Figures(ctx context.Context, f db.CascadeFilter) (db.Cascade, db.Agreement, error)
+	Sites(ctx context.Context) ([]db.Site, error)
 }
 
 // silentDays is how long without data makes a participant worth a call.
 const silentDays = 14
 
-func projectionRow(label string, enrolled, withdrawn, target int, weekly []int, window int, asOf db.EnrolmentHistory) views.EnrolmentRow {
-	row := views.EnrolmentRow{Label: label, Target: target, Enrolled: enrolled, Withdrawn: withdrawn}
-	if target > 0 {
-		row.Percent = fmt.Sprintf("%.0f%%", 100*float64(enrolled)/float64(target))
+// defaultWindow is the weeks of history the projection uses unless asked.
+const defaultWindow = 8
+
+// windowOf reads the projection's weeks of history, the default when the
+// value is missing or out of range (the page's own form keeps it in range).
+func windowOf(q url.Values) int {
+	w, err := strconv.Atoi(q.Get("window"))
+	if err != nil || w < 2 || w > db.TrailingWeeks {
+		return defaultWindow
 	}
-	recent := weekly
-	if len(recent) > window {
-		recent = recent[len(recent)-window:]
+	return w
+}
+
+// enrolFig is one site's (or the study's) enrolment against target with its
+// projection: the figures behind a row of the enrolment table on the
+// progress page, the weekly report and its CSV.
+type enrolFig struct {
+	label     string
+	key       string // site code, or "all"
+	target    int
+	enrolled  int
+	withdrawn int
+	proj      stats.Projection
+	projected bool   // proj holds a projection
+	why       string // why there is none
+}
+
+// enrolmentFigures projects the date the target is reached from the
+// enrolments in the last window seven-day periods up to the history's day
+// (fewer when the study is younger than that).
+func enrolmentFigures(label, key string, enrolled, withdrawn, target int, trailing []int, window int, h db.EnrolmentHistory) enrolFig {
+	f := enrolFig{label: label, key: key, target: target, enrolled: enrolled, withdrawn: withdrawn}
+	window = min(window, h.Periods, len(trailing))
+	switch {
+	case target == 0:
+		f.why = "no target set"
+		return f
+	case window == 0:
+		f.why = "no enrolment yet"
+		return f
 	}
-	if target == 0 {
-		row.Projection = "no target set"
-		return row
-	}
-	p, err := stats.ProjectEnrolment(asOf.Today, enrolled, target, recent, 0.95)
+	p, err := stats.ProjectEnrolment(h.Today, enrolled, target, trailing[len(trailing)-window:], 0.95)
 	if err != nil {
-		row.Projection = "cannot project: " + err.Error()
-		return row
+		f.why = "cannot project: " + err.Error()
+		return f
 	}
-	row.Rate = fmt.Sprintf("%.1f a week (95%% CI %.1f–%.1f) over %d weeks", p.Expected.RatePerWeek, p.Pessimistic.RatePerWeek, p.Optimistic.RatePerWeek, p.Window)
+	f.proj, f.projected = p, true
+	return f
+}
+
+// studyFigures is every site's row and the total row.
+func studyFigures(h db.EnrolmentHistory, window int) ([]enrolFig, enrolFig) {
+	var rows []enrolFig
+	trailing := make([]int, db.TrailingWeeks)
+	var enrolled, withdrawn, target int
+	for _, se := range h.Sites {
+		rows = append(rows, enrolmentFigures(se.Code+" · "+se.Name, se.Code, se.Enrolled, se.Withdrawn, se.Target, se.Trailing, window, h))
+		for i, c := range se.Trailing {
+			trailing[i] += c
+		}
+		enrolled += se.Enrolled
+		withdrawn += se.Withdrawn
+		target += se.Target
+	}
+	return rows, enrolmentFigures("All sites", "all", enrolled, withdrawn, target, trailing, window, h)
+}
+
+// percent is enrolled as a share of the target, "" without one.
+func (f enrolFig) percent() string {
+	if f.target <= 0 {
+		return ""
+	}
+	return fmt.Sprintf("%.0f%%", 100*float64(f.enrolled)/float64(f.target))
+}
+
+// dates words the projection: the expected date and the range of the
+// interval's scenarios.
+func (f enrolFig) dates() (projection, earliest, latest string) {
+	if !f.projected {
+		return f.why, "", ""
+	}
+	p := f.proj
 	switch {
 	case p.Met:
-		row.Projection = "target reached"
+		return "target reached", "", ""
 	case !p.Expected.Reachable:
-		row.Projection = "not reachable at the recent rate (no enrolments in the window)"
+		projection = "not reachable at the recent rate (no enrolments in the window)"
 	default:
-		row.Projection = p.Expected.Date.String()
-		if p.Optimistic.Reachable {
-			row.Range = p.Optimistic.Date.String() + " to "
-			if p.Pessimistic.Reachable {
-				row.Range += p.Pessimistic.Date.String()
-			} else {
-				row.Range += "not reachable at the lower rate"
-			}
+		projection = p.Expected.Date.String()
+	}
+	if p.Optimistic.Reachable {
+		earliest = p.Optimistic.Date.String()
+		latest = "not reachable at the lower rate"
+		if p.Pessimistic.Reachable {
+			latest = p.Pessimistic.Date.String()
+		}
+	}
+	return projection, earliest, latest
+}
+
+func (f enrolFig) row() views.EnrolmentRow {
+	row := views.EnrolmentRow{Key: f.key, Label: f.label, Target: f.target, Enrolled: f.enrolled, Withdrawn: f.withdrawn, Percent: f.percent()}
+	var earliest, latest string
+	row.Projection, earliest, latest = f.dates()
+	if f.projected {
+		p := f.proj
+		row.Rate = fmt.Sprintf("%.1f a week (95%% CI %.1f–%.1f) over %d weeks", p.Expected.RatePerWeek, p.Pessimistic.RatePerWeek, p.Optimistic.RatePerWeek, p.Window)
+		if !p.Met && p.Expected.Reachable && earliest != "" {
+			row.Range = earliest + " to " + latest
 		}
 	}
 	return row
@@ -63,27 +145,24 @@ func projectionRow(label string, enrolled, withdrawn, target int, weekly []int, 
 
 func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
-	window, err := strconv.Atoi(r.URL.Query().Get("window"))
-	if err != nil || window < 2 || window > 52 {
-		window = 8
-	}
-	h, err := s.store.Enrolment(ctx)
+	window := windowOf(r.URL.Query())
+	h, err := s.store.Enrolment(ctx, cohort.Date{})
 	if err != nil {
 		return err
 	}
 	m := views.ProgressModel{Page: s.page(r, "Progress", "progress"), Window: window, AsOf: h.Today.String()}
+	figs, all := studyFigures(h, window)
+	for _, f := range figs {
+		m.Enrolment = append(m.Enrolment, f.row())
+	}
+	m.Total = all.row()
 	total := make([]int, len(h.Weeks))
-	var tEnrolled, tWithdrawn, tTarget int
 	for _, se := range h.Sites {
-		m.Enrolment = append(m.Enrolment, projectionRow(se.Code+" · "+se.Name, se.Enrolled, se.Withdrawn, se.Target, se.Weekly, window, h))
 		for i, c := range se.Weekly {
 			total[i] += c
 		}
-		tEnrolled += se.Enrolled
-		tWithdrawn += se.Withdrawn
-		tTarget += se.Target
 	}
-	m.Total = projectionRow("All sites", tEnrolled, tWithdrawn, tTarget, total, window, h)
+	tTarget := all.target
 
 	// Cumulative enrolment by week, one line per site plus the total, and the
 	// total target as a dashed line.
@@ -162,6 +241,8 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		}
 		m.Silent = append(m.Silent, views.SilentRow{Href: fmt.Sprintf("/participants/%d", sp.ID), StudyID: sp.StudyID, Site: sp.SiteCode, Last: last, Days: sp.Days})
 	}
-	s.progressCascade(r, &m)
+	if m.Cascade, err = s.progressCascade(r, window); err != nil {
+		return err
+	}
 	return s.ok(w, r, views.Progress(m))
 }

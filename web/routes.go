@@ -39,6 +39,9 @@ func (s *Server) routes() []route {
 		{"POST", "/participants/{id}/notes", caseWork, s.participantNote},
 
 		{"GET", "/progress", analysis, s.progress},
+		{"GET", "/progress/cascade/{box}", analysis, s.cascadeBox},
+		{"GET", "/progress/report", analysis, s.progressReport},
+		{"GET", "/progress/report.zip", analysis, s.progressReportZip},
 
 		{"GET", "/imports", coordWork, s.importsList},
 		{"GET", "/imports/new", coordWork, s.importNew},

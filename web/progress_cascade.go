@@ -1,0 +1,325 @@
+package web
+
+import (
+	"fmt"
+	"net/http"
+	"net/url"
+	"strconv"
+	"strings"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db"
+	"cohortdesk/views"
+
+	"github.com/a-h/templ"
+)
+
+// cascadeQuery is the cascade's choice as read from a request: the filter
+// for the store and the values as given, for forms and links.
+type cascadeQuery struct {
+	filter   db.CascadeFilter
+	from, to cohort.Date // enrolment days, both included; zero is open
+	protocol string
+	site     string
+	siteCode string
+}
+
+// parseCascadeQuery reads protocol, site, from and to. Malformed values and
+// sites that do not exist are input errors (422); a protocol version that
+// does not exist is left for the store to refuse (404).
+func parseCascadeQuery(q url.Values, sites []db.Site) (cascadeQuery, error) {
+	var cq cascadeQuery
+	var ve cohort.ValidationError
+	if v := strings.TrimSpace(q.Get("protocol")); v != "" {
+		id, err := strconv.Atoi(v)
+		if err != nil || id <= 0 {
+			ve.Add("protocol", "choose a protocol version from the list")
+		} else {
+			cq.filter.ProtocolID, cq.protocol = id, strconv.Itoa(id)
+		}
+	}
+	if v := strings.TrimSpace(q.Get("site")); v != "" {
+		id, _ := strconv.Atoi(v)
+		for _, st := range sites {
+			if st.ID == id {
+				cq.filter.SiteID, cq.site, cq.siteCode = id, strconv.Itoa(id), st.Code
+			}
+		}
+		if cq.site == "" {
+			ve.Add("site", "choose a site from the list")
+		}
+	}
+	day := func(field string) cohort.Date {
+		v := strings.TrimSpace(q.Get(field))
+		if v == "" {
+			return cohort.Date{}
+		}
+		d, err := cohort.ParseDate(v)
+		if err != nil || d.Year < 1900 || d.Year > 9998 {
+			ve.Add(field, "enter a date as YYYY-MM-DD")
+			return cohort.Date{}
+		}
+		return d
+	}
+	cq.from, cq.to = day("from"), day("to")
+	if !cq.from.IsZero() && !cq.to.IsZero() && cq.to.Before(cq.from) {
+		ve.Add("to", "the period must end on or after its first day")
+	}
+	if err := ve.Err(); err != nil {
+		return cq, err
+	}
+	if !cq.from.IsZero() {
+		cq.filter.From = cq.from.In(time.UTC)
+	}
+	if !cq.to.IsZero() {
+		cq.filter.To = cq.to.AddDays(1).In(time.UTC) // the filter's end is not included
+	}
+	return cq, nil
+}
+
+// values are the query's choices for links, without empty ones.
+func (cq cascadeQuery) values() url.Values {
+	v := url.Values{}
+	if cq.protocol != "" {
+		v.Set("protocol", cq.protocol)
+	}
+	if cq.site != "" {
+		v.Set("site", cq.site)
+	}
+	if !cq.from.IsZero() {
+		v.Set("from", cq.from.String())
+	}
+	if !cq.to.IsZero() {
+		v.Set("to", cq.to.String())
+	}
+	return v
+}
+
+func dateText(d cohort.Date) string {
+	if d.IsZero() {
+		return ""
+	}
+	return d.String()
+}
+
+// period says in words whose figures are shown.
+func (cq cascadeQuery) period() string {
+	var out string
+	switch {
+	case cq.from.IsZero() && cq.to.IsZero():
+		out = "all participants enrolled so far"
+	case cq.to.IsZero():
+		out = "participants enrolled from " + cq.from.String()
+	case cq.from.IsZero():
+		out = "participants enrolled up to and including " + cq.to.String()
+	default:
+		out = "participants enrolled from " + cq.from.String() + " to " + cq.to.String() + " (both days included)"
+	}
+	if cq.siteCode != "" {
+		out += " at site " + cq.siteCode
+	}
+	return out
+}
+
+// href is an address with the query's choices and extra values.
+func (cq cascadeQuery) href(path string, extra ...string) string {
+	v := cq.values()
+	for i := 0; i+1 < len(extra); i += 2 {
+		v.Set(extra[i], extra[i+1])
+	}
+	if len(v) == 0 {
+		return path
+	}
+	return path + "?" + v.Encode()
+}
+
+// flowView turns the store's cascade into the diagram's view model; every
+// number on it is the store's.
+func flowView(c db.Cascade, cq cascadeQuery) views.FlowView {
+	f := views.FlowView{Protocol: c.Protocol.Label(), Period: cq.period()}
+	for i, b := range c.Boxes {
+		path := "/progress/cascade/" + b.Key
+		v := views.FlowBoxView{Key: b.Key, Label: b.Label, Definition: b.Definition, Count: b.Count(), Cases: len(b.Cases),
+			ShowCases: i >= 2, Href: cq.href(path)}
+		if i > 0 && c.Boxes[i-1].Count() > 0 {
+			v.Share = pct(float64(b.Count()) / float64(c.Boxes[i-1].Count()))
+		}
+		for _, e := range b.Exits {
+			ev := views.FlowExitView{Key: string(e.Reason), Label: e.Reason.Label(), Count: len(e.Participants),
+				InProgress: e.Reason.InProgress(), Href: cq.href(path, "exit", string(e.Reason))}
+			if ev.InProgress {
+				v.Waiting, v.WaitingN = append(v.Waiting, ev), v.WaitingN+ev.Count
+			} else {
+				v.Left, v.LeftN = append(v.Left, ev), v.LeftN+ev.Count
+			}
+		}
+		f.Boxes = append(f.Boxes, v)
+	}
+	return f
+}
+
+// protocolOptions lists the versions to choose from, the active one marked.
+func protocolOptions(versions []db.ProtocolRef) []views.Option {
+	var out []views.Option
+	for _, v := range versions {
+		label := v.Label()
+		if v.Active {
+			label += " (active)"
+		}
+		out = append(out, views.Option{Value: strconv.Itoa(v.ID), Label: label})
+	}
+	return out
+}
+
+// progressCascade builds the cascade section of the progress page from the
+// request's protocol, site and enrolment period.
+func (s *Server) progressCascade(r *http.Request, window int) (templ.Component, error) {
+	ctx := r.Context()
+	sites, err := s.store.Sites(ctx)
+	if err != nil {
+		return nil, err
+	}
+	cq, err := parseCascadeQuery(r.URL.Query(), sites)
+	if err != nil {
+		return nil, err
+	}
+	c, err := s.store.Cascade(ctx, cq.filter)
+	if err != nil {
+		return nil, err
+	}
+	m := views.CascadeSectionModel{Flow: flowView(c, cq), Protocols: protocolOptions(c.Versions), ProtoID: strconv.Itoa(c.Protocol.ID),
+		SiteID: cq.site, From: dateText(cq.from), To: dateText(cq.to), Window: window,
+		ReportHref: cq.href("/progress/report", "window", strconv.Itoa(window))}
+	for _, st := range sites {
+		m.Sites = append(m.Sites, views.Option{Value: strconv.Itoa(st.ID), Label: st.Code + " · " + st.Name})
+	}
+	return views.CascadeSection(m), nil
+}
+
+// cascadePageSize is how many participants a box's list shows at once.
+const cascadePageSize = 200
+
+// cascadeBox lists the participants of one box of the cascade (or of one
+// reason for leaving it) with their site and cases. Monitors see study IDs,
+// sites and states only: no dates and no links to case pages
+// (cohort.Role.SeesPHI decides); nobody sees names here.
+func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	q := r.URL.Query()
+	sites, err := s.store.Sites(ctx)
+	if err != nil {
+		return err
+	}
+	cq, err := parseCascadeQuery(q, sites)
+	if err != nil {
+		return err
+	}
+	exit := db.ExitReason(q.Get("exit"))
+	if exit != "" && !exit.Known() {
+		return &cohort.ValidationError{Fields: map[string]string{"exit": "choose a reason shown on the cascade"}}
+	}
+	page := 1
+	if v := q.Get("page"); v != "" {
+		if page, err = strconv.Atoi(v); err != nil || page < 1 {
+			return &cohort.ValidationError{Fields: map[string]string{"page": "a page number from 1"}}
+		}
+	}
+	c, err := s.store.Cascade(ctx, cq.filter)
+	if err != nil {
+		return err
+	}
+	at := -1
+	for i, b := range c.Boxes {
+		if b.Key == urlParam(r, "box") {
+			at = i
+		}
+	}
+	if at < 0 {
+		return errNotFound
+	}
+	box := c.Boxes[at]
+	flow := flowView(c, cq)
+	exitOf := map[int64]db.ExitReason{}
+	for _, e := range box.Exits {
+		for _, id := range e.Participants {
+			exitOf[id] = e.Reason
+		}
+	}
+	ids := box.Participants
+	label := ""
+	if exit != "" {
+		ids, label = nil, exit.Label()
+		for _, e := range box.Exits {
+			if e.Reason == exit {
+				ids = e.Participants
+			}
+		}
+	}
+	start := (page - 1) * cascadePageSize
+	if start > 0 && start >= len(ids) {
+		return errNotFound
+	}
+	end := min(len(ids), start+cascadePageSize)
+	members, err := s.store.CascadeMembers(ctx, c.Protocol.ID, ids[start:end])
+	if err != nil {
+		return err
+	}
+	deid := !role(r).SeesPHI()
+	openCases := caseWork.allows(role(r))
+	loc := time.UTC
+	if !deid {
+		st, err := s.store.StudySettings(ctx)
+		if err != nil {
+			return err
+		}
+		loc = st.Location()
+	}
+	next := ""
+	if at+1 < len(c.Boxes) {
+		next = "on to " + c.Boxes[at+1].Label
+	}
+	path := "/progress/cascade/" + box.Key
+	m := views.CascadeBoxModel{Page: s.page(r, "Cascade: "+box.Label, "progress"), Protocol: c.Protocol.Label(), Period: cq.period(),
+		Box: flow.Boxes[at], Exit: label, Listed: len(ids), DeIdentified: deid, From: start + 1, Upto: end,
+		Back: cq.href("/progress") + "#cascade", BoxHref: cq.href(path)}
+	extra := []string{}
+	if exit != "" {
+		extra = []string{"exit", string(exit)}
+	}
+	if page > 1 {
+		m.Prev = cq.href(path, append(extra, "page", strconv.Itoa(page-1))...)
+	}
+	if end < len(ids) {
+		m.Next = cq.href(path, append(extra, "page", strconv.Itoa(page+1))...)
+	}
+	for _, p := range members {
+		row := views.CascadeMemberRow{Href: fmt.Sprintf("/participants/%d", p.ID), StudyID: p.StudyID, Site: p.SiteCode, Withdrawn: p.Withdrawn, Step: next}
+		if !deid {
+			row.Enrolled = p.EnrolledOn.String()
+		}
+		if e, ok := exitOf[p.ID]; ok {
+			row.Step, row.InProgress = e.Label(), e.InProgress()
+		}
+		for _, k := range p.Cases {
+			cv := views.MemberCaseView{State: k.State.Label(), Weeks: weeksText(k.FirstWeek, k.LastWeek)}
+			if openCases {
+				cv.Href = fmt.Sprintf("/cases/%d", k.ID)
+			}
+			if !deid {
+				cv.Flagged = k.FlaggedAt.In(loc).Format("2006-01-02")
+			}
+			row.Cases = append(row.Cases, cv)
+		}
+		m.Rows = append(m.Rows, row)
+	}
+	return s.ok(w, r, views.CascadeBox(m))
+}
+
+// weeksText names a case's study weeks.
+func weeksText(first, last int) string {
+	if first == last {
+		return "week " + strconv.Itoa(first)
+	}
+	return "weeks " + strconv.Itoa(first) + "–" + strconv.Itoa(last)
+}
