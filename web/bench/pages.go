@@ -15,6 +15,7 @@ import (
 	"sync/atomic"
 	"time"
 
+	"cohortdesk/cohort"
 	"cohortdesk/db"
 	"cohortdesk/web"
 	"cohortdesk/web/auth"
@@ -136,13 +137,20 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 			if err := common(ctx); err != nil {
 				return err
 			}
-			if _, err := store.Enrolment(ctx); err != nil {
+			if _, err := store.Enrolment(ctx, cohort.Date{}); err != nil {
 				return err
 			}
 			if _, err := store.DataSufficiency(ctx); err != nil {
 				return err
 			}
-			_, err := store.SilentParticipants(ctx, 14)
+			if _, err := store.SilentParticipants(ctx, 14); err != nil {
+				return err
+			}
+			// The cascade drawn on the page (active protocol, all sites).
+			if _, err := store.Sites(ctx); err != nil {
+				return err
+			}
+			_, err := store.Cascade(ctx, db.CascadeFilter{})
 			return err
 		}},
 		{name: "participant", path: "/participants/%d", ids: participantIDs, sql: func(ctx context.Context, id int64) error {
