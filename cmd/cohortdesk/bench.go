@@ -12,8 +12,8 @@ import (
 	"strings"
 	"time"
 
-	"cohortdesk/web/bench"
 	"cohortdesk/db/cluster"
+	"cohortdesk/web/bench"
 
 	"github.com/jackc/pgx/v5/pgxpool"
 )
