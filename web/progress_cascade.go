@@ -1,6 +1,7 @@
 package web
 
 import (
+	"context"
 	"fmt"
 	"net/http"
 	"net/url"
@@ -174,13 +175,12 @@ func protocolOptions(versions []db.ProtocolRef) []views.Option {
 
 // progressCascade builds the cascade section of the progress page from the
 // request's protocol, site and enrolment period.
-func (s *Server) progressCascade(r *http.Request, window int) (templ.Component, error) {
-	ctx := r.Context()
+func (s *Server) progressCascade(ctx context.Context, q url.Values, window int) (templ.Component, error) {
 	sites, err := s.store.Sites(ctx)
 	if err != nil {
 		return nil, err
 	}
-	cq, err := parseCascadeQuery(r.URL.Query(), sites)
+	cq, err := parseCascadeQuery(q, sites)
 	if err != nil {
 		return nil, err
 	}

@@ -15,6 +15,8 @@ import (
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
+
+	"golang.org/x/sync/errgroup"
 )
 
 // reportFigures is everything the weekly report shows, read from the same
@@ -53,14 +55,17 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 		return rf, nil, err
 	}
 	rf.window, rf.generated = windowOf(q), s.now()
-	if rf.hist, err = s.store.Enrolment(ctx, rf.cq.to); err != nil {
+	// The three reads are independent; made side by side, as on the
+	// progress page.
+	var weeks []db.SufficiencyWeek
+	g, gctx := errgroup.WithContext(ctx)
+	g.Go(func() (err error) { rf.hist, err = s.store.Enrolment(gctx, rf.cq.to); return err })
+	g.Go(func() (err error) { weeks, err = s.store.DataSufficiency(gctx); return err })
+	g.Go(func() (err error) { rf.cascade, rf.agree, err = s.store.Figures(gctx, rf.cq.filter); return err })
+	if err := g.Wait(); err != nil {
 		return rf, nil, err
 	}
 	rf.sites, rf.total = studyFigures(rf.hist, rf.window)
-	weeks, err := s.store.DataSufficiency(ctx)
-	if err != nil {
-		return rf, nil, err
-	}
 	first := cohort.Date{}
 	if !rf.cq.from.IsZero() {
 		first = monday(rf.cq.from)
@@ -75,9 +80,6 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 		rf.weekSpan = "No completed participant-week in the period"
 	default:
 		rf.weekSpan = "Calendar weeks (Monday to Sunday) from " + rf.weeks[0].Week.String() + " to the week of " + rf.weeks[len(rf.weeks)-1].Week.String()
-	}
-	if rf.cascade, rf.agree, err = s.store.Figures(ctx, rf.cq.filter); err != nil {
-		return rf, nil, err
 	}
 	return rf, sites, nil
 }

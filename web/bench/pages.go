@@ -19,6 +19,8 @@ import (
 	"cohortdesk/db"
 	"cohortdesk/web"
 	"cohortdesk/web/auth"
+
+	"golang.org/x/sync/errgroup"
 )
 
 // PagesResult is the page load: server time per page under concurrent
@@ -137,21 +139,20 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 			if err := common(ctx); err != nil {
 				return err
 			}
-			if _, err := store.Enrolment(ctx, cohort.Date{}); err != nil {
+			// The page makes its four reads side by side (web/progress.go).
+			g, ctx := errgroup.WithContext(ctx)
+			g.Go(func() error { _, err := store.Enrolment(ctx, cohort.Date{}); return err })
+			g.Go(func() error { _, err := store.DataSufficiency(ctx); return err })
+			g.Go(func() error { _, err := store.SilentParticipants(ctx, 14); return err })
+			g.Go(func() error {
+				// The cascade drawn on the page (active protocol, all sites).
+				if _, err := store.Sites(ctx); err != nil {
+					return err
+				}
+				_, err := store.Cascade(ctx, db.CascadeFilter{})
 				return err
-			}
-			if _, err := store.DataSufficiency(ctx); err != nil {
-				return err
-			}
-			if _, err := store.SilentParticipants(ctx, 14); err != nil {
-				return err
-			}
-			// The cascade drawn on the page (active protocol, all sites).
-			if _, err := store.Sites(ctx); err != nil {
-				return err
-			}
-			_, err := store.Cascade(ctx, db.CascadeFilter{})
-			return err
+			})
+			return g.Wait()
 		}},
 		{name: "participant", path: "/participants/%d", ids: participantIDs, sql: func(ctx context.Context, id int64) error {
 			if err := common(ctx); err != nil {
