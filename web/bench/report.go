@@ -75,9 +75,9 @@ func (r Report) WriteTable(w io.Writer) error {
 		p("ratio (importer / COPY)\t%.2fx\t\t%.3fx\t\n\n", im.Ratio, im.OursBytesPerReading/im.CopyBytesPerReading)
 	}
 	if sc := r.Screen; sc != nil {
-		p("Per-week MASD of heart rate (%s readings, %d weeks)\treadings/s\tseconds\t\n", group(float64(sc.HRReadings)), sc.Weeks)
-		p("cohortdesk: compact weeks read and decoded, Go\t%s\t%.1f\t\n", group(sc.MASDOurs.ReadingsPerSecond), sc.MASDOurs.Seconds)
-		p("baseline: SQL lag() window over one row per reading\t%s\t%.1f\t\n", group(sc.MASDSQL.ReadingsPerSecond), sc.MASDSQL.Seconds)
+		p("Per-week MASD of heart rate (%s readings, %d weeks; median of %d alternating rounds)\treadings/s\tseconds\t\n", group(float64(sc.HRReadings)), sc.Weeks, masdRounds)
+		p("cohortdesk: compact weeks read and decoded, Go\t%s\t%.2f\t\n", group(sc.MASDOurs.ReadingsPerSecond), sc.MASDOurs.Seconds)
+		p("baseline: SQL lag() window over one row per reading\t%s\t%.2f\t\n", group(sc.MASDSQL.ReadingsPerSecond), sc.MASDSQL.Seconds)
 		p("ratio (Go / SQL); largest relative difference %.1g\t%.2fx\t\t\n", sc.MaxRelDiff, sc.Ratio)
 		p("full screen, all readings, results stored (%d positive weeks)\t%s\t%.1f\t\n\n", sc.Positive, group(sc.Full.ReadingsPerSecond), sc.Full.Seconds)
 	}
