@@ -193,7 +193,9 @@ func buildCohort(ctx context.Context, store *db.Store, o Options, today cohort.D
 		{"over-reads", `INSERT INTO over_reads (recording_id, case_id, participant_id, role, rhythm, reader, read_on)
 			SELECT r.id, r.case_id, r.participant_id, 'first', CASE WHEN c.state = 'referred' THEN 'af' ELSE 'sinus' END, 'synthetic reader', current_date
 			FROM recordings r JOIN cases c ON c.id = r.case_id WHERE c.over_read_at IS NOT NULL`, nil},
-		{"statistics", `ANALYZE`, nil},
+		// Statistics and the visibility map, as autovacuum leaves tables a
+		// little while after a bulk load (index-only scans need the latter).
+		{"statistics", `VACUUM ANALYZE`, nil},
 	}
 	for _, st := range steps {
 		if _, err := pool.Exec(ctx, st.sql, st.args...); err != nil {
