@@ -57,7 +57,7 @@ func TestParticipantsKeysetPaginationOrderAndStability(t *testing.T) {
 	for _, c := range []struct {
 		sort string
 		desc bool
-	}{{"study_id", false}, {"study_id", true}, {"enrolled", false}, {"site", true}} {
+	}{{"study_id", false}, {"study_id", true}, {"enrolled", false}, {"enrolled", true}, {"site", false}, {"site", true}} {
 		t.Run(fmt.Sprint(c.sort, c.desc), func(t *testing.T) {
 			f := db.ParticipantFilter{Sort: c.sort, Desc: c.desc, Limit: 100}
 			seen := map[int64]bool{}
@@ -135,6 +135,16 @@ func TestParticipantFiltersAndNames(t *testing.T) {
 	page, _ = s.Participants(ctx, db.ParticipantFilter{Search: "S00001", Limit: 100})
 	if page.Total != 10 || page.Rows[0].Name != "" {
 		t.Fatalf("study ID prefix: %d, name %q", page.Total, page.Rows[0].Name)
+	}
+	// The prefix ignores case; a LIKE wildcard typed in the box is taken
+	// literally.
+	page, _ = s.Participants(ctx, db.ParticipantFilter{Search: "s00001", Limit: 100})
+	if page.Total != 10 {
+		t.Fatalf("lower-case study ID prefix: %d, want 10", page.Total)
+	}
+	page, _ = s.Participants(ctx, db.ParticipantFilter{Search: "S0000_", Limit: 100})
+	if page.Total != 0 {
+		t.Fatalf("an underscore matched as a wildcard: %d rows", page.Total)
 	}
 }
 

@@ -480,10 +480,25 @@ type ParticipantPage struct {
 	Withdrawn int64
 }
 
-var sortKeys = map[string]string{
-	"study_id": "p.study_id",
-	"enrolled": "p.enrolled_on::text || p.study_id",
-	"site":     "st.code || ' ' || p.study_id",
+// listOrder is one order of the participants list: the ORDER BY
+// expressions (together unique, so the order is total), the cursor's key as
+// text, read from the last row of a page, and the rows after a cursor as a
+// comparison in which %[1]s is the key's placeholder, %[2]s the id's and
+// %[3]s the operator (> ascending, < descending). The study ID and
+// enrolment orders follow an index, so any page costs about the same as the
+// first; the site order sorts the filtered rows (sites are in another table).
+type listOrder struct {
+	by    []string
+	key   string
+	after string
+}
+
+var listOrders = map[string]listOrder{
+	"study_id": {by: []string{"p.study_id"}, key: "p.study_id", after: "p.study_id %[3]s %[1]s"},
+	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"}, key: "to_char(p.enrolled_on, 'YYYY-MM-DD') || p.study_id",
+		after: "(p.enrolled_on, p.study_id) %[3]s (left(%[1]s, 10)::date, substr(%[1]s, 11))"},
+	"site": {by: []string{"st.code || ' ' || p.study_id", "p.id"}, key: "st.code || ' ' || p.study_id",
+		after: "(st.code || ' ' || p.study_id, p.id) %[3]s (%[1]s, %[2]s)"},
 }
 
 // ParticipantsWhere builds the filter's WHERE clause; it is shared by the page,
@@ -493,9 +508,12 @@ func (f ParticipantFilter) where(today time.Time) (string, []any) {
 	var args []any
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
 	if q := strings.TrimSpace(f.Search); q != "" {
-		cond := "p.study_id ILIKE " + arg(escapeLike(q)+"%")
+		// Both conditions can use an index: lower(study_id) with
+		// text_pattern_ops for the prefix, the trigram index for names (the
+		// set of matching names is read once, not per participant).
+		cond := "lower(p.study_id) LIKE " + arg(escapeLike(strings.ToLower(q))+"%")
 		if f.WithNames {
-			cond = "(" + cond + " OR EXISTS (SELECT 1 FROM participant_identity pi WHERE pi.participant_id = p.id AND pi.search_name LIKE " +
+			cond = "(" + cond + " OR p.id IN (SELECT pi.participant_id FROM participant_identity pi WHERE pi.search_name LIKE " +
 				arg("%"+escapeLike(strings.ToLower(q))+"%") + "))"
 		}
 		conds = append(conds, cond)
@@ -510,8 +528,10 @@ func (f ParticipantFilter) where(today time.Time) (string, []any) {
 		conds = append(conds, "p.withdrawn_on IS NOT NULL")
 	}
 	if f.PositiveWeeks > 0 {
-		conds = append(conds, `EXISTS (SELECT 1 FROM screen_results sr JOIN protocols pr ON pr.id = sr.protocol_id AND pr.active
-			WHERE sr.participant_id = p.id AND sr.verdict = 'positive'
+		// The active version as a value, so the positive results come from
+		// their own partial index.
+		conds = append(conds, `EXISTS (SELECT 1 FROM screen_results sr
+			WHERE sr.protocol_id = (SELECT id FROM protocols WHERE active) AND sr.participant_id = p.id AND sr.verdict = 'positive'
 			  AND sr.week >= ((`+arg(today)+`::date - p.enrolled_on) / 7) - `+arg(f.PositiveWeeks)+`)`)
 	}
 	if f.OpenCase {
@@ -550,27 +570,34 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 	if f.Limit <= 0 || f.Limit > 500 {
 		f.Limit = 50
 	}
-	key, ok := sortKeys[f.Sort]
+	order, ok := listOrders[f.Sort]
 	if !ok {
-		key = sortKeys["study_id"]
+		order = listOrders["study_id"]
 	}
 	today := s.now().UTC()
 	where, args := f.where(today)
 	var page ParticipantPage
+	// The filter reads participants only, so the counts need no join.
 	err := s.pool.QueryRow(ctx, `
 		SELECT count(*), count(*) FILTER (WHERE p.withdrawn_on IS NULL), count(*) FILTER (WHERE p.withdrawn_on IS NOT NULL)
-		FROM participants p JOIN sites st ON st.id = p.site_id WHERE `+where, args...).Scan(&page.Total, &page.Active, &page.Withdrawn)
+		FROM participants p WHERE `+where, args...).Scan(&page.Total, &page.Active, &page.Withdrawn)
 	if err != nil {
 		return page, mapErr("participants count", err)
 	}
-	cmp, dir := ">", "ASC"
+	cmp, dir := ">", " ASC"
 	if f.Desc {
-		cmp, dir = "<", "DESC"
+		cmp, dir = "<", " DESC"
 	}
 	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key, c.ID)
-		where += fmt.Sprintf(" AND (%s, p.id) %s ($%d, $%d)", key, cmp, len(args)-1, len(args))
+		args = append(args, c.Key)
+		keyArg, idArg := fmt.Sprintf("$%d::text", len(args)), ""
+		if strings.Contains(order.after, "%[2]s") {
+			args = append(args, c.ID)
+			idArg = fmt.Sprintf("$%d::bigint", len(args))
+		}
+		where += " AND " + fmt.Sprintf(order.after, keyArg, idArg, cmp)
 	}
+	key := order.key
 	nameCol := "''::text"
 	if f.WithNames {
 		nameCol = "coalesce((SELECT pi.given_name || ' ' || pi.family_name FROM participant_identity pi WHERE pi.participant_id = p.id), '')"
@@ -582,7 +609,7 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		   WHERE sr.participant_id = p.id AND sr.verdict = 'positive'),
 		  (SELECT count(*) FROM cases c WHERE c.participant_id = p.id AND c.closed_at IS NULL)
 		FROM participants p JOIN sites st ON st.id = p.site_id
-		WHERE `+where+fmt.Sprintf(` ORDER BY %s %s, p.id %s LIMIT $%d`, key, dir, dir, len(args)), args...)
+		WHERE `+where+` ORDER BY `+strings.Join(order.by, dir+", ")+dir+fmt.Sprintf(` LIMIT $%d`, len(args)), args...)
 	if err != nil {
 		return page, mapErr("participants", err)
 	}
