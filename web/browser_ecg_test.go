@@ -30,17 +30,7 @@ func TestBrowserRecordingToStatistics(t *testing.T) {
 	}
 	b := browsertest.Start(t, 90*time.Second)
 	base := a.ts.URL
-	signIn := func(email string) {
-		b.Do("sign in as "+email,
-			chromedp.Navigate(base+"/signin"),
-			chromedp.WaitVisible(chromedp.ID("email")),
-			chromedp.SendKeys(chromedp.ID("email"), email),
-			chromedp.SendKeys(chromedp.ID("password"), testPassword),
-			chromedp.Click(chromedp.CSS(`[data-testid="signin-submit"]`)),
-			chromedp.WaitVisible(chromedp.CSS(`[data-testid="nav-confirmations"]`)),
-		)
-	}
-	signIn("coordinator@example.org")
+	browserSignIn(b, base, "coordinator@example.org")
 	b.Do("upload the recording",
 		chromedp.Navigate(fmt.Sprintf("%s/cases/%d", base, ids[0])),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="form-recording"]`)),
@@ -69,7 +59,7 @@ func TestBrowserRecordingToStatistics(t *testing.T) {
 	b.Screenshot("recording-page")
 
 	b.Do("sign out", chromedp.Click(chromedp.CSS(`[data-testid="sign-out"]`)), chromedp.WaitVisible(chromedp.ID("email")))
-	signIn("investigator@example.org")
+	browserSignIn(b, base, "investigator@example.org")
 	b.Do("enter the over-read",
 		chromedp.Navigate(base+"/confirmations"),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="unread-table"] a`)),

@@ -32,14 +32,7 @@ func TestBrowserCoordinatorWorksACaseFromTriage(t *testing.T) {
 	base := a.ts.URL
 	row := fmt.Sprintf("#case-%d", ids[0])
 
-	b.Do("sign in",
-		chromedp.Navigate(base+"/signin"),
-		chromedp.WaitVisible(chromedp.ID("email")),
-		chromedp.SendKeys(chromedp.ID("email"), "coordinator@example.org"),
-		chromedp.SendKeys(chromedp.ID("password"), testPassword),
-		chromedp.Click(chromedp.CSS(`[data-testid="signin-submit"]`)),
-		chromedp.WaitVisible(chromedp.CSS(`[data-testid="nav-triage"]`)),
-	)
+	browserSignIn(b, base, "coordinator@example.org")
 	b.Do("open triage", chromedp.Click(chromedp.CSS(`[data-testid="nav-triage"]`)), chromedp.WaitVisible(chromedp.CSS(row)))
 	if got := b.Text("new count", `[data-testid="count-new"] .num`); got != "3" {
 		t.Fatalf("new flags counted %q, want 3", got)
@@ -121,14 +114,7 @@ func TestBrowserPrintsReferralOnChosenPaper(t *testing.T) {
 		break
 	}
 	b := browsertest.Start(t, 90*time.Second)
-	b.Do("sign in",
-		chromedp.Navigate(a.ts.URL+"/signin"),
-		chromedp.WaitVisible(chromedp.ID("email")),
-		chromedp.SendKeys(chromedp.ID("email"), "coordinator@example.org"),
-		chromedp.SendKeys(chromedp.ID("password"), testPassword),
-		chromedp.Click(chromedp.CSS(`[data-testid="signin-submit"]`)),
-		chromedp.WaitVisible(chromedp.CSS(`[data-testid="nav-exports"]`)),
-	)
+	browserSignIn(b, a.ts.URL, "coordinator@example.org")
 	mediaBox := regexp.MustCompile(`/MediaBox\s*\[\s*0\s+0\s+([0-9.]+)\s+([0-9.]+)\s*\]`)
 	for _, tt := range []struct {
 		paper string
@@ -169,4 +155,17 @@ func TestBrowserPrintsReferralOnChosenPaper(t *testing.T) {
 			os.WriteFile(filepath.Join(os.TempDir(), "referral-print-"+tt.paper+".pdf"), pdf, 0o644)
 		}
 	}
+}
+
+// browserSignIn signs in through the form as the test account with this
+// e-mail address and waits for the signed-in header.
+func browserSignIn(b *browsertest.Browser, base, email string) {
+	b.Do("sign in as "+email,
+		chromedp.Navigate(base+"/signin"),
+		chromedp.WaitVisible(chromedp.ID("email")),
+		chromedp.SendKeys(chromedp.ID("email"), email),
+		chromedp.SendKeys(chromedp.ID("password"), testPassword),
+		chromedp.Click(chromedp.CSS(`[data-testid="signin-submit"]`)),
+		chromedp.WaitVisible(chromedp.CSS(`[data-testid="user-role"]`)),
+	)
 }

@@ -28,14 +28,7 @@ func TestBrowserPrintsWeeklyReport(t *testing.T) {
 	cascadeCohort(t, a)
 	_, html := a.get(a.signIn(cohort.Investigator), "/progress/report")
 	b := browsertest.Start(t, 120*time.Second)
-	b.Do("sign in",
-		chromedp.Navigate(a.ts.URL+"/signin"),
-		chromedp.WaitVisible(chromedp.ID("email")),
-		chromedp.SendKeys(chromedp.ID("email"), "investigator@example.org"),
-		chromedp.SendKeys(chromedp.ID("password"), testPassword),
-		chromedp.Click(chromedp.CSS(`[data-testid="signin-submit"]`)),
-		chromedp.WaitVisible(chromedp.CSS(`[data-testid="nav-progress"]`)),
-	)
+	browserSignIn(b, a.ts.URL, "investigator@example.org")
 	mediaBox := regexp.MustCompile(`/MediaBox\s*\[\s*0\s+0\s+([0-9.]+)\s+([0-9.]+)\s*\]`)
 	for _, tt := range []struct {
 		paper string
