@@ -51,12 +51,26 @@ func mondayOf(d cohort.Date) cohort.Date {
 	return d.AddDays(-((wd + 6) % 7))
 }
 
+// studyToday is today's date in the study's time zone. Participant-weeks
+// end at midnight there: in the hours when a new day has begun in UTC but
+// not yet in the study's zone, no week has ended that day.
+func (s *Store) studyToday(ctx context.Context) (cohort.Date, error) {
+	st, err := s.StudySettings(ctx)
+	if err != nil {
+		return cohort.Date{}, err
+	}
+	return cohort.DateOf(s.now().In(st.Location())), nil
+}
+
 // Enrolment reads every site's enrolment counts as they stood at the end of
-// the day asOf (UTC dates): participants enrolled later are left out, and
-// withdrawals after it do not count. A zero asOf, or one after today, is
-// today.
+// the day asOf: participants enrolled later are left out, and withdrawals
+// after it do not count. A zero asOf, or one after today (in the study's
+// time zone), is today.
 func (s *Store) Enrolment(ctx context.Context, asOf cohort.Date) (EnrolmentHistory, error) {
-	today := cohort.DateOf(s.now().UTC())
+	today, err := s.studyToday(ctx)
+	if err != nil {
+		return EnrolmentHistory{}, err
+	}
 	if asOf.IsZero() || today.Before(asOf) {
 		asOf = today
 	}
@@ -141,17 +155,20 @@ type SufficiencyWeek struct {
 // those with enough wear. A participant-week with no data at all counts as
 // insufficient: silence is the commonest way to have too little data.
 //
-// A participant-week is due when it ended on or before today and before any
-// withdrawal, within the study's weeks of follow-up. The weeks due are
+// A participant-week is due when it ended before today (in the study's time
+// zone) and before any withdrawal, within the study's weeks of follow-up. The weeks due are
 // counted from a series per participant and the weeks with a verdict from
 // the screening results, each grouped by the calendar week in which the
 // participant-week ends, then put side by side: joining a series per
 // participant to the results row by row cost several times as much at
 // 20,000 participants.
 func (s *Store) DataSufficiency(ctx context.Context) ([]SufficiencyWeek, error) {
-	now := s.now().UTC()
+	today, err := s.studyToday(ctx)
+	if err != nil {
+		return nil, err
+	}
 	var out []SufficiencyWeek
-	err := s.reportTx(ctx, func(tx pgx.Tx) error {
+	err = s.reportTx(ctx, func(tx pgx.Tx) error {
 		// Participants enrolled on the same day and due until the same day
 		// have the same weeks due, so the series runs once per such group.
 		// Mondays are found by day arithmetic from a known Monday
@@ -180,7 +197,7 @@ func (s *Store) DataSufficiency(ctx context.Context) ([]SufficiencyWeek, error) 
 			  FROM verdicts v CROSS JOIN LATERAL (SELECT v.enrolled_on + (v.week + 1) * 7 - 1 AS last_day) d
 			  GROUP BY 1)
 			SELECT due.monday, due.due, coalesce(enough.sufficient, 0)
-			FROM due LEFT JOIN enough ON enough.monday = due.monday ORDER BY 1`, now)
+			FROM due LEFT JOIN enough ON enough.monday = due.monday ORDER BY 1`, today.String())
 		if err != nil {
 			return err
 		}

@@ -504,3 +504,38 @@ func TestDataSufficiencyWorkedExample(t *testing.T) {
 		}
 	}
 }
+
+// TestDataSufficiencyCountsWeeksEndedInTheStudyZone: a participant-week ends
+// at midnight in the study's time zone. At 21:00 on Sunday 1 March in
+// Chicago (03:00 on 2 March in UTC) the week S1 began on 23 February has not
+// ended; four hours after midnight in Chicago it has. Hand-worked from the
+// enrolment dates: S1 enrolled Monday 9 February (weeks end on Sundays), S2
+// on Wednesday 11 February (weeks end on Tuesdays, week 1 on 24 February).
+func TestDataSufficiencyCountsWeeksEndedInTheStudyZone(t *testing.T) {
+	for _, c := range []struct {
+		now  time.Time
+		want string
+	}{
+		{time.Date(2026, 3, 2, 3, 0, 0, 0, time.UTC), "2026-02-23 1 1 100%"},
+		{time.Date(2026, 3, 2, 10, 0, 0, 0, time.UTC), "2026-02-23 2 1 50%"},
+	} {
+		a := newAppAt(t, c.now)
+		for _, q := range []string{
+			`INSERT INTO study (id, name, follow_up_weeks, time_zone) VALUES (1, 'Zone study', 3, 'America/Chicago')`,
+			`INSERT INTO sites (code, name) VALUES ('AA', 'Site A')`,
+			`INSERT INTO protocols (name, version, params, active, used) VALUES ('weekly screen', 1, '{}', true, true)`,
+			`INSERT INTO participants (study_id, site_id, time_zone, enrolled_on) VALUES
+			 ('S1', 1, 'America/Chicago', '2026-02-09'), ('S2', 1, 'America/Chicago', '2026-02-11')`,
+			`INSERT INTO screen_results (participant_id, protocol_id, week, verdict, reason, result, input_digest)
+			 SELECT p.id, 1, v.week, v.verdict, 'test', '{}', 'd' FROM participants p
+			 JOIN (VALUES ('S1', 0, 'negative'), ('S1', 1, 'negative'), ('S2', 0, 'negative'), ('S2', 1, 'negative'))
+			      AS v(sid, week, verdict) ON v.sid = p.study_id`,
+		} {
+			a.exec(q)
+		}
+		_, body := a.get(a.signIn(cohort.Monitor), "/progress")
+		if got := byTestID(body, "sufficiency-2026-02-23"); got != c.want {
+			t.Errorf("at %s: week of 2026-02-23 %q, want %q", c.now.Format(time.RFC3339), got, c.want)
+		}
+	}
+}
