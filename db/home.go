@@ -2,6 +2,8 @@ package db
 
 import (
 	"context"
+
+	"cohortdesk/cohort/followup"
 )
 
 // Counts are the headline figures of the start page.
@@ -10,9 +12,11 @@ type Counts struct {
 	Active       int64 // enrolled and not withdrawn
 	Sites        int64
 	Withdrawn    int64
+	// Cases counts every follow-up case by its state, the closed ones too.
+	Cases map[followup.State]int64
 }
 
-// Counts reads the headline figures in one round trip.
+// Counts reads the headline figures.
 func (s *Store) Counts(ctx context.Context) (Counts, error) {
 	var c Counts
 	err := s.pool.QueryRow(ctx, `
@@ -21,7 +25,24 @@ func (s *Store) Counts(ctx context.Context) (Counts, error) {
 		       (SELECT count(*) FROM sites),
 		       (SELECT count(*) FROM participants WHERE withdrawn_on IS NOT NULL)`).
 		Scan(&c.Participants, &c.Active, &c.Sites, &c.Withdrawn)
-	return c, mapErr("counts", err)
+	if err != nil {
+		return c, mapErr("counts", err)
+	}
+	rows, err := s.pool.Query(ctx, `SELECT state, count(*) FROM cases GROUP BY state`)
+	if err != nil {
+		return c, mapErr("case counts", err)
+	}
+	defer rows.Close()
+	c.Cases = map[followup.State]int64{}
+	for rows.Next() {
+		var st string
+		var n int64
+		if err := rows.Scan(&st, &n); err != nil {
+			return c, mapErr("case counts", err)
+		}
+		c.Cases[followup.State(st)] = n
+	}
+	return c, mapErr("case counts", rows.Err())
 }
 
 // StudyName returns the study's name, or "" before the study is set up.

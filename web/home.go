@@ -4,10 +4,13 @@ import (
 	"context"
 	"fmt"
 	"net/http"
+	"net/url"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
+	"cohortdesk/views/components"
 )
 
 type homeStore interface {
@@ -17,9 +20,23 @@ type homeStore interface {
 
 var errNotFound = fmt.Errorf("web: %w", cohort.ErrNotFound)
 
-// home shows the study's headline figures.
+// may reports whether the signed-in role may open the route with this
+// pattern, so a page offers only links that lead somewhere.
+func (s *Server) may(r *http.Request, pattern string) bool {
+	u, ok := userFrom(r.Context())
+	if !ok {
+		return false
+	}
+	acc, ok := s.accessOf("GET", pattern)
+	return ok && acc.allows(u.Role)
+}
+
+// home shows the study's headline figures, the day's follow-up work as the
+// triage page counts it (for roles that work cases), the cases by state and
+// the latest import (for roles that import).
 func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
-	c, err := s.store.Counts(r.Context())
+	ctx := r.Context()
+	c, err := s.store.Counts(ctx)
 	if err != nil {
 		return err
 	}
@@ -32,6 +49,45 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 			{Key: "withdrawn", Label: "withdrawn", Value: c.Withdrawn},
 			{Key: "sites", Label: "sites", Value: c.Sites},
 		},
+	}
+	if s.may(r, "/triage") {
+		t, err := s.store.Triage(ctx, 1)
+		if err != nil {
+			return err
+		}
+		for _, g := range triageGroups {
+			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.title, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
+		}
+		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: "other cases, on schedule", Value: int64(t.Counts[followup.BucketOther]), Href: "/cases"})
+		m.WorkNote = fmt.Sprintf("As of %s, %s (%s); the triage page lists them in order of urgency.",
+			dayLabel(t.Settings.Calendar().DateOf(t.Now)), t.Now.Format("15:04"), t.Settings.Location())
+	}
+	list := s.may(r, "/cases")
+	for _, st := range followup.States() {
+		n := c.Cases[st]
+		if n == 0 {
+			continue
+		}
+		row := views.CaseStateCount{Key: string(st), Label: st.Label(), Tone: stateTone(st), Count: n}
+		if list {
+			row.Href = "/cases?state=" + url.QueryEscape(string(st))
+		}
+		m.Cases = append(m.Cases, row)
+	}
+	if s.may(r, "/imports/{id}") {
+		imps, err := s.store.Imports(ctx, 1)
+		if err != nil {
+			return err
+		}
+		if len(imps) > 0 {
+			rep := imps[0]
+			when := "started " + rep.StartedAt.UTC().Format("2006-01-02 15:04 UTC")
+			if rep.FinishedAt != nil {
+				when = "finished " + rep.FinishedAt.UTC().Format("2006-01-02 15:04 UTC")
+			}
+			m.LastImport = &views.ImportSummary{Href: fmt.Sprintf("/imports/%d", rep.ID), File: rep.FileName, Status: rep.Status,
+				Tone: components.Tone(statusTone(rep.Status)), When: when, Accepted: rep.Accepted, Rejected: rep.Rejected}
+		}
 	}
 	return s.ok(w, r, views.Home(m))
 }

@@ -6,10 +6,13 @@ import (
 	"io"
 	"net/http"
 	"net/http/httptest"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/demo"
 	"cohortdesk/db/dbtest"
 )
 
@@ -130,5 +133,69 @@ func TestAssetsAreHashedAndLocal(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+// TestHomeShowsTodaysWorkCasesAndLastImport: on a small demo study the start
+// page's follow-up figures are the triage page's own counts, its cases by
+// state agree with a count made here in SQL, and what it offers follows the
+// route table: the day's work and the latest import only to roles that may
+// open triage and imports, links only where they lead.
+func TestHomeShowsTodaysWorkCasesAndLastImport(t *testing.T) {
+	// At the demo's own today, so no day turns between the two pages.
+	a := newAppAt(t, demo.DefaultToday())
+	loadDemo(t, a, 80)
+	coord := a.signIn(cohort.Coordinator)
+	_, home := a.get(coord, "/")
+	_, triage := a.get(coord, "/triage")
+	for _, key := range []string{"overdue", "today", "new", "overread", "scheduled"} {
+		got, want := byTestID(home, "tile-work-"+key), byTestID(triage, "count-"+key)
+		if got == "" || got != want {
+			t.Errorf("work tile %s reads %q, the triage page %q", key, got, want)
+		}
+	}
+	rows, err := a.store.Pool().Query(context.Background(), `SELECT state, count(*) FROM cases GROUP BY state`)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := map[string]string{}
+	for rows.Next() {
+		var st string
+		var n int
+		if err := rows.Scan(&st, &n); err != nil {
+			t.Fatal(err)
+		}
+		want[st] = strconv.Itoa(n)
+	}
+	if len(want) < 3 {
+		t.Fatalf("the demo study has cases in %d states; the test needs several", len(want))
+	}
+	if got := testIDs(home, "home-cases-"); len(got) != len(want) {
+		t.Errorf("states shown %v, want %d", got, len(want))
+	}
+	for st, n := range want {
+		if got := byTestID(home, "home-cases-"+st); !strings.HasSuffix(got, " "+n) {
+			t.Errorf("state %s: %q, want the count %s", st, got, n)
+		}
+		if !strings.Contains(home, `href="/cases?state=`+st+`"`) {
+			t.Errorf("state %s does not link to its case list", st)
+		}
+	}
+	if !regexp.MustCompile(`data-testid="home-last-import"><a href="/imports/\d+">`).MatchString(home) {
+		t.Error("the coordinator's start page does not show the latest import with its link")
+	}
+
+	_, monitor := a.get(a.signIn(cohort.Monitor), "/")
+	for _, absent := range []string{`data-testid="home-work"`, `data-testid="home-last-import"`, `href="/triage`, `href="/imports`} {
+		if strings.Contains(monitor, absent) {
+			t.Errorf("the monitor's start page shows %s", absent)
+		}
+	}
+	if testIDs(monitor, "home-cases-") == nil {
+		t.Error("the monitor's start page lacks the cases by state")
+	}
+	_, inv := a.get(a.signIn(cohort.Investigator), "/")
+	if !strings.Contains(inv, `data-testid="home-work"`) || strings.Contains(inv, `data-testid="home-last-import"`) {
+		t.Error("the investigator's start page: the day's work is for case workers, the import line for importers")
 	}
 }

@@ -86,7 +86,15 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 			if err := common(ctx); err != nil {
 				return err
 			}
-			_, err := store.Counts(ctx)
+			if _, err := store.Counts(ctx); err != nil {
+				return err
+			}
+			// A coordinator's start page also counts the day's work and
+			// shows the latest import.
+			if _, err := store.Triage(ctx, 1); err != nil {
+				return err
+			}
+			_, err := store.Imports(ctx, 1)
 			return err
 		}},
 		{name: "triage", path: "/triage", sql: func(ctx context.Context, _ int64) error {
