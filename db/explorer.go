@@ -60,13 +60,17 @@ const exploreChunk = 256
 // sweep of 20 values costs little more than one. Personal baselines, when the
 // version uses them, come from the version's own baseline-week results and are
 // not swept.
+//
+// At study scale this reads every stored reading, so the app runs it in the
+// background (StartExploration); Explore itself waits for the result.
 func (s *Store) Explore(ctx context.Context, protocolID int, param string, values []float64) (Exploration, error) {
-	pv, err := s.Protocol(ctx, protocolID)
-	if err != nil {
-		return Exploration{}, err
-	}
-	p := pv.Params
-	out := Exploration{Protocol: pv, Param: param}
+	return s.explore(ctx, protocolID, param, values, nil)
+}
+
+// checkSweep refuses a sweep that cannot run: no values or too many, a value
+// that is not a finite number, a parameter the protocol does not have, or a
+// value that makes the protocol invalid. The fields named are the form's.
+func checkSweep(p screen.Protocol, param string, values []float64) error {
 	var ve cohort.ValidationError
 	if len(values) == 0 || len(values) > MaxExploreValues {
 		ve.Add("values", fmt.Sprintf("give 1 to %d values", MaxExploreValues))
@@ -86,11 +90,33 @@ func (s *Store) Explore(ctx context.Context, protocolID int, param string, value
 			break
 		}
 	}
-	if err := ve.Err(); err != nil {
+	return ve.Err()
+}
+
+// explore is Explore with progress: weeks swept out of weeks in all (may be
+// nil).
+func (s *Store) explore(ctx context.Context, protocolID int, param string, values []float64, progress func(done, total int64) error) (Exploration, error) {
+	pv, err := s.Protocol(ctx, protocolID)
+	if err != nil {
+		return Exploration{}, err
+	}
+	p := pv.Params
+	out := Exploration{Protocol: pv, Param: param}
+	if err := checkSweep(p, param, values); err != nil {
 		return out, err
 	}
 	if err := p.Validate(); err != nil {
 		return out, fmt.Errorf("db: explore %s: %w", pv.Label(), err)
+	}
+	if progress == nil {
+		progress = func(int64, int64) error { return nil }
+	}
+	total, err := s.countWeeks(ctx, nil)
+	if err != nil {
+		return out, err
+	}
+	if err := progress(0, total); err != nil {
+		return out, err
 	}
 	labels, err := s.overReadLabels(ctx)
 	if err != nil {
@@ -150,7 +176,7 @@ func (s *Store) Explore(ctx context.Context, protocolID int, param string, value
 		}
 		out.Weeks += len(chunk)
 		chunk, bases, keys = chunk[:0], bases[:0], keys[:0]
-		return nil
+		return progress(int64(out.Weeks), total)
 	}
 
 	// One participant's weeks arrive together and in week order, so the

@@ -3,6 +3,7 @@ package db_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"testing"
 
@@ -120,5 +121,75 @@ func TestExploreCountsFlagsPPVAndSensitivity(t *testing.T) {
 	}
 	if _, err := s.Explore(ctx, 999, "min_wear_hours", []float64{1}); !errors.Is(err, cohort.ErrNotFound) {
 		t.Errorf("unknown version: %v", err)
+	}
+}
+
+// TestExplorationRunsInTheBackground: a sweep asked for is recorded and
+// queued; a worker computes it with progress and stores the result, which
+// reads back equal to Explore's own on the same data. A sweep that cannot
+// run is refused before anything is queued.
+func TestExplorationRunsInTheBackground(t *testing.T) {
+	s := newStore(t)
+	ctx := context.Background()
+	v1 := mustDefault(t, s)
+	pool := s.Pool()
+	a := dbtest.AddParticipant(t, pool, "X-A", enrolDay)
+	addWeek(t, s, a, 1, dbtest.Irregular, 48)
+	overRead(t, s, v1.ID, a, 1, [2]string{"first", "af"})
+	b := dbtest.AddParticipant(t, pool, "X-B", enrolDay)
+	addWeek(t, s, b, 0, dbtest.Steady, 48)
+	addWeek(t, s, b, 1, dbtest.Steady, 48)
+	actor := cohort.Actor{Name: "Inv", Role: cohort.Investigator}
+	values := []float64{3, 8, 30}
+
+	id, err := s.StartExploration(ctx, actor, v1.ID, "windows[0].masd_threshold", values)
+	if err != nil {
+		t.Fatal(err)
+	}
+	run, err := s.Exploration(ctx, id)
+	if err != nil || run.Result != nil || run.Job.State != db.JobQueued || run.Param != "windows[0].masd_threshold" || len(run.Values) != 3 {
+		t.Fatalf("queued exploration %+v (err %v)", run, err)
+	}
+	w := &db.Worker{Store: s, Handlers: db.NewScreener(s, nil).Handlers()}
+	if ok, err := w.RunOne(ctx, run.Job.ID); !ok || err != nil {
+		t.Fatalf("run the job: %v %v", ok, err)
+	}
+	run, err = s.Exploration(ctx, id)
+	if err != nil || run.Result == nil || run.Job.State != db.JobDone || run.Job.Done != 3 || run.Job.Total != 3 {
+		t.Fatalf("finished exploration: job %+v, result %v (err %v)", run.Job, run.Result != nil, err)
+	}
+	direct, err := s.Explore(ctx, v1.ID, "windows[0].masd_threshold", values)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if run.Result.Weeks != direct.Weeks || run.Result.ConfirmedWeeks != direct.ConfirmedWeeks || len(run.Result.Rows) != len(direct.Rows) {
+		t.Fatalf("stored %+v, direct %+v", run.Result, direct)
+	}
+	for i, r := range run.Result.Rows {
+		d := direct.Rows[i]
+		if r.Value != d.Value || r.Flagged != d.Flagged || r.Table != d.Table || r.PPV != d.PPV || (r.PPVCI == nil) != (d.PPVCI == nil) {
+			t.Errorf("value %v: stored %+v, direct %+v", r.Value, r, d)
+		}
+	}
+	list, err := s.Explorations(ctx, 10)
+	if err != nil || len(list) != 1 || list[0].ID != id {
+		t.Fatalf("list %+v (err %v)", list, err)
+	}
+	var n int
+	pool.QueryRow(ctx, `SELECT count(*) FROM audit_events WHERE action = 'exploration.start' AND object_id = $1`, fmt.Sprint(id)).Scan(&n)
+	if n != 1 {
+		t.Errorf("start audited %d times", n)
+	}
+
+	var ve *cohort.ValidationError
+	if _, err := s.StartExploration(ctx, actor, v1.ID, "windows[7].masd_threshold", []float64{5}); !errors.As(err, &ve) {
+		t.Errorf("unknown parameter: %v, want a validation error", err)
+	}
+	if _, err := s.StartExploration(ctx, actor, 999, "min_wear_hours", []float64{1}); !errors.Is(err, cohort.ErrNotFound) {
+		t.Errorf("unknown version: %v", err)
+	}
+	pool.QueryRow(ctx, `SELECT count(*) FROM jobs WHERE kind = $1`, db.JobExplore).Scan(&n)
+	if n != 1 {
+		t.Errorf("%d sweep jobs queued, want only the one that could run", n)
 	}
 }

@@ -56,10 +56,15 @@ type NewJob struct {
 const jobCols = `id, kind, label, payload, state, attempts, max_attempts, run_after, locked_by, lease_until,
 	progress_done, progress_total, error, outcome, created_by, created_at, started_at, finished_at`
 
+// jobFields are the scan destinations of jobCols, in order.
+func jobFields(j *Job) []any {
+	return []any{&j.ID, &j.Kind, &j.Label, &j.Payload, &j.State, &j.Attempts, &j.MaxAttempts, &j.RunAfter, &j.LockedBy,
+		&j.LeaseUntil, &j.Done, &j.Total, &j.Error, &j.Outcome, &j.CreatedBy, &j.CreatedAt, &j.StartedAt, &j.FinishedAt}
+}
+
 func scanJob(row pgx.Row) (Job, error) {
 	var j Job
-	err := row.Scan(&j.ID, &j.Kind, &j.Label, &j.Payload, &j.State, &j.Attempts, &j.MaxAttempts, &j.RunAfter, &j.LockedBy,
-		&j.LeaseUntil, &j.Done, &j.Total, &j.Error, &j.Outcome, &j.CreatedBy, &j.CreatedAt, &j.StartedAt, &j.FinishedAt)
+	err := row.Scan(jobFields(&j)...)
 	return j, err
 }
 

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"net/http"
+	"net/url"
 	"strconv"
 	"strings"
 
@@ -74,19 +75,18 @@ func ciText(iv *stats.Interval) string {
 	return fmt.Sprintf("%.0f–%.0f%%", 100*iv.Lo, 100*iv.Hi)
 }
 
-// explorer sweeps one parameter of a protocol version on request.
-func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
-	ctx := r.Context()
-	q := r.URL.Query()
-	m := views.ExplorerModel{Page: s.page(r, "Threshold explorer", "screening"), Errors: map[string]string{}}
-	all, err := s.store.Protocols(ctx)
-	if err != nil {
-		return err
+// explorerRecent is how many earlier sweeps the explorer lists.
+const explorerRecent = 10
+
+// explorerSetup fills the form part of the model from the chosen protocol
+// version, parameter and range (q: the query, the submitted form, or a
+// stored sweep's choices) and returns the version and the parameter's
+// current value. ok is false when there is no protocol at all.
+func (s *Server) explorerSetup(r *http.Request, q url.Values, m *views.ExplorerModel) (pv db.ProtocolVersion, cur paramLeaf, ok bool, err error) {
+	all, err := s.store.Protocols(r.Context())
+	if err != nil || len(all) == 0 {
+		return pv, cur, false, err
 	}
-	if len(all) == 0 {
-		return s.ok(w, r, views.Explorer(m))
-	}
-	var pv db.ProtocolVersion
 	for _, p := range all {
 		m.Protocols = append(m.Protocols, views.Option{Value: strconv.Itoa(p.ID), Label: p.Label() + map[bool]string{true: " (active)"}[p.Active]})
 		if p.Active && pv.ID == 0 {
@@ -124,7 +124,7 @@ func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
 	for _, l := range protocolLeaves(pv.Params) {
 		leaves[l.Path] = l
 	}
-	cur := leaves[m.Param]
+	cur = leaves[m.Param]
 	curVal, _ := strconv.ParseFloat(cur.Value, 64)
 	m.Current = cur.Value
 	m.From, m.To, m.Steps = q.Get("from"), q.Get("to"), q.Get("steps")
@@ -137,7 +137,111 @@ func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
 	if m.Steps == "" {
 		m.Steps = "11"
 	}
-	if q.Get("run") == "" || len(m.Errors) > 0 {
+	return pv, cur, true, nil
+}
+
+// explorerModel is the explorer page with the list of earlier sweeps.
+func (s *Server) explorerModel(r *http.Request) (views.ExplorerModel, error) {
+	m := views.ExplorerModel{Page: s.page(r, "Threshold explorer", "screening"), Errors: map[string]string{}}
+	runs, err := s.store.Explorations(r.Context(), explorerRecent)
+	if err != nil {
+		return m, err
+	}
+	for _, run := range runs {
+		m.Recent = append(m.Recent, views.ExplorerRunRow{Href: fmt.Sprintf("/explorer?run=%d", run.ID), ID: strconv.FormatInt(run.ID, 10),
+			When: run.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), By: run.CreatedBy, Param: paramLabel(run.Param),
+			Values: strconv.Itoa(len(run.Values)), State: run.Job.State, Tone: components.Tone(statusTone(run.Job.State))})
+	}
+	return m, nil
+}
+
+// explorer shows the sweep form, the earlier sweeps and, with ?run=, one
+// sweep: its progress while the job runs, its chart and table once done.
+// Polled by htmx while the job runs, it answers 204 until the job has ended
+// and then asks for a full reload (the chart needs its script).
+func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
+	q := r.URL.Query()
+	if q.Get("run") == "" {
+		m, err := s.explorerModel(r)
+		if err != nil {
+			return err
+		}
+		if _, _, _, err := s.explorerSetup(r, q, &m); err != nil {
+			return err
+		}
+		return s.ok(w, r, views.Explorer(m))
+	}
+	id, err := strconv.ParseInt(q.Get("run"), 10, 64)
+	if err != nil {
+		return errNotFound
+	}
+	run, err := s.store.Exploration(r.Context(), id)
+	if err != nil {
+		return err
+	}
+	ended := run.Job.State == db.JobDone || run.Job.State == db.JobFailed
+	if r.Header.Get("HX-Request") == "true" {
+		if ended {
+			w.Header().Set("HX-Refresh", "true")
+		}
+		w.WriteHeader(http.StatusNoContent)
+		return nil
+	}
+	m, err := s.explorerModel(r)
+	if err != nil {
+		return err
+	}
+	choice := url.Values{"protocol": {strconv.Itoa(run.ProtocolID)}, "param": {run.Param}, "steps": {strconv.Itoa(len(run.Values))}}
+	if len(run.Values) > 0 {
+		choice.Set("from", strconv.FormatFloat(run.Values[0], 'g', -1, 64))
+		choice.Set("to", strconv.FormatFloat(run.Values[len(run.Values)-1], 'g', -1, 64))
+	}
+	_, cur, _, err := s.explorerSetup(r, choice, &m)
+	if err != nil {
+		return err
+	}
+	m.Run = &views.ExplorerRun{ID: strconv.FormatInt(run.ID, 10), Href: fmt.Sprintf("/explorer?run=%d", run.ID), State: run.Job.State,
+		Tone: components.Tone(statusTone(run.Job.State)), By: run.CreatedBy, Error: run.Job.Error,
+		Progress: fmt.Sprintf("%d of %d participant-weeks swept so far", run.Job.Done, run.Job.Total)}
+	if run.Job.Total == 0 {
+		m.Run.Progress = "not started yet"
+	}
+	if run.Result == nil {
+		return s.ok(w, r, views.Explorer(m))
+	}
+	ex := *run.Result
+	curVal, _ := strconv.ParseFloat(cur.Value, 64)
+	m.Ran, m.Protocol, m.Weeks = true, ex.Protocol.Label(), ex.Weeks
+	m.Current = cur.Value
+	m.Confirmed, m.NotAF, m.Unreadable, m.Pending = ex.ConfirmedWeeks, ex.NotAFWeeks, ex.UninterpretableWeeks, ex.PendingWeeks
+	for _, row := range ex.Rows {
+		m.Rows = append(m.Rows, views.ExplorerRow{Value: strconv.FormatFloat(row.Value, 'g', -1, 64), Current: row.Value == curVal,
+			Flagged: row.Flagged, TP: row.Table.TP, FP: row.Table.FP, FN: row.Table.FN,
+			PPV: fractionPct(row.PPV), PPVCI: ciText(row.PPVCI), Sensitivity: fractionPct(row.Sensitivity), SensCI: ciText(row.SensitivityCI)})
+	}
+	chart, scripts, err := explorerChart(ex)
+	if err != nil {
+		return err
+	}
+	m.Chart = &chart
+	m.Page.Scripts = append(m.Page.Scripts, scripts...)
+	return s.ok(w, r, views.Explorer(m))
+}
+
+// explorerStart checks a submitted sweep, queues it and opens it.
+func (s *Server) explorerStart(w http.ResponseWriter, r *http.Request) error {
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	m, err := s.explorerModel(r)
+	if err != nil {
+		return err
+	}
+	pv, cur, ok, err := s.explorerSetup(r, r.PostForm, &m)
+	if err != nil {
+		return err
+	}
+	if !ok {
 		return s.ok(w, r, views.Explorer(m))
 	}
 	from, ferr := strconv.ParseFloat(strings.TrimSpace(m.From), 64)
@@ -156,7 +260,7 @@ func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
 		s.render(w, r, http.StatusUnprocessableEntity, views.Explorer(m))
 		return nil
 	}
-	ex, err := s.store.Explore(ctx, pv.ID, m.Param, sweepValues(from, to, steps, cur.Kind == "int"))
+	id, err := s.store.StartExploration(r.Context(), s.actor(r), pv.ID, m.Param, sweepValues(from, to, steps, cur.Kind == "int"))
 	var ve *cohort.ValidationError
 	if errors.As(err, &ve) {
 		for k, v := range ve.Fields {
@@ -168,20 +272,8 @@ func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	m.Ran, m.Protocol, m.Weeks = true, pv.Label(), ex.Weeks
-	m.Confirmed, m.NotAF, m.Unreadable, m.Pending = ex.ConfirmedWeeks, ex.NotAFWeeks, ex.UninterpretableWeeks, ex.PendingWeeks
-	for _, row := range ex.Rows {
-		m.Rows = append(m.Rows, views.ExplorerRow{Value: strconv.FormatFloat(row.Value, 'g', -1, 64), Current: row.Value == curVal,
-			Flagged: row.Flagged, TP: row.Table.TP, FP: row.Table.FP, FN: row.Table.FN,
-			PPV: fractionPct(row.PPV), PPVCI: ciText(row.PPVCI), Sensitivity: fractionPct(row.Sensitivity), SensCI: ciText(row.SensitivityCI)})
-	}
-	chart, scripts, err := explorerChart(ex)
-	if err != nil {
-		return err
-	}
-	m.Chart = &chart
-	m.Page.Scripts = append(m.Page.Scripts, scripts...)
-	return s.ok(w, r, views.Explorer(m))
+	http.Redirect(w, r, fmt.Sprintf("/explorer?run=%d", id), http.StatusSeeOther)
+	return nil
 }
 
 // explorerChart draws weeks flagged (left axis) and PPV and sensitivity with

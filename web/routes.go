@@ -65,6 +65,7 @@ func (s *Server) routes() []route {
 		{"GET", "/screening/external", coordWork, s.externalVerdictsForm},
 		{"POST", "/screening/external", coordWork, s.externalVerdictsImport},
 		{"GET", "/explorer", tuning, s.explorer},
+		{"POST", "/explorer", tuning, s.explorerStart},
 		{"POST", "/cases/{id}/recordings", coordWork, s.caseRecordingAdd},
 
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},

@@ -24,7 +24,9 @@ type screeningStore interface {
 	ExternalVerdicts(ctx context.Context, participantID int64) ([]db.ExternalVerdict, error)
 	ScreenResults(ctx context.Context, participantID int64, protocolID int) ([]db.StoredResult, error)
 	WearWeek(ctx context.Context, p db.Participant, week int) (cohort.Week, error)
-	Explore(ctx context.Context, protocolID int, param string, values []float64) (db.Exploration, error)
+	StartExploration(ctx context.Context, a cohort.Actor, protocolID int, param string, values []float64) (int64, error)
+	Exploration(ctx context.Context, id int64) (db.ExplorationRun, error)
+	Explorations(ctx context.Context, limit int) ([]db.ExplorationRun, error)
 }
 
 // maxVerdictUpload bounds a verdicts file: a line per participant-week of a

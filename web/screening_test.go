@@ -227,17 +227,45 @@ func TestParticipantChartsAndExplorer(t *testing.T) {
 	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="explorer-form"`) || strings.Contains(body, `data-testid="explorer-table"`) {
 		t.Fatalf("explorer form: status %d", res.StatusCode)
 	}
-	res, body = a.get(c, "/explorer?param=windows%5B0%5D.masd_threshold&from=4&to=40&steps=3&run=1")
+	// A sweep is asked for, runs in the background and is then shown.
+	res = a.postForm(c, "/explorer", url.Values{"param": {"windows[0].masd_threshold"}, "from": {"4"}, "to": {"40"}, "steps": {"3"}})
+	loc := res.Header.Get("Location")
+	if res.StatusCode != http.StatusSeeOther || !strings.HasPrefix(loc, "/explorer?run=") {
+		t.Fatalf("start a sweep: status %d, location %q", res.StatusCode, loc)
+	}
+	res, body = a.get(c, loc)
+	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="explorer-progress"`) || strings.Contains(body, `data-testid="explorer-table"`) {
+		t.Fatalf("queued sweep: status %d\n%.3000s", res.StatusCode, body)
+	}
+	poll, _ := http.NewRequest("GET", a.ts.URL+loc, nil)
+	poll.Header.Set("HX-Request", "true")
+	if res, err := c.Do(poll); err != nil || res.StatusCode != http.StatusNoContent || res.Header.Get("HX-Refresh") != "" {
+		t.Fatalf("poll while queued: %v %v", res, err)
+	}
+	w := &db.Worker{Store: a.store, Handlers: db.NewScreener(a.store, nil).Handlers()}
+	if ok, err := w.RunOne(context.Background(), 0); !ok || err != nil {
+		t.Fatalf("run the sweep: %v %v", ok, err)
+	}
+	if res, err := c.Do(poll); err != nil || res.StatusCode != http.StatusNoContent || res.Header.Get("HX-Refresh") != "true" {
+		t.Fatalf("poll once done: %v %v", res, err)
+	}
+	res, body = a.get(c, loc)
 	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="chart-explorer-chart"`) || strings.Count(body, "<tr data-row>") != 3 {
 		t.Fatalf("explorer run: status %d\n%.3000s", res.StatusCode, body)
 	}
-	res, body = a.get(c, "/explorer?param=windows%5B0%5D.run_length&from=-5&to=1&steps=3&run=1")
+	if !strings.Contains(body, `data-testid="explorer-recent"`) || !strings.Contains(body, `href="`+loc+`"`) {
+		t.Fatal("the sweep is not listed among the latest")
+	}
+	res, body = a.postFormBody(c, "/explorer", url.Values{"param": {"windows[0].run_length"}, "from": {"-5"}, "to": {"1"}, "steps": {"3"}})
 	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-values"`) {
 		t.Fatalf("invalid sweep: status %d", res.StatusCode)
 	}
-	res, _ = a.get(c, "/explorer?from=x&steps=500&run=1")
+	res = a.postForm(c, "/explorer", url.Values{"from": {"x"}, "steps": {"500"}})
 	if res.StatusCode != http.StatusUnprocessableEntity {
 		t.Fatalf("unreadable sweep: status %d", res.StatusCode)
+	}
+	if res, _ := a.get(c, "/explorer?run=999999"); res.StatusCode != http.StatusNotFound {
+		t.Fatalf("unknown sweep: %d, want 404", res.StatusCode)
 	}
 	if res, _ := a.get(a.signIn(cohort.Coordinator), "/explorer"); res.StatusCode != http.StatusForbidden {
 		t.Fatalf("coordinator explorer: %d, want 403", res.StatusCode)
