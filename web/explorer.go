@@ -212,7 +212,6 @@ func (s *Server) explorer(w http.ResponseWriter, r *http.Request) error {
 	ex := *run.Result
 	curVal, _ := strconv.ParseFloat(cur.Value, 64)
 	m.Ran, m.Protocol, m.Weeks = true, ex.Protocol.Label(), ex.Weeks
-	m.Current = cur.Value
 	m.Confirmed, m.NotAF, m.Unreadable, m.Pending = ex.ConfirmedWeeks, ex.NotAFWeeks, ex.UninterpretableWeeks, ex.PendingWeeks
 	for _, row := range ex.Rows {
 		m.Rows = append(m.Rows, views.ExplorerRow{Value: strconv.FormatFloat(row.Value, 'g', -1, 64), Current: row.Value == curVal,
