@@ -48,7 +48,7 @@ func (c *serverConfig) bind(fs *flag.FlagSet, getenv func(string) string, defaul
 	fs.StringVar(&c.TrustedProxies, "trusted-proxies", getenv("COHORTDESK_TRUSTED_PROXIES"), "comma-separated CIDRs of reverse proxies whose X-Forwarded-For is believed; when set, cookies are marked Secure (env COHORTDESK_TRUSTED_PROXIES)")
 	fs.StringVar(&c.TLSCert, "tls-cert", getenv("COHORTDESK_TLS_CERT"), "serve HTTPS with this certificate file (env COHORTDESK_TLS_CERT)")
 	fs.StringVar(&c.TLSKey, "tls-key", getenv("COHORTDESK_TLS_KEY"), "key file of -tls-cert (env COHORTDESK_TLS_KEY)")
-	fs.IntVar(&c.Workers, "workers", envInt(getenv, "COHORTDESK_WORKERS", 1), "background job workers in this instance (screening after imports); 0 leaves the queue to other instances (env COHORTDESK_WORKERS)")
+	fs.IntVar(&c.Workers, "workers", envInt(getenv, "COHORTDESK_WORKERS", 1), "background job workers in this instance (screening after imports, threshold sweeps); 0 leaves the queue to other instances (env COHORTDESK_WORKERS)")
 	fs.StringVar(&c.Secret, "secret", getenv("COHORTDESK_SECRET"), "deployment secret keying the pseudonymous referral codes, 32+ characters (env COHORTDESK_SECRET)")
 }
 
