@@ -20,17 +20,6 @@ type homeStore interface {
 
 var errNotFound = fmt.Errorf("web: %w", cohort.ErrNotFound)
 
-// may reports whether the signed-in role may open the route with this
-// pattern, so a page offers only links that lead somewhere.
-func (s *Server) may(r *http.Request, pattern string) bool {
-	u, ok := userFrom(r.Context())
-	if !ok {
-		return false
-	}
-	acc, ok := s.accessOf("GET", pattern)
-	return ok && acc.allows(u.Role)
-}
-
 // home shows the study's headline figures, the day's follow-up work as the
 // triage page counts it (for roles that work cases), the cases by state and
 // the latest import (for roles that import).

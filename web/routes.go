@@ -127,5 +127,16 @@ func (s *Server) accessOf(method, pattern string) (access, bool) {
 	return access{}, false
 }
 
+// may reports whether the signed-in role may open (GET) the route with this
+// pattern, so a page offers only links that lead somewhere.
+func (s *Server) may(r *http.Request, pattern string) bool {
+	u, ok := userFrom(r.Context())
+	if !ok {
+		return false
+	}
+	acc, ok := s.accessOf("GET", pattern)
+	return ok && acc.allows(u.Role)
+}
+
 // urlParam reads a path parameter.
 func urlParam(r *http.Request, name string) string { return chi.URLParam(r, name) }
