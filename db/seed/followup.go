@@ -55,11 +55,12 @@ func flagTime(st *demo.Study, p demo.Participant, week int) time.Time {
 	return opened
 }
 
-// followUps opens the cases as if the study had been running all along - each
-// participant's cases synced at the morning after their first flagged week -
-// asks the generator for each case's scripted history, and enters it through
-// the case store as the scripted staff member, with the store's clock (and the
-// audit trail's) set to when each step happened.
+// followUps opens the cases as if the study had been running all along -
+// each positive week's result arriving, and the cases synced, the morning
+// after the week ended - asks the generator for each case's scripted
+// history, and enters it through the case store as the scripted staff
+// member, with the store's clock (and the audit trail's) set to when each
+// step happened.
 func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[string]db.User, secret []byte) (int, error) {
 	clk := &clock{}
 	cs := db.New(store.Pool(), clk.now)
@@ -68,37 +69,68 @@ func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[s
 	if err != nil {
 		return 0, err
 	}
-	rows, err := store.Pool().Query(ctx, `SELECT p.id, p.study_id, min(sr.week) FROM screen_results sr JOIN participants p ON p.id = sr.participant_id
-		WHERE sr.protocol_id = $1 AND sr.verdict = 'positive' GROUP BY 1, 2`, pv.ID)
+	// Every week was screened at once when the demo loaded. The positive
+	// results are held back and given back one at a time, in the order the
+	// weeks ended, so a case opens (and its opening is audited, with its
+	// first deadline) when its own week was flagged, not with an earlier
+	// episode of the same participant.
+	pool := store.Pool()
+	if _, err := pool.Exec(ctx, `DROP TABLE IF EXISTS seed_held_results`); err != nil {
+		return 0, err
+	}
+	for _, q := range []string{
+		`CREATE TABLE seed_held_results AS SELECT * FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
+		`DELETE FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
+	} {
+		if _, err := pool.Exec(ctx, q, pv.ID); err != nil {
+			return 0, fmt.Errorf("seed: hold back positive results: %w", err)
+		}
+	}
+	rows, err := pool.Query(ctx, `SELECT p.id, p.study_id, h.week FROM seed_held_results h JOIN participants p ON p.id = h.participant_id`)
 	if err != nil {
 		return 0, err
 	}
-	type first struct {
+	type flag struct {
 		id   int64
+		week int16
 		when time.Time
 	}
-	var firsts []first
+	var flags []flag
 	for rows.Next() {
-		var id int64
+		var f flag
 		var sid string
-		var week int16
-		if err := rows.Scan(&id, &sid, &week); err != nil {
+		if err := rows.Scan(&f.id, &sid, &f.week); err != nil {
 			rows.Close()
 			return 0, err
 		}
-		if p, ok := st.Participant(sid); ok {
-			firsts = append(firsts, first{id, flagTime(st, p, int(week))})
+		p, ok := st.Participant(sid)
+		if !ok {
+			continue
 		}
+		f.when = flagTime(st, p, int(f.week))
+		flags = append(flags, f)
 	}
 	if err := rows.Err(); err != nil {
 		return 0, err
 	}
-	sort.Slice(firsts, func(i, j int) bool { return firsts[i].when.Before(firsts[j].when) })
-	for _, f := range firsts {
+	sort.SliceStable(flags, func(i, j int) bool { return flags[i].when.Before(flags[j].when) })
+	for _, f := range flags {
 		clk.t = f.when
+		if _, err := pool.Exec(ctx, `INSERT INTO screen_results SELECT * FROM seed_held_results WHERE participant_id = $1 AND week = $2`, f.id, f.week); err != nil {
+			return 0, err
+		}
 		if _, _, err := cs.SyncCases(ctx, cohort.System, pv.ID, []int64{f.id}); err != nil {
 			return 0, err
 		}
+	}
+	// Positive weeks of participants outside the generated study, if any,
+	// come back unchanged.
+	if _, err := pool.Exec(ctx, `INSERT INTO screen_results SELECT h.* FROM seed_held_results h
+		WHERE NOT EXISTS (SELECT 1 FROM screen_results sr WHERE sr.participant_id = h.participant_id AND sr.protocol_id = h.protocol_id AND sr.week = h.week)`); err != nil {
+		return 0, err
+	}
+	if _, err := pool.Exec(ctx, `DROP TABLE seed_held_results`); err != nil {
+		return 0, err
 	}
 	page, err := store.Cases(ctx, db.CaseFilter{Limit: 10000})
 	if err != nil {
@@ -111,14 +143,8 @@ func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[s
 		if !ok {
 			continue
 		}
-		// A participant's later episodes were opened with the first; date them
-		// at their own flag time.
+		// Opened at its own flag time, when its first week's result came in.
 		opened := flagTime(st, p, c.FirstWeek)
-		if !opened.Equal(c.FlaggedAt) {
-			if _, err := store.Pool().Exec(ctx, `UPDATE cases SET flagged_at = $2, created_at = $2 WHERE id = $1`, c.ID, opened); err != nil {
-				return 0, err
-			}
-		}
 		inputs = append(inputs, demo.CaseInput{StudyID: c.StudyID, Week: c.FirstWeek, Opened: opened})
 		ids = append(ids, c.ID)
 	}
