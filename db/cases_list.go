@@ -12,6 +12,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/screen"
 
 	"github.com/jackc/pgx/v5"
 	"github.com/jackc/pgx/v5/pgtype"
@@ -253,9 +254,6 @@ type FlaggedWeek struct {
 	Late            bool     // recorded on a case after it was closed
 }
 
-// maxMetrics bounds the values shown per week; a result with more is cut.
-const maxMetrics = 24
-
 // FlaggedWeeks lists a participant's screen-positive weeks under every
 // protocol version, with the case holding each.
 func (s *Store) FlaggedWeeks(ctx context.Context, participantID int64) ([]FlaggedWeek, error) {
@@ -285,11 +283,48 @@ func (s *Store) FlaggedWeeks(ctx context.Context, participantID int64) ([]Flagge
 	return out, mapErr("flagged weeks", err)
 }
 
-// metrics flattens the scalar values of a result document (one level of
-// nesting, named "outer.inner"), sorted by name. The result's shape belongs
-// to the screening code; showing its scalars keeps this page working whatever
-// fields it grows.
+// metrics words a stored result's figures for the flagged-weeks table: for
+// each window size the irregular windows among the usable ones, the longest
+// run and the windows' MASD against the threshold applied; the beat-interval
+// figures when the week had beats; how a personal baseline entered. The
+// verdict's own wording is the week's reason, shown beside these.
 func metrics(raw []byte) []Metric {
+	var res screen.Result
+	if json.Unmarshal(raw, &res) != nil {
+		return nil
+	}
+	if len(res.Windows) == 0 && res.RR == nil {
+		return scalars(raw)
+	}
+	var out []Metric
+	for _, w := range res.Windows {
+		out = append(out, Metric{fmt.Sprintf("%d-minute windows", w.Minutes), fmt.Sprintf(
+			"%d of %d usable irregular (%s%%), longest run %d; MASD mean %s, median %s bpm, threshold %s",
+			w.Irregular, w.Usable, formatNumber(math.Round(1000*w.Share)/10), w.LongestRun,
+			formatNumber(w.MeanMASD), formatNumber(w.MedianMASD), formatNumber(w.Threshold))})
+	}
+	if r := res.RR; r != nil && r.Beats > 0 {
+		out = append(out, Metric{"beat intervals", fmt.Sprintf(
+			"%d beats over %s h; %d of %d segments AF-like; mean normalised RMSSD %s, entropy %s, turning point ratio %s",
+			r.Beats, formatNumber(r.Hours), r.AFLike, r.Segments, formatNumber(r.MeanNRMSSD), formatNumber(r.MeanEntropy), formatNumber(r.MeanTPR))})
+	}
+	if b := res.Baseline; b != nil {
+		unit := "weeks"
+		if b.Weeks == 1 {
+			unit = "week"
+		}
+		out = append(out, Metric{"personal baseline", fmt.Sprintf("%s (%d negative %s)", strings.ReplaceAll(b.Status, "_", " "), b.Weeks, unit)})
+	}
+	return out
+}
+
+// maxScalars bounds the values scalars shows.
+const maxScalars = 24
+
+// scalars flattens the scalar values of a result document of another shape
+// (one level of nesting, named "outer.inner"), sorted by name, so a result
+// the screening code did not write still shows its figures.
+func scalars(raw []byte) []Metric {
 	var doc map[string]any
 	if json.Unmarshal(raw, &doc) != nil {
 		return nil
@@ -319,8 +354,8 @@ func metrics(raw []byte) []Metric {
 		walk(k, v, 0)
 	}
 	slices.SortFunc(out, func(a, b Metric) int { return strings.Compare(a.Name, b.Name) })
-	if len(out) > maxMetrics {
-		out = out[:maxMetrics]
+	if len(out) > maxScalars {
+		out = out[:maxScalars]
 	}
 	return out
 }
