@@ -290,10 +290,7 @@ func (s *Store) FlaggedWeeks(ctx context.Context, participantID int64) ([]Flagge
 // verdict's own wording is the week's reason, shown beside these.
 func metrics(raw []byte) []Metric {
 	var res screen.Result
-	if json.Unmarshal(raw, &res) != nil {
-		return nil
-	}
-	if len(res.Windows) == 0 && res.RR == nil {
+	if json.Unmarshal(raw, &res) != nil || (len(res.Windows) == 0 && res.RR == nil) {
 		return scalars(raw)
 	}
 	var out []Metric
