@@ -8,9 +8,9 @@ import (
 	"strconv"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/web/auth"
 
 	"github.com/go-chi/chi/v5"
 )
@@ -69,8 +69,8 @@ func (s *Server) userCreate(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	f := views.UserForm{Email: r.PostForm.Get("email"), Name: r.PostForm.Get("name"), Role: r.PostForm.Get("role")}
-	pw := auth.RandomPassword(16)
-	hash, err := auth.Hash(pw, s.pwParams)
+	pw := credential.RandomPassword(16)
+	hash, err := credential.Hash(pw, s.pwParams)
 	if err != nil {
 		return err
 	}
@@ -145,8 +145,8 @@ func (s *Server) userResetPassword(w http.ResponseWriter, r *http.Request) error
 	if err != nil {
 		return err
 	}
-	pw := auth.RandomPassword(16)
-	hash, err := auth.Hash(pw, s.pwParams)
+	pw := credential.RandomPassword(16)
+	hash, err := credential.Hash(pw, s.pwParams)
 	if err != nil {
 		return err
 	}

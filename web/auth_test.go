@@ -10,9 +10,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 
 	"github.com/go-chi/chi/v5"
 )
@@ -304,7 +304,7 @@ func TestSessionIdleTimeoutSignsOut(t *testing.T) {
 func TestSecureCookieBehindTrustedProxy(t *testing.T) {
 	pool := dbtest.Pool(t)
 	store := db.New(pool, nil)
-	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams, Session: SessionConfig{Secure: true}})
+	srv := New(Config{Store: store, Pool: pool, Password: credential.TestParams, Session: SessionConfig{Secure: true}})
 	if !srv.sessions.Cookie.Secure || !srv.sessions.Cookie.HttpOnly || srv.sessions.Cookie.SameSite != http.SameSiteLaxMode {
 		t.Fatalf("cookie flags: %+v", srv.sessions.Cookie)
 	}

@@ -11,9 +11,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 )
 
 // BenchmarkStatisticsPage measures the server time of the agreement
@@ -27,8 +27,8 @@ import (
 func BenchmarkStatisticsPage(b *testing.B) {
 	pool := dbtest.Pool(b)
 	store := db.New(pool, nil)
-	h := New(Config{Store: store, Pool: pool, Password: auth.TestParams}).Handler()
-	hash, err := auth.Hash(testPassword, auth.TestParams)
+	h := New(Config{Store: store, Pool: pool, Password: credential.TestParams}).Handler()
+	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
 		b.Fatal(err)
 	}

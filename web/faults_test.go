@@ -16,11 +16,11 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
-	"cohortdesk/db/cluster"
 	"cohortdesk/db/dbtest"
+	"cohortdesk/db/pgcluster"
 	"cohortdesk/migrations"
-	"cohortdesk/web/auth"
 
 	"github.com/jackc/pgx/v5/pgxpool"
 )
@@ -244,7 +244,7 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 	if err := os.Chmod(dir, 0o755); err != nil { // the server user must pass when run as root
 		t.Fatal(err)
 	}
-	cl, err := cluster.Start(ctx, cluster.Config{Dir: filepath.Join(dir, "pg"), Fast: true}, os.Getenv)
+	cl, err := pgcluster.Start(ctx, pgcluster.Config{Dir: filepath.Join(dir, "pg"), Fast: true}, os.Getenv)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -266,14 +266,14 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 		t.Fatal(err)
 	}
 	store := db.New(pool, nil)
-	hash, err := auth.Hash(testPassword, auth.TestParams)
+	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if _, err := store.CreateUser(ctx, cohort.System, db.NewUser{Email: "coordinator@example.org", Name: "Test Coordinator", Role: cohort.Coordinator, PasswordHash: hash}); err != nil {
 		t.Fatal(err)
 	}
-	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams})
+	srv := New(Config{Store: store, Pool: pool, Password: credential.TestParams})
 	ts := httptest.NewServer(srv.Handler())
 	defer ts.Close()
 	a := &app{t: t, ts: ts, store: store, srv: srv}

@@ -14,9 +14,9 @@ import (
 	"testing"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 )
 
 // testPassword is every test account's password.
@@ -38,11 +38,11 @@ func newApp(t *testing.T) *app {
 	t.Helper()
 	pool := dbtest.Pool(t)
 	store := db.New(pool, nil)
-	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams, Secret: []byte(testSecret)})
+	srv := New(Config{Store: store, Pool: pool, Password: credential.TestParams, Secret: []byte(testSecret)})
 	ts := httptest.NewServer(srv.Handler())
 	t.Cleanup(ts.Close)
 	a := &app{t: t, ts: ts, store: store, srv: srv, users: map[cohort.Role]db.User{}}
-	hash, err := auth.Hash(testPassword, auth.TestParams)
+	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -11,9 +11,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 )
 
 // instance is one app instance: its own pool, store, server and workers, as a
@@ -32,7 +32,7 @@ func newInstance(t *testing.T, name, url string) *instance {
 	}
 	t.Cleanup(pool.Close)
 	store := db.New(pool, nil)
-	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams})
+	srv := New(Config{Store: store, Pool: pool, Password: credential.TestParams})
 	ts := httptest.NewServer(srv.Handler())
 	t.Cleanup(ts.Close)
 	return &instance{name: name, store: store, ts: ts}
@@ -49,7 +49,7 @@ func TestTwoInstancesShareSessionsAndJobs(t *testing.T) {
 	url := dbtest.URL(t)
 	a, b := newInstance(t, "A", url), newInstance(t, "B", url)
 	ctx := context.Background()
-	hash, err := auth.Hash(testPassword, auth.TestParams)
+	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
 		t.Fatal(err)
 	}

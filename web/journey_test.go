@@ -10,12 +10,12 @@ import (
 	"testing"
 	"time"
 
+	"cohortdesk/cmd/cohortdesk/demoload"
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/overread"
-	"cohortdesk/db/seed"
 	"cohortdesk/views/components"
 
 	"github.com/chromedp/cdproto/page"
@@ -86,7 +86,7 @@ func TestBrowserNavigationByRole(t *testing.T) {
 // own stored result found most irregular), and the case sync opens a case,
 // as the screening job does after a run.
 type journeyFixture struct {
-	study    seed.Result
+	study    demoload.Result
 	sid      string // the participant's study ID
 	pid      int64
 	caseID   int64

@@ -7,16 +7,16 @@ import (
 	"strings"
 	"testing"
 
+	"cohortdesk/cmd/cohortdesk/demoload"
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/deid"
-	"cohortdesk/db/seed"
-	"cohortdesk/web/auth"
 )
 
 // loadDemo fills the app's database with a small fictional study.
-func loadDemo(t *testing.T, a *app, participants int) seed.Result {
+func loadDemo(t *testing.T, a *app, participants int) demoload.Result {
 	t.Helper()
-	res, err := seed.Load(context.Background(), a.store, seed.Options{Seed: 7, Participants: participants, PasswordCost: auth.TestParams, Password: testPassword})
+	res, err := demoload.Load(context.Background(), a.store, demoload.Options{Seed: 7, Participants: participants, PasswordCost: credential.TestParams, Password: testPassword})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -99,7 +99,7 @@ func TestMonitorSeesNoPHI(t *testing.T) {
 	}
 }
 
-func canaryStudyIDs(res seed.Result) []string {
+func canaryStudyIDs(res demoload.Result) []string {
 	var out []string
 	for _, c := range res.Study.CanaryValues() {
 		if c.Field == "study_id" {

@@ -11,9 +11,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 )
 
 // benchNow is the progress benchmark's "today": a Monday, thirteen weeks
@@ -79,8 +79,8 @@ func BenchmarkProgressPages(b *testing.B) {
 	pool := dbtest.Pool(b)
 	clock := func() time.Time { return benchNow }
 	store := db.New(pool, clock)
-	h := New(Config{Store: store, Pool: pool, Password: auth.TestParams, Now: clock}).Handler()
-	hash, err := auth.Hash(testPassword, auth.TestParams)
+	h := New(Config{Store: store, Pool: pool, Password: credential.TestParams, Now: clock}).Handler()
+	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -14,9 +14,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -28,11 +28,11 @@ func newAppAt(t *testing.T, now time.Time) *app {
 	pool := dbtest.Pool(t)
 	clock := func() time.Time { return now }
 	store := db.New(pool, clock)
-	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams, Secret: []byte(testSecret), Now: clock})
+	srv := New(Config{Store: store, Pool: pool, Password: credential.TestParams, Secret: []byte(testSecret), Now: clock})
 	a := &app{t: t, store: store, srv: srv, users: map[cohort.Role]db.User{}}
 	a.ts = httptest.NewServer(srv.Handler())
 	t.Cleanup(a.ts.Close)
-	hash, err := auth.Hash(testPassword, auth.TestParams)
+	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -11,11 +11,11 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
-	"cohortdesk/web/auth"
 )
 
 // shippedCases opens n cases (seedFollowUp) and moves each to "recorder sent"
@@ -220,7 +220,7 @@ func TestOverReadFlow(t *testing.T) {
 		t.Error("the first reader is offered the second reading")
 	}
 
-	hash, _ := auth.Hash(testPassword, auth.TestParams)
+	hash, _ := credential.Hash(testPassword, credential.TestParams)
 	if _, err := a.store.CreateUser(ctx, cohort.System, db.NewUser{Email: "second@example.org", Name: "Second Investigator", Role: cohort.Investigator, PasswordHash: hash}); err != nil {
 		t.Fatal(err)
 	}

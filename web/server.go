@@ -13,8 +13,8 @@ import (
 
 	"cohortdesk/assets"
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/views"
-	"cohortdesk/web/auth"
 
 	"github.com/alexedwards/scs/v2"
 	"github.com/go-chi/chi/v5"
@@ -47,9 +47,9 @@ type Config struct {
 	Logger         *slog.Logger
 	Now            func() time.Time // the clock; nil means time.Now
 	Session        SessionConfig
-	TrustedProxies []netip.Prefix // peers whose X-Forwarded-For is believed
-	Password       auth.Params    // argon2id cost for new passwords; zero means auth.DefaultParams
-	DemoNote       string         // demo sign-in help shown on the sign-in page; empty in production
+	TrustedProxies []netip.Prefix    // peers whose X-Forwarded-For is believed
+	Password       credential.Params // argon2id cost for new passwords; zero means credential.DefaultParams
+	DemoNote       string            // demo sign-in help shown on the sign-in page; empty in production
 	// Secret keys the pseudonymous referral codes (deid.Code). It must stay
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
@@ -65,7 +65,7 @@ type Server struct {
 	router         chi.Router
 	sessions       *scs.SessionManager
 	trustedProxies []netip.Prefix
-	pwParams       auth.Params
+	pwParams       credential.Params
 	demoNote       string
 	routeTable     []route
 	tlsCert        string
@@ -80,7 +80,7 @@ func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
 		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret}
 	if s.pwParams.Memory == 0 {
-		s.pwParams = auth.DefaultParams
+		s.pwParams = credential.DefaultParams
 	}
 	s.sessions = newSessions(cfg.Pool, cfg.Session)
 	s.sessions.ErrorFunc = s.sessionError

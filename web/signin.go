@@ -8,9 +8,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/web/auth"
 )
 
 type signInStore interface {
@@ -39,7 +39,7 @@ const (
 // dummyHash is verified against when the account does not exist, so a missing
 // account takes as long as a wrong password.
 func (s *Server) dummyHash() string {
-	s.dummyOnce.Do(func() { s.dummy, _ = auth.Hash("not a real password, never matches", s.pwParams) })
+	s.dummyOnce.Do(func() { s.dummy, _ = credential.Hash("not a real password, never matches", s.pwParams) })
 	return s.dummy
 }
 
@@ -82,7 +82,7 @@ func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
 	} else if err != nil {
 		return err
 	}
-	ok, verr := auth.Verify(pw, hash)
+	ok, verr := credential.Verify(pw, hash)
 	reason := ""
 	switch {
 	case errors.Is(err, cohort.ErrNotFound):

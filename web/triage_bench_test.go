@@ -11,9 +11,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 )
 
 // seedTriageScale fills a database the size of a large study: 20,000
@@ -78,9 +78,9 @@ func seedTriageScale(tb testing.TB, store *db.Store, owners []int64) {
 func BenchmarkTriagePage(b *testing.B) {
 	pool := dbtest.Pool(b)
 	store := db.New(pool, nil)
-	srv := New(Config{Store: store, Pool: pool, Password: auth.TestParams})
+	srv := New(Config{Store: store, Pool: pool, Password: credential.TestParams})
 	h := srv.Handler()
-	hash, err := auth.Hash(testPassword, auth.TestParams)
+	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
 		b.Fatal(err)
 	}

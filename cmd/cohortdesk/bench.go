@@ -12,7 +12,7 @@ import (
 	"strings"
 	"time"
 
-	"cohortdesk/db/cluster"
+	"cohortdesk/db/pgcluster"
 	"cohortdesk/web/bench"
 
 	"github.com/jackc/pgx/v5/pgxpool"
@@ -98,7 +98,7 @@ func runBench(ctx context.Context, e env, args []string) error {
 			dir = filepath.Join(tmp, "pg")
 			o.Dir = tmp // the generated readings file goes there too
 		}
-		cl, err := cluster.Start(ctx, cluster.Config{Dir: dir}, e.getenv)
+		cl, err := pgcluster.Start(ctx, pgcluster.Config{Dir: dir}, e.getenv)
 		if err != nil {
 			return fmt.Errorf("bench: %w", err)
 		}
@@ -134,7 +134,7 @@ func runBench(ctx context.Context, e env, args []string) error {
 
 // freshDatabase drops and creates the bench database in the private cluster,
 // so a kept data folder can be reused.
-func freshDatabase(ctx context.Context, cl *cluster.Cluster) error {
+func freshDatabase(ctx context.Context, cl *pgcluster.Cluster) error {
 	admin, err := pgxpool.New(ctx, cl.URL("postgres"))
 	if err != nil {
 		return fmt.Errorf("bench: %w", err)

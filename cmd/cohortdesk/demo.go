@@ -8,7 +8,7 @@ import (
 	"time"
 
 	"cohortdesk/db"
-	"cohortdesk/db/cluster"
+	"cohortdesk/db/pgcluster"
 	"cohortdesk/migrations"
 
 	"github.com/jackc/pgx/v5/pgxpool"
@@ -34,9 +34,9 @@ func runDemo(ctx context.Context, e env, args []string) error {
 	log := cfg.logger(e.stderr)
 	start := time.Now()
 
-	cl, err := cluster.Start(ctx, cluster.Config{Dir: *dataDir}, e.getenv)
+	cl, err := pgcluster.Start(ctx, pgcluster.Config{Dir: *dataDir}, e.getenv)
 	if err != nil {
-		var ue *cluster.UnreachableError
+		var ue *pgcluster.UnreachableError
 		if errors.As(err, &ue) {
 			return fmt.Errorf("demo: %w", err)
 		}
@@ -92,7 +92,7 @@ func runDemo(ctx context.Context, e env, args []string) error {
 }
 
 // ensureDatabase creates the demo database on first use (or after -reset).
-func ensureDatabase(ctx context.Context, cl *cluster.Cluster, reset bool) error {
+func ensureDatabase(ctx context.Context, cl *pgcluster.Cluster, reset bool) error {
 	admin, err := pgxpool.New(ctx, cl.URL("postgres"))
 	if err != nil {
 		return err

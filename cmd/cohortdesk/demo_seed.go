@@ -7,8 +7,8 @@ import (
 	"strings"
 	"time"
 
+	"cohortdesk/cmd/cohortdesk/demoload"
 	"cohortdesk/db"
-	"cohortdesk/db/seed"
 )
 
 type demoOptions struct {
@@ -27,7 +27,7 @@ func seedDemo(ctx context.Context, store *db.Store, o demoOptions) (bool, error)
 	}
 	// The study's "today" is the real day, so due dates and recent weeks look
 	// as they would in use.
-	_, err = seed.Load(ctx, store, seed.Options{Seed: o.Seed, Participants: o.Participants, Today: time.Now(), Secret: []byte(o.Secret), Log: o.Log})
+	_, err = demoload.Load(ctx, store, demoload.Options{Seed: o.Seed, Participants: o.Participants, Today: time.Now(), Secret: []byte(o.Secret), Log: o.Log})
 	return err == nil, err
 }
 
@@ -38,7 +38,7 @@ func demoSignIn(ctx context.Context, store *db.Store) string {
 		return ""
 	}
 	var b strings.Builder
-	fmt.Fprintf(&b, "Sign in with any of these fictional accounts (password %q):\n", seed.DemoPassword)
+	fmt.Fprintf(&b, "Sign in with any of these fictional accounts (password %q):\n", demoload.DemoPassword)
 	for _, u := range users {
 		fmt.Fprintf(&b, "  %-36s %s\n", u.Email, u.Role.Label())
 	}

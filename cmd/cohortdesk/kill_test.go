@@ -19,9 +19,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
-	"cohortdesk/web/auth"
 )
 
 const serveChildEnv = "COHORTDESK_SERVE_CHILD"
@@ -191,7 +191,7 @@ func TestServerKilledDuringUpload(t *testing.T) {
 	}
 	defer pool.Close()
 	store := db.New(pool, nil)
-	hash, err := auth.Hash("a coordinator's test password", auth.TestParams)
+	hash, err := credential.Hash("a coordinator's test password", credential.TestParams)
 	if err != nil {
 		t.Fatal(err)
 	}

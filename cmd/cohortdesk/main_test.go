@@ -14,7 +14,7 @@ import (
 	"testing"
 	"time"
 
-	"cohortdesk/db/seed"
+	"cohortdesk/cmd/cohortdesk/demoload"
 )
 
 // syncBuffer collects a command's output while it runs.
@@ -72,7 +72,7 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 				t.Fatalf("pass %d: demo did not start:\n%s", pass, errs.String())
 			}
 		}
-		if !strings.Contains(out.String(), seed.DemoPassword) {
+		if !strings.Contains(out.String(), demoload.DemoPassword) {
 			t.Errorf("pass %d: the demo sign-in is not printed:\n%s", pass, out.String())
 		}
 		res, err := http.Get(base + "/readyz")
@@ -86,7 +86,7 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 		}
 		jar, _ := cookiejar.New(nil)
 		c := &http.Client{Jar: jar}
-		res, err = c.PostForm(base+"/signin", url.Values{"email": {email[1]}, "password": {seed.DemoPassword}})
+		res, err = c.PostForm(base+"/signin", url.Values{"email": {email[1]}, "password": {demoload.DemoPassword}})
 		if err != nil {
 			t.Fatal(err)
 		}

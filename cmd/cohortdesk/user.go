@@ -11,8 +11,8 @@ import (
 	"strings"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
-	"cohortdesk/web/auth"
 )
 
 // runUser manages staff accounts from the command line: the way to create the
@@ -45,14 +45,14 @@ func runUser(ctx context.Context, e env, args []string) error {
 
 	password := func() (string, bool, error) {
 		if !*stdin {
-			return auth.RandomPassword(16), true, nil
+			return credential.RandomPassword(16), true, nil
 		}
 		pw, err := bufio.NewReader(os.Stdin).ReadString('\n')
 		if err != nil && !errors.Is(err, io.EOF) {
 			return "", false, err
 		}
 		pw = strings.TrimRight(pw, "\r\n")
-		if err := auth.CheckPolicy(pw); err != nil {
+		if err := credential.CheckPolicy(pw); err != nil {
 			return "", false, fmt.Errorf("user: password: %w", err)
 		}
 		return pw, false, nil
@@ -68,7 +68,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		if err != nil {
 			return err
 		}
-		hash, err := auth.Hash(pw, auth.DefaultParams)
+		hash, err := credential.Hash(pw, credential.DefaultParams)
 		if err != nil {
 			return err
 		}
@@ -90,7 +90,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		if err != nil {
 			return err
 		}
-		hash, err := auth.Hash(pw, auth.DefaultParams)
+		hash, err := credential.Hash(pw, credential.DefaultParams)
 		if err != nil {
 			return err
 		}

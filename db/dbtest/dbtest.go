@@ -1,5 +1,5 @@
 // Package dbtest gives tests a real PostgreSQL: one private cluster per test
-// binary, started by the same code as the demo command (db/cluster), a template
+// binary, started by the same code as the demo command (db/pgcluster), a template
 // database migrated once, and a fresh database cloned from it for each test.
 //
 // There is no skip: when the cluster cannot start, the test binary fails with
@@ -16,14 +16,14 @@ import (
 	"testing"
 
 	"cohortdesk/db"
-	"cohortdesk/db/cluster"
+	"cohortdesk/db/pgcluster"
 	"cohortdesk/migrations"
 
 	"github.com/jackc/pgx/v5/pgxpool"
 )
 
 var (
-	shared  *cluster.Cluster
+	shared  *pgcluster.Cluster
 	baseDir string
 	counter atomic.Int64
 	tmplMu  sync.Mutex
@@ -56,7 +56,7 @@ func run(m *testing.M) (int, error) {
 	}
 	baseDir = dir
 	defer os.RemoveAll(dir)
-	c, err := cluster.Start(ctx, cluster.Config{Dir: filepath.Join(dir, "pg"), Fast: true}, os.Getenv)
+	c, err := pgcluster.Start(ctx, pgcluster.Config{Dir: filepath.Join(dir, "pg"), Fast: true}, os.Getenv)
 	if err != nil {
 		return 1, fmt.Errorf("cannot start the private PostgreSQL for tests: %w", err)
 	}
@@ -69,7 +69,7 @@ func run(m *testing.M) (int, error) {
 }
 
 // Cluster is the running test cluster, for tests that stop or restart it.
-func Cluster() *cluster.Cluster { return shared }
+func Cluster() *pgcluster.Cluster { return shared }
 
 func makeTemplate(ctx context.Context) error {
 	admin, err := pgxpool.New(ctx, shared.URL("postgres"))

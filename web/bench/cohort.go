@@ -9,10 +9,10 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/wear"
 	"cohortdesk/db"
-	"cohortdesk/web/auth"
 
 	"github.com/jackc/pgx/v5"
 )
@@ -96,7 +96,7 @@ func buildCohort(ctx context.Context, store *db.Store, o Options, today cohort.D
 	if err != nil {
 		return c, err
 	}
-	hash, err := auth.Hash(Password, auth.TestParams)
+	hash, err := credential.Hash(Password, credential.TestParams)
 	if err != nil {
 		return c, err
 	}

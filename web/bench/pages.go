@@ -16,9 +16,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/web"
-	"cohortdesk/web/auth"
 
 	"golang.org/x/sync/errgroup"
 )
@@ -345,7 +345,7 @@ func timed(h http.Handler, rec *recorder) http.Handler {
 // o.Duration has passed; then it makes each page's store calls directly, as
 // many times as the page was served, from as many goroutines.
 func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options, say func(string, ...any)) (*PagesResult, error) {
-	srv := web.New(web.Config{Store: store, Pool: store.Pool(), Logger: slog.New(slog.DiscardHandler), Password: auth.TestParams})
+	srv := web.New(web.Config{Store: store, Pool: store.Pool(), Logger: slog.New(slog.DiscardHandler), Password: credential.TestParams})
 	server := newRecorder()
 	ln, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {

@@ -1,4 +1,4 @@
-// Package cluster runs a private PostgreSQL server from the binaries installed on
+// Package pgcluster starts and stops a private PostgreSQL server from the binaries installed on
 // the machine. The demo command and the database tests share it, so the code that
 // a user runs is the code that the tests prove.
 //
@@ -7,7 +7,7 @@
 // folder is owned by that user, and every parent folder must let that user pass;
 // Start checks this first and explains what to do instead of failing later with a
 // bare "permission denied".
-package cluster
+package pgcluster
 
 import (
 	"bufio"

@@ -1,7 +1,7 @@
-// Package auth holds the credential rules of cohortdesk: password hashing with
+// Package credential holds the credential rules of cohortdesk: password hashing with
 // argon2id and the password policy. Sessions, roles and throttling live in the
 // web package and the store; this package is pure CPU work.
-package auth
+package credential
 
 import (
 	"crypto/rand"

@@ -1,9 +1,9 @@
-// Package seed loads the fictional demo study into an empty database through
+// Package demoload loads the fictional demo study into an empty database through
 // the application's own paths: sites and staff through the store, participants
 // through enrolment, wear data through the file importer (as a readings CSV
 // streamed from the generator), screening through the screening job, follow-up
 // through the case actions. What the demo shows is therefore what the code does.
-package seed
+package demoload
 
 import (
 	"context"
@@ -13,9 +13,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/demo"
 	"cohortdesk/db"
-	"cohortdesk/web/auth"
 
 	"github.com/jackc/pgx/v5"
 )
@@ -24,9 +24,9 @@ import (
 type Options struct {
 	Seed         uint64
 	Participants int
-	Today        time.Time   // the study's "now"; zero means demo.DefaultToday()
-	Password     string      // every demo account's password
-	PasswordCost auth.Params // zero means auth.DefaultParams
+	Today        time.Time         // the study's "now"; zero means demo.DefaultToday()
+	Password     string            // every demo account's password
+	PasswordCost credential.Params // zero means credential.DefaultParams
 	// Secret keys the pseudonymous referral codes of the summaries the
 	// demo issues; without one, referred cases get no issued summary.
 	Secret []byte
@@ -59,7 +59,7 @@ func Load(ctx context.Context, store *db.Store, o Options) (Result, error) {
 		o.Password = DemoPassword
 	}
 	if o.PasswordCost.Memory == 0 {
-		o.PasswordCost = auth.DefaultParams
+		o.PasswordCost = credential.DefaultParams
 	}
 	name, err := store.StudyName(ctx)
 	if err != nil {
@@ -164,7 +164,7 @@ func loadStudy(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.St
 }
 
 func loadUsers(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.Study, o Options) ([]demo.User, error) {
-	hash, err := auth.Hash(o.Password, o.PasswordCost)
+	hash, err := credential.Hash(o.Password, o.PasswordCost)
 	if err != nil {
 		return nil, err
 	}
