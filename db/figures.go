@@ -240,11 +240,8 @@ type figRecording struct {
 	verdict  overread.Verdict
 }
 
-// diagnostic is the recording rule behind the over-read box: settled,
-// interpretable, at least 30 s. Recording.Diagnostic is the same rule.
-func (r figRecording) diagnostic() bool {
-	return r.verdict.Final && r.verdict.Rhythm.Interpretable() && !r.tooShort
-}
+// diagnostic applies overread's diagnostic-recording rule.
+func (r figRecording) diagnostic() bool { return r.verdict.Diagnostic(r.tooShort) }
 
 // figEpisode is a case as the figures see it.
 type figEpisode struct {

@@ -116,12 +116,8 @@ type Recording struct {
 // HasWaveform reports whether samples are stored.
 func (r Recording) HasWaveform() bool { return r.Format != "" }
 
-// Diagnostic reports whether the readings settle an interpretable rhythm on
-// a recording long enough for a diagnostic read: what moves a case to
-// "over-read" and what the figures count as an over-read.
-func (r Recording) Diagnostic() bool {
-	return r.Verdict.Final && r.Verdict.Rhythm.Interpretable() && !r.TooShort
-}
+// Diagnostic applies overread's diagnostic-recording rule to this recording.
+func (r Recording) Diagnostic() bool { return r.Verdict.Diagnostic(r.TooShort) }
 
 // readingsOf returns the readings of the given recordings, by recording.
 func readingsOf(ctx context.Context, q querier, ids []int64) (map[int64][]OverRead, error) {

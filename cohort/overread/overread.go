@@ -215,6 +215,14 @@ type Verdict struct {
 	ConfidenceDiffers bool
 }
 
+// Diagnostic is the one rule for a diagnostic recording: its readings settle
+// an interpretable rhythm and the recording is long enough for a diagnostic
+// read (tooShort: under the 30 s a single-lead diagnosis needs). It is what
+// moves a case to "over-read" and what the figures count as an over-read.
+func (v Verdict) Diagnostic(tooShort bool) bool {
+	return v.Final && v.Rhythm.Interpretable() && !tooShort
+}
+
 // byRole picks the readings apart and checks there is at most one of each.
 func byRole(rs []Reading) (first, second, adj *Reading, err error) {
 	for i := range rs {

@@ -143,3 +143,28 @@ func TestCategoriesCoverEveryValue(t *testing.T) {
 		t.Error("interpretable")
 	}
 }
+
+// TestDiagnostic checks the diagnostic-recording rule: settled, interpretable
+// and long enough. The 30 s minimum for a single-lead diagnosis is the
+// ESC 2020 atrial fibrillation guideline's (from memory); this checks the rule's
+// three parts, each able to fail it alone.
+func TestDiagnostic(t *testing.T) {
+	settled := Verdict{Final: true, Rhythm: AF}
+	cases := []struct {
+		name     string
+		v        Verdict
+		tooShort bool
+		want     bool
+	}{
+		{"settled AF, long enough", settled, false, true},
+		{"settled sinus, long enough", Verdict{Final: true, Rhythm: Sinus}, false, true},
+		{"settled AF, too short", settled, true, false},
+		{"not settled", Verdict{Rhythm: AF}, false, false},
+		{"settled uninterpretable", Verdict{Final: true, Rhythm: Uninterpretable}, false, false},
+	}
+	for _, c := range cases {
+		if got := c.v.Diagnostic(c.tooShort); got != c.want {
+			t.Errorf("%s: Diagnostic = %v, want %v", c.name, got, c.want)
+		}
+	}
+}
