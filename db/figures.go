@@ -237,7 +237,7 @@ type figRecording struct {
 	id       int64
 	auto     overread.Auto
 	tooShort bool
-	verdict  overread.Verdict
+	verdict  overread.Conclusion
 }
 
 // diagnostic applies overread's diagnostic-recording rule.
@@ -526,7 +526,7 @@ func (s *Store) figureRows(ctx context.Context, f CascadeFilter) (figureRows, er
 			return err
 		}
 		for _, x := range recs {
-			if x.rec.verdict, err = verdictOf(x.rec.id, readings[x.rec.id]); err != nil {
+			if x.rec.verdict, err = conclusionOf(x.rec.id, readings[x.rec.id]); err != nil {
 				return err
 			}
 			e := &out.episodes[byCase[x.caseID]]

@@ -110,14 +110,14 @@ type Recording struct {
 	CreatedBy string
 	CreatedAt time.Time
 	Readings  []OverRead
-	Verdict   overread.Verdict
+	Conclusion overread.Conclusion
 }
 
 // HasWaveform reports whether samples are stored.
 func (r Recording) HasWaveform() bool { return r.Format != "" }
 
 // Diagnostic applies overread's diagnostic-recording rule to this recording.
-func (r Recording) Diagnostic() bool { return r.Verdict.Diagnostic(r.TooShort) }
+func (r Recording) Diagnostic() bool { return r.Conclusion.Diagnostic(r.TooShort) }
 
 // readingsOf returns the readings of the given recordings, by recording.
 func readingsOf(ctx context.Context, q querier, ids []int64) (map[int64][]OverRead, error) {
@@ -155,7 +155,7 @@ type querier interface {
 // verdictOf resolves a recording's readings. Stored readings always passed
 // overread.Check, so an error here means the table was edited by hand; it is
 // reported rather than hidden.
-func verdictOf(id int64, os []OverRead) (overread.Verdict, error) {
+func conclusionOf(id int64, os []OverRead) (overread.Conclusion, error) {
 	rs := make([]overread.Reading, len(os))
 	for i, o := range os {
 		rs[i] = o.Reading
@@ -217,7 +217,7 @@ func withReadings(ctx context.Context, q querier, recs []Recording) error {
 	}
 	for i := range recs {
 		recs[i].Readings = by[recs[i].ID]
-		if recs[i].Verdict, err = verdictOf(recs[i].ID, recs[i].Readings); err != nil {
+		if recs[i].Conclusion, err = conclusionOf(recs[i].ID, recs[i].Readings); err != nil {
 			return err
 		}
 	}
@@ -807,7 +807,7 @@ func (s *Store) Confirmations(ctx context.Context, limit int) (Confirmations, er
 			return err
 		}
 		for _, c := range cands {
-			v, err := verdictOf(c.ID, by[c.ID])
+			v, err := conclusionOf(c.ID, by[c.ID])
 			if err != nil {
 				return err
 			}

@@ -257,8 +257,8 @@ func TestShortRecording(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !rec.Verdict.Final || rec.Diagnostic() {
-		t.Errorf("verdict %+v, diagnostic %v", rec.Verdict, rec.Diagnostic())
+	if !rec.Conclusion.Final || rec.Diagnostic() {
+		t.Errorf("verdict %+v, diagnostic %v", rec.Conclusion, rec.Diagnostic())
 	}
 	if st := f.get(cases["P1"]).State; st != followup.RecordingReceived {
 		t.Errorf("case moved to %s on a strip under 30 s", st)
@@ -301,8 +301,8 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if rec.Verdict.Status != overread.Disagreed || rec.Verdict.Final {
-		t.Fatalf("verdict %+v", rec.Verdict)
+	if rec.Conclusion.Status != overread.Disagreed || rec.Conclusion.Final {
+		t.Fatalf("verdict %+v", rec.Conclusion)
 	}
 	conf, err = f.s.Confirmations(ctx, 10)
 	if err != nil || len(conf.Unread) != 0 || len(conf.Disagreed) != 1 || len(conf.Disagreed[0].Readings) != 2 || len(conf.Recent) != 2 {
@@ -312,8 +312,8 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if rec.Verdict.Status != overread.Adjudicated || rec.Verdict.Rhythm != overread.Flutter {
-		t.Fatalf("verdict %+v", rec.Verdict)
+	if rec.Conclusion.Status != overread.Adjudicated || rec.Conclusion.Rhythm != overread.Flutter {
+		t.Fatalf("verdict %+v", rec.Conclusion)
 	}
 	if _, err = f.s.AddOverRead(ctx, f.inv, rec.ID, db.OverReadInput{Rhythm: "af", Confidence: "certain", ReaderID: f.inv.UserID}); err == nil {
 		t.Fatal("a fourth reading was accepted")

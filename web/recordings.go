@@ -39,7 +39,7 @@ const recordingMemory = 8 << 20
 
 // verdictView words a recording's verdict for badges.
 func verdictView(r db.Recording) (string, components.Tone) {
-	v := r.Verdict
+	v := r.Conclusion
 	switch {
 	case v.Status == overread.Unread:
 		return "waiting for an over-read", components.Warn
@@ -244,7 +244,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	m := views.RecordingModel{Page: s.page(r, "Recording "+rec.StudyID, "confirmations"), ID: rec.ID, StudyID: rec.StudyID,
 		CaseHref: fmt.Sprintf("/cases/%d", rec.CaseID), ParticipantHref: fmt.Sprintf("/participants/%d", rec.ParticipantID),
 		TooShort: rec.TooShort, Hint: rec.Hint.Text, Warnings: rec.Hint.Warnings, Verdict: verdict, VerdictTone: tone,
-		Disagreement: rec.Verdict.Status == overread.Disagreed, Errors: errs, Message: msg}
+		Disagreement: rec.Conclusion.Status == overread.Disagreed, Errors: errs, Message: msg}
 	if msg == "" {
 		m.Flash = recordingDone[r.URL.Query().Get("done")]
 	}
@@ -259,7 +259,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		{Label: "Received", Value: when(rec.ReceivedAt)},
 		{Label: "Duration", Value: duration, Testid: "recording-duration"},
 		{Label: "Recorder's own interpretation", Value: rec.Auto.Label(), Testid: "recording-auto"},
-		{Label: "Readings", Value: rec.Verdict.Status.Label()},
+		{Label: "Readings", Value: rec.Conclusion.Status.Label()},
 	}
 	if rec.HasWaveform() {
 		m.Facts = append(m.Facts,
@@ -354,7 +354,7 @@ func readingViews(rec db.Recording) []views.ReadingView {
 			On: o.On.String(), Comment: o.Comment}
 		if o.Role != overread.Adjudication {
 			v.RhythmDiffers = differ
-			v.ConfidenceDiffers = rec.Verdict.ConfidenceDiffers
+			v.ConfidenceDiffers = rec.Conclusion.ConfidenceDiffers
 		} else if first != nil && second != nil && (o.ReaderID == first.ReaderID || o.ReaderID == second.ReaderID) {
 			v.Note = "by one of the two readers"
 		}

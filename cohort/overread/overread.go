@@ -2,11 +2,11 @@
 // recordings: the verdict categories, the recorder's own automatic
 // interpretation, the order in which readings may be entered (a first reading,
 // an optional second reading by another investigator, and an adjudication when
-// the two disagree) and the effective verdict those readings give.
+// the two disagree) and the conclusion those readings reach.
 //
 // The categories of the over-read (AF, atrial flutter, sinus rhythm, other
 // arrhythmia, uninterpretable) are the trade's. The rules for entering readings
-// and the effective verdict are ours (a common design for blinded double
+// and the conclusion are ours (a common design for blinded double
 // reading with adjudication; no single source).
 //
 // The package is pure: no I/O, no clock, no logging.
@@ -202,14 +202,14 @@ func (s Status) Label() string {
 	return string(s)
 }
 
-// Verdict is the effective verdict of a recording's readings.
-type Verdict struct {
+// Conclusion is the effective conclusion of a recording's readings.
+type Conclusion struct {
 	Status Status
 	// Final is true when the readings settle a rhythm: one reading, two that
 	// agree, or an adjudication. Rhythm and SettledOn are set only then.
 	Final     bool
 	Rhythm    Rhythm
-	SettledOn cohort.Date // the day of the latest reading the verdict rests on
+	SettledOn cohort.Date // the day of the latest reading the conclusion rests on
 	// ConfidenceDiffers marks two agreeing readers who differ in confidence,
 	// which the page highlights without asking for adjudication.
 	ConfidenceDiffers bool
@@ -219,7 +219,7 @@ type Verdict struct {
 // an interpretable rhythm and the recording is long enough for a diagnostic
 // read (tooShort: under the 30 s a single-lead diagnosis needs). It is what
 // moves a case to "over-read" and what the figures count as an over-read.
-func (v Verdict) Diagnostic(tooShort bool) bool {
+func (v Conclusion) Diagnostic(tooShort bool) bool {
 	return v.Final && v.Rhythm.Interpretable() && !tooShort
 }
 
@@ -253,36 +253,36 @@ func later(a, b cohort.Date) cohort.Date {
 	return a
 }
 
-// Resolve gives the effective verdict of a recording's readings: the
+// Resolve gives the effective conclusion of a recording's readings: the
 // adjudication when there is one, else the agreed rhythm of two readers, else
 // the single reading. Two readers who give different rhythms leave the
 // recording without a verdict until an adjudication is entered. Readings that
 // could not have been entered under Check (a second without a first, an
 // adjudication without a disagreement) are an error.
-func Resolve(rs []Reading) (Verdict, error) {
+func Resolve(rs []Reading) (Conclusion, error) {
 	first, second, adj, err := byRole(rs)
 	if err != nil {
-		return Verdict{}, err
+		return Conclusion{}, err
 	}
 	switch {
 	case first == nil && (second != nil || adj != nil):
-		return Verdict{}, fmt.Errorf("overread: a later reading without a first reading")
+		return Conclusion{}, fmt.Errorf("overread: a later reading without a first reading")
 	case first == nil:
-		return Verdict{Status: Unread}, nil
+		return Conclusion{Status: Unread}, nil
 	case second == nil && adj != nil:
-		return Verdict{}, fmt.Errorf("overread: an adjudication without a second reading")
+		return Conclusion{}, fmt.Errorf("overread: an adjudication without a second reading")
 	case second == nil:
-		return Verdict{Status: Single, Final: true, Rhythm: first.Rhythm, SettledOn: first.On}, nil
+		return Conclusion{Status: Single, Final: true, Rhythm: first.Rhythm, SettledOn: first.On}, nil
 	case first.Rhythm == second.Rhythm:
 		if adj != nil {
-			return Verdict{}, fmt.Errorf("overread: an adjudication of readers who agree")
+			return Conclusion{}, fmt.Errorf("overread: an adjudication of readers who agree")
 		}
-		return Verdict{Status: Agreed, Final: true, Rhythm: first.Rhythm, SettledOn: later(first.On, second.On),
+		return Conclusion{Status: Agreed, Final: true, Rhythm: first.Rhythm, SettledOn: later(first.On, second.On),
 			ConfidenceDiffers: first.Confidence != second.Confidence}, nil
 	case adj == nil:
-		return Verdict{Status: Disagreed}, nil
+		return Conclusion{Status: Disagreed}, nil
 	}
-	return Verdict{Status: Adjudicated, Final: true, Rhythm: adj.Rhythm, SettledOn: adj.On}, nil
+	return Conclusion{Status: Adjudicated, Final: true, Rhythm: adj.Rhythm, SettledOn: adj.On}, nil
 }
 
 // Next says which reading a recording can take now, given those entered:

@@ -23,17 +23,17 @@ func TestResolve(t *testing.T) {
 	for _, tc := range []struct {
 		name string
 		in   []Reading
-		want Verdict
+		want Conclusion
 	}{
-		{"none", nil, Verdict{Status: Unread}},
-		{"single", []Reading{rd(First, AF, Certain, 1, d1)}, Verdict{Status: Single, Final: true, Rhythm: AF, SettledOn: d1}},
+		{"none", nil, Conclusion{Status: Unread}},
+		{"single", []Reading{rd(First, AF, Certain, 1, d1)}, Conclusion{Status: Single, Final: true, Rhythm: AF, SettledOn: d1}},
 		{"single uninterpretable", []Reading{rd(First, Uninterpretable, Certain, 1, d1)},
-			Verdict{Status: Single, Final: true, Rhythm: Uninterpretable, SettledOn: d1}},
+			Conclusion{Status: Single, Final: true, Rhythm: Uninterpretable, SettledOn: d1}},
 		{"agreed, settled on the later day", []Reading{rd(Second, Sinus, Probable, 2, d1), rd(First, Sinus, Certain, 1, d2)},
-			Verdict{Status: Agreed, Final: true, Rhythm: Sinus, SettledOn: d2, ConfidenceDiffers: true}},
-		{"disagreed", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Flutter, Certain, 2, d2)}, Verdict{Status: Disagreed}},
+			Conclusion{Status: Agreed, Final: true, Rhythm: Sinus, SettledOn: d2, ConfidenceDiffers: true}},
+		{"disagreed", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Flutter, Certain, 2, d2)}, Conclusion{Status: Disagreed}},
 		{"adjudicated", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Flutter, Certain, 2, d2), rd(Adjudication, Flutter, Probable, 3, d3)},
-			Verdict{Status: Adjudicated, Final: true, Rhythm: Flutter, SettledOn: d3}},
+			Conclusion{Status: Adjudicated, Final: true, Rhythm: Flutter, SettledOn: d3}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			got, err := Resolve(tc.in)
@@ -149,18 +149,18 @@ func TestCategoriesCoverEveryValue(t *testing.T) {
 // ESC 2020 atrial fibrillation guideline's (from memory); this checks the rule's
 // three parts, each able to fail it alone.
 func TestDiagnostic(t *testing.T) {
-	settled := Verdict{Final: true, Rhythm: AF}
+	settled := Conclusion{Final: true, Rhythm: AF}
 	cases := []struct {
 		name     string
-		v        Verdict
+		v        Conclusion
 		tooShort bool
 		want     bool
 	}{
 		{"settled AF, long enough", settled, false, true},
-		{"settled sinus, long enough", Verdict{Final: true, Rhythm: Sinus}, false, true},
+		{"settled sinus, long enough", Conclusion{Final: true, Rhythm: Sinus}, false, true},
 		{"settled AF, too short", settled, true, false},
-		{"not settled", Verdict{Rhythm: AF}, false, false},
-		{"settled uninterpretable", Verdict{Final: true, Rhythm: Uninterpretable}, false, false},
+		{"not settled", Conclusion{Rhythm: AF}, false, false},
+		{"settled uninterpretable", Conclusion{Final: true, Rhythm: Uninterpretable}, false, false},
 	}
 	for _, c := range cases {
 		if got := c.v.Diagnostic(c.tooShort); got != c.want {
