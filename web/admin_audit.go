@@ -76,11 +76,3 @@ func (s *Server) auditCSV(w http.ResponseWriter, r *http.Request) error {
 	}
 	return nil
 }
-
-// csvSafe defuses cells that spreadsheet programs would run as formulas.
-func csvSafe(v string) string {
-	if v != "" && (v[0] == '=' || v[0] == '+' || v[0] == '-' || v[0] == '@' || v[0] == '\t' || v[0] == '\r') {
-		return "'" + v
-	}
-	return v
-}

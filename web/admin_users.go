@@ -11,8 +11,6 @@ import (
 	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/views"
-
-	"github.com/go-chi/chi/v5"
 )
 
 type adminStore interface {
@@ -91,9 +89,9 @@ func (s *Server) userCreate(w http.ResponseWriter, r *http.Request) error {
 }
 
 func (s *Server) userByParam(r *http.Request) (db.User, error) {
-	id, err := strconv.ParseInt(chi.URLParam(r, "id"), 10, 64)
+	id, err := idParam(r)
 	if err != nil {
-		return db.User{}, errNotFound
+		return db.User{}, err
 	}
 	return s.store.UserByID(r.Context(), id)
 }

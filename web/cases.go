@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"net/http"
 	"net/url"
-	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -17,8 +16,6 @@ import (
 	"cohortdesk/db"
 	"cohortdesk/views"
 	"cohortdesk/views/components"
-
-	"github.com/go-chi/chi/v5"
 )
 
 // caseStore is what the case list, the case page, triage and their actions
@@ -66,18 +63,6 @@ func stateTone(st followup.State) components.Tone {
 		return components.Neutral
 	}
 	return components.Info
-}
-
-// dayLabel shows a calendar day with its weekday, the way staff plan work.
-func dayLabel(d cohort.Date) string {
-	return time.Date(d.Year, d.Month, d.Day, 12, 0, 0, 0, time.UTC).Format("Mon 2 Jan 2006")
-}
-
-func plural(n int, one string) string {
-	if n == 1 {
-		return "1 " + one
-	}
-	return strconv.Itoa(n) + " " + one + "s"
 }
 
 // dueView words a case's deadline at now: overdue, today, or the day. The
@@ -131,14 +116,6 @@ func caseRow(c db.Case, st db.StudySettings, now time.Time, deid bool) views.Cas
 	row.Owner, row.Note = c.Owner, c.Note
 	row.Flagged = cal.DateOf(c.FlaggedAt).String()
 	return row
-}
-
-func caseIDParam(r *http.Request) (int64, error) {
-	id, err := strconv.ParseInt(chi.URLParam(r, "id"), 10, 64)
-	if err != nil || id <= 0 {
-		return 0, errNotFound
-	}
-	return id, nil
 }
 
 // workerOptions lists the people cases may be given to; withNobody adds the
@@ -343,31 +320,10 @@ func (s *Server) casesBulk(w http.ResponseWriter, r *http.Request, done string, 
 	return nil
 }
 
-// humanMessage is the user-safe text of an error; for invalid input the
-// field messages themselves, without the field names.
-func humanMessage(err error) string {
-	var ve *cohort.ValidationError
-	if errors.As(err, &ve) {
-		keys := make([]string, 0, len(ve.Fields))
-		for k := range ve.Fields {
-			keys = append(keys, k)
-		}
-		slices.Sort(keys)
-		var msgs []string
-		for _, k := range keys {
-			if m := ve.Fields[k]; !slices.Contains(msgs, m) && !(k == "cases" && len(keys) > 1) {
-				msgs = append(msgs, m)
-			}
-		}
-		return strings.Join(msgs, "; ")
-	}
-	return publicMessage(err, "The action could not be completed.")
-}
-
 // caseShow is a case's page. Opening it shows the participant's contact
 // details, which is recorded as a view of PHI.
 func (s *Server) caseShow(w http.ResponseWriter, r *http.Request) error {
-	id, err := caseIDParam(r)
+	id, err := idParam(r)
 	if err != nil {
 		return err
 	}
@@ -546,7 +502,7 @@ type caseEditFunc func(ctx context.Context, id int64, version int, f url.Values)
 // refused action shows its reason (with the case as it now is).
 // fieldMap renames the store's field names to the form's where they differ.
 func (s *Server) caseAction(w http.ResponseWriter, r *http.Request, done string, fieldMap map[string]string, do caseEditFunc) error {
-	id, err := caseIDParam(r)
+	id, err := idParam(r)
 	if err != nil {
 		return err
 	}

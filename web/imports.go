@@ -136,9 +136,9 @@ func (s *Server) importPart(w http.ResponseWriter, r *http.Request, part *multip
 }
 
 func (s *Server) importParam(r *http.Request) (db.ImportReport, error) {
-	id, err := strconv.ParseInt(urlParam(r, "id"), 10, 64)
+	id, err := idParam(r)
 	if err != nil {
-		return db.ImportReport{}, errNotFound
+		return db.ImportReport{}, err
 	}
 	return s.store.Import(r.Context(), id)
 }

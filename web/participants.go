@@ -16,8 +16,6 @@ import (
 	"cohortdesk/db"
 	"cohortdesk/views"
 	"cohortdesk/views/components"
-
-	"github.com/go-chi/chi/v5"
 )
 
 type participantStore interface {
@@ -198,9 +196,9 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 }
 
 func (s *Server) participantParam(r *http.Request) (db.Participant, error) {
-	id, err := strconv.ParseInt(chi.URLParam(r, "id"), 10, 64)
+	id, err := idParam(r)
 	if err != nil {
-		return db.Participant{}, errNotFound
+		return db.Participant{}, err
 	}
 	return s.store.Participant(r.Context(), id)
 }

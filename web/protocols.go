@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
 	"net/http"
 	"sort"
 	"strconv"
@@ -13,8 +14,6 @@ import (
 	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 	"cohortdesk/views"
-
-	"github.com/go-chi/chi/v5"
 )
 
 type protocolStore interface {
@@ -58,11 +57,11 @@ func (s *Server) protocolsList(w http.ResponseWriter, r *http.Request) error {
 
 // protocolParam reads {id}; anything but a stored version is 404.
 func (s *Server) protocolParam(r *http.Request) (db.ProtocolVersion, error) {
-	id, err := strconv.Atoi(chi.URLParam(r, "id"))
-	if err != nil || id <= 0 {
+	id, err := idParam(r)
+	if err != nil || id > math.MaxInt32 {
 		return db.ProtocolVersion{}, errNotFound
 	}
-	return s.store.Protocol(r.Context(), id)
+	return s.store.Protocol(r.Context(), int(id))
 }
 
 func (s *Server) protocolShow(w http.ResponseWriter, r *http.Request) error {

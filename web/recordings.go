@@ -163,7 +163,7 @@ func (s *Server) recordingInput(r *http.Request, loc *time.Location) (db.Recordi
 // shows the case page again with the reasons beside the fields; nothing is
 // stored.
 func (s *Server) caseRecordingAdd(w http.ResponseWriter, r *http.Request) error {
-	id, err := caseIDParam(r)
+	id, err := idParam(r)
 	if err != nil {
 		return err
 	}
@@ -205,17 +205,9 @@ func (s *Server) caseRecordingAdd(w http.ResponseWriter, r *http.Request) error 
 	return s.renderCase(w, r, c, http.StatusUnprocessableEntity, ve.Fields, "The recording was not stored: "+humanMessage(ve))
 }
 
-func recordingIDParam(r *http.Request) (int64, error) {
-	id, err := strconv.ParseInt(urlParam(r, "id"), 10, 64)
-	if err != nil || id <= 0 {
-		return 0, errNotFound
-	}
-	return id, nil
-}
-
 // recordingShow is a recording's page.
 func (s *Server) recordingShow(w http.ResponseWriter, r *http.Request) error {
-	id, err := recordingIDParam(r)
+	id, err := idParam(r)
 	if err != nil {
 		return err
 	}
@@ -368,7 +360,7 @@ func readingViews(rec db.Recording) []views.ReadingView {
 
 // recordingOverRead enters a reading by the signed-in investigator.
 func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error {
-	id, err := recordingIDParam(r)
+	id, err := idParam(r)
 	if err != nil {
 		return err
 	}

@@ -4,8 +4,6 @@ import (
 	"archive/zip"
 	"bytes"
 	"context"
-	"crypto/sha256"
-	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -61,8 +59,6 @@ func (s *Server) buildSummary(b db.ReferralBasis) (referral.Summary, error) {
 	b.Source.IssuedAt = s.now()
 	return referral.Build(b.Source, secret)
 }
-
-func idParam(r *http.Request) (int64, error) { return caseIDParam(r) }
 
 // caseQuery reads an optional case id; anything but a positive number is
 // not found.
@@ -155,11 +151,6 @@ func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, f
 	}
 	ref, err := s.store.IssueReferral(ctx, a, db.ReferralIssue{Basis: b, Summary: sum, Format: format, Paper: paper, PDFSHA256: sha256Hex(pdf)})
 	return ref, pdf, err
-}
-
-func sha256Hex(b []byte) string {
-	sum := sha256.Sum256(b)
-	return hex.EncodeToString(sum[:])
 }
 
 // recorded reads an issued summary and its content back, with whether the

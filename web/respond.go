@@ -5,6 +5,8 @@ import (
 	"errors"
 	"log/slog"
 	"net/http"
+	"slices"
+	"strings"
 
 	"cohortdesk/cohort"
 	"cohortdesk/db"
@@ -120,3 +122,24 @@ func (s *Server) ok(w http.ResponseWriter, r *http.Request, c templ.Component) e
 
 // logger is the part of slog the server uses; tests pass a discard logger.
 type logger = *slog.Logger
+
+// humanMessage is the user-safe text of an error; for invalid input the
+// field messages themselves, without the field names.
+func humanMessage(err error) string {
+	var ve *cohort.ValidationError
+	if errors.As(err, &ve) {
+		keys := make([]string, 0, len(ve.Fields))
+		for k := range ve.Fields {
+			keys = append(keys, k)
+		}
+		slices.Sort(keys)
+		var msgs []string
+		for _, k := range keys {
+			if m := ve.Fields[k]; !slices.Contains(msgs, m) && !(k == "cases" && len(keys) > 1) {
+				msgs = append(msgs, m)
+			}
+		}
+		return strings.Join(msgs, "; ")
+	}
+	return publicMessage(err, "The action could not be completed.")
+}

@@ -139,4 +139,3 @@ func (s *Server) may(r *http.Request, pattern string) bool {
 }
 
 // urlParam reads a path parameter.
-func urlParam(r *http.Request, name string) string { return chi.URLParam(r, name) }
