@@ -172,6 +172,21 @@ const (
 	Unknown Sex = "U"
 )
 
+// Sexes lists the recorded sexes in the order forms offer them.
+func Sexes() []Sex { return []Sex{Female, Male, Unknown} }
+
+// Label words a recorded sex for pages, files and documents: "female", "male"
+// or "not recorded". Sex is not a Safe Harbor identifier; the wording is ours.
+func (s Sex) Label() string {
+	switch s {
+	case Female:
+		return "female"
+	case Male:
+		return "male"
+	}
+	return "not recorded"
+}
+
 // Errors that every layer understands. The web adapter maps them to statuses.
 var (
 	// ErrNotFound means the object does not exist or the caller may not know it does.

@@ -711,15 +711,6 @@ func (s *Store) Figures(ctx context.Context, f CascadeFilter) (Cascade, Agreemen
 	return fr.cascade(f), a, nil
 }
 
-func sexLabel(s cohort.Sex) string {
-	switch s {
-	case cohort.Female:
-		return "female"
-	case cohort.Male:
-		return "male"
-	}
-	return "not recorded"
-}
 
 func (fr figureRows) agreement() (Agreement, error) {
 	out := Agreement{Protocol: fr.protocol, Versions: fr.versions, AsOf: fr.asOf, Conf: agreementConf}
@@ -764,7 +755,7 @@ func (fr figureRows) agreement() (Agreement, error) {
 		add(sub{"site", s})
 	}
 	for _, s := range []cohort.Sex{cohort.Female, cohort.Male, cohort.Unknown} {
-		add(sub{"sex", sexLabel(s)})
+		add(sub{"sex", s.Label()})
 	}
 	for _, l := range bands.Labels() {
 		add(sub{"age band", l})
@@ -775,7 +766,7 @@ func (fr figureRows) agreement() (Agreement, error) {
 		case "site":
 			return p.site
 		case "sex":
-			return sexLabel(p.sex)
+			return p.sex.Label()
 		}
 		if p.age == nil {
 			return "age not recorded"

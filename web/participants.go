@@ -66,15 +66,6 @@ func (s *Server) followUpWeeks(ctx context.Context) int {
 	return st.FollowUpWeeks
 }
 
-func sexLabel(s cohort.Sex) string {
-	switch s {
-	case cohort.Female:
-		return "female"
-	case cohort.Male:
-		return "male"
-	}
-	return "not recorded"
-}
 
 // participantFilter reads the filter from the query string.
 func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
@@ -118,7 +109,7 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 	ids := make([]int64, 0, len(page.Rows))
 	for _, p := range page.Rows {
 		st, tone := status(p.Participant, fw, now)
-		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: sexLabel(p.Sex),
+		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: p.Sex.Label(),
 			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
 		if p.LastPositive != nil {
 			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
@@ -181,7 +172,7 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 			if p.LastPositive != nil {
 				last = strconv.Itoa(*p.LastPositive)
 			}
-			rec := []string{csvSafe(p.StudyID), p.SiteCode, sexLabel(p.Sex), ageBand(p.Participant, now), p.EnrolledOn.String(), st, withdrawn, last, strconv.Itoa(p.OpenCases)}
+			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), st, withdrawn, last, strconv.Itoa(p.OpenCases)}
 			if seesPHI {
 				rec = append(rec, csvSafe(p.Name))
 			}
@@ -236,7 +227,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		CanEdit: coordWork.allows(role(r)), CanNote: caseWork.allows(role(r)), Withdrawn: p.WithdrawnOn != nil}
 	m.Facts = []views.Fact{
 		{Label: "Site", Value: p.SiteCode},
-		{Label: "Sex", Value: sexLabel(p.Sex)},
+		{Label: "Sex", Value: p.Sex.Label()},
 		{Label: "Age band", Value: ageBand(p, s.now())},
 		{Label: "Enrolled", Value: p.EnrolledOn.String()},
 		{Label: "Time zone", Value: p.TimeZone},

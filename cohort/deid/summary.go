@@ -3,7 +3,6 @@ package deid
 import (
 	"time"
 
-	"cohortdesk/cohort"
 	"cohortdesk/cohort/stats"
 )
 
@@ -29,15 +28,3 @@ func ExportAgeCuts() []int { return stats.DefaultAgeCuts() }
 // be an element of a date tied to the person; a fixed one keeps re-rendered
 // documents byte-identical.
 func PlaceholderDate() time.Time { return time.Date(2000, time.January, 1, 0, 0, 0, 0, time.UTC) }
-
-// SexLabel words a recorded sex for a document: "female", "male" or "not
-// recorded". Sex is not a Safe Harbor identifier; the wording is ours.
-func SexLabel(s cohort.Sex) string {
-	switch s {
-	case cohort.Female:
-		return "female"
-	case cohort.Male:
-		return "male"
-	}
-	return "not recorded"
-}

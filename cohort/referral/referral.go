@@ -289,7 +289,7 @@ func Build(src Source, secret []byte) (Summary, error) {
 		ReferralCode:   deid.Code(secret, src.StudyID),
 		IssuedStudyDay: deid.StudyTimeAt(src.EnrolledOn, loc, src.IssuedAt).Day,
 		Protocol:       src.Protocol.Label(),
-		Sex:            deid.SexLabel(src.Sex),
+		Sex:            src.Sex.Label(),
 		ContactRoute:   strings.TrimSpace(src.ContactRoute),
 	}
 	age, ageKnown, err := ageOf(src, loc)
