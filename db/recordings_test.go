@@ -10,6 +10,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
@@ -24,7 +25,7 @@ const identCanary = "Quillonby-Marsh"
 func synth(t *testing.T, seconds, rate float64, seed uint64) (ecg.Waveform, int) {
 	t.Helper()
 	n := int(seconds / 0.8)
-	syn, err := ecg.Synthesize(ecg.SinusRR(n, 800, seed), ecg.SynthOptions{RateHz: rate})
+	syn, err := ecg.Synthesize(ecgtest.SinusRR(n, 800, seed), ecg.SynthOptions{RateHz: rate})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -33,7 +34,7 @@ func synth(t *testing.T, seconds, rate float64, seed uint64) (ecg.Waveform, int)
 
 func edfOf(t *testing.T, w ecg.Waveform, plus bool) []byte {
 	t.Helper()
-	b, err := ecg.EncodeEDF(w, ecg.EDFWriteOptions{Plus: plus, Patient: identCanary + " F 02-MAR-1951", Recording: "Startdate 01-JUN-2026 " + identCanary})
+	b, err := ecgtest.EncodeEDF(w, ecgtest.EDFWriteOptions{Plus: plus, Patient: identCanary + " F 02-MAR-1951", Recording: "Startdate 01-JUN-2026 " + identCanary})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -136,7 +137,7 @@ func TestAddRecordingFiles(t *testing.T) {
 				t.Errorf("case state %s", st)
 			}
 			wf, err := f.s.RecordingWaveform(ctx, rec.ID)
-			// EDF pads the last 1 s data record (ecg.EncodeEDF), so up to 250 more.
+			// EDF pads the last 1 s data record (ecgtest.EncodeEDF), so up to 250 more.
 			if err != nil || len(wf.Samples) < len(w.Samples) || len(wf.Samples) > len(w.Samples)+250 || wf.RateHz != 250 {
 				t.Errorf("waveform %d samples at %v Hz, %v", len(wf.Samples), wf.RateHz, err)
 			}

@@ -13,6 +13,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
@@ -49,7 +50,7 @@ func (a *app) upload(c *http.Client, path string, fields map[string]string, name
 
 func synthWave(t *testing.T, seconds float64, rate float64) ecg.Waveform {
 	t.Helper()
-	syn, err := ecg.Synthesize(ecg.SinusRR(int(seconds/0.8), 800, 11), ecg.SynthOptions{RateHz: rate})
+	syn, err := ecg.Synthesize(ecgtest.SinusRR(int(seconds/0.8), 800, 11), ecg.SynthOptions{RateHz: rate})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -58,7 +59,7 @@ func synthWave(t *testing.T, seconds float64, rate float64) ecg.Waveform {
 
 func edfFile(t *testing.T, w ecg.Waveform) []byte {
 	t.Helper()
-	b, err := ecg.EncodeEDF(w, ecg.EDFWriteOptions{Plus: true, Patient: "MCH-0042 F 04-APR-1950 Brackenfold_Ysolde"})
+	b, err := ecgtest.EncodeEDF(w, ecgtest.EDFWriteOptions{Plus: true, Patient: "MCH-0042 F 04-APR-1950 Brackenfold_Ysolde"})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -13,6 +13,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
@@ -56,7 +57,7 @@ func testSummary(tb testing.TB) referral.Summary {
 	loc, _ := time.LoadLocation("America/Denver")
 	enrolled := cohort.Date{Year: 2025, Month: 1, Day: 6}
 	birth := cohort.Date{Year: 1948, Month: 9, Day: 12}
-	syn, err := ecg.Synthesize(ecg.AFRR(70, 650, 5), ecg.SynthOptions{RateHz: 250})
+	syn, err := ecg.Synthesize(ecgtest.AFRR(70, 650, 5), ecg.SynthOptions{RateHz: 250})
 	if err != nil {
 		tb.Fatal(err)
 	}

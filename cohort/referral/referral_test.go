@@ -10,6 +10,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
 )
@@ -34,7 +35,7 @@ func source(tb testing.TB) Source {
 	if err != nil {
 		tb.Fatal(err)
 	}
-	rr := ecg.AFRR(60, 700, 3)
+	rr := ecgtest.AFRR(60, 700, 3)
 	syn, err := ecg.Synthesize(rr, ecg.SynthOptions{RateHz: 250})
 	if err != nil {
 		tb.Fatal(err)
