@@ -117,7 +117,7 @@ func TestAddRecordingFiles(t *testing.T) {
 	} {
 		t.Run(tc.format, func(t *testing.T) {
 			w, want := synth(t, 40, 250, 3)
-			rec, err := f.s.AddRecording(ctx, f.coord, cases[tc.sid], db.RecordingInput{TakenAt: taken, Auto: "sinus", File: tc.file(w), FileName: "strip." + tc.format})
+			rec, err := f.s.AddRecording(ctx, f.coord, cases[tc.sid], ecg.RecordingInput{TakenAt: taken, Auto: "sinus", File: tc.file(w), FileName: "strip." + tc.format})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -179,21 +179,21 @@ func TestAddRecordingRefusals(t *testing.T) {
 	for _, tc := range []struct {
 		name   string
 		caseID int64
-		in     db.RecordingInput
+		in     ecg.RecordingInput
 		field  string
 		want   []string // words the message must contain
 	}{
-		{"edf number of signals", id, db.RecordingInput{TakenAt: fixedNow, File: badSignals}, "waveform", []string{"number of signals", "byte 252"}},
-		{"edf physical minimum", id, db.RecordingInput{TakenAt: fixedNow, File: badPhys}, "waveform", []string{"physical minimum", "byte 360", "signal 1"}},
-		{"edf truncated", id, db.RecordingInput{TakenAt: fixedNow, File: good[:len(good)/2]}, "waveform", []string{"EDF"}},
-		{"csv bad line", id, db.RecordingInput{TakenAt: fixedNow, File: []byte("# sampling_rate_hz=250\nmV\n0.1\n0.2\nabc\n0.3\n")}, "waveform", []string{"line 5"}},
-		{"csv no rate", id, db.RecordingInput{TakenAt: fixedNow, File: []byte("mV\n0.1\n0.2\n")}, "waveform", []string{"rate"}},
-		{"rate too low", id, db.RecordingInput{TakenAt: fixedNow, Samples: low.Samples, RateHz: low.RateHz}, "waveform", []string{"50 Hz"}},
-		{"no duration", id, db.RecordingInput{TakenAt: fixedNow}, "duration_s", []string{"duration"}},
-		{"no time", id, db.RecordingInput{DurationS: 40}, "taken_at", []string{"taken"}},
-		{"future", id, db.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 40}, "taken_at", []string{"future"}},
-		{"before the flag", id, db.RecordingInput{TakenAt: fixedNow.AddDate(0, 0, -3), DurationS: 40}, "taken_at", []string{"flagged"}},
-		{"bad auto", id, db.RecordingInput{TakenAt: fixedNow, DurationS: 40, Auto: "maybe"}, "auto", []string{"interpretation"}},
+		{"edf number of signals", id, ecg.RecordingInput{TakenAt: fixedNow, File: badSignals}, "waveform", []string{"number of signals", "byte 252"}},
+		{"edf physical minimum", id, ecg.RecordingInput{TakenAt: fixedNow, File: badPhys}, "waveform", []string{"physical minimum", "byte 360", "signal 1"}},
+		{"edf truncated", id, ecg.RecordingInput{TakenAt: fixedNow, File: good[:len(good)/2]}, "waveform", []string{"EDF"}},
+		{"csv bad line", id, ecg.RecordingInput{TakenAt: fixedNow, File: []byte("# sampling_rate_hz=250\nmV\n0.1\n0.2\nabc\n0.3\n")}, "waveform", []string{"line 5"}},
+		{"csv no rate", id, ecg.RecordingInput{TakenAt: fixedNow, File: []byte("mV\n0.1\n0.2\n")}, "waveform", []string{"rate"}},
+		{"rate too low", id, ecg.RecordingInput{TakenAt: fixedNow, Samples: low.Samples, RateHz: low.RateHz}, "waveform", []string{"50 Hz"}},
+		{"no duration", id, ecg.RecordingInput{TakenAt: fixedNow}, "duration_s", []string{"duration"}},
+		{"no time", id, ecg.RecordingInput{DurationS: 40}, "taken_at", []string{"taken"}},
+		{"future", id, ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 40}, "taken_at", []string{"future"}},
+		{"before the flag", id, ecg.RecordingInput{TakenAt: fixedNow.AddDate(0, 0, -3), DurationS: 40}, "taken_at", []string{"flagged"}},
+		{"bad auto", id, ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40, Auto: "maybe"}, "auto", []string{"interpretation"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := f.s.AddRecording(ctx, f.coord, tc.caseID, tc.in)
@@ -216,14 +216,14 @@ func TestAddRecordingRefusals(t *testing.T) {
 		t.Errorf("case moved to %s", st)
 	}
 	// The same file twice: the second is refused.
-	if _, err := f.s.AddRecording(ctx, f.coord, id, db.RecordingInput{TakenAt: fixedNow, File: good}); err != nil {
+	if _, err := f.s.AddRecording(ctx, f.coord, id, ecg.RecordingInput{TakenAt: fixedNow, File: good}); err != nil {
 		t.Fatal(err)
 	}
-	_, err := f.s.AddRecording(ctx, f.coord, id, db.RecordingInput{TakenAt: fixedNow, File: good})
+	_, err := f.s.AddRecording(ctx, f.coord, id, ecg.RecordingInput{TakenAt: fixedNow, File: good})
 	if msg := fieldMsg(t, err, "waveform"); !strings.Contains(msg, "already stored") {
 		t.Errorf("duplicate: %q", msg)
 	}
-	if _, err := f.s.AddRecording(ctx, f.coord, 999999, db.RecordingInput{TakenAt: fixedNow, DurationS: 40}); !errors.Is(err, cohort.ErrNotFound) {
+	if _, err := f.s.AddRecording(ctx, f.coord, 999999, ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40}); !errors.Is(err, cohort.ErrNotFound) {
 		t.Errorf("unknown case: %v", err)
 	}
 }
@@ -234,7 +234,7 @@ func TestAddRecordingNeedsShipment(t *testing.T) {
 	f := newCaseFixture(t, 1)
 	f.positive(f.proto, "P1", 2)
 	f.sync()
-	_, err := f.s.AddRecording(context.Background(), f.coord, f.caseID("P1"), db.RecordingInput{TakenAt: fixedNow, DurationS: 40})
+	_, err := f.s.AddRecording(context.Background(), f.coord, f.caseID("P1"), ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40})
 	if msg := fieldMsg(t, err, "case"); !strings.Contains(msg, "shipment") {
 		t.Errorf("message %q", msg)
 	}
@@ -247,7 +247,7 @@ func TestShortRecording(t *testing.T) {
 	f, cases, _ := newRecordingFixture(t, 1)
 	ctx := context.Background()
 	w, _ := synth(t, 20, 500, 6)
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], db.RecordingInput{TakenAt: fixedNow, File: csvOf(w), Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, File: csvOf(w), Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -274,7 +274,7 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 	f, cases, second := newRecordingFixture(t, 2)
 	ctx := context.Background()
 	f.clock.set(fixedNow.Add(48 * time.Hour))
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], db.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -328,7 +328,7 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 
 	// Uninterpretable first: the case waits; a disagreeing second reader and
 	// an adjudication to sinus rhythm then move it.
-	rec2, err := f.s.AddRecording(ctx, f.coord, cases["P2"], db.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 35})
+	rec2, err := f.s.AddRecording(ctx, f.coord, cases["P2"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 35})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -351,7 +351,7 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 		t.Fatalf("adjudicated sinus left the case in %s", st)
 	}
 	// Date rules.
-	rec3, err := f.s.AddRecording(ctx, f.coord, cases["P2"], db.RecordingInput{TakenAt: fixedNow.Add(2 * time.Hour), DurationS: 35})
+	rec3, err := f.s.AddRecording(ctx, f.coord, cases["P2"], ecg.RecordingInput{TakenAt: fixedNow.Add(2 * time.Hour), DurationS: 35})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -374,7 +374,7 @@ func TestLoaderPath(t *testing.T) {
 	loader := cohort.Actor{Name: "demo loader"}
 	w, want := synth(t, 60, 500, 8)
 	taken, received := fixedNow.Add(30*time.Hour), fixedNow.Add(80*time.Hour)
-	rec, err := f.s.AddRecording(ctx, loader, cases["P1"], db.RecordingInput{TakenAt: taken, ReceivedAt: received, Auto: "sinus", Samples: w.Samples, RateHz: w.RateHz})
+	rec, err := f.s.AddRecording(ctx, loader, cases["P1"], ecg.RecordingInput{TakenAt: taken, ReceivedAt: received, Auto: "sinus", Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -406,7 +406,7 @@ func TestLoaderPath(t *testing.T) {
 func TestConcurrentFirstReadings(t *testing.T) {
 	f, cases, second := newRecordingFixture(t, 1)
 	ctx := context.Background()
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], db.RecordingInput{TakenAt: fixedNow, DurationS: 40})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -184,7 +184,7 @@ func TestOverReadFlow(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 1)
 	ctx := context.Background()
-	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], db.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: "af"})
+	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}

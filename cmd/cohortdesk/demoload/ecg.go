@@ -59,11 +59,11 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 	if err != nil {
 		return 0, err
 	}
-	auto := string(autoOf[r.Auto])
+	auto := autoOf[r.Auto]
 	if auto == "" {
-		auto = string(overread.AutoNone)
+		auto = overread.AutoNone
 	}
-	rec, err := cs.AddRecording(ctx, a, caseID, db.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: auto,
+	rec, err := cs.AddRecording(ctx, a, caseID, ecg.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: auto,
 		Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		return 0, fmt.Errorf("recording: %w", err)
@@ -73,8 +73,8 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 
 // addOverRead enters the scripted clinician's reading.
 func addOverRead(ctx context.Context, cs *db.Store, reader db.User, recID int64, r demo.Recording, loc *time.Location) error {
-	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: string(rhythmOf[r.OverRead]),
-		Confidence: string(overread.Certain), ReaderID: reader.ID, ReadOn: cohort.DateOf(r.ReadAt.In(loc))})
+	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: rhythmOf[r.OverRead],
+		Confidence: overread.Certain, ReaderID: reader.ID, ReadOn: cohort.DateOf(r.ReadAt.In(loc))})
 	if err != nil {
 		return fmt.Errorf("over-read: %w", err)
 	}
