@@ -158,6 +158,52 @@ func TestMalformedEDFRefused(t *testing.T) {
 	}
 }
 
+// TestFormValuesRefusedBesideFields: values the lists do not offer, on the
+// recording form and the over-read form, are refused by intake's and
+// overread's rules with status 422 and the message beside the field; nothing
+// is stored.
+func TestFormValuesRefusedBesideFields(t *testing.T) {
+	a := newApp(t)
+	ids := shippedCases(t, a, 1)
+	coord := a.signIn(cohort.Coordinator)
+	now := time.Now().UTC().Format("2006-01-02T15:04")
+	res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": now, "duration_s": "40", "auto": "maybe"}, "", nil)
+	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-auto"`) || !strings.Contains(body, "choose one of the listed interpretations") {
+		t.Errorf("unknown interpretation: status %d", res.StatusCode)
+	}
+	res, body = a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": now, "duration_s": "40.5x"}, "", nil)
+	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-duration_s"`) {
+		t.Errorf("malformed duration: status %d", res.StatusCode)
+	}
+	var n int
+	if a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM recordings`).Scan(&n); n != 0 {
+		t.Fatalf("%d recordings stored", n)
+	}
+	rec, err := a.store.AddRecording(context.Background(), a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45})
+	if err != nil {
+		t.Fatal(err)
+	}
+	inv := a.signIn(cohort.Investigator)
+	post := fmt.Sprintf("/recordings/%d/over-reads", rec.ID)
+	for _, tc := range []struct {
+		form  url.Values
+		field string
+	}{
+		{url.Values{"role": {"first"}, "rhythm": {"af"}, "confidence": {"sure"}}, "confidence"},
+		{url.Values{"role": {"first"}, "rhythm": {"sinus_rhythm"}, "confidence": {"certain"}}, "rhythm"},
+		{url.Values{"role": {"third"}, "rhythm": {"af"}, "confidence": {"certain"}}, "role"},
+		{url.Values{"role": {"first"}, "rhythm": {"af"}, "confidence": {"certain"}, "read_on": {"10 June"}}, "read_on"},
+	} {
+		res, body := a.postFormBody(inv, post, tc.form)
+		if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-`+tc.field+`"`) {
+			t.Errorf("%v: status %d, want 422 with the message beside %s", tc.form, res.StatusCode, tc.field)
+		}
+	}
+	if a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM over_reads`).Scan(&n); n != 0 {
+		t.Errorf("%d readings stored", n)
+	}
+}
+
 // TestShortRecordingShownAsSuch: under 30 s is stored and marked on the
 // recording page, the case page and the confirmations list.
 func TestShortRecordingShownAsSuch(t *testing.T) {
