@@ -14,6 +14,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -206,7 +207,7 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 		switch {
 		case ref.CaseID == 0:
 			rec.SignOffNote = "Made on request without a case: there is no case to refer."
-		case sum.OverRead == nil || sum.OverRead.Rhythm != "af":
+		case sum.OverRead == nil || sum.OverRead.Rhythm != overread.AF:
 			rec.SignOffNote = "The over-read in this summary does not confirm atrial fibrillation, so it cannot be signed off as a referral."
 		case !ok:
 			rec.SignOffNote = "The recorded content no longer matches its digest; issue a new summary."

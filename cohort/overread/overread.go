@@ -137,6 +137,20 @@ func (r Role) Label() string {
 	return fmt.Sprintf("%q", string(r))
 }
 
+// ReaderLabel words who gave a reading of this role, as a referral summary
+// names the reader of its verdict.
+func (r Role) ReaderLabel() string {
+	switch r {
+	case First:
+		return "first reader"
+	case Second:
+		return "second reader"
+	case Adjudication:
+		return "adjudication (the first two readers disagreed)"
+	}
+	return r.Label()
+}
+
 // Reading is one entered over-read.
 type Reading struct {
 	Role       Role

@@ -94,7 +94,7 @@ func refer(ctx context.Context, cs *db.Store, issuer cohort.Actor, signer db.Use
 	if err != nil {
 		return err
 	}
-	if sum.OverRead == nil || sum.OverRead.Rhythm != string(overread.AF) {
+	if sum.OverRead == nil || sum.OverRead.Rhythm != overread.AF {
 		// The script refers some cases whose reading is not AF (atrial
 		// flutter, say); the sign-off is for confirmed AF only, so these are
 		// moved by hand as a person would, without a signed summary.
