@@ -18,8 +18,8 @@ import (
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/views/components"
 	"cohortdesk/views/referralpdf"
+	"cohortdesk/web/referralissue"
 )
 
 // referralStore is what referral summaries need from the database.
@@ -49,16 +49,13 @@ func (s *Server) codeSecret() ([]byte, error) {
 	return s.secret, nil
 }
 
-// buildSummary turns a basis into the summary issued now, with the standard
-// cautions.
-func (s *Server) buildSummary(b db.ReferralBasis) (referral.Summary, error) {
+// draft builds a participant's summary as it would be issued now.
+func (s *Server) draft(ctx context.Context, pid, caseID int64) (referralissue.Draft, error) {
 	secret, err := s.codeSecret()
 	if err != nil {
-		return referral.Summary{}, err
+		return referralissue.Draft{}, err
 	}
-	b.Source.Cautions = components.CautionItems
-	b.Source.IssuedAt = s.now()
-	return referral.Build(b.Source, secret)
+	return referralissue.Prepare(ctx, s.store, pid, caseID, secret, s.now())
 }
 
 // caseQuery reads an optional case id; anything but a positive number is
@@ -85,14 +82,11 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	b, err := s.store.ReferralSource(r.Context(), pid, caseID)
+	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
 	}
-	sum, err := s.buildSummary(b)
-	if err != nil {
-		return err
-	}
+	b, sum := d.Basis, d.Summary
 	paper := paperOf(r.URL.Query().Get("paper"))
 	base := fmt.Sprintf("/participants/%d/referral?case=%d&paper=", pid, b.CaseID)
 	m := s.referralModel(r, sum, paper, base)
@@ -135,23 +129,14 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	return nil
 }
 
-// issue builds, draws and records one summary; it returns the record and
-// the PDF.
+// issue builds, draws and records one summary (referralissue); it returns
+// the record and the PDF.
 func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, format, paper string) (db.Referral, []byte, error) {
-	b, err := s.store.ReferralSource(ctx, pid, caseID)
+	d, err := s.draft(ctx, pid, caseID)
 	if err != nil {
 		return db.Referral{}, nil, err
 	}
-	sum, err := s.buildSummary(b)
-	if err != nil {
-		return db.Referral{}, nil, err
-	}
-	pdf, err := referralPDF(sum, paper)
-	if err != nil {
-		return db.Referral{}, nil, err
-	}
-	ref, err := s.store.IssueReferral(ctx, a, db.ReferralIssue{Basis: b, Summary: sum, Format: format, Paper: paper, PDFSHA256: sha256Hex(pdf)})
-	return ref, pdf, err
+	return referralissue.Record(ctx, s.store, a, d, format, paper)
 }
 
 // recorded reads an issued summary and its content back, with whether the

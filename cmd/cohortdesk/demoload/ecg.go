@@ -2,8 +2,6 @@ package demoload
 
 import (
 	"context"
-	"crypto/sha256"
-	"encoding/hex"
 	"fmt"
 	"time"
 
@@ -11,10 +9,9 @@ import (
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/overread"
-	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
-	"cohortdesk/views/components"
 	"cohortdesk/views/referralpdf"
+	"cohortdesk/web/referralissue"
 )
 
 var autoOf = map[demo.AutoResult]overread.Auto{
@@ -81,33 +78,21 @@ func addOverRead(ctx context.Context, cs *db.Store, reader db.User, recID int64,
 	return nil
 }
 
-// refer issues the case's referral summary (drawn as the app draws it) and has
+// refer issues the case's referral summary (as the app issues it) and has
 // the investigator sign it off, which moves the case to "referred".
 func refer(ctx context.Context, cs *db.Store, issuer cohort.Actor, signer db.User, c db.Case, secret []byte, at time.Time) error {
-	b, err := cs.ReferralSource(ctx, c.ParticipantID, c.ID)
+	d, err := referralissue.Prepare(ctx, cs, c.ParticipantID, c.ID, secret, at)
 	if err != nil {
 		return err
 	}
-	b.Source.Cautions = components.CautionItems
-	b.Source.IssuedAt = at
-	sum, err := referral.Build(b.Source, secret)
-	if err != nil {
-		return err
-	}
-	if sum.OverRead == nil || sum.OverRead.Rhythm != overread.AF {
+	if !d.Basis.ConfirmedAF() {
 		// The script refers some cases whose reading is not AF (atrial
 		// flutter, say); the sign-off is for confirmed AF only, so these are
 		// moved by hand as a person would, without a signed summary.
 		_, err := cs.AdvanceCase(ctx, issuer, c.ID, "referred", at, "referred by the investigator after the over-read")
 		return err
 	}
-	pdf, err := referralpdf.Render(sum, referralpdf.PaperLetter)
-	if err != nil {
-		return err
-	}
-	digest := sha256.Sum256(pdf)
-	ref, err := cs.IssueReferral(ctx, issuer, db.ReferralIssue{Basis: b, Summary: sum, Format: "pdf", Paper: referralpdf.PaperLetter,
-		PDFSHA256: hex.EncodeToString(digest[:])})
+	ref, _, err := referralissue.Record(ctx, cs, issuer, d, "pdf", referralpdf.PaperLetter)
 	if err != nil {
 		return fmt.Errorf("issue referral: %w", err)
 	}
