@@ -102,9 +102,9 @@ func TestRecordingUploads(t *testing.T) {
 		{"strip.edf", "EDF+", edfFile(t, synthWave(t, 40, 250))},
 		{"strip.csv", "CSV", csvFile(synthWave(t, 40, 500))},
 	} {
-		res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[i]), map[string]string{"taken_at": taken, "auto": "sinus"}, tc.name, tc.data)
+		res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[i]), map[string]string{"taken_at": taken, "auto": "sinus"}, tc.name, tc.data)
 		id := recordingIDFrom(t, res)
-		res, body = a.get(coord, fmt.Sprintf("/recordings/%d", id))
+		res, body := a.get(coord, fmt.Sprintf("/recordings/%d", id))
 		if res.StatusCode != http.StatusOK {
 			t.Fatalf("%s page: %d", tc.name, res.StatusCode)
 		}
