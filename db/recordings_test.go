@@ -41,15 +41,6 @@ func edfOf(t *testing.T, w ecg.Waveform, plus bool) []byte {
 	return b
 }
 
-func csvOf(w ecg.Waveform) []byte {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# sampling_rate_hz=%g\n# unit=uV\nuV\n", w.RateHz)
-	for _, v := range w.Samples {
-		fmt.Fprintf(&b, "%.0f\n", v*1000)
-	}
-	return []byte(b.String())
-}
-
 // toRecorderSent moves a participant's case to "recorder sent" through the
 // case actions and returns its id.
 func (f *caseFixture) toRecorderSent(studyID string) int64 {
@@ -113,7 +104,7 @@ func TestAddRecordingFiles(t *testing.T) {
 	}{
 		{"P1", "edf", func(w ecg.Waveform) []byte { return edfOf(t, w, false) }},
 		{"P2", "edf+", func(w ecg.Waveform) []byte { return edfOf(t, w, true) }},
-		{"P3", "csv", csvOf},
+		{"P3", "csv", ecgtest.EncodeCSV},
 	} {
 		t.Run(tc.format, func(t *testing.T) {
 			w, want := synth(t, 40, 250, 3)
@@ -247,7 +238,7 @@ func TestShortRecording(t *testing.T) {
 	f, cases, _ := newRecordingFixture(t, 1)
 	ctx := context.Background()
 	w, _ := synth(t, 20, 500, 6)
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, File: csvOf(w), Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, File: ecgtest.EncodeCSV(w), Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -66,15 +66,6 @@ func edfFile(t *testing.T, w ecg.Waveform) []byte {
 	return b
 }
 
-func csvFile(w ecg.Waveform) []byte {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# sampling_rate_hz=%g\nmV\n", w.RateHz)
-	for _, v := range w.Samples {
-		fmt.Fprintf(&b, "%.3f\n", v)
-	}
-	return []byte(b.String())
-}
-
 func recordingIDFrom(t *testing.T, res *http.Response) int64 {
 	t.Helper()
 	var id int64
@@ -100,7 +91,7 @@ func TestRecordingUploads(t *testing.T) {
 		data         []byte
 	}{
 		{"strip.edf", "EDF+", edfFile(t, synthWave(t, 40, 250))},
-		{"strip.csv", "CSV", csvFile(synthWave(t, 40, 500))},
+		{"strip.csv", "CSV", ecgtest.EncodeCSV(synthWave(t, 40, 500))},
 	} {
 		res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[i]), map[string]string{"taken_at": taken, "auto": "sinus"}, tc.name, tc.data)
 		id := recordingIDFrom(t, res)
@@ -210,7 +201,7 @@ func TestShortRecordingShownAsSuch(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 1)
 	coord := a.signIn(cohort.Coordinator)
-	res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": time.Now().UTC().Format("2006-01-02T15:04")}, "short.csv", csvFile(synthWave(t, 20, 250)))
+	res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": time.Now().UTC().Format("2006-01-02T15:04")}, "short.csv", ecgtest.EncodeCSV(synthWave(t, 20, 250)))
 	id := recordingIDFrom(t, res)
 	_, body := a.get(coord, fmt.Sprintf("/recordings/%d", id))
 	if !strings.Contains(body, `data-testid="too-short"`) {

@@ -24,8 +24,7 @@ import (
 
 // referralStore is what referral summaries need from the database.
 type referralStore interface {
-	ReferralSource(ctx context.Context, participantID, caseID int64) (db.ReferralBasis, error)
-	IssueReferral(ctx context.Context, a cohort.Actor, in db.ReferralIssue) (db.Referral, error)
+	referralissue.Store // the source of a summary and its record
 	Referral(ctx context.Context, id int64) (db.Referral, error)
 	Referrals(ctx context.Context, limit int) ([]db.Referral, error)
 	ReadyToRefer(ctx context.Context) ([]db.ReadyCase, error)

@@ -51,15 +51,6 @@ func edfOf(t *testing.T, w ecg.Waveform, plus bool) []byte {
 	return b
 }
 
-func csvOf(w ecg.Waveform) []byte {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# sampling_rate_hz=%g\n# unit=uV\nuV\n", w.RateHz)
-	for _, v := range w.Samples {
-		fmt.Fprintf(&b, "%.0f\n", v*1000)
-	}
-	return []byte(b.String())
-}
-
 // fields returns the field messages of a refusal, or fails.
 func fields(t *testing.T, err error) map[string]string {
 	t.Helper()
@@ -85,7 +76,7 @@ func TestIntakeFormats(t *testing.T) {
 	}{
 		{"edf", ecg.RecordingInput{File: edfOf(t, w, false), FileName: "  strip.edf "}},
 		{"edf+", ecg.RecordingInput{File: edfOf(t, w, true), FileName: "strip.edf"}},
-		{"csv", ecg.RecordingInput{File: csvOf(w), FileName: "strip.csv"}},
+		{"csv", ecg.RecordingInput{File: ecgtest.EncodeCSV(w), FileName: "strip.csv"}},
 		{"samples", ecg.RecordingInput{Samples: w.Samples, RateHz: w.RateHz}},
 	} {
 		t.Run(tc.format, func(t *testing.T) {
@@ -264,7 +255,7 @@ func FuzzIntake(f *testing.F) {
 		}
 		f.Add(b, 0.0)
 	}
-	f.Add(csvOf(w), 0.0)
+	f.Add(ecgtest.EncodeCSV(w), 0.0)
 	f.Add([]byte("mV\n0.1\n0.2\n"), 250.0)
 	f.Fuzz(func(t *testing.T, data []byte, rate float64) {
 		got, err := ecg.Intake(ecg.RecordingInput{TakenAt: intakeNow, File: data, CSVRateHz: rate}, intakeOptions())
