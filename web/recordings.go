@@ -74,7 +74,8 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 		return nil, err
 	}
 	m := views.CaseECGModel{CaseID: c.ID, CanAdd: coordWork.allows(role(r)), Closed: acceptsRecordings(c.State), Errors: errs,
-		MaxBytes: humanBytes(ecg.MaxFileBytes), Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
+		MaxBytes: humanBytes(ecg.MaxFileBytes), MaxSeconds: ecg.MaxRecordingSeconds, MinRateHz: int(ecg.MinRateHz), MaxRateHz: int(ecg.MaxRateHz),
+		Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
 	if r.MultipartForm != nil {
 		// A refused upload: show what was entered (a browser never refills a file field).
 		for _, k := range []string{"auto", "taken_at", "duration_s", "rate_hz", "received_on"} {
@@ -286,7 +287,8 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	case next == overread.Second && rec.Readings[0].ReaderID == u.ID:
 		m.FormNote = "You gave the first reading. A second reading, if the study wants one, comes from another investigator."
 	default:
-		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain)}
+		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain),
+			MaxComment: overread.MaxCommentChars}
 		if r.PostForm.Get("role") == string(next) {
 			// A refused entry: show it again.
 			f.Rhythm, f.Comment = r.PostForm.Get("rhythm"), r.PostForm.Get("comment")
