@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -32,8 +33,8 @@ type reportFigures struct {
 	total     enrolFig
 	weeks     []db.SufficiencyWeek // the calendar weeks that overlap the period
 	weekSpan  string
-	cascade   db.Cascade
-	agree     db.Agreement
+	cascade   cascade.Cascade
+	agree     cascade.Agreement
 }
 
 // monday is the Monday on or before d.
@@ -103,18 +104,18 @@ func (rf reportFigures) weeksTotal() (due, sufficient int) {
 }
 
 // overall is the agreement row of all the version's episodes.
-func (rf reportFigures) overall() db.AgreementGroup {
+func (rf reportFigures) overall() cascade.Group {
 	for _, g := range rf.agree.Groups {
 		if g.Dimension == "all" {
 			return g
 		}
 	}
-	return db.AgreementGroup{}
+	return cascade.Group{}
 }
 
 // reportGroups are the agreement rows the report shows: all, then by site.
-func (rf reportFigures) reportGroups() []db.AgreementGroup {
-	var out []db.AgreementGroup
+func (rf reportFigures) reportGroups() []cascade.Group {
+	var out []cascade.Group
 	for _, g := range rf.agree.Groups {
 		if g.Dimension == "all" || g.Dimension == "site" {
 			out = append(out, g)
