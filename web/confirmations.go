@@ -289,46 +289,20 @@ func (s *Server) confirmationStatsCSV(w http.ResponseWriter, r *http.Request) er
 		map[string]any{"protocol_id": a.Protocol.ID, "site_id": q.Get("site")}); err != nil {
 		return err
 	}
-	num := func(v float64) string {
-		if math.IsNaN(v) {
-			return ""
-		}
-		return strconv.FormatFloat(v, 'f', 6, 64)
-	}
 	var rows [][]string
 	switch table {
 	case "versions", "groups":
-		rows = append(rows, []string{"protocol", "dimension", "group", "flagged_episodes", "with_recording", "over_read", "af_confirmed",
-			"ppv", "wilson_lo", "wilson_hi", "exact_lo", "exact_hi", "uninterpretable", "settled_read", "median_days", "median_lo", "median_hi",
-			"events", "censored"})
+		rows = append(rows, append([]string{"protocol"}, agreementHeader()...))
 		gs := a.Groups
 		if table == "versions" {
 			gs = a.ByVersion
 		}
 		for _, g := range gs {
-			ci := func(iv stats.Interval) (string, string) {
-				if g.OverRead == 0 {
-					return "", ""
-				}
-				return num(iv.Lo), num(iv.Hi)
-			}
-			wl, wh := ci(g.Wilson)
-			el, eh := ci(g.Exact)
-			med := func(ok bool, v float64) string {
-				if !ok {
-					return ""
-				}
-				return num(v)
-			}
 			proto := a.Protocol.Label()
 			if table == "versions" {
 				proto = g.Label
 			}
-			rows = append(rows, []string{csvSafe(proto), g.Dimension, csvSafe(g.Label), strconv.Itoa(g.Flagged), strconv.Itoa(g.WithRecording),
-				strconv.Itoa(g.OverRead), strconv.Itoa(g.Confirmed), num(g.PPV.Value()), wl, wh, el, eh,
-				strconv.Itoa(g.Uninterpretable.X), strconv.Itoa(g.Uninterpretable.N),
-				med(g.Median.Reached, g.Median.Time), med(g.Median.LoReached, g.Median.Lo), med(g.Median.HiReached, g.Median.Hi),
-				strconv.Itoa(g.Events), strconv.Itoa(g.Censored)})
+			rows = append(rows, append([]string{csvSafe(proto)}, agreementRecord(g)...))
 		}
 	case "km":
 		rows = append(rows, []string{"day", "at_risk", "over_read", "censored", "survival", "se", "lo", "hi"})

@@ -6,14 +6,12 @@ import (
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
-	"math"
 	"net/http"
 	"strconv"
 	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
-	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
 
@@ -233,15 +231,6 @@ func (t *csvTable) bytes() ([]byte, error) {
 	return t.buf.Bytes(), nil
 }
 
-// num writes a number for a CSV file: fractions with six decimals, nothing
-// for an undefined value.
-func num(v float64) string {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return ""
-	}
-	return strconv.FormatFloat(v, 'f', 6, 64)
-}
-
 // reportManifest is manifest.json of the report's bundle.
 type reportManifest struct {
 	Kind      string         `json:"kind"`
@@ -310,32 +299,9 @@ func (rf reportFigures) reportTables() []*csvTable {
 		boxes.add(strconv.Itoa(i+1), b.Key, b.Label, strconv.Itoa(b.Count()), cases, share, strconv.Itoa(left), strconv.Itoa(waiting))
 	}
 
-	agree := newCSVTable("agreement.csv", "dimension", "group", "flagged_episodes", "with_recording", "over_read", "af_confirmed",
-		"ppv", "wilson_lo", "wilson_hi", "exact_lo", "exact_hi", "uninterpretable", "settled_read", "median_days", "median_lo", "median_hi",
-		"events", "censored")
+	agree := newCSVTable("agreement.csv", agreementHeader()...)
 	for _, g := range rf.agree.Groups {
-		ci := func(iv stats.Interval) (string, string) {
-			if g.OverRead == 0 {
-				return "", ""
-			}
-			return num(iv.Lo), num(iv.Hi)
-		}
-		wl, wh := ci(g.Wilson)
-		el, eh := ci(g.Exact)
-		med := func(ok bool, v float64) string {
-			if !ok || g.Flagged == 0 {
-				return ""
-			}
-			return num(v)
-		}
-		ppv := ""
-		if g.OverRead > 0 {
-			ppv = num(g.PPV.Value())
-		}
-		agree.add(g.Dimension, csvSafe(g.Label), strconv.Itoa(g.Flagged), strconv.Itoa(g.WithRecording), strconv.Itoa(g.OverRead),
-			strconv.Itoa(g.Confirmed), ppv, wl, wh, el, eh, strconv.Itoa(g.Uninterpretable.X), strconv.Itoa(g.Uninterpretable.N),
-			med(g.Median.Reached, g.Median.Time), med(g.Median.LoReached, g.Median.Lo), med(g.Median.HiReached, g.Median.Hi),
-			strconv.Itoa(g.Events), strconv.Itoa(g.Censored))
+		agree.add(agreementRecord(g)...)
 	}
 
 	k := rf.agree.Kappa
