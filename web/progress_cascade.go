@@ -65,19 +65,10 @@ func parseCascadeQuery(q url.Values, sites []db.Site) (cascadeQuery, error) {
 		return d
 	}
 	cq.from, cq.to = day("from"), day("to")
-	if !cq.from.IsZero() && !cq.to.IsZero() && cq.to.Before(cq.from) {
-		ve.Add("to", "the period must end on or after its first day")
+	if err := cq.filter.EnrolledBetween(cq.from, cq.to); err != nil {
+		ve.Add("to", err.Error())
 	}
-	if err := ve.Err(); err != nil {
-		return cq, err
-	}
-	if !cq.from.IsZero() {
-		cq.filter.From = cq.from.In(time.UTC)
-	}
-	if !cq.to.IsZero() {
-		cq.filter.To = cq.to.AddDays(1).In(time.UTC) // the filter's end is not included
-	}
-	return cq, nil
+	return cq, ve.Err()
 }
 
 // values are the query's choices for links, without empty ones.

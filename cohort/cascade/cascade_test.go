@@ -416,3 +416,32 @@ func TestAgreementWithoutReadings(t *testing.T) {
 		t.Errorf("groups %v", labels)
 	}
 }
+
+func TestEnrolledBetween(t *testing.T) {
+	d := func(s string) cohort.Date {
+		t.Helper()
+		v, err := cohort.ParseDate(s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return v
+	}
+	var f Filter
+	if err := f.EnrolledBetween(d("2026-03-02"), d("2026-03-08")); err != nil {
+		t.Fatal(err)
+	}
+	// Both days included: the filter's end is the day after the last.
+	if !f.From.Equal(time.Date(2026, 3, 2, 0, 0, 0, 0, time.UTC)) || !f.To.Equal(time.Date(2026, 3, 9, 0, 0, 0, 0, time.UTC)) {
+		t.Errorf("from %v to %v", f.From, f.To)
+	}
+	if err := f.EnrolledBetween(d("2026-03-02"), d("2026-03-02")); err != nil || !f.To.Equal(time.Date(2026, 3, 3, 0, 0, 0, 0, time.UTC)) {
+		t.Errorf("one day: to %v, %v", f.To, err)
+	}
+	if err := f.EnrolledBetween(cohort.Date{}, d("2026-03-08")); err != nil || !f.From.IsZero() {
+		t.Errorf("open start: from %v, %v", f.From, err)
+	}
+	before := f
+	if err := f.EnrolledBetween(d("2026-03-08"), d("2026-03-07")); !errors.Is(err, ErrPeriod) || f != before {
+		t.Errorf("a period ending before it starts: %v, filter %+v", err, f)
+	}
+}

@@ -1,6 +1,7 @@
 package cascade
 
 import (
+	"errors"
 	"fmt"
 	"time"
 
@@ -23,6 +24,26 @@ type Filter struct {
 	// AsOf is the day open cases are censored at in the time to over-read;
 	// zero is now. Counts are as the database stands when they are read.
 	AsOf time.Time
+}
+
+// ErrPeriod is a period of enrolment that ends before its first day.
+var ErrPeriod = errors.New("the period must end on or after its first day")
+
+// EnrolledBetween keeps participants enrolled from the day from to the day
+// to, both included; a zero day leaves that end open. A period that ends
+// before its first day is ErrPeriod and leaves f unchanged.
+func (f *Filter) EnrolledBetween(from, to cohort.Date) error {
+	if !from.IsZero() && !to.IsZero() && to.Before(from) {
+		return ErrPeriod
+	}
+	f.From, f.To = time.Time{}, time.Time{}
+	if !from.IsZero() {
+		f.From = from.In(time.UTC)
+	}
+	if !to.IsZero() {
+		f.To = to.AddDays(1).In(time.UTC) // the filter's end is not included
+	}
+	return nil
 }
 
 // ProtocolRef names a screening protocol version.

@@ -301,3 +301,29 @@ func TestSweepTallyChunks(t *testing.T) {
 		}
 	}
 }
+
+// TestSweepParams: every sweepable parameter of the default protocol, each
+// window-level one for each of its two window sizes, and every one of them
+// accepted by With.
+func TestSweepParams(t *testing.T) {
+	p := DefaultProtocol()
+	got := SweepParams(p)
+	perWindow := 0
+	for _, sp := range Sweepable {
+		if strings.Contains(sp, "windows[i]") {
+			perWindow++
+		}
+	}
+	if want := len(Sweepable) - perWindow + perWindow*len(p.Windows); len(got) != want || len(p.Windows) != 2 {
+		t.Fatalf("%d parameters for %d windows, want %d", len(got), len(p.Windows), want)
+	}
+	if got[0] != (SweepParam{Path: "min_wear_hours", Window: -1}) || got[1] != (SweepParam{Path: "windows[0].masd_threshold", Window: 0}) ||
+		got[2] != (SweepParam{Path: "windows[1].masd_threshold", Window: 1}) {
+		t.Errorf("first parameters %v", got[:3])
+	}
+	for _, sp := range got {
+		if _, err := p.With(sp.Path, 1); err != nil {
+			t.Errorf("With(%s): %v", sp.Path, err)
+		}
+	}
+}
