@@ -193,6 +193,16 @@ func (s *Server) sweepForm(r *http.Request, q url.Values) (*sweepChoice, []db.Pr
 	return &c, all, nil
 }
 
+// sweepPage is the page for the choice in q, with the choice itself.
+func (s *Server) sweepPage(r *http.Request, q url.Values) (views.SweepModel, *sweepChoice, error) {
+	c, all, err := s.sweepForm(r, q)
+	if err != nil {
+		return views.SweepModel{}, nil, err
+	}
+	m, err := s.sweepModel(r, c, all)
+	return m, c, err
+}
+
 // sweep shows the sweep form, the earlier sweeps and, with ?run=, one
 // sweep: its progress while the job runs, its chart and table once done.
 // Polled by htmx while the job runs, it answers 204 until the job has ended
@@ -200,11 +210,7 @@ func (s *Server) sweepForm(r *http.Request, q url.Values) (*sweepChoice, []db.Pr
 func (s *Server) sweep(w http.ResponseWriter, r *http.Request) error {
 	q := r.URL.Query()
 	if q.Get("run") == "" {
-		c, all, err := s.sweepForm(r, q)
-		if err != nil {
-			return err
-		}
-		m, err := s.sweepModel(r, c, all)
+		m, _, err := s.sweepPage(r, q)
 		if err != nil {
 			return err
 		}
@@ -231,11 +237,7 @@ func (s *Server) sweep(w http.ResponseWriter, r *http.Request) error {
 		choice.Set("from", strconv.FormatFloat(run.Values[0], 'g', -1, 64))
 		choice.Set("to", strconv.FormatFloat(run.Values[len(run.Values)-1], 'g', -1, 64))
 	}
-	c, all, err := s.sweepForm(r, choice)
-	if err != nil {
-		return err
-	}
-	m, err := s.sweepModel(r, c, all)
+	m, c, err := s.sweepPage(r, choice)
 	if err != nil {
 		return err
 	}
@@ -280,37 +282,31 @@ func (s *Server) sweepStart(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	if c == nil {
-		m, err := s.sweepModel(r, nil, nil)
-		if err != nil {
-			return err
+	status := http.StatusOK // no protocol yet: the page says so
+	if c != nil {
+		c.parseRange()
+		if len(c.errs) == 0 {
+			id, err := s.store.StartSweep(r.Context(), s.actor(r), c.version.ID, c.param, c.values())
+			var ve *cohort.ValidationError
+			switch {
+			case errors.As(err, &ve):
+				for k, v := range ve.Fields {
+					c.errs[k] = v
+				}
+			case err != nil:
+				return err
+			default:
+				http.Redirect(w, r, sweepHref(id), http.StatusSeeOther)
+				return nil
+			}
 		}
-		return s.ok(w, r, views.Sweep(m))
+		status = http.StatusUnprocessableEntity
 	}
-	c.parseRange()
-	refuse := func() error {
-		m, err := s.sweepModel(r, c, all)
-		if err != nil {
-			return err
-		}
-		s.render(w, r, http.StatusUnprocessableEntity, views.Sweep(m))
-		return nil
-	}
-	if len(c.errs) > 0 {
-		return refuse()
-	}
-	id, err := s.store.StartSweep(r.Context(), s.actor(r), c.version.ID, c.param, c.values())
-	var ve *cohort.ValidationError
-	if errors.As(err, &ve) {
-		for k, v := range ve.Fields {
-			c.errs[k] = v
-		}
-		return refuse()
-	}
+	m, err := s.sweepModel(r, c, all)
 	if err != nil {
 		return err
 	}
-	http.Redirect(w, r, sweepHref(id), http.StatusSeeOther)
+	s.render(w, r, status, views.Sweep(m))
 	return nil
 }
 
