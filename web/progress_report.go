@@ -35,12 +35,6 @@ type reportFigures struct {
 	agree     cascade.Agreement
 }
 
-// monday is the Monday on or before d.
-func monday(d cohort.Date) cohort.Date {
-	wd := int(d.In(time.UTC).Weekday())
-	return d.AddDays(-((wd + 6) % 7))
-}
-
 // readReport parses the report's choices and reads its figures.
 func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	ctx := r.Context()
@@ -67,7 +61,7 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	rf.sites, rf.total = studyFigures(rf.hist, rf.window)
 	first := cohort.Date{}
 	if !rf.cq.from.IsZero() {
-		first = monday(rf.cq.from)
+		first = rf.cq.from.Monday()
 	}
 	for _, w := range weeks {
 		if (first.IsZero() || !w.Week.Before(first)) && !rf.hist.Today.Before(w.Week) {
