@@ -10,6 +10,8 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 )
@@ -60,12 +62,12 @@ func figureCohort(t *testing.T) (*caseFixture, map[string]int64) {
 	if _, err := f.s.CloseCase(ctx, f.coord, cases["P14"], db.MoveInput{Version: f.get(cases["P14"]).Version, To: "closed_unreachable", Reason: "no answer to five attempts"}); err != nil {
 		t.Fatal(err)
 	}
-	autos := []string{"", "af", "af", "af", "af", "af", "sinus", "none", "sinus", "af", "unclassified", "unreadable"}
-	rhythms := []string{"", "af", "af", "af", "af", "af", "af", "af", "sinus", "sinus", "flutter"}
+	autos := []overread.Auto{"", "af", "af", "af", "af", "af", "sinus", "none", "sinus", "af", "unclassified", "unreadable"}
+	rhythms := []overread.Rhythm{"", "af", "af", "af", "af", "af", "af", "af", "sinus", "sinus", "flutter"}
 	recs := map[string]int64{}
 	for i := 1; i <= 11; i++ {
 		sid := fmt.Sprintf("P%d", i)
-		r, err := f.s.AddRecording(ctx, f.coord, cases[sid], db.RecordingInput{TakenAt: day(2).Add(-time.Hour), DurationS: 45, Auto: autos[i]})
+		r, err := f.s.AddRecording(ctx, f.coord, cases[sid], ecg.RecordingInput{TakenAt: day(2).Add(-time.Hour), DurationS: 45, Auto: autos[i]})
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -10,6 +10,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
@@ -24,7 +25,7 @@ const identCanary = "Quillonby-Marsh"
 func synth(t *testing.T, seconds, rate float64, seed uint64) (ecg.Waveform, int) {
 	t.Helper()
 	n := int(seconds / 0.8)
-	syn, err := ecg.Synthesize(ecg.SinusRR(n, 800, seed), ecg.SynthOptions{RateHz: rate})
+	syn, err := ecg.Synthesize(ecgtest.SinusRR(n, 800, seed), ecg.SynthOptions{RateHz: rate})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -33,20 +34,11 @@ func synth(t *testing.T, seconds, rate float64, seed uint64) (ecg.Waveform, int)
 
 func edfOf(t *testing.T, w ecg.Waveform, plus bool) []byte {
 	t.Helper()
-	b, err := ecg.EncodeEDF(w, ecg.EDFWriteOptions{Plus: plus, Patient: identCanary + " F 02-MAR-1951", Recording: "Startdate 01-JUN-2026 " + identCanary})
+	b, err := ecgtest.EncodeEDF(w, ecgtest.EDFWriteOptions{Plus: plus, Patient: identCanary + " F 02-MAR-1951", Recording: "Startdate 01-JUN-2026 " + identCanary})
 	if err != nil {
 		t.Fatal(err)
 	}
 	return b
-}
-
-func csvOf(w ecg.Waveform) []byte {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# sampling_rate_hz=%g\n# unit=uV\nuV\n", w.RateHz)
-	for _, v := range w.Samples {
-		fmt.Fprintf(&b, "%.0f\n", v*1000)
-	}
-	return []byte(b.String())
 }
 
 // toRecorderSent moves a participant's case to "recorder sent" through the
@@ -112,11 +104,11 @@ func TestAddRecordingFiles(t *testing.T) {
 	}{
 		{"P1", "edf", func(w ecg.Waveform) []byte { return edfOf(t, w, false) }},
 		{"P2", "edf+", func(w ecg.Waveform) []byte { return edfOf(t, w, true) }},
-		{"P3", "csv", csvOf},
+		{"P3", "csv", ecgtest.EncodeCSV},
 	} {
 		t.Run(tc.format, func(t *testing.T) {
 			w, want := synth(t, 40, 250, 3)
-			rec, err := f.s.AddRecording(ctx, f.coord, cases[tc.sid], db.RecordingInput{TakenAt: taken, Auto: "sinus", File: tc.file(w), FileName: "strip." + tc.format})
+			rec, err := f.s.AddRecording(ctx, f.coord, cases[tc.sid], ecg.RecordingInput{TakenAt: taken, Auto: "sinus", File: tc.file(w), FileName: "strip." + tc.format})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -136,7 +128,7 @@ func TestAddRecordingFiles(t *testing.T) {
 				t.Errorf("case state %s", st)
 			}
 			wf, err := f.s.RecordingWaveform(ctx, rec.ID)
-			// EDF pads the last 1 s data record (ecg.EncodeEDF), so up to 250 more.
+			// EDF pads the last 1 s data record (ecgtest.EncodeEDF), so up to 250 more.
 			if err != nil || len(wf.Samples) < len(w.Samples) || len(wf.Samples) > len(w.Samples)+250 || wf.RateHz != 250 {
 				t.Errorf("waveform %d samples at %v Hz, %v", len(wf.Samples), wf.RateHz, err)
 			}
@@ -178,21 +170,21 @@ func TestAddRecordingRefusals(t *testing.T) {
 	for _, tc := range []struct {
 		name   string
 		caseID int64
-		in     db.RecordingInput
+		in     ecg.RecordingInput
 		field  string
 		want   []string // words the message must contain
 	}{
-		{"edf number of signals", id, db.RecordingInput{TakenAt: fixedNow, File: badSignals}, "waveform", []string{"number of signals", "byte 252"}},
-		{"edf physical minimum", id, db.RecordingInput{TakenAt: fixedNow, File: badPhys}, "waveform", []string{"physical minimum", "byte 360", "signal 1"}},
-		{"edf truncated", id, db.RecordingInput{TakenAt: fixedNow, File: good[:len(good)/2]}, "waveform", []string{"EDF"}},
-		{"csv bad line", id, db.RecordingInput{TakenAt: fixedNow, File: []byte("# sampling_rate_hz=250\nmV\n0.1\n0.2\nabc\n0.3\n")}, "waveform", []string{"line 5"}},
-		{"csv no rate", id, db.RecordingInput{TakenAt: fixedNow, File: []byte("mV\n0.1\n0.2\n")}, "waveform", []string{"rate"}},
-		{"rate too low", id, db.RecordingInput{TakenAt: fixedNow, Samples: low.Samples, RateHz: low.RateHz}, "waveform", []string{"50 Hz"}},
-		{"no duration", id, db.RecordingInput{TakenAt: fixedNow}, "duration_s", []string{"duration"}},
-		{"no time", id, db.RecordingInput{DurationS: 40}, "taken_at", []string{"taken"}},
-		{"future", id, db.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 40}, "taken_at", []string{"future"}},
-		{"before the flag", id, db.RecordingInput{TakenAt: fixedNow.AddDate(0, 0, -3), DurationS: 40}, "taken_at", []string{"flagged"}},
-		{"bad auto", id, db.RecordingInput{TakenAt: fixedNow, DurationS: 40, Auto: "maybe"}, "auto", []string{"interpretation"}},
+		{"edf number of signals", id, ecg.RecordingInput{TakenAt: fixedNow, File: badSignals}, "waveform", []string{"number of signals", "byte 252"}},
+		{"edf physical minimum", id, ecg.RecordingInput{TakenAt: fixedNow, File: badPhys}, "waveform", []string{"physical minimum", "byte 360", "signal 1"}},
+		{"edf truncated", id, ecg.RecordingInput{TakenAt: fixedNow, File: good[:len(good)/2]}, "waveform", []string{"EDF"}},
+		{"csv bad line", id, ecg.RecordingInput{TakenAt: fixedNow, File: []byte("# sampling_rate_hz=250\nmV\n0.1\n0.2\nabc\n0.3\n")}, "waveform", []string{"line 5"}},
+		{"csv no rate", id, ecg.RecordingInput{TakenAt: fixedNow, File: []byte("mV\n0.1\n0.2\n")}, "waveform", []string{"rate"}},
+		{"rate too low", id, ecg.RecordingInput{TakenAt: fixedNow, Samples: low.Samples, RateHz: low.RateHz}, "waveform", []string{"50 Hz"}},
+		{"no duration", id, ecg.RecordingInput{TakenAt: fixedNow}, "duration_s", []string{"duration"}},
+		{"no time", id, ecg.RecordingInput{DurationS: 40}, "taken_at", []string{"taken"}},
+		{"future", id, ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 40}, "taken_at", []string{"future"}},
+		{"before the flag", id, ecg.RecordingInput{TakenAt: fixedNow.AddDate(0, 0, -3), DurationS: 40}, "taken_at", []string{"flagged"}},
+		{"bad auto", id, ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40, Auto: "maybe"}, "auto", []string{"interpretation"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := f.s.AddRecording(ctx, f.coord, tc.caseID, tc.in)
@@ -215,14 +207,14 @@ func TestAddRecordingRefusals(t *testing.T) {
 		t.Errorf("case moved to %s", st)
 	}
 	// The same file twice: the second is refused.
-	if _, err := f.s.AddRecording(ctx, f.coord, id, db.RecordingInput{TakenAt: fixedNow, File: good}); err != nil {
+	if _, err := f.s.AddRecording(ctx, f.coord, id, ecg.RecordingInput{TakenAt: fixedNow, File: good}); err != nil {
 		t.Fatal(err)
 	}
-	_, err := f.s.AddRecording(ctx, f.coord, id, db.RecordingInput{TakenAt: fixedNow, File: good})
+	_, err := f.s.AddRecording(ctx, f.coord, id, ecg.RecordingInput{TakenAt: fixedNow, File: good})
 	if msg := fieldMsg(t, err, "waveform"); !strings.Contains(msg, "already stored") {
 		t.Errorf("duplicate: %q", msg)
 	}
-	if _, err := f.s.AddRecording(ctx, f.coord, 999999, db.RecordingInput{TakenAt: fixedNow, DurationS: 40}); !errors.Is(err, cohort.ErrNotFound) {
+	if _, err := f.s.AddRecording(ctx, f.coord, 999999, ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40}); !errors.Is(err, cohort.ErrNotFound) {
 		t.Errorf("unknown case: %v", err)
 	}
 }
@@ -233,7 +225,7 @@ func TestAddRecordingNeedsShipment(t *testing.T) {
 	f := newCaseFixture(t, 1)
 	f.positive(f.proto, "P1", 2)
 	f.sync()
-	_, err := f.s.AddRecording(context.Background(), f.coord, f.caseID("P1"), db.RecordingInput{TakenAt: fixedNow, DurationS: 40})
+	_, err := f.s.AddRecording(context.Background(), f.coord, f.caseID("P1"), ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40})
 	if msg := fieldMsg(t, err, "case"); !strings.Contains(msg, "shipment") {
 		t.Errorf("message %q", msg)
 	}
@@ -246,7 +238,7 @@ func TestShortRecording(t *testing.T) {
 	f, cases, _ := newRecordingFixture(t, 1)
 	ctx := context.Background()
 	w, _ := synth(t, 20, 500, 6)
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], db.RecordingInput{TakenAt: fixedNow, File: csvOf(w), Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, File: ecgtest.EncodeCSV(w), Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -273,7 +265,7 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 	f, cases, second := newRecordingFixture(t, 2)
 	ctx := context.Background()
 	f.clock.set(fixedNow.Add(48 * time.Hour))
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], db.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -327,7 +319,7 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 
 	// Uninterpretable first: the case waits; a disagreeing second reader and
 	// an adjudication to sinus rhythm then move it.
-	rec2, err := f.s.AddRecording(ctx, f.coord, cases["P2"], db.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 35})
+	rec2, err := f.s.AddRecording(ctx, f.coord, cases["P2"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 35})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -350,7 +342,7 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 		t.Fatalf("adjudicated sinus left the case in %s", st)
 	}
 	// Date rules.
-	rec3, err := f.s.AddRecording(ctx, f.coord, cases["P2"], db.RecordingInput{TakenAt: fixedNow.Add(2 * time.Hour), DurationS: 35})
+	rec3, err := f.s.AddRecording(ctx, f.coord, cases["P2"], ecg.RecordingInput{TakenAt: fixedNow.Add(2 * time.Hour), DurationS: 35})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -373,7 +365,7 @@ func TestLoaderPath(t *testing.T) {
 	loader := cohort.Actor{Name: "demo loader"}
 	w, want := synth(t, 60, 500, 8)
 	taken, received := fixedNow.Add(30*time.Hour), fixedNow.Add(80*time.Hour)
-	rec, err := f.s.AddRecording(ctx, loader, cases["P1"], db.RecordingInput{TakenAt: taken, ReceivedAt: received, Auto: "sinus", Samples: w.Samples, RateHz: w.RateHz})
+	rec, err := f.s.AddRecording(ctx, loader, cases["P1"], ecg.RecordingInput{TakenAt: taken, ReceivedAt: received, Auto: "sinus", Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -405,7 +397,7 @@ func TestLoaderPath(t *testing.T) {
 func TestConcurrentFirstReadings(t *testing.T) {
 	f, cases, second := newRecordingFixture(t, 1)
 	ctx := context.Background()
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], db.RecordingInput{TakenAt: fixedNow, DurationS: 40})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -10,6 +10,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/cohort/risk"
 
@@ -38,7 +39,7 @@ type ReferralBasis struct {
 // ConfirmedAF reports whether the summary's over-read is atrial
 // fibrillation: only such a summary can be signed off.
 func (b ReferralBasis) ConfirmedAF() bool {
-	return b.Source.OverRead != nil && b.Source.OverRead.Rhythm == "af"
+	return b.Source.OverRead != nil && b.Source.OverRead.Rhythm == overread.AF
 }
 
 // ReferralSource gathers a summary's source for a participant: for one of
@@ -166,20 +167,22 @@ func (s *Store) referralRecording(ctx context.Context, b *ReferralBasis) error {
 	var samples []byte
 	var beats []int32
 	var readOn time.Time
+	var auto, role, rhythm, confidence string
 	err := s.pool.QueryRow(ctx, `
 		SELECT r.taken_at, r.duration_s, r.auto_interpretation, r.sampling_hz, r.samples, r.beats,
 		       eff.role, eff.rhythm, eff.confidence, eff.read_on
 		FROM recordings r `+effectiveRead+`
 		WHERE `+where+`
 		ORDER BY eff.rhythm = 'af' DESC, eff.read_on DESC, r.taken_at DESC, r.id DESC LIMIT 1`, arg).
-		Scan(&rec.TakenAt, &dur, &rec.AutoInterpretation, &hz, &samples, &beats, &o.Role, &o.Rhythm, &o.Confidence, &readOn)
+		Scan(&rec.TakenAt, &dur, &auto, &hz, &samples, &beats, &role, &rhythm, &confidence, &readOn)
 	if errors.Is(err, pgx.ErrNoRows) {
 		return nil
 	}
 	if err != nil {
 		return mapErr("referral recording", err)
 	}
-	rec.DurationS = float64(dur)
+	rec.DurationS, rec.Auto = float64(dur), overread.Auto(auto)
+	o.Role, o.Rhythm, o.Confidence = overread.Role(role), overread.Rhythm(rhythm), overread.Confidence(confidence)
 	if hz != nil && len(samples) > 0 {
 		mv, err := DecodeSamples(samples)
 		if err != nil {
@@ -397,7 +400,7 @@ func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (
 		if err != nil {
 			return err
 		}
-		if sum.OverRead == nil || sum.OverRead.Rhythm != "af" {
+		if sum.OverRead == nil || sum.OverRead.Rhythm != overread.AF {
 			return refuse("the summary does not report an over-read confirming atrial fibrillation; it cannot be signed off as a referral")
 		}
 		var readOn *time.Time

@@ -10,6 +10,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
@@ -28,7 +29,7 @@ func referralFixture(t *testing.T) (*caseFixture, map[string]int64) {
 		f.positive(f.proto, p, 2, 3)
 	}
 	f.sync()
-	syn, err := ecg.Synthesize(ecg.AFRR(50, 700, 1), ecg.SynthOptions{RateHz: 250}) // about 35 s: long enough for a diagnostic read
+	syn, err := ecg.Synthesize(ecgtest.AFRR(50, 700, 1), ecg.SynthOptions{RateHz: 250}) // about 35 s: long enough for a diagnostic read
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,25 +1,18 @@
 package db
 
 import (
+	"cohortdesk/cohort/ecg"
 	"encoding/binary"
 	"fmt"
-	"math"
 )
 
 // EncodeSamples packs an ECG waveform (mV) for recordings.samples: little-endian
-// int16 microvolts, clipped to +-32.767 mV. A handheld recorder's resolution is
-// a few microvolts, so nothing a reader can see is lost, and a 60 s recording
-// at 500 Hz takes 60 kB.
+// int16 microvolts at the resolution of ecg.Microvolts, so a 60 s recording at
+// 500 Hz takes 60 kB.
 func EncodeSamples(mv []float64) []byte {
 	b := make([]byte, 2*len(mv))
 	for i, v := range mv {
-		uv := math.Round(v * 1000)
-		if uv > math.MaxInt16 {
-			uv = math.MaxInt16
-		} else if uv < math.MinInt16 {
-			uv = math.MinInt16
-		}
-		binary.LittleEndian.PutUint16(b[2*i:], uint16(int16(uv)))
+		binary.LittleEndian.PutUint16(b[2*i:], uint16(ecg.Microvolts(v)))
 	}
 	return b
 }

@@ -15,6 +15,7 @@ import (
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/views/components"
 
@@ -158,7 +159,7 @@ func newJourneyFixture(t *testing.T, a *app) journeyFixture {
 // application must drop it.
 func afRecordingFile(t *testing.T, f journeyFixture) string {
 	t.Helper()
-	syn, err := ecg.Synthesize(ecg.AFRR(64, 640, 23), ecg.SynthOptions{RateHz: 250})
+	syn, err := ecg.Synthesize(ecgtest.AFRR(64, 640, 23), ecg.SynthOptions{RateHz: 250})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -173,7 +174,7 @@ func afRecordingFile(t *testing.T, f journeyFixture) string {
 	// underscores for spaces (EDF+ specification, section 2.1.3.3; from
 	// memory).
 	patient := fmt.Sprintf("%s X %s %s", f.sid, strings.ToUpper(birth.Format("02-Jan-2006")), strings.ReplaceAll(f.name, " ", "_"))
-	data, err := ecg.EncodeEDF(syn.Waveform, ecg.EDFWriteOptions{Plus: true, Patient: patient})
+	data, err := ecgtest.EncodeEDF(syn.Waveform, ecgtest.EDFWriteOptions{Plus: true, Patient: patient})
 	if err != nil {
 		t.Fatal(err)
 	}

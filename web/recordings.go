@@ -25,7 +25,7 @@ import (
 // recordingStore is what the recording pages, the confirmations area and the
 // agreement statistics need from the database.
 type recordingStore interface {
-	AddRecording(ctx context.Context, a cohort.Actor, caseID int64, in db.RecordingInput) (db.Recording, error)
+	AddRecording(ctx context.Context, a cohort.Actor, caseID int64, in ecg.RecordingInput) (db.Recording, error)
 	Recording(ctx context.Context, id int64) (db.Recording, error)
 	CaseRecordings(ctx context.Context, caseID int64) ([]db.Recording, error)
 	RecordingWaveform(ctx context.Context, id int64) (ecg.Waveform, error)
@@ -75,7 +75,8 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 		return nil, err
 	}
 	m := views.CaseECGModel{CaseID: c.ID, CanAdd: coordWork.allows(role(r)), Closed: acceptsRecordings(c.State), Errors: errs,
-		MaxBytes: humanBytes(db.MaxRecordingFileBytes), Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
+		MaxBytes: humanBytes(ecg.MaxFileBytes), MaxSeconds: ecg.MaxRecordingSeconds, MinRateHz: int(ecg.MinRateHz), MaxRateHz: int(ecg.MaxRateHz),
+		Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
 	if r.MultipartForm != nil {
 		// A refused upload: show what was entered (a browser never refills a file field).
 		for _, k := range []string{"auto", "taken_at", "duration_s", "rate_hz", "received_on"} {
@@ -96,10 +97,11 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 	return views.CaseECG(m), nil
 }
 
-// recordingInput reads the intake form: times in the study's zone, numbers,
-// and the optional file.
-func (s *Server) recordingInput(r *http.Request, loc *time.Location) (db.RecordingInput, error) {
-	var in db.RecordingInput
+// recordingInput reads the intake form into typed values: times in the
+// study's zone, numbers, the recorder's interpretation, and the optional file.
+// What the values may be is intake's rule (ecg.Intake).
+func (s *Server) recordingInput(r *http.Request, loc *time.Location) (ecg.RecordingInput, error) {
+	var in ecg.RecordingInput
 	var ve cohort.ValidationError
 	f := r.MultipartForm.Value
 	val := func(k string) string {
@@ -108,7 +110,7 @@ func (s *Server) recordingInput(r *http.Request, loc *time.Location) (db.Recordi
 		}
 		return ""
 	}
-	in.Auto = val("auto")
+	in.Auto = overread.Auto(val("auto"))
 	if v := val("taken_at"); v != "" {
 		t, err := time.ParseInLocation("2006-01-02T15:04", v, loc)
 		if err != nil {
@@ -142,20 +144,18 @@ func (s *Server) recordingInput(r *http.Request, loc *time.Location) (db.Recordi
 		in.CSVRateHz = hz
 	}
 	if fhs := r.MultipartForm.File["waveform"]; len(fhs) > 0 && fhs[0].Size > 0 {
+		// A file over ecg.MaxFileBytes (up to the 1 MiB of slack the body
+		// limit allows) is refused by intake with the other problems.
 		fh := fhs[0]
-		if fh.Size > db.MaxRecordingFileBytes {
-			ve.Add("waveform", fmt.Sprintf("the file is larger than %s, more than any handheld recording; nothing was stored", humanBytes(db.MaxRecordingFileBytes)))
-		} else {
-			file, err := fh.Open()
-			if err != nil {
-				return in, err
-			}
-			defer file.Close()
-			if in.File, err = io.ReadAll(file); err != nil {
-				return in, err
-			}
-			in.FileName = fh.Filename
+		file, err := fh.Open()
+		if err != nil {
+			return in, err
 		}
+		defer file.Close()
+		if in.File, err = io.ReadAll(file); err != nil {
+			return in, err
+		}
+		in.FileName = fh.Filename
 	}
 	return in, ve.Err()
 }
@@ -171,7 +171,7 @@ func (s *Server) caseRecordingAdd(w http.ResponseWriter, r *http.Request) error 
 	if _, err := s.store.Case(r.Context(), id); err != nil {
 		return err
 	}
-	r.Body = http.MaxBytesReader(w, r.Body, db.MaxRecordingFileBytes+1<<20)
+	r.Body = http.MaxBytesReader(w, r.Body, ecg.MaxFileBytes+1<<20)
 	err = r.ParseMultipartForm(recordingMemory)
 	if err == nil {
 		defer r.MultipartForm.RemoveAll()
@@ -179,7 +179,7 @@ func (s *Server) caseRecordingAdd(w http.ResponseWriter, r *http.Request) error 
 		if st, err = s.store.StudySettings(r.Context()); err != nil {
 			return err
 		}
-		var in db.RecordingInput
+		var in ecg.RecordingInput
 		if in, err = s.recordingInput(r, st.Location()); err == nil {
 			var rec db.Recording
 			if rec, err = s.store.AddRecording(r.Context(), s.actor(r), id, in); err == nil {
@@ -288,7 +288,8 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	case next == overread.Second && rec.Readings[0].ReaderID == u.ID:
 		m.FormNote = "You gave the first reading. A second reading, if the study wants one, comes from another investigator."
 	default:
-		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain)}
+		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain),
+			MaxComment: overread.MaxCommentChars}
 		if r.PostForm.Get("role") == string(next) {
 			// A refused entry: show it again.
 			f.Rhythm, f.Comment = r.PostForm.Get("rhythm"), r.PostForm.Get("comment")
@@ -369,8 +370,11 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 		return err
 	}
 	u, _ := userFrom(r.Context())
-	in := db.OverReadInput{Role: r.PostForm.Get("role"), Rhythm: r.PostForm.Get("rhythm"), Confidence: r.PostForm.Get("confidence"),
-		Comment: r.PostForm.Get("comment"), ReaderID: u.ID}
+	// The lists' values are taken as they come; whether they are ones the
+	// lists offer is overread's rule (overread.Entry.Settle).
+	field := func(k string) string { return strings.TrimSpace(r.PostForm.Get(k)) }
+	in := db.OverReadInput{Role: overread.Role(field("role")), Rhythm: overread.Rhythm(field("rhythm")),
+		Confidence: overread.Confidence(field("confidence")), Comment: r.PostForm.Get("comment"), ReaderID: u.ID}
 	var ve cohort.ValidationError
 	if v := strings.TrimSpace(r.PostForm.Get("read_on")); v != "" {
 		d, err := cohort.ParseDate(v)

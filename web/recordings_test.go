@@ -13,6 +13,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
@@ -49,7 +50,7 @@ func (a *app) upload(c *http.Client, path string, fields map[string]string, name
 
 func synthWave(t *testing.T, seconds float64, rate float64) ecg.Waveform {
 	t.Helper()
-	syn, err := ecg.Synthesize(ecg.SinusRR(int(seconds/0.8), 800, 11), ecg.SynthOptions{RateHz: rate})
+	syn, err := ecg.Synthesize(ecgtest.SinusRR(int(seconds/0.8), 800, 11), ecg.SynthOptions{RateHz: rate})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -58,20 +59,11 @@ func synthWave(t *testing.T, seconds float64, rate float64) ecg.Waveform {
 
 func edfFile(t *testing.T, w ecg.Waveform) []byte {
 	t.Helper()
-	b, err := ecg.EncodeEDF(w, ecg.EDFWriteOptions{Plus: true, Patient: "MCH-0042 F 04-APR-1950 Brackenfold_Ysolde"})
+	b, err := ecgtest.EncodeEDF(w, ecgtest.EDFWriteOptions{Plus: true, Patient: "MCH-0042 F 04-APR-1950 Brackenfold_Ysolde"})
 	if err != nil {
 		t.Fatal(err)
 	}
 	return b
-}
-
-func csvFile(w ecg.Waveform) []byte {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# sampling_rate_hz=%g\nmV\n", w.RateHz)
-	for _, v := range w.Samples {
-		fmt.Fprintf(&b, "%.3f\n", v)
-	}
-	return []byte(b.String())
 }
 
 func recordingIDFrom(t *testing.T, res *http.Response) int64 {
@@ -99,11 +91,11 @@ func TestRecordingUploads(t *testing.T) {
 		data         []byte
 	}{
 		{"strip.edf", "EDF+", edfFile(t, synthWave(t, 40, 250))},
-		{"strip.csv", "CSV", csvFile(synthWave(t, 40, 500))},
+		{"strip.csv", "CSV", ecgtest.EncodeCSV(synthWave(t, 40, 500))},
 	} {
-		res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[i]), map[string]string{"taken_at": taken, "auto": "sinus"}, tc.name, tc.data)
+		res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[i]), map[string]string{"taken_at": taken, "auto": "sinus"}, tc.name, tc.data)
 		id := recordingIDFrom(t, res)
-		res, body = a.get(coord, fmt.Sprintf("/recordings/%d", id))
+		res, body := a.get(coord, fmt.Sprintf("/recordings/%d", id))
 		if res.StatusCode != http.StatusOK {
 			t.Fatalf("%s page: %d", tc.name, res.StatusCode)
 		}
@@ -157,13 +149,59 @@ func TestMalformedEDFRefused(t *testing.T) {
 	}
 }
 
+// TestFormValuesRefusedBesideFields: values the lists do not offer, on the
+// recording form and the over-read form, are refused by intake's and
+// overread's rules with status 422 and the message beside the field; nothing
+// is stored.
+func TestFormValuesRefusedBesideFields(t *testing.T) {
+	a := newApp(t)
+	ids := shippedCases(t, a, 1)
+	coord := a.signIn(cohort.Coordinator)
+	now := time.Now().UTC().Format("2006-01-02T15:04")
+	res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": now, "duration_s": "40", "auto": "maybe"}, "", nil)
+	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-auto"`) || !strings.Contains(body, "choose one of the listed interpretations") {
+		t.Errorf("unknown interpretation: status %d", res.StatusCode)
+	}
+	res, body = a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": now, "duration_s": "40.5x"}, "", nil)
+	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-duration_s"`) {
+		t.Errorf("malformed duration: status %d", res.StatusCode)
+	}
+	var n int
+	if a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM recordings`).Scan(&n); n != 0 {
+		t.Fatalf("%d recordings stored", n)
+	}
+	rec, err := a.store.AddRecording(context.Background(), a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45})
+	if err != nil {
+		t.Fatal(err)
+	}
+	inv := a.signIn(cohort.Investigator)
+	post := fmt.Sprintf("/recordings/%d/over-reads", rec.ID)
+	for _, tc := range []struct {
+		form  url.Values
+		field string
+	}{
+		{url.Values{"role": {"first"}, "rhythm": {"af"}, "confidence": {"sure"}}, "confidence"},
+		{url.Values{"role": {"first"}, "rhythm": {"sinus_rhythm"}, "confidence": {"certain"}}, "rhythm"},
+		{url.Values{"role": {"third"}, "rhythm": {"af"}, "confidence": {"certain"}}, "role"},
+		{url.Values{"role": {"first"}, "rhythm": {"af"}, "confidence": {"certain"}, "read_on": {"10 June"}}, "read_on"},
+	} {
+		res, body := a.postFormBody(inv, post, tc.form)
+		if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-`+tc.field+`"`) {
+			t.Errorf("%v: status %d, want 422 with the message beside %s", tc.form, res.StatusCode, tc.field)
+		}
+	}
+	if a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM over_reads`).Scan(&n); n != 0 {
+		t.Errorf("%d readings stored", n)
+	}
+}
+
 // TestShortRecordingShownAsSuch: under 30 s is stored and marked on the
 // recording page, the case page and the confirmations list.
 func TestShortRecordingShownAsSuch(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 1)
 	coord := a.signIn(cohort.Coordinator)
-	res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": time.Now().UTC().Format("2006-01-02T15:04")}, "short.csv", csvFile(synthWave(t, 20, 250)))
+	res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": time.Now().UTC().Format("2006-01-02T15:04")}, "short.csv", ecgtest.EncodeCSV(synthWave(t, 20, 250)))
 	id := recordingIDFrom(t, res)
 	_, body := a.get(coord, fmt.Sprintf("/recordings/%d", id))
 	if !strings.Contains(body, `data-testid="too-short"`) {
@@ -183,7 +221,7 @@ func TestOverReadFlow(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 1)
 	ctx := context.Background()
-	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], db.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: "af"})
+	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: "af"})
 	if err != nil {
 		t.Fatal(err)
 	}

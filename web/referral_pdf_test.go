@@ -13,6 +13,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
@@ -56,7 +57,7 @@ func testSummary(tb testing.TB) referral.Summary {
 	loc, _ := time.LoadLocation("America/Denver")
 	enrolled := cohort.Date{Year: 2025, Month: 1, Day: 6}
 	birth := cohort.Date{Year: 1948, Month: 9, Day: 12}
-	syn, err := ecg.Synthesize(ecg.AFRR(70, 650, 5), ecg.SynthOptions{RateHz: 250})
+	syn, err := ecg.Synthesize(ecgtest.AFRR(70, 650, 5), ecg.SynthOptions{RateHz: 250})
 	if err != nil {
 		tb.Fatal(err)
 	}
@@ -80,7 +81,7 @@ func testSummary(tb testing.TB) referral.Summary {
 		Weeks: []referral.Week{{Week: 3, Verdict: "positive", Reason: "positive by run of 4 irregular 30-minute windows (limit 2) in 150.2 h usable wear", WearHours: 150.2,
 			Result: screen.Result{Windows: []screen.WindowResult{{Minutes: 5, Usable: 10}, {Minutes: 30, Usable: 300, Irregular: 8, Share: 0.027, LongestRun: 4, Threshold: 7, MeanMASD: 3.2}}}}},
 		HeartRate:    week,
-		Recording:    &referral.Recording{TakenAt: time.Date(2025, 2, 3, 10, 0, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, AutoInterpretation: "af"},
+		Recording:    &referral.Recording{TakenAt: time.Date(2025, 2, 3, 10, 0, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, Auto: "af"},
 		OverRead:     &referral.OverRead{Role: "adjudication", Rhythm: "af", Confidence: "certain", ReadOn: cohort.Date{Year: 2025, Month: 2, Day: 5}},
 		ContactRoute: "Study coordinating office: reply through the secure message line quoting the referral code.",
 		Cautions:     components.CautionItems,

@@ -14,17 +14,17 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/views/components"
 	"cohortdesk/views/referralpdf"
+	"cohortdesk/web/referralissue"
 )
 
 // referralStore is what referral summaries need from the database.
 type referralStore interface {
-	ReferralSource(ctx context.Context, participantID, caseID int64) (db.ReferralBasis, error)
-	IssueReferral(ctx context.Context, a cohort.Actor, in db.ReferralIssue) (db.Referral, error)
+	referralissue.Store // the source of a summary and its record
 	Referral(ctx context.Context, id int64) (db.Referral, error)
 	Referrals(ctx context.Context, limit int) ([]db.Referral, error)
 	ReadyToRefer(ctx context.Context) ([]db.ReadyCase, error)
@@ -48,16 +48,13 @@ func (s *Server) codeSecret() ([]byte, error) {
 	return s.secret, nil
 }
 
-// buildSummary turns a basis into the summary issued now, with the standard
-// cautions.
-func (s *Server) buildSummary(b db.ReferralBasis) (referral.Summary, error) {
+// draft builds a participant's summary as it would be issued now.
+func (s *Server) draft(ctx context.Context, pid, caseID int64) (referralissue.Draft, error) {
 	secret, err := s.codeSecret()
 	if err != nil {
-		return referral.Summary{}, err
+		return referralissue.Draft{}, err
 	}
-	b.Source.Cautions = components.CautionItems
-	b.Source.IssuedAt = s.now()
-	return referral.Build(b.Source, secret)
+	return referralissue.Prepare(ctx, s.store, pid, caseID, secret, s.now())
 }
 
 // caseQuery reads an optional case id; anything but a positive number is
@@ -84,14 +81,11 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	b, err := s.store.ReferralSource(r.Context(), pid, caseID)
+	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
 	}
-	sum, err := s.buildSummary(b)
-	if err != nil {
-		return err
-	}
+	b, sum := d.Basis, d.Summary
 	paper := paperOf(r.URL.Query().Get("paper"))
 	base := fmt.Sprintf("/participants/%d/referral?case=%d&paper=", pid, b.CaseID)
 	m := s.referralModel(r, sum, paper, base)
@@ -134,23 +128,14 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	return nil
 }
 
-// issue builds, draws and records one summary; it returns the record and
-// the PDF.
+// issue builds, draws and records one summary (referralissue); it returns
+// the record and the PDF.
 func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, format, paper string) (db.Referral, []byte, error) {
-	b, err := s.store.ReferralSource(ctx, pid, caseID)
+	d, err := s.draft(ctx, pid, caseID)
 	if err != nil {
 		return db.Referral{}, nil, err
 	}
-	sum, err := s.buildSummary(b)
-	if err != nil {
-		return db.Referral{}, nil, err
-	}
-	pdf, err := referralPDF(sum, paper)
-	if err != nil {
-		return db.Referral{}, nil, err
-	}
-	ref, err := s.store.IssueReferral(ctx, a, db.ReferralIssue{Basis: b, Summary: sum, Format: format, Paper: paper, PDFSHA256: sha256Hex(pdf)})
-	return ref, pdf, err
+	return referralissue.Record(ctx, s.store, a, d, format, paper)
 }
 
 // recorded reads an issued summary and its content back, with whether the
@@ -206,7 +191,7 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 		switch {
 		case ref.CaseID == 0:
 			rec.SignOffNote = "Made on request without a case: there is no case to refer."
-		case sum.OverRead == nil || sum.OverRead.Rhythm != "af":
+		case sum.OverRead == nil || sum.OverRead.Rhythm != overread.AF:
 			rec.SignOffNote = "The over-read in this summary does not confirm atrial fibrillation, so it cannot be signed off as a referral."
 		case !ok:
 			rec.SignOffNote = "The recorded content no longer matches its digest; issue a new summary."

@@ -20,6 +20,7 @@ import (
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 )
@@ -100,7 +101,7 @@ func confirmAF(t *testing.T, a *app, pid int64, rhythm string, planted string) i
 	a.exec(`INSERT INTO case_weeks (participant_id, protocol_id, week, case_id) VALUES ($1, $2, $3, $4)`, pid, proto, best, caseID)
 	a.exec(`INSERT INTO contact_attempts (case_id, participant_id, at, channel, outcome, note) VALUES ($1, $2, $3, 'phone', 'reached', $4)`,
 		caseID, pid, flagged.Add(24*time.Hour), "spoke to "+planted)
-	syn, err := ecg.Synthesize(ecg.AFRR(50, 680, uint64(pid)), ecg.SynthOptions{RateHz: 250})
+	syn, err := ecg.Synthesize(ecgtest.AFRR(50, 680, uint64(pid)), ecg.SynthOptions{RateHz: 250})
 	if err != nil {
 		t.Fatal(err)
 	}

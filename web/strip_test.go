@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/views/components"
 )
 
@@ -18,7 +19,7 @@ import (
 // detected beat (common practice; AHA/ACCF/HRS standardization
 // recommendations, Kligfield et al. 2007, from memory).
 func TestStripRendersAtTrueScale(t *testing.T) {
-	rr := ecg.SinusRR(40, 800, 1)
+	rr := ecgtest.SinusRR(40, 800, 1)
 	syn, err := ecg.Synthesize(rr, ecg.SynthOptions{RateHz: 250})
 	w := syn.Waveform
 	if err != nil {

@@ -1,12 +1,16 @@
-package ecg
+package ecg_test
 
-import "testing"
+import (
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
+	"testing"
+)
 
 // benchSignal makes a noisy sinus recording of the given length at 500 Hz.
-func benchSignal(b *testing.B, seconds float64) Waveform {
+func benchSignal(b *testing.B, seconds float64) ecg.Waveform {
 	b.Helper()
 	n := int(seconds / 0.8)
-	s, err := Synthesize(SinusRR(n, 800, 1), SynthOptions{RateHz: 500, WanderMV: 0.2, WanderHz: 0.2, Noise: true, SNRdB: 12, Seed: 1})
+	s, err := ecg.Synthesize(ecgtest.SinusRR(n, 800, 1), ecg.SynthOptions{RateHz: 500, WanderMV: 0.2, WanderHz: 0.2, Noise: true, SNRdB: 12, Seed: 1})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -17,7 +21,7 @@ func benchDetect(b *testing.B, seconds float64) {
 	w := benchSignal(b, seconds)
 	b.ResetTimer()
 	for b.Loop() {
-		if _, err := Detect(w); err != nil {
+		if _, err := ecg.Detect(w); err != nil {
 			b.Fatal(err)
 		}
 	}
@@ -32,9 +36,9 @@ func BenchmarkDetect5min(b *testing.B) { benchDetect(b, 300) }
 
 // BenchmarkSynthesize30s generates a 30 s strip at 500 Hz.
 func BenchmarkSynthesize30s(b *testing.B) {
-	rr := SinusRR(37, 800, 1)
+	rr := ecgtest.SinusRR(37, 800, 1)
 	for b.Loop() {
-		if _, err := Synthesize(rr, SynthOptions{RateHz: 500}); err != nil {
+		if _, err := ecg.Synthesize(rr, ecg.SynthOptions{RateHz: 500}); err != nil {
 			b.Fatal(err)
 		}
 	}
@@ -47,7 +51,7 @@ func BenchmarkBaselineLowPass5min(b *testing.B) {
 	w := benchSignal(b, 300)
 	b.ResetTimer()
 	for b.Loop() {
-		_ = lowPass(w.Samples)
+		_ = ecg.LowPass(w.Samples)
 	}
 	b.ReportMetric(float64(len(w.Samples))*float64(b.N)/b.Elapsed().Seconds(), "samples/s")
 }

@@ -1,7 +1,6 @@
 package ecg
 
 import (
-	"fmt"
 	"math"
 	"slices"
 )
@@ -425,9 +424,4 @@ func classify(peaks []ptPeak, mwi, bp []float64, pad, m int) ([]ptPeak, int) {
 	end := pad + bandPassDelay + m
 	catchUp(end)
 	return beats, searched
-}
-
-// String summarises a detection for logs and test output.
-func (d Detection) String() string {
-	return fmt.Sprintf("%d beats, mean HR %.1f bpm, %d by search-back", len(d.Beats), d.MeanHR, d.SearchBack)
 }

@@ -1,6 +1,8 @@
-package ecg
+package ecg_test
 
 import (
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"errors"
 	"fmt"
 	"math"
@@ -58,9 +60,9 @@ func matchBeats(tb testing.TB, truth, got []float64) accuracy {
 }
 
 // mustSynth generates a recording or stops the test.
-func mustSynth(tb testing.TB, rr []float64, o SynthOptions) Synthetic {
+func mustSynth(tb testing.TB, rr []float64, o ecg.SynthOptions) ecg.Synthetic {
 	tb.Helper()
-	s, err := Synthesize(rr, o)
+	s, err := ecg.Synthesize(rr, o)
 	if err != nil {
 		tb.Fatal(err)
 	}
@@ -68,9 +70,9 @@ func mustSynth(tb testing.TB, rr []float64, o SynthOptions) Synthetic {
 }
 
 // mustDetect runs the detector or stops the test.
-func mustDetect(tb testing.TB, w Waveform) Detection {
+func mustDetect(tb testing.TB, w ecg.Waveform) ecg.Detection {
 	tb.Helper()
-	d, err := Detect(w)
+	d, err := ecg.Detect(w)
 	if err != nil {
 		tb.Fatal(err)
 	}
@@ -80,29 +82,29 @@ func mustDetect(tb testing.TB, w Waveform) Detection {
 func TestDetectAccuracySynthetic(t *testing.T) {
 	type condition struct {
 		name  string
-		o     SynthOptions
+		o     ecg.SynthOptions
 		minPc float64 // required Se and +P, %
 		maxMs float64 // required largest timing error, ms; 0 = not checked
 	}
 	conditions := []condition{
 		// Clean signals: the brief's 99.5% (ours), and beats placed to within
 		// half a sample at 250 Hz.
-		{"clean", SynthOptions{}, 99.5, 2},
-		{"wander", SynthOptions{WanderMV: 0.3, WanderHz: 0.25}, 99.5, 2},
+		{"clean", ecg.SynthOptions{}, 99.5, 2},
+		{"wander", ecg.SynthOptions{WanderMV: 0.3, WanderHz: 0.25}, 99.5, 2},
 		// Moderate noise: the 99.3% the detector reached on the MIT/BIH
 		// arrhythmia database (Pan and Tompkins 1985, abstract verified),
 		// rounded down to 99%.
-		{"wander+noise 6 dB", SynthOptions{WanderMV: 0.3, WanderHz: 0.25, Noise: true, SNRdB: 6}, 99, 0},
+		{"wander+noise 6 dB", ecg.SynthOptions{WanderMV: 0.3, WanderHz: 0.25, Noise: true, SNRdB: 6}, 99, 0},
 		// Heavy noise, as strong as the ECG itself: a regression floor of
 		// ours, below the 99.3-100% seen when it was set.
-		{"wander+noise 0 dB", SynthOptions{WanderMV: 0.3, WanderHz: 0.25, Noise: true, SNRdB: 0}, 97, 0},
+		{"wander+noise 0 dB", ecg.SynthOptions{WanderMV: 0.3, WanderHz: 0.25, Noise: true, SNRdB: 0}, 97, 0},
 	}
 	rhythms := []struct {
 		name string
 		rr   func(seed uint64) []float64
 	}{
-		{"sinus", func(seed uint64) []float64 { return SinusRR(300, 800, seed) }},
-		{"AF-like", func(seed uint64) []float64 { return AFRR(300, 750, seed) }},
+		{"sinus", func(seed uint64) []float64 { return ecgtest.SinusRR(300, 800, seed) }},
+		{"AF-like", func(seed uint64) []float64 { return ecgtest.AFRR(300, 750, seed) }},
 	}
 	for _, fs := range []float64{250, 500} {
 		for _, rh := range rhythms {
@@ -133,7 +135,7 @@ func TestDetectOtherRates(t *testing.T) {
 	// The 100-200 Hz path interpolates up, 1000 Hz and 2000 Hz filter and
 	// come down; all must find every beat of a clean recording.
 	for _, fs := range []float64{100, 128, 360, 1000, 2000} {
-		s := mustSynth(t, SinusRR(60, 750, 4), SynthOptions{RateHz: fs, Seed: 4})
+		s := mustSynth(t, ecgtest.SinusRR(60, 750, 4), ecg.SynthOptions{RateHz: fs, Seed: 4})
 		d := mustDetect(t, s.Waveform)
 		a := matchBeats(t, s.RTimes, d.Times)
 		if a.fn+a.fp > 0 || a.maxAbsMs > 1000/fs {
@@ -145,7 +147,7 @@ func TestDetectOtherRates(t *testing.T) {
 func TestDetectInvertedLead(t *testing.T) {
 	// A lead with a negative QRS: the polarity comes from the band-passed
 	// signal, and the R peak becomes the trough.
-	s := mustSynth(t, AFRR(80, 700, 5), SynthOptions{RateHz: 500, Seed: 5})
+	s := mustSynth(t, ecgtest.AFRR(80, 700, 5), ecg.SynthOptions{RateHz: 500, Seed: 5})
 	for i := range s.Waveform.Samples {
 		s.Waveform.Samples[i] = -s.Waveform.Samples[i]
 	}
@@ -156,8 +158,8 @@ func TestDetectInvertedLead(t *testing.T) {
 }
 
 func TestDetectRRAndHeartRate(t *testing.T) {
-	rr := SinusRR(50, 900, 6)
-	s := mustSynth(t, rr, SynthOptions{RateHz: 250, Seed: 6})
+	rr := ecgtest.SinusRR(50, 900, 6)
+	s := mustSynth(t, rr, ecg.SynthOptions{RateHz: 250, Seed: 6})
 	d := mustDetect(t, s.Waveform)
 	if len(d.RRms) != len(rr) {
 		t.Fatalf("got %d intervals, want %d", len(d.RRms), len(rr))
@@ -183,8 +185,8 @@ func TestDetectSearchBackAfterAmplitudeDrop(t *testing.T) {
 	// The QRS shrinks to a fifth halfway through; the thresholds, tuned to
 	// the tall beats, miss the small ones until search-back finds them and
 	// the thresholds adapt.
-	rr := SinusRR(80, 800, 7)
-	s := mustSynth(t, rr, SynthOptions{RateHz: 500, Seed: 7})
+	rr := ecgtest.SinusRR(80, 800, 7)
+	s := mustSynth(t, rr, ecg.SynthOptions{RateHz: 500, Seed: 7})
 	half := len(s.Waveform.Samples) / 2
 	for i := half; i < len(s.Waveform.Samples); i++ {
 		s.Waveform.Samples[i] *= 0.2
@@ -201,9 +203,9 @@ func TestDetectSearchBackAfterAmplitudeDrop(t *testing.T) {
 
 func TestDetectTallTWaves(t *testing.T) {
 	// T waves four times the Table 1 height must not be counted as beats.
-	waves := Table1Waves()
+	waves := ecg.Table1Waves()
 	waves[4].A *= 4
-	s := mustSynth(t, SinusRR(80, 700, 8), SynthOptions{RateHz: 500, Seed: 8, Waves: waves})
+	s := mustSynth(t, ecgtest.SinusRR(80, 700, 8), ecg.SynthOptions{RateHz: 500, Seed: 8, Waves: waves})
 	a := matchBeats(t, s.RTimes, mustDetect(t, s.Waveform).Times)
 	if a.fn+a.fp > 0 {
 		t.Errorf("%v", a)
@@ -211,22 +213,22 @@ func TestDetectTallTWaves(t *testing.T) {
 }
 
 func TestDetectEdgeCases(t *testing.T) {
-	flat := Waveform{Samples: make([]float64, 5000), RateHz: 500}
-	d, err := Detect(flat)
+	flat := ecg.Waveform{Samples: make([]float64, 5000), RateHz: 500}
+	d, err := ecg.Detect(flat)
 	if err != nil || len(d.Beats) != 0 || d.MeanHR != 0 {
 		t.Errorf("flat line: got %v, %v", d, err)
 	}
-	short := mustSynth(t, []float64{800}, SynthOptions{RateHz: 250})
-	if d, err := Detect(short.Waveform); err != nil || len(d.Beats) > 2 {
+	short := mustSynth(t, []float64{800}, ecg.SynthOptions{RateHz: 250})
+	if d, err := ecg.Detect(short.Waveform); err != nil || len(d.Beats) > 2 {
 		t.Errorf("one interval: got %v, %v", d, err)
 	}
-	for _, w := range []Waveform{
+	for _, w := range []ecg.Waveform{
 		{Samples: make([]float64, 100), RateHz: 50},
 		{Samples: make([]float64, 100), RateHz: 4000},
 		{RateHz: 500},
 		{Samples: []float64{0, math.Inf(1)}, RateHz: 500},
 	} {
-		if _, err := Detect(w); !errors.Is(err, ErrRecording) {
+		if _, err := ecg.Detect(w); !errors.Is(err, ecg.ErrRecording) {
 			t.Errorf("rate %g, %d samples: got %v, want ErrRecording", w.RateHz, len(w.Samples), err)
 		}
 	}
@@ -238,7 +240,7 @@ func TestDetectRecoversFromLearningArtefact(t *testing.T) {
 	// artefact itself may count as a beat and mask the beats within 1 s of
 	// it; all others must be found.
 	const at = 1.0
-	s := mustSynth(t, SinusRR(60, 800, 9), SynthOptions{RateHz: 500, Seed: 9})
+	s := mustSynth(t, ecgtest.SinusRR(60, 800, 9), ecg.SynthOptions{RateHz: 500, Seed: 9})
 	for i := int(at * 500); i < int(at*500)+20; i++ {
 		s.Waveform.Samples[i] += 10
 	}

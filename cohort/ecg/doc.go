@@ -5,6 +5,15 @@
 // Everything here is pure: callers pass bytes in and get values back; nothing
 // reads files, the clock or the network, and nothing logs.
 //
+// # Intake
+//
+// Intake is the one entry point for a recording that reaches the study: it
+// recognises the file by its content (fileFormats lists the formats), reads
+// it, checks it, keeps the samples at the stored resolution (Microvolts),
+// detects the beats, computes the hint, and settles the recording's times,
+// length and automatic interpretation. It refuses with field messages that
+// say what is wrong and where; the store only records what it accepts.
+//
 // # Inputs
 //
 // ReadEDF reads EDF and EDF+ files (Kemp B et al. 1992; EDF+ 2003). The local
@@ -46,5 +55,7 @@
 //
 // Synthesize generates ECG from the dynamical model of McSharry PE, Clifford GD,
 // Tarassenko L, Smith LA. IEEE Trans Biomed Eng 2003;50(3):289-94, with the RR
-// intervals as input, so the true R-peak times are known.
+// intervals as input, so the true R-peak times are known; the demo uses it.
+// Package ecgtest holds what only tests use: EDF and CSV writers and
+// synthetic RR series of sinus rhythm and of atrial fibrillation.
 package ecg

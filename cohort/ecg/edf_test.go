@@ -1,6 +1,7 @@
-package ecg
+package ecg_test
 
 import (
+	"cohortdesk/cohort/ecg"
 	"encoding/binary"
 	"errors"
 	"math"
@@ -85,7 +86,7 @@ func plainSpec(tb testing.TB) edfSpec {
 }
 
 func TestReadEDFHandMadeHeader(t *testing.T) {
-	f, err := ReadEDF(plainSpec(t).bytes(t), EDFOptions{})
+	f, err := ecg.ReadEDF(plainSpec(t).bytes(t), ecg.EDFOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -97,7 +98,7 @@ func TestReadEDFHandMadeHeader(t *testing.T) {
 		t.Errorf("start: got %v, want %v", h.Start, want)
 	}
 	s := h.Signals[0]
-	want := EDFSignal{Label: "ECG I", Transducer: "AgAgCl electrode", Dimension: "uV", PhysMin: -500, PhysMax: 500,
+	want := ecg.EDFSignal{Label: "ECG I", Transducer: "AgAgCl electrode", Dimension: "uV", PhysMin: -500, PhysMax: 500,
 		DigMin: -1000, DigMax: 1000, Prefilter: "HP:0.5Hz LP:40Hz", SamplesPerRecord: 4}
 	if s != want {
 		t.Errorf("signal: got %+v, want %+v", s, want)
@@ -120,7 +121,7 @@ func TestReadEDFHandMadeHeader(t *testing.T) {
 }
 
 func TestReadEDFKeepsIdentificationApart(t *testing.T) {
-	f, err := ReadEDF(plainSpec(t).bytes(t), EDFOptions{})
+	f, err := ecg.ReadEDF(plainSpec(t).bytes(t), ecg.EDFOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -158,7 +159,7 @@ func TestReadEDFPlusSkipsAnnotations(t *testing.T) {
 		},
 		data: data,
 	}
-	f, err := ReadEDF(spec.bytes(t), EDFOptions{})
+	f, err := ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -178,13 +179,13 @@ func TestReadEDFPlusSkipsAnnotations(t *testing.T) {
 	// The same file as EDF+D with contiguous records reads; with a gap it is
 	// refused, naming the record.
 	spec.reserved = "EDF+D"
-	if _, err := ReadEDF(spec.bytes(t), EDFOptions{}); err != nil {
+	if _, err := ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{}); err != nil {
 		t.Errorf("contiguous EDF+D: %v", err)
 	}
 	spec.data = append(append(append(append([]byte{}, ann("0")...), le16(nil, 1, 2, 3)...), ann("5")...), le16(nil, 4, 5, 6)...)
-	_, err = ReadEDF(spec.bytes(t), EDFOptions{})
-	var ie *InputError
-	if !errors.Is(err, ErrUnsupported) || !errors.As(err, &ie) || ie.Record != 2 {
+	_, err = ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{})
+	var ie *ecg.InputError
+	if !errors.Is(err, ecg.ErrUnsupported) || !errors.As(err, &ie) || ie.Record != 2 {
 		t.Errorf("EDF+D with a gap: got %v", err)
 	}
 }
@@ -204,7 +205,7 @@ func TestReadEDFUnitsAndLabels(t *testing.T) {
 	for _, tt := range tests {
 		spec := plainSpec(t)
 		spec.sigs[0].dim = tt.dim
-		f, err := ReadEDF(spec.bytes(t), EDFOptions{Label: tt.label})
+		f, err := ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{Label: tt.label})
 		if err != nil {
 			t.Errorf("%s: %v", tt.dim, err)
 			continue
@@ -213,7 +214,7 @@ func TestReadEDFUnitsAndLabels(t *testing.T) {
 			t.Errorf("%s: got %g mV, want %g mV", tt.dim, got, tt.want)
 		}
 	}
-	if _, err := ReadEDF(plainSpec(t).bytes(t), EDFOptions{Label: "ECG II"}); err == nil || !strings.Contains(err.Error(), `"ECG I"`) {
+	if _, err := ecg.ReadEDF(plainSpec(t).bytes(t), ecg.EDFOptions{Label: "ECG II"}); err == nil || !strings.Contains(err.Error(), `"ECG I"`) {
 		t.Errorf("unknown label: got %v, want the available labels listed", err)
 	}
 }
@@ -223,7 +224,7 @@ func TestReadEDFUnknownRecordCount(t *testing.T) {
 	// while recording only; from memory).
 	spec := plainSpec(t)
 	spec.records = "-1"
-	f, err := ReadEDF(spec.bytes(t), EDFOptions{})
+	f, err := ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -231,7 +232,7 @@ func TestReadEDFUnknownRecordCount(t *testing.T) {
 		t.Errorf("got %d records, %d samples; want 2, 8", f.Header.Records, len(f.Waveform.Samples))
 	}
 	spec.data = spec.data[:len(spec.data)-2] // a partial last record is left out
-	f, err = ReadEDF(spec.bytes(t), EDFOptions{})
+	f, err = ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{})
 	if err != nil || f.Header.Records != 1 || len(f.Header.Warnings) != 1 {
 		t.Errorf("partial record: got %d records, warnings %q, err %v", f.Header.Records, f.Header.Warnings, err)
 	}
@@ -248,8 +249,8 @@ func TestReadEDFErrors(t *testing.T) {
 		is     error
 	}{
 		{name: "bad version", edit: func(e *edfSpec) { e.version = "1" }, field: "version", offset: 0},
-		{name: "24-bit variant", raw: func(b []byte) []byte { b[0] = 0xFF; return b }, field: "version", offset: 0, is: ErrUnsupported},
-		{name: "short file", raw: func(b []byte) []byte { return b[:100] }, field: "fixed header", offset: 100, is: ErrTruncated},
+		{name: "24-bit variant", raw: func(b []byte) []byte { b[0] = 0xFF; return b }, field: "version", offset: 0, is: ecg.ErrUnsupported},
+		{name: "short file", raw: func(b []byte) []byte { return b[:100] }, field: "fixed header", offset: 100, is: ecg.ErrTruncated},
 		{name: "non-numeric records", edit: func(e *edfSpec) { e.records = "two" }, field: "number of data records", offset: 236},
 		{name: "non-numeric duration", edit: func(e *edfSpec) { e.duration = "NaN" }, field: "duration of a data record", offset: 244},
 		{name: "zero duration", edit: func(e *edfSpec) { e.duration = "0" }, field: "duration of a data record", offset: 244},
@@ -268,7 +269,7 @@ func TestReadEDFErrors(t *testing.T) {
 		{name: "unknown dimension", edit: func(e *edfSpec) { e.sigs[0].dim = "mmHg" }, field: "physical dimension", offset: 352},
 		{name: "zero samples per record", edit: func(e *edfSpec) { e.sigs[0].spr = "0" }, field: "number of samples in each data record", offset: 472},
 		{name: "absurd rate", edit: func(e *edfSpec) { e.sigs[0].spr = "4"; e.duration = "0.00001" }, field: "number of samples in each data record", offset: 472},
-		{name: "truncated data", edit: func(e *edfSpec) { e.records = "3" }, offset: 512 + 16, record: 3, is: ErrTruncated},
+		{name: "truncated data", edit: func(e *edfSpec) { e.records = "3" }, offset: 512 + 16, record: 3, is: ecg.ErrTruncated},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -280,12 +281,12 @@ func TestReadEDFErrors(t *testing.T) {
 			if tt.raw != nil {
 				b = tt.raw(b)
 			}
-			_, err := ReadEDF(b, EDFOptions{})
-			var ie *InputError
+			_, err := ecg.ReadEDF(b, ecg.EDFOptions{})
+			var ie *ecg.InputError
 			if !errors.As(err, &ie) {
 				t.Fatalf("got %v, want an *InputError", err)
 			}
-			if !errors.Is(err, ErrFormat) {
+			if !errors.Is(err, ecg.ErrFormat) {
 				t.Errorf("%v does not match ErrFormat", err)
 			}
 			if tt.is != nil && !errors.Is(err, tt.is) {
@@ -298,127 +299,6 @@ func TestReadEDFErrors(t *testing.T) {
 				t.Errorf("message %q does not name the field", err)
 			}
 		})
-	}
-}
-
-func TestEDFRoundTrip(t *testing.T) {
-	s, err := Synthesize(SinusRR(12, 800, 3), SynthOptions{RateHz: 250, WanderMV: 0.2, WanderHz: 0.2, Seed: 1})
-	if err != nil {
-		t.Fatal(err)
-	}
-	w := s.Waveform
-	w.Label = "ECG lead I"
-	w.Start = time.Date(2025, 6, 7, 8, 9, 10, 500e6, time.UTC)
-	tests := []struct {
-		name      string
-		opt       EDFWriteOptions
-		wantStart time.Time
-	}{
-		{"EDF uV", EDFWriteOptions{}, w.Start.Truncate(time.Second)},
-		{"EDF+C mV 2 s records", EDFWriteOptions{Plus: true, Dimension: "mV", RecordSeconds: 2}, w.Start},
-		{"EDF V fixed range", EDFWriteOptions{Dimension: "V", PhysMin: -0.005, PhysMax: 0.005}, w.Start.Truncate(time.Second)},
-	}
-	for _, tt := range tests {
-		t.Run(tt.name, func(t *testing.T) {
-			b, err := EncodeEDF(w, tt.opt)
-			if err != nil {
-				t.Fatal(err)
-			}
-			f, err := ReadEDF(b, EDFOptions{})
-			if err != nil {
-				t.Fatal(err)
-			}
-			sig := f.Header.Signals[f.Header.Chosen]
-			unitMV, _ := mvPerUnit(sig.Dimension)
-			halfStep := (sig.PhysMax - sig.PhysMin) / 65535 / 2 * unitMV
-			got := f.Waveform
-			if got.RateHz != w.RateHz || got.Label != w.Label || !got.Start.Equal(tt.wantStart) {
-				t.Errorf("got rate %g label %q start %v", got.RateHz, got.Label, got.Start)
-			}
-			spr := int(w.RateHz * f.Header.RecordSeconds)
-			if wantN := (len(w.Samples) + spr - 1) / spr * spr; len(got.Samples) != wantN {
-				t.Errorf("got %d samples, want %d", len(got.Samples), wantN)
-			}
-			worst := 0.0
-			for i, v := range w.Samples {
-				worst = math.Max(worst, math.Abs(got.Samples[i]-v))
-			}
-			if worst > halfStep*(1+1e-9) {
-				t.Errorf("worst error %g mV, more than half a step %g mV", worst, halfStep)
-			}
-			if tt.opt.Plus != (f.Header.Variant == "EDF+C") {
-				t.Errorf("variant %q", f.Header.Variant)
-			}
-			if f.Identity.Patient != "X X X X" {
-				t.Errorf("patient field %q, want the EDF+ unknown form", f.Identity.Patient)
-			}
-		})
-	}
-}
-
-func TestEncodeEDFUnknownStart(t *testing.T) {
-	w := Waveform{Samples: []float64{0, 1, 0, -1}, RateHz: 4}
-	for _, plus := range []bool{false, true} {
-		b, err := EncodeEDF(w, EDFWriteOptions{Plus: plus})
-		if err != nil {
-			t.Fatal(err)
-		}
-		if got := string(b[168:184]); got != "01.01.8500.00.00" {
-			t.Errorf("plus=%v: date and time %q", plus, got)
-		}
-		f, err := ReadEDF(b, EDFOptions{})
-		if err != nil {
-			t.Fatal(err)
-		}
-		// EDF+ says "Startdate X", which reads back as unknown; plain EDF
-		// cannot say so and reads back as its placeholder date.
-		if got := f.Waveform.Start.IsZero(); got != plus {
-			t.Errorf("plus=%v: start %v", plus, f.Waveform.Start)
-		}
-	}
-}
-
-func TestEncodeEDFRefuses(t *testing.T) {
-	tests := []struct {
-		name string
-		w    Waveform
-		o    EDFWriteOptions
-	}{
-		{"no samples", Waveform{RateHz: 250}, EDFWriteOptions{}},
-		{"no rate", Waveform{Samples: []float64{1}}, EDFWriteOptions{}},
-		{"fractional samples per record", Waveform{Samples: []float64{1}, RateHz: 250.5}, EDFWriteOptions{}},
-		{"bad dimension", Waveform{Samples: []float64{1}, RateHz: 250}, EDFWriteOptions{Dimension: "mmHg"}},
-		{"NaN sample", Waveform{Samples: []float64{math.NaN()}, RateHz: 250}, EDFWriteOptions{}},
-		{"start before 1985", Waveform{Samples: []float64{1}, RateHz: 250, Start: time.Date(1980, 1, 1, 0, 0, 0, 0, time.UTC)}, EDFWriteOptions{}},
-	}
-	for _, tt := range tests {
-		if _, err := EncodeEDF(tt.w, tt.o); err == nil {
-			t.Errorf("%s: got no error", tt.name)
-		}
-	}
-}
-
-func TestFit8(t *testing.T) {
-	tests := []struct {
-		x    float64
-		dir  int
-		want string
-	}{
-		{-1234.5678, -1, "-1234.57"},
-		{1234.5678, +1, "1234.568"},
-		{0.1, 0, "0.1"},
-		{-0.0000001, 0, "0"},
-		{12345678, 0, "12345678"},
-		{-1234567.8, -1, "-1234568"},
-	}
-	for _, tt := range tests {
-		got, err := fit8(tt.x, tt.dir)
-		if err != nil || got != tt.want {
-			t.Errorf("fit8(%g, %d) = %q, %v; want %q", tt.x, tt.dir, got, err, tt.want)
-		}
-	}
-	if _, err := fit8(-123456789, 0); err == nil {
-		t.Error("fit8 of a 10-character number: got no error")
 	}
 }
 
@@ -440,7 +320,7 @@ func TestReadEDFStartYear(t *testing.T) {
 	for _, tt := range tests {
 		spec := plainSpec(t)
 		spec.date, spec.recording, spec.reserved = tt.date, tt.recording, tt.reserved
-		f, err := ReadEDF(spec.bytes(t), EDFOptions{})
+		f, err := ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{})
 		if err != nil {
 			t.Errorf("%s: %v", tt.date, err)
 			continue
@@ -451,11 +331,11 @@ func TestReadEDFStartYear(t *testing.T) {
 	}
 	spec := plainSpec(t)
 	spec.date = "02.03.yy"
-	if _, err := ReadEDF(spec.bytes(t), EDFOptions{}); err == nil {
+	if _, err := ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{}); err == nil {
 		t.Error(`"yy" in plain EDF: got no error`)
 	}
 	loc := time.FixedZone("study", 2*3600)
-	f, err := ReadEDF(plainSpec(t).bytes(t), EDFOptions{Location: loc})
+	f, err := ecg.ReadEDF(plainSpec(t).bytes(t), ecg.EDFOptions{Location: loc})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,6 +1,8 @@
-package ecg
+package ecg_test
 
 import (
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"errors"
 	"math"
 	"testing"
@@ -11,10 +13,10 @@ import (
 // tests, and cuts through them.
 func edfSeeds(tb testing.TB) [][]byte {
 	tb.Helper()
-	w := Waveform{Samples: []float64{0, 0.5, 1, -0.25, 0.125, 0, 0.1, 0.2}, RateHz: 4, Label: "ECG"}
+	w := ecg.Waveform{Samples: []float64{0, 0.5, 1, -0.25, 0.125, 0, 0.1, 0.2}, RateHz: 4, Label: "ECG"}
 	var seeds [][]byte
-	for _, o := range []EDFWriteOptions{{}, {Plus: true}, {Plus: true, Dimension: "mV", RecordSeconds: 2}} {
-		b, err := EncodeEDF(w, o)
+	for _, o := range []ecgtest.EDFWriteOptions{{}, {Plus: true}, {Plus: true, Dimension: "mV", RecordSeconds: 2}} {
+		b, err := ecgtest.EncodeEDF(w, o)
 		if err != nil {
 			tb.Fatal(err)
 		}
@@ -33,9 +35,9 @@ func FuzzReadEDF(f *testing.F) {
 		f.Add(s)
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
-		got, err := ReadEDF(data, EDFOptions{})
+		got, err := ecg.ReadEDF(data, ecg.EDFOptions{})
 		if err != nil {
-			var ie *InputError
+			var ie *ecg.InputError
 			if !errors.As(err, &ie) {
 				t.Fatalf("error %v is not an *InputError", err)
 			}
@@ -46,7 +48,7 @@ func FuzzReadEDF(f *testing.F) {
 		if sig.Annotation || len(got.Waveform.Samples) != h.Records*sig.SamplesPerRecord {
 			t.Fatalf("chose %+v, %d samples for %d records", sig, len(got.Waveform.Samples), h.Records)
 		}
-		if r := got.Waveform.RateHz; !(r >= MinFileRateHz && r <= MaxFileRateHz) {
+		if r := got.Waveform.RateHz; !(r >= ecg.MinFileRateHz && r <= ecg.MaxFileRateHz) {
 			t.Fatalf("rate %g", r)
 		}
 		for _, v := range got.Waveform.Samples {
@@ -72,11 +74,11 @@ func FuzzReadCSV(f *testing.F) {
 		f.Add([]byte(s), 500.0)
 	}
 	f.Fuzz(func(t *testing.T, data []byte, rate float64) {
-		w, err := ReadCSV(data, CSVOptions{RateHz: rate})
+		w, err := ecg.ReadCSV(data, ecg.CSVOptions{RateHz: rate})
 		if err != nil {
 			return
 		}
-		if !(w.RateHz >= MinFileRateHz && w.RateHz <= MaxFileRateHz) || len(w.Samples) == 0 {
+		if !(w.RateHz >= ecg.MinFileRateHz && w.RateHz <= ecg.MaxFileRateHz) || len(w.Samples) == 0 {
 			t.Fatalf("rate %g, %d samples", w.RateHz, len(w.Samples))
 		}
 		for _, v := range w.Samples {
@@ -88,7 +90,7 @@ func FuzzReadCSV(f *testing.F) {
 }
 
 func FuzzDetect(f *testing.F) {
-	s, err := Synthesize(AFRR(8, 700, 1), SynthOptions{RateHz: 250})
+	s, err := ecg.Synthesize(ecgtest.AFRR(8, 700, 1), ecg.SynthOptions{RateHz: 250})
 	if err != nil {
 		f.Fatal(err)
 	}
@@ -99,11 +101,11 @@ func FuzzDetect(f *testing.F) {
 	f.Add(seed, uint16(250))
 	f.Add([]byte{0, 127, 128, 255, 0}, uint16(100))
 	f.Fuzz(func(t *testing.T, data []byte, rate uint16) {
-		w := Waveform{Samples: make([]float64, len(data)), RateHz: float64(rate)}
+		w := ecg.Waveform{Samples: make([]float64, len(data)), RateHz: float64(rate)}
 		for i, b := range data {
 			w.Samples[i] = float64(int8(b)) / 100
 		}
-		d, err := Detect(w)
+		d, err := ecg.Detect(w)
 		if err != nil {
 			return
 		}

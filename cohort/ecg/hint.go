@@ -73,3 +73,16 @@ func HintText(rrMs []float64, p rr.Params) string {
 	return fmt.Sprintf("%s%s (AF-like in %d of %d %s of %d beats): normalised RMSSD %.2f, entropy %.2f, turning-point ratio %.2f.",
 		lead, pattern, s.AFLike, s.Segments, noun, q.SegmentBeats, s.MeanNRMSSD, s.MeanEntropy, s.MeanTPR)
 }
+
+// RecordingHint is the beat analysis kept with a recording: what the
+// over-reader sees beside the strip. It is a hint, never a verdict. Its JSON
+// is what the store keeps.
+type RecordingHint struct {
+	Text       string     `json:"text"`
+	Summary    rr.Summary `json:"summary"`
+	Params     rr.Params  `json:"params"`
+	Beats      int        `json:"beats"`
+	MeanHR     float64    `json:"mean_hr"`
+	SearchBack int        `json:"search_back"`
+	Warnings   []string   `json:"warnings,omitempty"`
+}

@@ -1,14 +1,16 @@
-package ecg
+package ecg_test
 
 import (
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"math"
 	"strings"
 	"testing"
 )
 
 // constant returns n samples of value v at rate fs.
-func constant(n int, fs, v float64) Waveform {
-	w := Waveform{Samples: make([]float64, n), RateHz: fs}
+func constant(n int, fs, v float64) ecg.Waveform {
+	w := ecg.Waveform{Samples: make([]float64, n), RateHz: fs}
 	for i := range w.Samples {
 		w.Samples[i] = v
 	}
@@ -23,16 +25,16 @@ func TestLayoutScales(t *testing.T) {
 	for i := 500; i < len(w.Samples); i++ {
 		w.Samples[i] = 1
 	}
-	l := Layout(w, nil, StripOptions{})
+	l := ecg.Layout(w, nil, ecg.StripOptions{})
 	if len(l.Rows) != 1 {
 		t.Fatalf("got %d rows, want 1", len(l.Rows))
 	}
 	row := l.Rows[0]
-	var before, after Point
+	var before, after ecg.Point
 	for _, p := range row.Trace {
 		if p.X < 10+25-0.01 {
 			before = p
-		} else if after == (Point{}) {
+		} else if after == (ecg.Point{}) {
 			after = p
 		}
 	}
@@ -61,7 +63,7 @@ func TestLayoutRows(t *testing.T) {
 	}
 	for _, tt := range tests {
 		n := int(math.Round(tt.seconds * tt.fs))
-		l := Layout(constant(n, tt.fs, 0.3), nil, StripOptions{})
+		l := ecg.Layout(constant(n, tt.fs, 0.3), nil, ecg.StripOptions{})
 		if len(l.Rows) != tt.rows {
 			t.Errorf("%g s at %g Hz: %d rows, want %d", tt.seconds, tt.fs, len(l.Rows), tt.rows)
 			continue
@@ -84,11 +86,11 @@ func TestLayoutRows(t *testing.T) {
 }
 
 func TestLayoutCalibrationPulse(t *testing.T) {
-	l := Layout(constant(2500, 250, 0), nil, StripOptions{})
+	l := ecg.Layout(constant(2500, 250, 0), nil, ecg.StripOptions{})
 	c := l.Rows[0].Calibration
 	base := l.Rows[0].BaselineMM
 	// 1 mV for 200 ms: 10 mm tall and 5 mm wide.
-	want := []Point{{0, base}, {2.5, base}, {2.5, base - 10}, {7.5, base - 10}, {7.5, base}, {10, base}}
+	want := []ecg.Point{{0, base}, {2.5, base}, {2.5, base - 10}, {7.5, base - 10}, {7.5, base}, {10, base}}
 	if len(c) != len(want) {
 		t.Fatalf("got %v, want %v", c, want)
 	}
@@ -106,14 +108,14 @@ func TestLayoutDecimationKeepsPeaks(t *testing.T) {
 	w := constant(10000, fs, 0)
 	w.Samples[4321] = 1.2
 	w.Samples[7000] = -0.7
-	l := Layout(w, []int{4321, 12345}, StripOptions{})
+	l := ecg.Layout(w, []int{4321, 12345}, ecg.StripOptions{})
 	row := l.Rows[0]
 	if max := 2 * int(math.Ceil(250/0.2)); len(row.Trace) > max {
 		t.Errorf("%d points, want at most %d", len(row.Trace), max)
 	}
-	var top, bottom Point
+	var top, bottom ecg.Point
 	for _, p := range row.Trace {
-		if p.Y < top.Y || top == (Point{}) {
+		if p.Y < top.Y || top == (ecg.Point{}) {
 			top = p
 		}
 		if p.Y > bottom.Y {
@@ -140,7 +142,7 @@ func TestLayoutClipping(t *testing.T) {
 	w := constant(2500, 250, 0)
 	w.Samples[100] = 5 // 50 mm above the baseline of a 30 mm row
 	w.Samples[200] = -3
-	row := Layout(w, nil, StripOptions{}).Rows[0]
+	row := ecg.Layout(w, nil, ecg.StripOptions{}).Rows[0]
 	if row.Clipped != 2 {
 		t.Errorf("clipped %d points, want 2", row.Clipped)
 	}
@@ -155,11 +157,11 @@ func TestLayoutOptions(t *testing.T) {
 	// 50 mm/s and 20 mm/mV double both scales; short rows of 5 s.
 	w := constant(5000, 500, 0)
 	w.Samples[250] = 1
-	l := Layout(w, nil, StripOptions{SpeedMMPerS: 50, GainMMPerMV: 20, RowSeconds: 5, RowHeightMM: 50})
+	l := ecg.Layout(w, nil, ecg.StripOptions{SpeedMMPerS: 50, GainMMPerMV: 20, RowSeconds: 5, RowHeightMM: 50})
 	if len(l.Rows) != 2 || l.WidthMM != 10+250 {
 		t.Fatalf("rows %d width %g", len(l.Rows), l.WidthMM)
 	}
-	var spike Point
+	var spike ecg.Point
 	for _, p := range l.Rows[0].Trace {
 		if p.Y < 25 {
 			spike = p
@@ -168,29 +170,29 @@ func TestLayoutOptions(t *testing.T) {
 	if math.Abs(spike.X-(10+25)) > 1e-9 || math.Abs(spike.Y-(25-20)) > 1e-9 {
 		t.Errorf("spike at %v, want (35, 5)", spike)
 	}
-	if got := Layout(Waveform{Samples: []float64{1}}, nil, StripOptions{}); len(got.Rows) != 0 {
+	if got := ecg.Layout(ecg.Waveform{Samples: []float64{1}}, nil, ecg.StripOptions{}); len(got.Rows) != 0 {
 		t.Errorf("no rate: %d rows", len(got.Rows))
 	}
 }
 
 func TestPathD(t *testing.T) {
 	tests := []struct {
-		in   []Point
+		in   []ecg.Point
 		want string
 	}{
 		{nil, ""},
-		{[]Point{{1, 2}}, "M1.00,2.00"},
-		{[]Point{{0, 15}, {0.2, 14.456}, {0.4, -0.001}, {10.005, 3}}, "M0.00,15.00L0.20,14.46 0.40,0.00 10.01,3.00"},
+		{[]ecg.Point{{1, 2}}, "M1.00,2.00"},
+		{[]ecg.Point{{0, 15}, {0.2, 14.456}, {0.4, -0.001}, {10.005, 3}}, "M0.00,15.00L0.20,14.46 0.40,0.00 10.01,3.00"},
 	}
 	for _, tt := range tests {
-		if got := PathD(tt.in); got != tt.want {
+		if got := ecg.PathD(tt.in); got != tt.want {
 			t.Errorf("PathD(%v) = %q, want %q", tt.in, got, tt.want)
 		}
 	}
 	// A whole 10 s row stays compact: about 14 bytes per point.
-	s := mustSynth(t, SinusRR(12, 800, 1), SynthOptions{RateHz: 500})
-	row := Layout(s.Waveform, nil, StripOptions{}).Rows[0]
-	d := PathD(row.Trace)
+	s := mustSynth(t, ecgtest.SinusRR(12, 800, 1), ecg.SynthOptions{RateHz: 500})
+	row := ecg.Layout(s.Waveform, nil, ecg.StripOptions{}).Rows[0]
+	d := ecg.PathD(row.Trace)
 	if strings.Count(d, ",") != len(row.Trace) || len(d) > 15*len(row.Trace) {
 		t.Errorf("%d points gave %d bytes", len(row.Trace), len(d))
 	}

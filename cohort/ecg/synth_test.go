@@ -1,6 +1,8 @@
-package ecg
+package ecg_test
 
 import (
+	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/ecg/ecgtest"
 	"math"
 	"slices"
 	"testing"
@@ -8,22 +10,22 @@ import (
 
 func TestTable1Waves(t *testing.T) {
 	// McSharry et al. 2003, Table 1 (verified, secondary; check-values.md).
-	want := []Wave{
+	want := []ecg.Wave{
 		{"P", -math.Pi / 3, 1.2, 0.25},
 		{"Q", -math.Pi / 12, -5.0, 0.1},
 		{"R", 0, 30.0, 0.1},
 		{"S", math.Pi / 12, -7.5, 0.1},
 		{"T", math.Pi / 2, 0.75, 0.4},
 	}
-	if got := Table1Waves(); !slices.Equal(got, want) {
+	if got := ecg.Table1Waves(); !slices.Equal(got, want) {
 		t.Errorf("got %v, want %v", got, want)
 	}
 }
 
 func TestSynthesizeRPeaksAtTrueTimes(t *testing.T) {
-	rr := AFRR(40, 700, 11)
+	rr := ecgtest.AFRR(40, 700, 11)
 	const fs = 1000
-	s := mustSynth(t, rr, SynthOptions{RateHz: fs})
+	s := mustSynth(t, rr, ecg.SynthOptions{RateHz: fs})
 	if len(s.RTimes) != len(rr)+1 {
 		t.Fatalf("got %d R times, want %d", len(s.RTimes), len(rr)+1)
 	}
@@ -61,9 +63,9 @@ func TestSynthesizeRK4Order(t *testing.T) {
 	// A constant 800 ms RR at 100 Hz puts every change of phase speed on the
 	// sample grid, so halving hMax halves every step.
 	rr := []float64{800, 800, 800, 800, 800, 800}
-	o := SynthOptions{RateHz: 100}
+	o := ecg.SynthOptions{RateHz: 100}
 	run := func(h float64) []float64 {
-		s, err := synthesize(rr, o, h)
+		s, err := ecg.SynthesizeStep(rr, o, h)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -87,10 +89,10 @@ func TestSynthesizeRK4Order(t *testing.T) {
 }
 
 func TestSynthesizeAmplitudeAndNoise(t *testing.T) {
-	rr := SinusRR(100, 800, 13)
-	s := mustSynth(t, rr, SynthOptions{RateHz: 500, Noise: true, SNRdB: 10, Seed: 3})
+	rr := ecgtest.SinusRR(100, 800, 13)
+	s := mustSynth(t, rr, ecg.SynthOptions{RateHz: 500, Noise: true, SNRdB: 10, Seed: 3})
 	// R height above the isoelectric level (the median) is about 1 mV.
-	base := median(s.Clean)
+	base := ecg.Median(s.Clean)
 	for k, rt := range s.RTimes {
 		h := s.Clean[int(math.Round(rt*500))] - base
 		if math.Abs(h-1) > 0.1 {
@@ -121,8 +123,8 @@ func TestSynthesizeAmplitudeAndNoise(t *testing.T) {
 }
 
 func TestSynthesizeWanderAndSeed(t *testing.T) {
-	rr := SinusRR(20, 800, 14)
-	o := SynthOptions{RateHz: 250, WanderMV: 0.25, WanderHz: 0.2, Noise: true, SNRdB: 20, Seed: 5}
+	rr := ecgtest.SinusRR(20, 800, 14)
+	o := ecg.SynthOptions{RateHz: 250, WanderMV: 0.25, WanderHz: 0.2, Noise: true, SNRdB: 20, Seed: 5}
 	a, b := mustSynth(t, rr, o), mustSynth(t, rr, o)
 	if !slices.Equal(a.Waveform.Samples, b.Waveform.Samples) {
 		t.Error("the same seed gave different signals")
@@ -148,77 +150,18 @@ func TestSynthesizeRefuses(t *testing.T) {
 	tests := []struct {
 		name string
 		rr   []float64
-		o    SynthOptions
+		o    ecg.SynthOptions
 	}{
-		{"no intervals", nil, SynthOptions{}},
-		{"NaN interval", []float64{800, math.NaN()}, SynthOptions{}},
-		{"interval too short", []float64{800, 50}, SynthOptions{}},
-		{"interval under a quarter of the mean", []float64{2000, 2000, 2000, 300}, SynthOptions{}},
-		{"rate too low", []float64{800}, SynthOptions{RateHz: 10}},
-		{"no waves with amplitude", []float64{800}, SynthOptions{Waves: []Wave{{"R", 0, 0, 0.1}}}},
+		{"no intervals", nil, ecg.SynthOptions{}},
+		{"NaN interval", []float64{800, math.NaN()}, ecg.SynthOptions{}},
+		{"interval too short", []float64{800, 50}, ecg.SynthOptions{}},
+		{"interval under a quarter of the mean", []float64{2000, 2000, 2000, 300}, ecg.SynthOptions{}},
+		{"rate too low", []float64{800}, ecg.SynthOptions{RateHz: 10}},
+		{"no waves with amplitude", []float64{800}, ecg.SynthOptions{Waves: []ecg.Wave{{"R", 0, 0, 0.1}}}},
 	}
 	for _, tt := range tests {
-		if _, err := Synthesize(tt.rr, tt.o); err == nil {
+		if _, err := ecg.Synthesize(tt.rr, tt.o); err == nil {
 			t.Errorf("%s: got no error", tt.name)
-		}
-	}
-}
-
-// nrmssd is RMSSD / mean RR, computed here so this test does not lean on
-// package rr.
-func nrmssd(rr []float64) float64 {
-	s, m := 0.0, 0.0
-	for i, v := range rr {
-		m += v
-		if i > 0 {
-			s += (v - rr[i-1]) * (v - rr[i-1])
-		}
-	}
-	return math.Sqrt(s/float64(len(rr)-1)) / (m / float64(len(rr)))
-}
-
-func TestRRGenerators(t *testing.T) {
-	const n = 4000
-	sinus := SinusRR(n, 800, 1)
-	af := AFRR(n, 750, 1)
-	mean := func(x []float64) float64 {
-		s := 0.0
-		for _, v := range x {
-			s += v
-		}
-		return s / float64(len(x))
-	}
-	if m := mean(sinus); math.Abs(m-800) > 8 {
-		t.Errorf("sinus mean %.1f ms, want 800 +- 8", m)
-	}
-	if m := mean(af); math.Abs(m-750) > 20 {
-		t.Errorf("AF mean %.1f ms, want 750 +- 20", m)
-	}
-	// The beat-interval method calls a segment irregular above a normalised
-	// RMSSD of 0.1 (rr-api.md, from memory): the sinus series must sit well
-	// below, the AF series well above.
-	if v := nrmssd(sinus); v > 0.05 {
-		t.Errorf("sinus normalised RMSSD %.3f, want < 0.05", v)
-	}
-	if v := nrmssd(af); v < 0.2 {
-		t.Errorf("AF normalised RMSSD %.3f, want > 0.2", v)
-	}
-	// AF intervals are independent: the lag-1 autocorrelation of n
-	// independent values has a standard error of about 1/sqrt(n) = 0.016.
-	m := mean(af)
-	num, den := 0.0, 0.0
-	for i, v := range af {
-		den += (v - m) * (v - m)
-		if i > 0 {
-			num += (v - m) * (af[i-1] - m)
-		}
-	}
-	if r := num / den; math.Abs(r) > 0.06 {
-		t.Errorf("AF lag-1 autocorrelation %.3f, want near 0", r)
-	}
-	for _, v := range af {
-		if v < 0.45*750-1e-9 || v > 2.2*750+1e-9 {
-			t.Fatalf("AF interval %.1f ms outside the clip range", v)
 		}
 	}
 }
@@ -228,8 +171,8 @@ func TestSynthesizeLiteralAmplitude(t *testing.T) {
 	// with the interval: at 120 bpm it is about half the height at 60 bpm
 	// (dz/dtheta = -sum a dtheta exp(...) / omega).
 	height := func(rrMs float64) float64 {
-		s := mustSynth(t, []float64{rrMs, rrMs, rrMs, rrMs}, SynthOptions{RateHz: 1000, LiteralAmplitude: true})
-		return s.Clean[int(math.Round(s.RTimes[2]*1000))] - median(s.Clean)
+		s := mustSynth(t, []float64{rrMs, rrMs, rrMs, rrMs}, ecg.SynthOptions{RateHz: 1000, LiteralAmplitude: true})
+		return s.Clean[int(math.Round(s.RTimes[2]*1000))] - ecg.Median(s.Clean)
 	}
 	slow, fast := height(1000), height(500)
 	if r := fast / slow; math.Abs(r-0.5) > 0.05 {

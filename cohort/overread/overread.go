@@ -14,7 +14,6 @@ package overread
 
 import (
 	"fmt"
-	"strings"
 
 	"cohortdesk/cohort"
 )
@@ -41,15 +40,6 @@ var rhythmLabels = map[Rhythm]string{
 
 // Rhythms lists the verdicts in the order the form offers them.
 func Rhythms() []Rhythm { return []Rhythm{AF, Flutter, Sinus, Other, Uninterpretable} }
-
-// ParseRhythm reads a stored or submitted verdict.
-func ParseRhythm(s string) (Rhythm, error) {
-	r := Rhythm(strings.TrimSpace(s))
-	if !r.Valid() {
-		return "", fmt.Errorf("overread: unknown rhythm %q", s)
-	}
-	return r, nil
-}
 
 // Valid reports whether r is a defined verdict.
 func (r Rhythm) Valid() bool { _, ok := rhythmLabels[r]; return ok }
@@ -80,14 +70,8 @@ const (
 // Confidences lists the levels in the order the form offers them.
 func Confidences() []Confidence { return []Confidence{Certain, Probable, Uncertain} }
 
-// ParseConfidence reads a stored or submitted confidence.
-func ParseConfidence(s string) (Confidence, error) {
-	c := Confidence(strings.TrimSpace(s))
-	if c != Certain && c != Probable && c != Uncertain {
-		return "", fmt.Errorf("overread: unknown confidence %q", s)
-	}
-	return c, nil
-}
+// Valid reports whether c is a defined level.
+func (c Confidence) Valid() bool { return c == Certain || c == Probable || c == Uncertain }
 
 // Label is the wording on pages.
 func (c Confidence) Label() string { return string(c) }
@@ -118,18 +102,8 @@ var autoLabels = map[Auto]string{
 // Autos lists the automatic interpretations in the order the form offers them.
 func Autos() []Auto { return []Auto{AutoNone, AutoAF, AutoSinus, AutoUnclassified, AutoUnreadable} }
 
-// ParseAuto reads a stored or submitted automatic interpretation; an empty
-// value is AutoNone.
-func ParseAuto(s string) (Auto, error) {
-	a := Auto(strings.TrimSpace(s))
-	if a == "" {
-		return AutoNone, nil
-	}
-	if _, ok := autoLabels[a]; !ok {
-		return "", fmt.Errorf("overread: unknown automatic interpretation %q", s)
-	}
-	return a, nil
-}
+// Valid reports whether a is a defined automatic interpretation.
+func (a Auto) Valid() bool { _, ok := autoLabels[a]; return ok }
 
 // Label is the wording on pages.
 func (a Auto) Label() string {
@@ -161,6 +135,20 @@ func (r Role) Label() string {
 		return "adjudication"
 	}
 	return fmt.Sprintf("%q", string(r))
+}
+
+// ReaderLabel words who gave a reading of this role, as a referral summary
+// names the reader of its verdict.
+func (r Role) ReaderLabel() string {
+	switch r {
+	case First:
+		return "first reader"
+	case Second:
+		return "second reader"
+	case Adjudication:
+		return "adjudication (the first two readers disagreed)"
+	}
+	return r.Label()
 }
 
 // Reading is one entered over-read.
@@ -319,7 +307,7 @@ func Check(existing []Reading, next Reading) error {
 	var ve cohort.ValidationError
 	switch {
 	case !next.Rhythm.Valid():
-		ve.Add("rhythm", "choose the rhythm you see")
+		ve.Add("rhythm", chooseRhythm)
 	}
 	switch {
 	case want == "":

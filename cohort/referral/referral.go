@@ -11,10 +11,7 @@
 package referral
 
 import (
-	"crypto/sha256"
-	"encoding/hex"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -24,18 +21,11 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
-	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/stats"
 )
-
-// FormatVersion is the version of the Summary's JSON shape. A recorded
-// summary of another version is refused rather than drawn wrongly.
-const FormatVersion = 1
-
-// ErrInvalid marks a Source or recorded content Build or Decode cannot use.
-var ErrInvalid = errors.New("invalid referral summary input")
 
 // Source is everything the store gathers for one summary. It holds
 // identifiers (the study ID, the birth date, exact times); only Build's
@@ -101,170 +91,21 @@ type Week struct {
 
 // Recording is an ECG recording as stored.
 type Recording struct {
-	TakenAt            time.Time
-	DurationS          float64
-	RateHz             float64
-	Samples            []float64 // millivolts
-	Beats              []int     // detected R peaks, sample indices
-	AutoInterpretation string    // none, af, sinus, unclassified, unreadable
+	TakenAt   time.Time
+	DurationS float64
+	RateHz    float64
+	Samples   []float64     // millivolts
+	Beats     []int         // detected R peaks, sample indices
+	Auto      overread.Auto // the recorder's own interpretation
 }
 
 // OverRead is the effective over-read of the recording: the adjudication
 // when there is one, else the first reader's.
 type OverRead struct {
-	Role       string // first or adjudication
-	Rhythm     string // af, flutter, sinus, other, uninterpretable
-	Confidence string // certain, probable, uncertain
+	Role       overread.Role // first or adjudication
+	Rhythm     overread.Rhythm
+	Confidence overread.Confidence
 	ReadOn     cohort.Date
-}
-
-// Summary is the de-identified content of a referral summary. Its JSON is
-// what is recorded when a summary is issued; its top-level fields are the
-// allow-list deid.ReferralSummary.
-type Summary struct {
-	FormatVersion  int            `json:"format_version"`
-	ReferralCode   string         `json:"referral_code"`
-	IssuedStudyDay int            `json:"issued_study_day"`
-	Protocol       string         `json:"protocol"`
-	AgeBand        string         `json:"age_band"`
-	Sex            string         `json:"sex"`
-	FlaggedWeeks   []WeekView     `json:"flagged_weeks"`
-	HeartRate      *HeartRateView `json:"heart_rate"`
-	Recording      *RecordingView `json:"recording"`
-	OverRead       *OverReadView  `json:"over_read"`
-	Risk           RiskView       `json:"risk"`
-	ContactRoute   string         `json:"contact_route"`
-	Cautions       []string       `json:"cautions"`
-}
-
-// WeekView is a flagged week as the summary shows it.
-type WeekView struct {
-	StudyWeek     int      `json:"study_week"`
-	FirstDay      int      `json:"first_study_day"`
-	LastDay       int      `json:"last_study_day"`
-	Verdict       string   `json:"verdict"`
-	Reason        string   `json:"reason"`
-	WearHours     float64  `json:"wear_hours"`
-	Metrics       []Metric `json:"metrics"`
-	MostIrregular bool     `json:"most_irregular"`
-}
-
-// Metric is one labelled figure of a week.
-type Metric struct {
-	Label string `json:"label"`
-	Value string `json:"value"`
-}
-
-// HeartRateView is the heart rate of the most irregular week in bins, with
-// time as minutes from the start of the study week: no clock times or dates.
-type HeartRateView struct {
-	StudyWeek     int     `json:"study_week"`
-	FirstStudyDay int     `json:"first_study_day"`
-	Minutes       int     `json:"minutes"` // length of the week
-	BinMinutes    int     `json:"bin_minutes"`
-	Bins          []HRBin `json:"bins"`
-	Readings      int     `json:"readings"`
-	// WindowMinutes is the window size whose irregular windows Irregular
-	// marks (the size with the largest irregular share that week); 0 when
-	// none is marked.
-	WindowMinutes int    `json:"window_minutes"`
-	Irregular     []Span `json:"irregular"`
-}
-
-// HRBin is the lowest and highest heart rate within one bin, in bpm.
-type HRBin struct {
-	Minute int `json:"minute"` // start of the bin
-	Min    int `json:"min"`
-	Max    int `json:"max"`
-}
-
-// Span is a stretch of the week in minutes, [From, To).
-type Span struct {
-	From int `json:"from"`
-	To   int `json:"to"`
-}
-
-// RecordingView is the ECG strip shown: at most MaxStripSeconds of the
-// recording, in microvolts.
-type RecordingView struct {
-	StudyDay           int     `json:"study_day"`
-	DurationS          float64 `json:"duration_s"`
-	AutoInterpretation string  `json:"auto_interpretation"`
-	RateHz             float64 `json:"rate_hz"`
-	ShownSeconds       float64 `json:"shown_seconds"`
-	MicroVolts         []int16 `json:"microvolts"`
-	Beats              []int   `json:"beats"`
-}
-
-// OverReadView is the over-read verdict with its date as a study day.
-type OverReadView struct {
-	Rhythm      string `json:"rhythm"` // stored value, e.g. af
-	RhythmLabel string `json:"rhythm_label"`
-	Reader      string `json:"reader"`
-	Confidence  string `json:"confidence"`
-	StudyDay    int    `json:"study_day"`
-}
-
-// RiskView is the stroke-risk part, for physician review.
-type RiskView struct {
-	Note    string      `json:"note"`
-	Factors []Factor    `json:"factors"`
-	Scores  []ScoreView `json:"scores"`
-}
-
-// Factor is one intake answer.
-type Factor struct {
-	Label  string `json:"label"`
-	Answer string `json:"answer"`
-}
-
-// ScoreView is one score with its items and source.
-type ScoreView struct {
-	Name       string     `json:"name"`
-	Source     string     `json:"source"`
-	Points     int        `json:"points"`
-	UpperBound int        `json:"upper_bound"`
-	Max        int        `json:"max"`
-	Complete   bool       `json:"complete"`
-	Items      []ItemView `json:"items"`
-	Unknown    []string   `json:"unknown"`
-	// StrokeRate is the adjusted annual stroke rate of the score in its
-	// derivation cohort, for CHA2DS2-VASc when complete; else "".
-	StrokeRate string `json:"stroke_rate"`
-}
-
-// ItemView is one item that added points.
-type ItemView struct {
-	Code   string `json:"code"`
-	Label  string `json:"label"`
-	Points int    `json:"points"`
-}
-
-// Layout constants of the summary. Ours.
-const (
-	// MaxStripSeconds is the most of a recording the strip shows: the 30 s
-	// a diagnosis of AF needs (2020 ESC AF guidelines; verified, secondary).
-	MaxStripSeconds = 30
-	// HRBinMinutes is the width of a heart-rate bin.
-	HRBinMinutes = 10
-)
-
-// Sources of the scores, printed beside them.
-const (
-	SourceVASc = "Lip GYH, Nieuwlaat R, Pisters R, Lane DA, Crijns HJGM. Chest 2010;137:263-72"
-	SourceVA   = "2024 ESC guidelines for the management of atrial fibrillation"
-	// RiskNote is printed above the scores.
-	RiskNote = "For physician review. Computed from the participant's own answers to the study's intake survey, not checked against medical records. The study does not treat; whether to start anticoagulation is the physician's decision."
-)
-
-// StripOptions lay the strip out at true scale (25 mm/s, 10 mm/mV) in rows
-// of 6 s, so a row of 150 mm plus its calibration margin fits the printable
-// width of both A4 and US Letter.
-func StripOptions() ecg.StripOptions {
-	o := ecg.DefaultStripOptions()
-	o.RowSeconds = 6
-	o.RowHeightMM = 25
-	return o
 }
 
 // Build applies the de-identification rules to a Source. It fails when the
@@ -319,8 +160,8 @@ func Build(src Source, secret []byte) (Summary, error) {
 		s.Recording = recordingView(*src.Recording, src.EnrolledOn, loc)
 	}
 	if o := src.OverRead; o != nil {
-		s.OverRead = &OverReadView{Rhythm: o.Rhythm, RhythmLabel: RhythmLabel(o.Rhythm), Reader: readerLabel(o.Role),
-			Confidence: o.Confidence, StudyDay: deid.StudyTimeOf(src.EnrolledOn, o.ReadOn).Day}
+		s.OverRead = &OverReadView{Rhythm: o.Rhythm, RhythmLabel: o.Rhythm.Label(), Reader: o.Role.ReaderLabel(),
+			Confidence: o.Confidence.Label(), StudyDay: deid.StudyTimeOf(src.EnrolledOn, o.ReadOn).Day}
 	}
 	in := src.Intake
 	in.Age, in.AgeKnown, in.Sex = age.Years, ageKnown, src.Sex
@@ -375,286 +216,7 @@ func checkFields(s Summary) error {
 	return deid.CheckFields(deid.ReferralSummary, keys)
 }
 
-// irregularity orders weeks for MostIrregular: the largest share of
-// irregular windows over the window sizes, then the irregular windows, then
-// the AF-like beat-interval segments.
-type irregularity struct {
-	share     float64
-	irregular int
-	afLike    int
-}
-
-func irregularityOf(r screen.Result) irregularity {
-	var x irregularity
-	for _, w := range r.Windows {
-		x.share = max(x.share, w.Share)
-		x.irregular += w.Irregular
-	}
-	if r.RR != nil {
-		x.afLike = r.RR.AFLike
-	}
-	return x
-}
-
-func (x irregularity) above(y irregularity) bool {
-	switch {
-	case x.share != y.share:
-		return x.share > y.share
-	case x.irregular != y.irregular:
-		return x.irregular > y.irregular
-	}
-	return x.afLike > y.afLike
-}
-
-// MostIrregular returns the index of the week whose result is most
-// irregular (see irregularity), the earliest of equals; -1 for none.
-func MostIrregular(weeks []Week) int {
-	best := -1
-	var bx irregularity
-	for i, w := range weeks {
-		x := irregularityOf(w.Result)
-		if best < 0 || x.above(bx) {
-			best, bx = i, x
-		}
-	}
-	return best
-}
-
-func weekView(w Week, most bool) WeekView {
-	v := WeekView{StudyWeek: w.Week, FirstDay: 7 * w.Week, LastDay: 7*w.Week + 6, Verdict: w.Verdict, Reason: w.Reason,
-		WearHours: round(w.WearHours, 1), MostIrregular: most}
-	for _, wr := range w.Result.Windows {
-		v.Metrics = append(v.Metrics, Metric{
-			Label: fmt.Sprintf("%d-minute windows", wr.Minutes),
-			Value: fmt.Sprintf("%d of %d usable irregular (%.1f%%), longest run %d, mean MASD %.1f bpm",
-				wr.Irregular, wr.Usable, 100*wr.Share, wr.LongestRun, wr.MeanMASD),
-		})
-	}
-	if r := w.Result.RR; r != nil && r.Segments > 0 {
-		v.Metrics = append(v.Metrics, Metric{Label: "beat-interval segments",
-			Value: fmt.Sprintf("%d of %d AF-like", r.AFLike, r.Segments)})
-	}
-	return v
-}
-
-// heartRate bins the week's heart-rate readings and marks the irregular
-// windows of the window size with the largest irregular share.
-func heartRate(w *cohort.Week, wk Week, p Protocol, issued time.Time) *HeartRateView {
-	minutes := int((w.End - w.Start) / 60000)
-	h := &HeartRateView{StudyWeek: w.Week, FirstStudyDay: 7 * w.Week, Minutes: minutes, BinMinutes: HRBinMinutes}
-	byBin := map[int]*HRBin{}
-	var order []int
-	for i, t := range w.HR.T {
-		if t < w.Start || t >= w.End {
-			continue
-		}
-		v := int(w.HR.V[i])
-		if p.ParamsOK && (int32(v) < p.Params.MinBPM || int32(v) > p.Params.MaxBPM) {
-			continue // implausible readings the screen dropped too
-		}
-		m := int((t - w.Start) / 60000)
-		k := m / HRBinMinutes
-		b, ok := byBin[k]
-		if !ok {
-			b = &HRBin{Minute: k * HRBinMinutes, Min: v, Max: v}
-			byBin[k] = b
-			order = append(order, k)
-		}
-		b.Min, b.Max = min(b.Min, v), max(b.Max, v)
-		h.Readings++
-	}
-	slices.Sort(order)
-	for _, k := range order {
-		h.Bins = append(h.Bins, *byBin[k])
-	}
-	if !p.ParamsOK || len(wk.Result.Windows) != len(p.Params.Windows) {
-		return h
-	}
-	best := -1
-	for i, wr := range wk.Result.Windows {
-		if wr.Irregular > 0 && (best < 0 || wr.Share > wk.Result.Windows[best].Share) {
-			best = i
-		}
-	}
-	if best < 0 {
-		return h
-	}
-	rule := p.Params.Windows[best]
-	threshold := wk.Result.Windows[best].Threshold
-	if !(threshold > 0) {
-		threshold = rule.MASDThreshold
-	}
-	cleaned, _ := screen.Clean(w, p.Params, issued.UnixMilli())
-	sums := screen.SummariseWindows(nil, &cleaned, rule.Minutes)
-	h.WindowMinutes = rule.Minutes
-	for i, s := range sums {
-		if !irregularWindow(rule, s, threshold) {
-			continue
-		}
-		from, to := i*rule.Minutes, min((i+1)*rule.Minutes, minutes)
-		if n := len(h.Irregular); n > 0 && h.Irregular[n-1].To == from {
-			h.Irregular[n-1].To = to // adjacent windows draw as one band
-			continue
-		}
-		h.Irregular = append(h.Irregular, Span{From: from, To: to})
-	}
-	return h
-}
-
-// irregularWindow applies the screen's window tests in their order (see
-// screen.WindowResult): usable (enough readings, no long gap, not active)
-// and at or above the threshold.
-func irregularWindow(r screen.WindowRule, s screen.WindowSummary, threshold float64) bool {
-	return s.N >= int32(r.MinReadings) && s.N >= 2 && int64(s.MaxGap) <= int64(r.MaxGapSeconds)*1000 &&
-		s.Steps <= float64(r.MaxSteps) && s.MASD() >= threshold
-}
-
-func recordingView(r Recording, enrolled cohort.Date, loc *time.Location) *RecordingView {
-	v := &RecordingView{StudyDay: deid.StudyTimeAt(enrolled, loc, r.TakenAt).Day, DurationS: round(r.DurationS, 1),
-		AutoInterpretation: AutoLabel(r.AutoInterpretation), RateHz: r.RateHz}
-	if !(r.RateHz > 0) || len(r.Samples) == 0 {
-		return v
-	}
-	n := min(len(r.Samples), int(math.Round(MaxStripSeconds*r.RateHz)))
-	v.ShownSeconds = round(float64(n)/r.RateHz, 2)
-	v.MicroVolts = make([]int16, n)
-	for i, mv := range r.Samples[:n] {
-		uv := math.Round(mv * 1000)
-		v.MicroVolts[i] = int16(max(math.MinInt16, min(math.MaxInt16, uv)))
-	}
-	for _, b := range r.Beats {
-		if b >= 0 && b < n {
-			v.Beats = append(v.Beats, b)
-		}
-	}
-	slices.Sort(v.Beats)
-	return v
-}
-
-// Waveform is the shown part of the recording in millivolts, for drawing.
-func (r RecordingView) Waveform() ecg.Waveform {
-	mv := make([]float64, len(r.MicroVolts))
-	for i, v := range r.MicroVolts {
-		mv[i] = float64(v) / 1000
-	}
-	return ecg.Waveform{Samples: mv, RateHz: r.RateHz}
-}
-
-// Strip lays the shown recording out on ECG paper with StripOptions.
-func (r RecordingView) Strip() ecg.StripLayout {
-	return ecg.Layout(r.Waveform(), r.Beats, StripOptions())
-}
-
-// RhythmLabel words a stored over-read rhythm.
-func RhythmLabel(rhythm string) string {
-	switch rhythm {
-	case "af":
-		return "atrial fibrillation"
-	case "flutter":
-		return "atrial flutter"
-	case "sinus":
-		return "sinus rhythm"
-	case "other":
-		return "other arrhythmia"
-	case "uninterpretable":
-		return "uninterpretable"
-	}
-	return rhythm
-}
-
-func readerLabel(role string) string {
-	if role == "adjudication" {
-		return "adjudication (the first two readers disagreed)"
-	}
-	return "first reader"
-}
-
-// AutoLabel words the recorder's own automatic interpretation.
-func AutoLabel(v string) string {
-	switch v {
-	case "", "none":
-		return "none given"
-	case "af":
-		return "possible AF"
-	}
-	return v
-}
-
-func riskView(in risk.Intake, band, sex string) RiskView {
-	v := RiskView{Note: RiskNote}
-	v.Factors = []Factor{
-		{"Age band", band},
-		{"Sex", sex},
-		{"Congestive heart failure", in.HeartFailure.String()},
-		{"Hypertension", in.Hypertension.String()},
-		{"Diabetes", in.Diabetes.String()},
-		{"Prior stroke, TIA or thromboembolism", in.StrokeTIA.String()},
-		{"Vascular disease (prior MI, peripheral artery disease, aortic plaque)", in.Vascular.String()},
-	}
-	for _, sc := range []struct {
-		s      risk.Score
-		source string
-	}{{risk.CHA2DS2VASc(in), SourceVASc}, {risk.CHA2DS2VA(in), SourceVA}} {
-		sv := ScoreView{Name: sc.s.Name, Source: sc.source, Points: sc.s.Points, UpperBound: sc.s.UpperBound, Max: sc.s.Max, Complete: sc.s.Complete}
-		for _, it := range sc.s.Contributed {
-			sv.Items = append(sv.Items, ItemView{Code: it.Code, Label: it.Label, Points: it.Points})
-		}
-		for _, it := range sc.s.Unknown {
-			sv.Unknown = append(sv.Unknown, it.Label)
-		}
-		if sc.s.Name == "CHA2DS2-VASc" && sc.s.Complete {
-			if rate, ok := risk.AnnualStrokeRate(sc.s.Points); ok {
-				sv.StrokeRate = fmt.Sprintf("%.1f%% a year adjusted stroke rate at this score in the cohort the score was derived from; it describes that historical cohort, not this person", rate)
-			}
-		}
-		v.Scores = append(v.Scores, sv)
-	}
-	return v
-}
-
-// ScoreText words a score's total: "3 of 9" or, with unknown items,
-// "at least 2 (up to 4) of 9".
-func (s ScoreView) ScoreText() string {
-	if s.Complete {
-		return fmt.Sprintf("%d of %d", s.Points, s.Max)
-	}
-	return fmt.Sprintf("at least %d (up to %d) of %d", s.Points, s.UpperBound, s.Max)
-}
-
 func round(x float64, decimals int) float64 {
 	p := math.Pow(10, float64(decimals))
 	return math.Round(x*p) / p
-}
-
-// Content is the JSON recorded for a summary: deterministic for equal
-// summaries, so its digest identifies the content.
-func Content(s Summary) ([]byte, error) {
-	b, err := json.Marshal(s)
-	if err != nil {
-		return nil, fmt.Errorf("referral: content: %w", err)
-	}
-	return b, nil
-}
-
-// Digest is the SHA-256 of Content(s), in hex.
-func Digest(s Summary) (string, error) {
-	b, err := Content(s)
-	if err != nil {
-		return "", err
-	}
-	sum := sha256.Sum256(b)
-	return hex.EncodeToString(sum[:]), nil
-}
-
-// Decode reads recorded content back. The database may store the JSON in
-// another key order or spacing; decoding and re-encoding gives Content again.
-func Decode(b []byte) (Summary, error) {
-	var s Summary
-	if err := json.Unmarshal(b, &s); err != nil {
-		return Summary{}, fmt.Errorf("referral: recorded content: %w: %w", err, ErrInvalid)
-	}
-	if s.FormatVersion != FormatVersion {
-		return Summary{}, fmt.Errorf("referral: recorded content has format version %d, this program draws %d: %w", s.FormatVersion, FormatVersion, ErrInvalid)
-	}
-	return s, nil
 }

@@ -1,6 +1,6 @@
 // Package referralpdf draws a referral summary (cohort/referral.Summary) as a
-// PDF on the server, without a browser. The web handlers and the demo loader
-// both issue summaries through it, so the bytes they record are the same.
+// PDF on the server, without a browser. Summaries are issued through it
+// (web/referralissue), so the bytes recorded are the bytes sent.
 package referralpdf
 
 import (

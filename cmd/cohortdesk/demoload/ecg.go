@@ -2,8 +2,6 @@ package demoload
 
 import (
 	"context"
-	"crypto/sha256"
-	"encoding/hex"
 	"fmt"
 	"time"
 
@@ -11,10 +9,9 @@ import (
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/overread"
-	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
-	"cohortdesk/views/components"
 	"cohortdesk/views/referralpdf"
+	"cohortdesk/web/referralissue"
 )
 
 var autoOf = map[demo.AutoResult]overread.Auto{
@@ -59,11 +56,11 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 	if err != nil {
 		return 0, err
 	}
-	auto := string(autoOf[r.Auto])
+	auto := autoOf[r.Auto]
 	if auto == "" {
-		auto = string(overread.AutoNone)
+		auto = overread.AutoNone
 	}
-	rec, err := cs.AddRecording(ctx, a, caseID, db.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: auto,
+	rec, err := cs.AddRecording(ctx, a, caseID, ecg.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: auto,
 		Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		return 0, fmt.Errorf("recording: %w", err)
@@ -73,41 +70,29 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 
 // addOverRead enters the scripted clinician's reading.
 func addOverRead(ctx context.Context, cs *db.Store, reader db.User, recID int64, r demo.Recording, loc *time.Location) error {
-	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: string(rhythmOf[r.OverRead]),
-		Confidence: string(overread.Certain), ReaderID: reader.ID, ReadOn: cohort.DateOf(r.ReadAt.In(loc))})
+	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: rhythmOf[r.OverRead],
+		Confidence: overread.Certain, ReaderID: reader.ID, ReadOn: cohort.DateOf(r.ReadAt.In(loc))})
 	if err != nil {
 		return fmt.Errorf("over-read: %w", err)
 	}
 	return nil
 }
 
-// refer issues the case's referral summary (drawn as the app draws it) and has
+// refer issues the case's referral summary (as the app issues it) and has
 // the investigator sign it off, which moves the case to "referred".
 func refer(ctx context.Context, cs *db.Store, issuer cohort.Actor, signer db.User, c db.Case, secret []byte, at time.Time) error {
-	b, err := cs.ReferralSource(ctx, c.ParticipantID, c.ID)
+	d, err := referralissue.Prepare(ctx, cs, c.ParticipantID, c.ID, secret, at)
 	if err != nil {
 		return err
 	}
-	b.Source.Cautions = components.CautionItems
-	b.Source.IssuedAt = at
-	sum, err := referral.Build(b.Source, secret)
-	if err != nil {
-		return err
-	}
-	if sum.OverRead == nil || sum.OverRead.Rhythm != string(overread.AF) {
+	if !d.Basis.ConfirmedAF() {
 		// The script refers some cases whose reading is not AF (atrial
 		// flutter, say); the sign-off is for confirmed AF only, so these are
 		// moved by hand as a person would, without a signed summary.
 		_, err := cs.AdvanceCase(ctx, issuer, c.ID, "referred", at, "referred by the investigator after the over-read")
 		return err
 	}
-	pdf, err := referralpdf.Render(sum, referralpdf.PaperLetter)
-	if err != nil {
-		return err
-	}
-	digest := sha256.Sum256(pdf)
-	ref, err := cs.IssueReferral(ctx, issuer, db.ReferralIssue{Basis: b, Summary: sum, Format: "pdf", Paper: referralpdf.PaperLetter,
-		PDFSHA256: hex.EncodeToString(digest[:])})
+	ref, _, err := referralissue.Record(ctx, cs, issuer, d, "pdf", referralpdf.PaperLetter)
 	if err != nil {
 		return fmt.Errorf("issue referral: %w", err)
 	}

@@ -1,6 +1,11 @@
-package ecg
+// Package ecgtest makes test input for package ecg and its callers: EDF files
+// written from a waveform and synthetic RR-interval series of sinus rhythm and
+// of atrial fibrillation. Only tests import it; the program never does.
+package ecgtest
 
 import (
+	"cohortdesk/cohort/ecg"
+
 	"bytes"
 	"encoding/binary"
 	"errors"
@@ -41,12 +46,12 @@ type EDFWriteOptions struct {
 // EDF+, "Startdate X", which ReadEDF turns back into the zero time); plain EDF
 // keeps whole seconds only, EDF+ keeps the fraction in the first record's
 // onset.
-func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
+func EncodeEDF(w ecg.Waveform, o EDFWriteOptions) ([]byte, error) {
 	if len(w.Samples) == 0 {
-		return nil, errors.New("ecg: encode edf: no samples")
+		return nil, errors.New("ecgtest: encode edf: no samples")
 	}
 	if !(w.RateHz > 0) || math.IsInf(w.RateHz, 0) {
-		return nil, fmt.Errorf("ecg: encode edf: sampling rate %g Hz", w.RateHz)
+		return nil, fmt.Errorf("ecgtest: encode edf: sampling rate %g Hz", w.RateHz)
 	}
 	dur := o.RecordSeconds
 	if dur == 0 {
@@ -54,13 +59,13 @@ func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
 	}
 	durS, err := fit8(dur, 0)
 	if err != nil || !(dur > 0) {
-		return nil, fmt.Errorf("ecg: encode edf: record duration %g s cannot be written in 8 characters", dur)
+		return nil, fmt.Errorf("ecgtest: encode edf: record duration %g s cannot be written in 8 characters", dur)
 	}
 	dur, _ = strconv.ParseFloat(durS, 64)
 	sprF := w.RateHz * dur
 	spr := int(math.Round(sprF))
 	if spr < 1 || math.Abs(sprF-float64(spr)) > 1e-9*sprF {
-		return nil, fmt.Errorf("ecg: encode edf: %g Hz x %g s is not a whole number of samples per record", w.RateHz, dur)
+		return nil, fmt.Errorf("ecgtest: encode edf: %g Hz x %g s is not a whole number of samples per record", w.RateHz, dur)
 	}
 	dim := o.Dimension
 	if dim == "" {
@@ -75,7 +80,7 @@ func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
 	case "V":
 		perMV = 0.001
 	default:
-		return nil, fmt.Errorf("ecg: encode edf: dimension %q, want uV, mV or V", dim)
+		return nil, fmt.Errorf("ecgtest: encode edf: dimension %q, want uV, mV or V", dim)
 	}
 
 	pmin, pmax := o.PhysMin, o.PhysMax
@@ -84,7 +89,7 @@ func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
 		lo, hi := math.Inf(1), math.Inf(-1)
 		for _, v := range w.Samples {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil, errors.New("ecg: encode edf: samples must be finite")
+				return nil, errors.New("ecgtest: encode edf: samples must be finite")
 			}
 			lo, hi = min(lo, v*perMV), max(hi, v*perMV)
 		}
@@ -100,13 +105,13 @@ func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
 		}
 	}
 	if err != nil {
-		return nil, fmt.Errorf("ecg: encode edf: physical range: %w", err)
+		return nil, fmt.Errorf("ecgtest: encode edf: physical range: %w", err)
 	}
 	// Quantise with the values the reader will parse, not the ones we meant.
 	pmin, _ = strconv.ParseFloat(pminS, 64)
 	pmax, _ = strconv.ParseFloat(pmaxS, 64)
 	if pmin == pmax {
-		return nil, errors.New("ecg: encode edf: physical minimum equals maximum")
+		return nil, errors.New("ecgtest: encode edf: physical minimum equals maximum")
 	}
 
 	ns := 1
@@ -149,7 +154,7 @@ func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
 	if !w.Start.IsZero() {
 		t := w.Start
 		if t.Year() < 1985 || t.Year() > 2084 {
-			return nil, fmt.Errorf("ecg: encode edf: start year %d outside 1985-2084", t.Year())
+			return nil, fmt.Errorf("ecgtest: encode edf: start year %d outside 1985-2084", t.Year())
 		}
 		dateS = fmt.Sprintf("%02d.%02d.%02d", t.Day(), int(t.Month()), t.Year()%100)
 		timeS = fmt.Sprintf("%02d.%02d.%02d", t.Hour(), t.Minute(), t.Second())
@@ -171,7 +176,7 @@ func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
 	put(recording, 80)
 	put(dateS, 8)
 	put(timeS, 8)
-	put(strconv.Itoa(edfFixedBytes+ns*edfPerSignalBytes), 8)
+	put(strconv.Itoa(256+ns*256), 8) // a fixed header of 256 bytes, then 256 per signal (EDF specification)
 	put(reserved, 44)
 	put(strconv.Itoa(nrec), 8)
 	put(durS, 8)
@@ -179,7 +184,7 @@ func EncodeEDF(w Waveform, o EDFWriteOptions) ([]byte, error) {
 	type sigHdr struct{ label, trans, dim, pmin, pmax, dmin, dmax, pre, spr string }
 	sigs := []sigHdr{{label, o.Transducer, dim, pminS, pmaxS, "-32768", "32767", o.Prefilter, strconv.Itoa(spr)}}
 	if o.Plus {
-		sigs = append(sigs, sigHdr{edfAnnotationLabel, "", "", "-1", "1", "-32768", "32767", "", strconv.Itoa(annSpr)})
+		sigs = append(sigs, sigHdr{"EDF Annotations", "", "", "-1", "1", "-32768", "32767", "", strconv.Itoa(annSpr)})
 	}
 	for _, get := range []func(sigHdr) (string, int){
 		func(s sigHdr) (string, int) { return s.label, 16 },
