@@ -452,7 +452,7 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 	} else if !(dur > 0 && dur <= MaxRecordingSeconds) {
 		ve.Add("duration_s", fmt.Sprintf("enter the duration in seconds (more than 0, at most %d), or upload the waveform", MaxRecordingSeconds))
 	}
-	if msg := TakesRecordings(c.State); msg != "" {
+	if msg := followup.TakesRecordings(c.State); msg != "" {
 		ve.Add("case", msg)
 	}
 	if err := ve.Err(); err != nil {
@@ -467,7 +467,7 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		if err != nil {
 			return err
 		}
-		if msg := TakesRecordings(cur.State); msg != "" { // changed since it was read
+		if msg := followup.TakesRecordings(cur.State); msg != "" { // changed since it was read
 			return &cohort.ValidationError{Fields: map[string]string{"case": msg}}
 		}
 		var samples, sum []byte
@@ -533,19 +533,6 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		return Recording{}, mapCaseErr("add recording", err)
 	}
 	return s.Recording(ctx, id)
-}
-
-// TakesRecordings says why a case in state st cannot take a recording, ""
-// when it can: it must be waiting for or holding recordings ("recorder
-// sent", "recording received", "over-read").
-func TakesRecordings(st followup.State) string {
-	switch {
-	case st == followup.RecorderSent || st == followup.RecordingReceived || st == followup.OverRead:
-		return ""
-	case st.Terminal():
-		return "the case is closed (" + st.Label() + "); no recording can be added"
-	}
-	return "record the recorder's shipment first: the case is " + st.Label()
 }
 
 func truncate(s string, n int) string {
@@ -689,7 +676,7 @@ func (s *Store) AddOverRead(ctx context.Context, a cohort.Actor, recordingID int
 			return err
 		}
 		if c.State == followup.RecordingReceived {
-			_, err = s.advanceCase(ctx, tx, a, caseID, followup.OverRead, dayTime(v.SettledOn, now, loc), "")
+			_, err = s.advanceCase(ctx, tx, a, caseID, followup.OverRead, followup.StepTime(v.SettledOn, now, loc), "")
 		}
 		return err
 	})

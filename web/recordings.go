@@ -60,7 +60,7 @@ func seconds(s float64) string { return strconv.FormatFloat(s, 'f', 1, 64) + " s
 // acceptsRecordings says why a case cannot take a recording now, "" when it
 // can (the store's rule, as a sentence).
 func acceptsRecordings(st followup.State) string {
-	msg := db.TakesRecordings(st)
+	msg := followup.TakesRecordings(st)
 	if msg == "" {
 		return ""
 	}
