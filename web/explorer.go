@@ -1,15 +1,14 @@
 package web
 
 import (
-	"errors"
 	"fmt"
+	"maps"
 	"math"
 	"net/http"
 	"net/url"
 	"strconv"
 	"strings"
 
-	"cohortdesk/cohort"
 	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
@@ -260,16 +259,14 @@ func (s *Server) explorerStart(w http.ResponseWriter, r *http.Request) error {
 		return nil
 	}
 	id, err := s.store.StartExploration(r.Context(), s.actor(r), pv.ID, m.Param, sweepValues(from, to, steps, cur.Kind == "int"))
-	var ve *cohort.ValidationError
-	if errors.As(err, &ve) {
-		for k, v := range ve.Fields {
-			m.Errors[k] = v
-		}
-		s.render(w, r, http.StatusUnprocessableEntity, views.Explorer(m))
-		return nil
-	}
 	if err != nil {
-		return err
+		f, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		maps.Copy(m.Errors, f.Fields)
+		s.render(w, r, f.Status, views.Explorer(m))
+		return nil
 	}
 	http.Redirect(w, r, fmt.Sprintf("/explorer?run=%d", id), http.StatusSeeOther)
 	return nil

@@ -93,7 +93,7 @@ func (s *Server) importCreate(w http.ResponseWriter, r *http.Request) error {
 		}
 		part.Close()
 	}
-	return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose a file to import.")
+	return s.renderImportForm(w, r, fieldError("file", "Choose a file to import."))
 }
 
 func uploadErr(err error) error {
@@ -104,19 +104,24 @@ func uploadErr(err error) error {
 	return err
 }
 
-func (s *Server) renderImportForm(w http.ResponseWriter, r *http.Request, status int, msg string) error {
-	s.render(w, r, status, views.ImportForm(views.ImportFormModel{Page: s.page(r, "Import wear data", "participants"), MaxBytes: humanBytes(maxUploadBytes), Error: msg}))
+// renderImportForm shows the import form again after a refusal (see refused).
+func (s *Server) renderImportForm(w http.ResponseWriter, r *http.Request, err error) error {
+	f, ok := refused(r, err, nil)
+	if !ok {
+		return err
+	}
+	s.render(w, r, f.Status, views.ImportForm(views.ImportFormModel{Page: s.page(r, "Import wear data", "participants"), MaxBytes: humanBytes(maxUploadBytes), Error: f.Message}))
 	return nil
 }
 
 func (s *Server) importPart(w http.ResponseWriter, r *http.Request, part *multipart.Part, kind string) error {
 	defer part.Close()
 	if kind != db.ImportReadingsCSV && kind != db.ImportFHIRBundle {
-		return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose the file's format.")
+		return s.renderImportForm(w, r, fieldError("kind", "Choose the file's format."))
 	}
 	name := part.FileName()
 	if name == "" {
-		return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose a file to import.")
+		return s.renderImportForm(w, r, fieldError("file", "Choose a file to import."))
 	}
 	rep, err := s.store.ImportReadings(r.Context(), s.actor(r), part, db.ImportOptions{Kind: kind, FileName: name, Size: r.ContentLength})
 	if err != nil {
