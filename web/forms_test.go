@@ -76,7 +76,9 @@ func TestFormReader(t *testing.T) {
 		t.Errorf("local time %v, want 09:15 in Tokyo (UTC+9)", got)
 	}
 	f.localTime("atbad", tokyo(t))
-	err := f.check(func() error { return &cohort.ValidationError{Fields: map[string]string{"bad": "a rule's word", "site_id": "choose a site"}} })
+	err := f.check(func() error {
+		return &cohort.ValidationError{Fields: map[string]string{"bad": "a rule's word", "site_id": "choose a site"}}
+	})
 	var ve *cohort.ValidationError
 	if !errors.As(err, &ve) {
 		t.Fatalf("check: %v", err)
