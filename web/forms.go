@@ -91,6 +91,16 @@ func fieldError(field, msg string) error {
 	return &cohort.ValidationError{Fields: map[string]string{field: msg}}
 }
 
+// uploadErr words an upload the server cut off at its size limit (413, with
+// the limit named); other errors are returned as they are.
+func uploadErr(err error) error {
+	var mbe *http.MaxBytesError
+	if errors.As(err, &mbe) {
+		return &cohort.PublicError{Message: fmt.Sprintf("the file is larger than %s; split it into several files", humanBytes(mbe.Limit)), Kind: errPayloadTooLarge}
+	}
+	return err
+}
+
 // formReader reads a submitted form into typed values. What cannot be read
 // (a date that is not a date, a number that is not a number) is kept as a
 // message beside its field; check returns them all at once.

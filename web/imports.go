@@ -96,14 +96,6 @@ func (s *Server) importCreate(w http.ResponseWriter, r *http.Request) error {
 	return s.renderImportForm(w, r, fieldError("file", "Choose a file to import."))
 }
 
-func uploadErr(err error) error {
-	var mbe *http.MaxBytesError
-	if errors.As(err, &mbe) {
-		return &cohort.PublicError{Message: fmt.Sprintf("the file is larger than %s; split it into several files", humanBytes(mbe.Limit)), Kind: errPayloadTooLarge}
-	}
-	return err
-}
-
 // renderImportForm shows the import form again after a refusal (see refused).
 func (s *Server) renderImportForm(w http.ResponseWriter, r *http.Request, err error) error {
 	f, ok := refused(r, err, nil)
@@ -196,17 +188,4 @@ func (s *Server) importRejects(w http.ResponseWriter, r *http.Request) error {
 	})
 	cw.Flush()
 	return err
-}
-
-func humanBytes(n int64) string {
-	const unit = 1024
-	if n < unit {
-		return fmt.Sprintf("%d B", n)
-	}
-	div, exp := int64(unit), 0
-	for m := n / unit; m >= unit; m /= unit {
-		div *= unit
-		exp++
-	}
-	return fmt.Sprintf("%.1f %ciB", float64(n)/float64(div), "KMGTPE"[exp])
 }

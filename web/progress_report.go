@@ -6,7 +6,6 @@ import (
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
-	"math"
 	"net/http"
 	"strconv"
 	"time"
@@ -230,15 +229,6 @@ func (t *csvTable) bytes() ([]byte, error) {
 		return nil, fmt.Errorf("web: report %s: %w", t.name, err)
 	}
 	return t.buf.Bytes(), nil
-}
-
-// num writes a number for a CSV file: fractions with six decimals, nothing
-// for an undefined value.
-func num(v float64) string {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return ""
-	}
-	return strconv.FormatFloat(v, 'f', 6, 64)
 }
 
 // reportManifest is manifest.json of the report's bundle.

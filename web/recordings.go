@@ -55,10 +55,8 @@ func verdictView(r db.Recording) (string, components.Tone) {
 	return v.Rhythm.Label(), components.Info
 }
 
-func seconds(s float64) string { return strconv.FormatFloat(s, 'f', 1, 64) + " s" }
-
 // acceptsRecordings says why a case cannot take a recording now, "" when it
-// can (the store's rule, as a sentence).
+// can (followup.TakesRecordings, as a sentence).
 func acceptsRecordings(st followup.State) string {
 	msg := followup.TakesRecordings(st)
 	if msg == "" {
