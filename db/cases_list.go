@@ -14,12 +14,24 @@ import (
 	"github.com/jackc/pgx/v5/pgtype"
 )
 
+// CaseScope is which cases the list holds when it is not narrowed to one
+// state.
+type CaseScope int
+
+// The scopes of the case list.
+const (
+	WorkingCases CaseScope = iota // still being worked (the default)
+	EndedCases                    // ended in a final state
+	AllCases
+)
+
 // CaseFilter narrows the case list.
 type CaseFilter struct {
-	State   string // "" or "working": cases still being worked; "final": ended ones; "all"; or one state's value
-	OwnerID int64  // > 0: that person's cases
-	Unowned bool   // cases nobody has taken on
-	Overdue bool   // deadline passed
+	Scope   CaseScope
+	State   followup.State // one state only; "" for every state of the scope
+	OwnerID int64          // > 0: that person's cases
+	Unowned bool           // cases nobody has taken on
+	Overdue bool           // deadline passed
 	SiteID  int
 	After   string // opaque keyset cursor from the previous page
 	Limit   int
@@ -40,18 +52,16 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	conds := []string{"true"}
 	var args []any
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
-	switch f.State {
-	case "", "working":
-		conds = append(conds, "c.closed_at IS NULL")
-	case "final":
-		conds = append(conds, "c.closed_at IS NOT NULL")
-	case "all":
-	default:
-		st, err := followup.ParseState(f.State)
-		if err != nil {
+	switch {
+	case f.State != "":
+		if !f.State.Valid() {
 			return "", nil, &cohort.ValidationError{Fields: map[string]string{"state": "choose a state from the list"}}
 		}
-		conds = append(conds, "c.state = "+arg(string(st)))
+		conds = append(conds, "c.state = "+arg(string(f.State)))
+	case f.Scope == WorkingCases:
+		conds = append(conds, "c.closed_at IS NULL")
+	case f.Scope == EndedCases:
+		conds = append(conds, "c.closed_at IS NOT NULL")
 	}
 	if f.OwnerID > 0 {
 		conds = append(conds, "c.owner_id = "+arg(f.OwnerID))

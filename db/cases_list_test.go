@@ -75,8 +75,14 @@ func TestCaseListFiltersAndPages(t *testing.T) {
 	if page, _ := f.s.Cases(ctx, db.CaseFilter{Unowned: true}); page.Total != 119 {
 		t.Fatalf("unowned filter %d", page.Total)
 	}
-	if page, _ := f.s.Cases(ctx, db.CaseFilter{State: "final"}); page.Total != 0 {
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{Scope: db.EndedCases}); page.Total != 0 {
 		t.Fatalf("final filter %d", page.Total)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{State: followup.Open}); page.Total != 120 {
+		t.Fatalf("state filter %d", page.Total)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{Scope: db.AllCases}); page.Total != 120 {
+		t.Fatalf("all cases %d", page.Total)
 	}
 	if _, err := f.s.Cases(ctx, db.CaseFilter{State: "bogus"}); err == nil {
 		t.Fatal("unknown state filter accepted")

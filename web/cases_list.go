@@ -17,7 +17,16 @@ import (
 // caseFilter reads the case list's filter from the query string.
 func caseFilter(r *http.Request, q url.Values, deid bool) (db.CaseFilter, views.CaseFilterForm) {
 	form := views.CaseFilterForm{State: q.Get("state"), Owner: q.Get("owner"), Site: q.Get("site"), Overdue: q.Get("overdue") == "on"}
-	f := db.CaseFilter{State: form.State, Overdue: form.Overdue, After: q.Get("after")}
+	f := db.CaseFilter{Overdue: form.Overdue, After: q.Get("after")}
+	switch form.State {
+	case "", "working":
+	case "final":
+		f.Scope = db.EndedCases
+	case "all":
+		f.Scope = db.AllCases
+	default:
+		f.State = followup.State(form.State) // an unknown state is refused by the store
+	}
 	f.SiteID, _ = strconv.Atoi(form.Site)
 	if !deid {
 		switch form.Owner {
