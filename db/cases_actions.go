@@ -190,18 +190,17 @@ func (s *Store) moveEdit(action followup.Edit, in MoveInput, closing bool) caseE
 }
 
 // RecordShipment records that the recorder went out (the day, the tracking
-// number) and moves a reached case to "recorder sent". On a case already in
-// "recorder sent" it corrects the day and tracking number.
+// number) and moves the case to "recorder sent": from "reached", or from
+// "recording received" for a repeat. On a case already in "recorder sent" it
+// corrects the day and tracking number.
 func (s *Store) RecordShipment(ctx context.Context, a cohort.Actor, id int64, version int, sentOn cohort.Date, tracking string) (Case, error) {
 	tracking = strings.TrimSpace(tracking)
 	return s.oneCaseEdit(ctx, a, id, version, caseEdit{
 		action: followup.EditShipment,
 		intent: followup.SetState(followup.RecorderSent),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
-			if cur.State != followup.RecorderSent {
-				if err := followup.Move(cur.State, followup.RecorderSent); err != nil {
-					return err
-				}
+			if err := followup.CheckStep(cur.State, followup.StepShipment); err != nil {
+				return err
 			}
 			st, err := studySettings(ctx, tx)
 			if err != nil {
@@ -225,7 +224,7 @@ func (s *Store) RecordReturn(ctx context.Context, a cohort.Actor, id int64, vers
 		action: followup.EditReturn,
 		intent: followup.SetState(followup.RecordingReceived),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
-			if err := followup.Move(cur.State, followup.RecordingReceived); err != nil {
+			if err := followup.CheckStep(cur.State, followup.StepReturn); err != nil {
 				return err
 			}
 			st, err := studySettings(ctx, tx)

@@ -1,6 +1,7 @@
 package followup
 
 import (
+	"fmt"
 	"slices"
 
 	"cohortdesk/cohort"
@@ -84,14 +85,16 @@ func hasNext(final bool) func(State) bool {
 //     the triage row offers it where reaching the participant is what the
 //     case waits for: open, contacting, and a recorder out whose recording
 //     is chased like a contact.
-//   - The shipment is recorded once the participant is reached, and may be
-//     corrected (date, tracking number) while the recorder is out.
+//   - The shipment is recorded once the participant is reached, may be
+//     corrected (date, tracking number) while the recorder is out, and is
+//     recorded again when a returned recording was unusable and a repeat is
+//     sent (the state table's way back from "recording received").
 //   - A recording can be added once the recorder went out and until the case
 //     ends: a repeat recording may follow an unusable one or an over-read.
 var stepTable = []stepRule{
 	{StepAssign, WorksCases, working, working},
 	{StepAttempt, ReachesParticipants, working, oneOf(Open, Contacting, RecorderSent)},
-	{StepShipment, ReachesParticipants, oneOf(Reached, RecorderSent), oneOf(Reached)},
+	{StepShipment, ReachesParticipants, oneOf(Reached, RecorderSent, RecordingReceived), oneOf(Reached)},
 	{StepReturn, ReachesParticipants, oneOf(RecorderSent), never},
 	{StepRecording, ReachesParticipants, oneOf(RecorderSent, RecordingReceived, OverRead), never},
 	{StepMove, WorksCases, hasNext(false), never},
@@ -146,6 +149,24 @@ func (s Step) OfferedIn(st State) bool {
 		}
 	}
 	return false
+}
+
+// stepMoves are the states the steps that move a case move it to.
+var stepMoves = map[Step]State{StepShipment: RecorderSent, StepReturn: RecordingReceived}
+
+// CheckStep refuses step s on a case in state st when the step table does
+// not offer it there. For a step that moves the case the message is Move's,
+// naming the allowed next states.
+func CheckStep(st State, s Step) error {
+	if s.OfferedIn(st) {
+		return nil
+	}
+	if to, ok := stepMoves[s]; ok {
+		if err := Move(st, to); err != nil {
+			return err
+		}
+	}
+	return &cohort.ValidationError{Fields: map[string]string{"state": fmt.Sprintf("a case that is %s does not take this step", st.Label())}}
 }
 
 // TakesRecordings says why a case in state st cannot take a recording, ""

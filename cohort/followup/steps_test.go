@@ -2,6 +2,7 @@ package followup
 
 import (
 	"slices"
+	"strings"
 	"testing"
 
 	"cohortdesk/cohort"
@@ -15,8 +16,8 @@ var wantCoordinatorOffers = map[State][]Step{
 	Contacting:         {StepAssign, StepAttempt, StepMove, StepClose, StepNote},
 	Reached:            {StepAssign, StepAttempt, StepShipment, StepMove, StepClose, StepNote},
 	RecorderSent:       {StepAssign, StepAttempt, StepShipment, StepReturn, StepRecording, StepMove, StepClose, StepNote},
-	RecordingReceived:  {StepAssign, StepAttempt, StepRecording, StepMove, StepClose, StepNote},
-	OverRead:           {StepAssign, StepAttempt, StepRecording, StepClose, StepNote}, // every way on from an over-read ends the case
+	RecordingReceived:  {StepAssign, StepAttempt, StepShipment, StepRecording, StepMove, StepClose, StepNote}, // a repeat shipment
+	OverRead:           {StepAssign, StepAttempt, StepRecording, StepClose, StepNote},                         // every way on from an over-read ends the case
 	Referred:           nil,
 	ClosedNotConfirmed: nil,
 	ClosedUnreachable:  nil,
@@ -149,6 +150,28 @@ func TestTakesRecordings(t *testing.T) {
 		}
 		if got := StepRecording.OfferedIn(c.st); got != (c.want == "") {
 			t.Errorf("StepRecording.OfferedIn(%s) = %v", c.st, got)
+		}
+	}
+}
+
+func TestCheckStep(t *testing.T) {
+	for _, c := range []struct {
+		st       State
+		step     Step
+		contains string // "" when the step is taken
+	}{
+		{Reached, StepShipment, ""},
+		{RecorderSent, StepShipment, ""}, // a correction
+		{RecordingReceived, StepShipment, ""},
+		{Open, StepShipment, "cannot move from open to recorder sent; allowed next states: contacting"},
+		{Referred, StepShipment, "none, referred is final"},
+		{RecorderSent, StepReturn, ""},
+		{Reached, StepReturn, "cannot move from reached to recording received"},
+		{Open, StepRecording, "a case that is open does not take this step"},
+	} {
+		got := fields(t, CheckStep(c.st, c.step))["state"]
+		if (c.contains == "") != (got == "") || !strings.Contains(got, c.contains) {
+			t.Errorf("CheckStep(%s, %s) = %q, want %q", c.st, c.step, got, c.contains)
 		}
 	}
 }
