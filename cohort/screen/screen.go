@@ -2,8 +2,8 @@
 // wear data: cleaning, the windowed successive-difference screen on heart-rate
 // readings, the beat-interval method (package rr) on RR intervals when a week
 // has them, personal baselines, a per-week verdict with a plain-words reason,
-// and a sweep that recomputes verdicts across values of one parameter for a
-// threshold explorer.
+// and the threshold sweep: verdicts recomputed across values of one parameter,
+// with their agreement with over-read ECGs.
 //
 // A positive verdict is a screen, not a diagnosis: it asks for a clinician-read
 // ECG. A negative verdict does not rule out atrial fibrillation. The default
