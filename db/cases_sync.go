@@ -212,9 +212,9 @@ func (s *Store) addWeeks(ctx context.Context, tx pgx.Tx, a cohort.Actor, pid int
 		return err
 	}
 	next := cur
-	action := "case.late_weeks"
+	action := followup.EditLateWeeks
 	if !late {
-		action = "case.extend"
+		action = followup.EditExtend
 		for _, w := range nums {
 			next.FirstWeek, next.LastWeek = min(next.FirstWeek, w), max(next.LastWeek, w)
 		}
@@ -225,7 +225,7 @@ func (s *Store) addWeeks(ctx context.Context, tx pgx.Tx, a cohort.Actor, pid int
 	}
 	nw := snapshotOf(next)
 	nw.WeeksAdded = nums
-	return audit(ctx, tx, a, action, "case", add.CaseID, snapshotOf(cur), nw)
+	return audit(ctx, tx, a, string(action), "case", add.CaseID, snapshotOf(cur), nw)
 }
 
 // openCase opens a case for a new episode, flagged now, and schedules its
@@ -249,7 +249,7 @@ func (s *Store) openCase(ctx context.Context, tx pgx.Tx, a cohort.Actor, pid int
 	}
 	snap := snapshotOf(c)
 	snap.WeeksAdded = nums
-	return audit(ctx, tx, a, "case.open", "case", strconv.FormatInt(c.ID, 10), nil, snap)
+	return audit(ctx, tx, a, string(followup.EditOpen), "case", strconv.FormatInt(c.ID, 10), nil, snap)
 }
 
 // CaseSync is the after-screen hook that opens and extends follow-up cases

@@ -2,14 +2,13 @@ package db
 
 import (
 	"context"
-	"encoding/base64"
-	"encoding/json"
 	"fmt"
 	"strconv"
 	"strings"
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/enrolment"
 
 	"github.com/jackc/pgx/v5"
 )
@@ -189,87 +188,27 @@ func (s *Store) Identity(ctx context.Context, a cohort.Actor, participantID int6
 	return id, mapErr("identity", err)
 }
 
-// ParticipantInput is the enrol and edit form.
+// ParticipantInput is the enrol and edit form, read.
 type ParticipantInput struct {
 	StudyID        string
 	SiteID         int
 	Sex            cohort.Sex
 	TimeZone       string
-	EnrolledOn     string // YYYY-MM-DD
+	EnrolledOn     cohort.Date
 	ConsentVersion string
 	Risk           Risk
 	WatchModel     string
 	RRCapable      bool
-	Identity       Identity
-	BirthDate      string // YYYY-MM-DD, PHI
-	Version        int    // for edits: the version the editor saw
+	Identity       Identity // PHI, with the birth date
+	Version        int      // for edits: the version the editor saw
 }
 
-// validate checks the form and returns the parsed dates.
-func (in *ParticipantInput) validate(now time.Time) (enrolled cohort.Date, birth *cohort.Date, err error) {
-	var ve cohort.ValidationError
-	in.StudyID = strings.TrimSpace(in.StudyID)
-	if in.StudyID == "" || len(in.StudyID) > 32 || strings.ContainsAny(in.StudyID, " ,;\t\"'") {
-		ve.Add("study_id", "enter a study ID of up to 32 characters without spaces, commas or quotes")
-	}
-	if in.SiteID <= 0 {
-		ve.Add("site_id", "choose a site")
-	}
-	switch in.Sex {
-	case cohort.Female, cohort.Male, cohort.Unknown:
-	default:
-		ve.Add("sex", "choose F, M or not recorded")
-	}
-	if _, e := time.LoadLocation(in.TimeZone); e != nil || in.TimeZone == "" {
-		ve.Add("time_zone", "enter a time zone such as America/Chicago")
-	}
-	enrolled, e := cohort.ParseDate(in.EnrolledOn)
-	if e != nil {
-		ve.Add("enrolled_on", "enter the enrolment date as YYYY-MM-DD")
-	} else if cohort.DateOf(now).Before(enrolled) {
-		ve.Add("enrolled_on", "the enrolment date is in the future")
-	}
-	if strings.TrimSpace(in.BirthDate) != "" {
-		b, e := cohort.ParseDate(in.BirthDate)
-		switch {
-		case e != nil:
-			ve.Add("birth_date", "enter the birth date as YYYY-MM-DD")
-		case !b.Before(enrolled) && ve.Fields["enrolled_on"] == "":
-			ve.Add("birth_date", "the birth date must be before the enrolment date")
-		case enrolled.DaysSince(b) > 130*366:
-			ve.Add("birth_date", "the birth date is more than 130 years before enrolment")
-		default:
-			birth = &b
-		}
-	}
-	if z := strings.TrimSpace(in.Identity.ZIP); z != "" && !zipOK(z) {
-		ve.Add("zip", "enter a 5-digit ZIP code (or ZIP+4)")
-	}
-	if e := strings.TrimSpace(in.Identity.Email); e != "" && !strings.Contains(e, "@") {
-		ve.Add("email", "enter an e-mail address such as name@example.org")
-	}
-	return enrolled, birth, ve.Err()
-}
-
-func zipOK(z string) bool {
-	if len(z) == 10 && z[5] == '-' {
-		z = z[:5] + z[6:]
-	}
-	if len(z) != 5 && len(z) != 9 {
-		return false
-	}
-	return strings.Trim(z, "0123456789") == ""
-}
-
-func ageAt(birth *cohort.Date, at cohort.Date) *int {
-	if birth == nil {
-		return nil
-	}
-	age := at.Year - birth.Year
-	if at.Month < birth.Month || (at.Month == birth.Month && at.Day < birth.Day) {
-		age--
-	}
-	return &age
+// Check applies the enrolment rules (enrolment.Enrolment.Check) on the day
+// today. The store applies them to every enrolment and edit; a form applies
+// them to word every problem of a refused form at once.
+func (in ParticipantInput) Check(today cohort.Date) error {
+	return enrolment.Enrolment{StudyID: in.StudyID, SiteID: in.SiteID, Sex: in.Sex, TimeZone: in.TimeZone, EnrolledOn: in.EnrolledOn,
+		BirthDate: in.Identity.BirthDate, ZIP: in.Identity.ZIP, Email: in.Identity.Email}.Check(today)
 }
 
 func dateArg(d *cohort.Date) any {
@@ -282,17 +221,18 @@ func dateArg(d *cohort.Date) any {
 // Enrol adds a participant with their identifying details and audits it (the
 // audit keeps which fields were set, never the PHI values themselves).
 func (s *Store) Enrol(ctx context.Context, a cohort.Actor, in ParticipantInput) (Participant, error) {
-	enrolled, birth, err := in.validate(s.now())
-	if err != nil {
+	in.StudyID = strings.TrimSpace(in.StudyID)
+	if err := in.Check(cohort.DateOf(s.now())); err != nil {
 		return Participant{}, err
 	}
+	enrolled, birth := in.EnrolledOn, in.Identity.BirthDate
 	var id int64
-	err = s.inTx(ctx, func(tx pgx.Tx) error {
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		err := tx.QueryRow(ctx, `
 			INSERT INTO participants (study_id, site_id, sex, age_at_enrolment, time_zone, enrolled_on, consent_version,
 			  hypertension, diabetes, heart_failure, prior_stroke, vascular_disease, watch_model, rr_capable)
 			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14) RETURNING id`,
-			in.StudyID, in.SiteID, string(in.Sex), ageAt(birth, enrolled), in.TimeZone, enrolled.String(), in.ConsentVersion,
+			in.StudyID, in.SiteID, string(in.Sex), enrolment.AgeAt(birth, enrolled), in.TimeZone, enrolled.String(), in.ConsentVersion,
 			in.Risk.Hypertension, in.Risk.Diabetes, in.Risk.HeartFailure, in.Risk.PriorStroke, in.Risk.VascularDisease,
 			in.WatchModel, in.RRCapable).Scan(&id)
 		if err != nil {
@@ -345,11 +285,12 @@ func (s *Store) UpdateParticipant(ctx context.Context, a cohort.Actor, id int64,
 	if !a.Role.SeesPHI() {
 		return Participant{}, fmt.Errorf("db: update participant: %w", cohort.ErrForbidden)
 	}
-	enrolled, birth, err := in.validate(s.now())
-	if err != nil {
+	in.StudyID = strings.TrimSpace(in.StudyID)
+	if err := in.Check(cohort.DateOf(s.now())); err != nil {
 		return Participant{}, err
 	}
-	err = s.inTx(ctx, func(tx pgx.Tx) error {
+	enrolled, birth := in.EnrolledOn, in.Identity.BirthDate
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		old, err := scanParticipant(tx.QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = $1 FOR UPDATE OF p`, id))
 		if err != nil {
 			return err
@@ -366,7 +307,7 @@ func (s *Store) UpdateParticipant(ctx context.Context, a cohort.Actor, id int64,
 			  consent_version = $8, hypertension = $9, diabetes = $10, heart_failure = $11, prior_stroke = $12, vascular_disease = $13,
 			  watch_model = $14, rr_capable = $15, version = version + 1, updated_at = now()
 			WHERE id = $1`,
-			id, in.StudyID, in.SiteID, string(in.Sex), ageAt(birth, enrolled), in.TimeZone, enrolled.String(), in.ConsentVersion,
+			id, in.StudyID, in.SiteID, string(in.Sex), enrolment.AgeAt(birth, enrolled), in.TimeZone, enrolled.String(), in.ConsentVersion,
 			in.Risk.Hypertension, in.Risk.Diabetes, in.Risk.HeartFailure, in.Risk.PriorStroke, in.Risk.VascularDisease,
 			in.WatchModel, in.RRCapable)
 		if err != nil {
@@ -378,7 +319,7 @@ func (s *Store) UpdateParticipant(ctx context.Context, a cohort.Actor, id int64,
 		nw := old
 		nw.StudyID, nw.SiteID, nw.Sex, nw.TimeZone, nw.EnrolledOn, nw.ConsentVersion, nw.Risk, nw.WatchModel, nw.RRCapable =
 			in.StudyID, in.SiteID, in.Sex, in.TimeZone, enrolled, in.ConsentVersion, in.Risk, in.WatchModel, in.RRCapable
-		nw.AgeAtEnrolment = ageAt(birth, enrolled)
+		nw.AgeAtEnrolment = enrolment.AgeAt(birth, enrolled)
 		nw.Version = old.Version + 1
 		var changedPHI []string
 		var ob *cohort.Date
@@ -406,23 +347,14 @@ func (s *Store) UpdateParticipant(ctx context.Context, a cohort.Actor, id int64,
 	return s.Participant(ctx, id)
 }
 
-// Withdraw records a withdrawal. Open cases of the participant are closed as
-// withdrawn by the caller's follow-up logic.
-func (s *Store) Withdraw(ctx context.Context, a cohort.Actor, id int64, on string, reason string, version int) (Participant, error) {
-	var ve cohort.ValidationError
-	d, err := cohort.ParseDate(on)
-	if err != nil {
-		ve.Add("withdrawn_on", "enter the withdrawal date as YYYY-MM-DD")
-	} else if cohort.DateOf(s.now()).Before(d) {
-		ve.Add("withdrawn_on", "the withdrawal date is in the future")
-	}
-	if strings.TrimSpace(reason) == "" {
-		ve.Add("reason", "give the reason the participant gave (or 'not given')")
-	}
-	if err := ve.Err(); err != nil {
+// Withdraw records a withdrawal on the day on. Open cases of the
+// participant are closed as withdrawn by the caller's follow-up logic.
+func (s *Store) Withdraw(ctx context.Context, a cohort.Actor, id int64, on cohort.Date, reason string, version int) (Participant, error) {
+	w := enrolment.Withdrawal{On: on, Reason: strings.TrimSpace(reason)}
+	if err := w.Check(cohort.DateOf(s.now())); err != nil {
 		return Participant{}, err
 	}
-	err = s.inTx(ctx, func(tx pgx.Tx) error {
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		old, err := scanParticipant(tx.QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = $1 FOR UPDATE OF p`, id))
 		if err != nil {
 			return err
@@ -430,215 +362,18 @@ func (s *Store) Withdraw(ctx context.Context, a cohort.Actor, id int64, on strin
 		if old.Version != version {
 			return &cohort.ConflictError{Message: fmt.Sprintf("participant %s was changed by someone else after you opened it; reload and try again", old.StudyID)}
 		}
-		if old.WithdrawnOn != nil {
-			return &cohort.ValidationError{Fields: map[string]string{"withdrawn_on": "already withdrawn on " + old.WithdrawnOn.String()}}
-		}
-		if d.Before(old.EnrolledOn) {
-			return &cohort.ValidationError{Fields: map[string]string{"withdrawn_on": "the withdrawal date is before enrolment (" + old.EnrolledOn.String() + ")"}}
+		if err := w.CheckAgainst(old.EnrolledOn, old.WithdrawnOn); err != nil {
+			return err
 		}
 		if _, err := tx.Exec(ctx, `UPDATE participants SET withdrawn_on = $2, withdrawal_reason = $3, version = version + 1, updated_at = now() WHERE id = $1`,
-			id, d.String(), strings.TrimSpace(reason)); err != nil {
+			id, on.String(), w.Reason); err != nil {
 			return err
 		}
 		return audit(ctx, tx, a, "participant.withdraw", "participant", strconv.FormatInt(id, 10),
-			map[string]any{"withdrawn_on": nil}, map[string]any{"withdrawn_on": d.String(), "reason": strings.TrimSpace(reason)})
+			map[string]any{"withdrawn_on": nil}, map[string]any{"withdrawn_on": on.String(), "reason": w.Reason})
 	})
 	if err != nil {
 		return Participant{}, mapErr("withdraw", err)
 	}
 	return s.Participant(ctx, id)
-}
-
-// ParticipantFilter narrows and orders the participant list.
-type ParticipantFilter struct {
-	Search        string // study ID prefix; names too when WithNames
-	SiteID        int
-	Status        string // "", "active", "withdrawn"
-	PositiveWeeks int    // screen-positive within the last N study weeks (0: no filter)
-	OpenCase      bool
-	Sort          string // "study_id" (default), "enrolled", "site"
-	Desc          bool
-	After         string // opaque keyset cursor from the previous page
-	Limit         int
-	WithNames     bool // include PHI names: only for roles that see PHI
-}
-
-// ParticipantRow is one line of the list.
-type ParticipantRow struct {
-	Participant
-	Name         string // PHI, empty unless asked for
-	LastPositive *int   // latest screen-positive study week
-	OpenCases    int
-}
-
-// ParticipantPage is one page of the list with the counts of the whole filter.
-type ParticipantPage struct {
-	Rows      []ParticipantRow
-	Next      string // cursor for the next page, "" at the end
-	Total     int64  // rows matching the filter
-	Active    int64
-	Withdrawn int64
-}
-
-// listOrder is one order of the participants list: the ORDER BY
-// expressions (together unique, so the order is total), the cursor's key as
-// text, read from the last row of a page, and the rows after a cursor as a
-// comparison in which %[1]s is the key's placeholder, %[2]s the id's and
-// %[3]s the operator (> ascending, < descending). The study ID and
-// enrolment orders follow an index, so any page costs about the same as the
-// first; the site order sorts the filtered rows (sites are in another table).
-type listOrder struct {
-	by    []string
-	key   string
-	after string
-}
-
-var listOrders = map[string]listOrder{
-	"study_id": {by: []string{"p.study_id"}, key: "p.study_id", after: "p.study_id %[3]s %[1]s"},
-	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"}, key: "to_char(p.enrolled_on, 'YYYY-MM-DD') || p.study_id",
-		after: "(p.enrolled_on, p.study_id) %[3]s (left(%[1]s, 10)::date, substr(%[1]s, 11))"},
-	"site": {by: []string{"st.code || ' ' || p.study_id", "p.id"}, key: "st.code || ' ' || p.study_id",
-		after: "(st.code || ' ' || p.study_id, p.id) %[3]s (%[1]s, %[2]s)"},
-}
-
-// ParticipantsWhere builds the filter's WHERE clause; it is shared by the page,
-// the counts and the CSV download so the three always agree.
-func (f ParticipantFilter) where(today time.Time) (string, []any) {
-	conds := []string{"true"}
-	var args []any
-	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
-	if q := strings.TrimSpace(f.Search); q != "" {
-		// Both conditions can use an index: lower(study_id) with
-		// text_pattern_ops for the prefix, the trigram index for names (the
-		// set of matching names is read once, not per participant).
-		cond := "lower(p.study_id) LIKE " + arg(escapeLike(strings.ToLower(q))+"%")
-		if f.WithNames {
-			cond = "(" + cond + " OR p.id IN (SELECT pi.participant_id FROM participant_identity pi WHERE pi.search_name LIKE " +
-				arg("%"+escapeLike(strings.ToLower(q))+"%") + "))"
-		}
-		conds = append(conds, cond)
-	}
-	if f.SiteID > 0 {
-		conds = append(conds, "p.site_id = "+arg(f.SiteID))
-	}
-	switch f.Status {
-	case "active":
-		conds = append(conds, "p.withdrawn_on IS NULL")
-	case "withdrawn":
-		conds = append(conds, "p.withdrawn_on IS NOT NULL")
-	}
-	if f.PositiveWeeks > 0 {
-		// The active version as a value, so the positive results come from
-		// their own partial index.
-		conds = append(conds, `EXISTS (SELECT 1 FROM screen_results sr
-			WHERE sr.protocol_id = (SELECT id FROM protocols WHERE active) AND sr.participant_id = p.id AND sr.verdict = 'positive'
-			  AND sr.week >= ((`+arg(today)+`::date - p.enrolled_on) / 7) - `+arg(f.PositiveWeeks)+`)`)
-	}
-	if f.OpenCase {
-		conds = append(conds, `EXISTS (SELECT 1 FROM cases c WHERE c.participant_id = p.id AND c.closed_at IS NULL)`)
-	}
-	return strings.Join(conds, " AND "), args
-}
-
-func escapeLike(s string) string {
-	return strings.NewReplacer(`\`, `\\`, "%", `\%`, "_", `\_`).Replace(s)
-}
-
-type cursor struct {
-	Key string `json:"k"`
-	ID  int64  `json:"i"`
-}
-
-func encodeCursor(c cursor) string {
-	b, _ := json.Marshal(c)
-	return base64.RawURLEncoding.EncodeToString(b)
-}
-
-func decodeCursor(s string) (cursor, bool) {
-	var c cursor
-	b, err := base64.RawURLEncoding.DecodeString(s)
-	if err != nil || json.Unmarshal(b, &c) != nil {
-		return c, false
-	}
-	return c, true
-}
-
-// Participants returns one page of the filtered list, ordered by the chosen key
-// and then id, using keyset pagination so a page deep in a 100,000-row list
-// costs the same as the first.
-func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (ParticipantPage, error) {
-	if f.Limit <= 0 || f.Limit > 500 {
-		f.Limit = 50
-	}
-	order, ok := listOrders[f.Sort]
-	if !ok {
-		order = listOrders["study_id"]
-	}
-	today := s.now().UTC()
-	where, args := f.where(today)
-	var page ParticipantPage
-	// The filter reads participants only, so the counts need no join.
-	err := s.pool.QueryRow(ctx, `
-		SELECT count(*), count(*) FILTER (WHERE p.withdrawn_on IS NULL), count(*) FILTER (WHERE p.withdrawn_on IS NOT NULL)
-		FROM participants p WHERE `+where, args...).Scan(&page.Total, &page.Active, &page.Withdrawn)
-	if err != nil {
-		return page, mapErr("participants count", err)
-	}
-	cmp, dir := ">", " ASC"
-	if f.Desc {
-		cmp, dir = "<", " DESC"
-	}
-	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key)
-		keyArg, idArg := fmt.Sprintf("$%d::text", len(args)), ""
-		if strings.Contains(order.after, "%[2]s") {
-			args = append(args, c.ID)
-			idArg = fmt.Sprintf("$%d::bigint", len(args))
-		}
-		where += " AND " + fmt.Sprintf(order.after, keyArg, idArg, cmp)
-	}
-	key := order.key
-	nameCol := "''::text"
-	if f.WithNames {
-		nameCol = "coalesce((SELECT pi.given_name || ' ' || pi.family_name FROM participant_identity pi WHERE pi.participant_id = p.id), '')"
-	}
-	args = append(args, f.Limit+1)
-	rows, err := s.pool.Query(ctx, `
-		SELECT `+participantCols+`, `+key+`, `+nameCol+`,
-		  (SELECT max(sr.week) FROM screen_results sr JOIN protocols pr ON pr.id = sr.protocol_id AND pr.active
-		   WHERE sr.participant_id = p.id AND sr.verdict = 'positive'),
-		  (SELECT count(*) FROM cases c WHERE c.participant_id = p.id AND c.closed_at IS NULL)
-		FROM participants p JOIN sites st ON st.id = p.site_id
-		WHERE `+where+` ORDER BY `+strings.Join(order.by, dir+", ")+dir+fmt.Sprintf(` LIMIT $%d`, len(args)), args...)
-	if err != nil {
-		return page, mapErr("participants", err)
-	}
-	defer rows.Close()
-	var keys []string
-	for rows.Next() {
-		var r ParticipantRow
-		var k string
-		var last *int16
-		p, err := scanParticipant(rows, &k, &r.Name, &last, &r.OpenCases)
-		if err != nil {
-			return page, mapErr("participants", err)
-		}
-		r.Participant = p
-		r.Name = strings.TrimSpace(r.Name)
-		if last != nil {
-			w := int(*last)
-			r.LastPositive = &w
-		}
-		page.Rows = append(page.Rows, r)
-		keys = append(keys, k)
-	}
-	if err := rows.Err(); err != nil {
-		return page, mapErr("participants", err)
-	}
-	if len(page.Rows) > f.Limit {
-		page.Rows = page.Rows[:f.Limit]
-		last := page.Rows[f.Limit-1]
-		page.Next = encodeCursor(cursor{Key: keys[f.Limit-1], ID: last.ID})
-	}
-	return page, nil
 }

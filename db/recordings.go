@@ -292,7 +292,7 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 			ve.Add(f, m)
 		}
 	}
-	if msg := TakesRecordings(c.State); msg != "" {
+	if msg := followup.TakesRecordings(c.State); msg != "" {
 		ve.Add("case", msg)
 	}
 	if err := ve.Err(); err != nil {
@@ -307,7 +307,7 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		if err != nil {
 			return err
 		}
-		if msg := TakesRecordings(cur.State); msg != "" { // changed since it was read
+		if msg := followup.TakesRecordings(cur.State); msg != "" { // changed since it was read
 			return &cohort.ValidationError{Fields: map[string]string{"case": msg}}
 		}
 		var samples, sum []byte
@@ -365,19 +365,6 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		return Recording{}, mapCaseErr("add recording", err)
 	}
 	return s.Recording(ctx, id)
-}
-
-// TakesRecordings says why a case in state st cannot take a recording, ""
-// when it can: it must be waiting for or holding recordings ("recorder
-// sent", "recording received", "over-read").
-func TakesRecordings(st followup.State) string {
-	switch {
-	case st == followup.RecorderSent || st == followup.RecordingReceived || st == followup.OverRead:
-		return ""
-	case st.Terminal():
-		return "the case is closed (" + st.Label() + "); no recording can be added"
-	}
-	return "record the recorder's shipment first: the case is " + st.Label()
 }
 
 func truncate(s string, n int) string {

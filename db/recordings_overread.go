@@ -103,7 +103,7 @@ func (s *Store) AddOverRead(ctx context.Context, a cohort.Actor, recordingID int
 		if err := audit(ctx, tx, a, "over_read.add", "recording", strconv.FormatInt(recordingID, 10), nil, rec); err != nil {
 			return err
 		}
-		if !v.Final || !v.Rhythm.Interpretable() || tooShort {
+		if !v.Diagnostic(tooShort) {
 			return nil
 		}
 		c, err := lockCase(ctx, tx, caseID)
@@ -111,7 +111,7 @@ func (s *Store) AddOverRead(ctx context.Context, a cohort.Actor, recordingID int
 			return err
 		}
 		if c.State == followup.RecordingReceived {
-			_, err = s.advanceCase(ctx, tx, a, caseID, followup.OverRead, dayTime(v.SettledOn, now, loc), "")
+			_, err = s.advanceCase(ctx, tx, a, caseID, followup.OverRead, followup.StepTime(v.SettledOn, now, loc), "")
 		}
 		return err
 	})

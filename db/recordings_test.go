@@ -51,7 +51,7 @@ func (f *caseFixture) toRecorderSent(studyID string) int64 {
 	if err != nil {
 		f.t.Fatal(err)
 	}
-	if _, err := f.s.RecordShipment(ctx, f.coord, id, c.Version, cohort.DateOf(f.clock.now()).String(), "TRK1"); err != nil {
+	if _, err := f.s.RecordShipment(ctx, f.coord, id, c.Version, cohort.DateOf(f.clock.now()), "TRK1"); err != nil {
 		f.t.Fatal(err)
 	}
 	return id

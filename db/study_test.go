@@ -3,49 +3,47 @@ package db_test
 import (
 	"context"
 	"errors"
-	"slices"
-	"strings"
 	"testing"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
-	"cohortdesk/db"
 )
 
+// The rules of the settings are followup.StudySettings.Validate's (tested
+// there) and reading the form is web's; the store refuses what the rules
+// refuse, stores and audits the rest.
 func TestStudySettingsDefaultsValidationAndAudit(t *testing.T) {
 	s := newStore(t)
 	ctx := context.Background()
 	st, err := s.StudySettings(ctx)
-	if err != nil || st.Configured || st.Service != followup.DefaultServiceLevels() || st.EpisodeGapWeeks != db.DefaultEpisodeGapWeeks {
+	if err != nil || st.Configured || st.Service != followup.DefaultServiceLevels() || st.EpisodeGapWeeks != followup.DefaultEpisodeGapWeeks {
 		t.Fatalf("defaults %+v %v", st, err)
 	}
-	bad := db.StudySettingsInput{Name: "", TimeZone: "Mars/Base", EnrolmentTarget: "-1", FirstContactWorkingDays: "two",
-		MaxAttempts: "0", GiveUpAfterDays: "14", RecorderSendWithinDays: "5", RecordingBackWithinDays: "999",
-		OverReadWithinDays: "7", ReferOrCloseWithinDays: "3", EpisodeGapWeeks: "0", ClosureDays: "2026-12-25\n2026-13-01"}
+	bad := followup.DefaultStudySettings()
+	bad.TimeZone, bad.EnrolmentTarget, bad.Service.MaxAttempts, bad.EpisodeGapWeeks = "Mars/Base", -1, 0, 0
 	_, err = s.SaveStudySettings(ctx, cohort.System, bad)
 	var ve *cohort.ValidationError
 	if !errors.As(err, &ve) {
 		t.Fatalf("bad settings: %v", err)
 	}
-	for field, want := range map[string]string{
-		"name": "name", "time_zone": "time zone", "enrolment_target": "target", "first_contact_working_days": "whole number",
-		"max_attempts": "1 to 100", "recording_back_within_days": "0 to 366", "episode_gap_weeks": "1 to 26",
-		"closure_days": "line 2",
-	} {
-		if !strings.Contains(ve.Fields[field], want) {
-			t.Errorf("%s: message %q lacks %q", field, ve.Fields[field], want)
+	for _, field := range []string{"name", "time_zone", "enrolment_target", "max_attempts", "episode_gap_weeks"} {
+		if ve.Fields[field] == "" {
+			t.Errorf("%s: no message (%v)", field, ve.Fields)
 		}
 	}
-	good := bad
-	good.Name, good.TimeZone, good.EnrolmentTarget, good.FirstContactWorkingDays = "Rhythm study", "Europe/Lisbon", "2400", "3"
-	good.MaxAttempts, good.RecordingBackWithinDays, good.EpisodeGapWeeks = "4", "10", "3"
-	good.ClosureDays = "2026-12-25, 2026-01-01\n2026-12-25"
+	if st, _ := s.StudySettings(ctx); st.Configured {
+		t.Fatal("refused settings were stored")
+	}
+	good := followup.DefaultStudySettings()
+	good.Name, good.TimeZone, good.EnrolmentTarget = "Rhythm study", "Europe/Lisbon", 2400
+	good.Service.FirstContactWorkingDays, good.Service.MaxAttempts, good.Service.RecordingBackWithinDays, good.EpisodeGapWeeks = 3, 4, 10, 3
+	good.ClosureDays = []cohort.Date{{Year: 2026, Month: 1, Day: 1}, {Year: 2026, Month: 12, Day: 25}}
 	if _, err := s.SaveStudySettings(ctx, cohort.Actor{UserID: 0, Name: "admin test"}, good); err != nil {
 		t.Fatal(err)
 	}
 	st, err = s.StudySettings(ctx)
 	if err != nil || !st.Configured || st.Name != "Rhythm study" || st.TimeZone != "Europe/Lisbon" || st.EnrolmentTarget != 2400 ||
-		st.Service.FirstContactWorkingDays != 3 || st.Service.MaxAttempts != 4 || st.EpisodeGapWeeks != 3 ||
+		st.Service.FirstContactWorkingDays != 3 || st.Service.MaxAttempts != 4 || st.Service.RecordingBackWithinDays != 10 || st.EpisodeGapWeeks != 3 ||
 		len(st.ClosureDays) != 2 || st.ClosureDays[0].String() != "2026-01-01" {
 		t.Fatalf("stored %+v %v", st, err)
 	}
@@ -57,41 +55,4 @@ func TestStudySettingsDefaultsValidationAndAudit(t *testing.T) {
 	if n != 1 {
 		t.Fatalf("settings audit events %d, want 1", n)
 	}
-}
-
-// FuzzClosureDays feeds arbitrary text to the closure-days field: it never
-// panics, and whatever it accepts is sorted, free of duplicates and reads back
-// the same when written one date per line.
-func FuzzClosureDays(f *testing.F) {
-	for _, seed := range []string{"", "2026-12-25", "2026-12-25\n2026-01-01, 2026-12-25", " 2026-02-29", "2026-13-01", "1999-12-31",
-		"2026-07-04;2026-07-03\r\n", "\t,,;", "2026-1-5", "20261225"} {
-		f.Add(seed)
-	}
-	base := db.StudySettingsInput{Name: "s", TimeZone: "UTC", EnrolmentTarget: "0", FirstContactWorkingDays: "2", MaxAttempts: "5",
-		GiveUpAfterDays: "14", RecorderSendWithinDays: "5", RecordingBackWithinDays: "14", OverReadWithinDays: "7",
-		ReferOrCloseWithinDays: "3", EpisodeGapWeeks: "2"}
-	f.Fuzz(func(t *testing.T, text string) {
-		in := base
-		in.ClosureDays = text
-		st, err := in.Parse()
-		if err != nil {
-			var ve *cohort.ValidationError
-			if !errors.As(err, &ve) || len(ve.Fields) != 1 || ve.Fields["closure_days"] == "" {
-				t.Fatalf("%q: %v, want a message on closure_days only", text, err)
-			}
-			return
-		}
-		var lines []string
-		for i, d := range st.ClosureDays {
-			if i > 0 && !st.ClosureDays[i-1].Before(d) {
-				t.Fatalf("%q: days not sorted and unique: %v", text, st.ClosureDays)
-			}
-			lines = append(lines, d.String())
-		}
-		in.ClosureDays = strings.Join(lines, "\n")
-		again, err := in.Parse()
-		if err != nil || !slices.Equal(again.ClosureDays, st.ClosureDays) {
-			t.Fatalf("%q: round trip gave %v (%v), want %v", text, again.ClosureDays, err, st.ClosureDays)
-		}
-	})
 }

@@ -7,6 +7,8 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/enrolment"
+	"cohortdesk/cohort/followup"
 
 	"github.com/jackc/pgx/v5"
 )
@@ -21,7 +23,7 @@ type WeekLine struct {
 	Verdict   string  // positive, negative, insufficient, or "" when not screened
 	Reason    string
 	CaseID    int64 // a case covering this week
-	CaseState string
+	CaseState followup.State
 	ECG       int // recordings taken this week
 }
 
@@ -98,7 +100,7 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 		}
 		for w := int(fw); w <= int(lw) && w < len(out); w++ {
 			if w >= 0 {
-				out[w].CaseID, out[w].CaseState = id, state
+				out[w].CaseID, out[w].CaseState = id, followup.State(state)
 			}
 		}
 	}
@@ -147,8 +149,8 @@ func (s *Store) Notes(ctx context.Context, participantID int64) ([]Note, error) 
 // AddNote stores a note and audits it.
 func (s *Store) AddNote(ctx context.Context, a cohort.Actor, participantID int64, body string) error {
 	body = strings.TrimSpace(body)
-	if body == "" || len(body) > 4000 {
-		return &cohort.ValidationError{Fields: map[string]string{"body": "write a note of 1 to 4000 characters"}}
+	if err := enrolment.CheckNote(body); err != nil {
+		return err
 	}
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		var id int64

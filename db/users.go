@@ -36,23 +36,6 @@ type NewUser struct {
 	PasswordHash string
 }
 
-// Validate checks the fields a form submits.
-func (n NewUser) Validate() error {
-	var ve cohort.ValidationError
-	if !strings.Contains(n.Email, "@") || strings.ContainsAny(n.Email, " \t") {
-		ve.Add("email", "enter an e-mail address such as name@example.org")
-	}
-	if strings.TrimSpace(n.Name) == "" {
-		ve.Add("name", "enter the person's name")
-	} else if len(n.Name) > 120 {
-		ve.Add("name", "use at most 120 characters")
-	}
-	if !n.Role.Valid() {
-		ve.Add("role", "choose a role")
-	}
-	return ve.Err()
-}
-
 const userCols = `id, email, display_name, role, active, last_sign_in_at, version`
 
 func scanUser(row pgx.CollectableRow) (User, error) {
@@ -65,7 +48,7 @@ func scanUser(row pgx.CollectableRow) (User, error) {
 
 // CreateUser adds an account and audits it. A taken e-mail is ErrConflict.
 func (s *Store) CreateUser(ctx context.Context, a cohort.Actor, n NewUser) (User, error) {
-	if err := n.Validate(); err != nil {
+	if err := cohort.CheckAccount(n.Email, n.Name, n.Role); err != nil {
 		return User{}, err
 	}
 	var u User
@@ -128,20 +111,9 @@ type UserChange struct {
 }
 
 // UpdateUser changes an account if nobody changed it since Version, and audits
-// old and new values. An administrator cannot demote or deactivate themselves,
-// so a study never loses its last way in by accident.
+// old and new values; cohort.CheckAccountChange says what an edit may do.
 func (s *Store) UpdateUser(ctx context.Context, a cohort.Actor, id int64, c UserChange) (User, error) {
-	var ve cohort.ValidationError
-	if strings.TrimSpace(c.Name) == "" {
-		ve.Add("name", "enter the person's name")
-	}
-	if !c.Role.Valid() {
-		ve.Add("role", "choose a role")
-	}
-	if id == a.UserID && (c.Role != cohort.Admin || !c.Active) {
-		ve.Add("role", "you cannot remove your own administrator role or deactivate yourself; ask another administrator")
-	}
-	if err := ve.Err(); err != nil {
+	if err := cohort.CheckAccountChange(c.Name, c.Role, c.Active, id == a.UserID); err != nil {
 		return User{}, err
 	}
 	var out User

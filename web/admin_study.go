@@ -2,12 +2,15 @@ package web
 
 import (
 	"context"
-	"errors"
+	"fmt"
 	"net/http"
+	"slices"
 	"strconv"
 	"strings"
+	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
 )
@@ -15,7 +18,7 @@ import (
 // studyStore reads and saves the study settings.
 type studyStore interface {
 	StudySettings(ctx context.Context) (db.StudySettings, error)
-	SaveStudySettings(ctx context.Context, a cohort.Actor, in db.StudySettingsInput) (db.StudySettings, error)
+	SaveStudySettings(ctx context.Context, a cohort.Actor, st db.StudySettings) (db.StudySettings, error)
 }
 
 // studyValues fills the settings form from stored settings.
@@ -59,27 +62,69 @@ func (s *Server) studySettingsSave(w http.ResponseWriter, r *http.Request) error
 	if err := r.ParseForm(); err != nil {
 		return err
 	}
-	f := r.PostForm
-	in := db.StudySettingsInput{Name: f.Get("name"), TimeZone: f.Get("time_zone"), ContactRoute: f.Get("contact_route"),
-		EnrolmentTarget: f.Get("enrolment_target"), FollowUpWeeks: f.Get("follow_up_weeks"), FirstContactWorkingDays: f.Get("first_contact_working_days"),
-		MaxAttempts: f.Get("max_attempts"), GiveUpAfterDays: f.Get("give_up_after_days"),
-		RecorderSendWithinDays: f.Get("recorder_send_within_days"), RecordingBackWithinDays: f.Get("recording_back_within_days"),
-		OverReadWithinDays: f.Get("over_read_within_days"), ReferOrCloseWithinDays: f.Get("refer_or_close_within_days"),
-		EpisodeGapWeeks: f.Get("episode_gap_weeks"), ClosureDays: f.Get("closure_days")}
-	_, err := s.store.SaveStudySettings(r.Context(), s.actor(r), in)
-	var ve *cohort.ValidationError
-	if errors.As(err, &ve) {
-		vals := map[string]string{}
-		for k := range f {
-			vals[k] = f.Get(k)
-		}
-		s.render(w, r, http.StatusUnprocessableEntity, views.StudySettings(views.StudySettingsModel{
-			Page: s.page(r, "Study settings", "admin"), Values: vals, Errors: ve.Fields}))
-		return nil
+	st, err := studyInput(readForm(r.PostForm))
+	if err == nil {
+		_, err = s.store.SaveStudySettings(r.Context(), s.actor(r), st)
 	}
 	if err != nil {
-		return err
+		f, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		s.render(w, r, f.Status, views.StudySettings(views.StudySettingsModel{
+			Page: s.page(r, "Study settings", "admin"), Values: f.Values, Errors: f.Fields}))
+		return nil
 	}
 	http.Redirect(w, r, "/admin/study?saved=1", http.StatusSeeOther)
 	return nil
+}
+
+// studyInput reads the settings form. Numbers that are not numbers, a zone
+// that is not a zone and closure days that are not dates are refused together
+// with what the settings' rules say about the rest.
+func studyInput(f *formReader) (db.StudySettings, error) {
+	st := db.StudySettings{Name: f.text("name"), TimeZone: f.text("time_zone"), ContactRoute: f.text("contact_route"),
+		EnrolmentTarget: f.whole("enrolment_target"), EpisodeGapWeeks: f.whole("episode_gap_weeks")}
+	if loc, err := time.LoadLocation(st.TimeZone); err == nil && followup.CheckTimeZone(st.TimeZone) == nil {
+		st.TimeZone = loc.String() // the zone's own spelling
+	}
+	if f.text("follow_up_weeks") != "" {
+		st.FollowUpWeeks = f.whole("follow_up_weeks")
+	}
+	sl := &st.Service
+	sl.FirstContactWorkingDays, sl.MaxAttempts, sl.GiveUpAfterDays = f.whole("first_contact_working_days"), f.whole("max_attempts"), f.whole("give_up_after_days")
+	sl.RecorderSendWithinDays, sl.RecordingBackWithinDays = f.whole("recorder_send_within_days"), f.whole("recording_back_within_days")
+	sl.OverReadWithinDays, sl.ReferOrCloseWithinDays = f.whole("over_read_within_days"), f.whole("refer_or_close_within_days")
+	days, err := closureDays(f.raw("closure_days"))
+	if err != nil {
+		f.fail("closure_days", err.Error())
+	}
+	st.ClosureDays = days
+	return st, f.check(st.Validate)
+}
+
+// closureDays reads one date per line (commas, semicolons and spaces also
+// separate), naming the line of the first entry that is not a date or that
+// followup.CheckClosureDay refuses. Duplicates are dropped; the result is
+// sorted.
+func closureDays(text string) ([]cohort.Date, error) {
+	var out []cohort.Date
+	seen := map[cohort.Date]bool{}
+	for i, line := range strings.Split(text, "\n") {
+		for _, v := range strings.FieldsFunc(line, func(r rune) bool { return r == ',' || r == ';' || r == ' ' || r == '\t' || r == '\r' }) {
+			d, err := cohort.ParseDate(v)
+			if err == nil {
+				err = followup.CheckClosureDay(d)
+			}
+			if err != nil {
+				return nil, fmt.Errorf("line %d: %q is not a date between 2000 and 2100 written YYYY-MM-DD", i+1, v)
+			}
+			if !seen[d] {
+				seen[d] = true
+				out = append(out, d)
+			}
+		}
+	}
+	slices.SortFunc(out, func(a, b cohort.Date) int { return a.DaysSince(b) })
+	return out, nil
 }

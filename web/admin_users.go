@@ -2,10 +2,8 @@ package web
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"net/http"
-	"strconv"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
@@ -66,23 +64,21 @@ func (s *Server) userCreate(w http.ResponseWriter, r *http.Request) error {
 	if err := r.ParseForm(); err != nil {
 		return err
 	}
-	f := views.UserForm{Email: r.PostForm.Get("email"), Name: r.PostForm.Get("name"), Role: r.PostForm.Get("role")}
+	rd := readForm(r.PostForm)
+	f := views.UserForm{Email: rd.raw("email"), Name: rd.raw("name"), Role: rd.text("role")}
 	pw := credential.RandomPassword(16)
 	hash, err := credential.Hash(pw, s.pwParams)
 	if err != nil {
 		return err
 	}
 	u, err := s.store.CreateUser(r.Context(), s.actor(r), db.NewUser{Email: f.Email, Name: f.Name, Role: cohort.Role(f.Role), PasswordHash: hash})
-	var ve *cohort.ValidationError
-	switch {
-	case errors.As(err, &ve):
-		f.Errors = ve.Fields
-		return s.usersPage(w, r, http.StatusUnprocessableEntity, f, "")
-	case errors.Is(err, cohort.ErrConflict):
-		f.Errors = map[string]string{"email": "an account with this e-mail address already exists"}
-		return s.usersPage(w, r, http.StatusConflict, f, "")
-	case err != nil:
-		return err
+	if err != nil {
+		no, ok := refused(r, err, map[string]string{"email": "an account with this e-mail address already exists"})
+		if !ok {
+			return err
+		}
+		f.Errors = no.Fields
+		return s.usersPage(w, r, no.Status, f, "")
 	}
 	return s.usersPage(w, r, http.StatusOK, views.UserForm{Role: string(cohort.Coordinator)},
 		fmt.Sprintf("Account created for %s. First password (shown once, give it to them privately): %s", u.Email, pw))
@@ -113,27 +109,19 @@ func (s *Server) userUpdate(w http.ResponseWriter, r *http.Request) error {
 	if err := r.ParseForm(); err != nil {
 		return err
 	}
-	version, _ := strconv.Atoi(r.PostForm.Get("version"))
-	f := views.UserForm{Name: r.PostForm.Get("name"), Role: r.PostForm.Get("role"), Active: r.PostForm.Get("active") == "on", Version: version}
-	_, err = s.store.UpdateUser(r.Context(), s.actor(r), u.ID, db.UserChange{Name: f.Name, Role: cohort.Role(f.Role), Active: f.Active, Version: version})
-	var ve *cohort.ValidationError
-	var ce *cohort.ConflictError
-	switch {
-	case errors.As(err, &ve):
-		f.Errors = ve.Fields
-	case errors.As(err, &ce):
-		f.Errors = map[string]string{"form": ce.Message}
-	case err != nil:
-		return err
-	default:
+	rd := readForm(r.PostForm)
+	f := views.UserForm{Name: rd.raw("name"), Role: rd.text("role"), Active: rd.ticked("active"), Version: rd.version()}
+	_, err = s.store.UpdateUser(r.Context(), s.actor(r), u.ID, db.UserChange{Name: f.Name, Role: cohort.Role(f.Role), Active: f.Active, Version: f.Version})
+	if err == nil {
 		http.Redirect(w, r, "/admin/users", http.StatusSeeOther)
 		return nil
 	}
-	status := http.StatusUnprocessableEntity
-	if ce != nil {
-		status = http.StatusConflict
+	no, ok := refused(r, err, nil)
+	if !ok {
+		return err
 	}
-	s.render(w, r, status, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u})[0], Form: f, Roles: roleOptions()}))
+	f.Errors = no.Fields
+	s.render(w, r, no.Status, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u})[0], Form: f, Roles: roleOptions()}))
 	return nil
 }
 

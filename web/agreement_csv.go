@@ -1,7 +1,6 @@
 package web
 
 import (
-	"math"
 	"strconv"
 
 	"cohortdesk/cohort/cascade"
@@ -45,13 +44,4 @@ func agreementRecord(g cascade.Group) []string {
 		strconv.Itoa(g.Confirmed), ppv, wl, wh, el, eh, strconv.Itoa(g.Uninterpretable.X), strconv.Itoa(g.Uninterpretable.N),
 		med(g.Median.Reached, g.Median.Time), med(g.Median.LoReached, g.Median.Lo), med(g.Median.HiReached, g.Median.Hi),
 		strconv.Itoa(g.Events), strconv.Itoa(g.Censored)}
-}
-
-// num writes a number for a CSV file: fractions with six decimals, nothing
-// for an undefined value.
-func num(v float64) string {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return ""
-	}
-	return strconv.FormatFloat(v, 'f', 6, 64)
 }

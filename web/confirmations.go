@@ -78,13 +78,6 @@ func statsFilter(q url.Values) cascade.Filter {
 	return f
 }
 
-func pct(v float64) string {
-	if math.IsNaN(v) {
-		return "—"
-	}
-	return strconv.FormatFloat(100*v, 'f', 1, 64) + "%"
-}
-
 func intervalText(iv stats.Interval, n int) string {
 	if n == 0 {
 		return "—"

@@ -9,7 +9,6 @@ import (
 	"path/filepath"
 	"strconv"
 
-	"cohortdesk/cohort"
 	"cohortdesk/db"
 	"cohortdesk/views"
 	"cohortdesk/views/components"
@@ -60,12 +59,12 @@ func (s *Server) externalVerdictsImport(w http.ResponseWriter, r *http.Request) 
 	}
 	defer f.Close()
 	res, err := s.store.ImportVerdicts(r.Context(), s.actor(r), filepath.Base(hdr.Filename), f)
-	var ve *cohort.ValidationError
-	if errors.As(err, &ve) {
-		return s.externalPage(w, r, http.StatusUnprocessableEntity, ve.Fields, nil)
-	}
 	if err != nil {
-		return err
+		no, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		return s.externalPage(w, r, no.Status, no.Fields, nil)
 	}
 	out := &views.ExternalResult{File: res.File, Summary: res.Summary(), Added: res.Added, Replaced: res.Replaced,
 		Duplicates: res.Duplicates, Rejected: res.Rejected}

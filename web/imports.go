@@ -93,30 +93,27 @@ func (s *Server) importCreate(w http.ResponseWriter, r *http.Request) error {
 		}
 		part.Close()
 	}
-	return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose a file to import.")
+	return s.renderImportForm(w, r, fieldError("file", "Choose a file to import."))
 }
 
-func uploadErr(err error) error {
-	var mbe *http.MaxBytesError
-	if errors.As(err, &mbe) {
-		return &cohort.PublicError{Message: fmt.Sprintf("the file is larger than %s; split it into several files", humanBytes(mbe.Limit)), Kind: errPayloadTooLarge}
+// renderImportForm shows the import form again after a refusal (see refused).
+func (s *Server) renderImportForm(w http.ResponseWriter, r *http.Request, err error) error {
+	f, ok := refused(r, err, nil)
+	if !ok {
+		return err
 	}
-	return err
-}
-
-func (s *Server) renderImportForm(w http.ResponseWriter, r *http.Request, status int, msg string) error {
-	s.render(w, r, status, views.ImportForm(views.ImportFormModel{Page: s.page(r, "Import wear data", "participants"), MaxBytes: humanBytes(maxUploadBytes), Error: msg}))
+	s.render(w, r, f.Status, views.ImportForm(views.ImportFormModel{Page: s.page(r, "Import wear data", "participants"), MaxBytes: humanBytes(maxUploadBytes), Error: f.Message}))
 	return nil
 }
 
 func (s *Server) importPart(w http.ResponseWriter, r *http.Request, part *multipart.Part, kind string) error {
 	defer part.Close()
 	if kind != db.ImportReadingsCSV && kind != db.ImportFHIRBundle {
-		return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose the file's format.")
+		return s.renderImportForm(w, r, fieldError("kind", "Choose the file's format."))
 	}
 	name := part.FileName()
 	if name == "" {
-		return s.renderImportForm(w, r, http.StatusUnprocessableEntity, "Choose a file to import.")
+		return s.renderImportForm(w, r, fieldError("file", "Choose a file to import."))
 	}
 	rep, err := s.store.ImportReadings(r.Context(), s.actor(r), part, db.ImportOptions{Kind: kind, FileName: name, Size: r.ContentLength})
 	if err != nil {
@@ -191,17 +188,4 @@ func (s *Server) importRejects(w http.ResponseWriter, r *http.Request) error {
 	})
 	cw.Flush()
 	return err
-}
-
-func humanBytes(n int64) string {
-	const unit = 1024
-	if n < unit {
-		return fmt.Sprintf("%d B", n)
-	}
-	div, exp := int64(unit), 0
-	for m := n / unit; m >= unit; m /= unit {
-		div *= unit
-		exp++
-	}
-	return fmt.Sprintf("%.1f %ciB", float64(n)/float64(div), "KMGTPE"[exp])
 }

@@ -3,6 +3,7 @@ package web
 import (
 	"net/http"
 	"strconv"
+	"strings"
 
 	"github.com/go-chi/chi/v5"
 )
@@ -20,3 +21,11 @@ func idParam(r *http.Request) (int64, error) {
 
 // urlParam reads another path parameter of a route.
 func urlParam(r *http.Request, name string) string { return chi.URLParam(r, name) }
+
+// safeBack keeps a return address on this site.
+func safeBack(v, fallback string) string {
+	if !strings.HasPrefix(v, "/") || strings.HasPrefix(v, "//") || strings.Contains(v, `\`) {
+		return fallback
+	}
+	return v
+}

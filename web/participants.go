@@ -3,7 +3,6 @@ package web
 import (
 	"context"
 	"encoding/csv"
-	"errors"
 	"fmt"
 	"net/http"
 	"net/url"
@@ -12,6 +11,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/enrolment"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -25,7 +25,7 @@ type participantStore interface {
 	Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (db.Identity, error)
 	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
 	UpdateParticipant(ctx context.Context, a cohort.Actor, id int64, in db.ParticipantInput) (db.Participant, error)
-	Withdraw(ctx context.Context, a cohort.Actor, id int64, on, reason string, version int) (db.Participant, error)
+	Withdraw(ctx context.Context, a cohort.Actor, id int64, on cohort.Date, reason string, version int) (db.Participant, error)
 	Timeline(ctx context.Context, p db.Participant) ([]db.WeekLine, error)
 	Notes(ctx context.Context, participantID int64) ([]db.Note, error)
 	AddNote(ctx context.Context, a cohort.Actor, participantID int64, body string) error
@@ -279,7 +279,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 			row.WearHours = strconv.FormatFloat(l.WearHours, 'f', 1, 64)
 		}
 		if l.CaseID != 0 {
-			row.CaseHref, row.CaseState = fmt.Sprintf("/cases/%d", l.CaseID), caseStateLabel(l.CaseState)
+			row.CaseHref, row.CaseState = fmt.Sprintf("/cases/%d", l.CaseID), l.CaseState.Label()
 		}
 		m.Timeline = append(m.Timeline, row)
 	}
@@ -319,22 +319,19 @@ func defaultChartWeek(lines []db.WeekLine) int {
 	return best
 }
 
-// formValues reads the participant form.
-func participantInput(r *http.Request) (db.ParticipantInput, map[string]string) {
-	f := r.PostForm
-	vals := map[string]string{}
-	for k := range f {
-		vals[k] = f.Get(k)
-	}
-	in := db.ParticipantInput{StudyID: f.Get("study_id"), Sex: cohort.Sex(f.Get("sex")), TimeZone: strings.TrimSpace(f.Get("time_zone")),
-		EnrolledOn: f.Get("enrolled_on"), ConsentVersion: strings.TrimSpace(f.Get("consent_version")), WatchModel: strings.TrimSpace(f.Get("watch_model")),
-		RRCapable: f.Get("rr_capable") == "on", BirthDate: f.Get("birth_date"),
-		Identity: db.Identity{GivenName: f.Get("given_name"), FamilyName: f.Get("family_name"), Phone: f.Get("phone"), Email: f.Get("email"),
-			Street: f.Get("street"), City: f.Get("city"), ZIP: f.Get("zip"), DeviceSerial: f.Get("device_serial")}}
-	in.SiteID, _ = strconv.Atoi(f.Get("site_id"))
-	in.Version, _ = strconv.Atoi(f.Get("version"))
+// participantInput reads the enrol and edit form. What cannot be read is
+// refused together with what the enrolment rules say about the rest.
+func (s *Server) participantInput(r *http.Request) (db.ParticipantInput, error) {
+	f := readForm(r.PostForm)
+	in := db.ParticipantInput{StudyID: f.text("study_id"), Sex: cohort.Sex(f.text("sex")), TimeZone: f.text("time_zone"),
+		EnrolledOn: f.date("enrolled_on", "enrolment date"), ConsentVersion: f.text("consent_version"), WatchModel: f.text("watch_model"),
+		RRCapable: f.ticked("rr_capable"), Version: f.version(),
+		Identity: db.Identity{GivenName: f.raw("given_name"), FamilyName: f.raw("family_name"), Phone: f.raw("phone"), Email: f.raw("email"),
+			Street: f.raw("street"), City: f.raw("city"), ZIP: f.raw("zip"), DeviceSerial: f.raw("device_serial"),
+			BirthDate: f.optionalDate("birth_date", "birth date")}}
+	in.SiteID, _ = strconv.Atoi(f.text("site_id")) // 0, no site, is refused by the rules
 	answer := func(k string) *bool {
-		switch f.Get(k) {
+		switch f.text(k) {
 		case "yes":
 			t := true
 			return &t
@@ -346,7 +343,7 @@ func participantInput(r *http.Request) (db.ParticipantInput, map[string]string) 
 	}
 	in.Risk = db.Risk{Hypertension: answer("hypertension"), Diabetes: answer("diabetes"), HeartFailure: answer("heart_failure"),
 		PriorStroke: answer("prior_stroke"), VascularDisease: answer("vascular_disease")}
-	return in, vals
+	return in, f.check(func() error { return in.Check(cohort.DateOf(s.now())) })
 }
 
 func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
@@ -359,38 +356,30 @@ func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
 		Action: "/participants", Heading: "Enrol a participant", Values: vals, Sites: sites, ShowPHI: true}))
 }
 
-// formFailure renders a form again with messages: 422 for invalid input, 409
-// when someone else changed the record.
-func formFailure(err error) (map[string]string, int, bool) {
-	var ve *cohort.ValidationError
-	var ce *cohort.ConflictError
-	switch {
-	case errors.As(err, &ve):
-		return ve.Fields, http.StatusUnprocessableEntity, true
-	case errors.As(err, &ce):
-		return map[string]string{"form": ce.Message}, http.StatusConflict, true
-	case errors.Is(err, cohort.ErrConflict):
-		return map[string]string{"form": "this clashes with a stored record (for example the study ID is taken)", "study_id": "already in use"}, http.StatusConflict, true
-	}
-	return nil, 0, false
-}
+// participantClash words a clash of an enrolment with a stored record.
+var participantClash = map[string]string{"form": "this clashes with a stored record (for example the study ID is taken)", "study_id": "already in use"}
 
 func (s *Server) participantCreate(w http.ResponseWriter, r *http.Request) error {
 	if err := r.ParseForm(); err != nil {
 		return err
 	}
-	in, vals := participantInput(r)
-	p, err := s.store.Enrol(r.Context(), s.actor(r), in)
-	if errs, status, ok := formFailure(err); ok {
+	in, err := s.participantInput(r)
+	var p db.Participant
+	if err == nil {
+		p, err = s.store.Enrol(r.Context(), s.actor(r), in)
+	}
+	if err != nil {
+		f, ok := refused(r, err, participantClash)
+		if !ok {
+			return err
+		}
 		sites, _, serr := s.siteOptions(r.Context())
 		if serr != nil {
 			return serr
 		}
-		s.render(w, r, status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
-			Action: "/participants", Heading: "Enrol a participant", Values: vals, Errors: errs, Sites: sites, ShowPHI: true}))
+		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
+			Action: "/participants", Heading: "Enrol a participant", Values: f.Values, Errors: f.Fields, Sites: sites, ShowPHI: true}))
 		return nil
-	} else if err != nil {
-		return err
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil
@@ -439,18 +428,22 @@ func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error
 	if err := r.ParseForm(); err != nil {
 		return err
 	}
-	in, vals := participantInput(r)
-	_, err = s.store.UpdateParticipant(r.Context(), s.actor(r), p.ID, in)
-	if errs, status, ok := formFailure(err); ok {
+	in, err := s.participantInput(r)
+	if err == nil {
+		_, err = s.store.UpdateParticipant(r.Context(), s.actor(r), p.ID, in)
+	}
+	if err != nil {
+		f, ok := refused(r, err, participantClash)
+		if !ok {
+			return err
+		}
 		sites, _, serr := s.siteOptions(r.Context())
 		if serr != nil {
 			return serr
 		}
-		s.render(w, r, status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
-			Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: vals, Errors: errs, Sites: sites, Version: in.Version, ShowPHI: true}))
+		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
+			Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: f.Values, Errors: f.Fields, Sites: sites, Version: in.Version, ShowPHI: true}))
 		return nil
-	} else if err != nil {
-		return err
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil
@@ -473,14 +466,20 @@ func (s *Server) participantWithdraw(w http.ResponseWriter, r *http.Request) err
 	if err := r.ParseForm(); err != nil {
 		return err
 	}
-	version, _ := strconv.Atoi(r.PostForm.Get("version"))
-	_, err = s.store.Withdraw(r.Context(), s.actor(r), p.ID, r.PostForm.Get("withdrawn_on"), r.PostForm.Get("reason"), version)
-	if errs, status, ok := formFailure(err); ok {
-		s.render(w, r, status, views.Withdraw(views.WithdrawModel{Page: s.page(r, "Withdraw "+p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID,
-			Values: map[string]string{"withdrawn_on": r.PostForm.Get("withdrawn_on"), "reason": r.PostForm.Get("reason")}, Errors: errs, Version: version}))
+	f := readForm(r.PostForm)
+	wd := enrolment.Withdrawal{On: f.date("withdrawn_on", "withdrawal date"), Reason: f.raw("reason")}
+	err = f.check(func() error { return wd.Check(cohort.DateOf(s.now())) })
+	if err == nil {
+		_, err = s.store.Withdraw(r.Context(), s.actor(r), p.ID, wd.On, wd.Reason, f.version())
+	}
+	if err != nil {
+		no, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		s.render(w, r, no.Status, views.Withdraw(views.WithdrawModel{Page: s.page(r, "Withdraw "+p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID,
+			Values: no.Values, Errors: no.Fields, Version: f.version()}))
 		return nil
-	} else if err != nil {
-		return err
 	}
 	if err := s.afterWithdrawal(r, p.ID); err != nil {
 		return err

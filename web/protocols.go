@@ -2,7 +2,6 @@ package web
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
 	"net/http"
@@ -194,7 +193,7 @@ func (s *Server) protocolCreate(w http.ResponseWriter, r *http.Request) error {
 			if strings.TrimSpace(note) == "" {
 				errs["note"] = "say what this version changes and why"
 			}
-			return s.protocolFormPage(w, r, http.StatusUnprocessableEntity, base, base.Params, vals, note, js, errs)
+			return s.protocolFailure(w, r, base, base.Params, vals, note, js, &cohort.ValidationError{Fields: errs})
 		}
 	}
 	v, err := s.store.CreateProtocolVersion(r.Context(), s.actor(r), db.NewProtocolVersion{BasedOn: base.ID, Params: params, Note: note})
@@ -209,16 +208,15 @@ func (s *Server) protocolCreate(w http.ResponseWriter, r *http.Request) error {
 	return nil
 }
 
+// protocolFailure shows the form again after a refusal (see refused): the
+// messages beside the parameters, the note's also beside the JSON form's note.
 func (s *Server) protocolFailure(w http.ResponseWriter, r *http.Request, base db.ProtocolVersion, shown screen.Protocol,
 	vals map[string]string, note, js string, err error) error {
-	var ve *cohort.ValidationError
-	if !errors.As(err, &ve) {
+	f, ok := refused(r, err, nil)
+	if !ok {
 		return err
 	}
-	errs := map[string]string{}
-	for k, v := range ve.Fields {
-		errs[k] = v
-	}
+	errs := f.Fields
 	if msg, ok := errs["note"]; ok {
 		errs["json-note"] = msg
 	}
@@ -228,7 +226,7 @@ func (s *Server) protocolFailure(w http.ResponseWriter, r *http.Request, base db
 			vals[l.Path] = l.Value
 		}
 	}
-	return s.protocolFormPage(w, r, http.StatusUnprocessableEntity, base, shown, vals, note, js, errs)
+	return s.protocolFormPage(w, r, f.Status, base, shown, vals, note, js, errs)
 }
 
 // protocolActivate makes a version active and, when asked, queues the

@@ -56,12 +56,10 @@ func verdictView(r db.Recording) (string, components.Tone) {
 	return v.Rhythm.Label(), components.Info
 }
 
-func seconds(s float64) string { return strconv.FormatFloat(s, 'f', 1, 64) + " s" }
-
 // acceptsRecordings says why a case cannot take a recording now, "" when it
-// can (the store's rule, as a sentence).
+// can (followup.TakesRecordings, as a sentence).
 func acceptsRecordings(st followup.State) string {
-	msg := db.TakesRecordings(st)
+	msg := followup.TakesRecordings(st)
 	if msg == "" {
 		return ""
 	}
@@ -74,7 +72,7 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 	if err != nil {
 		return nil, err
 	}
-	m := views.CaseECGModel{CaseID: c.ID, CanAdd: coordWork.allows(role(r)), Closed: acceptsRecordings(c.State), Errors: errs,
+	m := views.CaseECGModel{CaseID: c.ID, CanAdd: followup.StepRecording.By(role(r)), Closed: acceptsRecordings(c.State), Errors: errs,
 		MaxBytes: humanBytes(ecg.MaxFileBytes), MaxSeconds: ecg.MaxRecordingSeconds, MinRateHz: int(ecg.MinRateHz), MaxRateHz: int(ecg.MaxRateHz),
 		Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
 	if r.MultipartForm != nil {
@@ -194,16 +192,15 @@ func (s *Server) caseRecordingAdd(w http.ResponseWriter, r *http.Request) error 
 		}
 		err = &cohort.ValidationError{Fields: map[string]string{"waveform": "send the form as a multipart upload"}}
 	}
-	if statusOf(err) != http.StatusUnprocessableEntity {
+	f, ok := refused(r, err, nil)
+	if !ok {
 		return err
 	}
-	var ve *cohort.ValidationError
-	errors.As(err, &ve)
 	c, err := s.store.Case(r.Context(), id)
 	if err != nil {
 		return err
 	}
-	return s.renderCase(w, r, c, http.StatusUnprocessableEntity, ve.Fields, "The recording was not stored: "+humanMessage(ve))
+	return s.renderCase(w, r, c, f.Status, f.Fields, "The recording was not stored: "+f.Message)
 }
 
 // recordingShow is a recording's page.
@@ -391,14 +388,13 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=read", id), http.StatusSeeOther)
 		return nil
 	}
-	if statusOf(err) != http.StatusUnprocessableEntity {
+	f, ok := refused(r, err, nil)
+	if !ok {
 		return err
 	}
 	rec, lerr := s.store.Recording(r.Context(), id)
 	if lerr != nil {
 		return lerr
 	}
-	var fe *cohort.ValidationError
-	errors.As(err, &fe)
-	return s.renderRecording(w, r, rec, http.StatusUnprocessableEntity, fe.Fields, "The reading was not entered: "+humanMessage(err))
+	return s.renderRecording(w, r, rec, f.Status, f.Fields, "The reading was not entered: "+f.Message)
 }

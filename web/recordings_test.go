@@ -31,7 +31,7 @@ func shippedCases(t *testing.T, a *app, n int) []int64 {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if _, err := a.store.RecordShipment(ctx, coord, id, c.Version, time.Now().UTC().Format("2006-01-02"), ""); err != nil {
+		if _, err := a.store.RecordShipment(ctx, coord, id, c.Version, cohort.DateOf(time.Now().UTC()), ""); err != nil {
 			t.Fatal(err)
 		}
 	}

@@ -1,8 +1,6 @@
 package web
 
 import (
-	"strings"
-
 	"cohortdesk/cohort/referral"
 	"cohortdesk/views/referralpdf"
 )
@@ -24,12 +22,4 @@ func paperOf(v string) string {
 // referralPDF draws a summary as a PDF on the chosen paper.
 func referralPDF(sum referral.Summary, paper string) ([]byte, error) {
 	return referralpdf.Render(sum, paper)
-}
-
-// orDash shows an empty value as a dash.
-func orDash(s string) string {
-	if strings.TrimSpace(s) == "" {
-		return "—"
-	}
-	return s
 }

@@ -255,11 +255,11 @@ func (s *Server) referralSignOff(w http.ResponseWriter, r *http.Request) error {
 		return s.renderRecorded(w, r, http.StatusUnprocessableEntity, map[string]string{"reviewed": msg}, "Please "+msg+".")
 	}
 	if _, err := s.store.SignOffReferral(r.Context(), s.actor(r), id); err != nil {
-		status := statusOf(err)
-		if status != http.StatusUnprocessableEntity && status != http.StatusConflict {
+		f, ok := refused(r, err, nil)
+		if !ok {
 			return err
 		}
-		return s.renderRecorded(w, r, status, nil, humanMessage(err))
+		return s.renderRecorded(w, r, f.Status, nil, f.Message)
 	}
 	http.Redirect(w, r, fmt.Sprintf("/referrals/%d?done=signoff", id), http.StatusSeeOther)
 	return nil

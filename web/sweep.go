@@ -1,15 +1,14 @@
 package web
 
 import (
-	"errors"
 	"fmt"
+	"maps"
 	"math"
 	"net/http"
 	"net/url"
 	"strconv"
 	"strings"
 
-	"cohortdesk/cohort"
 	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
@@ -285,22 +284,20 @@ func (s *Server) sweepStart(w http.ResponseWriter, r *http.Request) error {
 	status := http.StatusOK // no protocol yet: the page says so
 	if c != nil {
 		c.parseRange()
+		status = http.StatusUnprocessableEntity
 		if len(c.errs) == 0 {
 			id, err := s.store.StartSweep(r.Context(), s.actor(r), c.version.ID, c.param, c.values())
-			var ve *cohort.ValidationError
-			switch {
-			case errors.As(err, &ve):
-				for k, v := range ve.Fields {
-					c.errs[k] = v
-				}
-			case err != nil:
-				return err
-			default:
+			if err == nil {
 				http.Redirect(w, r, sweepHref(id), http.StatusSeeOther)
 				return nil
 			}
+			f, ok := refused(r, err, nil)
+			if !ok {
+				return err
+			}
+			maps.Copy(c.errs, f.Fields)
+			status = f.Status
 		}
-		status = http.StatusUnprocessableEntity
 	}
 	m, err := s.sweepModel(r, c, all)
 	if err != nil {

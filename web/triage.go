@@ -3,6 +3,7 @@ package web
 import (
 	"fmt"
 	"net/http"
+	"slices"
 	"strconv"
 
 	"cohortdesk/cohort/followup"
@@ -28,32 +29,22 @@ var triageGroups = []struct {
 	{followup.BucketAwaitingOverRead, "overread", "Recordings waiting for an over-read", "Recordings back from participants that no clinician has read yet, oldest first.", "/cases?state=recording_received"},
 }
 
-// triageRow builds one row with the actions the signed-in person may take.
+// triageRow builds one row with the one-click steps the case offers the
+// signed-in person (followup.QuickSteps).
 func (s *Server) triageRow(r *http.Request, t db.Triage, row db.TriageRow, workers []views.Option) views.TriageRowView {
 	u, _ := userFrom(r.Context())
+	quick := followup.QuickSteps(row.State, u.Role)
+	offered := func(s followup.Step) bool { return slices.Contains(quick, s) }
 	v := views.TriageRowView{CaseRowView: caseRow(row.Case, t.Settings, t.Now, false), Group: row.Bucket.Label(),
-		Mine: row.OwnerID == u.ID, Me: strconv.FormatInt(u.ID, 10), CanContact: coordWork.allows(u.Role),
-		ShowAttempt:  row.State == followup.Open || row.State == followup.Contacting || row.State == followup.RecorderSent,
-		ShowShipment: row.State == followup.Reached, Assignees: workers, Today: t.Settings.Calendar().DateOf(t.Now).String()}
+		Me: strconv.FormatInt(u.ID, 10), CanAssign: offered(followup.StepAssign), CanTake: offered(followup.StepAssign) && row.OwnerID != u.ID,
+		CanAttempt: offered(followup.StepAttempt), CanShip: offered(followup.StepShipment),
+		Assignees: workers, Today: t.Settings.Calendar().DateOf(t.Now).String()}
 	if row.State.Terminal() {
-		v.ShowAttempt, v.ShowShipment, v.Mine = false, false, true
 		v.Group = "closed"
 	}
 	v.Channels, v.Outcomes = channelOptions, outcomeOptions
 	return v
 }
-
-// channelOptions and outcomeOptions are the choices of the attempt forms,
-// built once: every row of the page shares them.
-var channelOptions, outcomeOptions = func() (ch, out []views.Option) {
-	for _, c := range followup.Channels() {
-		ch = append(ch, views.Option{Value: string(c), Label: c.Label()})
-	}
-	for _, o := range followup.Outcomes() {
-		out = append(out, views.Option{Value: string(o), Label: o.Label()})
-	}
-	return ch, out
-}()
 
 // triage is the coordinators' morning list: the urgent groups in the order of
 // followup.Urgency, with counts and one-step actions.
@@ -105,11 +96,11 @@ func (s *Server) triageRowAnswer(w http.ResponseWriter, r *http.Request, id int6
 	row := s.triageRow(r, t, t.Rows[0], workerOptions(us, false))
 	status := http.StatusOK
 	if actionErr != nil {
-		status = statusOf(actionErr)
-		if status != http.StatusUnprocessableEntity && status != http.StatusConflict {
+		f, ok := refused(r, actionErr, nil)
+		if !ok {
 			return actionErr
 		}
-		row.Error = humanMessage(actionErr)
+		status, row.Error = f.Status, f.Message
 	} else {
 		row.Done = doneMessages[done] + " Now: " + row.Group + "."
 	}

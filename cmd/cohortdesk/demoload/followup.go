@@ -210,8 +210,8 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 		switch {
 		case ev.attempt != nil:
 			a := ev.attempt
-			_, err = cs.LogAttempt(ctx, actor(a.By), id, db.AttemptInput{Version: c.Version, Channel: string(channelOf[a.Channel]),
-				Outcome: string(outcomeOf[a.Outcome]), Note: a.Note})
+			_, err = cs.LogAttempt(ctx, actor(a.By), id, db.AttemptInput{Version: c.Version, Channel: channelOf[a.Channel],
+				Outcome: outcomeOf[a.Outcome], Note: a.Note})
 		case ev.arrive != nil:
 			recID[ev.arrive], err = addRecording(ctx, cs, actor(f.Owner), id, *ev.arrive, uint64(id)*31+uint64(len(recID)))
 		case ev.read != nil:
@@ -239,7 +239,7 @@ func playMove(ctx context.Context, cs *db.Store, a cohort.Actor, c db.Case, to f
 	if c.State == to {
 		return nil
 	}
-	day := at.Format("2006-01-02")
+	day := cohort.DateOf(at)
 	var err error
 	switch to {
 	case followup.RecorderSent:
@@ -252,9 +252,9 @@ func playMove(ctx context.Context, cs *db.Store, a cohort.Actor, c db.Case, to f
 		_, err = cs.AdvanceCase(ctx, a, c.ID, to, at, "referral summary sent to the participant's physician")
 	default:
 		if to.Terminal() {
-			_, err = cs.CloseCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: string(to), Reason: closingReason(to)})
+			_, err = cs.CloseCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: to, Reason: closingReason(to)})
 		} else {
-			_, err = cs.MoveCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: string(to)})
+			_, err = cs.MoveCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: to})
 		}
 	}
 	return err

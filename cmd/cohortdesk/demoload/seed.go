@@ -198,18 +198,19 @@ func loadParticipants(ctx context.Context, store *db.Store, a cohort.Actor, st *
 		siteID[s.Code] = s.ID
 	}
 	for _, p := range st.Participants {
-		in := db.ParticipantInput{StudyID: p.StudyID, SiteID: siteID[p.Site], Sex: p.Sex, TimeZone: p.TimeZone, EnrolledOn: p.Enrolled.String(),
-			ConsentVersion: p.ConsentVersion, WatchModel: p.Watch, RRCapable: p.HasRR, BirthDate: p.BirthDate.String(),
+		birth := p.BirthDate
+		in := db.ParticipantInput{StudyID: p.StudyID, SiteID: siteID[p.Site], Sex: p.Sex, TimeZone: p.TimeZone, EnrolledOn: p.Enrolled,
+			ConsentVersion: p.ConsentVersion, WatchModel: p.Watch, RRCapable: p.HasRR,
 			Risk: db.Risk{Hypertension: answer(p.Intake.Hypertension), Diabetes: answer(p.Intake.Diabetes), HeartFailure: answer(p.Intake.HeartFailure),
 				PriorStroke: answer(p.Intake.StrokeTIA), VascularDisease: answer(p.Intake.Vascular)},
 			Identity: db.Identity{GivenName: p.GivenName, FamilyName: p.FamilyName, Phone: p.Phone, Email: p.Email, Street: p.Street,
-				City: p.City, ZIP: p.ZIP, DeviceSerial: p.Serial}}
+				City: p.City, ZIP: p.ZIP, DeviceSerial: p.Serial, BirthDate: &birth}}
 		enrolled, err := store.Enrol(ctx, a, in)
 		if err != nil {
 			return fmt.Errorf("seed: enrol %s: %w", p.StudyID, err)
 		}
 		if !p.Withdrawn.IsZero() {
-			if _, err := store.Withdraw(ctx, a, enrolled.ID, p.Withdrawn.String(), p.WithdrawalReason, enrolled.Version); err != nil {
+			if _, err := store.Withdraw(ctx, a, enrolled.ID, p.Withdrawn, p.WithdrawalReason, enrolled.Version); err != nil {
 				return fmt.Errorf("seed: withdraw %s: %w", p.StudyID, err)
 			}
 		}

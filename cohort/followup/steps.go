@@ -1,0 +1,182 @@
+package followup
+
+import (
+	"fmt"
+	"slices"
+
+	"cohortdesk/cohort"
+)
+
+// Step is one thing a person does to a case. The case page has a form for
+// every step its case offers; a triage row has one-step forms for the quick
+// ones. The values are stable: pages and tests name steps by them.
+type Step string
+
+// The steps of working a case.
+const (
+	StepAssign    Step = "assign"    // give the case to someone, or take it on
+	StepAttempt   Step = "attempt"   // log an attempt to reach the participant
+	StepShipment  Step = "shipment"  // record the recorder's shipment (or correct it while it is out)
+	StepReturn    Step = "return"    // record the day the recording came back
+	StepRecording Step = "recording" // add an ECG recording to the case
+	StepMove      Step = "move"      // move the case to another working state
+	StepClose     Step = "close"     // end the case, with the reason
+	StepNote      Step = "note"      // change the short working note
+)
+
+// WorksCases is the rule for who works cases: who may own one, take it on,
+// move or close it and keep its note. They are the roles that see the
+// participant's contact details.
+func WorksCases(r cohort.Role) bool {
+	return r == cohort.Coordinator || r == cohort.Investigator || r == cohort.Admin
+}
+
+// ReachesParticipants is the rule for who contacts participants and handles
+// the recorders: attempts, shipments, returns and recordings. Investigators
+// work cases but leave this to the coordinators.
+func ReachesParticipants(r cohort.Role) bool {
+	return r == cohort.Coordinator || r == cohort.Admin
+}
+
+// CaseWorkerRoles lists the roles WorksCases admits, for a query that picks
+// the people a case may be given to.
+func CaseWorkerRoles() []cohort.Role {
+	var out []cohort.Role
+	for _, r := range cohort.Roles {
+		if WorksCases(r) {
+			out = append(out, r)
+		}
+	}
+	return out
+}
+
+// stepRule is one row of the step table: who may take the step, in which
+// states a case offers it, and in which of those a triage row offers it in
+// one click because it is the step the case waits for.
+type stepRule struct {
+	step  Step
+	who   func(cohort.Role) bool
+	in    func(State) bool
+	quick func(State) bool
+}
+
+func working(st State) bool { return st.Valid() && !st.Terminal() }
+
+func oneOf(states ...State) func(State) bool {
+	return func(st State) bool { return slices.Contains(states, st) }
+}
+
+func never(State) bool { return false }
+
+// hasNext reports whether some allowed move of st leads to a final state
+// (final true) or to a working state (final false).
+func hasNext(final bool) func(State) bool {
+	return func(st State) bool {
+		return slices.ContainsFunc(Next(st), func(n State) bool { return n.Terminal() == final })
+	}
+}
+
+// stepTable is the one answer to "which steps does a case in this state
+// offer, to whom", in the order the case page shows them. Final cases offer
+// nothing: a later positive week opens a new case instead.
+//
+//   - A contact attempt can be logged in every working state (a reminder
+//     call after the recorder went out, news passed on after the over-read);
+//     the triage row offers it where reaching the participant is what the
+//     case waits for: open, contacting, and a recorder out whose recording
+//     is chased like a contact.
+//   - The shipment is recorded once the participant is reached, may be
+//     corrected (date, tracking number) while the recorder is out, and is
+//     recorded again when a returned recording was unusable and a repeat is
+//     sent (the state table's way back from "recording received").
+//   - A recording can be added once the recorder went out and until the case
+//     ends: a repeat recording may follow an unusable one or an over-read.
+var stepTable = []stepRule{
+	{StepAssign, WorksCases, working, working},
+	{StepAttempt, ReachesParticipants, working, oneOf(Open, Contacting, RecorderSent)},
+	{StepShipment, ReachesParticipants, oneOf(Reached, RecorderSent, RecordingReceived), oneOf(Reached)},
+	{StepReturn, ReachesParticipants, oneOf(RecorderSent), never},
+	{StepRecording, ReachesParticipants, oneOf(RecorderSent, RecordingReceived, OverRead), never},
+	{StepMove, WorksCases, hasNext(false), never},
+	{StepClose, WorksCases, hasNext(true), never},
+	{StepNote, WorksCases, working, never},
+}
+
+// Offers lists the steps a case in state st offers to a person in role r,
+// in the order the case page shows them; nil for a final or unknown state or
+// a role that works no cases.
+func Offers(st State, r cohort.Role) []Step {
+	var out []Step
+	for _, s := range stepTable {
+		if working(st) && s.in(st) && s.who(r) {
+			out = append(out, s.step)
+		}
+	}
+	return out
+}
+
+// QuickSteps lists the steps of Offers that a triage row offers in one
+// click: taking the case on, and the step the case waits for.
+func QuickSteps(st State, r cohort.Role) []Step {
+	var out []Step
+	for _, s := range stepTable {
+		if working(st) && s.in(st) && s.quick(st) && s.who(r) {
+			out = append(out, s.step)
+		}
+	}
+	return out
+}
+
+// Offered reports whether a case in st offers step s to role r.
+func Offered(st State, r cohort.Role, s Step) bool { return slices.Contains(Offers(st, r), s) }
+
+// By reports whether role r may take step s at all, in whatever state.
+func (s Step) By(r cohort.Role) bool {
+	for _, rule := range stepTable {
+		if rule.step == s {
+			return rule.who(r)
+		}
+	}
+	return false
+}
+
+// OfferedIn reports whether a case in st offers step s to the roles that may
+// take it.
+func (s Step) OfferedIn(st State) bool {
+	for _, rule := range stepTable {
+		if rule.step == s {
+			return working(st) && rule.in(st)
+		}
+	}
+	return false
+}
+
+// stepMoves are the states the steps that move a case move it to.
+var stepMoves = map[Step]State{StepShipment: RecorderSent, StepReturn: RecordingReceived}
+
+// CheckStep refuses step s on a case in state st when the step table does
+// not offer it there. For a step that moves the case the message is Move's,
+// naming the allowed next states.
+func CheckStep(st State, s Step) error {
+	if s.OfferedIn(st) {
+		return nil
+	}
+	if to, ok := stepMoves[s]; ok {
+		if err := Move(st, to); err != nil {
+			return err
+		}
+	}
+	return &cohort.ValidationError{Fields: map[string]string{"state": fmt.Sprintf("a case that is %s does not take this step", st.Label())}}
+}
+
+// TakesRecordings says why a case in state st cannot take a recording, ""
+// when it can: the recorder must have gone out and the case be still worked.
+func TakesRecordings(st State) string {
+	switch {
+	case StepRecording.OfferedIn(st):
+		return ""
+	case st.Terminal():
+		return "the case is closed (" + st.Label() + "); no recording can be added"
+	}
+	return "record the recorder's shipment first: the case is " + st.Label()
+}

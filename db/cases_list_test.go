@@ -1,0 +1,136 @@
+package db_test
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"slices"
+	"testing"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
+	"cohortdesk/db"
+)
+
+func TestCaseListFiltersAndPages(t *testing.T) {
+	f := newCaseFixture(t, 120)
+	for i := 1; i <= 120; i++ {
+		f.positive(f.proto, fmt.Sprint("P", i), i%9)
+	}
+	f.sync()
+	ctx := context.Background()
+	// Spread the deadlines so pages cross ties and unset deadlines.
+	mustExec(t, f.s, `UPDATE cases SET due_at = CASE WHEN id % 10 = 0 THEN NULL ELSE $1::timestamptz + (id % 7) * interval '1 day' - interval '3 days' END`, fixedNow)
+	seen := map[int64]bool{}
+	var prev time.Time
+	prevUnset := false
+	filter := db.CaseFilter{Limit: 25}
+	pages := 0
+	for {
+		page, err := f.s.Cases(ctx, filter)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if page.Total != 120 {
+			t.Fatalf("total %d", page.Total)
+		}
+		pages++
+		for _, c := range page.Rows {
+			if seen[c.ID] {
+				t.Fatalf("case %d on two pages", c.ID)
+			}
+			seen[c.ID] = true
+			switch {
+			case c.DueAt.IsZero():
+				prevUnset = true
+			case prevUnset || c.DueAt.Before(prev):
+				t.Fatalf("order broken at case %d", c.ID)
+			default:
+				prev = c.DueAt
+			}
+		}
+		if page.Next == "" {
+			break
+		}
+		filter.After = page.Next
+	}
+	if len(seen) != 120 || pages != 5 {
+		t.Fatalf("saw %d cases on %d pages", len(seen), pages)
+	}
+	overdue := f.count(`SELECT count(*) FROM cases WHERE due_at <= $1`, fixedNow)
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{Overdue: true}); page.Total != int64(overdue) || overdue == 0 {
+		t.Fatalf("overdue filter %d, want %d", page.Total, overdue)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{SiteID: 1}); page.Total != 60 {
+		t.Fatalf("site filter %d, want 60", page.Total)
+	}
+	id := f.caseID("P7")
+	if _, err := f.s.AssignCase(ctx, f.coord, id, 1, f.coord.UserID); err != nil {
+		t.Fatal(err)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{OwnerID: f.coord.UserID}); page.Total != 1 || page.Rows[0].ID != id || page.Rows[0].Owner != "Staff coordinator" {
+		t.Fatalf("owner filter: %+v", page)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{Unowned: true}); page.Total != 119 {
+		t.Fatalf("unowned filter %d", page.Total)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{Scope: db.EndedCases}); page.Total != 0 {
+		t.Fatalf("final filter %d", page.Total)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{State: followup.Open}); page.Total != 120 {
+		t.Fatalf("state filter %d", page.Total)
+	}
+	if page, _ := f.s.Cases(ctx, db.CaseFilter{Scope: db.AllCases}); page.Total != 120 {
+		t.Fatalf("all cases %d", page.Total)
+	}
+	if _, err := f.s.Cases(ctx, db.CaseFilter{State: "bogus"}); err == nil {
+		t.Fatal("unknown state filter accepted")
+	}
+}
+
+func TestTriageGroupsAndRecordingsWaiting(t *testing.T) {
+	f := newCaseFixture(t, 4)
+	for _, p := range []string{"P1", "P2", "P3", "P4"} {
+		f.positive(f.proto, p, 2)
+	}
+	f.sync()
+	ctx := context.Background()
+	// P1 overdue, P2 due today (end of Monday 1 June), P3 new and unowned
+	// (due later), P4 waiting for an over-read with one recording unread.
+	mustExec(t, f.s, `UPDATE cases SET due_at = $2 WHERE participant_id = $1`, f.pids["P1"], fixedNow.Add(-time.Hour))
+	mustExec(t, f.s, `UPDATE cases SET due_at = $2 WHERE participant_id = $1`, f.pids["P2"], time.Date(2026, 6, 2, 0, 0, 0, 0, time.UTC))
+	p4 := f.caseID("P4")
+	mustExec(t, f.s, `UPDATE cases SET state = 'recording_received', owner_id = $2, recording_back_at = $3, due_at = $4, reached_at = $3, recorder_sent_at = $3 WHERE id = $1`,
+		p4, f.coord.UserID, fixedNow.Add(-48*time.Hour), fixedNow.Add(96*time.Hour))
+	mustExec(t, f.s, `INSERT INTO recordings (case_id, participant_id, taken_at, duration_s) VALUES ($1, $2, $3, 30)`, p4, f.pids["P4"], fixedNow.Add(-50*time.Hour))
+	tr, err := f.s.Triage(ctx, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var order []string
+	for _, r := range tr.Rows {
+		order = append(order, fmt.Sprintf("%s:%d", r.StudyID, r.Bucket))
+	}
+	want := []string{"P1:1", "P2:2", "P3:3", "P4:4"}
+	if !slices.Equal(order, want) {
+		t.Fatalf("triage order %v, want %v", order, want)
+	}
+	if tr.UnreadRecordings != 1 || tr.Counts[followup.BucketOverdue] != 1 || tr.Counts[followup.BucketAwaitingOverRead] != 1 {
+		t.Fatalf("counts %v, unread %d", tr.Counts, tr.UnreadRecordings)
+	}
+	one, err := f.s.TriageCase(ctx, p4)
+	if err != nil || len(one.Rows) != 1 || one.Rows[0].UnreadRecordings != 1 {
+		t.Fatalf("triage of one case: %+v %v", one.Rows, err)
+	}
+	if _, err := f.s.TriageCase(ctx, 999999); !errors.Is(err, cohort.ErrNotFound) {
+		t.Fatalf("unknown case: %v", err)
+	}
+	weeks, err := f.s.FlaggedWeeks(ctx, f.pids["P4"])
+	if err != nil || len(weeks) != 1 || weeks[0].CaseID != p4 {
+		t.Fatalf("flagged weeks %+v %v", weeks, err)
+	}
+	if got := fmt.Sprint(weeks[0].Metrics); got != "[{irregular_share 0.42} {windows.usable 120}]" {
+		t.Fatalf("metrics %s", got)
+	}
+}

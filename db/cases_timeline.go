@@ -1,0 +1,221 @@
+package db
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
+
+	"github.com/jackc/pgx/v5"
+)
+
+// The timeline of a case: everything that happened to it, as the case page
+// lists it.
+
+// CaseEventKind says what a timeline entry is about.
+type CaseEventKind string
+
+// The kinds of timeline entry.
+const (
+	EventChange    CaseEventKind = "change"    // an audited change of the case
+	EventAttempt   CaseEventKind = "attempt"   // a contact attempt
+	EventRecording CaseEventKind = "recording" // an ECG recording of the case
+	EventOverRead  CaseEventKind = "over_read" // a clinician's over-read
+)
+
+// FieldChange is one field's old and new value as shown to people.
+type FieldChange struct {
+	Field, Before, After string
+}
+
+// RecordingRef is an ECG recording as the case timeline shows it.
+type RecordingRef struct {
+	ID                 int64
+	TakenAt            time.Time
+	DurationS          float64
+	AutoInterpretation string
+	TooShort           bool
+	OverRead           bool // at least one over-read exists
+}
+
+// OverReadRef is an over-read as the case timeline shows it.
+type OverReadRef struct {
+	ID          int64
+	RecordingID int64
+	Role        string
+	Rhythm      string
+	Confidence  string
+	Reader      string
+	ReadOn      cohort.Date
+}
+
+// CaseEvent is one entry of a case's timeline.
+type CaseEvent struct {
+	At        time.Time
+	Kind      CaseEventKind
+	Actor     string
+	Action    followup.Edit // the edit, for a change
+	Changes   []FieldChange // what a change did
+	Attempt   *Attempt
+	Recording *RecordingRef
+	OverRead  *OverReadRef
+}
+
+// CaseTimeline lists everything that happened to a case, newest first: the
+// audited changes (an attempt's own entry stands in for its audit event), the
+// contact attempts, the recordings and the over-reads.
+func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([]CaseEvent, error) {
+	var out []CaseEvent
+	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly}, func(tx pgx.Tx) error {
+		rows, err := tx.Query(ctx, `
+			SELECT at, actor, action, old_value, new_value FROM audit_events
+			WHERE object_type = 'case' AND object_id = $1 AND action <> 'case.attempt'
+			ORDER BY id`, strconv.FormatInt(c.ID, 10))
+		if err != nil {
+			return err
+		}
+		for rows.Next() {
+			e := CaseEvent{Kind: EventChange}
+			var oldRaw, newRaw []byte
+			var action string
+			if err := rows.Scan(&e.At, &e.Actor, &action, &oldRaw, &newRaw); err != nil {
+				rows.Close()
+				return err
+			}
+			e.Action = followup.Edit(action)
+			e.Changes = snapshotChanges(oldRaw, newRaw, loc)
+			out = append(out, e)
+		}
+		if err := rows.Err(); err != nil {
+			return err
+		}
+		attempts, err := caseAttempts(ctx, tx, c.ID)
+		if err != nil {
+			return err
+		}
+		for i := range attempts {
+			out = append(out, CaseEvent{At: attempts[i].At, Kind: EventAttempt, Actor: attempts[i].Actor, Attempt: &attempts[i]})
+		}
+		rrows, err := tx.Query(ctx, `
+			SELECT r.id, r.taken_at, r.duration_s, r.auto_interpretation, r.too_short, r.created_by,
+			       EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)
+			FROM recordings r WHERE r.case_id = $1`, c.ID)
+		if err != nil {
+			return err
+		}
+		for rrows.Next() {
+			var r RecordingRef
+			var dur float32
+			var by string
+			if err := rrows.Scan(&r.ID, &r.TakenAt, &dur, &r.AutoInterpretation, &r.TooShort, &by, &r.OverRead); err != nil {
+				rrows.Close()
+				return err
+			}
+			r.DurationS = float64(dur)
+			out = append(out, CaseEvent{At: r.TakenAt, Kind: EventRecording, Actor: by, Recording: &r})
+		}
+		if err := rrows.Err(); err != nil {
+			return err
+		}
+		orows, err := tx.Query(ctx, `SELECT id, recording_id, role, rhythm, confidence, reader, read_on, created_at FROM over_reads WHERE case_id = $1`, c.ID)
+		if err != nil {
+			return err
+		}
+		for orows.Next() {
+			var o OverReadRef
+			var on, at time.Time
+			if err := orows.Scan(&o.ID, &o.RecordingID, &o.Role, &o.Rhythm, &o.Confidence, &o.Reader, &on, &at); err != nil {
+				orows.Close()
+				return err
+			}
+			o.ReadOn = cohort.DateOf(on)
+			out = append(out, CaseEvent{At: at, Kind: EventOverRead, Actor: o.Reader, OverRead: &o})
+		}
+		return orows.Err()
+	})
+	if err != nil {
+		return nil, mapErr("case timeline", err)
+	}
+	slices.SortStableFunc(out, func(a, b CaseEvent) int { return b.At.Compare(a.At) })
+	return out, nil
+}
+
+// snapshotChanges lists the fields two audit snapshots of a case differ in,
+// in a fixed order, with values as people read them.
+func snapshotChanges(oldRaw, newRaw []byte, loc *time.Location) []FieldChange {
+	var o, n caseSnapshot
+	if len(oldRaw) > 0 {
+		_ = json.Unmarshal(oldRaw, &o)
+	}
+	if len(newRaw) > 0 {
+		_ = json.Unmarshal(newRaw, &n)
+	}
+	day := func(t *time.Time) string {
+		if t == nil {
+			return ""
+		}
+		return t.In(loc).Format("2006-01-02")
+	}
+	state := func(s string) string {
+		if s == "" {
+			return ""
+		}
+		return followup.State(s).Label()
+	}
+	action := func(a string) string {
+		if a == "" {
+			return ""
+		}
+		return followup.Action(a).Label()
+	}
+	due := func(t *time.Time) string {
+		if t == nil {
+			return ""
+		}
+		return followup.NewCalendar(loc).DueDay(*t).String()
+	}
+	weeks := func(s caseSnapshot) string {
+		if s.ID == 0 {
+			return ""
+		}
+		if s.FirstWeek == s.LastWeek {
+			return strconv.Itoa(s.FirstWeek)
+		}
+		return fmt.Sprintf("%d–%d", s.FirstWeek, s.LastWeek)
+	}
+	var out []FieldChange
+	add := func(field, before, after string) {
+		if before != after {
+			out = append(out, FieldChange{field, before, after})
+		}
+	}
+	add("state", state(o.State), state(n.State))
+	add("owner", o.Owner, n.Owner)
+	add("study weeks", weeks(o), weeks(n))
+	add("next action", action(o.NextAction), action(n.NextAction))
+	add("due by", due(o.DueAt), due(n.DueAt))
+	add("reached", day(o.ReachedAt), day(n.ReachedAt))
+	add("recorder sent", day(o.RecorderSentAt), day(n.RecorderSentAt))
+	add("tracking number", o.TrackingNumber, n.TrackingNumber)
+	add("recording back", day(o.RecordingBackAt), day(n.RecordingBackAt))
+	add("over-read", day(o.OverReadAt), day(n.OverReadAt))
+	add("closing reason", o.ClosingNote, n.ClosingNote)
+	add("working note", o.Note, n.Note)
+	if len(n.WeeksAdded) > 0 {
+		ws := make([]string, len(n.WeeksAdded))
+		for i, w := range n.WeeksAdded {
+			ws[i] = strconv.Itoa(w)
+		}
+		out = append(out, FieldChange{"positive weeks added", "", strings.Join(ws, ", ")})
+	}
+	if n.Reason != "" && n.Reason != n.ClosingNote {
+		out = append(out, FieldChange{"reason", "", n.Reason})
+	}
+	return out
+}

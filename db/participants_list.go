@@ -1,0 +1,207 @@
+package db
+
+import (
+	"context"
+	"encoding/base64"
+	"encoding/json"
+	"fmt"
+	"strconv"
+	"strings"
+	"time"
+)
+
+// The participant list: filters, orders and keyset pages.
+
+// ParticipantFilter narrows and orders the participant list.
+type ParticipantFilter struct {
+	Search        string // study ID prefix; names too when WithNames
+	SiteID        int
+	Status        string // "", "active", "withdrawn"
+	PositiveWeeks int    // screen-positive within the last N study weeks (0: no filter)
+	OpenCase      bool
+	Sort          string // "study_id" (default), "enrolled", "site"
+	Desc          bool
+	After         string // opaque keyset cursor from the previous page
+	Limit         int
+	WithNames     bool // include PHI names: only for roles that see PHI
+}
+
+// ParticipantRow is one line of the list.
+type ParticipantRow struct {
+	Participant
+	Name         string // PHI, empty unless asked for
+	LastPositive *int   // latest screen-positive study week
+	OpenCases    int
+}
+
+// ParticipantPage is one page of the list with the counts of the whole filter.
+type ParticipantPage struct {
+	Rows      []ParticipantRow
+	Next      string // cursor for the next page, "" at the end
+	Total     int64  // rows matching the filter
+	Active    int64
+	Withdrawn int64
+}
+
+// listOrder is one order of the participants list: the ORDER BY
+// expressions (together unique, so the order is total), the cursor's key as
+// text, read from the last row of a page, and the rows after a cursor as a
+// comparison in which %[1]s is the key's placeholder, %[2]s the id's and
+// %[3]s the operator (> ascending, < descending). The study ID and
+// enrolment orders follow an index, so any page costs about the same as the
+// first; the site order sorts the filtered rows (sites are in another table).
+type listOrder struct {
+	by    []string
+	key   string
+	after string
+}
+
+var listOrders = map[string]listOrder{
+	"study_id": {by: []string{"p.study_id"}, key: "p.study_id", after: "p.study_id %[3]s %[1]s"},
+	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"}, key: "to_char(p.enrolled_on, 'YYYY-MM-DD') || p.study_id",
+		after: "(p.enrolled_on, p.study_id) %[3]s (left(%[1]s, 10)::date, substr(%[1]s, 11))"},
+	"site": {by: []string{"st.code || ' ' || p.study_id", "p.id"}, key: "st.code || ' ' || p.study_id",
+		after: "(st.code || ' ' || p.study_id, p.id) %[3]s (%[1]s, %[2]s)"},
+}
+
+// ParticipantsWhere builds the filter's WHERE clause; it is shared by the page,
+// the counts and the CSV download so the three always agree.
+func (f ParticipantFilter) where(today time.Time) (string, []any) {
+	conds := []string{"true"}
+	var args []any
+	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
+	if q := strings.TrimSpace(f.Search); q != "" {
+		// Both conditions can use an index: lower(study_id) with
+		// text_pattern_ops for the prefix, the trigram index for names (the
+		// set of matching names is read once, not per participant).
+		cond := "lower(p.study_id) LIKE " + arg(escapeLike(strings.ToLower(q))+"%")
+		if f.WithNames {
+			cond = "(" + cond + " OR p.id IN (SELECT pi.participant_id FROM participant_identity pi WHERE pi.search_name LIKE " +
+				arg("%"+escapeLike(strings.ToLower(q))+"%") + "))"
+		}
+		conds = append(conds, cond)
+	}
+	if f.SiteID > 0 {
+		conds = append(conds, "p.site_id = "+arg(f.SiteID))
+	}
+	switch f.Status {
+	case "active":
+		conds = append(conds, "p.withdrawn_on IS NULL")
+	case "withdrawn":
+		conds = append(conds, "p.withdrawn_on IS NOT NULL")
+	}
+	if f.PositiveWeeks > 0 {
+		// The active version as a value, so the positive results come from
+		// their own partial index.
+		conds = append(conds, `EXISTS (SELECT 1 FROM screen_results sr
+			WHERE sr.protocol_id = (SELECT id FROM protocols WHERE active) AND sr.participant_id = p.id AND sr.verdict = 'positive'
+			  AND sr.week >= ((`+arg(today)+`::date - p.enrolled_on) / 7) - `+arg(f.PositiveWeeks)+`)`)
+	}
+	if f.OpenCase {
+		conds = append(conds, `EXISTS (SELECT 1 FROM cases c WHERE c.participant_id = p.id AND c.closed_at IS NULL)`)
+	}
+	return strings.Join(conds, " AND "), args
+}
+
+func escapeLike(s string) string {
+	return strings.NewReplacer(`\`, `\\`, "%", `\%`, "_", `\_`).Replace(s)
+}
+
+type cursor struct {
+	Key string `json:"k"`
+	ID  int64  `json:"i"`
+}
+
+func encodeCursor(c cursor) string {
+	b, _ := json.Marshal(c)
+	return base64.RawURLEncoding.EncodeToString(b)
+}
+
+func decodeCursor(s string) (cursor, bool) {
+	var c cursor
+	b, err := base64.RawURLEncoding.DecodeString(s)
+	if err != nil || json.Unmarshal(b, &c) != nil {
+		return c, false
+	}
+	return c, true
+}
+
+// Participants returns one page of the filtered list, ordered by the chosen key
+// and then id, using keyset pagination so a page deep in a 100,000-row list
+// costs the same as the first.
+func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (ParticipantPage, error) {
+	if f.Limit <= 0 || f.Limit > 500 {
+		f.Limit = 50
+	}
+	order, ok := listOrders[f.Sort]
+	if !ok {
+		order = listOrders["study_id"]
+	}
+	today := s.now().UTC()
+	where, args := f.where(today)
+	var page ParticipantPage
+	// The filter reads participants only, so the counts need no join.
+	err := s.pool.QueryRow(ctx, `
+		SELECT count(*), count(*) FILTER (WHERE p.withdrawn_on IS NULL), count(*) FILTER (WHERE p.withdrawn_on IS NOT NULL)
+		FROM participants p WHERE `+where, args...).Scan(&page.Total, &page.Active, &page.Withdrawn)
+	if err != nil {
+		return page, mapErr("participants count", err)
+	}
+	cmp, dir := ">", " ASC"
+	if f.Desc {
+		cmp, dir = "<", " DESC"
+	}
+	if c, ok := decodeCursor(f.After); ok {
+		args = append(args, c.Key)
+		keyArg, idArg := fmt.Sprintf("$%d::text", len(args)), ""
+		if strings.Contains(order.after, "%[2]s") {
+			args = append(args, c.ID)
+			idArg = fmt.Sprintf("$%d::bigint", len(args))
+		}
+		where += " AND " + fmt.Sprintf(order.after, keyArg, idArg, cmp)
+	}
+	key := order.key
+	nameCol := "''::text"
+	if f.WithNames {
+		nameCol = "coalesce((SELECT pi.given_name || ' ' || pi.family_name FROM participant_identity pi WHERE pi.participant_id = p.id), '')"
+	}
+	args = append(args, f.Limit+1)
+	rows, err := s.pool.Query(ctx, `
+		SELECT `+participantCols+`, `+key+`, `+nameCol+`,
+		  (SELECT max(sr.week) FROM screen_results sr JOIN protocols pr ON pr.id = sr.protocol_id AND pr.active
+		   WHERE sr.participant_id = p.id AND sr.verdict = 'positive'),
+		  (SELECT count(*) FROM cases c WHERE c.participant_id = p.id AND c.closed_at IS NULL)
+		FROM participants p JOIN sites st ON st.id = p.site_id
+		WHERE `+where+` ORDER BY `+strings.Join(order.by, dir+", ")+dir+fmt.Sprintf(` LIMIT $%d`, len(args)), args...)
+	if err != nil {
+		return page, mapErr("participants", err)
+	}
+	defer rows.Close()
+	var keys []string
+	for rows.Next() {
+		var r ParticipantRow
+		var k string
+		var last *int16
+		p, err := scanParticipant(rows, &k, &r.Name, &last, &r.OpenCases)
+		if err != nil {
+			return page, mapErr("participants", err)
+		}
+		r.Participant = p
+		r.Name = strings.TrimSpace(r.Name)
+		if last != nil {
+			w := int(*last)
+			r.LastPositive = &w
+		}
+		page.Rows = append(page.Rows, r)
+		keys = append(keys, k)
+	}
+	if err := rows.Err(); err != nil {
+		return page, mapErr("participants", err)
+	}
+	if len(page.Rows) > f.Limit {
+		page.Rows = page.Rows[:f.Limit]
+		last := page.Rows[f.Limit-1]
+		page.Next = encodeCursor(cursor{Key: keys[f.Limit-1], ID: last.ID})
+	}
+	return page, nil
+}

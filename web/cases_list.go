@@ -1,0 +1,169 @@
+package web
+
+import (
+	"fmt"
+	"net/http"
+	"net/url"
+	"strconv"
+	"strings"
+
+	"cohortdesk/cohort/followup"
+	"cohortdesk/db"
+	"cohortdesk/views"
+)
+
+// The case list and its bulk actions.
+
+// caseFilter reads the case list's filter from the query string.
+func caseFilter(r *http.Request, q url.Values, deid bool) (db.CaseFilter, views.CaseFilterForm) {
+	form := views.CaseFilterForm{State: q.Get("state"), Owner: q.Get("owner"), Site: q.Get("site"), Overdue: q.Get("overdue") == "on"}
+	f := db.CaseFilter{Overdue: form.Overdue, After: q.Get("after")}
+	switch form.State {
+	case "", "working":
+	case "final":
+		f.Scope = db.EndedCases
+	case "all":
+		f.Scope = db.AllCases
+	default:
+		f.State = followup.State(form.State) // an unknown state is refused by the store
+	}
+	f.SiteID, _ = strconv.Atoi(form.Site)
+	if !deid {
+		switch form.Owner {
+		case "":
+		case "none":
+			f.Unowned = true
+		default:
+			if id := ownerParam(r, form.Owner); id > 0 {
+				f.OwnerID = id
+			}
+		}
+	}
+	return f, form
+}
+
+func stateOptions() []views.Option {
+	out := []views.Option{{Value: "", Label: "still being worked"}, {Value: "final", Label: "ended"}, {Value: "all", Label: "all"}}
+	for _, st := range followup.States() {
+		out = append(out, views.Option{Value: string(st), Label: st.Label()})
+	}
+	return out
+}
+
+// casesList is the case list. Monitors see it de-identified: study IDs,
+// states, study weeks and day counts, never owners, notes or dates, and no
+// case pages (cohort.Role.SeesPHI decides).
+func (s *Server) casesList(w http.ResponseWriter, r *http.Request) error {
+	return s.renderCases(w, r, r.URL.Query(), http.StatusOK, "")
+}
+
+func (s *Server) renderCases(w http.ResponseWriter, r *http.Request, q url.Values, status int, msg string) error {
+	ctx := r.Context()
+	deid := !role(r).SeesPHI()
+	f, form := caseFilter(r, q, deid)
+	page, err := s.store.Cases(ctx, f)
+	if err != nil {
+		return err
+	}
+	st, err := s.store.StudySettings(ctx)
+	if err != nil {
+		return err
+	}
+	sites, _, err := s.siteOptions(ctx)
+	if err != nil {
+		return err
+	}
+	m := views.CasesModel{Page: s.page(r, "Cases", "cases"), Filter: form, States: stateOptions(), Sites: sites,
+		Total: page.Total, DeIdentified: deid, Message: msg}
+	if !deid {
+		workers, err := s.store.CaseWorkers(ctx)
+		if err != nil {
+			return err
+		}
+		m.Owners = append([]views.Option{{Value: "", Label: "anyone"}, {Value: "me", Label: "me"}, {Value: "none", Label: "nobody yet"}}, workerOptions(workers, false)...)
+		m.Assignees = workerOptions(workers, true)
+		m.CanAssign, m.CanLetter = caseWork.allows(role(r)), coordWork.allows(role(r))
+	}
+	if d := doneMessages[q.Get("done")]; d != "" && msg == "" {
+		m.Page.Flash = d
+	}
+	now := s.now().In(st.Location())
+	for _, c := range page.Rows {
+		m.Rows = append(m.Rows, caseRow(c, st, now, deid))
+	}
+	clean := url.Values{}
+	for k, v := range q {
+		if k != "done" && k != "after" {
+			clean[k] = v
+		}
+	}
+	m.Back = "/cases?" + clean.Encode()
+	if page.Next != "" {
+		nq := url.Values{}
+		for k, v := range clean {
+			nq[k] = v
+		}
+		nq.Set("after", page.Next)
+		m.Next = "/cases?" + nq.Encode()
+	}
+	if f.After != "" {
+		m.First = m.Back
+	}
+	s.render(w, r, status, views.Cases(m))
+	return nil
+}
+
+// caseRefs reads the ticked boxes of the bulk form, each "id:version".
+func caseRefs(values []string) ([]db.CaseRef, error) {
+	out := make([]db.CaseRef, 0, len(values))
+	for _, v := range values {
+		a, b, ok := strings.Cut(v, ":")
+		id, err1 := strconv.ParseInt(a, 10, 64)
+		ver, err2 := strconv.Atoi(b)
+		if !ok || err1 != nil || err2 != nil {
+			return nil, fieldError("cases", fmt.Sprintf("%q is not a case selection; reload the list", v))
+		}
+		out = append(out, db.CaseRef{ID: id, Version: ver})
+	}
+	return out, nil
+}
+
+func (s *Server) casesBulkAssign(w http.ResponseWriter, r *http.Request) error {
+	return s.casesBulk(w, r, "bulk", func(refs []db.CaseRef) (int, error) {
+		return s.store.AssignCases(r.Context(), s.actor(r), refs, ownerParam(r, r.PostForm.Get("bulk-owner")))
+	})
+}
+
+func (s *Server) casesBulkLetter(w http.ResponseWriter, r *http.Request) error {
+	return s.casesBulk(w, r, "letters", func(refs []db.CaseRef) (int, error) {
+		return s.store.LogLetters(r.Context(), s.actor(r), refs, r.PostForm.Get("note"))
+	})
+}
+
+// casesBulk runs a bulk action and returns to the list; a refusal shows the
+// list again with the reason, nothing having changed.
+func (s *Server) casesBulk(w http.ResponseWriter, r *http.Request, done string, do func([]db.CaseRef) (int, error)) error {
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	u, err := url.Parse(safeBack(r.PostForm.Get("back"), "/cases"))
+	if err != nil {
+		u = &url.URL{Path: "/cases"}
+	}
+	refs, err := caseRefs(r.PostForm["case"])
+	if err == nil {
+		_, err = do(refs)
+	}
+	if err != nil {
+		f, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		return s.renderCases(w, r, u.Query(), f.Status, f.Message)
+	}
+	q := u.Query()
+	q.Set("done", done)
+	u.RawQuery = q.Encode()
+	http.Redirect(w, r, u.String(), http.StatusSeeOther)
+	return nil
+}
