@@ -17,21 +17,6 @@ import (
 	"cohortdesk/views/referralpdf"
 )
 
-var autoOf = map[demo.AutoResult]overread.Auto{
-	demo.AutoAF:           overread.AutoAF,
-	demo.AutoSinus:        overread.AutoSinus,
-	demo.AutoUnclassified: overread.AutoUnclassified,
-	demo.AutoNoAnalysis:   overread.AutoUnreadable,
-}
-
-var rhythmOf = map[demo.Rhythm]overread.Rhythm{
-	demo.RhythmAF:              overread.AF,
-	demo.RhythmFlutter:         overread.Flutter,
-	demo.RhythmSinus:           overread.Sinus,
-	demo.RhythmOther:           overread.Other,
-	demo.RhythmUninterpretable: overread.Uninterpretable,
-}
-
 // synthRecording makes the waveform of a scripted recording with the
 // dynamical ECG model (cohort/ecg): its beats fall at the script's intervals,
 // with breathing wander, and heavy noise when the script says an over-reader
@@ -59,11 +44,7 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 	if err != nil {
 		return 0, err
 	}
-	auto := string(autoOf[r.Auto])
-	if auto == "" {
-		auto = string(overread.AutoNone)
-	}
-	rec, err := cs.AddRecording(ctx, a, caseID, db.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: auto,
+	rec, err := cs.AddRecording(ctx, a, caseID, db.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: string(r.Auto),
 		Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		return 0, fmt.Errorf("recording: %w", err)
@@ -73,7 +54,7 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 
 // addOverRead enters the scripted clinician's reading.
 func addOverRead(ctx context.Context, cs *db.Store, reader db.User, recID int64, r demo.Recording, loc *time.Location) error {
-	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: string(rhythmOf[r.OverRead]),
+	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: string(r.OverRead),
 		Confidence: string(overread.Certain), ReaderID: reader.ID, ReadOn: cohort.DateOf(r.ReadAt.In(loc))})
 	if err != nil {
 		return fmt.Errorf("over-read: %w", err)
