@@ -33,6 +33,16 @@ const (
 	Insufficient Verdict = "insufficient"
 )
 
+// ParseVerdict reads a verdict word in any letter case, with surrounding
+// spaces ignored, as files from other algorithms write it.
+func ParseVerdict(s string) (Verdict, error) {
+	switch v := Verdict(strings.ToLower(strings.TrimSpace(s))); v {
+	case Positive, Negative, Insufficient:
+		return v, nil
+	}
+	return "", fmt.Errorf("unknown verdict %q (want positive, negative or insufficient)", s)
+}
+
 // Result is the screen's outcome for one participant-week under one protocol.
 // The caller stores the protocol version beside it; InputDigest pins the
 // readings, so the result can be recomputed and compared byte for byte.
