@@ -355,13 +355,3 @@ func (s *Study) coordinatorFor(site string) string {
 	}
 	return s.Users[0].Login
 }
-
-// Site returns the site with the given code.
-func (s *Study) Site(code string) (Site, bool) {
-	for _, st := range s.Sites {
-		if st.Code == code {
-			return st, true
-		}
-	}
-	return Site{}, false
-}
