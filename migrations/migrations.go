@@ -8,7 +8,6 @@ import (
 	"database/sql"
 	"embed"
 	"fmt"
-	"io/fs"
 
 	"github.com/jackc/pgx/v5/pgxpool"
 	"github.com/jackc/pgx/v5/stdlib"
@@ -18,9 +17,6 @@ import (
 
 //go:embed *.sql
 var files embed.FS
-
-// FS is the embedded migration files.
-func FS() fs.FS { return files }
 
 // Status is one migration and whether it has been applied.
 type Status struct {

@@ -175,10 +175,6 @@ func (pr *Prepared) Week() int { return pr.week }
 // order), for charts of the MASD distribution; the caller must not modify them.
 func (pr *Prepared) Summaries(i int) []WindowSummary { return pr.windows[i] }
 
-// Segments returns the scored RR segments, Start indexed into the week's
-// cleaned RR series; the caller must not modify them.
-func (pr *Prepared) Segments() []rr.Segment { return pr.segments }
-
 // Prepare reduces a cleaned week (see Clean) to window summaries for every
 // window size of p and, when the RR method is on, scored RR segments. RR
 // intervals are split into runs of consecutive beats: beat i continues the run
