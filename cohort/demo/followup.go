@@ -262,7 +262,7 @@ func (m *sim) attempt(at time.Time, ch followup.Channel, o followup.Outcome) {
 // simulate writes the script of one case steered to target (empty: decided by
 // the over-read), then cuts it at a withdrawal and at today.
 func (s *Study) simulate(c CaseInput, p Participant, truth EpisodeKind, target followup.State) FollowUp {
-	inv, _ := s.User(RoleInvestigator)
+	inv, _ := s.User(cohort.Investigator)
 	m := &sim{s: s, r: s.caseRand(c, 2), p: p, state: followup.Open, inv: inv.Login}
 	m.f = FollowUp{Case: c, Site: p.Site, Owner: s.coordinatorFor(p.Site), Truth: truth}
 	m.script(target)

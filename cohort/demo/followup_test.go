@@ -59,7 +59,7 @@ func TestFollowUpScriptsAreConsistent(t *testing.T) {
 	if len(fs) != len(cases) {
 		t.Fatalf("%d scripts for %d cases", len(fs), len(cases))
 	}
-	inv, _ := s.User(RoleInvestigator)
+	inv, _ := s.User(cohort.Investigator)
 	canaryReferred, short, disagree := false, 0, 0
 	for i, f := range fs {
 		c := cases[i]

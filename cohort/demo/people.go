@@ -10,6 +10,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/risk"
 )
 
 // Participant is one enrolled person with the identifying details a study
@@ -55,24 +56,15 @@ func ageOn(birth, d cohort.Date) int {
 	return a
 }
 
-// Answer is a reply on the intake form: yes, no, or not known.
-type Answer string
-
-// The intake answers.
-const (
-	Yes      Answer = "yes"
-	No       Answer = "no"
-	NotKnown Answer = "unknown"
-)
-
 // Intake holds the stroke-risk questions of the intake survey, so a referral
-// summary can list them for physician review.
+// summary can list them for physician review. Answers are risk's: yes, no, or
+// unknown (not recorded).
 type Intake struct {
-	Hypertension Answer
-	Diabetes     Answer
-	HeartFailure Answer
-	StrokeTIA    Answer // prior stroke, TIA or thromboembolism
-	Vascular     Answer // prior myocardial infarction, peripheral artery disease or aortic plaque
+	Hypertension risk.Answer
+	Diabetes     risk.Answer
+	HeartFailure risk.Answer
+	StrokeTIA    risk.Answer // prior stroke, TIA or thromboembolism
+	Vascular     risk.Answer // prior myocardial infarction, peripheral artery disease or aortic plaque
 }
 
 // Syllable tables for invented names. Given names join one part from each of
@@ -317,14 +309,14 @@ func drawIntake(r *rand.Rand, age int, sex cohort.Sex) Intake {
 	if sex == cohort.Male {
 		male = 1.3
 	}
-	ans := func(p float64) Answer {
+	ans := func(p float64) risk.Answer {
 		if r.Float64() < 0.04 {
-			return NotKnown
+			return risk.Unknown
 		}
 		if r.Float64() < p {
-			return Yes
+			return risk.Yes
 		}
-		return No
+		return risk.No
 	}
 	return Intake{
 		Hypertension: ans(0.25 + 0.006*a),
