@@ -1,15 +1,3 @@
-// Package rr scores beat-to-beat (RR) interval series for an irregular,
-// atrial-fibrillation-like rhythm with the combination of normalised RMSSD,
-// Shannon entropy and turning point ratio over fixed-length beat segments
-// (Dash S, Chon KH, Lu S, Raeder EA. Automatic real time detection of atrial
-// fibrillation. Ann Biomed Eng 2009;37(9):1701-9).
-//
-// The paper itself was not read; the defaults are the values that several
-// independent implementations citing it agree on and are marked "from memory".
-// A segment scored AF-like is a screening hint, never a diagnosis: AF is
-// diagnosed on a clinician-read ECG.
-//
-// The package is pure: no I/O, no clock, no logging.
 package rr
 
 import (

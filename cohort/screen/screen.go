@@ -1,17 +1,3 @@
-// Package screen is the irregular-rhythm screen over one participant-week of
-// wear data: cleaning, the windowed successive-difference screen on heart-rate
-// readings, the beat-interval method (package rr) on RR intervals when a week
-// has them, personal baselines, a per-week verdict with a plain-words reason,
-// and a sweep that recomputes verdicts across values of one parameter for a
-// threshold explorer.
-//
-// A positive verdict is a screen, not a diagnosis: it asks for a clinician-read
-// ECG. A negative verdict does not rule out atrial fibrillation. The default
-// protocol is illustrative and not clinically validated.
-//
-// The package is pure: time is passed in, nothing is read, written or logged.
-// Results are deterministic: the same readings and protocol give byte-identical
-// JSON.
 package screen
 
 import (
