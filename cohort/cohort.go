@@ -128,6 +128,13 @@ func (d Date) AddDays(n int) Date {
 	return DateOf(time.Date(d.Year, d.Month, d.Day+n, 12, 0, 0, 0, time.UTC))
 }
 
+// Monday is the Monday on or before d: the first day of its calendar week
+// (weeks run Monday to Sunday, ISO 8601).
+func (d Date) Monday() Date {
+	wd := int(d.In(time.UTC).Weekday())
+	return d.AddDays(-((wd + 6) % 7))
+}
+
 // DaysSince counts calendar days from o to d (negative when d is earlier).
 func (d Date) DaysSince(o Date) int {
 	a := time.Date(d.Year, d.Month, d.Day, 12, 0, 0, 0, time.UTC)

@@ -49,6 +49,19 @@ func TestDateArithmetic(t *testing.T) {
 	if got := (Date{2025, time.January, 1}).DaysSince(d); got != 308 {
 		t.Errorf("DaysSince = %d, want 308 (hand-worked: 2 days of Feb 2024 + 306)", got)
 	}
+	// Mondays from a calendar: 2026-03-02 was a Monday, so the week of
+	// Wednesday 2026-03-04 and of Sunday 2026-03-08 starts on it; the year
+	// 2026 began on a Thursday, so 2026-01-01 is in the week of 2025-12-29.
+	for _, c := range []struct{ d, want Date }{
+		{Date{2026, time.March, 2}, Date{2026, time.March, 2}},
+		{Date{2026, time.March, 4}, Date{2026, time.March, 2}},
+		{Date{2026, time.March, 8}, Date{2026, time.March, 2}},
+		{Date{2026, time.January, 1}, Date{2025, time.December, 29}},
+	} {
+		if got := c.d.Monday(); got != c.want {
+			t.Errorf("Monday of %v = %v, want %v", c.d, got, c.want)
+		}
+	}
 	p, err := ParseDate("2026-12-01")
 	if err != nil || p.String() != "2026-12-01" {
 		t.Errorf("ParseDate: %v %v", p, err)

@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 )
@@ -111,7 +112,7 @@ func seq(from, to int) []string {
 // next plus its exits.
 func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 	f, cases := figureCohort(t)
-	c, err := f.s.Cascade(context.Background(), db.CascadeFilter{})
+	c, err := f.s.Cascade(context.Background(), cascade.Filter{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -119,15 +120,15 @@ func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 		key   string
 		who   []string
 		cases int
-		exits map[db.ExitReason][]string
+		exits map[cascade.ExitReason][]string
 	}{
-		{"enrolled", seq(1, 16), 0, map[db.ExitReason][]string{db.ExitNoWearData: {"P16"}}},
-		{"sufficient_wear", seq(1, 15), 0, map[db.ExitReason][]string{db.ExitScreenNegative: {"P15"}}},
-		{"screen_positive", seq(1, 14), 14, map[db.ExitReason][]string{db.ExitContacting: {"P13"}, db.ExitUnreachable: {"P14"}}},
-		{"reached", seq(1, 12), 12, map[db.ExitReason][]string{db.ExitAwaitingRecording: {"P12"}}},
-		{"recording_returned", seq(1, 11), 11, map[db.ExitReason][]string{db.ExitUninterpretable: {"P11"}}},
-		{"over_read", seq(1, 10), 10, map[db.ExitReason][]string{db.ExitNotAFSinus: {"P8", "P9"}, db.ExitNotAFFlutter: {"P10"}}},
-		{"af_confirmed", seq(1, 7), 7, map[db.ExitReason][]string{db.ExitReferralPending: seq(3, 7)}},
+		{"enrolled", seq(1, 16), 0, map[cascade.ExitReason][]string{cascade.ExitNoWearData: {"P16"}}},
+		{"sufficient_wear", seq(1, 15), 0, map[cascade.ExitReason][]string{cascade.ExitScreenNegative: {"P15"}}},
+		{"screen_positive", seq(1, 14), 14, map[cascade.ExitReason][]string{cascade.ExitContacting: {"P13"}, cascade.ExitUnreachable: {"P14"}}},
+		{"reached", seq(1, 12), 12, map[cascade.ExitReason][]string{cascade.ExitAwaitingRecording: {"P12"}}},
+		{"recording_returned", seq(1, 11), 11, map[cascade.ExitReason][]string{cascade.ExitUninterpretable: {"P11"}}},
+		{"over_read", seq(1, 10), 10, map[cascade.ExitReason][]string{cascade.ExitNotAFSinus: {"P8", "P9"}, cascade.ExitNotAFFlutter: {"P10"}}},
+		{"af_confirmed", seq(1, 7), 7, map[cascade.ExitReason][]string{cascade.ExitReferralPending: seq(3, 7)}},
 		{"referred", seq(1, 2), 2, nil},
 	}
 	if len(c.Boxes) != len(want) {
@@ -138,7 +139,7 @@ func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 		if b.Key != w.key || !slices.Equal(b.Participants, f.ids(w.who...)) || len(b.Cases) != w.cases {
 			t.Errorf("box %d %s: %d participants, %d cases; want %s %d participants, %d cases", i, b.Key, b.Count(), len(b.Cases), w.key, len(w.who), w.cases)
 		}
-		got := map[db.ExitReason][]int64{}
+		got := map[cascade.ExitReason][]int64{}
 		sum := 0
 		for _, e := range b.Exits {
 			got[e.Reason] = e.Participants
@@ -160,7 +161,7 @@ func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 		t.Errorf("referred cases %v", got)
 	}
 	// Site BB holds the even participants: P2..P16, 8 enrolled, 7 flagged.
-	bb, err := f.s.Cascade(context.Background(), db.CascadeFilter{SiteID: 2})
+	bb, err := f.s.Cascade(context.Background(), cascade.Filter{SiteID: 2})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -168,11 +169,11 @@ func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 		t.Errorf("site BB: %d enrolled, %d flagged, %d confirmed", bb.Box("enrolled").Count(), bb.Box("screen_positive").Count(), bb.Box("af_confirmed").Count())
 	}
 	// Everyone enrolled on 2026-01-05: a window ending that day is empty.
-	none, err := f.s.Cascade(context.Background(), db.CascadeFilter{To: time.Date(2026, 1, 5, 0, 0, 0, 0, time.UTC)})
+	none, err := f.s.Cascade(context.Background(), cascade.Filter{To: time.Date(2026, 1, 5, 0, 0, 0, 0, time.UTC)})
 	if err != nil || none.Box("enrolled").Count() != 0 {
 		t.Errorf("empty window: %d enrolled, %v", none.Box("enrolled").Count(), err)
 	}
-	if _, err := f.s.Cascade(context.Background(), db.CascadeFilter{ProtocolID: 999}); err == nil {
+	if _, err := f.s.Cascade(context.Background(), cascade.Filter{ProtocolID: 999}); err == nil {
 		t.Error("unknown protocol accepted")
 	}
 }
@@ -183,7 +184,7 @@ func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 	f, _ := figureCohort(t)
 	ctx := context.Background()
-	a, err := f.s.Agreement(ctx, db.CascadeFilter{})
+	a, err := f.s.Agreement(ctx, cascade.Filter{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -220,7 +221,7 @@ func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 		t.Errorf("curve of %d", a.Curve.N)
 	}
 	// By site: AA (odd) 7 flagged, 5 over-read, 4 AF; BB 7, 5, 3.
-	sites := map[string]db.AgreementGroup{}
+	sites := map[string]cascade.Group{}
 	for _, g := range a.Groups {
 		if g.Dimension == "site" {
 			sites[g.Label] = g
@@ -249,7 +250,7 @@ func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 		t.Errorf("kappa %+v, want %+v", a.Kappa.Kappa, k)
 	}
 	// The statistics and the cascade count the same cases.
-	c, err := f.s.Cascade(ctx, db.CascadeFilter{})
+	c, err := f.s.Cascade(ctx, cascade.Filter{})
 	if err != nil {
 		t.Fatal(err)
 	}

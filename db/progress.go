@@ -45,12 +45,6 @@ type EnrolmentHistory struct {
 	Periods int
 }
 
-// mondayOf is the Monday on or before d.
-func mondayOf(d cohort.Date) cohort.Date {
-	wd := int(d.In(time.UTC).Weekday())
-	return d.AddDays(-((wd + 6) % 7))
-}
-
 // studyToday is today's date in the study's time zone. Participant-weeks
 // end at midnight there: in the hours when a new day has begun in UTC but
 // not yet in the study's zone, no week has ended that day.
@@ -105,9 +99,9 @@ func (s *Store) Enrolment(ctx context.Context, asOf cohort.Date) (EnrolmentHisto
 	if err := rows.Err(); err != nil {
 		return h, mapErr("enrolment", err)
 	}
-	first := mondayOf(today)
+	first := today.Monday()
 	if len(recs) > 0 && recs[0].on.Before(first) {
-		first = mondayOf(recs[0].on)
+		first = recs[0].on.Monday()
 	}
 	if len(recs) > 0 {
 		h.Periods = min(TrailingWeeks, today.DaysSince(recs[0].on)/7+1)
@@ -131,7 +125,7 @@ func (s *Store) Enrolment(ctx context.Context, asOf cohort.Date) (EnrolmentHisto
 		if r.withdrawn {
 			se.Withdrawn++
 		}
-		if w := mondayOf(r.on).DaysSince(first) / 7; w >= 0 && w < len(se.Weekly) {
+		if w := r.on.Monday().DaysSince(first) / 7; w >= 0 && w < len(se.Weekly) {
 			se.Weekly[w]++
 		}
 		// Days 0..6 before today fall in the last period, 7..13 in the one

@@ -123,7 +123,7 @@ func NewScreener(s *Store, after AfterScreen) *Screener {
 // Handlers maps the job kinds the screener runs to their functions, for a
 // Worker: screening runs and threshold sweeps.
 func (sc *Screener) Handlers() map[string]JobFunc {
-	return map[string]JobFunc{JobScreen: sc.handle, JobExplore: sc.store.exploreJob}
+	return map[string]JobFunc{JobScreen: sc.handle, JobSweep: sc.store.sweepJob}
 }
 
 func (sc *Screener) handle(ctx context.Context, j Job, progress func(done, total int64) error) (string, error) {

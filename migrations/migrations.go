@@ -8,6 +8,7 @@ import (
 	"database/sql"
 	"embed"
 	"fmt"
+	"io/fs"
 
 	"github.com/jackc/pgx/v5/pgxpool"
 	"github.com/jackc/pgx/v5/stdlib"
@@ -17,6 +18,10 @@ import (
 
 //go:embed *.sql
 var files embed.FS
+
+// FS is the embedded migration files, for tests that apply part of the
+// sequence (up to a version) before checking what a later file does.
+func FS() fs.FS { return files }
 
 // Status is one migration and whether it has been applied.
 type Status struct {

@@ -233,7 +233,7 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		p("progress", "/progress", "/progress"),
 		p("screening", "/screening", "/screening"),
 		p("external verdicts", "/screening/external", "/screening/external"),
-		p("threshold explorer", "/explorer", "/explorer"),
+		p("threshold sweep form", "/sweep", "/sweep"),
 		p("imports", "/imports", "/imports"),
 		p("new import", "/imports/new", "/imports/new"),
 		p("exports", "/exports", "/exports"),
@@ -249,14 +249,14 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		p("new protocol version", "/admin/protocols/{id}/new", fmt.Sprintf("/admin/protocols/%d/new", proto)),
 	}
 	// A threshold sweep, computed, with its chart and table.
-	sweep, err := a.store.StartExploration(ctx, cohort.Actor{Name: "Investigator", Role: cohort.Investigator}, proto, "windows[0].masd_threshold", []float64{4, 8, 12})
+	sweep, err := a.store.StartSweep(ctx, cohort.Actor{Name: "Investigator", Role: cohort.Investigator}, proto, "windows[0].masd_threshold", []float64{4, 8, 12})
 	if err != nil {
 		t.Fatal(err)
 	}
 	if ok, err := (&db.Worker{Store: a.store, Handlers: db.NewScreener(a.store, nil).Handlers()}).RunOne(ctx, 0); !ok || err != nil {
 		t.Fatalf("run the sweep: %v %v", ok, err)
 	}
-	pages = append(pages, p("threshold sweep", "/explorer", fmt.Sprintf("/explorer?run=%d", sweep)))
+	pages = append(pages, p("threshold sweep", "/sweep", fmt.Sprintf("/sweep?run=%d", sweep)))
 	var imp int64
 	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM imports ORDER BY id LIMIT 1`).Scan(&imp); err == nil {
 		pages = append(pages, p("import report", "/imports/{id}", fmt.Sprintf("/imports/%d", imp)))

@@ -39,5 +39,5 @@ var (
 	referrals  = allow(cohort.Coordinator, cohort.Investigator)                               // referral summaries
 	exportArea = allow(cohort.Coordinator, cohort.Investigator, cohort.Admin)                 // the exports page: summaries and dataset exports
 	adminOnly  = allow(cohort.Admin)
-	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold explorer: investigators weigh, admins set protocols
+	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold sweep: investigators weigh, admins set protocols
 )

@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
@@ -70,8 +71,8 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 }
 
 // statsFilter reads the statistics page's protocol and site choice.
-func statsFilter(q url.Values) db.CascadeFilter {
-	var f db.CascadeFilter
+func statsFilter(q url.Values) cascade.Filter {
+	var f cascade.Filter
 	f.ProtocolID, _ = strconv.Atoi(q.Get("protocol"))
 	f.SiteID, _ = strconv.Atoi(q.Get("site"))
 	return f
@@ -110,7 +111,7 @@ func medianText(m stats.Median) (string, string) {
 	return day(m.Reached, m.Time), day(m.LoReached, m.Lo) + " – " + day(m.HiReached, m.Hi)
 }
 
-func statRow(g db.AgreementGroup) views.StatRowView {
+func statRow(g cascade.Group) views.StatRowView {
 	label := g.Label
 	if g.Dimension != "all" && g.Dimension != "protocol" {
 		label = g.Dimension + ": " + g.Label
@@ -190,7 +191,7 @@ func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error
 	return s.ok(w, r, views.Statistics(m))
 }
 
-func kappaView(k db.KappaResult) views.KappaView {
+func kappaView(k cascade.Kappa) views.KappaView {
 	v := views.KappaView{Rows: k.Table, N: k.N, Note: k.Err, Mapping: overread.CategoryMapping}
 	for _, c := range k.Categories {
 		v.Categories = append(v.Categories, string(c))
@@ -238,7 +239,7 @@ func round4(v float64) float64 {
 // whose box collapses onto the estimate and whose whiskers are the interval
 // (ECharts has no error bars of its own). Groups without an over-read are
 // left out; false when none is left.
-func ppvChart(groups []db.AgreementGroup) (*charts.BoxPlot, bool) {
+func ppvChart(groups []cascade.Group) (*charts.BoxPlot, bool) {
 	var labels []string
 	var data []opts.BoxPlotData
 	var points []opts.ScatterData
@@ -288,46 +289,20 @@ func (s *Server) confirmationStatsCSV(w http.ResponseWriter, r *http.Request) er
 		map[string]any{"protocol_id": a.Protocol.ID, "site_id": q.Get("site")}); err != nil {
 		return err
 	}
-	num := func(v float64) string {
-		if math.IsNaN(v) {
-			return ""
-		}
-		return strconv.FormatFloat(v, 'f', 6, 64)
-	}
 	var rows [][]string
 	switch table {
 	case "versions", "groups":
-		rows = append(rows, []string{"protocol", "dimension", "group", "flagged_episodes", "with_recording", "over_read", "af_confirmed",
-			"ppv", "wilson_lo", "wilson_hi", "exact_lo", "exact_hi", "uninterpretable", "settled_read", "median_days", "median_lo", "median_hi",
-			"events", "censored"})
+		rows = append(rows, append([]string{"protocol"}, agreementHeader()...))
 		gs := a.Groups
 		if table == "versions" {
 			gs = a.ByVersion
 		}
 		for _, g := range gs {
-			ci := func(iv stats.Interval) (string, string) {
-				if g.OverRead == 0 {
-					return "", ""
-				}
-				return num(iv.Lo), num(iv.Hi)
-			}
-			wl, wh := ci(g.Wilson)
-			el, eh := ci(g.Exact)
-			med := func(ok bool, v float64) string {
-				if !ok {
-					return ""
-				}
-				return num(v)
-			}
 			proto := a.Protocol.Label()
 			if table == "versions" {
 				proto = g.Label
 			}
-			rows = append(rows, []string{csvSafe(proto), g.Dimension, csvSafe(g.Label), strconv.Itoa(g.Flagged), strconv.Itoa(g.WithRecording),
-				strconv.Itoa(g.OverRead), strconv.Itoa(g.Confirmed), num(g.PPV.Value()), wl, wh, el, eh,
-				strconv.Itoa(g.Uninterpretable.X), strconv.Itoa(g.Uninterpretable.N),
-				med(g.Median.Reached, g.Median.Time), med(g.Median.LoReached, g.Median.Lo), med(g.Median.HiReached, g.Median.Hi),
-				strconv.Itoa(g.Events), strconv.Itoa(g.Censored)})
+			rows = append(rows, append([]string{csvSafe(proto)}, agreementRecord(g)...))
 		}
 	case "km":
 		rows = append(rows, []string{"day", "at_risk", "over_read", "censored", "survival", "se", "lo", "hi"})

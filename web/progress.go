@@ -8,6 +8,7 @@ import (
 	"strconv"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -22,9 +23,9 @@ type progressStore interface {
 	Enrolment(ctx context.Context, asOf cohort.Date) (db.EnrolmentHistory, error)
 	DataSufficiency(ctx context.Context) ([]db.SufficiencyWeek, error)
 	SilentParticipants(ctx context.Context, days int) ([]db.SilentParticipant, error)
-	Cascade(ctx context.Context, f db.CascadeFilter) (db.Cascade, error)
+	Cascade(ctx context.Context, f cascade.Filter) (cascade.Cascade, error)
 	CascadeMembers(ctx context.Context, protocolID int, ids []int64) ([]db.CascadeMember, error)
-	Figures(ctx context.Context, f db.CascadeFilter) (db.Cascade, db.Agreement, error)
+	Figures(ctx context.Context, f cascade.Filter) (cascade.Cascade, cascade.Agreement, error)
 	Sites(ctx context.Context) ([]db.Site, error)
 }
 
@@ -153,13 +154,13 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		h       db.EnrolmentHistory
 		suff    []db.SufficiencyWeek
 		silent  []db.SilentParticipant
-		cascade templ.Component
+		section templ.Component
 	)
 	g, ctx := errgroup.WithContext(r.Context())
 	g.Go(func() (err error) { h, err = s.store.Enrolment(ctx, cohort.Date{}); return err })
 	g.Go(func() (err error) { suff, err = s.store.DataSufficiency(ctx); return err })
 	g.Go(func() (err error) { silent, err = s.store.SilentParticipants(ctx, silentDays); return err })
-	g.Go(func() (err error) { cascade, err = s.progressCascade(ctx, r.URL.Query(), window); return err })
+	g.Go(func() (err error) { section, err = s.progressCascade(ctx, r.URL.Query(), window); return err })
 	if err := g.Wait(); err != nil {
 		return err
 	}
@@ -246,6 +247,6 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		}
 		m.Silent = append(m.Silent, views.SilentRow{Href: fmt.Sprintf("/participants/%d", sp.ID), StudyID: sp.StudyID, Site: sp.SiteCode, Last: last, Days: sp.Days})
 	}
-	m.Cascade = cascade
+	m.Cascade = section
 	return s.ok(w, r, views.Progress(m))
 }

@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/db"
 	"cohortdesk/views"
 
@@ -19,7 +20,7 @@ import (
 // cascadeQuery is the cascade's choice as read from a request: the filter
 // for the store and the values as given, for forms and links.
 type cascadeQuery struct {
-	filter   db.CascadeFilter
+	filter   cascade.Filter
 	from, to cohort.Date // enrolment days, both included; zero is open
 	protocol string
 	site     string
@@ -64,19 +65,10 @@ func parseCascadeQuery(q url.Values, sites []db.Site) (cascadeQuery, error) {
 		return d
 	}
 	cq.from, cq.to = day("from"), day("to")
-	if !cq.from.IsZero() && !cq.to.IsZero() && cq.to.Before(cq.from) {
-		ve.Add("to", "the period must end on or after its first day")
+	if err := cq.filter.EnrolledBetween(cq.from, cq.to); err != nil {
+		ve.Add("to", err.Error())
 	}
-	if err := ve.Err(); err != nil {
-		return cq, err
-	}
-	if !cq.from.IsZero() {
-		cq.filter.From = cq.from.In(time.UTC)
-	}
-	if !cq.to.IsZero() {
-		cq.filter.To = cq.to.AddDays(1).In(time.UTC) // the filter's end is not included
-	}
-	return cq, nil
+	return cq, ve.Err()
 }
 
 // values are the query's choices for links, without empty ones.
@@ -137,7 +129,7 @@ func (cq cascadeQuery) href(path string, extra ...string) string {
 
 // flowView turns the store's cascade into the diagram's view model; every
 // number on it is the store's.
-func flowView(c db.Cascade, cq cascadeQuery) views.FlowView {
+func flowView(c cascade.Cascade, cq cascadeQuery) views.FlowView {
 	f := views.FlowView{Protocol: c.Protocol.Label(), Period: cq.period()}
 	for i, b := range c.Boxes {
 		path := "/progress/cascade/" + b.Key
@@ -161,7 +153,7 @@ func flowView(c db.Cascade, cq cascadeQuery) views.FlowView {
 }
 
 // protocolOptions lists the versions to choose from, the active one marked.
-func protocolOptions(versions []db.ProtocolRef) []views.Option {
+func protocolOptions(versions []cascade.ProtocolRef) []views.Option {
 	var out []views.Option
 	for _, v := range versions {
 		label := v.Label()
@@ -215,7 +207,7 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	exit := db.ExitReason(q.Get("exit"))
+	exit := cascade.ExitReason(q.Get("exit"))
 	if exit != "" && !exit.Known() {
 		return &cohort.ValidationError{Fields: map[string]string{"exit": "choose a reason shown on the cascade"}}
 	}
@@ -240,7 +232,7 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	}
 	box := c.Boxes[at]
 	flow := flowView(c, cq)
-	exitOf := map[int64]db.ExitReason{}
+	exitOf := map[int64]cascade.ExitReason{}
 	for _, e := range box.Exits {
 		for _, id := range e.Participants {
 			exitOf[id] = e.Reason

@@ -6,13 +6,12 @@ import (
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
-	"math"
 	"net/http"
 	"strconv"
 	"time"
 
 	"cohortdesk/cohort"
-	"cohortdesk/cohort/stats"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/db"
 	"cohortdesk/views"
 
@@ -32,14 +31,8 @@ type reportFigures struct {
 	total     enrolFig
 	weeks     []db.SufficiencyWeek // the calendar weeks that overlap the period
 	weekSpan  string
-	cascade   db.Cascade
-	agree     db.Agreement
-}
-
-// monday is the Monday on or before d.
-func monday(d cohort.Date) cohort.Date {
-	wd := int(d.In(time.UTC).Weekday())
-	return d.AddDays(-((wd + 6) % 7))
+	cascade   cascade.Cascade
+	agree     cascade.Agreement
 }
 
 // readReport parses the report's choices and reads its figures.
@@ -68,7 +61,7 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	rf.sites, rf.total = studyFigures(rf.hist, rf.window)
 	first := cohort.Date{}
 	if !rf.cq.from.IsZero() {
-		first = monday(rf.cq.from)
+		first = rf.cq.from.Monday()
 	}
 	for _, w := range weeks {
 		if (first.IsZero() || !w.Week.Before(first)) && !rf.hist.Today.Before(w.Week) {
@@ -103,18 +96,18 @@ func (rf reportFigures) weeksTotal() (due, sufficient int) {
 }
 
 // overall is the agreement row of all the version's episodes.
-func (rf reportFigures) overall() db.AgreementGroup {
+func (rf reportFigures) overall() cascade.Group {
 	for _, g := range rf.agree.Groups {
 		if g.Dimension == "all" {
 			return g
 		}
 	}
-	return db.AgreementGroup{}
+	return cascade.Group{}
 }
 
 // reportGroups are the agreement rows the report shows: all, then by site.
-func (rf reportFigures) reportGroups() []db.AgreementGroup {
-	var out []db.AgreementGroup
+func (rf reportFigures) reportGroups() []cascade.Group {
+	var out []cascade.Group
 	for _, g := range rf.agree.Groups {
 		if g.Dimension == "all" || g.Dimension == "site" {
 			out = append(out, g)
@@ -232,15 +225,6 @@ func (t *csvTable) bytes() ([]byte, error) {
 	return t.buf.Bytes(), nil
 }
 
-// num writes a number for a CSV file: fractions with six decimals, nothing
-// for an undefined value.
-func num(v float64) string {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return ""
-	}
-	return strconv.FormatFloat(v, 'f', 6, 64)
-}
-
 // reportManifest is manifest.json of the report's bundle.
 type reportManifest struct {
 	Kind      string         `json:"kind"`
@@ -309,32 +293,9 @@ func (rf reportFigures) reportTables() []*csvTable {
 		boxes.add(strconv.Itoa(i+1), b.Key, b.Label, strconv.Itoa(b.Count()), cases, share, strconv.Itoa(left), strconv.Itoa(waiting))
 	}
 
-	agree := newCSVTable("agreement.csv", "dimension", "group", "flagged_episodes", "with_recording", "over_read", "af_confirmed",
-		"ppv", "wilson_lo", "wilson_hi", "exact_lo", "exact_hi", "uninterpretable", "settled_read", "median_days", "median_lo", "median_hi",
-		"events", "censored")
+	agree := newCSVTable("agreement.csv", agreementHeader()...)
 	for _, g := range rf.agree.Groups {
-		ci := func(iv stats.Interval) (string, string) {
-			if g.OverRead == 0 {
-				return "", ""
-			}
-			return num(iv.Lo), num(iv.Hi)
-		}
-		wl, wh := ci(g.Wilson)
-		el, eh := ci(g.Exact)
-		med := func(ok bool, v float64) string {
-			if !ok || g.Flagged == 0 {
-				return ""
-			}
-			return num(v)
-		}
-		ppv := ""
-		if g.OverRead > 0 {
-			ppv = num(g.PPV.Value())
-		}
-		agree.add(g.Dimension, csvSafe(g.Label), strconv.Itoa(g.Flagged), strconv.Itoa(g.WithRecording), strconv.Itoa(g.OverRead),
-			strconv.Itoa(g.Confirmed), ppv, wl, wh, el, eh, strconv.Itoa(g.Uninterpretable.X), strconv.Itoa(g.Uninterpretable.N),
-			med(g.Median.Reached, g.Median.Time), med(g.Median.LoReached, g.Median.Lo), med(g.Median.HiReached, g.Median.Hi),
-			strconv.Itoa(g.Events), strconv.Itoa(g.Censored))
+		agree.add(agreementRecord(g)...)
 	}
 
 	k := rf.agree.Kappa

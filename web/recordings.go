@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
@@ -30,7 +31,7 @@ type recordingStore interface {
 	RecordingWaveform(ctx context.Context, id int64) (ecg.Waveform, error)
 	AddOverRead(ctx context.Context, a cohort.Actor, recordingID int64, in db.OverReadInput) (db.Recording, error)
 	Confirmations(ctx context.Context, limit int) (db.Confirmations, error)
-	Agreement(ctx context.Context, f db.CascadeFilter) (db.Agreement, error)
+	Agreement(ctx context.Context, f cascade.Filter) (cascade.Agreement, error)
 }
 
 // recordingMemory is how much of an upload is held in memory; the rest of a

@@ -64,8 +64,8 @@ func (s *Server) routes() []route {
 		{"GET", "/screening", caseWork, s.screeningJobs},
 		{"GET", "/screening/external", coordWork, s.externalVerdictsForm},
 		{"POST", "/screening/external", coordWork, s.externalVerdictsImport},
-		{"GET", "/explorer", tuning, s.explorer},
-		{"POST", "/explorer", tuning, s.explorerStart},
+		{"GET", "/sweep", tuning, s.sweep},
+		{"POST", "/sweep", tuning, s.sweepStart},
 		{"POST", "/cases/{id}/recordings", coordWork, s.caseRecordingAdd},
 
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},

@@ -6,8 +6,6 @@ import (
 	"fmt"
 	"io"
 	"net/http"
-	"path/filepath"
-	"strconv"
 	"time"
 
 	"cohortdesk/cohort"
@@ -24,14 +22,10 @@ type screeningStore interface {
 	ExternalVerdicts(ctx context.Context, participantID int64) ([]db.ExternalVerdict, error)
 	ScreenResults(ctx context.Context, participantID int64, protocolID int) ([]db.StoredResult, error)
 	WearWeek(ctx context.Context, p db.Participant, week int) (cohort.Week, error)
-	StartExploration(ctx context.Context, a cohort.Actor, protocolID int, param string, values []float64) (int64, error)
-	Exploration(ctx context.Context, id int64) (db.ExplorationRun, error)
-	Explorations(ctx context.Context, limit int) ([]db.ExplorationRun, error)
+	StartSweep(ctx context.Context, a cohort.Actor, protocolID int, param string, values []float64) (int64, error)
+	SweepRun(ctx context.Context, id int64) (db.SweepRun, error)
+	SweepRuns(ctx context.Context, limit int) ([]db.SweepRun, error)
 }
-
-// maxVerdictUpload bounds a verdicts file: a line per participant-week of a
-// large study fits with room to spare.
-const maxVerdictUpload = 256 << 20
 
 func jobTone(state string) components.Tone {
 	switch state {
@@ -60,7 +54,7 @@ func (s *Server) screeningJobs(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	rl := role(r)
-	m := views.JobsModel{Page: s.page(r, "Screening", "screening"), CanImport: coordWork.allows(rl), CanExplore: tuning.allows(rl),
+	m := views.JobsModel{Page: s.page(r, "Screening", "screening"), CanImport: coordWork.allows(rl), CanSweep: tuning.allows(rl),
 		CanAdmin: adminOnly.allows(rl)}
 	if p, err := s.store.ActiveProtocol(ctx); err == nil {
 		m.Active = p.Label()
@@ -83,72 +77,4 @@ func (s *Server) screeningJobs(w http.ResponseWriter, r *http.Request) error {
 		m.Jobs = append(m.Jobs, row)
 	}
 	return s.ok(w, r, views.Jobs(m))
-}
-
-func (s *Server) externalPage(w http.ResponseWriter, r *http.Request, status int, errs map[string]string, res *views.ExternalResult) error {
-	list, err := s.store.VerdictImports(r.Context(), 20)
-	if err != nil {
-		return err
-	}
-	m := views.ExternalModel{Page: s.page(r, "External verdicts", "screening"), Errors: errs, Result: res}
-	for _, im := range list {
-		m.Imports = append(m.Imports, views.VerdictImportRow{ID: im.ID, File: im.File, Status: im.Status, Tone: components.Tone(statusTone(im.Status)),
-			When: im.StartedAt.UTC().Format("2006-01-02 15:04 UTC"), Actor: im.Actor, Message: im.Message})
-	}
-	s.render(w, r, status, views.External(m))
-	return nil
-}
-
-func (s *Server) externalVerdictsForm(w http.ResponseWriter, r *http.Request) error {
-	return s.externalPage(w, r, http.StatusOK, nil, nil)
-}
-
-// externalVerdictsImport stores an uploaded verdicts file and reports it.
-func (s *Server) externalVerdictsImport(w http.ResponseWriter, r *http.Request) error {
-	r.Body = http.MaxBytesReader(w, r.Body, maxVerdictUpload)
-	f, hdr, err := r.FormFile("file")
-	if err != nil {
-		var mbe *http.MaxBytesError
-		if errors.As(err, &mbe) {
-			return s.externalPage(w, r, http.StatusRequestEntityTooLarge, map[string]string{"file": "the file is larger than 256 MB; split it"}, nil)
-		}
-		return s.externalPage(w, r, http.StatusUnprocessableEntity, map[string]string{"file": "choose a CSV file of verdicts"}, nil)
-	}
-	defer f.Close()
-	res, err := s.store.ImportVerdicts(r.Context(), s.actor(r), filepath.Base(hdr.Filename), f)
-	var ve *cohort.ValidationError
-	if errors.As(err, &ve) {
-		return s.externalPage(w, r, http.StatusUnprocessableEntity, ve.Fields, nil)
-	}
-	if err != nil {
-		return err
-	}
-	out := &views.ExternalResult{File: res.File, Summary: res.Summary(), Added: res.Added, Replaced: res.Replaced,
-		Duplicates: res.Duplicates, Rejected: res.Rejected}
-	const show = 200
-	for i, rj := range res.Rejections {
-		if i == show {
-			break
-		}
-		msg := rj.Message
-		if rj.Field != "" {
-			msg = rj.Field + ": " + msg
-		}
-		out.Rejects = append(out.Rejects, views.RejectRow{Line: rj.Line, Reason: rj.Reason, Message: msg})
-	}
-	out.More = res.Rejected - len(out.Rejects)
-	return s.externalPage(w, r, http.StatusOK, nil, out)
-}
-
-// externalRows formats a participant's external verdicts for the page.
-func externalRows(vs []db.ExternalVerdict) []views.ExternalVerdictRow {
-	out := make([]views.ExternalVerdictRow, len(vs))
-	for i, v := range vs {
-		score := ""
-		if v.Score != nil {
-			score = strconv.FormatFloat(*v.Score, 'g', 4, 64)
-		}
-		out[i] = views.ExternalVerdictRow{Week: v.Week, Model: v.ModelName + " " + v.ModelVersion, Score: score, Verdict: v.Verdict, Tone: verdictTone(v.Verdict)}
-	}
-	return out
 }

@@ -205,7 +205,7 @@ func TestExternalVerdictsUploadAndParticipantPage(t *testing.T) {
 	}
 }
 
-func TestParticipantChartsAndExplorer(t *testing.T) {
+func TestParticipantChartsAndSweep(t *testing.T) {
 	a := newApp(t)
 	a.withProtocol()
 	pid := a.screenedParticipant("CH-1")
@@ -223,18 +223,18 @@ func TestParticipantChartsAndExplorer(t *testing.T) {
 		t.Fatalf("steady week: status %d, expected no irregular windows", res.StatusCode)
 	}
 
-	res, body = a.get(c, "/explorer")
-	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="explorer-form"`) || strings.Contains(body, `data-testid="explorer-table"`) {
-		t.Fatalf("explorer form: status %d", res.StatusCode)
+	res, body = a.get(c, "/sweep")
+	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="sweep-form"`) || strings.Contains(body, `data-testid="sweep-table"`) {
+		t.Fatalf("sweep form: status %d", res.StatusCode)
 	}
 	// A sweep is asked for, runs in the background and is then shown.
-	res = a.postForm(c, "/explorer", url.Values{"param": {"windows[0].masd_threshold"}, "from": {"4"}, "to": {"40"}, "steps": {"3"}})
+	res = a.postForm(c, "/sweep", url.Values{"param": {"windows[0].masd_threshold"}, "from": {"4"}, "to": {"40"}, "steps": {"3"}})
 	loc := res.Header.Get("Location")
-	if res.StatusCode != http.StatusSeeOther || !strings.HasPrefix(loc, "/explorer?run=") {
+	if res.StatusCode != http.StatusSeeOther || !strings.HasPrefix(loc, "/sweep?run=") {
 		t.Fatalf("start a sweep: status %d, location %q", res.StatusCode, loc)
 	}
 	res, body = a.get(c, loc)
-	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="explorer-progress"`) || strings.Contains(body, `data-testid="explorer-table"`) {
+	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="sweep-progress"`) || strings.Contains(body, `data-testid="sweep-table"`) {
 		t.Fatalf("queued sweep: status %d\n%.3000s", res.StatusCode, body)
 	}
 	poll, _ := http.NewRequest("GET", a.ts.URL+loc, nil)
@@ -250,24 +250,24 @@ func TestParticipantChartsAndExplorer(t *testing.T) {
 		t.Fatalf("poll once done: %v %v", res, err)
 	}
 	res, body = a.get(c, loc)
-	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="chart-explorer-chart"`) || strings.Count(body, "<tr data-row>") != 3 {
-		t.Fatalf("explorer run: status %d\n%.3000s", res.StatusCode, body)
+	if res.StatusCode != 200 || !strings.Contains(body, `data-testid="chart-sweep-chart"`) || strings.Count(body, "<tr data-row>") != 3 {
+		t.Fatalf("sweep run: status %d\n%.3000s", res.StatusCode, body)
 	}
-	if !strings.Contains(body, `data-testid="explorer-recent"`) || !strings.Contains(body, `href="`+loc+`"`) {
+	if !strings.Contains(body, `data-testid="sweep-recent"`) || !strings.Contains(body, `href="`+loc+`"`) {
 		t.Fatal("the sweep is not listed among the latest")
 	}
-	res, body = a.postFormBody(c, "/explorer", url.Values{"param": {"windows[0].run_length"}, "from": {"-5"}, "to": {"1"}, "steps": {"3"}})
+	res, body = a.postFormBody(c, "/sweep", url.Values{"param": {"windows[0].run_length"}, "from": {"-5"}, "to": {"1"}, "steps": {"3"}})
 	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-values"`) {
 		t.Fatalf("invalid sweep: status %d", res.StatusCode)
 	}
-	res = a.postForm(c, "/explorer", url.Values{"from": {"x"}, "steps": {"500"}})
+	res = a.postForm(c, "/sweep", url.Values{"from": {"x"}, "steps": {"500"}})
 	if res.StatusCode != http.StatusUnprocessableEntity {
 		t.Fatalf("unreadable sweep: status %d", res.StatusCode)
 	}
-	if res, _ := a.get(c, "/explorer?run=999999"); res.StatusCode != http.StatusNotFound {
+	if res, _ := a.get(c, "/sweep?run=999999"); res.StatusCode != http.StatusNotFound {
 		t.Fatalf("unknown sweep: %d, want 404", res.StatusCode)
 	}
-	if res, _ := a.get(a.signIn(cohort.Coordinator), "/explorer"); res.StatusCode != http.StatusForbidden {
-		t.Fatalf("coordinator explorer: %d, want 403", res.StatusCode)
+	if res, _ := a.get(a.signIn(cohort.Coordinator), "/sweep"); res.StatusCode != http.StatusForbidden {
+		t.Fatalf("coordinator sweep page: %d, want 403", res.StatusCode)
 	}
 }

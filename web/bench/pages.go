@@ -16,6 +16,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 	"cohortdesk/web"
@@ -157,7 +158,7 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 				if _, err := store.Sites(ctx); err != nil {
 					return err
 				}
-				_, err := store.Cascade(ctx, db.CascadeFilter{})
+				_, err := store.Cascade(ctx, cascade.Filter{})
 				return err
 			})
 			return g.Wait()

@@ -46,7 +46,7 @@ func alternating(t *testing.T, s *db.Store, pid int64, week int, lo, step int32)
 	dbtest.PutWearWeek(t, s.Pool(), pid, week, cohort.HeartRate, hr)
 }
 
-func TestExploreCountsFlagsPPVAndSensitivity(t *testing.T) {
+func TestSweepCountsFlagsPPVAndSensitivity(t *testing.T) {
 	s := newStore(t)
 	ctx := context.Background()
 	v1 := mustDefault(t, s)
@@ -71,12 +71,12 @@ func TestExploreCountsFlagsPPVAndSensitivity(t *testing.T) {
 
 	// 5-minute threshold 3: A and B flag. 8 (the default): only A. 30: A
 	// still flags through its 30-minute windows (threshold 7).
-	got, err := s.Explore(ctx, v1.ID, "windows[0].masd_threshold", []float64{3, 8, 30})
+	got, err := s.Sweep(ctx, v1.ID, "windows[0].masd_threshold", []float64{3, 8, 30})
 	if err != nil {
 		t.Fatal(err)
 	}
 	if got.Weeks != 6 || got.ConfirmedWeeks != 2 || got.NotAFWeeks != 1 || got.UninterpretableWeeks != 1 || got.PendingWeeks != 1 {
-		t.Fatalf("exploration %+v", got)
+		t.Fatalf("sweep %+v", got)
 	}
 	want := []struct {
 		flagged int
@@ -115,20 +115,20 @@ func TestExploreCountsFlagsPPVAndSensitivity(t *testing.T) {
 		{"windows[0].run_length", []float64{2.5}},
 		{"min_wear_hours", nil},
 	} {
-		if _, err := s.Explore(ctx, v1.ID, c.param, c.values); !errors.As(err, &ve) {
+		if _, err := s.Sweep(ctx, v1.ID, c.param, c.values); !errors.As(err, &ve) {
 			t.Errorf("%s %v: err %v, want a validation error", c.param, c.values, err)
 		}
 	}
-	if _, err := s.Explore(ctx, 999, "min_wear_hours", []float64{1}); !errors.Is(err, cohort.ErrNotFound) {
+	if _, err := s.Sweep(ctx, 999, "min_wear_hours", []float64{1}); !errors.Is(err, cohort.ErrNotFound) {
 		t.Errorf("unknown version: %v", err)
 	}
 }
 
-// TestExplorationRunsInTheBackground: a sweep asked for is recorded and
+// TestSweepRunsInTheBackground: a sweep asked for is recorded and
 // queued; a worker computes it with progress and stores the result, which
-// reads back equal to Explore's own on the same data. A sweep that cannot
+// reads back equal to Sweep's own on the same data. A sweep that cannot
 // run is refused before anything is queued.
-func TestExplorationRunsInTheBackground(t *testing.T) {
+func TestSweepRunsInTheBackground(t *testing.T) {
 	s := newStore(t)
 	ctx := context.Background()
 	v1 := mustDefault(t, s)
@@ -142,23 +142,23 @@ func TestExplorationRunsInTheBackground(t *testing.T) {
 	actor := cohort.Actor{Name: "Inv", Role: cohort.Investigator}
 	values := []float64{3, 8, 30}
 
-	id, err := s.StartExploration(ctx, actor, v1.ID, "windows[0].masd_threshold", values)
+	id, err := s.StartSweep(ctx, actor, v1.ID, "windows[0].masd_threshold", values)
 	if err != nil {
 		t.Fatal(err)
 	}
-	run, err := s.Exploration(ctx, id)
+	run, err := s.SweepRun(ctx, id)
 	if err != nil || run.Result != nil || run.Job.State != db.JobQueued || run.Param != "windows[0].masd_threshold" || len(run.Values) != 3 {
-		t.Fatalf("queued exploration %+v (err %v)", run, err)
+		t.Fatalf("queued sweep %+v (err %v)", run, err)
 	}
 	w := &db.Worker{Store: s, Handlers: db.NewScreener(s, nil).Handlers()}
 	if ok, err := w.RunOne(ctx, run.Job.ID); !ok || err != nil {
 		t.Fatalf("run the job: %v %v", ok, err)
 	}
-	run, err = s.Exploration(ctx, id)
+	run, err = s.SweepRun(ctx, id)
 	if err != nil || run.Result == nil || run.Job.State != db.JobDone || run.Job.Done != 3 || run.Job.Total != 3 {
-		t.Fatalf("finished exploration: job %+v, result %v (err %v)", run.Job, run.Result != nil, err)
+		t.Fatalf("finished sweep: job %+v, result %v (err %v)", run.Job, run.Result != nil, err)
 	}
-	direct, err := s.Explore(ctx, v1.ID, "windows[0].masd_threshold", values)
+	direct, err := s.Sweep(ctx, v1.ID, "windows[0].masd_threshold", values)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -171,24 +171,24 @@ func TestExplorationRunsInTheBackground(t *testing.T) {
 			t.Errorf("value %v: stored %+v, direct %+v", r.Value, r, d)
 		}
 	}
-	list, err := s.Explorations(ctx, 10)
+	list, err := s.SweepRuns(ctx, 10)
 	if err != nil || len(list) != 1 || list[0].ID != id {
 		t.Fatalf("list %+v (err %v)", list, err)
 	}
 	var n int
-	pool.QueryRow(ctx, `SELECT count(*) FROM audit_events WHERE action = 'exploration.start' AND object_id = $1`, fmt.Sprint(id)).Scan(&n)
+	pool.QueryRow(ctx, `SELECT count(*) FROM audit_events WHERE action = 'sweep.start' AND object_id = $1`, fmt.Sprint(id)).Scan(&n)
 	if n != 1 {
 		t.Errorf("start audited %d times", n)
 	}
 
 	var ve *cohort.ValidationError
-	if _, err := s.StartExploration(ctx, actor, v1.ID, "windows[7].masd_threshold", []float64{5}); !errors.As(err, &ve) {
+	if _, err := s.StartSweep(ctx, actor, v1.ID, "windows[7].masd_threshold", []float64{5}); !errors.As(err, &ve) {
 		t.Errorf("unknown parameter: %v, want a validation error", err)
 	}
-	if _, err := s.StartExploration(ctx, actor, 999, "min_wear_hours", []float64{1}); !errors.Is(err, cohort.ErrNotFound) {
+	if _, err := s.StartSweep(ctx, actor, 999, "min_wear_hours", []float64{1}); !errors.Is(err, cohort.ErrNotFound) {
 		t.Errorf("unknown version: %v", err)
 	}
-	pool.QueryRow(ctx, `SELECT count(*) FROM jobs WHERE kind = $1`, db.JobExplore).Scan(&n)
+	pool.QueryRow(ctx, `SELECT count(*) FROM jobs WHERE kind = $1`, db.JobSweep).Scan(&n)
 	if n != 1 {
 		t.Errorf("%d sweep jobs queued, want only the one that could run", n)
 	}
