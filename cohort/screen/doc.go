@@ -78,7 +78,8 @@
 // # The threshold sweep
 //
 // Sweep re-evaluates prepared weeks across several values of one parameter
-// (the parameters it can vary are listed by the package), so an investigator can
-// see how many weeks each value would flag and how those flags agree with the
-// over-read ECGs, before an administrator makes a new protocol version.
+// (SweepParams lists those it can vary; CheckSweep checks a request), and
+// SweepTally counts, per value, how many weeks would flag and how those flags
+// agree with the over-read ECGs of the study's cases, so an investigator can
+// weigh a change before an administrator makes a new protocol version.
 package screen
