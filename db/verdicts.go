@@ -150,7 +150,7 @@ func (s *Store) ImportVerdicts(ctx context.Context, a cohort.Actor, name string,
 			continue
 		}
 		k := verdictKey{pid, row.Week, row.ModelName, row.ModelVersion}
-		v := verdictVal{verdict: row.Verdict.String(), line: row.Line}
+		v := verdictVal{verdict: string(row.Verdict), line: row.Line}
 		if row.HasScore {
 			sc := row.Score
 			v.score = &sc

@@ -19,7 +19,8 @@ import (
 //go:embed *.sql
 var files embed.FS
 
-// FS is the embedded migration files.
+// FS is the embedded migration files, for tests that apply part of the
+// sequence (up to a version) before checking what a later file does.
 func FS() fs.FS { return files }
 
 // Status is one migration and whether it has been applied.

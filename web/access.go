@@ -1,8 +1,6 @@
 package web
 
 import (
-	"strings"
-
 	"cohortdesk/cohort"
 )
 
@@ -26,18 +24,6 @@ func (a access) allows(role cohort.Role) bool {
 		}
 	}
 	return false
-}
-
-// String lists the roles, for the route table in the docs and tests.
-func (a access) String() string {
-	if a.public {
-		return "public"
-	}
-	parts := make([]string, len(a.roles))
-	for i, r := range a.roles {
-		parts[i] = string(r)
-	}
-	return strings.Join(parts, ", ")
 }
 
 // The access levels the route table uses. Read them as sentences: "this route

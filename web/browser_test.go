@@ -13,6 +13,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/deid/deidtest"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/views/components"
 	"cohortdesk/web/browsertest"
@@ -148,7 +149,7 @@ func TestBrowserPrintsReferralOnChosenPaper(t *testing.T) {
 		if strings.Contains(text, "Triage") || strings.Contains(text, "Issue summary") {
 			t.Errorf("%s printout shows the application's navigation or forms", tt.paper)
 		}
-		if leaks := deid.Leaks(text, canaries); len(leaks) > 0 {
+		if leaks := deidtest.Leaks(text, canaries); len(leaks) > 0 {
 			t.Errorf("%s printout leaks %v", tt.paper, leaks)
 		}
 		if os.Getenv("COHORTDESK_KEEP_PRINT") != "" {

@@ -18,16 +18,6 @@ import (
 // large study fits with room to spare.
 const maxVerdictUpload = 256 << 20
 
-func importTone(status string) components.Tone {
-	switch status {
-	case "done":
-		return components.OK
-	case "failed", "interrupted":
-		return components.Alarm
-	}
-	return components.Info
-}
-
 func (s *Server) externalPage(w http.ResponseWriter, r *http.Request, status int, errs map[string]string, res *views.ExternalResult) error {
 	list, err := s.store.VerdictImports(r.Context(), 20)
 	if err != nil {
@@ -35,7 +25,7 @@ func (s *Server) externalPage(w http.ResponseWriter, r *http.Request, status int
 	}
 	m := views.ExternalModel{Page: s.page(r, "External verdicts", "screening"), Errors: errs, Result: res}
 	for _, im := range list {
-		m.Imports = append(m.Imports, views.VerdictImportRow{ID: im.ID, File: im.File, Status: im.Status, Tone: importTone(im.Status),
+		m.Imports = append(m.Imports, views.VerdictImportRow{ID: im.ID, File: im.File, Status: im.Status, Tone: components.Tone(statusTone(im.Status)),
 			When: im.StartedAt.UTC().Format("2006-01-02 15:04 UTC"), Actor: im.Actor, Message: im.Message})
 	}
 	s.render(w, r, status, views.External(m))

@@ -244,11 +244,12 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 	if err := os.Chmod(dir, 0o755); err != nil { // the server user must pass when run as root
 		t.Fatal(err)
 	}
-	cl, err := pgcluster.Start(ctx, pgcluster.Config{Dir: filepath.Join(dir, "pg"), Fast: true}, os.Getenv)
+	cfg := pgcluster.Config{Dir: filepath.Join(dir, "pg"), Fast: true}
+	cl, err := pgcluster.Start(ctx, cfg, os.Getenv)
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer cl.Stop()
+	defer func() { cl.Stop() }() // the cluster started last
 	setup, err := pgxpool.New(ctx, cl.URL("postgres"))
 	if err != nil {
 		t.Fatal(err)
@@ -304,8 +305,14 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 		t.Errorf("healthz while PostgreSQL is down: %d, want 200 (the process is alive)", res.StatusCode)
 	}
 
-	if err := cl.Restart(ctx); err != nil {
+	// Started again as the demo command starts it: same folder, same data, and
+	// (the socket living in the data folder) the same address the pool knows.
+	url := cl.URL("app")
+	if cl, err = pgcluster.Start(ctx, cfg, os.Getenv); err != nil {
 		t.Fatal(err)
+	}
+	if cl.URL("app") != url {
+		t.Fatalf("the restarted server answers at %s, the app's pool at %s", cl.URL("app"), url)
 	}
 	ready := false
 	for i := 0; i < 300 && !ready; i++ { // bounded: 30 s

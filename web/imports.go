@@ -26,6 +26,8 @@ type importStore interface {
 // of the database rather than the server's memory.
 const maxUploadBytes = 8 << 30
 
+// statusTone is the badge tone of an import's or a background job's status,
+// for every page that lists them.
 func statusTone(status string) string {
 	switch status {
 	case "done":

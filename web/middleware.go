@@ -10,7 +10,6 @@ import (
 	"net"
 	"net/http"
 	"runtime/debug"
-	"time"
 )
 
 type ctxKey int
@@ -125,6 +124,3 @@ func withSecurityHeaders(next http.Handler) http.Handler {
 		next.ServeHTTP(w, r)
 	})
 }
-
-// since is a small helper for durations in logs and benchmarks.
-func since(now func() time.Time, t time.Time) time.Duration { return now().Sub(t) }

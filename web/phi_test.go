@@ -10,7 +10,7 @@ import (
 	"cohortdesk/cmd/cohortdesk/demoload"
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
-	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/deid/deidtest"
 )
 
 // loadDemo fills the app's database with a small fictional study.
@@ -112,7 +112,7 @@ func canaryStudyIDs(res demoload.Result) []string {
 // leaksIn finds canaries in a page. Everywhere, a canary's exact text counts
 // (a number made only of digits - a ZIP code, a phone number's digits - only as
 // a whole number: "03601" inside the timestamp 1759403601000 is not a ZIP
-// code). In the readable part of the page, deid.Leaks also finds reformatted
+// code). In the readable part of the page, deidtest.Leaks also finds reformatted
 // phone numbers and dates; chart data and SVG geometry are left out of that
 // looser search, where runs of unrelated numbers would match by chance.
 // Plain string scanning, not regular expressions: the crawl reads hundreds of
@@ -133,7 +133,7 @@ func leaksIn(text string, canaries []string) []string {
 		}
 		words = append(words, c)
 	}
-	return append(out, deid.Leaks(withoutMachineData(text), words)...)
+	return append(out, deidtest.Leaks(withoutMachineData(text), words)...)
 }
 
 func isDigits(s string) bool {

@@ -12,6 +12,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/deid/deidtest"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/referral"
@@ -125,7 +126,7 @@ func TestReferralPDF(t *testing.T) {
 				t.Errorf("%s: PDF text lacks %q", tt.paper, want)
 			}
 		}
-		if leaks := deid.Leaks(text, []string{"FX-0007", "1948-09-12", "2025-02-05", "2025-02-03", "2025-02-10", "Denver"}); len(leaks) > 0 {
+		if leaks := deidtest.Leaks(text, []string{"FX-0007", "1948-09-12", "2025-02-05", "2025-02-03", "2025-02-10", "Denver"}); len(leaks) > 0 {
 			t.Errorf("%s: PDF leaks %v", tt.paper, leaks)
 		}
 		if bytes.Contains(pdf, []byte("2025")) || bytes.Contains(pdf, []byte("1948")) {

@@ -18,6 +18,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/deid/deidtest"
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
@@ -219,7 +220,7 @@ func TestReferralsAndExportsLeakNoCanary(t *testing.T) {
 	check := func(what, text string) {
 		t.Helper()
 		checked++
-		if leaks := deid.Leaks(text, canaries); len(leaks) > 0 {
+		if leaks := deidtest.Leaks(text, canaries); len(leaks) > 0 {
 			t.Errorf("%s leaks %v", what, leaks)
 		}
 	}
@@ -290,7 +291,7 @@ func TestReferralsAndExportsLeakNoCanary(t *testing.T) {
 	// The same crawl as a coordinator's case page finds the canaries: the
 	// check can fail.
 	_, casePage := a.get(coord, fmt.Sprintf("/cases/%d", cases[old]))
-	if len(deid.Leaks(casePage, canaries)) == 0 {
+	if len(deidtest.Leaks(casePage, canaries)) == 0 {
 		t.Fatal("the case page shows no canary either: the test cannot tell a leak")
 	}
 }
@@ -362,7 +363,7 @@ func TestDatasetExport(t *testing.T) {
 	for _, b := range files {
 		all += string(b)
 	}
-	if leaks := deid.Leaks(all, []string{"NW-0089", "NW-0090", "NW-0091", "NW-0050", "Plantedname", "1936-01-01", "2026-01-05", "2026-03-02", "55601", "Northwood"}); len(leaks) > 0 {
+	if leaks := deidtest.Leaks(all, []string{"NW-0089", "NW-0090", "NW-0091", "NW-0050", "Plantedname", "1936-01-01", "2026-01-05", "2026-03-02", "55601", "Northwood"}); len(leaks) > 0 {
 		t.Errorf("the export contains %v", leaks)
 	}
 	var man datasetManifest

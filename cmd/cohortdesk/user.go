@@ -23,7 +23,11 @@ func runUser(ctx context.Context, e env, args []string) error {
 	url := fs.String("database-url", e.getenv("DATABASE_URL"), "PostgreSQL URL (env DATABASE_URL)")
 	email := fs.String("email", "", "the account's e-mail address (its sign-in name)")
 	name := fs.String("name", "", "the person's name (add)")
-	role := fs.String("role", "admin", "admin, coordinator, investigator or monitor (add)")
+	roles := make([]string, len(cohort.Roles))
+	for i, r := range cohort.Roles {
+		roles[i] = string(r)
+	}
+	role := fs.String("role", string(cohort.Admin), "the account's role: "+strings.Join(roles, ", ")+" (add)")
 	stdin := fs.Bool("password-stdin", false, "read the password from standard input instead of generating one")
 	fs.Usage = func() {
 		fmt.Fprintln(e.stderr, "usage: cohortdesk user [flags] add|reset-password|list")
@@ -43,19 +47,23 @@ func runUser(ctx context.Context, e env, args []string) error {
 	defer closeDB()
 	actor := cohort.Actor{Name: "command line (" + osUser() + ")"}
 
-	password := func() (string, bool, error) {
+	// password is the new password (generated, or read from standard input)
+	// and its hash; generated says whether to print it.
+	password := func() (pw, hash string, generated bool, err error) {
 		if !*stdin {
-			return credential.RandomPassword(16), true, nil
+			pw, generated = credential.RandomPassword(16), true
+		} else {
+			pw, err = bufio.NewReader(os.Stdin).ReadString('\n')
+			if err != nil && !errors.Is(err, io.EOF) {
+				return "", "", false, err
+			}
+			pw = strings.TrimRight(pw, "\r\n")
+			if err := credential.CheckPolicy(pw); err != nil {
+				return "", "", false, fmt.Errorf("user: password: %w", err)
+			}
 		}
-		pw, err := bufio.NewReader(os.Stdin).ReadString('\n')
-		if err != nil && !errors.Is(err, io.EOF) {
-			return "", false, err
-		}
-		pw = strings.TrimRight(pw, "\r\n")
-		if err := credential.CheckPolicy(pw); err != nil {
-			return "", false, fmt.Errorf("user: password: %w", err)
-		}
-		return pw, false, nil
+		hash, err = credential.Hash(pw, credential.DefaultParams)
+		return pw, hash, generated, err
 	}
 
 	switch fs.Arg(0) {
@@ -64,11 +72,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		if err != nil {
 			return fmt.Errorf("user: %w", err)
 		}
-		pw, generated, err := password()
-		if err != nil {
-			return err
-		}
-		hash, err := credential.Hash(pw, credential.DefaultParams)
+		pw, hash, generated, err := password()
 		if err != nil {
 			return err
 		}
@@ -86,11 +90,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		if err != nil {
 			return fmt.Errorf("user: no account %q: %w", *email, err)
 		}
-		pw, generated, err := password()
-		if err != nil {
-			return err
-		}
-		hash, err := credential.Hash(pw, credential.DefaultParams)
+		pw, hash, generated, err := password()
 		if err != nil {
 			return err
 		}

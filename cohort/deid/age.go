@@ -88,18 +88,6 @@ func (a Age) Band(b stats.AgeBands) (string, error) {
 	return b.Label(a.Years), nil
 }
 
-// YearOf returns the year of a date related to the person, and whether an
-// export may show it. Safe Harbor keeps the year of most dates, but not
-// "dates (including year) indicative of" an age over 89; for people over 89
-// we drop every year, the conservative reading, since any event year next to
-// an age category narrows the birth year.
-func YearOf(d cohort.Date, a Age) (int, bool) {
-	if a.Over89 {
-		return 0, false
-	}
-	return d.Year, true
-}
-
 // checkDate refuses dates that do not exist (month 13, 30 February), which
 // would otherwise be normalised silently by the time package.
 func checkDate(field string, d cohort.Date) error {

@@ -1,11 +1,3 @@
-// Package deid holds cohortdesk's de-identification rules for referral
-// summaries and data exports, as data and small pure functions, following the
-// HIPAA Safe Harbor method (45 CFR 164.514(b)(2)).
-//
-// The rules remove or generalise the listed identifiers; they cannot see what
-// a reader might otherwise know. Safe Harbor also requires that the releasing
-// party has no actual knowledge that what remains could identify the person,
-// so a human must review every export before release.
 package deid
 
 import "errors"

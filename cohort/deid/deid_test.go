@@ -217,15 +217,3 @@ func TestAgeBand(t *testing.T) {
 	_, err := a.Band(past90)
 	wantInvalid(t, "band cut 95", err)
 }
-
-func TestYearOf(t *testing.T) {
-	ref := mustDate(t, "2025-06-15")
-	young, _ := AgeOf(mustDate(t, "1950-01-01"), ref)
-	old, _ := AgeOf(mustDate(t, "1930-01-01"), ref)
-	if y, ok := YearOf(mustDate(t, "2024-11-03"), young); !ok || y != 2024 {
-		t.Errorf("YearOf for a 75-year-old = %d, %v; want 2024, true", y, ok)
-	}
-	if y, ok := YearOf(mustDate(t, "2024-11-03"), old); ok || y != 0 {
-		t.Errorf("YearOf for someone over 89 = %d, %v; want dropped", y, ok)
-	}
-}

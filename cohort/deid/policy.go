@@ -55,30 +55,6 @@ var neverAllowed = []string{
 	"recording_id", "file_name", "taken_at", "read_on", "enrolled_on",
 }
 
-// Exports lists every export kind, sorted.
-func Exports() []Export {
-	out := make([]Export, 0, len(allowList))
-	for e := range allowList {
-		out = append(out, e)
-	}
-	slices.Sort(out)
-	return out
-}
-
-// AllowedFields returns the columns an export may contain, in the order an
-// export should print them. It returns a copy.
-func AllowedFields(e Export) ([]string, error) {
-	f, ok := allowList[e]
-	if !ok {
-		return nil, fmt.Errorf("deid: export %q is unknown: %w", e, ErrInvalid)
-	}
-	return slices.Clone(f), nil
-}
-
-// NeverAllowed returns the columns that no export may contain, for tests
-// and for the data protection review.
-func NeverAllowed() []string { return slices.Clone(neverAllowed) }
-
 // CheckFields returns an error wrapping ErrNotAllowed naming the first column
 // of an export that is not on its allow-list. Exporters call it with their
 // header before writing a row, so a column added by accident fails loudly.

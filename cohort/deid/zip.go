@@ -2,6 +2,8 @@ package deid
 
 import (
 	"fmt"
+	"maps"
+	"slices"
 	"strings"
 )
 
@@ -17,10 +19,10 @@ var restrictedZIP3 = map[string]bool{
 	"878": true, "879": true, "884": true, "890": true, "893": true,
 }
 
-// RestrictedZIP3 lists the restricted prefixes in ascending order.
+// RestrictedZIP3 lists the restricted prefixes in ascending order (a new
+// slice each call).
 func RestrictedZIP3() []string {
-	return []string{"036", "059", "063", "102", "203", "556", "692", "790", "821",
-		"823", "830", "831", "878", "879", "884", "890", "893"}
+	return slices.Sorted(maps.Keys(restrictedZIP3))
 }
 
 // ZIP3 returns the part of a US ZIP code Safe Harbor lets an export keep: the

@@ -104,23 +104,11 @@ type Closure struct {
 	Name string
 }
 
-// Role is what a staff user may do; the values match the roles in the domain
-// description.
-type Role string
-
-// The staff roles.
-const (
-	RoleAdmin        Role = "admin"
-	RoleCoordinator  Role = "coordinator"
-	RoleInvestigator Role = "investigator"
-	RoleMonitor      Role = "monitor"
-)
-
 // User is a staff member with an invented name.
 type User struct {
 	Login string
 	Name  string
-	Role  Role
+	Role  cohort.Role
 	Email string   // at example.net, a reserved domain
 	Sites []string // site codes a coordinator works for; empty means all
 }
@@ -174,11 +162,11 @@ var closureSpecs = []struct {
 
 // staffSpecs are the invented staff.
 var staffSpecs = []User{
-	{Login: "opallaway", Name: "Odrin Pallaway", Role: RoleAdmin},
-	{Login: "smunrowe", Name: "Sefaly Munrowe", Role: RoleCoordinator, Sites: []string{"QRW", "VLM"}},
-	{Login: "tkorrensby", Name: "Tavrin Korrensby", Role: RoleCoordinator, Sites: []string{"DRF"}},
-	{Login: "wfenwarrick", Name: "Wynnet Fenwarrick", Role: RoleInvestigator},
-	{Login: "pquellstead", Name: "Perrowan Quellstead", Role: RoleMonitor},
+	{Login: "opallaway", Name: "Odrin Pallaway", Role: cohort.Admin},
+	{Login: "smunrowe", Name: "Sefaly Munrowe", Role: cohort.Coordinator, Sites: []string{"QRW", "VLM"}},
+	{Login: "tkorrensby", Name: "Tavrin Korrensby", Role: cohort.Coordinator, Sites: []string{"DRF"}},
+	{Login: "wfenwarrick", Name: "Wynnet Fenwarrick", Role: cohort.Investigator},
+	{Login: "pquellstead", Name: "Perrowan Quellstead", Role: cohort.Monitor},
 }
 
 // New generates the study described by cfg. It fails only when a time zone
@@ -337,7 +325,7 @@ func (s *Study) Participant(studyID string) (Participant, bool) {
 
 // User returns the first user with the role, for callers that need "the"
 // investigator or "the" monitor.
-func (s *Study) User(role Role) (User, bool) {
+func (s *Study) User(role cohort.Role) (User, bool) {
 	for _, u := range s.Users {
 		if u.Role == role {
 			return u, true
@@ -349,19 +337,9 @@ func (s *Study) User(role Role) (User, bool) {
 // coordinatorFor is the coordinator who owns cases of a site.
 func (s *Study) coordinatorFor(site string) string {
 	for _, u := range s.Users {
-		if u.Role == RoleCoordinator && (len(u.Sites) == 0 || slices.Contains(u.Sites, site)) {
+		if u.Role == cohort.Coordinator && (len(u.Sites) == 0 || slices.Contains(u.Sites, site)) {
 			return u.Login
 		}
 	}
 	return s.Users[0].Login
-}
-
-// Site returns the site with the given code.
-func (s *Study) Site(code string) (Site, bool) {
-	for _, st := range s.Sites {
-		if st.Code == code {
-			return st, true
-		}
-	}
-	return Site{}, false
 }

@@ -8,6 +8,8 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/risk"
 )
 
 func TestNewRejectsBadConfig(t *testing.T) {
@@ -167,7 +169,7 @@ func TestRestrictedZIPsPlanted(t *testing.T) {
 		if !zip.MatchString(p.ZIP) {
 			t.Errorf("%s: ZIP %q is not five digits", p.StudyID, p.ZIP)
 		}
-		if slices.Contains(RestrictedZIP3, p.ZIP[:3]) {
+		if slices.Contains(deid.RestrictedZIP3(), p.ZIP[:3]) {
 			restricted[p.ZIP[:3]] = true
 			n++
 		}
@@ -182,9 +184,11 @@ func TestRestrictedZIPsPlanted(t *testing.T) {
 
 func TestRestrictedZIPList(t *testing.T) {
 	// HHS 2012 de-identification guidance (verified, secondary; check-values.md):
-	// 17 prefixes, including 790 and 890 that some copies miss.
-	if len(RestrictedZIP3) != 17 || !slices.Contains(RestrictedZIP3, "790") || !slices.Contains(RestrictedZIP3, "890") {
-		t.Errorf("RestrictedZIP3 = %v, want the 17 HHS prefixes", RestrictedZIP3)
+	// 17 prefixes, including 790 and 890 that some copies miss. The demo plants
+	// from deid's list; deid's own test holds the whole list against the source.
+	l := deid.RestrictedZIP3()
+	if len(l) != 17 || !slices.Contains(l, "790") || !slices.Contains(l, "890") {
+		t.Errorf("deid.RestrictedZIP3 = %v, want the 17 HHS prefixes", l)
 	}
 }
 
@@ -230,11 +234,11 @@ func TestContactDetailsAreFictional(t *testing.T) {
 
 func TestStaffHasEveryRole(t *testing.T) {
 	s := mustDefault(t)
-	count := map[Role]int{}
+	count := map[cohort.Role]int{}
 	for _, u := range s.Users {
 		count[u.Role]++
 	}
-	want := map[Role]int{RoleAdmin: 1, RoleCoordinator: 2, RoleInvestigator: 1, RoleMonitor: 1}
+	want := map[cohort.Role]int{cohort.Admin: 1, cohort.Coordinator: 2, cohort.Investigator: 1, cohort.Monitor: 1}
 	for r, w := range want {
 		if count[r] != w {
 			t.Errorf("%d users with role %s, want %d", count[r], r, w)
@@ -267,7 +271,7 @@ func TestClosuresAreDistinctWorkingDays(t *testing.T) {
 
 func TestIntakePrevalences(t *testing.T) {
 	s := mustDefault(t)
-	share := func(get func(Intake) Answer, a Answer) float64 {
+	share := func(get func(Intake) risk.Answer, a risk.Answer) float64 {
 		n := 0
 		for _, p := range s.Participants {
 			if get(p.Intake) == a {
@@ -276,10 +280,10 @@ func TestIntakePrevalences(t *testing.T) {
 		}
 		return float64(n) / float64(len(s.Participants))
 	}
-	htn := share(func(i Intake) Answer { return i.Hypertension }, Yes)
-	dm := share(func(i Intake) Answer { return i.Diabetes }, Yes)
-	hf := share(func(i Intake) Answer { return i.HeartFailure }, Yes)
-	unknown := share(func(i Intake) Answer { return i.StrokeTIA }, NotKnown)
+	htn := share(func(i Intake) risk.Answer { return i.Hypertension }, risk.Yes)
+	dm := share(func(i Intake) risk.Answer { return i.Diabetes }, risk.Yes)
+	hf := share(func(i Intake) risk.Answer { return i.HeartFailure }, risk.Yes)
+	unknown := share(func(i Intake) risk.Answer { return i.StrokeTIA }, risk.Unknown)
 	// Illustrative ranges of ours for adults of 40 to 95, not survey values.
 	if htn < 0.3 || htn > 0.7 || dm < 0.05 || dm > 0.3 || hf > 0.15 || !(hf < dm && dm < htn) {
 		t.Errorf("prevalences hypertension %.2f, diabetes %.2f, heart failure %.2f: implausible", htn, dm, hf)

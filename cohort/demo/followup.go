@@ -7,106 +7,26 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 )
 
-// State is a follow-up case state. The values are the stored values the
-// follow-up package uses, listed here as plain strings so this package needs
-// nothing but cohort; the loader maps them one to one:
+// The demo speaks the app's own vocabulary: case states, contact channels and
+// outcomes are followup's, rhythms and the recorder's automatic readings are
+// overread's, so the loader enters a script as it stands.
 //
-//	open                 flagged, nobody has tried to reach the participant yet
-//	contacting           at least one attempt made, participant not yet reached
-//	reached              participant spoken to and agreed to record
-//	recorder_sent        handheld recorder shipped, recording awaited
-//	recording_received   recording in, waiting for a usable over-read
-//	over_read            a clinician has given an interpretable verdict
-//	referred             final: summary sent to the participant's physician
-//	closed_not_confirmed final: the over-read did not confirm AF
-//	closed_unreachable   final: the participant could not be reached
-//	closed_declined      final: the participant declined follow-up
-//	closed_withdrawn     final: the participant left the study
-//
-// The script only makes these moves: open to contacting, reached,
-// closed_withdrawn; contacting to reached, closed_unreachable,
-// closed_withdrawn; reached to recorder_sent, closed_declined,
-// closed_withdrawn; recorder_sent to recording_received, closed_withdrawn;
-// recording_received to over_read, recorder_sent (a repeat recording after an
-// unusable one), closed_withdrawn; over_read to referred, closed_not_confirmed,
-// closed_withdrawn.
-type State string
-
-// The case states.
-const (
-	StateOpen               State = "open"
-	StateContacting         State = "contacting"
-	StateReached            State = "reached"
-	StateRecorderSent       State = "recorder_sent"
-	StateRecordingReceived  State = "recording_received"
-	StateOverRead           State = "over_read"
-	StateReferred           State = "referred"
-	StateClosedNotConfirmed State = "closed_not_confirmed"
-	StateClosedUnreachable  State = "closed_unreachable"
-	StateClosedDeclined     State = "closed_declined"
-	StateClosedWithdrawn    State = "closed_withdrawn"
-)
-
-// States lists every case state in life-cycle order.
-func States() []State {
-	return []State{StateOpen, StateContacting, StateReached, StateRecorderSent, StateRecordingReceived,
-		StateOverRead, StateReferred, StateClosedNotConfirmed, StateClosedUnreachable, StateClosedDeclined,
-		StateClosedWithdrawn}
-}
-
-// Channel is how a contact attempt was made.
-type Channel string
-
-// The contact channels.
-const (
-	ChannelPhone  Channel = "phone"
-	ChannelText   Channel = "text"
-	ChannelEmail  Channel = "email"
-	ChannelLetter Channel = "letter"
-)
-
-// Outcome is what came of a contact attempt.
-type Outcome string
-
-// The contact outcomes.
-const (
-	OutcomeNoAnswer    Outcome = "no_answer"    // phone: nobody picked up
-	OutcomeLeftMessage Outcome = "left_message" // phone: voicemail left
-	OutcomeNoReply     Outcome = "no_reply"     // text, e-mail or letter sent, nothing back
-	OutcomeReached     Outcome = "reached"
-	OutcomeDeclined    Outcome = "declined"
-)
-
-// Rhythm is a rhythm verdict on an ECG recording: an over-read, or the rhythm
-// a synthetic recording was made with.
-type Rhythm string
-
-// The over-read verdicts (the trade's categories).
-const (
-	RhythmAF              Rhythm = "af"
-	RhythmFlutter         Rhythm = "atrial_flutter"
-	RhythmSinus           Rhythm = "sinus_rhythm"
-	RhythmOther           Rhythm = "other_arrhythmia"
-	RhythmUninterpretable Rhythm = "uninterpretable"
-)
-
-// AutoResult is the handheld recorder's own automatic interpretation.
-type AutoResult string
-
-// The recorder's automatic interpretations.
-const (
-	AutoAF           AutoResult = "af"
-	AutoSinus        AutoResult = "sinus_rhythm"
-	AutoUnclassified AutoResult = "unclassified"
-	AutoNoAnalysis   AutoResult = "no_analysis" // too short or too noisy to analyse
-)
+// The script only makes these moves (a subset of followup's state table):
+// open to contacting, reached, closed_withdrawn; contacting to reached,
+// closed_unreachable, closed_withdrawn; reached to recorder_sent,
+// closed_declined, closed_withdrawn; recorder_sent to recording_received,
+// closed_withdrawn; recording_received to over_read, recorder_sent (a repeat
+// recording after an unusable one), closed_withdrawn; over_read to referred,
+// closed_not_confirmed, closed_withdrawn.
 
 // Transition is one state change of a case.
 type Transition struct {
 	At       time.Time
-	From, To State
+	From, To followup.State
 	By       string // user login
 }
 
@@ -115,8 +35,8 @@ type Transition struct {
 type Attempt struct {
 	At      time.Time
 	By      string
-	Channel Channel
-	Outcome Outcome
+	Channel followup.Channel
+	Outcome followup.Outcome
 	Note    string
 }
 
@@ -128,24 +48,24 @@ type Attempt struct {
 type Recording struct {
 	Taken     time.Time
 	Received  time.Time
-	Seconds   float64   // duration of the recording
-	FirstBeat float64   // seconds from the start to the first beat
-	RR        []float64 // seconds between successive beats; FirstBeat plus their sum is at most Seconds
-	Rhythm    Rhythm    // rhythm the RR series was made with (ground truth)
-	Noisy     bool      // synthesise with heavy artefact: an over-reader cannot read it
-	Auto      AutoResult
-	OverRead  Rhythm    // empty until read
-	ReadAt    time.Time // zero until read
-	Reader    string    // login of the over-reader
+	Seconds   float64         // duration of the recording
+	FirstBeat float64         // seconds from the start to the first beat
+	RR        []float64       // seconds between successive beats; FirstBeat plus their sum is at most Seconds
+	Rhythm    overread.Rhythm // rhythm the RR series was made with (ground truth)
+	Noisy     bool            // synthesise with heavy artefact: an over-reader cannot read it
+	Auto      overread.Auto
+	OverRead  overread.Rhythm // empty until read
+	ReadAt    time.Time       // zero until read
+	Reader    string          // login of the over-reader
 }
 
 // FollowUp is the scripted history of one case as of the study's today.
 type FollowUp struct {
 	Case        CaseInput
 	Site        string
-	Owner       string      // coordinator login
-	Truth       EpisodeKind // episode behind the flag; empty for a false alarm
-	Final       State       // state as of today
+	Owner       string         // coordinator login
+	Truth       EpisodeKind    // episode behind the flag; empty for a false alarm
+	Final       followup.State // state as of today
 	Transitions []Transition
 	Attempts    []Attempt
 	Recordings  []Recording
@@ -163,11 +83,11 @@ func (s *Study) PlanFollowUps(cases []CaseInput) []FollowUp {
 	out := make([]FollowUp, len(cases))
 	done := make([]bool, len(cases))
 	truth := make([]EpisodeKind, len(cases))
-	covered := map[State]bool{}
+	covered := map[followup.State]bool{}
 	for i, c := range cases {
 		p, ok := s.Participant(c.StudyID)
 		if !ok {
-			out[i] = FollowUp{Case: c, Final: StateOpen}
+			out[i] = FollowUp{Case: c, Final: followup.Open}
 			done[i] = true
 			continue
 		}
@@ -175,15 +95,15 @@ func (s *Study) PlanFollowUps(cases []CaseInput) []FollowUp {
 		if w, ok := s.withdrawalTime(p); ok && !w.After(s.Today) {
 			// The participant left while the recorder was out (or before the
 			// case opened); either way the case ends closed_withdrawn.
-			out[i] = s.simulate(c, p, truth[i], StateRecorderSent)
+			out[i] = s.simulate(c, p, truth[i], followup.RecorderSent)
 			done[i] = true
 			covered[out[i].Final] = true
 		}
 	}
 	// Cover every state: terminal states from the oldest cases, states in
 	// progress from the newest, as a real triage list would look.
-	order := []State{StateReferred, StateClosedNotConfirmed, StateClosedUnreachable, StateClosedDeclined,
-		StateOverRead, StateRecordingReceived, StateRecorderSent, StateReached, StateContacting, StateOpen}
+	order := []followup.State{followup.Referred, followup.ClosedNotConfirmed, followup.ClosedUnreachable, followup.ClosedDeclined,
+		followup.OverRead, followup.RecordingReceived, followup.RecorderSent, followup.Reached, followup.Contacting, followup.Open}
 	for _, st := range order {
 		if covered[st] {
 			continue
@@ -195,10 +115,10 @@ func (s *Study) PlanFollowUps(cases []CaseInput) []FollowUp {
 			}
 		}
 		slices.SortStableFunc(idx, func(a, b int) int { return cases[a].Opened.Compare(cases[b].Opened) })
-		if !terminal(st) {
+		if !st.Terminal() {
 			slices.Reverse(idx)
 		}
-		if st == StateReferred {
+		if st == followup.Referred {
 			// A canary's referral summary is the one the leak tests read.
 			slices.SortStableFunc(idx, func(a, b int) int {
 				pa, _ := s.Participant(cases[a].StudyID)
@@ -243,22 +163,14 @@ func boolRank(b bool) int {
 	return 0
 }
 
-func terminal(st State) bool {
-	switch st {
-	case StateReferred, StateClosedNotConfirmed, StateClosedUnreachable, StateClosedDeclined, StateClosedWithdrawn:
-		return true
-	}
-	return false
-}
-
 // compatible says whether a case with this truth may be steered to st. On the
 // second pass a "not confirmed" close may also come from an AF case whose
 // recording caught sinus rhythm (the episode had ended).
-func compatible(st State, truth EpisodeKind, pass int) bool {
+func compatible(st followup.State, truth EpisodeKind, pass int) bool {
 	switch st {
-	case StateReferred:
+	case followup.Referred:
 		return truth == EpisodeAF
-	case StateClosedNotConfirmed:
+	case followup.ClosedNotConfirmed:
 		return truth != EpisodeAF || pass == 1
 	}
 	return true
@@ -300,25 +212,29 @@ func (s *Study) caseRand(c CaseInput, salt uint64) *rand.Rand {
 // naturalTarget is where a case would end if left to its course: a few
 // participants cannot be reached or decline, the rest are over-read and
 // referred or closed by the verdict (drawn in simulate from the truth).
-func (s *Study) naturalTarget(c CaseInput, truth EpisodeKind) State {
+func (s *Study) naturalTarget(c CaseInput, truth EpisodeKind) followup.State {
 	r := s.caseRand(c, 1)
 	switch u := r.Float64(); {
 	case u < 0.07:
-		return StateClosedUnreachable
+		return followup.ClosedUnreachable
 	case u < 0.13:
-		return StateClosedDeclined
+		return followup.ClosedDeclined
 	}
 	return "" // decided by the over-read
 }
 
-// Invented note texts, by outcome.
-var notes = map[Outcome][]string{
-	OutcomeNoAnswer:    {"No answer; will try again.", "Phone rang out, no voicemail set up."},
-	OutcomeLeftMessage: {"Left a message asking for a call back.", "Left a voicemail with the study line number."},
-	OutcomeNoReply:     {"Sent the standard follow-up message.", "Follow-up sent; no reply so far."},
-	OutcomeReached:     {"Spoke with the participant; agreed to make a recording.", "Reached; explained the recorder and the next steps."},
-	OutcomeDeclined:    {"Participant prefers not to continue with follow-up; thanked them."},
+// Invented note texts, by outcome. A message left by phone is a voicemail;
+// by text message, e-mail or letter it is a message sent with no reply yet.
+var notes = map[followup.Outcome][]string{
+	followup.OutcomeNoAnswer:    {"No answer; will try again.", "Phone rang out, no voicemail set up."},
+	followup.OutcomeMessageLeft: {"Left a message asking for a call back.", "Left a voicemail with the study line number."},
+	followup.OutcomeReached:     {"Spoke with the participant; agreed to make a recording.", "Reached; explained the recorder and the next steps."},
+	followup.OutcomeDeclined:    {"Participant prefers not to continue with follow-up; thanked them."},
 }
+
+// sentNotes are the notes of a message sent in writing (text message, e-mail,
+// letter) that got no reply.
+var sentNotes = []string{"Sent the standard follow-up message.", "Follow-up sent; no reply so far."}
 
 // sim carries one case's script while it is written.
 type sim struct {
@@ -326,25 +242,28 @@ type sim struct {
 	r     *rand.Rand
 	p     Participant
 	f     FollowUp
-	state State
+	state followup.State
 	inv   string
 }
 
-func (m *sim) move(at time.Time, to State, by string) {
+func (m *sim) move(at time.Time, to followup.State, by string) {
 	m.f.Transitions = append(m.f.Transitions, Transition{At: at, From: m.state, To: to, By: by})
 	m.state = to
 }
 
-func (m *sim) attempt(at time.Time, ch Channel, o Outcome) {
+func (m *sim) attempt(at time.Time, ch followup.Channel, o followup.Outcome) {
 	txt := notes[o]
+	if o == followup.OutcomeMessageLeft && ch != followup.ChannelPhone {
+		txt = sentNotes
+	}
 	m.f.Attempts = append(m.f.Attempts, Attempt{At: at, By: m.f.Owner, Channel: ch, Outcome: o, Note: txt[m.r.IntN(len(txt))]})
 }
 
 // simulate writes the script of one case steered to target (empty: decided by
 // the over-read), then cuts it at a withdrawal and at today.
-func (s *Study) simulate(c CaseInput, p Participant, truth EpisodeKind, target State) FollowUp {
-	inv, _ := s.User(RoleInvestigator)
-	m := &sim{s: s, r: s.caseRand(c, 2), p: p, state: StateOpen, inv: inv.Login}
+func (s *Study) simulate(c CaseInput, p Participant, truth EpisodeKind, target followup.State) FollowUp {
+	inv, _ := s.User(cohort.Investigator)
+	m := &sim{s: s, r: s.caseRand(c, 2), p: p, state: followup.Open, inv: inv.Login}
 	m.f = FollowUp{Case: c, Site: p.Site, Owner: s.coordinatorFor(p.Site), Truth: truth}
 	m.script(target)
 	s.cut(m)
@@ -352,24 +271,24 @@ func (s *Study) simulate(c CaseInput, p Participant, truth EpisodeKind, target S
 }
 
 // script writes the full course towards target, ignoring today.
-func (m *sim) script(target State) {
+func (m *sim) script(target followup.State) {
 	s, r, owner := m.s, m.r, m.f.Owner
-	if target == StateOpen {
+	if target == followup.Open {
 		return
 	}
 	if w, ok := s.withdrawalTime(m.p); ok && !w.After(m.f.Case.Opened) {
-		m.move(s.workTime(r, m.f.Case.Opened, 0, 1), StateClosedWithdrawn, owner)
+		m.move(s.workTime(r, m.f.Case.Opened, 0, 1), followup.ClosedWithdrawn, owner)
 		return
 	}
 	// Contact attempts.
 	fails := pick(r, []float64{0.45, 0.35, 0.2})
 	switch target {
-	case StateContacting:
+	case followup.Contacting:
 		fails = 1 + r.IntN(2)
-	case StateClosedUnreachable:
+	case followup.ClosedUnreachable:
 		fails = 4 + r.IntN(2)
 	}
-	channels := []Channel{ChannelPhone, ChannelPhone, ChannelText, ChannelEmail, ChannelLetter}
+	channels := []followup.Channel{followup.ChannelPhone, followup.ChannelPhone, followup.ChannelText, followup.ChannelEmail, followup.ChannelLetter}
 	t := m.f.Case.Opened
 	for i := range fails {
 		if i == 0 {
@@ -378,20 +297,20 @@ func (m *sim) script(target State) {
 			t = s.workTime(r, t, 1, 3)
 		}
 		ch := channels[i%len(channels)]
-		o := OutcomeNoReply
-		if ch == ChannelPhone {
-			o = []Outcome{OutcomeNoAnswer, OutcomeLeftMessage}[r.IntN(2)]
+		o := followup.OutcomeMessageLeft
+		if ch == followup.ChannelPhone {
+			o = []followup.Outcome{followup.OutcomeNoAnswer, followup.OutcomeMessageLeft}[r.IntN(2)]
 		}
 		m.attempt(t, ch, o)
 		if i == 0 {
-			m.move(t, StateContacting, owner)
+			m.move(t, followup.Contacting, owner)
 		}
 	}
 	switch target {
-	case StateContacting:
+	case followup.Contacting:
 		return
-	case StateClosedUnreachable:
-		m.move(s.workTime(r, t, 5, 7), StateClosedUnreachable, owner)
+	case followup.ClosedUnreachable:
+		m.move(s.workTime(r, t, 5, 7), followup.ClosedUnreachable, owner)
 		return
 	}
 	if fails == 0 {
@@ -399,22 +318,22 @@ func (m *sim) script(target State) {
 	} else {
 		t = s.workTime(r, t, 1, 2)
 	}
-	m.attempt(t, ChannelPhone, OutcomeReached)
-	if target == StateClosedDeclined {
+	m.attempt(t, followup.ChannelPhone, followup.OutcomeReached)
+	if target == followup.ClosedDeclined {
 		m.f.Attempts[len(m.f.Attempts)-1].Note = "Reached; wants a few days to think about the recorder."
-		m.move(t, StateReached, owner)
+		m.move(t, followup.Reached, owner)
 		t = s.workTime(r, t, 1, 3)
-		m.attempt(t, ChannelPhone, OutcomeDeclined)
-		m.move(t, StateClosedDeclined, owner)
+		m.attempt(t, followup.ChannelPhone, followup.OutcomeDeclined)
+		m.move(t, followup.ClosedDeclined, owner)
 		return
 	}
-	m.move(t, StateReached, owner)
-	if target == StateReached {
+	m.move(t, followup.Reached, owner)
+	if target == followup.Reached {
 		return
 	}
 	t = s.workTime(r, t, 1, 3)
-	m.move(t, StateRecorderSent, owner)
-	if target == StateRecorderSent {
+	m.move(t, followup.RecorderSent, owner)
+	if target == followup.RecorderSent {
 		return
 	}
 	rhythm := m.drawRhythm(target)
@@ -424,8 +343,8 @@ func (m *sim) script(target State) {
 	for {
 		rec := m.record(t, rhythm, unusable)
 		t = rec.Received
-		m.move(t, StateRecordingReceived, owner)
-		if target == StateRecordingReceived {
+		m.move(t, followup.RecordingReceived, owner)
+		if target == followup.RecordingReceived {
 			m.f.Recordings = append(m.f.Recordings, rec)
 			return
 		}
@@ -433,48 +352,48 @@ func (m *sim) script(target State) {
 		rec.ReadAt, rec.Reader = t, m.inv
 		rec.OverRead = m.read(rec)
 		m.f.Recordings = append(m.f.Recordings, rec)
-		if rec.OverRead != RhythmUninterpretable {
+		if rec.OverRead != overread.Uninterpretable {
 			break
 		}
 		t = s.workTime(r, t, 0, 1)
-		m.move(t, StateRecorderSent, owner)
+		m.move(t, followup.RecorderSent, owner)
 		unusable = false
 	}
-	m.move(t, StateOverRead, m.inv)
-	if target == StateOverRead {
+	m.move(t, followup.OverRead, m.inv)
+	if target == followup.OverRead {
 		return
 	}
 	t = s.workTime(r, t, 1, 3)
-	if v := m.f.Recordings[len(m.f.Recordings)-1].OverRead; v == RhythmAF || v == RhythmFlutter {
-		m.move(t, StateReferred, m.inv)
+	if v := m.f.Recordings[len(m.f.Recordings)-1].OverRead; v == overread.AF || v == overread.Flutter {
+		m.move(t, followup.Referred, m.inv)
 	} else {
-		m.move(t, StateClosedNotConfirmed, m.inv)
+		m.move(t, followup.ClosedNotConfirmed, m.inv)
 	}
 }
 
 // drawRhythm draws the rhythm a recording catches. It follows the truth with
 // noise: a paroxysm may have ended by the time of the recording, and ectopy
 // may or may not show. Steered terminal states fix the verdict's side.
-func (m *sim) drawRhythm(target State) Rhythm {
+func (m *sim) drawRhythm(target followup.State) overread.Rhythm {
 	r := m.r
-	var opts []Rhythm
+	var opts []overread.Rhythm
 	var ws []float64
 	switch m.f.Truth {
 	case EpisodeAF:
-		opts, ws = []Rhythm{RhythmAF, RhythmFlutter, RhythmSinus}, []float64{0.78, 0.07, 0.15}
+		opts, ws = []overread.Rhythm{overread.AF, overread.Flutter, overread.Sinus}, []float64{0.78, 0.07, 0.15}
 	case EpisodeEctopy:
-		opts, ws = []Rhythm{RhythmOther, RhythmSinus}, []float64{0.6, 0.4}
+		opts, ws = []overread.Rhythm{overread.Other, overread.Sinus}, []float64{0.6, 0.4}
 	default:
-		opts, ws = []Rhythm{RhythmSinus, RhythmOther, RhythmAF}, []float64{0.88, 0.1, 0.02}
+		opts, ws = []overread.Rhythm{overread.Sinus, overread.Other, overread.AF}, []float64{0.88, 0.1, 0.02}
 	}
 	switch target {
-	case StateReferred:
-		opts, ws = []Rhythm{RhythmAF, RhythmFlutter}, []float64{0.9, 0.1}
-	case StateClosedNotConfirmed:
+	case followup.Referred:
+		opts, ws = []overread.Rhythm{overread.AF, overread.Flutter}, []float64{0.9, 0.1}
+	case followup.ClosedNotConfirmed:
 		if m.f.Truth == EpisodeAF {
-			opts, ws = []Rhythm{RhythmSinus}, []float64{1}
+			opts, ws = []overread.Rhythm{overread.Sinus}, []float64{1}
 		} else {
-			opts, ws = []Rhythm{RhythmSinus, RhythmOther}, []float64{0.6, 0.4}
+			opts, ws = []overread.Rhythm{overread.Sinus, overread.Other}, []float64{0.6, 0.4}
 		}
 	}
 	return opts[pick(r, ws)]
@@ -482,7 +401,7 @@ func (m *sim) drawRhythm(target State) Rhythm {
 
 // record makes one recording taken a few days after t and received by the
 // office a working day or three later.
-func (m *sim) record(t time.Time, rhythm Rhythm, unusable bool) Recording {
+func (m *sim) record(t time.Time, rhythm overread.Rhythm, unusable bool) Recording {
 	r := m.r
 	rec := Recording{Rhythm: rhythm}
 	rec.Taken = m.s.participantTime(r, m.p, t, 2, 6)
@@ -504,16 +423,16 @@ func (m *sim) record(t time.Time, rhythm Rhythm, unusable bool) Recording {
 // read is the over-reader's verdict: unreadable recordings (too short to
 // diagnose, or noisy) are uninterpretable; otherwise the truth, with an
 // occasional confusion between AF and flutter.
-func (m *sim) read(rec Recording) Rhythm {
+func (m *sim) read(rec Recording) overread.Rhythm {
 	if rec.Noisy || rec.Seconds < 30 {
-		return RhythmUninterpretable
+		return overread.Uninterpretable
 	}
 	if m.r.Float64() < 0.04 {
 		switch rec.Rhythm {
-		case RhythmAF:
-			return RhythmFlutter
-		case RhythmFlutter:
-			return RhythmAF
+		case overread.AF:
+			return overread.Flutter
+		case overread.Flutter:
+			return overread.AF
 		}
 	}
 	return rec.Rhythm
@@ -522,19 +441,19 @@ func (m *sim) read(rec Recording) Rhythm {
 // autoResult imitates a recorder's own algorithm: right most of the time,
 // unclassified for rhythms it was not built for, silent on short or noisy
 // recordings.
-func autoResult(r *rand.Rand, rh Rhythm, short, noisy bool) AutoResult {
-	opts := []AutoResult{AutoAF, AutoSinus, AutoUnclassified, AutoNoAnalysis}
+func autoResult(r *rand.Rand, rh overread.Rhythm, short, noisy bool) overread.Auto {
+	opts := []overread.Auto{overread.AutoAF, overread.AutoSinus, overread.AutoUnclassified, overread.AutoUnreadable}
 	var ws []float64
 	switch {
 	case short:
 		ws = []float64{0, 0, 0.2, 0.8}
 	case noisy:
 		ws = []float64{0, 0, 0.6, 0.4}
-	case rh == RhythmAF:
+	case rh == overread.AF:
 		ws = []float64{0.85, 0.05, 0.1, 0}
-	case rh == RhythmFlutter:
+	case rh == overread.Flutter:
 		ws = []float64{0.3, 0.2, 0.5, 0}
-	case rh == RhythmOther:
+	case rh == overread.Other:
 		ws = []float64{0.2, 0.3, 0.5, 0}
 	default:
 		ws = []float64{0.03, 0.9, 0.07, 0}
@@ -547,7 +466,7 @@ func autoResult(r *rand.Rand, rh Rhythm, short, noisy bool) AutoResult {
 // independent intervals with a wide spread; flutter conducts every second
 // (sometimes third or fourth) flutter wave of a 190-230 ms cycle; other
 // arrhythmia is sinus rhythm with early beats and compensatory pauses.
-func recordingRR(r *rand.Rand, rh Rhythm, seconds float64) (first float64, rr []float64) {
+func recordingRR(r *rand.Rand, rh overread.Rhythm, seconds float64) (first float64, rr []float64) {
 	base := 60 / between(r, 58, 88)
 	amp := between(r, 0.02, 0.05)
 	breath := between(r, 3.8, 5.5)
@@ -562,9 +481,9 @@ func recordingRR(r *rand.Rand, rh Rhythm, seconds float64) (first float64, rr []
 	for i := 0; ; i++ {
 		var rr float64
 		switch rh {
-		case RhythmAF:
+		case overread.AF:
 			rr = max(0.3, min(1.8, afMean*math.Exp(0.2*r.NormFloat64())))
-		case RhythmFlutter:
+		case overread.Flutter:
 			block := 2.0
 			if variable {
 				block = float64(2 + pick(r, []float64{0.6, 0.3, 0.1}))
@@ -572,7 +491,7 @@ func recordingRR(r *rand.Rand, rh Rhythm, seconds float64) (first float64, rr []
 			rr = cycle*block + 0.005*r.NormFloat64()
 		default:
 			rr = base*(1+amp*math.Sin(2*math.Pi*float64(i)/breath+phase)) + 0.01*r.NormFloat64()
-			if rh == RhythmOther {
+			if rh == overread.Other {
 				switch {
 				case prevEarly:
 					rr *= 1.38
@@ -628,13 +547,13 @@ func (s *Study) cut(m *sim) {
 		keepR = append(keepR, rec)
 	}
 	f.Recordings = keepR
-	f.Final = StateOpen
+	f.Final = followup.Open
 	if n := len(f.Transitions); n > 0 {
 		f.Final = f.Transitions[n-1].To
 	}
-	if withdrawn && !terminal(f.Final) {
-		f.Transitions = append(f.Transitions, Transition{At: w, From: f.Final, To: StateClosedWithdrawn, By: f.Owner})
-		f.Final = StateClosedWithdrawn
+	if withdrawn && !f.Final.Terminal() {
+		f.Transitions = append(f.Transitions, Transition{At: w, From: f.Final, To: followup.ClosedWithdrawn, By: f.Owner})
+		f.Final = followup.ClosedWithdrawn
 	}
 }
 

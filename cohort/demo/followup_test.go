@@ -7,28 +7,43 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 )
 
-// allowedMoves is the move table documented on State, written out again here
-// so the script is checked against the documentation rather than itself.
-var allowedMoves = map[State][]State{
-	StateOpen:              {StateContacting, StateReached, StateClosedWithdrawn},
-	StateContacting:        {StateReached, StateClosedUnreachable, StateClosedWithdrawn},
-	StateReached:           {StateRecorderSent, StateClosedDeclined, StateClosedWithdrawn},
-	StateRecorderSent:      {StateRecordingReceived, StateClosedWithdrawn},
-	StateRecordingReceived: {StateOverRead, StateRecorderSent, StateClosedWithdrawn},
-	StateOverRead:          {StateReferred, StateClosedNotConfirmed, StateClosedWithdrawn},
+// allowedMoves is the move table documented at the top of followup.go,
+// written out again here so the script is checked against the documentation
+// rather than itself.
+var allowedMoves = map[followup.State][]followup.State{
+	followup.Open:              {followup.Contacting, followup.Reached, followup.ClosedWithdrawn},
+	followup.Contacting:        {followup.Reached, followup.ClosedUnreachable, followup.ClosedWithdrawn},
+	followup.Reached:           {followup.RecorderSent, followup.ClosedDeclined, followup.ClosedWithdrawn},
+	followup.RecorderSent:      {followup.RecordingReceived, followup.ClosedWithdrawn},
+	followup.RecordingReceived: {followup.OverRead, followup.RecorderSent, followup.ClosedWithdrawn},
+	followup.OverRead:          {followup.Referred, followup.ClosedNotConfirmed, followup.ClosedWithdrawn},
+}
+
+// The script's moves are a subset of the app's state table, so the loader can
+// enter every one of them through the case actions.
+func TestScriptMovesAreAllowedByTheStateTable(t *testing.T) {
+	for from, tos := range allowedMoves {
+		for _, to := range tos {
+			if !followup.CanMove(from, to) {
+				t.Errorf("the script moves %s -> %s, which followup's state table refuses", from, to)
+			}
+		}
+	}
 }
 
 func TestEveryStateReachedInDefaultSizeStudy(t *testing.T) {
 	for _, seed := range []uint64{0, 1, 2, 17} {
 		s := mustStudy(t, Config{Seed: seed})
 		fs := s.PlanFollowUps(s.ExpectedCases())
-		got := map[State]int{}
+		got := map[followup.State]int{}
 		for _, f := range fs {
 			got[f.Final]++
 		}
-		for _, st := range States() {
+		for _, st := range followup.States() {
 			if got[st] == 0 {
 				t.Errorf("seed %d: no case ends in state %s (counts %v)", seed, st, got)
 			}
@@ -44,7 +59,7 @@ func TestFollowUpScriptsAreConsistent(t *testing.T) {
 	if len(fs) != len(cases) {
 		t.Fatalf("%d scripts for %d cases", len(fs), len(cases))
 	}
-	inv, _ := s.User(RoleInvestigator)
+	inv, _ := s.User(cohort.Investigator)
 	canaryReferred, short, disagree := false, 0, 0
 	for i, f := range fs {
 		c := cases[i]
@@ -52,7 +67,7 @@ func TestFollowUpScriptsAreConsistent(t *testing.T) {
 			t.Errorf("script %d is for case %+v, want %+v", i, f.Case, c)
 		}
 		p, _ := s.Participant(c.StudyID)
-		state, last := StateOpen, c.Opened
+		state, last := followup.Open, c.Opened
 		for _, tr := range f.Transitions {
 			if tr.From != state {
 				t.Errorf("%s: move from %s while in %s", c.StudyID, tr.From, state)
@@ -84,7 +99,7 @@ func TestFollowUpScriptsAreConsistent(t *testing.T) {
 				t.Errorf("%s: note %q names the participant", c.StudyID, a.Note)
 			}
 		}
-		var lastRead Rhythm
+		var lastRead overread.Rhythm
 		for _, rec := range f.Recordings {
 			sum := rec.FirstBeat
 			for _, rr := range rec.RR {
@@ -107,24 +122,24 @@ func TestFollowUpScriptsAreConsistent(t *testing.T) {
 			}
 			if rec.OverRead != "" {
 				lastRead = rec.OverRead
-				if (rec.Auto == AutoAF) != (rec.OverRead == RhythmAF) {
+				if (rec.Auto == overread.AutoAF) != (rec.OverRead == overread.AF) {
 					disagree++
 				}
 			}
 		}
 		switch f.Final {
-		case StateReferred:
-			if lastRead != RhythmAF && lastRead != RhythmFlutter {
+		case followup.Referred:
+			if lastRead != overread.AF && lastRead != overread.Flutter {
 				t.Errorf("%s: referred after over-read %q", c.StudyID, lastRead)
 			}
 			if p.Canary {
 				canaryReferred = true
 			}
-		case StateClosedNotConfirmed:
-			if lastRead == RhythmAF || lastRead == RhythmFlutter || lastRead == "" {
+		case followup.ClosedNotConfirmed:
+			if lastRead == overread.AF || lastRead == overread.Flutter || lastRead == "" {
 				t.Errorf("%s: not confirmed after over-read %q", c.StudyID, lastRead)
 			}
-		case StateClosedWithdrawn:
+		case followup.ClosedWithdrawn:
 			if p.Withdrawn.IsZero() {
 				t.Errorf("%s: closed withdrawn but never withdrew", c.StudyID)
 			}
@@ -157,8 +172,8 @@ func TestRecordingRhythmsLookTheirPart(t *testing.T) {
 		return (sq / float64(len(rr)-1)) / (sum / float64(len(rr)) * sum / float64(len(rr)))
 	}
 	for range 20 {
-		_, af := recordingRR(r, RhythmAF, 60)
-		_, sinus := recordingRR(r, RhythmSinus, 60)
+		_, af := recordingRR(r, overread.AF, 60)
+		_, sinus := recordingRR(r, overread.Sinus, 60)
 		a, b := nrmssd(af), nrmssd(sinus)
 		// nrmssd above returns the square of normalised RMSSD.
 		if a < 0.1*0.1 || b > 0.1*0.1 {
@@ -170,7 +185,7 @@ func TestRecordingRhythmsLookTheirPart(t *testing.T) {
 func TestUnknownCaseStaysOpen(t *testing.T) {
 	s := mustDefault(t)
 	fs := s.PlanFollowUps([]CaseInput{{StudyID: "QRW-9999-A", Opened: s.Today}})
-	if len(fs) != 1 || fs[0].Final != StateOpen || len(fs[0].Transitions) != 0 {
+	if len(fs) != 1 || fs[0].Final != followup.Open || len(fs[0].Transitions) != 0 {
 		t.Errorf("unknown participant's case: %+v", fs)
 	}
 }

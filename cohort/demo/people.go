@@ -9,6 +9,8 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/risk"
 )
 
 // Participant is one enrolled person with the identifying details a study
@@ -54,24 +56,15 @@ func ageOn(birth, d cohort.Date) int {
 	return a
 }
 
-// Answer is a reply on the intake form: yes, no, or not known.
-type Answer string
-
-// The intake answers.
-const (
-	Yes      Answer = "yes"
-	No       Answer = "no"
-	NotKnown Answer = "unknown"
-)
-
 // Intake holds the stroke-risk questions of the intake survey, so a referral
-// summary can list them for physician review.
+// summary can list them for physician review. Answers are risk's: yes, no, or
+// unknown (not recorded).
 type Intake struct {
-	Hypertension Answer
-	Diabetes     Answer
-	HeartFailure Answer
-	StrokeTIA    Answer // prior stroke, TIA or thromboembolism
-	Vascular     Answer // prior myocardial infarction, peripheral artery disease or aortic plaque
+	Hypertension risk.Answer
+	Diabetes     risk.Answer
+	HeartFailure risk.Answer
+	StrokeTIA    risk.Answer // prior stroke, TIA or thromboembolism
+	Vascular     risk.Answer // prior myocardial infarction, peripheral artery disease or aortic plaque
 }
 
 // Syllable tables for invented names. Given names join one part from each of
@@ -104,12 +97,6 @@ var watchModels = []watchModel{
 	{"Pulseloom Air", "PLA", true, 0.20},
 	{"Stridewell 2", "SW2", true, 0.14},
 }
-
-// RestrictedZIP3 lists the three-digit ZIP prefixes whose areas held 20,000
-// people or fewer, which Safe Harbor de-identification must replace by 000
-// (HHS 2012 de-identification guidance, 2000 Census; verified, secondary, see
-// check-values.md). The demo plants ZIP codes with each of them.
-var RestrictedZIP3 = []string{"036", "059", "063", "102", "203", "556", "692", "790", "821", "823", "830", "831", "878", "879", "884", "890", "893"}
 
 // withdrawalReasons are invented reasons, worded as a coordinator would note them.
 var withdrawalReasons = []string{
@@ -322,14 +309,14 @@ func drawIntake(r *rand.Rand, age int, sex cohort.Sex) Intake {
 	if sex == cohort.Male {
 		male = 1.3
 	}
-	ans := func(p float64) Answer {
+	ans := func(p float64) risk.Answer {
 		if r.Float64() < 0.04 {
-			return NotKnown
+			return risk.Unknown
 		}
 		if r.Float64() < p {
-			return Yes
+			return risk.Yes
 		}
-		return No
+		return risk.No
 	}
 	return Intake{
 		Hypertension: ans(0.25 + 0.006*a),
@@ -412,13 +399,16 @@ func (s *Study) forceAges(sel *selector, today cohort.Date) {
 	}
 }
 
-// plantRestrictedZIPs gives a few participants ZIP codes in restricted areas,
-// cycling through the HHS list from a random start so many prefixes appear.
+// plantRestrictedZIPs gives a few participants ZIP codes in restricted areas
+// (the prefixes Safe Harbor de-identification must replace by 000, listed in
+// cohort/deid), cycling through the list from a random start so many prefixes
+// appear.
 func (s *Study) plantRestrictedZIPs(sel *selector) {
 	n := len(s.Participants)
 	m := min(n, max(5, n/30))
-	start := sel.r.IntN(len(RestrictedZIP3))
+	restricted := deid.RestrictedZIP3()
+	start := sel.r.IntN(len(restricted))
 	for i, k := range sel.choose(m, n, func(k int) bool { return !s.Participants[k].Canary }, nil, false) {
-		s.Participants[k].ZIP = RestrictedZIP3[(start+i)%len(RestrictedZIP3)] + fmt.Sprintf("%02d", sel.r.IntN(100))
+		s.Participants[k].ZIP = restricted[(start+i)%len(restricted)] + fmt.Sprintf("%02d", sel.r.IntN(100))
 	}
 }

@@ -5,6 +5,20 @@
 // Everything here is pure: callers pass bytes in and get values back; nothing
 // reads files, the clock or the network, and nothing logs.
 //
+// # The ECG, briefly
+//
+// An electrocardiogram (ECG) records the heart's electrical activity as a
+// voltage over time. A handheld recorder takes one lead (one view of that
+// activity) for 30 seconds or so, sampled a few hundred times a second. Each
+// beat draws a small P wave (the atria), a tall narrow QRS complex whose peak
+// is the R wave (the ventricles), and a T wave. In atrial fibrillation the P
+// waves vanish into a ragged baseline and the R waves come at irregular,
+// unrelated intervals; in atrial flutter the atria beat fast and regularly and
+// the ventricles follow every second or third beat. The over-reader judges the
+// strip; this package prepares it (reads and checks the file, finds the R
+// waves, draws the strip on ECG paper) and computes the beat intervals as a
+// hint.
+//
 // # Intake
 //
 // Intake is the one entry point for a recording that reaches the study: it

@@ -1,15 +1,3 @@
-// Package overread holds the rules of clinicians' over-reads of ECG
-// recordings: the verdict categories, the recorder's own automatic
-// interpretation, the order in which readings may be entered (a first reading,
-// an optional second reading by another investigator, and an adjudication when
-// the two disagree) and the conclusion those readings reach.
-//
-// The categories of the over-read (AF, atrial flutter, sinus rhythm, other
-// arrhythmia, uninterpretable) are the trade's. The rules for entering readings
-// and the conclusion are ours (a common design for blinded double
-// reading with adjudication; no single source).
-//
-// The package is pure: no I/O, no clock, no logging.
 package overread
 
 import (

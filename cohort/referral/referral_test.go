@@ -9,6 +9,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/deid/deidtest"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/risk"
@@ -102,7 +103,7 @@ func TestBuildDeIdentifies(t *testing.T) {
 			t.Errorf("content contains %q", leak)
 		}
 	}
-	if leaks := deid.Leaks(string(b), []string{"NH-0042", "1951-05-20", "2025-02-24", "2025-02-20", "2025-03-03", "2025-01-06"}); len(leaks) > 0 {
+	if leaks := deidtest.Leaks(string(b), []string{"NH-0042", "1951-05-20", "2025-02-24", "2025-02-20", "2025-03-03", "2025-01-06"}); len(leaks) > 0 {
 		t.Errorf("content leaks %v", leaks)
 	}
 }

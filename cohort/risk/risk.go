@@ -6,8 +6,6 @@
 package risk
 
 import (
-	"math"
-
 	"cohortdesk/cohort"
 )
 
@@ -163,31 +161,4 @@ func AnnualStrokeRate(score int) (float64, bool) {
 		return 0, false
 	}
 	return annualStrokeRate[score], true
-}
-
-// HRFormula selects an age-predicted maximum heart rate formula. For
-// physician review.
-type HRFormula int
-
-// The formulas.
-const (
-	// HR220 is 220 - age: common practice, with no single good source.
-	HR220 HRFormula = iota + 1
-	// HR208 is 208 - 0.7 * age (Tanaka H, Monahan KD, Seals DR. J Am Coll
-	// Cardiol 2001;37:153-6).
-	HR208
-)
-
-// MaxHeartRate is the age-predicted maximum heart rate in beats per minute.
-// It is a population estimate that individuals can miss by a wide margin,
-// used here only to put exercise heart rates in context. An unknown formula
-// gives NaN. For physician review.
-func MaxHeartRate(age float64, f HRFormula) float64 {
-	switch f {
-	case HR220:
-		return 220 - age
-	case HR208:
-		return 208 - 0.7*age
-	}
-	return math.NaN()
 }

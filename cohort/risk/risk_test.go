@@ -1,7 +1,6 @@
 package risk
 
 import (
-	"math"
 	"strings"
 	"testing"
 
@@ -126,30 +125,6 @@ func TestAnnualStrokeRate(t *testing.T) {
 		if _, ok := AnnualStrokeRate(bad); ok {
 			t.Errorf("rate(%d) ok, want false", bad)
 		}
-	}
-}
-
-// 220 - age (common practice) and 208 - 0.7 * age (Tanaka H, Monahan KD,
-// Seals DR. J Am Coll Cardiol 2001;37:153-6; verified, secondary): at 60
-// years 160 and 166, at 40 both 180.
-func TestMaxHeartRate(t *testing.T) {
-	tests := []struct {
-		age  float64
-		f    HRFormula
-		want float64
-	}{
-		{60, HR220, 160},
-		{60, HR208, 166},
-		{40, HR220, 180},
-		{40, HR208, 180},
-	}
-	for _, tt := range tests {
-		if got := MaxHeartRate(tt.age, tt.f); math.Abs(got-tt.want) > 1e-9 {
-			t.Errorf("MaxHeartRate(%v, %d) = %v, want %v", tt.age, tt.f, got, tt.want)
-		}
-	}
-	if got := MaxHeartRate(40, 0); !math.IsNaN(got) {
-		t.Errorf("unknown formula = %v, want NaN", got)
 	}
 }
 

@@ -1,15 +1,3 @@
-// Package rr scores beat-to-beat (RR) interval series for an irregular,
-// atrial-fibrillation-like rhythm with the combination of normalised RMSSD,
-// Shannon entropy and turning point ratio over fixed-length beat segments
-// (Dash S, Chon KH, Lu S, Raeder EA. Automatic real time detection of atrial
-// fibrillation. Ann Biomed Eng 2009;37(9):1701-9).
-//
-// The paper itself was not read; the defaults are the values that several
-// independent implementations citing it agree on and are marked "from memory".
-// A segment scored AF-like is a screening hint, never a diagnosis: AF is
-// diagnosed on a clinician-read ECG.
-//
-// The package is pure: no I/O, no clock, no logging.
 package rr
 
 import (
@@ -138,22 +126,13 @@ func mean(x []float64) float64 {
 	return s / float64(len(x))
 }
 
-// ShannonEntropy bins the intervals left after removing the trim shortest and
-// trim longest into bins equal-width bins spanning their range, and returns
+// entropy bins the intervals left after removing the trim shortest and trim
+// longest into bins equal-width bins spanning their range, and returns
 // -sum(p ln p) / ln(bins), which is 1 for an even spread over all bins and 0
-// when every interval falls in one bin. The input is not modified. It returns
-// 0 when nothing is left after trimming or bins < 2.
-func ShannonEntropy(rr []float64, bins, trim int) float64 {
-	if bins < 2 || trim < 0 || len(rr)-2*trim < 1 {
-		return 0
-	}
-	buf := make([]float64, len(rr))
-	counts := make([]int, bins)
-	return entropy(rr, bins, trim, buf, counts)
-}
-
-// entropy is ShannonEntropy with caller-owned scratch space so Analyse does not
-// allocate per segment. buf has len(rr) elements, counts has bins elements.
+// when every interval falls in one bin. The scratch space is the caller's so
+// Analyse does not allocate per segment: buf has len(rr) elements, counts has
+// bins elements. Params.Validate keeps bins at 2 or more and leaves intervals
+// after trimming.
 func entropy(rr []float64, bins, trim int, buf []float64, counts []int) float64 {
 	copy(buf, rr)
 	slices.Sort(buf)

@@ -1,17 +1,3 @@
-// Package screen is the irregular-rhythm screen over one participant-week of
-// wear data: cleaning, the windowed successive-difference screen on heart-rate
-// readings, the beat-interval method (package rr) on RR intervals when a week
-// has them, personal baselines, a per-week verdict with a plain-words reason,
-// and the threshold sweep: verdicts recomputed across values of one parameter,
-// with their agreement with over-read ECGs.
-//
-// A positive verdict is a screen, not a diagnosis: it asks for a clinician-read
-// ECG. A negative verdict does not rule out atrial fibrillation. The default
-// protocol is illustrative and not clinically validated.
-//
-// The package is pure: time is passed in, nothing is read, written or logged.
-// Results are deterministic: the same readings and protocol give byte-identical
-// JSON.
 package screen
 
 import (
@@ -32,6 +18,16 @@ const (
 	Negative     Verdict = "negative"
 	Insufficient Verdict = "insufficient"
 )
+
+// ParseVerdict reads a verdict word in any letter case, with surrounding
+// spaces ignored, as files from other algorithms write it.
+func ParseVerdict(s string) (Verdict, error) {
+	switch v := Verdict(strings.ToLower(strings.TrimSpace(s))); v {
+	case Positive, Negative, Insufficient:
+		return v, nil
+	}
+	return "", fmt.Errorf("unknown verdict %q (want positive, negative or insufficient)", s)
+}
 
 // Result is the screen's outcome for one participant-week under one protocol.
 // The caller stores the protocol version beside it; InputDigest pins the
@@ -164,10 +160,6 @@ func (pr *Prepared) Week() int { return pr.week }
 // Summaries returns the window summaries of the i-th window size (protocol
 // order), for charts of the MASD distribution; the caller must not modify them.
 func (pr *Prepared) Summaries(i int) []WindowSummary { return pr.windows[i] }
-
-// Segments returns the scored RR segments, Start indexed into the week's
-// cleaned RR series; the caller must not modify them.
-func (pr *Prepared) Segments() []rr.Segment { return pr.segments }
 
 // Prepare reduces a cleaned week (see Clean) to window summaries for every
 // window size of p and, when the RR method is on, scored RR segments. RR

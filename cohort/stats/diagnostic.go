@@ -2,7 +2,6 @@ package stats
 
 import (
 	"fmt"
-	"math"
 )
 
 // Table2x2 holds a screen's results against the reference (the over-read):
@@ -43,31 +42,4 @@ func Diagnostic(t Table2x2) (Accuracy, error) {
 		NPV:         Fraction{t.TN, t.TN + t.FN},
 		Prevalence:  Fraction{t.TP + t.FN, t.TP + t.FP + t.FN + t.TN},
 	}, nil
-}
-
-// PredictiveAt returns the positive and negative predictive values a test
-// with the given sensitivity and specificity would have at another
-// prevalence, by Bayes' theorem. A screening study's own prevalence is rarely
-// the one a physician's practice sees, so the summary may show both.
-func PredictiveAt(sensitivity, specificity, prevalence float64) (ppv, npv float64, err error) {
-	for _, c := range []struct {
-		name string
-		v    float64
-	}{{"sensitivity", sensitivity}, {"specificity", specificity}, {"prevalence", prevalence}} {
-		if !(c.v >= 0 && c.v <= 1) {
-			return 0, 0, fmt.Errorf("stats: predictive values: %s = %v is outside [0, 1]: %w", c.name, c.v, ErrInvalid)
-		}
-	}
-	tp := sensitivity * prevalence
-	fp := (1 - specificity) * (1 - prevalence)
-	tn := specificity * (1 - prevalence)
-	fn := (1 - sensitivity) * prevalence
-	return ratio(tp, tp+fp), ratio(tn, tn+fn), nil
-}
-
-func ratio(a, b float64) float64 {
-	if b == 0 {
-		return math.NaN()
-	}
-	return a / b
 }

@@ -7,6 +7,36 @@
 // The distribution functions behind the exact intervals are written here from
 // their textbook definitions rather than taken from a numeric library, so the
 // tests can use such a library as an independent reference.
+//
+// # The figures a study reports, and their intervals
+//
+// A study reports small counts, so every proportion is shown with its count
+// ("231/263") and a 95% interval saying how much the count can tell:
+//
+//   - The PPV of the flag (positive predictive value): of the flagged episodes
+//     whose recording got a diagnostic over-read, the share in which AF was
+//     confirmed. It is the study's main measure of how often a flag is right.
+//     Uninterpretable recordings are counted and shown apart, not dropped.
+//   - Intervals for a proportion (ProportionCI, Fraction.CI): the Wilson score
+//     interval, the usual choice, with the Clopper-Pearson exact interval beside
+//     it; both from Newcombe's comparison of seven methods (Stat Med 1998). The
+//     exact limits are quantiles of Beta distributions, computed here.
+//   - Diagnostic accuracy (Diagnostic): sensitivity, specificity, PPV and NPV of
+//     a 2x2 table, used when a threshold sweep compares its flags with
+//     over-read ECGs.
+//   - Time from flag to over-read (KaplanMeier): cases still open are censored
+//     (counted as "not yet" at the time they have reached) rather than left out,
+//     so the median is not biased towards the quick cases.
+//   - Agreement between the recorder's automatic reading and the over-read
+//     (CohenKappa): agreement beyond what chance alone would give, with its
+//     standard error and interval.
+//   - Enrolment (ProjectEnrolment): the recent weekly rate, with an exact
+//     Poisson interval (PoissonCI), gives the expected date of reaching the
+//     target and an optimistic and a pessimistic one.
+//   - Subgroups by age use bands (AgeBands).
+//
+// Each check value in the tests names its published source or says that it
+// was computed or is from memory.
 package stats
 
 import "errors"

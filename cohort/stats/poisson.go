@@ -38,13 +38,3 @@ func PoissonRate(count int, exposure, conf float64) (rate float64, ci Interval, 
 	}
 	return float64(count) / exposure, Interval{ci.Lo / exposure, ci.Hi / exposure}, nil
 }
-
-// chiSquareQuantile is the p-quantile of the chi-square distribution with k
-// degrees of freedom, kept for the tests that hold our gamma function against
-// a reference library in the form textbooks tabulate.
-func chiSquareQuantile(p, k float64) float64 {
-	if p < 0.5 {
-		return 2 * gammaLowerQuantile(p, k/2)
-	}
-	return 2 * gammaUpperQuantile(1-p, k/2)
-}

@@ -121,3 +121,13 @@ func TestPoissonRate(t *testing.T) {
 		wantInvalid(t, fmt.Sprintf("exposure %v", exp), err)
 	}
 }
+
+// chiSquareQuantile is the p-quantile of the chi-square distribution with k
+// degrees of freedom, for the tests that hold our gamma function against
+// a reference library in the form textbooks tabulate.
+func chiSquareQuantile(p, k float64) float64 {
+	if p < 0.5 {
+		return 2 * gammaLowerQuantile(p, k/2)
+	}
+	return 2 * gammaUpperQuantile(1-p, k/2)
+}

@@ -163,8 +163,8 @@ func BenchmarkDecode(b *testing.B) {
 func BenchmarkMerge(b *testing.B) {
 	s := benchSeries()
 	for b.Loop() {
-		if _, d := Merge(s, s); d != s.Len() {
-			b.Fatal(d)
+		if _, st := MergeWithStats(s, s); st.Duplicates != s.Len() {
+			b.Fatal(st.Duplicates)
 		}
 	}
 	reportPerSecond(b, 2*s.Len(), "readings")

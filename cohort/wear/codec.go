@@ -136,13 +136,6 @@ func varintLen(x int64) int {
 	return (bits.Len64(u|1) + 6) / 7
 }
 
-// EncodedHeader reads the kind and reading count of an encoded series
-// without decoding it, for listings and size checks.
-func EncodedHeader(b []byte) (kind cohort.Kind, n int, err error) {
-	kind, _, n, _, err = header(b)
-	return kind, n, err
-}
-
 func header(b []byte) (kind cohort.Kind, flags byte, n int, rest []byte, err error) {
 	if len(b) < headerLen+1 {
 		return 0, 0, 0, nil, fmt.Errorf("wear: decode: %w: %d bytes is shorter than a header", ErrCorrupt, len(b))

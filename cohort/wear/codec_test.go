@@ -31,9 +31,9 @@ func mustRoundTrip(tb testing.TB, s cohort.Samples, kind cohort.Kind) []byte {
 	if !sameSamples(got, want) {
 		tb.Fatalf("round trip of %s:\n got %+v\nwant %+v", kind, got, want)
 	}
-	k, n, err := EncodedHeader(b)
+	k, _, n, _, err := header(b)
 	if err != nil || k != kind || n != s.Len() {
-		tb.Fatalf("EncodedHeader = %v, %d, %v; want %v, %d", k, n, err, kind, s.Len())
+		tb.Fatalf("header = %v, %d, %v; want %v, %d", k, n, err, kind, s.Len())
 	}
 	return b
 }
@@ -195,7 +195,7 @@ func FuzzDecode(f *testing.F) {
 			}
 			return
 		}
-		kind, n, err := EncodedHeader(b)
+		kind, _, n, _, err := header(b)
 		if err != nil || n != s.Len() {
 			t.Fatalf("header %v %d %v, decoded %d", kind, n, err, s.Len())
 		}

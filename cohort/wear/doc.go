@@ -2,9 +2,11 @@
 // from CSV files and FHIR Bundles, refuses bad rows one by one with a reason,
 // groups good rows into participant-week series, merges series without
 // duplicates, and packs a series into a compact byte string for storage. It
-// also reads external verdict files. It does no I/O of its own beyond the
-// io.Reader it is given, and keeps memory bounded by one record, one Bundle
-// entry, or the Grouper's budget, never by the size of a file.
+// also reads external verdict files: another algorithm's call on each
+// participant-week, in the screen's words (screen.Verdict). It does no I/O of
+// its own beyond the io.Reader it is given, and keeps memory bounded by one
+// record, one Bundle entry, or the Grouper's budget, never by the size of a
+// file.
 //
 // # Readings CSV format
 //
@@ -110,8 +112,8 @@
 //
 // Encode packs one participant-week-kind series into a compact byte string
 // (layout in codec.go), typically 2 to 3 bytes per heart-rate reading;
-// Decode unpacks it and never panics on corrupt input. Merge joins a stored
-// series with new readings, dropping exact duplicates and keeping (and
+// Decode unpacks it and never panics on corrupt input. MergeWithStats joins a
+// stored series with new readings, dropping exact duplicates and keeping (and
 // counting) conflicting readings at the same instant. Grouper sorts rows into
 // series by participant, study week (cohort.StudyWeek) and kind under a
 // memory budget.

@@ -16,26 +16,20 @@ type MergeStats struct {
 	Conflicts int
 }
 
-// Merge joins two series of one kind into one, sorted by time, and drops
-// exact duplicates (same time, same value, same end), returning how many.
+// MergeWithStats joins two series of one kind into one, sorted by time, and
+// drops exact duplicates (same time, same value, same end), counting them.
 // Duplicates inside a or b are dropped too, so importing the same file twice
 // changes nothing, and overlapping files merge into one copy of each reading.
 //
 // Two readings at the same instant with different values are both kept: the
 // reader cannot tell which is right (two devices, a correction), and dropping
-// one would lose data without trace. MergeWithStats counts them so the import
-// report can show them. Ties on time are ordered by value, then end, so the
-// result does not depend on the order of the arguments.
+// one would lose data without trace. They are counted as conflicts so the
+// import report can show them. Ties on time are ordered by value, then end,
+// so the result does not depend on the order of the arguments.
 //
 // a and b should be sorted by time, as Samples are; unsorted input is sorted
 // (on a copy) first. a and b are not changed. When either has an End column
 // the result has one; a reading from a series without End gets End 0.
-func Merge(a, b cohort.Samples) (merged cohort.Samples, duplicates int) {
-	m, st := MergeWithStats(a, b)
-	return m, st.Duplicates
-}
-
-// MergeWithStats is Merge reporting conflicts as well as duplicates.
 func MergeWithStats(a, b cohort.Samples) (cohort.Samples, MergeStats) {
 	hasEnd := len(a.End) > 0 || len(b.End) > 0
 	a, b = ordered(a), ordered(b)

@@ -42,9 +42,9 @@ func TestMerge(t *testing.T) {
 			if !sameSamples(got, tt.want) || st.Duplicates != tt.dups || st.Conflicts != tt.conflicts {
 				t.Errorf("got %+v %+v, want %+v dups %d conflicts %d", got, st, tt.want, tt.dups, tt.conflicts)
 			}
-			got2, dups := Merge(tt.b, tt.a)
-			if !sameSamples(got2, got) || dups != st.Duplicates {
-				t.Errorf("Merge(b, a) = %+v, %d; differs from Merge(a, b)", got2, dups)
+			got2, st2 := MergeWithStats(tt.b, tt.a)
+			if !sameSamples(got2, got) || st2 != st {
+				t.Errorf("MergeWithStats(b, a) = %+v, %+v; differs from MergeWithStats(a, b)", got2, st2)
 			}
 		})
 	}
@@ -53,9 +53,9 @@ func TestMerge(t *testing.T) {
 func TestMergeLeavesInputs(t *testing.T) {
 	a := hrSeries(3, 62, 1, 60)
 	b := hrSeries(2, 61)
-	Merge(a, b)
+	MergeWithStats(a, b)
 	if a.T[0] != 3 || a.T[1] != 1 {
-		t.Errorf("Merge sorted its argument in place: %+v", a)
+		t.Errorf("MergeWithStats sorted its argument in place: %+v", a)
 	}
 }
 
@@ -116,14 +116,15 @@ func TestMergeProperties(t *testing.T) {
 	for i := 0; i < 500; i++ {
 		steps := i%2 == 1
 		a, b := gen(rng.IntN(40), steps), gen(rng.IntN(40), steps)
-		got, dups := Merge(a, b)
+		got, st := MergeWithStats(a, b)
+		dups := st.Duplicates
 		want, wantDups := naiveMerge(a, b, steps && (a.Len() > 0 || b.Len() > 0))
 		if !sameSamples(got, want) || dups != wantDups {
-			t.Fatalf("Merge(%+v, %+v) = %+v, %d; want %+v, %d", a, b, got, dups, want, wantDups)
+			t.Fatalf("MergeWithStats(%+v, %+v) = %+v, %d; want %+v, %d", a, b, got, dups, want, wantDups)
 		}
-		again, dups2 := Merge(got, b)
-		if !sameSamples(again, got) || dups2 != b.Len() {
-			t.Fatalf("re-merging b changed the series or missed duplicates: %d of %d", dups2, b.Len())
+		again, st2 := MergeWithStats(got, b)
+		if dups2 := st2.Duplicates; !sameSamples(again, got) || dups2 != b.Len() {
+			t.Fatalf("re-merging b changed the series or missed duplicates: %d of %d", st2.Duplicates, b.Len())
 		}
 	}
 }

@@ -83,16 +83,6 @@ func (r Reason) Label() string {
 	return r.String()
 }
 
-// Reasons lists every reason in a fixed order, so a report can show a row for
-// each one, zero counts included.
-func Reasons() []Reason {
-	out := make([]Reason, 0, numReasons-1)
-	for r := Reason(1); r < numReasons; r++ {
-		out = append(out, r)
-	}
-	return out
-}
-
 // ParseReason reads a code written by String, for quarantine rows read back
 // from storage.
 func ParseReason(code string) (Reason, error) {

@@ -6,52 +6,19 @@ import (
 	"io"
 	"math"
 	"strconv"
-	"strings"
+
+	"cohortdesk/cohort/screen"
 )
 
-// Verdict is an external algorithm's call on one participant-week.
-type Verdict uint8
-
-// The verdicts an external algorithm may give, matching the screen's own.
-const (
-	VerdictPositive     Verdict = 1 // screen-positive
-	VerdictNegative     Verdict = 2 // screen-negative
-	VerdictInsufficient Verdict = 3 // not enough data to call
-)
-
-// String gives the name used in verdict files.
-func (v Verdict) String() string {
-	switch v {
-	case VerdictPositive:
-		return "positive"
-	case VerdictNegative:
-		return "negative"
-	case VerdictInsufficient:
-		return "insufficient"
-	}
-	return "verdict(" + strconv.Itoa(int(v)) + ")"
-}
-
-// ParseVerdict reads a verdict name, ignoring case and surrounding spaces.
-func ParseVerdict(s string) (Verdict, error) {
-	switch strings.ToLower(strings.TrimSpace(s)) {
-	case "positive":
-		return VerdictPositive, nil
-	case "negative":
-		return VerdictNegative, nil
-	case "insufficient":
-		return VerdictInsufficient, nil
-	}
-	return 0, fmt.Errorf("unknown verdict %q (want positive, negative or insufficient)", s)
-}
-
-// VerdictRow is one accepted line of an external verdicts file.
+// VerdictRow is one accepted line of an external verdicts file: another
+// algorithm's call on one participant-week, in the screen's own words
+// (screen.Verdict: positive, negative or insufficient).
 type VerdictRow struct {
 	StudyID      string
 	Week         int     // study week, 0-based
 	Score        float64 // the model's score; meaningful only when HasScore
 	HasScore     bool    // false when the score column was empty
-	Verdict      Verdict
+	Verdict      screen.Verdict
 	ModelName    string
 	ModelVersion string
 	Line         int
@@ -167,7 +134,7 @@ func (v *VerdictReader) parse() {
 		row.Score, row.HasScore = s, true
 	}
 	vb := get(3)
-	verdict, err := ParseVerdict(string(vb))
+	verdict, err := screen.ParseVerdict(string(vb))
 	if err != nil {
 		v.reject(ReasonBadVerdict, "verdict", "verdict %s is not positive, negative or insufficient", quote(vb))
 		return

@@ -2,6 +2,7 @@ package wear
 
 import (
 	"bytes"
+	"cohortdesk/cohort/screen"
 	"errors"
 	"strings"
 	"testing"
@@ -40,10 +41,10 @@ func TestVerdictReader(t *testing.T) {
 		t.Fatal(err)
 	}
 	want := []VerdictRow{
-		{"S-0001", 0, 0.91, true, VerdictPositive, "rhythm-net", "2.1.0", 2},
-		{"S-0001", 1, 1.5e-3, true, VerdictNegative, "rhythm-net", "2.1.0", 3},
-		{"S-0002", 0, 0, false, VerdictInsufficient, "rhythm-net", "2.1.0", 4},
-		{"S-0003", 4, 0.7, true, VerdictPositive, "rhythm-net", "2.1.0", 12},
+		{"S-0001", 0, 0.91, true, screen.Positive, "rhythm-net", "2.1.0", 2},
+		{"S-0001", 1, 1.5e-3, true, screen.Negative, "rhythm-net", "2.1.0", 3},
+		{"S-0002", 0, 0, false, screen.Insufficient, "rhythm-net", "2.1.0", 4},
+		{"S-0003", 4, 0.7, true, screen.Positive, "rhythm-net", "2.1.0", 12},
 	}
 	if len(rows) != len(want) {
 		t.Fatalf("rows %+v", rows)
@@ -81,11 +82,22 @@ func TestVerdictReaderHeader(t *testing.T) {
 	}
 }
 
-func TestParseVerdictRoundTrip(t *testing.T) {
-	for _, v := range []Verdict{VerdictPositive, VerdictNegative, VerdictInsufficient} {
-		got, err := ParseVerdict(v.String())
-		if err != nil || got != v {
-			t.Errorf("ParseVerdict(%q) = %v, %v", v.String(), got, err)
+// The file's verdict words are the screen's own, in any letter case.
+func TestParseVerdictWords(t *testing.T) {
+	for _, tt := range []struct {
+		in   string
+		want screen.Verdict
+	}{
+		{"positive", screen.Positive}, {"NEGATIVE", screen.Negative}, {" Insufficient ", screen.Insufficient},
+	} {
+		got, err := screen.ParseVerdict(tt.in)
+		if err != nil || got != tt.want {
+			t.Errorf("ParseVerdict(%q) = %q, %v; want %q", tt.in, got, err, tt.want)
+		}
+	}
+	for _, bad := range []string{"", "maybe", "pos", "1"} {
+		if got, err := screen.ParseVerdict(bad); err == nil {
+			t.Errorf("ParseVerdict(%q) = %q, want an error", bad, got)
 		}
 	}
 }
@@ -106,7 +118,7 @@ func FuzzVerdictReader(f *testing.F) {
 			}
 			r := vr.Verdict()
 			if r.StudyID == "" || r.Week < 0 || r.ModelName == "" || r.ModelVersion == "" ||
-				r.Verdict < VerdictPositive || r.Verdict > VerdictInsufficient {
+				(r.Verdict != screen.Positive && r.Verdict != screen.Negative && r.Verdict != screen.Insufficient) {
 				t.Fatalf("bad row %+v", r)
 			}
 		}

@@ -24,7 +24,6 @@ import (
 
 var (
 	shared  *pgcluster.Cluster
-	baseDir string
 	counter atomic.Int64
 	tmplMu  sync.Mutex
 )
@@ -54,7 +53,6 @@ func run(m *testing.M) (int, error) {
 	if err := os.Chmod(dir, 0o755); err != nil {
 		return 1, err
 	}
-	baseDir = dir
 	defer os.RemoveAll(dir)
 	c, err := pgcluster.Start(ctx, pgcluster.Config{Dir: filepath.Join(dir, "pg"), Fast: true}, os.Getenv)
 	if err != nil {
@@ -157,6 +155,3 @@ func Empty(tb testing.TB) string {
 	})
 	return shared.URL(name)
 }
-
-// BaseDir is the temporary folder holding the test cluster.
-func BaseDir() string { return baseDir }

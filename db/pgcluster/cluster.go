@@ -477,30 +477,3 @@ func (c *Cluster) Stop() error {
 		return errors.New("cluster: server did not stop within 30 s; sent SIGQUIT")
 	}
 }
-
-// Kill stops the server and its children without a clean shutdown, as a
-// machine crash would: for tests of recovery.
-func (c *Cluster) Kill() {
-	if c == nil || c.cmd == nil || c.cmd.Process == nil {
-		return
-	}
-	// The server leads its own process group (Setpgid), so this reaches the
-	// backends too.
-	_ = syscall.Kill(-c.cmd.Process.Pid, syscall.SIGKILL)
-	<-c.done
-}
-
-// Restart starts the server again after Stop or Kill, keeping the data.
-func (c *Cluster) Restart(ctx context.Context) error {
-	if err := c.clearStalePID(); err != nil {
-		return err
-	}
-	var err error
-	for attempt := 0; attempt < 6; attempt++ {
-		if err = c.start(ctx); err == nil || !transientStartError(err) {
-			return err
-		}
-		time.Sleep(time.Duration(100<<attempt) * time.Millisecond)
-	}
-	return err
-}

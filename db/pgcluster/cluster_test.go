@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"syscall"
 	"testing"
 
 	"github.com/jackc/pgx/v5"
@@ -38,6 +39,20 @@ func tempDir(t *testing.T) string {
 	return d
 }
 
+// kill stops the server and its children without a clean shutdown, as a
+// machine crash would. The server leads its own process group (Setpgid), so
+// this reaches the backends too.
+func kill(t *testing.T, c *Cluster) {
+	t.Helper()
+	if c == nil || c.cmd == nil || c.cmd.Process == nil {
+		t.Fatal("kill: no server running")
+	}
+	if err := syscall.Kill(-c.cmd.Process.Pid, syscall.SIGKILL); err != nil {
+		t.Fatalf("kill: %v", err)
+	}
+	<-c.done
+}
+
 func TestStartStopRestartAndStalePID(t *testing.T) {
 	dir := filepath.Join(tempDir(t), "pg")
 	c, err := Start(context.Background(), Config{Dir: dir, Fast: true}, os.Getenv)
@@ -56,7 +71,7 @@ func TestStartStopRestartAndStalePID(t *testing.T) {
 	ping(t, c)
 	// A crash leaves postmaster.pid behind; then the PID is reused by an
 	// unrelated process (here: this test). Start must recover.
-	c.Kill()
+	kill(t, c)
 	pidFile := filepath.Join(dir, "pgdata", "postmaster.pid")
 	b, err := os.ReadFile(pidFile)
 	if err != nil {

@@ -41,9 +41,6 @@ type synthCohort struct {
 	Results      int64   // screening results stored by SQL
 }
 
-// studyID is the synthetic study ID of participant number g (1-based).
-func studyID(g int) string { return fmt.Sprintf("SY-%06d", g) }
-
 // resultTemplates screens one synthetic week of each kind for real and
 // returns the JSON of each result with its week number cut off, so SQL can
 // store realistic results for participants without wear data.

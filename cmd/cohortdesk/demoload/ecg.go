@@ -14,21 +14,6 @@ import (
 	"cohortdesk/web/referralissue"
 )
 
-var autoOf = map[demo.AutoResult]overread.Auto{
-	demo.AutoAF:           overread.AutoAF,
-	demo.AutoSinus:        overread.AutoSinus,
-	demo.AutoUnclassified: overread.AutoUnclassified,
-	demo.AutoNoAnalysis:   overread.AutoUnreadable,
-}
-
-var rhythmOf = map[demo.Rhythm]overread.Rhythm{
-	demo.RhythmAF:              overread.AF,
-	demo.RhythmFlutter:         overread.Flutter,
-	demo.RhythmSinus:           overread.Sinus,
-	demo.RhythmOther:           overread.Other,
-	demo.RhythmUninterpretable: overread.Uninterpretable,
-}
-
 // synthRecording makes the waveform of a scripted recording with the
 // dynamical ECG model (cohort/ecg): its beats fall at the script's intervals,
 // with breathing wander, and heavy noise when the script says an over-reader
@@ -56,11 +41,7 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 	if err != nil {
 		return 0, err
 	}
-	auto := autoOf[r.Auto]
-	if auto == "" {
-		auto = overread.AutoNone
-	}
-	rec, err := cs.AddRecording(ctx, a, caseID, ecg.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: auto,
+	rec, err := cs.AddRecording(ctx, a, caseID, ecg.RecordingInput{TakenAt: r.Taken, ReceivedAt: r.Received, Auto: r.Auto,
 		Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		return 0, fmt.Errorf("recording: %w", err)
@@ -70,7 +51,7 @@ func addRecording(ctx context.Context, cs *db.Store, a cohort.Actor, caseID int6
 
 // addOverRead enters the scripted clinician's reading.
 func addOverRead(ctx context.Context, cs *db.Store, reader db.User, recID int64, r demo.Recording, loc *time.Location) error {
-	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: rhythmOf[r.OverRead],
+	_, err := cs.AddOverRead(ctx, reader.Actor("", "demo"), recID, db.OverReadInput{Rhythm: r.OverRead,
 		Confidence: overread.Certain, ReaderID: reader.ID, ReadOn: cohort.DateOf(r.ReadAt.In(loc))})
 	if err != nil {
 		return fmt.Errorf("over-read: %w", err)

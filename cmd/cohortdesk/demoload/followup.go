@@ -29,21 +29,6 @@ type caseEvent struct {
 	read    *demo.Recording // a clinician reads it
 }
 
-var channelOf = map[demo.Channel]followup.Channel{
-	demo.ChannelPhone:  followup.ChannelPhone,
-	demo.ChannelEmail:  followup.ChannelEmail,
-	demo.ChannelText:   followup.ChannelText,
-	demo.ChannelLetter: followup.ChannelLetter,
-}
-
-var outcomeOf = map[demo.Outcome]followup.Outcome{
-	demo.OutcomeNoAnswer:    followup.OutcomeNoAnswer,
-	demo.OutcomeLeftMessage: followup.OutcomeMessageLeft,
-	demo.OutcomeNoReply:     followup.OutcomeMessageLeft,
-	demo.OutcomeReached:     followup.OutcomeReached,
-	demo.OutcomeDeclined:    followup.OutcomeDeclined,
-}
-
 // flagTime is when the study would have flagged a participant's week: the
 // morning after the week ended (capped at the study's today).
 func flagTime(st *demo.Study, p demo.Participant, week int) time.Time {
@@ -210,8 +195,8 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 		switch {
 		case ev.attempt != nil:
 			a := ev.attempt
-			_, err = cs.LogAttempt(ctx, actor(a.By), id, db.AttemptInput{Version: c.Version, Channel: channelOf[a.Channel],
-				Outcome: outcomeOf[a.Outcome], Note: a.Note})
+			_, err = cs.LogAttempt(ctx, actor(a.By), id, db.AttemptInput{Version: c.Version, Channel: a.Channel,
+				Outcome: a.Outcome, Note: a.Note})
 		case ev.arrive != nil:
 			recID[ev.arrive], err = addRecording(ctx, cs, actor(f.Owner), id, *ev.arrive, uint64(id)*31+uint64(len(recID)))
 		case ev.read != nil:
@@ -220,10 +205,10 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 				reader = signer
 			}
 			err = addOverRead(ctx, cs, reader, recID[ev.read], *ev.read, loc)
-		case ev.move != nil && followup.State(ev.move.To) == followup.Referred && len(secret) > 0:
+		case ev.move != nil && ev.move.To == followup.Referred && len(secret) > 0:
 			err = refer(ctx, cs, actor(ev.move.By), signer, c, secret, ev.at)
 		case ev.move != nil:
-			err = playMove(ctx, cs, actor(ev.move.By), c, followup.State(ev.move.To), ev.at)
+			err = playMove(ctx, cs, actor(ev.move.By), c, ev.move.To, ev.at)
 		}
 		if err != nil {
 			return err

@@ -15,6 +15,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/demo"
+	"cohortdesk/cohort/risk"
 	"cohortdesk/db"
 
 	"github.com/jackc/pgx/v5"
@@ -169,19 +170,21 @@ func loadUsers(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.St
 		return nil, err
 	}
 	for _, u := range st.Users {
-		if _, err := store.CreateUser(ctx, a, db.NewUser{Email: u.Email, Name: u.Name, Role: cohort.Role(u.Role), PasswordHash: hash}); err != nil {
+		if _, err := store.CreateUser(ctx, a, db.NewUser{Email: u.Email, Name: u.Name, Role: u.Role, PasswordHash: hash}); err != nil {
 			return nil, fmt.Errorf("seed: user %s: %w", u.Email, err)
 		}
 	}
 	return st.Users, nil
 }
 
-func answer(a demo.Answer) *bool {
+// answer is an intake answer as the store keeps it: true, false, or nil when
+// not recorded.
+func answer(a risk.Answer) *bool {
 	switch a {
-	case demo.Yes:
+	case risk.Yes:
 		t := true
 		return &t
-	case demo.No:
+	case risk.No:
 		f := false
 		return &f
 	}

@@ -1,4 +1,8 @@
-package deid
+// Package deidtest holds what tests need to prove that an export or a page
+// leaks no identifier: Leaks finds planted canary values in text, in the forms
+// a careless export would write them. It is test support only: no production
+// code imports it.
+package deidtest
 
 import (
 	"strconv"

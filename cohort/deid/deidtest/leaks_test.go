@@ -1,4 +1,4 @@
-package deid
+package deidtest
 
 import (
 	"slices"
