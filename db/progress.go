@@ -2,9 +2,12 @@ package db
 
 import (
 	"context"
+	"fmt"
+	"strings"
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/followup"
 
 	"github.com/jackc/pgx/v5"
@@ -282,6 +285,9 @@ type CascadeMember struct {
 	EnrolledOn cohort.Date
 	Withdrawn  bool
 	Cases      []MemberCase // under the cascade's protocol version, oldest flag first
+	// Standing is where they stand in the cascade of that version.
+	Standing cascade.Standing
+	kept     bool // Standing was read (not implied by having no row)
 }
 
 // MemberCase is one case of a CascadeMember.
@@ -293,6 +299,67 @@ type MemberCase struct {
 	LastWeek  int
 }
 
+// BoxPage is one page of the participants of a box of the cascade, or of
+// those who left it for one reason, in participant order.
+type BoxPage struct {
+	Members []CascadeMember
+	Next    int64 // the After of the next page; 0 after the last
+}
+
+// CascadeMembersAfter lists, page by page, the participants of box number
+// box of the cascade for f (its ProtocolID resolved, as Cascade returns it
+// in Cascade.Filter), or with exit those who stopped in that box for that
+// reason: up to limit participants with ids above after. Who stands where
+// comes from the kept standings (cascade.Stand); a page costs what it shows,
+// except the participants without any result or case under the version
+// (box 0's exits), who are found by what they lack.
+func (s *Store) CascadeMembersAfter(ctx context.Context, f cascade.Filter, box int, exit cascade.ExitReason, after int64, limit int) (BoxPage, error) {
+	args := append(filterArgs(f), f.ProtocolID, after, limit+1)
+	standing := func(b int, extra string) string {
+		return fmt.Sprintf(`(SELECT x.participant_id AS id FROM figure_standings x WHERE x.protocol_id = $4 AND x.box = %d%s AND %s
+			AND x.participant_id > $5 ORDER BY x.participant_id LIMIT $6)`, b, extra, chosenBy)
+	}
+	var parts []string
+	bare := cascade.Stand(cascade.Person{}, nil, f.ProtocolID)
+	bareW := cascade.Stand(cascade.Person{Withdrawn: true}, nil, f.ProtocolID)
+	switch {
+	case box == 0 && exit == "":
+		parts = append(parts, `(SELECT x.id FROM participants x WHERE `+chosenBy+` AND x.id > $5 ORDER BY x.id LIMIT $6)`)
+	case exit == "":
+		for b := box; b < cascade.BoxCount(); b++ {
+			parts = append(parts, standing(b, ""))
+		}
+	default:
+		args = append(args, string(exit))
+		parts = append(parts, standing(box, " AND x.exit = $7"))
+		for _, bare := range []struct {
+			st        cascade.Standing
+			withdrawn bool
+		}{{bare, false}, {bareW, true}} {
+			if bare.st.Box == box && bare.st.Exit == exit {
+				parts = append(parts, fmt.Sprintf(`(SELECT x.id FROM participants x WHERE %s AND (x.withdrawn_on IS NOT NULL) = %t AND x.id > $5
+					AND NOT EXISTS (SELECT 1 FROM figure_standings s WHERE s.participant_id = x.id AND s.protocol_id = $4)
+					ORDER BY x.id LIMIT $6)`, chosenBy, bare.withdrawn))
+			}
+		}
+	}
+	var page BoxPage
+	rows, err := s.reader(ctx).Query(ctx, `SELECT id FROM (`+strings.Join(parts, " UNION ALL ")+`) u WHERE $4::int IS NOT NULL ORDER BY id LIMIT $6`, args...)
+	if err != nil {
+		return page, mapErr("cascade box", err)
+	}
+	ids, err := pgx.CollectRows(rows, pgx.RowTo[int64])
+	if err != nil {
+		return page, mapErr("cascade box", err)
+	}
+	if len(ids) > limit {
+		ids = ids[:limit]
+		page.Next = ids[limit-1]
+	}
+	page.Members, err = s.CascadeMembers(ctx, f.ProtocolID, ids)
+	return page, err
+}
+
 // CascadeMembers reads the participants with the given ids, in the order
 // given (ids not found are left out), each with their cases under protocol
 // version protocolID. It counts nothing: the ids come from Cascade, which is
@@ -302,7 +369,7 @@ func (s *Store) CascadeMembers(ctx context.Context, protocolID int, ids []int64)
 		return nil, nil
 	}
 	byID := make(map[int64]*CascadeMember, len(ids))
-	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly, IsoLevel: pgx.RepeatableRead}, func(tx pgx.Tx) error {
+	err := s.readTx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `
 			SELECT p.id, p.study_id, st.code, p.enrolled_on, p.withdrawn_on IS NOT NULL
 			FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = ANY($1)`, ids)
@@ -318,6 +385,26 @@ func (s *Store) CascadeMembers(ctx context.Context, protocolID int, ids []int64)
 			}
 			m.EnrolledOn = cohort.DateOf(on)
 			byID[m.ID] = &m
+		}
+		if err := rows.Err(); err != nil {
+			return err
+		}
+		rows, err = tx.Query(ctx, `SELECT participant_id, box, exit FROM figure_standings WHERE participant_id = ANY($1) AND protocol_id = $2`, ids, protocolID)
+		if err != nil {
+			return err
+		}
+		for rows.Next() {
+			var pid int64
+			var st cascade.Standing
+			var exit string
+			if err := rows.Scan(&pid, &st.Box, &exit); err != nil {
+				rows.Close()
+				return err
+			}
+			st.Exit = cascade.ExitReason(exit)
+			if m := byID[pid]; m != nil {
+				m.Standing, m.kept = st, true
+			}
 		}
 		if err := rows.Err(); err != nil {
 			return err
@@ -350,6 +437,9 @@ func (s *Store) CascadeMembers(ctx context.Context, protocolID int, ids []int64)
 	out := make([]CascadeMember, 0, len(ids))
 	for _, id := range ids {
 		if m := byID[id]; m != nil {
+			if !m.kept {
+				m.Standing = cascade.Stand(cascade.Person{Withdrawn: m.Withdrawn}, nil, protocolID)
+			}
 			out = append(out, *m)
 		}
 	}

@@ -78,6 +78,13 @@ func readingsOf(ctx context.Context, q querier, ids []int64) (map[int64][]OverRe
 	if err != nil {
 		return nil, err
 	}
+	return scanReadings(rows)
+}
+
+// scanReadings collects over-reads (the columns readingsOf selects) by
+// recording.
+func scanReadings(rows pgx.Rows) (map[int64][]OverRead, error) {
+	out := map[int64][]OverRead{}
 	defer rows.Close()
 	for rows.Next() {
 		var o OverRead

@@ -78,9 +78,16 @@ func (s *Store) Ping(ctx context.Context) error {
 	return nil
 }
 
-// inTx runs fn in a transaction, committing when fn returns nil.
+// inTx runs fn in a transaction, committing when fn returns nil. Before the
+// commit it computes the kept figures of the participants whose rows fn
+// changed (figures_keep.go), so the change and its figures commit together.
 func (s *Store) inTx(ctx context.Context, fn func(pgx.Tx) error) error {
-	return pgx.BeginFunc(ctx, s.pool, fn)
+	return pgx.BeginFunc(ctx, s.pool, func(tx pgx.Tx) error {
+		if err := fn(tx); err != nil {
+			return err
+		}
+		return refreshMarked(ctx, tx)
+	})
 }
 
 // mapErr turns driver errors into the domain's errors so callers never look at
