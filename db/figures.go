@@ -262,14 +262,14 @@ func (s *Store) Figures(ctx context.Context, f cascade.Filter) (cascade.Cascade,
 // participants' figures wait to be computed after a change made outside the
 // store's transactions (a bulk load), and since when. Zero most of the time.
 type FiguresPending struct {
-	Participants int // at most pendingCap
+	Participants int // at most PendingCap
 	Since        time.Time
 	Building     bool // the figures were never built yet
 }
 
-// pendingCap bounds the count of waiting participants: a page says "more
+// PendingCap bounds the count of waiting participants: a page says "more
 // than" beyond it.
-const pendingCap = 10000
+const PendingCap = 10000
 
 // Pending reads how current the kept figures are.
 func (s *Store) Pending(ctx context.Context) (FiguresPending, error) {
@@ -278,7 +278,7 @@ func (s *Store) Pending(ctx context.Context) (FiguresPending, error) {
 	err := s.reader(ctx).QueryRow(ctx, `
 		SELECT (SELECT count(DISTINCT participant_id) FROM (SELECT participant_id FROM figures_dirty LIMIT $1) d),
 		       (SELECT min(marked_at) FROM figures_dirty),
-		       coalesce((SELECT built_at IS NULL FROM figures_state), false)`, pendingCap).Scan(&p.Participants, &since, &p.Building)
+		       coalesce((SELECT built_at IS NULL FROM figures_state), false)`, PendingCap).Scan(&p.Participants, &since, &p.Building)
 	p.Since = timeOf(since)
 	return p, mapErr("figures pending", err)
 }

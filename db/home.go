@@ -16,33 +16,39 @@ type Counts struct {
 	Cases map[followup.State]int64
 }
 
-// Counts reads the headline figures.
+// Counts reads the headline figures from the sums kept as participants and
+// cases change (enrolment_counts, case_counts): one read whatever the
+// study's size.
 func (s *Store) Counts(ctx context.Context) (Counts, error) {
-	var c Counts
-	err := s.pool.QueryRow(ctx, `
-		SELECT (SELECT count(*) FROM participants),
-		       (SELECT count(*) FROM participants WHERE withdrawn_on IS NULL),
-		       (SELECT count(*) FROM sites),
-		       (SELECT count(*) FROM participants WHERE withdrawn_on IS NOT NULL)`).
-		Scan(&c.Participants, &c.Active, &c.Sites, &c.Withdrawn)
+	c := Counts{Cases: map[followup.State]int64{}}
+	rows, err := s.reader(ctx).Query(ctx, `
+		SELECT 'enrolled', coalesce(sum(n), 0) FROM enrolment_counts
+		UNION ALL SELECT 'withdrawn', coalesce(sum(n), 0) FROM enrolment_counts WHERE withdrawn_on IS NOT NULL
+		UNION ALL SELECT 'sites', count(*) FROM sites
+		UNION ALL (SELECT 'case:' || state, sum(n) FROM case_counts GROUP BY state HAVING sum(n) <> 0)`)
 	if err != nil {
 		return c, mapErr("counts", err)
 	}
-	rows, err := s.pool.Query(ctx, `SELECT state, count(*) FROM cases GROUP BY state`)
-	if err != nil {
-		return c, mapErr("case counts", err)
-	}
 	defer rows.Close()
-	c.Cases = map[followup.State]int64{}
 	for rows.Next() {
-		var st string
+		var key string
 		var n int64
-		if err := rows.Scan(&st, &n); err != nil {
-			return c, mapErr("case counts", err)
+		if err := rows.Scan(&key, &n); err != nil {
+			return c, mapErr("counts", err)
 		}
-		c.Cases[followup.State(st)] = n
+		switch key {
+		case "enrolled":
+			c.Participants = n
+		case "withdrawn":
+			c.Withdrawn = n
+		case "sites":
+			c.Sites = n
+		default:
+			c.Cases[followup.State(key[len("case:"):])] = n
+		}
 	}
-	return c, mapErr("case counts", rows.Err())
+	c.Active = c.Participants - c.Withdrawn
+	return c, mapErr("counts", rows.Err())
 }
 
 // StudyName returns the study's name, or "" before the study is set up.

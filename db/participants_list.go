@@ -39,6 +39,7 @@ type ParticipantPage struct {
 	Rows      []ParticipantRow
 	Next      string // cursor for the next page, "" at the end
 	Total     int64  // rows matching the filter
+	AtLeast   bool   // the counts stopped at countCap: there are more
 	Active    int64
 	Withdrawn int64
 }
@@ -103,6 +104,30 @@ func (f ParticipantFilter) where(today time.Time) (string, []any) {
 	return strings.Join(conds, " AND "), args
 }
 
+// participantCounts counts the filter's participants: from the enrolment
+// sums (enrolment_counts) when the filter is a site and a status, else up to
+// countCap from the participants themselves.
+func (s *Store) participantCounts(ctx context.Context, f ParticipantFilter, where string, args []any, page *ParticipantPage) error {
+	if strings.TrimSpace(f.Search) == "" && f.PositiveWeeks == 0 && !f.OpenCase {
+		status := f.Status
+		if status != "active" && status != "withdrawn" {
+			status = ""
+		}
+		return s.reader(ctx).QueryRow(ctx, `
+			SELECT coalesce(sum(n), 0), coalesce(sum(n) FILTER (WHERE withdrawn_on IS NULL), 0), coalesce(sum(n) FILTER (WHERE withdrawn_on IS NOT NULL), 0)
+			FROM enrolment_counts WHERE ($1 = 0 OR site_id = $1) AND ($2 = '' OR ($2 = 'active') = (withdrawn_on IS NULL))`,
+			f.SiteID, status).Scan(&page.Total, &page.Active, &page.Withdrawn)
+	}
+	err := s.reader(ctx).QueryRow(ctx, `
+		SELECT count(*), count(*) FILTER (WHERE w IS NULL), count(*) FILTER (WHERE w IS NOT NULL)
+		FROM (SELECT p.withdrawn_on AS w FROM participants p WHERE `+where+fmt.Sprintf(` LIMIT %d) x`, countCap+1), args...).
+		Scan(&page.Total, &page.Active, &page.Withdrawn)
+	if page.Total > countCap {
+		page.AtLeast, page.Total = true, countCap
+	}
+	return err
+}
+
 func escapeLike(s string) string {
 	return strings.NewReplacer(`\`, `\\`, "%", `\%`, "_", `\_`).Replace(s)
 }
@@ -140,11 +165,7 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 	today := s.now().UTC()
 	where, args := f.where(today)
 	var page ParticipantPage
-	// The filter reads participants only, so the counts need no join.
-	err := s.pool.QueryRow(ctx, `
-		SELECT count(*), count(*) FILTER (WHERE p.withdrawn_on IS NULL), count(*) FILTER (WHERE p.withdrawn_on IS NOT NULL)
-		FROM participants p WHERE `+where, args...).Scan(&page.Total, &page.Active, &page.Withdrawn)
-	if err != nil {
+	if err := s.participantCounts(ctx, f, where, args, &page); err != nil {
 		return page, mapErr("participants count", err)
 	}
 	cmp, dir := ">", " ASC"
@@ -166,7 +187,7 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		nameCol = "coalesce((SELECT pi.given_name || ' ' || pi.family_name FROM participant_identity pi WHERE pi.participant_id = p.id), '')"
 	}
 	args = append(args, f.Limit+1)
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT `+participantCols+`, `+key+`, `+nameCol+`,
 		  (SELECT max(sr.week) FROM screen_results sr JOIN protocols pr ON pr.id = sr.protocol_id AND pr.active
 		   WHERE sr.participant_id = p.id AND sr.verdict = 'positive'),

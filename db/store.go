@@ -54,6 +54,7 @@ func Open(ctx context.Context, url string, maxConns int32) (*pgxpool.Pool, error
 	// participants 0.04 -> 0.37 s), compiling plans whose cost estimates
 	// crossed jit_above_cost.
 	cfg.ConnConfig.RuntimeParams["jit"] = "off"
+	cfg.ConnConfig.Tracer = tracer{totals: &AllCalls}
 	pool, err := pgxpool.NewWithConfig(ctx, cfg)
 	if err != nil {
 		return nil, fmt.Errorf("db: %w", err)

@@ -185,6 +185,11 @@ CREATE TABLE case_counts (
 );
 CREATE INDEX case_counts_idx ON case_counts (state, due_hour);
 
+-- Triage lists each group's first rows from an index: new flags nobody has
+-- taken on by flag time, recordings waiting for an over-read by arrival.
+CREATE INDEX cases_new_idx ON cases (flagged_at, id) WHERE state = 'open' AND owner_id IS NULL;
+CREATE INDEX cases_waiting_idx ON cases (recording_back_at, id) WHERE state = 'recording_received';
+
 -- The latest reading of each participant, for the list of participants gone
 -- silent: read by enrolment day and silence, so the list costs what it shows.
 CREATE TABLE participant_activity (

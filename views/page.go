@@ -2,6 +2,8 @@
 // page takes one view model built by its handler; views never query anything.
 package views
 
+import "strconv"
+
 // Page is what the layout needs on every page.
 type Page struct {
 	Title   string    // the page's own title, before the app name
@@ -33,4 +35,14 @@ type AssetURLs struct {
 	CSS  string
 	JS   string
 	HTMX string
+}
+
+// atLeast writes a count that may have stopped counting (a list counts up to
+// a cap rather than every row of a large study): "more than N" then.
+func atLeast(n int64, stopped bool) string {
+	s := strconv.FormatInt(n, 10)
+	if stopped {
+		return "more than " + s
+	}
+	return s
 }

@@ -102,7 +102,7 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 		return err
 	}
 	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
-		CanEnrol: coordWork.allows(role(r)), Total: page.Total, Active: page.Active, Withdrawn: page.Withdrawn}
+		CanEnrol: coordWork.allows(role(r)), Total: page.Total, AtLeast: page.AtLeast, Active: page.Active, Withdrawn: page.Withdrawn}
 	now := s.now()
 	fw := s.followUpWeeks(ctx)
 	ids := make([]int64, 0, len(page.Rows))

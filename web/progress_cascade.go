@@ -133,13 +133,13 @@ func flowView(c cascade.Cascade, cq cascadeQuery) views.FlowView {
 	f := views.FlowView{Protocol: c.Protocol.Label(), Period: cq.period()}
 	for i, b := range c.Boxes {
 		path := "/progress/cascade/" + b.Key
-		v := views.FlowBoxView{Key: b.Key, Label: b.Label, Definition: b.Definition, Count: b.Count(), Cases: len(b.Cases),
+		v := views.FlowBoxView{Key: b.Key, Label: b.Label, Definition: b.Definition, Count: b.Count(), Cases: b.CaseN,
 			ShowCases: i >= 2, Href: cq.href(path)}
 		if i > 0 && c.Boxes[i-1].Count() > 0 {
 			v.Share = pct(float64(b.Count()) / float64(c.Boxes[i-1].Count()))
 		}
 		for _, e := range b.Exits {
-			ev := views.FlowExitView{Key: string(e.Reason), Label: e.Reason.Label(), Count: len(e.Participants),
+			ev := views.FlowExitView{Key: string(e.Reason), Label: e.Reason.Label(), Count: e.N,
 				InProgress: e.Reason.InProgress(), Href: cq.href(path, "exit", string(e.Reason))}
 			if ev.InProgress {
 				v.Waiting, v.WaitingN = append(v.Waiting, ev), v.WaitingN+ev.Count
@@ -211,10 +211,16 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	if exit != "" && !exit.Known() {
 		return &cohort.ValidationError{Fields: map[string]string{"exit": "choose a reason shown on the cascade"}}
 	}
-	page := 1
-	if v := q.Get("page"); v != "" {
-		if page, err = strconv.Atoi(v); err != nil || page < 1 {
-			return &cohort.ValidationError{Fields: map[string]string{"page": "a page number from 1"}}
+	// Pages follow each other by key: after is the last participant id of
+	// the previous page and shown how many rows came before, for numbering.
+	var after int64
+	shown := 0
+	if v := q.Get("after"); v != "" {
+		if after, err = strconv.ParseInt(v, 10, 64); err != nil || after < 1 {
+			return &cohort.ValidationError{Fields: map[string]string{"after": "a participant id from the previous page"}}
+		}
+		if shown, err = strconv.Atoi(q.Get("shown")); err != nil || shown < 0 {
+			shown = 0
 		}
 	}
 	c, err := s.store.Cascade(ctx, cq.filter)
@@ -232,31 +238,24 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	}
 	box := c.Boxes[at]
 	flow := flowView(c, cq)
-	exitOf := map[int64]cascade.ExitReason{}
-	for _, e := range box.Exits {
-		for _, id := range e.Participants {
-			exitOf[id] = e.Reason
-		}
-	}
-	ids := box.Participants
-	label := ""
+	listed, label := box.Count(), ""
 	if exit != "" {
-		ids, label = nil, exit.Label()
+		listed, label = 0, exit.Label()
 		for _, e := range box.Exits {
 			if e.Reason == exit {
-				ids = e.Participants
+				listed = e.N
 			}
 		}
 	}
-	start := (page - 1) * cascadePageSize
-	if start > 0 && start >= len(ids) {
-		return errNotFound
-	}
-	end := min(len(ids), start+cascadePageSize)
-	members, err := s.store.CascadeMembers(ctx, c.Protocol.ID, ids[start:end])
+	page, err := s.store.CascadeMembersAfter(ctx, c.Filter, at, exit, after, cascadePageSize)
 	if err != nil {
 		return err
 	}
+	if after > 0 && len(page.Members) == 0 {
+		return errNotFound
+	}
+	members := page.Members
+	start, end := shown, shown+len(members)
 	deid := !role(r).SeesPHI()
 	openCases := caseWork.allows(role(r))
 	loc := time.UTC
@@ -273,25 +272,25 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	}
 	path := "/progress/cascade/" + box.Key
 	m := views.CascadeBoxModel{Page: s.page(r, "Cascade: "+box.Label, "progress"), Protocol: c.Protocol.Label(), Period: cq.period(),
-		Box: flow.Boxes[at], Exit: label, Listed: len(ids), DeIdentified: deid, From: start + 1, Upto: end,
+		Box: flow.Boxes[at], Exit: label, Listed: listed, DeIdentified: deid, From: start + 1, Upto: end,
 		Back: cq.href("/progress") + "#cascade", BoxHref: cq.href(path)}
 	extra := []string{}
 	if exit != "" {
 		extra = []string{"exit", string(exit)}
 	}
-	if page > 1 {
-		m.Prev = cq.href(path, append(extra, "page", strconv.Itoa(page-1))...)
+	if after > 0 {
+		m.Prev = cq.href(path, extra...) // back to the first page
 	}
-	if end < len(ids) {
-		m.Next = cq.href(path, append(extra, "page", strconv.Itoa(page+1))...)
+	if page.Next != 0 {
+		m.Next = cq.href(path, append(extra, "after", strconv.FormatInt(page.Next, 10), "shown", strconv.Itoa(end))...)
 	}
 	for _, p := range members {
 		row := views.CascadeMemberRow{Href: fmt.Sprintf("/participants/%d", p.ID), StudyID: p.StudyID, Site: p.SiteCode, Withdrawn: p.Withdrawn, Step: next}
 		if !deid {
 			row.Enrolled = p.EnrolledOn.String()
 		}
-		if e, ok := exitOf[p.ID]; ok {
-			row.Step, row.InProgress = e.Label(), e.InProgress()
+		if p.Standing.Box == at && p.Standing.Exit != "" {
+			row.Step, row.InProgress = p.Standing.Exit.Label(), p.Standing.Exit.InProgress()
 		}
 		for _, k := range p.Cases {
 			cv := views.MemberCaseView{State: k.State.Label(), Weeks: weeksText(k.FirstWeek, k.LastWeek)}

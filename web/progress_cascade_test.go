@@ -431,11 +431,11 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 		want int
 	}{
 		{"/progress/cascade/nonsense", http.StatusNotFound},
-		{"/progress/cascade/enrolled?page=9", http.StatusNotFound},
+		{"/progress/cascade/enrolled?after=999999&shown=200", http.StatusNotFound},
 		{"/progress/cascade/enrolled?protocol=999", http.StatusNotFound},
 		{"/progress/cascade/enrolled?exit=bogus", http.StatusUnprocessableEntity},
-		{"/progress/cascade/enrolled?page=0", http.StatusUnprocessableEntity},
-		{"/progress/cascade/enrolled?page=x", http.StatusUnprocessableEntity},
+		{"/progress/cascade/enrolled?after=0", http.StatusUnprocessableEntity},
+		{"/progress/cascade/enrolled?after=x", http.StatusUnprocessableEntity},
 		{"/progress?from=2026-13-01", http.StatusUnprocessableEntity},
 		{"/progress?site=999", http.StatusUnprocessableEntity},
 		{"/progress?site=AA", http.StatusUnprocessableEntity},

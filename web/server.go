@@ -116,7 +116,9 @@ func (s *Server) Handler() http.Handler {
 // page builds the layout model every page shares.
 func (s *Server) page(r *http.Request, title, area string) views.Page {
 	p := views.Page{Title: title, Area: area, Assets: s.assets}
-	if name, err := s.store.StudyName(r.Context()); err == nil {
+	if name, ok := r.Context().Value(keyStudy).(string); ok {
+		p.Study = name
+	} else if name, err := s.store.StudyName(r.Context()); err == nil {
 		p.Study = name
 	}
 	if u, ok := userFrom(r.Context()); ok {
