@@ -83,7 +83,6 @@ func (s *Store) caseCount(ctx context.Context, f CaseFilter, where string, args 
 	return n, false, err
 }
 
-
 // caseOrder is the list's sort key; an expression index serves it.
 const caseOrder = `coalesce(c.due_at, 'infinity'::timestamptz)`
 

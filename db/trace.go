@@ -82,4 +82,6 @@ func (t tracer) TraceCopyFromStart(ctx context.Context, _ *pgx.Conn, _ pgx.Trace
 	return t.start(ctx)
 }
 
-func (t tracer) TraceCopyFromEnd(ctx context.Context, _ *pgx.Conn, _ pgx.TraceCopyFromEndData) { t.end(ctx) }
+func (t tracer) TraceCopyFromEnd(ctx context.Context, _ *pgx.Conn, _ pgx.TraceCopyFromEndData) {
+	t.end(ctx)
+}

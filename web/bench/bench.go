@@ -83,17 +83,17 @@ func (o *Options) defaults() {
 
 // Report is everything a run measured; it is written as JSON.
 type Report struct {
-	StartedAt time.Time     `json:"started_at"`
-	Machine   Machine       `json:"machine"`
-	Scale     Scale         `json:"scale"`
-	Build     float64       `json:"build_seconds"` // the synthetic cohort, without wear data
-	Import    *ImportResult `json:"import,omitempty"`
-	Screen    *ScreenResult `json:"screen,omitempty"`
+	StartedAt time.Time      `json:"started_at"`
+	Machine   Machine        `json:"machine"`
+	Scale     Scale          `json:"scale"`
+	Build     float64        `json:"build_seconds"` // the synthetic cohort, without wear data
+	Import    *ImportResult  `json:"import,omitempty"`
+	Screen    *ScreenResult  `json:"screen,omitempty"`
 	Pages     []*PagesResult `json:"pages,omitempty"` // one per number of clients
 	// Figures is how long computing every participant's kept figures from
 	// scratch took after the study was built (db.Store.RebuildFigures).
 	Figures float64 `json:"figures_seconds"`
-	Seconds   float64       `json:"seconds"` // the whole run
+	Seconds float64 `json:"seconds"` // the whole run
 }
 
 // Machine describes where the run happened.
