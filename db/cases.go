@@ -127,10 +127,17 @@ type Attempt struct {
 func caseAttempts(ctx context.Context, q interface {
 	Query(context.Context, string, ...any) (pgx.Rows, error)
 }, caseID int64) ([]Attempt, error) {
-	rows, err := q.Query(ctx, `SELECT id, at, channel, outcome, note, moved_to, actor FROM contact_attempts WHERE case_id = $1 ORDER BY at, id`, caseID)
+	rows, err := q.Query(ctx, attemptsSQL, caseID)
 	if err != nil {
 		return nil, err
 	}
+	return scanAttempts(rows)
+}
+
+// attemptsSQL reads a case's contact attempts ($1), oldest first.
+const attemptsSQL = `SELECT id, at, channel, outcome, note, moved_to, actor FROM contact_attempts WHERE case_id = $1 ORDER BY at, id`
+
+func scanAttempts(rows pgx.Rows) ([]Attempt, error) {
 	return pgx.CollectRows(rows, func(r pgx.CollectableRow) (Attempt, error) {
 		var a Attempt
 		var ch, out, moved string

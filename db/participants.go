@@ -3,6 +3,7 @@ package db
 import (
 	"context"
 	"fmt"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -25,16 +26,19 @@ type Site struct {
 
 // Sites lists the sites by code.
 func (s *Store) Sites(ctx context.Context) ([]Site, error) {
-	rows, err := s.pool.Query(ctx, `SELECT id, code, name, time_zone, target, opened_on FROM sites ORDER BY code`)
-	if err != nil {
-		return nil, mapErr("sites", err)
-	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Site, error) {
-		var st Site
-		err := r.Scan(&st.ID, &st.Code, &st.Name, &st.TimeZone, &st.Target, &st.OpenedOn)
-		return st, err
+	out, err := remember(ctx, "sites", func() ([]Site, error) {
+		rows, err := s.reader(ctx).Query(ctx, `SELECT id, code, name, time_zone, target, opened_on FROM sites ORDER BY code`)
+		if err != nil {
+			return nil, mapErr("sites", err)
+		}
+		out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Site, error) {
+			var st Site
+			err := r.Scan(&st.ID, &st.Code, &st.Name, &st.TimeZone, &st.Target, &st.OpenedOn)
+			return st, err
+		})
+		return out, mapErr("sites", err)
 	})
-	return out, mapErr("sites", err)
+	return slices.Clone(out), err
 }
 
 // CreateSite adds a site and audits it.
@@ -171,21 +175,26 @@ func (s *Store) Identity(ctx context.Context, a cohort.Actor, participantID int6
 		return Identity{}, fmt.Errorf("db: identity: role %s: %w", a.Role, cohort.ErrForbidden)
 	}
 	var id Identity
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		var birth *time.Time
-		err := tx.QueryRow(ctx, `SELECT given_name, family_name, birth_date, phone, email, street, city, zip, device_serial
-			FROM participant_identity WHERE participant_id = $1`, participantID).
-			Scan(&id.GivenName, &id.FamilyName, &birth, &id.Phone, &id.Email, &id.Street, &id.City, &id.ZIP, &id.DeviceSerial)
-		if err != nil && err != pgx.ErrNoRows {
-			return err
-		}
-		if birth != nil {
-			d := cohort.DateOf(*birth)
-			id.BirthDate = &d
-		}
-		return audit(ctx, tx, a, "participant.view_phi", "participant", strconv.FormatInt(participantID, 10), nil, map[string]string{"purpose": purpose})
-	})
-	return id, mapErr("identity", err)
+	args, err := auditArgs(ctx, a, "participant.view_phi", "participant", strconv.FormatInt(participantID, 10), nil, map[string]string{"purpose": purpose})
+	if err != nil {
+		return id, err
+	}
+	// The read and its audit event in one statement: both happen or neither.
+	var birth *time.Time
+	var found bool
+	err = s.pool.QueryRow(ctx, `WITH ev AS (`+auditInsert+` RETURNING 1)
+		SELECT pi.participant_id IS NOT NULL, coalesce(pi.given_name, ''), coalesce(pi.family_name, ''), pi.birth_date, coalesce(pi.phone, ''),
+		       coalesce(pi.email, ''), coalesce(pi.street, ''), coalesce(pi.city, ''), coalesce(pi.zip, ''), coalesce(pi.device_serial, '')
+		FROM ev LEFT JOIN participant_identity pi ON pi.participant_id = $11`, append(args, participantID)...).
+		Scan(&found, &id.GivenName, &id.FamilyName, &birth, &id.Phone, &id.Email, &id.Street, &id.City, &id.ZIP, &id.DeviceSerial)
+	if err != nil {
+		return Identity{}, mapErr("identity", err)
+	}
+	if birth != nil {
+		d := cohort.DateOf(*birth)
+		id.BirthDate = &d
+	}
+	return id, nil
 }
 
 // ParticipantInput is the enrol and edit form, read.

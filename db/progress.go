@@ -319,9 +319,11 @@ func (s *Store) SilentParticipants(ctx context.Context, days int, after string, 
 	var page SilentPage
 	b := &pgx.Batch{}
 	b.Queue(fmt.Sprintf(`SELECT count(*) FROM (`+silent+`) x`, ""), cutoff, now.UTC().Format("2006-01-02"), int64(-1), "")
-	b.Queue(fmt.Sprintf(`SELECT x.participant_id, x.study_id, st.code, x.last_ms, x.enrolled_on FROM (`+silent+`) x
+	// The page's rows are chosen first, then joined to their sites.
+	b.Queue(fmt.Sprintf(`SELECT x.participant_id, x.study_id, st.code, x.last_ms, x.enrolled_on
+		FROM (SELECT * FROM (`+silent+`) y ORDER BY coalesce(y.last_ms, 0), y.study_id LIMIT $5) x
 		JOIN participants p ON p.id = x.participant_id JOIN sites st ON st.id = p.site_id
-		ORDER BY coalesce(x.last_ms, 0), x.study_id LIMIT $5`, "LIMIT $5"), cutoff, now.UTC().Format("2006-01-02"), afterMS, afterSID, limit+1)
+		ORDER BY coalesce(x.last_ms, 0), x.study_id`, "LIMIT $5"), cutoff, now.UTC().Format("2006-01-02"), afterMS, afterSID, limit+1)
 	err := s.readBatch(ctx, b, func(br pgx.BatchResults) error {
 		if err := br.QueryRow().Scan(&page.Total); err != nil {
 			return err

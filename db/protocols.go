@@ -150,8 +150,10 @@ func (s *Store) Protocol(ctx context.Context, id int) (ProtocolVersion, error) {
 // ActiveProtocol returns the active version; ErrNotFound when none is active
 // (EnsureDefaultProtocol has not run).
 func (s *Store) ActiveProtocol(ctx context.Context) (ProtocolVersion, error) {
-	p, err := scanProtocol(s.pool.QueryRow(ctx, `SELECT `+protocolCols+` FROM protocols WHERE active`))
-	return p, mapErr("active protocol", err)
+	return remember(ctx, "active protocol", func() (ProtocolVersion, error) {
+		p, err := scanProtocol(s.reader(ctx).QueryRow(ctx, `SELECT `+protocolCols+` FROM protocols WHERE active`))
+		return p, mapErr("active protocol", err)
+	})
 }
 
 // NewProtocolVersion is a request for a new version derived from an old one.

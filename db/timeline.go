@@ -37,14 +37,23 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 	if p.WithdrawnOn != nil {
 		maxWeek = cohort.StudyWeek(p.EnrolledOn, loc, p.WithdrawnOn.In(loc))
 	}
-	var fw int16
-	if err := s.pool.QueryRow(ctx, `SELECT coalesce((SELECT follow_up_weeks FROM study WHERE id = 1), 0)`).Scan(&fw); err != nil {
-		return nil, mapErr("timeline", err)
+	st, err := s.StudySettings(ctx)
+	if err != nil {
+		return nil, err
 	}
-	if fw > 0 && maxWeek > int(fw)-1 {
-		maxWeek = int(fw) - 1 // weeks after the participant's follow-up are not due
+	if fw := st.FollowUpWeeks; fw > 0 && maxWeek > fw-1 {
+		maxWeek = fw - 1 // weeks after the participant's follow-up are not due
 	}
-	rows, err := s.pool.Query(ctx, `
+	type caseSpan struct {
+		id     int64
+		state  string
+		fw, lw int16
+	}
+	var spans []caseSpan
+	var taken []time.Time
+	// One round trip: the weeks, the cases and the recordings.
+	b := &pgx.Batch{}
+	b.Queue(`
 		WITH w AS (
 		  SELECT week, sum(n) AS n, sum(n) FILTER (WHERE kind = 1) AS hr, sum(n) FILTER (WHERE kind = 3) AS rr
 		  FROM wear_weeks WHERE participant_id = $1 GROUP BY week
@@ -56,25 +65,39 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 		SELECT coalesce(w.week, r.week), coalesce(w.n, 0), coalesce(w.hr, 0), coalesce(w.rr, 0),
 		       coalesce(r.wear_hours, 0), coalesce(r.verdict, ''), coalesce(r.reason, '')
 		FROM w FULL JOIN r ON r.week = w.week
-		ORDER BY 1`, p.ID)
-	if err != nil {
-		return nil, mapErr("timeline", err)
-	}
-	for rows.Next() {
-		var l WeekLine
-		var week int16
-		var hours float32
-		if err := rows.Scan(&week, &l.Readings, &l.HRCount, &l.RRCount, &hours, &l.Verdict, &l.Reason); err != nil {
-			rows.Close()
-			return nil, mapErr("timeline", err)
+		ORDER BY 1`, p.ID).Query(func(rows pgx.Rows) error {
+		for rows.Next() {
+			var l WeekLine
+			var week int16
+			var hours float32
+			if err := rows.Scan(&week, &l.Readings, &l.HRCount, &l.RRCount, &hours, &l.Verdict, &l.Reason); err != nil {
+				return err
+			}
+			l.Week, l.WearHours = int(week), float64(hours)
+			byWeek[l.Week] = &l
+			if l.Week > maxWeek {
+				maxWeek = l.Week
+			}
 		}
-		l.Week, l.WearHours = int(week), float64(hours)
-		byWeek[l.Week] = &l
-		if l.Week > maxWeek {
-			maxWeek = l.Week
+		return rows.Err()
+	})
+	// Cases and recordings mark the weeks they cover.
+	b.Queue(`SELECT id, state, first_week, last_week FROM cases WHERE participant_id = $1 ORDER BY id`, p.ID).Query(func(rows pgx.Rows) error {
+		for rows.Next() {
+			var c caseSpan
+			if err := rows.Scan(&c.id, &c.state, &c.fw, &c.lw); err != nil {
+				return err
+			}
+			spans = append(spans, c)
 		}
-	}
-	if err := rows.Err(); err != nil {
+		return rows.Err()
+	})
+	b.Queue(`SELECT taken_at FROM recordings WHERE participant_id = $1`, p.ID).Query(func(rows pgx.Rows) error {
+		var err error
+		taken, err = pgx.CollectRows(rows, pgx.RowTo[time.Time])
+		return err
+	})
+	if err := s.readBatch(ctx, b, func(pgx.BatchResults) error { return nil }); err != nil {
 		return nil, mapErr("timeline", err)
 	}
 	out := make([]WeekLine, 0, maxWeek+1)
@@ -85,43 +108,19 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 			out = append(out, WeekLine{Week: w})
 		}
 	}
-	// Cases and recordings mark the weeks they cover.
-	crow, err := s.pool.Query(ctx, `SELECT id, state, first_week, last_week FROM cases WHERE participant_id = $1 ORDER BY id`, p.ID)
-	if err != nil {
-		return nil, mapErr("timeline cases", err)
-	}
-	for crow.Next() {
-		var id int64
-		var state string
-		var fw, lw int16
-		if err := crow.Scan(&id, &state, &fw, &lw); err != nil {
-			crow.Close()
-			return nil, mapErr("timeline cases", err)
-		}
-		for w := int(fw); w <= int(lw) && w < len(out); w++ {
+	for _, c := range spans {
+		for w := int(c.fw); w <= int(c.lw) && w < len(out); w++ {
 			if w >= 0 {
-				out[w].CaseID, out[w].CaseState = id, followup.State(state)
+				out[w].CaseID, out[w].CaseState = c.id, followup.State(c.state)
 			}
 		}
 	}
-	if err := crow.Err(); err != nil {
-		return nil, mapErr("timeline cases", err)
-	}
-	rrow, err := s.pool.Query(ctx, `SELECT taken_at FROM recordings WHERE participant_id = $1`, p.ID)
-	if err != nil {
-		return nil, mapErr("timeline recordings", err)
-	}
-	for rrow.Next() {
-		var at time.Time
-		if err := rrow.Scan(&at); err != nil {
-			rrow.Close()
-			return nil, mapErr("timeline recordings", err)
-		}
+	for _, at := range taken {
 		if w := cohort.StudyWeek(p.EnrolledOn, loc, at); w >= 0 && w < len(out) {
 			out[w].ECG++
 		}
 	}
-	return out, mapErr("timeline recordings", rrow.Err())
+	return out, nil
 }
 
 // Note is a free-text note on a participant. Notes never leave the system.

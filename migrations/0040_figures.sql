@@ -20,7 +20,8 @@
 --    lasts.
 --
 -- 2. Sums (small tables whose size depends on the study's sites, days and
---    categories, not on its participants): ledgers of signed counts. A
+--    categories, not on its participants): ledgers of signed counts (n is
+--    an integer, so a sum is a bigint). A
 --    trigger adds a row +n for rows inserted and -n for rows deleted, so no
 --    transaction ever updates a shared row (no waits, no deadlocks on hot
 --    counters); readers add up the rows of a key, and a background pass
@@ -113,14 +114,14 @@ CREATE TABLE figure_people (
 
 -- The ledgers. Their keys are sites, days and categories; n is signed.
 CREATE TABLE figure_unread_counts (
-    n bigint NOT NULL
+    n integer NOT NULL
 );
 
 CREATE TABLE enrolment_counts (
     site_id      integer NOT NULL,
     enrolled_on  date NOT NULL,
     withdrawn_on date,
-    n            bigint NOT NULL
+    n            integer NOT NULL
 );
 CREATE INDEX enrolment_counts_idx ON enrolment_counts (enrolled_on, site_id);
 
@@ -131,7 +132,7 @@ CREATE TABLE figure_box_counts (
     withdrawn   boolean NOT NULL,
     box         smallint NOT NULL,
     exit        text NOT NULL,
-    n           bigint NOT NULL
+    n           integer NOT NULL
 );
 CREATE INDEX figure_box_counts_idx ON figure_box_counts (protocol_id, enrolled_on);
 
@@ -140,7 +141,7 @@ CREATE TABLE figure_week_counts (
     enrolled_on  date NOT NULL,
     withdrawn_on date,
     week         smallint NOT NULL,
-    n            bigint NOT NULL
+    n            integer NOT NULL
 );
 CREATE INDEX figure_week_counts_idx ON figure_week_counts (protocol_id);
 
@@ -152,7 +153,7 @@ CREATE TABLE figure_stage_counts (
     stage           smallint NOT NULL,
     settled         boolean NOT NULL,
     uninterpretable boolean NOT NULL,
-    n               bigint NOT NULL
+    n               integer NOT NULL
 );
 
 CREATE TABLE figure_time_counts (
@@ -164,7 +165,7 @@ CREATE TABLE figure_time_counts (
     closed      boolean NOT NULL,
     days        integer NOT NULL,
     flag_day    date,          -- open episodes only
-    n           bigint NOT NULL
+    n           integer NOT NULL
 );
 
 CREATE TABLE figure_kappa_counts (
@@ -172,7 +173,7 @@ CREATE TABLE figure_kappa_counts (
     site_id     integer NOT NULL,
     auto        text NOT NULL,
     rhythm      text NOT NULL,
-    n           bigint NOT NULL
+    n           integer NOT NULL
 );
 
 -- Cases by state, whether someone has taken them on, and the hour (UTC) of
@@ -181,7 +182,7 @@ CREATE TABLE case_counts (
     state    text NOT NULL,
     owned    boolean NOT NULL,
     due_hour timestamp,
-    n        bigint NOT NULL
+    n        integer NOT NULL
 );
 CREATE INDEX case_counts_idx ON case_counts (state, due_hour);
 

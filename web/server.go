@@ -102,6 +102,7 @@ func New(cfg Config) *Server {
 // Handler is the whole application with its middleware.
 func (s *Server) Handler() http.Handler {
 	var h http.Handler = s.router
+	h = withReads(h)
 	h = s.withSessions(h)
 	// Refuses state-changing requests that browsers mark as cross-origin
 	// (Sec-Fetch-Site, or an Origin that is not this host).

@@ -42,6 +42,7 @@ func runBench(ctx context.Context, e env, args []string) error {
 	out := fs.String("out", "", "also write the report as JSON to this file")
 	dataDir := fs.String("data", "", "folder for the private PostgreSQL cluster (default: a new temporary folder, removed afterwards)")
 	dbURL := fs.String("database-url", e.getenv("DATABASE_URL"), "run on this empty database instead of a private cluster (env DATABASE_URL)")
+	cpuProfile := fs.String("cpuprofile", "", "write a CPU profile of the page loads (load generator and server together) to this file")
 	if err := fs.Parse(args); err != nil {
 		return err
 	}
@@ -87,6 +88,7 @@ func runBench(ctx context.Context, e env, args []string) error {
 	}
 	o.Seed = *seed
 	o.Progress = e.stderr
+	o.CPUProfile = *cpuProfile
 
 	url := *dbURL
 	if url == "" {

@@ -18,6 +18,7 @@ import (
 	"io"
 	"os"
 	"runtime"
+	"runtime/pprof"
 	"time"
 
 	"cohortdesk/cohort"
@@ -45,7 +46,8 @@ type Options struct {
 	Dir  string    // folder for the generated readings file (default the system's temporary folder)
 	Now  time.Time // the study's now (default the real time)
 
-	Progress io.Writer // a line per step while running; nil: silent
+	Progress   io.Writer // a line per step while running; nil: silent
+	CPUProfile string    // write a CPU profile of the page loads to this file; "": none
 }
 
 func (o *Options) defaults() {
@@ -212,6 +214,17 @@ func Run(ctx context.Context, url string, o Options) (Report, error) {
 	if _, err := pool.Exec(ctx, `VACUUM ANALYZE figure_standings, figure_episodes, figure_recordings, figure_people, figure_box_counts,
 		figure_week_counts, figure_stage_counts, figure_time_counts, figure_kappa_counts, figure_unread_counts, figures_dirty`); err != nil {
 		return rep, err
+	}
+	if o.Pages && o.CPUProfile != "" {
+		f, err := os.Create(o.CPUProfile)
+		if err != nil {
+			return rep, fmt.Errorf("bench: %w", err)
+		}
+		defer f.Close()
+		if err := pprof.StartCPUProfile(f); err != nil {
+			return rep, fmt.Errorf("bench: %w", err)
+		}
+		defer pprof.StopCPUProfile()
 	}
 	if o.Pages {
 		for _, n := range o.Clients {
