@@ -156,7 +156,7 @@ func (s *Store) AuditEvents(ctx context.Context, f AuditFilter) ([]AuditEvent, e
 	}
 	where, args := f.where()
 	args = append(args, f.Limit)
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id,
 		       old_value, new_value, client_addr, request_id
 		FROM audit_events `+where+fmt.Sprintf(` ORDER BY id DESC LIMIT $%d`, len(args)), args...)
@@ -170,7 +170,7 @@ func (s *Store) AuditEvents(ctx context.Context, f AuditFilter) ([]AuditEvent, e
 // for CSV downloads of any size.
 func (s *Store) EachAuditEvent(ctx context.Context, f AuditFilter, fn func(AuditEvent) error) error {
 	where, args := f.where()
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id,
 		       old_value, new_value, client_addr, request_id
 		FROM audit_events `+where+` ORDER BY id`, args...)

@@ -104,7 +104,7 @@ func scanCase(row pgx.Row, extra ...any) (Case, error) {
 
 // Case returns one case.
 func (s *Store) Case(ctx context.Context, id int64) (Case, error) {
-	c, err := scanCase(s.pool.QueryRow(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE c.id = $1`, id))
+	c, err := scanCase(s.reader(ctx).QueryRow(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE c.id = $1`, id))
 	return c, mapErr("case", err)
 }
 

@@ -54,6 +54,6 @@ func (s *Store) Counts(ctx context.Context) (Counts, error) {
 // StudyName returns the study's name, or "" before the study is set up.
 func (s *Store) StudyName(ctx context.Context) (string, error) {
 	var name string
-	err := s.pool.QueryRow(ctx, `SELECT coalesce((SELECT name FROM study WHERE id = 1), '')`).Scan(&name)
+	err := s.reader(ctx).QueryRow(ctx, `SELECT coalesce((SELECT name FROM study WHERE id = 1), '')`).Scan(&name)
 	return name, mapErr("study name", err)
 }

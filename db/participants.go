@@ -155,14 +155,14 @@ func scanParticipant(row pgx.Row, extra ...any) (Participant, error) {
 
 // Participant returns one participant without PHI.
 func (s *Store) Participant(ctx context.Context, id int64) (Participant, error) {
-	row := s.pool.QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = $1`, id)
+	row := s.reader(ctx).QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = $1`, id)
 	p, err := scanParticipant(row)
 	return p, mapErr("participant", err)
 }
 
 // ParticipantByStudyID returns one participant without PHI.
 func (s *Store) ParticipantByStudyID(ctx context.Context, studyID string) (Participant, error) {
-	row := s.pool.QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.study_id = $1`, strings.TrimSpace(studyID))
+	row := s.reader(ctx).QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.study_id = $1`, strings.TrimSpace(studyID))
 	p, err := scanParticipant(row)
 	return p, mapErr("participant", err)
 }

@@ -316,7 +316,7 @@ func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 // Referral returns one issued summary with its content.
 func (s *Store) Referral(ctx context.Context, id int64) (Referral, error) {
 	var content []byte
-	r, err := scanReferral(s.pool.QueryRow(ctx, `SELECT `+referralCols+`, f.content
+	r, err := scanReferral(s.reader(ctx).QueryRow(ctx, `SELECT `+referralCols+`, f.content
 		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content)
 	r.Content = content
 	return r, mapErr("referral", err)
@@ -327,7 +327,7 @@ func (s *Store) Referrals(ctx context.Context, limit int) ([]Referral, error) {
 	if limit <= 0 || limit > 1000 {
 		limit = 100
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+referralCols+`
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+referralCols+`
 		FROM referrals f JOIN participants p ON p.id = f.participant_id ORDER BY f.issued_at DESC, f.id DESC LIMIT $1`, limit)
 	if err != nil {
 		return nil, mapErr("referrals", err)
@@ -350,7 +350,7 @@ type ReadyCase struct {
 // whose effective over-read is atrial fibrillation: their summaries are due.
 // A case is referred when an investigator signs its summary off.
 func (s *Store) ReadyToRefer(ctx context.Context) ([]ReadyCase, error) {
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT c.id, c.participant_id, p.study_id, c.state, c.first_week, c.last_week
 		FROM cases c JOIN participants p ON p.id = c.participant_id
 		WHERE c.closed_at IS NULL AND EXISTS (

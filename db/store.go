@@ -22,8 +22,9 @@ import (
 
 // Store is the application's access to PostgreSQL.
 type Store struct {
-	pool *pgxpool.Pool
-	now  func() time.Time
+	pool    *pgxpool.Pool
+	standby *Standby // nil: every read goes to the primary
+	now     func() time.Time
 }
 
 // New wraps a pool. now is the clock; nil means time.Now.

@@ -133,7 +133,7 @@ type Note struct {
 
 // Notes lists a participant's notes, newest first.
 func (s *Store) Notes(ctx context.Context, participantID int64) ([]Note, error) {
-	rows, err := s.pool.Query(ctx, `SELECT id, body, actor, created_at FROM participant_notes WHERE participant_id = $1 ORDER BY created_at DESC, id DESC`, participantID)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT id, body, actor, created_at FROM participant_notes WHERE participant_id = $1 ORDER BY created_at DESC, id DESC`, participantID)
 	if err != nil {
 		return nil, mapErr("notes", err)
 	}

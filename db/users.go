@@ -107,7 +107,7 @@ func (s *Store) UserForSignIn(ctx context.Context, email string) (User, error) {
 
 // Users lists all accounts, active first.
 func (s *Store) Users(ctx context.Context) ([]User, error) {
-	rows, err := s.pool.Query(ctx, `SELECT `+userCols+` FROM users ORDER BY active DESC, display_name, id`)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+userCols+` FROM users ORDER BY active DESC, display_name, id`)
 	if err != nil {
 		return nil, mapErr("users", err)
 	}

@@ -295,7 +295,7 @@ type ExternalVerdict struct {
 
 // ExternalVerdicts lists a participant's external verdicts by week and model.
 func (s *Store) ExternalVerdicts(ctx context.Context, participantID int64) ([]ExternalVerdict, error) {
-	rows, err := s.pool.Query(ctx, `SELECT week, model_name, model_version, score, verdict, coalesce(import_id, 0)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT week, model_name, model_version, score, verdict, coalesce(import_id, 0)
 		FROM external_verdicts WHERE participant_id = $1 ORDER BY week, model_name, model_version`, participantID)
 	if err != nil {
 		return nil, mapErr("external verdicts", err)
@@ -330,7 +330,7 @@ func (s *Store) VerdictImports(ctx context.Context, limit int) ([]ImportRecord, 
 	if limit <= 0 || limit > 500 {
 		limit = 20
 	}
-	rows, err := s.pool.Query(ctx, `SELECT id, kind, file_name, status, actor, started_at, rows_total, accepted, rejected, duplicates, message
+	rows, err := s.reader(ctx).Query(ctx, `SELECT id, kind, file_name, status, actor, started_at, rows_total, accepted, rejected, duplicates, message
 		FROM imports WHERE kind = 'verdicts_csv' ORDER BY id DESC LIMIT $1`, limit)
 	if err != nil {
 		return nil, mapErr("verdict imports", err)

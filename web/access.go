@@ -9,6 +9,9 @@ import (
 type access struct {
 	public bool
 	roles  []cohort.Role
+	// scrape: no person, only the client addresses allowed to read the
+	// metrics (Config.MetricsAllow); everyone else is refused.
+	scrape bool
 }
 
 func allow(roles ...cohort.Role) access { return access{roles: roles} }
@@ -40,4 +43,5 @@ var (
 	exportArea = allow(cohort.Coordinator, cohort.Investigator, cohort.Admin)                 // the exports page: summaries and dataset exports
 	adminOnly  = allow(cohort.Admin)
 	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold sweep: investigators weigh, admins set protocols
+	scrapers   = access{scrape: true}                     // the metrics: allowed monitoring addresses only, no role
 )

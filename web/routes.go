@@ -21,6 +21,7 @@ func (s *Server) routes() []route {
 	return []route{
 		{"GET", "/healthz", public, s.healthz},
 		{"GET", "/readyz", public, s.readyz},
+		{"GET", "/metrics", scrapers, s.metricsPage},
 		{"GET", "/signin", public, s.signInForm},
 		{"POST", "/signin", public, s.signIn},
 		{"POST", "/signout", public, s.signOut},
@@ -105,8 +106,13 @@ func (s *Server) routes() []route {
 func (s *Server) buildRouter() chi.Router {
 	s.routeTable = s.routes()
 	r := chi.NewRouter()
+	r.Use(s.metrics.route)
 	for _, rt := range s.routeTable {
-		r.Method(rt.method, rt.pattern, s.guard(rt.access, s.wrap(rt.h)))
+		h := rt.h
+		if rt.method == "GET" {
+			h = s.fromStandby(rt.pattern, h)
+		}
+		r.Method(rt.method, rt.pattern, s.guard(rt.access, s.wrap(h)))
 	}
 	r.Handle(assets.Prefix+"*", assets.Handler())
 	// Unknown addresses: visitors go to sign-in like everywhere else, staff get 404.

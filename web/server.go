@@ -38,6 +38,8 @@ type Store interface {
 	recordingStore
 	referralStore
 	exportStore
+	standbyStore
+	metricsStore
 }
 
 // Config is what the server is built from.
@@ -54,6 +56,11 @@ type Config struct {
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
 	Secret []byte
+	// MetricsAllow are the client addresses that may read /metrics on this
+	// listener; none by default (a separate listener serves MetricsHandler).
+	MetricsAllow []netip.Prefix
+	// StandbyPool is the standby's pool, for the metrics; nil without one.
+	StandbyPool *pgxpool.Pool
 }
 
 // Server holds the dependencies of the handlers.
@@ -73,12 +80,15 @@ type Server struct {
 	dummyOnce      sync.Once
 	dummy          string
 	secret         []byte
+	metrics        *metrics
+	metricsAllow   []netip.Prefix
 }
 
 // New builds the server and its routes.
 func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
-		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret}
+		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret, metricsAllow: cfg.MetricsAllow}
+	s.metrics = newMetrics(s, cfg.Pool, cfg.StandbyPool)
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}
@@ -102,7 +112,7 @@ func New(cfg Config) *Server {
 // Handler is the whole application with its middleware.
 func (s *Server) Handler() http.Handler {
 	var h http.Handler = s.router
-	h = withReads(h)
+	h = s.withReads(h)
 	h = s.withSessions(h)
 	// Refuses state-changing requests that browsers mark as cross-origin
 	// (Sec-Fetch-Site, or an Origin that is not this host).

@@ -108,6 +108,15 @@ func (s *Server) guard(a access, h http.Handler) http.Handler {
 	if a.public {
 		return h
 	}
+	if a.scrape {
+		return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+			if !s.mayScrape(r) {
+				s.serveError(w, r, cohort.ErrForbidden)
+				return
+			}
+			h.ServeHTTP(w, r)
+		})
+	}
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
 		u, study, ok := s.signedIn(r)
 		if !ok {
