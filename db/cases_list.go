@@ -225,38 +225,25 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 		       (SELECT coalesce(sum(n), 0) FROM figure_unread_counts)
 		FROM upto`, working, hour(overdue), overdue, hour(today), today, open, waiting)
 	// Each group's first rows, in followup.Urgency's order (ties by study
-	// ID, then case id as text).
-	const tie = `p.study_id COLLATE "C", c.id::text COLLATE "C"`
-	b.Queue(`SELECT c.id FROM cases c JOIN participants p ON p.id = c.participant_id
-		WHERE c.closed_at IS NULL AND c.due_at <= $1 ORDER BY c.due_at, `+tie+` LIMIT $2`, overdue, limit)
-	b.Queue(`SELECT c.id FROM cases c JOIN participants p ON p.id = c.participant_id
-		WHERE c.closed_at IS NULL AND c.due_at > $1 AND c.due_at <= $2 ORDER BY c.due_at, `+tie+` LIMIT $3`, overdue, today, limit)
-	// The group's first flag times come from the index; only the cases up to
-	// the last of them are joined and put in order.
-	b.Queue(`
-		WITH upto AS (SELECT c.flagged_at FROM cases c WHERE c.state = $1 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $2)
-		              ORDER BY c.flagged_at LIMIT 1 OFFSET coalesce($3::int, 1) - 1)
-		SELECT c.id FROM cases c JOIN participants p ON p.id = c.participant_id
-		WHERE c.state = $1 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $2)
-		  AND ($3::int IS NULL OR NOT EXISTS (SELECT 1 FROM upto) OR c.flagged_at <= (SELECT flagged_at FROM upto))
+	// ID, then case id as text), each from an index in that order
+	// (migration 0042: cases carry their participant's study ID).
+	const tie = `c.study_id COLLATE "C", (c.id::text) COLLATE "C"`
+	b.Queue(`SELECT c.id FROM cases c WHERE c.closed_at IS NULL AND c.due_at <= $1 ORDER BY c.due_at, `+tie+` LIMIT $2`, overdue, limit)
+	b.Queue(`SELECT c.id FROM cases c WHERE c.closed_at IS NULL AND c.due_at > $1 AND c.due_at <= $2 ORDER BY c.due_at, `+tie+` LIMIT $3`, overdue, today, limit)
+	b.Queue(`SELECT c.id FROM cases c WHERE c.state = $1 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $2)
 		ORDER BY c.flagged_at, `+tie+` LIMIT $3`, open, today, limit)
 	// A recording that came in without its return being recorded dates the
 	// wait by its own arrival (triageItem); such cases are few and read
 	// whole, the others in order from the index.
 	b.Queue(`SELECT id FROM (
-		  (WITH upto AS (SELECT c.recording_back_at FROM cases c
-		                 WHERE c.state = $1 AND c.recording_back_at IS NOT NULL AND (c.due_at IS NULL OR c.due_at > $2)
-		                 ORDER BY c.recording_back_at LIMIT 1 OFFSET coalesce($3::int, 1) - 1)
-		   SELECT c.id, c.recording_back_at AS at, p.study_id AS sid FROM cases c JOIN participants p ON p.id = c.participant_id
+		  (SELECT c.id, c.recording_back_at AS at, c.study_id AS sid FROM cases c
 		   WHERE c.state = $1 AND c.recording_back_at IS NOT NULL AND (c.due_at IS NULL OR c.due_at > $2)
-		     AND ($3::int IS NULL OR NOT EXISTS (SELECT 1 FROM upto) OR c.recording_back_at <= (SELECT recording_back_at FROM upto))
 		   ORDER BY c.recording_back_at, `+tie+` LIMIT $3)
 		  UNION ALL
 		  (SELECT c.id, (SELECT min(r.created_at) FROM recordings r WHERE r.case_id = c.id
-		                  AND NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)), p.study_id
-		   FROM cases c JOIN participants p ON p.id = c.participant_id
-		   WHERE c.state = $1 AND c.recording_back_at IS NULL AND (c.due_at IS NULL OR c.due_at > $2))) w
-		ORDER BY coalesce(at, '-infinity'), sid COLLATE "C", id::text COLLATE "C" LIMIT $3`, waiting, today, limit)
+		                  AND NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)), c.study_id
+		   FROM cases c WHERE c.state = $1 AND c.recording_back_at IS NULL AND (c.due_at IS NULL OR c.due_at > $2))) w
+		ORDER BY coalesce(at, '-infinity'), sid COLLATE "C", (id::text) COLLATE "C" LIMIT $3`, waiting, today, limit)
 	var groups [4][]int64
 	var all, n1, n2, n3, n4, unread int
 	err = s.readBatch(ctx, b, func(br pgx.BatchResults) error {

@@ -280,6 +280,8 @@ type SilentParticipant struct {
 type SilentPage struct {
 	Rows  []SilentParticipant
 	Total int
+	// AtLeast: the count stopped at SilentCountCap; there are more.
+	AtLeast bool
 	Next  string // the After of the next page; "" after the last
 }
 
@@ -318,7 +320,7 @@ func (s *Store) SilentParticipants(ctx context.Context, days int, after string, 
 		  ORDER BY coalesce(a.last_ms, 0), a.study_id %s) a`
 	var page SilentPage
 	b := &pgx.Batch{}
-	b.Queue(fmt.Sprintf(`SELECT count(*) FROM (`+silent+`) x`, ""), cutoff, now.UTC().Format("2006-01-02"), int64(-1), "")
+	b.Queue(fmt.Sprintf(`SELECT count(*) FROM (SELECT 1 FROM (`+silent+`) y LIMIT %d) x`, "", SilentCountCap+1), cutoff, now.UTC().Format("2006-01-02"), int64(-1), "")
 	// The page's rows are chosen first, then joined to their sites.
 	b.Queue(fmt.Sprintf(`SELECT x.participant_id, x.study_id, st.code, x.last_ms, x.enrolled_on
 		FROM (SELECT * FROM (`+silent+`) y ORDER BY coalesce(y.last_ms, 0), y.study_id LIMIT $5) x
@@ -361,8 +363,15 @@ func (s *Store) SilentParticipants(ctx context.Context, days int, after string, 
 		page.Rows = page.Rows[:limit]
 		page.Next = page.Rows[limit-1].key
 	}
+	if page.Total > SilentCountCap {
+		page.Total, page.AtLeast = SilentCountCap, true
+	}
 	return page, nil
 }
+
+// SilentCountCap bounds the count of silent participants the progress page
+// shows: beyond it the page says "more than", and the list pages on.
+const SilentCountCap = 1000
 
 // CascadeMember is a participant as a box of the cascade lists them: study
 // ID, site and their cases, nothing identifying.

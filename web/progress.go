@@ -267,7 +267,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.SufficiencyChart = sch
 
-	m.SilentDays, m.SilentTotal, m.Freshness = silentDays, silent.Total, freshness(pending, s.now())
+	m.SilentDays, m.SilentTotal, m.SilentAtLeast, m.Freshness = silentDays, silent.Total, silent.AtLeast, freshness(pending, s.now())
 	if silent.Next != "" {
 		q := r.URL.Query()
 		q.Set("silent_after", silent.Next)
