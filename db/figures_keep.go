@@ -335,7 +335,10 @@ func refreshFigures(ctx context.Context, tx pgx.Tx, ids []int64) error {
 }
 
 // refreshMarked computes the figures of the participants this transaction
-// marked: the last step of every transaction the store opens.
+// marked: the last step of every transaction the store opens. A change that
+// touches very many participants at once (the study's time zone moves every
+// flag day) leaves them to the background pass rather than hold its
+// transaction for minutes; pages say how many wait meanwhile.
 func refreshMarked(ctx context.Context, tx pgx.Tx) error {
 	rows, err := tx.Query(ctx, `DELETE FROM figures_dirty WHERE xid = pg_current_xact_id_if_assigned() RETURNING participant_id`)
 	if err != nil {
@@ -345,8 +348,17 @@ func refreshMarked(ctx context.Context, tx pgx.Tx) error {
 	if err != nil || len(ids) == 0 {
 		return err
 	}
-	return refreshFigures(ctx, tx, dedupe(ids))
+	ids = dedupe(ids)
+	if len(ids) > inlineRefreshMax {
+		_, err := tx.Exec(ctx, `INSERT INTO figures_dirty (participant_id) SELECT unnest($1::bigint[])`, ids)
+		return err
+	}
+	return refreshFigures(ctx, tx, ids)
 }
+
+// inlineRefreshMax is how many participants a transaction computes the
+// figures of itself; beyond it the background pass does.
+const inlineRefreshMax = 2000
 
 func dedupe(ids []int64) []int64 {
 	seen := make(map[int64]bool, len(ids))
