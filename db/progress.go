@@ -282,7 +282,7 @@ type SilentPage struct {
 	Total int
 	// AtLeast: the count stopped at SilentCountCap; there are more.
 	AtLeast bool
-	Next  string // the After of the next page; "" after the last
+	Next    string // the After of the next page; "" after the last
 }
 
 // SilentParticipants lists active participants still in follow-up with no
