@@ -320,6 +320,13 @@ func refreshFigures(ctx context.Context, tx pgx.Tx, ids []int64) error {
 		br.Close()
 		return err
 	}
+	return keep(ctx, tx, br, "%s = ANY($1)", ids)
+}
+
+// keep reads the participants' rows from br (keptQueries, queued last),
+// closes it, computes their figures and replaces their stored ones (those
+// matching del first, when del is not "").
+func keep(ctx context.Context, tx pgx.Tx, br pgx.BatchResults, del string, args ...any) error {
 	people, loc, err := readKept(br)
 	if cerr := br.Close(); err == nil {
 		err = cerr
@@ -330,7 +337,7 @@ func refreshFigures(ctx context.Context, tx pgx.Tx, ids []int64) error {
 	var k keptRows
 	k.compute(people, loc)
 	w := &pgx.Batch{}
-	k.queueWrites(w, "%s = ANY($1)", ids)
+	k.queueWrites(w, del, args...)
 	return tx.SendBatch(ctx, w).Close()
 }
 
@@ -415,19 +422,7 @@ func (s *Store) RebuildFigures(ctx context.Context) error {
 		for from := lo; from <= hi; from += rebuildBatch {
 			b := &pgx.Batch{}
 			keptQueries(b, "%s BETWEEN $1 AND $2", from, from+rebuildBatch-1)
-			br := tx.SendBatch(ctx, b)
-			people, loc, err := readKept(br)
-			if cerr := br.Close(); err == nil {
-				err = cerr
-			}
-			if err != nil {
-				return err
-			}
-			var k keptRows
-			k.compute(people, loc)
-			w := &pgx.Batch{}
-			k.queueWrites(w, "")
-			if err := tx.SendBatch(ctx, w).Close(); err != nil {
+			if err := keep(ctx, tx, tx.SendBatch(ctx, b), ""); err != nil {
 				return err
 			}
 		}

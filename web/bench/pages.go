@@ -111,31 +111,6 @@ func wearIDs(c synthCohort) []int64 {
 	return out
 }
 
-// chartWeek is the week whose heart rate the participant page draws (as
-// web's defaultChartWeek picks it): the latest positive week, else the latest
-// with readings; ok is false when that week has no heart rate to read.
-func chartWeek(lines []db.WeekLine) (int, bool) {
-	best := -1
-	for _, l := range lines {
-		if l.Verdict == "positive" {
-			best = l.Week
-		}
-	}
-	if best < 0 {
-		for _, l := range lines {
-			if l.Readings > 0 {
-				best = l.Week
-			}
-		}
-	}
-	for _, l := range lines {
-		if l.Week == best {
-			return best, l.HRCount > 0
-		}
-	}
-	return 0, false
-}
-
 // recorder collects samples per page from many goroutines.
 type recorder struct {
 	mu      sync.Mutex
