@@ -347,7 +347,7 @@ func keep(ctx context.Context, tx pgx.Tx, br pgx.BatchResults, del string, args 
 // flag day) leaves them to the background pass rather than hold its
 // transaction for minutes; pages say how many wait meanwhile.
 func refreshMarked(ctx context.Context, tx pgx.Tx) error {
-	rows, err := tx.Query(ctx, `DELETE FROM figures_dirty WHERE xid = pg_current_xact_id_if_assigned() RETURNING participant_id`)
+	rows, err := tx.Query(ctx, `SELECT figures_take_marked()`)
 	if err != nil {
 		return err
 	}

@@ -39,6 +39,20 @@ CREATE TABLE figures_dirty (
 CREATE INDEX figures_dirty_xid_idx ON figures_dirty (xid);
 CREATE INDEX figures_dirty_participant_idx ON figures_dirty (participant_id);
 
+-- The participants the calling transaction marked, taken off the list. A
+-- transaction that wrote nothing has no xid and takes nothing, without
+-- writing (so it also works in a read-only transaction).
+-- +goose StatementBegin
+CREATE FUNCTION figures_take_marked() RETURNS SETOF bigint LANGUAGE plpgsql AS $$
+BEGIN
+    IF pg_current_xact_id_if_assigned() IS NULL THEN
+        RETURN;
+    END IF;
+    RETURN QUERY DELETE FROM figures_dirty WHERE xid = pg_current_xact_id_if_assigned() RETURNING participant_id;
+END;
+$$;
+-- +goose StatementEnd
+
 -- One row: whether the per-participant figures have been built from the
 -- rows at least once (a database that held a study before this migration
 -- builds them at start-up; an empty one needs nothing).
