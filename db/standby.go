@@ -44,6 +44,7 @@ type Standby struct {
 	mu      sync.Mutex
 	samples []lsnSample // the primary's WAL position over the last lags
 	lastLog time.Time
+	everUp  bool // used at least once (only the monitor's goroutine touches it)
 }
 
 type lsnSample struct {
@@ -182,6 +183,9 @@ func (sb *Standby) set(up bool, reason, why string, lag time.Duration) {
 	old, _ := sb.reason.Load().(string)
 	sb.reason.Store(reason)
 	switch {
+	case up && !was && !sb.everUp:
+		sb.everUp = true
+		sb.log.Info("reads go to the standby", "lag", lag.Round(time.Millisecond).String())
 	case up && !was:
 		sb.log.Info("reads go to the standby again", "lag", lag.Round(time.Millisecond).String())
 	case !up && (was || old != reason):
