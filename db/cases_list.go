@@ -228,23 +228,24 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 	// ID, then case id as text), each from an index in that order
 	// (migration 0042: cases carry their participant's study ID).
 	const tie = `c.study_id COLLATE "C", (c.id::text) COLLATE "C"`
-	b.Queue(`SELECT c.id FROM cases c WHERE c.closed_at IS NULL AND c.due_at <= $1 ORDER BY c.due_at, `+tie+` LIMIT $2`, overdue, limit)
-	b.Queue(`SELECT c.id FROM cases c WHERE c.closed_at IS NULL AND c.due_at > $1 AND c.due_at <= $2 ORDER BY c.due_at, `+tie+` LIMIT $3`, overdue, today, limit)
-	b.Queue(`SELECT c.id FROM cases c WHERE c.state = $1 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $2)
+	full := `SELECT ` + caseCols + ` FROM ` + caseFrom
+	b.Queue(full+` WHERE c.closed_at IS NULL AND c.due_at <= $1 ORDER BY c.due_at, `+tie+` LIMIT $2`, overdue, limit)
+	b.Queue(full+` WHERE c.closed_at IS NULL AND c.due_at > $1 AND c.due_at <= $2 ORDER BY c.due_at, `+tie+` LIMIT $3`, overdue, today, limit)
+	b.Queue(full+` WHERE c.state = $1 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $2)
 		ORDER BY c.flagged_at, `+tie+` LIMIT $3`, open, today, limit)
 	// A recording that came in without its return being recorded dates the
 	// wait by its own arrival (triageItem); such cases are few and read
 	// whole, the others in order from the index.
-	b.Queue(`SELECT id FROM (
-		  (SELECT c.id, c.recording_back_at AS at, c.study_id AS sid FROM cases c
+	b.Queue(full+` JOIN (
+		  (SELECT c.id, c.recording_back_at AS at FROM cases c
 		   WHERE c.state = $1 AND c.recording_back_at IS NOT NULL AND (c.due_at IS NULL OR c.due_at > $2)
 		   ORDER BY c.recording_back_at, `+tie+` LIMIT $3)
 		  UNION ALL
 		  (SELECT c.id, (SELECT min(r.created_at) FROM recordings r WHERE r.case_id = c.id
-		                  AND NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)), c.study_id
-		   FROM cases c WHERE c.state = $1 AND c.recording_back_at IS NULL AND (c.due_at IS NULL OR c.due_at > $2))) w
-		ORDER BY coalesce(at, '-infinity'), sid COLLATE "C", (id::text) COLLATE "C" LIMIT $3`, waiting, today, limit)
-	var groups [4][]int64
+		                  AND NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id))
+		   FROM cases c WHERE c.state = $1 AND c.recording_back_at IS NULL AND (c.due_at IS NULL OR c.due_at > $2))) w ON w.id = c.id
+		ORDER BY coalesce(w.at, '-infinity'), `+tie+` LIMIT $3`, waiting, today, limit)
+	var groups [4][]Case
 	var all, n1, n2, n3, n4, unread int
 	err = s.readBatch(ctx, b, func(br pgx.BatchResults) error {
 		if err := br.QueryRow().Scan(&all, &n1, &n2, &n3, &n4, &unread); err != nil {
@@ -255,7 +256,7 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 			if err != nil {
 				return err
 			}
-			if groups[i], err = pgx.CollectRows(rows, pgx.RowTo[int64]); err != nil {
+			if groups[i], err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (Case, error) { return scanCase(r) }); err != nil {
 				return err
 			}
 		}
@@ -273,31 +274,10 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 		}
 	}
 	t.UnreadRecordings = unread
-	var ids []int64
-	for _, g := range groups {
-		ids = append(ids, g...)
-	}
-	if len(ids) == 0 {
-		return t, nil
-	}
-	rows, err := s.reader(ctx).Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE c.id = ANY($1)`, ids)
-	if err != nil {
-		return t, mapErr("triage", err)
-	}
-	cases, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Case, error) { return scanCase(r) })
-	if err != nil {
-		return t, mapErr("triage", err)
-	}
-	byID := make(map[int64]Case, len(cases))
-	for _, c := range cases {
-		byID[c.ID] = c
-	}
 	buckets := []followup.Bucket{followup.BucketOverdue, followup.BucketDueToday, followup.BucketNewUnowned, followup.BucketAwaitingOverRead}
 	for i, g := range groups {
-		for _, id := range g {
-			if c, ok := byID[id]; ok { // a case closed in between drops out
-				t.Rows = append(t.Rows, TriageRow{Case: c, Bucket: buckets[i]})
-			}
+		for _, c := range g {
+			t.Rows = append(t.Rows, TriageRow{Case: c, Bucket: buckets[i]})
 		}
 	}
 	return t, nil

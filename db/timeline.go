@@ -30,16 +30,28 @@ type WeekLine struct {
 // Timeline lists the participant's study weeks from enrolment to the last week
 // with data (or to today's week), with the active protocol's verdicts.
 func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error) {
+	st, err := s.StudySettings(ctx)
+	if err != nil {
+		return nil, err
+	}
+	b := &pgx.Batch{}
+	lines := queueTimeline(b, p, st, s.now())
+	if err := s.readBatch(ctx, b, func(pgx.BatchResults) error { return nil }); err != nil {
+		return nil, mapErr("timeline", err)
+	}
+	return lines(), nil
+}
+
+// queueTimeline queues the timeline's reads (the weeks, the cases and the
+// recordings) on b; the function it returns lays out the weeks once the
+// batch has been read.
+func queueTimeline(b *pgx.Batch, p Participant, st StudySettings, now time.Time) func() []WeekLine {
 	loc := p.Location()
-	current := cohort.StudyWeek(p.EnrolledOn, loc, s.now())
+	current := cohort.StudyWeek(p.EnrolledOn, loc, now)
 	byWeek := map[int]*WeekLine{}
 	maxWeek := current
 	if p.WithdrawnOn != nil {
 		maxWeek = cohort.StudyWeek(p.EnrolledOn, loc, p.WithdrawnOn.In(loc))
-	}
-	st, err := s.StudySettings(ctx)
-	if err != nil {
-		return nil, err
 	}
 	if fw := st.FollowUpWeeks; fw > 0 && maxWeek > fw-1 {
 		maxWeek = fw - 1 // weeks after the participant's follow-up are not due
@@ -51,8 +63,6 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 	}
 	var spans []caseSpan
 	var taken []time.Time
-	// One round trip: the weeks, the cases and the recordings.
-	b := &pgx.Batch{}
 	b.Queue(`
 		WITH w AS (
 		  SELECT week, sum(n) AS n, sum(n) FILTER (WHERE kind = 1) AS hr, sum(n) FILTER (WHERE kind = 3) AS rr
@@ -97,30 +107,29 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 		taken, err = pgx.CollectRows(rows, pgx.RowTo[time.Time])
 		return err
 	})
-	if err := s.readBatch(ctx, b, func(pgx.BatchResults) error { return nil }); err != nil {
-		return nil, mapErr("timeline", err)
-	}
-	out := make([]WeekLine, 0, maxWeek+1)
-	for w := 0; w <= maxWeek; w++ {
-		if l, ok := byWeek[w]; ok {
-			out = append(out, *l)
-		} else {
-			out = append(out, WeekLine{Week: w})
-		}
-	}
-	for _, c := range spans {
-		for w := int(c.fw); w <= int(c.lw) && w < len(out); w++ {
-			if w >= 0 {
-				out[w].CaseID, out[w].CaseState = c.id, followup.State(c.state)
+	return func() []WeekLine {
+		out := make([]WeekLine, 0, maxWeek+1)
+		for w := 0; w <= maxWeek; w++ {
+			if l, ok := byWeek[w]; ok {
+				out = append(out, *l)
+			} else {
+				out = append(out, WeekLine{Week: w})
 			}
 		}
-	}
-	for _, at := range taken {
-		if w := cohort.StudyWeek(p.EnrolledOn, loc, at); w >= 0 && w < len(out) {
-			out[w].ECG++
+		for _, c := range spans {
+			for w := int(c.fw); w <= int(c.lw) && w < len(out); w++ {
+				if w >= 0 {
+					out[w].CaseID, out[w].CaseState = c.id, followup.State(c.state)
+				}
+			}
 		}
+		for _, at := range taken {
+			if w := cohort.StudyWeek(p.EnrolledOn, loc, at); w >= 0 && w < len(out) {
+				out[w].ECG++
+			}
+		}
+		return out
 	}
-	return out, nil
 }
 
 // Note is a free-text note on a participant. Notes never leave the system.
@@ -133,16 +142,21 @@ type Note struct {
 
 // Notes lists a participant's notes, newest first.
 func (s *Store) Notes(ctx context.Context, participantID int64) ([]Note, error) {
-	rows, err := s.reader(ctx).Query(ctx, `SELECT id, body, actor, created_at FROM participant_notes WHERE participant_id = $1 ORDER BY created_at DESC, id DESC`, participantID)
+	rows, err := s.reader(ctx).Query(ctx, notesSQL, participantID)
 	if err != nil {
 		return nil, mapErr("notes", err)
 	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Note, error) {
-		var n Note
-		err := r.Scan(&n.ID, &n.Body, &n.Actor, &n.At)
-		return n, err
-	})
+	out, err := pgx.CollectRows(rows, scanNote)
 	return out, mapErr("notes", err)
+}
+
+// notesSQL reads a participant's ($1) notes for scanNote, newest first.
+const notesSQL = `SELECT id, body, actor, created_at FROM participant_notes WHERE participant_id = $1 ORDER BY created_at DESC, id DESC`
+
+func scanNote(r pgx.CollectableRow) (Note, error) {
+	var n Note
+	err := r.Scan(&n.ID, &n.Body, &n.Actor, &n.At)
+	return n, err
 }
 
 // AddNote stores a note and audits it.

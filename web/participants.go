@@ -26,8 +26,7 @@ type participantStore interface {
 	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
 	UpdateParticipant(ctx context.Context, a cohort.Actor, id int64, in db.ParticipantInput) (db.Participant, error)
 	Withdraw(ctx context.Context, a cohort.Actor, id int64, on cohort.Date, reason string, version int) (db.Participant, error)
-	Timeline(ctx context.Context, p db.Participant) ([]db.WeekLine, error)
-	Notes(ctx context.Context, participantID int64) ([]db.Note, error)
+	ParticipantSheet(ctx context.Context, p db.Participant) (db.ParticipantSheet, error)
 	AddNote(ctx context.Context, a cohort.Actor, participantID int64, body string) error
 	Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error
 }
@@ -257,10 +256,11 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 			{Label: "E-mail", Value: id.Email}, {Label: "Address", Value: strings.TrimSpace(id.Street + ", " + id.City + " " + id.ZIP)},
 			{Label: "Watch serial", Value: id.DeviceSerial}}
 	}
-	lines, err := s.store.Timeline(ctx, p)
+	sheet, err := s.store.ParticipantSheet(ctx, p)
 	if err != nil {
 		return err
 	}
+	lines := sheet.Lines
 	chartWeek := -1
 	if wk, err := strconv.Atoi(r.URL.Query().Get("week")); err == nil {
 		chartWeek = wk
@@ -283,14 +283,10 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		}
 		m.Timeline = append(m.Timeline, row)
 	}
-	if err := s.participantCharts(r, p, lines, &m); err != nil {
+	if err := s.participantCharts(r, p, sheet, &m); err != nil {
 		return err
 	}
-	notes, err := s.store.Notes(ctx, p.ID)
-	if err != nil {
-		return err
-	}
-	for _, n := range notes {
+	for _, n := range sheet.Notes {
 		m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
 	}
 	return s.ok(w, r, views.ParticipantPage(m))
