@@ -35,7 +35,7 @@ func (s *Store) ParticipantSheet(ctx context.Context, p Participant) (Participan
 		sh.External, err = pgx.CollectRows(rows, scanExternal)
 		return err
 	})
-	b.Queue(`SELECT `+protocolCols+` FROM protocols WHERE active`).QueryRow(func(row pgx.Row) error {
+	b.Queue(`SELECT ` + protocolCols + ` FROM protocols WHERE active`).QueryRow(func(row pgx.Row) error {
 		var err error
 		sh.Protocol, err = scanProtocol(row)
 		if errors.Is(err, pgx.ErrNoRows) {
