@@ -108,6 +108,7 @@ func (s *Server) Handler() http.Handler {
 	h = http.NewCrossOriginProtection().Handler(h)
 	h = s.withRecover(h)
 	h = withSecurityHeaders(h)
+	h = s.withHSTS(h)
 	h = s.withLogging(h)
 	h = withRequestID(h)
 	return h

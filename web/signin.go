@@ -125,12 +125,3 @@ func (s *Server) signOut(w http.ResponseWriter, r *http.Request) error {
 	http.Redirect(w, r, "/signin", http.StatusSeeOther)
 	return nil
 }
-
-// safeNext keeps redirects after sign-in on this site.
-func safeNext(next string) string {
-	if next == "" || !strings.HasPrefix(next, "/") || strings.HasPrefix(next, "//") || strings.HasPrefix(next, "/\\") ||
-		strings.HasPrefix(next, "/signin") {
-		return "/"
-	}
-	return next
-}
