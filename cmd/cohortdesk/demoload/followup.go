@@ -189,7 +189,7 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 		if u, ok := users[login]; ok {
 			return u.Actor("", "demo")
 		}
-		return cohort.Actor{Name: "demo loader"}
+		return cohort.Actor{Name: LoaderName}
 	}
 	if owner, ok := users[f.Owner]; ok && len(evs) > 0 {
 		clk.t = evs[0].at.Add(-time.Minute)
