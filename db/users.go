@@ -206,31 +206,14 @@ func (s *Store) SetPassword(ctx context.Context, a cohort.Actor, id int64, hash 
 	return mapErr("set password", err)
 }
 
-// SignInThrottle says whether more attempts are refused for the account or the
-// client address: true after limit failures within window.
-func (s *Store) SignInThrottle(ctx context.Context, account, addr string, limit int, window time.Duration) (bool, error) {
-	since := s.now().Add(-window)
-	var byAccount, byAddr int
-	err := s.pool.QueryRow(ctx, `
-		SELECT (SELECT count(*) FROM sign_in_failures WHERE account = $1 AND at > $3),
-		       (SELECT count(*) FROM sign_in_failures WHERE client_addr = $2 AND at > $3)`,
-		strings.TrimSpace(account), addr, since).Scan(&byAccount, &byAddr)
-	if err != nil {
-		return false, mapErr("sign-in throttle", err)
-	}
-	return byAccount >= limit || byAddr >= limit, nil
-}
-
-// RecordSignInFailure counts a failed attempt and audits it with the submitted
-// account name (which may not exist).
+// RecordSignInFailure audits a failed attempt that was tried (throttled
+// ones are only counted, in sign_in_throttle) with the submitted account name
+// (which may not exist; the forms bound it to 254 characters).
 func (s *Store) RecordSignInFailure(ctx context.Context, account, addr, requestID, reason string) error {
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		if _, err := tx.Exec(ctx, `INSERT INTO sign_in_failures (at, account, client_addr) VALUES ($1, $2, $3)`,
-			s.now(), strings.TrimSpace(account), addr); err != nil {
-			return err
-		}
-		// Old failures no longer matter for throttling.
-		if _, err := tx.Exec(ctx, `DELETE FROM sign_in_failures WHERE at < $1`, s.now().Add(-24*time.Hour)); err != nil {
+		// Keys that no longer matter for throttling.
+		if _, err := tx.Exec(ctx, `DELETE FROM sign_in_throttle WHERE updated_at < $1 AND (locked_until IS NULL OR locked_until < $2)`,
+			s.now().Add(-24*time.Hour), s.now()); err != nil {
 			return err
 		}
 		return audit(ctx, tx, cohort.Actor{Name: "anonymous", Addr: addr, RequestID: requestID},

@@ -167,21 +167,26 @@ func TestSixthRapidWrongPasswordIsRefused(t *testing.T) {
 		t.Fatalf("unknown account: status %d", res.StatusCode)
 	}
 	wrong := url.Values{"email": {"coordinator@example.org"}, "password": {"not the password"}}
-	for i := 2; i <= 5; i++ {
+	for i := 1; i <= 5; i++ {
 		res, body := a.postFormBody(c, "/signin", wrong)
 		if res.StatusCode != http.StatusUnauthorized || !strings.Contains(body, msgSignInFailed) {
 			t.Fatalf("attempt %d: status %d, want 401 with the common message", i, res.StatusCode)
 		}
 	}
-	// The sixth attempt from this address is refused even with the right password.
+	// After five failures the account is paused, even for the right password,
+	// and the answer says for how long.
 	res, body = a.postFormBody(c, "/signin", url.Values{"email": {"coordinator@example.org"}, "password": {testPassword}})
-	if res.StatusCode != http.StatusTooManyRequests || !strings.Contains(body, "Too many failed attempts") {
-		t.Fatalf("sixth attempt: status %d", res.StatusCode)
+	if res.StatusCode != http.StatusTooManyRequests || !strings.Contains(body, "Too many failed attempts") || res.Header.Get("Retry-After") != "30" {
+		t.Fatalf("sixth attempt: status %d, Retry-After %q", res.StatusCode, res.Header.Get("Retry-After"))
 	}
+	// Tried attempts are audited one by one; the refused one is only counted.
 	var failures int
 	a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM audit_events WHERE action = 'signin.failed'`).Scan(&failures)
 	if failures != 6 {
 		t.Errorf("audited %d failed sign-ins, want 6", failures)
+	}
+	if row, _ := a.store.Throttled(context.Background(), accountKey("coordinator@example.org")); row.Refused != 1 || row.Failures != 5 {
+		t.Errorf("throttle row %+v, want 5 failures and 1 refused", row)
 	}
 }
 
@@ -211,8 +216,8 @@ func TestThrottleByAccount(t *testing.T) {
 	}
 	var addrs int
 	a.store.Pool().QueryRow(context.Background(), `SELECT count(DISTINCT client_addr) FROM audit_events WHERE action = 'signin.failed'`).Scan(&addrs)
-	if addrs != 6 {
-		t.Errorf("client addresses in the audit trail: %d, want 6 (from X-Forwarded-For of a trusted proxy)", addrs)
+	if addrs != 5 {
+		t.Errorf("client addresses in the audit trail: %d, want 5 (from X-Forwarded-For of a trusted proxy; the refused sixth is counted, not audited)", addrs)
 	}
 }
 

@@ -50,6 +50,9 @@ type Config struct {
 	TrustedProxies []netip.Prefix    // peers whose X-Forwarded-For is believed
 	Password       credential.Params // argon2id cost for new passwords; zero means credential.DefaultParams
 	DemoNote       string            // demo sign-in help shown on the sign-in page; empty in production
+	// HashConcurrency bounds the password hashes computed at once (each
+	// holds Password.Memory); zero means one per CPU.
+	HashConcurrency int
 	// Secret keys the pseudonymous referral codes (deid.Code). It must stay
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
@@ -73,6 +76,7 @@ type Server struct {
 	dummyOnce      sync.Once
 	dummy          string
 	secret         []byte
+	hashes         *hashGate
 }
 
 // New builds the server and its routes.
@@ -82,6 +86,7 @@ func New(cfg Config) *Server {
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}
+	s.hashes = newHashGate(cfg.HashConcurrency)
 	s.sessions = newSessions(cfg.Pool, cfg.Session)
 	s.sessions.ErrorFunc = s.sessionError
 	if s.log == nil {
