@@ -37,13 +37,26 @@ var TestParams = Params{Memory: 1024, Time: 1, Threads: 1, SaltLen: 16, KeyLen: 
 // least 8; we ask for 12 since staff handle health data).
 const MinPasswordLen = 12
 
-// CheckPolicy says what is wrong with a new password, or nil.
-func CheckPolicy(pw string) error {
+// CheckPolicy says what is wrong with a new password, or nil: too short, too
+// long, or too easy to guess (see weakPassword). context is words the
+// password must not be: the person's name and e-mail address.
+func CheckPolicy(pw string, context ...string) error {
 	if utf8.RuneCountInString(pw) < MinPasswordLen {
 		return fmt.Errorf("use at least %d characters", MinPasswordLen)
 	}
 	if len(pw) > 512 {
 		return errors.New("use at most 512 bytes")
+	}
+	var words []string
+	for _, c := range context {
+		words = append(words, c)
+		if local, _, ok := strings.Cut(c, "@"); ok {
+			words = append(words, local)
+		}
+		words = append(words, strings.Fields(c)...)
+	}
+	if why := weakPassword(pw, words); why != "" {
+		return fmt.Errorf("choose another password: %s", why)
 	}
 	return nil
 }

