@@ -21,6 +21,9 @@ type User struct {
 	LastSignIn   *time.Time
 	Version      int
 	PasswordHash string // only filled by UserForSignIn
+	// MustChangePassword: an administrator set the password; its owner must
+	// choose their own before doing anything else.
+	MustChangePassword bool
 }
 
 // Actor is the user as the author of changes.
@@ -34,6 +37,8 @@ type NewUser struct {
 	Name         string
 	Role         cohort.Role
 	PasswordHash string
+	// MustChangePassword: the password is one an administrator chose.
+	MustChangePassword bool
 }
 
 // Validate checks the fields a form submits.
@@ -41,6 +46,8 @@ func (n NewUser) Validate() error {
 	var ve cohort.ValidationError
 	if !strings.Contains(n.Email, "@") || strings.ContainsAny(n.Email, " \t") {
 		ve.Add("email", "enter an e-mail address such as name@example.org")
+	} else if len(strings.TrimSpace(n.Email)) > 254 {
+		ve.Add("email", "an e-mail address has at most 254 characters")
 	}
 	if strings.TrimSpace(n.Name) == "" {
 		ve.Add("name", "enter the person's name")
@@ -53,12 +60,12 @@ func (n NewUser) Validate() error {
 	return ve.Err()
 }
 
-const userCols = `id, email, display_name, role, active, last_sign_in_at, version`
+const userCols = `id, email, display_name, role, active, last_sign_in_at, version, must_change_password`
 
 func scanUser(row pgx.CollectableRow) (User, error) {
 	var u User
 	var role string
-	err := row.Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version)
+	err := row.Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.MustChangePassword)
 	u.Role = cohort.Role(role)
 	return u, err
 }
@@ -71,8 +78,8 @@ func (s *Store) CreateUser(ctx context.Context, a cohort.Actor, n NewUser) (User
 	var u User
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `
-			INSERT INTO users (email, display_name, role, password_hash) VALUES ($1, $2, $3, $4)
-			RETURNING `+userCols, strings.TrimSpace(n.Email), strings.TrimSpace(n.Name), string(n.Role), n.PasswordHash)
+			INSERT INTO users (email, display_name, role, password_hash, must_change_password) VALUES ($1, $2, $3, $4, $5)
+			RETURNING `+userCols, strings.TrimSpace(n.Email), strings.TrimSpace(n.Name), string(n.Role), n.PasswordHash, n.MustChangePassword)
 		if err != nil {
 			return err
 		}
@@ -104,7 +111,7 @@ func (s *Store) UserForSignIn(ctx context.Context, email string) (User, error) {
 	var u User
 	var role string
 	err := s.pool.QueryRow(ctx, `SELECT `+userCols+`, password_hash FROM users WHERE email = $1`, strings.TrimSpace(email)).
-		Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.PasswordHash)
+		Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.MustChangePassword, &u.PasswordHash)
 	u.Role = cohort.Role(role)
 	return u, mapErr("user for sign-in", err)
 }
@@ -169,7 +176,7 @@ func (s *Store) UpdateUser(ctx context.Context, a cohort.Actor, id int64, c User
 		}
 		if !c.Active {
 			// End the person's sessions at once.
-			if _, err := tx.Exec(ctx, `DELETE FROM sessions WHERE position(convert_to($1, 'UTF8') in data) > 0`, sessionMarker(id)); err != nil {
+			if err := endSessions(ctx, tx, id); err != nil {
 				return err
 			}
 		}
@@ -190,16 +197,21 @@ func sessionMarker(id int64) string { return fmt.Sprintf("cdu:%d:", id) }
 // SessionMarker exposes the marker for the web layer.
 func SessionMarker(id int64) string { return sessionMarker(id) }
 
-// SetPassword replaces an account's password hash and audits the event (never
-// the hash itself).
+// SetPassword replaces an account's password hash with one an administrator
+// chose, ends the account's sessions everywhere (whoever knew the old password
+// is signed out), makes its owner choose their own at the next sign-in, and
+// audits the event (never the hash itself).
 func (s *Store) SetPassword(ctx context.Context, a cohort.Actor, id int64, hash string) error {
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		tag, err := tx.Exec(ctx, `UPDATE users SET password_hash = $2, version = version + 1, updated_at = now() WHERE id = $1`, id, hash)
+		tag, err := tx.Exec(ctx, `UPDATE users SET password_hash = $2, must_change_password = true, version = version + 1, updated_at = now() WHERE id = $1`, id, hash)
 		if err != nil {
 			return err
 		}
 		if tag.RowsAffected() == 0 {
 			return pgx.ErrNoRows
+		}
+		if err := endSessions(ctx, tx, id); err != nil {
+			return err
 		}
 		return audit(ctx, tx, a, "user.password_set", "user", fmt.Sprint(id), nil, nil)
 	})

@@ -72,7 +72,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		if err != nil {
 			return err
 		}
-		u, err := store.CreateUser(ctx, actor, db.NewUser{Email: *email, Name: *name, Role: r, PasswordHash: hash})
+		u, err := store.CreateUser(ctx, actor, db.NewUser{Email: *email, Name: *name, Role: r, PasswordHash: hash, MustChangePassword: generated})
 		if err != nil {
 			return fmt.Errorf("user: %w", err)
 		}
