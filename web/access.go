@@ -57,6 +57,6 @@ var (
 	referrals  = allow(cohort.Coordinator, cohort.Investigator)                               // referral summaries
 	exportArea = allow(cohort.Coordinator, cohort.Investigator, cohort.Admin)                 // the exports page: summaries and dataset exports
 	adminOnly  = allow(cohort.Admin)
-	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold explorer: investigators weigh, admins set protocols
+	tuning     = allow(cohort.Investigator, cohort.Admin)   // threshold explorer: investigators weigh, admins set protocols
 	account    = access{roles: everyone.roles, setup: true} // one's own account: password, second factor
 )

@@ -65,7 +65,7 @@ func (s *Server) accountHome(w http.ResponseWriter, r *http.Request) error {
 	if m.Required, err = s.secondFactorRequired(r.Context(), u.Role); err != nil {
 		return err
 	}
-	return s.ok(w, r, m.render())
+	return s.ok(w, r, views.Account(m))
 }
 
 func (s *Server) passwordForm(w http.ResponseWriter, r *http.Request) error {
@@ -128,13 +128,9 @@ func (s *Server) passwordChange(w http.ResponseWriter, r *http.Request) error {
 	if len(errs) > 0 {
 		return page(http.StatusUnprocessableEntity, errs)
 	}
-	var hash string
-	var herr error
-	if err := s.hashes.run(ctx, true, func() { hash, herr = credential.Hash(pw, s.pwParams) }); err != nil {
+	hash, err := s.hashPassword(ctx, pw)
+	if err != nil {
 		return err
-	}
-	if herr != nil {
-		return herr
 	}
 	if err := s.store.ChangeOwnPassword(ctx, s.actor(r), hash); err != nil {
 		return err
@@ -163,7 +159,7 @@ func (s *Server) passwordChange(w http.ResponseWriter, r *http.Request) error {
 	if st.Enabled {
 		m.SecondFactor, m.Recovery = "on", st.RecoveryLeft
 	}
-	return s.ok(w, r, m.render())
+	return s.ok(w, r, views.Account(m))
 }
 
 // setSetup records the step the session owes ("" clears it).

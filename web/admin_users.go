@@ -68,11 +68,11 @@ func (s *Server) userCreate(w http.ResponseWriter, r *http.Request) error {
 	}
 	f := views.UserForm{Email: r.PostForm.Get("email"), Name: r.PostForm.Get("name"), Role: r.PostForm.Get("role")}
 	pw := credential.RandomPassword(16)
-	hash, err := credential.Hash(pw, s.pwParams)
+	hash, err := s.hashPassword(r.Context(), pw)
 	if err != nil {
 		return err
 	}
-	u, err := s.store.CreateUser(r.Context(), s.actor(r), db.NewUser{Email: f.Email, Name: f.Name, Role: cohort.Role(f.Role), PasswordHash: hash})
+	u, err := s.store.CreateUser(r.Context(), s.actor(r), db.NewUser{Email: f.Email, Name: f.Name, Role: cohort.Role(f.Role), PasswordHash: hash, MustChangePassword: true})
 	var ve *cohort.ValidationError
 	switch {
 	case errors.As(err, &ve):
@@ -144,7 +144,7 @@ func (s *Server) userResetPassword(w http.ResponseWriter, r *http.Request) error
 		return err
 	}
 	pw := credential.RandomPassword(16)
-	hash, err := credential.Hash(pw, s.pwParams)
+	hash, err := s.hashPassword(r.Context(), pw)
 	if err != nil {
 		return err
 	}

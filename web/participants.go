@@ -66,7 +66,6 @@ func (s *Server) followUpWeeks(ctx context.Context) int {
 	return st.FollowUpWeeks
 }
 
-
 // participantFilter reads the filter from the query string.
 func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
 	form := views.ParticipantFilterForm{Search: q.Get("q"), SiteID: q.Get("site"), Status: q.Get("status"),

@@ -28,6 +28,8 @@ type Store interface {
 	healthStore
 	userStore
 	signInStore
+	accountStore
+	secondFactorStore
 	adminStore
 	participantStore
 	importStore

@@ -170,22 +170,6 @@ func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
 	return s.passwordAccepted(w, r, u, next)
 }
 
-// passwordAccepted starts the session of a user whose password was right.
-func (s *Server) passwordAccepted(w http.ResponseWriter, r *http.Request, u db.User, next string) error {
-	ctx := r.Context()
-	// A new session token at sign-in, so a token planted before sign-in is useless.
-	if err := s.sessions.RenewToken(ctx); err != nil {
-		return err
-	}
-	s.sessions.Put(ctx, sessionUserKey, db.SessionMarker(u.ID))
-	if err := s.store.RecordSignIn(ctx, u.Actor(s.clientAddr(r), requestID(ctx))); err != nil {
-		return err
-	}
-	s.trustDevice(w, r, u)
-	http.Redirect(w, r, next, http.StatusSeeOther)
-	return nil
-}
-
 // waitLabel says a wait in words: "30 seconds", "4 minutes".
 func waitLabel(d time.Duration) string {
 	if d <= time.Minute {

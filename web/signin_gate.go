@@ -6,6 +6,8 @@ import (
 	"runtime"
 	"sync/atomic"
 	"time"
+
+	"cohortdesk/cohort/credential"
 )
 
 // errHashBusy means every password-hashing slot is taken and the queue is
@@ -63,4 +65,15 @@ func (g *hashGate) run(ctx context.Context, patient bool, fn func()) error {
 	defer func() { <-g.slots }()
 	fn()
 	return nil
+}
+
+// hashPassword hashes a new password in a gate slot, waiting as long as the
+// request may (an administrator's action is not refused as busy).
+func (s *Server) hashPassword(ctx context.Context, pw string) (string, error) {
+	var hash string
+	var herr error
+	if err := s.hashes.run(ctx, true, func() { hash, herr = credential.Hash(pw, s.pwParams) }); err != nil {
+		return "", err
+	}
+	return hash, herr
 }
