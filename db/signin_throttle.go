@@ -16,12 +16,29 @@ import (
 type ThrottleKey struct {
 	Key  string
 	Rule credential.Throttle
+	// Shared keys (an address, which an office behind one gateway shares)
+	// are only checked when an attempt is admitted and counted afterwards,
+	// for failures only (CountFailure): counting every attempt in flight
+	// would pause a busy office's right passwords for a moment. The limit on
+	// them may be overshot by the attempts in flight at once (bounded by the
+	// hashing gate), which is enough against spraying.
+	Shared bool
 }
 
 // Admission is the answer to an attempt.
 type Admission struct {
 	OK         bool
 	RetryAfter time.Duration // when refused: until the last of the locks ends
+	before     []throttleRow // the keys' rows before, for UndoAttempt
+}
+
+// throttleRow is a key's stored row as it was.
+type throttleRow struct {
+	key     string
+	existed bool
+	state   credential.ThrottleState
+	refused int64
+	updated time.Time
 }
 
 // AdmitAttempt decides an attempt against every key at once, atomically: the
@@ -36,15 +53,23 @@ func (s *Store) AdmitAttempt(ctx context.Context, keys []ThrottleKey) (Admission
 	now := s.now()
 	var adm Admission
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		states, err := lockThrottle(ctx, tx, keys)
+		rows, err := lockThrottle(ctx, tx, keys)
 		if err != nil {
 			return err
+		}
+		adm.before = rows
+		states := make([]credential.ThrottleState, len(rows))
+		for i, r := range rows {
+			states[i] = r.state
 		}
 		next := make([]credential.ThrottleState, len(keys))
 		adm.OK = true
 		for i, k := range keys {
 			var ok bool
 			next[i], ok = k.Rule.Admit(states[i], now)
+			if k.Shared {
+				next[i] = states[i]
+			}
 			if !ok {
 				adm.OK = false
 				adm.RetryAfter = max(adm.RetryAfter, states[i].LockedUntil.Sub(now))
@@ -73,6 +98,39 @@ func (s *Store) AdmitAttempt(ctx context.Context, keys []ThrottleKey) (Admission
 	return adm, nil
 }
 
+// CountFailure counts a failed attempt against the shared keys among keys
+// (see ThrottleKey.Shared); the others were counted on admission.
+func (s *Store) CountFailure(ctx context.Context, keys []ThrottleKey) error {
+	var shared []ThrottleKey
+	for _, k := range keys {
+		if k.Shared {
+			shared = append(shared, k)
+		}
+	}
+	if len(shared) == 0 {
+		return nil
+	}
+	shared = sortedKeys(shared)
+	now := s.now()
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		rows, err := lockThrottle(ctx, tx, shared)
+		if err != nil {
+			return err
+		}
+		for i, k := range shared {
+			next, _ := k.Rule.Admit(credential.ThrottleState{Failures: rows[i].state.Failures, LastFailure: rows[i].state.LastFailure}, now)
+			if rows[i].state.LockedUntil.After(next.LockedUntil) {
+				next.LockedUntil = rows[i].state.LockedUntil
+			}
+			if err := saveThrottle(ctx, tx, k.Key, next, now); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	return mapErr("count sign-in failure", err)
+}
+
 // RefundAttempt takes back an admitted attempt on these keys: it was not
 // tried (the server was busy) or it succeeded on a key that several people
 // share (an address).
@@ -80,12 +138,12 @@ func (s *Store) RefundAttempt(ctx context.Context, keys []ThrottleKey) error {
 	keys = sortedKeys(keys)
 	now := s.now()
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		states, err := lockThrottle(ctx, tx, keys)
+		rows, err := lockThrottle(ctx, tx, keys)
 		if err != nil {
 			return err
 		}
 		for i, k := range keys {
-			if err := saveThrottle(ctx, tx, k.Key, k.Rule.Refund(states[i]), now); err != nil {
+			if err := saveThrottle(ctx, tx, k.Key, k.Rule.Refund(rows[i].state), now); err != nil {
 				return err
 			}
 		}
@@ -135,45 +193,84 @@ func sortedKeys(keys []ThrottleKey) []ThrottleKey {
 	return slices.CompactFunc(keys, func(a, b ThrottleKey) bool { return a.Key == b.Key })
 }
 
-// lockThrottle makes sure every key has a row and locks them all, in order.
-func lockThrottle(ctx context.Context, tx pgx.Tx, keys []ThrottleKey) ([]credential.ThrottleState, error) {
+// lockThrottle makes sure every key has a row and locks them all, in order,
+// returning them as they were.
+func lockThrottle(ctx context.Context, tx pgx.Tx, keys []ThrottleKey) ([]throttleRow, error) {
 	names := make([]string, len(keys))
 	for i, k := range keys {
 		names[i] = k.Key
 	}
-	if _, err := tx.Exec(ctx, `INSERT INTO sign_in_throttle (key) SELECT unnest($1::text[]) ORDER BY 1 ON CONFLICT (key) DO NOTHING`, names); err != nil {
+	rows, err := tx.Query(ctx, `INSERT INTO sign_in_throttle (key) SELECT unnest($1::text[]) ORDER BY 1 ON CONFLICT (key) DO NOTHING RETURNING key`, names)
+	if err != nil {
 		return nil, err
 	}
-	rows, err := tx.Query(ctx, `SELECT key, failures, last_failure_at, locked_until FROM sign_in_throttle
+	created, err := pgx.CollectRows(rows, pgx.RowTo[string])
+	if err != nil {
+		return nil, err
+	}
+	rows, err = tx.Query(ctx, `SELECT key, failures, last_failure_at, locked_until, refused, updated_at FROM sign_in_throttle
 		WHERE key = ANY($1) ORDER BY key FOR UPDATE`, names)
 	if err != nil {
 		return nil, err
 	}
-	byKey := map[string]credential.ThrottleState{}
+	byKey := map[string]throttleRow{}
 	for rows.Next() {
-		var k string
-		var st credential.ThrottleState
+		var r throttleRow
 		var last, until *time.Time
-		if err := rows.Scan(&k, &st.Failures, &last, &until); err != nil {
+		if err := rows.Scan(&r.key, &r.state.Failures, &last, &until, &r.refused, &r.updated); err != nil {
 			rows.Close()
 			return nil, err
 		}
 		if last != nil {
-			st.LastFailure = *last
+			r.state.LastFailure = *last
 		}
 		if until != nil {
-			st.LockedUntil = *until
+			r.state.LockedUntil = *until
 		}
-		byKey[k] = st
+		r.existed = !slices.Contains(created, r.key)
+		byKey[r.key] = r
 	}
 	if err := rows.Err(); err != nil {
 		return nil, err
 	}
-	out := make([]credential.ThrottleState, len(keys))
+	out := make([]throttleRow, len(keys))
 	for i, k := range keys {
 		out[i] = byKey[k.Key]
 	}
 	return out, nil
+}
+
+// UndoAttempt puts the keys of an admitted attempt back as they were before
+// it, when the attempt could not be finished because the database refused a
+// later write (read-only, full): a request answered "nothing was changed"
+// changes nothing, not even a counter.
+func (s *Store) UndoAttempt(ctx context.Context, adm Admission) error {
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		for _, r := range adm.before {
+			if !r.existed {
+				if _, err := tx.Exec(ctx, `DELETE FROM sign_in_throttle WHERE key = $1`, r.key); err != nil {
+					return err
+				}
+				continue
+			}
+			var last, until *time.Time
+			if !r.state.LastFailure.IsZero() {
+				last = &r.state.LastFailure
+			}
+			if !r.state.LockedUntil.IsZero() {
+				until = &r.state.LockedUntil
+			}
+			if _, err := tx.Exec(ctx, `INSERT INTO sign_in_throttle AS t (key, failures, last_failure_at, locked_until, refused, updated_at)
+				VALUES ($1, $2, $3, $4, $5, $6)
+				ON CONFLICT (key) DO UPDATE SET failures = EXCLUDED.failures, last_failure_at = EXCLUDED.last_failure_at,
+				locked_until = EXCLUDED.locked_until, refused = EXCLUDED.refused, updated_at = EXCLUDED.updated_at`,
+				r.key, r.state.Failures, last, until, r.refused, r.updated); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	return mapErr("undo sign-in attempt", err)
 }
 
 func saveThrottle(ctx context.Context, tx pgx.Tx, key string, st credential.ThrottleState, now time.Time) error {

@@ -575,13 +575,13 @@ func TestKeyboardWorksTriage(t *testing.T) {
 
 	press, ringed := tb.press, tb.ringed
 
-	// The header: skip link, home link, sign out.
+	// The header: skip link, home link, one's account, sign out.
 	first := press(kb.Tab)
 	if !strings.Contains(first.What, ".skip") {
 		t.Fatalf("the first Tab reaches %s, want the skip link", first.What)
 	}
 	ringed(first)
-	for _, want := range []string{"a.mark", `button[data-testid=sign-out]`} {
+	for _, want := range []string{"a.mark", `a[data-testid=user-name]`, `button[data-testid=sign-out]`} {
 		s := press(kb.Tab)
 		if !strings.HasPrefix(s.What, want) {
 			t.Fatalf("Tab reaches %s, want %s", s.What, want)

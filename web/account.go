@@ -98,24 +98,14 @@ func (s *Server) passwordChange(w http.ResponseWriter, r *http.Request) error {
 	if !adm.OK {
 		return page(http.StatusTooManyRequests, map[string]string{"current": "too many wrong passwords; try again in " + waitLabel(adm.RetryAfter)})
 	}
-	full, err := s.store.UserForSignIn(ctx, u.Email)
+	answered, err := s.checkCurrentPassword(w, r, u, cur, keys, page)
 	if err != nil {
+		// Not finished: the attempt leaves nothing behind.
+		_ = s.store.UndoAttempt(context.WithoutCancel(ctx), adm)
 		return err
 	}
-	var ok bool
-	if err := s.hashes.run(ctx, false, func() { ok, _ = credential.Verify(cur, full.PasswordHash) }); err != nil {
-		_ = s.store.RefundAttempt(context.WithoutCancel(ctx), keys)
-		if errors.Is(err, errHashBusy) {
-			w.Header().Set("Retry-After", "2")
-			return page(http.StatusServiceUnavailable, map[string]string{"form": msgSignInBusy})
-		}
-		return err
-	}
-	if !ok {
-		return page(http.StatusUnprocessableEntity, map[string]string{"current": "this is not your current password"})
-	}
-	if err := s.store.ClearThrottle(ctx, keys[0].Key); err != nil {
-		return err
+	if answered {
+		return nil
 	}
 	errs := map[string]string{}
 	if perr := credential.CheckPolicy(pw, u.Email, u.Name); perr != nil {
@@ -169,4 +159,33 @@ func (s *Server) setSetup(ctx context.Context, step string) {
 		return
 	}
 	s.sessions.Put(ctx, sessionSetupKey, step)
+}
+
+// checkCurrentPassword verifies the current password of an admitted attempt.
+// A wrong one is audited like a failed sign-in and answered here (answered
+// true).
+func (s *Server) checkCurrentPassword(w http.ResponseWriter, r *http.Request, u db.User, cur string, keys []db.ThrottleKey, page func(int, map[string]string) error) (answered bool, err error) {
+	ctx := r.Context()
+	full, err := s.store.UserForSignIn(ctx, u.Email)
+	if err != nil {
+		return false, err
+	}
+	var ok bool
+	if err := s.hashes.run(ctx, false, func() { ok, _ = credential.Verify(cur, full.PasswordHash) }); err != nil {
+		if !errors.Is(err, errHashBusy) {
+			return false, err
+		}
+		if err := s.store.RefundAttempt(ctx, keys); err != nil {
+			return false, err
+		}
+		w.Header().Set("Retry-After", "2")
+		return true, page(http.StatusServiceUnavailable, map[string]string{"form": msgSignInBusy})
+	}
+	if !ok {
+		if err := s.store.RecordSignInFailure(ctx, u.Email, s.clientAddr(r), requestID(ctx), "wrong current password at a password change"); err != nil {
+			return false, err
+		}
+		return true, page(http.StatusUnprocessableEntity, map[string]string{"current": "this is not your current password"})
+	}
+	return false, s.store.ClearThrottle(ctx, keys[0].Key)
 }

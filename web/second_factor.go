@@ -159,7 +159,7 @@ const msgCodeFailed = "That code did not work. Enter the code the app shows now,
 
 // signInCode checks the second factor: a TOTP code (each time step once) or
 // an unused recovery code. Guesses are throttled per account.
-func (s *Server) signInCode(w http.ResponseWriter, r *http.Request) error {
+func (s *Server) signInCode(w http.ResponseWriter, r *http.Request) (err error) {
 	u, ok := s.pendingUser(r)
 	if !ok {
 		return s.noPending(w, r, http.StatusUnauthorized)
@@ -179,6 +179,11 @@ func (s *Server) signInCode(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	defer func() {
+		if err != nil { // not finished: the attempt leaves nothing behind
+			_ = s.store.UndoAttempt(context.WithoutCancel(ctx), adm)
+		}
+	}()
 	if !adm.OK {
 		w.Header().Set("Retry-After", strconv.Itoa(int(adm.RetryAfter.Seconds())+1))
 		return page(http.StatusTooManyRequests, "Too many wrong codes. Try again in "+waitLabel(adm.RetryAfter)+".")

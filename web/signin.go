@@ -20,6 +20,8 @@ type signInStore interface {
 	UserForSignIn(ctx context.Context, email string) (db.User, error)
 	AdmitAttempt(ctx context.Context, keys []db.ThrottleKey) (db.Admission, error)
 	RefundAttempt(ctx context.Context, keys []db.ThrottleKey) error
+	CountFailure(ctx context.Context, keys []db.ThrottleKey) error
+	UndoAttempt(ctx context.Context, adm db.Admission) error
 	ClearThrottle(ctx context.Context, keys ...string) error
 	RecordSignInFailure(ctx context.Context, account, addr, requestID, reason string) error
 	RecordSignIn(ctx context.Context, a cohort.Actor) error
@@ -70,7 +72,7 @@ func (s *Server) signInKeys(r *http.Request, email string) []db.ThrottleKey {
 	}
 	return []db.ThrottleKey{
 		{Key: accountKey(email), Rule: credential.Account},
-		{Key: "address:" + s.clientAddr(r), Rule: credential.Address},
+		{Key: "address:" + s.clientAddr(r), Rule: credential.Address, Shared: true},
 	}
 }
 
@@ -85,8 +87,6 @@ func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
 	email := strings.TrimSpace(r.PostForm.Get("email"))
 	pw := r.PostForm.Get("password")
 	next := safeNext(r.PostForm.Get("next"))
-	addr := s.clientAddr(r)
-	rid := requestID(r.Context())
 	page := func(status int, email, msg string) error {
 		s.render(w, r, status, views.SignIn(views.SignInModel{Assets: s.assets, Email: email, Next: next, Error: msg, Demo: s.demoNote}))
 		return nil
@@ -109,12 +109,25 @@ func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
 		w.Header().Set("Retry-After", strconv.Itoa(int(math.Ceil(adm.RetryAfter.Seconds()))))
 		return page(http.StatusTooManyRequests, email, fmt.Sprintf(msgSignInThrottled, waitLabel(adm.RetryAfter)))
 	}
+	if err := s.tryPassword(w, r, email, pw, next, keys, page); err != nil {
+		// Not finished (the database refused a write): the attempt leaves
+		// nothing behind.
+		_ = s.store.UndoAttempt(context.WithoutCancel(ctx), adm)
+		return err
+	}
+	return nil
+}
+
+// tryPassword checks an admitted attempt's password and answers it.
+func (s *Server) tryPassword(w http.ResponseWriter, r *http.Request, email, pw, next string, keys []db.ThrottleKey, page func(int, string, string) error) error {
+	ctx := r.Context()
+	addr := s.clientAddr(r)
+	rid := requestID(ctx)
 	u, err := s.store.UserForSignIn(ctx, email)
 	hash := u.PasswordHash
 	if errors.Is(err, cohort.ErrNotFound) {
 		hash = s.dummyHash()
 	} else if err != nil {
-		_ = s.store.RefundAttempt(context.WithoutCancel(ctx), keys)
 		return err
 	}
 	var ok bool
@@ -146,26 +159,21 @@ func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
 		if err := s.store.RecordSignInFailure(ctx, email, addr, rid, reason); err != nil {
 			return err
 		}
+		if err := s.store.CountFailure(ctx, keys); err != nil {
+			return err
+		}
 		return page(http.StatusUnauthorized, email, msgSignInFailed)
 	}
-	// The right password: the account's (or device's) failures are forgotten;
-	// the address, which others may share, gets this attempt back.
+	// The right password: the account's (or device's) failures are
+	// forgotten; the address, which others may share, keeps its count.
 	var personal []string
-	var shared []db.ThrottleKey
 	for _, k := range keys {
-		if strings.HasPrefix(k.Key, "address:") {
-			shared = append(shared, k)
-		} else {
+		if !k.Shared {
 			personal = append(personal, k.Key)
 		}
 	}
 	if err := s.store.ClearThrottle(ctx, personal...); err != nil {
 		return err
-	}
-	if len(shared) > 0 {
-		if err := s.store.RefundAttempt(ctx, shared); err != nil {
-			return err
-		}
 	}
 	return s.passwordAccepted(w, r, u, next)
 }
