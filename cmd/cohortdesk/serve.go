@@ -9,7 +9,6 @@ import (
 	"time"
 
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 	"cohortdesk/web"
 
 	"github.com/jackc/pgx/v5/pgxpool"
@@ -40,12 +39,13 @@ func runServe(ctx context.Context, e env, args []string) error {
 	}
 	defer pool.Close()
 	if cfg.Migrate {
-		n, err := migrations.Up(ctx, pool)
+		n, err := migrateAs(ctx, cfg.MigrateURL, pool)
 		if err != nil {
 			return err
 		}
-		log.Info("migrations applied", "count", n)
+		log.Info("migrations applied", "count", n, "as_owner", cfg.MigrateURL != "")
 	}
+	warnRole(ctx, pool, log)
 	return serveApp(ctx, cfg, pool, log, "", func(addr string) {
 		log.Info("listening", "addr", addr, "database", redactURL(cfg.DatabaseURL))
 	})

@@ -36,7 +36,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		fs.Usage()
 		return errors.New("user: name one action: add, reset-password or list")
 	}
-	store, closeDB, err := openStore(ctx, "user", *url, 2)
+	store, closeDB, err := openStore(ctx, e.getenv, "user", *url, 2)
 	if err != nil {
 		return err
 	}
