@@ -79,6 +79,7 @@ type Server struct {
 	dummy          string
 	secret         []byte
 	hashes         *hashGate
+	uploads        uploadSlots
 }
 
 // New builds the server and its routes.
@@ -114,6 +115,7 @@ func (s *Server) Handler() http.Handler {
 	// (Sec-Fetch-Site, or an Origin that is not this host).
 	h = http.NewCrossOriginProtection().Handler(h)
 	h = s.withRecover(h)
+	h = s.withReadDeadlines(h)
 	h = withSecurityHeaders(h)
 	h = s.withHSTS(h)
 	h = s.withLogging(h)

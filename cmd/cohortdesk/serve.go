@@ -60,6 +60,11 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 		return err
 	}
 	log.Info("screening protocol", "active", active.Label())
+	// Uploads a killed server was receiving are useless now (their imports
+	// are marked interrupted); an hour spares other instances' live ones.
+	if n := web.RemoveStaleUploads(time.Hour); n > 0 {
+		log.Info("stale uploads removed", "count", n)
+	}
 	stopWatch := watchInterruptedImports(ctx, store, interruptedEvery, log)
 	defer stopWatch()
 	stopWorkers := startWorkers(ctx, store, cfg.Workers, log)
