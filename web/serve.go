@@ -16,9 +16,9 @@ func NewHTTPServer(addr string, h http.Handler) *http.Server {
 		ReadHeaderTimeout: 10 * time.Second,
 		// No ReadTimeout for the whole server: each route's body gets its own
 		// deadline (withReadDeadlines: sign-in seconds, uploads minutes).
-		WriteTimeout:      10 * time.Minute, // large exports
-		IdleTimeout:       2 * time.Minute,
-		MaxHeaderBytes:    64 << 10,
+		WriteTimeout:   10 * time.Minute, // large exports
+		IdleTimeout:    2 * time.Minute,
+		MaxHeaderBytes: 64 << 10,
 	}
 }
 
