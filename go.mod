@@ -2,6 +2,8 @@ module cohortdesk
 
 go 1.26.8
 
+toolchain go1.27.3
+
 require (
 	github.com/a-h/templ v0.3.1100
 	github.com/alexedwards/scs/pgxstore v0.0.0-20240316134038-7e11d57e8885
