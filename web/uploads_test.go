@@ -81,19 +81,7 @@ func TestSlowUploadBlocksNoOtherImportOrPage(t *testing.T) {
 	slowDone := slowUpload(t, a, slow, "slow.csv", readingsCSV("P-1", 200, 0), stop)
 	ctx := context.Background()
 	// Wait until the slow upload is on the list, receiving.
-	deadline := time.Now().Add(time.Minute)
-	for {
-		var n int
-		a.store.Pool().QueryRow(ctx, `SELECT count(*) FROM imports WHERE status = 'running' AND bytes_read > 0`).Scan(&n)
-		if n == 1 {
-			break
-		}
-		if time.Now().After(deadline) {
-			close(stop)
-			t.Fatal("the slow upload never showed as receiving")
-		}
-		time.Sleep(100 * time.Millisecond)
-	}
+	waitImports(t, a, `status = 'running' AND bytes_read > 0`, 1, stop)
 	var locks, inTx int
 	a.store.Pool().QueryRow(ctx, `SELECT count(*) FROM pg_locks WHERE locktype = 'advisory'`).Scan(&locks)
 	a.store.Pool().QueryRow(ctx, `SELECT count(*) FROM pg_stat_activity WHERE datname = current_database() AND state LIKE 'idle in transaction%'`).Scan(&inTx)
@@ -147,19 +135,7 @@ func TestUploadsPerPersonAreLimited(t *testing.T) {
 	stop := make(chan struct{})
 	first := slowUpload(t, a, c, "one.csv", readingsCSV("P-1", 100, 0), stop)
 	second := slowUpload(t, a, c, "two.csv", readingsCSV("P-1", 100, 100), stop)
-	deadline := time.Now().Add(time.Minute)
-	for {
-		var n int
-		a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM imports WHERE status = 'running'`).Scan(&n)
-		if n == 2 {
-			break
-		}
-		if time.Now().After(deadline) {
-			close(stop)
-			t.Fatal("the two uploads never started")
-		}
-		time.Sleep(50 * time.Millisecond)
-	}
+	waitImports(t, a, `status = 'running'`, 2, stop)
 	res, body := upload(t, a, c, "readings_csv", "three.csv", readingsCSV("P-1", 10, 300))
 	if res.StatusCode != http.StatusTooManyRequests || !strings.Contains(body, "uploads in progress") {
 		t.Errorf("a third upload: status %d", res.StatusCode)
@@ -218,4 +194,23 @@ func httpServerFor(t *testing.T, a *app) string {
 	go hs.Serve(ln)
 	t.Cleanup(func() { hs.Close() })
 	return ln.Addr().String()
+}
+
+// waitImports waits (a minute at most) until n imports match where; on
+// failure it lets the slow uploads go (stop) and fails the test.
+func waitImports(t *testing.T, a *app, where string, n int, stop chan struct{}) {
+	t.Helper()
+	deadline := time.Now().Add(time.Minute)
+	for {
+		var got int
+		a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM imports WHERE `+where).Scan(&got)
+		if got == n {
+			return
+		}
+		if time.Now().After(deadline) {
+			close(stop)
+			t.Fatalf("%d imports %s, want %d", got, where, n)
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
 }

@@ -131,17 +131,21 @@ func SealKey(deploymentSecret []byte) []byte {
 // context (the account id), so a sealed secret copied to another account does
 // not open.
 func Seal(key []byte, plaintext, context string) (string, error) {
-	block, err := aes.NewCipher(key)
-	if err != nil {
-		return "", err
-	}
-	aead, err := cipher.NewGCM(block)
+	aead, err := gcm(key)
 	if err != nil {
 		return "", err
 	}
 	nonce := make([]byte, aead.NonceSize())
 	_, _ = rand.Read(nonce)
 	return base64.RawStdEncoding.EncodeToString(aead.Seal(nonce, nonce, []byte(plaintext), []byte(context))), nil
+}
+
+func gcm(key []byte) (cipher.AEAD, error) {
+	block, err := aes.NewCipher(key)
+	if err != nil {
+		return nil, err
+	}
+	return cipher.NewGCM(block)
 }
 
 // ErrSealed means a sealed value does not open with this key and context.
@@ -153,11 +157,7 @@ func Open(key []byte, sealed, context string) (string, error) {
 	if err != nil {
 		return "", ErrSealed
 	}
-	block, err := aes.NewCipher(key)
-	if err != nil {
-		return "", err
-	}
-	aead, err := cipher.NewGCM(block)
+	aead, err := gcm(key)
 	if err != nil {
 		return "", err
 	}
