@@ -199,6 +199,15 @@ func (v Conclusion) Diagnostic(tooShort bool) bool {
 	return v.Final && v.Rhythm.Interpretable() && !tooShort
 }
 
+// ConfirmsAF is the one rule for a confirmed AF: a diagnostic recording
+// (Diagnostic) whose readings settle on atrial fibrillation. Two readers who
+// disagree settle nothing until an adjudication, so a disputed AF reading
+// confirms nothing. It is what makes a case ready to refer, what a referral's
+// sign-off requires, and what the figures count as AF confirmed.
+func (v Conclusion) ConfirmsAF(tooShort bool) bool {
+	return v.Diagnostic(tooShort) && v.Rhythm == AF
+}
+
 // byRole picks the readings apart and checks there is at most one of each.
 func byRole(rs []Reading) (first, second, adj *Reading, err error) {
 	for i := range rs {

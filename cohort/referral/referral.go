@@ -99,8 +99,10 @@ type Recording struct {
 	Auto      overread.Auto // the recorder's own interpretation
 }
 
-// OverRead is the effective over-read of the recording: the adjudication
-// when there is one, else the first reader's.
+// OverRead is the recording's settled conclusion (overread.Resolve) as the
+// summary reports it: the rhythm settled on, named by the adjudication when
+// there is one, else by the first reader (alone or agreed with by the
+// second). Two readers who disagree settle nothing and give no OverRead.
 type OverRead struct {
 	Role       overread.Role // first or adjudication
 	Rhythm     overread.Rhythm
