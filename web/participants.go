@@ -12,6 +12,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/enrolment"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -203,14 +204,12 @@ func yesNo(b *bool) string {
 	return "no"
 }
 
-func verdictTone(v string) components.Tone {
+func verdictTone(v screen.Verdict) components.Tone {
 	switch v {
-	case "positive":
+	case screen.Positive:
 		return components.Alarm
-	case "negative":
+	case screen.Negative:
 		return components.OK
-	case "insufficient":
-		return components.Neutral
 	}
 	return components.Neutral
 }
@@ -273,7 +272,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	for _, l := range lines {
 		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
 		row := views.TimelineRow{Week: l.Week, Dates: start.Format("Jan 2") + " – " + end.AddDate(0, 0, -1).Format("Jan 2"), Readings: l.Readings,
-			Verdict: l.Verdict, Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
+			Verdict: l.Verdict.Label(), Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
 			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
 		if l.WearHours > 0 {
 			row.WearHours = strconv.FormatFloat(l.WearHours, 'f', 1, 64)
@@ -301,7 +300,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 func defaultChartWeek(lines []db.WeekLine) int {
 	best := -1
 	for _, l := range lines {
-		if l.Verdict == "positive" {
+		if l.Verdict == screen.Positive {
 			best = l.Week
 		}
 	}
