@@ -2,7 +2,6 @@ package ecg
 
 import (
 	"bytes"
-	"errors"
 	"fmt"
 	"math"
 	"strconv"
@@ -174,13 +173,13 @@ func ReadCSV(data []byte, opt CSVOptions) (Waveform, error) {
 		if len(fields) != cols {
 			return Waveform{}, fail(lineNo, "", "%d fields, want %d like line %d", len(fields), cols, firstDataLine)
 		}
-		v, err := parseCSVNumber(fields[cols-1])
+		v, err := parseDecimal(fields[cols-1])
 		if err != nil {
 			return Waveform{}, fail(lineNo, "sample", "%v", err)
 		}
 		samples = append(samples, v)
 		if timeCol {
-			t, err := parseCSVNumber(fields[0])
+			t, err := parseDecimal(fields[0])
 			if err != nil {
 				return Waveform{}, fail(lineNo, "time_s", "%v", err)
 			}
@@ -292,24 +291,6 @@ func hasLetter(s string) bool {
 func looksNumeric(s string) bool {
 	_, err := strconv.ParseFloat(s, 64)
 	return err == nil
-}
-
-// parseCSVNumber accepts finite decimal numbers only.
-func parseCSVNumber(s string) (float64, error) {
-	if s == "" {
-		return 0, errors.New("empty field, want a number")
-	}
-	for i := 0; i < len(s); i++ {
-		c := s[i]
-		if !(c >= '0' && c <= '9' || c == '.' || c == '-' || c == '+' || c == 'e' || c == 'E') {
-			return 0, fmt.Errorf("%q is not a number", s)
-		}
-	}
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsInf(v, 0) {
-		return 0, fmt.Errorf("%q is not a finite number", s)
-	}
-	return v, nil
 }
 
 func firstInvalidUTF8(b []byte) int {

@@ -148,26 +148,6 @@ func edfText(b []byte) string {
 	return strings.TrimSpace(sb.String())
 }
 
-// edfNumber parses a numeric header field: plain decimal notation only, so
-// that "NaN", "Inf" or hexadecimal floats are rejected like any other junk.
-func edfNumber(b []byte) (float64, error) {
-	s := strings.TrimSpace(string(b))
-	if s == "" {
-		return 0, errors.New("empty, want a number")
-	}
-	for i := 0; i < len(s); i++ {
-		c := s[i]
-		if !(c >= '0' && c <= '9' || c == '.' || c == '-' || c == '+' || c == 'e' || c == 'E') {
-			return 0, fmt.Errorf("%q is not a number", s)
-		}
-	}
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsInf(v, 0) {
-		return 0, fmt.Errorf("%q is not a number", s)
-	}
-	return v, nil
-}
-
 // edfInt parses an integer header field.
 func edfInt(b []byte) (int, error) {
 	s := strings.TrimSpace(string(b))
@@ -251,7 +231,7 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 	if nrec < -1 {
 		return f, r.fail("number of data records", edfOffRecords, 0, 0, fmt.Errorf("%d, want -1 or more", nrec))
 	}
-	dur, err := edfNumber(field(edfOffDuration, 8))
+	dur, err := parseDecimal(string(field(edfOffDuration, 8)))
 	if err != nil {
 		return f, r.fail("duration of a data record", edfOffDuration, 0, 0, err)
 	}
@@ -302,11 +282,11 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 		s.Annotation = s.Label == edfAnnotationLabel
 
 		o, b := at(3, i)
-		if s.PhysMin, err = edfNumber(b); err != nil {
+		if s.PhysMin, err = parseDecimal(string(b)); err != nil {
 			return f, r.fail("physical minimum", int64(o), i+1, 0, err)
 		}
 		o, b = at(4, i)
-		if s.PhysMax, err = edfNumber(b); err != nil {
+		if s.PhysMax, err = parseDecimal(string(b)); err != nil {
 			return f, r.fail("physical maximum", int64(o), i+1, 0, err)
 		}
 		o, b = at(5, i)

@@ -54,6 +54,17 @@ type SynthOptions struct {
 	SNRdB float64
 	// Seed makes the wander phase and the noise reproducible.
 	Seed uint64
+	// FirstBeatS and Seconds place the beats in a recording of a given
+	// length: the first R peak FirstBeatS seconds after the first sample
+	// (default: half of rr[0]) and Seconds of samples in all, exactly
+	// round(Seconds*RateHz) of them (default: up to half of the last
+	// interval after the last R peak, and one sample more). With Seconds
+	// the time after the last R peak is the start of an interval that the
+	// recording cuts off: the phase runs at the last interval's speed, slower
+	// when the tail is longer than that interval, and never reaches another
+	// QRS. A scripted recording of exactly 30 s then lasts 30 s, not a few
+	// samples less, which matters to the 30 s rule (MinDiagnosticSeconds).
+	FirstBeatS, Seconds float64
 }
 
 // Synthetic is a generated recording with its ground truth.
@@ -127,10 +138,16 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	}
 	scale := amp * 2 * math.Pi / peak
 
-	// R-peak times (s), from half the first interval on.
+	// R-peak times (s), from half the first interval on (or FirstBeatS).
 	n := len(rrMs)
 	rT := make([]float64, n+1)
 	rT[0] = rrMs[0] / 2000
+	if o.FirstBeatS != 0 {
+		if !(o.FirstBeatS > 0 && o.FirstBeatS < 10) {
+			return Synthetic{}, fmt.Errorf("ecg: synthesize: first beat at %g s, want more than 0 and under 10 s", o.FirstBeatS)
+		}
+		rT[0] = o.FirstBeatS
+	}
 	for k := 0; k < n; k++ {
 		rT[k+1] = rT[k] + rrMs[k]/1000
 	}
@@ -138,6 +155,15 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	ns := int(math.Floor(total*fs)) + 1
 	if float64(ns-1)/fs > total {
 		ns--
+	}
+	if o.Seconds != 0 {
+		// The scripted length may end on the last beat; allow for the
+		// rounding of summing the intervals.
+		if !(o.Seconds >= rT[n]-1e-9 && o.Seconds <= MaxRecordingSeconds) {
+			return Synthetic{}, fmt.Errorf("ecg: synthesize: %g s of recording, want the last beat (at %g s) inside and at most %d s", o.Seconds, rT[n], MaxRecordingSeconds)
+		}
+		total = o.Seconds
+		ns = int(math.Round(total * fs))
 	}
 
 	// The phase speed is piecewise constant. Around every R peak (|theta| <
@@ -157,6 +183,9 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	type seg struct{ end, w float64 }
 	var segs []seg
 	q0 := math.Pi / 4 / wR(0)
+	if rT[0] <= q0 {
+		return Synthetic{}, fmt.Errorf("ecg: synthesize: first beat at %g s is inside its own QRS (%g s from the start at least)", rT[0], q0)
+	}
 	lead := 0.75 * math.Pi / (rT[0] - q0) // from -pi at t = 0 to -pi/4
 	segs = append(segs, seg{rT[0] - q0, lead}, seg{rT[0] + q0, wR(0)})
 	for k := 0; k < n; k++ {
@@ -167,7 +196,18 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 		}
 		segs = append(segs, seg{rT[k+1] - b, 1.5 * math.Pi / mid}, seg{rT[k+1] + b, wR(k + 1)})
 	}
-	segs = append(segs, seg{math.Inf(1), wR(n)})
+	tail := wR(n)
+	if o.Seconds != 0 {
+		// After the last QRS the phase runs as between beats of the last
+		// interval; a tail longer than that interval's span between QRS
+		// windows runs slower, to 90% of it, so no further QRS begins.
+		mid := segs[len(segs)-2].w
+		if left := total - segs[len(segs)-1].end; left > 0 && mid*left >= 1.5*math.Pi {
+			mid = 0.9 * 1.5 * math.Pi / left
+		}
+		tail = mid
+	}
+	segs = append(segs, seg{math.Inf(1), tail})
 
 	deriv := func(s [3]float64, w float64) [3]float64 {
 		x, y, z := s[0], s[1], s[2]

@@ -3,7 +3,6 @@ package screen
 import (
 	"fmt"
 	"math"
-	"reflect"
 	"strconv"
 	"strings"
 
@@ -232,85 +231,31 @@ type Change struct {
 const Absent = "(none)"
 
 // Diff lists the fields whose values differ from p (old) to other (new), in
-// the order fields appear in p, then fields only in other. It walks the
-// struct by reflection, so fields added later are covered without edits here.
+// the order fields appear in p, then fields only in other. It compares
+// Params, so fields added later are covered without edits here.
 func (p Protocol) Diff(other Protocol) []Change {
-	a, b := flatten(p), flatten(other)
+	a, b := p.Params(), other.Params()
 	bm := make(map[string]string, len(b))
 	for _, kv := range b {
-		bm[kv.path] = kv.val
+		bm[kv.Path] = kv.Value
 	}
 	am := make(map[string]bool, len(a))
 	var out []Change
 	for _, kv := range a {
-		am[kv.path] = true
-		nv, ok := bm[kv.path]
+		am[kv.Path] = true
+		nv, ok := bm[kv.Path]
 		if !ok {
-			out = append(out, Change{Field: kv.path, Old: kv.val, New: Absent})
-		} else if nv != kv.val {
-			out = append(out, Change{Field: kv.path, Old: kv.val, New: nv})
+			out = append(out, Change{Field: kv.Path, Old: kv.Value, New: Absent})
+		} else if nv != kv.Value {
+			out = append(out, Change{Field: kv.Path, Old: kv.Value, New: nv})
 		}
 	}
 	for _, kv := range b {
-		if !am[kv.path] {
-			out = append(out, Change{Field: kv.path, Old: Absent, New: kv.val})
+		if !am[kv.Path] {
+			out = append(out, Change{Field: kv.Path, Old: Absent, New: kv.Value})
 		}
 	}
 	return out
-}
-
-type pathValue struct{ path, val string }
-
-// flatten lists every leaf of the protocol under its JSON path.
-func flatten(p Protocol) []pathValue {
-	var out []pathValue
-	flattenValue(reflect.ValueOf(p), "", &out)
-	return out
-}
-
-func flattenValue(v reflect.Value, path string, out *[]pathValue) {
-	switch v.Kind() {
-	case reflect.Struct:
-		t := v.Type()
-		for i := range t.NumField() {
-			sf := t.Field(i)
-			if !sf.IsExported() {
-				continue
-			}
-			name, _, _ := strings.Cut(sf.Tag.Get("json"), ",")
-			if name == "-" {
-				continue
-			}
-			if sf.Anonymous && name == "" {
-				flattenValue(v.Field(i), path, out) // inline, as encoding/json does
-				continue
-			}
-			if name == "" {
-				name = sf.Name
-			}
-			child := name
-			if path != "" {
-				child = path + "." + name
-			}
-			flattenValue(v.Field(i), child, out)
-		}
-	case reflect.Slice, reflect.Array:
-		for i := range v.Len() {
-			flattenValue(v.Index(i), fmt.Sprintf("%s[%d]", path, i), out)
-		}
-	case reflect.Bool:
-		*out = append(*out, pathValue{path, strconv.FormatBool(v.Bool())})
-	case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64:
-		*out = append(*out, pathValue{path, strconv.FormatInt(v.Int(), 10)})
-	case reflect.Uint, reflect.Uint8, reflect.Uint16, reflect.Uint32, reflect.Uint64:
-		*out = append(*out, pathValue{path, strconv.FormatUint(v.Uint(), 10)})
-	case reflect.Float32, reflect.Float64:
-		*out = append(*out, pathValue{path, strconv.FormatFloat(v.Float(), 'g', -1, 64)})
-	case reflect.String:
-		*out = append(*out, pathValue{path, v.String()})
-	default:
-		*out = append(*out, pathValue{path, fmt.Sprint(v.Interface())})
-	}
 }
 
 // Sweepable lists the parameters Sweep can vary, as JSON paths; "windows[i]"

@@ -19,6 +19,16 @@ const (
 	Insufficient Verdict = "insufficient"
 )
 
+// Label is the verdict's word on pages, summaries and reports: the stored
+// word itself; "" (a week not screened) stays "", another value is quoted.
+func (v Verdict) Label() string {
+	switch v {
+	case Positive, Negative, Insufficient, "":
+		return string(v)
+	}
+	return strconv.Quote(string(v))
+}
+
 // ParseVerdict reads a verdict word in any letter case, with surrounding
 // spaces ignored, as files from other algorithms write it.
 func ParseVerdict(s string) (Verdict, error) {

@@ -516,3 +516,14 @@ func TestBaseline(t *testing.T) {
 		}
 	}
 }
+
+// The verdict's label is its stored word (pages, summaries and the referral
+// digest show these words unchanged); an unscreened week has none, and an
+// unknown value shows quoted rather than passing for a verdict.
+func TestVerdictLabel(t *testing.T) {
+	for v, want := range map[Verdict]string{Positive: "positive", Negative: "negative", Insufficient: "insufficient", "": "", "maybe": `"maybe"`} {
+		if got := v.Label(); got != want {
+			t.Errorf("Verdict(%q).Label() = %q, want %q", string(v), got, want)
+		}
+	}
+}
