@@ -29,8 +29,8 @@ func (s *Server) routes() []route {
 		{"GET", "/account", account, s.accountHome},
 		{"GET", "/account/password", account, s.passwordForm},
 		{"POST", "/account/password", account, s.passwordChange},
-		{"GET", "/account/second-factor", account, s.enrolForm},
-		{"POST", "/account/second-factor", account, s.enrol},
+		{"GET", "/account/second-factor", account, s.secondFactorForm},
+		{"POST", "/account/second-factor", account, s.secondFactorSetUp},
 
 		{"GET", "/", everyone, s.home},
 
