@@ -30,9 +30,9 @@ type secondFactorStore interface {
 // Session keys of the sign-in between the password and the code, and of an
 // second factor being set up.
 const (
-	sessionPendingUser = "pending_uid"  // password right, code still owed
-	sessionPendingNext = "pending_next" // where to go after the code
-	sessionPendingAt   = "pending_at"   // when the password was accepted (Unix seconds)
+	sessionPendingUser = "pending_uid"          // password right, code still owed
+	sessionPendingNext = "pending_next"         // where to go after the code
+	sessionPendingAt   = "pending_at"           // when the password was accepted (Unix seconds)
 	sessionSetUpSecret = "second_factor_secret" // the sealed secret being set up
 	pendingTimeout     = 5 * time.Minute
 )
