@@ -229,9 +229,9 @@ func hintParams(ctx context.Context, q querier, protocolID int) (rr.Params, erro
 	}
 	var p screen.Protocol
 	if len(raw) > 0 && json.Unmarshal(raw, &p) == nil && p.RR.Params.Validate() == nil {
-		return p.RR.Params, nil
+		return p.RRParams(), nil
 	}
-	return rr.DefaultParams(), nil
+	return screen.DefaultProtocol().RRParams(), nil
 }
 
 // recordingAudit is a recording as the audit trail keeps it: no samples, no
