@@ -18,6 +18,9 @@ type Analysis struct {
 	// Beats are the R peaks (sample indices) found in the usable stretches.
 	Beats []int
 	Hint  RecordingHint
+	// Signal is the lead's number among the file's signals (SignalInfo);
+	// 0 for samples given directly.
+	Signal int
 }
 
 // Analyse takes one ECG lead through the steps of analysis, in this order:

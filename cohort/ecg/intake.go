@@ -323,6 +323,7 @@ func analyseContents(c Contents, format string, digest []byte, p rr.Params) (*Si
 			c.Warnings = append(c.Warnings, fmt.Sprintf("lead %q was not analysed: %s", w.Label, strings.TrimSuffix(msg, ".")))
 			continue
 		}
+		a.Signal = l.Signal
 		if i == c.Chosen {
 			sig.Lead = len(sig.Leads)
 		}
