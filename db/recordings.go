@@ -49,15 +49,15 @@ type Recording struct {
 	// ESC AF guidelines). Readings may be entered, but none counts as a
 	// diagnostic over-read: the case does not move on and the figures leave
 	// it out.
-	TooShort   bool
-	Format     string // "", "edf", "edf+", "csv" or "samples"
-	FileName   string // may identify someone; shown only to roles that see PHI
-	SHA256     string // hex digest of the uploaded file
-	RateHz     float64
-	LeadLabel  string
-	Source     string
-	Beats      []int // R-peak sample indices
-	Hint       ecg.RecordingHint
+	TooShort  bool
+	Format    string // "", "edf", "edf+", "csv" or "samples"
+	FileName  string // may identify someone; shown only to roles that see PHI
+	SHA256    string // hex digest of the uploaded file
+	RateHz    float64
+	LeadLabel string
+	Source    string
+	Beats     []int // R-peak sample indices
+	Hint      ecg.RecordingHint
 	// Signals lists every signal of the uploaded file; nil for recordings
 	// stored before signals were listed.
 	Signals []ecg.SignalInfo
