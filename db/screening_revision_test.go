@@ -65,16 +65,7 @@ func TestStoredResultKeepsItsRevision(t *testing.T) {
 	if v.Params.Revision != 0 {
 		t.Fatalf("a version stored without a revision reads as %d", v.Params.Revision)
 	}
-	part, _ := s.Participant(ctx, pid)
-	wk, err := s.WearWeek(ctx, part, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := screen.Screen(&wk, v.Params, fixedNow.UnixMilli(), nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	again, _ := json.Marshal(res)
+	res, again := screenStored(t, s, pid, 1, v.Params)
 	if string(again) != stored[0].result {
 		t.Fatalf("recomputed result differs from the stored one:\nstored %.400s\nagain  %.400s", stored[0].result, again)
 	}

@@ -413,8 +413,15 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 	if err == nil {
 		_, err = s.store.AddOverRead(r.Context(), s.actor(r), id, in)
 	}
+	return s.recordingDone(w, r, id, err, "read", "The reading was not entered: ")
+}
+
+// recordingDone ends a form posted from a recording's page: back to the page
+// with the done message, or the page again with the refusal (prefix, then
+// the reasons beside their fields).
+func (s *Server) recordingDone(w http.ResponseWriter, r *http.Request, id int64, err error, done, prefix string) error {
 	if err == nil {
-		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=read", id), http.StatusSeeOther)
+		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=%s", id, done), http.StatusSeeOther)
 		return nil
 	}
 	f, ok := refused(r, err, nil)
@@ -425,7 +432,7 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 	if lerr != nil {
 		return lerr
 	}
-	return s.renderRecording(w, r, rec, f.Status, f.Fields, "The reading was not entered: "+f.Message)
+	return s.renderRecording(w, r, rec, f.Status, f.Fields, prefix+f.Message)
 }
 
 // signalsView lists the signals of a recording's file and, when it held
@@ -486,17 +493,5 @@ func (s *Server) recordingLead(w http.ResponseWriter, r *http.Request) error {
 	} else {
 		_, err = s.store.ChooseRecordingLead(r.Context(), s.actor(r), id, lead)
 	}
-	if err == nil {
-		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=lead", id), http.StatusSeeOther)
-		return nil
-	}
-	f, ok := refused(r, err, nil)
-	if !ok {
-		return err
-	}
-	rec, lerr := s.store.Recording(r.Context(), id)
-	if lerr != nil {
-		return lerr
-	}
-	return s.renderRecording(w, r, rec, f.Status, f.Fields, "The lead was not changed: "+f.Message)
+	return s.recordingDone(w, r, id, err, "lead", "The lead was not changed: ")
 }

@@ -1,12 +1,9 @@
 package web
 
 import (
-	"bytes"
 	"context"
 	"fmt"
-	"io"
 	"math"
-	"mime/multipart"
 	"net/http"
 	"net/url"
 	"slices"
@@ -18,36 +15,6 @@ import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
 )
-
-// postFiles posts the intake form with several files in its waveform field,
-// as a browser sends a multiple file choice.
-func (a *app) postFiles(c *http.Client, path string, fields map[string]string, files map[string][]byte) (*http.Response, string) {
-	a.t.Helper()
-	var body bytes.Buffer
-	mw := multipart.NewWriter(&body)
-	for k, v := range fields {
-		mw.WriteField(k, v)
-	}
-	names := make([]string, 0, len(files))
-	for n := range files {
-		names = append(names, n)
-	}
-	slices.Sort(names)
-	for _, n := range names {
-		fw, _ := mw.CreateFormFile("waveform", n)
-		fw.Write(files[n])
-	}
-	mw.Close()
-	req, _ := http.NewRequest("POST", a.ts.URL+path, &body)
-	req.Header.Set("Content-Type", mw.FormDataContentType())
-	res, err := c.Do(req)
-	if err != nil {
-		a.t.Fatal(err)
-	}
-	defer res.Body.Close()
-	b, _ := io.ReadAll(res.Body)
-	return res, string(b)
-}
 
 // threeSignalEDF is an accelerometer, lead II and lead I (the latter two of
 // one synthetic ECG, lead II taller), in that order.
@@ -173,8 +140,8 @@ func TestRecordingWFDBAndQuality(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	res, body := a.postFiles(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": time.Now().UTC().Format("2006-01-02T15:04")},
-		map[string][]byte{"r9.hea": files.Header, "r9.dat": files.Signal})
+	res, body := a.postMultipart(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), [][2]string{{"taken_at", time.Now().UTC().Format("2006-01-02T15:04")}},
+		"waveform", []namedFile{{"r9.hea", files.Header}, {"r9.dat", files.Signal}})
 	if res.StatusCode != http.StatusSeeOther {
 		t.Fatalf("upload: %d\n%.2000s", res.StatusCode, body)
 	}

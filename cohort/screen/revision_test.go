@@ -18,21 +18,7 @@ func TestCoveredWear(t *testing.T) {
 	p := oneRule()
 	p.Revision = 1
 	p.MinWearHours = 0.01
-	s := testStart
-	l := 5 * minuteMs
-	w := emptyWeek()
-	for _, dt := range []int64{0, 10_000, 70_000, 80_000, 90_000} {
-		w.HR.Append(s+dt, 70)
-	}
-	for _, dt := range []int64{0, 10_000, 70_001, 80_000, 90_000} {
-		w.HR.Append(s+l+dt, 70)
-	}
-	for _, dt := range []int64{0, 10_000, 20_000, 30_000} {
-		w.HR.Append(s+2*l+dt, 70)
-	}
-	for _, dt := range []int64{0, 10_000, 20_000, 30_000, 40_000, 2*l - 40_000, 2*l - 30_000, 2*l - 20_000, 2*l - 10_000, 2*l - 1} {
-		w.HR.Append(s+3*l+dt, 70)
-	}
+	w := gapsWeek()
 	res := mustScreen(t, &w, p, nil)
 	got := res.Windows[0]
 	if got.Usable != 3 {
