@@ -478,8 +478,12 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 			}
 		}
 		if clipped > 0 {
-			h.Warnings = append(h.Warnings, fmt.Sprintf("signal %d %q: %d samples outside the digital range %d..%d were clipped to it",
-				num, sig.Label, clipped, sig.DigMin, sig.DigMax))
+			what := "samples"
+			if clipped == 1 {
+				what = "sample"
+			}
+			h.Warnings = append(h.Warnings, fmt.Sprintf("signal %d %q: %d %s outside the declared digital range %d..%d clipped to it",
+				num, sig.Label, clipped, what, sig.DigMin, sig.DigMax))
 		}
 		rate := float64(spr) / dur
 		lo, hi := phys(sig.DigMin), phys(sig.DigMax)
