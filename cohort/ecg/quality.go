@@ -289,7 +289,7 @@ func leadOff(x []float64, fs float64, set func(int, int, Artefact)) {
 	if len(finite) == 0 {
 		return
 	}
-	med := median(finite)
+	med := nthSmallest(finite, len(finite)/2) // the upper median: the level, not a figure to report
 	half := max(1, int(0.1*fs))
 	minRun := max(1, int(leadOffSeconds*fs))
 	// Running mean over [i-half, i+half], NaN samples left out.
@@ -458,7 +458,7 @@ func noise(x []float64, fs float64, set func(int, int, Artefact)) {
 	toSamples := func(k200 float64) int { return int(math.Round(k200 / ptRate * fs)) }
 	// Quiet windows: no QRS in 2 s.
 	win, hop := int(quietWindowSeconds*ptRate), int(noiseHopSeconds*ptRate)
-	if stats, med := bandStats(at, m, win, hop); med > 0 {
+	if stats, med := bandStats(at, m, win, hop, false); med > 0 {
 		for _, s := range stats {
 			if s.power > 0 && s.power < quietPowerRatio*med {
 				c0 := float64(s.from + (win-hop)/2)
@@ -470,7 +470,7 @@ func noise(x []float64, fs float64, set func(int, int, Artefact)) {
 	// (an artefact fades in and out: its edges hold too little of it to
 	// turn the kurtosis).
 	win = int(noiseWindowSeconds * ptRate)
-	stats, med := bandStats(at, m, win, hop)
+	stats, med := bandStats(at, m, win, hop, true)
 	floors := make([]float64, len(stats))
 	for i, s := range stats {
 		floors[i] = s.floor
@@ -513,9 +513,9 @@ type bandStat struct {
 }
 
 // bandStats measures windows of win samples every hop over the first m
-// samples of the band-passed signal at, and returns them with their median
-// power.
-func bandStats(at func(int) float64, m, win, hop int) ([]bandStat, float64) {
+// samples of the band-passed signal at (with the noise floor when floor is
+// set), and returns them with their median power.
+func bandStats(at func(int) float64, m, win, hop int, floor bool) ([]bandStat, float64) {
 	if m < win {
 		win = m
 	}
@@ -543,12 +543,47 @@ func bandStats(at func(int) float64, m, win, hop int) ([]bandStat, float64) {
 		if m2 > 0 {
 			k = m4 / (m2 * m2)
 		}
-		slices.Sort(mags)
-		stats = append(stats, bandStat{from, m2, k, mags[win/2]})
+		f := 0.0
+		if floor {
+			f = nthSmallest(mags, win/2)
+		}
+		stats = append(stats, bandStat{from, m2, k, f})
 		powers = append(powers, m2)
 	}
 	if len(stats) == 0 {
 		return nil, 0
 	}
 	return stats, median(powers)
+}
+
+// nthSmallest reorders x and returns its k-th smallest value (0-based), in
+// linear expected time (Hoare's selection with a middle pivot).
+func nthSmallest(x []float64, k int) float64 {
+	lo, hi := 0, len(x)-1
+	for lo < hi {
+		p := x[lo+(hi-lo)/2]
+		i, j := lo, hi
+		for i <= j {
+			for x[i] < p {
+				i++
+			}
+			for x[j] > p {
+				j--
+			}
+			if i <= j {
+				x[i], x[j] = x[j], x[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return x[k]
+		}
+	}
+	return x[k]
 }
