@@ -77,6 +77,7 @@ func (s *Server) routes() []route {
 
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
 		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
+		{"POST", "/recordings/{id}/lead", caseWork, s.recordingLead},
 		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
 		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
 		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},

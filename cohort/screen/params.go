@@ -92,6 +92,7 @@ var paramLabels = map[string]string{
 	"baseline.enabled":     "Raise thresholds to the participant's own first weeks",
 	"weeks":                "Baseline weeks (K)",
 	"factor":               "Threshold is at least this multiple of the baseline level",
+	"revision":             "Algorithm revision (0: whole usable windows count as wear, entropy bins in floating point; 1: wear is the time readings cover, exact entropy bins)",
 }
 
 // ParamLabel words a parameter path for pages (the protocol form, a

@@ -38,6 +38,29 @@ type Protocol struct {
 	// Baseline configures thresholds relative to the participant's own first
 	// weeks.
 	Baseline BaselineRule `json:"baseline"`
+	// Revision is the algorithm revision the protocol computes with. A
+	// correction to how the screen computes changes results, so it reaches
+	// them only through a protocol version that names the new revision:
+	// every stored result recomputes exactly under its own version.
+	//   - 0: the first screen. A usable window counts in full as wear;
+	//     entropy bin edges are computed in floating point.
+	//   - 1: usable wear is the time the readings cover (see
+	//     WindowResult.UsableHours); entropy bins whole-millisecond
+	//     intervals exactly (rr.Params.ExactBins).
+	// Versions stored before revisions existed have none and read as 0.
+	Revision int `json:"revision"`
+}
+
+// CurrentRevision is the newest algorithm revision, the one new protocols
+// take.
+const CurrentRevision = 1
+
+// RRParams are the beat-interval parameters as the protocol's revision
+// computes them: the one way to get parameters for rr.Analyse.
+func (p Protocol) RRParams() rr.Params {
+	q := p.RR.Params
+	q.ExactBins = p.Revision >= 1
+	return q
 }
 
 // WindowRule is the rule set of one window size. Windows are fixed and aligned
@@ -125,6 +148,7 @@ func DefaultProtocol() Protocol {
 			Params:            rr.DefaultParams(),
 		},
 		Baseline: BaselineRule{Enabled: false, Weeks: 2, Factor: 1.5}, // ours, illustrative
+		Revision: CurrentRevision,
 	}
 }
 
@@ -212,6 +236,9 @@ func (p Protocol) Validate() error {
 	}
 	if !finite(p.Baseline.Factor) || p.Baseline.Factor <= 0 {
 		e.Add("baseline.factor", "must be a finite number above 0")
+	}
+	if p.Revision < 0 || p.Revision > CurrentRevision {
+		e.Add("revision", fmt.Sprintf("must be an algorithm revision from 0 to %d (see the protocol notes)", CurrentRevision))
 	}
 	return e.Err()
 }
