@@ -8,6 +8,8 @@ import (
 	"strconv"
 	"strings"
 	"time"
+
+	"cohortdesk/cohort"
 )
 
 // The participant list: filters, orders and keyset pages.
@@ -16,7 +18,7 @@ import (
 type ParticipantFilter struct {
 	Search        string // study ID prefix; names too when WithNames
 	SiteID        int
-	Status        string // "", "active", "withdrawn"
+	Status        cohort.ParticipantStatus // "" for every status
 	PositiveWeeks int    // screen-positive within the last N study weeks (0: no filter)
 	OpenCase      bool
 	Sort          string // "study_id" (default), "enrolled", "site"
@@ -38,9 +40,9 @@ type ParticipantRow struct {
 type ParticipantPage struct {
 	Rows      []ParticipantRow
 	Next      string // cursor for the next page, "" at the end
-	Total     int64  // rows matching the filter
-	Active    int64
-	Withdrawn int64
+	Total int64 // rows matching the filter
+	// Status counts the rows matching the filter by cohort.StatusOf today.
+	Status map[cohort.ParticipantStatus]int64
 }
 
 // listOrder is one order of the participants list: the ORDER BY
@@ -66,7 +68,7 @@ var listOrders = map[string]listOrder{
 
 // ParticipantsWhere builds the filter's WHERE clause; it is shared by the page,
 // the counts and the CSV download so the three always agree.
-func (f ParticipantFilter) where(today time.Time) (string, []any) {
+func (f ParticipantFilter) where(today time.Time, statusDay cohort.Date, weeks int) (string, []any) {
 	conds := []string{"true"}
 	var args []any
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
@@ -84,11 +86,8 @@ func (f ParticipantFilter) where(today time.Time) (string, []any) {
 	if f.SiteID > 0 {
 		conds = append(conds, "p.site_id = "+arg(f.SiteID))
 	}
-	switch f.Status {
-	case "active":
-		conds = append(conds, "p.withdrawn_on IS NULL")
-	case "withdrawn":
-		conds = append(conds, "p.withdrawn_on IS NOT NULL")
+	if f.Status != "" {
+		conds = append(conds, participantStatus(arg(statusDay.String()), arg(weeks))+" = "+arg(string(f.Status)))
 	}
 	if f.PositiveWeeks > 0 {
 		// The active version as a value, so the positive results come from
@@ -138,13 +137,31 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		order = listOrders["study_id"]
 	}
 	today := s.now().UTC()
-	where, args := f.where(today)
-	var page ParticipantPage
-	// The filter reads participants only, so the counts need no join.
-	err := s.pool.QueryRow(ctx, `
-		SELECT count(*), count(*) FILTER (WHERE p.withdrawn_on IS NULL), count(*) FILTER (WHERE p.withdrawn_on IS NOT NULL)
-		FROM participants p WHERE `+where, args...).Scan(&page.Total, &page.Active, &page.Withdrawn)
+	day, weeks, err := s.statusDay(ctx, s.pool)
 	if err != nil {
+		return ParticipantPage{}, mapErr("participants", err)
+	}
+	where, args := f.where(today, day, weeks)
+	page := ParticipantPage{Status: map[cohort.ParticipantStatus]int64{}}
+	// The filter reads participants only, so the counts need no join.
+	n := len(args)
+	counts, err := s.pool.Query(ctx, fmt.Sprintf(`SELECT %s, count(*) FROM participants p WHERE %s GROUP BY 1`,
+		participantStatus(fmt.Sprintf("$%d", n+1), fmt.Sprintf("$%d", n+2)), where), append(args, day.String(), weeks)...)
+	if err != nil {
+		return page, mapErr("participants count", err)
+	}
+	for counts.Next() {
+		var st string
+		var k int64
+		if err := counts.Scan(&st, &k); err != nil {
+			counts.Close()
+			return page, mapErr("participants count", err)
+		}
+		page.Status[cohort.ParticipantStatus(st)] = k
+		page.Total += k
+	}
+	counts.Close()
+	if err := counts.Err(); err != nil {
 		return page, mapErr("participants count", err)
 	}
 	cmp, dir := ">", " ASC"

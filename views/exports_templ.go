@@ -141,7 +141,7 @@ func Exports(m ExportsModel) templ.Component {
 				return templ_7745c5c3_Err
 			}
 			if m.CanReferrals {
-				templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 6, "<section class=\"panel\" aria-labelledby=\"ready-h\" data-testid=\"ready-panel\"><h2 id=\"ready-h\">Referral summaries due</h2><p class=\"hint\">Cases still being worked whose ECG over-read confirms atrial fibrillation (the adjudication when there is one, else the first reader). A case becomes referred when an investigator signs its issued summary off.</p>")
+				templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 6, "<section class=\"panel\" aria-labelledby=\"ready-h\" data-testid=\"ready-panel\"><h2 id=\"ready-h\">Referral summaries due</h2><p class=\"hint\">Cases still being worked whose ECG over-read confirms atrial fibrillation (the adjudication when there is one, else the first reader). A summary is issued as a draft; the case becomes referred when an investigator signs it off, and only the signed summary is sent.</p>")
 				if templ_7745c5c3_Err != nil {
 					return templ_7745c5c3_Err
 				}
@@ -226,7 +226,7 @@ func Exports(m ExportsModel) templ.Component {
 							return templ_7745c5c3_Err
 						}
 					}
-					templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 15, "</tbody></table><form method=\"post\" action=\"/exports/referrals\" class=\"inline\" data-testid=\"form-batch\"><div><label for=\"batch-paper\">Paper</label> <select id=\"batch-paper\" name=\"paper\"><option value=\"a4\">A4</option> <option value=\"letter\">US Letter</option></select></div><div><button type=\"submit\" data-testid=\"batch-referrals\" data-confirm=\"Issue a summary for every case listed and download them as one zip of PDFs?\">Issue all and download (zip of PDFs)</button></div></form>")
+					templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 15, "</tbody></table><form method=\"post\" action=\"/exports/referrals\" class=\"inline\" data-testid=\"form-batch\"><div><label for=\"batch-paper\">Paper</label> <select id=\"batch-paper\" name=\"paper\"><option value=\"a4\">A4</option> <option value=\"letter\">US Letter</option></select></div><div><button type=\"submit\" data-testid=\"batch-referrals\" data-confirm=\"Issue a draft summary for every case listed and download them as one zip of PDFs? Each is sent once an investigator has signed it off.\">Issue all as drafts and download (zip of PDFs)</button></div></form>")
 					if templ_7745c5c3_Err != nil {
 						return templ_7745c5c3_Err
 					}
