@@ -19,7 +19,7 @@ type ParticipantFilter struct {
 	Search        string // study ID prefix; names too when WithNames
 	SiteID        int
 	Status        cohort.ParticipantStatus // "" for every status
-	PositiveWeeks int    // screen-positive within the last N study weeks (0: no filter)
+	PositiveWeeks int                      // screen-positive within the last N study weeks (0: no filter)
 	OpenCase      bool
 	Sort          string // "study_id" (default), "enrolled", "site"
 	Desc          bool
@@ -38,9 +38,9 @@ type ParticipantRow struct {
 
 // ParticipantPage is one page of the list with the counts of the whole filter.
 type ParticipantPage struct {
-	Rows      []ParticipantRow
-	Next      string // cursor for the next page, "" at the end
-	Total int64 // rows matching the filter
+	Rows  []ParticipantRow
+	Next  string // cursor for the next page, "" at the end
+	Total int64  // rows matching the filter
 	// Status counts the rows matching the filter by cohort.StatusOf today.
 	Status map[cohort.ParticipantStatus]int64
 }

@@ -42,8 +42,8 @@ type Confirmations struct {
 	// at most the limit; UnreadCount counts them all.
 	Unread      []QueueRecording
 	UnreadCount int
-	Disagreed []QueueRecording
-	Recent    []RecentOverRead
+	Disagreed   []QueueRecording
+	Recent      []RecentOverRead
 }
 
 // Confirmations reads the work lists, at most limit rows each.

@@ -30,8 +30,8 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	m := views.HomeModel{
-		Page: s.page(r, "Overview", "home"),
-		AsOf: "at " + s.now().UTC().Format("2006-01-02 15:04 UTC"),
+		Page:  s.page(r, "Overview", "home"),
+		AsOf:  "at " + s.now().UTC().Format("2006-01-02 15:04 UTC"),
 		Tiles: []views.Tile{{Key: "participants", Label: "participants enrolled", Value: c.Participants}},
 	}
 	list := s.may(r, "/cases")
