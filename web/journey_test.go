@@ -291,6 +291,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	}
 	b.Do("choose AF",
 		chromedp.Click(chromedp.CSS(`input[name="rhythm"][value="af"]`)),
+		chromedp.SetValue(chromedp.ID("confidence"), "certain"),
 		chromedp.SetValue(chromedp.ID("comment"), "Irregularly irregular; the participant ("+f.phone+") was told."),
 	)
 	tb.follow("enter the over-read", `[data-testid="enter-over-read"]`, `[data-testid="readings"]`)

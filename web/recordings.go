@@ -10,6 +10,7 @@ import (
 	"strings"
 	"time"
 
+	"cohortdesk/assets"
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/ecg"
@@ -31,6 +32,7 @@ type recordingStore interface {
 	RecordingWaveform(ctx context.Context, id int64) (ecg.Waveform, error)
 	AddOverRead(ctx context.Context, a cohort.Actor, recordingID int64, in db.OverReadInput) (db.Recording, error)
 	Confirmations(ctx context.Context, limit int) (db.Confirmations, error)
+	overReadTools
 	Agreement(ctx context.Context, f cascade.Filter) (cascade.Agreement, error)
 }
 
@@ -217,8 +219,11 @@ func (s *Server) recordingShow(w http.ResponseWriter, r *http.Request) error {
 }
 
 var recordingDone = map[string]string{
-	"added": "Recording stored.",
-	"read":  "Reading entered.",
+	"added":      "Recording stored.",
+	"read":       "Reading entered.",
+	"read-next":  "Reading entered. This is the next recording waiting for an over-read.",
+	"revised":    "Correction saved. The earlier reading is kept below.",
+	"not-needed": "Marked as needing no over-read: the recording has left the over-read list.",
 }
 
 func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.Recording, status int, errs map[string]string, msg string) error {
@@ -273,6 +278,8 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		}
 		caption := fmt.Sprintf("25 mm/s · 10 mm/mV · %s · %d beats detected (ticks above the trace)", seconds(rec.DurationS), len(rec.Beats))
 		m.HasStrip, m.Strip = true, stripView(fmt.Sprintf("rec%d", rec.ID), ecg.Layout(wf, rec.Beats, ecg.StripOptions{}), caption)
+		m.Strip.Tools = true
+		m.Page.Scripts = append(m.Page.Scripts, assets.URL("js/strip.js"))
 	}
 	m.Readings = readingViews(rec)
 	u, _ := userFrom(ctx)
@@ -285,8 +292,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	case next == overread.Second && rec.Readings[0].ReaderID == u.ID:
 		m.FormNote = "You gave the first reading. A second reading, if the study wants one, comes from another investigator."
 	default:
-		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain),
-			MaxComment: overread.MaxCommentChars}
+		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, MaxComment: overread.MaxCommentChars}
 		if r.PostForm.Get("role") == string(next) {
 			// A refused entry: show it again.
 			f.Rhythm, f.Comment = r.PostForm.Get("rhythm"), r.PostForm.Get("comment")
@@ -312,6 +318,9 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 			f.Confidences = append(f.Confidences, views.Option{Value: string(c), Label: c.Label()})
 		}
 		m.Form = f
+	}
+	if err := s.overReadTools(r, rec, &m); err != nil {
+		return err
 	}
 	s.render(w, r, status, views.RecordingPage(m))
 	return nil
@@ -385,8 +394,7 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 		_, err = s.store.AddOverRead(r.Context(), s.actor(r), id, in)
 	}
 	if err == nil {
-		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=read", id), http.StatusSeeOther)
-		return nil
+		return s.afterReading(w, r, id)
 	}
 	f, ok := refused(r, err, nil)
 	if !ok {

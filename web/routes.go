@@ -70,6 +70,8 @@ func (s *Server) routes() []route {
 
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
 		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
+		{"POST", "/recordings/{id}/over-reads/revise", clinical, s.recordingRevise},
+		{"POST", "/recordings/{id}/not-needed", clinical, s.recordingNotNeeded},
 		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
 		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
 		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},
