@@ -597,7 +597,8 @@ func TestKeyboardWorksTriage(t *testing.T) {
 			break
 		}
 	}
-	want := []string{" a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
+	// The study ID, the contact details (issue 19), then the forms.
+	want := []string{" a", " a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
 	if !slices.Equal(inRow, want) {
 		t.Errorf("Tab order in the row %q, want %q", inRow, want)
 	}

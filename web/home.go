@@ -49,12 +49,13 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.Tiles = append(m.Tiles, waiting)
 	if s.may(r, "/triage") {
-		t, err := s.store.Triage(ctx, 1)
+		u, _ := userFrom(ctx)
+		t, err := s.store.Triage(ctx, 1, u.ID)
 		if err != nil {
 			return err
 		}
 		for _, g := range triageGroups {
-			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.title, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
+			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.tile, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
 		}
 		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: "other cases, on schedule", Value: int64(t.Counts[followup.BucketOther]), Href: "/cases"})
 		m.WorkNote = fmt.Sprintf("As of %s, %s (%s); the triage page lists them in order of urgency.",

@@ -54,6 +54,7 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/bulk/assign", caseWork, s.casesBulkAssign},
 		{"POST", "/cases/bulk/letter", coordWork, s.casesBulkLetter},
 		{"GET", "/cases/{id}", caseWork, s.caseShow},
+		{"GET", "/cases/{id}/contact", caseWork, s.caseContact},
 		{"POST", "/cases/{id}/assign", caseWork, s.caseAssign},
 		{"POST", "/cases/{id}/attempts", coordWork, s.caseAttempt},
 		{"POST", "/cases/{id}/move", caseWork, s.caseMove},
