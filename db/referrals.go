@@ -342,6 +342,14 @@ func (s *Store) Referrals(ctx context.Context, limit int) ([]Referral, error) {
 	return out, mapErr("referrals", err)
 }
 
+// ReferralCounts counts the summaries issued and those signed off; each
+// signed-off summary of a case referred that case (one per case).
+func (s *Store) ReferralCounts(ctx context.Context) (issued, signed int, err error) {
+	err = s.pool.QueryRow(ctx, `SELECT count(*), count(*) FILTER (WHERE signed_off_at IS NOT NULL AND case_id IS NOT NULL) FROM referrals`).
+		Scan(&issued, &signed)
+	return issued, signed, mapErr("referral counts", err)
+}
+
 // ReadyCase is a case ready to refer.
 type ReadyCase struct {
 	CaseID        int64

@@ -28,6 +28,7 @@ type referralStore interface {
 	referralissue.Store // the source of a summary and its record
 	Referral(ctx context.Context, id int64) (db.Referral, error)
 	Referrals(ctx context.Context, limit int) ([]db.Referral, error)
+	ReferralCounts(ctx context.Context) (issued, signed int, err error)
 	ReadyToRefer(ctx context.Context) ([]db.ReadyCase, error)
 	referralissue.Signer // the sign-off
 	ParticipantByStudyID(ctx context.Context, studyID string) (db.Participant, error)
