@@ -39,7 +39,7 @@ func triageList(tb testing.TB) (items []TriageItem, now time.Time) {
 		// the person's own cases with nothing urgent, earliest deadline first
 		{CaseID: "c19", StudyID: "S-0900", State: Reached, Owner: "me", Due: t("2026-04-17 00:00"), Mine: true},
 		{CaseID: "c20", StudyID: "S-0800", State: RecordingReceived, Owner: "me", Due: t("2026-04-20 00:00"), Mine: true}, // its recording read: a repeat is due
-		{CaseID: "c21", StudyID: "S-0100", State: OverRead, Owner: "me", Mine: true},                                       // nothing due: last of the group
+		{CaseID: "c21", StudyID: "S-0100", State: OverRead, Owner: "me", Mine: true},                                      // nothing due: last of the group
 		// the rest by due date, nothing due last
 		{CaseID: "c15", StudyID: "S-0600", State: Open, Owner: "coord-2", FlaggedAt: t("2026-04-01 08:00"), Due: t("2026-04-17 00:00")},
 		{CaseID: "c16", StudyID: "S-0060", State: RecorderSent, Owner: "coord-3", Due: t("2026-04-27 00:00")},
