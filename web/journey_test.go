@@ -299,11 +299,15 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 		t.Fatalf("verdict after the over-read %q", v)
 	}
 
-	// Investigator: issue the summary from the exports page, sign it off.
+	// Investigator: issue the summary from the exports page, sign it off,
+	// counting the clicks (issue 19: eight before issuing led to the
+	// sign-off and it asked twice).
+	clicks := 0
 	summary := fmt.Sprintf(`[data-testid="ready-table"] a[href="/participants/%d/referral?case=%d"]`, f.pid, f.caseID)
 	tb.follow("the case is due a summary", `[data-testid="nav-exports"]`, summary)
 	tb.follow("preview the summary", summary, `[data-testid="preview-mark"]`)
 	tb.follow("issue the summary: its record, a draft, with the sign-off", `[data-testid="issue-referral"]`, `[data-testid="form-signoff"]`)
+	clicks += 3
 	if !tb.has(`[data-testid="draft-mark"]`) {
 		t.Error("the issued summary is not marked as a draft before its sign-off")
 	}
@@ -316,7 +320,12 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 		t.Errorf("digest check %q", got)
 	}
 	b.Do("tick the review box", chromedp.Click(chromedp.CSS(`[data-testid="form-signoff"] input[name="reviewed"]`)))
-	tb.follow("sign it off", `[data-testid="sign-off"]`, `[data-testid="signoff-state"]`)
+	tb.follow("sign it off", `[data-testid="sign-off"]`, `[data-testid="signed-mark"]`)
+	clicks += 2
+	t.Logf("sign off a referral: %d clicks from the exports link", clicks)
+	if clicks != 5 {
+		t.Errorf("signing off took %d clicks, want 5", clicks)
+	}
 	if tb.has(`[data-testid="form-signoff"]`) {
 		t.Fatal("the sign-off form is still offered after the sign-off")
 	}
