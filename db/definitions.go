@@ -35,6 +35,31 @@ func participantStatus(today, weeks string) string {
 		cohort.StatusWithdrawn, cohort.StatusCompleted, cohort.StatusActive, weeks, today)
 }
 
+// participantsByStatus counts the participants p matching where (with its
+// args) by their status on the day today, for the study's weeks of
+// follow-up: the one count of participants by status (the start page, the
+// participants list).
+func participantsByStatus(ctx context.Context, q querier, where string, args []any, today cohort.Date, weeks int) (map[cohort.ParticipantStatus]int64, int64, error) {
+	n := len(args)
+	rows, err := q.Query(ctx, fmt.Sprintf(`SELECT %s, count(*) FROM participants p WHERE %s GROUP BY 1`,
+		participantStatus(fmt.Sprintf("$%d", n+1), fmt.Sprintf("$%d", n+2)), where), append(args[:n:n], today.String(), weeks)...)
+	if err != nil {
+		return nil, 0, err
+	}
+	defer rows.Close()
+	out, total := map[cohort.ParticipantStatus]int64{}, int64(0)
+	for rows.Next() {
+		var st string
+		var k int64
+		if err := rows.Scan(&st, &k); err != nil {
+			return nil, 0, err
+		}
+		out[cohort.ParticipantStatus(st)] = k
+		total += k
+	}
+	return out, total, rows.Err()
+}
+
 // statusDay is the day and the weeks of follow-up participantStatus counts
 // with: today in the study's zone.
 func (s *Store) statusDay(ctx context.Context, q querier) (cohort.Date, int, error) {

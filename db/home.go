@@ -23,27 +23,12 @@ type Counts struct {
 
 // Counts reads the headline figures.
 func (s *Store) Counts(ctx context.Context) (Counts, error) {
-	c := Counts{Status: map[cohort.ParticipantStatus]int64{}}
+	var c Counts
 	today, weeks, err := s.statusDay(ctx, s.pool)
 	if err != nil {
 		return c, mapErr("counts", err)
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+participantStatus("$1", "$2")+` AS status, count(*) FROM participants p GROUP BY 1`, today.String(), weeks)
-	if err != nil {
-		return c, mapErr("counts", err)
-	}
-	for rows.Next() {
-		var st string
-		var n int64
-		if err := rows.Scan(&st, &n); err != nil {
-			rows.Close()
-			return c, mapErr("counts", err)
-		}
-		c.Status[cohort.ParticipantStatus(st)] = n
-		c.Participants += n
-	}
-	rows.Close()
-	if err := rows.Err(); err != nil {
+	if c.Status, c.Participants, err = participantsByStatus(ctx, s.pool, "true", nil, today, weeks); err != nil {
 		return c, mapErr("counts", err)
 	}
 	if err := s.pool.QueryRow(ctx, `SELECT count(*) FROM sites`).Scan(&c.Sites); err != nil {
@@ -52,7 +37,7 @@ func (s *Store) Counts(ctx context.Context) (Counts, error) {
 	if c.AwaitingRead, err = countAwaitingRead(ctx, s.pool); err != nil {
 		return c, mapErr("counts", err)
 	}
-	rows, err = s.pool.Query(ctx, `SELECT state, count(*) FROM cases GROUP BY state`)
+	rows, err := s.pool.Query(ctx, `SELECT state, count(*) FROM cases GROUP BY state`)
 	if err != nil {
 		return c, mapErr("case counts", err)
 	}

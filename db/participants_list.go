@@ -142,26 +142,9 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		return ParticipantPage{}, mapErr("participants", err)
 	}
 	where, args := f.where(today, day, weeks)
-	page := ParticipantPage{Status: map[cohort.ParticipantStatus]int64{}}
+	var page ParticipantPage
 	// The filter reads participants only, so the counts need no join.
-	n := len(args)
-	counts, err := s.pool.Query(ctx, fmt.Sprintf(`SELECT %s, count(*) FROM participants p WHERE %s GROUP BY 1`,
-		participantStatus(fmt.Sprintf("$%d", n+1), fmt.Sprintf("$%d", n+2)), where), append(args, day.String(), weeks)...)
-	if err != nil {
-		return page, mapErr("participants count", err)
-	}
-	for counts.Next() {
-		var st string
-		var k int64
-		if err := counts.Scan(&st, &k); err != nil {
-			counts.Close()
-			return page, mapErr("participants count", err)
-		}
-		page.Status[cohort.ParticipantStatus(st)] = k
-		page.Total += k
-	}
-	counts.Close()
-	if err := counts.Err(); err != nil {
+	if page.Status, page.Total, err = participantsByStatus(ctx, s.pool, where, args, day, weeks); err != nil {
 		return page, mapErr("participants count", err)
 	}
 	cmp, dir := ">", " ASC"

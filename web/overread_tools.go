@@ -113,16 +113,8 @@ func (s *Server) recordingRevise(w http.ResponseWriter, r *http.Request) error {
 		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=revised", id), http.StatusSeeOther)
 		return nil
 	}
-	f, ok := refused(r, err, nil)
-	if !ok {
-		return err
-	}
-	f = f.renamed(map[string]string{"rhythm": "revise-rhythm", "confidence": "revise-confidence", "reason": "revise-reason"})
-	rec, lerr := s.store.Recording(r.Context(), id)
-	if lerr != nil {
-		return lerr
-	}
-	return s.renderRecording(w, r, rec, f.Status, f.Fields, "The correction was not saved: "+f.Message)
+	return s.refuseOnRecording(w, r, id, err, "The correction was not saved: ",
+		map[string]string{"rhythm": "revise-rhythm", "confidence": "revise-confidence", "reason": "revise-reason"})
 }
 
 // recordingNotNeeded takes a recording off the over-read list, with the
@@ -140,13 +132,5 @@ func (s *Server) recordingNotNeeded(w http.ResponseWriter, r *http.Request) erro
 		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=not-needed", id), http.StatusSeeOther)
 		return nil
 	}
-	f, ok := refused(r, err, nil)
-	if !ok {
-		return err
-	}
-	rec, lerr := s.store.Recording(r.Context(), id)
-	if lerr != nil {
-		return lerr
-	}
-	return s.renderRecording(w, r, rec, f.Status, f.Fields, "The recording stays on the over-read list: "+f.Message)
+	return s.refuseOnRecording(w, r, id, err, "The recording stays on the over-read list: ", nil)
 }

@@ -396,13 +396,21 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 	if err == nil {
 		return s.afterReading(w, r, id)
 	}
+	return s.refuseOnRecording(w, r, id, err, "The reading was not entered: ", nil)
+}
+
+// refuseOnRecording shows the recording page again with why a form on it
+// was refused (the fields renamed to the form's where they differ); an
+// error that is no refusal is returned as it is.
+func (s *Server) refuseOnRecording(w http.ResponseWriter, r *http.Request, id int64, err error, lead string, rename map[string]string) error {
 	f, ok := refused(r, err, nil)
 	if !ok {
 		return err
 	}
+	f = f.renamed(rename)
 	rec, lerr := s.store.Recording(r.Context(), id)
 	if lerr != nil {
 		return lerr
 	}
-	return s.renderRecording(w, r, rec, f.Status, f.Fields, "The reading was not entered: "+f.Message)
+	return s.renderRecording(w, r, rec, f.Status, f.Fields, lead+f.Message)
 }

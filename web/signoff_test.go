@@ -105,3 +105,27 @@ func TestReferralOnlyThroughSignOff(t *testing.T) {
 		t.Errorf("case after the sign-off: %s", c.State)
 	}
 }
+
+// TestOneWayToEachStep (issue 19, finding 8: "Move to recording received"
+// and "Record return" were two ways to one step): a case whose recorder is
+// out offers the return, and no move; a move to "recording received" by
+// hand is refused with the way to get there.
+func TestOneWayToEachStep(t *testing.T) {
+	a := newApp(t)
+	ids := shippedCases(t, a, 1)
+	coord := a.signIn(cohort.Coordinator)
+	path := fmt.Sprintf("/cases/%d", ids[0])
+	_, page := a.get(coord, path)
+	if !strings.Contains(page, `data-testid="form-return"`) || strings.Contains(page, `data-testid="form-move"`) ||
+		strings.Contains(page, `<option value="recording_received"`) {
+		t.Error("a case with the recorder out offers a move beside the return")
+	}
+	v := caseVersion(t, a, ids[0])
+	res, body := a.postFormBody(coord, path+"/move", url.Values{"version": {itoa(int64(v))}, "state": {"recording_received"}})
+	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, "record the recording&#39;s return") {
+		t.Errorf("a move to recording received by hand: status %d", res.StatusCode)
+	}
+	if caseVersion(t, a, ids[0]) != v {
+		t.Error("the refused move changed the case")
+	}
+}
