@@ -5,12 +5,14 @@ import (
 	"fmt"
 	"net/http"
 	"net/url"
+	"os"
 	"regexp"
 	"strings"
 	"testing"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/referral"
 )
 
 // TestReferralOnlyThroughSignOff (issue 19, finding 1 and the closing items
@@ -127,5 +129,47 @@ func TestOneWayToEachStep(t *testing.T) {
 	}
 	if caseVersion(t, a, ids[0]) != v {
 		t.Error("the refused move changed the case")
+	}
+}
+
+// TestSummaryIssuedBeforeDraftsStillVerifies (issue 19, finding 1): a
+// summary recorded before drafts existed (the content of
+// cohort/referral/testdata, with the digest that version recorded) and
+// signed off then, without signed content, still matches its digest, shows
+// no draft mark, and draws the PDF whose digest was recorded.
+func TestSummaryIssuedBeforeDraftsStillVerifies(t *testing.T) {
+	a := newApp(t)
+	ids := seedFollowUp(t, a.store, 1)
+	content, err := os.ReadFile("../cohort/referral/testdata/issued-before-label-fix.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	const digest = "bf278978be710b25721efcb68dff2c6cf0c3ea0b3369e96414a3b03c2302913f" // recorded then (cohort/referral TestIssuedBeforeTheLabelFix)
+	sum, err := referral.Decode(content)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pdf, err := referralPDF(sum, paperA4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var id int64
+	if err := a.store.Pool().QueryRow(context.Background(), `INSERT INTO referrals (participant_id, case_id, referral_code, content, content_sha256,
+		    format, paper, pdf_sha256, issued_by, issued_at, signed_off_by, signed_off_at)
+		SELECT participant_id, id, $2, $3, $4, 'pdf', 'a4', $5, 'Earlier Issuer', now() - interval '30 days', 'Earlier Signer', now() - interval '29 days'
+		FROM cases WHERE id = $1 RETURNING id`, ids[0], sum.ReferralCode, content, digest, sha256Hex(pdf)).Scan(&id); err != nil {
+		t.Fatal(err)
+	}
+	coord := a.signIn(cohort.Coordinator)
+	_, page := a.get(coord, fmt.Sprintf("/referrals/%d", id))
+	if !strings.Contains(page, "content as issued") || strings.Contains(page, `data-testid="draft-mark"`) || !strings.Contains(page, "Earlier Signer") {
+		t.Error("the earlier summary does not verify, or shows a draft mark, or loses its sign-off")
+	}
+	res, err := coord.Get(a.ts.URL + fmt.Sprintf("/referrals/%d/pdf", id))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := sha256Hex(body(t, res)); res.StatusCode != http.StatusOK || got != sha256Hex(pdf) {
+		t.Errorf("the earlier summary's PDF: status %d, digest %s, recorded %s", res.StatusCode, got, sha256Hex(pdf))
 	}
 }
