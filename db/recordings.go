@@ -70,6 +70,14 @@ type Recording struct {
 	CreatedAt  time.Time
 	Readings   []OverRead
 	Conclusion overread.Conclusion
+	// Revisions are the readings amended or withdrawn, as they were, oldest
+	// first (Recording fills them; lists leave them out).
+	Revisions []OverReadRevision
+	// NotNeeded is why the recording needs no over-read, "" when it is
+	// wanted; who said so and when.
+	NotNeeded   string
+	NotNeededBy string
+	NotNeededAt time.Time
 }
 
 // HasWaveform reports whether samples are stored.
@@ -129,7 +137,8 @@ func conclusionOf(id int64, os []OverRead) (overread.Conclusion, error) {
 const recordingCols = `r.id, r.case_id, r.participant_id, p.study_id, st.code, c.state, r.taken_at, r.received_at, r.duration_s,
 	r.auto_interpretation, r.too_short, r.waveform_format, r.file_name, coalesce(r.file_sha256, ''::bytea), coalesce(r.sampling_hz, 0),
 	r.lead_label, r.source, r.beats, r.hint, r.created_by, r.created_at,
-	coalesce(r.usable_s, r.duration_s), r.signals, coalesce(r.lead_index, -1)`
+	coalesce(r.usable_s, r.duration_s), r.signals, coalesce(r.lead_index, -1),
+	coalesce(r.read_not_needed_reason, ''), coalesce(r.read_not_needed_by, ''), r.read_not_needed_at`
 
 const recordingFrom = `recordings r
 	JOIN cases c ON c.id = r.case_id
@@ -145,12 +154,14 @@ func scanRecording(row pgx.Row) (Recording, error) {
 	var hint, signals []byte
 	var usable float32
 	var lead int16
+	var notNeededAt *time.Time
 	err := row.Scan(&r.ID, &r.CaseID, &r.ParticipantID, &r.StudyID, &r.SiteCode, &state, &r.TakenAt, &r.ReceivedAt, &dur,
 		&auto, &r.TooShort, &r.Format, &r.FileName, &sum, &rate, &r.LeadLabel, &r.Source, &beats, &hint, &r.CreatedBy, &r.CreatedAt,
-		&usable, &signals, &lead)
+		&usable, &signals, &lead, &r.NotNeeded, &r.NotNeededBy, &notNeededAt)
 	if err != nil {
 		return r, err
 	}
+	r.NotNeededAt = timeOf(notNeededAt)
 	r.CaseState, r.Auto = followup.State(state), overread.Auto(auto)
 	r.DurationS, r.RateHz, r.UsableS, r.Lead = float64(dur), float64(rate), float64(usable), int(lead)
 	if len(signals) > 0 {
@@ -206,6 +217,9 @@ func (s *Store) Recording(ctx context.Context, id int64) (Recording, error) {
 		if recs[0].Leads, err = leadsOf(ctx, s.pool, id); err != nil {
 			return Recording{}, mapErr("recording", err)
 		}
+	}
+	if recs[0].Revisions, err = revisionsOf(ctx, s.pool, id); err != nil {
+		return Recording{}, mapErr("recording", err)
 	}
 	return recs[0], nil
 }

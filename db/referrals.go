@@ -319,6 +319,11 @@ type Referral struct {
 	IssuedAt      time.Time
 	SignedOffBy   string
 	SignedOffAt   time.Time
+	// The content signed off (cohort/referral.Sign) with its digests; empty
+	// for a draft and for a summary signed off before drafts existed.
+	SignedContent       []byte // empty in lists
+	SignedContentSHA256 string
+	SignedPDFSHA256     string
 }
 
 // ReferralIssue is a summary to record as issued.
@@ -394,13 +399,14 @@ func actorID(a cohort.Actor) any {
 }
 
 const referralCols = `f.id, f.participant_id, p.study_id, coalesce(f.case_id, 0), coalesce(f.protocol_id, 0), f.referral_code,
-	f.content_sha256, f.format, f.paper, f.pdf_sha256, f.issued_by, f.issued_at, f.signed_off_by, f.signed_off_at`
+	f.content_sha256, f.format, f.paper, f.pdf_sha256, f.issued_by, f.issued_at, f.signed_off_by, f.signed_off_at,
+	coalesce(f.signed_content_sha256, ''), coalesce(f.signed_pdf_sha256, '')`
 
 func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 	var r Referral
 	var signed *time.Time
 	dest := []any{&r.ID, &r.ParticipantID, &r.StudyID, &r.CaseID, &r.ProtocolID, &r.Code, &r.ContentSHA256, &r.Format, &r.Paper,
-		&r.PDFSHA256, &r.IssuedBy, &r.IssuedAt, &r.SignedOffBy, &signed}
+		&r.PDFSHA256, &r.IssuedBy, &r.IssuedAt, &r.SignedOffBy, &signed, &r.SignedContentSHA256, &r.SignedPDFSHA256}
 	err := row.Scan(append(dest, extra...)...)
 	r.SignedOffAt = timeOf(signed)
 	return r, err
@@ -408,10 +414,10 @@ func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 
 // Referral returns one issued summary with its content.
 func (s *Store) Referral(ctx context.Context, id int64) (Referral, error) {
-	var content []byte
-	r, err := scanReferral(s.pool.QueryRow(ctx, `SELECT `+referralCols+`, f.content
-		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content)
-	r.Content = content
+	var content, signedContent []byte
+	r, err := scanReferral(s.pool.QueryRow(ctx, `SELECT `+referralCols+`, f.content, f.signed_content
+		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content, &signedContent)
+	r.Content, r.SignedContent = content, signedContent
 	return r, mapErr("referral", err)
 }
 
@@ -427,6 +433,14 @@ func (s *Store) Referrals(ctx context.Context, limit int) ([]Referral, error) {
 	}
 	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Referral, error) { return scanReferral(r) })
 	return out, mapErr("referrals", err)
+}
+
+// ReferralCounts counts the summaries issued and those signed off; each
+// signed-off summary of a case referred that case (one per case).
+func (s *Store) ReferralCounts(ctx context.Context) (issued, signed int, err error) {
+	err = s.pool.QueryRow(ctx, `SELECT count(*), count(*) FILTER (WHERE signed_off_at IS NOT NULL AND case_id IS NOT NULL) FROM referrals`).
+		Scan(&issued, &signed)
+	return issued, signed, mapErr("referral counts", err)
 }
 
 // ReadyCase is a case ready to refer.
@@ -477,24 +491,33 @@ func (s *Store) ReadyToRefer(ctx context.Context) ([]ReadyCase, error) {
 	return out, mapErr("ready to refer", err)
 }
 
+// DrawSummary draws a summary's PDF on the paper and returns its SHA-256 in
+// hex (web/referralissue draws it; the store cannot).
+type DrawSummary func(sum referral.Summary, paper string) (string, error)
+
 // SignOffReferral records an investigator's sign-off of an issued summary and
-// moves its case to referred, in one transaction, audited. Refused: a summary
+// moves its case to referred, in one transaction, audited. The signed content
+// (referral.Sign: the draft naming the signer and the study day) is recorded
+// beside the draft with its digest and the digest of its PDF, which draw
+// makes on the recorded paper. Refused: a summary
 // already signed off or whose case is already referred (conflict); a summary
 // without a case, or whose recorded over-read is not AF, or whose case no
 // longer has an AF over-read or has ended otherwise (invalid). A case still
 // waiting in "recording received" is first moved to "over-read", the step
 // the over-read itself should have made.
-func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (Referral, error) {
-	if a.Role != cohort.Investigator {
+func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64, draw DrawSummary) (Referral, error) {
+	if !followup.StepSignOff.By(a.Role) {
 		return Referral{}, fmt.Errorf("db: sign off referral: role %s: %w", a.Role, cohort.ErrForbidden)
 	}
 	refuse := func(msg string) error { return &cohort.ValidationError{Fields: map[string]string{"referral": msg}} }
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		var caseID *int64
 		var content []byte
-		var signedBy string
-		if err := tx.QueryRow(ctx, `SELECT case_id, content, signed_off_by FROM referrals WHERE id = $1 FOR UPDATE`, id).
-			Scan(&caseID, &content, &signedBy); err != nil {
+		var signedBy, paper, tz string
+		var enrolled time.Time
+		if err := tx.QueryRow(ctx, `SELECT f.case_id, f.content, f.signed_off_by, f.paper, p.enrolled_on, p.time_zone
+			FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1 FOR UPDATE OF f`, id).
+			Scan(&caseID, &content, &signedBy, &paper, &enrolled, &tz); err != nil {
 			return err
 		}
 		if signedBy != "" {
@@ -543,12 +566,34 @@ func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (
 		if _, err := s.advanceCase(ctx, tx, a, c.ID, followup.Referred, time.Time{}, reason); err != nil {
 			return err
 		}
-		if _, err := tx.Exec(ctx, `UPDATE referrals SET signed_off_by_id = $2, signed_off_by = $3, signed_off_at = $4 WHERE id = $1`,
-			id, actorID(a), a.Label(), s.now()); err != nil {
+		at := s.now()
+		loc, err := time.LoadLocation(tz)
+		if err != nil {
+			loc = time.UTC
+		}
+		signed, err := referral.Sign(sum, a.Label(), cohort.DateOf(enrolled), loc, at)
+		if err != nil {
+			return err
+		}
+		signedContent, err := referral.Content(signed)
+		if err != nil {
+			return err
+		}
+		signedDigest, err := referral.Digest(signed)
+		if err != nil {
+			return err
+		}
+		pdfDigest, err := draw(signed, paper)
+		if err != nil {
+			return err
+		}
+		if _, err := tx.Exec(ctx, `UPDATE referrals SET signed_off_by_id = $2, signed_off_by = $3, signed_off_at = $4,
+			    signed_content = $5, signed_content_sha256 = $6, signed_pdf_sha256 = $7 WHERE id = $1`,
+			id, actorID(a), a.Label(), at, signedContent, signedDigest, pdfDigest); err != nil {
 			return err
 		}
 		return audit(ctx, tx, a, "referral.signoff", "referral", strconv.FormatInt(id, 10), nil,
-			map[string]any{"case_id": *caseID, "referral_code": sum.ReferralCode})
+			map[string]any{"case_id": *caseID, "referral_code": sum.ReferralCode, "content_sha256": signedDigest, "pdf_sha256": pdfDigest})
 	})
 	if err != nil {
 		return Referral{}, mapCaseErr("sign off referral", err)

@@ -2,6 +2,8 @@ package db_test
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/hex"
 	"errors"
 	"strings"
 	"testing"
@@ -90,6 +92,16 @@ func issue(t *testing.T, f *caseFixture, participantID, caseID int64) db.Referra
 	return r
 }
 
+// fakeDraw stands for the PDF drawing: the digest of the content and paper.
+func fakeDraw(sum referral.Summary, paper string) (string, error) {
+	b, err := referral.Content(sum)
+	if err != nil {
+		return "", err
+	}
+	d := sha256.Sum256(append(b, paper...))
+	return hex.EncodeToString(d[:]), nil
+}
+
 func TestReferralSourceIssueAndSignOff(t *testing.T) {
 	f, cases := referralFixture(t)
 	ctx := context.Background()
@@ -125,15 +137,33 @@ func TestReferralSourceIssueAndSignOff(t *testing.T) {
 		t.Error("recorded content holds the study ID or a date")
 	}
 
-	if _, err := f.s.SignOffReferral(ctx, f.coord, r.ID); !errors.Is(err, cohort.ErrForbidden) {
+	if _, err := f.s.SignOffReferral(ctx, f.coord, r.ID, fakeDraw); !errors.Is(err, cohort.ErrForbidden) {
 		t.Errorf("coordinator sign-off: %v, want forbidden", err)
 	}
-	signed, err := f.s.SignOffReferral(ctx, f.inv, r.ID)
+	signed, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if signed.SignedOffAt.IsZero() || !strings.Contains(signed.SignedOffBy, "investigator") {
 		t.Errorf("sign-off not recorded: %+v", signed)
+	}
+	// The draft stays as issued; the signed content names the signer, is no
+	// draft, digests to its recorded value and its PDF digest is the drawing's.
+	if d, _ := referral.Decode(signed.Content); !d.Draft || d.SignOff != nil {
+		t.Error("the recorded draft changed at the sign-off")
+	}
+	sc, err := referral.Decode(signed.SignedContent)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if sc.Draft || sc.SignOff == nil || sc.SignOff.By != signed.SignedOffBy {
+		t.Errorf("signed content: draft %v, sign-off %+v", sc.Draft, sc.SignOff)
+	}
+	if d, _ := referral.Digest(sc); d != signed.SignedContentSHA256 || d == signed.ContentSHA256 {
+		t.Errorf("signed digest %s, recorded %s, draft %s", d, signed.SignedContentSHA256, signed.ContentSHA256)
+	}
+	if want, _ := fakeDraw(sc, "a4"); signed.SignedPDFSHA256 != want {
+		t.Errorf("signed PDF digest %s, want the drawing's %s", signed.SignedPDFSHA256, want)
 	}
 	c := f.get(cases["P1"])
 	if c.State != followup.Referred || c.OverReadAt.IsZero() || c.ClosedAt.IsZero() {
@@ -150,20 +180,20 @@ func TestReferralSourceIssueAndSignOff(t *testing.T) {
 	if got := strings.Join(actions, " "); !strings.Contains(got, "referral.issue case.advance case.advance referral.signoff") {
 		t.Errorf("audit trail %q", got)
 	}
-	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID); !errors.Is(err, cohort.ErrConflict) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw); !errors.Is(err, cohort.ErrConflict) {
 		t.Errorf("second sign-off: %v, want conflict", err)
 	}
 	again := issue(t, f, f.pids["P1"], cases["P1"])
-	if _, err := f.s.SignOffReferral(ctx, f.inv, again.ID); !errors.Is(err, cohort.ErrConflict) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, again.ID, fakeDraw); !errors.Is(err, cohort.ErrConflict) {
 		t.Errorf("sign-off of a referred case: %v, want conflict", err)
 	}
 
 	var ve *cohort.ValidationError
 	notAF := issue(t, f, f.pids["P2"], 0)
-	if _, err := f.s.SignOffReferral(ctx, f.inv, notAF.ID); !errors.As(err, &ve) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, notAF.ID, fakeDraw); !errors.As(err, &ve) {
 		t.Errorf("sign-off of a summary without AF: %v, want invalid", err)
 	}
-	if _, err := f.s.SignOffReferral(ctx, f.inv, 999999); !errors.Is(err, cohort.ErrNotFound) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, 999999, fakeDraw); !errors.Is(err, cohort.ErrNotFound) {
 		t.Errorf("unknown referral: %v", err)
 	}
 	list, err := f.s.Referrals(ctx, 10)
@@ -249,7 +279,7 @@ func TestDisputedReadingIsNotAReferral(t *testing.T) {
 	}
 	var ve *cohort.ValidationError
 	for _, r := range []db.Referral{early, late} {
-		if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID); !errors.As(err, &ve) {
+		if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw); !errors.As(err, &ve) {
 			t.Errorf("sign-off of summary %d of a disputed case: %v, want refused", r.ID, err)
 		}
 	}
@@ -281,7 +311,7 @@ func TestShortRecordingIsNotAReferral(t *testing.T) {
 	}
 	r := issue(t, f, f.pids["P1"], cases["P1"])
 	var ve *cohort.ValidationError
-	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID); !errors.As(err, &ve) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw); !errors.As(err, &ve) {
 		t.Errorf("sign-off on a short recording: %v, want refused", err)
 	}
 	if c := f.get(cases["P1"]); c.State != followup.RecordingReceived {

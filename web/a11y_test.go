@@ -218,6 +218,9 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatal(err)
 	}
 	ref := issueVia(t, a, a.signIn(cohort.Coordinator), pid, caseID, "html", paperA4)
+	// Triage lists a case nobody has taken on, overdue: the row the
+	// coordinator's pass takes.
+	a.exec(`UPDATE cases SET due_at = now() - interval '1 day', owner_id = NULL WHERE id = $1`, cases[sids[1]])
 	proto := protocolFor(t, a)
 	p := func(name, pattern, path string) a11yPage { return a11yPage{name, pattern, path} }
 	pages := []a11yPage{
@@ -229,6 +232,7 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		p("new participant", "/participants/new", "/participants/new"),
 		p("cases list", "/cases", "/cases"),
 		p("case page", "/cases/{id}", fmt.Sprintf("/cases/%d", caseID)),
+		p("contact details", "/cases/{id}/contact", fmt.Sprintf("/cases/%d/contact", caseID)),
 		p("recording page", "/recordings/{id}", fmt.Sprintf("/recordings/%d", rec)),
 		p("confirmations", "/confirmations", "/confirmations"),
 		p("statistics", "/confirmations/statistics", "/confirmations/statistics"),
@@ -630,7 +634,8 @@ func TestKeyboardWorksTriage(t *testing.T) {
 			break
 		}
 	}
-	want := []string{" a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
+	// The study ID, the contact details (issue 19), then the forms.
+	want := []string{" a", " a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
 	if !slices.Equal(inRow, want) {
 		t.Errorf("Tab order in the row %q, want %q", inRow, want)
 	}

@@ -45,34 +45,46 @@ func ageBand(p db.Participant, now time.Time) string {
 	return ageBands.Label(age)
 }
 
-// status is withdrawn, completed (past the study's weeks of wear data) or
-// active. followUpWeeks 0 means open-ended.
-func status(p db.Participant, followUpWeeks int, now time.Time) (string, components.Tone) {
-	if p.WithdrawnOn != nil {
-		return "withdrawn", components.Neutral
-	}
-	if followUpWeeks > 0 && !cohort.DateOf(now).Before(p.EnrolledOn.AddDays(7*followUpWeeks)) {
-		return "completed", components.Info
-	}
-	return "active", components.OK
+// statusDay is what a participant's status is read against: the study's
+// weeks of follow-up (0: open-ended) and today in the study's time zone,
+// as the store counts them (cohort.StatusOf).
+type statusDay struct {
+	weeks int
+	today cohort.Date
 }
 
-// followUpWeeks is the study's weeks of wear data per participant (0 when
-// unset or unreadable: treated as open-ended).
-func (s *Server) followUpWeeks(ctx context.Context) int {
+func (s *Server) statusDay(ctx context.Context) (statusDay, error) {
 	st, err := s.store.StudySettings(ctx)
 	if err != nil {
-		return 0
+		return statusDay{}, err
 	}
-	return st.FollowUpWeeks
+	return statusDay{weeks: st.FollowUpWeeks, today: cohort.DateOf(s.now().In(st.Location()))}, nil
+}
+
+// status is the participant's status (cohort.StatusOf) with its badge tone.
+func (d statusDay) status(p db.Participant) (cohort.ParticipantStatus, components.Tone) {
+	st := cohort.StatusOf(p.EnrolledOn, p.WithdrawnOn, d.weeks, d.today)
+	switch st {
+	case cohort.StatusWithdrawn:
+		return st, components.Neutral
+	case cohort.StatusCompleted:
+		return st, components.Info
+	}
+	return st, components.OK
 }
 
 // participantFilter reads the filter from the query string.
 func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
 	form := views.ParticipantFilterForm{Search: q.Get("q"), SiteID: q.Get("site"), Status: q.Get("status"),
 		PositiveWeeks: q.Get("positive"), OpenCase: q.Get("open_case") == "on", Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
-	f := db.ParticipantFilter{Search: form.Search, Status: form.Status, OpenCase: form.OpenCase, Sort: form.Sort,
+	f := db.ParticipantFilter{Search: form.Search, OpenCase: form.OpenCase, Sort: form.Sort,
 		Desc: form.Desc, After: q.Get("after"), WithNames: seesPHI}
+	if st := cohort.ParticipantStatus(form.Status); st.Valid() {
+		f.Status = st
+	}
+	for _, st := range cohort.ParticipantStatuses() {
+		form.Statuses = append(form.Statuses, views.Option{Value: string(st), Label: st.Label()})
+	}
 	f.SiteID, _ = strconv.Atoi(form.SiteID)
 	f.PositiveWeeks, _ = strconv.Atoi(form.PositiveWeeks)
 	return f, form
@@ -103,14 +115,20 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 		return err
 	}
 	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
-		CanEnrol: coordWork.allows(role(r)), Total: page.Total, Active: page.Active, Withdrawn: page.Withdrawn}
+		CanEnrol: coordWork.allows(role(r)), Total: page.Total}
+	for _, st := range cohort.ParticipantStatuses() {
+		m.ByStatus = append(m.ByStatus, views.Tile{Key: string(st), Label: "participants " + st.Label(), Value: page.Status[st]})
+	}
 	now := s.now()
-	fw := s.followUpWeeks(ctx)
+	day, err := s.statusDay(ctx)
+	if err != nil {
+		return err
+	}
 	ids := make([]int64, 0, len(page.Rows))
 	for _, p := range page.Rows {
-		st, tone := status(p.Participant, fw, now)
+		st, tone := day.status(p.Participant)
 		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: p.Sex.Label(),
-			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
+			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st.Label(), StatusTone: tone, OpenCases: p.OpenCases}
 		if p.LastPositive != nil {
 			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
 		}
@@ -157,14 +175,17 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 	}
 	_ = cw.Write(head)
 	now := s.now()
-	fw := s.followUpWeeks(ctx)
+	day, err := s.statusDay(ctx)
+	if err != nil {
+		return err
+	}
 	for {
 		page, err := s.store.Participants(ctx, f)
 		if err != nil {
 			return err
 		}
 		for _, p := range page.Rows {
-			st, _ := status(p.Participant, fw, now)
+			st, _ := day.status(p.Participant)
 			withdrawn, last := "", ""
 			if p.WithdrawnOn != nil {
 				withdrawn = p.WithdrawnOn.String()
@@ -172,7 +193,7 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 			if p.LastPositive != nil {
 				last = strconv.Itoa(*p.LastPositive)
 			}
-			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), st, withdrawn, last, strconv.Itoa(p.OpenCases)}
+			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), string(st), withdrawn, last, strconv.Itoa(p.OpenCases)}
 			if seesPHI {
 				rec = append(rec, csvSafe(p.Name))
 			}
@@ -220,8 +241,12 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	st, tone := status(p, s.followUpWeeks(ctx), s.now())
-	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st, StatusTone: tone,
+	day, err := s.statusDay(ctx)
+	if err != nil {
+		return err
+	}
+	st, tone := day.status(p)
+	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st.Label(), StatusTone: tone,
 		CanEdit: coordWork.allows(role(r)), CanNote: caseWork.allows(role(r)), Withdrawn: p.WithdrawnOn != nil}
 	m.Facts = []views.Fact{
 		{Label: "Site", Value: p.SiteCode},

@@ -10,6 +10,7 @@ import (
 	"strings"
 	"time"
 
+	"cohortdesk/assets"
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/ecg"
@@ -32,6 +33,7 @@ type recordingStore interface {
 	AddOverRead(ctx context.Context, a cohort.Actor, recordingID int64, in db.OverReadInput) (db.Recording, error)
 	ChooseRecordingLead(ctx context.Context, a cohort.Actor, recordingID int64, lead int) (db.Recording, error)
 	Confirmations(ctx context.Context, limit int) (db.Confirmations, error)
+	overReadTools
 	Agreement(ctx context.Context, f cascade.Filter) (cascade.Agreement, error)
 }
 
@@ -226,9 +228,12 @@ func (s *Server) recordingShow(w http.ResponseWriter, r *http.Request) error {
 }
 
 var recordingDone = map[string]string{
-	"added": "Recording stored.",
-	"read":  "Reading entered.",
-	"lead":  "Lead changed: the strip, the beats and the hint are now those of this lead.",
+	"added":      "Recording stored.",
+	"read":       "Reading entered.",
+	"read-next":  "Reading entered. This is the next recording waiting for an over-read.",
+	"revised":    "Correction saved. The earlier reading is kept below.",
+	"not-needed": "Marked as needing no over-read: the recording has left the over-read list.",
+	"lead":       "Lead changed: the strip, the beats and the hint are now those of this lead.",
 }
 
 func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.Recording, status int, errs map[string]string, msg string) error {
@@ -302,6 +307,8 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		l := ecg.Mark(ecg.Layout(wf, rec.Beats, ecg.StripOptions{}), wf.RateHz, rec.Hint.Quality, rec.Beats, rec.Hint.Premature)
 		m.HasStrip, m.Strip = true, stripView(fmt.Sprintf("rec%d", rec.ID), l, caption)
 		m.Signals, m.LeadForm, m.LeadNote = signalsView(rec, len(rec.Readings) > 0, caseWork.allows(role(r)))
+		m.Strip.Tools = true
+		m.Page.Scripts = append(m.Page.Scripts, assets.URL("js/strip.js"))
 	}
 	m.Readings = readingViews(rec)
 	u, _ := userFrom(ctx)
@@ -314,8 +321,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	case next == overread.Second && rec.Readings[0].ReaderID == u.ID:
 		m.FormNote = "You gave the first reading. A second reading, if the study wants one, comes from another investigator."
 	default:
-		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain),
-			MaxComment: overread.MaxCommentChars}
+		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, MaxComment: overread.MaxCommentChars}
 		if r.PostForm.Get("role") == string(next) {
 			// A refused entry: show it again.
 			f.Rhythm, f.Comment = r.PostForm.Get("rhythm"), r.PostForm.Get("comment")
@@ -341,6 +347,9 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 			f.Confidences = append(f.Confidences, views.Option{Value: string(c), Label: c.Label()})
 		}
 		m.Form = f
+	}
+	if err := s.overReadTools(r, rec, &m); err != nil {
+		return err
 	}
 	s.render(w, r, status, views.RecordingPage(m))
 	return nil
@@ -413,26 +422,26 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 	if err == nil {
 		_, err = s.store.AddOverRead(r.Context(), s.actor(r), id, in)
 	}
-	return s.recordingDone(w, r, id, err, "read", "The reading was not entered: ")
+	if err == nil {
+		return s.afterReading(w, r, id)
+	}
+	return s.refuseOnRecording(w, r, id, err, "The reading was not entered: ", nil)
 }
 
-// recordingDone ends a form posted from a recording's page: back to the page
-// with the done message, or the page again with the refusal (prefix, then
-// the reasons beside their fields).
-func (s *Server) recordingDone(w http.ResponseWriter, r *http.Request, id int64, err error, done, prefix string) error {
-	if err == nil {
-		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=%s", id, done), http.StatusSeeOther)
-		return nil
-	}
+// refuseOnRecording shows the recording page again with why a form on it
+// was refused (the fields renamed to the form's where they differ); an
+// error that is no refusal is returned as it is.
+func (s *Server) refuseOnRecording(w http.ResponseWriter, r *http.Request, id int64, err error, lead string, rename map[string]string) error {
 	f, ok := refused(r, err, nil)
 	if !ok {
 		return err
 	}
+	f = f.renamed(rename)
 	rec, lerr := s.store.Recording(r.Context(), id)
 	if lerr != nil {
 		return lerr
 	}
-	return s.renderRecording(w, r, rec, f.Status, f.Fields, prefix+f.Message)
+	return s.renderRecording(w, r, rec, f.Status, f.Fields, lead+f.Message)
 }
 
 // signalsView lists the signals of a recording's file and, when it held
@@ -493,5 +502,9 @@ func (s *Server) recordingLead(w http.ResponseWriter, r *http.Request) error {
 	} else {
 		_, err = s.store.ChooseRecordingLead(r.Context(), s.actor(r), id, lead)
 	}
-	return s.recordingDone(w, r, id, err, "lead", "The lead was not changed: ")
+	if err == nil {
+		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=lead", id), http.StatusSeeOther)
+		return nil
+	}
+	return s.refuseOnRecording(w, r, id, err, "The lead was not changed: ", nil)
 }

@@ -61,6 +61,7 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/bulk/assign", caseWork, s.casesBulkAssign},
 		{"POST", "/cases/bulk/letter", coordWork, s.casesBulkLetter},
 		{"GET", "/cases/{id}", caseWork, s.caseShow},
+		{"GET", "/cases/{id}/contact", caseWork, s.caseContact},
 		{"POST", "/cases/{id}/assign", caseWork, s.caseAssign},
 		{"POST", "/cases/{id}/attempts", coordWork, s.caseAttempt},
 		{"POST", "/cases/{id}/move", caseWork, s.caseMove},
@@ -78,6 +79,8 @@ func (s *Server) routes() []route {
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
 		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
 		{"POST", "/recordings/{id}/lead", caseWork, s.recordingLead},
+		{"POST", "/recordings/{id}/over-reads/revise", clinical, s.recordingRevise},
+		{"POST", "/recordings/{id}/not-needed", clinical, s.recordingNotNeeded},
 		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
 		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
 		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},

@@ -10,7 +10,9 @@ import (
 // stripView turns a strip layout from cohort/ecg into the view model of the
 // SVG component.
 func stripView(id string, l ecg.StripLayout, caption string) components.StripModel {
-	m := components.StripModel{ID: id, WidthMM: l.WidthMM, HeightMM: l.HeightMM, Caption: caption}
+	o := l.Options
+	m := components.StripModel{ID: id, WidthMM: l.WidthMM, HeightMM: l.HeightMM, Caption: caption,
+		Paper: components.StripPaper{SpeedMMPerS: o.SpeedMMPerS, GainMMPerMV: o.GainMMPerMV, RowHeightMM: o.RowHeightMM, RowSeconds: o.RowSeconds, MarginMM: o.MarginMM}}
 	for _, r := range l.Rows {
 		row := components.StripRowView{
 			TopMM:       r.TopMM,

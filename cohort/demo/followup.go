@@ -365,7 +365,9 @@ func (m *sim) script(target followup.State) {
 		return
 	}
 	t = s.workTime(r, t, 1, 3)
-	if v := m.f.Recordings[len(m.f.Recordings)-1].OverRead; v == overread.AF || v == overread.Flutter {
+	// Only a confirmed AF is referred (the investigator signs its summary
+	// off); atrial flutter and every other reading end not confirmed.
+	if v := m.f.Recordings[len(m.f.Recordings)-1].OverRead; v == overread.AF {
 		m.move(t, followup.Referred, m.inv)
 	} else {
 		m.move(t, followup.ClosedNotConfirmed, m.inv)
@@ -389,7 +391,7 @@ func (m *sim) drawRhythm(target followup.State) overread.Rhythm {
 	}
 	switch target {
 	case followup.Referred:
-		opts, ws = []overread.Rhythm{overread.AF, overread.Flutter}, []float64{0.9, 0.1}
+		opts, ws = []overread.Rhythm{overread.AF}, []float64{1}
 	case followup.ClosedNotConfirmed:
 		if m.f.Truth == EpisodeAF {
 			opts, ws = []overread.Rhythm{overread.Sinus}, []float64{1}

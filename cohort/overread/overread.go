@@ -357,3 +357,14 @@ func RhythmCategory(r Rhythm) (c Category, ok bool) {
 const CategoryMapping = "Categories compared: AF (recorder: possible AF; reader: atrial fibrillation), " +
 	"sinus rhythm (both), other or unclassified (recorder: unclassified; reader: atrial flutter or other arrhythmia), " +
 	"unreadable (recorder: unreadable; reader: uninterpretable). Recordings without an automatic interpretation are left out."
+
+// Awaits is the one rule for a recording waiting for an over-read: it has
+// no current reading, its case is still being worked (a case that ended
+// needs no more reads; its recordings leave the queue), and nobody marked
+// it as needing none (a repeat replaced it, say). Every page and file that
+// counts recordings waiting for an over-read counts these; the store
+// applies the rule in SQL (db.awaitingRead), and a test holds the two
+// together.
+func Awaits(c Conclusion, caseEnded, notNeeded bool) bool {
+	return c.Status == Unread && !caseEnded && !notNeeded
+}

@@ -134,6 +134,7 @@ func Build(src Source, secret []byte) (Summary, error) {
 		Protocol:       src.Protocol.Label(),
 		Sex:            src.Sex.Label(),
 		ContactRoute:   strings.TrimSpace(src.ContactRoute),
+		Draft:          true, // until an investigator signs it off (Sign)
 	}
 	age, ageKnown, err := ageOf(src, loc)
 	if err != nil {
