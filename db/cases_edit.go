@@ -83,6 +83,10 @@ const anyVersion = -1
 // caseEdit is one kind of change to a case.
 type caseEdit struct {
 	action followup.Edit // recorded as the audit action
+	// step is the step of the case's step table a person takes (empty for
+	// the system's own edits); a case whose state does not offer it refuses
+	// the edit before anything else (followup.CheckStep).
+	step followup.Step
 	// intent is what the person meant to set, applied to the fields they saw;
 	// it words the conflict message when their copy was stale.
 	intent followup.Intent
@@ -101,6 +105,11 @@ func (s *Store) editCase(ctx context.Context, tx pgx.Tx, a cohort.Actor, id int6
 	}
 	if version != anyVersion && cur.Version != version {
 		return Case{}, staleCase(ctx, tx, cur, version, e.intent)
+	}
+	if e.step != "" {
+		if err := followup.CheckStep(cur.State, e.step); err != nil {
+			return Case{}, err
+		}
 	}
 	next := cur
 	var rec caseSnapshot
