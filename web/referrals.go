@@ -85,20 +85,33 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	return s.renderPreview(w, r, http.StatusOK, pid, d, paperOf(r.URL.Query().Get("paper")), nil, "")
+}
+
+// renderPreview shows a draft with its issue form: with the warning when the
+// participant has withdrawn, and with the refusal of an issue when there is
+// one.
+func (s *Server) renderPreview(w http.ResponseWriter, r *http.Request, status int, pid int64, d referralissue.Draft, paper string, errs map[string]string, msg string) error {
 	b, sum := d.Basis, d.Summary
-	paper := paperOf(r.URL.Query().Get("paper"))
 	base := fmt.Sprintf("/participants/%d/referral?case=%d&paper=", pid, b.CaseID)
 	m := s.referralModel(r, sum, paper, base)
 	m.Page.Title = "Referral summary (preview)"
 	m.Preview, m.IssueAction, m.CaseID = true, fmt.Sprintf("/participants/%d/referral", pid), b.CaseID
+	m.Errors, m.Message = errs, msg
+	if b.Withdrawal != nil {
+		m.Withdrawn = b.Withdrawal.Warning()
+	}
 	if b.CaseID != 0 {
 		m.CaseHref = fmt.Sprintf("/cases/%d", b.CaseID)
 	}
-	return s.ok(w, r, views.Referral(m))
+	s.render(w, r, status, views.Referral(m))
+	return nil
 }
 
 // referralIssue builds the summary, makes its PDF, records both digests and
-// the content, and shows the issued summary (or sends its PDF).
+// the content, and shows the issued summary (or sends its PDF). A summary of
+// a withdrawn participant needs the issuer's confirmation; without it the
+// preview comes back with the warning and nothing is recorded.
 func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	pid, err := idParam(r)
 	if err != nil {
@@ -116,9 +129,18 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 		format = "pdf"
 	}
 	paper := paperOf(r.PostForm.Get("paper"))
-	ref, _, err := s.issue(r.Context(), s.actor(r), pid, caseID, format, paper)
+	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
+	}
+	d.ConfirmedWithdrawn = r.PostForm.Get(referral.ConfirmWithdrawnField) == "yes"
+	ref, _, err := referralissue.Record(r.Context(), s.store, s.actor(r), d, format, paper)
+	if err != nil {
+		f, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		return s.renderPreview(w, r, f.Status, pid, d, paper, f.Fields, f.Message)
 	}
 	target := fmt.Sprintf("/referrals/%d", ref.ID)
 	if format == "pdf" {
@@ -128,8 +150,9 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	return nil
 }
 
-// issue builds, draws and records one summary (referralissue); it returns
-// the record and the PDF.
+// issue builds, draws and records one summary (referralissue) without the
+// confirmation a withdrawn participant needs; it returns the record and the
+// PDF.
 func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, format, paper string) (db.Referral, []byte, error) {
 	d, err := s.draft(ctx, pid, caseID)
 	if err != nil {
