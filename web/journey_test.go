@@ -412,7 +412,7 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 func monitorCanaries(study *demo.Study) []string {
 	var out []string
 	for _, c := range study.CanaryValues() {
-		if c.Field != "study_id" {
+		if c.HiddenFromMonitors() {
 			out = append(out, c.Value)
 		}
 	}
