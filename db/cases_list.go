@@ -54,9 +54,6 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
 	switch {
 	case f.State != "":
-		if !f.State.Valid() {
-			return "", nil, &cohort.ValidationError{Fields: map[string]string{"state": "choose a state from the list"}}
-		}
 		conds = append(conds, "c.state = "+arg(string(f.State)))
 	case f.Scope == WorkingCases:
 		conds = append(conds, "c.closed_at IS NULL")
@@ -78,10 +75,39 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	return strings.Join(conds, " AND "), args, nil
 }
 
+// Check refuses a filter the list cannot apply: an unknown state or a
+// cursor this list did not make (a tampered or outdated page link).
+// Messages are keyed by the list's query parameters.
+func (f CaseFilter) Check() error {
+	var ve cohort.ValidationError
+	if f.State != "" && !f.State.Valid() {
+		ve.Add("state", "choose a state from the list")
+	}
+	if f.After != "" {
+		if c, ok := decodeCursor(f.After); !ok || !caseKeyOK(c.Key) {
+			ve.Add("after", errBadCursor.Fields["after"])
+		}
+	}
+	return ve.Err()
+}
+
+// caseKeyOK reads the case order's cursor key: a deadline (RFC 3339) or
+// "infinity" for cases with nothing due.
+func caseKeyOK(k string) bool {
+	if k == "infinity" {
+		return true
+	}
+	t, err := time.Parse(time.RFC3339Nano, k)
+	return err == nil && t.UTC().Year() >= 1 && t.UTC().Year() <= 9999 // PostgreSQL has no year 0
+}
+
 // Cases returns one page of the filtered case list with keyset pagination.
 func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if f.Limit <= 0 || f.Limit > 500 {
 		f.Limit = 50
+	}
+	if err := f.Check(); err != nil {
+		return CasePage{}, err
 	}
 	var page CasePage
 	where, args, err := f.where(s.now())

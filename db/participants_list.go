@@ -8,6 +8,8 @@ import (
 	"strconv"
 	"strings"
 	"time"
+
+	"cohortdesk/cohort"
 )
 
 // The participant list: filters, orders and keyset pages.
@@ -54,12 +56,13 @@ type listOrder struct {
 	by    []string
 	key   string
 	after string
+	keyOK func(string) bool // whether a cursor's key fits the comparison; nil: any text
 }
 
 var listOrders = map[string]listOrder{
 	"study_id": {by: []string{"p.study_id"}, key: "p.study_id", after: "p.study_id %[3]s %[1]s"},
 	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"}, key: "to_char(p.enrolled_on, 'YYYY-MM-DD') || p.study_id",
-		after: "(p.enrolled_on, p.study_id) %[3]s (left(%[1]s, 10)::date, substr(%[1]s, 11))"},
+		after: "(p.enrolled_on, p.study_id) %[3]s (left(%[1]s, 10)::date, substr(%[1]s, 11))", keyOK: enrolledKeyOK},
 	"site": {by: []string{"st.code || ' ' || p.study_id", "p.id"}, key: "st.code || ' ' || p.study_id",
 		after: "(st.code || ' ' || p.study_id, p.id) %[3]s (%[1]s, %[2]s)"},
 }
@@ -120,10 +123,55 @@ func encodeCursor(c cursor) string {
 func decodeCursor(s string) (cursor, bool) {
 	var c cursor
 	b, err := base64.RawURLEncoding.DecodeString(s)
-	if err != nil || json.Unmarshal(b, &c) != nil {
+	if err != nil || json.Unmarshal(b, &c) != nil || strings.ContainsRune(c.Key, 0) {
 		return c, false
 	}
 	return c, true
+}
+
+// errBadCursor refuses a page link whose cursor is not one this list made.
+var errBadCursor = &cohort.ValidationError{Fields: map[string]string{"after": "this page link is broken or out of date: go back to the first page"}}
+
+// Check refuses a filter the list cannot apply: an unknown status or order,
+// a negative number of weeks, a cursor this list did not make (a tampered or
+// outdated page link). Messages are keyed by the list's query parameters.
+func (f ParticipantFilter) Check() error {
+	var ve cohort.ValidationError
+	switch f.Status {
+	case "", "active", "withdrawn":
+	default:
+		ve.Add("status", "choose active, withdrawn or all")
+	}
+	order, ok := listOrders[f.Sort]
+	if f.Sort != "" && !ok {
+		ve.Add("sort", "choose study ID, enrolment date or site")
+	}
+	if f.PositiveWeeks < 0 || f.PositiveWeeks > MaxPositiveWeeks {
+		ve.Add("positive", fmt.Sprintf("a number of weeks from 1 to %d", MaxPositiveWeeks))
+	}
+	if f.After != "" {
+		if !ok {
+			order = listOrders["study_id"]
+		}
+		if c, good := decodeCursor(f.After); !good || (order.keyOK != nil && !order.keyOK(c.Key)) {
+			ve.Add("after", errBadCursor.Fields["after"])
+		}
+	}
+	return ve.Err()
+}
+
+// MaxPositiveWeeks bounds the "screen-positive in the last N weeks" filter:
+// the longest follow-up a study may set (study.follow_up_weeks).
+const MaxPositiveWeeks = 520
+
+// enrolledKeyOK reads the enrolment order's cursor key: the day as
+// YYYY-MM-DD, then the study ID.
+func enrolledKeyOK(k string) bool {
+	if len(k) < 10 {
+		return false
+	}
+	t, err := time.Parse("2006-01-02", k[:10])
+	return err == nil && t.Year() >= 1 // PostgreSQL has no year 0
 }
 
 // Participants returns one page of the filtered list, ordered by the chosen key
@@ -132,6 +180,9 @@ func decodeCursor(s string) (cursor, bool) {
 func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (ParticipantPage, error) {
 	if f.Limit <= 0 || f.Limit > 500 {
 		f.Limit = 50
+	}
+	if err := f.Check(); err != nil {
+		return ParticipantPage{}, err
 	}
 	order, ok := listOrders[f.Sort]
 	if !ok {

@@ -66,15 +66,42 @@ func (s *Server) followUpWeeks(ctx context.Context) int {
 	return st.FollowUpWeeks
 }
 
-// participantFilter reads the filter from the query string.
-func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
-	form := views.ParticipantFilterForm{Search: q.Get("q"), SiteID: q.Get("site"), Status: q.Get("status"),
-		PositiveWeeks: q.Get("positive"), OpenCase: q.Get("open_case") == "on", Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
+// participantFilter reads the filter from the query string, strictly (a
+// value the list cannot use is a queryError): the sites are the study's.
+func participantFilter(v url.Values, seesPHI bool, sites []db.Site) (db.ParticipantFilter, views.ParticipantFilterForm, error) {
+	q := readQuery(v)
+	form := views.ParticipantFilterForm{Search: q.text("q"), Status: q.oneOf("status", "active", "withdrawn"),
+		OpenCase: q.flag("open_case"), Sort: q.oneOf("sort", "study_id", "enrolled", "site"), Desc: q.flag("desc")}
 	f := db.ParticipantFilter{Search: form.Search, Status: form.Status, OpenCase: form.OpenCase, Sort: form.Sort,
-		Desc: form.Desc, After: q.Get("after"), WithNames: seesPHI}
-	f.SiteID, _ = strconv.Atoi(form.SiteID)
-	f.PositiveWeeks, _ = strconv.Atoi(form.PositiveWeeks)
-	return f, form
+		Desc: form.Desc, After: q.get("after"), WithNames: seesPHI}
+	f.SiteID = siteParam(q, "site", sites)
+	if f.SiteID > 0 {
+		form.SiteID = strconv.Itoa(f.SiteID)
+	}
+	if n, ok := q.number("positive", 1, db.MaxPositiveWeeks, "weeks"); ok {
+		f.PositiveWeeks, form.PositiveWeeks = n, strconv.Itoa(n)
+	}
+	if err := q.check(f.Check()); err != nil {
+		return f, form, err
+	}
+	return f, form, q.err()
+}
+
+// siteParam reads a site choice: one of the study's sites, 0 when none is
+// chosen.
+func siteParam(q *query, name string, sites []db.Site) int {
+	v := q.get(name)
+	if v == "" {
+		return 0
+	}
+	id, err := strconv.Atoi(v)
+	for _, st := range sites {
+		if err == nil && st.ID == id {
+			return id
+		}
+	}
+	q.refuse(name, "choose a site from the list")
+	return 0
 }
 
 func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, error) {
@@ -92,12 +119,15 @@ func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, er
 func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	seesPHI := role(r).SeesPHI()
-	f, form := participantFilter(r.URL.Query(), seesPHI)
-	page, err := s.store.Participants(ctx, f)
+	sites, siteList, err := s.siteOptions(ctx)
 	if err != nil {
 		return err
 	}
-	sites, _, err := s.siteOptions(ctx)
+	f, form, err := participantFilter(r.URL.Query(), seesPHI, siteList)
+	if err != nil {
+		return err
+	}
+	page, err := s.store.Participants(ctx, f)
 	if err != nil {
 		return err
 	}
@@ -141,7 +171,14 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	seesPHI := role(r).SeesPHI()
-	f, _ := participantFilter(r.URL.Query(), seesPHI)
+	sites, err := s.store.Sites(ctx)
+	if err != nil {
+		return err
+	}
+	f, _, err := participantFilter(r.URL.Query(), seesPHI, sites)
+	if err != nil {
+		return err
+	}
 	f.After, f.Limit = "", 500
 	if err := s.store.Audit(ctx, s.actor(r), "participant.export_list", "participant_list", "",
 		nil, map[string]any{"filter": r.URL.RawQuery, "with_phi": seesPHI}); err != nil {
@@ -217,6 +254,11 @@ func verdictTone(v string) components.Tone {
 
 func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
+	q := readQuery(r.URL.Query())
+	chartWeek, chosen := q.number("week", 0, maxStudyWeek, "study week")
+	if err := q.err(); err != nil {
+		return err
+	}
 	p, err := s.participantParam(r)
 	if err != nil {
 		return err
@@ -261,11 +303,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	chartWeek := -1
-	if wk, err := strconv.Atoi(r.URL.Query().Get("week")); err == nil {
-		chartWeek = wk
-	}
-	if chartWeek < 0 {
+	if !chosen {
 		chartWeek = defaultChartWeek(lines)
 	}
 	m.ChartWeek = chartWeek
@@ -295,6 +333,9 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	}
 	return s.ok(w, r, views.ParticipantPage(m))
 }
+
+// maxStudyWeek bounds the study week a page may ask for: twenty years.
+const maxStudyWeek = 1043
 
 // defaultChartWeek is the latest screen-positive week, else the latest week
 // with readings.

@@ -4,8 +4,6 @@ import (
 	"context"
 	"fmt"
 	"net/http"
-	"net/url"
-	"strconv"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
@@ -35,14 +33,13 @@ const silentDays = 14
 // defaultWindow is the weeks of history the projection uses unless asked.
 const defaultWindow = 8
 
-// windowOf reads the projection's weeks of history, the default when the
-// value is missing or out of range (the page's own form keeps it in range).
-func windowOf(q url.Values) int {
-	w, err := strconv.Atoi(q.Get("window"))
-	if err != nil || w < 2 || w > db.TrailingWeeks {
-		return defaultWindow
+// windowOf reads the projection's weeks of history: the default when the
+// parameter is missing, refused when it is out of range.
+func windowOf(q *query) int {
+	if w, ok := q.number("window", 2, db.TrailingWeeks, "weeks of history"); ok {
+		return w
 	}
-	return w
+	return defaultWindow
 }
 
 // enrolFig is one site's (or the study's) enrolment against target with its
@@ -147,7 +144,11 @@ func (f enrolFig) row() views.EnrolmentRow {
 }
 
 func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
-	window := windowOf(r.URL.Query())
+	q := readQuery(r.URL.Query())
+	window := windowOf(q)
+	if err := q.err(); err != nil {
+		return err
+	}
 	// The page's four reads are independent; made side by side, the page
 	// takes about as long as the slowest of them instead of their sum.
 	var (

@@ -421,7 +421,9 @@ func TestCascadeBoxListsItsParticipantsByRole(t *testing.T) {
 }
 
 // TestCascadeRoutesRefuseUnknownValues: unknown boxes and pages are 404,
-// malformed choices 422, never a server error.
+// malformed choices 400 (a tampered address; finding 12 of issue 14 made
+// out-of-range choices refused rather than replaced by defaults), never a
+// server error.
 func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 	a := newAppAt(t, time.Date(2026, 3, 11, 12, 0, 0, 0, time.UTC))
 	cascadeCohort(t, a)
@@ -433,20 +435,21 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 		{"/progress/cascade/nonsense", http.StatusNotFound},
 		{"/progress/cascade/enrolled?page=9", http.StatusNotFound},
 		{"/progress/cascade/enrolled?protocol=999", http.StatusNotFound},
-		{"/progress/cascade/enrolled?exit=bogus", http.StatusUnprocessableEntity},
-		{"/progress/cascade/enrolled?page=0", http.StatusUnprocessableEntity},
-		{"/progress/cascade/enrolled?page=x", http.StatusUnprocessableEntity},
-		{"/progress?from=2026-13-01", http.StatusUnprocessableEntity},
-		{"/progress?site=999", http.StatusUnprocessableEntity},
-		{"/progress?site=AA", http.StatusUnprocessableEntity},
-		{"/progress?protocol=-1", http.StatusUnprocessableEntity},
+		{"/progress/cascade/enrolled?exit=bogus", http.StatusBadRequest},
+		{"/progress/cascade/enrolled?page=0", http.StatusBadRequest},
+		{"/progress/cascade/enrolled?page=x", http.StatusBadRequest},
+		{"/progress?from=2026-13-01", http.StatusBadRequest},
+		{"/progress?site=999", http.StatusBadRequest},
+		{"/progress?site=AA", http.StatusBadRequest},
+		{"/progress?protocol=-1", http.StatusBadRequest},
 		{"/progress?protocol=999", http.StatusNotFound},
-		{"/progress/report?from=2026-02-01&to=2026-01-01", http.StatusUnprocessableEntity},
-		{"/progress/report?to=0001-01-01", http.StatusUnprocessableEntity},
-		{"/progress/report.zip?protocol=abc", http.StatusUnprocessableEntity},
+		{"/progress/report?from=2026-02-01&to=2026-01-01", http.StatusBadRequest},
+		{"/progress/report?to=0001-01-01", http.StatusBadRequest},
+		{"/progress/report.zip?protocol=abc", http.StatusBadRequest},
 		{"/progress/report.zip?protocol=999", http.StatusNotFound},
-		{"/progress/cascade/enrolled?exit=declined", http.StatusOK}, // a known reason nobody left by here: an empty list
-		{"/progress/report?window=999&paper=legal", http.StatusOK},  // out-of-range choices fall back to the defaults
+		{"/progress/cascade/enrolled?exit=declined", http.StatusOK},        // a known reason nobody left by here: an empty list
+		{"/progress/report?window=999&paper=legal", http.StatusBadRequest}, // out-of-range choices are refused
+		{"/progress/report?window=6&paper=letter", http.StatusOK},
 	} {
 		res, _ := a.get(c, tt.path)
 		if res.StatusCode != tt.want {

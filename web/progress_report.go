@@ -43,11 +43,13 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	if err != nil {
 		return rf, nil, err
 	}
-	q := r.URL.Query()
-	if rf.cq, err = parseCascadeQuery(q, sites); err != nil {
+	q := readQuery(r.URL.Query())
+	readCascadeQuery(q, sites, &rf.cq)
+	rf.window, rf.generated = windowOf(q), s.now()
+	q.oneOf("paper", paperA4, paperLetter)
+	if err := q.err(); err != nil {
 		return rf, nil, err
 	}
-	rf.window, rf.generated = windowOf(q), s.now()
 	// The three reads are independent; made side by side, as on the
 	// progress page.
 	var weeks []db.SufficiencyWeek
@@ -127,7 +129,7 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	paper := paperOf(r.URL.Query().Get("paper"))
+	paper := paperParam(readQuery(r.URL.Query()), paperA4) // refused already by readReport
 	m := views.ReportModel{Page: s.page(r, "Weekly report", "progress"), Paper: paper, Protocols: protocolOptions(rf.cascade.Versions),
 		ProtoID: strconv.Itoa(rf.cascade.Protocol.ID), SiteID: rf.cq.site, From: dateText(rf.cq.from), To: dateText(rf.cq.to), Window: rf.window,
 		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.String(),

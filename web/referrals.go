@@ -77,15 +77,19 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	caseID, err := caseQuery(r.URL.Query().Get("case"))
-	if err != nil {
+	q := readQuery(r.URL.Query())
+	caseID, paper := int64(0), paperParam(q, paperA4)
+	if q.get("case") != "0" { // 0: the participant alone, as the page's own links say
+		caseID = q.id("case", "case number")
+	}
+	if err := q.err(); err != nil {
 		return err
 	}
 	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
 	}
-	return s.renderPreview(w, r, http.StatusOK, pid, d, paperOf(r.URL.Query().Get("paper")), nil, "")
+	return s.renderPreview(w, r, http.StatusOK, pid, d, paper, nil, "")
 }
 
 // renderPreview shows a draft with its issue form: with the warning when the
@@ -190,9 +194,11 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	if err != nil {
 		return err
 	}
-	paper := ref.Paper
-	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p)
+	q := readQuery(r.URL.Query())
+	paper := paperParam(q, ref.Paper)
+	q.oneOf("done", "signoff")
+	if err := q.err(); err != nil {
+		return err
 	}
 	m := s.referralModel(r, sum, paper, fmt.Sprintf("/referrals/%d?paper=", ref.ID))
 	m.Page.Title = "Referral summary " + sum.ReferralCode
@@ -244,9 +250,10 @@ func (s *Server) referralPDFFile(w http.ResponseWriter, r *http.Request) error {
 	if !ok {
 		return &cohort.PublicError{Message: "The recorded content of this summary no longer matches its digest; it is not sent.", Kind: cohort.ErrConflict}
 	}
-	paper := ref.Paper
-	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p)
+	q := readQuery(r.URL.Query())
+	paper := paperParam(q, ref.Paper)
+	if err := q.err(); err != nil {
+		return err
 	}
 	pdf, err := referralPDF(sum, paper)
 	if err != nil {
@@ -291,7 +298,11 @@ func (s *Server) referralSignOff(w http.ResponseWriter, r *http.Request) error {
 // referralFind opens the summary preview of a participant named by study
 // ID, for summaries on request.
 func (s *Server) referralFind(w http.ResponseWriter, r *http.Request) error {
-	sid := strings.TrimSpace(r.URL.Query().Get("study_id"))
+	q := readQuery(r.URL.Query())
+	sid := q.text("study_id")
+	if err := q.err(); err != nil {
+		return err
+	}
 	p, err := s.store.ParticipantByStudyID(r.Context(), sid)
 	if err != nil {
 		if !errors.Is(err, cohort.ErrNotFound) {
