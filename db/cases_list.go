@@ -84,21 +84,11 @@ func (f CaseFilter) Check() error {
 		ve.Add("state", "choose a state from the list")
 	}
 	if f.After != "" {
-		if c, ok := decodeCursor(f.After); !ok || !caseKeyOK(c.Key) {
+		if c, ok := decodeCursor(f.After); !ok || c.ID <= 0 || c.Key != "" {
 			ve.Add("after", errBadCursor.Fields["after"])
 		}
 	}
 	return ve.Err()
-}
-
-// caseKeyOK reads the case order's cursor key: a deadline (RFC 3339) or
-// "infinity" for cases with nothing due.
-func caseKeyOK(k string) bool {
-	if k == "infinity" {
-		return true
-	}
-	t, err := time.Parse(time.RFC3339Nano, k)
-	return err == nil && t.UTC().Year() >= 1 && t.UTC().Year() <= 9999 // PostgreSQL has no year 0
 }
 
 // Cases returns one page of the filtered case list with keyset pagination.
@@ -118,8 +108,10 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 		return page, mapErr("cases count", err)
 	}
 	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key, c.ID)
-		where += fmt.Sprintf(" AND (%s, c.id) > ($%d::timestamptz, $%d)", caseOrder, len(args)-1, len(args))
+		// The cursor is the last row's id alone: a deadline in the page link
+		// would show monitors a date of a participant's case.
+		args = append(args, c.ID)
+		where += fmt.Sprintf(" AND (%s, c.id) > (SELECT coalesce(k.due_at, 'infinity'::timestamptz), k.id FROM cases k WHERE k.id = $%d)", caseOrder, len(args))
 	}
 	args = append(args, f.Limit+1)
 	rows, err := s.pool.Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
@@ -133,12 +125,7 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	}
 	if len(page.Rows) > f.Limit {
 		page.Rows = page.Rows[:f.Limit]
-		last := page.Rows[f.Limit-1]
-		key := "infinity"
-		if !last.DueAt.IsZero() {
-			key = last.DueAt.UTC().Format(time.RFC3339Nano)
-		}
-		page.Next = encodeCursor(cursor{Key: key, ID: last.ID})
+		page.Next = encodeCursor(cursor{ID: page.Rows[f.Limit-1].ID})
 	}
 	return page, nil
 }

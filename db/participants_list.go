@@ -47,22 +47,25 @@ type ParticipantPage struct {
 
 // listOrder is one order of the participants list: the ORDER BY
 // expressions (together unique, so the order is total), the cursor's key as
-// text, read from the last row of a page, and the rows after a cursor as a
-// comparison in which %[1]s is the key's placeholder, %[2]s the id's and
-// %[3]s the operator (> ascending, < descending). The study ID and
-// enrolment orders follow an index, so any page costs about the same as the
-// first; the site order sorts the filtered rows (sites are in another table).
+// text, read from the last row of a page ("" for an order whose cursor is
+// the row's id alone), and the rows after a cursor as a comparison in which
+// %[1]s is the key's placeholder, %[2]s the id's and %[3]s the operator (>
+// ascending, < descending). The study ID and enrolment orders follow an
+// index, so any page costs about the same as the first; the site order
+// sorts the filtered rows (sites are in another table). The enrolment
+// order's cursor holds no date: the page links of a role that sees no
+// dates must not carry one (cohort.Role.SeesDatesAndFreeText), so the
+// comparison reads the cursor row's day from the table.
 type listOrder struct {
 	by    []string
 	key   string
 	after string
-	keyOK func(string) bool // whether a cursor's key fits the comparison; nil: any text
 }
 
 var listOrders = map[string]listOrder{
 	"study_id": {by: []string{"p.study_id"}, key: "p.study_id", after: "p.study_id %[3]s %[1]s"},
-	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"}, key: "to_char(p.enrolled_on, 'YYYY-MM-DD') || p.study_id",
-		after: "(p.enrolled_on, p.study_id) %[3]s (left(%[1]s, 10)::date, substr(%[1]s, 11))", keyOK: enrolledKeyOK},
+	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"},
+		after: "(p.enrolled_on, p.study_id) %[3]s (SELECT k.enrolled_on, k.study_id FROM participants k WHERE k.id = %[2]s)"},
 	"site": {by: []string{"st.code || ' ' || p.study_id", "p.id"}, key: "st.code || ' ' || p.study_id",
 		after: "(st.code || ' ' || p.study_id, p.id) %[3]s (%[1]s, %[2]s)"},
 }
@@ -111,7 +114,7 @@ func escapeLike(s string) string {
 }
 
 type cursor struct {
-	Key string `json:"k"`
+	Key string `json:"k,omitempty"`
 	ID  int64  `json:"i"`
 }
 
@@ -153,26 +156,22 @@ func (f ParticipantFilter) Check() error {
 		if !ok {
 			order = listOrders["study_id"]
 		}
-		if c, good := decodeCursor(f.After); !good || (order.keyOK != nil && !order.keyOK(c.Key)) {
+		if c, good := decodeCursor(f.After); !good || !order.cursorOK(c) {
 			ve.Add("after", errBadCursor.Fields["after"])
 		}
 	}
 	return ve.Err()
 }
 
+// cursorOK reports whether c is a cursor this order makes: a record id,
+// and a key exactly when the order has one.
+func (o listOrder) cursorOK(c cursor) bool {
+	return c.ID > 0 && (o.key == "") == (c.Key == "")
+}
+
 // MaxPositiveWeeks bounds the "screen-positive in the last N weeks" filter:
 // the longest follow-up a study may set (study.follow_up_weeks).
 const MaxPositiveWeeks = 520
-
-// enrolledKeyOK reads the enrolment order's cursor key: the day as
-// YYYY-MM-DD, then the study ID.
-func enrolledKeyOK(k string) bool {
-	if len(k) < 10 {
-		return false
-	}
-	t, err := time.Parse("2006-01-02", k[:10])
-	return err == nil && t.Year() >= 1 // PostgreSQL has no year 0
-}
 
 // Participants returns one page of the filtered list, ordered by the chosen key
 // and then id, using keyset pagination so a page deep in a 100,000-row list
@@ -203,8 +202,11 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		cmp, dir = "<", " DESC"
 	}
 	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key)
-		keyArg, idArg := fmt.Sprintf("$%d::text", len(args)), ""
+		keyArg, idArg := "", ""
+		if strings.Contains(order.after, "%[1]s") {
+			args = append(args, c.Key)
+			keyArg = fmt.Sprintf("$%d::text", len(args))
+		}
 		if strings.Contains(order.after, "%[2]s") {
 			args = append(args, c.ID)
 			idArg = fmt.Sprintf("$%d::bigint", len(args))
@@ -212,6 +214,9 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		where += " AND " + fmt.Sprintf(order.after, keyArg, idArg, cmp)
 	}
 	key := order.key
+	if key == "" {
+		key = "''::text"
+	}
 	nameCol := "''::text"
 	if f.WithNames {
 		nameCol = "coalesce((SELECT pi.given_name || ' ' || pi.family_name FROM participant_identity pi WHERE pi.participant_id = p.id), '')"
@@ -252,7 +257,20 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 	if len(page.Rows) > f.Limit {
 		page.Rows = page.Rows[:f.Limit]
 		last := page.Rows[f.Limit-1]
-		page.Next = encodeCursor(cursor{Key: keys[f.Limit-1], ID: last.ID})
+		page.Next = encodeCursor(cursor{Key: keys[f.Limit-1], ID: last.ID}) // Key "" for an order without one
 	}
 	return page, nil
+}
+
+// FirstEnrolment is the study's first enrolment day, from which recruitment
+// weeks count (the zero date before anyone is enrolled).
+func (s *Store) FirstEnrolment(ctx context.Context) (cohort.Date, error) {
+	var first *time.Time
+	if err := s.pool.QueryRow(ctx, `SELECT min(enrolled_on) FROM participants`).Scan(&first); err != nil {
+		return cohort.Date{}, mapErr("first enrolment", err)
+	}
+	if first == nil {
+		return cohort.Date{}, nil
+	}
+	return cohort.DateOf(*first), nil
 }

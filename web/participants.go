@@ -6,11 +6,13 @@ import (
 	"fmt"
 	"net/http"
 	"net/url"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/enrolment"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
@@ -21,6 +23,7 @@ import (
 type participantStore interface {
 	Sites(ctx context.Context) ([]db.Site, error)
 	Participants(ctx context.Context, f db.ParticipantFilter) (db.ParticipantPage, error)
+	FirstEnrolment(ctx context.Context) (cohort.Date, error)
 	Participant(ctx context.Context, id int64) (db.Participant, error)
 	Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (db.Identity, error)
 	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
@@ -104,6 +107,16 @@ func siteParam(q *query, name string, sites []db.Site) int {
 	return 0
 }
 
+// firstEnrolment is the study's first enrolment day when the request's role
+// sees enrolments as recruitment weeks counted from it; otherwise nothing is
+// read.
+func (s *Server) firstEnrolment(ctx context.Context, d disclosure) (cohort.Date, error) {
+	if d.dates {
+		return cohort.Date{}, nil
+	}
+	return s.store.FirstEnrolment(ctx)
+}
+
 func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, error) {
 	sites, err := s.store.Sites(ctx)
 	if err != nil {
@@ -133,13 +146,18 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 	}
 	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
 		CanEnrol: coordWork.allows(role(r)), Total: page.Total, Active: page.Active, Withdrawn: page.Withdrawn}
+	d := disclosureOf(r)
+	first, err := s.firstEnrolment(ctx, d)
+	if err != nil {
+		return err
+	}
 	now := s.now()
 	fw := s.followUpWeeks(ctx)
 	ids := make([]int64, 0, len(page.Rows))
 	for _, p := range page.Rows {
 		st, tone := status(p.Participant, fw, now)
 		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: p.Sex.Label(),
-			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
+			AgeBand: ageBand(p.Participant, now), EnrolledOn: d.enrolment(first, p.EnrolledOn), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
 		if p.LastPositive != nil {
 			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
 		}
@@ -184,10 +202,19 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 		nil, map[string]any{"filter": r.URL.RawQuery, "with_phi": seesPHI}); err != nil {
 		return err
 	}
+	d := disclosureOf(r)
+	first, err := s.firstEnrolment(ctx, d)
+	if err != nil {
+		return err
+	}
 	w.Header().Set("Content-Type", "text/csv; charset=utf-8")
 	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="participants-%s.csv"`, s.now().UTC().Format("20060102")))
 	cw := csv.NewWriter(w)
-	head := []string{"study_id", "site", "sex", "age_band", "enrolled_on", "status", "withdrawn_on", "last_positive_week", "open_cases"}
+	enrolledCol, withdrawnCol := "enrolled_on", "withdrawn_on"
+	if !d.dates {
+		enrolledCol, withdrawnCol = "recruitment_week", "withdrawn_study_day" // study time, no dates
+	}
+	head := []string{"study_id", "site", "sex", "age_band", enrolledCol, "status", withdrawnCol, "last_positive_week", "open_cases"}
 	if seesPHI {
 		head = append(head, "name")
 	}
@@ -201,14 +228,20 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 		}
 		for _, p := range page.Rows {
 			st, _ := status(p.Participant, fw, now)
-			withdrawn, last := "", ""
+			enrolled, withdrawn, last := p.EnrolledOn.String(), "", ""
+			if !d.dates {
+				enrolled = strconv.Itoa(deid.RecruitmentWeek(first, p.EnrolledOn))
+			}
 			if p.WithdrawnOn != nil {
 				withdrawn = p.WithdrawnOn.String()
+				if !d.dates {
+					withdrawn = strconv.Itoa(deid.StudyTimeOf(p.EnrolledOn, *p.WithdrawnOn).Day)
+				}
 			}
 			if p.LastPositive != nil {
 				last = strconv.Itoa(*p.LastPositive)
 			}
-			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), st, withdrawn, last, strconv.Itoa(p.OpenCases)}
+			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), enrolled, st, withdrawn, last, strconv.Itoa(p.OpenCases)}
 			if seesPHI {
 				rec = append(rec, csvSafe(p.Name))
 			}
@@ -263,6 +296,11 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	d := disclosureOf(r)
+	first, err := s.firstEnrolment(ctx, d)
+	if err != nil {
+		return err
+	}
 	st, tone := status(p, s.followUpWeeks(ctx), s.now())
 	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st, StatusTone: tone,
 		CanEdit: coordWork.allows(role(r)), CanNote: caseWork.allows(role(r)), Withdrawn: p.WithdrawnOn != nil}
@@ -270,14 +308,22 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		{Label: "Site", Value: p.SiteCode},
 		{Label: "Sex", Value: p.Sex.Label()},
 		{Label: "Age band", Value: ageBand(p, s.now())},
-		{Label: "Enrolled", Value: p.EnrolledOn.String()},
-		{Label: "Time zone", Value: p.TimeZone},
+		{Label: "Enrolled", Value: d.enrolment(first, p.EnrolledOn)},
 		{Label: "Consent version", Value: p.ConsentVersion},
 		{Label: "Watch", Value: p.WatchModel},
 		{Label: "Beat intervals", Value: map[bool]string{true: "supplied by the watch", false: "not supplied"}[p.RRCapable]},
 	}
+	if role(r).SeesPHI() {
+		// A time zone can name an area smaller than a state (a county's
+		// zone): geography, shown with the other identifying details' rule.
+		m.Facts = slices.Insert(m.Facts, 4, views.Fact{Label: "Time zone", Value: p.TimeZone})
+	}
 	if p.WithdrawnOn != nil {
-		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: p.WithdrawnOn.String() + " (" + p.WithdrawalReason + ")"})
+		withdrawn := d.day(p.EnrolledOn, *p.WithdrawnOn)
+		if reason := d.text(p.WithdrawalReason); reason != "" {
+			withdrawn += " (" + reason + ")"
+		}
+		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: withdrawn})
 	}
 	m.Risk = []views.Fact{
 		{Label: "High blood pressure", Value: yesNo(p.Risk.Hypertension)},
@@ -309,8 +355,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	m.ChartWeek = chartWeek
 	loc := p.Location()
 	for _, l := range lines {
-		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
-		row := views.TimelineRow{Week: l.Week, Dates: start.Format("Jan 2") + " – " + end.AddDate(0, 0, -1).Format("Jan 2"), Readings: l.Readings,
+		row := views.TimelineRow{Week: l.Week, Dates: d.weekSpan(p.EnrolledOn, loc, l.Week), Readings: l.Readings,
 			Verdict: l.Verdict, Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
 			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
 		if l.WearHours > 0 {
@@ -324,12 +369,15 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err := s.participantCharts(r, p, lines, &m); err != nil {
 		return err
 	}
-	notes, err := s.store.Notes(ctx, p.ID)
-	if err != nil {
-		return err
-	}
-	for _, n := range notes {
-		m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
+	m.NotesHidden = !d.dates
+	if d.dates {
+		notes, err := s.store.Notes(ctx, p.ID)
+		if err != nil {
+			return err
+		}
+		for _, n := range notes {
+			m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
+		}
 	}
 	return s.ok(w, r, views.ParticipantPage(m))
 }

@@ -162,6 +162,9 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	g.Go(func() (err error) { suff, err = s.store.DataSufficiency(ctx); return err })
 	g.Go(func() (err error) { silent, err = s.store.SilentParticipants(ctx, silentDays); return err })
 	g.Go(func() (err error) { section, err = s.progressCascade(ctx, r.URL.Query(), window); return err })
+	d := disclosureOf(r)
+	var first cohort.Date
+	g.Go(func() (err error) { first, err = s.firstEnrolment(ctx, d); return err })
 	if err := g.Wait(); err != nil {
 		return err
 	}
@@ -187,8 +190,8 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Bottom: "0"}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "participants"}))
 	labels := make([]string, len(h.Weeks))
-	for i, d := range h.Weeks {
-		labels[i] = d.String()
+	for i, wk := range h.Weeks {
+		labels[i] = d.calendarWeek(first, wk)
 	}
 	line.SetXAxis(labels)
 	cum := func(weekly []int) []opts.LineData {
@@ -229,9 +232,10 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		if w.Active > 0 {
 			share = 100 * float64(w.Sufficient) / float64(w.Active)
 		}
-		sx = append(sx, w.Week.String())
+		label := d.calendarWeek(first, w.Week)
+		sx = append(sx, label)
 		sy = append(sy, opts.LineData{Value: fmt.Sprintf("%.1f", share)})
-		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Week: w.Week.String(), Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
+		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
 	}
 	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy)
 	sch, _, err := chartView("sufficiency", "Share of participant-weeks with enough usable wear, by calendar week", sl, false)
@@ -244,7 +248,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	for _, sp := range silent {
 		last := "never"
 		if sp.LastData != nil {
-			last = sp.LastData.Format("2006-01-02")
+			last = d.dayAt(sp.EnrolledOn, sp.Location(), *sp.LastData) // the day in the participant's zone
 		}
 		m.Silent = append(m.Silent, views.SilentRow{Href: fmt.Sprintf("/participants/%d", sp.ID), StudyID: sp.StudyID, Site: sp.SiteCode, Last: last, Days: sp.Days})
 	}

@@ -250,6 +250,16 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 		return errNotFound
 	}
 	end := min(len(ids), start+cascadePageSize)
+	// Study IDs listed for an enrolment period would tell a role that sees no
+	// dates when each of them enrolled (narrow the period to a day and look);
+	// such a role sees the counts of a period, and the lists of the whole
+	// study.
+	unlisted, listed := "", len(ids)
+	if !disclosureOf(r).dates && (!cq.from.IsZero() || !cq.to.IsZero()) {
+		unlisted = "Participants are not listed by study ID for an enrolment period to your role: with the period, the list would show when each of them enrolled. Remove the period to see the list."
+		ids = nil
+		start, end = 0, 0
+	}
 	members, err := s.store.CascadeMembers(ctx, c.Protocol.ID, ids[start:end])
 	if err != nil {
 		return err
@@ -270,8 +280,8 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	}
 	path := "/progress/cascade/" + box.Key
 	m := views.CascadeBoxModel{Page: s.page(r, "Cascade: "+box.Label, "progress"), Protocol: c.Protocol.Label(), Period: cq.period(),
-		Box: flow.Boxes[at], Exit: label, Listed: len(ids), DeIdentified: deid, From: start + 1, Upto: end,
-		Back: cq.href("/progress") + "#cascade", BoxHref: cq.href(path)}
+		Box: flow.Boxes[at], Exit: label, Listed: listed, DeIdentified: deid, From: start + 1, Upto: end,
+		Back: cq.href("/progress") + "#cascade", BoxHref: cq.href(path), Unlisted: unlisted}
 	extra := []string{}
 	if exit != "" {
 		extra = []string{"exit", string(exit)}
