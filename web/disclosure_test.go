@@ -3,8 +3,8 @@ package web
 import (
 	"context"
 	"encoding/csv"
-	"html"
 	"fmt"
+	"html"
 	"strings"
 	"testing"
 
