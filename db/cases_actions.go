@@ -141,13 +141,14 @@ func (s *Store) attemptEdit(a cohort.Actor, e followup.AttemptEntry, bulk bool) 
 			if a.UserID != 0 {
 				actorID = &a.UserID
 			}
-			r := &attemptRecord{At: at.UTC(), Channel: string(e.Channel), Outcome: string(e.Outcome), Note: e.Note}
+			r := &attemptRecord{At: at.UTC(), Channel: string(e.Channel), Outcome: string(e.Outcome)}
 			if err := tx.QueryRow(ctx, `
 				INSERT INTO contact_attempts (case_id, participant_id, at, channel, outcome, note, moved_to, actor_id, actor)
 				VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9) RETURNING id`,
 				cur.ID, cur.ParticipantID, at, string(e.Channel), string(e.Outcome), e.Note, moved, actorID, a.Label()).Scan(&r.ID); err != nil {
 				return err
 			}
+			r.NoteRef = freeText("contact_attempts", r.ID, "note", e.Note)
 			rec.Attempt, rec.Bulk = r, bulk
 			return nil
 		},
@@ -185,7 +186,7 @@ func (s *Store) moveEdit(action followup.Edit, in MoveInput, closing bool) caseE
 			if in.To.Terminal() {
 				next.ClosingNote = reason
 			}
-			rec.Reason = reason
+			rec.reason = reason
 			return nil
 		},
 	}

@@ -10,6 +10,8 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+
+	"github.com/jackc/pgx/v5"
 )
 
 // The participant list: filters, orders and keyset pages.
@@ -273,4 +275,20 @@ func (s *Store) FirstEnrolment(ctx context.Context) (cohort.Date, error) {
 		return cohort.Date{}, nil
 	}
 	return cohort.DateOf(*first), nil
+}
+
+// ParticipantIDs lists the ids of every participant the filter matches, in
+// id order, whatever f's order, cursor and limit: what a download of the
+// filtered list is about to contain, for its audit event.
+func (s *Store) ParticipantIDs(ctx context.Context, f ParticipantFilter) ([]int64, error) {
+	if err := f.Check(); err != nil {
+		return nil, err
+	}
+	where, args := f.where(s.now().UTC())
+	rows, err := s.pool.Query(ctx, `SELECT p.id FROM participants p WHERE `+where+` ORDER BY p.id`, args...)
+	if err != nil {
+		return nil, mapErr("participant ids", err)
+	}
+	ids, err := pgx.CollectRows(rows, pgx.RowTo[int64])
+	return ids, mapErr("participant ids", err)
 }

@@ -39,6 +39,17 @@ func (s *Server) auditList(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	// The trail holds what people did to participants' records (and, in
+	// events written before free text was kept by reference, what they
+	// wrote): reading it is itself recorded, with the events shown.
+	shown := make([]int64, len(evs))
+	for i, e := range evs {
+		shown[i] = e.ID
+	}
+	if err := s.store.Audit(r.Context(), s.actor(r), "audit.view", "audit_events", "", nil,
+		map[string]any{"filter": r.URL.RawQuery, "event_ids": shown}); err != nil {
+		return err
+	}
 	m := views.AuditModel{Page: s.page(r, "Audit trail", "admin"), Filter: form}
 	for _, e := range evs {
 		m.Rows = append(m.Rows, views.AuditRow{ID: e.ID, At: e.At.UTC().Format("2006-01-02 15:04:05"), Actor: e.Actor, Action: e.Action,

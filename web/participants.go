@@ -24,6 +24,7 @@ type participantStore interface {
 	Sites(ctx context.Context) ([]db.Site, error)
 	Participants(ctx context.Context, f db.ParticipantFilter) (db.ParticipantPage, error)
 	FirstEnrolment(ctx context.Context) (cohort.Date, error)
+	ParticipantIDs(ctx context.Context, f db.ParticipantFilter) ([]int64, error)
 	Participant(ctx context.Context, id int64) (db.Participant, error)
 	Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (db.Identity, error)
 	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
@@ -185,7 +186,9 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 }
 
 // participantsCSV streams the whole filtered list. Names and contact details
-// only for roles that see PHI; the download is audited.
+// only for roles that see PHI. The download is audited first, with the ids
+// of the participants it holds (as runs of consecutive ids); the file then
+// holds exactly those of them that still match when their page is read.
 func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	seesPHI := role(r).SeesPHI()
@@ -198,8 +201,12 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	f.After, f.Limit = "", 500
+	ids, err := s.store.ParticipantIDs(ctx, f)
+	if err != nil {
+		return err
+	}
 	if err := s.store.Audit(ctx, s.actor(r), "participant.export_list", "participant_list", "",
-		nil, map[string]any{"filter": r.URL.RawQuery, "with_phi": seesPHI}); err != nil {
+		nil, map[string]any{"filter": r.URL.RawQuery, "with_phi": seesPHI, "count": len(ids), "participant_ids": idRuns(ids)}); err != nil {
 		return err
 	}
 	d := disclosureOf(r)
@@ -227,6 +234,9 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 			return err
 		}
 		for _, p := range page.Rows {
+			if _, audited := slices.BinarySearch(ids, p.ID); !audited {
+				continue // enrolled since the audit event was written: not part of this download
+			}
 			st, _ := status(p.Participant, fw, now)
 			enrolled, withdrawn, last := p.EnrolledOn.String(), "", ""
 			if !d.dates {
@@ -253,6 +263,20 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 		}
 		f.After = page.Next
 	}
+}
+
+// idRuns writes sorted ids as runs of consecutive ids, [first, last] each,
+// so an audit event of a download of the whole study stays small.
+func idRuns(ids []int64) [][2]int64 {
+	var out [][2]int64
+	for _, id := range ids {
+		if n := len(out); n > 0 && out[n-1][1]+1 == id {
+			out[n-1][1] = id
+			continue
+		}
+		out = append(out, [2]int64{id, id})
+	}
+	return out
 }
 
 func (s *Server) participantParam(r *http.Request) (db.Participant, error) {

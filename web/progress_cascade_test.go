@@ -476,6 +476,8 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 //
 // Due: 02-09: 1; 02-16: 2; 02-23: 2. With enough wear: 02-09: 1 (S1 w0);
 // 02-16: 2 (S1 w1, S2 w0); 02-23: 1 (S2 w1; S1 w2 was insufficient).
+// A monitor sees the same rows labelled by recruitment week, counted from
+// the week of the first enrolment (S1's, 02-09): weeks 0, 1 and 2.
 func TestDataSufficiencyWorkedExample(t *testing.T) {
 	a := newAppAt(t, time.Date(2026, 3, 11, 12, 0, 0, 0, time.UTC))
 	for _, q := range []string{
@@ -492,7 +494,7 @@ func TestDataSufficiencyWorkedExample(t *testing.T) {
 	} {
 		a.exec(q)
 	}
-	_, body := a.get(a.signIn(cohort.Monitor), "/progress")
+	_, body := a.get(a.signIn(cohort.Investigator), "/progress")
 	want := map[string]string{
 		"sufficiency-2026-02-09": "2026-02-09 1 1 100%",
 		"sufficiency-2026-02-16": "2026-02-16 2 2 100%",
@@ -504,6 +506,16 @@ func TestDataSufficiencyWorkedExample(t *testing.T) {
 	for id, w := range want {
 		if got := byTestID(body, id); got != w {
 			t.Errorf("%s: %q, want %q", id, got, w)
+		}
+	}
+	_, body = a.get(a.signIn(cohort.Monitor), "/progress")
+	for id, w := range map[string]string{
+		"sufficiency-recruitment week 0": "recruitment week 0 1 1 100%",
+		"sufficiency-recruitment week 1": "recruitment week 1 2 2 100%",
+		"sufficiency-recruitment week 2": "recruitment week 2 2 1 50%",
+	} {
+		if got := byTestID(body, id); got != w {
+			t.Errorf("monitor %s: %q, want %q", id, got, w)
 		}
 	}
 }
@@ -536,7 +548,7 @@ func TestDataSufficiencyCountsWeeksEndedInTheStudyZone(t *testing.T) {
 		} {
 			a.exec(q)
 		}
-		_, body := a.get(a.signIn(cohort.Monitor), "/progress")
+		_, body := a.get(a.signIn(cohort.Investigator), "/progress")
 		if got := byTestID(body, "sufficiency-2026-02-23"); got != c.want {
 			t.Errorf("at %s: week of 2026-02-23 %q, want %q", c.now.Format(time.RFC3339), got, c.want)
 		}
