@@ -47,16 +47,6 @@ func (e *queryError) list() string {
 	return strings.Join(parts, "; ")
 }
 
-// badQuery turns the validation error of values read from a query string
-// into a queryError; other errors pass unchanged.
-func badQuery(err error) error {
-	var ve *cohort.ValidationError
-	if errors.As(err, &ve) {
-		return &queryError{fields: ve.Fields}
-	}
-	return err
-}
-
 // query reads the parameters of one request. Each reader returns the zero
 // value for a missing parameter and records a refusal for a malformed one;
 // err returns them all at once.
