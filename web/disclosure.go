@@ -95,5 +95,5 @@ func (d disclosure) timeAxis(n int, weekStart, weekEnd int64) (x func(ms int64) 
 		return math.Round(v*1e4) / 1e4 // about 9 s: finer than any reading interval drawn
 	}
 	return func(ms int64) any { return days(ms) },
-		opts.XAxis{Type: "value", Name: "study day", NameLocation: "middle", NameGap: 24, Min: days(weekStart), Max: days(weekEnd)}
+		opts.XAxis{Type: "value", Name: "study day", Min: days(weekStart), Max: days(weekEnd)}
 }
