@@ -54,9 +54,6 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
 	switch {
 	case f.State != "":
-		if !f.State.Valid() {
-			return "", nil, &cohort.ValidationError{Fields: map[string]string{"state": "choose a state from the list"}}
-		}
 		conds = append(conds, "c.state = "+arg(string(f.State)))
 	case f.Scope == WorkingCases:
 		conds = append(conds, "c.closed_at IS NULL")
@@ -78,10 +75,29 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	return strings.Join(conds, " AND "), args, nil
 }
 
+// Check refuses a filter the list cannot apply: an unknown state or a
+// cursor this list did not make (a tampered or outdated page link).
+// Messages are keyed by the list's query parameters.
+func (f CaseFilter) Check() error {
+	var ve cohort.ValidationError
+	if f.State != "" && !f.State.Valid() {
+		ve.Add("state", "choose a state from the list")
+	}
+	if f.After != "" {
+		if c, ok := decodeCursor(f.After); !ok || c.ID <= 0 || c.Key != "" {
+			ve.Add("after", errBadCursor.Fields["after"])
+		}
+	}
+	return ve.Err()
+}
+
 // Cases returns one page of the filtered case list with keyset pagination.
 func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if f.Limit <= 0 || f.Limit > 500 {
 		f.Limit = 50
+	}
+	if err := f.Check(); err != nil {
+		return CasePage{}, err
 	}
 	var page CasePage
 	where, args, err := f.where(s.now())
@@ -92,8 +108,10 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 		return page, mapErr("cases count", err)
 	}
 	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key, c.ID)
-		where += fmt.Sprintf(" AND (%s, c.id) > ($%d::timestamptz, $%d)", caseOrder, len(args)-1, len(args))
+		// The cursor is the last row's id alone: a deadline in the page link
+		// would show monitors a date of a participant's case.
+		args = append(args, c.ID)
+		where += fmt.Sprintf(" AND (%s, c.id) > (SELECT coalesce(k.due_at, 'infinity'::timestamptz), k.id FROM cases k WHERE k.id = $%d)", caseOrder, len(args))
 	}
 	args = append(args, f.Limit+1)
 	rows, err := s.pool.Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
@@ -107,12 +125,7 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	}
 	if len(page.Rows) > f.Limit {
 		page.Rows = page.Rows[:f.Limit]
-		last := page.Rows[f.Limit-1]
-		key := "infinity"
-		if !last.DueAt.IsZero() {
-			key = last.DueAt.UTC().Format(time.RFC3339Nano)
-		}
-		page.Next = encodeCursor(cursor{Key: key, ID: last.ID})
+		page.Next = encodeCursor(cursor{ID: page.Rows[f.Limit-1].ID})
 	}
 	return page, nil
 }

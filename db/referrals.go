@@ -91,7 +91,10 @@ type ReferralBasis struct {
 	CaseID        int64          // 0 for a participant without a case
 	CaseState     followup.State // "" without a case
 	ProtocolID    int            // 0 when no protocol applies
-	Source        referral.Source
+	// Withdrawal is set when the participant has left the study: a summary
+	// is then issued only with the issuer's confirmation (referral.CheckIssue).
+	Withdrawal *referral.Withdrawal
+	Source     referral.Source
 	// Confirmed: the summary's recording confirms AF
 	// (overread.Conclusion.ConfirmsAF).
 	Confirmed bool
@@ -116,7 +119,7 @@ func (s *Store) ReferralSource(ctx context.Context, participantID, caseID int64)
 	if err != nil {
 		return ReferralBasis{}, err
 	}
-	b := ReferralBasis{ParticipantID: p.ID, StudyID: p.StudyID}
+	b := ReferralBasis{ParticipantID: p.ID, StudyID: p.StudyID, Withdrawal: referral.WithdrawalOf(p.EnrolledOn, p.WithdrawnOn, p.ConsentVersion)}
 	src := &b.Source
 	src.StudyID, src.EnrolledOn, src.Location, src.Sex = p.StudyID, p.EnrolledOn, p.Location(), p.Sex
 	src.AgeAtEnrolment = p.AgeAtEnrolment
@@ -333,6 +336,9 @@ type ReferralIssue struct {
 	Format    string // html, pdf or zip
 	Paper     string // a4 or letter
 	PDFSHA256 string // digest of the PDF made from Summary on Paper
+	// ConfirmedWithdrawn is the issuer's confirmation that a summary of a
+	// withdrawn participant may still be passed on (referral.CheckIssue).
+	ConfirmedWithdrawn bool
 }
 
 // Referral formats and papers as stored.
@@ -346,6 +352,9 @@ var (
 func (s *Store) IssueReferral(ctx context.Context, a cohort.Actor, in ReferralIssue) (Referral, error) {
 	if !referralFormats[in.Format] || !referralPapers[in.Paper] || len(in.PDFSHA256) != 64 {
 		return Referral{}, fmt.Errorf("db: issue referral: format %q, paper %q, pdf digest %q: not a recordable summary", in.Format, in.Paper, in.PDFSHA256)
+	}
+	if err := referral.CheckIssue(in.Basis.Withdrawal, in.ConfirmedWithdrawn); err != nil {
+		return Referral{}, err
 	}
 	content, err := referral.Content(in.Summary)
 	if err != nil {
@@ -369,7 +378,8 @@ func (s *Store) IssueReferral(ctx context.Context, a cohort.Actor, in ReferralIs
 		}
 		return audit(ctx, tx, a, "referral.issue", "referral", strconv.FormatInt(r.ID, 10), nil, map[string]any{
 			"participant_id": r.ParticipantID, "case_id": r.CaseID, "protocol_id": r.ProtocolID, "referral_code": r.Code,
-			"content_sha256": digest, "pdf_sha256": r.PDFSHA256, "format": r.Format, "paper": r.Paper})
+			"content_sha256": digest, "pdf_sha256": r.PDFSHA256, "format": r.Format, "paper": r.Paper,
+			"withdrawn_confirmed": in.Basis.Withdrawal != nil})
 	})
 	if err != nil {
 		return Referral{}, mapErr("issue referral", err)

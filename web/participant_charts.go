@@ -74,7 +74,7 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 				threshold = res.Result.Windows[wi].Threshold // a personal baseline may have raised it
 			}
 		}
-		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli())
+		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli(), disclosureOf(r))
 		if err != nil {
 			return err
 		}
@@ -123,10 +123,13 @@ func contains(list []string, s string) bool {
 
 // hrChart draws a week's cleaned heart rate on a time axis with the irregular
 // windows of the protocol's window size wi shaded, and returns how many
-// windows were irregular.
-func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64) (components.ChartModel, []string, int, error) {
+// windows were irregular. The axis is the disclosure's: calendar time, or
+// study days for a role that sees no dates (the chart's data then holds no
+// timestamp).
+func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64, d disclosure) (components.ChartModel, []string, int, error) {
 	cleaned, _ := screen.Clean(w, p, now)
 	pr := screen.Prepare(&cleaned, p)
+	x, xAxis := d.timeAxis(w.Week, cleaned.Start, cleaned.End)
 	rule := p.Windows[wi]
 	l := int64(rule.Minutes) * 60_000
 	var areas [][]opts.MarkAreaData
@@ -134,7 +137,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 	runStart := int64(-1)
 	closeRun := func(end int64) {
 		if runStart >= 0 && len(areas) < maxAreas {
-			areas = append(areas, []opts.MarkAreaData{{XAxis: runStart}, {XAxis: end}})
+			areas = append(areas, []opts.MarkAreaData{{XAxis: x(runStart)}, {XAxis: x(end)}})
 		}
 		runStart = -1
 	}
@@ -153,13 +156,13 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 
 	hr := cleaned.HR
 	var pts []opts.LineData
-	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{t, "-"}}) }
+	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{x(t), "-"}}) }
 	if hr.Len() <= maxHRPoints {
 		for i, t := range hr.T {
 			if i > 0 && t-hr.T[i-1] > 10*60_000 {
 				gap(t - 1)
 			}
-			pts = append(pts, opts.LineData{Value: []any{t, hr.V[i]}})
+			pts = append(pts, opts.LineData{Value: []any{x(t), hr.V[i]}})
 		}
 	} else {
 		// Means over fixed buckets aligned to the week's start.
@@ -168,7 +171,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		flush := func() {
 			if n > 0 {
 				t := cleaned.Start + bucket*hrBucketMs + hrBucketMs/2
-				pts = append(pts, opts.LineData{Value: []any{t, math.Round(float64(sum)/float64(n)*10) / 10}})
+				pts = append(pts, opts.LineData{Value: []any{x(t), math.Round(float64(sum)/float64(n)*10) / 10}})
 			}
 		}
 		for i, t := range hr.T {
@@ -190,7 +193,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		charts.WithInitializationOpts(chartInit("hr-chart")),
 		charts.WithAnimation(false),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
-		charts.WithXAxisOpts(opts.XAxis{Type: "time", Min: cleaned.Start, Max: cleaned.End}),
+		charts.WithXAxisOpts(xAxis),
 		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value", Scale: opts.Bool(true)}),
 		charts.WithDataZoomOpts(opts.DataZoom{Type: "inside"}, opts.DataZoom{Type: "slider"}),
 	)
