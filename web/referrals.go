@@ -7,8 +7,10 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"maps"
 	"net/http"
 	"net/url"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -219,7 +221,7 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	}
 	q := readQuery(r.URL.Query())
 	paper := paperParam(q, ref.Paper)
-	q.oneOf("done", "signoff")
+	q.oneOf("done", slices.Collect(maps.Keys(referralDone))...)
 	if err := q.err(); err != nil {
 		return err
 	}
