@@ -70,7 +70,7 @@ type downStore struct{ Store }
 
 func (downStore) Ping(context.Context) error { return errors.New("connection refused") }
 
-func TestReadyzIs503WhenDatabaseIsDown(t *testing.T) {
+func TestReadyIs503WhenDatabaseIsDown(t *testing.T) {
 	ts := httptest.NewServer(New(Config{Store: downStore{}}).Handler())
 	defer ts.Close()
 	if res, _ := get(t, ts.URL+"/ready"); res.StatusCode != http.StatusServiceUnavailable {
