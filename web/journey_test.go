@@ -249,7 +249,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	taken := c.FlaggedAt.In(st.Location()).Format("2006-01-02T15:04")
 	b.Do("upload the returned recording",
 		chromedp.SetUploadFiles(chromedp.ID("waveform"), []string{file}),
-		chromedp.SetValue(chromedp.ID("auto"), string(overread.AutoAF)),
+		chromedp.SetValue(chromedp.ID("auto"), string(overread.AutoSuggestsAF)),
 		chromedp.SetValue(chromedp.ID("taken_at"), taken),
 		chromedp.Click(chromedp.CSS(`[data-testid="add-recording"]`)),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="recording-flash"]`)),

@@ -15,6 +15,7 @@ import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 )
@@ -221,7 +222,7 @@ func TestOverReadFlow(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 1)
 	ctx := context.Background()
-	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: "af"})
+	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: overread.AutoSuggestsAF})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -408,7 +408,7 @@ func referralDoc(sum referral.Summary) views.ReferralDocView {
 	}
 	if rec := sum.Recording; rec != nil {
 		d.OverRead = append(d.OverRead, views.Fact{Label: "Recording", Value: fmt.Sprintf("study day %d, %.0f s, single lead", rec.StudyDay, rec.DurationS)},
-			views.Fact{Label: "Recorder's own reading", Value: rec.AutoInterpretation})
+			views.Fact{Label: overread.AutoHeading, Value: rec.AutoInterpretation})
 		if len(rec.MicroVolts) > 0 {
 			l := rec.Strip()
 			sv := stripView("summary-ecg", l, referralpdf.StripCaption(*rec, l))

@@ -2,6 +2,7 @@ package overread
 
 import (
 	"errors"
+	"strings"
 	"testing"
 
 	"cohortdesk/cohort"
@@ -129,13 +130,13 @@ func TestCategoriesCoverEveryValue(t *testing.T) {
 	}
 	for _, a := range Autos() {
 		c, ok := AutoCategory(a)
-		if ok != (a != AutoNone) || (ok && !in[c]) {
+		if ok != (a != AutoNoReading) || (ok && !in[c]) {
 			t.Errorf("auto %s maps to %q, %v", a, c, ok)
 		}
 	}
 	// An empty automatic interpretation is taken as none by recording
 	// intake (ecg.Intake, tested there); here the defined values only.
-	if !AutoNone.Valid() || Auto("maybe").Valid() || !Probable.Valid() || Confidence("sure").Valid() {
+	if !AutoNoReading.Valid() || Auto("maybe").Valid() || !Probable.Valid() || Confidence("sure").Valid() {
 		t.Error("automatic interpretation or confidence validity")
 	}
 	if Rhythm("sinus_rhythm").Valid() {
@@ -167,6 +168,33 @@ func TestDiagnostic(t *testing.T) {
 	for _, c := range cases {
 		if got := c.v.Diagnostic(c.tooShort); got != c.want {
 			t.Errorf("%s: Diagnostic = %v, want %v", c.name, got, c.want)
+		}
+	}
+}
+
+// TestRecorderReadingWords: the recorder's readings are worded as the
+// device's call, each distinctly, and the comparison text names every one of
+// them beside the readers' rhythms it is compared with.
+func TestRecorderReadingWords(t *testing.T) {
+	seen := map[string]bool{}
+	for _, a := range Autos() {
+		l := a.Label()
+		if !strings.Contains(l, "device") || seen[l] || !a.Valid() {
+			t.Errorf("recorder reading %s worded %q: want a distinct wording that says it is the device's", a, l)
+		}
+		seen[l] = true
+		if !strings.Contains(CategoryMapping, l) {
+			t.Errorf("the category mapping does not name %q: %s", l, CategoryMapping)
+		}
+	}
+	for _, r := range Rhythms() {
+		if !strings.Contains(CategoryMapping, r.Label()) {
+			t.Errorf("the category mapping does not name the rhythm %q", r.Label())
+		}
+	}
+	for _, c := range Categories() {
+		if !strings.Contains(CategoryMapping, string(c)+" (recorder: ") {
+			t.Errorf("the category mapping does not explain %q", c)
 		}
 	}
 }

@@ -25,9 +25,9 @@ func TestSummaryWordsAreOverreads(t *testing.T) {
 		}
 	}
 	src := source(t)
-	src.Recording.Auto = overread.AutoSinus
-	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "sinus rhythm" {
-		t.Errorf("recorder's sinus reading worded %q, want \"sinus rhythm\" as on the recording page", got)
+	src.Recording.Auto = overread.AutoSuggestsRegular
+	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "device suggests a regular rhythm" {
+		t.Errorf("recorder's regular reading worded %q, want \"device suggests a regular rhythm\" as on the recording page", got)
 	}
 	for _, r := range overread.Rhythms() {
 		src := source(t)
@@ -77,5 +77,44 @@ func TestIssuedBeforeTheLabelFix(t *testing.T) {
 	}
 	if s.Recording == nil || s.Recording.AutoInterpretation != "sinus" || s.OverRead.Rhythm != overread.AF {
 		t.Errorf("recorded words changed: %+v %+v", s.Recording, s.OverRead)
+	}
+}
+
+// TestIssuedBeforeTheRecorderWordsChanged: the recorder's readings got words
+// of our own ("possible AF" became "device suggests AF", with new stored
+// values, migration 0070). A summary issued before keeps its recorded words
+// and still matches its recorded digest. The fixture is the content the
+// program wrote then for a recorder reading of AF, and the digest it
+// recorded, both printed by that version of Build, Content and Digest.
+func TestIssuedBeforeTheRecorderWordsChanged(t *testing.T) {
+	const recorded = "3ee58ac22454e6226836c9189c9a7e2da990fec1745e0111c22d7ddc40e80709"
+	b, err := os.ReadFile("testdata/issued-with-earlier-recorder-words.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b = b[:len(b)-1] // the file's final newline
+	if sum := sha256.Sum256(b); hex.EncodeToString(sum[:]) != recorded {
+		t.Fatal("the fixture is not the content that was digested")
+	}
+	var generic map[string]any
+	if err := json.Unmarshal(b, &generic); err != nil {
+		t.Fatal(err)
+	}
+	stored, _ := json.MarshalIndent(generic, "", " ")
+	s, err := Decode(stored)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got, _ := Digest(s); got != recorded {
+		t.Errorf("digest %s, want the recorded %s", got, recorded)
+	}
+	if s.Recording == nil || s.Recording.AutoInterpretation != "possible AF" {
+		t.Errorf("recorded words changed: %+v", s.Recording)
+	}
+	// A summary issued now for the same reading uses today's words.
+	src := source(t)
+	src.Recording.Auto = overread.AutoSuggestsAF
+	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "device suggests AF" {
+		t.Errorf("a new summary words the recorder's AF reading %q", got)
 	}
 }

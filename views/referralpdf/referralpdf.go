@@ -11,6 +11,7 @@ import (
 
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 
 	"github.com/go-pdf/fpdf"
@@ -103,7 +104,7 @@ func Render(sum referral.Summary, paper string) ([]byte, error) {
 	}
 	if r := sum.Recording; r != nil {
 		d.pair("Recording", fmt.Sprintf("study day %d, %.0f s, single lead", r.StudyDay, r.DurationS), false)
-		d.pair("Recorder's own reading", r.AutoInterpretation, false)
+		d.pair(overread.AutoHeading, r.AutoInterpretation, false)
 	}
 
 	d.heading("Flagged study weeks")
