@@ -33,4 +33,8 @@ type AssetURLs struct {
 	CSS  string
 	JS   string
 	HTMX string
+	// PartCSS and PartJS are further stylesheets and scripts every page
+	// loads, one concern a file (cautions, keys, chart colours).
+	PartCSS []string
+	PartJS  []string
 }

@@ -94,6 +94,9 @@ func New(cfg Config) *Server {
 		CSS:  assets.URL("css/app.css"),
 		JS:   assets.URL("js/app.js"),
 		HTMX: assets.URL("vendor/htmx/htmx.min.js"),
+		// One concern a file: the cautions, the key scheme, chart colours.
+		PartCSS: []string{assets.URL("css/cautions.css"), assets.URL("css/keys.css"), assets.URL("css/charts.css")},
+		PartJS:  []string{assets.URL("js/keys.js"), assets.URL("js/charts.js")},
 	}
 	s.router = s.buildRouter()
 	return s
