@@ -1,9 +1,12 @@
 package web
 
 import (
+	"encoding/json"
 	"fmt"
 	"net/http"
+	"net/url"
 	"regexp"
+	"slices"
 	"strings"
 	"testing"
 
@@ -163,4 +166,60 @@ func TestCautionsWhereFlagsShow(t *testing.T) {
 		t.Errorf("only %d of %d pages show flag words: is the demo there?", flagged, checked)
 	}
 	t.Logf("%d pages checked, %d show flag or verdict words", checked, flagged)
+}
+
+// TestExportsCarryTheCautions: the weekly report's CSV bundle, the
+// de-identified dataset and a batch of referral summaries each hold the
+// cautions as a text file, word for word; the bundles with a file list name
+// it with its digest, and the dataset's read-me points to it.
+func TestExportsCarryTheCautions(t *testing.T) {
+	a := newApp(t)
+	demoCanaries(t, a)
+	inv, coord := a.signIn(cohort.Investigator), a.signIn(cohort.Coordinator)
+	get := func(c *http.Client, method, path string) map[string][]byte {
+		t.Helper()
+		var res *http.Response
+		var b []byte
+		if method == "POST" {
+			res, b = a.post(c, path, url.Values{"paper": {"a4"}})
+		} else {
+			var s string
+			res, s = a.get(c, path)
+			b = []byte(s)
+		}
+		if res.StatusCode != http.StatusOK || res.Header.Get("Content-Type") != "application/zip" {
+			t.Fatalf("%s %s: status %d %s", method, path, res.StatusCode, res.Header.Get("Content-Type"))
+		}
+		return unzip(t, b)
+	}
+	for _, tt := range []struct {
+		name, method, path string
+		c                  *http.Client
+		listed             bool
+	}{
+		{"weekly report bundle", "GET", "/progress/report.zip", inv, true},
+		{"dataset export", "POST", "/exports/dataset", inv, true},
+		{"referral batch", "POST", "/exports/referrals", coord, false},
+	} {
+		files := get(tt.c, tt.method, tt.path)
+		got, ok := files[cohort.CautionsFile]
+		if !ok || string(got) != cohort.CautionsText() {
+			t.Errorf("%s: %s missing or not the cautions (%d bytes)", tt.name, cohort.CautionsFile, len(got))
+			continue
+		}
+		if tt.listed {
+			var man struct {
+				Files []manifestFile `json:"files"`
+			}
+			if err := json.Unmarshal(files["manifest.json"], &man); err != nil {
+				t.Fatalf("%s: manifest: %v", tt.name, err)
+			}
+			if !slices.ContainsFunc(man.Files, func(f manifestFile) bool { return f.Name == cohort.CautionsFile && f.SHA256 == sha256Hex(got) }) {
+				t.Errorf("%s: the manifest does not list %s with its digest", tt.name, cohort.CautionsFile)
+			}
+		}
+		if readme, ok := files["README.txt"]; ok && !strings.Contains(string(readme), cohort.CautionsFile) {
+			t.Errorf("%s: the read-me does not point to %s", tt.name, cohort.CautionsFile)
+		}
+	}
 }

@@ -146,7 +146,7 @@ func TestReportAgreesWithThePagesOnTheDemo(t *testing.T) {
 		b, ok := files[f.Name]
 		sum := sha256.Sum256(b)
 		recs, _ := csv.NewReader(bytes.NewReader(b)).ReadAll()
-		if !ok || hex.EncodeToString(sum[:]) != f.SHA256 || len(b) != f.Bytes || len(recs)-1 != f.Rows {
+		if !ok || hex.EncodeToString(sum[:]) != f.SHA256 || len(b) != f.Bytes || (strings.HasSuffix(f.Name, ".csv") && len(recs)-1 != f.Rows) {
 			t.Errorf("manifest entry %+v does not match the file (%d bytes, %d rows)", f, len(b), len(recs)-1)
 		}
 	}

@@ -339,6 +339,9 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 		man.Summaries = append(man.Summaries, e)
 		man.ReferralIDs = append(man.ReferralIDs, ref.ID)
 	}
+	if _, err := zipCautions(zw); err != nil {
+		return err
+	}
 	inZip := man
 	inZip.ReferralIDs = nil
 	mj, err := json.MarshalIndent(inZip, "", "  ")

@@ -260,8 +260,8 @@ func TestReferralsAndExportsLeakNoCanary(t *testing.T) {
 		t.Fatalf("batch: status %d %s", res.StatusCode, res.Header.Get("Content-Type"))
 	}
 	files := unzip(t, batch)
-	if len(files) != len(pids)+1 {
-		t.Errorf("batch holds %d files for %d ready cases and a manifest", len(files), len(pids))
+	if len(files) != len(pids)+2 {
+		t.Errorf("batch holds %d files for %d ready cases, the cautions and a manifest", len(files), len(pids))
 	}
 	for name, b := range files {
 		if strings.HasSuffix(name, ".pdf") {

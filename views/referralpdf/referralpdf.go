@@ -117,7 +117,14 @@ func Render(sum referral.Summary, paper string) ([]byte, error) {
 		d.small(ChartCaption(*hr))
 	}
 
-	d.need(40)
+	// The cautions stay together on one page: their height, heading and
+	// all, is measured before they are drawn.
+	f.SetFont("Helvetica", "", 9)
+	lines := 0
+	for _, c := range sum.Cautions {
+		lines += len(f.SplitText(d.tr(c), d.width-4))
+	}
+	d.need(18 + float64(lines)*pdfLine)
 	d.heading("Cautions")
 	f.SetFont("Helvetica", "", 9)
 	for _, c := range sum.Cautions {
