@@ -12,6 +12,7 @@
       if (target.getAttribute("data-drawn")) return;
       var opts;
       try { opts = JSON.parse(target.getAttribute("data-chart")); } catch (e) { return; }
+      if (window.cohortdeskCharts) opts = window.cohortdeskCharts.colour(opts);
       var chart = echarts.init(target, null, { renderer: "svg" });
       chart.setOption(opts);
       target.setAttribute("data-drawn", "1");
