@@ -161,7 +161,7 @@ func Participants(m ParticipantsModel) templ.Component {
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
-			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 9, "\" data-key=\"/\"></div><div><label for=\"site\">Site</label> <select id=\"site\" name=\"site\"><option value=\"\">All sites</option> ")
+			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 9, "\" data-key=\"f\"></div><div><label for=\"site\">Site</label> <select id=\"site\" name=\"site\"><option value=\"\">All sites</option> ")
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
@@ -361,7 +361,7 @@ func Participants(m ParticipantsModel) templ.Component {
 				return templ_7745c5c3_Err
 			}
 			if m.CanEnrol {
-				templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 41, "<div><a class=\"button quiet\" href=\"/participants/new\">Enrol a participant</a></div><div><a class=\"button quiet\" href=\"/imports\" data-testid=\"imports-link\">Wear-data imports</a></div>")
+				templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 41, "<div><a class=\"button quiet\" href=\"/participants/new\" data-key=\"+\">Enrol a participant</a></div><div><a class=\"button quiet\" href=\"/imports\" data-testid=\"imports-link\">Wear-data imports</a></div>")
 				if templ_7745c5c3_Err != nil {
 					return templ_7745c5c3_Err
 				}
