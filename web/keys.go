@@ -61,7 +61,7 @@ var pageKeys = map[string][]keyUse{
 		keyUse{keyTake, "POST", "/cases/{id}/assign"}, keyUse{keyWho, "POST", "/cases/{id}/assign"},
 		keyUse{keyContact, "POST", "/cases/{id}/attempts"}, keyUse{keyMailed, "POST", "/cases/{id}/shipment"},
 		keyUse{key: keyLeave}),
-	"/participants": append([]keyUse{{key: keyFind}, {keyNew, "GET", "/participants/new"}}, listKeys...),
+	"/participants":      append([]keyUse{{key: keyFind}, {keyNew, "GET", "/participants/new"}}, listKeys...),
 	"/participants/{id}": listKeys,
 	"/cases": append([]keyUse{{key: keyFind}}, append(listKeys[:len(listKeys):len(listKeys)],
 		keyUse{keyTick, "POST", "/cases/bulk/assign"})...),
