@@ -107,12 +107,22 @@ func themeChart(o map[string]any) {
 			"textStyle": map[string]any{"color": ink, "fontSize": 12}, "inactiveColor": rule,
 		})
 	})
+	// A zoom control sits above the legend at the foot of the chart, never
+	// on it, with the plot above both.
+	slider := false
+	eachObject(o["dataZoom"], func(z map[string]any) { slider = slider || z["type"] == "slider" })
+	if slider {
+		eachObject(o["legend"], func(l map[string]any) { l["bottom"] = 0 })
+		if _, ok := o["grid"].(map[string]any); !ok {
+			o["grid"] = map[string]any{"bottom": 78}
+		}
+	}
 	eachObject(o["dataZoom"], func(z map[string]any) {
 		if z["type"] != "slider" {
 			return
 		}
 		fill(z, map[string]any{
-			"height": 22, "bottom": 6,
+			"height": 22, "bottom": 30,
 			"borderColor": rule, "backgroundColor": card, "fillerColor": chartToken("zoom-fill"),
 			"handleStyle":     map[string]any{"color": card, "borderColor": chartToken("zoom-handle"), "borderWidth": 1.5},
 			"moveHandleStyle": map[string]any{"color": chartToken("zoom-handle")},

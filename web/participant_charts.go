@@ -214,7 +214,7 @@ func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (compo
 	for _, r := range results {
 		// The week's verdict as a mark at the bottom of the share axis.
 		mark := func(v screen.Verdict) opts.LineData {
-			if r.Result.Verdict == v {
+			if screen.Verdict(r.Verdict) == v {
 				return opts.LineData{Value: 0}
 			}
 			return opts.LineData{Value: "-"}
