@@ -7,12 +7,7 @@ import (
 
 	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/screen"
-	"cohortdesk/db"
-	"cohortdesk/db/dbtest"
 	"cohortdesk/migrations"
-
-	"github.com/jackc/pgx/v5/stdlib"
-	"github.com/pressly/goose/v3"
 )
 
 // TestRecorderReadingsTakeOurWords: recordings stored before 0070 with the
@@ -21,20 +16,7 @@ import (
 // its check follow, so an earlier value can no longer be stored.
 func TestRecorderReadingsTakeOurWords(t *testing.T) {
 	ctx := context.Background()
-	pool, err := db.Open(ctx, dbtest.Empty(t), 2)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer pool.Close()
-	sqlDB := stdlib.OpenDBFromPool(pool)
-	defer sqlDB.Close()
-	p, err := goose.NewProvider(goose.DialectPostgres, sqlDB, migrations.FS())
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := p.UpTo(ctx, 69); err != nil {
-		t.Fatal(err)
-	}
+	pool := migratedTo(t, 69)
 	params, err := json.Marshal(screen.DefaultProtocol())
 	if err != nil {
 		t.Fatal(err)

@@ -53,28 +53,7 @@ func TestSummaryWordsAreOverreads(t *testing.T) {
 // the digest it recorded, both printed by that version of Build, Content and
 // Digest.
 func TestIssuedBeforeTheLabelFix(t *testing.T) {
-	const recorded = "bf278978be710b25721efcb68dff2c6cf0c3ea0b3369e96414a3b03c2302913f"
-	b, err := os.ReadFile("testdata/issued-before-label-fix.json")
-	if err != nil {
-		t.Fatal(err)
-	}
-	b = b[:len(b)-1] // the file's final newline
-	if sum := sha256.Sum256(b); hex.EncodeToString(sum[:]) != recorded {
-		t.Fatal("the fixture is not the content that was digested")
-	}
-	// As the database gives it back: its own key order and spacing.
-	var generic map[string]any
-	if err := json.Unmarshal(b, &generic); err != nil {
-		t.Fatal(err)
-	}
-	stored, _ := json.MarshalIndent(generic, "", " ")
-	s, err := Decode(stored)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if got, _ := Digest(s); got != recorded {
-		t.Errorf("digest %s, want the recorded %s", got, recorded)
-	}
+	s := verifyRecorded(t, "testdata/issued-before-label-fix.json", "bf278978be710b25721efcb68dff2c6cf0c3ea0b3369e96414a3b03c2302913f")
 	if s.Recording == nil || s.Recording.AutoInterpretation != "sinus" || s.OverRead.Rhythm != overread.AF {
 		t.Errorf("recorded words changed: %+v %+v", s.Recording, s.OverRead)
 	}
@@ -87,8 +66,25 @@ func TestIssuedBeforeTheLabelFix(t *testing.T) {
 // program wrote then for a recorder reading of AF, and the digest it
 // recorded, both printed by that version of Build, Content and Digest.
 func TestIssuedBeforeTheRecorderWordsChanged(t *testing.T) {
-	const recorded = "3ee58ac22454e6226836c9189c9a7e2da990fec1745e0111c22d7ddc40e80709"
-	b, err := os.ReadFile("testdata/issued-with-earlier-recorder-words.json")
+	s := verifyRecorded(t, "testdata/issued-with-earlier-recorder-words.json", "3ee58ac22454e6226836c9189c9a7e2da990fec1745e0111c22d7ddc40e80709")
+	if s.Recording == nil || s.Recording.AutoInterpretation != "possible AF" {
+		t.Errorf("recorded words changed: %+v", s.Recording)
+	}
+	// A summary issued now for the same reading uses today's words.
+	src := source(t)
+	src.Recording.Auto = overread.AutoSuggestsAF
+	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "device suggests AF" {
+		t.Errorf("a new summary words the recorder's AF reading %q", got)
+	}
+}
+
+// verifyRecorded reads a recorded summary's content from a fixture, checks
+// that it is the content that was digested, decodes it as the database gives
+// it back (its own key order and spacing) and checks that its digest is still
+// the recorded one.
+func verifyRecorded(t *testing.T, file, recorded string) Summary {
+	t.Helper()
+	b, err := os.ReadFile(file)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -108,13 +104,5 @@ func TestIssuedBeforeTheRecorderWordsChanged(t *testing.T) {
 	if got, _ := Digest(s); got != recorded {
 		t.Errorf("digest %s, want the recorded %s", got, recorded)
 	}
-	if s.Recording == nil || s.Recording.AutoInterpretation != "possible AF" {
-		t.Errorf("recorded words changed: %+v", s.Recording)
-	}
-	// A summary issued now for the same reading uses today's words.
-	src := source(t)
-	src.Recording.Auto = overread.AutoSuggestsAF
-	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "device suggests AF" {
-		t.Errorf("a new summary words the recorder's AF reading %q", got)
-	}
+	return s
 }
