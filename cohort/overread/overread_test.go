@@ -116,7 +116,8 @@ func TestNext(t *testing.T) {
 }
 
 // TestCategoriesCoverEveryValue checks that every verdict maps to a common
-// category and every automatic interpretation except "none" does.
+// category and every reading of the recorder except "no device reading"
+// does.
 func TestCategoriesCoverEveryValue(t *testing.T) {
 	in := map[Category]bool{}
 	for _, c := range Categories() {
