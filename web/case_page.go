@@ -166,8 +166,8 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 	case db.EventRecording:
 		rec := e.Recording
 		out.Title = fmt.Sprintf("ECG recording taken (%.0f s)", rec.DurationS)
-		if rec.AutoInterpretation != "" && rec.AutoInterpretation != "none" {
-			out.Lines = append(out.Lines, "recorder's own reading: "+overread.Auto(rec.AutoInterpretation).Label())
+		if a := overread.Auto(rec.AutoInterpretation); a != "" && a != overread.AutoNoReading {
+			out.Lines = append(out.Lines, overread.AutoHeading+": "+a.Label())
 		}
 		if rec.TooShort {
 			out.Lines = append(out.Lines, "shorter than 30 s: not enough for a diagnostic read")

@@ -199,9 +199,10 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 	)
 	line.AddSeries("Heart rate", pts,
 		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
-		charts.WithLineStyleOpts(opts.LineStyle{Width: 1}),
+		charts.WithLineStyleOpts(opts.LineStyle{Width: 1, Color: chartColour(chartMeasure)}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: chartColour(chartMeasure)}),
 		charts.WithMarkAreaData(areas...),
-		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: "rgba(200, 60, 50, 0.18)"}}),
+		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: chartColour(chartPositive), Opacity: opts.Float(0.18)}}),
 	)
 	label := fmt.Sprintf("Heart rate in study week %d with %d irregular %d-minute windows shaded", w.Week, irregular, rule.Minutes)
 	c, sc, err := chartView("hr-chart", label, line, true)
@@ -212,8 +213,16 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 // share of irregular windows, with the threshold for comparison.
 func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (components.ChartModel, []string, error) {
 	var x []string
-	var masd, share, threshold []opts.LineData
+	var masd, share, threshold, pos, neg []opts.LineData
 	for _, r := range results {
+		// The week's verdict as a mark at the bottom of the share axis.
+		mark := func(v screen.Verdict) opts.LineData {
+			if screen.Verdict(r.Verdict) == v {
+				return opts.LineData{Value: 0}
+			}
+			return opts.LineData{Value: "-"}
+		}
+		pos, neg = append(pos, mark(screen.Positive)), append(neg, mark(screen.Negative))
 		x = append(x, "week "+strconv.Itoa(r.Week))
 		if len(r.Result.Windows) <= wi || r.Result.Windows[wi].Usable == 0 {
 			masd = append(masd, opts.LineData{Value: "-"})
@@ -242,9 +251,15 @@ func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (compo
 		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value"}),
 	)
 	line.ExtendYAxis(opts.YAxis{Name: "% irregular", Type: "value", Min: 0, Max: 100, Position: "right"})
+	onShare := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})}
+	// Verdict marks: a symbol each, no line between them.
+	marks := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1, ShowSymbol: opts.Bool(true), Symbol: "rect", SymbolSize: 9}),
+		charts.WithLineStyleOpts(opts.LineStyle{Opacity: opts.Float(0)})}
 	line.SetXAxis(x).
-		AddSeries(fmt.Sprintf("Mean MASD, %d-min windows (bpm)", minutes), masd).
-		AddSeries("Threshold (bpm)", threshold, charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})).
-		AddSeries("Irregular windows (%)", share, charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1}))
+		AddSeries(fmt.Sprintf("Mean MASD, %d-min windows (bpm)", minutes), masd, paint(chartMeasure)...).
+		AddSeries("Threshold (bpm)", threshold, paint(chartThreshold)...).
+		AddSeries("Irregular windows (%)", share, with(onShare, paint(chartMeasure2))...).
+		AddSeries("Screen-positive week", pos, with(paint(chartPositive), marks)...).
+		AddSeries("Negative week", neg, with(paint(chartNegative), marks)...)
 	return chartView("trend-chart", fmt.Sprintf("Weekly mean MASD and share of irregular windows under %s", pv.Label()), line, false)
 }

@@ -417,6 +417,9 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 		man.Summaries = append(man.Summaries, e)
 		man.ReferralIDs = append(man.ReferralIDs, ref.ID)
 	}
+	if _, err := zipCautions(zw); err != nil {
+		return err
+	}
 	inZip := man
 	inZip.ReferralIDs = nil
 	mj, err := json.MarshalIndent(inZip, "", "  ")
@@ -489,7 +492,7 @@ func referralDoc(sum referral.Summary) views.ReferralDocView {
 	}
 	if rec := sum.Recording; rec != nil {
 		d.OverRead = append(d.OverRead, views.Fact{Label: "Recording", Value: fmt.Sprintf("study day %d, %.0f s, single lead", rec.StudyDay, rec.DurationS)},
-			views.Fact{Label: "Recorder's own reading", Value: rec.AutoInterpretation})
+			views.Fact{Label: overread.AutoHeading, Value: rec.AutoInterpretation})
 		if len(rec.MicroVolts) > 0 {
 			l := rec.Strip()
 			sv := stripView("summary-ecg", l, referralpdf.StripCaption(*rec, l))

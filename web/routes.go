@@ -19,8 +19,8 @@ type route struct {
 // routes is the index of the application: every page and action, in one list.
 func (s *Server) routes() []route {
 	return []route{
-		{"GET", "/healthz", public, s.healthz},
-		{"GET", "/readyz", public, s.readyz},
+		{"GET", "/health", public, s.health},
+		{"GET", "/ready", public, s.ready},
 		{"GET", "/signin", public, s.signInForm},
 		{"POST", "/signin", public, s.signIn},
 		{"POST", "/signout", public, s.signOut},

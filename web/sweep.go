@@ -343,14 +343,13 @@ func sweepChart(res db.SweepResult) (components.ChartModel, []string, error) {
 			ppvLo, ppvHi = append(ppvLo, percentPoint(math.NaN())), append(ppvHi, percentPoint(math.NaN()))
 		}
 	}
-	dashed := charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})
-	right := charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})
+	right := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})}
 	line.SetXAxis(x).
-		AddSeries("Weeks flagged", flagged).
-		AddSeries("PPV %", ppv, right).
-		AddSeries("PPV 95% CI, low", ppvLo, right, dashed).
-		AddSeries("PPV 95% CI, high", ppvHi, right, dashed).
-		AddSeries("Sensitivity %", sens, right)
+		AddSeries("Weeks flagged", flagged, paint(chartPositive)...).
+		AddSeries("PPV %", ppv, with(right, paint(chartMeasure))...).
+		AddSeries("PPV 95% CI, low", ppvLo, with(right, paint(chartBand))...).
+		AddSeries("PPV 95% CI, high", ppvHi, with(right, paint(chartBand))...).
+		AddSeries("Sensitivity %", sens, with(right, paint(chartMeasure2))...)
 	return chartView("sweep-chart", "Weeks flagged, PPV and sensitivity for each value of "+res.Param, line, true)
 }
 
