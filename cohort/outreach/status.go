@@ -1,0 +1,58 @@
+package outreach
+
+import (
+	"fmt"
+	"strings"
+)
+
+// Status is where a message stands. The values are stored.
+type Status string
+
+// The states of a message.
+const (
+	Queued        Status = "queued"        // written to the outbox; a background job sends it (or, held, at the end of quiet hours)
+	Sent          Status = "sent"          // the mail server or text gateway accepted it; a printed letter recorded as posted
+	Delivered     Status = "delivered"     // the channel reported delivery (text gateways do; e-mail and letters do not)
+	Undeliverable Status = "undeliverable" // refused for good: the address or number is wrong or unknown
+	Failed        Status = "failed"        // not sent: temporary failures until the desk gave up, or sending was no longer allowed
+)
+
+var statusLabels = map[Status]string{
+	Queued:        "queued",
+	Sent:          "sent",
+	Delivered:     "delivered",
+	Undeliverable: "undeliverable",
+	Failed:        "failed",
+}
+
+// Statuses lists the states in their usual order.
+func Statuses() []Status { return []Status{Queued, Sent, Delivered, Undeliverable, Failed} }
+
+// ParseStatus reads a stored status.
+func ParseStatus(s string) (Status, error) {
+	st := Status(strings.TrimSpace(s))
+	if !st.Valid() {
+		return "", fmt.Errorf("outreach: unknown message status %q", s)
+	}
+	return st, nil
+}
+
+// Valid reports whether s is a defined status.
+func (s Status) Valid() bool { _, ok := statusLabels[s]; return ok }
+
+// Label is the wording shown on pages.
+func (s Status) Label() string {
+	if l, ok := statusLabels[s]; ok {
+		return l
+	}
+	return fmt.Sprintf("%q", string(s))
+}
+
+// Final reports whether nothing more happens to the message by itself.
+// "sent" is not final for text messages, whose gateway may still report
+// delivery; it ends nothing the desk waits for, so it counts as final here.
+func (s Status) Final() bool { return s != Queued }
+
+// NotDelivered reports whether the message did not reach the participant,
+// which the case shows until someone tries again.
+func (s Status) NotDelivered() bool { return s == Undeliverable || s == Failed }
