@@ -2,6 +2,7 @@ package outreach
 
 import (
 	"fmt"
+	"strings"
 	"time"
 
 	"cohortdesk/cohort"
@@ -161,4 +162,22 @@ func Decide(p Preferences, c Contact, ch followup.Channel, now time.Time, loc *t
 	}
 	at := p.QuietEnd(now, loc)
 	return at, at.After(now), nil
+}
+
+// AddressLines are the lines of a postal address block: the name, the
+// street, and the town with its postal code; empty parts are left out.
+func AddressLines(name, street, city, zip string) []string {
+	var out []string
+	for _, l := range []string{name, street, strings.TrimSpace(city + " " + zip)} {
+		if l = strings.TrimSpace(l); l != "" {
+			out = append(out, l)
+		}
+	}
+	return out
+}
+
+// HasAddress reports whether a postal address can be written: a street and
+// a town at least.
+func HasAddress(street, city string) bool {
+	return strings.TrimSpace(street) != "" && strings.TrimSpace(city) != ""
 }
