@@ -3,6 +3,7 @@ package outreach
 import (
 	"fmt"
 	"strings"
+	"time"
 )
 
 // Status is where a message stands. The values are stored.
@@ -56,3 +57,12 @@ func (s Status) Final() bool { return s != Queued }
 // NotDelivered reports whether the message did not reach the participant,
 // which the case shows until someone tries again.
 func (s Status) NotDelivered() bool { return s == Undeliverable || s == Failed }
+
+// SendTries is how many times the desk tries a message whose channel fails
+// for now (a mail server that defers, a gateway that is busy, a connection
+// that fails) before it gives up and marks the message failed.
+const SendTries = 6
+
+// Backoff is the wait after the n-th failed try (1-based): n² minutes, so
+// the six tries span about 55 minutes (1 + 4 + 9 + 16 + 25).
+func Backoff(n int) time.Duration { return time.Duration(n*n) * time.Minute }
