@@ -59,7 +59,7 @@ func TestSMTPOverEachSecurityMode(t *testing.T) {
 	ctx := context.Background()
 	for _, c := range []struct {
 		name, tls, security, user string
-		wantTLS, wantAuth      string
+		wantTLS, wantAuth         string
 	}{
 		{"plain", smtptest.NoTLS, sender.SecurityNone, "", "tls=no", "auth=no"},
 		{"starttls with sign-in", smtptest.STARTTLS, sender.SecuritySTARTTLS, "desk", "tls=yes", "auth=yes"},

@@ -209,7 +209,9 @@ func (s *Server) Messages() []Received {
 				files = append(files, file{filepath.Join(s.Dir, sub, e.Name()), info.ModTime()})
 			}
 		}
-		sort.SliceStable(files, func(i, j int) bool { return files[i].mod.Before(files[j].mod) || files[i].mod.Equal(files[j].mod) && files[i].path < files[j].path })
+		sort.SliceStable(files, func(i, j int) bool {
+			return files[i].mod.Before(files[j].mod) || files[i].mod.Equal(files[j].mod) && files[i].path < files[j].path
+		})
 		for _, f := range files {
 			raw, err := os.ReadFile(f.path)
 			if err != nil {
