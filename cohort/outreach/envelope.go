@@ -115,3 +115,29 @@ func AddressArea(p Paper) Rect {
 	}
 	return Rect{X: r.X + addressInset, Y: r.Y + addressInset, W: math.Max(r.W-2*addressInset, 0), H: math.Max(r.H-2*addressInset, 0)}
 }
+
+// WindowReach is every part of a sheet of paper p that some window envelope
+// for it can show with the sheet anywhere in it: nothing but the address may
+// be printed there.
+func WindowReach(p Paper) Rect {
+	var r Rect
+	first := true
+	for _, e := range Envelopes {
+		if e.Paper != p {
+			continue
+		}
+		dx, dy := math.Max(e.W-p.W, 0), math.Max(e.H-e.Panel, 0)
+		s := Rect{X: e.Window.X - dx, Y: e.Window.Y - dy, W: e.Window.W + dx, H: e.Window.H + dy}
+		if s.Bottom() > e.Panel {
+			s.H = e.Panel - s.Y
+		}
+		if first {
+			r, first = s, false
+			continue
+		}
+		x0, y0 := math.Min(r.X, s.X), math.Min(r.Y, s.Y)
+		x1, y1 := math.Max(r.Right(), s.Right()), math.Max(r.Bottom(), s.Bottom())
+		r = Rect{X: x0, Y: y0, W: x1 - x0, H: y1 - y0}
+	}
+	return r
+}
