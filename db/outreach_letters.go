@@ -31,6 +31,7 @@ type LetterBatch struct {
 	PostedAt  time.Time // zero until recorded as posted
 	PostedBy  string
 	Cases     []LetterCase
+	Skipped   []string // "study ID: reason" of the selected cases that got no letter
 }
 
 // LetterCase is one letter of a batch, named by its case.
@@ -120,8 +121,12 @@ func (s *Store) PrintLetters(ctx context.Context, a cohort.Actor, refs []CaseRef
 		if a.UserID != 0 {
 			actorID = a.UserID
 		}
-		if err := tx.QueryRow(ctx, `INSERT INTO letter_batches (template_id, paper, created_by, actor_id) VALUES ($1, $2, $3, $4) RETURNING id`,
-			tpl.ID, paper.Name, a.Label(), actorID).Scan(&id); err != nil {
+		notes := []string{}
+		for _, sk := range skipped {
+			notes = append(notes, sk.StudyID+": "+sk.Reason)
+		}
+		if err := tx.QueryRow(ctx, `INSERT INTO letter_batches (template_id, paper, created_by, actor_id, skipped) VALUES ($1, $2, $3, $4, $5) RETURNING id`,
+			tpl.ID, paper.Name, a.Label(), actorID, notes).Scan(&id); err != nil {
 			return err
 		}
 		var printed []int64
@@ -157,8 +162,8 @@ func (s *Store) LetterBatch(ctx context.Context, id int64) (LetterBatch, error) 
 	var b LetterBatch
 	var tplID int
 	var posted *time.Time
-	err := s.pool.QueryRow(ctx, `SELECT id, template_id, paper, created_at, created_by, posted_at, posted_by FROM letter_batches WHERE id = $1`, id).
-		Scan(&b.ID, &tplID, &b.Paper, &b.CreatedAt, &b.CreatedBy, &posted, &b.PostedBy)
+	err := s.pool.QueryRow(ctx, `SELECT id, template_id, paper, created_at, created_by, posted_at, posted_by, skipped FROM letter_batches WHERE id = $1`, id).
+		Scan(&b.ID, &tplID, &b.Paper, &b.CreatedAt, &b.CreatedBy, &posted, &b.PostedBy, &b.Skipped)
 	if err != nil {
 		return b, mapErr("letter batch", err)
 	}

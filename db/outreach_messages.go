@@ -164,6 +164,7 @@ func (s *Store) Outbox(ctx context.Context, f OutboxFilter) (Outbox, error) {
 // their details: which details are on file, their preferences and zone, and
 // their latest message.
 type Reach struct {
+	State       followup.State // the case's state
 	Contact     outreach.Contact
 	Preferences ContactPreferences
 	Location    *time.Location
@@ -178,7 +179,7 @@ func (s *Store) Reaches(ctx context.Context, caseIDs []int64) (map[int64]Reach, 
 		return out, nil
 	}
 	rows, err := s.pool.Query(ctx, `
-		SELECT c.id, coalesce(i.email <> '', false), coalesce(i.phone <> '', false), coalesce(i.street <> '' AND i.city <> '', false),
+		SELECT c.id, c.state, coalesce(i.email <> '', false), coalesce(i.phone <> '', false), coalesce(i.street <> '' AND i.city <> '', false),
 		       p.time_zone, cp.participant_id IS NOT NULL, `+prefColsOf("cp")+`
 		FROM cases c JOIN participants p ON p.id = c.participant_id
 		LEFT JOIN participant_identity i ON i.participant_id = p.id
@@ -190,7 +191,7 @@ func (s *Store) Reaches(ctx context.Context, caseIDs []int64) (map[int64]Reach, 
 	for rows.Next() {
 		var id int64
 		var r Reach
-		var tz string
+		var tz, state string
 		var recorded bool
 		var preferred *string
 		var consent, opted [4]*bool
@@ -198,12 +199,13 @@ func (s *Store) Reaches(ctx context.Context, caseIDs []int64) (map[int64]Reach, 
 		var version *int
 		var updatedAt *time.Time
 		var updatedBy *string
-		if err := rows.Scan(&id, &r.Contact.Email, &r.Contact.Phone, &r.Contact.Address, &tz, &recorded, &preferred,
+		if err := rows.Scan(&id, &state, &r.Contact.Email, &r.Contact.Phone, &r.Contact.Address, &tz, &recorded, &preferred,
 			&consent[0], &consent[1], &consent[2], &consent[3], &opted[0], &opted[1], &opted[2], &opted[3], &from, &until,
 			&version, &updatedAt, &updatedBy); err != nil {
 			rows.Close()
 			return nil, mapErr("reaches", err)
 		}
+		r.State = followup.State(state)
 		r.Preferences = ContactPreferences{Preferences: outreach.Defaults()}
 		if recorded {
 			p := outreach.Preferences{Recorded: true, Preferred: followup.Channel(*preferred), Consent: map[followup.Channel]bool{},

@@ -259,3 +259,42 @@ func (s *Store) SaveOutreachWords(ctx context.Context, a cohort.Actor, w outreac
 	})
 	return mapErr("save word list", err)
 }
+
+// TemplatePreview makes template version id out for the participant with
+// the given study ID, as a message sent now would read: their names, their
+// latest case's tracking number, the study's name and contact route, the
+// reply-by day. The participant's details are read with the actor's rights
+// and the view is audited. A value the template needs and the participant
+// lacks is refused with the reason.
+func (s *Store) TemplatePreview(ctx context.Context, a cohort.Actor, id int, studyID string) (outreach.Message, error) {
+	var out outreach.Message
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		t, err := scanTemplate(tx.QueryRow(ctx, `SELECT `+templateCols+` FROM message_templates WHERE id = $1`, id))
+		if err != nil {
+			return err
+		}
+		var pid int64
+		var tracking string
+		err = tx.QueryRow(ctx, `SELECT p.id, coalesce((SELECT c.tracking_number FROM cases c WHERE c.participant_id = p.id ORDER BY c.id DESC LIMIT 1), '')
+			FROM participants p WHERE p.study_id = $1`, strings.TrimSpace(studyID)).Scan(&pid, &tracking)
+		if errors.Is(err, pgx.ErrNoRows) {
+			return &cohort.ValidationError{Fields: map[string]string{"participant": fmt.Sprintf("no participant has the study ID %q", strings.TrimSpace(studyID))}}
+		}
+		if err != nil {
+			return err
+		}
+		st, err := studySettings(ctx, tx)
+		if err != nil {
+			return err
+		}
+		ident, err := identityIn(ctx, tx, a, pid, "template preview")
+		if err != nil {
+			return err
+		}
+		out, err = t.Render(outreach.Values{outreach.FirstName: ident.GivenName, outreach.FamilyName: ident.FamilyName,
+			outreach.StudyName: st.Name, outreach.ContactLine: st.ContactRoute, outreach.StudyNumber: strings.TrimSpace(studyID),
+			outreach.TrackingNumber: tracking, outreach.ReplyBy: outreach.WrittenDay(outreach.ReplyDay(st.Calendar(), s.now(), t.ReplyDays))})
+		return err
+	})
+	return out, mapCaseErr("template preview", err)
+}

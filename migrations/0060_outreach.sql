@@ -68,6 +68,8 @@ CREATE TABLE letter_batches (
     created_at   timestamptz NOT NULL DEFAULT now(),
     created_by   text NOT NULL DEFAULT '',
     actor_id     bigint REFERENCES users(id),
+    -- the selected cases that got no letter: "study ID: reason"
+    skipped      text[] NOT NULL DEFAULT '{}',
     -- set once, when the letters were recorded as posted
     posted_at    timestamptz,
     posted_by    text NOT NULL DEFAULT ''

@@ -38,6 +38,7 @@ type Store interface {
 	recordingStore
 	referralStore
 	exportStore
+	outreachStore
 }
 
 // Config is what the server is built from.
@@ -54,6 +55,8 @@ type Config struct {
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
 	Secret []byte
+	// Outreach says which channels this server sends messages on.
+	Outreach OutreachConfig
 }
 
 // Server holds the dependencies of the handlers.
@@ -73,12 +76,14 @@ type Server struct {
 	dummyOnce      sync.Once
 	dummy          string
 	secret         []byte
+	outreach       OutreachConfig
 }
 
 // New builds the server and its routes.
 func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
-		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret}
+		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret,
+		outreach: cfg.Outreach}
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}

@@ -77,6 +77,9 @@ func (s *Server) triage(w http.ResponseWriter, r *http.Request) error {
 		}
 		m.Groups = append(m.Groups, tg)
 	}
+	if err := s.triageOutreach(r, &m); err != nil {
+		return err
+	}
 	return s.ok(w, r, views.Triage(m))
 }
 
@@ -94,6 +97,9 @@ func (s *Server) triageRowAnswer(w http.ResponseWriter, r *http.Request, id int6
 		return err
 	}
 	row := s.triageRow(r, t, t.Rows[0], workerOptions(us, false))
+	if err := s.addOutreach(r, []*views.TriageRowView{&row}); err != nil {
+		return err
+	}
 	status := http.StatusOK
 	if actionErr != nil {
 		f, ok := refused(r, actionErr, nil)
