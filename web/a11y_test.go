@@ -257,6 +257,7 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatalf("run the sweep: %v %v", ok, err)
 	}
 	pages = append(pages, p("threshold sweep", "/sweep", fmt.Sprintf("/sweep?run=%d", sweep)))
+	pages = append(pages, outreachPages(t, a)...)
 	var imp int64
 	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM imports ORDER BY id LIMIT 1`).Scan(&imp); err == nil {
 		pages = append(pages, p("import report", "/imports/{id}", fmt.Sprintf("/imports/%d", imp)))
@@ -293,7 +294,8 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	// Pages walked with Tab from top to bottom: the ones whose work is
 	// done in forms.
 	tabWalked := map[string]bool{"case page": true, "recording page": true, "referral preview": true, "referral summary": true,
-		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true}
+		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true,
+		"case page with a message": true, "message template": true}
 
 	t.Run("visitor", func(t *testing.T) {
 		t.Parallel()

@@ -237,7 +237,7 @@ func (s *Server) addOutreach(r *http.Request, rows []*views.TriageRowView) error
 
 // caseMessage sends one message from the case page or a triage row.
 func (s *Server) caseMessage(w http.ResponseWriter, r *http.Request) error {
-	return s.caseAction(w, r, "message", nil, func(ctx context.Context, id int64, v int, f *formReader) error {
+	return s.caseAction(w, r, "message", map[string]string{"channel": "message-channel", "purpose": "message-purpose"}, func(ctx context.Context, id int64, v int, f *formReader) error {
 		in := db.MessageInput{Version: v, Purpose: outreach.Purpose(f.text("purpose")), Channel: followup.Channel(f.text("channel"))}
 		if err := f.check(nil); err != nil {
 			return err

@@ -14,6 +14,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/outreach"
+	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
 )
 
@@ -357,5 +358,43 @@ func TestTriageRowOffersTheSuggestedMessage(t *testing.T) {
 	res.Body.Close()
 	if res.StatusCode != http.StatusOK || !strings.Contains(string(row), `data-testid="row-done"`) || !strings.Contains(string(row), "e-mail queued") {
 		t.Fatalf("the row after sending: %d\n%s", res.StatusCode, row)
+	}
+}
+
+// outreachPages adds the outreach pages to the accessibility fixture: a
+// message queued on a working case of the demo, a printed letter batch, the
+// outbox and the template pages.
+func outreachPages(t *testing.T, a *app) []a11yPage {
+	t.Helper()
+	ctx := context.Background()
+	a.srv.outreach = OutreachConfig{Email: true, Text: true}
+	if err := a.store.EnsureDefaultTemplates(ctx); err != nil {
+		t.Fatal(err)
+	}
+	u := a.users[cohort.Coordinator]
+	coord := u.Actor("127.0.0.1", "a11y")
+	var caseID int64
+	var version int
+	if err := a.store.Pool().QueryRow(ctx, `SELECT c.id, c.version FROM cases c JOIN participant_identity i ON i.participant_id = c.participant_id
+		WHERE c.closed_at IS NULL AND i.email <> '' AND i.street <> '' ORDER BY c.id LIMIT 1`).Scan(&caseID, &version); err != nil {
+		t.Fatalf("a working case with contact details in the demo: %v", err)
+	}
+	q, err := a.store.QueueMessage(ctx, coord, caseID, db.MessageInput{Version: version, Purpose: outreach.PurposeReminder, Channel: followup.ChannelEmail})
+	if err != nil {
+		t.Fatal(err)
+	}
+	batch, _, err := a.store.PrintLetters(ctx, coord, []db.CaseRef{{ID: caseID}}, outreach.PurposeReminder, outreach.PaperA4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var tpl int
+	a.store.Pool().QueryRow(ctx, `SELECT id FROM message_templates ORDER BY id LIMIT 1`).Scan(&tpl)
+	return []a11yPage{
+		{"outbox", "/outbox", "/outbox"},
+		{"message", "/messages/{id}", fmt.Sprintf("/messages/%d", q.ID)},
+		{"letter batch", "/letters/{id}", fmt.Sprintf("/letters/%d", batch)},
+		{"case page with a message", "/cases/{id}", fmt.Sprintf("/cases/%d", caseID)},
+		{"message templates", "/admin/templates", "/admin/templates"},
+		{"message template", "/admin/templates/{id}", fmt.Sprintf("/admin/templates/%d", tpl)},
 	}
 }
