@@ -390,3 +390,74 @@ func TestTextGatewayOverTLS(t *testing.T) {
 	}
 	_ = pids
 }
+
+// TestMorningSummaryCountsOnly runs the morning job against the real mail
+// server: each person who asked gets one e-mail with the counts of their
+// overdue and due-today cases and the new flags, a link to triage and no
+// study ID or name of a participant; a second run the same day sends
+// nothing again; the job queues its next run on the next working day.
+func TestMorningSummaryCountsOnly(t *testing.T) {
+	store := newStore(t)
+	ctx := context.Background()
+	cases := dbtest.OutreachCases(t, store, 4)
+	var mine, theirs int64
+	for _, u := range []struct {
+		email string
+		id    *int64
+		on    bool
+	}{{"first.coordinator@example.org", &mine, true}, {"other.coordinator@example.org", &theirs, false}} {
+		err := store.Pool().QueryRow(ctx, `INSERT INTO users (email, display_name, role, password_hash, morning_summary)
+			VALUES ($1, $2, 'coordinator', 'x', $3) RETURNING id`, u.email, "Desk staff "+u.email[:5], u.on).Scan(u.id)
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	// Two of mine overdue and one due today; one of theirs overdue; one new.
+	store.Pool().Exec(ctx, `UPDATE cases SET owner_id = $1, due_at = $2 WHERE id = ANY($3)`, mine, testNow.Add(-48*time.Hour), cases[:2])
+	store.Pool().Exec(ctx, `UPDATE cases SET owner_id = $1, due_at = $2 WHERE id = $3`, mine, testNow.Add(6*time.Hour), cases[2])
+	store.Pool().Exec(ctx, `UPDATE cases SET owner_id = $1, due_at = $2 WHERE id = $3`, theirs, testNow.Add(-time.Hour), cases[3])
+	store.Pool().Exec(ctx, `INSERT INTO participants (study_id, site_id, time_zone, enrolled_on) VALUES ('RV-9999', 1, 'UTC', '2026-01-05')`)
+	store.Pool().Exec(ctx, `INSERT INTO screen_results (participant_id, protocol_id, week, verdict, reason, result, input_digest, wear_hours)
+		SELECT id, 1, 3, 'positive', 'x', '{}', 'd', 90 FROM participants WHERE study_id = 'RV-9999'`)
+	if _, _, err := store.SyncCases(ctx, cohort.System, 1, nil); err != nil {
+		t.Fatal(err)
+	}
+	srv := smtptest.Start(t, smtptest.Options{})
+	snd := &sender.Sender{Store: store, Email: smtpFor(t, srv, sender.SecurityNone, "", ""), Now: func() time.Time { return testNow },
+		TriageURL: "https://desk.example.org/triage", Domain: "riverside.example.org"}
+	if err := snd.Start(ctx, store.StudySettings); err != nil {
+		t.Fatal(err)
+	}
+	// The first run is queued for 07:00 the next working day; run it now.
+	store.Pool().Exec(ctx, `UPDATE jobs SET run_after = clock_timestamp() WHERE kind = $1`, db.JobMorningSummary)
+	w := &db.Worker{Store: store, Handlers: snd.Handlers()}
+	if did, err := w.RunOne(ctx, 0); !did || err != nil {
+		t.Fatal(did, err)
+	}
+	got := srv.Wait(1, 10*time.Second)
+	if len(got) != 1 || got[0].Header.Get("To") != "<first.coordinator@example.org>" {
+		t.Fatalf("%d summaries: %+v", len(got), got)
+	}
+	body := got[0].Body
+	for _, want := range []string{"2 cases of yours overdue", "1 case of yours due today", "1 new flag that nobody has taken on", "https://desk.example.org/triage"} {
+		if !strings.Contains(body, want) {
+			t.Errorf("the summary lacks %q:\n%s", want, body)
+		}
+	}
+	if strings.Contains(body, "RV-") || strings.Contains(body, "Wren") || strings.Contains(body, "Alderby") {
+		t.Fatalf("the summary names a participant:\n%s", body)
+	}
+	// The next run is queued for 07:00 on Tuesday 2 June (the next working day).
+	var next time.Time
+	store.Pool().QueryRow(ctx, `SELECT run_after FROM jobs WHERE kind = $1 AND state = 'queued'`, db.JobMorningSummary).Scan(&next)
+	if !next.Equal(time.Date(2026, 6, 2, 7, 0, 0, 0, time.UTC)) {
+		t.Fatalf("next run %v", next)
+	}
+	store.Pool().Exec(ctx, `UPDATE jobs SET run_after = clock_timestamp() WHERE kind = $1 AND state = 'queued'`, db.JobMorningSummary)
+	if did, err := w.RunOne(ctx, 0); !did || err != nil {
+		t.Fatal(did, err)
+	}
+	if n := len(srv.Messages()); n != 1 {
+		t.Fatalf("a second run the same day sent %d summaries in all", n)
+	}
+}
