@@ -36,7 +36,7 @@ func newStore(t *testing.T) *db.Store {
 	return db.New(dbtest.Pool(t), func() time.Time { return testNow })
 }
 
-func smtpFor(t *testing.T, srv *smtptest.Server, security, user, password string) *sender.SMTP {
+func smtpFor(t testing.TB, srv *smtptest.Server, security, user, password string) *sender.SMTP {
 	t.Helper()
 	s, err := sender.NewSMTP(sender.SMTPConfig{Host: srv.Host, Port: srv.Port, Security: security, Username: user, Password: password,
 		From: "Study team <team@riverside.example.org>", CAFile: srv.CAFile, Timeout: 10 * time.Second})
