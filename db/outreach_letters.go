@@ -4,7 +4,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -56,19 +55,15 @@ type Letter struct {
 func (s *Store) PrintLetters(ctx context.Context, a cohort.Actor, refs []CaseRef, p outreach.Purpose, paper outreach.Paper) (int64, []SkippedCase, error) {
 	var id int64
 	var skipped []SkippedCase
-	if len(refs) == 0 {
-		return 0, nil, &cohort.ValidationError{Fields: map[string]string{"cases": "select at least one case"}}
+	refs, err := bulkRefs(refs)
+	if err != nil {
+		return 0, nil, err
 	}
-	if len(refs) > maxBulk {
-		return 0, nil, &cohort.ValidationError{Fields: map[string]string{"cases": fmt.Sprintf("select at most %d cases at once", maxBulk)}}
+	ids := make([]int64, len(refs))
+	for i, r := range refs {
+		ids[i] = r.ID
 	}
-	ids := make([]int64, 0, len(refs))
-	for _, r := range refs {
-		if !slices.Contains(ids, r.ID) {
-			ids = append(ids, r.ID)
-		}
-	}
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
+	err = s.inTx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE c.id = ANY($1) ORDER BY p.study_id, c.id`, ids)
 		if err != nil {
 			return err

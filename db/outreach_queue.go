@@ -1,11 +1,9 @@
 package db
 
 import (
-	"cmp"
 	"context"
 	"errors"
 	"fmt"
-	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -238,16 +236,11 @@ type BulkMessages struct {
 // was shown) refuses the whole request, nothing being sent.
 func (s *Store) QueueMessages(ctx context.Context, a cohort.Actor, refs []CaseRef, p outreach.Purpose, ch followup.Channel) (BulkMessages, error) {
 	var out BulkMessages
-	if len(refs) == 0 {
-		return out, &cohort.ValidationError{Fields: map[string]string{"cases": "select at least one case"}}
+	refs, err := bulkRefs(refs)
+	if err != nil {
+		return out, err
 	}
-	if len(refs) > maxBulk {
-		return out, &cohort.ValidationError{Fields: map[string]string{"cases": fmt.Sprintf("select at most %d cases at once", maxBulk)}}
-	}
-	refs = slices.Clone(refs)
-	slices.SortFunc(refs, func(x, y CaseRef) int { return cmp.Compare(x.ID, y.ID) })
-	refs = slices.CompactFunc(refs, func(x, y CaseRef) bool { return x.ID == y.ID })
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
+	err = s.inTx(ctx, func(tx pgx.Tx) error {
 		for _, r := range refs {
 			sp, err := tx.Begin(ctx)
 			if err != nil {
