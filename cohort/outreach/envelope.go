@@ -12,13 +12,6 @@ type Rect struct {
 func (r Rect) Right() float64  { return r.X + r.W }
 func (r Rect) Bottom() float64 { return r.Y + r.H }
 
-// Contains reports whether o lies inside r (edges included, to a
-// micrometre).
-func (r Rect) Contains(o Rect) bool {
-	const eps = 1e-3
-	return o.X >= r.X-eps && o.Y >= r.Y-eps && o.Right() <= r.Right()+eps && o.Bottom() <= r.Bottom()+eps
-}
-
 // Paper is a sheet size, in millimetres.
 type Paper struct {
 	Name string // "a4" or "letter", as forms submit it

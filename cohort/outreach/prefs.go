@@ -175,9 +175,3 @@ func AddressLines(name, street, city, zip string) []string {
 	}
 	return out
 }
-
-// HasAddress reports whether a postal address can be written: a street and
-// a town at least.
-func HasAddress(street, city string) bool {
-	return strings.TrimSpace(street) != "" && strings.TrimSpace(city) != ""
-}

@@ -3,7 +3,6 @@ package outreach
 import (
 	"fmt"
 	"slices"
-	"strings"
 
 	"cohortdesk/cohort/followup"
 )
@@ -41,15 +40,6 @@ var purposeTable = map[Purpose]purposeInfo{
 // them.
 func Purposes() []Purpose {
 	return []Purpose{PurposeFirstContact, PurposeReminder, PurposeRecorderOut, PurposeRecorderReturn, PurposeTalkNextSteps}
-}
-
-// ParsePurpose reads a stored or submitted purpose.
-func ParsePurpose(s string) (Purpose, error) {
-	p := Purpose(strings.TrimSpace(s))
-	if !p.Valid() {
-		return "", fmt.Errorf("outreach: unknown message purpose %q", s)
-	}
-	return p, nil
 }
 
 // Valid reports whether p is a defined purpose.

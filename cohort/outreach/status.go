@@ -49,11 +49,6 @@ func (s Status) Label() string {
 	return fmt.Sprintf("%q", string(s))
 }
 
-// Final reports whether nothing more happens to the message by itself.
-// "sent" is not final for text messages, whose gateway may still report
-// delivery; it ends nothing the desk waits for, so it counts as final here.
-func (s Status) Final() bool { return s != Queued }
-
 // NotDelivered reports whether the message did not reach the participant,
 // which the case shows until someone tries again.
 func (s Status) NotDelivered() bool { return s == Undeliverable || s == Failed }

@@ -52,12 +52,3 @@ func permanentRefusal(err error) bool {
 	var r *Refusal
 	return errors.As(err, &r) && r.Permanent
 }
-
-// temporary wraps err as a refusal worth trying again.
-func temporary(err error) error {
-	var r *Refusal
-	if errors.As(err, &r) {
-		return err
-	}
-	return &Refusal{Detail: err.Error()}
-}
