@@ -213,12 +213,15 @@ func (s *Store) heldJob(ctx context.Context, op, sql string, args ...any) error 
 	return nil
 }
 
-// Jobs lists the most recent jobs, newest first.
+// Jobs lists the most recent jobs, newest first, leaving out the outbox's
+// own (one per message, and the morning summary), whose state the outbox
+// page shows per message.
 func (s *Store) Jobs(ctx context.Context, limit int) ([]Job, error) {
 	if limit <= 0 || limit > 1000 {
 		limit = 50
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+jobCols+` FROM jobs ORDER BY id DESC LIMIT $1`, limit)
+	rows, err := s.pool.Query(ctx, `SELECT `+jobCols+` FROM jobs WHERE kind <> ALL($2) ORDER BY id DESC LIMIT $1`,
+		limit, []string{JobSendMessage, JobMorningSummary})
 	if err != nil {
 		return nil, mapErr("jobs", err)
 	}

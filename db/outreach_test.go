@@ -72,6 +72,10 @@ func TestQueueMessageWritesAttemptMessageAndJobTogether(t *testing.T) {
 	if n := f.count(`SELECT count(*) FROM jobs WHERE kind = 'message.send' AND (payload->>'message_id')::bigint = $1`, q.ID); n != 1 {
 		t.Fatalf("%d sending jobs", n)
 	}
+	// The screening page's job list leaves the outbox's jobs out.
+	if jobs, err := f.s.Jobs(ctx, 10); err != nil || len(jobs) != 0 {
+		t.Fatalf("the job list shows %d jobs (%v), want none of the outbox's", len(jobs), err)
+	}
 	for _, action := range []string{"case.attempt", "message.queue"} {
 		if n := f.count(`SELECT count(*) FROM audit_events WHERE action = $1`, action); n != 1 {
 			t.Errorf("%d %s audit events", n, action)

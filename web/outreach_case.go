@@ -150,9 +150,6 @@ func (s *Server) caseOutreach(r *http.Request, c db.Case, errs map[string]string
 			}
 		} else {
 			cr.Why = s.reachWhy(rc, ch, now)
-			if ch == followup.ChannelLetter && cr.Why == "e-mail is not set up on this server" {
-				cr.Why = ""
-			}
 			cr.Allowed = cr.Why == ""
 		}
 		m.Reach = append(m.Reach, cr)

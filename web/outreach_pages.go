@@ -87,7 +87,6 @@ func (s *Server) messageShow(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	loc := st.Location()
-	at := func(t interface{ IsZero() bool }) bool { return !t.IsZero() }
 	m := views.MessageModel{Page: s.page(r, "Message to "+msg.StudyID, "cases"), StudyID: msg.StudyID, CaseHref: fmt.Sprintf("/cases/%d", msg.CaseID),
 		Recipient: c.Recipient, Subject: c.Subject, Body: c.Body}
 	m.Facts = []views.FactView{
@@ -101,7 +100,7 @@ func (s *Server) messageShow(w http.ResponseWriter, r *http.Request) error {
 	if msg.Held {
 		m.Facts = append(m.Facts, views.FactView{Label: "Held until", Value: msg.SendAfter.In(loc).Format("2006-01-02 15:04 MST")})
 	}
-	if at(msg.SentAt) {
+	if !msg.SentAt.IsZero() {
 		m.Facts = append(m.Facts, views.FactView{Label: "Sent", Value: msg.SentAt.In(loc).Format("2006-01-02 15:04 MST")})
 	}
 	if msg.Detail != "" {
