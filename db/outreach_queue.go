@@ -117,7 +117,7 @@ func makeDraft(ctx context.Context, tx pgx.Tx, a cohort.Actor, cur Case, p outre
 	}
 	vals := outreach.Values{
 		outreach.FirstName: ident.GivenName, outreach.FamilyName: ident.FamilyName, outreach.StudyName: st.Name,
-		outreach.ContactLine: st.ContactRoute, outreach.StudyNumber: cur.StudyID, outreach.TrackingNumber: cur.TrackingNumber,
+		outreach.ContactLine: outreach.ContactLineOf(st.ContactRoute), outreach.StudyNumber: cur.StudyID, outreach.TrackingNumber: cur.TrackingNumber,
 		outreach.ReplyBy: outreach.WrittenDay(outreach.ReplyDay(st.Calendar(), d.sendAt, d.tpl.ReplyDays)),
 	}
 	if d.msg, err = d.tpl.Render(vals); err != nil {

@@ -292,7 +292,7 @@ func (s *Store) TemplatePreview(ctx context.Context, a cohort.Actor, id int, stu
 			return err
 		}
 		out, err = t.Render(outreach.Values{outreach.FirstName: ident.GivenName, outreach.FamilyName: ident.FamilyName,
-			outreach.StudyName: st.Name, outreach.ContactLine: st.ContactRoute, outreach.StudyNumber: strings.TrimSpace(studyID),
+			outreach.StudyName: st.Name, outreach.ContactLine: outreach.ContactLineOf(st.ContactRoute), outreach.StudyNumber: strings.TrimSpace(studyID),
 			outreach.TrackingNumber: tracking, outreach.ReplyBy: outreach.WrittenDay(outreach.ReplyDay(st.Calendar(), s.now(), t.ReplyDays))})
 		return err
 	})

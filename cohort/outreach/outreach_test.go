@@ -309,3 +309,9 @@ func contains(r, o Rect) bool {
 	const eps = 1e-3
 	return o.X >= r.X-eps && o.Y >= r.Y-eps && o.Right() <= r.Right()+eps && o.Bottom() <= r.Bottom()+eps
 }
+
+func TestContactLineOf(t *testing.T) {
+	if got := ContactLineOf(" call 555-0100 on working days. "); got != "call 555-0100 on working days" {
+		t.Fatalf("%q", got)
+	}
+}

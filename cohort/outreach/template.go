@@ -260,6 +260,12 @@ func (t Template) Render(v Values) (Message, error) {
 	return Message{Subject: strings.TrimSpace(t.Subject), Body: strings.TrimSpace(b.String())}, nil
 }
 
+// ContactLineOf is the study's contact route as {{contact_line}} writes it:
+// without a final full stop, since templates write it into a sentence.
+func ContactLineOf(route string) string {
+	return strings.TrimRight(strings.TrimSpace(route), ". ")
+}
+
 // ExampleValues are the documented examples, for a preview without a
 // participant.
 func ExampleValues() Values {

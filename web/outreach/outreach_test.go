@@ -92,6 +92,9 @@ func TestSMTPOverEachSecurityMode(t *testing.T) {
 			if !strings.Contains(m.Body, "please call.") {
 				t.Errorf("body %q", m.Body)
 			}
+			if ua := m.Header.Get("User-Agent") + m.Header.Get("X-Mailer"); ua != "cohortdeskcohortdesk" {
+				t.Errorf("client headers %q", ua)
+			}
 			if !strings.Contains(m.Envelope, c.wantTLS) || !strings.Contains(m.Envelope, c.wantAuth) || !strings.Contains(m.Envelope, "to=<wren@example.org>") {
 				t.Errorf("envelope %q, want %s %s", m.Envelope, c.wantTLS, c.wantAuth)
 			}

@@ -141,6 +141,8 @@ func (s *SMTP) Message(m Outgoing) (*gomail.Msg, error) {
 	}
 	msg.SetMessageIDWithValue(id)
 	msg.SetDate()
+	// Our own name, not the mail library's, in the client headers.
+	msg.SetUserAgent("cohortdesk")
 	msg.SetBodyString(gomail.TypeTextPlain, m.Body)
 	return msg, nil
 }
