@@ -5,6 +5,11 @@
 #              -e COHORTDESK_SECRET=<32+ random bytes, base64> cohortdesk
 
 FROM golang:1.26-bookworm AS build
+# Build with go1.27.3, which fixes the standard-library vulnerabilities
+# govulncheck finds reachable in go1.26.8 (net/http, mime/multipart,
+# crypto/tls, crypto/x509; see .ci/run). The go command fetches that
+# toolchain from the Go module proxy; go.mod's toolchain line names it too.
+ENV GOTOOLCHAIN=go1.27.3
 WORKDIR /src
 COPY go.mod go.sum ./
 RUN go mod download

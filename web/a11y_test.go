@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
 
 	"github.com/chromedp/cdproto/cdp"
@@ -247,6 +248,10 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		p("protocols", "/admin/protocols", "/admin/protocols"),
 		p("protocol", "/admin/protocols/{id}", fmt.Sprintf("/admin/protocols/%d", proto)),
 		p("new protocol version", "/admin/protocols/{id}/new", fmt.Sprintf("/admin/protocols/%d/new", proto)),
+		p("sign-in security", "/admin/security", "/admin/security"),
+		p("your account", "/account", "/account"),
+		p("change password", "/account/password", "/account/password"),
+		p("second factor set-up", "/account/second-factor", "/account/second-factor"),
 	}
 	// A threshold sweep, computed, with its chart and table.
 	sweep, err := a.store.StartSweep(ctx, cohort.Actor{Name: "Investigator", Role: cohort.Investigator}, proto, "windows[0].masd_threshold", []float64{4, 8, 12})
@@ -295,7 +300,7 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	// done in forms.
 	tabWalked := map[string]bool{"case page": true, "recording page": true, "referral preview": true, "referral summary": true,
 		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true,
-		"case page with a message": true, "message template": true}
+		"change password": true, "second factor set-up": true, "case page with a message": true, "message template": true}
 
 	t.Run("visitor", func(t *testing.T) {
 		t.Parallel()
@@ -310,6 +315,19 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 		)
 		tb.follow("submit a wrong password", `[data-testid="signin-submit"]`, `[data-testid="signin-error"]`)
 		tb.a11yCheck("a visitor", "sign-in with its error")
+		checked.Add(2)
+		// The second step of a sign-in with a second factor, and its refusal.
+		coded := codedAccount(t, a)
+		tb.b.Do("sign in to an account with a second factor",
+			chromedp.SetValue(chromedp.ID("email"), coded),
+			chromedp.SetValue(chromedp.ID("password"), testPassword),
+		)
+		tb.follow("submit the password", `[data-testid="signin-submit"]`, `[data-testid="code-form"]`)
+		tb.a11yCheck("a visitor", "sign-in code")
+		tb.tabWalk("a visitor", "sign-in code")
+		tb.b.Do("type a wrong code", chromedp.SendKeys(chromedp.ID("code"), "000000"))
+		tb.follow("submit a wrong code", `[data-testid="code-form"] button`, `[data-testid="code-error"]`)
+		tb.a11yCheck("a visitor", "sign-in code with its error")
 		checked.Add(2)
 
 		// The checker can fail: planted faults are found, with the
@@ -558,13 +576,13 @@ func TestKeyboardWorksTriage(t *testing.T) {
 
 	press, ringed := tb.press, tb.ringed
 
-	// The header: skip link, home link, sign out.
+	// The header: skip link, home link, one's account, sign out.
 	first := press(kb.Tab)
 	if !strings.Contains(first.What, ".skip") {
 		t.Fatalf("the first Tab reaches %s, want the skip link", first.What)
 	}
 	ringed(first)
-	for _, want := range []string{"a.mark", `button[data-testid=sign-out]`} {
+	for _, want := range []string{"a.mark", `a[data-testid=user-name]`, `button[data-testid=sign-out]`} {
 		s := press(kb.Tab)
 		if !strings.HasPrefix(s.What, want) {
 			t.Fatalf("Tab reaches %s, want %s", s.What, want)
@@ -632,4 +650,27 @@ func TestKeyboardWorksTriage(t *testing.T) {
 	if got := tb.b.Text("state", "#"+row+` [data-testid="row-state"]`); got != "reached" {
 		t.Errorf("state after the keyboard attempt %q, want reached", got)
 	}
+}
+
+// codedAccount adds a monitor account with a second factor set up and
+// returns its e-mail address.
+func codedAccount(t *testing.T, a *app) string {
+	t.Helper()
+	ctx := context.Background()
+	hash, err := credential.Hash(testPassword, credential.TestParams)
+	if err != nil {
+		t.Fatal(err)
+	}
+	u, err := a.store.CreateUser(ctx, cohort.System, db.NewUser{Email: "coded@example.org", Name: "Test Coded", Role: cohort.Monitor, PasswordHash: hash})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sealed, err := credential.Seal(credential.SealKey([]byte(testSecret)), credential.NewTOTPSecret(), sealContext(u.ID))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := a.store.EnableSecondFactor(ctx, u.Actor("", ""), sealed, 0, nil); err != nil {
+		t.Fatal(err)
+	}
+	return u.Email
 }

@@ -9,6 +9,10 @@ import (
 type access struct {
 	public bool
 	roles  []cohort.Role
+	// setup: open to a session that must first change its password or set up
+	// its second factor (the account pages); every other route sends such a
+	// session to the step it owes.
+	setup bool
 }
 
 func allow(roles ...cohort.Role) access { return access{roles: roles} }
@@ -39,5 +43,6 @@ var (
 	referrals  = allow(cohort.Coordinator, cohort.Investigator)                               // referral summaries
 	exportArea = allow(cohort.Coordinator, cohort.Investigator, cohort.Admin)                 // the exports page: summaries and dataset exports
 	adminOnly  = allow(cohort.Admin)
-	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold sweep: investigators weigh, admins set protocols
+	tuning     = allow(cohort.Investigator, cohort.Admin)   // threshold sweep: investigators weigh, admins set protocols
+	account    = access{roles: everyone.roles, setup: true} // one's own account: password, second factor
 )

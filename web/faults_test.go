@@ -167,12 +167,23 @@ func TestReadOnlyAndFullDatabase(t *testing.T) {
 			a.store.Pool().Reset()
 		}},
 		{"disk full", func() {
-			a.exec(`CREATE FUNCTION simulate_disk_full() RETURNS trigger LANGUAGE plpgsql AS $$
+			// Only the schema's owner may add a trigger to the audit table.
+			owner := dbtest.Owner(t, a.store.Pool())
+			exec := func(sql string) {
+				if _, err := owner.Exec(ctx, sql); err != nil {
+					t.Fatalf("%s: %v", sql, err)
+				}
+			}
+			exec(`CREATE FUNCTION simulate_disk_full() RETURNS trigger LANGUAGE plpgsql AS $$
 				BEGIN RAISE EXCEPTION 'could not extend file: No space left on device' USING ERRCODE = 'disk_full'; END $$`)
-			a.exec(`CREATE TRIGGER simulate_disk_full BEFORE INSERT ON audit_events FOR EACH STATEMENT EXECUTE FUNCTION simulate_disk_full()`)
+			exec(`CREATE TRIGGER simulate_disk_full BEFORE INSERT ON audit_events FOR EACH STATEMENT EXECUTE FUNCTION simulate_disk_full()`)
 		}, func() {
-			a.exec(`DROP TRIGGER simulate_disk_full ON audit_events`)
-			a.exec(`DROP FUNCTION simulate_disk_full()`)
+			owner := dbtest.Owner(t, a.store.Pool())
+			for _, sql := range []string{`DROP TRIGGER simulate_disk_full ON audit_events`, `DROP FUNCTION simulate_disk_full()`} {
+				if _, err := owner.Exec(ctx, sql); err != nil {
+					t.Fatalf("%s: %v", sql, err)
+				}
+			}
 		}},
 	} {
 		t.Run(mode.name, func(t *testing.T) {
@@ -264,6 +275,10 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 	}
 	defer pool.Close()
 	if _, err := migrations.Up(ctx, pool); err != nil {
+		t.Fatal(err)
+	}
+	// As in the test template: the coordinator signs in with a password alone.
+	if _, err := pool.Exec(ctx, `UPDATE sign_in_policy SET second_factor_required = false`); err != nil {
 		t.Fatal(err)
 	}
 	store := db.New(pool, nil)

@@ -42,19 +42,26 @@ func newApp(t *testing.T) *app {
 	ts := httptest.NewServer(srv.Handler())
 	t.Cleanup(ts.Close)
 	a := &app{t: t, ts: ts, store: store, srv: srv, users: map[cohort.Role]db.User{}}
+	a.addRoleUsers()
+	return a
+}
+
+// addRoleUsers creates the test account of every role (role@example.org,
+// password testPassword).
+func (a *app) addRoleUsers() {
+	a.t.Helper()
 	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
-		t.Fatal(err)
+		a.t.Fatal(err)
 	}
 	for _, r := range cohort.Roles {
-		u, err := store.CreateUser(context.Background(), cohort.System,
+		u, err := a.store.CreateUser(context.Background(), cohort.System,
 			db.NewUser{Email: string(r) + "@example.org", Name: "Test " + r.Label(), Role: r, PasswordHash: hash})
 		if err != nil {
-			t.Fatal(err)
+			a.t.Fatal(err)
 		}
 		a.users[r] = u
 	}
-	return a
 }
 
 // client is a browser-like client with its own cookie jar that does not follow

@@ -32,18 +32,7 @@ func newAppAt(t *testing.T, now time.Time) *app {
 	a := &app{t: t, store: store, srv: srv, users: map[cohort.Role]db.User{}}
 	a.ts = httptest.NewServer(srv.Handler())
 	t.Cleanup(a.ts.Close)
-	hash, err := credential.Hash(testPassword, credential.TestParams)
-	if err != nil {
-		t.Fatal(err)
-	}
-	for _, r := range cohort.Roles {
-		u, err := store.CreateUser(context.Background(), cohort.System,
-			db.NewUser{Email: string(r) + "@example.org", Name: "Test " + r.Label(), Role: r, PasswordHash: hash})
-		if err != nil {
-			t.Fatal(err)
-		}
-		a.users[r] = u
-	}
+	a.addRoleUsers()
 	return a
 }
 

@@ -37,11 +37,16 @@ func statusOf(err error) int {
 		return 499 // the client went away; nothing to show
 	case errors.Is(err, errPayloadTooLarge):
 		return http.StatusRequestEntityTooLarge
+	case errors.Is(err, errBusyUploads):
+		return http.StatusTooManyRequests
 	}
 	return http.StatusInternalServerError
 }
 
-var errPayloadTooLarge = errors.New("upload too large")
+var (
+	errPayloadTooLarge = errors.New("upload too large")
+	errBusyUploads     = errors.New("too many uploads in progress")
+)
 
 // wrap turns an appHandler into an http.Handler.
 func (s *Server) wrap(h appHandler) http.HandlerFunc {
@@ -79,6 +84,8 @@ func (s *Server) serveError(w http.ResponseWriter, r *http.Request, err error) {
 		m.Heading, m.Message = "The database cannot take changes right now", "Nothing was changed. The database is read-only, full or unreachable; try again shortly and tell the study's technical contact if it persists."
 	case http.StatusRequestEntityTooLarge:
 		m.Heading, m.Message = "Upload too large", publicMessage(err, "The file is larger than this server accepts.")
+	case http.StatusTooManyRequests:
+		m.Heading, m.Message = "Too many uploads at once", publicMessage(err, "Wait until your other uploads have finished.")
 	default:
 		m.Heading, m.Message = "Something went wrong", "The server could not finish this request. Nothing was half-saved: each change is all or nothing. The reference below helps the technical contact find the cause."
 	}

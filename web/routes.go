@@ -24,6 +24,13 @@ func (s *Server) routes() []route {
 		{"GET", "/signin", public, s.signInForm},
 		{"POST", "/signin", public, s.signIn},
 		{"POST", "/signout", public, s.signOut},
+		{"GET", "/signin/code", public, s.signInCodeForm},
+		{"POST", "/signin/code", public, s.signInCode},
+		{"GET", "/account", account, s.accountHome},
+		{"GET", "/account/password", account, s.passwordForm},
+		{"POST", "/account/password", account, s.passwordChange},
+		{"GET", "/account/second-factor", account, s.enrolForm},
+		{"POST", "/account/second-factor", account, s.enrol},
 
 		{"GET", "/", everyone, s.home},
 
@@ -101,6 +108,9 @@ func (s *Server) routes() []route {
 		{"GET", "/admin/users/{id}", adminOnly, s.userEdit},
 		{"POST", "/admin/users/{id}", adminOnly, s.userUpdate},
 		{"POST", "/admin/users/{id}/password", adminOnly, s.userResetPassword},
+		{"POST", "/admin/users/{id}/second-factor/reset", adminOnly, s.secondFactorReset},
+		{"GET", "/admin/security", adminOnly, s.securityPage},
+		{"POST", "/admin/security", adminOnly, s.securitySave},
 		{"GET", "/admin/audit", adminOnly, s.auditList},
 		{"GET", "/admin/audit.csv", adminOnly, s.auditCSV},
 		{"GET", "/admin/study", adminOnly, s.studySettings},

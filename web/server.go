@@ -28,6 +28,8 @@ type Store interface {
 	healthStore
 	userStore
 	signInStore
+	accountStore
+	secondFactorStore
 	adminStore
 	participantStore
 	importStore
@@ -51,6 +53,9 @@ type Config struct {
 	TrustedProxies []netip.Prefix    // peers whose X-Forwarded-For is believed
 	Password       credential.Params // argon2id cost for new passwords; zero means credential.DefaultParams
 	DemoNote       string            // demo sign-in help shown on the sign-in page; empty in production
+	// HashConcurrency bounds the password hashes computed at once (each
+	// holds Password.Memory); zero means one per CPU.
+	HashConcurrency int
 	// Secret keys the pseudonymous referral codes (deid.Code). It must stay
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
@@ -76,6 +81,8 @@ type Server struct {
 	dummyOnce      sync.Once
 	dummy          string
 	secret         []byte
+	hashes         *hashGate
+	uploads        uploadSlots
 	outreach       OutreachConfig
 }
 
@@ -87,6 +94,7 @@ func New(cfg Config) *Server {
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}
+	s.hashes = newHashGate(cfg.HashConcurrency)
 	s.sessions = newSessions(cfg.Pool, cfg.Session)
 	s.sessions.ErrorFunc = s.sessionError
 	if s.log == nil {
@@ -112,7 +120,9 @@ func (s *Server) Handler() http.Handler {
 	// (Sec-Fetch-Site, or an Origin that is not this host).
 	h = http.NewCrossOriginProtection().Handler(h)
 	h = s.withRecover(h)
+	h = s.withReadDeadlines(h)
 	h = withSecurityHeaders(h)
+	h = s.withHSTS(h)
 	h = s.withLogging(h)
 	h = withRequestID(h)
 	return h

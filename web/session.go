@@ -105,6 +105,10 @@ func (s *Server) guard(a access, h http.Handler) http.Handler {
 			s.toSignIn(w, r)
 			return
 		}
+		if step := s.sessions.GetString(r.Context(), sessionSetupKey); step != "" && !a.setup {
+			s.toSetup(w, r, step)
+			return
+		}
 		if !a.allows(u.Role) {
 			ctx := context.WithValue(r.Context(), keyUser, u)
 			s.serveError(w, r.WithContext(ctx), cohort.ErrForbidden)

@@ -14,7 +14,6 @@ import (
 	"time"
 
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 )
 
 // serverConfig is the configuration shared by serve and demo. Every field comes
@@ -23,6 +22,7 @@ import (
 type serverConfig struct {
 	Addr            string
 	DatabaseURL     string
+	MigrateURL      string // the schema owner's connection for migrations; empty: DatabaseURL
 	LogLevel        string
 	LogFormat       string
 	MaxConns        int
@@ -43,6 +43,7 @@ func (c *serverConfig) bind(fs *flag.FlagSet, getenv func(string) string, defaul
 	fs.StringVar(&c.LogLevel, "log-level", envOr(getenv, "COHORTDESK_LOG_LEVEL", "info"), "debug, info, warn or error (env COHORTDESK_LOG_LEVEL)")
 	fs.StringVar(&c.LogFormat, "log-format", envOr(getenv, "COHORTDESK_LOG_FORMAT", "text"), "text or json (env COHORTDESK_LOG_FORMAT)")
 	fs.IntVar(&c.MaxConns, "db-max-conns", envInt(getenv, "COHORTDESK_DB_MAX_CONNS", 20), "database connections in the pool (env COHORTDESK_DB_MAX_CONNS)")
+	fs.StringVar(&c.MigrateURL, "migrate-database-url", getenv(migrateEnv), "PostgreSQL URL of the schema's owner, which runs the migrations and grants the application's role; empty runs them over -database-url (env "+migrateEnv+")")
 	fs.BoolVar(&c.Migrate, "migrate", envBool(getenv, "COHORTDESK_MIGRATE", true), "apply pending migrations at start (env COHORTDESK_MIGRATE)")
 	fs.DurationVar(&c.SessionIdle, "session-idle", envDuration(getenv, "COHORTDESK_SESSION_IDLE", 30*time.Minute), "sign out after this long without a request (env COHORTDESK_SESSION_IDLE)")
 	fs.DurationVar(&c.SessionLifetime, "session-lifetime", envDuration(getenv, "COHORTDESK_SESSION_LIFETIME", 12*time.Hour), "sign out this long after sign-in (env COHORTDESK_SESSION_LIFETIME)")
@@ -192,8 +193,9 @@ func redactURL(u string) string {
 }
 
 // openStore connects the tools (import, user, screen) to DATABASE_URL and
-// brings the schema up to date, as serve would. close releases the pool.
-func openStore(ctx context.Context, command, url string, conns int32) (store *db.Store, close func(), err error) {
+// brings the schema up to date, as serve would (as the owner of
+// COHORTDESK_MIGRATE_DATABASE_URL when set). close releases the pool.
+func openStore(ctx context.Context, getenv func(string) string, command, url string, conns int32) (store *db.Store, close func(), err error) {
 	if url == "" {
 		return nil, nil, fmt.Errorf("%s: DATABASE_URL is not set (for the demo's database, run the demo and use the DATABASE_URL it prints)", command)
 	}
@@ -201,7 +203,7 @@ func openStore(ctx context.Context, command, url string, conns int32) (store *db
 	if err != nil {
 		return nil, nil, err
 	}
-	if _, err := migrations.Up(ctx, pool); err != nil {
+	if _, err := migrateAs(ctx, getenv(migrateEnv), pool); err != nil {
 		pool.Close()
 		return nil, nil, err
 	}

@@ -38,7 +38,7 @@ func runScreen(ctx context.Context, e env, args []string) error {
 	if *poll < 10*time.Millisecond {
 		*poll = 10 * time.Millisecond
 	}
-	store, closeDB, err := openStore(ctx, "screen", *url, 4)
+	store, closeDB, err := openStore(ctx, e.getenv, "screen", *url, 4)
 	if err != nil {
 		return err
 	}

@@ -9,7 +9,6 @@ import (
 	"time"
 
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 	"cohortdesk/web"
 
 	"github.com/jackc/pgx/v5/pgxpool"
@@ -40,12 +39,13 @@ func runServe(ctx context.Context, e env, args []string) error {
 	}
 	defer pool.Close()
 	if cfg.Migrate {
-		n, err := migrations.Up(ctx, pool)
+		n, err := migrateAs(ctx, cfg.MigrateURL, pool)
 		if err != nil {
 			return err
 		}
-		log.Info("migrations applied", "count", n)
+		log.Info("migrations applied", "count", n, "as_owner", cfg.MigrateURL != "")
 	}
+	warnRole(ctx, pool, log)
 	return serveApp(ctx, cfg, pool, log, "", func(addr string) {
 		log.Info("listening", "addr", addr, "database", redactURL(cfg.DatabaseURL))
 	})
@@ -60,6 +60,11 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 		return err
 	}
 	log.Info("screening protocol", "active", active.Label())
+	// Uploads a killed server was receiving are useless now (their imports
+	// are marked interrupted); an hour spares other instances' live ones.
+	if n := web.RemoveStaleUploads(time.Hour); n > 0 {
+		log.Info("stale uploads removed", "count", n)
+	}
 	stopWatch := watchInterruptedImports(ctx, store, interruptedEvery, log)
 	defer stopWatch()
 	snd, outreachCfg, err := cfg.Outreach.build(store, log)

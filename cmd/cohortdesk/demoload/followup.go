@@ -59,12 +59,19 @@ func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[s
 	// weeks ended, so a case opens (and its opening is audited, with its
 	// first deadline) when its own week was flagged, not with an earlier
 	// episode of the same participant.
-	pool := store.Pool()
+	// The held results wait in a temporary table of one connection: the
+	// loader runs as the application's database role, which may not create
+	// tables.
+	pool, err := store.Pool().Acquire(ctx)
+	if err != nil {
+		return 0, err
+	}
+	defer pool.Release()
 	if _, err := pool.Exec(ctx, `DROP TABLE IF EXISTS seed_held_results`); err != nil {
 		return 0, err
 	}
 	for _, q := range []string{
-		`CREATE TABLE seed_held_results AS SELECT * FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
+		`CREATE TEMP TABLE seed_held_results AS SELECT * FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
 		`DELETE FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
 	} {
 		if _, err := pool.Exec(ctx, q, pv.ID); err != nil {
@@ -174,7 +181,7 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 		if u, ok := users[login]; ok {
 			return u.Actor("", "demo")
 		}
-		return cohort.Actor{Name: "demo loader"}
+		return cohort.Actor{Name: LoaderName}
 	}
 	if owner, ok := users[f.Owner]; ok && len(evs) > 0 {
 		clk.t = evs[0].at.Add(-time.Minute)
