@@ -214,3 +214,77 @@ func TestExportReaders(t *testing.T) {
 		t.Errorf("exports %+v %v", list, err)
 	}
 }
+
+// Two readers who disagree, with nobody adjudicating yet, settle nothing
+// (overread.Resolve): the case is not ready to refer, its summary reports no
+// AF over-read, and a summary issued while the first reading stood alone
+// cannot be signed off once the second reader disagrees.
+func TestDisputedReadingIsNotAReferral(t *testing.T) {
+	f, cases := referralFixture(t)
+	ctx := context.Background()
+	early := issue(t, f, f.pids["P1"], cases["P1"]) // P1's first reader said AF, alone
+	if sum, err := referral.Decode(early.Content); err != nil || sum.OverRead == nil || sum.OverRead.Rhythm != "af" {
+		t.Fatalf("summary before the dispute: %+v, %v; want the first reader's AF", sum.OverRead, err)
+	}
+	mustExec(t, f.s, `INSERT INTO over_reads (recording_id, case_id, participant_id, role, rhythm, reader, read_on)
+		SELECT id, case_id, participant_id, 'second', 'sinus', 'Reader Two', date '2026-05-30' FROM recordings WHERE case_id = $1`, cases["P1"])
+
+	ready, err := f.s.ReadyToRefer(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ready) != 0 {
+		t.Errorf("ready %+v, want none: P1's readers disagree, P2 was adjudicated sinus, P3 is closed", ready)
+	}
+	b, err := f.s.ReferralSource(ctx, f.pids["P1"], cases["P1"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b.ConfirmedAF() || b.Source.OverRead != nil {
+		t.Errorf("disputed basis: confirmed %v, over-read %+v; want no over-read on the summary", b.ConfirmedAF(), b.Source.OverRead)
+	}
+	late := issue(t, f, f.pids["P1"], cases["P1"])
+	if sum, err := referral.Decode(late.Content); err != nil || sum.OverRead != nil {
+		t.Errorf("summary after the dispute reports over-read %+v (%v); want none", sum.OverRead, err)
+	}
+	var ve *cohort.ValidationError
+	for _, r := range []db.Referral{early, late} {
+		if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID); !errors.As(err, &ve) {
+			t.Errorf("sign-off of summary %d of a disputed case: %v, want refused", r.ID, err)
+		}
+	}
+	if c := f.get(cases["P1"]); c.State != followup.RecordingReceived {
+		t.Errorf("disputed case moved to %s", c.State)
+	}
+}
+
+// A recording under 30 s read as AF confirms nothing (the diagnostic-recording
+// rule, as the cascade counts it): its case is not ready to refer and its
+// summary cannot be signed off.
+func TestShortRecordingIsNotAReferral(t *testing.T) {
+	f, cases := referralFixture(t)
+	ctx := context.Background()
+	mustExec(t, f.s, `UPDATE recordings SET too_short = true, duration_s = 20 WHERE case_id = $1`, cases["P1"])
+	ready, err := f.s.ReadyToRefer(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ready) != 0 {
+		t.Errorf("ready %+v, want none: P1's only recording is too short", ready)
+	}
+	b, err := f.s.ReferralSource(ctx, f.pids["P1"], cases["P1"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b.ConfirmedAF() {
+		t.Errorf("a short recording's AF reading confirmed the basis: %+v", b.Source.OverRead)
+	}
+	r := issue(t, f, f.pids["P1"], cases["P1"])
+	var ve *cohort.ValidationError
+	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID); !errors.As(err, &ve) {
+		t.Errorf("sign-off on a short recording: %v, want refused", err)
+	}
+	if c := f.get(cases["P1"]); c.State != followup.RecordingReceived {
+		t.Errorf("case moved to %s on a short recording", c.State)
+	}
+}

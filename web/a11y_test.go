@@ -13,6 +13,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
+	"cohortdesk/cohort/ecg"
 	"cohortdesk/db"
 
 	"github.com/chromedp/cdproto/cdp"
@@ -262,6 +263,19 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatalf("run the sweep: %v %v", ok, err)
 	}
 	pages = append(pages, p("threshold sweep", "/sweep", fmt.Sprintf("/sweep?run=%d", sweep)))
+	// A recording from a file of several signals: the signals table and the
+	// choice of lead.
+	var shipped int64
+	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM cases WHERE state IN ('recorder_sent', 'recording_received', 'over_read') ORDER BY id LIMIT 1`).Scan(&shipped); err != nil {
+		t.Fatalf("no case taking recordings in the demo: %v", err)
+	}
+	edf, _ := threeSignalEDF(t)
+	multi, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("127.0.0.1", "test"), shipped,
+		ecg.RecordingInput{File: edf, FileName: "leads.edf", TakenAt: time.Now().Add(-time.Minute)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pages = append(pages, p("recording with several leads", "/recordings/{id}", fmt.Sprintf("/recordings/%d", multi.ID)))
 	pages = append(pages, outreachPages(t, a)...)
 	var imp int64
 	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM imports ORDER BY id LIMIT 1`).Scan(&imp); err == nil {
@@ -298,7 +312,7 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	var checked atomic.Int32
 	// Pages walked with Tab from top to bottom: the ones whose work is
 	// done in forms.
-	tabWalked := map[string]bool{"case page": true, "recording page": true, "referral preview": true, "referral summary": true,
+	tabWalked := map[string]bool{"case page": true, "recording page": true, "recording with several leads": true, "referral preview": true, "referral summary": true,
 		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true,
 		"change password": true, "second factor set-up": true, "case page with a message": true, "message template": true}
 

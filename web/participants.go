@@ -12,6 +12,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/enrolment"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -203,14 +204,12 @@ func yesNo(b *bool) string {
 	return "no"
 }
 
-func verdictTone(v string) components.Tone {
+func verdictTone(v screen.Verdict) components.Tone {
 	switch v {
-	case "positive":
+	case screen.Positive:
 		return components.Alarm
-	case "negative":
+	case screen.Negative:
 		return components.OK
-	case "insufficient":
-		return components.Neutral
 	}
 	return components.Neutral
 }
@@ -273,7 +272,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	for _, l := range lines {
 		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
 		row := views.TimelineRow{Week: l.Week, Dates: start.Format("Jan 2") + " – " + end.AddDate(0, 0, -1).Format("Jan 2"), Readings: l.Readings,
-			Verdict: l.Verdict, Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
+			Verdict: l.Verdict.Label(), Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
 			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
 		if l.WearHours > 0 {
 			row.WearHours = strconv.FormatFloat(l.WearHours, 'f', 1, 64)
@@ -301,7 +300,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 func defaultChartWeek(lines []db.WeekLine) int {
 	best := -1
 	for _, l := range lines {
-		if l.Verdict == "positive" {
+		if l.Verdict == screen.Positive {
 			best = l.Week
 		}
 	}
@@ -346,14 +345,33 @@ func (s *Server) participantInput(r *http.Request) (db.ParticipantInput, error) 
 	return in, f.check(func() error { return in.Check(cohort.DateOf(s.now())) })
 }
 
-func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
+// participantForm shows the enrolment or edit form, with the sites to
+// choose from, at status (200, or a refusal's).
+func (s *Server) participantForm(w http.ResponseWriter, r *http.Request, status int, m views.ParticipantFormModel) error {
 	sites, _, err := s.siteOptions(r.Context())
 	if err != nil {
 		return err
 	}
-	vals := map[string]string{"enrolled_on": s.now().Format("2006-01-02"), "sex": "U"}
-	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
-		Action: "/participants", Heading: "Enrol a participant", Values: vals, Sites: sites, ShowPHI: true}))
+	m.Sites, m.ShowPHI = sites, true
+	s.render(w, r, status, views.ParticipantForm(m))
+	return nil
+}
+
+// enrolForm is the enrolment form's model around the values shown.
+func (s *Server) enrolForm(r *http.Request, vals, errs map[string]string) views.ParticipantFormModel {
+	return views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"), Action: "/participants",
+		Heading: "Enrol a participant", Values: vals, Errors: errs}
+}
+
+// editForm is the edit form's model of p around the values shown.
+func (s *Server) editForm(r *http.Request, p db.Participant, version int, vals, errs map[string]string) views.ParticipantFormModel {
+	return views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"), Action: fmt.Sprintf("/participants/%d/edit", p.ID),
+		Heading: "Edit " + p.StudyID, Values: vals, Errors: errs, Version: version}
+}
+
+func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
+	vals := map[string]string{"enrolled_on": s.now().Format("2006-01-02"), "sex": string(cohort.Unknown)}
+	return s.participantForm(w, r, http.StatusOK, s.enrolForm(r, vals, nil))
 }
 
 // participantClash words a clash of an enrolment with a stored record.
@@ -373,13 +391,7 @@ func (s *Server) participantCreate(w http.ResponseWriter, r *http.Request) error
 		if !ok {
 			return err
 		}
-		sites, _, serr := s.siteOptions(r.Context())
-		if serr != nil {
-			return serr
-		}
-		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
-			Action: "/participants", Heading: "Enrol a participant", Values: f.Values, Errors: f.Fields, Sites: sites, ShowPHI: true}))
-		return nil
+		return s.participantForm(w, r, f.Status, s.enrolForm(r, f.Values, f.Fields))
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil
@@ -391,10 +403,6 @@ func (s *Server) participantEdit(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	id, err := s.store.Identity(r.Context(), s.actor(r), p.ID, "edit form")
-	if err != nil {
-		return err
-	}
-	sites, _, err := s.siteOptions(r.Context())
 	if err != nil {
 		return err
 	}
@@ -416,8 +424,7 @@ func (s *Server) participantEdit(w http.ResponseWriter, r *http.Request) error {
 	if id.BirthDate != nil {
 		vals["birth_date"] = id.BirthDate.String()
 	}
-	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
-		Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: vals, Sites: sites, Version: p.Version, ShowPHI: true}))
+	return s.participantForm(w, r, http.StatusOK, s.editForm(r, p, p.Version, vals, nil))
 }
 
 func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error {
@@ -437,13 +444,7 @@ func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error
 		if !ok {
 			return err
 		}
-		sites, _, serr := s.siteOptions(r.Context())
-		if serr != nil {
-			return serr
-		}
-		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
-			Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: f.Values, Errors: f.Fields, Sites: sites, Version: in.Version, ShowPHI: true}))
-		return nil
+		return s.participantForm(w, r, f.Status, s.editForm(r, p, in.Version, f.Values, f.Fields))
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil

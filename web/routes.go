@@ -29,8 +29,8 @@ func (s *Server) routes() []route {
 		{"GET", "/account", account, s.accountHome},
 		{"GET", "/account/password", account, s.passwordForm},
 		{"POST", "/account/password", account, s.passwordChange},
-		{"GET", "/account/second-factor", account, s.enrolForm},
-		{"POST", "/account/second-factor", account, s.enrol},
+		{"GET", "/account/second-factor", account, s.secondFactorForm},
+		{"POST", "/account/second-factor", account, s.secondFactorSetUp},
 
 		{"GET", "/", everyone, s.home},
 
@@ -88,6 +88,7 @@ func (s *Server) routes() []route {
 
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
 		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
+		{"POST", "/recordings/{id}/lead", caseWork, s.recordingLead},
 		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
 		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
 		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},

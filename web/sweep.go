@@ -31,7 +31,7 @@ const sweepRecent = 10
 type sweepChoice struct {
 	version db.ProtocolVersion
 	param   string
-	cur     paramLeaf // the parameter's value in the version
+	cur     screen.Param // the parameter's value in the version
 	// the range, as given (for the form) and as numbers once valid
 	fromText, toText, stepsText string
 	from, to                    float64
@@ -75,7 +75,7 @@ func parseSweepChoice(q url.Values, all []db.ProtocolVersion) sweepChoice {
 		}
 		c.param = defaultSweepParam
 	}
-	for _, l := range protocolLeaves(c.version.Params) {
+	for _, l := range c.version.Params.Params() {
 		if l.Path == c.param {
 			c.cur = l
 		}
@@ -128,11 +128,7 @@ func (c sweepChoice) values() []float64 {
 func sweepOptions(p screen.Protocol) []views.Option {
 	var out []views.Option
 	for _, sp := range screen.SweepParams(p) {
-		label := paramLabel(sp.Path)
-		if sp.Window >= 0 {
-			label = fmt.Sprintf("%d-minute windows: %s", p.Windows[sp.Window].Minutes, label)
-		}
-		out = append(out, views.Option{Value: sp.Path, Label: label})
+		out = append(out, views.Option{Value: sp.Path, Label: sp.Label(p)})
 	}
 	return out
 }
@@ -164,7 +160,7 @@ func (s *Server) sweepModel(r *http.Request, c *sweepChoice, all []db.ProtocolVe
 	}
 	for _, run := range runs {
 		m.Recent = append(m.Recent, views.SweepRunRow{Href: sweepHref(run.ID), ID: strconv.FormatInt(run.ID, 10),
-			When: run.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), By: run.CreatedBy, Param: paramLabel(run.Param),
+			When: run.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), By: run.CreatedBy, Param: screen.ParamLabel(run.Param),
 			Values: strconv.Itoa(len(run.Values)), State: run.Job.State, Tone: components.Tone(statusTone(run.Job.State))})
 	}
 	if c == nil {

@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 )
@@ -43,7 +44,7 @@ type Attempt struct {
 // Recording is one handheld single-lead ECG recording and what became of it.
 // Beats fall at FirstBeat, FirstBeat+RR[0], FirstBeat+RR[0]+RR[1], ... seconds
 // from the start, so the loader can synthesise a waveform with beats at known
-// times. Recordings under 30 s occur on purpose
+// times. Recordings under 30 s (ecg.MinDiagnosticSeconds) occur on purpose
 // (AF needs at least 30 s of ECG to be diagnosed).
 type Recording struct {
 	Taken     time.Time
@@ -424,7 +425,7 @@ func (m *sim) record(t time.Time, rhythm overread.Rhythm, unusable bool) Recordi
 // diagnose, or noisy) are uninterpretable; otherwise the truth, with an
 // occasional confusion between AF and flutter.
 func (m *sim) read(rec Recording) overread.Rhythm {
-	if rec.Noisy || rec.Seconds < 30 {
+	if rec.Noisy || rec.Seconds < ecg.MinDiagnosticSeconds {
 		return overread.Uninterpretable
 	}
 	if m.r.Float64() < 0.04 {

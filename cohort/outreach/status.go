@@ -1,9 +1,9 @@
 package outreach
 
 import (
-	"fmt"
-	"strings"
 	"time"
+
+	"cohortdesk/cohort"
 )
 
 // Status is where a message stands. The values are stored.
@@ -18,7 +18,7 @@ const (
 	Failed        Status = "failed"        // not sent: temporary failures until the desk gave up, or sending was no longer allowed
 )
 
-var statusLabels = map[Status]string{
+var statusLabels = cohort.Words[Status]{
 	Queued:        "queued",
 	Sent:          "sent",
 	Delivered:     "delivered",
@@ -31,23 +31,14 @@ func Statuses() []Status { return []Status{Queued, Sent, Delivered, Undeliverabl
 
 // ParseStatus reads a stored status.
 func ParseStatus(s string) (Status, error) {
-	st := Status(strings.TrimSpace(s))
-	if !st.Valid() {
-		return "", fmt.Errorf("outreach: unknown message status %q", s)
-	}
-	return st, nil
+	return statusLabels.Parse(s, "outreach: unknown message status")
 }
 
 // Valid reports whether s is a defined status.
-func (s Status) Valid() bool { _, ok := statusLabels[s]; return ok }
+func (s Status) Valid() bool { return statusLabels.Valid(s) }
 
-// Label is the wording shown on pages.
-func (s Status) Label() string {
-	if l, ok := statusLabels[s]; ok {
-		return l
-	}
-	return fmt.Sprintf("%q", string(s))
-}
+// Label is the wording shown on pages; unknown values are shown quoted.
+func (s Status) Label() string { return statusLabels.Label(s) }
 
 // NotDelivered reports whether the message did not reach the participant,
 // which the case shows until someone tries again.

@@ -18,6 +18,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/credential"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 	"cohortdesk/web"
 
@@ -282,7 +283,7 @@ func wearIDs(c synthCohort) []int64 {
 func chartWeek(lines []db.WeekLine) (int, bool) {
 	best := -1
 	for _, l := range lines {
-		if l.Verdict == "positive" {
+		if l.Verdict == screen.Positive {
 			best = l.Week
 		}
 	}

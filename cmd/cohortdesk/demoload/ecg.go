@@ -15,15 +15,15 @@ import (
 )
 
 // synthRecording makes the waveform of a scripted recording with the
-// dynamical ECG model (cohort/ecg): its beats fall at the script's intervals,
-// with breathing wander, and heavy noise when the script says an over-reader
-// could not read it.
+// dynamical ECG model (cohort/ecg): it lasts the script's seconds, its beats
+// fall at the script's times, with breathing wander, and heavy noise when the
+// script says an over-reader could not read it.
 func synthRecording(r demo.Recording, seed uint64) (ecg.Waveform, error) {
 	rr := make([]float64, len(r.RR))
 	for i, s := range r.RR {
 		rr[i] = s * 1000
 	}
-	o := ecg.SynthOptions{RateHz: 300, WanderMV: 0.08, WanderHz: 0.22, Seed: seed}
+	o := ecg.SynthOptions{RateHz: 300, WanderMV: 0.08, WanderHz: 0.22, Seed: seed, FirstBeatS: r.FirstBeat, Seconds: r.Seconds}
 	if r.Noisy {
 		o.Noise, o.SNRdB = true, -6
 	}
