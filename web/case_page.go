@@ -138,6 +138,9 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 	if m.ECG, err = s.caseECG(r, c, errs, now); err != nil {
 		return err
 	}
+	if m.Outreach, err = s.caseOutreach(r, c, errs, now); err != nil {
+		return err
+	}
 	events, err := s.store.CaseTimeline(ctx, c, loc)
 	if err != nil {
 		return err
@@ -175,6 +178,8 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 		if !rec.OverRead {
 			out.Lines = append(out.Lines, "waiting for an over-read")
 		}
+	case db.EventMessage:
+		out = messageEntry(out, *e.Message, loc)
 	case db.EventOverRead:
 		o := e.OverRead
 		out.Title = fmt.Sprintf("Over-read (%s): %s, %s", overread.Role(o.Role).Label(), overread.Rhythm(o.Rhythm).Label(), o.Confidence)

@@ -40,6 +40,7 @@ type Store interface {
 	recordingStore
 	referralStore
 	exportStore
+	outreachStore
 }
 
 // Config is what the server is built from.
@@ -59,6 +60,8 @@ type Config struct {
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
 	Secret []byte
+	// Outreach says which channels this server sends messages on.
+	Outreach OutreachConfig
 }
 
 // Server holds the dependencies of the handlers.
@@ -80,12 +83,14 @@ type Server struct {
 	secret         []byte
 	hashes         *hashGate
 	uploads        uploadSlots
+	outreach       OutreachConfig
 }
 
 // New builds the server and its routes.
 func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
-		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret}
+		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret,
+		outreach: cfg.Outreach}
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}
