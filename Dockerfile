@@ -5,6 +5,11 @@
 #              -e COHORTDESK_SECRET=<32+ random bytes, base64> cohortdesk
 
 FROM golang:1.26-bookworm AS build
+# Build with go1.27.3, which fixes the standard-library vulnerabilities
+# govulncheck finds reachable in go1.26.8 (net/http, mime/multipart,
+# crypto/tls, crypto/x509; see .ci/run). The go command fetches that
+# toolchain from the Go module proxy; go.mod's toolchain line names it too.
+ENV GOTOOLCHAIN=go1.27.3
 WORKDIR /src
 COPY go.mod go.sum ./
 RUN go mod download
@@ -19,6 +24,6 @@ USER nonroot:nonroot
 EXPOSE 8080
 ENV COHORTDESK_ADDR=:8080 COHORTDESK_LOG_FORMAT=json
 HEALTHCHECK --interval=30s --timeout=3s --start-period=20s --retries=3 \
-  CMD ["/usr/local/bin/cohortdesk", "healthcheck", "-url", "http://127.0.0.1:8080/healthz"]
+  CMD ["/usr/local/bin/cohortdesk", "healthcheck", "-url", "http://127.0.0.1:8080/health"]
 ENTRYPOINT ["/usr/local/bin/cohortdesk"]
 CMD ["serve"]

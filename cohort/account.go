@@ -1,8 +1,15 @@
 package cohort
 
-import "strings"
+import (
+	"fmt"
+	"strings"
+)
 
 // The rules of a staff account as an administrator enters it.
+
+// MaxEmailLen is the longest e-mail address: RFC 5321 (section 4.5.3.1.3)
+// allows a path of 256 octets including the angle brackets, so 254.
+const MaxEmailLen = 254
 
 // CheckAccount refuses a new account: an e-mail address (with an @ and no
 // spaces), a name of 1 to 120 characters, and a known role.
@@ -10,6 +17,8 @@ func CheckAccount(email, name string, r Role) error {
 	var ve ValidationError
 	if !strings.Contains(email, "@") || strings.ContainsAny(email, " \t") {
 		ve.Add("email", "enter an e-mail address such as name@example.org")
+	} else if len(strings.TrimSpace(email)) > MaxEmailLen {
+		ve.Add("email", fmt.Sprintf("an e-mail address has at most %d characters", MaxEmailLen))
 	}
 	checkName(&ve, name)
 	if !r.Valid() {

@@ -92,9 +92,6 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
 	switch {
 	case f.State != "":
-		if !f.State.Valid() {
-			return "", nil, &cohort.ValidationError{Fields: map[string]string{"state": "choose a state from the list"}}
-		}
 		conds = append(conds, "c.state = "+arg(string(f.State)))
 	case f.Scope == WorkingCases:
 		conds = append(conds, "c.closed_at IS NULL")
@@ -116,10 +113,29 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	return strings.Join(conds, " AND "), args, nil
 }
 
+// Check refuses a filter the list cannot apply: an unknown state or a
+// cursor this list did not make (a tampered or outdated page link).
+// Messages are keyed by the list's query parameters.
+func (f CaseFilter) Check() error {
+	var ve cohort.ValidationError
+	if f.State != "" && !f.State.Valid() {
+		ve.Add("state", "choose a state from the list")
+	}
+	if f.After != "" {
+		if c, ok := decodeCursor(f.After); !ok || c.ID <= 0 || c.Key != "" {
+			ve.Add("after", errBadCursor.Fields["after"])
+		}
+	}
+	return ve.Err()
+}
+
 // Cases returns one page of the filtered case list with keyset pagination.
 func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if f.Limit <= 0 || f.Limit > 500 {
 		f.Limit = 50
+	}
+	if err := f.Check(); err != nil {
+		return CasePage{}, err
 	}
 	var page CasePage
 	where, args, err := f.where(s.now())
@@ -130,8 +146,10 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 		return page, mapErr("cases count", err)
 	}
 	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key, c.ID)
-		where += fmt.Sprintf(" AND (%s, c.id) > ($%d::timestamptz, $%d)", caseOrder, len(args)-1, len(args))
+		// The cursor is the last row's id alone: a deadline in the page link
+		// would show monitors a date of a participant's case.
+		args = append(args, c.ID)
+		where += fmt.Sprintf(" AND (%s, c.id) > (SELECT coalesce(k.due_at, 'infinity'::timestamptz), k.id FROM cases k WHERE k.id = $%d)", caseOrder, len(args))
 	}
 	args = append(args, f.Limit+1)
 	rows, err := s.reader(ctx).Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
@@ -145,12 +163,7 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	}
 	if len(page.Rows) > f.Limit {
 		page.Rows = page.Rows[:f.Limit]
-		last := page.Rows[f.Limit-1]
-		key := "infinity"
-		if !last.DueAt.IsZero() {
-			key = last.DueAt.UTC().Format(time.RFC3339Nano)
-		}
-		page.Next = encodeCursor(cursor{Key: key, ID: last.ID})
+		page.Next = encodeCursor(cursor{ID: page.Rows[f.Limit-1].ID})
 	}
 	return page, nil
 }
@@ -171,18 +184,21 @@ type Triage struct {
 }
 
 // Triage places the cases still being worked in followup.Urgency's groups
-// at the store's now, in the study's time zone, counts every group, and
-// returns the first perGroup cases of each urgent group in full, in the
-// group's order (all of them when perGroup <= 0). Cases on schedule
-// (followup.BucketOther) are counted, not returned: the triage page does not
-// list them, the case list does.
+// at the store's now, in the study's time zone, for the person with account
+// id me (their own cases have a group), counts every group, and returns the
+// first perGroup cases of each urgent group in full, in the group's order
+// (all of them when perGroup <= 0). Cases on schedule (followup.BucketOther)
+// are counted, not returned: the triage page does not list them, the case
+// list does.
 //
 // The counts come from sums kept by state, owner and the hour of the
 // deadline (case_counts), with the hour that holds each of
-// followup.Deadlines counted exactly from the deadline index; each group's
-// first rows come from an index in the group's order. So the page costs what
-// it shows, however many cases are being worked.
-func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
+// followup.Deadlines counted exactly from the deadline index; the cases
+// holding a recording waiting for an over-read are kept by case
+// (figure_waiting); the person's own cases come from the owner index. Each
+// group's first rows come in the group's order from those. So the page costs
+// what it shows and what waits, however many cases are being worked.
+func (s *Store) Triage(ctx context.Context, perGroup int, me int64) (Triage, error) {
 	var t Triage
 	var err error
 	if t.Settings, err = s.StudySettings(ctx); err != nil {
@@ -201,7 +217,11 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 		limit = perGroup
 	}
 	hour := func(at time.Time) string { return at.UTC().Truncate(time.Hour).Format("2006-01-02 15:04:05") }
-	open, waiting := string(followup.Open), string(followup.RecordingReceived)
+	open := string(followup.Open)
+	// A case past the first three groups: nothing due by the end of today,
+	// and not a new flag nobody has taken on.
+	const later = `c.closed_at IS NULL AND (c.due_at IS NULL OR c.due_at > $1) AND NOT (c.state = 'open' AND c.owner_id IS NULL)`
+	const waits = `EXISTS (SELECT 1 FROM figure_waiting w WHERE w.participant_id = c.participant_id AND w.case_id = c.id)`
 	b := &pgx.Batch{}
 	// Cases with a deadline at or before a moment: the whole hours before
 	// it from the sums, the hour that holds it from the cases themselves.
@@ -216,39 +236,38 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 		         (SELECT coalesce(sum(n), 0) FROM k WHERE due_hour + interval '1 hour' <= $5::timestamptz AT TIME ZONE 'UTC')
 		         + (SELECT count(*) FROM x WHERE due_at >= $4::timestamp AT TIME ZONE 'UTC' AND due_at <= $5::timestamptz) AS today,
 		         (SELECT coalesce(sum(n), 0) FROM k WHERE state = $6 AND NOT owned AND due_hour + interval '1 hour' <= $5::timestamptz AT TIME ZONE 'UTC')
-		         + (SELECT count(*) FROM x WHERE state = $6 AND NOT owned AND due_at >= $4::timestamp AT TIME ZONE 'UTC' AND due_at <= $5::timestamptz) AS new_due,
-		         (SELECT coalesce(sum(n), 0) FROM k WHERE state = $7 AND due_hour + interval '1 hour' <= $5::timestamptz AT TIME ZONE 'UTC')
-		         + (SELECT count(*) FROM x WHERE state = $7 AND due_at >= $4::timestamp AT TIME ZONE 'UTC' AND due_at <= $5::timestamptz) AS waiting_due)
+		         + (SELECT count(*) FROM x WHERE state = $6 AND NOT owned AND due_at >= $4::timestamp AT TIME ZONE 'UTC' AND due_at <= $5::timestamptz) AS new_due)
 		SELECT (SELECT coalesce(sum(n), 0) FROM k), upto.overdue, upto.today,
 		       (SELECT coalesce(sum(n), 0) FROM k WHERE state = $6 AND NOT owned) - upto.new_due,
-		       (SELECT coalesce(sum(n), 0) FROM k WHERE state = $7) - upto.waiting_due,
 		       (SELECT coalesce(sum(n), 0) FROM figure_unread_counts)
-		FROM upto`, working, hour(overdue), overdue, hour(today), today, open, waiting)
+		FROM upto`, working, hour(overdue), overdue, hour(today), today, open)
+	b.Queue(`SELECT count(*) FROM figure_waiting w JOIN cases c ON c.participant_id = w.participant_id AND c.id = w.case_id WHERE `+later, today)
+	b.Queue(`SELECT count(*) FROM cases c WHERE c.owner_id = $2 AND `+later+` AND NOT `+waits, today, me)
 	// Each group's first rows, in followup.Urgency's order (ties by study
 	// ID, then case id as text), each from an index in that order
-	// (migration 0042: cases carry their participant's study ID).
+	// (migration 0042: cases carry their participant's study ID) or from
+	// the few cases waiting for an over-read.
 	const tie = `c.study_id COLLATE "C", (c.id::text) COLLATE "C"`
 	full := `SELECT ` + caseCols + ` FROM ` + caseFrom
 	b.Queue(full+` WHERE c.closed_at IS NULL AND c.due_at <= $1 ORDER BY c.due_at, `+tie+` LIMIT $2`, overdue, limit)
 	b.Queue(full+` WHERE c.closed_at IS NULL AND c.due_at > $1 AND c.due_at <= $2 ORDER BY c.due_at, `+tie+` LIMIT $3`, overdue, today, limit)
-	b.Queue(full+` WHERE c.state = $1 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $2)
-		ORDER BY c.flagged_at, `+tie+` LIMIT $3`, open, today, limit)
+	b.Queue(full+` WHERE c.state = $2 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $1)
+		ORDER BY c.flagged_at, `+tie+` LIMIT $3`, today, open, limit)
 	// A recording that came in without its return being recorded dates the
-	// wait by its own arrival (triageItem); such cases are few and read
-	// whole, the others in order from the index.
-	b.Queue(full+` JOIN (
-		  (SELECT c.id, c.recording_back_at AS at FROM cases c
-		   WHERE c.state = $1 AND c.recording_back_at IS NOT NULL AND (c.due_at IS NULL OR c.due_at > $2)
-		   ORDER BY c.recording_back_at, `+tie+` LIMIT $3)
-		  UNION ALL
-		  (SELECT c.id, (SELECT min(r.created_at) FROM recordings r WHERE r.case_id = c.id
-		                  AND NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id))
-		   FROM cases c WHERE c.state = $1 AND c.recording_back_at IS NULL AND (c.due_at IS NULL OR c.due_at > $2))) w ON w.id = c.id
-		ORDER BY coalesce(w.at, '-infinity'), `+tie+` LIMIT $3`, waiting, today, limit)
-	var groups [4][]Case
-	var all, n1, n2, n3, n4, unread int
+	// wait by its own arrival (triageItem).
+	b.Queue(full+` JOIN figure_waiting w ON w.participant_id = c.participant_id AND w.case_id = c.id WHERE `+later+`
+		ORDER BY coalesce(c.recording_back_at, rec.oldest), `+tie+` LIMIT $2`, today, limit)
+	b.Queue(full+` WHERE c.owner_id = $2 AND `+later+` AND NOT `+waits+` ORDER BY c.due_at, `+tie+` LIMIT $3`, today, me, limit)
+	var groups [5][]Case
+	var all, n1, n2, n3, n4, n5, unread int
 	err = s.readBatch(ctx, b, func(br pgx.BatchResults) error {
-		if err := br.QueryRow().Scan(&all, &n1, &n2, &n3, &n4, &unread); err != nil {
+		if err := br.QueryRow().Scan(&all, &n1, &n2, &n3, &unread); err != nil {
+			return err
+		}
+		if err := br.QueryRow().Scan(&n4); err != nil {
+			return err
+		}
+		if err := br.QueryRow().Scan(&n5); err != nil {
 			return err
 		}
 		for i := range groups {
@@ -265,16 +284,19 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 	if err != nil {
 		return t, mapErr("triage", err)
 	}
+	if me == 0 {
+		n5, groups[4] = 0, nil
+	}
 	t.Counts = map[followup.Bucket]int{followup.BucketOverdue: n1, followup.BucketDueToday: n2 - n1,
-		followup.BucketNewUnowned: n3, followup.BucketAwaitingOverRead: n4}
-	t.Counts[followup.BucketOther] = all - n2 - n3 - n4
+		followup.BucketNewUnowned: n3, followup.BucketAwaitingOverRead: n4, followup.BucketMine: n5}
+	t.Counts[followup.BucketOther] = all - n2 - n3 - n4 - n5
 	for b, n := range t.Counts {
 		if n == 0 {
 			delete(t.Counts, b)
 		}
 	}
 	t.UnreadRecordings = unread
-	buckets := []followup.Bucket{followup.BucketOverdue, followup.BucketDueToday, followup.BucketNewUnowned, followup.BucketAwaitingOverRead}
+	buckets := []followup.Bucket{followup.BucketOverdue, followup.BucketDueToday, followup.BucketNewUnowned, followup.BucketAwaitingOverRead, followup.BucketMine}
 	for i, g := range groups {
 		for _, c := range g {
 			t.Rows = append(t.Rows, TriageRow{Case: c, Bucket: buckets[i]})
@@ -283,9 +305,10 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 	return t, nil
 }
 
-// TriageCase places one case (final or not) in the triage order, for updating
-// its row on the page after an action.
-func (s *Store) TriageCase(ctx context.Context, id int64) (Triage, error) {
+// TriageCase places one case (final or not) in the triage order of the
+// person with account id me, for updating its row on the page after an
+// action.
+func (s *Store) TriageCase(ctx context.Context, id, me int64) (Triage, error) {
 	c, err := s.Case(ctx, id)
 	if err != nil {
 		return Triage{}, err
@@ -295,7 +318,7 @@ func (s *Store) TriageCase(ctx context.Context, id int64) (Triage, error) {
 		return Triage{}, err
 	}
 	t := Triage{Settings: st, Now: s.now().In(st.Location()), UnreadRecordings: c.UnreadRecordings}
-	b := followup.Urgency(triageItem(c), t.Now).Bucket
+	b := followup.Urgency(triageItem(c, me), t.Now).Bucket
 	t.Rows = []TriageRow{{Case: c, Bucket: b}}
 	t.Counts = map[followup.Bucket]int{b: 1}
 	return t, nil
@@ -303,11 +326,12 @@ func (s *Store) TriageCase(ctx context.Context, id int64) (Triage, error) {
 
 // triageItem is the case as the triage order sees it. A recording that came
 // in without its return being recorded still dates the wait for an over-read.
-func triageItem(c Case) followup.TriageItem {
+func triageItem(c Case, me int64) followup.TriageItem {
 	received := c.RecordingBackAt
 	if received.IsZero() {
 		received = c.OldestUnread
 	}
 	return followup.TriageItem{CaseID: strconv.FormatInt(c.ID, 10), StudyID: c.StudyID, State: c.State, Owner: c.Owner,
-		FlaggedAt: c.FlaggedAt, RecordingReceivedAt: received, Due: c.DueAt}
+		FlaggedAt: c.FlaggedAt, RecordingReceivedAt: received, Due: c.DueAt, AwaitingReads: c.UnreadRecordings,
+		Mine: me != 0 && c.OwnerID == me}
 }

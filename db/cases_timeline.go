@@ -27,6 +27,7 @@ const (
 	EventAttempt   CaseEventKind = "attempt"   // a contact attempt
 	EventRecording CaseEventKind = "recording" // an ECG recording of the case
 	EventOverRead  CaseEventKind = "over_read" // a clinician's over-read
+	EventMessage   CaseEventKind = "message"   // a message the desk sent (outreach_messages.go)
 )
 
 // FieldChange is one field's old and new value as shown to people.
@@ -65,6 +66,7 @@ type CaseEvent struct {
 	Attempt   *Attempt
 	Recording *RecordingRef
 	OverRead  *OverReadRef
+	Message   *Message
 }
 
 // CaseTimeline lists everything that happened to a case, newest first: the
@@ -72,7 +74,7 @@ type CaseEvent struct {
 // contact attempts, the recordings and the over-reads.
 func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([]CaseEvent, error) {
 	var out []CaseEvent
-	// One round trip: the four reads are sent together.
+	// One round trip: the five reads are sent together.
 	b := &pgx.Batch{}
 	b.Queue(`
 			SELECT at, actor, action, old_value, new_value FROM audit_events
@@ -125,6 +127,13 @@ func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([
 			out = append(out, CaseEvent{At: at, Kind: EventOverRead, Actor: o.Reader, OverRead: &o})
 		}
 		return orows.Err()
+	})
+	b.Queue(`SELECT `+messageCols+` FROM `+messageFrom+` WHERE m.case_id = $1 ORDER BY m.id`, c.ID).Query(func(rows pgx.Rows) error {
+		ms, err := collectMessages(rows, nil)
+		for i := range ms {
+			out = append(out, CaseEvent{At: ms[i].CreatedAt, Kind: EventMessage, Actor: ms[i].Actor, Message: &ms[i]})
+		}
+		return err
 	})
 	err := s.readBatch(ctx, b, func(pgx.BatchResults) error { return nil })
 	if err != nil {
@@ -193,8 +202,8 @@ func snapshotChanges(oldRaw, newRaw []byte, loc *time.Location) []FieldChange {
 	add("tracking number", o.TrackingNumber, n.TrackingNumber)
 	add("recording back", day(o.RecordingBackAt), day(n.RecordingBackAt))
 	add("over-read", day(o.OverReadAt), day(n.OverReadAt))
-	add("closing reason", o.ClosingNote, n.ClosingNote)
-	add("working note", o.Note, n.Note)
+	addText("closing reason", o.ClosingNote, o.ClosingNoteRef, n.ClosingNote, n.ClosingNoteRef, add)
+	addText("working note", o.Note, o.NoteRef, n.Note, n.NoteRef, add)
 	if len(n.WeeksAdded) > 0 {
 		ws := make([]string, len(n.WeeksAdded))
 		for i, w := range n.WeeksAdded {
@@ -202,8 +211,44 @@ func snapshotChanges(oldRaw, newRaw []byte, loc *time.Location) []FieldChange {
 		}
 		out = append(out, FieldChange{"positive weeks added", "", strings.Join(ws, ", ")})
 	}
-	if n.Reason != "" && n.Reason != n.ClosingNote {
+	switch {
+	case n.Reason != "" && n.Reason != n.ClosingNote: // an event written before free text was kept by reference
 		out = append(out, FieldChange{"reason", "", n.Reason})
+	case n.ReasonRef != nil && (n.ClosingNoteRef == nil || n.ReasonRef.SHA256 != n.ClosingNoteRef.SHA256):
+		out = append(out, FieldChange{"reason", "", textGiven})
 	}
 	return out
+}
+
+// textGiven stands in the timeline for staff free text an event refers to:
+// the trail keeps no copy (textRef); the case page shows the current text.
+const textGiven = "(text given; the audit trail keeps no copy)"
+
+// textBefore stands for the text a field held before a change.
+const textBefore = "(earlier text)"
+
+// addText adds a change of a free-text field between two snapshots, each of
+// which holds the text (older events) or refers to it. The text is shown
+// where the event holds it; a change between references shows that the
+// text changed, not what it was.
+func addText(field, oldText string, oldRef *textRef, newText string, newRef *textRef, add func(field, before, after string)) {
+	digest := func(text string, ref *textRef) string {
+		switch {
+		case ref != nil:
+			return ref.SHA256
+		case text != "":
+			return textDigest(text)
+		}
+		return ""
+	}
+	if digest(oldText, oldRef) == digest(newText, newRef) {
+		return
+	}
+	shown := func(text string, ref *textRef, stand string) string {
+		if ref != nil {
+			return stand
+		}
+		return text
+	}
+	add(field, shown(oldText, oldRef, textBefore), shown(newText, newRef, textGiven))
 }

@@ -41,6 +41,7 @@ type keptPerson struct {
 	withdrawn *time.Time
 	flags     map[int]verdictFlags // by protocol version
 	episodes  []cascade.Episode    // every version's cases, in case order
+	notNeeded map[int64]bool       // recordings marked as needing no over-read
 }
 
 // verdictFlags are a participant's screening results under one version.
@@ -61,7 +62,7 @@ func keptQueries(b *pgx.Batch, cond string, args ...any) {
 		FROM screen_results WHERE `+w("participant_id")+` GROUP BY 1, 2`, args...)
 	b.Queue(`SELECT id, participant_id, protocol_id, state, flagged_at, reached_at, closed_at
 		FROM cases WHERE `+w("participant_id")+` ORDER BY id`, args...)
-	b.Queue(`SELECT id, case_id, participant_id, auto_interpretation, too_short
+	b.Queue(`SELECT id, case_id, participant_id, auto_interpretation, too_short, read_not_needed_at IS NOT NULL
 		FROM recordings WHERE `+w("participant_id")+` ORDER BY taken_at, id`, args...)
 	b.Queue(`SELECT id, recording_id, role, rhythm, confidence, coalesce(reader_id, 0), reader, read_on, comment, created_by, created_at
 		FROM over_reads WHERE `+w("participant_id")+` ORDER BY recording_id, id`, args...)
@@ -84,7 +85,7 @@ func readKept(br pgx.BatchResults) ([]*keptPerson, *time.Location, error) {
 		return nil, nil, err
 	}
 	for rows.Next() {
-		p := &keptPerson{flags: map[int]verdictFlags{}}
+		p := &keptPerson{flags: map[int]verdictFlags{}, notNeeded: map[int64]bool{}}
 		var sex string
 		var age *int16
 		var enrolled time.Time
@@ -158,11 +159,15 @@ func readKept(br pgx.BatchResults) ([]*keptPerson, *time.Location, error) {
 		var x recAt
 		var pid int64
 		var auto string
-		if err := rows.Scan(&x.rec.ID, &x.caseID, &pid, &auto, &x.rec.TooShort); err != nil {
+		var notNeeded bool
+		if err := rows.Scan(&x.rec.ID, &x.caseID, &pid, &auto, &x.rec.TooShort, &notNeeded); err != nil {
 			rows.Close()
 			return nil, nil, err
 		}
 		x.rec.Auto = overread.Auto(auto)
+		if p := byID[pid]; p != nil && notNeeded {
+			p.notNeeded[x.rec.ID] = true
+		}
 		recs = append(recs, x)
 	}
 	if err := rows.Err(); err != nil {
@@ -204,6 +209,9 @@ type keptRows struct {
 	rEnrolled, rAuto, rRhythm       []string
 	uPID                            []int64
 	uUnread                         []int32
+	// figure_waiting
+	wPID, wCase []int64
+	wN          []int32
 }
 
 // compute applies the rules of cohort/cascade to each participant's rows.
@@ -242,16 +250,19 @@ func (k *keptRows) compute(people []*keptPerson, loc *time.Location) {
 			k.eEnrolled, k.eSex, k.eBand = append(k.eEnrolled, enrolled), append(k.eSex, string(p.sex)), append(k.eBand, band)
 			k.eStage, k.eSettled, k.eUninterp = append(k.eStage, int32(f.Stage)), append(k.eSettled, f.Settled), append(k.eUninterp, f.Uninterpretable)
 			k.eFlag, k.eEv, k.eClos, k.eDays = append(k.eFlag, f.FlagDay.String()), append(k.eEv, f.Event), append(k.eClos, f.Closed), append(k.eDays, int32(f.Days))
+			waiting := 0
 			for _, r := range e.Recordings {
-				if !e.ClosedAt.IsZero() || e.State.Terminal() {
-					// a case that ended waits for nobody
-				} else if r.Conclusion.Status == overread.Unread {
-					unread++
+				if overread.Awaits(r.Conclusion, !e.ClosedAt.IsZero() || e.State.Terminal(), p.notNeeded[r.ID]) {
+					waiting++
 				}
 				if a, b, ok := r.KappaCell(); ok {
 					k.rPID, k.rRec, k.rProto, k.rSite = append(k.rPID, p.id), append(k.rRec, r.ID), append(k.rProto, int32(e.ProtocolID)), append(k.rSite, int32(p.siteID))
 					k.rEnrolled, k.rAuto, k.rRhythm = append(k.rEnrolled, enrolled), append(k.rAuto, string(a)), append(k.rRhythm, string(b))
 				}
+			}
+			if waiting > 0 {
+				unread += waiting
+				k.wPID, k.wCase, k.wN = append(k.wPID, p.id), append(k.wCase, e.CaseID), append(k.wN, int32(waiting))
 			}
 		}
 		if unread > 0 {
@@ -263,7 +274,7 @@ func (k *keptRows) compute(people []*keptPerson, loc *time.Location) {
 // queueWrites replaces the figure rows of the participants in ids (deleted
 // first: the ledgers' triggers subtract the old rows and add the new).
 func (k *keptRows) queueWrites(b *pgx.Batch, del string, args ...any) {
-	for _, t := range []string{"figure_standings", "figure_episodes", "figure_recordings", "figure_people"} {
+	for _, t := range []string{"figure_standings", "figure_episodes", "figure_recordings", "figure_people", "figure_waiting"} {
 		if del != "" {
 			b.Queue(`DELETE FROM `+t+` WHERE `+fmt.Sprintf(del, "participant_id"), args...)
 		}
@@ -293,6 +304,9 @@ func (k *keptRows) queueWrites(b *pgx.Batch, del string, args ...any) {
 	}
 	if len(k.uPID) > 0 {
 		b.Queue(`INSERT INTO figure_people (participant_id, unread_recordings) SELECT * FROM unnest($1::bigint[], $2::int[])`, k.uPID, k.uUnread)
+	}
+	if len(k.wPID) > 0 {
+		b.Queue(`INSERT INTO figure_waiting (participant_id, case_id, recordings) SELECT * FROM unnest($1::bigint[], $2::bigint[], $3::int[])`, k.wPID, k.wCase, k.wN)
 	}
 }
 
@@ -408,9 +422,14 @@ const rebuildBatch = 20000
 // tables (enrolment, cases, activity) are not touched.
 func (s *Store) RebuildFigures(ctx context.Context) error {
 	err := pgx.BeginFunc(ctx, s.pool, func(tx pgx.Tx) error {
-		if _, err := tx.Exec(ctx, `TRUNCATE figure_standings, figure_episodes, figure_recordings, figure_people,
-			figure_box_counts, figure_week_counts, figure_stage_counts, figure_time_counts, figure_kappa_counts, figure_unread_counts`); err != nil {
-			return err
+		// DELETE, not TRUNCATE: the application's database role may not
+		// truncate (db/roles.go). The per-participant rows go first; their
+		// ledger triggers' rows go with the ledgers after them.
+		for _, t := range []string{"figure_standings", "figure_episodes", "figure_recordings", "figure_people", "figure_waiting",
+			"figure_box_counts", "figure_week_counts", "figure_stage_counts", "figure_time_counts", "figure_kappa_counts", "figure_unread_counts"} {
+			if _, err := tx.Exec(ctx, `DELETE FROM `+t); err != nil {
+				return err
+			}
 		}
 		if _, err := tx.Exec(ctx, `DELETE FROM figures_dirty`); err != nil {
 			return err

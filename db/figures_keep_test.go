@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"maps"
 	"math/rand/v2"
 	"reflect"
 	"slices"
@@ -18,7 +19,9 @@ import (
 	"cohortdesk/cohort/credential"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/outreach"
 	"cohortdesk/cohort/overread"
+	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
 )
@@ -132,22 +135,36 @@ func compareKept(t *testing.T, s *db.Store, now func() time.Time, label string) 
 	if !reflect.DeepEqual(counts, rcounts) {
 		fail("start page counts %+v, recount %+v", counts, rcounts)
 	}
-	for _, per := range []int{0, 3} {
-		tr, err := s.Triage(ctx, per)
-		if err != nil {
-			t.Fatal(err)
-		}
-		rtr, err := s.RecountTriage(ctx, per)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if !reflect.DeepEqual(tr.Counts, rtr.Counts) || tr.UnreadRecordings != rtr.UnreadRecordings || len(tr.Rows) != len(rtr.Rows) {
-			fail("triage (%d a group): counts %v unread %d rows %d, recount %v %d %d", per, tr.Counts, tr.UnreadRecordings, len(tr.Rows), rtr.Counts, rtr.UnreadRecordings, len(rtr.Rows))
-			continue
-		}
-		for i := range tr.Rows {
-			if tr.Rows[i].ID != rtr.Rows[i].ID || tr.Rows[i].Bucket != rtr.Rows[i].Bucket {
-				fail("triage (%d a group) row %d: case %d in %v, recount case %d in %v", per, i, tr.Rows[i].ID, tr.Rows[i].Bucket, rtr.Rows[i].ID, rtr.Rows[i].Bucket)
+	// Triage for nobody in particular and for the people who own most
+	// cases (their own cases have a group of their own).
+	owners := []int64{0}
+	orows, err := s.Pool().Query(ctx, `SELECT owner_id FROM cases WHERE owner_id IS NOT NULL AND closed_at IS NULL GROUP BY 1 ORDER BY count(*) DESC, 1 LIMIT 2`)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for orows.Next() {
+		var id int64
+		orows.Scan(&id)
+		owners = append(owners, id)
+	}
+	for _, me := range owners {
+		for _, per := range []int{0, 3} {
+			tr, err := s.Triage(ctx, per, me)
+			if err != nil {
+				t.Fatal(err)
+			}
+			rtr, err := s.RecountTriage(ctx, per, me)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !reflect.DeepEqual(tr.Counts, rtr.Counts) || tr.UnreadRecordings != rtr.UnreadRecordings || len(tr.Rows) != len(rtr.Rows) {
+				fail("triage for %d (%d a group): counts %v unread %d rows %d, recount %v %d %d", me, per, tr.Counts, tr.UnreadRecordings, len(tr.Rows), rtr.Counts, rtr.UnreadRecordings, len(rtr.Rows))
+				continue
+			}
+			for i := range tr.Rows {
+				if tr.Rows[i].ID != rtr.Rows[i].ID || tr.Rows[i].Bucket != rtr.Rows[i].Bucket {
+					fail("triage for %d (%d a group) row %d: case %d in %v, recount case %d in %v", me, per, i, tr.Rows[i].ID, tr.Rows[i].Bucket, rtr.Rows[i].ID, rtr.Rows[i].Bucket)
+				}
 			}
 		}
 	}
@@ -186,22 +203,18 @@ func compareKept(t *testing.T, s *db.Store, now func() time.Time, label string) 
 		}
 		return n
 	}
-	for _, pf := range []db.ParticipantFilter{{}, {Status: "active"}, {Status: "withdrawn"}, {SiteID: sites[0].ID}} {
+	for _, pf := range []db.ParticipantFilter{{}, {Status: cohort.StatusActive}, {Status: cohort.StatusCompleted}, {Status: cohort.StatusWithdrawn},
+		{SiteID: sites[0].ID}, {SiteID: sites[0].ID, Status: cohort.StatusActive}} {
 		page, err := s.Participants(ctx, pf)
 		if err != nil {
 			t.Fatal(err)
 		}
-		where := "true"
-		switch {
-		case pf.Status == "active":
-			where = "withdrawn_on IS NULL"
-		case pf.Status == "withdrawn":
-			where = "withdrawn_on IS NOT NULL"
-		case pf.SiteID > 0:
-			where = fmt.Sprintf("site_id = %d", pf.SiteID)
+		status, total, err := s.RecountParticipants(ctx, pf)
+		if err != nil {
+			t.Fatal(err)
 		}
-		if want := count("SELECT count(*) FROM participants WHERE " + where); page.Total != want {
-			fail("participants %+v: total %d, counted %d", pf, page.Total, want)
+		if page.Total != total || !maps.Equal(page.Status, status) {
+			fail("participants %+v: total %d by status %v, recount %d %v", pf, page.Total, page.Status, total, status)
 		}
 	}
 	for _, cf := range []db.CaseFilter{{}, {Scope: db.EndedCases}, {Scope: db.AllCases}, {State: followup.Open}, {Unowned: true}, {Overdue: true}} {
@@ -255,13 +268,15 @@ type randomStudy struct {
 	inv2  cohort.Actor
 	cases []int64
 	v2    int
+	mu    sync.Mutex
+	paths map[string]int // how often each of main's write paths succeeded
 }
 
 func newRandomStudy(t *testing.T, seed uint64, n int) *randomStudy {
 	t.Helper()
 	ctx := context.Background()
 	f := newCaseFixture(t, n)
-	r := &randomStudy{caseFixture: f, rng: rand.New(rand.NewPCG(seed, 7))}
+	r := &randomStudy{caseFixture: f, rng: rand.New(rand.NewPCG(seed, 7)), paths: map[string]int{}}
 	u, err := f.s.CreateUser(ctx, cohort.System, db.NewUser{Email: "second@example.org", Name: "Second reader", Role: cohort.Investigator, PasswordHash: "x"})
 	if err != nil {
 		t.Fatal(err)
@@ -271,6 +286,15 @@ func newRandomStudy(t *testing.T, seed uint64, n int) *randomStudy {
 		sex = (ARRAY['F','M','U'])[1 + id % 3], age_at_enrolment = CASE WHEN id % 5 = 0 THEN NULL ELSE 40 + (id * 13) % 50 END,
 		site_id = 1 + (id * 31 % 7) % 2`)
 	mustExec(t, f.s, `UPDATE participants SET withdrawn_on = enrolled_on + (id % 60)::int, withdrawal_reason = 'moved away' WHERE id % 9 = 0`)
+	// What messages to participants need: contact details on file, the
+	// study's contact route and the default templates.
+	mustExec(t, f.s, `INSERT INTO participant_identity (participant_id, given_name, family_name, email, street, city, zip)
+		SELECT id, 'Wren' || id, 'Alderby', lower(study_id) || '@example.org', id || ' Mill Lane', 'Riverside', '55501' FROM participants`)
+	mustExec(t, f.s, `INSERT INTO study (id, name, time_zone, contact_route) VALUES (1, 'Random study', 'UTC', 'call 555-0100 on working days')
+		ON CONFLICT (id) DO UPDATE SET contact_route = excluded.contact_route`)
+	if err := f.s.EnsureDefaultTemplates(ctx); err != nil {
+		t.Fatal(err)
+	}
 	if err := f.s.Pool().QueryRow(ctx, `INSERT INTO protocols (name, version, params) VALUES ('standard', 2, '{}') RETURNING id`).Scan(&r.v2); err != nil {
 		t.Fatal(err)
 	}
@@ -318,7 +342,12 @@ func expected(err error) bool {
 	return err == nil || errors.As(err, &ve) || errors.As(err, &ce) || errors.Is(err, cohort.ErrConflict)
 }
 
-// step takes case id one random step further along follow-up.
+// step takes case id one random step further along follow-up, by every
+// path that changes what the kept figures count: contact attempts and
+// messages queued with their attempt, closing, the recorder, recordings
+// short and long, readings that agree, disagree and are adjudicated,
+// readings amended and withdrawn by their reader, recordings marked as
+// needing no over-read, and referral summaries issued and signed off.
 func (r *randomStudy) step(ctx context.Context, rng *rand.Rand, id int64) error {
 	c, err := r.s.Case(ctx, id)
 	if err != nil {
@@ -330,9 +359,15 @@ func (r *randomStudy) step(ctx context.Context, rng *rand.Rand, id int64) error 
 	now := r.clock.now()
 	switch c.State {
 	case followup.Open, followup.Contacting:
-		switch rng.IntN(5) {
-		case 0, 1:
+		switch rng.IntN(6) {
+		case 0:
 			_, err = r.s.LogAttempt(ctx, r.coord, id, db.AttemptInput{Version: c.Version, Channel: "phone", Outcome: "no_answer"})
+		case 1:
+			purpose := []outreach.Purpose{outreach.PurposeFirstContact, outreach.PurposeReminder}[rng.IntN(2)]
+			channel := []followup.Channel{followup.ChannelEmail, followup.ChannelLetter}[rng.IntN(2)]
+			if _, err = r.s.QueueMessage(ctx, r.coord, id, db.MessageInput{Version: c.Version, Purpose: purpose, Channel: channel}); err == nil {
+				r.did("message")
+			}
 		case 2:
 			_, err = r.s.CloseCase(ctx, r.coord, id, db.MoveInput{Version: c.Version, To: followup.ClosedUnreachable, Reason: "no answer"})
 		default:
@@ -349,13 +384,34 @@ func (r *randomStudy) step(ctx context.Context, rng *rand.Rand, id int64) error 
 		if err != nil {
 			return err
 		}
-		var unread *db.Recording
+		var unread, read *db.Recording
 		for i := range recs {
-			if len(recs[i].Readings) < 3 && rng.IntN(2) == 0 {
+			if len(recs[i].Readings) < 3 && recs[i].NotNeeded == "" && rng.IntN(2) == 0 {
 				unread = &recs[i]
+			}
+			if len(recs[i].Readings) > 0 {
+				read = &recs[i]
 			}
 		}
 		switch {
+		case read != nil && rng.IntN(6) == 0:
+			// The reader of one reading corrects it.
+			o := read.Readings[rng.IntN(len(read.Readings))]
+			by := r.inv
+			if o.ReaderID == r.inv2.UserID {
+				by = r.inv2
+			}
+			in := db.RevisionInput{Role: o.Role, Change: overread.Withdrawn, Reason: "entered on the wrong recording"}
+			if rng.IntN(2) == 0 {
+				in.Change, in.Rhythm, in.Confidence, in.Reason = overread.Amended, []overread.Rhythm{overread.AF, overread.Sinus}[rng.IntN(2)], "probable", "looked again"
+			}
+			if _, err = r.s.ReviseOverRead(ctx, by, read.ID, in); err == nil {
+				r.did(string(in.Change))
+			}
+		case unread != nil && len(unread.Readings) == 0 && rng.IntN(8) == 0:
+			if err = r.s.MarkReadNotNeeded(ctx, r.inv, unread.ID, "a repeat recording replaced it"); err == nil {
+				r.did("not needed")
+			}
 		case unread != nil:
 			reader, role := r.inv, overread.Role("")
 			if len(unread.Readings) == 1 {
@@ -368,16 +424,44 @@ func (r *randomStudy) step(ctx context.Context, rng *rand.Rand, id int64) error 
 			_, err = r.s.AddOverRead(ctx, reader, unread.ID, db.OverReadInput{Role: role, Rhythm: rhythm, Confidence: "certain", ReaderID: reader.UserID, ReadOn: cohort.DateOf(now)})
 		case len(recs) < 2:
 			dur := []float64{45, 45, 20}[rng.IntN(3)]
-			auto := []overread.Auto{"af", "sinus", "none", "unclassified", "unreadable"}[rng.IntN(5)]
-			_, err = r.s.AddRecording(ctx, r.coord, id, ecg.RecordingInput{TakenAt: now.Add(-time.Hour), DurationS: dur, Auto: auto})
+			autos := overread.Autos()
+			_, err = r.s.AddRecording(ctx, r.coord, id, ecg.RecordingInput{TakenAt: now.Add(-time.Hour), DurationS: dur, Auto: autos[rng.IntN(len(autos))]})
 		case c.State == followup.OverRead && rng.IntN(2) == 0:
-			_, err = r.s.AdvanceCase(ctx, r.coord, id, followup.Referred, time.Time{}, "summary sent")
+			// A summary issued, then signed off by the investigator: the
+			// case is referred.
+			var ref db.Referral
+			if ref, err = r.issue(ctx, c); err == nil {
+				if _, err = r.s.SignOffReferral(ctx, r.inv, ref.ID, fakeDraw); err == nil {
+					r.did("signed off")
+				}
+			}
 		default:
 			_, err = r.s.CloseCase(ctx, r.coord, id, db.MoveInput{Version: c.Version, To: followup.ClosedNotConfirmed, Reason: "not confirmed"})
 		}
 		return err
 	}
 	return err
+}
+
+// issue issues case c's referral summary as a coordinator would.
+func (r *randomStudy) issue(ctx context.Context, c db.Case) (db.Referral, error) {
+	b, err := r.s.ReferralSource(ctx, c.ParticipantID, c.ID)
+	if err != nil {
+		return db.Referral{}, err
+	}
+	b.Source.IssuedAt, b.Source.Cautions = r.clock.now(), []string{"Screening is not diagnosis."}
+	sum, err := referral.Build(b.Source, referralSecret)
+	if err != nil {
+		return db.Referral{}, err
+	}
+	return r.s.IssueReferral(ctx, r.coord, db.ReferralIssue{Basis: b, Summary: sum, Format: "pdf", Paper: "a4", PDFSHA256: strings.Repeat("ab", 32)})
+}
+
+// did counts a path the walk took, so a test can show it took each.
+func (r *randomStudy) did(path string) {
+	r.mu.Lock()
+	r.paths[path]++
+	r.mu.Unlock()
 }
 
 // walk takes every case several random steps, a day apart.
@@ -399,8 +483,15 @@ func (r *randomStudy) walk(t *testing.T, rounds int) {
 // day with it) and a participant's site and enrolment change.
 func TestKeptFiguresOnARandomStudy(t *testing.T) {
 	r := newRandomStudy(t, 3, 90)
-	r.walk(t, 6)
+	r.walk(t, 8)
 	compareKept(t, r.s, r.clock.now, "random study")
+	// The walk took every write path that came with outreach, corrections
+	// and sign-off, so the comparison covered them.
+	for _, p := range []string{"message", string(overread.Amended), string(overread.Withdrawn), "not needed", "signed off"} {
+		if r.paths[p] == 0 {
+			t.Errorf("the walk never took the %q path (took %v)", p, r.paths)
+		}
+	}
 	saveSettings(t, r.s, func(st *db.StudySettings) { st.TimeZone = "Pacific/Auckland" })
 	mustExec(t, r.s, `UPDATE participants SET site_id = 3 - site_id, enrolled_on = enrolled_on - 3 WHERE id IN (SELECT participant_id FROM cases ORDER BY id LIMIT 5)`)
 	compareKept(t, r.s, r.clock.now, "random study, moved")

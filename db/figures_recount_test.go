@@ -12,6 +12,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
+	"cohortdesk/cohort/enrolment"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 
@@ -162,85 +163,41 @@ func (s *Store) RecountFigures(ctx context.Context, f cascade.Filter) (cascade.C
 	return rows.Cascade(f), a, nil
 }
 
-// Enrolment reads every site's enrolment counts as they stood at the end of
-// the day asOf: participants enrolled later are left out, and withdrawals
-// after it do not count. A zero asOf, or one after today (in the study's
-// time zone), is today.
-func (s *Store) RecountEnrolment(ctx context.Context, asOf cohort.Date) (EnrolmentHistory, error) {
+// RecountEnrolment is Enrolment from every participant's row, each counted
+// once by enrolment.Tally.
+func (s *Store) RecountEnrolment(ctx context.Context, asOf cohort.Date) (enrolment.History, error) {
 	today, err := s.studyToday(ctx)
 	if err != nil {
-		return EnrolmentHistory{}, err
+		return enrolment.History{}, err
 	}
 	if asOf.IsZero() || today.Before(asOf) {
 		asOf = today
 	}
-	today = asOf
-	h := EnrolmentHistory{Today: today}
 	sites, err := s.Sites(ctx)
 	if err != nil {
-		return h, err
+		return enrolment.History{}, err
 	}
 	rows, err := s.pool.Query(ctx, `
 		SELECT site_id, enrolled_on, withdrawn_on IS NOT NULL AND withdrawn_on <= $1::date
-		FROM participants WHERE enrolled_on <= $1::date ORDER BY enrolled_on`, today.String())
+		FROM participants WHERE enrolled_on <= $1::date ORDER BY enrolled_on`, asOf.String())
 	if err != nil {
-		return h, mapErr("enrolment", err)
+		return enrolment.History{}, mapErr("enrolment", err)
 	}
-	type rec struct {
-		site      int
-		on        cohort.Date
-		withdrawn bool
-	}
-	var recs []rec
-	for rows.Next() {
-		var r rec
+	people, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (enrolment.Enrolled, error) {
+		var e enrolment.Enrolled
 		var on time.Time
-		if err := rows.Scan(&r.site, &on, &r.withdrawn); err != nil {
-			rows.Close()
-			return h, mapErr("enrolment", err)
-		}
-		r.on = cohort.DateOf(on)
-		recs = append(recs, r)
+		err := r.Scan(&e.Site, &on, &e.Withdrawn)
+		e.On = cohort.DateOf(on)
+		return e, err
+	})
+	if err != nil {
+		return enrolment.History{}, mapErr("enrolment", err)
 	}
-	if err := rows.Err(); err != nil {
-		return h, mapErr("enrolment", err)
-	}
-	first := today.Monday()
-	if len(recs) > 0 && recs[0].on.Before(first) {
-		first = recs[0].on.Monday()
-	}
-	if len(recs) > 0 {
-		h.Periods = min(TrailingWeeks, today.DaysSince(recs[0].on)/7+1)
-	}
-	for d := first; !today.Before(d); d = d.AddDays(7) {
-		h.Weeks = append(h.Weeks, d)
-	}
-	idx := map[int]int{}
+	targets := make([]enrolment.Site, len(sites))
 	for i, st := range sites {
-		idx[st.ID] = i
-		h.Sites = append(h.Sites, SiteEnrolment{SiteID: st.ID, Code: st.Code, Name: st.Name, Target: st.Target,
-			Weekly: make([]int, len(h.Weeks)), Trailing: make([]int, TrailingWeeks)})
+		targets[i] = enrolment.Site{ID: st.ID, Code: st.Code, Name: st.Name, Target: st.Target}
 	}
-	for _, r := range recs {
-		i, ok := idx[r.site]
-		if !ok {
-			continue
-		}
-		se := &h.Sites[i]
-		se.Enrolled++
-		if r.withdrawn {
-			se.Withdrawn++
-		}
-		if w := r.on.Monday().DaysSince(first) / 7; w >= 0 && w < len(se.Weekly) {
-			se.Weekly[w]++
-		}
-		// Days 0..6 before today fall in the last period, 7..13 in the one
-		// before, and so on.
-		if back := today.DaysSince(r.on) / 7; back >= 0 && back < TrailingWeeks {
-			se.Trailing[TrailingWeeks-1-back]++
-		}
-	}
-	return h, nil
+	return enrolment.Tally(asOf, targets, people), nil
 }
 
 // DataSufficiency counts, per calendar week, complete participant-weeks and
@@ -329,7 +286,7 @@ func (s *Store) RecountSilent(ctx context.Context, days int) ([]SilentParticipan
 	var out []SilentParticipant
 	err := s.recountTx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `
-			SELECT p.id, p.study_id, st.code, last.ms, p.enrolled_on
+			SELECT p.id, p.study_id, st.code, last.ms, p.enrolled_on, p.time_zone
 			FROM participants p JOIN sites st ON st.id = p.site_id
 			LEFT JOIN LATERAL (SELECT max(last_ms) AS ms FROM wear_weeks w WHERE w.participant_id = p.id) last ON true
 			WHERE p.withdrawn_on IS NULL
@@ -345,9 +302,10 @@ func (s *Store) RecountSilent(ctx context.Context, days int) ([]SilentParticipan
 			var sp SilentParticipant
 			var ms *int64
 			var enrolled time.Time
-			if err := rows.Scan(&sp.ID, &sp.StudyID, &sp.SiteCode, &ms, &enrolled); err != nil {
+			if err := rows.Scan(&sp.ID, &sp.StudyID, &sp.SiteCode, &ms, &enrolled, &sp.TimeZone); err != nil {
 				return err
 			}
+			sp.EnrolledOn = cohort.DateOf(enrolled)
 			since := enrolled
 			if ms != nil {
 				t := time.UnixMilli(*ms).UTC()
@@ -361,16 +319,21 @@ func (s *Store) RecountSilent(ctx context.Context, days int) ([]SilentParticipan
 	return out, mapErr("silent participants", err)
 }
 
-// Counts reads the headline figures.
+// RecountCounts is Counts from every row: participants by status, sites,
+// recordings waiting for an over-read and cases by state.
 func (s *Store) RecountCounts(ctx context.Context) (Counts, error) {
 	var c Counts
-	err := s.pool.QueryRow(ctx, `
-		SELECT (SELECT count(*) FROM participants),
-		       (SELECT count(*) FROM participants WHERE withdrawn_on IS NULL),
-		       (SELECT count(*) FROM sites),
-		       (SELECT count(*) FROM participants WHERE withdrawn_on IS NOT NULL)`).
-		Scan(&c.Participants, &c.Active, &c.Sites, &c.Withdrawn)
+	today, weeks, err := s.statusDay(ctx)
 	if err != nil {
+		return c, mapErr("counts", err)
+	}
+	if c.Status, c.Participants, err = participantsByStatus(ctx, s.pool, "true", nil, today, weeks); err != nil {
+		return c, mapErr("counts", err)
+	}
+	if err := s.pool.QueryRow(ctx, `SELECT count(*) FROM sites`).Scan(&c.Sites); err != nil {
+		return c, mapErr("counts", err)
+	}
+	if c.AwaitingRead, err = countAwaitingRead(ctx, s.pool); err != nil {
 		return c, mapErr("counts", err)
 	}
 	rows, err := s.pool.Query(ctx, `SELECT state, count(*) FROM cases GROUP BY state`)
@@ -400,7 +363,7 @@ func (s *Store) RecountCounts(ctx context.Context) (Counts, error) {
 // cases and the full rows only for the cases returned: at 2,000 working cases
 // this halves the time of the page. The reads need no common snapshot (a case
 // changed in between shows as it now is), so they run outside a transaction.
-func (s *Store) RecountTriage(ctx context.Context, perGroup int) (Triage, error) {
+func (s *Store) RecountTriage(ctx context.Context, perGroup int, me int64) (Triage, error) {
 	var t Triage
 	var items []followup.TriageItem
 	err := func() error {
@@ -409,7 +372,7 @@ func (s *Store) RecountTriage(ctx context.Context, perGroup int) (Triage, error)
 			return err
 		}
 		rows, err := s.pool.Query(ctx, `
-			SELECT c.id, p.study_id, c.state, coalesce(u.display_name, ''), c.flagged_at, c.due_at,
+			SELECT c.id, p.study_id, c.state, coalesce(u.display_name, ''), coalesce(c.owner_id, 0), c.flagged_at, c.due_at,
 			       coalesce(c.recording_back_at, rec.oldest), coalesce(rec.n, 0)
 			FROM `+caseFrom+` WHERE c.closed_at IS NULL`)
 		if err != nil {
@@ -417,15 +380,16 @@ func (s *Store) RecountTriage(ctx context.Context, perGroup int) (Triage, error)
 		}
 		defer rows.Close()
 		for rows.Next() {
-			var id int64
+			var id, owner int64
 			var it followup.TriageItem
 			var state string
 			var due, received pgtype.Timestamptz
 			var n int
-			if err := rows.Scan(&id, &it.StudyID, &state, &it.Owner, &it.FlaggedAt, &due, &received, &n); err != nil {
+			if err := rows.Scan(&id, &it.StudyID, &state, &it.Owner, &owner, &it.FlaggedAt, &due, &received, &n); err != nil {
 				return err
 			}
 			it.CaseID, it.State, it.Due, it.RecordingReceivedAt = strconv.FormatInt(id, 10), followup.State(state), due.Time, received.Time
+			it.AwaitingReads, it.Mine = n, me != 0 && owner == me
 			items = append(items, it)
 			t.UnreadRecordings += n
 		}
@@ -468,4 +432,15 @@ func (s *Store) RecountTriage(ctx context.Context, perGroup int) (Triage, error)
 		}
 	}
 	return t, nil
+}
+
+// RecountParticipants counts the participants list's filter by status from
+// every participant row, as the list did before the counts were kept.
+func (s *Store) RecountParticipants(ctx context.Context, f ParticipantFilter) (map[cohort.ParticipantStatus]int64, int64, error) {
+	day, weeks, err := s.statusDay(ctx)
+	if err != nil {
+		return nil, 0, err
+	}
+	where, args := f.where(s.now().UTC(), day, weeks)
+	return participantsByStatus(ctx, s.pool, where, args, day, weeks)
 }

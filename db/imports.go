@@ -62,6 +62,9 @@ type ImportOptions struct {
 	// otherwise queues for the participants whose data changed (the demo
 	// loader screens at once instead).
 	NoScreening bool
+	// ID continues an import that BeginImport recorded while its file was
+	// being received; zero records a new one.
+	ID int64
 }
 
 // ReasonCount is how many rows were refused for one reason, with the first
@@ -153,7 +156,12 @@ func (s *Store) ImportReadings(ctx context.Context, a cohort.Actor, r io.Reader,
 	if a.UserID != 0 {
 		actorID = &a.UserID
 	}
-	if err := s.pool.QueryRow(ctx, `INSERT INTO imports (kind, file_name, file_sha256, size_bytes, actor_id, actor, started_at, heartbeat_at)
+	if o.ID != 0 {
+		rep.ID = o.ID
+		if _, err := s.pool.Exec(ctx, `UPDATE imports SET size_bytes = $2, bytes_read = 0, heartbeat_at = now() WHERE id = $1`, o.ID, o.Size); err != nil {
+			return rep, mapErr("import start", err)
+		}
+	} else if err := s.pool.QueryRow(ctx, `INSERT INTO imports (kind, file_name, file_sha256, size_bytes, actor_id, actor, started_at, heartbeat_at)
 		VALUES ($1, $2, '', $3, $4, $5, $6, $6) RETURNING id`, o.Kind, o.FileName, o.Size, actorID, rep.Actor, rep.StartedAt).Scan(&rep.ID); err != nil {
 		return rep, mapErr("import start", err)
 	}

@@ -171,30 +171,35 @@ func (s *Store) ParticipantByStudyID(ctx context.Context, studyID string) (Parti
 // the view in the audit trail. This is the only reader of participant_identity
 // for display; refusing other roles here keeps the rule in one place.
 func (s *Store) Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (Identity, error) {
+	var id Identity
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var err error
+		id, err = identityIn(ctx, tx, a, participantID, purpose)
+		return err
+	})
+	return id, mapErr("identity", err)
+}
+
+// identityIn is Identity inside the caller's transaction, for a change that
+// uses the details (a message made out to the participant): the role check
+// and the audited view are the same.
+func identityIn(ctx context.Context, tx pgx.Tx, a cohort.Actor, participantID int64, purpose string) (Identity, error) {
 	if !a.Role.SeesPHI() {
 		return Identity{}, fmt.Errorf("db: identity: role %s: %w", a.Role, cohort.ErrForbidden)
 	}
 	var id Identity
-	args, err := auditArgs(ctx, a, "participant.view_phi", "participant", strconv.FormatInt(participantID, 10), nil, map[string]string{"purpose": purpose})
-	if err != nil {
-		return id, err
-	}
-	// The read and its audit event in one statement: both happen or neither.
 	var birth *time.Time
-	var found bool
-	err = s.pool.QueryRow(ctx, `WITH ev AS (`+auditInsert+` RETURNING 1)
-		SELECT pi.participant_id IS NOT NULL, coalesce(pi.given_name, ''), coalesce(pi.family_name, ''), pi.birth_date, coalesce(pi.phone, ''),
-		       coalesce(pi.email, ''), coalesce(pi.street, ''), coalesce(pi.city, ''), coalesce(pi.zip, ''), coalesce(pi.device_serial, '')
-		FROM ev LEFT JOIN participant_identity pi ON pi.participant_id = $11`, append(args, participantID)...).
-		Scan(&found, &id.GivenName, &id.FamilyName, &birth, &id.Phone, &id.Email, &id.Street, &id.City, &id.ZIP, &id.DeviceSerial)
-	if err != nil {
-		return Identity{}, mapErr("identity", err)
+	err := tx.QueryRow(ctx, `SELECT given_name, family_name, birth_date, phone, email, street, city, zip, device_serial
+		FROM participant_identity WHERE participant_id = $1`, participantID).
+		Scan(&id.GivenName, &id.FamilyName, &birth, &id.Phone, &id.Email, &id.Street, &id.City, &id.ZIP, &id.DeviceSerial)
+	if err != nil && err != pgx.ErrNoRows {
+		return id, err
 	}
 	if birth != nil {
 		d := cohort.DateOf(*birth)
 		id.BirthDate = &d
 	}
-	return id, nil
+	return id, audit(ctx, tx, a, "participant.view_phi", "participant", strconv.FormatInt(participantID, 10), nil, map[string]string{"purpose": purpose})
 }
 
 // ParticipantInput is the enrol and edit form, read.
@@ -287,6 +292,17 @@ func phiFieldsSet(i Identity, birth *cohort.Date) []string {
 	return out
 }
 
+// participantAudit is a participant as an audit event keeps it: the
+// withdrawal reason, staff free text, by reference (textRef).
+type participantAudit struct {
+	Participant
+	WithdrawalReason *textRef `json:"withdrawal_reason,omitempty"` // shadows Participant's
+}
+
+func auditedParticipant(p Participant) participantAudit {
+	return participantAudit{Participant: p, WithdrawalReason: freeText("participants", p.ID, "withdrawal_reason", p.WithdrawalReason)}
+}
+
 // UpdateParticipant edits a participant if nobody changed it since in.Version.
 // The audit event keeps old and new values of the non-PHI fields and the names
 // of the PHI fields that changed.
@@ -347,8 +363,8 @@ func (s *Store) UpdateParticipant(ctx context.Context, a cohort.Actor, id int64,
 				changedPHI = append(changedPHI, f.name)
 			}
 		}
-		return audit(ctx, tx, a, "participant.update", "participant", strconv.FormatInt(id, 10), old,
-			map[string]any{"participant": nw, "phi_fields_changed": changedPHI})
+		return audit(ctx, tx, a, "participant.update", "participant", strconv.FormatInt(id, 10), auditedParticipant(old),
+			map[string]any{"participant": auditedParticipant(nw), "phi_fields_changed": changedPHI})
 	})
 	if err != nil {
 		return Participant{}, mapErr("update participant", err)
@@ -379,7 +395,7 @@ func (s *Store) Withdraw(ctx context.Context, a cohort.Actor, id int64, on cohor
 			return err
 		}
 		return audit(ctx, tx, a, "participant.withdraw", "participant", strconv.FormatInt(id, 10),
-			map[string]any{"withdrawn_on": nil}, map[string]any{"withdrawn_on": on.String(), "reason": w.Reason})
+			map[string]any{"withdrawn_on": nil}, map[string]any{"withdrawn_on": on.String(), "reason": freeText("participants", id, "withdrawal_reason", w.Reason)})
 	})
 	if err != nil {
 		return Participant{}, mapErr("withdraw", err)

@@ -31,16 +31,16 @@ type OverReadInput struct {
 
 // readingAudit is a reading as the audit trail keeps it.
 type readingAudit struct {
-	ID         int64  `json:"id"`
-	CaseID     int64  `json:"case_id"`
-	Role       string `json:"role"`
-	Rhythm     string `json:"rhythm"`
-	Confidence string `json:"confidence"`
-	Comment    string `json:"comment,omitempty"`
-	ReaderID   int64  `json:"reader_id"`
-	Reader     string `json:"reader"`
-	ReadOn     string `json:"read_on"`
-	Verdict    string `json:"verdict"`
+	ID         int64    `json:"id"`
+	CaseID     int64    `json:"case_id"`
+	Role       string   `json:"role"`
+	Rhythm     string   `json:"rhythm"`
+	Confidence string   `json:"confidence"`
+	Comment    *textRef `json:"comment,omitempty"` // free text, by reference
+	ReaderID   int64    `json:"reader_id"`
+	Reader     string   `json:"reader"`
+	ReadOn     string   `json:"read_on"`
+	Verdict    string   `json:"verdict"`
 }
 
 // AddOverRead enters a reading of a recording: the first, an optional second
@@ -99,7 +99,7 @@ func (s *Store) AddOverRead(ctx context.Context, a cohort.Actor, recordingID int
 			return err
 		}
 		rec := readingAudit{ID: id, CaseID: caseID, Role: string(next.Role), Rhythm: string(next.Rhythm), Confidence: string(next.Confidence),
-			Comment: e.Comment, ReaderID: next.ReaderID, Reader: next.Reader, ReadOn: next.On.String(), Verdict: string(v.Status)}
+			Comment: freeText("over_reads", id, "comment", e.Comment), ReaderID: next.ReaderID, Reader: next.Reader, ReadOn: next.On.String(), Verdict: string(v.Status)}
 		if err := audit(ctx, tx, a, "over_read.add", "recording", strconv.FormatInt(recordingID, 10), nil, rec); err != nil {
 			return err
 		}
@@ -141,7 +141,7 @@ func (s *Store) investigator(ctx context.Context, tx pgx.Tx, id int64) (User, er
 // Investigators lists the active investigators by name, for loaders that
 // pick a reader and for the recording page.
 func (s *Store) Investigators(ctx context.Context) ([]User, error) {
-	rows, err := s.reader(ctx).Query(ctx, `SELECT `+userCols+` FROM users WHERE active AND role = 'investigator' ORDER BY display_name, id`)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+userCols+` FROM users WHERE active AND role = $1 ORDER BY display_name, id`, string(cohort.Investigator))
 	if err != nil {
 		return nil, mapErr("investigators", err)
 	}

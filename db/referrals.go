@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"slices"
 	"strconv"
 	"time"
 
@@ -17,13 +18,70 @@ import (
 	"github.com/jackc/pgx/v5"
 )
 
-// effectiveRead joins a recording (alias r) to its effective over-read: the
-// adjudication when there is one, else the first reader's. A second reader's
-// verdict alone decides nothing.
-const effectiveRead = `JOIN LATERAL (
-	    SELECT o.role, o.rhythm, o.confidence, o.read_on FROM over_reads o
-	    WHERE o.recording_id = r.id AND o.role IN ('adjudication', 'first')
-	    ORDER BY o.role = 'adjudication' DESC LIMIT 1) eff ON true`
+// concluded is a recording with what its readings settle on
+// (overread.Resolve), as the referral reads rank and check it.
+type concluded struct {
+	ID, CaseID int64
+	TakenAt    time.Time
+	TooShort   bool
+	Readings   []OverRead
+	Conclusion overread.Conclusion
+}
+
+// confirmsAF applies overread's confirmed-AF rule to the recording.
+func (c concluded) confirmsAF() bool { return c.Conclusion.ConfirmsAF(c.TooShort) }
+
+// reported is the reading a summary names for the conclusion: the
+// adjudication of an adjudicated recording, else the first reading (alone,
+// or agreed with by the second).
+func (c concluded) reported() (OverRead, bool) {
+	want := overread.First
+	if c.Conclusion.Status == overread.Adjudicated {
+		want = overread.Adjudication
+	}
+	for _, o := range c.Readings {
+		if o.Role == want {
+			return o, c.Conclusion.Final
+		}
+	}
+	return OverRead{}, false
+}
+
+// concludedRecordings reads the recordings that match where (on alias r)
+// and have readings, and resolves each one's readings
+// with overread.Resolve: the conclusion is never decided in SQL.
+func concludedRecordings(ctx context.Context, q querier, where string, args ...any) ([]concluded, error) {
+	rows, err := q.Query(ctx, `SELECT r.id, r.case_id, r.taken_at, r.too_short FROM recordings r
+		WHERE `+where+` AND EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)
+		ORDER BY r.id`, args...)
+	if err != nil {
+		return nil, err
+	}
+	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (concluded, error) {
+		var c concluded
+		err := r.Scan(&c.ID, &c.CaseID, &c.TakenAt, &c.TooShort)
+		return c, err
+	})
+	if err != nil {
+		return nil, err
+	}
+	ids := make([]int64, len(out))
+	for i, c := range out {
+		ids[i] = c.ID
+	}
+	by, err := readingsOf(ctx, q, ids)
+	if err != nil {
+		return nil, err
+	}
+	for i := range out {
+		c := &out[i]
+		c.Readings = by[c.ID]
+		if c.Conclusion, err = conclusionOf(c.ID, c.Readings); err != nil {
+			return nil, err
+		}
+	}
+	return out, nil
+}
 
 // ReferralBasis is what a referral summary is built from: the source for
 // referral.Build and the records it belongs to.
@@ -33,13 +91,20 @@ type ReferralBasis struct {
 	CaseID        int64          // 0 for a participant without a case
 	CaseState     followup.State // "" without a case
 	ProtocolID    int            // 0 when no protocol applies
-	Source        referral.Source
+	// Withdrawal is set when the participant has left the study: a summary
+	// is then issued only with the issuer's confirmation (referral.CheckIssue).
+	Withdrawal *referral.Withdrawal
+	Source     referral.Source
+	// Confirmed: the summary's recording confirms AF
+	// (overread.Conclusion.ConfirmsAF).
+	Confirmed bool
 }
 
-// ConfirmedAF reports whether the summary's over-read is atrial
-// fibrillation: only such a summary can be signed off.
+// ConfirmedAF reports whether the summary's recording confirms atrial
+// fibrillation (overread.Conclusion.ConfirmsAF): only such a summary can be
+// signed off.
 func (b ReferralBasis) ConfirmedAF() bool {
-	return b.Source.OverRead != nil && b.Source.OverRead.Rhythm == overread.AF
+	return b.Confirmed && b.Source.OverRead != nil && b.Source.OverRead.Rhythm == overread.AF
 }
 
 // ReferralSource gathers a summary's source for a participant: for one of
@@ -54,7 +119,7 @@ func (s *Store) ReferralSource(ctx context.Context, participantID, caseID int64)
 	if err != nil {
 		return ReferralBasis{}, err
 	}
-	b := ReferralBasis{ParticipantID: p.ID, StudyID: p.StudyID}
+	b := ReferralBasis{ParticipantID: p.ID, StudyID: p.StudyID, Withdrawal: referral.WithdrawalOf(p.EnrolledOn, p.WithdrawnOn, p.ConsentVersion)}
 	src := &b.Source
 	src.StudyID, src.EnrolledOn, src.Location, src.Sex = p.StudyID, p.EnrolledOn, p.Location(), p.Sex
 	src.AgeAtEnrolment = p.AgeAtEnrolment
@@ -152,37 +217,54 @@ func (s *Store) ReferralSource(ctx context.Context, participantID, caseID int64)
 	return b, nil
 }
 
-// referralRecording picks the recording the summary reports: of the case
-// (else of the participant), the latest one whose effective over-read is AF,
-// else the latest one with any effective over-read.
+// referralRecording picks the recording the summary reports, of the case
+// (else of the participant), among those whose readings settle a rhythm
+// (overread.Resolve; two readers who disagree settle nothing): the latest one
+// that confirms AF, else the latest diagnostic one, else the latest settled
+// one.
 func (s *Store) referralRecording(ctx context.Context, b *ReferralBasis) error {
 	where, arg := "r.case_id = $1", b.CaseID
 	if b.CaseID == 0 {
 		where, arg = "r.participant_id = $1", b.ParticipantID
 	}
+	recs, err := concludedRecordings(ctx, s.pool, where, arg)
+	if err != nil {
+		return mapErr("referral recording", err)
+	}
+	rank := func(c concluded) int {
+		switch {
+		case c.confirmsAF():
+			return 0
+		case c.Conclusion.Diagnostic(c.TooShort):
+			return 1
+		}
+		return 2
+	}
+	var best *concluded
+	for i := range recs {
+		c := &recs[i]
+		if _, ok := c.reported(); !ok {
+			continue
+		}
+		if best == nil || rank(*c) < rank(*best) || rank(*c) == rank(*best) && laterConclusion(*c, *best) {
+			best = c
+		}
+	}
+	if best == nil {
+		return nil
+	}
 	var rec referral.Recording
-	var o referral.OverRead
 	var hz *float32
 	var dur float32
 	var samples []byte
 	var beats []int32
-	var readOn time.Time
-	var auto, role, rhythm, confidence string
-	err := s.pool.QueryRow(ctx, `
-		SELECT r.taken_at, r.duration_s, r.auto_interpretation, r.sampling_hz, r.samples, r.beats,
-		       eff.role, eff.rhythm, eff.confidence, eff.read_on
-		FROM recordings r `+effectiveRead+`
-		WHERE `+where+`
-		ORDER BY eff.rhythm = 'af' DESC, eff.read_on DESC, r.taken_at DESC, r.id DESC LIMIT 1`, arg).
-		Scan(&rec.TakenAt, &dur, &auto, &hz, &samples, &beats, &role, &rhythm, &confidence, &readOn)
-	if errors.Is(err, pgx.ErrNoRows) {
-		return nil
-	}
+	var auto string
+	err = s.pool.QueryRow(ctx, `SELECT taken_at, duration_s, auto_interpretation, sampling_hz, samples, beats FROM recordings WHERE id = $1`, best.ID).
+		Scan(&rec.TakenAt, &dur, &auto, &hz, &samples, &beats)
 	if err != nil {
 		return mapErr("referral recording", err)
 	}
 	rec.DurationS, rec.Auto = float64(dur), overread.Auto(auto)
-	o.Role, o.Rhythm, o.Confidence = overread.Role(role), overread.Rhythm(rhythm), overread.Confidence(confidence)
 	if hz != nil && len(samples) > 0 {
 		mv, err := DecodeSamples(samples)
 		if err != nil {
@@ -193,9 +275,23 @@ func (s *Store) referralRecording(ctx context.Context, b *ReferralBasis) error {
 			rec.Beats = append(rec.Beats, int(bt))
 		}
 	}
-	o.ReadOn = cohort.DateOf(readOn)
-	b.Source.Recording, b.Source.OverRead = &rec, &o
+	r, _ := best.reported()
+	b.Source.Recording = &rec
+	b.Source.OverRead = &referral.OverRead{Role: r.Role, Rhythm: best.Conclusion.Rhythm, Confidence: r.Confidence, ReadOn: r.On}
+	b.Confirmed = best.confirmsAF()
 	return nil
+}
+
+// laterConclusion orders recordings of one rank: the later settled day, then
+// the later recording.
+func laterConclusion(a, b concluded) bool {
+	if a.Conclusion.SettledOn != b.Conclusion.SettledOn {
+		return b.Conclusion.SettledOn.Before(a.Conclusion.SettledOn)
+	}
+	if !a.TakenAt.Equal(b.TakenAt) {
+		return a.TakenAt.After(b.TakenAt)
+	}
+	return a.ID > b.ID
 }
 
 func answerOf(b *bool) risk.Answer {
@@ -226,6 +322,11 @@ type Referral struct {
 	IssuedAt      time.Time
 	SignedOffBy   string
 	SignedOffAt   time.Time
+	// The content signed off (cohort/referral.Sign) with its digests; empty
+	// for a draft and for a summary signed off before drafts existed.
+	SignedContent       []byte // empty in lists
+	SignedContentSHA256 string
+	SignedPDFSHA256     string
 }
 
 // ReferralIssue is a summary to record as issued.
@@ -235,6 +336,9 @@ type ReferralIssue struct {
 	Format    string // html, pdf or zip
 	Paper     string // a4 or letter
 	PDFSHA256 string // digest of the PDF made from Summary on Paper
+	// ConfirmedWithdrawn is the issuer's confirmation that a summary of a
+	// withdrawn participant may still be passed on (referral.CheckIssue).
+	ConfirmedWithdrawn bool
 }
 
 // Referral formats and papers as stored.
@@ -248,6 +352,9 @@ var (
 func (s *Store) IssueReferral(ctx context.Context, a cohort.Actor, in ReferralIssue) (Referral, error) {
 	if !referralFormats[in.Format] || !referralPapers[in.Paper] || len(in.PDFSHA256) != 64 {
 		return Referral{}, fmt.Errorf("db: issue referral: format %q, paper %q, pdf digest %q: not a recordable summary", in.Format, in.Paper, in.PDFSHA256)
+	}
+	if err := referral.CheckIssue(in.Basis.Withdrawal, in.ConfirmedWithdrawn); err != nil {
+		return Referral{}, err
 	}
 	content, err := referral.Content(in.Summary)
 	if err != nil {
@@ -271,7 +378,8 @@ func (s *Store) IssueReferral(ctx context.Context, a cohort.Actor, in ReferralIs
 		}
 		return audit(ctx, tx, a, "referral.issue", "referral", strconv.FormatInt(r.ID, 10), nil, map[string]any{
 			"participant_id": r.ParticipantID, "case_id": r.CaseID, "protocol_id": r.ProtocolID, "referral_code": r.Code,
-			"content_sha256": digest, "pdf_sha256": r.PDFSHA256, "format": r.Format, "paper": r.Paper})
+			"content_sha256": digest, "pdf_sha256": r.PDFSHA256, "format": r.Format, "paper": r.Paper,
+			"withdrawn_confirmed": in.Basis.Withdrawal != nil})
 	})
 	if err != nil {
 		return Referral{}, mapErr("issue referral", err)
@@ -301,13 +409,14 @@ func actorID(a cohort.Actor) any {
 }
 
 const referralCols = `f.id, f.participant_id, p.study_id, coalesce(f.case_id, 0), coalesce(f.protocol_id, 0), f.referral_code,
-	f.content_sha256, f.format, f.paper, f.pdf_sha256, f.issued_by, f.issued_at, f.signed_off_by, f.signed_off_at`
+	f.content_sha256, f.format, f.paper, f.pdf_sha256, f.issued_by, f.issued_at, f.signed_off_by, f.signed_off_at,
+	coalesce(f.signed_content_sha256, ''), coalesce(f.signed_pdf_sha256, '')`
 
 func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 	var r Referral
 	var signed *time.Time
 	dest := []any{&r.ID, &r.ParticipantID, &r.StudyID, &r.CaseID, &r.ProtocolID, &r.Code, &r.ContentSHA256, &r.Format, &r.Paper,
-		&r.PDFSHA256, &r.IssuedBy, &r.IssuedAt, &r.SignedOffBy, &signed}
+		&r.PDFSHA256, &r.IssuedBy, &r.IssuedAt, &r.SignedOffBy, &signed, &r.SignedContentSHA256, &r.SignedPDFSHA256}
 	err := row.Scan(append(dest, extra...)...)
 	r.SignedOffAt = timeOf(signed)
 	return r, err
@@ -315,10 +424,10 @@ func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 
 // Referral returns one issued summary with its content.
 func (s *Store) Referral(ctx context.Context, id int64) (Referral, error) {
-	var content []byte
-	r, err := scanReferral(s.reader(ctx).QueryRow(ctx, `SELECT `+referralCols+`, f.content
-		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content)
-	r.Content = content
+	var content, signedContent []byte
+	r, err := scanReferral(s.reader(ctx).QueryRow(ctx, `SELECT `+referralCols+`, f.content, f.signed_content
+		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content, &signedContent)
+	r.Content, r.SignedContent = content, signedContent
 	return r, mapErr("referral", err)
 }
 
@@ -336,6 +445,14 @@ func (s *Store) Referrals(ctx context.Context, limit int) ([]Referral, error) {
 	return out, mapErr("referrals", err)
 }
 
+// ReferralCounts counts the summaries issued and those signed off; each
+// signed-off summary of a case referred that case (one per case).
+func (s *Store) ReferralCounts(ctx context.Context) (issued, signed int, err error) {
+	err = s.pool.QueryRow(ctx, `SELECT count(*), count(*) FILTER (WHERE signed_off_at IS NOT NULL AND case_id IS NOT NULL) FROM referrals`).
+		Scan(&issued, &signed)
+	return issued, signed, mapErr("referral counts", err)
+}
+
 // ReadyCase is a case ready to refer.
 type ReadyCase struct {
 	CaseID        int64
@@ -347,98 +464,39 @@ type ReadyCase struct {
 }
 
 // ReadyToRefer lists the cases still being worked that have a recording
-// whose effective over-read is atrial fibrillation: their summaries are due.
-// A case is referred when an investigator signs its summary off.
+// confirming atrial fibrillation (overread.Conclusion.ConfirmsAF): their
+// summaries are due. A case is referred when an investigator signs its
+// summary off.
 func (s *Store) ReadyToRefer(ctx context.Context) ([]ReadyCase, error) {
-	rows, err := s.reader(ctx).Query(ctx, `
-		SELECT c.id, c.participant_id, p.study_id, c.state, c.first_week, c.last_week
-		FROM cases c JOIN participants p ON p.id = c.participant_id
-		WHERE c.closed_at IS NULL AND EXISTS (
-		    SELECT 1 FROM recordings r `+effectiveRead+` WHERE r.case_id = c.id AND eff.rhythm = 'af')
-		ORDER BY c.id`)
-	if err != nil {
-		return nil, mapErr("ready to refer", err)
-	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (ReadyCase, error) {
-		var c ReadyCase
-		var st string
-		var fw, lw int16
-		err := r.Scan(&c.CaseID, &c.ParticipantID, &c.StudyID, &st, &fw, &lw)
-		c.State, c.FirstWeek, c.LastWeek = followup.State(st), int(fw), int(lw)
-		return c, err
-	})
-	return out, mapErr("ready to refer", err)
-}
-
-// SignOffReferral records an investigator's sign-off of an issued summary and
-// moves its case to referred, in one transaction, audited. Refused: a summary
-// already signed off or whose case is already referred (conflict); a summary
-// without a case, or whose recorded over-read is not AF, or whose case no
-// longer has an AF over-read or has ended otherwise (invalid). A case still
-// waiting in "recording received" is first moved to "over-read", the step
-// the over-read itself should have made.
-func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (Referral, error) {
-	if a.Role != cohort.Investigator {
-		return Referral{}, fmt.Errorf("db: sign off referral: role %s: %w", a.Role, cohort.ErrForbidden)
-	}
-	refuse := func(msg string) error { return &cohort.ValidationError{Fields: map[string]string{"referral": msg}} }
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		var caseID *int64
-		var content []byte
-		var signedBy string
-		if err := tx.QueryRow(ctx, `SELECT case_id, content, signed_off_by FROM referrals WHERE id = $1 FOR UPDATE`, id).
-			Scan(&caseID, &content, &signedBy); err != nil {
-			return err
-		}
-		if signedBy != "" {
-			return &cohort.PublicError{Message: "This summary was already signed off by " + signedBy + ".", Kind: cohort.ErrConflict}
-		}
-		if caseID == nil {
-			return refuse("this summary was made on request for a participant without a case; only a case's summary can be signed off")
-		}
-		sum, err := referral.Decode(content)
+	var out []ReadyCase
+	err := s.readTx(ctx, func(tx pgx.Tx) error {
+		recs, err := concludedRecordings(ctx, tx, "r.case_id IN (SELECT id FROM cases WHERE closed_at IS NULL)")
 		if err != nil {
 			return err
 		}
-		if sum.OverRead == nil || sum.OverRead.Rhythm != overread.AF {
-			return refuse("the summary does not report an over-read confirming atrial fibrillation; it cannot be signed off as a referral")
-		}
-		var readOn *time.Time
-		if err := tx.QueryRow(ctx, `SELECT max(eff.read_on) FROM recordings r `+effectiveRead+`
-			WHERE r.case_id = $1 AND eff.rhythm = 'af'`, *caseID).Scan(&readOn); err != nil {
-			return err
-		}
-		if readOn == nil {
-			return refuse("the case no longer has an over-read confirming atrial fibrillation; issue a new summary")
-		}
-		c, err := lockCase(ctx, tx, *caseID)
-		if err != nil {
-			return err
-		}
-		switch {
-		case c.State == followup.Referred:
-			return &cohort.PublicError{Message: "The case was already referred.", Kind: cohort.ErrConflict}
-		case c.State.Terminal():
-			return refuse("the case has ended as " + c.State.Label() + "; it cannot be referred")
-		case c.State == followup.RecordingReceived:
-			at := cohort.DateOf(*readOn).In(time.UTC).Add(12 * time.Hour)
-			if _, err := s.advanceCase(ctx, tx, a, c.ID, followup.OverRead, at, ""); err != nil {
-				return err
+		var ids []int64
+		for _, c := range recs {
+			if c.confirmsAF() && !slices.Contains(ids, c.CaseID) {
+				ids = append(ids, c.CaseID)
 			}
 		}
-		reason := fmt.Sprintf("referral summary %d signed off", id)
-		if _, err := s.advanceCase(ctx, tx, a, c.ID, followup.Referred, time.Time{}, reason); err != nil {
+		rows, err := tx.Query(ctx, `
+			SELECT c.id, c.participant_id, p.study_id, c.state, c.first_week, c.last_week
+			FROM cases c JOIN participants p ON p.id = c.participant_id
+			WHERE c.id = ANY($1) AND c.closed_at IS NULL
+			ORDER BY c.id`, ids)
+		if err != nil {
 			return err
 		}
-		if _, err := tx.Exec(ctx, `UPDATE referrals SET signed_off_by_id = $2, signed_off_by = $3, signed_off_at = $4 WHERE id = $1`,
-			id, actorID(a), a.Label(), s.now()); err != nil {
-			return err
-		}
-		return audit(ctx, tx, a, "referral.signoff", "referral", strconv.FormatInt(id, 10), nil,
-			map[string]any{"case_id": *caseID, "referral_code": sum.ReferralCode})
+		out, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (ReadyCase, error) {
+			var c ReadyCase
+			var st string
+			var fw, lw int16
+			err := r.Scan(&c.CaseID, &c.ParticipantID, &c.StudyID, &st, &fw, &lw)
+			c.State, c.FirstWeek, c.LastWeek = followup.State(st), int(fw), int(lw)
+			return c, err
+		})
+		return err
 	})
-	if err != nil {
-		return Referral{}, mapCaseErr("sign off referral", err)
-	}
-	return s.Referral(ctx, id)
+	return out, mapErr("ready to refer", err)
 }

@@ -9,6 +9,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/enrolment"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/screen"
 
 	"github.com/jackc/pgx/v5"
 )
@@ -19,8 +20,8 @@ type WeekLine struct {
 	Readings  int64 // all kinds
 	HRCount   int64
 	RRCount   int64
-	WearHours float64 // from the screen result, when screened
-	Verdict   string  // positive, negative, insufficient, or "" when not screened
+	WearHours float64        // from the screen result, when screened
+	Verdict   screen.Verdict // "" when not screened
 	Reason    string
 	CaseID    int64 // a case covering this week
 	CaseState followup.State
@@ -175,7 +176,8 @@ func (s *Store) AddNote(ctx context.Context, a cohort.Actor, participantID int64
 			participantID, body, actorID, a.Label()).Scan(&id); err != nil {
 			return err
 		}
-		return audit(ctx, tx, a, "participant.note", "participant", strconv.FormatInt(participantID, 10), nil, map[string]any{"note_id": id, "body": body})
+		return audit(ctx, tx, a, "participant.note", "participant", strconv.FormatInt(participantID, 10), nil,
+			map[string]any{"note_id": id, "body": freeText("participant_notes", id, "body", body)})
 	})
 	return mapErr("add note", err)
 }

@@ -21,6 +21,9 @@ type User struct {
 	LastSignIn   *time.Time
 	Version      int
 	PasswordHash string // only filled by UserForSignIn
+	// MustChangePassword: an administrator set the password; its owner must
+	// choose their own before doing anything else.
+	MustChangePassword bool
 }
 
 // Actor is the user as the author of changes.
@@ -34,14 +37,16 @@ type NewUser struct {
 	Name         string
 	Role         cohort.Role
 	PasswordHash string
+	// MustChangePassword: the password is one an administrator chose.
+	MustChangePassword bool
 }
 
-const userCols = `id, email, display_name, role, active, last_sign_in_at, version`
+const userCols = `id, email, display_name, role, active, last_sign_in_at, version, must_change_password`
 
 func scanUser(row pgx.CollectableRow) (User, error) {
 	var u User
 	var role string
-	err := row.Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version)
+	err := row.Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.MustChangePassword)
 	u.Role = cohort.Role(role)
 	return u, err
 }
@@ -54,8 +59,8 @@ func (s *Store) CreateUser(ctx context.Context, a cohort.Actor, n NewUser) (User
 	var u User
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `
-			INSERT INTO users (email, display_name, role, password_hash) VALUES ($1, $2, $3, $4)
-			RETURNING `+userCols, strings.TrimSpace(n.Email), strings.TrimSpace(n.Name), string(n.Role), n.PasswordHash)
+			INSERT INTO users (email, display_name, role, password_hash, must_change_password) VALUES ($1, $2, $3, $4, $5)
+			RETURNING `+userCols, strings.TrimSpace(n.Email), strings.TrimSpace(n.Name), string(n.Role), n.PasswordHash, n.MustChangePassword)
 		if err != nil {
 			return err
 		}
@@ -90,7 +95,7 @@ func (s *Store) UserAndStudy(ctx context.Context, id int64) (User, string, error
 	var u User
 	var role, study string
 	err := s.pool.QueryRow(ctx, `SELECT `+userCols+`, coalesce((SELECT name FROM study WHERE id = 1), '') FROM users WHERE id = $1`, id).
-		Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &study)
+		Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.MustChangePassword, &study)
 	u.Role = cohort.Role(role)
 	return u, study, mapErr("user", err)
 }
@@ -100,7 +105,7 @@ func (s *Store) UserForSignIn(ctx context.Context, email string) (User, error) {
 	var u User
 	var role string
 	err := s.pool.QueryRow(ctx, `SELECT `+userCols+`, password_hash FROM users WHERE email = $1`, strings.TrimSpace(email)).
-		Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.PasswordHash)
+		Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.MustChangePassword, &u.PasswordHash)
 	u.Role = cohort.Role(role)
 	return u, mapErr("user for sign-in", err)
 }
@@ -154,7 +159,7 @@ func (s *Store) UpdateUser(ctx context.Context, a cohort.Actor, id int64, c User
 		}
 		if !c.Active {
 			// End the person's sessions at once.
-			if _, err := tx.Exec(ctx, `DELETE FROM sessions WHERE position(convert_to($1, 'UTF8') in data) > 0`, sessionMarker(id)); err != nil {
+			if err := endSessions(ctx, tx, id); err != nil {
 				return err
 			}
 		}
@@ -175,47 +180,35 @@ func sessionMarker(id int64) string { return fmt.Sprintf("cdu:%d:", id) }
 // SessionMarker exposes the marker for the web layer.
 func SessionMarker(id int64) string { return sessionMarker(id) }
 
-// SetPassword replaces an account's password hash and audits the event (never
-// the hash itself).
+// SetPassword replaces an account's password hash with one an administrator
+// chose, ends the account's sessions everywhere (whoever knew the old password
+// is signed out), makes its owner choose their own at the next sign-in, and
+// audits the event (never the hash itself).
 func (s *Store) SetPassword(ctx context.Context, a cohort.Actor, id int64, hash string) error {
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		tag, err := tx.Exec(ctx, `UPDATE users SET password_hash = $2, version = version + 1, updated_at = now() WHERE id = $1`, id, hash)
+		tag, err := tx.Exec(ctx, `UPDATE users SET password_hash = $2, must_change_password = true, version = version + 1, updated_at = now() WHERE id = $1`, id, hash)
 		if err != nil {
 			return err
 		}
 		if tag.RowsAffected() == 0 {
 			return pgx.ErrNoRows
 		}
+		if err := endSessions(ctx, tx, id); err != nil {
+			return err
+		}
 		return audit(ctx, tx, a, "user.password_set", "user", fmt.Sprint(id), nil, nil)
 	})
 	return mapErr("set password", err)
 }
 
-// SignInThrottle says whether more attempts are refused for the account or the
-// client address: true after limit failures within window.
-func (s *Store) SignInThrottle(ctx context.Context, account, addr string, limit int, window time.Duration) (bool, error) {
-	since := s.now().Add(-window)
-	var byAccount, byAddr int
-	err := s.pool.QueryRow(ctx, `
-		SELECT (SELECT count(*) FROM sign_in_failures WHERE account = $1 AND at > $3),
-		       (SELECT count(*) FROM sign_in_failures WHERE client_addr = $2 AND at > $3)`,
-		strings.TrimSpace(account), addr, since).Scan(&byAccount, &byAddr)
-	if err != nil {
-		return false, mapErr("sign-in throttle", err)
-	}
-	return byAccount >= limit || byAddr >= limit, nil
-}
-
-// RecordSignInFailure counts a failed attempt and audits it with the submitted
-// account name (which may not exist).
+// RecordSignInFailure audits a failed attempt that was tried (throttled
+// ones are only counted, in sign_in_throttle) with the submitted account name
+// (which may not exist; the forms bound it to 254 characters).
 func (s *Store) RecordSignInFailure(ctx context.Context, account, addr, requestID, reason string) error {
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		if _, err := tx.Exec(ctx, `INSERT INTO sign_in_failures (at, account, client_addr) VALUES ($1, $2, $3)`,
-			s.now(), strings.TrimSpace(account), addr); err != nil {
-			return err
-		}
-		// Old failures no longer matter for throttling.
-		if _, err := tx.Exec(ctx, `DELETE FROM sign_in_failures WHERE at < $1`, s.now().Add(-24*time.Hour)); err != nil {
+		// Keys that no longer matter for throttling.
+		if _, err := tx.Exec(ctx, `DELETE FROM sign_in_throttle WHERE updated_at < $1 AND (locked_until IS NULL OR locked_until < $2)`,
+			s.now().Add(-24*time.Hour), s.now()); err != nil {
 			return err
 		}
 		return audit(ctx, tx, cohort.Actor{Name: "anonymous", Addr: addr, RequestID: requestID},

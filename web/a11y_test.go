@@ -12,6 +12,8 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
+	"cohortdesk/cohort/ecg"
 	"cohortdesk/db"
 
 	"github.com/chromedp/cdproto/cdp"
@@ -216,6 +218,9 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatal(err)
 	}
 	ref := issueVia(t, a, a.signIn(cohort.Coordinator), pid, caseID, "html", paperA4)
+	// Triage lists a case nobody has taken on, overdue: the row the
+	// coordinator's pass takes.
+	a.exec(`UPDATE cases SET due_at = now() - interval '1 day', owner_id = NULL WHERE id = $1`, cases[sids[1]])
 	proto := protocolFor(t, a)
 	p := func(name, pattern, path string) a11yPage { return a11yPage{name, pattern, path} }
 	pages := []a11yPage{
@@ -227,6 +232,7 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		p("new participant", "/participants/new", "/participants/new"),
 		p("cases list", "/cases", "/cases"),
 		p("case page", "/cases/{id}", fmt.Sprintf("/cases/%d", caseID)),
+		p("contact details", "/cases/{id}/contact", fmt.Sprintf("/cases/%d/contact", caseID)),
 		p("recording page", "/recordings/{id}", fmt.Sprintf("/recordings/%d", rec)),
 		p("confirmations", "/confirmations", "/confirmations"),
 		p("statistics", "/confirmations/statistics", "/confirmations/statistics"),
@@ -247,6 +253,10 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		p("protocols", "/admin/protocols", "/admin/protocols"),
 		p("protocol", "/admin/protocols/{id}", fmt.Sprintf("/admin/protocols/%d", proto)),
 		p("new protocol version", "/admin/protocols/{id}/new", fmt.Sprintf("/admin/protocols/%d/new", proto)),
+		p("sign-in security", "/admin/security", "/admin/security"),
+		p("your account", "/account", "/account"),
+		p("change password", "/account/password", "/account/password"),
+		p("second factor set-up", "/account/second-factor", "/account/second-factor"),
 	}
 	// A threshold sweep, computed, with its chart and table.
 	sweep, err := a.store.StartSweep(ctx, cohort.Actor{Name: "Investigator", Role: cohort.Investigator}, proto, "windows[0].masd_threshold", []float64{4, 8, 12})
@@ -257,6 +267,20 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatalf("run the sweep: %v %v", ok, err)
 	}
 	pages = append(pages, p("threshold sweep", "/sweep", fmt.Sprintf("/sweep?run=%d", sweep)))
+	// A recording from a file of several signals: the signals table and the
+	// choice of lead.
+	var shipped int64
+	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM cases WHERE state IN ('recorder_sent', 'recording_received', 'over_read') ORDER BY id LIMIT 1`).Scan(&shipped); err != nil {
+		t.Fatalf("no case taking recordings in the demo: %v", err)
+	}
+	edf, _ := threeSignalEDF(t)
+	multi, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("127.0.0.1", "test"), shipped,
+		ecg.RecordingInput{File: edf, FileName: "leads.edf", TakenAt: time.Now().Add(-time.Minute)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pages = append(pages, p("recording with several leads", "/recordings/{id}", fmt.Sprintf("/recordings/%d", multi.ID)))
+	pages = append(pages, outreachPages(t, a)...)
 	var imp int64
 	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM imports ORDER BY id LIMIT 1`).Scan(&imp); err == nil {
 		pages = append(pages, p("import report", "/imports/{id}", fmt.Sprintf("/imports/%d", imp)))
@@ -292,8 +316,9 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	var checked atomic.Int32
 	// Pages walked with Tab from top to bottom: the ones whose work is
 	// done in forms.
-	tabWalked := map[string]bool{"case page": true, "recording page": true, "referral preview": true, "referral summary": true,
-		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true}
+	tabWalked := map[string]bool{"case page": true, "recording page": true, "recording with several leads": true, "referral preview": true, "referral summary": true,
+		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true,
+		"change password": true, "second factor set-up": true, "case page with a message": true, "message template": true}
 
 	t.Run("visitor", func(t *testing.T) {
 		t.Parallel()
@@ -308,6 +333,19 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 		)
 		tb.follow("submit a wrong password", `[data-testid="signin-submit"]`, `[data-testid="signin-error"]`)
 		tb.a11yCheck("a visitor", "sign-in with its error")
+		checked.Add(2)
+		// The second step of a sign-in with a second factor, and its refusal.
+		coded := codedAccount(t, a)
+		tb.b.Do("sign in to an account with a second factor",
+			chromedp.SetValue(chromedp.ID("email"), coded),
+			chromedp.SetValue(chromedp.ID("password"), testPassword),
+		)
+		tb.follow("submit the password", `[data-testid="signin-submit"]`, `[data-testid="code-form"]`)
+		tb.a11yCheck("a visitor", "sign-in code")
+		tb.tabWalk("a visitor", "sign-in code")
+		tb.b.Do("type a wrong code", chromedp.SendKeys(chromedp.ID("code"), "000000"))
+		tb.follow("submit a wrong code", `[data-testid="code-form"] button`, `[data-testid="code-error"]`)
+		tb.a11yCheck("a visitor", "sign-in code with its error")
 		checked.Add(2)
 
 		// The checker can fail: planted faults are found, with the
@@ -556,13 +594,13 @@ func TestKeyboardWorksTriage(t *testing.T) {
 
 	press, ringed := tb.press, tb.ringed
 
-	// The header: skip link, home link, sign out.
+	// The header: skip link, home link, one's account, sign out.
 	first := press(kb.Tab)
 	if !strings.Contains(first.What, ".skip") {
 		t.Fatalf("the first Tab reaches %s, want the skip link", first.What)
 	}
 	ringed(first)
-	for _, want := range []string{"a.mark", `button[data-testid=sign-out]`} {
+	for _, want := range []string{"a.mark", `a[data-testid=user-name]`, `button[data-testid=sign-out]`} {
 		s := press(kb.Tab)
 		if !strings.HasPrefix(s.What, want) {
 			t.Fatalf("Tab reaches %s, want %s", s.What, want)
@@ -597,7 +635,8 @@ func TestKeyboardWorksTriage(t *testing.T) {
 			break
 		}
 	}
-	want := []string{" a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
+	// The study ID, the contact details (issue 19), then the forms.
+	want := []string{" a", " a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
 	if !slices.Equal(inRow, want) {
 		t.Errorf("Tab order in the row %q, want %q", inRow, want)
 	}
@@ -630,4 +669,27 @@ func TestKeyboardWorksTriage(t *testing.T) {
 	if got := tb.b.Text("state", "#"+row+` [data-testid="row-state"]`); got != "reached" {
 		t.Errorf("state after the keyboard attempt %q, want reached", got)
 	}
+}
+
+// codedAccount adds a monitor account with a second factor set up and
+// returns its e-mail address.
+func codedAccount(t *testing.T, a *app) string {
+	t.Helper()
+	ctx := context.Background()
+	hash, err := credential.Hash(testPassword, credential.TestParams)
+	if err != nil {
+		t.Fatal(err)
+	}
+	u, err := a.store.CreateUser(ctx, cohort.System, db.NewUser{Email: "coded@example.org", Name: "Test Coded", Role: cohort.Monitor, PasswordHash: hash})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sealed, err := credential.Seal(credential.SealKey([]byte(testSecret)), credential.NewTOTPSecret(), sealContext(u.ID))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := a.store.EnableSecondFactor(ctx, u.Actor("", ""), sealed, 0, nil); err != nil {
+		t.Fatal(err)
+	}
+	return u.Email
 }

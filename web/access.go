@@ -12,6 +12,10 @@ type access struct {
 	// scrape: no person, only the client addresses allowed to read the
 	// metrics (Config.MetricsAllow); everyone else is refused.
 	scrape bool
+	// setup: open to a session that must first change its password or set up
+	// its second factor (the account pages); every other route sends such a
+	// session to the step it owes.
+	setup bool
 }
 
 func allow(roles ...cohort.Role) access { return access{roles: roles} }
@@ -42,6 +46,7 @@ var (
 	referrals  = allow(cohort.Coordinator, cohort.Investigator)                               // referral summaries
 	exportArea = allow(cohort.Coordinator, cohort.Investigator, cohort.Admin)                 // the exports page: summaries and dataset exports
 	adminOnly  = allow(cohort.Admin)
-	tuning     = allow(cohort.Investigator, cohort.Admin) // threshold sweep: investigators weigh, admins set protocols
-	scrapers   = access{scrape: true}                     // the metrics: allowed monitoring addresses only, no role
+	tuning     = allow(cohort.Investigator, cohort.Admin)   // threshold sweep: investigators weigh, admins set protocols
+	account    = access{roles: everyone.roles, setup: true} // one's own account: password, second factor
+	scrapers   = access{scrape: true}                       // the metrics: allowed monitoring addresses only, no role
 )

@@ -12,29 +12,42 @@ import (
 	"cohortdesk/views"
 )
 
-// auditFilter reads the filter form; dates are whole UTC days.
-func auditFilter(q url.Values) (db.AuditFilter, views.AuditFilterForm) {
-	form := views.AuditFilterForm{Action: q.Get("action"), Object: q.Get("object"), ObjectID: q.Get("object_id"),
-		From: q.Get("from"), To: q.Get("to"), Actor: q.Get("actor")}
+// auditFilter reads the filter form, strictly; dates are whole UTC days.
+func auditFilter(v url.Values) (db.AuditFilter, views.AuditFilterForm, error) {
+	q := readQuery(v)
+	form := views.AuditFilterForm{Action: q.text("action"), Object: q.text("object"), ObjectID: q.text("object_id"),
+		From: q.get("from"), To: q.get("to"), Actor: q.get("actor")}
 	f := db.AuditFilter{Action: form.Action, ObjectType: form.Object, ObjectID: form.ObjectID}
-	if t, err := time.Parse("2006-01-02", form.From); err == nil {
-		f.From = t
+	if d := q.date("from"); !d.IsZero() {
+		f.From = d.In(time.UTC)
 	}
-	if t, err := time.Parse("2006-01-02", form.To); err == nil {
-		f.To = t.AddDate(0, 0, 1)
+	if d := q.date("to"); !d.IsZero() {
+		f.To = d.AddDays(1).In(time.UTC)
 	}
-	if id, err := strconv.ParseInt(form.Actor, 10, 64); err == nil {
-		f.ActorID = id
-	}
-	f.BeforeID, _ = strconv.ParseInt(q.Get("before"), 10, 64)
-	return f, form
+	f.ActorID = q.id("actor", "account number")
+	f.BeforeID = q.id("before", "event number")
+	return f, form, q.err()
 }
 
 func (s *Server) auditList(w http.ResponseWriter, r *http.Request) error {
-	f, form := auditFilter(r.URL.Query())
+	f, form, err := auditFilter(r.URL.Query())
+	if err != nil {
+		return err
+	}
 	f.Limit = 100
 	evs, err := s.store.AuditEvents(r.Context(), f)
 	if err != nil {
+		return err
+	}
+	// The trail holds what people did to participants' records (and, in
+	// events written before free text was kept by reference, what they
+	// wrote): reading it is itself recorded, with the events shown.
+	shown := make([]int64, len(evs))
+	for i, e := range evs {
+		shown[i] = e.ID
+	}
+	if err := s.store.Audit(r.Context(), s.actor(r), "audit.view", "audit_events", "", nil,
+		map[string]any{"filter": r.URL.RawQuery, "event_ids": shown}); err != nil {
 		return err
 	}
 	m := views.AuditModel{Page: s.page(r, "Audit trail", "admin"), Filter: form}
@@ -55,7 +68,10 @@ func (s *Server) auditList(w http.ResponseWriter, r *http.Request) error {
 
 // auditCSV streams the filtered trail; the download itself is audited first.
 func (s *Server) auditCSV(w http.ResponseWriter, r *http.Request) error {
-	f, _ := auditFilter(r.URL.Query())
+	f, _, err := auditFilter(r.URL.Query())
+	if err != nil {
+		return err
+	}
 	f.BeforeID = 0
 	if err := s.store.Audit(r.Context(), s.actor(r), "audit.export", "audit_events", "", nil, map[string]string{"filter": r.URL.RawQuery}); err != nil {
 		return err
@@ -64,7 +80,7 @@ func (s *Server) auditCSV(w http.ResponseWriter, r *http.Request) error {
 	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="audit-%s.csv"`, s.now().UTC().Format("20060102-1504")))
 	cw := csv.NewWriter(w)
 	_ = cw.Write([]string{"id", "at_utc", "actor_id", "actor", "action", "object_type", "object_id", "old_value", "new_value", "client_addr", "request_id"})
-	err := s.store.EachAuditEvent(r.Context(), f, func(e db.AuditEvent) error {
+	err = s.store.EachAuditEvent(r.Context(), f, func(e db.AuditEvent) error {
 		return cw.Write([]string{strconv.FormatInt(e.ID, 10), e.At.UTC().Format(time.RFC3339Nano), strconv.FormatInt(e.ActorID, 10),
 			csvSafe(e.Actor), e.Action, e.ObjectType, csvSafe(e.ObjectID), string(e.Old), string(e.New), e.ClientAddr, e.RequestID})
 	})

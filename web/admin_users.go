@@ -67,11 +67,11 @@ func (s *Server) userCreate(w http.ResponseWriter, r *http.Request) error {
 	rd := readForm(r.PostForm)
 	f := views.UserForm{Email: rd.raw("email"), Name: rd.raw("name"), Role: rd.text("role")}
 	pw := credential.RandomPassword(16)
-	hash, err := credential.Hash(pw, s.pwParams)
+	hash, err := s.hashPassword(r.Context(), pw)
 	if err != nil {
 		return err
 	}
-	u, err := s.store.CreateUser(r.Context(), s.actor(r), db.NewUser{Email: f.Email, Name: f.Name, Role: cohort.Role(f.Role), PasswordHash: hash})
+	u, err := s.store.CreateUser(r.Context(), s.actor(r), db.NewUser{Email: f.Email, Name: f.Name, Role: cohort.Role(f.Role), PasswordHash: hash, MustChangePassword: true})
 	if err != nil {
 		no, ok := refused(r, err, map[string]string{"email": "an account with this e-mail address already exists"})
 		if !ok {
@@ -132,7 +132,7 @@ func (s *Server) userResetPassword(w http.ResponseWriter, r *http.Request) error
 		return err
 	}
 	pw := credential.RandomPassword(16)
-	hash, err := credential.Hash(pw, s.pwParams)
+	hash, err := s.hashPassword(r.Context(), pw)
 	if err != nil {
 		return err
 	}

@@ -105,13 +105,20 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 	}
 	m.Channels = channelOptions
 	m.Outcomes = append([]views.Option{{Value: "", Label: "choose…"}}, outcomeOptions...)
-	for _, n := range followup.Next(c.State) {
+	for _, n := range followup.HandMoves(c.State) {
 		switch {
 		case n.Terminal() && offered(followup.StepClose):
 			m.Closings = append(m.Closings, views.Option{Value: string(n), Label: n.Label()})
 		case !n.Terminal() && offered(followup.StepMove):
 			m.Moves = append(m.Moves, views.Option{Value: string(n), Label: n.Label()})
 		}
+	}
+	if len(m.Closings) > 0 {
+		// No closing is chosen for the person: they say how the case ends.
+		m.Closings = append([]views.Option{{Value: "", Label: "choose how it ends…"}}, m.Closings...)
+	}
+	if len(m.Moves) > 0 {
+		m.Moves = append([]views.Option{{Value: "", Label: "choose a state…"}}, m.Moves...)
 	}
 	weeks, err := s.store.FlaggedWeeks(ctx, c.ParticipantID)
 	if err != nil {
@@ -129,6 +136,9 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		m.Weeks = append(m.Weeks, v)
 	}
 	if m.ECG, err = s.caseECG(r, c, errs, now); err != nil {
+		return err
+	}
+	if m.Outreach, err = s.caseOutreach(r, c, errs, now); err != nil {
 		return err
 	}
 	events, err := s.store.CaseTimeline(ctx, c, loc)
@@ -159,8 +169,8 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 	case db.EventRecording:
 		rec := e.Recording
 		out.Title = fmt.Sprintf("ECG recording taken (%.0f s)", rec.DurationS)
-		if rec.AutoInterpretation != "" && rec.AutoInterpretation != "none" {
-			out.Lines = append(out.Lines, "recorder's own reading: "+overread.Auto(rec.AutoInterpretation).Label())
+		if a := overread.Auto(rec.AutoInterpretation); a != "" && a != overread.AutoNoReading {
+			out.Lines = append(out.Lines, overread.AutoHeading+": "+a.Label())
 		}
 		if rec.TooShort {
 			out.Lines = append(out.Lines, "shorter than 30 s: not enough for a diagnostic read")
@@ -168,6 +178,8 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 		if !rec.OverRead {
 			out.Lines = append(out.Lines, "waiting for an over-read")
 		}
+	case db.EventMessage:
+		out = messageEntry(out, *e.Message, loc)
 	case db.EventOverRead:
 		o := e.OverRead
 		out.Title = fmt.Sprintf("Over-read (%s): %s, %s", overread.Role(o.Role).Label(), overread.Rhythm(o.Rhythm).Label(), o.Confidence)

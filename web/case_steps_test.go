@@ -20,12 +20,15 @@ func TestCaseStepRoutesFollowTheStepRules(t *testing.T) {
 	routes := map[followup.Step][]string{
 		followup.StepAssign:    {"/cases/{id}/assign", "/cases/bulk/assign"},
 		followup.StepAttempt:   {"/cases/{id}/attempts", "/cases/bulk/letter"},
+		followup.StepMessage:   {"/cases/{id}/messages", "/cases/bulk/messages", "/cases/bulk/letters", "/letters/{id}/posted"},
 		followup.StepShipment:  {"/cases/{id}/shipment"},
 		followup.StepReturn:    {"/cases/{id}/return"},
 		followup.StepRecording: {"/cases/{id}/recordings"},
 		followup.StepMove:      {"/cases/{id}/move"},
 		followup.StepClose:     {"/cases/{id}/close"},
 		followup.StepNote:      {"/cases/{id}/note"},
+		followup.StepOverRead:  {"/recordings/{id}/over-reads", "/recordings/{id}/over-reads/revise", "/recordings/{id}/not-needed"},
+		followup.StepSignOff:   {"/referrals/{id}/signoff"},
 	}
 	for step, patterns := range routes {
 		for _, p := range patterns {

@@ -32,7 +32,7 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	m := views.ConfirmationsModel{Page: s.page(r, "Confirmations", "confirmations"), DeIdentified: !role(r).SeesPHI(),
-		UnreadCount: len(lists.Unread), DisagreedCount: len(lists.Disagreed), CanRead: clinical.allows(role(r))}
+		UnreadCount: lists.UnreadCount, DisagreedCount: len(lists.Disagreed), CanRead: clinical.allows(role(r))}
 	if m.DeIdentified {
 		return s.ok(w, r, views.Confirmations(m))
 	}
@@ -70,12 +70,16 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 	return s.ok(w, r, views.Confirmations(m))
 }
 
-// statsFilter reads the statistics page's protocol and site choice.
-func statsFilter(q url.Values) cascade.Filter {
-	var f cascade.Filter
-	f.ProtocolID, _ = strconv.Atoi(q.Get("protocol"))
-	f.SiteID, _ = strconv.Atoi(q.Get("site"))
-	return f
+// statsFilter reads the statistics page's protocol and site choice (and the
+// CSV download's table), strictly.
+func statsFilter(v url.Values, sites []db.Site, tables ...string) (cascade.Filter, string, error) {
+	q := readQuery(v)
+	f := cascade.Filter{ProtocolID: protocolParam(q), SiteID: siteParam(q, "site", sites)}
+	table := ""
+	if len(tables) > 0 {
+		table = q.oneOf("table", tables...)
+	}
+	return f, table, q.err()
 }
 
 func intervalText(iv stats.Interval, n int) string {
@@ -138,11 +142,15 @@ func statsCSVHref(table string, q url.Values) string {
 func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	q := r.URL.Query()
-	a, err := s.store.Agreement(ctx, statsFilter(q))
+	sites, siteList, err := s.siteOptions(ctx)
 	if err != nil {
 		return err
 	}
-	sites, _, err := s.siteOptions(ctx)
+	f, _, err := statsFilter(q, siteList)
+	if err != nil {
+		return err
+	}
+	a, err := s.store.Agreement(ctx, f)
 	if err != nil {
 		return err
 	}
@@ -218,11 +226,10 @@ func kmChart(c stats.Curve) *charts.Line {
 		lo = append(lo, opts.LineData{Value: []float64{st.Time, round4(st.Lo)}})
 		hi = append(hi, opts.LineData{Value: []float64{st.Time, round4(st.Hi)}})
 	}
-	step := charts.WithLineChartOpts(opts.LineChart{Step: "end", ShowSymbol: opts.Bool(false)})
-	dashed := charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})
-	line.AddSeries("Kaplan-Meier estimate", est, step)
-	line.AddSeries("95% band, lower", lo, step, dashed)
-	line.AddSeries("95% band, upper", hi, step, dashed)
+	step := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{Step: "end", ShowSymbol: opts.Bool(false)})}
+	line.AddSeries("Kaplan-Meier estimate", est, with(step, paint(chartMeasure))...)
+	line.AddSeries("95% band, lower", lo, with(step, paint(chartBand))...)
+	line.AddSeries("95% band, upper", hi, with(step, paint(chartBand))...)
 	return line
 }
 
@@ -261,9 +268,10 @@ func ppvChart(groups []cascade.Group) (*charts.BoxPlot, bool) {
 	bp.SetGlobalOptions(charts.WithInitializationOpts(chartInit("ppv")),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "item"}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "PPV (95% Wilson interval)", Min: 0, Max: 1}))
-	bp.SetXAxis(labels).AddSeries("95% Wilson interval", data)
+	bp.SetXAxis(labels).AddSeries("95% Wilson interval", data,
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: "transparent", BorderColor: chartColour(chartBand), BorderWidth: 1.5}))
 	est := charts.NewScatter()
-	est.SetXAxis(labels).AddSeries("PPV", points)
+	est.SetXAxis(labels).AddSeries("PPV", points, paint(chartMeasure)...)
 	bp.Overlap(est)
 	return bp, true
 }
@@ -272,14 +280,18 @@ func ppvChart(groups []cascade.Group) (*charts.BoxPlot, bool) {
 // groups, km or kappa.
 func (s *Server) confirmationStatsCSV(w http.ResponseWriter, r *http.Request) error {
 	q := r.URL.Query()
-	table := q.Get("table")
+	sites, err := s.store.Sites(r.Context())
+	if err != nil {
+		return err
+	}
+	f, table, err := statsFilter(q, sites, "versions", "groups", "km", "kappa")
+	if err != nil {
+		return err
+	}
 	if table == "" {
 		table = "groups"
 	}
-	if table != "versions" && table != "groups" && table != "km" && table != "kappa" {
-		return errNotFound
-	}
-	a, err := s.store.Agreement(r.Context(), statsFilter(q))
+	a, err := s.store.Agreement(r.Context(), f)
 	if err != nil {
 		return err
 	}

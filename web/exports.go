@@ -15,6 +15,7 @@ import (
 	"strings"
 	"time"
 
+	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -64,6 +65,9 @@ func (s *Server) renderExports(w http.ResponseWriter, r *http.Request, status in
 	}
 	refs, err := s.store.Referrals(ctx, 100)
 	if err != nil {
+		return err
+	}
+	if m.Issued, m.Signed, err = s.store.ReferralCounts(ctx); err != nil {
 		return err
 	}
 	for _, f := range refs {
@@ -158,7 +162,7 @@ func (s *Server) datasetExport(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	now := s.now().UTC()
 	man := datasetManifest{Kind: "de-identified dataset", FormatVersion: 1, CreatedAt: now.Format("2006-01-02T15:04:05Z"), ReviewCaution: deid.ReviewCaution}
-	buf, err := newSpool()
+	buf, err := newDownloadFile()
 	if err != nil {
 		return err
 	}
@@ -191,6 +195,9 @@ func (s *Server) datasetExport(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	if err := add("README.txt", func(out io.Writer) (int, error) { return 0, writeReadme(out, now) }, false); err != nil {
+		return err
+	}
+	if err := add(cohort.CautionsFile, func(out io.Writer) (int, error) { _, err := io.WriteString(out, cohort.CautionsText()); return 0, err }, false); err != nil {
 		return err
 	}
 	mj, err := json.MarshalIndent(man, "", "  ")
@@ -291,9 +298,10 @@ func writeReadme(out io.Writer, now time.Time) error {
 		fmt.Fprintf(&b, "  %-24s %s\n", t.File, t.About)
 	}
 	b.WriteString("  dictionary.csv           every column of every file, with its type and rule\n")
+	b.WriteString("  " + fmt.Sprintf("%-24s", cohort.CautionsFile) + " the screening cautions: read them before using the verdicts\n")
 	b.WriteString("  manifest.json            each file's rows, size and SHA-256\n\n")
 	b.WriteString("Participants appear by pseudonymous referral code, the same in every file; the key stays with the study.\n")
-	b.WriteString("Screening verdicts are screens, not diagnoses; thresholds shipped as defaults are illustrative.\n\n")
+	b.WriteString("Screening verdicts are screens, not diagnoses; " + cohort.NegativeWeekCaution + " See " + cohort.CautionsFile + ".\n\n")
 	b.WriteString("Safe Harbor identifiers (45 CFR 164.514(b)(2)(i)) and their treatment:\n")
 	for _, id := range deid.Identifiers() {
 		fmt.Fprintf(&b, "  %2d. %s: %s. %s\n", id.Number, id.Name, id.Treatment, id.How)

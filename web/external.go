@@ -38,6 +38,12 @@ func (s *Server) externalVerdictsForm(w http.ResponseWriter, r *http.Request) er
 
 // externalVerdictsImport stores an uploaded verdicts file and reports it.
 func (s *Server) externalVerdictsImport(w http.ResponseWriter, r *http.Request) error {
+	u, _ := userFrom(r.Context())
+	release, ok := s.uploads.take(u.ID)
+	if !ok {
+		return errTooManyUploads
+	}
+	defer release()
 	r.Body = http.MaxBytesReader(w, r.Body, maxVerdictUpload)
 	f, hdr, err := r.FormFile("file")
 	if err != nil {
@@ -81,7 +87,7 @@ func externalRows(vs []db.ExternalVerdict) []views.ExternalVerdictRow {
 		if v.Score != nil {
 			score = strconv.FormatFloat(*v.Score, 'g', 4, 64)
 		}
-		out[i] = views.ExternalVerdictRow{Week: v.Week, Model: v.ModelName + " " + v.ModelVersion, Score: score, Verdict: v.Verdict, Tone: verdictTone(v.Verdict)}
+		out[i] = views.ExternalVerdictRow{Week: v.Week, Model: v.ModelName + " " + v.ModelVersion, Score: score, Verdict: v.Verdict.Label(), Tone: verdictTone(v.Verdict)}
 	}
 	return out
 }

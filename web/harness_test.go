@@ -42,19 +42,26 @@ func newApp(t *testing.T) *app {
 	ts := httptest.NewServer(srv.Handler())
 	t.Cleanup(ts.Close)
 	a := &app{t: t, ts: ts, store: store, srv: srv, users: map[cohort.Role]db.User{}}
+	a.addRoleUsers()
+	return a
+}
+
+// addRoleUsers creates the test account of every role (role@example.org,
+// password testPassword).
+func (a *app) addRoleUsers() {
+	a.t.Helper()
 	hash, err := credential.Hash(testPassword, credential.TestParams)
 	if err != nil {
-		t.Fatal(err)
+		a.t.Fatal(err)
 	}
 	for _, r := range cohort.Roles {
-		u, err := store.CreateUser(context.Background(), cohort.System,
+		u, err := a.store.CreateUser(context.Background(), cohort.System,
 			db.NewUser{Email: string(r) + "@example.org", Name: "Test " + r.Label(), Role: r, PasswordHash: hash})
 		if err != nil {
-			t.Fatal(err)
+			a.t.Fatal(err)
 		}
 		a.users[r] = u
 	}
-	return a
 }
 
 // client is a browser-like client with its own cookie jar that does not follow
@@ -137,16 +144,31 @@ func strconvFormat(n int64) string { return strconv.FormatInt(n, 10) }
 // the keys given), then one file under fileField.
 func (a *app) postFile(c *http.Client, path string, fields [][2]string, fileField, name string, data []byte) (*http.Response, string) {
 	a.t.Helper()
+	return a.postMultipart(c, path, fields, fileField, []namedFile{{name, data}})
+}
+
+// namedFile is one file of a multipart form.
+type namedFile struct {
+	name string
+	data []byte
+}
+
+// postMultipart posts a multipart form with fields and any number of files
+// in one file field, as a browser sends a multiple file choice.
+func (a *app) postMultipart(c *http.Client, path string, fields [][2]string, fileField string, files []namedFile) (*http.Response, string) {
+	a.t.Helper()
 	var body bytes.Buffer
 	mw := multipart.NewWriter(&body)
 	for _, kv := range fields {
 		mw.WriteField(kv[0], kv[1])
 	}
-	fw, err := mw.CreateFormFile(fileField, name)
-	if err != nil {
-		a.t.Fatal(err)
+	for _, f := range files {
+		fw, err := mw.CreateFormFile(fileField, f.name)
+		if err != nil {
+			a.t.Fatal(err)
+		}
+		fw.Write(f.data)
 	}
-	fw.Write(data)
 	mw.Close()
 	req, _ := http.NewRequest("POST", a.ts.URL+path, &body)
 	req.Header.Set("Content-Type", mw.FormDataContentType())

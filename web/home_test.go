@@ -47,7 +47,9 @@ func TestHomeShowsCountsFromDatabase(t *testing.T) {
 	}
 	for _, want := range []string{
 		`data-testid="tile-participants"><div class="num">7<`,
-		`data-testid="tile-active"><div class="num">6<`,
+		`data-testid="tile-active"><a href="/participants?status=active"><div class="num">6<`,
+		`data-testid="tile-withdrawn"><a href="/participants?status=withdrawn"><div class="num">1<`,
+		`data-testid="tile-completed"><a href="/participants?status=completed"><div class="num">0<`,
 		`data-testid="tile-sites"><div class="num">2<`,
 		`data-testid="cautions"`,
 	} {
@@ -59,7 +61,7 @@ func TestHomeShowsCountsFromDatabase(t *testing.T) {
 
 func TestHealthAndReadiness(t *testing.T) {
 	a := newApp(t)
-	for _, p := range []string{"/healthz", "/readyz"} {
+	for _, p := range []string{"/health", "/ready"} {
 		if res, _ := get(t, a.ts.URL+p); res.StatusCode != 200 {
 			t.Errorf("%s: status %d", p, res.StatusCode)
 		}
@@ -71,14 +73,14 @@ type downStore struct{ Store }
 
 func (downStore) Ping(context.Context) error { return errors.New("connection refused") }
 
-func TestReadyzIs503WhenDatabaseIsDown(t *testing.T) {
+func TestReadyIs503WhenDatabaseIsDown(t *testing.T) {
 	ts := httptest.NewServer(New(Config{Store: downStore{}}).Handler())
 	defer ts.Close()
-	if res, _ := get(t, ts.URL+"/readyz"); res.StatusCode != http.StatusServiceUnavailable {
+	if res, _ := get(t, ts.URL+"/ready"); res.StatusCode != http.StatusServiceUnavailable {
 		t.Fatalf("status %d, want 503", res.StatusCode)
 	}
-	if res, _ := get(t, ts.URL+"/healthz"); res.StatusCode != 200 {
-		t.Fatalf("healthz status %d, want 200 while the process runs", res.StatusCode)
+	if res, _ := get(t, ts.URL+"/health"); res.StatusCode != 200 {
+		t.Fatalf("health status %d, want 200 while the process runs", res.StatusCode)
 	}
 }
 

@@ -17,13 +17,16 @@ import (
 
 type importStore interface {
 	ImportReadings(ctx context.Context, a cohort.Actor, r io.Reader, o db.ImportOptions) (db.ImportReport, error)
+	BeginImport(ctx context.Context, a cohort.Actor, kind, fileName string) (int64, error)
+	ReceivingImport(ctx context.Context, id, bytes int64) error
+	FailImport(ctx context.Context, id int64, message string) error
 	Import(ctx context.Context, id int64) (db.ImportReport, error)
 	Imports(ctx context.Context, limit int) ([]db.ImportReport, error)
 	EachReject(ctx context.Context, importID int64, fn func(db.Reject) error) error
 }
 
-// maxUploadBytes bounds one upload; imports stream, so this guards the disk
-// of the database rather than the server's memory.
+// maxUploadBytes bounds one upload; uploads are spooled to the temporary
+// folder and imports stream, so this guards disk rather than memory.
 const maxUploadBytes = 8 << 30
 
 // statusTone is the badge tone of an import's or a background job's status,
@@ -69,9 +72,17 @@ func (s *Server) importNew(w http.ResponseWriter, r *http.Request) error {
 	return s.ok(w, r, views.ImportForm(views.ImportFormModel{Page: s.page(r, "Import wear data", "participants"), MaxBytes: humanBytes(maxUploadBytes)}))
 }
 
-// importCreate streams the uploaded file straight into the importer: the file
-// is never held whole in memory or on the server's disk.
+// importCreate receives the uploaded file whole (spooled to a temporary
+// file, never held in memory, with no database transaction open while it
+// arrives), then imports it. The import is on the list from the first byte,
+// with the bytes received so far.
 func (s *Server) importCreate(w http.ResponseWriter, r *http.Request) error {
+	u, _ := userFrom(r.Context())
+	release, ok := s.uploads.take(u.ID)
+	if !ok {
+		return errTooManyUploads
+	}
+	defer release()
 	r.Body = http.MaxBytesReader(w, r.Body, maxUploadBytes)
 	mr, err := r.MultipartReader()
 	if err != nil {
@@ -117,18 +128,25 @@ func (s *Server) importPart(w http.ResponseWriter, r *http.Request, part *multip
 	if name == "" {
 		return s.renderImportForm(w, r, fieldError("file", "Choose a file to import."))
 	}
-	rep, err := s.store.ImportReadings(r.Context(), s.actor(r), part, db.ImportOptions{Kind: kind, FileName: name, Size: r.ContentLength})
+	ctx := r.Context()
+	id, err := s.store.BeginImport(ctx, s.actor(r), kind, name)
 	if err != nil {
-		if rep.ID == 0 {
-			return uploadErr(err)
-		}
+		return err
+	}
+	f, size, err := spool(ctx, part, func(n int64) { _ = s.store.ReceivingImport(context.WithoutCancel(ctx), id, n) })
+	if err != nil {
+		msg := "the upload did not arrive whole; nothing from this file was stored - send it again"
 		var mbe *http.MaxBytesError
 		if errors.As(err, &mbe) {
-			return uploadErr(err)
+			msg = fmt.Sprintf("the file is larger than %s; nothing was stored - split it into several files", humanBytes(mbe.Limit))
 		}
-		if errors.Is(err, db.ErrUnavailable) {
-			return err // nothing was stored; the failed import is on the list
-		}
+		_ = s.store.FailImport(context.WithoutCancel(ctx), id, msg)
+		return uploadErr(err)
+	}
+	defer removeSpool(f)
+	rep, err := s.store.ImportReadings(ctx, s.actor(r), f, db.ImportOptions{Kind: kind, FileName: name, Size: size, ID: id})
+	if err != nil && errors.Is(err, db.ErrUnavailable) {
+		return err // nothing was stored; the failed import is on the list
 	}
 	http.Redirect(w, r, fmt.Sprintf("/imports/%d", rep.ID), http.StatusSeeOther)
 	return nil

@@ -210,7 +210,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	// Coordinator: triage, take, call, ship.
 	tb.signIn(cohort.Coordinator)
 	tb.follow("triage lists the new flag", `[data-testid="nav-triage"]`, `[data-testid="group-new"] `+row)
-	if got := b.Text("study ID on the row", row+` a[data-row-key="o"]`); got != f.sid {
+	if got := b.Text("study ID on the row", row+` a[data-row-focus]`); got != f.sid {
 		t.Fatalf("the new case's row shows %q, want %s", got, f.sid)
 	}
 	b.Do("take the case",
@@ -233,7 +233,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	)
 
 	// Coordinator: the case page, a note with identifying text, the upload.
-	tb.follow("open the case page", row+` a[data-row-key="o"]`, `[data-testid="form-recording"]`)
+	tb.follow("open the case page", row+` a[data-row-focus]`, `[data-testid="form-recording"]`)
 	b.Do("write a note", chromedp.SetValue(chromedp.ID("note"), "Call back on "+f.phone+", ask for "+f.name))
 	tb.follow("save the note", `[data-testid="form-note"] button`, `[data-testid="case-flash"]`)
 	c, err := a.store.Case(ctx, f.caseID)
@@ -249,7 +249,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	taken := c.FlaggedAt.In(st.Location()).Format("2006-01-02T15:04")
 	b.Do("upload the returned recording",
 		chromedp.SetUploadFiles(chromedp.ID("waveform"), []string{file}),
-		chromedp.SetValue(chromedp.ID("auto"), string(overread.AutoAF)),
+		chromedp.SetValue(chromedp.ID("auto"), string(overread.AutoSuggestsAF)),
 		chromedp.SetValue(chromedp.ID("taken_at"), taken),
 		chromedp.Click(chromedp.CSS(`[data-testid="add-recording"]`)),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="recording-flash"]`)),
@@ -291,6 +291,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	}
 	b.Do("choose AF",
 		chromedp.Click(chromedp.CSS(`input[name="rhythm"][value="af"]`)),
+		chromedp.SetValue(chromedp.ID("confidence"), "certain"),
 		chromedp.SetValue(chromedp.ID("comment"), "Irregularly irregular; the participant ("+f.phone+") was told."),
 	)
 	tb.follow("enter the over-read", `[data-testid="enter-over-read"]`, `[data-testid="readings"]`)
@@ -298,12 +299,18 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 		t.Fatalf("verdict after the over-read %q", v)
 	}
 
-	// Investigator: issue the summary from the exports page, sign it off.
+	// Investigator: issue the summary from the exports page, sign it off,
+	// counting the clicks (issue 19: eight before issuing led to the
+	// sign-off and it asked twice).
+	clicks := 0
 	summary := fmt.Sprintf(`[data-testid="ready-table"] a[href="/participants/%d/referral?case=%d"]`, f.pid, f.caseID)
 	tb.follow("the case is due a summary", `[data-testid="nav-exports"]`, summary)
 	tb.follow("preview the summary", summary, `[data-testid="preview-mark"]`)
-	b.Do("choose the print view", chromedp.SetValue(chromedp.ID("format"), "html"))
-	tb.follow("issue the summary", `[data-testid="issue-referral"]`, `[data-testid="form-signoff"]`)
+	tb.follow("issue the summary: its record, a draft, with the sign-off", `[data-testid="issue-referral"]`, `[data-testid="form-signoff"]`)
+	clicks += 3
+	if !tb.has(`[data-testid="draft-mark"]`) {
+		t.Error("the issued summary is not marked as a draft before its sign-off")
+	}
 	refURL := b.Location()
 	code := deid.Code([]byte(testSecret), f.sid)
 	if got := b.Text("code", `[data-testid="referral-code"]`); got != code {
@@ -313,15 +320,23 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 		t.Errorf("digest check %q", got)
 	}
 	b.Do("tick the review box", chromedp.Click(chromedp.CSS(`[data-testid="form-signoff"] input[name="reviewed"]`)))
-	tb.follow("sign it off", `[data-testid="sign-off"]`, `[data-testid="signoff-state"]`)
+	tb.follow("sign it off", `[data-testid="sign-off"]`, `[data-testid="signed-mark"]`)
+	clicks += 2
+	t.Logf("sign off a referral: %d clicks from the exports link", clicks)
+	if clicks != 5 {
+		t.Errorf("signing off took %d clicks, want 5", clicks)
+	}
 	if tb.has(`[data-testid="form-signoff"]`) {
 		t.Fatal("the sign-off form is still offered after the sign-off")
 	}
-	if got := tb.confirmed(); len(got) != 1 || !strings.Contains(got[0], "mark the case referred") {
-		t.Errorf("confirmation dialogs %q, want the sign-off question", got)
+	if got := tb.confirmed(); len(got) != 0 {
+		t.Errorf("confirmation dialogs %q beside the review box: the sign-off asks twice", got)
 	}
 	if got := b.Text("sign-off", `[data-testid="signoff-state"]`); !strings.Contains(got, "Test Investigator") {
 		t.Errorf("sign-off shown as %q", got)
+	}
+	if got := b.Text("signed mark", `[data-testid="signed-mark"]`); !strings.Contains(got, "Signed off by Test Investigator") || tb.has(`[data-testid="draft-mark"]`) {
+		t.Errorf("the signed summary shows %q", got)
 	}
 	tb.follow("back to the case", fmt.Sprintf(`[data-testid="referral-tools"] a[href="/cases/%d"]`, f.caseID), `[data-testid="case-state"]`)
 	if got := b.Text("case state", `[data-testid="case-state"]`); got != "referred" {
@@ -362,25 +377,28 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 }
 
 // TestBrowserMonitorSeesNoPHI signs a monitor in and visits the main pages
-// and every canary participant's page of the demo (with confirmed cases
-// whose free text holds the canaries' names and phones) as the browser
-// renders them: neither the rendered text nor the page's markup holds any
-// canary value. Study IDs are not counted: monitors work by study ID. The
-// same visit as a coordinator does find the canary's name on the
-// participant page, so the check can see a leak.
+// and every canary participant's page of the demo, with a week's heart-rate
+// chart drawn, as the browser renders them. The canaries' cases hold their
+// names and phones in free text, and notes and a withdrawal reason planted on
+// top repeat name, phone, birth date, street and ZIP (plantMonitorFixture):
+// neither the rendered text nor the page's markup (the chart's options and
+// the SVG it draws included) holds any canary value, the planted free text
+// or a participant's calendar date in any common form. Study IDs are not
+// counted: monitors work by study ID. The same visit as a coordinator does
+// find the canary's name, the free text and the dates, so the check can see
+// a leak.
 func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 	a := newApp(t)
-	study, _, pids, _ := demoCanaries(t, a)
-	canaries := monitorCanaries(study)
+	f := plantMonitorFixture(t, a)
 	tb := newTab(t, a, 3*time.Minute)
-	pages := []string{"/", "/participants", "/cases", "/confirmations", "/confirmations/statistics", "/progress"}
-	sids := make([]string, 0, len(pids))
-	for sid := range pids {
+	pages := []string{"/", "/participants", "/participants?sort=enrolled", "/cases", "/confirmations", "/confirmations/statistics", "/progress", "/progress/report"}
+	sids := make([]string, 0, len(f.pids))
+	for sid := range f.pids {
 		sids = append(sids, sid)
 	}
 	slices.Sort(sids)
 	for _, sid := range sids {
-		pages = append(pages, fmt.Sprintf("/participants/%d", pids[sid]))
+		pages = append(pages, fmt.Sprintf("/participants/%d", f.pids[sid]), fmt.Sprintf("/participants/%d?week=2", f.pids[sid]))
 	}
 
 	tb.signIn(cohort.Monitor)
@@ -389,11 +407,17 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 		if st := tb.status(); st != 200 {
 			t.Errorf("monitor at %s: status %d", p, st)
 		}
-		if leaks := leaksIn(tb.visibleText(), canaries); len(leaks) > 0 {
-			t.Errorf("monitor sees PHI on %s: %v", p, leaks)
+		text, markup := tb.visibleText(), tb.markup()
+		if leaks := leaksIn(text, f.canaries); len(leaks) > 0 {
+			t.Errorf("monitor sees PHI or staff free text on %s: %v", p, leaks)
 		}
-		if leaks := leaksIn(tb.markup(), canaries); len(leaks) > 0 {
-			t.Errorf("the markup sent to a monitor on %s holds PHI: %v", p, leaks)
+		if leaks := leaksIn(markup, f.canaries); len(leaks) > 0 {
+			t.Errorf("the markup sent to a monitor on %s holds PHI or staff free text: %v", p, leaks)
+		}
+		for _, page := range []string{text, markup} {
+			if leaks := dateLeaks(page, "", f.today); len(leaks) > 0 {
+				t.Errorf("monitor sees participants' dates on %s: %v", p, leaks[:min(len(leaks), 5)])
+			}
 		}
 	}
 	if tb.has(`[data-testid="nav-triage"]`) {
@@ -401,9 +425,11 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 	}
 
 	tb.signIn(cohort.Coordinator)
-	tb.open(fmt.Sprintf("/participants/%d", pids[sids[0]]), "main")
-	if len(leaksIn(tb.visibleText(), canaries)) == 0 {
-		t.Fatal("a coordinator sees no canary value on a canary's page either: the check cannot tell a leak")
+	tb.open(fmt.Sprintf("/participants/%d?week=2", f.pids[sids[0]]), "main")
+	text, markup := tb.visibleText(), tb.markup()
+	if len(leaksIn(text, f.canaries)) == 0 || !strings.Contains(text, freeTextMarker) || len(dateLeaks(text, "", f.today)) == 0 ||
+		len(dateLeaks(markup, "", f.today)) == 0 {
+		t.Fatal("a coordinator sees no canary value, free text or date on a canary's page either: the check cannot tell a leak")
 	}
 }
 
@@ -412,7 +438,7 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 func monitorCanaries(study *demo.Study) []string {
 	var out []string
 	for _, c := range study.CanaryValues() {
-		if c.Field != "study_id" {
+		if c.HiddenFromMonitors() {
 			out = append(out, c.Value)
 		}
 	}

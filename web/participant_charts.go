@@ -63,7 +63,7 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, sheet db.P
 				threshold = res.Result.Windows[wi].Threshold // a personal baseline may have raised it
 			}
 		}
-		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli())
+		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli(), disclosureOf(r))
 		if err != nil {
 			return err
 		}
@@ -112,10 +112,13 @@ func contains(list []string, s string) bool {
 
 // hrChart draws a week's cleaned heart rate on a time axis with the irregular
 // windows of the protocol's window size wi shaded, and returns how many
-// windows were irregular.
-func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64) (components.ChartModel, []string, int, error) {
+// windows were irregular. The axis is the disclosure's: calendar time, or
+// study days for a role that sees no dates (the chart's data then holds no
+// timestamp).
+func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64, d disclosure) (components.ChartModel, []string, int, error) {
 	cleaned, _ := screen.Clean(w, p, now)
 	pr := screen.Prepare(&cleaned, p)
+	x, xAxis := d.timeAxis(w.Week, cleaned.Start, cleaned.End)
 	rule := p.Windows[wi]
 	l := int64(rule.Minutes) * 60_000
 	var areas [][]opts.MarkAreaData
@@ -123,7 +126,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 	runStart := int64(-1)
 	closeRun := func(end int64) {
 		if runStart >= 0 && len(areas) < maxAreas {
-			areas = append(areas, []opts.MarkAreaData{{XAxis: runStart}, {XAxis: end}})
+			areas = append(areas, []opts.MarkAreaData{{XAxis: x(runStart)}, {XAxis: x(end)}})
 		}
 		runStart = -1
 	}
@@ -142,13 +145,13 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 
 	hr := cleaned.HR
 	var pts []opts.LineData
-	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{t, "-"}}) }
+	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{x(t), "-"}}) }
 	if hr.Len() <= maxHRPoints {
 		for i, t := range hr.T {
 			if i > 0 && t-hr.T[i-1] > 10*60_000 {
 				gap(t - 1)
 			}
-			pts = append(pts, opts.LineData{Value: []any{t, hr.V[i]}})
+			pts = append(pts, opts.LineData{Value: []any{x(t), hr.V[i]}})
 		}
 	} else {
 		// Means over fixed buckets aligned to the week's start.
@@ -157,7 +160,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		flush := func() {
 			if n > 0 {
 				t := cleaned.Start + bucket*hrBucketMs + hrBucketMs/2
-				pts = append(pts, opts.LineData{Value: []any{t, math.Round(float64(sum)/float64(n)*10) / 10}})
+				pts = append(pts, opts.LineData{Value: []any{x(t), math.Round(float64(sum)/float64(n)*10) / 10}})
 			}
 		}
 		for i, t := range hr.T {
@@ -179,15 +182,16 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		charts.WithInitializationOpts(chartInit("hr-chart")),
 		charts.WithAnimation(false),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
-		charts.WithXAxisOpts(opts.XAxis{Type: "time", Min: cleaned.Start, Max: cleaned.End}),
+		charts.WithXAxisOpts(xAxis),
 		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value", Scale: opts.Bool(true)}),
 		charts.WithDataZoomOpts(opts.DataZoom{Type: "inside"}, opts.DataZoom{Type: "slider"}),
 	)
 	line.AddSeries("Heart rate", pts,
 		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
-		charts.WithLineStyleOpts(opts.LineStyle{Width: 1}),
+		charts.WithLineStyleOpts(opts.LineStyle{Width: 1, Color: chartColour(chartMeasure)}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: chartColour(chartMeasure)}),
 		charts.WithMarkAreaData(areas...),
-		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: "rgba(200, 60, 50, 0.18)"}}),
+		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: chartColour(chartPositive), Opacity: opts.Float(0.18)}}),
 	)
 	label := fmt.Sprintf("Heart rate in study week %d with %d irregular %d-minute windows shaded", w.Week, irregular, rule.Minutes)
 	c, sc, err := chartView("hr-chart", label, line, true)
@@ -198,8 +202,16 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 // share of irregular windows, with the threshold for comparison.
 func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (components.ChartModel, []string, error) {
 	var x []string
-	var masd, share, threshold []opts.LineData
+	var masd, share, threshold, pos, neg []opts.LineData
 	for _, r := range results {
+		// The week's verdict as a mark at the bottom of the share axis.
+		mark := func(v screen.Verdict) opts.LineData {
+			if screen.Verdict(r.Verdict) == v {
+				return opts.LineData{Value: 0}
+			}
+			return opts.LineData{Value: "-"}
+		}
+		pos, neg = append(pos, mark(screen.Positive)), append(neg, mark(screen.Negative))
 		x = append(x, "week "+strconv.Itoa(r.Week))
 		if len(r.Result.Windows) <= wi || r.Result.Windows[wi].Usable == 0 {
 			masd = append(masd, opts.LineData{Value: "-"})
@@ -228,9 +240,15 @@ func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (compo
 		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value"}),
 	)
 	line.ExtendYAxis(opts.YAxis{Name: "% irregular", Type: "value", Min: 0, Max: 100, Position: "right"})
+	onShare := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})}
+	// Verdict marks: a symbol each, no line between them.
+	marks := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1, ShowSymbol: opts.Bool(true), Symbol: "rect", SymbolSize: 9}),
+		charts.WithLineStyleOpts(opts.LineStyle{Opacity: opts.Float(0)})}
 	line.SetXAxis(x).
-		AddSeries(fmt.Sprintf("Mean MASD, %d-min windows (bpm)", minutes), masd).
-		AddSeries("Threshold (bpm)", threshold, charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})).
-		AddSeries("Irregular windows (%)", share, charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1}))
+		AddSeries(fmt.Sprintf("Mean MASD, %d-min windows (bpm)", minutes), masd, paint(chartMeasure)...).
+		AddSeries("Threshold (bpm)", threshold, paint(chartThreshold)...).
+		AddSeries("Irregular windows (%)", share, with(onShare, paint(chartMeasure2))...).
+		AddSeries("Screen-positive week", pos, with(paint(chartPositive), marks)...).
+		AddSeries("Negative week", neg, with(paint(chartNegative), marks)...)
 	return chartView("trend-chart", fmt.Sprintf("Weekly mean MASD and share of irregular windows under %s", pv.Label()), line, false)
 }

@@ -2,16 +2,16 @@ package web
 
 import (
 	"context"
-	"encoding/csv"
 	"fmt"
 	"net/http"
-	"net/url"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/enrolment"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -21,6 +21,8 @@ import (
 type participantStore interface {
 	Sites(ctx context.Context) ([]db.Site, error)
 	Participants(ctx context.Context, f db.ParticipantFilter) (db.ParticipantPage, error)
+	FirstEnrolment(ctx context.Context) (cohort.Date, error)
+	ParticipantIDs(ctx context.Context, f db.ParticipantFilter) ([]int64, error)
 	Participant(ctx context.Context, id int64) (db.Participant, error)
 	Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (db.Identity, error)
 	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
@@ -43,37 +45,42 @@ func ageBand(p db.Participant, now time.Time) string {
 	return ageBands.Label(age)
 }
 
-// status is withdrawn, completed (past the study's weeks of wear data) or
-// active. followUpWeeks 0 means open-ended.
-func status(p db.Participant, followUpWeeks int, now time.Time) (string, components.Tone) {
-	if p.WithdrawnOn != nil {
-		return "withdrawn", components.Neutral
-	}
-	if followUpWeeks > 0 && !cohort.DateOf(now).Before(p.EnrolledOn.AddDays(7*followUpWeeks)) {
-		return "completed", components.Info
-	}
-	return "active", components.OK
+// statusDay is what a participant's status is read against: the study's
+// weeks of follow-up (0: open-ended) and today in the study's time zone,
+// as the store counts them (cohort.StatusOf).
+type statusDay struct {
+	weeks int
+	today cohort.Date
 }
 
-// followUpWeeks is the study's weeks of wear data per participant (0 when
-// unset or unreadable: treated as open-ended).
-func (s *Server) followUpWeeks(ctx context.Context) int {
+func (s *Server) statusDay(ctx context.Context) (statusDay, error) {
 	st, err := s.store.StudySettings(ctx)
 	if err != nil {
-		return 0
+		return statusDay{}, err
 	}
-	return st.FollowUpWeeks
+	return statusDay{weeks: st.FollowUpWeeks, today: cohort.DateOf(s.now().In(st.Location()))}, nil
 }
 
-// participantFilter reads the filter from the query string.
-func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
-	form := views.ParticipantFilterForm{Search: q.Get("q"), SiteID: q.Get("site"), Status: q.Get("status"),
-		PositiveWeeks: q.Get("positive"), OpenCase: q.Get("open_case") == "on", Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
-	f := db.ParticipantFilter{Search: form.Search, Status: form.Status, OpenCase: form.OpenCase, Sort: form.Sort,
-		Desc: form.Desc, After: q.Get("after"), WithNames: seesPHI}
-	f.SiteID, _ = strconv.Atoi(form.SiteID)
-	f.PositiveWeeks, _ = strconv.Atoi(form.PositiveWeeks)
-	return f, form
+// status is the participant's status (cohort.StatusOf) with its badge tone.
+func (d statusDay) status(p db.Participant) (cohort.ParticipantStatus, components.Tone) {
+	st := cohort.StatusOf(p.EnrolledOn, p.WithdrawnOn, d.weeks, d.today)
+	switch st {
+	case cohort.StatusWithdrawn:
+		return st, components.Neutral
+	case cohort.StatusCompleted:
+		return st, components.Info
+	}
+	return st, components.OK
+}
+
+// firstEnrolment is the study's first enrolment day when the request's role
+// sees enrolments as recruitment weeks counted from it; otherwise nothing is
+// read.
+func (s *Server) firstEnrolment(ctx context.Context, d disclosure) (cohort.Date, error) {
+	if d.dates {
+		return cohort.Date{}, nil
+	}
+	return s.store.FirstEnrolment(ctx)
 }
 
 func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, error) {
@@ -86,102 +93,6 @@ func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, er
 		opts[i] = views.Option{Value: strconv.Itoa(st.ID), Label: st.Code + " · " + st.Name}
 	}
 	return opts, sites, nil
-}
-
-func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error {
-	ctx := r.Context()
-	seesPHI := role(r).SeesPHI()
-	f, form := participantFilter(r.URL.Query(), seesPHI)
-	page, err := s.store.Participants(ctx, f)
-	if err != nil {
-		return err
-	}
-	sites, _, err := s.siteOptions(ctx)
-	if err != nil {
-		return err
-	}
-	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
-		CanEnrol: coordWork.allows(role(r)), Total: page.Total, AtLeast: page.AtLeast, Active: page.Active, Withdrawn: page.Withdrawn}
-	now := s.now()
-	fw := s.followUpWeeks(ctx)
-	ids := make([]int64, 0, len(page.Rows))
-	for _, p := range page.Rows {
-		st, tone := status(p.Participant, fw, now)
-		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: p.Sex.Label(),
-			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
-		if p.LastPositive != nil {
-			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
-		}
-		m.Rows = append(m.Rows, row)
-		ids = append(ids, p.ID)
-	}
-	if seesPHI && len(ids) > 0 {
-		// Names on a list are a view of PHI: record whose.
-		if err := s.store.Audit(ctx, s.actor(r), "participant.list_phi", "participant_list", "", nil, map[string]any{"participant_ids": ids}); err != nil {
-			return err
-		}
-	}
-	q := r.URL.Query()
-	if page.Next != "" {
-		q.Set("after", page.Next)
-		m.Next = "/participants?" + q.Encode()
-	}
-	if f.After != "" {
-		q.Del("after")
-		m.First = "/participants?" + q.Encode()
-	}
-	q.Del("after")
-	m.CSV = "/participants.csv?" + q.Encode()
-	return s.ok(w, r, views.Participants(m))
-}
-
-// participantsCSV streams the whole filtered list. Names and contact details
-// only for roles that see PHI; the download is audited.
-func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
-	ctx := r.Context()
-	seesPHI := role(r).SeesPHI()
-	f, _ := participantFilter(r.URL.Query(), seesPHI)
-	f.After, f.Limit = "", 500
-	if err := s.store.Audit(ctx, s.actor(r), "participant.export_list", "participant_list", "",
-		nil, map[string]any{"filter": r.URL.RawQuery, "with_phi": seesPHI}); err != nil {
-		return err
-	}
-	w.Header().Set("Content-Type", "text/csv; charset=utf-8")
-	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="participants-%s.csv"`, s.now().UTC().Format("20060102")))
-	cw := csv.NewWriter(w)
-	head := []string{"study_id", "site", "sex", "age_band", "enrolled_on", "status", "withdrawn_on", "last_positive_week", "open_cases"}
-	if seesPHI {
-		head = append(head, "name")
-	}
-	_ = cw.Write(head)
-	now := s.now()
-	fw := s.followUpWeeks(ctx)
-	for {
-		page, err := s.store.Participants(ctx, f)
-		if err != nil {
-			return err
-		}
-		for _, p := range page.Rows {
-			st, _ := status(p.Participant, fw, now)
-			withdrawn, last := "", ""
-			if p.WithdrawnOn != nil {
-				withdrawn = p.WithdrawnOn.String()
-			}
-			if p.LastPositive != nil {
-				last = strconv.Itoa(*p.LastPositive)
-			}
-			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), st, withdrawn, last, strconv.Itoa(p.OpenCases)}
-			if seesPHI {
-				rec = append(rec, csvSafe(p.Name))
-			}
-			_ = cw.Write(rec)
-		}
-		cw.Flush()
-		if page.Next == "" {
-			return cw.Error()
-		}
-		f.After = page.Next
-	}
 }
 
 func (s *Server) participantParam(r *http.Request) (db.Participant, error) {
@@ -202,39 +113,59 @@ func yesNo(b *bool) string {
 	return "no"
 }
 
-func verdictTone(v string) components.Tone {
+func verdictTone(v screen.Verdict) components.Tone {
 	switch v {
-	case "positive":
+	case screen.Positive:
 		return components.Alarm
-	case "negative":
+	case screen.Negative:
 		return components.OK
-	case "insufficient":
-		return components.Neutral
 	}
 	return components.Neutral
 }
 
 func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
+	q := readQuery(r.URL.Query())
+	chartWeek, chosen := q.number("week", 0, maxStudyWeek, "study week")
+	if err := q.err(); err != nil {
+		return err
+	}
 	p, err := s.participantParam(r)
 	if err != nil {
 		return err
 	}
-	st, tone := status(p, s.followUpWeeks(ctx), s.now())
-	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st, StatusTone: tone,
+	d := disclosureOf(r)
+	first, err := s.firstEnrolment(ctx, d)
+	if err != nil {
+		return err
+	}
+	day, err := s.statusDay(ctx)
+	if err != nil {
+		return err
+	}
+	st, tone := day.status(p)
+	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st.Label(), StatusTone: tone,
 		CanEdit: coordWork.allows(role(r)), CanNote: caseWork.allows(role(r)), Withdrawn: p.WithdrawnOn != nil}
 	m.Facts = []views.Fact{
 		{Label: "Site", Value: p.SiteCode},
 		{Label: "Sex", Value: p.Sex.Label()},
 		{Label: "Age band", Value: ageBand(p, s.now())},
-		{Label: "Enrolled", Value: p.EnrolledOn.String()},
-		{Label: "Time zone", Value: p.TimeZone},
+		{Label: "Enrolled", Value: d.enrolment(first, p.EnrolledOn)},
 		{Label: "Consent version", Value: p.ConsentVersion},
 		{Label: "Watch", Value: p.WatchModel},
 		{Label: "Beat intervals", Value: map[bool]string{true: "supplied by the watch", false: "not supplied"}[p.RRCapable]},
 	}
+	if role(r).SeesPHI() {
+		// A time zone can name an area smaller than a state (a county's
+		// zone): geography, shown with the other identifying details' rule.
+		m.Facts = slices.Insert(m.Facts, 4, views.Fact{Label: "Time zone", Value: p.TimeZone})
+	}
 	if p.WithdrawnOn != nil {
-		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: p.WithdrawnOn.String() + " (" + p.WithdrawalReason + ")"})
+		withdrawn := d.day(p.EnrolledOn, *p.WithdrawnOn)
+		if reason := d.text(p.WithdrawalReason); reason != "" {
+			withdrawn += " (" + reason + ")"
+		}
+		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: withdrawn})
 	}
 	m.Risk = []views.Fact{
 		{Label: "High blood pressure", Value: yesNo(p.Risk.Hypertension)},
@@ -261,19 +192,14 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	lines := sheet.Lines
-	chartWeek := -1
-	if wk, err := strconv.Atoi(r.URL.Query().Get("week")); err == nil {
-		chartWeek = wk
-	}
-	if chartWeek < 0 {
+	if !chosen {
 		chartWeek = defaultChartWeek(lines)
 	}
 	m.ChartWeek = chartWeek
 	loc := p.Location()
 	for _, l := range lines {
-		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
-		row := views.TimelineRow{Week: l.Week, Dates: start.Format("Jan 2") + " – " + end.AddDate(0, 0, -1).Format("Jan 2"), Readings: l.Readings,
-			Verdict: l.Verdict, Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
+		row := views.TimelineRow{Week: l.Week, Dates: d.weekSpan(p.EnrolledOn, loc, l.Week), Readings: l.Readings,
+			Verdict: l.Verdict.Label(), Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
 			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
 		if l.WearHours > 0 {
 			row.WearHours = strconv.FormatFloat(l.WearHours, 'f', 1, 64)
@@ -286,18 +212,24 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err := s.participantCharts(r, p, sheet, &m); err != nil {
 		return err
 	}
-	for _, n := range sheet.Notes {
-		m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
+	m.NotesHidden = !d.dates
+	if d.dates {
+		for _, n := range sheet.Notes {
+			m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
+		}
 	}
 	return s.ok(w, r, views.ParticipantPage(m))
 }
+
+// maxStudyWeek bounds the study week a page may ask for: twenty years.
+const maxStudyWeek = 1043
 
 // defaultChartWeek is the latest screen-positive week, else the latest week
 // with readings.
 func defaultChartWeek(lines []db.WeekLine) int {
 	best := -1
 	for _, l := range lines {
-		if l.Verdict == "positive" {
+		if l.Verdict == screen.Positive {
 			best = l.Week
 		}
 	}
@@ -342,14 +274,33 @@ func (s *Server) participantInput(r *http.Request) (db.ParticipantInput, error) 
 	return in, f.check(func() error { return in.Check(cohort.DateOf(s.now())) })
 }
 
-func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
+// participantForm shows the enrolment or edit form, with the sites to
+// choose from, at status (200, or a refusal's).
+func (s *Server) participantForm(w http.ResponseWriter, r *http.Request, status int, m views.ParticipantFormModel) error {
 	sites, _, err := s.siteOptions(r.Context())
 	if err != nil {
 		return err
 	}
-	vals := map[string]string{"enrolled_on": s.now().Format("2006-01-02"), "sex": "U"}
-	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
-		Action: "/participants", Heading: "Enrol a participant", Values: vals, Sites: sites, ShowPHI: true}))
+	m.Sites, m.ShowPHI = sites, true
+	s.render(w, r, status, views.ParticipantForm(m))
+	return nil
+}
+
+// enrolForm is the enrolment form's model around the values shown.
+func (s *Server) enrolForm(r *http.Request, vals, errs map[string]string) views.ParticipantFormModel {
+	return views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"), Action: "/participants",
+		Heading: "Enrol a participant", Values: vals, Errors: errs}
+}
+
+// editForm is the edit form's model of p around the values shown.
+func (s *Server) editForm(r *http.Request, p db.Participant, version int, vals, errs map[string]string) views.ParticipantFormModel {
+	return views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"), Action: fmt.Sprintf("/participants/%d/edit", p.ID),
+		Heading: "Edit " + p.StudyID, Values: vals, Errors: errs, Version: version}
+}
+
+func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
+	vals := map[string]string{"enrolled_on": s.now().Format("2006-01-02"), "sex": string(cohort.Unknown)}
+	return s.participantForm(w, r, http.StatusOK, s.enrolForm(r, vals, nil))
 }
 
 // participantClash words a clash of an enrolment with a stored record.
@@ -369,13 +320,7 @@ func (s *Server) participantCreate(w http.ResponseWriter, r *http.Request) error
 		if !ok {
 			return err
 		}
-		sites, _, serr := s.siteOptions(r.Context())
-		if serr != nil {
-			return serr
-		}
-		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
-			Action: "/participants", Heading: "Enrol a participant", Values: f.Values, Errors: f.Fields, Sites: sites, ShowPHI: true}))
-		return nil
+		return s.participantForm(w, r, f.Status, s.enrolForm(r, f.Values, f.Fields))
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil
@@ -387,10 +332,6 @@ func (s *Server) participantEdit(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	id, err := s.store.Identity(r.Context(), s.actor(r), p.ID, "edit form")
-	if err != nil {
-		return err
-	}
-	sites, _, err := s.siteOptions(r.Context())
 	if err != nil {
 		return err
 	}
@@ -412,8 +353,7 @@ func (s *Server) participantEdit(w http.ResponseWriter, r *http.Request) error {
 	if id.BirthDate != nil {
 		vals["birth_date"] = id.BirthDate.String()
 	}
-	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
-		Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: vals, Sites: sites, Version: p.Version, ShowPHI: true}))
+	return s.participantForm(w, r, http.StatusOK, s.editForm(r, p, p.Version, vals, nil))
 }
 
 func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error {
@@ -433,13 +373,7 @@ func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error
 		if !ok {
 			return err
 		}
-		sites, _, serr := s.siteOptions(r.Context())
-		if serr != nil {
-			return serr
-		}
-		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
-			Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: f.Values, Errors: f.Fields, Sites: sites, Version: in.Version, ShowPHI: true}))
-		return nil
+		return s.participantForm(w, r, f.Status, s.editForm(r, p, in.Version, f.Values, f.Fields))
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil

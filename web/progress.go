@@ -4,13 +4,11 @@ import (
 	"context"
 	"fmt"
 	"net/http"
-	"net/url"
-	"strconv"
 	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
-	"cohortdesk/cohort/stats"
+	"cohortdesk/cohort/enrolment"
 	"cohortdesk/db"
 	"cohortdesk/views"
 
@@ -21,7 +19,7 @@ import (
 )
 
 type progressStore interface {
-	Enrolment(ctx context.Context, asOf cohort.Date) (db.EnrolmentHistory, error)
+	Enrolment(ctx context.Context, asOf cohort.Date) (enrolment.History, error)
 	DataSufficiency(ctx context.Context) ([]db.SufficiencyWeek, error)
 	SilentParticipants(ctx context.Context, days int, after string, limit int) (db.SilentPage, error)
 	Pending(ctx context.Context) (db.FiguresPending, error)
@@ -41,14 +39,13 @@ const silentPageSize = 25
 // defaultWindow is the weeks of history the projection uses unless asked.
 const defaultWindow = 8
 
-// windowOf reads the projection's weeks of history, the default when the
-// value is missing or out of range (the page's own form keeps it in range).
-func windowOf(q url.Values) int {
-	w, err := strconv.Atoi(q.Get("window"))
-	if err != nil || w < 2 || w > db.TrailingWeeks {
-		return defaultWindow
+// windowOf reads the projection's weeks of history: the default when the
+// parameter is missing, refused when it is out of range.
+func windowOf(q *query) int {
+	if w, ok := q.number("window", 2, enrolment.TrailingWeeks, "weeks of history"); ok {
+		return w
 	}
-	return w
+	return defaultWindow
 }
 
 // freshness says, when kept figures wait to be computed, how current the
@@ -68,75 +65,40 @@ func freshness(p db.FiguresPending, now time.Time) string {
 		who, p.Since.UTC().Format("15:04 UTC"))
 }
 
-// enrolFig is one site's (or the study's) enrolment against target with its
-// projection: the figures behind a row of the enrolment table on the
-// progress page, the weekly report and its CSV.
+// enrolFig is one row of the enrolment table on the progress page, the
+// weekly report and its CSV: a site's (or the study's) figures
+// (enrolment.History.Project) with the words that name it.
 type enrolFig struct {
-	label     string
-	key       string // site code, or "all"
-	target    int
-	enrolled  int
-	withdrawn int
-	proj      stats.Projection
-	projected bool   // proj holds a projection
-	why       string // why there is none
-}
-
-// enrolmentFigures projects the date the target is reached from the
-// enrolments in the last window seven-day periods up to the history's day
-// (fewer when the study is younger than that).
-func enrolmentFigures(label, key string, enrolled, withdrawn, target int, trailing []int, window int, h db.EnrolmentHistory) enrolFig {
-	f := enrolFig{label: label, key: key, target: target, enrolled: enrolled, withdrawn: withdrawn}
-	window = min(window, h.Periods, len(trailing))
-	switch {
-	case target == 0:
-		f.why = "no target set"
-		return f
-	case window == 0:
-		f.why = "no enrolment yet"
-		return f
-	}
-	p, err := stats.ProjectEnrolment(h.Today, enrolled, target, trailing[len(trailing)-window:], 0.95)
-	if err != nil {
-		f.why = "cannot project: " + err.Error()
-		return f
-	}
-	f.proj, f.projected = p, true
-	return f
+	label string
+	key   string // site code, or "all"
+	enrolment.Figures
 }
 
 // studyFigures is every site's row and the total row.
-func studyFigures(h db.EnrolmentHistory, window int) ([]enrolFig, enrolFig) {
-	var rows []enrolFig
-	trailing := make([]int, db.TrailingWeeks)
-	var enrolled, withdrawn, target int
-	for _, se := range h.Sites {
-		rows = append(rows, enrolmentFigures(se.Code+" · "+se.Name, se.Code, se.Enrolled, se.Withdrawn, se.Target, se.Trailing, window, h))
-		for i, c := range se.Trailing {
-			trailing[i] += c
-		}
-		enrolled += se.Enrolled
-		withdrawn += se.Withdrawn
-		target += se.Target
+func studyFigures(h enrolment.History, window int) ([]enrolFig, enrolFig) {
+	sites, total := h.Project(window)
+	rows := make([]enrolFig, len(sites))
+	for i, f := range sites {
+		rows[i] = enrolFig{label: f.Site.Code + " · " + f.Site.Name, key: f.Site.Code, Figures: f}
 	}
-	return rows, enrolmentFigures("All sites", "all", enrolled, withdrawn, target, trailing, window, h)
+	return rows, enrolFig{label: "All sites", key: "all", Figures: total}
 }
 
 // percent is enrolled as a share of the target, "" without one.
 func (f enrolFig) percent() string {
-	if f.target <= 0 {
+	if f.Site.Target <= 0 {
 		return ""
 	}
-	return fmt.Sprintf("%.0f%%", 100*float64(f.enrolled)/float64(f.target))
+	return fmt.Sprintf("%.0f%%", 100*float64(f.Enrolled)/float64(f.Site.Target))
 }
 
 // dates words the projection: the expected date and the range of the
 // interval's scenarios.
 func (f enrolFig) dates() (projection, earliest, latest string) {
-	if !f.projected {
-		return f.why, "", ""
+	if !f.Projected {
+		return f.Why, "", ""
 	}
-	p := f.proj
+	p := f.Projection
 	switch {
 	case p.Met:
 		return "target reached", "", ""
@@ -156,11 +118,11 @@ func (f enrolFig) dates() (projection, earliest, latest string) {
 }
 
 func (f enrolFig) row() views.EnrolmentRow {
-	row := views.EnrolmentRow{Key: f.key, Label: f.label, Target: f.target, Enrolled: f.enrolled, Withdrawn: f.withdrawn, Percent: f.percent()}
+	row := views.EnrolmentRow{Key: f.key, Label: f.label, Target: f.Site.Target, Enrolled: f.Enrolled, Withdrawn: f.Withdrawn, Percent: f.percent()}
 	var earliest, latest string
 	row.Projection, earliest, latest = f.dates()
-	if f.projected {
-		p := f.proj
+	if f.Projected {
+		p := f.Projection
 		row.Rate = fmt.Sprintf("%.1f a week (95%% CI %.1f–%.1f) over %d weeks", p.Expected.RatePerWeek, p.Pessimistic.RatePerWeek, p.Optimistic.RatePerWeek, p.Window)
 		if !p.Met && p.Expected.Reachable && earliest != "" {
 			row.Range = earliest + " to " + latest
@@ -170,11 +132,15 @@ func (f enrolFig) row() views.EnrolmentRow {
 }
 
 func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
-	window := windowOf(r.URL.Query())
+	q := readQuery(r.URL.Query())
+	window := windowOf(q)
+	if err := q.err(); err != nil {
+		return err
+	}
 	// The page's four reads are independent; made side by side, the page
 	// takes about as long as the slowest of them instead of their sum.
 	var (
-		h       db.EnrolmentHistory
+		h       enrolment.History
 		suff    []db.SufficiencyWeek
 		silent  db.SilentPage
 		pending db.FiguresPending
@@ -189,6 +155,9 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	})
 	g.Go(func() (err error) { pending, err = s.store.Pending(ctx); return err })
 	g.Go(func() (err error) { section, err = s.progressCascade(ctx, r.URL.Query(), window); return err })
+	d := disclosureOf(r)
+	var first cohort.Date
+	g.Go(func() (err error) { first, err = s.firstEnrolment(ctx, d); return err })
 	if err := g.Wait(); err != nil {
 		return err
 	}
@@ -204,7 +173,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 			total[i] += c
 		}
 	}
-	tTarget := all.target
+	tTarget := all.Site.Target
 
 	// Cumulative enrolment by week, one line per site plus the total, and the
 	// total target as a dashed line.
@@ -214,8 +183,8 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Bottom: "0"}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "participants"}))
 	labels := make([]string, len(h.Weeks))
-	for i, d := range h.Weeks {
-		labels[i] = d.String()
+	for i, wk := range h.Weeks {
+		labels[i] = d.calendarWeek(first, wk)
 	}
 	line.SetXAxis(labels)
 	cum := func(weekly []int) []opts.LineData {
@@ -227,16 +196,16 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		}
 		return out
 	}
-	for _, se := range h.Sites {
-		line.AddSeries(se.Code, cum(se.Weekly))
+	for i, se := range h.Sites {
+		line.AddSeries(se.Code, cum(se.Weekly), paintGroup(i)...)
 	}
-	line.AddSeries("all sites", cum(total))
+	line.AddSeries("all sites", cum(total), paint(chartTotal)...)
 	if tTarget > 0 {
 		tgt := make([]opts.LineData, len(labels))
 		for i := range tgt {
 			tgt[i] = opts.LineData{Value: tTarget}
 		}
-		line.AddSeries("target (all sites)", tgt, charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed"}))
+		line.AddSeries("target (all sites)", tgt, paint(chartThreshold)...)
 	}
 	ch, scripts, err := chartView("enrolment", "Cumulative enrolment by week for each site and in all, with the target", line, false)
 	if err != nil {
@@ -256,11 +225,12 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		if w.Active > 0 {
 			share = 100 * float64(w.Sufficient) / float64(w.Active)
 		}
-		sx = append(sx, w.Week.String())
+		label := d.calendarWeek(first, w.Week)
+		sx = append(sx, label)
 		sy = append(sy, opts.LineData{Value: fmt.Sprintf("%.1f", share)})
-		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Week: w.Week.String(), Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
+		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
 	}
-	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy)
+	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy, paint(chartMeasure)...)
 	sch, _, err := chartView("sufficiency", "Share of participant-weeks with enough usable wear, by calendar week", sl, false)
 	if err != nil {
 		return err
@@ -281,7 +251,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	for _, sp := range silent.Rows {
 		last := "never"
 		if sp.LastData != nil {
-			last = sp.LastData.Format("2006-01-02")
+			last = d.dayAt(sp.EnrolledOn, sp.Location(), *sp.LastData) // the day in the participant's zone
 		}
 		m.Silent = append(m.Silent, views.SilentRow{Href: fmt.Sprintf("/participants/%d", sp.ID), StudyID: sp.StudyID, Site: sp.SiteCode, Last: last, Days: sp.Days})
 	}

@@ -12,6 +12,8 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
+	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/enrolment"
 	"cohortdesk/db"
 	"cohortdesk/views"
 
@@ -26,13 +28,17 @@ type reportFigures struct {
 	cq        cascadeQuery
 	window    int
 	generated time.Time
-	hist      db.EnrolmentHistory
+	hist      enrolment.History
 	sites     []enrolFig
 	total     enrolFig
 	weeks     []db.SufficiencyWeek // the calendar weeks that overlap the period
 	weekSpan  string
 	cascade   cascade.Cascade
 	agree     cascade.Agreement
+	// disclose words the calendar weeks (dates, or recruitment weeks counted
+	// from first, the study's first enrolment) for the request's role.
+	disclose disclosure
+	first    cohort.Date
 }
 
 // readReport parses the report's choices and reads its figures.
@@ -43,11 +49,13 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	if err != nil {
 		return rf, nil, err
 	}
-	q := r.URL.Query()
-	if rf.cq, err = parseCascadeQuery(q, sites); err != nil {
+	q := readQuery(r.URL.Query())
+	readCascadeQuery(q, sites, &rf.cq)
+	rf.window, rf.generated = windowOf(q), s.now()
+	q.oneOf("paper", paperA4, paperLetter)
+	if err := q.err(); err != nil {
 		return rf, nil, err
 	}
-	rf.window, rf.generated = windowOf(q), s.now()
 	// The three reads are independent; made side by side, as on the
 	// progress page.
 	var weeks []db.SufficiencyWeek
@@ -55,6 +63,8 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	g.Go(func() (err error) { rf.hist, err = s.store.Enrolment(gctx, rf.cq.to); return err })
 	g.Go(func() (err error) { weeks, err = s.store.DataSufficiency(gctx); return err })
 	g.Go(func() (err error) { rf.cascade, rf.agree, err = s.store.Figures(gctx, rf.cq.filter); return err })
+	rf.disclose = disclosureOf(r)
+	g.Go(func() (err error) { rf.first, err = s.firstEnrolment(gctx, rf.disclose); return err })
 	if err := g.Wait(); err != nil {
 		return rf, nil, err
 	}
@@ -71,8 +81,11 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	switch {
 	case len(rf.weeks) == 0:
 		rf.weekSpan = "No completed participant-week in the period"
-	default:
+	case rf.disclose.dates:
 		rf.weekSpan = "Calendar weeks (Monday to Sunday) from " + rf.weeks[0].Week.String() + " to the week of " + rf.weeks[len(rf.weeks)-1].Week.String()
+	default:
+		rf.weekSpan = "Calendar weeks (Monday to Sunday), counted from the week of the study's first enrolment: from " +
+			rf.disclose.calendarWeek(rf.first, rf.weeks[0].Week) + " to " + rf.disclose.calendarWeek(rf.first, rf.weeks[len(rf.weeks)-1].Week)
 	}
 	return rf, sites, nil
 }
@@ -127,7 +140,7 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	paper := paperOf(r.URL.Query().Get("paper"))
+	paper := paperParam(readQuery(r.URL.Query()), paperA4) // refused already by readReport
 	m := views.ReportModel{Page: s.page(r, "Weekly report", "progress"), Paper: paper, Protocols: protocolOptions(rf.cascade.Versions),
 		ProtoID: strconv.Itoa(rf.cascade.Protocol.ID), SiteID: rf.cq.site, From: dateText(rf.cq.from), To: dateText(rf.cq.to), Window: rf.window,
 		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.String(),
@@ -158,7 +171,7 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.Total = rf.total.row()
 	for _, wk := range rf.weeks {
-		m.Weeks = append(m.Weeks, sufficiencyRow(wk.Week.String(), wk.Active, wk.Sufficient))
+		m.Weeks = append(m.Weeks, sufficiencyRow(rf.disclose.calendarWeek(rf.first, wk.Week), wk.Active, wk.Sufficient))
 	}
 	due, enough := rf.weeksTotal()
 	m.WeeksTotal = sufficiencyRow("All weeks shown", due, enough)
@@ -250,25 +263,33 @@ func (rf reportFigures) reportTables() []*csvTable {
 	for _, f := range append(append([]enrolFig{}, rf.sites...), rf.total) {
 		projected, earliest, latest := f.dates()
 		window, count, rate, lo, hi := "", "", "", "", ""
-		if f.projected {
-			window, count = strconv.Itoa(f.proj.Window), strconv.Itoa(f.proj.Count)
-			rate, lo, hi = num(f.proj.Expected.RatePerWeek), num(f.proj.Pessimistic.RatePerWeek), num(f.proj.Optimistic.RatePerWeek)
+		if f.Projected {
+			window, count = strconv.Itoa(f.Projection.Window), strconv.Itoa(f.Projection.Count)
+			rate, lo, hi = num(f.Projection.Expected.RatePerWeek), num(f.Projection.Pessimistic.RatePerWeek), num(f.Projection.Optimistic.RatePerWeek)
 		}
 		pctOf := ""
-		if f.target > 0 {
-			pctOf = num(float64(f.enrolled) / float64(f.target))
+		if f.Site.Target > 0 {
+			pctOf = num(float64(f.Enrolled) / float64(f.Site.Target))
 		}
-		enrol.add(csvSafe(f.key), csvSafe(names[f.key]), strconv.Itoa(f.target), strconv.Itoa(f.enrolled), strconv.Itoa(f.withdrawn), pctOf,
+		enrol.add(csvSafe(f.key), csvSafe(names[f.key]), strconv.Itoa(f.Site.Target), strconv.Itoa(f.Enrolled), strconv.Itoa(f.Withdrawn), pctOf,
 			window, count, rate, lo, hi, projected, earliest, latest)
 	}
 
-	suff := newCSVTable("sufficiency.csv", "week_monday", "participant_weeks_due", "with_enough_wear", "share")
+	weekCol := "week_monday"
+	if !rf.disclose.dates {
+		weekCol = "recruitment_week" // calendar weeks counted from the week of the first enrolment, no dates
+	}
+	suff := newCSVTable("sufficiency.csv", weekCol, "participant_weeks_due", "with_enough_wear", "share")
 	for _, w := range rf.weeks {
 		share := ""
 		if w.Active > 0 {
 			share = num(float64(w.Sufficient) / float64(w.Active))
 		}
-		suff.add(w.Week.String(), strconv.Itoa(w.Active), strconv.Itoa(w.Sufficient), share)
+		week := w.Week.String()
+		if !rf.disclose.dates {
+			week = strconv.Itoa(deid.RecruitmentWeek(rf.first, w.Week))
+		}
+		suff.add(week, strconv.Itoa(w.Active), strconv.Itoa(w.Sufficient), share)
 	}
 
 	boxes := newCSVTable("cascade.csv", "step", "box", "label", "participants", "flagged_episodes", "share_of_previous", "left", "in_progress")
@@ -314,8 +335,8 @@ func (rf reportFigures) reportTables() []*csvTable {
 	put("protocol", csvSafe(rf.cascade.Protocol.Label()))
 	put("enrolment_as_of", rf.hist.Today.String())
 	put("enrolled_in_period", strconv.Itoa(rf.cascade.Box("enrolled").Count()))
-	put("enrolled_total", strconv.Itoa(rf.total.enrolled))
-	put("target_total", strconv.Itoa(rf.total.target))
+	put("enrolled_total", strconv.Itoa(rf.total.Enrolled))
+	put("target_total", strconv.Itoa(rf.total.Site.Target))
 	due, enough := rf.weeksTotal()
 	put("participant_weeks_due", strconv.Itoa(due))
 	put("participant_weeks_enough_wear", strconv.Itoa(enough))
@@ -370,6 +391,11 @@ func (s *Server) progressReportZip(w http.ResponseWriter, r *http.Request) error
 			return err
 		}
 	}
+	cf, err := zipCautions(zw)
+	if err != nil {
+		return err
+	}
+	man.Files = append(man.Files, cf)
 	mj, err := json.MarshalIndent(man, "", "  ")
 	if err != nil {
 		return fmt.Errorf("web: report manifest: %w", err)

@@ -6,13 +6,16 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"maps"
 	"net/http"
 	"net/url"
+	"slices"
 	"strconv"
 	"strings"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
@@ -26,8 +29,9 @@ type referralStore interface {
 	referralissue.Store // the source of a summary and its record
 	Referral(ctx context.Context, id int64) (db.Referral, error)
 	Referrals(ctx context.Context, limit int) ([]db.Referral, error)
+	ReferralCounts(ctx context.Context) (issued, signed int, err error)
 	ReadyToRefer(ctx context.Context) ([]db.ReadyCase, error)
-	SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (db.Referral, error)
+	referralissue.Signer // the sign-off
 	ParticipantByStudyID(ctx context.Context, studyID string) (db.Participant, error)
 	RecordExport(ctx context.Context, a cohort.Actor, e db.Export) (db.Export, error)
 }
@@ -76,28 +80,45 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	caseID, err := caseQuery(r.URL.Query().Get("case"))
-	if err != nil {
+	q := readQuery(r.URL.Query())
+	caseID, paper := int64(0), paperParam(q, paperA4)
+	if q.get("case") != "0" { // 0: the participant alone, as the page's own links say
+		caseID = q.id("case", "case number")
+	}
+	if err := q.err(); err != nil {
 		return err
 	}
 	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
 	}
+	return s.renderPreview(w, r, http.StatusOK, pid, d, paper, nil, "")
+}
+
+// renderPreview shows a draft with its issue form: with the warning when the
+// participant has withdrawn, and with the refusal of an issue when there is
+// one.
+func (s *Server) renderPreview(w http.ResponseWriter, r *http.Request, status int, pid int64, d referralissue.Draft, paper string, errs map[string]string, msg string) error {
 	b, sum := d.Basis, d.Summary
-	paper := paperOf(r.URL.Query().Get("paper"))
 	base := fmt.Sprintf("/participants/%d/referral?case=%d&paper=", pid, b.CaseID)
 	m := s.referralModel(r, sum, paper, base)
 	m.Page.Title = "Referral summary (preview)"
 	m.Preview, m.IssueAction, m.CaseID = true, fmt.Sprintf("/participants/%d/referral", pid), b.CaseID
+	m.Errors, m.Message = errs, msg
+	if b.Withdrawal != nil {
+		m.Withdrawn = b.Withdrawal.Warning()
+	}
 	if b.CaseID != 0 {
 		m.CaseHref = fmt.Sprintf("/cases/%d", b.CaseID)
 	}
-	return s.ok(w, r, views.Referral(m))
+	s.render(w, r, status, views.Referral(m))
+	return nil
 }
 
 // referralIssue builds the summary, makes its PDF, records both digests and
-// the content, and shows the issued summary (or sends its PDF).
+// the content, and shows the issued summary (or sends its PDF). A summary of
+// a withdrawn participant needs the issuer's confirmation; without it the
+// preview comes back with the warning and nothing is recorded.
 func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	pid, err := idParam(r)
 	if err != nil {
@@ -110,25 +131,35 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	// An issued summary is a draft until an investigator signs it off, so
+	// issuing leads to its record, where the sign-off is (for investigators)
+	// and from where it prints. It is recorded as shown in the print view
+	// unless a PDF was asked for.
 	format := r.PostForm.Get("format")
-	if format != "html" {
-		format = "pdf"
+	if format != "pdf" {
+		format = "html"
 	}
 	paper := paperOf(r.PostForm.Get("paper"))
-	ref, _, err := s.issue(r.Context(), s.actor(r), pid, caseID, format, paper)
+	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
 	}
-	target := fmt.Sprintf("/referrals/%d", ref.ID)
-	if format == "pdf" {
-		target += "/pdf"
+	d.ConfirmedWithdrawn = r.PostForm.Get(referral.ConfirmWithdrawnField) == "yes"
+	ref, _, err := referralissue.Record(r.Context(), s.store, s.actor(r), d, format, paper)
+	if err != nil {
+		f, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		return s.renderPreview(w, r, f.Status, pid, d, paper, f.Fields, f.Message)
 	}
-	http.Redirect(w, r, target, http.StatusSeeOther)
+	http.Redirect(w, r, fmt.Sprintf("/referrals/%d?done=issued", ref.ID), http.StatusSeeOther)
 	return nil
 }
 
-// issue builds, draws and records one summary (referralissue); it returns
-// the record and the PDF.
+// issue builds, draws and records one summary (referralissue) without the
+// confirmation a withdrawn participant needs; it returns the record and the
+// PDF.
 func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, format, paper string) (db.Referral, []byte, error) {
 	d, err := s.draft(ctx, pid, caseID)
 	if err != nil {
@@ -137,8 +168,10 @@ func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, f
 	return referralissue.Record(ctx, s.store, a, d, format, paper)
 }
 
-// recorded reads an issued summary and its content back, with whether the
-// content still digests to the recorded value.
+// recorded reads an issued summary back as it now stands (the signed
+// content once signed off, else the content as issued), with whether that
+// content still digests to its recorded value, and the digest its PDF must
+// have.
 func (s *Server) recorded(r *http.Request) (db.Referral, referral.Summary, bool, error) {
 	id, err := idParam(r)
 	if err != nil {
@@ -148,12 +181,31 @@ func (s *Server) recorded(r *http.Request) (db.Referral, referral.Summary, bool,
 	if err != nil {
 		return ref, referral.Summary{}, false, err
 	}
-	sum, err := referral.Decode(ref.Content)
+	content, digest := currentContent(ref)
+	sum, err := referral.Decode(content)
 	if err != nil {
 		return ref, sum, false, err
 	}
 	d, err := referral.Digest(sum)
-	return ref, sum, err == nil && d == ref.ContentSHA256, err
+	return ref, sum, err == nil && d == digest, err
+}
+
+// currentContent is a record's content as it now stands and its recorded
+// digest: the signed content once signed off (summaries signed off before
+// drafts existed have none, and keep their content as issued).
+func currentContent(ref db.Referral) ([]byte, string) {
+	if len(ref.SignedContent) > 0 {
+		return ref.SignedContent, ref.SignedContentSHA256
+	}
+	return ref.Content, ref.ContentSHA256
+}
+
+// currentPDFDigest is the digest the record's PDF must have.
+func currentPDFDigest(ref db.Referral) string {
+	if ref.SignedPDFSHA256 != "" {
+		return ref.SignedPDFSHA256
+	}
+	return ref.PDFSHA256
 }
 
 // referralShow shows an issued summary drawn from its recorded content.
@@ -166,19 +218,26 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	if err != nil {
 		return err
 	}
-	paper := ref.Paper
-	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p)
+	q := readQuery(r.URL.Query())
+	paper := paperParam(q, ref.Paper)
+	q.oneOf("done", slices.Collect(maps.Keys(referralDone))...)
+	if err := q.err(); err != nil {
+		return err
 	}
 	m := s.referralModel(r, sum, paper, fmt.Sprintf("/referrals/%d?paper=", ref.ID))
 	m.Page.Title = "Referral summary " + sum.ReferralCode
 	m.PDFHref = fmt.Sprintf("/referrals/%d/pdf?paper=%s", ref.ID, paper)
 	m.Errors, m.Message = errs, msg
-	if msg == "" && r.URL.Query().Get("done") == "signoff" {
-		m.Page.Flash = "Signed off; the case is now referred."
+	if msg == "" {
+		m.Page.Flash = referralDone[r.URL.Query().Get("done")]
 	}
+	_, digest := currentContent(ref)
 	rec := &views.ReferralRecordView{ID: ref.ID, IssuedBy: ref.IssuedBy, IssuedAt: ref.IssuedAt.UTC().Format("2006-01-02 15:04 UTC"),
-		Format: ref.Format, Paper: paperLabel(ref.Paper), Digest: ref.ContentSHA256, DigestOK: ok, PDFDigest: ref.PDFSHA256}
+		Format: ref.Format, Paper: paperLabel(ref.Paper), Digest: digest, DigestOK: ok, PDFDigest: currentPDFDigest(ref),
+		Draft: sum.Status() == referral.Drafted}
+	if len(ref.SignedContent) > 0 {
+		rec.DraftDigest, rec.DraftPDFDigest = ref.ContentSHA256, ref.PDFSHA256
+	}
 	if ref.CaseID != 0 {
 		rec.CaseHref = fmt.Sprintf("/cases/%d", ref.CaseID)
 		m.CaseHref = rec.CaseHref
@@ -186,7 +245,11 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	if !ref.SignedOffAt.IsZero() {
 		rec.SignedOff = "by " + ref.SignedOffBy + " on " + ref.SignedOffAt.UTC().Format("2006-01-02 15:04 UTC")
 	}
-	if clinical.allows(role(r)) && rec.SignedOff == "" {
+	signs := followup.StepSignOff.By(role(r))
+	if !signs && rec.SignedOff == "" && ref.CaseID != 0 {
+		rec.SignOffNote = "An investigator signs this summary off on this page; it is not sent before."
+	}
+	if signs && rec.SignedOff == "" {
 		switch {
 		case ref.CaseID == 0:
 			rec.SignOffNote = "Made on request without a case: there is no case to refer."
@@ -201,6 +264,12 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	m.Record = rec
 	s.render(w, r, status, views.Referral(m))
 	return nil
+}
+
+// referralDone words what the last step on a summary did.
+var referralDone = map[string]string{
+	"issued":  "Summary issued as a draft. It is sent once an investigator has signed it off.",
+	"signoff": "Signed off; the case is now referred. The summary now names you as its signer.",
 }
 
 func paperLabel(p string) string {
@@ -220,16 +289,21 @@ func (s *Server) referralPDFFile(w http.ResponseWriter, r *http.Request) error {
 	if !ok {
 		return &cohort.PublicError{Message: "The recorded content of this summary no longer matches its digest; it is not sent.", Kind: cohort.ErrConflict}
 	}
-	paper := ref.Paper
-	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p)
+	name := "referral-" + sum.ReferralCode
+	if sum.Draft {
+		name += "-draft"
+	}
+	q := readQuery(r.URL.Query())
+	paper := paperParam(q, ref.Paper)
+	if err := q.err(); err != nil {
+		return err
 	}
 	pdf, err := referralPDF(sum, paper)
 	if err != nil {
 		return err
 	}
 	w.Header().Set("Content-Type", "application/pdf")
-	w.Header().Set("Content-Disposition", fmt.Sprintf(`inline; filename="referral-%s.pdf"`, sum.ReferralCode))
+	w.Header().Set("Content-Disposition", fmt.Sprintf(`inline; filename="%s.pdf"`, name))
 	w.Header().Set("Cache-Control", "no-store")
 	w.Header().Set("X-Content-SHA256", sha256Hex(pdf))
 	_, err = w.Write(pdf)
@@ -253,7 +327,7 @@ func (s *Server) referralSignOff(w http.ResponseWriter, r *http.Request) error {
 		msg := "confirm that you have reviewed the summary"
 		return s.renderRecorded(w, r, http.StatusUnprocessableEntity, map[string]string{"reviewed": msg}, "Please "+msg+".")
 	}
-	if _, err := s.store.SignOffReferral(r.Context(), s.actor(r), id); err != nil {
+	if _, err := referralissue.SignOff(r.Context(), s.store, s.actor(r), id); err != nil {
 		f, ok := refused(r, err, nil)
 		if !ok {
 			return err
@@ -267,7 +341,11 @@ func (s *Server) referralSignOff(w http.ResponseWriter, r *http.Request) error {
 // referralFind opens the summary preview of a participant named by study
 // ID, for summaries on request.
 func (s *Server) referralFind(w http.ResponseWriter, r *http.Request) error {
-	sid := strings.TrimSpace(r.URL.Query().Get("study_id"))
+	q := readQuery(r.URL.Query())
+	sid := q.text("study_id")
+	if err := q.err(); err != nil {
+		return err
+	}
 	p, err := s.store.ParticipantByStudyID(r.Context(), sid)
 	if err != nil {
 		if !errors.Is(err, cohort.ErrNotFound) {
@@ -324,7 +402,7 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 	}
 	a := s.actor(r)
 	man := batchManifest{Kind: "referral summaries", Paper: paperLabel(paper), ReviewCaution: deid.ReviewCaution}
-	buf, err := newSpool()
+	buf, err := newDownloadFile()
 	if err != nil {
 		return err
 	}
@@ -341,6 +419,9 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 		}
 		man.Summaries = append(man.Summaries, e)
 		man.ReferralIDs = append(man.ReferralIDs, ref.ID)
+	}
+	if _, err := zipCautions(zw); err != nil {
+		return err
 	}
 	inZip := man
 	inZip.ReferralIDs = nil
@@ -400,7 +481,10 @@ func (s *Server) referralModel(r *http.Request, sum referral.Summary, paper, pap
 
 // referralDoc turns a summary into the print view's model.
 func referralDoc(sum referral.Summary) views.ReferralDocView {
-	d := views.ReferralDocView{Code: sum.ReferralCode, RiskNote: sum.Risk.Note, Contact: orDash(sum.ContactRoute)}
+	d := views.ReferralDocView{Code: sum.ReferralCode, RiskNote: sum.Risk.Note, Contact: orDash(sum.ContactRoute), Draft: sum.Draft, DraftMark: referral.DraftMark}
+	if sum.SignOff != nil {
+		d.SignedOff = sum.SignOff.Text() + "."
+	}
 	d.Facts = []views.Fact{{Label: "Age band", Value: sum.AgeBand}, {Label: "Sex", Value: sum.Sex},
 		{Label: "Screening protocol", Value: orDash(sum.Protocol)}, {Label: "Issued on", Value: "study day " + strconv.Itoa(sum.IssuedStudyDay)}}
 	if o := sum.OverRead; o != nil {
@@ -411,7 +495,7 @@ func referralDoc(sum referral.Summary) views.ReferralDocView {
 	}
 	if rec := sum.Recording; rec != nil {
 		d.OverRead = append(d.OverRead, views.Fact{Label: "Recording", Value: fmt.Sprintf("study day %d, %.0f s, single lead", rec.StudyDay, rec.DurationS)},
-			views.Fact{Label: "Recorder's own reading", Value: rec.AutoInterpretation})
+			views.Fact{Label: overread.AutoHeading, Value: rec.AutoInterpretation})
 		if len(rec.MicroVolts) > 0 {
 			l := rec.Strip()
 			sv := stripView("summary-ecg", l, referralpdf.StripCaption(*rec, l))

@@ -22,6 +22,7 @@ import (
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/referral"
 	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 )
@@ -114,7 +115,7 @@ func confirmAF(t *testing.T, a *app, pid int64, rhythm string, planted string) i
 	var rec int64
 	if err := a.store.Pool().QueryRow(ctx, `INSERT INTO recordings (case_id, participant_id, taken_at, duration_s, auto_interpretation,
 		    waveform_format, file_name, sampling_hz, samples, beats)
-		VALUES ($1, $2, $3, $4, 'af', 'csv', $5, 250, $6, $7) RETURNING id`, caseID, pid, flagged.Add(100*time.Hour), syn.Waveform.Seconds(),
+		VALUES ($1, $2, $3, $4, 'suggests_af', 'csv', $5, 250, $6, $7) RETURNING id`, caseID, pid, flagged.Add(100*time.Hour), syn.Waveform.Seconds(),
 		planted+".csv", db.EncodeSamples(syn.Waveform.Samples), beats).Scan(&rec); err != nil {
 		t.Fatal(err)
 	}
@@ -195,7 +196,7 @@ func unzip(t *testing.T, b []byte) map[string][]byte {
 	return out
 }
 
-var referralLocRE = regexp.MustCompile(`^/referrals/(\d+)(/pdf)?$`)
+var referralLocRE = regexp.MustCompile(`^/referrals/(\d+)\?done=issued$`)
 
 // issueVia issues a summary through the form and returns its id.
 func issueVia(t *testing.T, a *app, c *http.Client, pid, caseID int64, format, paper string) string {
@@ -261,8 +262,8 @@ func TestReferralsAndExportsLeakNoCanary(t *testing.T) {
 		t.Fatalf("batch: status %d %s", res.StatusCode, res.Header.Get("Content-Type"))
 	}
 	files := unzip(t, batch)
-	if len(files) != len(pids)+1 {
-		t.Errorf("batch holds %d files for %d ready cases and a manifest", len(files), len(pids))
+	if len(files) != len(pids)+2 {
+		t.Errorf("batch holds %d files for %d ready cases, the cautions and a manifest", len(files), len(pids))
 	}
 	for name, b := range files {
 		if strings.HasSuffix(name, ".pdf") {
@@ -501,10 +502,12 @@ func TestReferralSignOffAndReproduction(t *testing.T) {
 		t.Error("a referred case is still listed as ready")
 	}
 
-	// Reproduction: the PDF drawn from the recorded content is the PDF whose
-	// digest was recorded at issue.
-	var pdfDigest string
-	a.store.Pool().QueryRow(context.Background(), `SELECT pdf_sha256 FROM referrals WHERE id = $1`, id).Scan(&pdfDigest)
+	// Reproduction: the PDF drawn from the recorded signed content is the
+	// PDF whose digest was recorded at the sign-off; the draft's content
+	// still draws the PDF whose digest was recorded at issue.
+	var pdfDigest, draftDigest string
+	var draft []byte
+	a.store.Pool().QueryRow(context.Background(), `SELECT signed_pdf_sha256, pdf_sha256, content FROM referrals WHERE id = $1`, id).Scan(&pdfDigest, &draftDigest, &draft)
 	res, err := coord.Get(a.ts.URL + "/referrals/" + id + "/pdf")
 	if err != nil {
 		t.Fatal(err)
@@ -512,7 +515,14 @@ func TestReferralSignOffAndReproduction(t *testing.T) {
 	if got := sha256Hex(body(t, res)); got != pdfDigest || res.Header.Get("X-Content-SHA256") != pdfDigest {
 		t.Errorf("re-drawn PDF digest %s, recorded %s", got, pdfDigest)
 	}
-	a.exec(`UPDATE referrals SET content = jsonb_set(content, '{age_band}', '"50-54"') WHERE id = $1`, id)
+	sum, err := referral.Decode(draft)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if pdf, err := referralPDF(sum, paperA4); err != nil || sha256Hex(pdf) != draftDigest {
+		t.Errorf("the draft's PDF digest %s, recorded at issue %s (%v)", sha256Hex(pdf), draftDigest, err)
+	}
+	a.exec(`UPDATE referrals SET signed_content = jsonb_set(signed_content, '{age_band}', '"50-54"') WHERE id = $1`, id)
 	if _, page := a.get(coord, "/referrals/"+id); !strings.Contains(page, "content does not match its digest") {
 		t.Error("tampered content is not flagged")
 	}
@@ -547,7 +557,7 @@ func TestReferralRoutesByRole(t *testing.T) {
 		{cohort.Coordinator, "/referrals/abc", http.StatusNotFound},
 		{cohort.Coordinator, "/participants/999999/referral", http.StatusNotFound},
 		{cohort.Coordinator, fmt.Sprintf("/participants/%d/referral?case=999999", pids[sid]), http.StatusNotFound},
-		{cohort.Coordinator, fmt.Sprintf("/participants/%d/referral?case=abc", pids[sid]), http.StatusNotFound},
+		{cohort.Coordinator, fmt.Sprintf("/participants/%d/referral?case=abc", pids[sid]), http.StatusBadRequest}, // a malformed query value (issue 14, finding 12)
 		{cohort.Coordinator, "/referrals/new?study_id=NOBODY", http.StatusUnprocessableEntity},
 		{cohort.Coordinator, "/referrals/new?study_id=" + url.QueryEscape(sid), http.StatusSeeOther},
 	} {

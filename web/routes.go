@@ -19,12 +19,19 @@ type route struct {
 // routes is the index of the application: every page and action, in one list.
 func (s *Server) routes() []route {
 	return []route{
-		{"GET", "/healthz", public, s.healthz},
-		{"GET", "/readyz", public, s.readyz},
+		{"GET", "/health", public, s.health},
+		{"GET", "/ready", public, s.ready},
 		{"GET", "/metrics", scrapers, s.metricsPage},
 		{"GET", "/signin", public, s.signInForm},
 		{"POST", "/signin", public, s.signIn},
 		{"POST", "/signout", public, s.signOut},
+		{"GET", "/signin/code", public, s.signInCodeForm},
+		{"POST", "/signin/code", public, s.signInCode},
+		{"GET", "/account", account, s.accountHome},
+		{"GET", "/account/password", account, s.passwordForm},
+		{"POST", "/account/password", account, s.passwordChange},
+		{"GET", "/account/second-factor", account, s.secondFactorForm},
+		{"POST", "/account/second-factor", account, s.secondFactorSetUp},
 
 		{"GET", "/", everyone, s.home},
 
@@ -55,6 +62,7 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/bulk/assign", caseWork, s.casesBulkAssign},
 		{"POST", "/cases/bulk/letter", coordWork, s.casesBulkLetter},
 		{"GET", "/cases/{id}", caseWork, s.caseShow},
+		{"GET", "/cases/{id}/contact", caseWork, s.caseContact},
 		{"POST", "/cases/{id}/assign", caseWork, s.caseAssign},
 		{"POST", "/cases/{id}/attempts", coordWork, s.caseAttempt},
 		{"POST", "/cases/{id}/move", caseWork, s.caseMove},
@@ -62,6 +70,17 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/{id}/shipment", coordWork, s.caseShipment},
 		{"POST", "/cases/{id}/return", coordWork, s.caseReturn},
 		{"POST", "/cases/{id}/note", caseWork, s.caseNote},
+		{"POST", "/cases/{id}/messages", coordWork, s.caseMessage},
+		{"POST", "/cases/bulk/messages", coordWork, s.casesBulkMessage},
+		{"POST", "/cases/bulk/letters", coordWork, s.casesBulkLetters},
+		{"GET", "/letters/{id}", coordWork, s.letterBatchShow},
+		{"GET", "/letters/{id}/pdf", coordWork, s.letterBatchPDF},
+		{"POST", "/letters/{id}/posted", coordWork, s.letterBatchPosted},
+		{"GET", "/messages/{id}", caseWork, s.messageShow},
+		{"GET", "/outbox", coordWork, s.outbox},
+		{"POST", "/participants/{id}/contact-preferences", coordWork, s.contactPreferencesSave},
+		{"POST", "/account/morning-summary", caseWork, s.morningSummary},
+		{"POST", "/outreach/receipts", public, s.deliveryReceipt}, // the text gateway, with its token
 		{"GET", "/screening", caseWork, s.screeningJobs},
 		{"GET", "/screening/external", coordWork, s.externalVerdictsForm},
 		{"POST", "/screening/external", coordWork, s.externalVerdictsImport},
@@ -71,6 +90,9 @@ func (s *Server) routes() []route {
 
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
 		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
+		{"POST", "/recordings/{id}/lead", caseWork, s.recordingLead},
+		{"POST", "/recordings/{id}/over-reads/revise", clinical, s.recordingRevise},
+		{"POST", "/recordings/{id}/not-needed", clinical, s.recordingNotNeeded},
 		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
 		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
 		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},
@@ -91,6 +113,9 @@ func (s *Server) routes() []route {
 		{"GET", "/admin/users/{id}", adminOnly, s.userEdit},
 		{"POST", "/admin/users/{id}", adminOnly, s.userUpdate},
 		{"POST", "/admin/users/{id}/password", adminOnly, s.userResetPassword},
+		{"POST", "/admin/users/{id}/second-factor/reset", adminOnly, s.secondFactorReset},
+		{"GET", "/admin/security", adminOnly, s.securityPage},
+		{"POST", "/admin/security", adminOnly, s.securitySave},
 		{"GET", "/admin/audit", adminOnly, s.auditList},
 		{"GET", "/admin/audit.csv", adminOnly, s.auditCSV},
 		{"GET", "/admin/study", adminOnly, s.studySettings},
@@ -100,6 +125,10 @@ func (s *Server) routes() []route {
 		{"GET", "/admin/protocols/{id}", adminOnly, s.protocolShow},
 		{"GET", "/admin/protocols/{id}/new", adminOnly, s.protocolNew},
 		{"POST", "/admin/protocols/{id}/activate", adminOnly, s.protocolActivate},
+		{"GET", "/admin/templates", adminOnly, s.templatesList},
+		{"POST", "/admin/templates", adminOnly, s.templateSave},
+		{"POST", "/admin/templates/words", adminOnly, s.templateWords},
+		{"GET", "/admin/templates/{id}", adminOnly, s.templateShow},
 	}
 }
 
@@ -112,7 +141,13 @@ func (s *Server) buildRouter() chi.Router {
 		if rt.method == "GET" {
 			h = s.fromStandby(rt.pattern, h)
 		}
-		r.Method(rt.method, rt.pattern, s.guard(rt.access, s.wrap(h)))
+		g := s.guard(rt.access, s.wrap(h))
+		r.Method(rt.method, rt.pattern, g)
+		if rt.method == "GET" {
+			// HEAD answers as GET does, with the same status and headers; the
+			// server drops the body (net/http writes none for HEAD).
+			r.Method("HEAD", rt.pattern, g)
+		}
 	}
 	r.Handle(assets.Prefix+"*", assets.Handler())
 	// Unknown addresses: visitors go to sign-in like everywhere else, staff get 404.
@@ -123,8 +158,11 @@ func (s *Server) buildRouter() chi.Router {
 	return r
 }
 
-// accessOf finds the access level of a route in the table.
+// accessOf finds the access level of a route in the table. HEAD is GET's.
 func (s *Server) accessOf(method, pattern string) (access, bool) {
+	if method == "HEAD" {
+		method = "GET"
+	}
 	for _, rt := range s.routeTable {
 		if rt.method == method && rt.pattern == pattern {
 			return rt.access, true

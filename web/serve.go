@@ -14,10 +14,11 @@ func NewHTTPServer(addr string, h http.Handler) *http.Server {
 		Addr:              addr,
 		Handler:           h,
 		ReadHeaderTimeout: 10 * time.Second,
-		ReadTimeout:       30 * time.Minute, // large uploads
-		WriteTimeout:      10 * time.Minute, // large exports
-		IdleTimeout:       2 * time.Minute,
-		MaxHeaderBytes:    64 << 10,
+		// No ReadTimeout for the whole server: each route's body gets its own
+		// deadline (withReadDeadlines: sign-in seconds, uploads minutes).
+		WriteTimeout:   10 * time.Minute, // large exports
+		IdleTimeout:    2 * time.Minute,
+		MaxHeaderBytes: 64 << 10,
 	}
 }
 

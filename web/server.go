@@ -28,6 +28,8 @@ type Store interface {
 	healthStore
 	userStore
 	signInStore
+	accountStore
+	secondFactorStore
 	adminStore
 	participantStore
 	importStore
@@ -40,6 +42,7 @@ type Store interface {
 	exportStore
 	standbyStore
 	metricsStore
+	outreachStore
 }
 
 // Config is what the server is built from.
@@ -52,6 +55,9 @@ type Config struct {
 	TrustedProxies []netip.Prefix    // peers whose X-Forwarded-For is believed
 	Password       credential.Params // argon2id cost for new passwords; zero means credential.DefaultParams
 	DemoNote       string            // demo sign-in help shown on the sign-in page; empty in production
+	// HashConcurrency bounds the password hashes computed at once (each
+	// holds Password.Memory); zero means one per CPU.
+	HashConcurrency int
 	// Secret keys the pseudonymous referral codes (deid.Code). It must stay
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
@@ -61,6 +67,8 @@ type Config struct {
 	MetricsAllow []netip.Prefix
 	// StandbyPool is the standby's pool, for the metrics; nil without one.
 	StandbyPool *pgxpool.Pool
+	// Outreach says which channels this server sends messages on.
+	Outreach OutreachConfig
 }
 
 // Server holds the dependencies of the handlers.
@@ -82,16 +90,21 @@ type Server struct {
 	secret         []byte
 	metrics        *metrics
 	metricsAllow   []netip.Prefix
+	hashes         *hashGate
+	uploads        uploadSlots
+	outreach       OutreachConfig
 }
 
 // New builds the server and its routes.
 func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
-		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret, metricsAllow: cfg.MetricsAllow}
+		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret, metricsAllow: cfg.MetricsAllow,
+		outreach: cfg.Outreach}
 	s.metrics = newMetrics(s, cfg.Pool, cfg.StandbyPool)
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}
+	s.hashes = newHashGate(cfg.HashConcurrency)
 	s.sessions = newSessions(cfg.Pool, cfg.Session)
 	s.sessions.ErrorFunc = s.sessionError
 	if s.log == nil {
@@ -104,6 +117,9 @@ func New(cfg Config) *Server {
 		CSS:  assets.URL("css/app.css"),
 		JS:   assets.URL("js/app.js"),
 		HTMX: assets.URL("vendor/htmx/htmx.min.js"),
+		// One concern a file: the cautions, the key scheme, chart colours.
+		PartCSS: []string{assets.URL("css/cautions.css"), assets.URL("css/keys.css"), assets.URL("css/charts.css")},
+		PartJS:  []string{assets.URL("js/keys.js"), assets.URL("js/charts.js")},
 	}
 	s.router = s.buildRouter()
 	return s
@@ -118,7 +134,9 @@ func (s *Server) Handler() http.Handler {
 	// (Sec-Fetch-Site, or an Origin that is not this host).
 	h = http.NewCrossOriginProtection().Handler(h)
 	h = s.withRecover(h)
+	h = s.withReadDeadlines(h)
 	h = withSecurityHeaders(h)
+	h = s.withHSTS(h)
 	h = s.withLogging(h)
 	h = withRequestID(h)
 	return h
@@ -135,11 +153,13 @@ func (s *Server) page(r *http.Request, title, area string) views.Page {
 	if u, ok := userFrom(r.Context()); ok {
 		p.User = &views.User{Name: u.Name, RoleLabel: u.Role.Label()}
 		p.Nav = s.navFor(u.Role)
+		p.Keys = s.keyHints(r, u.Role)
 	}
 	return p
 }
 
-// area is one entry of the main navigation.
+// area is one entry of the main navigation. Its number key (the key scheme,
+// web/keys.go) is fixed per area and printed on its tab.
 type area struct {
 	key, label, href, shortcut string
 }
@@ -147,15 +167,15 @@ type area struct {
 // areas are the main areas in order; each shows only to roles its landing
 // route allows, so the navigation can never offer a page that answers 403.
 var areas = []area{
-	{"home", "Overview", "/", "h"},
-	{"triage", "Triage", "/triage", "t"},
-	{"participants", "Participants", "/participants", "p"},
-	{"screening", "Screening", "/screening", "s"},
-	{"cases", "Cases", "/cases", "c"},
-	{"confirmations", "Confirmations", "/confirmations", "e"},
-	{"progress", "Progress", "/progress", "g"},
-	{"exports", "Exports", "/exports", "x"},
-	{"admin", "Administration", "/admin", "a"},
+	{"home", "Overview", "/", "1"},
+	{"triage", "Triage", "/triage", "2"},
+	{"participants", "Participants", "/participants", "3"},
+	{"screening", "Screening", "/screening", "4"},
+	{"cases", "Cases", "/cases", "5"},
+	{"confirmations", "Confirmations", "/confirmations", "6"},
+	{"progress", "Progress", "/progress", "7"},
+	{"exports", "Exports", "/exports", "8"},
+	{"admin", "Administration", "/admin", "9"},
 }
 
 func (s *Server) navFor(role cohort.Role) []views.NavItem {

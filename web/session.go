@@ -123,6 +123,10 @@ func (s *Server) guard(a access, h http.Handler) http.Handler {
 			s.toSignIn(w, r)
 			return
 		}
+		if step := s.sessions.GetString(r.Context(), sessionSetupKey); step != "" && !a.setup {
+			s.toSetup(w, r, step)
+			return
+		}
 		ctx := context.WithValue(context.WithValue(r.Context(), keyUser, u), keyStudy, study)
 		if !a.allows(u.Role) {
 			s.serveError(w, r.WithContext(ctx), cohort.ErrForbidden)

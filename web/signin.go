@@ -3,7 +3,10 @@ package web
 import (
 	"context"
 	"errors"
+	"fmt"
+	"math"
 	"net/http"
+	"strconv"
 	"strings"
 	"time"
 
@@ -15,25 +18,30 @@ import (
 
 type signInStore interface {
 	UserForSignIn(ctx context.Context, email string) (db.User, error)
-	SignInThrottle(ctx context.Context, account, addr string, limit int, window time.Duration) (bool, error)
+	AdmitAttempt(ctx context.Context, keys []db.ThrottleKey) (db.Admission, error)
+	RefundAttempt(ctx context.Context, keys []db.ThrottleKey) error
+	CountFailure(ctx context.Context, keys []db.ThrottleKey) error
+	UndoAttempt(ctx context.Context, adm db.Admission) error
+	ClearThrottle(ctx context.Context, keys ...string) error
 	RecordSignInFailure(ctx context.Context, account, addr, requestID, reason string) error
 	RecordSignIn(ctx context.Context, a cohort.Actor) error
 	Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error
 }
 
-// Sign-in throttling: after this many failures for one account or one client
-// address within the window, further attempts are refused until the window
-// passes.
-const (
-	signInLimit  = 5
-	signInWindow = 15 * time.Minute
-)
+// maxEmailLen is the longest e-mail address accepted anywhere (cohort.MaxEmailLen).
+const maxEmailLen = cohort.MaxEmailLen
+
+// maxPasswordLen bounds what is hashed (credential.CheckPolicy allows 512
+// bytes for new passwords; sign-in allows a little more so an old one still
+// works).
+const maxPasswordLen = 1024
 
 // The one message for every failed sign-in, so nobody learns whether an account
 // exists.
 const (
 	msgSignInFailed    = "Sign-in failed. Check the e-mail address and password."
-	msgSignInThrottled = "Too many failed attempts. Sign-in is paused for 15 minutes for this account or this computer."
+	msgSignInThrottled = "Too many failed attempts. Sign-in is paused for this account or this computer; try again in %s."
+	msgSignInBusy      = "The server is busy with other sign-ins. Nothing was tried; sign in again in a moment."
 )
 
 // dummyHash is verified against when the account does not exist, so a missing
@@ -51,30 +59,68 @@ func (s *Server) signInForm(w http.ResponseWriter, r *http.Request) error {
 	return s.ok(w, r, views.SignIn(views.SignInModel{Assets: s.assets, Next: safeNext(r.URL.Query().Get("next")), Demo: s.demoNote}))
 }
 
+// signInKeys are what an attempt counts against. From a browser that signed
+// in to this account before (a trusted-device cookie), only that device's own
+// counter: an attacker elsewhere can lock the account and flood the address,
+// and its owner still gets in from their usual browser (OWASP's device-cookie
+// scheme, from memory). From anywhere else, the account and the address.
+func (s *Server) signInKeys(r *http.Request, email string) []db.ThrottleKey {
+	if dev, ok := s.deviceFor(r, email); ok {
+		return []db.ThrottleKey{{Key: "device:" + dev, Rule: credential.Account}}
+	}
+	return []db.ThrottleKey{
+		{Key: accountKey(email), Rule: credential.Account},
+		{Key: "address:" + s.clientAddr(r), Rule: credential.Address, Shared: true},
+	}
+}
+
+func accountKey(email string) string { return "account:" + strings.ToLower(email) }
+
 func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
+	r.Body = http.MaxBytesReader(w, r.Body, 16<<10)
 	if err := r.ParseForm(); err != nil {
-		return &cohort.ValidationError{Fields: map[string]string{"form": "the form could not be read"}}
+		s.render(w, r, http.StatusBadRequest, views.SignIn(views.SignInModel{Assets: s.assets, Next: "/", Error: "The form could not be read.", Demo: s.demoNote}))
+		return nil
 	}
 	email := strings.TrimSpace(r.PostForm.Get("email"))
 	pw := r.PostForm.Get("password")
 	next := safeNext(r.PostForm.Get("next"))
-	addr := s.clientAddr(r)
-	rid := requestID(r.Context())
-	fail := func(status int, msg string) error {
+	page := func(status int, email, msg string) error {
 		s.render(w, r, status, views.SignIn(views.SignInModel{Assets: s.assets, Email: email, Next: next, Error: msg, Demo: s.demoNote}))
 		return nil
 	}
+	// Refused before anything is stored: nothing of an overlong address
+	// reaches the throttle table or the audit trail.
+	if len(email) > maxEmailLen {
+		return page(http.StatusUnprocessableEntity, "", fmt.Sprintf("An e-mail address has at most %d characters.", maxEmailLen))
+	}
+	if len(pw) > maxPasswordLen {
+		return page(http.StatusUnprocessableEntity, email, fmt.Sprintf("A password has at most %d bytes.", maxPasswordLen))
+	}
 	ctx := r.Context()
-	throttled, err := s.store.SignInThrottle(ctx, email, addr, signInLimit, signInWindow)
+	keys := s.signInKeys(r, email)
+	adm, err := s.store.AdmitAttempt(ctx, keys)
 	if err != nil {
 		return err
 	}
-	if throttled {
-		if err := s.store.RecordSignInFailure(ctx, email, addr, rid, "throttled"); err != nil {
-			return err
-		}
-		return fail(http.StatusTooManyRequests, msgSignInThrottled)
+	if !adm.OK {
+		w.Header().Set("Retry-After", strconv.Itoa(int(math.Ceil(adm.RetryAfter.Seconds()))))
+		return page(http.StatusTooManyRequests, email, fmt.Sprintf(msgSignInThrottled, waitLabel(adm.RetryAfter)))
 	}
+	if err := s.tryPassword(w, r, email, pw, next, keys, page); err != nil {
+		// Not finished (the database refused a write): the attempt leaves
+		// nothing behind.
+		_ = s.store.UndoAttempt(context.WithoutCancel(ctx), adm)
+		return err
+	}
+	return nil
+}
+
+// tryPassword checks an admitted attempt's password and answers it.
+func (s *Server) tryPassword(w http.ResponseWriter, r *http.Request, email, pw, next string, keys []db.ThrottleKey, page func(int, string, string) error) error {
+	ctx := r.Context()
+	addr := s.clientAddr(r)
+	rid := requestID(ctx)
 	u, err := s.store.UserForSignIn(ctx, email)
 	hash := u.PasswordHash
 	if errors.Is(err, cohort.ErrNotFound) {
@@ -82,7 +128,19 @@ func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
 	} else if err != nil {
 		return err
 	}
-	ok, verr := credential.Verify(pw, hash)
+	var ok bool
+	var verr error
+	if gerr := s.hashes.run(ctx, false, func() { ok, verr = credential.Verify(pw, hash) }); gerr != nil {
+		// Not tried: the attempt does not count.
+		if err := s.store.RefundAttempt(context.WithoutCancel(ctx), keys); err != nil {
+			return err
+		}
+		if errors.Is(gerr, errHashBusy) {
+			w.Header().Set("Retry-After", "2")
+			return page(http.StatusServiceUnavailable, email, msgSignInBusy)
+		}
+		return gerr
+	}
 	reason := ""
 	switch {
 	case errors.Is(err, cohort.ErrNotFound):
@@ -99,18 +157,31 @@ func (s *Server) signIn(w http.ResponseWriter, r *http.Request) error {
 		if err := s.store.RecordSignInFailure(ctx, email, addr, rid, reason); err != nil {
 			return err
 		}
-		return fail(http.StatusUnauthorized, msgSignInFailed)
+		if err := s.store.CountFailure(ctx, keys); err != nil {
+			return err
+		}
+		return page(http.StatusUnauthorized, email, msgSignInFailed)
 	}
-	// A new session token at sign-in, so a token planted before sign-in is useless.
-	if err := s.sessions.RenewToken(ctx); err != nil {
+	// The right password: the account's (or device's) failures are
+	// forgotten; the address, which others may share, keeps its count.
+	var personal []string
+	for _, k := range keys {
+		if !k.Shared {
+			personal = append(personal, k.Key)
+		}
+	}
+	if err := s.store.ClearThrottle(ctx, personal...); err != nil {
 		return err
 	}
-	s.sessions.Put(ctx, sessionUserKey, db.SessionMarker(u.ID))
-	if err := s.store.RecordSignIn(ctx, u.Actor(addr, rid)); err != nil {
-		return err
+	return s.passwordAccepted(w, r, u, next)
+}
+
+// waitLabel says a wait in words: "30 seconds", "4 minutes".
+func waitLabel(d time.Duration) string {
+	if d <= time.Minute {
+		return plural(int(math.Ceil(d.Seconds())), "second")
 	}
-	http.Redirect(w, r, next, http.StatusSeeOther)
-	return nil
+	return plural(int(math.Ceil(d.Minutes())), "minute")
 }
 
 func (s *Server) signOut(w http.ResponseWriter, r *http.Request) error {
@@ -124,13 +195,4 @@ func (s *Server) signOut(w http.ResponseWriter, r *http.Request) error {
 	}
 	http.Redirect(w, r, "/signin", http.StatusSeeOther)
 	return nil
-}
-
-// safeNext keeps redirects after sign-in on this site.
-func safeNext(next string) string {
-	if next == "" || !strings.HasPrefix(next, "/") || strings.HasPrefix(next, "//") || strings.HasPrefix(next, "/\\") ||
-		strings.HasPrefix(next, "/signin") {
-		return "/"
-	}
-	return next
 }

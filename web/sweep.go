@@ -31,7 +31,7 @@ const sweepRecent = 10
 type sweepChoice struct {
 	version db.ProtocolVersion
 	param   string
-	cur     paramLeaf // the parameter's value in the version
+	cur     screen.Param // the parameter's value in the version
 	// the range, as given (for the form) and as numbers once valid
 	fromText, toText, stepsText string
 	from, to                    float64
@@ -75,7 +75,7 @@ func parseSweepChoice(q url.Values, all []db.ProtocolVersion) sweepChoice {
 		}
 		c.param = defaultSweepParam
 	}
-	for _, l := range protocolLeaves(c.version.Params) {
+	for _, l := range c.version.Params.Params() {
 		if l.Path == c.param {
 			c.cur = l
 		}
@@ -128,11 +128,7 @@ func (c sweepChoice) values() []float64 {
 func sweepOptions(p screen.Protocol) []views.Option {
 	var out []views.Option
 	for _, sp := range screen.SweepParams(p) {
-		label := paramLabel(sp.Path)
-		if sp.Window >= 0 {
-			label = fmt.Sprintf("%d-minute windows: %s", p.Windows[sp.Window].Minutes, label)
-		}
-		out = append(out, views.Option{Value: sp.Path, Label: label})
+		out = append(out, views.Option{Value: sp.Path, Label: sp.Label(p)})
 	}
 	return out
 }
@@ -164,7 +160,7 @@ func (s *Server) sweepModel(r *http.Request, c *sweepChoice, all []db.ProtocolVe
 	}
 	for _, run := range runs {
 		m.Recent = append(m.Recent, views.SweepRunRow{Href: sweepHref(run.ID), ID: strconv.FormatInt(run.ID, 10),
-			When: run.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), By: run.CreatedBy, Param: paramLabel(run.Param),
+			When: run.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), By: run.CreatedBy, Param: screen.ParamLabel(run.Param),
 			Values: strconv.Itoa(len(run.Values)), State: run.Job.State, Tone: components.Tone(statusTone(run.Job.State))})
 	}
 	if c == nil {
@@ -209,15 +205,27 @@ func (s *Server) sweepPage(r *http.Request, q url.Values) (views.SweepModel, *sw
 func (s *Server) sweep(w http.ResponseWriter, r *http.Request) error {
 	q := r.URL.Query()
 	if q.Get("run") == "" {
-		m, _, err := s.sweepPage(r, q)
+		m, c, err := s.sweepPage(r, q)
 		if err != nil {
 			return err
 		}
-		return s.ok(w, r, views.Sweep(m))
+		status := http.StatusOK
+		if c != nil {
+			if q.Get("from") != "" || q.Get("to") != "" || q.Get("steps") != "" {
+				c.parseRange() // a range in the address is read as strictly as the form
+				maps.Copy(m.Errors, c.errs)
+			}
+			if len(c.errs) > 0 {
+				status = http.StatusBadRequest // a choice in the address the page cannot use; the form says which
+			}
+		}
+		s.render(w, r, status, views.Sweep(m))
+		return nil
 	}
-	id, err := strconv.ParseInt(q.Get("run"), 10, 64)
-	if err != nil {
-		return errNotFound
+	rq := readQuery(q)
+	id := rq.id("run", "sweep number")
+	if err := rq.err(); err != nil {
+		return err
 	}
 	run, err := s.store.SweepRun(r.Context(), id)
 	if err != nil {
@@ -335,14 +343,13 @@ func sweepChart(res db.SweepResult) (components.ChartModel, []string, error) {
 			ppvLo, ppvHi = append(ppvLo, percentPoint(math.NaN())), append(ppvHi, percentPoint(math.NaN()))
 		}
 	}
-	dashed := charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})
-	right := charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})
+	right := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})}
 	line.SetXAxis(x).
-		AddSeries("Weeks flagged", flagged).
-		AddSeries("PPV %", ppv, right).
-		AddSeries("PPV 95% CI, low", ppvLo, right, dashed).
-		AddSeries("PPV 95% CI, high", ppvHi, right, dashed).
-		AddSeries("Sensitivity %", sens, right)
+		AddSeries("Weeks flagged", flagged, paint(chartPositive)...).
+		AddSeries("PPV %", ppv, with(right, paint(chartMeasure))...).
+		AddSeries("PPV 95% CI, low", ppvLo, with(right, paint(chartBand))...).
+		AddSeries("PPV 95% CI, high", ppvHi, with(right, paint(chartBand))...).
+		AddSeries("Sensitivity %", sens, with(right, paint(chartMeasure2))...)
 	return chartView("sweep-chart", "Weeks flagged, PPV and sensitivity for each value of "+res.Param, line, true)
 }
 

@@ -14,7 +14,6 @@ import (
 	"time"
 
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 )
 
 // serverConfig is the configuration shared by serve and demo. Every field comes
@@ -23,6 +22,7 @@ import (
 type serverConfig struct {
 	Addr            string
 	DatabaseURL     string
+	MigrateURL      string // the schema owner's connection for migrations; empty: DatabaseURL
 	LogLevel        string
 	LogFormat       string
 	MaxConns        int
@@ -38,6 +38,7 @@ type serverConfig struct {
 	ReadMaxLag      time.Duration // reads fall back to the primary beyond this lag
 	MetricsAddr     string        // a separate listener for /metrics; "" for none
 	MetricsAllow    string        // CIDRs that may read /metrics on the main listener
+	Outreach        outreachConfig
 }
 
 // bind registers the flags, with defaults taken from the environment.
@@ -46,6 +47,7 @@ func (c *serverConfig) bind(fs *flag.FlagSet, getenv func(string) string, defaul
 	fs.StringVar(&c.LogLevel, "log-level", envOr(getenv, "COHORTDESK_LOG_LEVEL", "info"), "debug, info, warn or error (env COHORTDESK_LOG_LEVEL)")
 	fs.StringVar(&c.LogFormat, "log-format", envOr(getenv, "COHORTDESK_LOG_FORMAT", "text"), "text or json (env COHORTDESK_LOG_FORMAT)")
 	fs.IntVar(&c.MaxConns, "db-max-conns", envInt(getenv, "COHORTDESK_DB_MAX_CONNS", 20), "database connections in the pool (env COHORTDESK_DB_MAX_CONNS)")
+	fs.StringVar(&c.MigrateURL, "migrate-database-url", getenv(migrateEnv), "PostgreSQL URL of the schema's owner, which runs the migrations and grants the application's role; empty runs them over -database-url (env "+migrateEnv+")")
 	fs.BoolVar(&c.Migrate, "migrate", envBool(getenv, "COHORTDESK_MIGRATE", true), "apply pending migrations at start (env COHORTDESK_MIGRATE)")
 	fs.DurationVar(&c.SessionIdle, "session-idle", envDuration(getenv, "COHORTDESK_SESSION_IDLE", 30*time.Minute), "sign out after this long without a request (env COHORTDESK_SESSION_IDLE)")
 	fs.DurationVar(&c.SessionLifetime, "session-lifetime", envDuration(getenv, "COHORTDESK_SESSION_LIFETIME", 12*time.Hour), "sign out this long after sign-in (env COHORTDESK_SESSION_LIFETIME)")
@@ -53,6 +55,7 @@ func (c *serverConfig) bind(fs *flag.FlagSet, getenv func(string) string, defaul
 	fs.StringVar(&c.TLSCert, "tls-cert", getenv("COHORTDESK_TLS_CERT"), "serve HTTPS with this certificate file (env COHORTDESK_TLS_CERT)")
 	fs.StringVar(&c.TLSKey, "tls-key", getenv("COHORTDESK_TLS_KEY"), "key file of -tls-cert (env COHORTDESK_TLS_KEY)")
 	fs.IntVar(&c.Workers, "workers", envInt(getenv, "COHORTDESK_WORKERS", 1), "background job workers in this instance (screening after imports, threshold sweeps); 0 leaves the queue to other instances (env COHORTDESK_WORKERS)")
+	c.Outreach.bind(fs, getenv)
 	fs.StringVar(&c.Secret, "secret", getenv("COHORTDESK_SECRET"), "deployment secret keying the pseudonymous referral codes, 32+ characters (env COHORTDESK_SECRET)")
 	fs.StringVar(&c.ReadURL, "database-read-url", getenv("DATABASE_READ_URL"), "PostgreSQL URL of a hot standby of DATABASE_URL: pages that only read are read there (env DATABASE_READ_URL)")
 	fs.DurationVar(&c.ReadMaxLag, "read-max-lag", envDuration(getenv, "COHORTDESK_READ_MAX_LAG", 2*time.Second), "reads fall back to the primary while the standby lags more than this (env COHORTDESK_READ_MAX_LAG)")
@@ -129,7 +132,7 @@ func (c *serverConfig) validate() error {
 	if c.MetricsAddr != "" && c.MetricsAddr == c.Addr {
 		return fmt.Errorf("config: -metrics-addr is the main address; leave it empty and use -metrics-allow instead")
 	}
-	return nil
+	return c.Outreach.validate()
 }
 
 func (c *serverConfig) logger(w io.Writer) *slog.Logger {
@@ -217,8 +220,9 @@ func redactURL(u string) string {
 }
 
 // openStore connects the tools (import, user, screen) to DATABASE_URL and
-// brings the schema up to date, as serve would. close releases the pool.
-func openStore(ctx context.Context, command, url string, conns int32) (store *db.Store, close func(), err error) {
+// brings the schema up to date, as serve would (as the owner of
+// COHORTDESK_MIGRATE_DATABASE_URL when set). close releases the pool.
+func openStore(ctx context.Context, getenv func(string) string, command, url string, conns int32) (store *db.Store, close func(), err error) {
 	if url == "" {
 		return nil, nil, fmt.Errorf("%s: DATABASE_URL is not set (for the demo's database, run the demo and use the DATABASE_URL it prints)", command)
 	}
@@ -226,7 +230,7 @@ func openStore(ctx context.Context, command, url string, conns int32) (store *db
 	if err != nil {
 		return nil, nil, err
 	}
-	if _, err := migrations.Up(ctx, pool); err != nil {
+	if _, err := migrateAs(ctx, getenv(migrateEnv), pool); err != nil {
 		pool.Close()
 		return nil, nil, err
 	}

@@ -10,7 +10,6 @@ import (
 
 	"cohortdesk/db"
 	"cohortdesk/db/pgcluster"
-	"cohortdesk/migrations"
 
 	"github.com/jackc/pgx/v5/pgxpool"
 )
@@ -59,10 +58,18 @@ func runDemo(ctx context.Context, e env, args []string) error {
 			return err
 		}
 	}
+	if cfg.Outreach.OutboxDir == "" && cfg.Outreach.SMTP.Host == "" {
+		// The demo sends nothing: e-mails and text messages go to a folder.
+		cfg.Outreach.OutboxDir = filepath.Join(cl.Dir(), "outbox")
+	}
 	if err := ensureDatabase(ctx, cl, *reset); err != nil {
 		return err
 	}
-	cfg.DatabaseURL = cl.URL(demoDatabase)
+	// The cluster's superuser owns the schema and runs the migrations; the
+	// app, the loader and the printed DATABASE_URL use the unprivileged
+	// application role, which cannot rewrite the audit trail.
+	cfg.MigrateURL = cl.URL(demoDatabase)
+	cfg.DatabaseURL = cl.URLAs(demoDatabase, db.AppRole)
 	if *standby {
 		sb, err := pgcluster.StartStandby(ctx, cl, pgcluster.Config{Dir: filepath.Join(cl.Dir(), "standby"), Port: demoStandbyPort}, e.getenv)
 		if err != nil {
@@ -73,7 +80,7 @@ func runDemo(ctx context.Context, e env, args []string) error {
 				log.Warn("standby stop", "err", err)
 			}
 		}()
-		cfg.ReadURL = sb.URL(demoDatabase)
+		cfg.ReadURL = sb.URLAs(demoDatabase, db.AppRole)
 		log.Info("standby ready", "data", sb.Dir())
 	}
 	pool, err := db.Open(ctx, cfg.DatabaseURL, int32(cfg.MaxConns))
@@ -81,9 +88,10 @@ func runDemo(ctx context.Context, e env, args []string) error {
 		return err
 	}
 	defer pool.Close()
-	if _, err := migrations.Up(ctx, pool); err != nil {
+	if _, err := migrateAs(ctx, cfg.MigrateURL, pool); err != nil {
 		return err
 	}
+	warnRole(ctx, pool, log)
 	store := db.New(pool, nil)
 	// The loader screens what it loads (newScreener(store).ScreenNow), so the
 	// protocol must exist first.
@@ -102,6 +110,10 @@ func runDemo(ctx context.Context, e env, args []string) error {
 		fmt.Fprintf(e.stdout, "\ncohortdesk demo is running at http://%s/  (started in %s)\n", addr, time.Since(start).Round(100*time.Millisecond))
 		fmt.Fprint(e.stdout, signIn)
 		fmt.Fprintf(e.stdout, "Database (for the import and user commands): DATABASE_URL='%s'\n", cfg.DatabaseURL)
+		fmt.Fprintf(e.stdout, "Its owner (for migrate): %s='%s'\n", migrateEnv, cfg.MigrateURL)
+		if cfg.Outreach.OutboxDir != "" {
+			fmt.Fprintf(e.stdout, "Messages to participants are not sent: each is written to %s (.eml and .txt files).\n", cfg.Outreach.OutboxDir)
+		}
 		fmt.Fprintf(e.stdout, "Data folder: %s. Press Ctrl-C to stop.\n\n", cl.Dir())
 	})
 }
@@ -130,5 +142,5 @@ func ensureDatabase(ctx context.Context, cl *pgcluster.Cluster, reset bool) erro
 			return fmt.Errorf("demo: create database: %w", err)
 		}
 	}
-	return nil
+	return db.EnsureAppRole(ctx, admin, db.AppRole)
 }

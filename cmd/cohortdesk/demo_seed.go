@@ -31,9 +31,10 @@ func seedDemo(ctx context.Context, store *db.Store, o demoOptions) (bool, error)
 	return err == nil, err
 }
 
-// demoSignIn is the text printed with the address: who to sign in as.
+// demoSignIn is the text printed with the address and shown on the sign-in
+// page: the demo's own accounts that still take the demo password.
 func demoSignIn(ctx context.Context, store *db.Store) string {
-	users, err := store.Users(ctx)
+	users, err := demoload.SignInAccounts(ctx, store, demoload.DemoPassword)
 	if err != nil || len(users) == 0 {
 		return ""
 	}

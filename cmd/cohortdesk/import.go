@@ -33,7 +33,7 @@ func runImport(ctx context.Context, e env, args []string) error {
 		fs.Usage()
 		return errors.New("import: name at least one file")
 	}
-	store, closeDB, err := openStore(ctx, "import", *url, 4)
+	store, closeDB, err := openStore(ctx, e.getenv, "import", *url, 4)
 	if err != nil {
 		return err
 	}

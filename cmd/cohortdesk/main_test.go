@@ -15,6 +15,9 @@ import (
 	"time"
 
 	"cohortdesk/cmd/cohortdesk/demoload"
+	"cohortdesk/cohort"
+	"cohortdesk/cohort/credential"
+	"cohortdesk/db"
 )
 
 // syncBuffer collects a command's output while it runs.
@@ -46,7 +49,7 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 	}
 	os.Chmod(dir, 0o755)
 	defer os.RemoveAll(dir)
-	var secret string
+	var secret, deactivated string
 	for pass := 1; pass <= 2; pass++ {
 		ctx, cancel := context.WithCancel(context.Background())
 		var out, errs syncBuffer
@@ -75,9 +78,9 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 		if !strings.Contains(out.String(), demoload.DemoPassword) {
 			t.Errorf("pass %d: the demo sign-in is not printed:\n%s", pass, out.String())
 		}
-		res, err := http.Get(base + "/readyz")
+		res, err := http.Get(base + "/ready")
 		if err != nil || res.StatusCode != 200 {
-			t.Fatalf("pass %d: readyz %v %v", pass, res, err)
+			t.Fatalf("pass %d: ready %v %v", pass, res, err)
 		}
 		res.Body.Close()
 		email := regexp.MustCompile(`([a-z]+@example\.net)\s+Coordinator`).FindStringSubmatch(out.String())
@@ -94,6 +97,37 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 		res.Body.Close()
 		if !regexp.MustCompile(`data-testid="tile-participants"><div class="num">1[0-9]<`).Match(body) {
 			t.Fatalf("pass %d: home page after sign-in lacks the participant count:\n%.2000s", pass, body)
+		}
+		// The app runs as the unprivileged application role (issue 14,
+		// finding 5), and the printed URL is that role's.
+		dbURL := regexp.MustCompile(`DATABASE_URL='([^']+)'`).FindStringSubmatch(out.String())
+		if dbURL == nil || !strings.Contains(dbURL[1], db.AppRole+"@") {
+			t.Fatalf("pass %d: printed database URL %v is not the application role's", pass, dbURL)
+		}
+		if pass == 1 {
+			// An administrator deactivates a demo account and adds one with
+			// the demo password: the next run must advertise neither (issue
+			// 14, finding 15).
+			pool, err := db.Open(context.Background(), dbURL[1], 2)
+			if err != nil {
+				t.Fatal(err)
+			}
+			store := db.New(pool, nil)
+			admin, err := store.UserForSignIn(context.Background(), regexp.MustCompile(`([a-z]+@example\.net)\s+Administrator`).FindStringSubmatch(out.String())[1])
+			if err != nil {
+				t.Fatal(err)
+			}
+			hash, _ := credential.Hash(demoload.DemoPassword, credential.TestParams)
+			if _, err := store.CreateUser(context.Background(), admin.Actor("127.0.0.1", ""), db.NewUser{Email: "added@example.net", Name: "Added Later", Role: cohort.Monitor, PasswordHash: hash}); err != nil {
+				t.Fatal(err)
+			}
+			if _, err := pool.Exec(context.Background(), `UPDATE users SET active = false WHERE email = $1`, email[1]); err != nil {
+				t.Fatal(err)
+			}
+			deactivated = email[1]
+			pool.Close()
+		} else if strings.Contains(out.String(), "added@example.net") || strings.Contains(out.String(), deactivated) {
+			t.Errorf("pass 2 advertises an account added by an administrator or a deactivated one:\n%s", out.String())
 		}
 		cancel()
 		select {

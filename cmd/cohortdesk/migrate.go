@@ -13,7 +13,8 @@ import (
 func runMigrate(ctx context.Context, e env, args []string) error {
 	fs := flag.NewFlagSet("migrate", flag.ContinueOnError)
 	fs.SetOutput(e.stderr)
-	url := fs.String("database-url", e.getenv("DATABASE_URL"), "PostgreSQL URL (env DATABASE_URL)")
+	url := fs.String("database-url", envOr(e.getenv, migrateEnv, e.getenv("DATABASE_URL")), "PostgreSQL URL of the schema's owner (env "+migrateEnv+", else DATABASE_URL)")
+	grant := fs.String("grant", e.getenv("COHORTDESK_APP_ROLE"), "after migrating, grant this application role what it needs (env COHORTDESK_APP_ROLE)")
 	fs.Usage = func() {
 		fmt.Fprintln(e.stderr, "usage: cohortdesk migrate [flags] [up|status]")
 		fs.PrintDefaults()
@@ -40,6 +41,12 @@ func runMigrate(ctx context.Context, e env, args []string) error {
 			return err
 		}
 		fmt.Fprintf(e.stdout, "applied %d migration(s)\n", n)
+		if *grant != "" {
+			if err := db.GrantApp(ctx, pool, *grant); err != nil {
+				return err
+			}
+			fmt.Fprintf(e.stdout, "granted the application role %s\n", *grant)
+		}
 		fallthrough
 	case "status":
 		list, err := migrations.List(ctx, pool)

@@ -38,7 +38,7 @@ func runScreen(ctx context.Context, e env, args []string) error {
 	if *poll < 10*time.Millisecond {
 		*poll = 10 * time.Millisecond
 	}
-	store, closeDB, err := openStore(ctx, "screen", *url, 4)
+	store, closeDB, err := openStore(ctx, e.getenv, "screen", *url, 4)
 	if err != nil {
 		return err
 	}
@@ -137,6 +137,8 @@ func runScreen(ctx context.Context, e env, args []string) error {
 				return fmt.Errorf("screen: job %d failed: %s", id, j.Error)
 			}
 			fmt.Fprintln(e.stdout, j.Outcome)
+			// The verdicts just printed are screens: say so once.
+			fmt.Fprint(e.stdout, "\n"+cohort.CautionsText())
 			return nil
 		case <-tick.C:
 			if j, err := store.Job(ctx, id); err == nil {

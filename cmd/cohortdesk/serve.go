@@ -10,7 +10,6 @@ import (
 	"time"
 
 	"cohortdesk/db"
-	"cohortdesk/migrations"
 	"cohortdesk/web"
 
 	"github.com/jackc/pgx/v5/pgxpool"
@@ -41,12 +40,13 @@ func runServe(ctx context.Context, e env, args []string) error {
 	}
 	defer pool.Close()
 	if cfg.Migrate {
-		n, err := migrations.Up(ctx, pool)
+		n, err := migrateAs(ctx, cfg.MigrateURL, pool)
 		if err != nil {
 			return err
 		}
-		log.Info("migrations applied", "count", n)
+		log.Info("migrations applied", "count", n, "as_owner", cfg.MigrateURL != "")
 	}
+	warnRole(ctx, pool, log)
 	return serveApp(ctx, cfg, pool, log, "", func(addr string) {
 		log.Info("listening", "addr", addr, "database", redactURL(cfg.DatabaseURL))
 	})
@@ -83,9 +83,21 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 	if err != nil {
 		return err
 	}
+	// Uploads a killed server was receiving are useless now (their imports
+	// are marked interrupted); an hour spares other instances' live ones.
+	if n := web.RemoveStaleUploads(time.Hour); n > 0 {
+		log.Info("stale uploads removed", "count", n)
+	}
 	stopWatch := watchInterruptedImports(ctx, store, interruptedEvery, log)
 	defer stopWatch()
-	stopWorkers := startWorkers(ctx, store, cfg.Workers, log)
+	snd, outreachCfg, err := cfg.Outreach.build(store, log)
+	if err != nil {
+		return err
+	}
+	if err := startOutreach(ctx, store, snd); err != nil {
+		return err
+	}
+	stopWorkers := startWorkers(ctx, store, cfg.Workers, snd.Handlers(), log)
 	defer stopWorkers()
 	proxies, err := cfg.proxies()
 	if err != nil {
@@ -103,6 +115,7 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 		},
 		DemoNote:     demoNote,
 		Secret:       []byte(cfg.Secret),
+		Outreach:     outreachCfg,
 		MetricsAllow: allow,
 		StandbyPool:  standbyPool,
 	})

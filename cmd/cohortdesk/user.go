@@ -40,7 +40,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		fs.Usage()
 		return errors.New("user: name one action: add, reset-password or list")
 	}
-	store, closeDB, err := openStore(ctx, "user", *url, 2)
+	store, closeDB, err := openStore(ctx, e.getenv, "user", *url, 2)
 	if err != nil {
 		return err
 	}
@@ -76,7 +76,7 @@ func runUser(ctx context.Context, e env, args []string) error {
 		if err != nil {
 			return err
 		}
-		u, err := store.CreateUser(ctx, actor, db.NewUser{Email: *email, Name: *name, Role: r, PasswordHash: hash})
+		u, err := store.CreateUser(ctx, actor, db.NewUser{Email: *email, Name: *name, Role: r, PasswordHash: hash, MustChangePassword: generated})
 		if err != nil {
 			return fmt.Errorf("user: %w", err)
 		}

@@ -37,13 +37,26 @@ var TestParams = Params{Memory: 1024, Time: 1, Threads: 1, SaltLen: 16, KeyLen: 
 // least 8; we ask for 12 since staff handle health data).
 const MinPasswordLen = 12
 
-// CheckPolicy says what is wrong with a new password, or nil.
-func CheckPolicy(pw string) error {
+// CheckPolicy says what is wrong with a new password, or nil: too short, too
+// long, or too easy to guess (see weakPassword). context is words the
+// password must not be: the person's name and e-mail address.
+func CheckPolicy(pw string, context ...string) error {
 	if utf8.RuneCountInString(pw) < MinPasswordLen {
 		return fmt.Errorf("use at least %d characters", MinPasswordLen)
 	}
 	if len(pw) > 512 {
 		return errors.New("use at most 512 bytes")
+	}
+	var words []string
+	for _, c := range context {
+		words = append(words, c)
+		if local, _, ok := strings.Cut(c, "@"); ok {
+			words = append(words, local)
+		}
+		words = append(words, strings.Fields(c)...)
+	}
+	if why := weakPassword(pw, words); why != "" {
+		return fmt.Errorf("choose another password: %s", why)
 	}
 	return nil
 }
@@ -93,15 +106,32 @@ func Verify(pw, phc string) (bool, error) {
 	return subtle.ConstantTimeCompare(got, want) == 1, nil
 }
 
+// passwordAlphabet is the alphabet of generated passwords: letters and digits
+// without look-alike characters (no 0/O, 1/l/I, i, o).
+const passwordAlphabet = "abcdefghjkmnpqrstuvwxyzABCDEFGHJKMNPQRSTUVWXYZ23456789"
+
 // RandomPassword makes a password of n characters from an alphabet without
-// look-alike characters, for first sign-ins and resets.
+// look-alike characters, for first sign-ins and resets. Every character is
+// equally likely: random bytes at or above the largest multiple of the
+// alphabet's size (216 for 54 letters) are drawn again instead of being
+// reduced modulo the size, which would make the first 40 letters a quarter
+// more likely than the rest (rejection sampling, as crypto/rand.Int does).
 func RandomPassword(n int) string {
-	const alphabet = "abcdefghjkmnpqrstuvwxyzABCDEFGHJKMNPQRSTUVWXYZ23456789"
-	b := make([]byte, n)
-	r := make([]byte, n)
-	_, _ = rand.Read(r)
-	for i := range b {
-		b[i] = alphabet[int(r[i])%len(alphabet)]
+	const size = len(passwordAlphabet)
+	const limit = 256 - 256%size // bytes below this map evenly onto the alphabet
+	b := make([]byte, 0, n)
+	buf := make([]byte, n+n/4+8)
+	for len(b) < n {
+		_, _ = rand.Read(buf)
+		for _, c := range buf {
+			if int(c) >= limit {
+				continue
+			}
+			b = append(b, passwordAlphabet[int(c)%size])
+			if len(b) == n {
+				break
+			}
+		}
 	}
 	return string(b)
 }

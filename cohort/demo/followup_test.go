@@ -122,21 +122,22 @@ func TestFollowUpScriptsAreConsistent(t *testing.T) {
 			}
 			if rec.OverRead != "" {
 				lastRead = rec.OverRead
-				if (rec.Auto == overread.AutoAF) != (rec.OverRead == overread.AF) {
+				if (rec.Auto == overread.AutoSuggestsAF) != (rec.OverRead == overread.AF) {
 					disagree++
 				}
 			}
 		}
 		switch f.Final {
 		case followup.Referred:
-			if lastRead != overread.AF && lastRead != overread.Flutter {
+			// Only a confirmed AF is referred: its summary is signed off.
+			if lastRead != overread.AF {
 				t.Errorf("%s: referred after over-read %q", c.StudyID, lastRead)
 			}
 			if p.Canary {
 				canaryReferred = true
 			}
 		case followup.ClosedNotConfirmed:
-			if lastRead == overread.AF || lastRead == overread.Flutter || lastRead == "" {
+			if lastRead == overread.AF || lastRead == "" {
 				t.Errorf("%s: not confirmed after over-read %q", c.StudyID, lastRead)
 			}
 		case followup.ClosedWithdrawn:

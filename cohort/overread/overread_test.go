@@ -2,6 +2,7 @@ package overread
 
 import (
 	"errors"
+	"strings"
 	"testing"
 
 	"cohortdesk/cohort"
@@ -115,7 +116,8 @@ func TestNext(t *testing.T) {
 }
 
 // TestCategoriesCoverEveryValue checks that every verdict maps to a common
-// category and every automatic interpretation except "none" does.
+// category and every reading of the recorder except "no device reading"
+// does.
 func TestCategoriesCoverEveryValue(t *testing.T) {
 	in := map[Category]bool{}
 	for _, c := range Categories() {
@@ -129,13 +131,13 @@ func TestCategoriesCoverEveryValue(t *testing.T) {
 	}
 	for _, a := range Autos() {
 		c, ok := AutoCategory(a)
-		if ok != (a != AutoNone) || (ok && !in[c]) {
+		if ok != (a != AutoNoReading) || (ok && !in[c]) {
 			t.Errorf("auto %s maps to %q, %v", a, c, ok)
 		}
 	}
 	// An empty automatic interpretation is taken as none by recording
 	// intake (ecg.Intake, tested there); here the defined values only.
-	if !AutoNone.Valid() || Auto("maybe").Valid() || !Probable.Valid() || Confidence("sure").Valid() {
+	if !AutoNoReading.Valid() || Auto("maybe").Valid() || !Probable.Valid() || Confidence("sure").Valid() {
 		t.Error("automatic interpretation or confidence validity")
 	}
 	if Rhythm("sinus_rhythm").Valid() {
@@ -167,6 +169,64 @@ func TestDiagnostic(t *testing.T) {
 	for _, c := range cases {
 		if got := c.v.Diagnostic(c.tooShort); got != c.want {
 			t.Errorf("%s: Diagnostic = %v, want %v", c.name, got, c.want)
+		}
+	}
+}
+
+// TestConfirmsAF checks the confirmed-AF rule on resolved readings: a first
+// reading of AF alone confirms; a second reader who disagrees takes the
+// confirmation away until an adjudication settles on AF; a short recording or
+// another rhythm never confirms. The rules are the study's double-reading
+// scheme (common practice) and the 30 s minimum (from memory, as above).
+func TestConfirmsAF(t *testing.T) {
+	for _, tc := range []struct {
+		name     string
+		in       []Reading
+		tooShort bool
+		want     bool
+	}{
+		{"first reads AF", []Reading{rd(First, AF, Certain, 1, d1)}, false, true},
+		{"first AF, second sinus, no adjudication", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Sinus, Certain, 2, d2)}, false, false},
+		{"adjudicated AF", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Sinus, Certain, 2, d2), rd(Adjudication, AF, Probable, 3, d3)}, false, true},
+		{"adjudicated sinus", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Sinus, Certain, 2, d2), rd(Adjudication, Sinus, Probable, 3, d3)}, false, false},
+		{"agreed AF", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, AF, Probable, 2, d2)}, false, true},
+		{"AF on a short recording", []Reading{rd(First, AF, Certain, 1, d1)}, true, false},
+		{"flutter", []Reading{rd(First, Flutter, Certain, 1, d1)}, false, false},
+		{"unread", nil, false, false},
+	} {
+		v, err := Resolve(tc.in)
+		if err != nil {
+			t.Fatalf("%s: %v", tc.name, err)
+		}
+		if got := v.ConfirmsAF(tc.tooShort); got != tc.want {
+			t.Errorf("%s: ConfirmsAF = %v, want %v", tc.name, got, tc.want)
+		}
+	}
+}
+
+// TestRecorderReadingWords: the recorder's readings are worded as the
+// device's call, each distinctly, and the comparison text names every one of
+// them beside the readers' rhythms it is compared with.
+func TestRecorderReadingWords(t *testing.T) {
+	seen := map[string]bool{}
+	for _, a := range Autos() {
+		l := a.Label()
+		if !strings.Contains(l, "device") || seen[l] || !a.Valid() {
+			t.Errorf("recorder reading %s worded %q: want a distinct wording that says it is the device's", a, l)
+		}
+		seen[l] = true
+		if !strings.Contains(CategoryMapping, l) {
+			t.Errorf("the category mapping does not name %q: %s", l, CategoryMapping)
+		}
+	}
+	for _, r := range Rhythms() {
+		if !strings.Contains(CategoryMapping, r.Label()) {
+			t.Errorf("the category mapping does not name the rhythm %q", r.Label())
+		}
+	}
+	for _, c := range Categories() {
+		if !strings.Contains(CategoryMapping, string(c)+" (recorder: ") {
+			t.Errorf("the category mapping does not explain %q", c)
 		}
 	}
 }

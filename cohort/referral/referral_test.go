@@ -12,6 +12,7 @@ import (
 	"cohortdesk/cohort/deid/deidtest"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
 )
@@ -53,7 +54,7 @@ func source(tb testing.TB) Source {
 			{Week: 5, Verdict: "positive", Reason: "positive by run", WearHours: 101.24, Result: screen.Result{Windows: []screen.WindowResult{{Minutes: 30, Usable: 200, Irregular: 20, Share: 0.1}}}},
 			{Week: 3, Verdict: "positive", Reason: "positive by share", WearHours: 90, Result: screen.Result{Windows: []screen.WindowResult{{Minutes: 30, Usable: 200, Irregular: 50, Share: 0.25}}}},
 		},
-		Recording:    &Recording{TakenAt: time.Date(2025, 2, 20, 9, 30, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, Auto: "af"},
+		Recording:    &Recording{TakenAt: time.Date(2025, 2, 20, 9, 30, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, Auto: overread.AutoSuggestsAF},
 		OverRead:     &OverRead{Role: "first", Rhythm: "af", Confidence: "certain", ReadOn: date(tb, "2025-02-24")},
 		ContactRoute: "Study office: reply through the secure message line quoting the referral code.",
 		Cautions:     []string{"Screening is not diagnosis."},
@@ -331,5 +332,37 @@ func TestHeartRateChart(t *testing.T) {
 		if b.X < l.Left || b.X > l.Right || b.Y1 < l.Top-0.2 || b.Y2 > l.Bottom+0.2 || b.Y1 > b.Y2 {
 			t.Fatalf("bar %+v outside the plot %+v", b, l)
 		}
+	}
+}
+
+// TestWithdrawnSummaryNeedsConfirmation: a summary of a participant who is
+// still enrolled is issued as asked; one of a withdrawn participant only
+// with the issuer's confirmation, and the warning says when they left (in
+// study days, no date), why no sign-off follows and what can still be done.
+func TestWithdrawnSummaryNeedsConfirmation(t *testing.T) {
+	enrolled := cohort.Date{Year: 2026, Month: 3, Day: 4}
+	if w := WithdrawalOf(enrolled, nil, "v2"); w != nil || CheckIssue(w, false) != nil {
+		t.Fatalf("enrolled participant: withdrawal %v, check %v", w, CheckIssue(w, false))
+	}
+	left := enrolled.AddDays(45)
+	w := WithdrawalOf(enrolled, &left, "v2")
+	if w == nil || w.StudyDay != 45 {
+		t.Fatalf("withdrawal %+v, want study day 45", w)
+	}
+	var ve *cohort.ValidationError
+	if err := CheckIssue(w, false); !errors.As(err, &ve) || ve.Fields[ConfirmWithdrawnField] == "" {
+		t.Fatalf("unconfirmed issue for a withdrawn participant: %v", err)
+	}
+	if err := CheckIssue(w, true); err != nil {
+		t.Fatalf("confirmed issue: %v", err)
+	}
+	msg := w.Warning()
+	for _, want := range []string{"study day 45", "cannot be signed off", "What you can still do", `consent version "v2"`, "participant note"} {
+		if !strings.Contains(msg, want) {
+			t.Errorf("warning lacks %q: %s", want, msg)
+		}
+	}
+	if strings.Contains(msg, left.String()) {
+		t.Errorf("warning shows the withdrawal date: %s", msg)
 	}
 }

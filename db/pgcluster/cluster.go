@@ -442,13 +442,18 @@ func tail(path string, n int) string {
 	return strings.Join(lines, "\n")
 }
 
-// URL is a connection string for database db over the private Unix socket.
-func (c *Cluster) URL(db string) string {
+// URL is a connection string for database db over the private Unix socket,
+// as the cluster's superuser.
+func (c *Cluster) URL(db string) string { return c.URLAs(db, c.cfg.Superuser) }
+
+// URLAs is a connection string for database db as role (the private cluster
+// trusts every local connection, so no password is needed).
+func (c *Cluster) URLAs(db, role string) string {
 	q := url.Values{}
 	q.Set("host", c.sockDir)
 	q.Set("port", strconv.Itoa(c.cfg.Port))
 	q.Set("sslmode", "disable")
-	return (&url.URL{Scheme: "postgres", User: url.User(c.cfg.Superuser), Path: "/" + db, RawQuery: q.Encode()}).String()
+	return (&url.URL{Scheme: "postgres", User: url.User(role), Path: "/" + db, RawQuery: q.Encode()}).String()
 }
 
 // Dir is the folder that holds the cluster.

@@ -33,6 +33,9 @@ type Store interface {
 type Draft struct {
 	Basis   db.ReferralBasis
 	Summary referral.Summary
+	// ConfirmedWithdrawn is the issuer's confirmation that a summary of a
+	// withdrawn participant (Basis.Withdrawal) may still be passed on.
+	ConfirmedWithdrawn bool
 }
 
 // Prepare builds a participant's summary as issued at the given time: for one
@@ -57,15 +60,42 @@ func Prepare(ctx context.Context, st Store, participantID, caseID int64, secret 
 // PaperLetter) and records the summary as issued by a in the format it is
 // handed out in (html, pdf or zip). It returns the record and the PDF.
 func Record(ctx context.Context, st Store, a cohort.Actor, d Draft, format, paper string) (db.Referral, []byte, error) {
+	if err := referral.CheckIssue(d.Basis.Withdrawal, d.ConfirmedWithdrawn); err != nil {
+		return db.Referral{}, nil, err
+	}
 	pdf, err := referralpdf.Render(d.Summary, paper)
 	if err != nil {
 		return db.Referral{}, nil, err
 	}
 	sum := sha256.Sum256(pdf)
 	ref, err := st.IssueReferral(ctx, a, db.ReferralIssue{Basis: d.Basis, Summary: d.Summary, Format: format, Paper: paper,
-		PDFSHA256: hex.EncodeToString(sum[:])})
+		PDFSHA256: hex.EncodeToString(sum[:]), ConfirmedWithdrawn: d.ConfirmedWithdrawn})
 	if err != nil {
 		return db.Referral{}, nil, err
 	}
 	return ref, pdf, nil
+}
+
+// Signer is what signing a summary off needs from the database (*db.Store).
+type Signer interface {
+	SignOffReferral(ctx context.Context, a cohort.Actor, id int64, draw db.DrawSummary) (db.Referral, error)
+}
+
+// SignOff has investigator a sign the issued summary id off: the store
+// records the signed content (naming a and the study day) with its digest and
+// the digest of its PDF, drawn here on the recorded paper, and moves the case
+// to referred.
+func SignOff(ctx context.Context, st Signer, a cohort.Actor, id int64) (db.Referral, error) {
+	return st.SignOffReferral(ctx, a, id, DrawDigest)
+}
+
+// DrawDigest draws a summary's PDF on the paper and returns its SHA-256 in
+// hex: the digest a PDF sent later must have.
+func DrawDigest(sum referral.Summary, paper string) (string, error) {
+	pdf, err := referralpdf.Render(sum, paper)
+	if err != nil {
+		return "", err
+	}
+	d := sha256.Sum256(pdf)
+	return hex.EncodeToString(d[:]), nil
 }

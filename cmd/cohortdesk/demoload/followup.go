@@ -59,12 +59,19 @@ func followUps(ctx context.Context, store *db.Store, st *demo.Study, users map[s
 	// weeks ended, so a case opens (and its opening is audited, with its
 	// first deadline) when its own week was flagged, not with an earlier
 	// episode of the same participant.
-	pool := store.Pool()
+	// The held results wait in a temporary table of one connection: the
+	// loader runs as the application's database role, which may not create
+	// tables.
+	pool, err := store.Pool().Acquire(ctx)
+	if err != nil {
+		return 0, err
+	}
+	defer pool.Release()
 	if _, err := pool.Exec(ctx, `DROP TABLE IF EXISTS seed_held_results`); err != nil {
 		return 0, err
 	}
 	for _, q := range []string{
-		`CREATE TABLE seed_held_results AS SELECT * FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
+		`CREATE TEMP TABLE seed_held_results AS SELECT * FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
 		`DELETE FROM screen_results WHERE protocol_id = $1 AND verdict = 'positive'`,
 	} {
 		if _, err := pool.Exec(ctx, q, pv.ID); err != nil {
@@ -174,7 +181,7 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 		if u, ok := users[login]; ok {
 			return u.Actor("", "demo")
 		}
-		return cohort.Actor{Name: "demo loader"}
+		return cohort.Actor{Name: LoaderName}
 	}
 	if owner, ok := users[f.Owner]; ok && len(evs) > 0 {
 		clk.t = evs[0].at.Add(-time.Minute)
@@ -205,8 +212,13 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 				reader = signer
 			}
 			err = addOverRead(ctx, cs, reader, recID[ev.read], *ev.read, loc)
-		case ev.move != nil && ev.move.To == followup.Referred && len(secret) > 0:
-			err = refer(ctx, cs, actor(ev.move.By), signer, c, secret, ev.at)
+		case ev.move != nil && ev.move.To == followup.Referred:
+			// A case is referred only by signing its summary off; without a
+			// deployment secret no summary can be issued, and the case stays
+			// over-read, waiting for its summary.
+			if len(secret) > 0 {
+				err = refer(ctx, cs, actor(ev.move.By), signer, c, secret, ev.at)
+			}
 		case ev.move != nil:
 			err = playMove(ctx, cs, actor(ev.move.By), c, ev.move.To, ev.at)
 		}
@@ -228,13 +240,10 @@ func playMove(ctx context.Context, cs *db.Store, a cohort.Actor, c db.Case, to f
 	var err error
 	switch to {
 	case followup.RecorderSent:
-		_, err = cs.RecordShipment(ctx, a, c.ID, c.Version, day, fmt.Sprintf("DM%09d", c.ID*7919%1000000000))
+		_, err = cs.RecordShipment(ctx, a, c.ID, c.Version, day, demo.TrackingNumber(c.ID))
 	case followup.RecordingReceived, followup.OverRead:
 		// The recording's arrival and its over-read move the case themselves.
 		return nil
-	case followup.Referred:
-		// Without a deployment secret no summary can be issued: move only.
-		_, err = cs.AdvanceCase(ctx, a, c.ID, to, at, "referral summary sent to the participant's physician")
 	default:
 		if to.Terminal() {
 			_, err = cs.CloseCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: to, Reason: closingReason(to)})

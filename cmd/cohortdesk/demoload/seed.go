@@ -80,7 +80,7 @@ func Load(ctx context.Context, store *db.Store, o Options) (Result, error) {
 		return res, fmt.Errorf("seed: %w", err)
 	}
 	res.Study = st
-	actor := cohort.Actor{Name: "demo loader"}
+	actor := cohort.Actor{Name: LoaderName}
 	if err := loadStudy(ctx, store, actor, st); err != nil {
 		return res, err
 	}
@@ -89,6 +89,11 @@ func Load(ctx context.Context, store *db.Store, o Options) (Result, error) {
 		return res, err
 	}
 	res.Users = users
+	// The demo's fictional staff sign in with the password alone; anyone
+	// may still set up a second factor on their account page to try it.
+	if err := store.SetSecondFactorRequired(ctx, actor, false); err != nil {
+		return res, err
+	}
 	if err := loadParticipants(ctx, store, actor, st); err != nil {
 		return res, err
 	}
@@ -180,11 +185,13 @@ func loadStudy(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.St
 }
 
 func loadUsers(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.Study, o Options) ([]demo.User, error) {
-	hash, err := credential.Hash(o.Password, o.PasswordCost)
-	if err != nil {
-		return nil, err
-	}
 	for _, u := range st.Users {
+		// A hash per account: each gets its own random salt, so equal
+		// passwords do not give equal hashes.
+		hash, err := credential.Hash(o.Password, o.PasswordCost)
+		if err != nil {
+			return nil, err
+		}
 		if _, err := store.CreateUser(ctx, a, db.NewUser{Email: u.Email, Name: u.Name, Role: u.Role, PasswordHash: hash}); err != nil {
 			return nil, fmt.Errorf("seed: user %s: %w", u.Email, err)
 		}

@@ -7,8 +7,14 @@
 -- and each foreign key between them includes it, so all of one participant's
 -- rows live together and a participant's page or case is read on one
 -- machine. Lookups by a row's own id keep a plain (not unique) index.
--- cmd/guardrails' TestSchemaKeyedByParticipant checks the rule on the
--- migrated schema.
+-- migrations' TestSchemaKeyedByParticipant checks the rule on the migrated
+-- schema.
+--
+-- This migration runs after every table it re-keys exists (the recording
+-- signals, the outbox and its letters, the over-read corrections came after
+-- the first kept figures), so their foreign keys into cases, recordings and
+-- contact attempts, made by id alone, are dropped here with the others and
+-- made again in pairs.
 
 -- Study IDs stay unique across the study in a directory keyed by study ID
 -- (spread by its own key), kept by a trigger; participants keep a plain
@@ -49,6 +55,12 @@ ALTER TABLE recordings DROP CONSTRAINT recordings_case_id_fkey;
 ALTER TABLE over_reads DROP CONSTRAINT over_reads_case_id_fkey;
 ALTER TABLE over_reads DROP CONSTRAINT over_reads_recording_id_fkey;
 ALTER TABLE referrals DROP CONSTRAINT referrals_case_id_fkey;
+ALTER TABLE recording_leads DROP CONSTRAINT recording_leads_recording_id_fkey;
+ALTER TABLE letter_batch_items DROP CONSTRAINT letter_batch_items_case_id_fkey;
+ALTER TABLE messages DROP CONSTRAINT messages_case_id_fkey;
+ALTER TABLE messages DROP CONSTRAINT messages_attempt_id_fkey;
+ALTER TABLE over_read_revisions DROP CONSTRAINT over_read_revisions_recording_id_fkey;
+ALTER TABLE over_read_revisions DROP CONSTRAINT over_read_revisions_case_id_fkey;
 
 ALTER TABLE cases DROP CONSTRAINT cases_pkey;
 ALTER TABLE cases ADD PRIMARY KEY (participant_id, id);
@@ -86,3 +98,40 @@ ALTER TABLE recordings ADD FOREIGN KEY (participant_id, case_id) REFERENCES case
 ALTER TABLE over_reads ADD FOREIGN KEY (participant_id, case_id) REFERENCES cases (participant_id, id);
 ALTER TABLE over_reads ADD FOREIGN KEY (participant_id, recording_id) REFERENCES recordings (participant_id, id);
 ALTER TABLE referrals ADD FOREIGN KEY (participant_id, case_id) REFERENCES cases (participant_id, id);
+
+-- A recording's analysed leads carry their participant (filled from the
+-- recording when a lead is stored).
+ALTER TABLE recording_leads ADD COLUMN participant_id bigint;
+UPDATE recording_leads l SET participant_id = r.participant_id FROM recordings r WHERE r.id = l.recording_id;
+ALTER TABLE recording_leads ALTER COLUMN participant_id SET NOT NULL;
+ALTER TABLE recording_leads DROP CONSTRAINT recording_leads_pkey;
+ALTER TABLE recording_leads ADD PRIMARY KEY (participant_id, recording_id, lead_index);
+CREATE INDEX recording_leads_recording_idx ON recording_leads (recording_id, lead_index);
+ALTER TABLE recording_leads ADD FOREIGN KEY (participant_id, recording_id) REFERENCES recordings (participant_id, id);
+
+-- A batch's letters: one per case, each in its place; both rules now hold
+-- per participant (a batch is printed by one transaction, which numbers its
+-- letters), and the letters are read by batch from a plain index.
+ALTER TABLE letter_batch_items DROP CONSTRAINT letter_batch_items_pkey;
+ALTER TABLE letter_batch_items DROP CONSTRAINT letter_batch_items_batch_id_case_id_key;
+ALTER TABLE letter_batch_items ADD PRIMARY KEY (participant_id, batch_id, case_id);
+CREATE INDEX letter_batch_items_batch_idx ON letter_batch_items (batch_id, position);
+ALTER TABLE letter_batch_items ADD FOREIGN KEY (participant_id, case_id) REFERENCES cases (participant_id, id);
+
+-- The outbox.
+ALTER TABLE messages DROP CONSTRAINT messages_pkey;
+ALTER TABLE messages ADD PRIMARY KEY (participant_id, id);
+CREATE INDEX messages_id_idx ON messages (id);
+ALTER TABLE messages DROP CONSTRAINT messages_attempt_id_key;
+ALTER TABLE messages ADD CONSTRAINT messages_attempt_key UNIQUE (participant_id, attempt_id);
+ALTER TABLE messages DROP CONSTRAINT messages_idempotency_key_key;
+ALTER TABLE messages ADD CONSTRAINT messages_idempotency_key UNIQUE (participant_id, idempotency_key);
+CREATE INDEX messages_idempotency_idx ON messages (idempotency_key);
+ALTER TABLE messages ADD FOREIGN KEY (participant_id, case_id) REFERENCES cases (participant_id, id);
+ALTER TABLE messages ADD FOREIGN KEY (participant_id, attempt_id) REFERENCES contact_attempts (participant_id, id);
+
+-- Corrections of over-reads.
+ALTER TABLE over_read_revisions DROP CONSTRAINT over_read_revisions_pkey;
+ALTER TABLE over_read_revisions ADD PRIMARY KEY (participant_id, id);
+ALTER TABLE over_read_revisions ADD FOREIGN KEY (participant_id, recording_id) REFERENCES recordings (participant_id, id);
+ALTER TABLE over_read_revisions ADD FOREIGN KEY (participant_id, case_id) REFERENCES cases (participant_id, id);

@@ -12,25 +12,25 @@ import (
 	"strconv"
 )
 
-// spool is a download being built in a temporary file, so a large export
+// downloadFile is a download being built in a temporary file, so a large export
 // (the de-identified dataset of a large study, a batch of summaries) takes
 // bounded memory whatever its size: it is written, its size and digest are
 // recorded, then it is sent from the file.
-type spool struct {
+type downloadFile struct {
 	f *os.File
 	h hash.Hash
 	n int64
 }
 
-func newSpool() (*spool, error) {
+func newDownloadFile() (*downloadFile, error) {
 	f, err := os.CreateTemp("", "cohortdesk-download-*")
 	if err != nil {
-		return nil, fmt.Errorf("web: spool: %w", err)
+		return nil, fmt.Errorf("web: download file: %w", err)
 	}
-	return &spool{f: f, h: sha256.New()}, nil
+	return &downloadFile{f: f, h: sha256.New()}, nil
 }
 
-func (s *spool) Write(p []byte) (int, error) {
+func (s *downloadFile) Write(p []byte) (int, error) {
 	n, err := s.f.Write(p)
 	s.h.Write(p[:n])
 	s.n += int64(n)
@@ -38,15 +38,15 @@ func (s *spool) Write(p []byte) (int, error) {
 }
 
 // SHA256 is the hex digest of what was written.
-func (s *spool) SHA256() string { return hex.EncodeToString(s.h.Sum(nil)) }
+func (s *downloadFile) SHA256() string { return hex.EncodeToString(s.h.Sum(nil)) }
 
 // Size is how many bytes were written.
-func (s *spool) Size() int64 { return s.n }
+func (s *downloadFile) Size() int64 { return s.n }
 
-// sendZip sends the spooled zip as an attachment named name.
-func (s *spool) sendZip(w http.ResponseWriter, name string) error {
+// sendZip sends the zip built in the file as an attachment named name.
+func (s *downloadFile) sendZip(w http.ResponseWriter, name string) error {
 	if _, err := s.f.Seek(0, io.SeekStart); err != nil {
-		return fmt.Errorf("web: spool: %w", err)
+		return fmt.Errorf("web: download file: %w", err)
 	}
 	w.Header().Set("Content-Type", "application/zip")
 	w.Header().Set("Content-Disposition", `attachment; filename="`+url.PathEscape(name)+`"`)
@@ -58,7 +58,7 @@ func (s *spool) sendZip(w http.ResponseWriter, name string) error {
 }
 
 // Close removes the file.
-func (s *spool) Close() {
+func (s *downloadFile) Close() {
 	s.f.Close()
 	os.Remove(s.f.Name())
 }
