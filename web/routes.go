@@ -138,7 +138,9 @@ func (s *Server) buildRouter() chi.Router {
 	r.Use(s.metrics.route)
 	for _, rt := range s.routeTable {
 		h := rt.h
-		if rt.method == "GET" {
+		if rt.method == "GET" && !rt.access.public {
+			// Pages people read may come from the standby; health,
+			// readiness and sign-in answer for the primary.
 			h = s.fromStandby(rt.pattern, h)
 		}
 		g := s.guard(rt.access, s.wrap(h))
