@@ -42,7 +42,7 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 	}
 	loc := st.Location()
 	today := cohort.DateOf(s.now().In(loc))
-	day := func(t time.Time) string { return t.In(loc).Format("2006-01-02") }
+	day := func(t time.Time) string { return dayOf(t, loc) }
 	row := func(q db.QueueRecording) views.QueueRowView {
 		return views.QueueRowView{Href: fmt.Sprintf("/recordings/%d", q.ID), CaseHref: fmt.Sprintf("/cases/%d", q.CaseID), StudyID: q.StudyID,
 			Site: q.SiteCode, Taken: day(q.TakenAt), Received: day(q.ReceivedAt), Duration: seconds(q.DurationS), TooShort: q.TooShort,
@@ -65,7 +65,7 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 	}
 	for _, o := range lists.Recent {
 		m.Recent = append(m.Recent, views.RecentReadingView{Href: fmt.Sprintf("/recordings/%d", o.RecordingID), StudyID: o.StudyID, Site: o.SiteCode,
-			Role: o.Role.Label(), Rhythm: o.Rhythm.Label(), Reader: o.Reader, On: o.On.String(), TooShort: o.TooShort})
+			Role: o.Role.Label(), Rhythm: o.Rhythm.Label(), Reader: o.Reader, On: o.On.Label(), TooShort: o.TooShort})
 	}
 	return s.ok(w, r, views.Confirmations(m))
 }
@@ -146,7 +146,7 @@ func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error
 	if err != nil {
 		return err
 	}
-	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.String(), Protocol: a.Protocol.Label(),
+	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.Label(), Protocol: a.Protocol.Label(),
 		ProtoID: strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
 	for _, t := range []string{"versions", "groups", "km", "kappa"} {
 		m.CSV[t] = statsCSVHref(t, q)

@@ -5,12 +5,13 @@ import (
 	"fmt"
 	"net/http"
 	"net/url"
+	"strconv"
+	"strings"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/views/components"
 )
 
 type homeStore interface {
@@ -31,7 +32,7 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 	}
 	m := views.HomeModel{
 		Page: s.page(r, "Overview", "home"),
-		AsOf: "at " + s.now().UTC().Format("2006-01-02 15:04 UTC"),
+		AsOf: "at " + when(s.now(), s.studyZone(ctx)),
 		Tiles: []views.Tile{
 			{Key: "participants", Label: "participants enrolled", Value: c.Participants},
 			{Key: "active", Label: "active (not withdrawn)", Value: c.Active},
@@ -47,9 +48,11 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 		for _, g := range triageGroups {
 			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.title, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
 		}
-		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: "other cases, on schedule", Value: int64(t.Counts[followup.BucketOther]), Href: "/cases"})
+		other := t.Counts[followup.BucketOther]
+		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: strings.TrimPrefix(plural(other, "other case"), strconv.Itoa(other)+" ") + ", on schedule",
+			Value: int64(other), Href: "/cases"})
 		m.WorkNote = fmt.Sprintf("As of %s, %s (%s); the triage page lists them in order of urgency.",
-			dayLabel(t.Settings.Calendar().DateOf(t.Now)), t.Now.Format("15:04"), t.Settings.Location())
+			dayLabel(t.Settings.Calendar().DateOf(t.Now)), cohort.ClockLabel(t.Now, t.Settings.Location()), t.Settings.Location())
 	}
 	list := s.may(r, "/cases")
 	for _, st := range followup.States() {
@@ -70,12 +73,14 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 		}
 		if len(imps) > 0 {
 			rep := imps[0]
-			when := "started " + rep.StartedAt.UTC().Format("2006-01-02 15:04 UTC")
+			loc := s.studyZone(ctx)
+			at := "started " + when(rep.StartedAt, loc)
 			if rep.FinishedAt != nil {
-				when = "finished " + rep.FinishedAt.UTC().Format("2006-01-02 15:04 UTC")
+				at = "finished " + when(*rep.FinishedAt, loc)
 			}
-			m.LastImport = &views.ImportSummary{Href: fmt.Sprintf("/imports/%d", rep.ID), File: rep.FileName, Status: rep.Status,
-				Tone: components.Tone(statusTone(rep.Status)), When: when, Accepted: rep.Accepted, Rejected: rep.Rejected}
+			status, tone := importOutcome(rep.Status, rep.Accepted, rep.Rejected, rep.Duplicates)
+			m.LastImport = &views.ImportSummary{Href: fmt.Sprintf("/imports/%d", rep.ID), File: rep.FileName, Status: status,
+				Tone: tone, When: at, Accepted: rep.Accepted, Rejected: rep.Rejected}
 		}
 	}
 	return s.ok(w, r, views.Home(m))

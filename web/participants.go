@@ -11,8 +11,8 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/enrolment"
-	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
 	"cohortdesk/views/components"
@@ -32,16 +32,14 @@ type participantStore interface {
 	Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error
 }
 
-// ageBands are the subgroup bands shown instead of exact ages.
-var ageBands, _ = stats.NewAgeBands(50, 60, 70, 80)
-
-// ageBand of a participant today, from the age at enrolment (no PHI needed).
+// ageBand of a participant today, from the age at enrolment (no PHI
+// needed), in the one set of age bands (deid.AgeBand), the referral
+// summary's.
 func ageBand(p db.Participant, now time.Time) string {
 	if p.AgeAtEnrolment == nil {
 		return "not recorded"
 	}
-	age := *p.AgeAtEnrolment + cohort.DateOf(now).DaysSince(p.EnrolledOn)/365
-	return ageBands.Label(age)
+	return deid.AgeBand(deid.AgeSince(*p.AgeAtEnrolment, p.EnrolledOn, cohort.DateOf(now.In(p.Location()))).Years)
 }
 
 // status is withdrawn, completed (past the study's weeks of wear data) or
@@ -109,7 +107,7 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 	for _, p := range page.Rows {
 		st, tone := status(p.Participant, fw, now)
 		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: p.Sex.Label(),
-			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.String(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
+			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.Label(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
 		if p.LastPositive != nil {
 			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
 		}
@@ -228,14 +226,14 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		{Label: "Site", Value: p.SiteCode},
 		{Label: "Sex", Value: p.Sex.Label()},
 		{Label: "Age band", Value: ageBand(p, s.now())},
-		{Label: "Enrolled", Value: p.EnrolledOn.String()},
+		{Label: "Enrolled", Value: p.EnrolledOn.Label()},
 		{Label: "Time zone", Value: p.TimeZone},
 		{Label: "Consent version", Value: p.ConsentVersion},
 		{Label: "Watch", Value: p.WatchModel},
 		{Label: "Beat intervals", Value: map[bool]string{true: "supplied by the watch", false: "not supplied"}[p.RRCapable]},
 	}
 	if p.WithdrawnOn != nil {
-		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: p.WithdrawnOn.String() + " (" + p.WithdrawalReason + ")"})
+		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: p.WithdrawnOn.Label() + " (" + p.WithdrawalReason + ")"})
 	}
 	m.Risk = []views.Fact{
 		{Label: "High blood pressure", Value: yesNo(p.Risk.Hypertension)},
@@ -251,7 +249,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		}
 		birth := ""
 		if id.BirthDate != nil {
-			birth = id.BirthDate.String()
+			birth = id.BirthDate.Label()
 		}
 		m.Identity = []views.Fact{{Label: "Name", Value: id.FullName()}, {Label: "Birth date", Value: birth}, {Label: "Phone", Value: id.Phone},
 			{Label: "E-mail", Value: id.Email}, {Label: "Address", Value: strings.TrimSpace(id.Street + ", " + id.City + " " + id.ZIP)},
@@ -272,7 +270,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	loc := p.Location()
 	for _, l := range lines {
 		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
-		row := views.TimelineRow{Week: l.Week, Dates: start.Format("Jan 2") + " – " + end.AddDate(0, 0, -1).Format("Jan 2"), Readings: l.Readings,
+		row := views.TimelineRow{Week: l.Week, Dates: cohort.DateRangeLabel(cohort.DateOf(start), cohort.DateOf(end.AddDate(0, 0, -1))), Readings: l.Readings,
 			Verdict: l.Verdict, Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
 			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
 		if l.WearHours > 0 {
@@ -290,8 +288,12 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	if r.URL.Query().Get("done") == "note" {
+		m.NoteSaved = "Note saved."
+	}
+	studyLoc := s.studyZone(ctx)
 	for _, n := range notes {
-		m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
+		m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: when(n.At, studyLoc)})
 	}
 	return s.ok(w, r, views.ParticipantPage(m))
 }
@@ -499,6 +501,6 @@ func (s *Server) participantNote(w http.ResponseWriter, r *http.Request) error {
 	if err := s.store.AddNote(r.Context(), s.actor(r), p.ID, r.PostForm.Get("body")); err != nil {
 		return err
 	}
-	http.Redirect(w, r, fmt.Sprintf("/participants/%d#notes", p.ID), http.StatusSeeOther)
+	http.Redirect(w, r, fmt.Sprintf("/participants/%d?done=note#notes", p.ID), http.StatusSeeOther)
 	return nil
 }

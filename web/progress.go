@@ -108,8 +108,9 @@ func (f enrolFig) percent() string {
 }
 
 // dates words the projection: the expected date and the range of the
-// interval's scenarios.
-func (f enrolFig) dates() (projection, earliest, latest string) {
+// interval's scenarios, each day written by day (cohort.Date.Label on
+// pages, cohort.Date.String in files).
+func (f enrolFig) dates(day func(cohort.Date) string) (projection, earliest, latest string) {
 	if !f.projected {
 		return f.why, "", ""
 	}
@@ -120,13 +121,13 @@ func (f enrolFig) dates() (projection, earliest, latest string) {
 	case !p.Expected.Reachable:
 		projection = "not reachable at the recent rate (no enrolments in the window)"
 	default:
-		projection = p.Expected.Date.String()
+		projection = day(p.Expected.Date)
 	}
 	if p.Optimistic.Reachable {
-		earliest = p.Optimistic.Date.String()
+		earliest = day(p.Optimistic.Date)
 		latest = "not reachable at the lower rate"
 		if p.Pessimistic.Reachable {
-			latest = p.Pessimistic.Date.String()
+			latest = day(p.Pessimistic.Date)
 		}
 	}
 	return projection, earliest, latest
@@ -135,7 +136,7 @@ func (f enrolFig) dates() (projection, earliest, latest string) {
 func (f enrolFig) row() views.EnrolmentRow {
 	row := views.EnrolmentRow{Key: f.key, Label: f.label, Target: f.target, Enrolled: f.enrolled, Withdrawn: f.withdrawn, Percent: f.percent()}
 	var earliest, latest string
-	row.Projection, earliest, latest = f.dates()
+	row.Projection, earliest, latest = f.dates(cohort.Date.Label)
 	if f.projected {
 		p := f.proj
 		row.Rate = fmt.Sprintf("%.1f a week (95%% CI %.1f–%.1f) over %d weeks", p.Expected.RatePerWeek, p.Pessimistic.RatePerWeek, p.Optimistic.RatePerWeek, p.Window)
@@ -164,7 +165,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	if err := g.Wait(); err != nil {
 		return err
 	}
-	m := views.ProgressModel{Page: s.page(r, "Progress", "progress"), Window: window, AsOf: h.Today.String()}
+	m := views.ProgressModel{Page: s.page(r, "Progress", "progress"), Window: window, AsOf: h.Today.Label()}
 	figs, all := studyFigures(h, window)
 	for _, f := range figs {
 		m.Enrolment = append(m.Enrolment, f.row())
@@ -187,7 +188,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		charts.WithYAxisOpts(opts.YAxis{Name: "participants"}))
 	labels := make([]string, len(h.Weeks))
 	for i, d := range h.Weeks {
-		labels[i] = d.String()
+		labels[i] = d.Label()
 	}
 	line.SetXAxis(labels)
 	cum := func(weekly []int) []opts.LineData {
@@ -228,9 +229,9 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		if w.Active > 0 {
 			share = 100 * float64(w.Sufficient) / float64(w.Active)
 		}
-		sx = append(sx, w.Week.String())
+		sx = append(sx, w.Week.Label())
 		sy = append(sy, opts.LineData{Value: fmt.Sprintf("%.1f", share)})
-		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Week: w.Week.String(), Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
+		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Key: w.Week.String(), Week: w.Week.Label(), Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
 	}
 	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy)
 	sch, _, err := chartView("sufficiency", "Share of participant-weeks with enough usable wear, by calendar week", sl, false)
@@ -240,10 +241,11 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	m.SufficiencyChart = sch
 
 	m.SilentDays = silentDays
+	loc := s.studyZone(r.Context())
 	for _, sp := range silent {
 		last := "never"
 		if sp.LastData != nil {
-			last = sp.LastData.Format("2006-01-02")
+			last = dayOf(*sp.LastData, loc)
 		}
 		m.Silent = append(m.Silent, views.SilentRow{Href: fmt.Sprintf("/participants/%d", sp.ID), StudyID: sp.StudyID, Site: sp.SiteCode, Last: last, Days: sp.Days})
 	}

@@ -72,7 +72,7 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	case len(rf.weeks) == 0:
 		rf.weekSpan = "No completed participant-week in the period"
 	default:
-		rf.weekSpan = "Calendar weeks (Monday to Sunday) from " + rf.weeks[0].Week.String() + " to the week of " + rf.weeks[len(rf.weeks)-1].Week.String()
+		rf.weekSpan = "Calendar weeks (Monday to Sunday) from " + rf.weeks[0].Week.Label() + " to the week of " + rf.weeks[len(rf.weeks)-1].Week.Label()
 	}
 	return rf, sites, nil
 }
@@ -127,12 +127,12 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	paper := paperOf(r.URL.Query().Get("paper"))
+	paper := paperOf(r.URL.Query().Get("paper"), s.studyPaper(r.Context()))
 	m := views.ReportModel{Page: s.page(r, "Weekly report", "progress"), Paper: paper, Protocols: protocolOptions(rf.cascade.Versions),
 		ProtoID: strconv.Itoa(rf.cascade.Protocol.ID), SiteID: rf.cq.site, From: dateText(rf.cq.from), To: dateText(rf.cq.to), Window: rf.window,
-		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.String(),
-		Generated: rf.generated.UTC().Format("2006-01-02 15:04 UTC"), CSVHref: rf.cq.href("/progress/report.zip", "window", strconv.Itoa(rf.window)),
-		WeekSpan: rf.weekSpan, Flow: flowView(rf.cascade, rf.cq), StatsAsOf: rf.agree.AsOf.String()}
+		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.Label(),
+		Generated: when(rf.generated, s.studyZone(r.Context())), CSVHref: rf.cq.href("/progress/report.zip", "window", strconv.Itoa(rf.window)),
+		WeekSpan: rf.weekSpan, Flow: flowView(rf.cascade, rf.cq), StatsAsOf: rf.agree.AsOf.Label()}
 	m.Flow.Compact = true
 	for _, st := range sites {
 		m.Sites = append(m.Sites, views.Option{Value: strconv.Itoa(st.ID), Label: st.Code + " · " + st.Name})
@@ -158,7 +158,9 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.Total = rf.total.row()
 	for _, wk := range rf.weeks {
-		m.Weeks = append(m.Weeks, sufficiencyRow(wk.Week.String(), wk.Active, wk.Sufficient))
+		row := sufficiencyRow(wk.Week.Label(), wk.Active, wk.Sufficient)
+		row.Key = wk.Week.String()
+		m.Weeks = append(m.Weeks, row)
 	}
 	due, enough := rf.weeksTotal()
 	m.WeeksTotal = sufficiencyRow("All weeks shown", due, enough)
@@ -186,7 +188,7 @@ func (rf reportFigures) keyFigures(m views.ReportModel) []views.ReportFigure {
 	}
 	return []views.ReportFigure{
 		{Key: "enrolled", Label: "enrolled in the period", Value: strconv.Itoa(c.Box("enrolled").Count()), Note: rf.cq.period()},
-		{Key: "enrolled-total", Label: "enrolled by " + rf.hist.Today.String() + of, Value: strconv.Itoa(total.Enrolled), Note: "target: " + total.Projection},
+		{Key: "enrolled-total", Label: "enrolled by " + rf.hist.Today.Label() + of, Value: strconv.Itoa(total.Enrolled), Note: "target: " + total.Projection},
 		{Key: "sufficiency", Label: "participant-weeks with enough wear", Value: m.WeeksTotal.Share,
 			Note: strconv.Itoa(m.WeeksTotal.Sufficient) + " of " + strconv.Itoa(m.WeeksTotal.Due)},
 		{Key: "screen-positive", Label: "screen-positive participants", Value: strconv.Itoa(c.Box("screen_positive").Count())},
@@ -248,7 +250,7 @@ func (rf reportFigures) reportTables() []*csvTable {
 		names[se.Code] = se.Name
 	}
 	for _, f := range append(append([]enrolFig{}, rf.sites...), rf.total) {
-		projected, earliest, latest := f.dates()
+		projected, earliest, latest := f.dates(cohort.Date.String)
 		window, count, rate, lo, hi := "", "", "", "", ""
 		if f.projected {
 			window, count = strconv.Itoa(f.proj.Window), strconv.Itoa(f.proj.Count)

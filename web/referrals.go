@@ -86,7 +86,7 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	b, sum := d.Basis, d.Summary
-	paper := paperOf(r.URL.Query().Get("paper"))
+	paper := paperOf(r.URL.Query().Get("paper"), s.studyPaper(r.Context()))
 	base := fmt.Sprintf("/participants/%d/referral?case=%d&paper=", pid, b.CaseID)
 	m := s.referralModel(r, sum, paper, base)
 	m.Page.Title = "Referral summary (preview)"
@@ -115,7 +115,7 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	if format != "html" {
 		format = "pdf"
 	}
-	paper := paperOf(r.PostForm.Get("paper"))
+	paper := paperOf(r.PostForm.Get("paper"), s.studyPaper(r.Context()))
 	ref, _, err := s.issue(r.Context(), s.actor(r), pid, caseID, format, paper)
 	if err != nil {
 		return err
@@ -169,7 +169,7 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	}
 	paper := ref.Paper
 	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p)
+		paper = paperOf(p, ref.Paper)
 	}
 	m := s.referralModel(r, sum, paper, fmt.Sprintf("/referrals/%d?paper=", ref.ID))
 	m.Page.Title = "Referral summary " + sum.ReferralCode
@@ -178,14 +178,14 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	if msg == "" && r.URL.Query().Get("done") == "signoff" {
 		m.Page.Flash = "Signed off; the case is now referred."
 	}
-	rec := &views.ReferralRecordView{ID: ref.ID, IssuedBy: ref.IssuedBy, IssuedAt: ref.IssuedAt.UTC().Format("2006-01-02 15:04 UTC"),
+	rec := &views.ReferralRecordView{ID: ref.ID, IssuedBy: ref.IssuedBy, IssuedAt: when(ref.IssuedAt, s.studyZone(r.Context())),
 		Format: ref.Format, Paper: paperLabel(ref.Paper), Digest: ref.ContentSHA256, DigestOK: ok, PDFDigest: ref.PDFSHA256}
 	if ref.CaseID != 0 {
 		rec.CaseHref = fmt.Sprintf("/cases/%d", ref.CaseID)
 		m.CaseHref = rec.CaseHref
 	}
 	if !ref.SignedOffAt.IsZero() {
-		rec.SignedOff = "by " + ref.SignedOffBy + " on " + ref.SignedOffAt.UTC().Format("2006-01-02 15:04 UTC")
+		rec.SignedOff = "by " + ref.SignedOffBy + " on " + when(ref.SignedOffAt, s.studyZone(r.Context()))
 	}
 	if clinical.allows(role(r)) && rec.SignedOff == "" {
 		switch {
@@ -223,7 +223,7 @@ func (s *Server) referralPDFFile(w http.ResponseWriter, r *http.Request) error {
 	}
 	paper := ref.Paper
 	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p)
+		paper = paperOf(p, ref.Paper)
 	}
 	pdf, err := referralPDF(sum, paper)
 	if err != nil {
@@ -315,7 +315,7 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	ctx := r.Context()
-	paper := paperOf(r.PostForm.Get("paper"))
+	paper := paperOf(r.PostForm.Get("paper"), s.studyPaper(ctx))
 	ready, err := s.store.ReadyToRefer(ctx)
 	if err != nil {
 		return err

@@ -40,6 +40,7 @@ type Store interface {
 	recordingStore
 	referralStore
 	exportStore
+	auditFilterStore
 }
 
 // Config is what the server is built from.

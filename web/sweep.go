@@ -162,9 +162,10 @@ func (s *Server) sweepModel(r *http.Request, c *sweepChoice, all []db.ProtocolVe
 	if err != nil {
 		return m, err
 	}
+	loc := s.studyZone(r.Context())
 	for _, run := range runs {
 		m.Recent = append(m.Recent, views.SweepRunRow{Href: sweepHref(run.ID), ID: strconv.FormatInt(run.ID, 10),
-			When: run.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), By: run.CreatedBy, Param: paramLabel(run.Param),
+			When: when(run.CreatedAt, loc), By: run.CreatedBy, Param: paramLabel(run.Param),
 			Values: strconv.Itoa(len(run.Values)), State: run.Job.State, Tone: components.Tone(statusTone(run.Job.State))})
 	}
 	if c == nil {

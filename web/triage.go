@@ -6,6 +6,7 @@ import (
 	"slices"
 	"strconv"
 
+	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -61,7 +62,7 @@ func (s *Server) triage(w http.ResponseWriter, r *http.Request) error {
 	workers := workerOptions(us, false)
 	m := views.TriageModel{Page: s.page(r, "Triage", "triage"), OrderRule: followup.OrderRule, UnreadRecordings: t.UnreadRecordings,
 		Scheduled: t.Counts[followup.BucketOther],
-		AsOf:      fmt.Sprintf("As of %s, %s (%s).", dayLabel(t.Settings.Calendar().DateOf(t.Now)), t.Now.Format("15:04"), t.Settings.Location())}
+		AsOf:      fmt.Sprintf("As of %s, %s (%s).", dayLabel(t.Settings.Calendar().DateOf(t.Now)), cohort.ClockLabel(t.Now, t.Settings.Location()), t.Settings.Location())}
 	m.Page.Flash = doneMessages[r.URL.Query().Get("done")]
 	byBucket := map[followup.Bucket][]db.TriageRow{}
 	for _, row := range t.Rows {

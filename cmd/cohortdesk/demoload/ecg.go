@@ -10,7 +10,6 @@ import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
-	"cohortdesk/views/referralpdf"
 	"cohortdesk/web/referralissue"
 )
 
@@ -73,7 +72,7 @@ func refer(ctx context.Context, cs *db.Store, issuer cohort.Actor, signer db.Use
 		_, err := cs.AdvanceCase(ctx, issuer, c.ID, "referred", at, "referred by the investigator after the over-read")
 		return err
 	}
-	ref, _, err := referralissue.Record(ctx, cs, issuer, d, "pdf", referralpdf.PaperLetter)
+	ref, _, err := referralissue.Record(ctx, cs, issuer, d, "pdf", string(demo.Paper))
 	if err != nil {
 		return fmt.Errorf("issue referral: %w", err)
 	}
