@@ -33,20 +33,44 @@ type CaseFilter struct {
 	Unowned bool           // cases nobody has taken on
 	Overdue bool           // deadline passed
 	SiteID  int
+	Search  string // any part of the participant's study ID (studyIDSearch)
+	Sort    string // "due" (the default), "flagged" or "study_id"
+	Desc    bool   // the order reversed
 	After   string // opaque keyset cursor from the previous page
 	Limit   int
 }
 
-// CasePage is one page of the case list, ordered by deadline (cases with
-// nothing due last), then id.
+// CasePage is one page of the case list, in the filter's order (by default
+// by deadline, cases with nothing due last), then id.
 type CasePage struct {
 	Rows  []Case
 	Next  string // cursor of the next page, "" at the end
 	Total int64  // cases matching the filter
 }
 
-// caseOrder is the list's sort key; an expression index serves it.
-const caseOrder = `coalesce(c.due_at, 'infinity'::timestamptz)`
+// caseListOrder is one order of the case list: the sort expression (with
+// c.id after it the order is total), its SQL type for the cursor, and the
+// cursor's key read from a row. The due and flag orders follow an index;
+// the study ID order sorts the matching cases, which are few per study.
+type caseListOrder struct {
+	expr, typ string
+	key       func(Case) string
+}
+
+func timeKey(t time.Time) string {
+	if t.IsZero() {
+		return "infinity"
+	}
+	return t.UTC().Format(time.RFC3339Nano)
+}
+
+// caseOrders are the orders the case list can be sorted in, by the key its
+// column headers use.
+var caseOrders = map[string]caseListOrder{
+	"due":      {`coalesce(c.due_at, 'infinity'::timestamptz)`, "timestamptz", func(c Case) string { return timeKey(c.DueAt) }},
+	"flagged":  {`c.flagged_at`, "timestamptz", func(c Case) string { return timeKey(c.FlaggedAt) }},
+	"study_id": {`p.study_id`, "text", func(c Case) string { return c.StudyID }},
+}
 
 func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	conds := []string{"true"}
@@ -75,6 +99,9 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	if f.SiteID > 0 {
 		conds = append(conds, "p.site_id = "+arg(f.SiteID))
 	}
+	if q := strings.TrimSpace(f.Search); q != "" {
+		conds = append(conds, studyIDSearch(q, arg))
+	}
 	return strings.Join(conds, " AND "), args, nil
 }
 
@@ -91,13 +118,21 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if err := s.pool.QueryRow(ctx, `SELECT count(*) FROM cases c JOIN participants p ON p.id = c.participant_id WHERE `+where, args...).Scan(&page.Total); err != nil {
 		return page, mapErr("cases count", err)
 	}
+	order, ok := caseOrders[f.Sort]
+	if !ok {
+		order = caseOrders["due"]
+	}
+	cmp, dir := ">", ""
+	if f.Desc {
+		cmp, dir = "<", " DESC"
+	}
 	if c, ok := decodeCursor(f.After); ok {
 		args = append(args, c.Key, c.ID)
-		where += fmt.Sprintf(" AND (%s, c.id) > ($%d::timestamptz, $%d)", caseOrder, len(args)-1, len(args))
+		where += fmt.Sprintf(" AND (%s, c.id) %s ($%d::%s, $%d)", order.expr, cmp, len(args)-1, order.typ, len(args))
 	}
 	args = append(args, f.Limit+1)
 	rows, err := s.pool.Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
-		fmt.Sprintf(` ORDER BY %s, c.id LIMIT $%d`, caseOrder, len(args)), args...)
+		fmt.Sprintf(` ORDER BY %s%s, c.id%s LIMIT $%d`, order.expr, dir, dir, len(args)), args...)
 	if err != nil {
 		return page, mapErr("cases", err)
 	}
@@ -108,11 +143,7 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if len(page.Rows) > f.Limit {
 		page.Rows = page.Rows[:f.Limit]
 		last := page.Rows[f.Limit-1]
-		key := "infinity"
-		if !last.DueAt.IsZero() {
-			key = last.DueAt.UTC().Format(time.RFC3339Nano)
-		}
-		page.Next = encodeCursor(cursor{Key: key, ID: last.ID})
+		page.Next = encodeCursor(cursor{Key: order.key(last), ID: last.ID})
 	}
 	return page, nil
 }

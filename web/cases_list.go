@@ -10,14 +10,16 @@ import (
 	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
+	"cohortdesk/views/components"
 )
 
 // The case list and its bulk actions.
 
 // caseFilter reads the case list's filter from the query string.
 func caseFilter(r *http.Request, q url.Values, deid bool) (db.CaseFilter, views.CaseFilterForm) {
-	form := views.CaseFilterForm{State: q.Get("state"), Owner: q.Get("owner"), Site: q.Get("site"), Overdue: q.Get("overdue") == "on"}
-	f := db.CaseFilter{Overdue: form.Overdue, After: q.Get("after")}
+	form := views.CaseFilterForm{State: q.Get("state"), Owner: q.Get("owner"), Site: q.Get("site"), Overdue: q.Get("overdue") == "on",
+		Search: strings.TrimSpace(q.Get("q")), Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
+	f := db.CaseFilter{Overdue: form.Overdue, After: q.Get("after"), Search: form.Search, Sort: form.Sort, Desc: form.Desc}
 	switch form.State {
 	case "", "working":
 	case "final":
@@ -98,6 +100,10 @@ func (s *Server) renderCases(w http.ResponseWriter, r *http.Request, q url.Value
 		}
 	}
 	m.Back = "/cases?" + clean.Encode()
+	m.Sort = map[string]components.SortHead{}
+	for _, c := range []struct{ key, label string }{{"study_id", "Study ID"}, {"due", "Due"}, {"flagged", "Flagged"}} {
+		m.Sort[c.key] = sortHead("/cases", clean, c.label, c.key, f.Sort, "due", f.Desc)
+	}
 	if page.Next != "" {
 		nq := url.Values{}
 		for k, v := range clean {

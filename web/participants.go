@@ -121,6 +121,10 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 		}
 	}
 	q := r.URL.Query()
+	m.Sort = map[string]components.SortHead{}
+	for _, c := range []struct{ key, label string }{{"study_id", "Study ID"}, {"site", "Site"}, {"enrolled", "Enrolled"}} {
+		m.Sort[c.key] = sortHead("/participants", q, c.label, c.key, f.Sort, "study_id", f.Desc)
+	}
 	if page.Next != "" {
 		q.Set("after", page.Next)
 		m.Next = "/participants?" + q.Encode()
