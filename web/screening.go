@@ -24,6 +24,7 @@ type screeningStore interface {
 	StartSweep(ctx context.Context, a cohort.Actor, protocolID int, param string, values []float64) (int64, error)
 	SweepRun(ctx context.Context, id int64) (db.SweepRun, error)
 	SweepRuns(ctx context.Context, limit int) ([]db.SweepRun, error)
+	DecidingWindow(ctx context.Context, protocolID int) (int, bool, error)
 }
 
 func jobTone(state string) components.Tone {

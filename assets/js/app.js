@@ -155,3 +155,22 @@
   document.addEventListener("DOMContentLoaded", function () { wire(document); });
   document.addEventListener("htmx:afterSettle", function (ev) { wire(ev.target || document); });
 })();
+
+// The threshold sweep's range follows the parameter chosen: each option of
+// select[data-sweep-param] carries its value in the version and the range a
+// sweep of it opens with; choosing one fills From and To and says its value.
+(function () {
+  "use strict";
+  document.addEventListener("change", function (ev) {
+    var sel = ev.target;
+    if (!sel.matches || !sel.matches("select[data-sweep-param]")) return;
+    var o = sel.options[sel.selectedIndex];
+    if (!o) return;
+    var form = sel.form;
+    var from = form.querySelector("#from"), to = form.querySelector("#to");
+    if (from) from.value = o.getAttribute("data-from") || "";
+    if (to) to.value = o.getAttribute("data-to") || "";
+    document.querySelectorAll("[data-sweep-current]").forEach(function (el) { el.textContent = o.getAttribute("data-current") || ""; });
+    document.querySelectorAll("[data-sweep-name]").forEach(function (el) { el.textContent = o.textContent; });
+  });
+})();
