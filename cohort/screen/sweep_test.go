@@ -337,7 +337,9 @@ func TestCaseReferenceCountsDiagnosticRecordingsOnly(t *testing.T) {
 	short := func(r overread.Rhythm) ReferenceRecording {
 		return ReferenceRecording{Conclusion: conclusion(t, r, "", ""), TooShort: true}
 	}
-	full := func(r overread.Rhythm) ReferenceRecording { return ReferenceRecording{Conclusion: conclusion(t, r, "", "")} }
+	full := func(r overread.Rhythm) ReferenceRecording {
+		return ReferenceRecording{Conclusion: conclusion(t, r, "", "")}
+	}
 	for _, c := range []struct {
 		name string
 		recs []ReferenceRecording
