@@ -118,7 +118,7 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		return err
 	}
 	for _, w := range weeks {
-		v := views.FlaggedWeekView{Week: w.Week, Protocol: fmt.Sprintf("%s v%d", w.ProtocolName, w.ProtocolVersion), Reason: w.Reason,
+		v := views.FlaggedWeekView{Week: w.Week, Protocol: fmt.Sprintf("%s v%d", w.ProtocolName, w.ProtocolVersion), Reason: w.Why,
 			WearHours: strconv.FormatFloat(w.WearHours, 'f', 1, 64), OnCase: w.CaseID == c.ID, Late: w.Late}
 		if w.CaseID != 0 && w.CaseID != c.ID {
 			v.Elsewhere = fmt.Sprintf("/cases/%d", w.CaseID)

@@ -6,6 +6,7 @@ import (
 	"math"
 	"net/http"
 	"strconv"
+	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/screen"
@@ -52,11 +53,24 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 	var scripts []string
 	wi := mainWindow(results, pv)
 	if len(results) > 0 {
-		tc, sc, err := trendChart(results, pv, wi)
+		tc, note, sc, err := trendChart(results, pv, wi)
 		if err != nil {
 			return err
 		}
-		m.TrendChart, scripts = &tc, append(scripts, sc...)
+		m.TrendChart, m.TrendNote, scripts = &tc, note, append(scripts, sc...)
+	}
+	// The "why" of each week in plain words (screen.Explain), from the
+	// results of the active version, with the verdict stored beside them.
+	why := map[int]string{}
+	for _, res := range results {
+		r := res.Result
+		r.Verdict = screen.Verdict(res.Verdict)
+		why[res.Week] = screen.Explain(r, pv.Params)
+	}
+	for i := range m.Timeline {
+		if w, ok := why[m.Timeline[i].Week]; ok {
+			m.Timeline[i].Reason = w
+		}
 	}
 	hasHR := false
 	for _, l := range lines {
@@ -74,7 +88,7 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 				threshold = res.Result.Windows[wi].Threshold // a personal baseline may have raised it
 			}
 		}
-		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli())
+		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli(), p.Location())
 		if err != nil {
 			return err
 		}
@@ -123,9 +137,16 @@ func contains(list []string, s string) bool {
 
 // hrChart draws a week's cleaned heart rate on a time axis with the irregular
 // windows of the protocol's window size wi shaded, and returns how many
-// windows were irregular.
-func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64) (components.ChartModel, []string, int, error) {
+// windows were irregular. Times are the participant's own (loc), whatever
+// zone the viewer's browser is in: each instant is drawn at its wall-clock
+// time in loc, on an axis the chart reads as UTC, and the axis says whose
+// time it is.
+func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64, loc *time.Location) (components.ChartModel, []string, int, error) {
 	cleaned, _ := screen.Clean(w, p, now)
+	wall := func(ms int64) int64 {
+		_, off := time.UnixMilli(ms).In(loc).Zone()
+		return ms + int64(off)*1000
+	}
 	pr := screen.Prepare(&cleaned, p)
 	rule := p.Windows[wi]
 	l := int64(rule.Minutes) * 60_000
@@ -134,7 +155,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 	runStart := int64(-1)
 	closeRun := func(end int64) {
 		if runStart >= 0 && len(areas) < maxAreas {
-			areas = append(areas, []opts.MarkAreaData{{XAxis: runStart}, {XAxis: end}})
+			areas = append(areas, []opts.MarkAreaData{{XAxis: wall(runStart)}, {XAxis: wall(end)}})
 		}
 		runStart = -1
 	}
@@ -153,13 +174,13 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 
 	hr := cleaned.HR
 	var pts []opts.LineData
-	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{t, "-"}}) }
+	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{wall(t), "-"}}) }
 	if hr.Len() <= maxHRPoints {
 		for i, t := range hr.T {
 			if i > 0 && t-hr.T[i-1] > 10*60_000 {
 				gap(t - 1)
 			}
-			pts = append(pts, opts.LineData{Value: []any{t, hr.V[i]}})
+			pts = append(pts, opts.LineData{Value: []any{wall(t), hr.V[i]}})
 		}
 	} else {
 		// Means over fixed buckets aligned to the week's start.
@@ -168,7 +189,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		flush := func() {
 			if n > 0 {
 				t := cleaned.Start + bucket*hrBucketMs + hrBucketMs/2
-				pts = append(pts, opts.LineData{Value: []any{t, math.Round(float64(sum)/float64(n)*10) / 10}})
+				pts = append(pts, opts.LineData{Value: []any{wall(t), math.Round(float64(sum)/float64(n)*10) / 10}})
 			}
 		}
 		for i, t := range hr.T {
@@ -190,7 +211,12 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		charts.WithInitializationOpts(chartInit("hr-chart")),
 		charts.WithAnimation(false),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
-		charts.WithXAxisOpts(opts.XAxis{Type: "time", Min: cleaned.Start, Max: cleaned.End}),
+		// One series, named by the chart's heading: no legend to sit on the
+		// zoom control below the axis.
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(false)}),
+		charts.WithGridOpts(opts.Grid{Bottom: "90"}),
+		charts.WithXAxisOpts(opts.XAxis{Type: "time", Min: wall(cleaned.Start), Max: wall(cleaned.End),
+			Name: "participant's time (" + loc.String() + ")", NameLocation: "middle", NameGap: 26}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value", Scale: opts.Bool(true)}),
 		charts.WithDataZoomOpts(opts.DataZoom{Type: "inside"}, opts.DataZoom{Type: "slider"}),
 	)
@@ -201,47 +227,102 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: "rgba(200, 60, 50, 0.18)"}}),
 	)
 	label := fmt.Sprintf("Heart rate in study week %d with %d irregular %d-minute windows shaded", w.Week, irregular, rule.Minutes)
-	c, sc, err := chartView("hr-chart", label, line, true)
+	c, sc, err := chartView("hr-chart", label, wallClock{line}, true)
 	return c, sc, irregular, err
 }
 
-// trendChart draws the weekly figures of window size wi: mean MASD and the
-// share of irregular windows, with the threshold for comparison.
-func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (components.ChartModel, []string, error) {
+// trendChart draws what decided each week's flag under window size wi: the
+// longest run of irregular windows against the run that flags a week, and
+// the share of usable windows that were irregular against the share that
+// flags one, on axes scaled to the figures (a share of a few percent is not
+// drawn flat on a 0-100 scale). Flagged weeks are drawn in the alarm colour
+// and named in the legend; a week flagged by another window size or by the
+// beat intervals is marked too, since the verdict is the week's.
+func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (components.ChartModel, string, []string, error) {
+	var rule screen.WindowRule
+	if wi < len(pv.Params.Windows) {
+		rule = pv.Params.Windows[wi]
+	}
 	var x []string
-	var masd, share, threshold []opts.LineData
+	var runFlag, runOther []opts.BarData
+	var shareLine, runLimitLine, shareLimitLine []opts.LineData
+	maxRun, maxShare := float64(rule.RunLength), 100*rule.MinShare
+	flagged := 0
 	for _, r := range results {
 		x = append(x, "week "+strconv.Itoa(r.Week))
-		if len(r.Result.Windows) <= wi || r.Result.Windows[wi].Usable == 0 {
-			masd = append(masd, opts.LineData{Value: "-"})
-			share = append(share, opts.LineData{Value: "-"})
-		} else {
+		run, sh := opts.BarData{Value: "-"}, opts.LineData{Value: "-"}
+		if len(r.Result.Windows) > wi && r.Result.Windows[wi].Usable > 0 {
 			wr := r.Result.Windows[wi]
-			masd = append(masd, opts.LineData{Value: math.Round(wr.MeanMASD*100) / 100})
-			share = append(share, opts.LineData{Value: math.Round(wr.Share*1000) / 10})
+			run = opts.BarData{Value: wr.LongestRun}
+			sh = opts.LineData{Value: math.Round(wr.Share*1000) / 10}
+			maxRun, maxShare = math.Max(maxRun, float64(wr.LongestRun)), math.Max(maxShare, 100*wr.Share)
 		}
-		th := "-"
-		if len(r.Result.Windows) > wi {
-			th = strconv.FormatFloat(r.Result.Windows[wi].Threshold, 'g', -1, 64)
+		if r.Verdict == string(screen.Positive) {
+			flagged++
+			runFlag, runOther = append(runFlag, run), append(runOther, opts.BarData{Value: "-"})
+		} else {
+			runFlag, runOther = append(runFlag, opts.BarData{Value: "-"}), append(runOther, run)
 		}
-		threshold = append(threshold, opts.LineData{Value: th})
+		shareLine = append(shareLine, sh)
+		runLimitLine = append(runLimitLine, opts.LineData{Value: rule.RunLength})
+		shareLimitLine = append(shareLimitLine, opts.LineData{Value: math.Round(rule.MinShare*1000) / 10})
 	}
-	minutes := 0
-	if len(pv.Params.Windows) > wi {
-		minutes = pv.Params.Windows[wi].Minutes
-	}
-	line := charts.NewLine()
-	line.SetGlobalOptions(
+	size := fmt.Sprintf("%d-minute", rule.Minutes)
+	bar := charts.NewBar()
+	bar.SetGlobalOptions(
 		charts.WithInitializationOpts(chartInit("trend-chart")),
 		charts.WithAnimation(false),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
-		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Bottom: "0"}),
-		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value"}),
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "0"}),
+		charts.WithGridOpts(opts.Grid{Top: "70"}),
+		charts.WithYAxisOpts(opts.YAxis{Name: "windows in a row", Type: "value", Min: 0, Max: math.Ceil(maxRun * 1.25), MinInterval: 1}),
 	)
-	line.ExtendYAxis(opts.YAxis{Name: "% irregular", Type: "value", Min: 0, Max: 100, Position: "right"})
-	line.SetXAxis(x).
-		AddSeries(fmt.Sprintf("Mean MASD, %d-min windows (bpm)", minutes), masd).
-		AddSeries("Threshold (bpm)", threshold, charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})).
-		AddSeries("Irregular windows (%)", share, charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1}))
-	return chartView("trend-chart", fmt.Sprintf("Weekly mean MASD and share of irregular windows under %s", pv.Label()), line, false)
+	bar.ExtendYAxis(opts.YAxis{Name: "% of usable windows", Type: "value", Min: 0, Max: niceCeil(maxShare * 1.25), Position: "right"})
+	red := charts.WithItemStyleOpts(opts.ItemStyle{Color: "#b3261e"})
+	grey := charts.WithItemStyleOpts(opts.ItemStyle{Color: "#7a8a99"})
+	bar.SetXAxis(x).
+		AddSeries("longest irregular run, week flagged", runFlag, red, charts.WithBarChartOpts(opts.BarChart{Stack: "run"})).
+		AddSeries("longest irregular run, week not flagged", runOther, grey, charts.WithBarChartOpts(opts.BarChart{Stack: "run"}))
+	line := charts.NewLine()
+	line.SetXAxis(x)
+	if rule.RunLength > 0 {
+		line.AddSeries(fmt.Sprintf("run that flags a week (%d)", rule.RunLength), runLimitLine,
+			charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1, Color: "#b3261e"}), charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}))
+	}
+	line.AddSeries("irregular share (%)", shareLine, charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1}))
+	if rule.MinShare > 0 {
+		line.AddSeries(fmt.Sprintf("share that flags a week (%s%%)", strconv.FormatFloat(100*rule.MinShare, 'g', -1, 64)), shareLimitLine,
+			charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1, ShowSymbol: opts.Bool(false)}), charts.WithLineStyleOpts(opts.LineStyle{Type: "dotted", Width: 1}))
+	}
+	bar.Overlap(line)
+	note := fmt.Sprintf("Each week's %s windows under %s: the bars are the longest run of irregular windows in a row, red when the week was flagged; "+
+		"the line is the share of usable windows that were irregular. A week is flagged when its run or its share reaches the dashed limits "+
+		"(or by another window size or the beat intervals, when the watch supplies them). %s of %d weeks flagged.",
+		size, pv.Label(), strconv.Itoa(flagged), len(results))
+	c, sc, err := chartView("trend-chart", fmt.Sprintf("What decided each week's flag under %s: longest run and share of irregular %s windows against their limits, flagged weeks in red", pv.Label(), size), bar, false)
+	return c, note, sc, err
+}
+
+// niceCeil rounds a positive axis end up to 1, 2 or 5 times a power of ten.
+func niceCeil(v float64) float64 {
+	if v <= 0 {
+		return 1
+	}
+	p := math.Pow(10, math.Floor(math.Log10(v)))
+	for _, m := range []float64{1, 2, 5, 10} {
+		if m*p >= v {
+			return m * p
+		}
+	}
+	return 10 * p
+}
+
+// wallClock has the chart library read its time axis as UTC: the values are
+// wall-clock times of one zone (see hrChart), drawn as they are.
+type wallClock struct{ echartsChart }
+
+func (w wallClock) JSON() map[string]interface{} {
+	m := w.echartsChart.JSON()
+	m["useUTC"] = true
+	return m
 }
