@@ -81,6 +81,16 @@ func DateRangeLabel(from, to Date) string {
 	return from.Label() + " – " + to.Label()
 }
 
+// DayRangeLabel writes a span of days with their weekdays, both included:
+// "Mon 23 Nov – Sun 29 Nov 2026"; the year is written once when both days
+// fall in it.
+func DayRangeLabel(from, to Date) string {
+	if from.Year == to.Year {
+		return from.noon().Format("Mon 2 Jan") + " – " + to.DayLabel()
+	}
+	return from.DayLabel() + " – " + to.DayLabel()
+}
+
 // ParseDay reads a day a person typed: ISO 8601 (2026-12-03) or the date
 // style, with or without the weekday ("3 Dec 2026", "Thu 3 Dec 2026",
 // "3 December 2026"). Files keep ParseDate's strict ISO form.

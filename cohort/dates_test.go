@@ -37,6 +37,12 @@ func TestDateStyle(t *testing.T) {
 	if TimeLabel(time.Time{}, chicago) != "" {
 		t.Error("the zero time has a label")
 	}
+	if got := DayRangeLabel(Date{2026, 11, 23}, Date{2026, 11, 29}); got != "Mon 23 Nov – Sun 29 Nov 2026" { // weekdays from the calendar
+		t.Errorf("DayRangeLabel = %q", got)
+	}
+	if got := DayRangeLabel(Date{2026, 12, 28}, Date{2027, 1, 3}); got != "Mon 28 Dec 2026 – Sun 3 Jan 2027" {
+		t.Errorf("DayRangeLabel across a year = %q", got)
+	}
 	for _, tt := range []struct {
 		from, to Date
 		want     string

@@ -33,6 +33,8 @@ type reportFigures struct {
 	weekSpan  string
 	cascade   cascade.Cascade
 	agree     cascade.Agreement
+	week      reportWeek // the days reported and what the study did in them
+	today     cohort.Date
 }
 
 // readReport parses the report's choices and reads its figures.
@@ -48,6 +50,11 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 		return rf, nil, err
 	}
 	rf.window, rf.generated = windowOf(q), s.now()
+	loc := s.studyZone(ctx)
+	rf.today = cohort.DateOf(rf.generated.In(loc))
+	if rf.week, err = parseReportWeek(q, rf.today); err != nil {
+		return rf, nil, err
+	}
 	// The three reads are independent; made side by side, as on the
 	// progress page.
 	var weeks []db.SufficiencyWeek
@@ -55,6 +62,10 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	g.Go(func() (err error) { rf.hist, err = s.store.Enrolment(gctx, rf.cq.to); return err })
 	g.Go(func() (err error) { weeks, err = s.store.DataSufficiency(gctx); return err })
 	g.Go(func() (err error) { rf.cascade, rf.agree, err = s.store.Figures(gctx, rf.cq.filter); return err })
+	g.Go(func() (err error) {
+		rf.week.week, rf.week.sofar, err = s.store.Activity(gctx, rf.cq.filter.SiteID, rf.week.from, rf.week.to, loc)
+		return err
+	})
 	if err := g.Wait(); err != nil {
 		return rf, nil, err
 	}
@@ -118,7 +129,7 @@ func (rf reportFigures) reportGroups() []cascade.Group {
 
 // reportHref is the report's address with its choices and extra values.
 func (rf reportFigures) reportHref(path string, paper string, extra ...string) string {
-	return rf.cq.href(path, append([]string{"window", strconv.Itoa(rf.window), "paper", paper}, extra...)...)
+	return rf.cq.href(path, append(append([]string{"window", strconv.Itoa(rf.window), "paper", paper}, rf.week.values()...), extra...)...)
 }
 
 // progressReport is the weekly report as one printable page.
@@ -131,7 +142,8 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	m := views.ReportModel{Page: s.page(r, "Weekly report", "progress"), Paper: paper, Protocols: protocolOptions(rf.cascade.Versions),
 		ProtoID: strconv.Itoa(rf.cascade.Protocol.ID), SiteID: rf.cq.site, From: dateText(rf.cq.from), To: dateText(rf.cq.to), Window: rf.window,
 		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.Label(),
-		Generated: when(rf.generated, s.studyZone(r.Context())), CSVHref: rf.cq.href("/progress/report.zip", "window", strconv.Itoa(rf.window)),
+		Generated: when(rf.generated, s.studyZone(r.Context())), CSVHref: rf.cq.href("/progress/report.zip", append([]string{"window", strconv.Itoa(rf.window)}, rf.week.values()...)...),
+		Week: rf.week.label(), Activity: rf.week.activityFigures(), Since: rf.week.from.String(), Until: rf.week.to.String(),
 		WeekSpan: rf.weekSpan, Flow: flowView(rf.cascade, rf.cq), StatsAsOf: rf.agree.AsOf.Label()}
 	m.Flow.Compact = true
 	for _, st := range sites {
@@ -140,19 +152,10 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	for _, p := range []string{paperA4, paperLetter} {
 		m.PaperLinks = append(m.PaperLinks, views.PaperLink{Href: rf.reportHref("/progress/report", p), Label: paperLabel(p), Current: p == paper})
 	}
-	// Ready-made periods keep the other choices.
-	today := cohort.DateOf(s.now().UTC())
-	quick := rf.cq
-	for _, p := range []struct {
-		label string
-		days  int
-	}{{"last 7 days", 7}, {"last 4 weeks", 28}, {"whole study", 0}} {
-		quick.from, quick.to = cohort.Date{}, cohort.Date{}
-		if p.days > 0 {
-			quick.from, quick.to = today.AddDays(1-p.days), today
-		}
-		m.Quick = append(m.Quick, views.PaperLink{Label: p.label, Href: quick.href("/progress/report", "window", strconv.Itoa(rf.window), "paper", paper)})
-	}
+	// Ready-made weeks keep the other choices; the cascade stays cumulative.
+	m.Quick = weekLinks(rf.today, func(week []string) string {
+		return rf.cq.href("/progress/report", append([]string{"window", strconv.Itoa(rf.window), "paper", paper}, week...)...)
+	})
 	for _, f := range rf.sites {
 		m.Enrolment = append(m.Enrolment, f.row())
 	}
@@ -346,7 +349,7 @@ func (rf reportFigures) reportTables() []*csvTable {
 		put("kappa_lo", num(k.CI.Lo))
 		put("kappa_hi", num(k.CI.Hi))
 	}
-	return []*csvTable{sum, enrol, suff, boxes, exits, agree, kappa}
+	return []*csvTable{sum, rf.week.activityTable(), enrol, suff, boxes, exits, agree, kappa}
 }
 
 // progressReportZip downloads the weekly report's numbers: a zip of CSV

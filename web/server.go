@@ -41,6 +41,7 @@ type Store interface {
 	referralStore
 	exportStore
 	auditFilterStore
+	activityStore
 }
 
 // Config is what the server is built from.

@@ -1,0 +1,122 @@
+package web
+
+import (
+	"context"
+	"net/url"
+	"strconv"
+	"strings"
+	"time"
+
+	"cohortdesk/cohort"
+	"cohortdesk/db"
+	"cohortdesk/views"
+)
+
+// The weekly report's week: what the whole study did in the days reported
+// (new flags, contacts, recordings, readings, referrals), beside the same
+// figures so far. The cascade and the agreement figures stay cumulative, for
+// the participants the report's enrolment choice keeps.
+
+type activityStore interface {
+	Activity(ctx context.Context, siteID int, from, to cohort.Date, loc *time.Location) (week, sofar db.Activity, err error)
+}
+
+// reportWeek is the span of days the report covers and what happened in it.
+type reportWeek struct {
+	from, to    cohort.Date // both included, days in the study's zone
+	given       bool        // chosen in the query rather than the default
+	week, sofar db.Activity
+}
+
+// lastWeek is the calendar week (Monday to Sunday, ISO 8601) before the one
+// holding today: the default week of the report, complete by Monday.
+func lastWeek(today cohort.Date) (from, to cohort.Date) {
+	from = today.Monday().AddDays(-7)
+	return from, from.AddDays(6)
+}
+
+// parseReportWeek reads the report's week (since, until: days, both
+// included); without them it is the last complete calendar week.
+func parseReportWeek(q url.Values, today cohort.Date) (reportWeek, error) {
+	var w reportWeek
+	var ve cohort.ValidationError
+	day := func(field string) cohort.Date {
+		v := strings.TrimSpace(q.Get(field))
+		if v == "" {
+			return cohort.Date{}
+		}
+		d, err := cohort.ParseDay(v)
+		if err != nil || d.Year < 1900 || d.Year > 9998 {
+			ve.Add(field, "enter a date such as 23 Nov 2026")
+		}
+		return d
+	}
+	w.from, w.to = day("since"), day("until")
+	w.given = !w.from.IsZero() || !w.to.IsZero()
+	def, defTo := lastWeek(today)
+	switch {
+	case w.from.IsZero() && w.to.IsZero():
+		w.from, w.to = def, defTo
+	case w.from.IsZero():
+		w.from = w.to.AddDays(-6)
+	case w.to.IsZero():
+		w.to = w.from.AddDays(6)
+	}
+	if w.to.Before(w.from) {
+		ve.Add("until", "the last day is before the first")
+	}
+	return w, ve.Err()
+}
+
+// values are the week's choice for links, when it was chosen.
+func (w reportWeek) values() []string {
+	if !w.given {
+		return nil
+	}
+	return []string{"since", w.from.String(), "until", w.to.String()}
+}
+
+// label says which days the week covers: "Mon 23 Nov – Sun 29 Nov 2026".
+func (w reportWeek) label() string { return cohort.DayRangeLabel(w.from, w.to) }
+
+// activityFigures are the rows of "the week": each figure's key, words and
+// values in the week and so far.
+func (w reportWeek) activityFigures() []views.ActivityRow {
+	row := func(key, label string, in, total int) views.ActivityRow {
+		return views.ActivityRow{Key: key, Label: label, Week: strconv.Itoa(in), SoFar: strconv.Itoa(total)}
+	}
+	a, s := w.week, w.sofar
+	return []views.ActivityRow{
+		row("flagged", "new flags (follow-up cases opened)", a.Flagged, s.Flagged),
+		row("attempts", "contact attempts", a.Attempts, s.Attempts),
+		row("reached", "of which reached the participant", a.Reached, s.Reached),
+		row("recorders", "recorders sent", a.RecordersSent, s.RecordersSent),
+		row("recordings", "ECG recordings received", a.Recordings, s.Recordings),
+		row("over-reads", "over-reads entered (by the day read)", a.OverReads, s.OverReads),
+		row("referred", "referral summaries signed off (cases referred)", a.SignedOff, s.SignedOff),
+		row("ended", "cases ended (referred or closed)", a.Ended, s.Ended),
+		row("enrolled", "participants enrolled", a.Enrolled, s.Enrolled),
+		row("withdrawn", "participants withdrawn", a.Withdrawn, s.Withdrawn),
+	}
+}
+
+// activityTable is "the week" as a CSV file of the report's bundle.
+func (w reportWeek) activityTable() *csvTable {
+	t := newCSVTable("activity.csv", "figure", "label", "first_day", "last_day", "in_the_days", "so_far")
+	for _, r := range w.activityFigures() {
+		t.add(r.Key, r.Label, w.from.String(), w.to.String(), r.Week, r.SoFar)
+	}
+	return t
+}
+
+// weekLinks are the ready-made weeks: the last complete one, this one so
+// far, and the last four complete ones; each keeps the report's other
+// choices (href builds the address from the week's values).
+func weekLinks(today cohort.Date, href func(week []string) string) []views.PaperLink {
+	from, to := lastWeek(today)
+	return []views.PaperLink{
+		{Label: "last week", Href: href([]string{"since", from.String(), "until", to.String()})},
+		{Label: "this week so far", Href: href([]string{"since", today.Monday().String(), "until", today.String()})},
+		{Label: "the last 4 weeks", Href: href([]string{"since", from.AddDays(-21).String(), "until", to.String()})},
+	}
+}
