@@ -100,3 +100,19 @@ func TestRolesAndPHI(t *testing.T) {
 		t.Error("unknown role accepted")
 	}
 }
+
+// Words: a defined value reads as its label; an unknown one is not valid and
+// shows quoted; Parse takes the stored value (spaces trimmed), not the label.
+func TestWords(t *testing.T) {
+	type colour string
+	w := Words[colour]{"dark_red": "dark red"}
+	if w.Label("dark_red") != "dark red" || w.Label("blue") != `"blue"` || !w.Valid("dark_red") || w.Valid("blue") {
+		t.Errorf("labels: %q, %q", w.Label("dark_red"), w.Label("blue"))
+	}
+	if v, err := w.Parse(" dark_red ", "unknown colour"); err != nil || v != "dark_red" {
+		t.Errorf("Parse stored value: %q, %v", v, err)
+	}
+	if _, err := w.Parse("dark red", "unknown colour"); err == nil || err.Error() != `unknown colour "dark red"` {
+		t.Errorf("Parse label: %v, want unknown colour \"dark red\"", err)
+	}
+}

@@ -44,8 +44,9 @@ type Case struct {
 	ClosingNote      string
 	Note             string // short working note (free text, never exported)
 	Version          int
-	UnreadRecordings int       // recordings of the case that have no over-read yet
+	UnreadRecordings int       // recordings of the case waiting for an over-read (overread.Awaits)
 	OldestUnread     time.Time // when the oldest of them arrived
+	FirstUnread      int64     // the one read first (the queue's order); 0 when none waits
 }
 
 // Fields are the case's user-edited fields as the conflict rules compare them.
@@ -57,18 +58,21 @@ func (c Case) Fields() followup.CaseFields {
 const caseCols = `c.id, c.participant_id, p.study_id, p.site_id, st.code, c.protocol_id, c.first_week, c.last_week, c.state,
 	coalesce(c.owner_id, 0), coalesce(u.display_name, ''), c.flagged_at, c.next_action, c.due_at, c.reached_at,
 	c.recorder_sent_at, c.tracking_number, c.recording_back_at, c.over_read_at, c.closed_at, c.closing_note, c.note, c.version,
-	coalesce(rec.n, 0), rec.oldest`
+	coalesce(rec.n, 0), rec.oldest, coalesce(rec.first, 0)`
 
-// caseFrom joins what a case row shows. Recordings without an over-read are
-// counted once per query and joined by case (a per-case lateral count cost
-// 20 ms at 2,000 cases); a condition on c.id reaches the grouped subquery
-// through the join, so one case's page reads only its own recordings.
+// caseFrom joins what a case row shows. Recordings waiting for an over-read
+// (awaitingRead) are counted once per query and joined by case (a per-case
+// lateral count cost 20 ms at 2,000 cases); a condition on c.id reaches the
+// grouped subquery through the join, so one case's page reads only its own
+// recordings.
 const caseFrom = `cases c
 	JOIN participants p ON p.id = c.participant_id
 	JOIN sites st ON st.id = p.site_id
 	LEFT JOIN users u ON u.id = c.owner_id
-	LEFT JOIN (SELECT r.case_id, count(*) AS n, min(r.created_at) AS oldest FROM recordings r
-	    WHERE NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)
+	LEFT JOIN (SELECT r.case_id, count(*) AS n, min(r.created_at) AS oldest,
+	        (array_agg(r.id ORDER BY r.received_at, r.id))[1] AS first
+	    FROM recordings r JOIN cases c ON c.id = r.case_id
+	    WHERE ` + awaitingRead + `
 	    GROUP BY r.case_id) rec ON rec.case_id = c.id`
 
 func timeOf(p *time.Time) time.Time {
@@ -92,7 +96,7 @@ func scanCase(row pgx.Row, extra ...any) (Case, error) {
 	var due, reached, sent, back, read, closed, oldest *time.Time
 	dest := []any{&c.ID, &c.ParticipantID, &c.StudyID, &c.SiteID, &c.SiteCode, &c.ProtocolID, &fw, &lw, &state,
 		&c.OwnerID, &c.Owner, &c.FlaggedAt, &action, &due, &reached, &sent, &c.TrackingNumber, &back, &read, &closed,
-		&c.ClosingNote, &c.Note, &c.Version, &c.UnreadRecordings, &oldest}
+		&c.ClosingNote, &c.Note, &c.Version, &c.UnreadRecordings, &oldest, &c.FirstUnread}
 	if err := row.Scan(append(dest, extra...)...); err != nil {
 		return c, err
 	}

@@ -176,7 +176,7 @@ func (s *Store) moveEdit(action followup.Edit, in MoveInput, closing bool) caseE
 		action: action,
 		intent: followup.SetState(in.To),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
-			if err := followup.CheckMove(cur.State, in.To, reason, closing); err != nil {
+			if err := followup.CheckHandMove(cur.State, in.To, reason, closing); err != nil {
 				return err
 			}
 			next.enter(in.To, s.now())

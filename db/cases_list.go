@@ -164,16 +164,17 @@ type Triage struct {
 }
 
 // Triage orders the cases still being worked by followup.Urgency at the
-// store's now, in the study's time zone, counts every group, and returns the
-// first perGroup cases of each urgent group in full (all of them when
-// perGroup <= 0). Cases on schedule (followup.BucketOther) are counted, not
-// returned: the triage page does not list them, the case list does.
+// store's now, in the study's time zone, for the person with account id me
+// (their own cases have a group), counts every group, and returns the first
+// perGroup cases of each urgent group in full (all of them when perGroup <=
+// 0). Cases on schedule (followup.BucketOther) are counted, not returned:
+// the triage page does not list them, the case list does.
 //
 // The order needs only a few fields of every case, so those are read for all
 // cases and the full rows only for the cases returned: at 2,000 working cases
 // this halves the time of the page. The reads need no common snapshot (a case
 // changed in between shows as it now is), so they run outside a transaction.
-func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
+func (s *Store) Triage(ctx context.Context, perGroup int, me int64) (Triage, error) {
 	var t Triage
 	var items []followup.TriageItem
 	err := func() error {
@@ -182,7 +183,7 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 			return err
 		}
 		rows, err := s.pool.Query(ctx, `
-			SELECT c.id, p.study_id, c.state, coalesce(u.display_name, ''), c.flagged_at, c.due_at,
+			SELECT c.id, p.study_id, c.state, coalesce(u.display_name, ''), coalesce(c.owner_id, 0), c.flagged_at, c.due_at,
 			       coalesce(c.recording_back_at, rec.oldest), coalesce(rec.n, 0)
 			FROM `+caseFrom+` WHERE c.closed_at IS NULL`)
 		if err != nil {
@@ -190,15 +191,16 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 		}
 		defer rows.Close()
 		for rows.Next() {
-			var id int64
+			var id, owner int64
 			var it followup.TriageItem
 			var state string
 			var due, received pgtype.Timestamptz
 			var n int
-			if err := rows.Scan(&id, &it.StudyID, &state, &it.Owner, &it.FlaggedAt, &due, &received, &n); err != nil {
+			if err := rows.Scan(&id, &it.StudyID, &state, &it.Owner, &owner, &it.FlaggedAt, &due, &received, &n); err != nil {
 				return err
 			}
 			it.CaseID, it.State, it.Due, it.RecordingReceivedAt = strconv.FormatInt(id, 10), followup.State(state), due.Time, received.Time
+			it.AwaitingReads, it.Mine = n, me != 0 && owner == me
 			items = append(items, it)
 			t.UnreadRecordings += n
 		}
@@ -243,9 +245,10 @@ func (s *Store) Triage(ctx context.Context, perGroup int) (Triage, error) {
 	return t, nil
 }
 
-// TriageCase places one case (final or not) in the triage order, for updating
-// its row on the page after an action.
-func (s *Store) TriageCase(ctx context.Context, id int64) (Triage, error) {
+// TriageCase places one case (final or not) in the triage order of the
+// person with account id me, for updating its row on the page after an
+// action.
+func (s *Store) TriageCase(ctx context.Context, id, me int64) (Triage, error) {
 	c, err := s.Case(ctx, id)
 	if err != nil {
 		return Triage{}, err
@@ -255,7 +258,7 @@ func (s *Store) TriageCase(ctx context.Context, id int64) (Triage, error) {
 		return Triage{}, err
 	}
 	t := Triage{Settings: st, Now: s.now().In(st.Location()), UnreadRecordings: c.UnreadRecordings}
-	b := followup.Urgency(triageItem(c), t.Now).Bucket
+	b := followup.Urgency(triageItem(c, me), t.Now).Bucket
 	t.Rows = []TriageRow{{Case: c, Bucket: b}}
 	t.Counts = map[followup.Bucket]int{b: 1}
 	return t, nil
@@ -263,11 +266,12 @@ func (s *Store) TriageCase(ctx context.Context, id int64) (Triage, error) {
 
 // triageItem is the case as the triage order sees it. A recording that came
 // in without its return being recorded still dates the wait for an over-read.
-func triageItem(c Case) followup.TriageItem {
+func triageItem(c Case, me int64) followup.TriageItem {
 	received := c.RecordingBackAt
 	if received.IsZero() {
 		received = c.OldestUnread
 	}
 	return followup.TriageItem{CaseID: strconv.FormatInt(c.ID, 10), StudyID: c.StudyID, State: c.State, Owner: c.Owner,
-		FlaggedAt: c.FlaggedAt, RecordingReceivedAt: received, Due: c.DueAt}
+		FlaggedAt: c.FlaggedAt, RecordingReceivedAt: received, Due: c.DueAt, AwaitingReads: c.UnreadRecordings,
+		Mine: me != 0 && c.OwnerID == me}
 }

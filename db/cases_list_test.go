@@ -106,7 +106,7 @@ func TestTriageGroupsAndRecordingsWaiting(t *testing.T) {
 	mustExec(t, f.s, `UPDATE cases SET state = 'recording_received', owner_id = $2, recording_back_at = $3, due_at = $4, reached_at = $3, recorder_sent_at = $3 WHERE id = $1`,
 		p4, f.coord.UserID, fixedNow.Add(-48*time.Hour), fixedNow.Add(96*time.Hour))
 	mustExec(t, f.s, `INSERT INTO recordings (case_id, participant_id, taken_at, duration_s) VALUES ($1, $2, $3, 30)`, p4, f.pids["P4"], fixedNow.Add(-50*time.Hour))
-	tr, err := f.s.Triage(ctx, 0)
+	tr, err := f.s.Triage(ctx, 0, 0)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -121,11 +121,27 @@ func TestTriageGroupsAndRecordingsWaiting(t *testing.T) {
 	if tr.UnreadRecordings != 1 || tr.Counts[followup.BucketOverdue] != 1 || tr.Counts[followup.BucketAwaitingOverRead] != 1 {
 		t.Fatalf("counts %v, unread %d", tr.Counts, tr.UnreadRecordings)
 	}
-	one, err := f.s.TriageCase(ctx, p4)
+	// P3 taken on by the coordinator leaves "new flags" for the
+	// coordinator's own group; for anyone else it is on schedule.
+	mustExec(t, f.s, `UPDATE cases SET owner_id = $2 WHERE participant_id = $1`, f.pids["P3"], f.coord.UserID)
+	mine, err := f.s.Triage(ctx, 0, f.coord.UserID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if mine.Counts[followup.BucketMine] != 1 || mine.Counts[followup.BucketNewUnowned] != 0 || mine.Rows[len(mine.Rows)-1].StudyID != "P3" {
+		t.Errorf("the coordinator's triage: counts %v", mine.Counts)
+	}
+	if other, _ := f.s.Triage(ctx, 0, f.inv.UserID); other.Counts[followup.BucketOther] != 1 || other.Counts[followup.BucketMine] != 0 {
+		t.Errorf("another person's triage: counts %v", other.Counts)
+	}
+	if one, _ := f.s.TriageCase(ctx, f.caseID("P3"), f.coord.UserID); one.Rows[0].Bucket != followup.BucketMine {
+		t.Errorf("one case in its owner's triage: %v", one.Rows[0].Bucket)
+	}
+	one, err := f.s.TriageCase(ctx, p4, 0)
 	if err != nil || len(one.Rows) != 1 || one.Rows[0].UnreadRecordings != 1 {
 		t.Fatalf("triage of one case: %+v %v", one.Rows, err)
 	}
-	if _, err := f.s.TriageCase(ctx, 999999); !errors.Is(err, cohort.ErrNotFound) {
+	if _, err := f.s.TriageCase(ctx, 999999, 0); !errors.Is(err, cohort.ErrNotFound) {
 		t.Fatalf("unknown case: %v", err)
 	}
 	weeks, err := f.s.FlaggedWeeks(ctx, f.pids["P4"])

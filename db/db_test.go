@@ -116,7 +116,7 @@ func TestParticipantFiltersAndNames(t *testing.T) {
 	seedParticipants(t, s, 50)
 	ctx := context.Background()
 	page, err := s.Participants(ctx, db.ParticipantFilter{Status: "withdrawn", Limit: 100})
-	if err != nil || page.Total != 5 || page.Withdrawn != 5 || page.Active != 0 {
+	if err != nil || page.Total != 5 || page.Status[cohort.StatusWithdrawn] != 5 || page.Status[cohort.StatusActive] != 0 {
 		t.Fatalf("withdrawn filter: total %d (err %v)", page.Total, err)
 	}
 	page, _ = s.Participants(ctx, db.ParticipantFilter{SiteID: 1, Limit: 100})

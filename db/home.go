@@ -3,29 +3,38 @@ package db
 import (
 	"context"
 
+	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 )
 
 // Counts are the headline figures of the start page.
 type Counts struct {
 	Participants int64 // ever enrolled
-	Active       int64 // enrolled and not withdrawn
-	Sites        int64
-	Withdrawn    int64
+	// Status counts the participants by cohort.StatusOf today: active,
+	// completed, withdrawn.
+	Status map[cohort.ParticipantStatus]int64
+	Sites  int64
 	// Cases counts every follow-up case by its state, the closed ones too.
 	Cases map[followup.State]int64
+	// AwaitingRead counts the recordings waiting for an over-read
+	// (overread.Awaits).
+	AwaitingRead int
 }
 
 // Counts reads the headline figures.
 func (s *Store) Counts(ctx context.Context) (Counts, error) {
 	var c Counts
-	err := s.pool.QueryRow(ctx, `
-		SELECT (SELECT count(*) FROM participants),
-		       (SELECT count(*) FROM participants WHERE withdrawn_on IS NULL),
-		       (SELECT count(*) FROM sites),
-		       (SELECT count(*) FROM participants WHERE withdrawn_on IS NOT NULL)`).
-		Scan(&c.Participants, &c.Active, &c.Sites, &c.Withdrawn)
+	today, weeks, err := s.statusDay(ctx, s.pool)
 	if err != nil {
+		return c, mapErr("counts", err)
+	}
+	if c.Status, c.Participants, err = participantsByStatus(ctx, s.pool, "true", nil, today, weeks); err != nil {
+		return c, mapErr("counts", err)
+	}
+	if err := s.pool.QueryRow(ctx, `SELECT count(*) FROM sites`).Scan(&c.Sites); err != nil {
+		return c, mapErr("counts", err)
+	}
+	if c.AwaitingRead, err = countAwaitingRead(ctx, s.pool); err != nil {
 		return c, mapErr("counts", err)
 	}
 	rows, err := s.pool.Query(ctx, `SELECT state, count(*) FROM cases GROUP BY state`)

@@ -9,6 +9,8 @@ import (
 	"strings"
 	"time"
 	"unicode"
+
+	"cohortdesk/cohort"
 )
 
 // The participant list: filters, orders and keyset pages.
@@ -17,8 +19,8 @@ import (
 type ParticipantFilter struct {
 	Search        string // any part of a study ID (studyIDSearch); names too when WithNames
 	SiteID        int
-	Status        string // "", "active", "withdrawn"
-	PositiveWeeks int    // screen-positive within the last N study weeks (0: no filter)
+	Status        cohort.ParticipantStatus // "" for every status
+	PositiveWeeks int                      // screen-positive within the last N study weeks (0: no filter)
 	OpenCase      bool
 	Sort          string // "study_id" (default), "enrolled", "site"
 	Desc          bool
@@ -37,11 +39,11 @@ type ParticipantRow struct {
 
 // ParticipantPage is one page of the list with the counts of the whole filter.
 type ParticipantPage struct {
-	Rows      []ParticipantRow
-	Next      string // cursor for the next page, "" at the end
-	Total     int64  // rows matching the filter
-	Active    int64
-	Withdrawn int64
+	Rows  []ParticipantRow
+	Next  string // cursor for the next page, "" at the end
+	Total int64  // rows matching the filter
+	// Status counts the rows matching the filter by cohort.StatusOf today.
+	Status map[cohort.ParticipantStatus]int64
 }
 
 // listOrder is one order of the participants list: the ORDER BY
@@ -67,7 +69,7 @@ var listOrders = map[string]listOrder{
 
 // ParticipantsWhere builds the filter's WHERE clause; it is shared by the page,
 // the counts and the CSV download so the three always agree.
-func (f ParticipantFilter) where(today time.Time) (string, []any) {
+func (f ParticipantFilter) where(today time.Time, statusDay cohort.Date, weeks int) (string, []any) {
 	conds := []string{"true"}
 	var args []any
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
@@ -85,11 +87,8 @@ func (f ParticipantFilter) where(today time.Time) (string, []any) {
 	if f.SiteID > 0 {
 		conds = append(conds, "p.site_id = "+arg(f.SiteID))
 	}
-	switch f.Status {
-	case "active":
-		conds = append(conds, "p.withdrawn_on IS NULL")
-	case "withdrawn":
-		conds = append(conds, "p.withdrawn_on IS NOT NULL")
+	if f.Status != "" {
+		conds = append(conds, participantStatus(arg(statusDay.String()), arg(weeks))+" = "+arg(string(f.Status)))
 	}
 	if f.PositiveWeeks > 0 {
 		// The active version as a value, so the positive results come from
@@ -165,13 +164,14 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		order = listOrders["study_id"]
 	}
 	today := s.now().UTC()
-	where, args := f.where(today)
+	day, weeks, err := s.statusDay(ctx, s.pool)
+	if err != nil {
+		return ParticipantPage{}, mapErr("participants", err)
+	}
+	where, args := f.where(today, day, weeks)
 	var page ParticipantPage
 	// The filter reads participants only, so the counts need no join.
-	err := s.pool.QueryRow(ctx, `
-		SELECT count(*), count(*) FILTER (WHERE p.withdrawn_on IS NULL), count(*) FILTER (WHERE p.withdrawn_on IS NOT NULL)
-		FROM participants p WHERE `+where, args...).Scan(&page.Total, &page.Active, &page.Withdrawn)
-	if err != nil {
+	if page.Status, page.Total, err = participantsByStatus(ctx, s.pool, where, args, day, weeks); err != nil {
 		return page, mapErr("participants count", err)
 	}
 	cmp, dir := ">", " ASC"

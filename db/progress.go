@@ -5,45 +5,11 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/enrolment"
 	"cohortdesk/cohort/followup"
 
 	"github.com/jackc/pgx/v5"
 )
-
-// SiteEnrolment is one site's enrolment history as of a day: counts per
-// calendar week (weeks start on Monday, in UTC dates) from the study's first
-// enrolment week to the week holding that day, for the chart, and counts in
-// the seven-day periods that end on that day, for the projection.
-type SiteEnrolment struct {
-	SiteID    int
-	Code      string
-	Name      string
-	Target    int
-	Enrolled  int   // enrolled on or before the day
-	Withdrawn int   // of those, withdrawn on or before the day
-	Weekly    []int // enrolments per week, aligned with EnrolmentHistory.Weeks
-	// Trailing holds the enrolments in each of the TrailingWeeks seven-day
-	// periods before the day, oldest first; the last period is the six days
-	// before the day and the day itself. A calendar week still under way is
-	// not a whole week, so a recent rate is taken over these periods instead.
-	Trailing []int
-}
-
-// TrailingWeeks is how many seven-day periods SiteEnrolment.Trailing holds:
-// the longest history the projection may use.
-const TrailingWeeks = 52
-
-// EnrolmentHistory is every site's weekly enrolment on a common week axis.
-type EnrolmentHistory struct {
-	Weeks []cohort.Date // Monday of each week
-	Sites []SiteEnrolment
-	Today cohort.Date // the day the history runs to
-	// Periods is how many of the Trailing periods reach back no further
-	// than the study's first enrolment (at most TrailingWeeks; 0 before any
-	// enrolment): a rate over older periods would count weeks before the
-	// study began recruiting as weeks without enrolment.
-	Periods int
-}
 
 // studyToday is today's date in the study's time zone. Participant-weeks
 // end at midnight there: in the hours when a new day has begun in UTC but
@@ -57,84 +23,42 @@ func (s *Store) studyToday(ctx context.Context) (cohort.Date, error) {
 }
 
 // Enrolment reads every site's enrolment counts as they stood at the end of
-// the day asOf: participants enrolled later are left out, and withdrawals
-// after it do not count. A zero asOf, or one after today (in the study's
-// time zone), is today.
-func (s *Store) Enrolment(ctx context.Context, asOf cohort.Date) (EnrolmentHistory, error) {
+// the day asOf (enrolment.Tally counts them): participants enrolled later are
+// left out, and withdrawals after it do not count. A zero asOf, or one after
+// today (in the study's time zone), is today.
+func (s *Store) Enrolment(ctx context.Context, asOf cohort.Date) (enrolment.History, error) {
 	today, err := s.studyToday(ctx)
 	if err != nil {
-		return EnrolmentHistory{}, err
+		return enrolment.History{}, err
 	}
 	if asOf.IsZero() || today.Before(asOf) {
 		asOf = today
 	}
-	today = asOf
-	h := EnrolmentHistory{Today: today}
 	sites, err := s.Sites(ctx)
 	if err != nil {
-		return h, err
+		return enrolment.History{}, err
 	}
 	rows, err := s.pool.Query(ctx, `
 		SELECT site_id, enrolled_on, withdrawn_on IS NOT NULL AND withdrawn_on <= $1::date
-		FROM participants WHERE enrolled_on <= $1::date ORDER BY enrolled_on`, today.String())
+		FROM participants WHERE enrolled_on <= $1::date ORDER BY enrolled_on`, asOf.String())
 	if err != nil {
-		return h, mapErr("enrolment", err)
+		return enrolment.History{}, mapErr("enrolment", err)
 	}
-	type rec struct {
-		site      int
-		on        cohort.Date
-		withdrawn bool
-	}
-	var recs []rec
-	for rows.Next() {
-		var r rec
+	people, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (enrolment.Enrolled, error) {
+		var e enrolment.Enrolled
 		var on time.Time
-		if err := rows.Scan(&r.site, &on, &r.withdrawn); err != nil {
-			rows.Close()
-			return h, mapErr("enrolment", err)
-		}
-		r.on = cohort.DateOf(on)
-		recs = append(recs, r)
+		err := r.Scan(&e.Site, &on, &e.Withdrawn)
+		e.On = cohort.DateOf(on)
+		return e, err
+	})
+	if err != nil {
+		return enrolment.History{}, mapErr("enrolment", err)
 	}
-	if err := rows.Err(); err != nil {
-		return h, mapErr("enrolment", err)
-	}
-	first := today.Monday()
-	if len(recs) > 0 && recs[0].on.Before(first) {
-		first = recs[0].on.Monday()
-	}
-	if len(recs) > 0 {
-		h.Periods = min(TrailingWeeks, today.DaysSince(recs[0].on)/7+1)
-	}
-	for d := first; !today.Before(d); d = d.AddDays(7) {
-		h.Weeks = append(h.Weeks, d)
-	}
-	idx := map[int]int{}
+	targets := make([]enrolment.Site, len(sites))
 	for i, st := range sites {
-		idx[st.ID] = i
-		h.Sites = append(h.Sites, SiteEnrolment{SiteID: st.ID, Code: st.Code, Name: st.Name, Target: st.Target,
-			Weekly: make([]int, len(h.Weeks)), Trailing: make([]int, TrailingWeeks)})
+		targets[i] = enrolment.Site{ID: st.ID, Code: st.Code, Name: st.Name, Target: st.Target}
 	}
-	for _, r := range recs {
-		i, ok := idx[r.site]
-		if !ok {
-			continue
-		}
-		se := &h.Sites[i]
-		se.Enrolled++
-		if r.withdrawn {
-			se.Withdrawn++
-		}
-		if w := r.on.Monday().DaysSince(first) / 7; w >= 0 && w < len(se.Weekly) {
-			se.Weekly[w]++
-		}
-		// Days 0..6 before today fall in the last period, 7..13 in the one
-		// before, and so on.
-		if back := today.DaysSince(r.on) / 7; back >= 0 && back < TrailingWeeks {
-			se.Trailing[TrailingWeeks-1-back]++
-		}
-	}
-	return h, nil
+	return enrolment.Tally(asOf, targets, people), nil
 }
 
 // SufficiencyWeek is the share of active participants whose study week, ending

@@ -42,22 +42,42 @@ type Recording struct {
 	ReceivedAt    time.Time
 	DurationS     float64
 	Auto          overread.Auto
-	// TooShort: under 30 s, not enough for a diagnostic read (2020 ESC AF
-	// guidelines). Readings may be entered, but none counts as a diagnostic
-	// over-read: the case does not move on and the figures leave it out.
-	TooShort   bool
-	Format     string // "", "edf", "edf+", "csv" or "samples"
-	FileName   string // may identify someone; shown only to roles that see PHI
-	SHA256     string // hex digest of the uploaded file
-	RateHz     float64
-	LeadLabel  string
-	Source     string
-	Beats      []int // R-peak sample indices
-	Hint       ecg.RecordingHint
+	// UsableS is the length the quality check left usable: the duration for
+	// recordings without a waveform or stored before the check.
+	UsableS float64
+	// TooShort: under 30 s usable, not enough for a diagnostic read (2020
+	// ESC AF guidelines). Readings may be entered, but none counts as a
+	// diagnostic over-read: the case does not move on and the figures leave
+	// it out.
+	TooShort  bool
+	Format    string // "", "edf", "edf+", "csv" or "samples"
+	FileName  string // may identify someone; shown only to roles that see PHI
+	SHA256    string // hex digest of the uploaded file
+	RateHz    float64
+	LeadLabel string
+	Source    string
+	Beats     []int // R-peak sample indices
+	Hint      ecg.RecordingHint
+	// Signals lists every signal of the uploaded file; nil for recordings
+	// stored before signals were listed.
+	Signals []ecg.SignalInfo
+	// Lead is the index among Leads of the lead shown; -1 with one lead.
+	Lead int
+	// Leads are the file's ECG leads when it held several (Recording
+	// fills them; lists leave them out).
+	Leads      []RecordingLead
 	CreatedBy  string
 	CreatedAt  time.Time
 	Readings   []OverRead
 	Conclusion overread.Conclusion
+	// Revisions are the readings amended or withdrawn, as they were, oldest
+	// first (Recording fills them; lists leave them out).
+	Revisions []OverReadRevision
+	// NotNeeded is why the recording needs no over-read, "" when it is
+	// wanted; who said so and when.
+	NotNeeded   string
+	NotNeededBy string
+	NotNeededAt time.Time
 }
 
 // HasWaveform reports whether samples are stored.
@@ -116,7 +136,9 @@ func conclusionOf(id int64, os []OverRead) (overread.Conclusion, error) {
 
 const recordingCols = `r.id, r.case_id, r.participant_id, p.study_id, st.code, c.state, r.taken_at, r.received_at, r.duration_s,
 	r.auto_interpretation, r.too_short, r.waveform_format, r.file_name, coalesce(r.file_sha256, ''::bytea), coalesce(r.sampling_hz, 0),
-	r.lead_label, r.source, r.beats, r.hint, r.created_by, r.created_at`
+	r.lead_label, r.source, r.beats, r.hint, r.created_by, r.created_at,
+	coalesce(r.usable_s, r.duration_s), r.signals, coalesce(r.lead_index, -1),
+	coalesce(r.read_not_needed_reason, ''), coalesce(r.read_not_needed_by, ''), r.read_not_needed_at`
 
 const recordingFrom = `recordings r
 	JOIN cases c ON c.id = r.case_id
@@ -129,14 +151,24 @@ func scanRecording(row pgx.Row) (Recording, error) {
 	var dur, rate float32
 	var sum []byte
 	var beats []int32
-	var hint []byte
+	var hint, signals []byte
+	var usable float32
+	var lead int16
+	var notNeededAt *time.Time
 	err := row.Scan(&r.ID, &r.CaseID, &r.ParticipantID, &r.StudyID, &r.SiteCode, &state, &r.TakenAt, &r.ReceivedAt, &dur,
-		&auto, &r.TooShort, &r.Format, &r.FileName, &sum, &rate, &r.LeadLabel, &r.Source, &beats, &hint, &r.CreatedBy, &r.CreatedAt)
+		&auto, &r.TooShort, &r.Format, &r.FileName, &sum, &rate, &r.LeadLabel, &r.Source, &beats, &hint, &r.CreatedBy, &r.CreatedAt,
+		&usable, &signals, &lead, &r.NotNeeded, &r.NotNeededBy, &notNeededAt)
 	if err != nil {
 		return r, err
 	}
+	r.NotNeededAt = timeOf(notNeededAt)
 	r.CaseState, r.Auto = followup.State(state), overread.Auto(auto)
-	r.DurationS, r.RateHz = float64(dur), float64(rate)
+	r.DurationS, r.RateHz, r.UsableS, r.Lead = float64(dur), float64(rate), float64(usable), int(lead)
+	if len(signals) > 0 {
+		if err := json.Unmarshal(signals, &r.Signals); err != nil {
+			return r, fmt.Errorf("db: recording %d signals: %w", r.ID, err)
+		}
+	}
 	if len(sum) > 0 {
 		r.SHA256 = hex.EncodeToString(sum)
 	}
@@ -179,6 +211,14 @@ func (s *Store) Recording(ctx context.Context, id int64) (Recording, error) {
 	}
 	recs := []Recording{r}
 	if err := withReadings(ctx, s.pool, recs); err != nil {
+		return Recording{}, mapErr("recording", err)
+	}
+	if recs[0].Lead >= 0 {
+		if recs[0].Leads, err = leadsOf(ctx, s.pool, id); err != nil {
+			return Recording{}, mapErr("recording", err)
+		}
+	}
+	if recs[0].Revisions, err = revisionsOf(ctx, s.pool, id); err != nil {
 		return Recording{}, mapErr("recording", err)
 	}
 	return recs[0], nil
@@ -229,9 +269,9 @@ func hintParams(ctx context.Context, q querier, protocolID int) (rr.Params, erro
 	}
 	var p screen.Protocol
 	if len(raw) > 0 && json.Unmarshal(raw, &p) == nil && p.RR.Params.Validate() == nil {
-		return p.RR.Params, nil
+		return p.RRParams(), nil
 	}
-	return rr.DefaultParams(), nil
+	return screen.DefaultProtocol().RRParams(), nil
 }
 
 // recordingAudit is a recording as the audit trail keeps it: no samples, no
@@ -241,6 +281,7 @@ type recordingAudit struct {
 	TakenAt    time.Time `json:"taken_at"`
 	ReceivedAt time.Time `json:"received_at"`
 	DurationS  float64   `json:"duration_s"`
+	UsableS    float64   `json:"usable_s,omitempty"`
 	Auto       string    `json:"auto_interpretation"`
 	TooShort   bool      `json:"too_short"`
 	Format     string    `json:"waveform_format,omitempty"`
@@ -249,16 +290,21 @@ type recordingAudit struct {
 	RateHz     float64   `json:"sampling_hz,omitempty"`
 	Beats      int       `json:"beats,omitempty"`
 	Hint       string    `json:"hint,omitempty"`
+	Lead       string    `json:"lead,omitempty"`
+	Signals    int       `json:"signals,omitempty"`
+	Leads      int       `json:"leads,omitempty"`
 }
 
 // AddRecording stores a recording for a case. Intake (ecg.Intake) is all or
 // nothing: the file is read and checked (header, sampling rate 100-2000 Hz, at
-// most 15 minutes), beats are detected and the beat-interval hint computed,
-// and only then are the recording, its audit event and the case's move from
-// "recorder sent" to "recording received" written, in one transaction. A recording
-// under 30 s is accepted and marked too short for a diagnostic read. A
-// malformed file is refused with a message naming the field and byte offset
-// (EDF) or line (CSV); the same file twice on one case is refused too.
+// most 15 minutes), the quality check marks what is unusable, beats are
+// detected and the beat-interval hint computed, and only then are the
+// recording (with every ECG lead of a file that holds several), its audit
+// event and the case's move from "recorder sent" to "recording received"
+// written, in one transaction. A recording under 30 s usable is accepted and
+// marked too short for a diagnostic read. A malformed file is refused with a
+// message naming the field and byte offset (EDF) or line (CSV, WFDB header);
+// the same file twice on one case is refused too.
 //
 // The case must be waiting for or holding recordings: "recorder sent",
 // "recording received" or "over-read". Loaders call this with Samples and
@@ -301,6 +347,9 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 
 	rec := recordingAudit{CaseID: caseID, TakenAt: acc.TakenAt.UTC(), ReceivedAt: acc.ReceivedAt.UTC(), DurationS: acc.DurationS,
 		Auto: string(acc.Auto), TooShort: acc.TooShort, FileName: acc.FileName}
+	if acc.UsableS != acc.DurationS {
+		rec.UsableS = acc.UsableS
+	}
 	var id int64
 	err = s.inTx(ctx, func(tx pgx.Tx) error {
 		cur, err := lockCase(ctx, tx, caseID)
@@ -313,9 +362,21 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		var samples, sum []byte
 		var rate *float64
 		beats := []int32{}
-		var hintJSON []byte
+		var hintJSON, signalsJSON []byte
+		var usable *float64
+		var leadIndex *int
 		label, source := "", ""
 		if sig := acc.Signal; sig != nil {
+			usable = &acc.UsableS
+			if sig.Signals != nil {
+				if signalsJSON, err = json.Marshal(sig.Signals); err != nil {
+					return err
+				}
+			}
+			if len(sig.Leads) > 0 {
+				leadIndex = &sig.Lead
+			}
+			rec.Lead, rec.Signals, rec.Leads = sig.Waveform.Label, len(sig.Signals), len(sig.Leads)
 			samples = EncodeSamples(sig.Waveform.Samples)
 			rate = &sig.Waveform.RateHz
 			label, source = truncate(sig.Waveform.Label, 80), truncate(sig.Waveform.Source, 500)
@@ -344,12 +405,18 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		}
 		err = tx.QueryRow(ctx, `
 			INSERT INTO recordings (case_id, participant_id, taken_at, received_at, duration_s, auto_interpretation, too_short,
-			  waveform_format, file_name, file_sha256, sampling_hz, lead_label, source, samples, beats, hint, created_by_id, created_by)
-			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17, $18) RETURNING id`,
+			  waveform_format, file_name, file_sha256, sampling_hz, lead_label, source, samples, beats, hint, created_by_id, created_by,
+			  usable_s, signals, lead_index)
+			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17, $18, $19, $20, $21) RETURNING id`,
 			caseID, cur.ParticipantID, acc.TakenAt, acc.ReceivedAt, acc.DurationS, string(acc.Auto), acc.TooShort, rec.Format, acc.FileName, sum, rate,
-			label, source, samples, beats, hintJSON, actorID, a.Label()).Scan(&id)
+			label, source, samples, beats, hintJSON, actorID, a.Label(), usable, signalsJSON, leadIndex).Scan(&id)
 		if err != nil {
 			return err
+		}
+		if sig := acc.Signal; sig != nil && len(sig.Leads) > 0 {
+			if err := insertLeads(ctx, tx, id, sig); err != nil {
+				return err
+			}
 		}
 		if err := audit(ctx, tx, a, "recording.add", "recording", strconv.FormatInt(id, 10), nil, rec); err != nil {
 			return err

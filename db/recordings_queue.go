@@ -39,9 +39,12 @@ type RecentOverRead struct {
 // (oldest first), and the latest readings, newest reading day first (a
 // reading entered late sits among the readings of its day).
 type Confirmations struct {
-	Unread    []QueueRecording
-	Disagreed []QueueRecording
-	Recent    []RecentOverRead
+	// Unread are the recordings waiting for an over-read (overread.Awaits),
+	// at most the limit; UnreadCount counts them all.
+	Unread      []QueueRecording
+	UnreadCount int
+	Disagreed   []QueueRecording
+	Recent      []RecentOverRead
 }
 
 // Confirmations reads the work lists, at most limit rows each.
@@ -61,7 +64,7 @@ func (s *Store) Confirmations(ctx context.Context, limit int) (Confirmations, er
 		}
 		const cols = `r.id, r.case_id, p.study_id, st.code, r.taken_at, r.received_at, r.duration_s, r.too_short, r.auto_interpretation`
 		rows, err := tx.Query(ctx, `SELECT `+cols+` FROM `+recordingFrom+`
-			WHERE NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)
+			WHERE `+awaitingRead+`
 			ORDER BY r.received_at, r.id LIMIT $1`, limit)
 		if err != nil {
 			return err
@@ -69,10 +72,13 @@ func (s *Store) Confirmations(ctx context.Context, limit int) (Confirmations, er
 		if out.Unread, err = pgx.CollectRows(rows, scan); err != nil {
 			return err
 		}
-		// Candidates: a second reading and no adjudication. Whether they
-		// disagree is overread's rule, applied below.
+		if out.UnreadCount, err = countAwaitingRead(ctx, tx); err != nil {
+			return err
+		}
+		// Candidates: a second reading and no adjudication, on a case still
+		// worked. Whether they disagree is overread's rule, applied below.
 		rows, err = tx.Query(ctx, `SELECT `+cols+` FROM `+recordingFrom+`
-			WHERE EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id AND o.role = 'second')
+			WHERE c.closed_at IS NULL AND EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id AND o.role = 'second')
 			  AND NOT EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id AND o.role = 'adjudication')
 			ORDER BY r.received_at, r.id`)
 		if err != nil {

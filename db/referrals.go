@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"slices"
 	"strconv"
 	"time"
 
@@ -17,13 +18,70 @@ import (
 	"github.com/jackc/pgx/v5"
 )
 
-// effectiveRead joins a recording (alias r) to its effective over-read: the
-// adjudication when there is one, else the first reader's. A second reader's
-// verdict alone decides nothing.
-const effectiveRead = `JOIN LATERAL (
-	    SELECT o.role, o.rhythm, o.confidence, o.read_on FROM over_reads o
-	    WHERE o.recording_id = r.id AND o.role IN ('adjudication', 'first')
-	    ORDER BY o.role = 'adjudication' DESC LIMIT 1) eff ON true`
+// concluded is a recording with what its readings settle on
+// (overread.Resolve), as the referral reads rank and check it.
+type concluded struct {
+	ID, CaseID int64
+	TakenAt    time.Time
+	TooShort   bool
+	Readings   []OverRead
+	Conclusion overread.Conclusion
+}
+
+// confirmsAF applies overread's confirmed-AF rule to the recording.
+func (c concluded) confirmsAF() bool { return c.Conclusion.ConfirmsAF(c.TooShort) }
+
+// reported is the reading a summary names for the conclusion: the
+// adjudication of an adjudicated recording, else the first reading (alone,
+// or agreed with by the second).
+func (c concluded) reported() (OverRead, bool) {
+	want := overread.First
+	if c.Conclusion.Status == overread.Adjudicated {
+		want = overread.Adjudication
+	}
+	for _, o := range c.Readings {
+		if o.Role == want {
+			return o, c.Conclusion.Final
+		}
+	}
+	return OverRead{}, false
+}
+
+// concludedRecordings reads the recordings that match where (on alias r)
+// and have readings, and resolves each one's readings
+// with overread.Resolve: the conclusion is never decided in SQL.
+func concludedRecordings(ctx context.Context, q querier, where string, args ...any) ([]concluded, error) {
+	rows, err := q.Query(ctx, `SELECT r.id, r.case_id, r.taken_at, r.too_short FROM recordings r
+		WHERE `+where+` AND EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)
+		ORDER BY r.id`, args...)
+	if err != nil {
+		return nil, err
+	}
+	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (concluded, error) {
+		var c concluded
+		err := r.Scan(&c.ID, &c.CaseID, &c.TakenAt, &c.TooShort)
+		return c, err
+	})
+	if err != nil {
+		return nil, err
+	}
+	ids := make([]int64, len(out))
+	for i, c := range out {
+		ids[i] = c.ID
+	}
+	by, err := readingsOf(ctx, q, ids)
+	if err != nil {
+		return nil, err
+	}
+	for i := range out {
+		c := &out[i]
+		c.Readings = by[c.ID]
+		if c.Conclusion, err = conclusionOf(c.ID, c.Readings); err != nil {
+			return nil, err
+		}
+	}
+	return out, nil
+}
 
 // ReferralBasis is what a referral summary is built from: the source for
 // referral.Build and the records it belongs to.
@@ -34,12 +92,16 @@ type ReferralBasis struct {
 	CaseState     followup.State // "" without a case
 	ProtocolID    int            // 0 when no protocol applies
 	Source        referral.Source
+	// Confirmed: the summary's recording confirms AF
+	// (overread.Conclusion.ConfirmsAF).
+	Confirmed bool
 }
 
-// ConfirmedAF reports whether the summary's over-read is atrial
-// fibrillation: only such a summary can be signed off.
+// ConfirmedAF reports whether the summary's recording confirms atrial
+// fibrillation (overread.Conclusion.ConfirmsAF): only such a summary can be
+// signed off.
 func (b ReferralBasis) ConfirmedAF() bool {
-	return b.Source.OverRead != nil && b.Source.OverRead.Rhythm == overread.AF
+	return b.Confirmed && b.Source.OverRead != nil && b.Source.OverRead.Rhythm == overread.AF
 }
 
 // ReferralSource gathers a summary's source for a participant: for one of
@@ -152,37 +214,54 @@ func (s *Store) ReferralSource(ctx context.Context, participantID, caseID int64)
 	return b, nil
 }
 
-// referralRecording picks the recording the summary reports: of the case
-// (else of the participant), the latest one whose effective over-read is AF,
-// else the latest one with any effective over-read.
+// referralRecording picks the recording the summary reports, of the case
+// (else of the participant), among those whose readings settle a rhythm
+// (overread.Resolve; two readers who disagree settle nothing): the latest one
+// that confirms AF, else the latest diagnostic one, else the latest settled
+// one.
 func (s *Store) referralRecording(ctx context.Context, b *ReferralBasis) error {
 	where, arg := "r.case_id = $1", b.CaseID
 	if b.CaseID == 0 {
 		where, arg = "r.participant_id = $1", b.ParticipantID
 	}
+	recs, err := concludedRecordings(ctx, s.pool, where, arg)
+	if err != nil {
+		return mapErr("referral recording", err)
+	}
+	rank := func(c concluded) int {
+		switch {
+		case c.confirmsAF():
+			return 0
+		case c.Conclusion.Diagnostic(c.TooShort):
+			return 1
+		}
+		return 2
+	}
+	var best *concluded
+	for i := range recs {
+		c := &recs[i]
+		if _, ok := c.reported(); !ok {
+			continue
+		}
+		if best == nil || rank(*c) < rank(*best) || rank(*c) == rank(*best) && laterConclusion(*c, *best) {
+			best = c
+		}
+	}
+	if best == nil {
+		return nil
+	}
 	var rec referral.Recording
-	var o referral.OverRead
 	var hz *float32
 	var dur float32
 	var samples []byte
 	var beats []int32
-	var readOn time.Time
-	var auto, role, rhythm, confidence string
-	err := s.pool.QueryRow(ctx, `
-		SELECT r.taken_at, r.duration_s, r.auto_interpretation, r.sampling_hz, r.samples, r.beats,
-		       eff.role, eff.rhythm, eff.confidence, eff.read_on
-		FROM recordings r `+effectiveRead+`
-		WHERE `+where+`
-		ORDER BY eff.rhythm = 'af' DESC, eff.read_on DESC, r.taken_at DESC, r.id DESC LIMIT 1`, arg).
-		Scan(&rec.TakenAt, &dur, &auto, &hz, &samples, &beats, &role, &rhythm, &confidence, &readOn)
-	if errors.Is(err, pgx.ErrNoRows) {
-		return nil
-	}
+	var auto string
+	err = s.pool.QueryRow(ctx, `SELECT taken_at, duration_s, auto_interpretation, sampling_hz, samples, beats FROM recordings WHERE id = $1`, best.ID).
+		Scan(&rec.TakenAt, &dur, &auto, &hz, &samples, &beats)
 	if err != nil {
 		return mapErr("referral recording", err)
 	}
 	rec.DurationS, rec.Auto = float64(dur), overread.Auto(auto)
-	o.Role, o.Rhythm, o.Confidence = overread.Role(role), overread.Rhythm(rhythm), overread.Confidence(confidence)
 	if hz != nil && len(samples) > 0 {
 		mv, err := DecodeSamples(samples)
 		if err != nil {
@@ -193,9 +272,23 @@ func (s *Store) referralRecording(ctx context.Context, b *ReferralBasis) error {
 			rec.Beats = append(rec.Beats, int(bt))
 		}
 	}
-	o.ReadOn = cohort.DateOf(readOn)
-	b.Source.Recording, b.Source.OverRead = &rec, &o
+	r, _ := best.reported()
+	b.Source.Recording = &rec
+	b.Source.OverRead = &referral.OverRead{Role: r.Role, Rhythm: best.Conclusion.Rhythm, Confidence: r.Confidence, ReadOn: r.On}
+	b.Confirmed = best.confirmsAF()
 	return nil
+}
+
+// laterConclusion orders recordings of one rank: the later settled day, then
+// the later recording.
+func laterConclusion(a, b concluded) bool {
+	if a.Conclusion.SettledOn != b.Conclusion.SettledOn {
+		return b.Conclusion.SettledOn.Before(a.Conclusion.SettledOn)
+	}
+	if !a.TakenAt.Equal(b.TakenAt) {
+		return a.TakenAt.After(b.TakenAt)
+	}
+	return a.ID > b.ID
 }
 
 func answerOf(b *bool) risk.Answer {
@@ -226,6 +319,11 @@ type Referral struct {
 	IssuedAt      time.Time
 	SignedOffBy   string
 	SignedOffAt   time.Time
+	// The content signed off (cohort/referral.Sign) with its digests; empty
+	// for a draft and for a summary signed off before drafts existed.
+	SignedContent       []byte // empty in lists
+	SignedContentSHA256 string
+	SignedPDFSHA256     string
 }
 
 // ReferralIssue is a summary to record as issued.
@@ -301,13 +399,14 @@ func actorID(a cohort.Actor) any {
 }
 
 const referralCols = `f.id, f.participant_id, p.study_id, coalesce(f.case_id, 0), coalesce(f.protocol_id, 0), f.referral_code,
-	f.content_sha256, f.format, f.paper, f.pdf_sha256, f.issued_by, f.issued_at, f.signed_off_by, f.signed_off_at`
+	f.content_sha256, f.format, f.paper, f.pdf_sha256, f.issued_by, f.issued_at, f.signed_off_by, f.signed_off_at,
+	coalesce(f.signed_content_sha256, ''), coalesce(f.signed_pdf_sha256, '')`
 
 func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 	var r Referral
 	var signed *time.Time
 	dest := []any{&r.ID, &r.ParticipantID, &r.StudyID, &r.CaseID, &r.ProtocolID, &r.Code, &r.ContentSHA256, &r.Format, &r.Paper,
-		&r.PDFSHA256, &r.IssuedBy, &r.IssuedAt, &r.SignedOffBy, &signed}
+		&r.PDFSHA256, &r.IssuedBy, &r.IssuedAt, &r.SignedOffBy, &signed, &r.SignedContentSHA256, &r.SignedPDFSHA256}
 	err := row.Scan(append(dest, extra...)...)
 	r.SignedOffAt = timeOf(signed)
 	return r, err
@@ -315,10 +414,10 @@ func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 
 // Referral returns one issued summary with its content.
 func (s *Store) Referral(ctx context.Context, id int64) (Referral, error) {
-	var content []byte
-	r, err := scanReferral(s.pool.QueryRow(ctx, `SELECT `+referralCols+`, f.content
-		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content)
-	r.Content = content
+	var content, signedContent []byte
+	r, err := scanReferral(s.pool.QueryRow(ctx, `SELECT `+referralCols+`, f.content, f.signed_content
+		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content, &signedContent)
+	r.Content, r.SignedContent = content, signedContent
 	return r, mapErr("referral", err)
 }
 
@@ -336,6 +435,14 @@ func (s *Store) Referrals(ctx context.Context, limit int) ([]Referral, error) {
 	return out, mapErr("referrals", err)
 }
 
+// ReferralCounts counts the summaries issued and those signed off; each
+// signed-off summary of a case referred that case (one per case).
+func (s *Store) ReferralCounts(ctx context.Context) (issued, signed int, err error) {
+	err = s.pool.QueryRow(ctx, `SELECT count(*), count(*) FILTER (WHERE signed_off_at IS NOT NULL AND case_id IS NOT NULL) FROM referrals`).
+		Scan(&issued, &signed)
+	return issued, signed, mapErr("referral counts", err)
+}
+
 // ReadyCase is a case ready to refer.
 type ReadyCase struct {
 	CaseID        int64
@@ -347,47 +454,70 @@ type ReadyCase struct {
 }
 
 // ReadyToRefer lists the cases still being worked that have a recording
-// whose effective over-read is atrial fibrillation: their summaries are due.
-// A case is referred when an investigator signs its summary off.
+// confirming atrial fibrillation (overread.Conclusion.ConfirmsAF): their
+// summaries are due. A case is referred when an investigator signs its
+// summary off.
 func (s *Store) ReadyToRefer(ctx context.Context) ([]ReadyCase, error) {
-	rows, err := s.pool.Query(ctx, `
-		SELECT c.id, c.participant_id, p.study_id, c.state, c.first_week, c.last_week
-		FROM cases c JOIN participants p ON p.id = c.participant_id
-		WHERE c.closed_at IS NULL AND EXISTS (
-		    SELECT 1 FROM recordings r `+effectiveRead+` WHERE r.case_id = c.id AND eff.rhythm = 'af')
-		ORDER BY c.id`)
-	if err != nil {
-		return nil, mapErr("ready to refer", err)
-	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (ReadyCase, error) {
-		var c ReadyCase
-		var st string
-		var fw, lw int16
-		err := r.Scan(&c.CaseID, &c.ParticipantID, &c.StudyID, &st, &fw, &lw)
-		c.State, c.FirstWeek, c.LastWeek = followup.State(st), int(fw), int(lw)
-		return c, err
+	var out []ReadyCase
+	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly, IsoLevel: pgx.RepeatableRead}, func(tx pgx.Tx) error {
+		recs, err := concludedRecordings(ctx, tx, "r.case_id IN (SELECT id FROM cases WHERE closed_at IS NULL)")
+		if err != nil {
+			return err
+		}
+		var ids []int64
+		for _, c := range recs {
+			if c.confirmsAF() && !slices.Contains(ids, c.CaseID) {
+				ids = append(ids, c.CaseID)
+			}
+		}
+		rows, err := tx.Query(ctx, `
+			SELECT c.id, c.participant_id, p.study_id, c.state, c.first_week, c.last_week
+			FROM cases c JOIN participants p ON p.id = c.participant_id
+			WHERE c.id = ANY($1) AND c.closed_at IS NULL
+			ORDER BY c.id`, ids)
+		if err != nil {
+			return err
+		}
+		out, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (ReadyCase, error) {
+			var c ReadyCase
+			var st string
+			var fw, lw int16
+			err := r.Scan(&c.CaseID, &c.ParticipantID, &c.StudyID, &st, &fw, &lw)
+			c.State, c.FirstWeek, c.LastWeek = followup.State(st), int(fw), int(lw)
+			return c, err
+		})
+		return err
 	})
 	return out, mapErr("ready to refer", err)
 }
 
+// DrawSummary draws a summary's PDF on the paper and returns its SHA-256 in
+// hex (web/referralissue draws it; the store cannot).
+type DrawSummary func(sum referral.Summary, paper string) (string, error)
+
 // SignOffReferral records an investigator's sign-off of an issued summary and
-// moves its case to referred, in one transaction, audited. Refused: a summary
+// moves its case to referred, in one transaction, audited. The signed content
+// (referral.Sign: the draft naming the signer and the study day) is recorded
+// beside the draft with its digest and the digest of its PDF, which draw
+// makes on the recorded paper. Refused: a summary
 // already signed off or whose case is already referred (conflict); a summary
 // without a case, or whose recorded over-read is not AF, or whose case no
 // longer has an AF over-read or has ended otherwise (invalid). A case still
 // waiting in "recording received" is first moved to "over-read", the step
 // the over-read itself should have made.
-func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (Referral, error) {
-	if a.Role != cohort.Investigator {
+func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64, draw DrawSummary) (Referral, error) {
+	if !followup.StepSignOff.By(a.Role) {
 		return Referral{}, fmt.Errorf("db: sign off referral: role %s: %w", a.Role, cohort.ErrForbidden)
 	}
 	refuse := func(msg string) error { return &cohort.ValidationError{Fields: map[string]string{"referral": msg}} }
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		var caseID *int64
 		var content []byte
-		var signedBy string
-		if err := tx.QueryRow(ctx, `SELECT case_id, content, signed_off_by FROM referrals WHERE id = $1 FOR UPDATE`, id).
-			Scan(&caseID, &content, &signedBy); err != nil {
+		var signedBy, paper, tz string
+		var enrolled time.Time
+		if err := tx.QueryRow(ctx, `SELECT f.case_id, f.content, f.signed_off_by, f.paper, p.enrolled_on, p.time_zone
+			FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1 FOR UPDATE OF f`, id).
+			Scan(&caseID, &content, &signedBy, &paper, &enrolled, &tz); err != nil {
 			return err
 		}
 		if signedBy != "" {
@@ -403,13 +533,19 @@ func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (
 		if sum.OverRead == nil || sum.OverRead.Rhythm != overread.AF {
 			return refuse("the summary does not report an over-read confirming atrial fibrillation; it cannot be signed off as a referral")
 		}
-		var readOn *time.Time
-		if err := tx.QueryRow(ctx, `SELECT max(eff.read_on) FROM recordings r `+effectiveRead+`
-			WHERE r.case_id = $1 AND eff.rhythm = 'af'`, *caseID).Scan(&readOn); err != nil {
+		recs, err := concludedRecordings(ctx, tx, "r.case_id = $1", *caseID)
+		if err != nil {
 			return err
 		}
-		if readOn == nil {
-			return refuse("the case no longer has an over-read confirming atrial fibrillation; issue a new summary")
+		var settled cohort.Date
+		confirmed := false
+		for _, r := range recs {
+			if r.confirmsAF() && (!confirmed || settled.Before(r.Conclusion.SettledOn)) {
+				settled, confirmed = r.Conclusion.SettledOn, true
+			}
+		}
+		if !confirmed {
+			return refuse("the case has no over-read confirming atrial fibrillation (two readers who disagree, or a recording under 30 s, confirm nothing); issue a new summary once it has one")
 		}
 		c, err := lockCase(ctx, tx, *caseID)
 		if err != nil {
@@ -421,7 +557,7 @@ func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (
 		case c.State.Terminal():
 			return refuse("the case has ended as " + c.State.Label() + "; it cannot be referred")
 		case c.State == followup.RecordingReceived:
-			at := cohort.DateOf(*readOn).In(time.UTC).Add(12 * time.Hour)
+			at := settled.In(time.UTC).Add(12 * time.Hour)
 			if _, err := s.advanceCase(ctx, tx, a, c.ID, followup.OverRead, at, ""); err != nil {
 				return err
 			}
@@ -430,12 +566,34 @@ func (s *Store) SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (
 		if _, err := s.advanceCase(ctx, tx, a, c.ID, followup.Referred, time.Time{}, reason); err != nil {
 			return err
 		}
-		if _, err := tx.Exec(ctx, `UPDATE referrals SET signed_off_by_id = $2, signed_off_by = $3, signed_off_at = $4 WHERE id = $1`,
-			id, actorID(a), a.Label(), s.now()); err != nil {
+		at := s.now()
+		loc, err := time.LoadLocation(tz)
+		if err != nil {
+			loc = time.UTC
+		}
+		signed, err := referral.Sign(sum, a.Label(), cohort.DateOf(enrolled), loc, at)
+		if err != nil {
+			return err
+		}
+		signedContent, err := referral.Content(signed)
+		if err != nil {
+			return err
+		}
+		signedDigest, err := referral.Digest(signed)
+		if err != nil {
+			return err
+		}
+		pdfDigest, err := draw(signed, paper)
+		if err != nil {
+			return err
+		}
+		if _, err := tx.Exec(ctx, `UPDATE referrals SET signed_off_by_id = $2, signed_off_by = $3, signed_off_at = $4,
+			    signed_content = $5, signed_content_sha256 = $6, signed_pdf_sha256 = $7 WHERE id = $1`,
+			id, actorID(a), a.Label(), at, signedContent, signedDigest, pdfDigest); err != nil {
 			return err
 		}
 		return audit(ctx, tx, a, "referral.signoff", "referral", strconv.FormatInt(id, 10), nil,
-			map[string]any{"case_id": *caseID, "referral_code": sum.ReferralCode})
+			map[string]any{"case_id": *caseID, "referral_code": sum.ReferralCode, "content_sha256": signedDigest, "pdf_sha256": pdfDigest})
 	})
 	if err != nil {
 		return Referral{}, mapCaseErr("sign off referral", err)

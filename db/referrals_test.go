@@ -2,6 +2,8 @@ package db_test
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/hex"
 	"errors"
 	"strings"
 	"testing"
@@ -90,6 +92,16 @@ func issue(t *testing.T, f *caseFixture, participantID, caseID int64) db.Referra
 	return r
 }
 
+// fakeDraw stands for the PDF drawing: the digest of the content and paper.
+func fakeDraw(sum referral.Summary, paper string) (string, error) {
+	b, err := referral.Content(sum)
+	if err != nil {
+		return "", err
+	}
+	d := sha256.Sum256(append(b, paper...))
+	return hex.EncodeToString(d[:]), nil
+}
+
 func TestReferralSourceIssueAndSignOff(t *testing.T) {
 	f, cases := referralFixture(t)
 	ctx := context.Background()
@@ -125,15 +137,33 @@ func TestReferralSourceIssueAndSignOff(t *testing.T) {
 		t.Error("recorded content holds the study ID or a date")
 	}
 
-	if _, err := f.s.SignOffReferral(ctx, f.coord, r.ID); !errors.Is(err, cohort.ErrForbidden) {
+	if _, err := f.s.SignOffReferral(ctx, f.coord, r.ID, fakeDraw); !errors.Is(err, cohort.ErrForbidden) {
 		t.Errorf("coordinator sign-off: %v, want forbidden", err)
 	}
-	signed, err := f.s.SignOffReferral(ctx, f.inv, r.ID)
+	signed, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if signed.SignedOffAt.IsZero() || !strings.Contains(signed.SignedOffBy, "investigator") {
 		t.Errorf("sign-off not recorded: %+v", signed)
+	}
+	// The draft stays as issued; the signed content names the signer, is no
+	// draft, digests to its recorded value and its PDF digest is the drawing's.
+	if d, _ := referral.Decode(signed.Content); !d.Draft || d.SignOff != nil {
+		t.Error("the recorded draft changed at the sign-off")
+	}
+	sc, err := referral.Decode(signed.SignedContent)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if sc.Draft || sc.SignOff == nil || sc.SignOff.By != signed.SignedOffBy {
+		t.Errorf("signed content: draft %v, sign-off %+v", sc.Draft, sc.SignOff)
+	}
+	if d, _ := referral.Digest(sc); d != signed.SignedContentSHA256 || d == signed.ContentSHA256 {
+		t.Errorf("signed digest %s, recorded %s, draft %s", d, signed.SignedContentSHA256, signed.ContentSHA256)
+	}
+	if want, _ := fakeDraw(sc, "a4"); signed.SignedPDFSHA256 != want {
+		t.Errorf("signed PDF digest %s, want the drawing's %s", signed.SignedPDFSHA256, want)
 	}
 	c := f.get(cases["P1"])
 	if c.State != followup.Referred || c.OverReadAt.IsZero() || c.ClosedAt.IsZero() {
@@ -150,20 +180,20 @@ func TestReferralSourceIssueAndSignOff(t *testing.T) {
 	if got := strings.Join(actions, " "); !strings.Contains(got, "referral.issue case.advance case.advance referral.signoff") {
 		t.Errorf("audit trail %q", got)
 	}
-	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID); !errors.Is(err, cohort.ErrConflict) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw); !errors.Is(err, cohort.ErrConflict) {
 		t.Errorf("second sign-off: %v, want conflict", err)
 	}
 	again := issue(t, f, f.pids["P1"], cases["P1"])
-	if _, err := f.s.SignOffReferral(ctx, f.inv, again.ID); !errors.Is(err, cohort.ErrConflict) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, again.ID, fakeDraw); !errors.Is(err, cohort.ErrConflict) {
 		t.Errorf("sign-off of a referred case: %v, want conflict", err)
 	}
 
 	var ve *cohort.ValidationError
 	notAF := issue(t, f, f.pids["P2"], 0)
-	if _, err := f.s.SignOffReferral(ctx, f.inv, notAF.ID); !errors.As(err, &ve) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, notAF.ID, fakeDraw); !errors.As(err, &ve) {
 		t.Errorf("sign-off of a summary without AF: %v, want invalid", err)
 	}
-	if _, err := f.s.SignOffReferral(ctx, f.inv, 999999); !errors.Is(err, cohort.ErrNotFound) {
+	if _, err := f.s.SignOffReferral(ctx, f.inv, 999999, fakeDraw); !errors.Is(err, cohort.ErrNotFound) {
 		t.Errorf("unknown referral: %v", err)
 	}
 	list, err := f.s.Referrals(ctx, 10)
@@ -212,5 +242,79 @@ func TestExportReaders(t *testing.T) {
 	list, err := f.s.Exports(ctx, 5)
 	if err != nil || len(list) != 1 || list[0].Actor == "" {
 		t.Errorf("exports %+v %v", list, err)
+	}
+}
+
+// Two readers who disagree, with nobody adjudicating yet, settle nothing
+// (overread.Resolve): the case is not ready to refer, its summary reports no
+// AF over-read, and a summary issued while the first reading stood alone
+// cannot be signed off once the second reader disagrees.
+func TestDisputedReadingIsNotAReferral(t *testing.T) {
+	f, cases := referralFixture(t)
+	ctx := context.Background()
+	early := issue(t, f, f.pids["P1"], cases["P1"]) // P1's first reader said AF, alone
+	if sum, err := referral.Decode(early.Content); err != nil || sum.OverRead == nil || sum.OverRead.Rhythm != "af" {
+		t.Fatalf("summary before the dispute: %+v, %v; want the first reader's AF", sum.OverRead, err)
+	}
+	mustExec(t, f.s, `INSERT INTO over_reads (recording_id, case_id, participant_id, role, rhythm, reader, read_on)
+		SELECT id, case_id, participant_id, 'second', 'sinus', 'Reader Two', date '2026-05-30' FROM recordings WHERE case_id = $1`, cases["P1"])
+
+	ready, err := f.s.ReadyToRefer(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ready) != 0 {
+		t.Errorf("ready %+v, want none: P1's readers disagree, P2 was adjudicated sinus, P3 is closed", ready)
+	}
+	b, err := f.s.ReferralSource(ctx, f.pids["P1"], cases["P1"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b.ConfirmedAF() || b.Source.OverRead != nil {
+		t.Errorf("disputed basis: confirmed %v, over-read %+v; want no over-read on the summary", b.ConfirmedAF(), b.Source.OverRead)
+	}
+	late := issue(t, f, f.pids["P1"], cases["P1"])
+	if sum, err := referral.Decode(late.Content); err != nil || sum.OverRead != nil {
+		t.Errorf("summary after the dispute reports over-read %+v (%v); want none", sum.OverRead, err)
+	}
+	var ve *cohort.ValidationError
+	for _, r := range []db.Referral{early, late} {
+		if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw); !errors.As(err, &ve) {
+			t.Errorf("sign-off of summary %d of a disputed case: %v, want refused", r.ID, err)
+		}
+	}
+	if c := f.get(cases["P1"]); c.State != followup.RecordingReceived {
+		t.Errorf("disputed case moved to %s", c.State)
+	}
+}
+
+// A recording under 30 s read as AF confirms nothing (the diagnostic-recording
+// rule, as the cascade counts it): its case is not ready to refer and its
+// summary cannot be signed off.
+func TestShortRecordingIsNotAReferral(t *testing.T) {
+	f, cases := referralFixture(t)
+	ctx := context.Background()
+	mustExec(t, f.s, `UPDATE recordings SET too_short = true, duration_s = 20 WHERE case_id = $1`, cases["P1"])
+	ready, err := f.s.ReadyToRefer(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ready) != 0 {
+		t.Errorf("ready %+v, want none: P1's only recording is too short", ready)
+	}
+	b, err := f.s.ReferralSource(ctx, f.pids["P1"], cases["P1"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b.ConfirmedAF() {
+		t.Errorf("a short recording's AF reading confirmed the basis: %+v", b.Source.OverRead)
+	}
+	r := issue(t, f, f.pids["P1"], cases["P1"])
+	var ve *cohort.ValidationError
+	if _, err := f.s.SignOffReferral(ctx, f.inv, r.ID, fakeDraw); !errors.As(err, &ve) {
+		t.Errorf("sign-off on a short recording: %v, want refused", err)
+	}
+	if c := f.get(cases["P1"]); c.State != followup.RecordingReceived {
+		t.Errorf("case moved to %s on a short recording", c.State)
 	}
 }

@@ -82,6 +82,27 @@ func storedResults(t *testing.T, s *db.Store, protocolID int) []storedRow {
 	return out
 }
 
+// screenStored screens a stored participant-week afresh under p, as a
+// re-computation of a stored result does, and returns the result and its
+// JSON.
+func screenStored(t *testing.T, s *db.Store, pid int64, week int, p screen.Protocol) (screen.Result, []byte) {
+	t.Helper()
+	part, err := s.Participant(context.Background(), pid)
+	if err != nil {
+		t.Fatal(err)
+	}
+	wk, err := s.WearWeek(context.Background(), part, week)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := screen.Screen(&wk, p, fixedNow.UnixMilli(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, _ := json.Marshal(res)
+	return res, b
+}
+
 func TestScreeningJobFlagsAndReproduces(t *testing.T) {
 	s := newStore(t)
 	ctx := context.Background()
@@ -136,16 +157,7 @@ func TestScreeningJobFlagsAndReproduces(t *testing.T) {
 	}
 
 	// The stored JSON is exactly what the screen computes from the stored week.
-	part, _ := s.Participant(ctx, irregular)
-	wk, err := s.WearWeek(ctx, part, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := screen.Screen(&wk, v1.Params, fixedNow.UnixMilli(), nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	b, _ := json.Marshal(res)
+	_, b := screenStored(t, s, irregular, 1, v1.Params)
 	for _, r := range first {
 		if r.pid == irregular && r.week == 1 && r.result != string(b) {
 			t.Fatalf("stored result differs from a fresh computation:\nstored %.300s\nfresh  %.300s", r.result, b)

@@ -9,6 +9,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/enrolment"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/screen"
 
 	"github.com/jackc/pgx/v5"
 )
@@ -19,8 +20,8 @@ type WeekLine struct {
 	Readings  int64 // all kinds
 	HRCount   int64
 	RRCount   int64
-	WearHours float64 // from the screen result, when screened
-	Verdict   string  // positive, negative, insufficient, or "" when not screened
+	WearHours float64        // from the screen result, when screened
+	Verdict   screen.Verdict // "" when not screened
 	Reason    string
 	CaseID    int64 // a case covering this week
 	CaseState followup.State

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/wear"
 
 	"github.com/jackc/pgx/v5"
@@ -289,7 +290,7 @@ type ExternalVerdict struct {
 	ModelName    string
 	ModelVersion string
 	Score        *float64
-	Verdict      string
+	Verdict      screen.Verdict
 	ImportID     int64
 }
 

@@ -848,7 +848,7 @@ func Case(m CaseModel) templ.Component {
 							}()
 						}
 						ctx = templ.InitializeContext(ctx)
-						templ_7745c5c3_Err = selectBox("state", m.Moves, "").Render(ctx, templ_7745c5c3_Buffer)
+						templ_7745c5c3_Err = requiredSelect("state", m.Moves, m.Errors).Render(ctx, templ_7745c5c3_Buffer)
 						if templ_7745c5c3_Err != nil {
 							return templ_7745c5c3_Err
 						}
@@ -906,7 +906,7 @@ func Case(m CaseModel) templ.Component {
 							}()
 						}
 						ctx = templ.InitializeContext(ctx)
-						templ_7745c5c3_Err = selectBox("close-state", m.Closings, "").Render(ctx, templ_7745c5c3_Buffer)
+						templ_7745c5c3_Err = requiredSelect("close-state", m.Closings, m.Errors).Render(ctx, templ_7745c5c3_Buffer)
 						if templ_7745c5c3_Err != nil {
 							return templ_7745c5c3_Err
 						}

@@ -111,7 +111,7 @@ func Confirmations(m ConfirmationsModel) templ.Component {
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
-			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 3, "</div><div class=\"lbl\">disagreements waiting for adjudication</div></div></div>")
+			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 3, "</div><div class=\"lbl\">recordings waiting for an adjudication (readers disagree)</div></div></div>")
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}
@@ -231,7 +231,7 @@ func Confirmations(m ConfirmationsModel) templ.Component {
 						if templ_7745c5c3_Err != nil {
 							return templ_7745c5c3_Err
 						}
-						templ_7745c5c3_Err = components.Badge("under 30 s, not diagnostic", components.Warn).Render(ctx, templ_7745c5c3_Buffer)
+						templ_7745c5c3_Err = components.Badge("under 30 s usable, not diagnostic", components.Warn).Render(ctx, templ_7745c5c3_Buffer)
 						if templ_7745c5c3_Err != nil {
 							return templ_7745c5c3_Err
 						}

@@ -13,6 +13,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
+	"cohortdesk/cohort/ecg"
 	"cohortdesk/db"
 
 	"github.com/chromedp/cdproto/cdp"
@@ -217,6 +218,9 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatal(err)
 	}
 	ref := issueVia(t, a, a.signIn(cohort.Coordinator), pid, caseID, "html", paperA4)
+	// Triage lists a case nobody has taken on, overdue: the row the
+	// coordinator's pass takes.
+	a.exec(`UPDATE cases SET due_at = now() - interval '1 day', owner_id = NULL WHERE id = $1`, cases[sids[1]])
 	proto := protocolFor(t, a)
 	p := func(name, pattern, path string) a11yPage { return a11yPage{name, pattern, path} }
 	pages := []a11yPage{
@@ -228,6 +232,7 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		p("new participant", "/participants/new", "/participants/new"),
 		p("cases list", "/cases", "/cases"),
 		p("case page", "/cases/{id}", fmt.Sprintf("/cases/%d", caseID)),
+		p("contact details", "/cases/{id}/contact", fmt.Sprintf("/cases/%d/contact", caseID)),
 		p("recording page", "/recordings/{id}", fmt.Sprintf("/recordings/%d", rec)),
 		p("confirmations", "/confirmations", "/confirmations"),
 		p("statistics", "/confirmations/statistics", "/confirmations/statistics"),
@@ -262,6 +267,19 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatalf("run the sweep: %v %v", ok, err)
 	}
 	pages = append(pages, p("threshold sweep", "/sweep", fmt.Sprintf("/sweep?run=%d", sweep)))
+	// A recording from a file of several signals: the signals table and the
+	// choice of lead.
+	var shipped int64
+	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM cases WHERE state IN ('recorder_sent', 'recording_received', 'over_read') ORDER BY id LIMIT 1`).Scan(&shipped); err != nil {
+		t.Fatalf("no case taking recordings in the demo: %v", err)
+	}
+	edf, _ := threeSignalEDF(t)
+	multi, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("127.0.0.1", "test"), shipped,
+		ecg.RecordingInput{File: edf, FileName: "leads.edf", TakenAt: time.Now().Add(-time.Minute)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pages = append(pages, p("recording with several leads", "/recordings/{id}", fmt.Sprintf("/recordings/%d", multi.ID)))
 	var imp int64
 	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM imports ORDER BY id LIMIT 1`).Scan(&imp); err == nil {
 		pages = append(pages, p("import report", "/imports/{id}", fmt.Sprintf("/imports/%d", imp)))
@@ -297,7 +315,7 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	var checked atomic.Int32
 	// Pages walked with Tab from top to bottom: the ones whose work is
 	// done in forms.
-	tabWalked := map[string]bool{"case page": true, "recording page": true, "referral preview": true, "referral summary": true,
+	tabWalked := map[string]bool{"case page": true, "recording page": true, "recording with several leads": true, "referral preview": true, "referral summary": true,
 		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true,
 		"change password": true, "second factor set-up": true}
 
@@ -616,7 +634,8 @@ func TestKeyboardWorksTriage(t *testing.T) {
 			break
 		}
 	}
-	want := []string{" a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
+	// The study ID, the contact details (issue 19), then the forms.
+	want := []string{" a", " a", "take button", "assign-to select", "assign-to button", "attempt select", "attempt select", "attempt button"}
 	if !slices.Equal(inRow, want) {
 		t.Errorf("Tab order in the row %q, want %q", inRow, want)
 	}

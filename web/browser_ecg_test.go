@@ -66,6 +66,7 @@ func TestBrowserRecordingToStatistics(t *testing.T) {
 		chromedp.Click(chromedp.CSS(`[data-testid="unread-table"] a`)),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="form-over-read"]`)),
 		chromedp.Click(chromedp.CSS(`input[name="rhythm"][value="sinus"]`)),
+		chromedp.SetValue(chromedp.ID("confidence"), "certain"),
 		chromedp.Click(chromedp.CSS(`[data-testid="enter-over-read"]`)),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="readings"]`)),
 	)

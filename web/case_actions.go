@@ -33,7 +33,7 @@ func (s *Server) caseAction(w http.ResponseWriter, r *http.Request, done string,
 	err = do(r.Context(), id, f.version(), f)
 	fromTriage := r.PostForm.Get("view") == "triage"
 	if fromTriage && r.Header.Get("HX-Request") == "true" {
-		return s.triageRowAnswer(w, r, id, err, done)
+		return s.triageAnswer(w, r, id, err, done)
 	}
 	if err != nil {
 		no, ok := refused(r, err, nil)

@@ -105,13 +105,20 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 	}
 	m.Channels = channelOptions
 	m.Outcomes = append([]views.Option{{Value: "", Label: "choose…"}}, outcomeOptions...)
-	for _, n := range followup.Next(c.State) {
+	for _, n := range followup.HandMoves(c.State) {
 		switch {
 		case n.Terminal() && offered(followup.StepClose):
 			m.Closings = append(m.Closings, views.Option{Value: string(n), Label: n.Label()})
 		case !n.Terminal() && offered(followup.StepMove):
 			m.Moves = append(m.Moves, views.Option{Value: string(n), Label: n.Label()})
 		}
+	}
+	if len(m.Closings) > 0 {
+		// No closing is chosen for the person: they say how the case ends.
+		m.Closings = append([]views.Option{{Value: "", Label: "choose how it ends…"}}, m.Closings...)
+	}
+	if len(m.Moves) > 0 {
+		m.Moves = append([]views.Option{{Value: "", Label: "choose a state…"}}, m.Moves...)
 	}
 	weeks, err := s.store.FlaggedWeeks(ctx, c.ParticipantID)
 	if err != nil {

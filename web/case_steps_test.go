@@ -26,6 +26,8 @@ func TestCaseStepRoutesFollowTheStepRules(t *testing.T) {
 		followup.StepMove:      {"/cases/{id}/move"},
 		followup.StepClose:     {"/cases/{id}/close"},
 		followup.StepNote:      {"/cases/{id}/note"},
+		followup.StepOverRead:  {"/recordings/{id}/over-reads", "/recordings/{id}/over-reads/revise", "/recordings/{id}/not-needed"},
+		followup.StepSignOff:   {"/referrals/{id}/signoff"},
 	}
 	for step, patterns := range routes {
 		for _, p := range patterns {

@@ -25,8 +25,8 @@ import (
 type caseStore interface {
 	Case(ctx context.Context, id int64) (db.Case, error)
 	Cases(ctx context.Context, f db.CaseFilter) (db.CasePage, error)
-	Triage(ctx context.Context, perGroup int) (db.Triage, error)
-	TriageCase(ctx context.Context, id int64) (db.Triage, error)
+	Triage(ctx context.Context, perGroup int, me int64) (db.Triage, error)
+	TriageCase(ctx context.Context, id, me int64) (db.Triage, error)
 	CaseTimeline(ctx context.Context, c db.Case, loc *time.Location) ([]db.CaseEvent, error)
 	FlaggedWeeks(ctx context.Context, participantID int64) ([]db.FlaggedWeek, error)
 	CaseWorkers(ctx context.Context) ([]db.User, error)

@@ -95,7 +95,7 @@ func TestTriagePageGroupsCountsAndOrderRule(t *testing.T) {
 		`data-testid="order-rule"`, "How this list is ordered: overdue cases first",
 		`data-testid="count-overdue"><a href="#group-overdue"><div class="num">1<`,
 		`data-testid="count-new"><a href="#group-new"><div class="num">2<`,
-		`data-testid="shortcuts"`, `data-row-key="a"`, `hx-target="closest tr"`,
+		`data-testid="shortcuts"`, `data-row-key="a"`, `hx-target="#triage-board"`,
 		fmt.Sprintf(`id="case-%d"`, ids[0]),
 	} {
 		if !strings.Contains(body, want) {
@@ -156,9 +156,11 @@ func TestTriageRowActionsWithHTMX(t *testing.T) {
 	if res.StatusCode != http.StatusSeeOther || res.Header.Get("Location") != fmt.Sprintf("/triage?done=assign#case-%d", id) {
 		t.Fatalf("plain post: status %d location %q", res.StatusCode, res.Header.Get("Location"))
 	}
-	// With htmx the answer is just the row.
+	// With htmx the answer is the triage board: the row in its new group,
+	// every group and count as they now are (issue 19, finding 3).
 	res, body := a.hx(coord, fmt.Sprintf("/cases/%d/attempts", id), url.Values{"version": {"2"}, "view": {"triage"}, "channel": {"phone"}, "outcome": {"reached"}})
-	if res.StatusCode != 200 || !strings.HasPrefix(strings.TrimSpace(body), fmt.Sprintf(`<tr id="case-%d"`, id)) || strings.Contains(body, "<html") {
+	if res.StatusCode != 200 || !strings.HasPrefix(strings.TrimSpace(body), `<div id="triage-board"`) || strings.Contains(body, "<html") ||
+		!strings.Contains(section(body, "group-mine"), fmt.Sprintf(`<tr id="case-%d"`, id)) {
 		t.Fatalf("htmx attempt: status %d\n%s", res.StatusCode, body)
 	}
 	for _, want := range []string{`data-state="reached"`, `data-testid="row-done"`, `data-testid="ship"`, "send the recorder"} {

@@ -33,7 +33,7 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	m := views.ConfirmationsModel{Page: s.page(r, "Confirmations", "confirmations"), DeIdentified: !role(r).SeesPHI(),
-		UnreadCount: len(lists.Unread), DisagreedCount: len(lists.Disagreed), CanRead: clinical.allows(role(r))}
+		UnreadCount: lists.UnreadCount, DisagreedCount: len(lists.Disagreed), CanRead: clinical.allows(role(r))}
 	if m.DeIdentified {
 		return s.ok(w, r, views.Confirmations(m))
 	}

@@ -68,6 +68,9 @@ func (s *Server) renderExports(w http.ResponseWriter, r *http.Request, status in
 	if err != nil {
 		return err
 	}
+	if m.Issued, m.Signed, err = s.store.ReferralCounts(ctx); err != nil {
+		return err
+	}
 	for _, f := range refs {
 		row := views.ReferralRowView{ID: f.ID, Code: f.Code, StudyID: f.StudyID, Issued: when(f.IssuedAt, loc),
 			By: f.IssuedBy, Format: f.Format + ", " + paperLabel(f.Paper), Digest: f.ContentSHA256[:16] + "…"}

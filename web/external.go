@@ -88,7 +88,7 @@ func externalRows(vs []db.ExternalVerdict) []views.ExternalVerdictRow {
 		if v.Score != nil {
 			score = strconv.FormatFloat(*v.Score, 'g', 4, 64)
 		}
-		out[i] = views.ExternalVerdictRow{Week: v.Week, Model: v.ModelName + " " + v.ModelVersion, Score: score, Verdict: v.Verdict, Tone: verdictTone(v.Verdict)}
+		out[i] = views.ExternalVerdictRow{Week: v.Week, Model: v.ModelName + " " + v.ModelVersion, Score: score, Verdict: v.Verdict.Label(), Tone: verdictTone(v.Verdict)}
 	}
 	return out
 }

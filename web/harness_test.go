@@ -128,16 +128,31 @@ func strconvFormat(n int64) string { return strconv.FormatInt(n, 10) }
 // the keys given), then one file under fileField.
 func (a *app) postFile(c *http.Client, path string, fields [][2]string, fileField, name string, data []byte) (*http.Response, string) {
 	a.t.Helper()
+	return a.postMultipart(c, path, fields, fileField, []namedFile{{name, data}})
+}
+
+// namedFile is one file of a multipart form.
+type namedFile struct {
+	name string
+	data []byte
+}
+
+// postMultipart posts a multipart form with fields and any number of files
+// in one file field, as a browser sends a multiple file choice.
+func (a *app) postMultipart(c *http.Client, path string, fields [][2]string, fileField string, files []namedFile) (*http.Response, string) {
+	a.t.Helper()
 	var body bytes.Buffer
 	mw := multipart.NewWriter(&body)
 	for _, kv := range fields {
 		mw.WriteField(kv[0], kv[1])
 	}
-	fw, err := mw.CreateFormFile(fileField, name)
-	if err != nil {
-		a.t.Fatal(err)
+	for _, f := range files {
+		fw, err := mw.CreateFormFile(fileField, f.name)
+		if err != nil {
+			a.t.Fatal(err)
+		}
+		fw.Write(f.data)
 	}
-	fw.Write(data)
 	mw.Close()
 	req, _ := http.NewRequest("POST", a.ts.URL+path, &body)
 	req.Header.Set("Content-Type", mw.FormDataContentType())

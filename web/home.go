@@ -31,22 +31,32 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	m := views.HomeModel{
-		Page: s.page(r, "Overview", "home"),
-		AsOf: "at " + when(s.now(), s.studyZone(ctx)),
-		Tiles: []views.Tile{
-			{Key: "participants", Label: "participants enrolled", Value: c.Participants},
-			{Key: "active", Label: "active (not withdrawn)", Value: c.Active},
-			{Key: "withdrawn", Label: "withdrawn", Value: c.Withdrawn},
-			{Key: "sites", Label: "sites", Value: c.Sites},
-		},
+		Page:  s.page(r, "Overview", "home"),
+		AsOf:  "at " + when(s.now(), s.studyZone(ctx)),
+		Tiles: []views.Tile{{Key: "participants", Label: "participants enrolled", Value: c.Participants}},
 	}
+	list := s.may(r, "/cases")
+	for _, st := range cohort.ParticipantStatuses() {
+		t := views.Tile{Key: string(st), Label: "participants " + st.Label(), Value: c.Status[st]}
+		if s.may(r, "/participants") {
+			t.Href = "/participants?status=" + string(st)
+		}
+		m.Tiles = append(m.Tiles, t)
+	}
+	m.Tiles = append(m.Tiles, views.Tile{Key: "sites", Label: "sites", Value: c.Sites})
+	waiting := views.Tile{Key: "awaiting-read", Label: "recordings waiting for an over-read", Value: int64(c.AwaitingRead)}
+	if s.may(r, "/confirmations") {
+		waiting.Href = "/confirmations"
+	}
+	m.Tiles = append(m.Tiles, waiting)
 	if s.may(r, "/triage") {
-		t, err := s.store.Triage(ctx, 1)
+		u, _ := userFrom(ctx)
+		t, err := s.store.Triage(ctx, 1, u.ID)
 		if err != nil {
 			return err
 		}
 		for _, g := range triageGroups {
-			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.title, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
+			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.tile, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
 		}
 		other := t.Counts[followup.BucketOther]
 		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: strings.TrimPrefix(plural(other, "other case"), strconv.Itoa(other)+" ") + ", on schedule",
@@ -54,7 +64,6 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 		m.WorkNote = fmt.Sprintf("As of %s, %s (%s); the triage page lists them in order of urgency.",
 			dayLabel(t.Settings.Calendar().DateOf(t.Now)), cohort.ClockLabel(t.Now, t.Settings.Location()), t.Settings.Location())
 	}
-	list := s.may(r, "/cases")
 	for _, st := range followup.States() {
 		n := c.Cases[st]
 		if n == 0 {

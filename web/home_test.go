@@ -46,7 +46,9 @@ func TestHomeShowsCountsFromDatabase(t *testing.T) {
 	}
 	for _, want := range []string{
 		`data-testid="tile-participants"><div class="num">7<`,
-		`data-testid="tile-active"><div class="num">6<`,
+		`data-testid="tile-active"><a href="/participants?status=active"><div class="num">6<`,
+		`data-testid="tile-withdrawn"><a href="/participants?status=withdrawn"><div class="num">1<`,
+		`data-testid="tile-completed"><a href="/participants?status=completed"><div class="num">0<`,
 		`data-testid="tile-sites"><div class="num">2<`,
 		`data-testid="cautions"`,
 	} {

@@ -291,6 +291,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	}
 	b.Do("choose AF",
 		chromedp.Click(chromedp.CSS(`input[name="rhythm"][value="af"]`)),
+		chromedp.SetValue(chromedp.ID("confidence"), "certain"),
 		chromedp.SetValue(chromedp.ID("comment"), "Irregularly irregular; the participant ("+f.phone+") was told."),
 	)
 	tb.follow("enter the over-read", `[data-testid="enter-over-read"]`, `[data-testid="readings"]`)
@@ -298,12 +299,18 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 		t.Fatalf("verdict after the over-read %q", v)
 	}
 
-	// Investigator: issue the summary from the exports page, sign it off.
+	// Investigator: issue the summary from the exports page, sign it off,
+	// counting the clicks (issue 19: eight before issuing led to the
+	// sign-off and it asked twice).
+	clicks := 0
 	summary := fmt.Sprintf(`[data-testid="ready-table"] a[href="/participants/%d/referral?case=%d"]`, f.pid, f.caseID)
 	tb.follow("the case is due a summary", `[data-testid="nav-exports"]`, summary)
 	tb.follow("preview the summary", summary, `[data-testid="preview-mark"]`)
-	b.Do("choose the print view", chromedp.SetValue(chromedp.ID("format"), "html"))
-	tb.follow("issue the summary", `[data-testid="issue-referral"]`, `[data-testid="form-signoff"]`)
+	tb.follow("issue the summary: its record, a draft, with the sign-off", `[data-testid="issue-referral"]`, `[data-testid="form-signoff"]`)
+	clicks += 3
+	if !tb.has(`[data-testid="draft-mark"]`) {
+		t.Error("the issued summary is not marked as a draft before its sign-off")
+	}
 	refURL := b.Location()
 	code := deid.Code([]byte(testSecret), f.sid)
 	if got := b.Text("code", `[data-testid="referral-code"]`); got != code {
@@ -313,15 +320,23 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 		t.Errorf("digest check %q", got)
 	}
 	b.Do("tick the review box", chromedp.Click(chromedp.CSS(`[data-testid="form-signoff"] input[name="reviewed"]`)))
-	tb.follow("sign it off", `[data-testid="sign-off"]`, `[data-testid="signoff-state"]`)
+	tb.follow("sign it off", `[data-testid="sign-off"]`, `[data-testid="signed-mark"]`)
+	clicks += 2
+	t.Logf("sign off a referral: %d clicks from the exports link", clicks)
+	if clicks != 5 {
+		t.Errorf("signing off took %d clicks, want 5", clicks)
+	}
 	if tb.has(`[data-testid="form-signoff"]`) {
 		t.Fatal("the sign-off form is still offered after the sign-off")
 	}
-	if got := tb.confirmed(); len(got) != 1 || !strings.Contains(got[0], "mark the case referred") {
-		t.Errorf("confirmation dialogs %q, want the sign-off question", got)
+	if got := tb.confirmed(); len(got) != 0 {
+		t.Errorf("confirmation dialogs %q beside the review box: the sign-off asks twice", got)
 	}
 	if got := b.Text("sign-off", `[data-testid="signoff-state"]`); !strings.Contains(got, "Test Investigator") {
 		t.Errorf("sign-off shown as %q", got)
+	}
+	if got := b.Text("signed mark", `[data-testid="signed-mark"]`); !strings.Contains(got, "Signed off by Test Investigator") || tb.has(`[data-testid="draft-mark"]`) {
+		t.Errorf("the signed summary shows %q", got)
 	}
 	tb.follow("back to the case", fmt.Sprintf(`[data-testid="referral-tools"] a[href="/cases/%d"]`, f.caseID), `[data-testid="case-state"]`)
 	if got := b.Text("case state", `[data-testid="case-state"]`); got != "referred" {

@@ -13,6 +13,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/enrolment"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 	"cohortdesk/views"
 	"cohortdesk/views/components"
@@ -42,34 +43,46 @@ func ageBand(p db.Participant, now time.Time) string {
 	return deid.AgeBand(deid.AgeSince(*p.AgeAtEnrolment, p.EnrolledOn, cohort.DateOf(now.In(p.Location()))).Years)
 }
 
-// status is withdrawn, completed (past the study's weeks of wear data) or
-// active. followUpWeeks 0 means open-ended.
-func status(p db.Participant, followUpWeeks int, now time.Time) (string, components.Tone) {
-	if p.WithdrawnOn != nil {
-		return "withdrawn", components.Neutral
-	}
-	if followUpWeeks > 0 && !cohort.DateOf(now).Before(p.EnrolledOn.AddDays(7*followUpWeeks)) {
-		return "completed", components.Info
-	}
-	return "active", components.OK
+// statusDay is what a participant's status is read against: the study's
+// weeks of follow-up (0: open-ended) and today in the study's time zone,
+// as the store counts them (cohort.StatusOf).
+type statusDay struct {
+	weeks int
+	today cohort.Date
 }
 
-// followUpWeeks is the study's weeks of wear data per participant (0 when
-// unset or unreadable: treated as open-ended).
-func (s *Server) followUpWeeks(ctx context.Context) int {
+func (s *Server) statusDay(ctx context.Context) (statusDay, error) {
 	st, err := s.store.StudySettings(ctx)
 	if err != nil {
-		return 0
+		return statusDay{}, err
 	}
-	return st.FollowUpWeeks
+	return statusDay{weeks: st.FollowUpWeeks, today: cohort.DateOf(s.now().In(st.Location()))}, nil
+}
+
+// status is the participant's status (cohort.StatusOf) with its badge tone.
+func (d statusDay) status(p db.Participant) (cohort.ParticipantStatus, components.Tone) {
+	st := cohort.StatusOf(p.EnrolledOn, p.WithdrawnOn, d.weeks, d.today)
+	switch st {
+	case cohort.StatusWithdrawn:
+		return st, components.Neutral
+	case cohort.StatusCompleted:
+		return st, components.Info
+	}
+	return st, components.OK
 }
 
 // participantFilter reads the filter from the query string.
 func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
 	form := views.ParticipantFilterForm{Search: q.Get("q"), SiteID: q.Get("site"), Status: q.Get("status"),
 		PositiveWeeks: q.Get("positive"), OpenCase: q.Get("open_case") == "on", Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
-	f := db.ParticipantFilter{Search: form.Search, Status: form.Status, OpenCase: form.OpenCase, Sort: form.Sort,
+	f := db.ParticipantFilter{Search: form.Search, OpenCase: form.OpenCase, Sort: form.Sort,
 		Desc: form.Desc, After: q.Get("after"), WithNames: seesPHI}
+	if st := cohort.ParticipantStatus(form.Status); st.Valid() {
+		f.Status = st
+	}
+	for _, st := range cohort.ParticipantStatuses() {
+		form.Statuses = append(form.Statuses, views.Option{Value: string(st), Label: st.Label()})
+	}
 	f.SiteID, _ = strconv.Atoi(form.SiteID)
 	f.PositiveWeeks, _ = strconv.Atoi(form.PositiveWeeks)
 	return f, form
@@ -100,14 +113,20 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 		return err
 	}
 	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
-		CanEnrol: coordWork.allows(role(r)), Total: page.Total, Active: page.Active, Withdrawn: page.Withdrawn}
+		CanEnrol: coordWork.allows(role(r)), Total: page.Total}
+	for _, st := range cohort.ParticipantStatuses() {
+		m.ByStatus = append(m.ByStatus, views.Tile{Key: string(st), Label: "participants " + st.Label(), Value: page.Status[st]})
+	}
 	now := s.now()
-	fw := s.followUpWeeks(ctx)
+	day, err := s.statusDay(ctx)
+	if err != nil {
+		return err
+	}
 	ids := make([]int64, 0, len(page.Rows))
 	for _, p := range page.Rows {
-		st, tone := status(p.Participant, fw, now)
+		st, tone := day.status(p.Participant)
 		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: p.Sex.Label(),
-			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.Label(), Status: st, StatusTone: tone, OpenCases: p.OpenCases}
+			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.Label(), Status: st.Label(), StatusTone: tone, OpenCases: p.OpenCases}
 		if p.LastPositive != nil {
 			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
 		}
@@ -158,14 +177,17 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 	}
 	_ = cw.Write(head)
 	now := s.now()
-	fw := s.followUpWeeks(ctx)
+	day, err := s.statusDay(ctx)
+	if err != nil {
+		return err
+	}
 	for {
 		page, err := s.store.Participants(ctx, f)
 		if err != nil {
 			return err
 		}
 		for _, p := range page.Rows {
-			st, _ := status(p.Participant, fw, now)
+			st, _ := day.status(p.Participant)
 			withdrawn, last := "", ""
 			if p.WithdrawnOn != nil {
 				withdrawn = p.WithdrawnOn.String()
@@ -173,7 +195,7 @@ func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
 			if p.LastPositive != nil {
 				last = strconv.Itoa(*p.LastPositive)
 			}
-			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), st, withdrawn, last, strconv.Itoa(p.OpenCases)}
+			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), string(st), withdrawn, last, strconv.Itoa(p.OpenCases)}
 			if seesPHI {
 				rec = append(rec, csvSafe(p.Name))
 			}
@@ -205,14 +227,12 @@ func yesNo(b *bool) string {
 	return "no"
 }
 
-func verdictTone(v string) components.Tone {
+func verdictTone(v screen.Verdict) components.Tone {
 	switch v {
-	case "positive":
+	case screen.Positive:
 		return components.Alarm
-	case "negative":
+	case screen.Negative:
 		return components.OK
-	case "insufficient":
-		return components.Neutral
 	}
 	return components.Neutral
 }
@@ -223,8 +243,12 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	st, tone := status(p, s.followUpWeeks(ctx), s.now())
-	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st, StatusTone: tone,
+	day, err := s.statusDay(ctx)
+	if err != nil {
+		return err
+	}
+	st, tone := day.status(p)
+	m := views.ParticipantModel{Page: s.page(r, p.StudyID, "participants"), ID: p.ID, StudyID: p.StudyID, Status: st.Label(), StatusTone: tone,
 		CanEdit: coordWork.allows(role(r)), CanNote: caseWork.allows(role(r)), Withdrawn: p.WithdrawnOn != nil}
 	m.Facts = []views.Fact{
 		{Label: "Site", Value: p.SiteCode},
@@ -275,7 +299,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	for _, l := range lines {
 		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
 		row := views.TimelineRow{Week: l.Week, Dates: cohort.DateRangeLabel(cohort.DateOf(start), cohort.DateOf(end.AddDate(0, 0, -1))), Readings: l.Readings,
-			Verdict: l.Verdict, Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
+			Verdict: l.Verdict.Label(), Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
 			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
 		if l.WearHours > 0 {
 			row.WearHours = strconv.FormatFloat(l.WearHours, 'f', 1, 64)
@@ -307,7 +331,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 func defaultChartWeek(lines []db.WeekLine) int {
 	best := -1
 	for _, l := range lines {
-		if l.Verdict == "positive" {
+		if l.Verdict == screen.Positive {
 			best = l.Week
 		}
 	}
@@ -352,14 +376,33 @@ func (s *Server) participantInput(r *http.Request) (db.ParticipantInput, error) 
 	return in, f.check(func() error { return in.Check(cohort.DateOf(s.now())) })
 }
 
-func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
+// participantForm shows the enrolment or edit form, with the sites to
+// choose from, at status (200, or a refusal's).
+func (s *Server) participantForm(w http.ResponseWriter, r *http.Request, status int, m views.ParticipantFormModel) error {
 	sites, _, err := s.siteOptions(r.Context())
 	if err != nil {
 		return err
 	}
-	vals := map[string]string{"enrolled_on": s.now().Format("2006-01-02"), "sex": "U"}
-	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
-		Action: "/participants", Heading: "Enrol a participant", Values: vals, Sites: sites, ShowPHI: true}))
+	m.Sites, m.ShowPHI = sites, true
+	s.render(w, r, status, views.ParticipantForm(m))
+	return nil
+}
+
+// enrolForm is the enrolment form's model around the values shown.
+func (s *Server) enrolForm(r *http.Request, vals, errs map[string]string) views.ParticipantFormModel {
+	return views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"), Action: "/participants",
+		Heading: "Enrol a participant", Values: vals, Errors: errs}
+}
+
+// editForm is the edit form's model of p around the values shown.
+func (s *Server) editForm(r *http.Request, p db.Participant, version int, vals, errs map[string]string) views.ParticipantFormModel {
+	return views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"), Action: fmt.Sprintf("/participants/%d/edit", p.ID),
+		Heading: "Edit " + p.StudyID, Values: vals, Errors: errs, Version: version}
+}
+
+func (s *Server) participantNew(w http.ResponseWriter, r *http.Request) error {
+	vals := map[string]string{"enrolled_on": s.now().Format("2006-01-02"), "sex": string(cohort.Unknown)}
+	return s.participantForm(w, r, http.StatusOK, s.enrolForm(r, vals, nil))
 }
 
 // participantClash words a clash of an enrolment with a stored record.
@@ -379,13 +422,7 @@ func (s *Server) participantCreate(w http.ResponseWriter, r *http.Request) error
 		if !ok {
 			return err
 		}
-		sites, _, serr := s.siteOptions(r.Context())
-		if serr != nil {
-			return serr
-		}
-		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Enrol a participant", "participants"),
-			Action: "/participants", Heading: "Enrol a participant", Values: f.Values, Errors: f.Fields, Sites: sites, ShowPHI: true}))
-		return nil
+		return s.participantForm(w, r, f.Status, s.enrolForm(r, f.Values, f.Fields))
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil
@@ -397,10 +434,6 @@ func (s *Server) participantEdit(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	id, err := s.store.Identity(r.Context(), s.actor(r), p.ID, "edit form")
-	if err != nil {
-		return err
-	}
-	sites, _, err := s.siteOptions(r.Context())
 	if err != nil {
 		return err
 	}
@@ -422,8 +455,7 @@ func (s *Server) participantEdit(w http.ResponseWriter, r *http.Request) error {
 	if id.BirthDate != nil {
 		vals["birth_date"] = id.BirthDate.String()
 	}
-	return s.ok(w, r, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
-		Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: vals, Sites: sites, Version: p.Version, ShowPHI: true}))
+	return s.participantForm(w, r, http.StatusOK, s.editForm(r, p, p.Version, vals, nil))
 }
 
 func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error {
@@ -443,13 +475,7 @@ func (s *Server) participantUpdate(w http.ResponseWriter, r *http.Request) error
 		if !ok {
 			return err
 		}
-		sites, _, serr := s.siteOptions(r.Context())
-		if serr != nil {
-			return serr
-		}
-		s.render(w, r, f.Status, views.ParticipantForm(views.ParticipantFormModel{Page: s.page(r, "Edit "+p.StudyID, "participants"),
-			Action: fmt.Sprintf("/participants/%d/edit", p.ID), Heading: "Edit " + p.StudyID, Values: f.Values, Errors: f.Fields, Sites: sites, Version: in.Version, ShowPHI: true}))
-		return nil
+		return s.participantForm(w, r, f.Status, s.editForm(r, p, in.Version, f.Values, f.Fields))
 	}
 	http.Redirect(w, r, fmt.Sprintf("/participants/%d", p.ID), http.StatusSeeOther)
 	return nil

@@ -16,7 +16,8 @@ import (
 // loadDemo fills the app's database with a small fictional study.
 func loadDemo(t *testing.T, a *app, participants int) demoload.Result {
 	t.Helper()
-	res, err := demoload.Load(context.Background(), a.store, demoload.Options{Seed: 7, Participants: participants, PasswordCost: credential.TestParams, Password: testPassword})
+	res, err := demoload.Load(context.Background(), a.store, demoload.Options{Seed: 7, Participants: participants, PasswordCost: credential.TestParams, Password: testPassword,
+		Secret: []byte(testSecret)})
 	if err != nil {
 		t.Fatal(err)
 	}

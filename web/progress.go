@@ -9,7 +9,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
-	"cohortdesk/cohort/stats"
+	"cohortdesk/cohort/enrolment"
 	"cohortdesk/db"
 	"cohortdesk/views"
 
@@ -20,7 +20,7 @@ import (
 )
 
 type progressStore interface {
-	Enrolment(ctx context.Context, asOf cohort.Date) (db.EnrolmentHistory, error)
+	Enrolment(ctx context.Context, asOf cohort.Date) (enrolment.History, error)
 	DataSufficiency(ctx context.Context) ([]db.SufficiencyWeek, error)
 	SilentParticipants(ctx context.Context, days int) ([]db.SilentParticipant, error)
 	Cascade(ctx context.Context, f cascade.Filter) (cascade.Cascade, error)
@@ -39,82 +39,47 @@ const defaultWindow = 8
 // value is missing or out of range (the page's own form keeps it in range).
 func windowOf(q url.Values) int {
 	w, err := strconv.Atoi(q.Get("window"))
-	if err != nil || w < 2 || w > db.TrailingWeeks {
+	if err != nil || w < 2 || w > enrolment.TrailingWeeks {
 		return defaultWindow
 	}
 	return w
 }
 
-// enrolFig is one site's (or the study's) enrolment against target with its
-// projection: the figures behind a row of the enrolment table on the
-// progress page, the weekly report and its CSV.
+// enrolFig is one row of the enrolment table on the progress page, the
+// weekly report and its CSV: a site's (or the study's) figures
+// (enrolment.History.Project) with the words that name it.
 type enrolFig struct {
-	label     string
-	key       string // site code, or "all"
-	target    int
-	enrolled  int
-	withdrawn int
-	proj      stats.Projection
-	projected bool   // proj holds a projection
-	why       string // why there is none
-}
-
-// enrolmentFigures projects the date the target is reached from the
-// enrolments in the last window seven-day periods up to the history's day
-// (fewer when the study is younger than that).
-func enrolmentFigures(label, key string, enrolled, withdrawn, target int, trailing []int, window int, h db.EnrolmentHistory) enrolFig {
-	f := enrolFig{label: label, key: key, target: target, enrolled: enrolled, withdrawn: withdrawn}
-	window = min(window, h.Periods, len(trailing))
-	switch {
-	case target == 0:
-		f.why = "no target set"
-		return f
-	case window == 0:
-		f.why = "no enrolment yet"
-		return f
-	}
-	p, err := stats.ProjectEnrolment(h.Today, enrolled, target, trailing[len(trailing)-window:], 0.95)
-	if err != nil {
-		f.why = "cannot project: " + err.Error()
-		return f
-	}
-	f.proj, f.projected = p, true
-	return f
+	label string
+	key   string // site code, or "all"
+	enrolment.Figures
 }
 
 // studyFigures is every site's row and the total row.
-func studyFigures(h db.EnrolmentHistory, window int) ([]enrolFig, enrolFig) {
-	var rows []enrolFig
-	trailing := make([]int, db.TrailingWeeks)
-	var enrolled, withdrawn, target int
-	for _, se := range h.Sites {
-		rows = append(rows, enrolmentFigures(se.Code+" · "+se.Name, se.Code, se.Enrolled, se.Withdrawn, se.Target, se.Trailing, window, h))
-		for i, c := range se.Trailing {
-			trailing[i] += c
-		}
-		enrolled += se.Enrolled
-		withdrawn += se.Withdrawn
-		target += se.Target
+func studyFigures(h enrolment.History, window int) ([]enrolFig, enrolFig) {
+	sites, total := h.Project(window)
+	rows := make([]enrolFig, len(sites))
+	for i, f := range sites {
+		rows[i] = enrolFig{label: f.Site.Code + " · " + f.Site.Name, key: f.Site.Code, Figures: f}
 	}
-	return rows, enrolmentFigures("All sites", "all", enrolled, withdrawn, target, trailing, window, h)
+	return rows, enrolFig{label: "All sites", key: "all", Figures: total}
 }
 
 // percent is enrolled as a share of the target, "" without one.
 func (f enrolFig) percent() string {
-	if f.target <= 0 {
+	if f.Site.Target <= 0 {
 		return ""
 	}
-	return fmt.Sprintf("%.0f%%", 100*float64(f.enrolled)/float64(f.target))
+	return fmt.Sprintf("%.0f%%", 100*float64(f.Enrolled)/float64(f.Site.Target))
 }
 
 // dates words the projection: the expected date and the range of the
 // interval's scenarios, each day written by day (cohort.Date.Label on
 // pages, cohort.Date.String in files).
 func (f enrolFig) dates(day func(cohort.Date) string) (projection, earliest, latest string) {
-	if !f.projected {
-		return f.why, "", ""
+	if !f.Projected {
+		return f.Why, "", ""
 	}
-	p := f.proj
+	p := f.Projection
 	switch {
 	case p.Met:
 		return "target reached", "", ""
@@ -134,11 +99,11 @@ func (f enrolFig) dates(day func(cohort.Date) string) (projection, earliest, lat
 }
 
 func (f enrolFig) row() views.EnrolmentRow {
-	row := views.EnrolmentRow{Key: f.key, Label: f.label, Target: f.target, Enrolled: f.enrolled, Withdrawn: f.withdrawn, Percent: f.percent()}
+	row := views.EnrolmentRow{Key: f.key, Label: f.label, Target: f.Site.Target, Enrolled: f.Enrolled, Withdrawn: f.Withdrawn, Percent: f.percent()}
 	var earliest, latest string
 	row.Projection, earliest, latest = f.dates(cohort.Date.Label)
-	if f.projected {
-		p := f.proj
+	if f.Projected {
+		p := f.Projection
 		row.Rate = fmt.Sprintf("%.1f a week (95%% CI %.1f–%.1f) over %d weeks", p.Expected.RatePerWeek, p.Pessimistic.RatePerWeek, p.Optimistic.RatePerWeek, p.Window)
 		if !p.Met && p.Expected.Reachable && earliest != "" {
 			row.Range = earliest + " to " + latest
@@ -152,7 +117,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	// The page's four reads are independent; made side by side, the page
 	// takes about as long as the slowest of them instead of their sum.
 	var (
-		h       db.EnrolmentHistory
+		h       enrolment.History
 		suff    []db.SufficiencyWeek
 		silent  []db.SilentParticipant
 		section templ.Component
@@ -177,7 +142,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 			total[i] += c
 		}
 	}
-	tTarget := all.target
+	tTarget := all.Site.Target
 
 	// Cumulative enrolment by week, one line per site plus the total, and the
 	// total target as a dashed line.

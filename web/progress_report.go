@@ -12,6 +12,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
+	"cohortdesk/cohort/enrolment"
 	"cohortdesk/db"
 	"cohortdesk/views"
 
@@ -26,7 +27,7 @@ type reportFigures struct {
 	cq        cascadeQuery
 	window    int
 	generated time.Time
-	hist      db.EnrolmentHistory
+	hist      enrolment.History
 	sites     []enrolFig
 	total     enrolFig
 	weeks     []db.SufficiencyWeek // the calendar weeks that overlap the period
@@ -255,15 +256,15 @@ func (rf reportFigures) reportTables() []*csvTable {
 	for _, f := range append(append([]enrolFig{}, rf.sites...), rf.total) {
 		projected, earliest, latest := f.dates(cohort.Date.String)
 		window, count, rate, lo, hi := "", "", "", "", ""
-		if f.projected {
-			window, count = strconv.Itoa(f.proj.Window), strconv.Itoa(f.proj.Count)
-			rate, lo, hi = num(f.proj.Expected.RatePerWeek), num(f.proj.Pessimistic.RatePerWeek), num(f.proj.Optimistic.RatePerWeek)
+		if f.Projected {
+			window, count = strconv.Itoa(f.Projection.Window), strconv.Itoa(f.Projection.Count)
+			rate, lo, hi = num(f.Projection.Expected.RatePerWeek), num(f.Projection.Pessimistic.RatePerWeek), num(f.Projection.Optimistic.RatePerWeek)
 		}
 		pctOf := ""
-		if f.target > 0 {
-			pctOf = num(float64(f.enrolled) / float64(f.target))
+		if f.Site.Target > 0 {
+			pctOf = num(float64(f.Enrolled) / float64(f.Site.Target))
 		}
-		enrol.add(csvSafe(f.key), csvSafe(names[f.key]), strconv.Itoa(f.target), strconv.Itoa(f.enrolled), strconv.Itoa(f.withdrawn), pctOf,
+		enrol.add(csvSafe(f.key), csvSafe(names[f.key]), strconv.Itoa(f.Site.Target), strconv.Itoa(f.Enrolled), strconv.Itoa(f.Withdrawn), pctOf,
 			window, count, rate, lo, hi, projected, earliest, latest)
 	}
 
@@ -319,8 +320,8 @@ func (rf reportFigures) reportTables() []*csvTable {
 	put("protocol", csvSafe(rf.cascade.Protocol.Label()))
 	put("enrolment_as_of", rf.hist.Today.String())
 	put("enrolled_in_period", strconv.Itoa(rf.cascade.Box("enrolled").Count()))
-	put("enrolled_total", strconv.Itoa(rf.total.enrolled))
-	put("target_total", strconv.Itoa(rf.total.target))
+	put("enrolled_total", strconv.Itoa(rf.total.Enrolled))
+	put("target_total", strconv.Itoa(rf.total.Site.Target))
 	due, enough := rf.weeksTotal()
 	put("participant_weeks_due", strconv.Itoa(due))
 	put("participant_weeks_enough_wear", strconv.Itoa(enough))

@@ -14,24 +14,6 @@ import (
 	"cohortdesk/cohort/screen"
 )
 
-// paramLeaf is one editable value of a protocol, named by its JSON path, the
-// same path Protocol.Validate and Protocol.Diff use, so a message lands beside
-// its own input.
-type paramLeaf struct {
-	Path  string
-	Kind  string // "int", "float" or "bool"
-	Value string
-}
-
-// protocolLeaves lists every value of p in stored field order, by walking the
-// struct through its JSON tags: fields added to the protocol later appear in
-// the form without edits here.
-func protocolLeaves(p screen.Protocol) []paramLeaf {
-	var out []paramLeaf
-	walkLeaves(reflect.ValueOf(p), "", &out)
-	return out
-}
-
 func jsonName(f reflect.StructField) (name string, inline, skip bool) {
 	tag := f.Tag.Get("json")
 	if tag == "-" || !f.IsExported() {
@@ -45,40 +27,6 @@ func jsonName(f reflect.StructField) (name string, inline, skip bool) {
 		name = f.Name
 	}
 	return name, false, false
-}
-
-func join(prefix, name string) string {
-	if prefix == "" {
-		return name
-	}
-	return prefix + "." + name
-}
-
-func walkLeaves(v reflect.Value, prefix string, out *[]paramLeaf) {
-	switch v.Kind() {
-	case reflect.Struct:
-		t := v.Type()
-		for i := range t.NumField() {
-			name, inline, skip := jsonName(t.Field(i))
-			switch {
-			case skip:
-			case inline:
-				walkLeaves(v.Field(i), prefix, out)
-			default:
-				walkLeaves(v.Field(i), join(prefix, name), out)
-			}
-		}
-	case reflect.Slice, reflect.Array:
-		for i := range v.Len() {
-			walkLeaves(v.Index(i), prefix+"["+strconv.Itoa(i)+"]", out)
-		}
-	case reflect.Bool:
-		*out = append(*out, paramLeaf{Path: prefix, Kind: "bool", Value: strconv.FormatBool(v.Bool())})
-	case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64:
-		*out = append(*out, paramLeaf{Path: prefix, Kind: "int", Value: strconv.FormatInt(v.Int(), 10)})
-	case reflect.Float32, reflect.Float64:
-		*out = append(*out, paramLeaf{Path: prefix, Kind: "float", Value: strconv.FormatFloat(v.Float(), 'g', -1, 64)})
-	}
 }
 
 // setLeaf stores the text of one form input into the protocol at path; the
@@ -174,7 +122,7 @@ func protocolFromForm(base screen.Protocol, get func(string) (string, bool)) (sc
 	p := cloneProtocol(base)
 	vals := map[string]string{}
 	errs := map[string]string{}
-	for _, l := range protocolLeaves(base) {
+	for _, l := range base.Params() {
 		text, ok := get("p." + l.Path)
 		if !ok {
 			vals[l.Path] = l.Value
@@ -241,6 +189,3 @@ func protocolJSON(p screen.Protocol) string {
 	}
 	return out.String()
 }
-
-// paramLabel words a parameter path (screen.ParamLabel).
-func paramLabel(path string) string { return screen.ParamLabel(path) }

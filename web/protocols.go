@@ -80,12 +80,12 @@ func (s *Server) protocolShow(w http.ResponseWriter, r *http.Request) error {
 		labels[base.ID] = base.Label()
 		m.BasedOn, m.BasedOnHref = base.Label(), protocolHref(base.ID)
 		for _, c := range base.Params.Diff(p.Params) {
-			m.Changes = append(m.Changes, views.ChangeRow{Field: c.Field, Label: paramLabel(c.Field), Old: c.Old, New: c.New})
+			m.Changes = append(m.Changes, views.ChangeRow{Field: c.Field, Label: screen.ParamLabel(c.Field), Old: c.Old, New: c.New})
 		}
 	}
 	m.Version = protocolRow(p, labels, s.studyZone(r.Context()))
-	for _, l := range protocolLeaves(p.Params) {
-		m.Params = append(m.Params, views.ParamRow{Path: l.Path, Label: paramLabel(l.Path), Value: l.Value})
+	for _, l := range p.Params.Params() {
+		m.Params = append(m.Params, views.ParamRow{Path: l.Path, Label: screen.ParamLabel(l.Path), Value: l.Value})
 	}
 	switch r.URL.Query().Get("flash") {
 	case "created":
@@ -103,7 +103,7 @@ func (s *Server) protocolShow(w http.ResponseWriter, r *http.Request) error {
 func protocolGroups(p screen.Protocol, vals map[string]string) []views.ParamGroup {
 	var groups []views.ParamGroup
 	index := map[string]int{}
-	for _, l := range protocolLeaves(p) {
+	for _, l := range p.Params() {
 		key, legend := "general", "General"
 		switch {
 		case strings.HasPrefix(l.Path, "windows["):
@@ -127,7 +127,7 @@ func protocolGroups(p screen.Protocol, vals map[string]string) []views.ParamGrou
 				v = sv
 			}
 		}
-		groups[gi].Fields = append(groups[gi].Fields, views.ParamField{Path: l.Path, Label: paramLabel(l.Path), Kind: l.Kind, Value: v})
+		groups[gi].Fields = append(groups[gi].Fields, views.ParamField{Path: l.Path, Label: screen.ParamLabel(l.Path), Kind: l.Kind, Value: v})
 	}
 	return groups
 }
@@ -146,7 +146,7 @@ func (s *Server) protocolFormPage(w http.ResponseWriter, r *http.Request, status
 		BaseHref: protocolHref(base.ID), Note: note, JSON: js, Errors: errs, Groups: protocolGroups(shown, vals)}
 	// Messages for fields the field form has no input for are listed on top.
 	inputs := map[string]bool{"note": true, "json-note": true, "params": true, "form": true}
-	for _, l := range protocolLeaves(shown) {
+	for _, l := range shown.Params() {
 		inputs[l.Path] = true
 	}
 	for f, msg := range errs {
@@ -224,7 +224,7 @@ func (s *Server) protocolFailure(w http.ResponseWriter, r *http.Request, base db
 	}
 	if vals == nil {
 		vals = map[string]string{}
-		for _, l := range protocolLeaves(shown) {
+		for _, l := range shown.Params() {
 			vals[l.Path] = l.Value
 		}
 	}

@@ -10,6 +10,7 @@ import (
 	"strings"
 	"time"
 
+	"cohortdesk/assets"
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/ecg"
@@ -30,7 +31,9 @@ type recordingStore interface {
 	CaseRecordings(ctx context.Context, caseID int64) ([]db.Recording, error)
 	RecordingWaveform(ctx context.Context, id int64) (ecg.Waveform, error)
 	AddOverRead(ctx context.Context, a cohort.Actor, recordingID int64, in db.OverReadInput) (db.Recording, error)
+	ChooseRecordingLead(ctx context.Context, a cohort.Actor, recordingID int64, lead int) (db.Recording, error)
 	Confirmations(ctx context.Context, limit int) (db.Confirmations, error)
+	overReadTools
 	Agreement(ctx context.Context, f cascade.Filter) (cascade.Agreement, error)
 }
 
@@ -47,7 +50,7 @@ func verdictView(r db.Recording) (string, components.Tone) {
 	case v.Status == overread.Disagreed:
 		return "readers disagree", components.Alarm
 	case r.TooShort:
-		return v.Rhythm.Label() + " (under 30 s, not diagnostic)", components.Neutral
+		return v.Rhythm.Label() + " (under 30 s usable, not diagnostic)", components.Neutral
 	case v.Rhythm == overread.AF:
 		return v.Rhythm.Label(), components.Alarm
 	case v.Rhythm == overread.Uninterpretable:
@@ -141,19 +144,27 @@ func (s *Server) recordingInput(r *http.Request, loc *time.Location) (ecg.Record
 		}
 		in.CSVRateHz = hz
 	}
-	if fhs := r.MultipartForm.File["waveform"]; len(fhs) > 0 && fhs[0].Size > 0 {
-		// A file over ecg.MaxFileBytes (up to the 1 MiB of slack the body
-		// limit allows) is refused by intake with the other problems.
-		fh := fhs[0]
+	// One file, or a WFDB record's header and signal files together. A file
+	// over ecg.MaxFileBytes (up to the 1 MiB of slack the body limit allows)
+	// is refused by intake with the other problems.
+	for _, fh := range r.MultipartForm.File["waveform"] {
+		if fh.Size == 0 {
+			continue
+		}
 		file, err := fh.Open()
 		if err != nil {
 			return in, err
 		}
-		defer file.Close()
-		if in.File, err = io.ReadAll(file); err != nil {
+		data, err := io.ReadAll(file)
+		file.Close()
+		if err != nil {
 			return in, err
 		}
-		in.FileName = fh.Filename
+		if in.File == nil {
+			in.File, in.FileName = data, fh.Filename
+			continue
+		}
+		in.More = append(in.More, ecg.File{Name: fh.Filename, Data: data})
 	}
 	return in, ve.Err()
 }
@@ -217,8 +228,12 @@ func (s *Server) recordingShow(w http.ResponseWriter, r *http.Request) error {
 }
 
 var recordingDone = map[string]string{
-	"added": "Recording stored.",
-	"read":  "Reading entered.",
+	"added":      "Recording stored.",
+	"read":       "Reading entered.",
+	"read-next":  "Reading entered. This is the next recording waiting for an over-read.",
+	"revised":    "Correction saved. The earlier reading is kept below.",
+	"not-needed": "Marked as needing no over-read: the recording has left the over-read list.",
+	"lead":       "Lead changed: the strip, the beats and the hint are now those of this lead.",
 }
 
 func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.Recording, status int, errs map[string]string, msg string) error {
@@ -239,7 +254,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		m.Flash = recordingDone[r.URL.Query().Get("done")]
 	}
 	duration := seconds(rec.DurationS)
-	if rec.TooShort {
+	if rec.TooShort && rec.UsableS >= rec.DurationS {
 		duration += " (too short for a diagnostic read)"
 	}
 	m.Facts = []views.FactView{
@@ -254,8 +269,19 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	if rec.HasWaveform() {
 		m.Facts = append(m.Facts,
 			views.FactView{Label: "Waveform", Value: strings.ToUpper(rec.Format) + ", " + strconv.FormatFloat(rec.RateHz, 'f', -1, 64) + " Hz", Testid: "recording-format"},
-			views.FactView{Label: "Lead", Value: rec.LeadLabel},
-			views.FactView{Label: "Beats detected", Value: fmt.Sprintf("%d (mean heart rate %.0f bpm)", rec.Hint.Beats, rec.Hint.MeanHR), Testid: "recording-beats"})
+			views.FactView{Label: "Lead", Value: rec.LeadLabel, Testid: "recording-lead"})
+		if q := rec.Hint.Quality; q != nil {
+			usable := q.Text(rec.RateHz)
+			if rec.TooShort {
+				usable += ": under 30 s usable, too short for a diagnostic read"
+			}
+			m.Facts = append(m.Facts, views.FactView{Label: "Usable signal", Value: usable, Testid: "recording-usable"})
+		}
+		beats := fmt.Sprintf("%d (mean heart rate %.0f bpm)", rec.Hint.Beats, rec.Hint.MeanHR)
+		if n := len(rec.Hint.Premature); n > 0 {
+			beats += fmt.Sprintf(", %d premature (marked P on the strip)", n)
+		}
+		m.Facts = append(m.Facts, views.FactView{Label: "Beats detected", Value: beats, Testid: "recording-beats"})
 		if rec.FileName != "" {
 			m.Facts = append(m.Facts, views.FactView{Label: "File", Value: rec.FileName})
 		}
@@ -271,8 +297,18 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		if err != nil {
 			return err
 		}
-		caption := fmt.Sprintf("25 mm/s · 10 mm/mV · %s · %d beats detected (ticks above the trace)", seconds(rec.DurationS), len(rec.Beats))
-		m.HasStrip, m.Strip = true, stripView(fmt.Sprintf("rec%d", rec.ID), ecg.Layout(wf, rec.Beats, ecg.StripOptions{}), caption)
+		caption := fmt.Sprintf("25 mm/s · 10 mm/mV · %s · lead %s · %d beats detected (ticks above the trace)", seconds(rec.DurationS), rec.LeadLabel, len(rec.Beats))
+		if n := len(rec.Hint.Premature); n > 0 {
+			caption += fmt.Sprintf(", %d premature (P)", n)
+		}
+		if q := rec.Hint.Quality; q != nil && len(q.Stretches) > 0 {
+			caption += " · hatched: left out of beat detection and the hint (" + q.Text(rec.RateHz) + ")"
+		}
+		l := ecg.Mark(ecg.Layout(wf, rec.Beats, ecg.StripOptions{}), wf.RateHz, rec.Hint.Quality, rec.Beats, rec.Hint.Premature)
+		m.HasStrip, m.Strip = true, stripView(fmt.Sprintf("rec%d", rec.ID), l, caption)
+		m.Signals, m.LeadForm, m.LeadNote = signalsView(rec, len(rec.Readings) > 0, caseWork.allows(role(r)))
+		m.Strip.Tools = true
+		m.Page.Scripts = append(m.Page.Scripts, assets.URL("js/strip.js"))
 	}
 	m.Readings = readingViews(rec)
 	u, _ := userFrom(ctx)
@@ -285,8 +321,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	case next == overread.Second && rec.Readings[0].ReaderID == u.ID:
 		m.FormNote = "You gave the first reading. A second reading, if the study wants one, comes from another investigator."
 	default:
-		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, Confidence: string(overread.Certain),
-			MaxComment: overread.MaxCommentChars}
+		f := &views.OverReadFormView{Role: string(next), Today: now.Format("2006-01-02"), Reader: u.Name, MaxComment: overread.MaxCommentChars}
 		if r.PostForm.Get("role") == string(next) {
 			// A refused entry: show it again.
 			f.Rhythm, f.Comment = r.PostForm.Get("rhythm"), r.PostForm.Get("comment")
@@ -312,6 +347,9 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 			f.Confidences = append(f.Confidences, views.Option{Value: string(c), Label: c.Label()})
 		}
 		m.Form = f
+	}
+	if err := s.overReadTools(r, rec, &m); err != nil {
+		return err
 	}
 	s.render(w, r, status, views.RecordingPage(m))
 	return nil
@@ -385,16 +423,88 @@ func (s *Server) recordingOverRead(w http.ResponseWriter, r *http.Request) error
 		_, err = s.store.AddOverRead(r.Context(), s.actor(r), id, in)
 	}
 	if err == nil {
-		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=read", id), http.StatusSeeOther)
-		return nil
+		return s.afterReading(w, r, id)
 	}
+	return s.refuseOnRecording(w, r, id, err, "The reading was not entered: ", nil)
+}
+
+// refuseOnRecording shows the recording page again with why a form on it
+// was refused (the fields renamed to the form's where they differ); an
+// error that is no refusal is returned as it is.
+func (s *Server) refuseOnRecording(w http.ResponseWriter, r *http.Request, id int64, err error, lead string, rename map[string]string) error {
 	f, ok := refused(r, err, nil)
 	if !ok {
 		return err
 	}
+	f = f.renamed(rename)
 	rec, lerr := s.store.Recording(r.Context(), id)
 	if lerr != nil {
 		return lerr
 	}
-	return s.renderRecording(w, r, rec, f.Status, f.Fields, "The reading was not entered: "+f.Message)
+	return s.renderRecording(w, r, rec, f.Status, f.Fields, lead+f.Message)
+}
+
+// signalsView lists the signals of a recording's file and, when it held
+// several ECG leads, offers the choice of lead to those who may make it,
+// while no reading has been made on the lead shown.
+func signalsView(rec db.Recording, read, mayChoose bool) ([]views.SignalView, *views.LeadFormView, string) {
+	shown := 0
+	for _, l := range rec.Leads {
+		if l.Index == rec.Lead {
+			shown = l.Signal
+		}
+	}
+	var sigs []views.SignalView
+	for _, s := range rec.Signals {
+		if shown == 0 && (s.Kind == ecg.KindECG || s.Kind == ecg.KindUnlabelled) {
+			shown = s.Number
+		}
+		unit := s.Unit
+		if unit == "" {
+			unit = "no unit"
+		}
+		sigs = append(sigs, views.SignalView{Number: s.Number, Label: s.Label, Unit: unit,
+			Rate: strconv.FormatFloat(s.RateHz, 'f', -1, 64) + " Hz", Kind: s.Kind.Label(), Shown: s.Number == shown})
+	}
+	if len(rec.Leads) < 2 {
+		return sigs, nil, ""
+	}
+	if read {
+		return sigs, nil, "The lead can no longer change: a reading was made on lead " + rec.LeadLabel + "."
+	}
+	if !mayChoose {
+		return sigs, nil, ""
+	}
+	f := &views.LeadFormView{Action: fmt.Sprintf("/recordings/%d/lead", rec.ID)}
+	for _, l := range rec.Leads {
+		label := fmt.Sprintf("%s: %d beats, %s usable", l.Label, l.Beats, seconds(l.UsableS))
+		f.Leads = append(f.Leads, views.Option{Value: strconv.Itoa(l.Index), Label: label})
+		if l.Index == rec.Lead {
+			f.Current = strconv.Itoa(l.Index)
+		}
+	}
+	return sigs, f, ""
+}
+
+// recordingLead makes another ECG lead of the recording's file the one
+// shown and scored; the store keeps the choice and audits it.
+func (s *Server) recordingLead(w http.ResponseWriter, r *http.Request) error {
+	id, err := idParam(r)
+	if err != nil {
+		return err
+	}
+	if err := r.ParseForm(); err != nil {
+		return err
+	}
+	lead, perr := strconv.Atoi(strings.TrimSpace(r.PostForm.Get("lead")))
+	if perr != nil || lead < 0 {
+		err = &cohort.ValidationError{Fields: map[string]string{"lead": "choose one of the recording's leads"}}
+	} else {
+		_, err = s.store.ChooseRecordingLead(r.Context(), s.actor(r), id, lead)
+	}
+	if err == nil {
+		http.Redirect(w, r, fmt.Sprintf("/recordings/%d?done=lead", id), http.StatusSeeOther)
+		return nil
+	}
+	return s.refuseOnRecording(w, r, id, err, "The lead was not changed: ", nil)
 }

@@ -14,6 +14,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
+	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
@@ -27,8 +28,9 @@ type referralStore interface {
 	referralissue.Store // the source of a summary and its record
 	Referral(ctx context.Context, id int64) (db.Referral, error)
 	Referrals(ctx context.Context, limit int) ([]db.Referral, error)
+	ReferralCounts(ctx context.Context) (issued, signed int, err error)
 	ReadyToRefer(ctx context.Context) ([]db.ReadyCase, error)
-	SignOffReferral(ctx context.Context, a cohort.Actor, id int64) (db.Referral, error)
+	referralissue.Signer // the sign-off
 	ParticipantByStudyID(ctx context.Context, studyID string) (db.Participant, error)
 	RecordExport(ctx context.Context, a cohort.Actor, e db.Export) (db.Export, error)
 }
@@ -111,20 +113,20 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	// An issued summary is a draft until an investigator signs it off, so
+	// issuing leads to its record, where the sign-off is (for investigators)
+	// and from where it prints. It is recorded as shown in the print view
+	// unless a PDF was asked for.
 	format := r.PostForm.Get("format")
-	if format != "html" {
-		format = "pdf"
+	if format != "pdf" {
+		format = "html"
 	}
 	paper := paperOf(r.PostForm.Get("paper"), s.studyPaper(r.Context()))
 	ref, _, err := s.issue(r.Context(), s.actor(r), pid, caseID, format, paper)
 	if err != nil {
 		return err
 	}
-	target := fmt.Sprintf("/referrals/%d", ref.ID)
-	if format == "pdf" {
-		target += "/pdf"
-	}
-	http.Redirect(w, r, target, http.StatusSeeOther)
+	http.Redirect(w, r, fmt.Sprintf("/referrals/%d?done=issued", ref.ID), http.StatusSeeOther)
 	return nil
 }
 
@@ -138,8 +140,10 @@ func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, f
 	return referralissue.Record(ctx, s.store, a, d, format, paper)
 }
 
-// recorded reads an issued summary and its content back, with whether the
-// content still digests to the recorded value.
+// recorded reads an issued summary back as it now stands (the signed
+// content once signed off, else the content as issued), with whether that
+// content still digests to its recorded value, and the digest its PDF must
+// have.
 func (s *Server) recorded(r *http.Request) (db.Referral, referral.Summary, bool, error) {
 	id, err := idParam(r)
 	if err != nil {
@@ -149,12 +153,31 @@ func (s *Server) recorded(r *http.Request) (db.Referral, referral.Summary, bool,
 	if err != nil {
 		return ref, referral.Summary{}, false, err
 	}
-	sum, err := referral.Decode(ref.Content)
+	content, digest := currentContent(ref)
+	sum, err := referral.Decode(content)
 	if err != nil {
 		return ref, sum, false, err
 	}
 	d, err := referral.Digest(sum)
-	return ref, sum, err == nil && d == ref.ContentSHA256, err
+	return ref, sum, err == nil && d == digest, err
+}
+
+// currentContent is a record's content as it now stands and its recorded
+// digest: the signed content once signed off (summaries signed off before
+// drafts existed have none, and keep their content as issued).
+func currentContent(ref db.Referral) ([]byte, string) {
+	if len(ref.SignedContent) > 0 {
+		return ref.SignedContent, ref.SignedContentSHA256
+	}
+	return ref.Content, ref.ContentSHA256
+}
+
+// currentPDFDigest is the digest the record's PDF must have.
+func currentPDFDigest(ref db.Referral) string {
+	if ref.SignedPDFSHA256 != "" {
+		return ref.SignedPDFSHA256
+	}
+	return ref.PDFSHA256
 }
 
 // referralShow shows an issued summary drawn from its recorded content.
@@ -175,11 +198,16 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	m.Page.Title = "Referral summary " + sum.ReferralCode
 	m.PDFHref = fmt.Sprintf("/referrals/%d/pdf?paper=%s", ref.ID, paper)
 	m.Errors, m.Message = errs, msg
-	if msg == "" && r.URL.Query().Get("done") == "signoff" {
-		m.Page.Flash = "Signed off; the case is now referred."
+	if msg == "" {
+		m.Page.Flash = referralDone[r.URL.Query().Get("done")]
 	}
+	_, digest := currentContent(ref)
 	rec := &views.ReferralRecordView{ID: ref.ID, IssuedBy: ref.IssuedBy, IssuedAt: when(ref.IssuedAt, s.studyZone(r.Context())),
-		Format: ref.Format, Paper: paperLabel(ref.Paper), Digest: ref.ContentSHA256, DigestOK: ok, PDFDigest: ref.PDFSHA256}
+		Format: ref.Format, Paper: paperLabel(ref.Paper), Digest: digest, DigestOK: ok, PDFDigest: currentPDFDigest(ref),
+		Draft: sum.Status() == referral.Drafted}
+	if len(ref.SignedContent) > 0 {
+		rec.DraftDigest, rec.DraftPDFDigest = ref.ContentSHA256, ref.PDFSHA256
+	}
 	if ref.CaseID != 0 {
 		rec.CaseHref = fmt.Sprintf("/cases/%d", ref.CaseID)
 		m.CaseHref = rec.CaseHref
@@ -187,7 +215,11 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	if !ref.SignedOffAt.IsZero() {
 		rec.SignedOff = "by " + ref.SignedOffBy + " on " + when(ref.SignedOffAt, s.studyZone(r.Context()))
 	}
-	if clinical.allows(role(r)) && rec.SignedOff == "" {
+	signs := followup.StepSignOff.By(role(r))
+	if !signs && rec.SignedOff == "" && ref.CaseID != 0 {
+		rec.SignOffNote = "An investigator signs this summary off on this page; it is not sent before."
+	}
+	if signs && rec.SignedOff == "" {
 		switch {
 		case ref.CaseID == 0:
 			rec.SignOffNote = "Made on request without a case: there is no case to refer."
@@ -202,6 +234,12 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	m.Record = rec
 	s.render(w, r, status, views.Referral(m))
 	return nil
+}
+
+// referralDone words what the last step on a summary did.
+var referralDone = map[string]string{
+	"issued":  "Summary issued as a draft. It is sent once an investigator has signed it off.",
+	"signoff": "Signed off; the case is now referred. The summary now names you as its signer.",
 }
 
 func paperLabel(p string) string {
@@ -221,6 +259,10 @@ func (s *Server) referralPDFFile(w http.ResponseWriter, r *http.Request) error {
 	if !ok {
 		return &cohort.PublicError{Message: "The recorded content of this summary no longer matches its digest; it is not sent.", Kind: cohort.ErrConflict}
 	}
+	name := "referral-" + sum.ReferralCode
+	if sum.Draft {
+		name += "-draft"
+	}
 	paper := ref.Paper
 	if p := r.URL.Query().Get("paper"); p != "" {
 		paper = paperOf(p, ref.Paper)
@@ -230,7 +272,7 @@ func (s *Server) referralPDFFile(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	w.Header().Set("Content-Type", "application/pdf")
-	w.Header().Set("Content-Disposition", fmt.Sprintf(`inline; filename="referral-%s.pdf"`, sum.ReferralCode))
+	w.Header().Set("Content-Disposition", fmt.Sprintf(`inline; filename="%s.pdf"`, name))
 	w.Header().Set("Cache-Control", "no-store")
 	w.Header().Set("X-Content-SHA256", sha256Hex(pdf))
 	_, err = w.Write(pdf)
@@ -254,7 +296,7 @@ func (s *Server) referralSignOff(w http.ResponseWriter, r *http.Request) error {
 		msg := "confirm that you have reviewed the summary"
 		return s.renderRecorded(w, r, http.StatusUnprocessableEntity, map[string]string{"reviewed": msg}, "Please "+msg+".")
 	}
-	if _, err := s.store.SignOffReferral(r.Context(), s.actor(r), id); err != nil {
+	if _, err := referralissue.SignOff(r.Context(), s.store, s.actor(r), id); err != nil {
 		f, ok := refused(r, err, nil)
 		if !ok {
 			return err
@@ -397,7 +439,10 @@ func (s *Server) referralModel(r *http.Request, sum referral.Summary, paper, pap
 
 // referralDoc turns a summary into the print view's model.
 func referralDoc(sum referral.Summary) views.ReferralDocView {
-	d := views.ReferralDocView{Code: sum.ReferralCode, RiskNote: sum.Risk.Note, Contact: orDash(sum.ContactRoute)}
+	d := views.ReferralDocView{Code: sum.ReferralCode, RiskNote: sum.Risk.Note, Contact: orDash(sum.ContactRoute), Draft: sum.Draft, DraftMark: referral.DraftMark}
+	if sum.SignOff != nil {
+		d.SignedOff = sum.SignOff.Text() + "."
+	}
 	d.Facts = []views.Fact{{Label: "Age band", Value: sum.AgeBand}, {Label: "Sex", Value: sum.Sex},
 		{Label: "Screening protocol", Value: orDash(sum.Protocol)}, {Label: "Issued on", Value: "study day " + strconv.Itoa(sum.IssuedStudyDay)}}
 	if o := sum.OverRead; o != nil {

@@ -22,6 +22,7 @@ import (
 	"cohortdesk/cohort/demo"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/referral"
 	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 )
@@ -194,7 +195,7 @@ func unzip(t *testing.T, b []byte) map[string][]byte {
 	return out
 }
 
-var referralLocRE = regexp.MustCompile(`^/referrals/(\d+)(/pdf)?$`)
+var referralLocRE = regexp.MustCompile(`^/referrals/(\d+)\?done=issued$`)
 
 // issueVia issues a summary through the form and returns its id.
 func issueVia(t *testing.T, a *app, c *http.Client, pid, caseID int64, format, paper string) string {
@@ -500,10 +501,12 @@ func TestReferralSignOffAndReproduction(t *testing.T) {
 		t.Error("a referred case is still listed as ready")
 	}
 
-	// Reproduction: the PDF drawn from the recorded content is the PDF whose
-	// digest was recorded at issue.
-	var pdfDigest string
-	a.store.Pool().QueryRow(context.Background(), `SELECT pdf_sha256 FROM referrals WHERE id = $1`, id).Scan(&pdfDigest)
+	// Reproduction: the PDF drawn from the recorded signed content is the
+	// PDF whose digest was recorded at the sign-off; the draft's content
+	// still draws the PDF whose digest was recorded at issue.
+	var pdfDigest, draftDigest string
+	var draft []byte
+	a.store.Pool().QueryRow(context.Background(), `SELECT signed_pdf_sha256, pdf_sha256, content FROM referrals WHERE id = $1`, id).Scan(&pdfDigest, &draftDigest, &draft)
 	res, err := coord.Get(a.ts.URL + "/referrals/" + id + "/pdf")
 	if err != nil {
 		t.Fatal(err)
@@ -511,7 +514,14 @@ func TestReferralSignOffAndReproduction(t *testing.T) {
 	if got := sha256Hex(body(t, res)); got != pdfDigest || res.Header.Get("X-Content-SHA256") != pdfDigest {
 		t.Errorf("re-drawn PDF digest %s, recorded %s", got, pdfDigest)
 	}
-	a.exec(`UPDATE referrals SET content = jsonb_set(content, '{age_band}', '"50-54"') WHERE id = $1`, id)
+	sum, err := referral.Decode(draft)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if pdf, err := referralPDF(sum, paperA4); err != nil || sha256Hex(pdf) != draftDigest {
+		t.Errorf("the draft's PDF digest %s, recorded at issue %s (%v)", sha256Hex(pdf), draftDigest, err)
+	}
+	a.exec(`UPDATE referrals SET signed_content = jsonb_set(signed_content, '{age_band}', '"50-54"') WHERE id = $1`, id)
 	if _, page := a.get(coord, "/referrals/"+id); !strings.Contains(page, "content does not match its digest") {
 		t.Error("tampered content is not flagged")
 	}

@@ -29,8 +29,8 @@ func (s *Server) routes() []route {
 		{"GET", "/account", account, s.accountHome},
 		{"GET", "/account/password", account, s.passwordForm},
 		{"POST", "/account/password", account, s.passwordChange},
-		{"GET", "/account/second-factor", account, s.enrolForm},
-		{"POST", "/account/second-factor", account, s.enrol},
+		{"GET", "/account/second-factor", account, s.secondFactorForm},
+		{"POST", "/account/second-factor", account, s.secondFactorSetUp},
 
 		{"GET", "/", everyone, s.home},
 
@@ -61,6 +61,7 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/bulk/assign", caseWork, s.casesBulkAssign},
 		{"POST", "/cases/bulk/letter", coordWork, s.casesBulkLetter},
 		{"GET", "/cases/{id}", caseWork, s.caseShow},
+		{"GET", "/cases/{id}/contact", caseWork, s.caseContact},
 		{"POST", "/cases/{id}/assign", caseWork, s.caseAssign},
 		{"POST", "/cases/{id}/attempts", coordWork, s.caseAttempt},
 		{"POST", "/cases/{id}/move", caseWork, s.caseMove},
@@ -77,6 +78,9 @@ func (s *Server) routes() []route {
 
 		{"GET", "/recordings/{id}", caseWork, s.recordingShow},
 		{"POST", "/recordings/{id}/over-reads", clinical, s.recordingOverRead},
+		{"POST", "/recordings/{id}/lead", caseWork, s.recordingLead},
+		{"POST", "/recordings/{id}/over-reads/revise", clinical, s.recordingRevise},
+		{"POST", "/recordings/{id}/not-needed", clinical, s.recordingNotNeeded},
 		{"GET", "/confirmations", analysis, s.confirmations}, // counts only for monitors
 		{"GET", "/confirmations/statistics", analysis, s.confirmationStats},
 		{"GET", "/confirmations/statistics.csv", analysis, s.confirmationStatsCSV},

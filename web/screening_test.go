@@ -68,7 +68,7 @@ func TestProtocolAdministration(t *testing.T) {
 
 	form := func(edits map[string]string) url.Values {
 		v := url.Values{"base_id": {strconv.Itoa(v1.ID)}, "mode": {"fields"}, "note": {"raise the 5-minute threshold"}}
-		for _, l := range protocolLeaves(v1.Params) {
+		for _, l := range v1.Params.Params() {
 			v.Set("p."+l.Path, l.Value)
 		}
 		for k, x := range edits {

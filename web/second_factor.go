@@ -28,12 +28,12 @@ type secondFactorStore interface {
 }
 
 // Session keys of the sign-in between the password and the code, and of an
-// enrolment in progress.
+// second factor being set up.
 const (
-	sessionPendingUser = "pending_uid"  // password right, code still owed
-	sessionPendingNext = "pending_next" // where to go after the code
-	sessionPendingAt   = "pending_at"   // when the password was accepted (Unix seconds)
-	sessionEnrolSecret = "enrol_secret" // the sealed secret being set up
+	sessionPendingUser = "pending_uid"          // password right, code still owed
+	sessionPendingNext = "pending_next"         // where to go after the code
+	sessionPendingAt   = "pending_at"           // when the password was accepted (Unix seconds)
+	sessionSetUpSecret = "second_factor_secret" // the sealed secret being set up
 	pendingTimeout     = 5 * time.Minute
 )
 
@@ -255,13 +255,13 @@ func (s *Server) checkCode(ctx context.Context, u db.User, code string) (ok bool
 	return fresh, "totp", err
 }
 
-// enrolForm shows a new secret to set up, kept (sealed) in the session until
+// secondFactorForm shows a new secret to set up, kept (sealed) in the session until
 // a code confirms it.
-func (s *Server) enrolForm(w http.ResponseWriter, r *http.Request) error {
-	return s.enrolPage(w, r, http.StatusOK, "")
+func (s *Server) secondFactorForm(w http.ResponseWriter, r *http.Request) error {
+	return s.secondFactorPage(w, r, http.StatusOK, "")
 }
 
-func (s *Server) enrolPage(w http.ResponseWriter, r *http.Request, status int, msg string) error {
+func (s *Server) secondFactorPage(w http.ResponseWriter, r *http.Request, status int, msg string) error {
 	ctx := r.Context()
 	u, _ := userFrom(ctx)
 	m := views.EnrolModel{Page: s.page(r, "Second factor", ""), Account: u.Email, Error: msg}
@@ -281,7 +281,7 @@ func (s *Server) enrolPage(w http.ResponseWriter, r *http.Request, status int, m
 		return nil
 	}
 	secret := ""
-	if sealed := s.sessions.GetString(ctx, sessionEnrolSecret); sealed != "" {
+	if sealed := s.sessions.GetString(ctx, sessionSetUpSecret); sealed != "" {
 		secret, _ = credential.Open(key, sealed, sealContext(u.ID))
 	}
 	if secret == "" {
@@ -290,7 +290,7 @@ func (s *Server) enrolPage(w http.ResponseWriter, r *http.Request, status int, m
 		if err != nil {
 			return err
 		}
-		s.sessions.Put(ctx, sessionEnrolSecret, sealed)
+		s.sessions.Put(ctx, sessionSetUpSecret, sealed)
 	}
 	uri, err := credential.TOTPURI(secret, totpIssuer, u.Email)
 	if err != nil {
@@ -306,27 +306,27 @@ func (s *Server) enrolPage(w http.ResponseWriter, r *http.Request, status int, m
 	return nil
 }
 
-// enrol confirms the secret being set up with a code from the app, stores it
+// secondFactorSetUp confirms the secret being set up with a code from the app, stores it
 // with new recovery codes, and shows the codes once.
-func (s *Server) enrol(w http.ResponseWriter, r *http.Request) error {
+func (s *Server) secondFactorSetUp(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	u, _ := userFrom(ctx)
 	key := s.sealKey()
-	sealed := s.sessions.GetString(ctx, sessionEnrolSecret)
+	sealed := s.sessions.GetString(ctx, sessionSetUpSecret)
 	if key == nil || sealed == "" {
-		return s.enrolPage(w, r, http.StatusUnprocessableEntity, "The set-up expired. Scan the new code below and try again.")
+		return s.secondFactorPage(w, r, http.StatusUnprocessableEntity, "The set-up expired. Scan the new code below and try again.")
 	}
 	secret, err := credential.Open(key, sealed, sealContext(u.ID))
 	if err != nil {
-		s.sessions.Remove(ctx, sessionEnrolSecret)
-		return s.enrolPage(w, r, http.StatusUnprocessableEntity, "The set-up expired. Scan the new code below and try again.")
+		s.sessions.Remove(ctx, sessionSetUpSecret)
+		return s.secondFactorPage(w, r, http.StatusUnprocessableEntity, "The set-up expired. Scan the new code below and try again.")
 	}
 	if err := r.ParseForm(); err != nil {
 		return &cohort.ValidationError{Fields: map[string]string{"code": "the form could not be read"}}
 	}
 	step, ok := credential.TOTPMatch(secret, r.PostForm.Get("code"), s.now())
 	if !ok {
-		return s.enrolPage(w, r, http.StatusUnprocessableEntity, "That code does not match. Check the phone's clock and enter the code the app shows now.")
+		return s.secondFactorPage(w, r, http.StatusUnprocessableEntity, "That code does not match. Check the phone's clock and enter the code the app shows now.")
 	}
 	codes := make([]string, credential.RecoveryCodes)
 	hashes := make([]db.RecoveryCodeHash, credential.RecoveryCodes)
@@ -341,7 +341,7 @@ func (s *Server) enrol(w http.ResponseWriter, r *http.Request) error {
 	if err := s.store.EnableSecondFactor(ctx, s.actor(r), sealed, step, hashes); err != nil {
 		return err
 	}
-	s.sessions.Remove(ctx, sessionEnrolSecret)
+	s.sessions.Remove(ctx, sessionSetUpSecret)
 	if s.sessions.GetString(ctx, sessionSetupKey) == setupSecondFactor {
 		s.setSetup(ctx, "")
 	}

@@ -34,7 +34,7 @@ const sweepRecent = 10
 type sweepChoice struct {
 	version db.ProtocolVersion
 	param   string
-	cur     paramLeaf // the parameter's value in the version
+	cur     screen.Param // the parameter's value in the version
 	// the range, as given (for the form) and as numbers once valid
 	fromText, toText, stepsText string
 	from, to                    float64
@@ -79,7 +79,7 @@ func parseSweepChoice(q url.Values, all []db.ProtocolVersion, deciding func(db.P
 		}
 		c.param = defaultSweepParam(deciding(c.version))
 	}
-	for _, l := range protocolLeaves(c.version.Params) {
+	for _, l := range c.version.Params.Params() {
 		if l.Path == c.param {
 			c.cur = l
 		}
@@ -93,7 +93,7 @@ func (c sweepChoice) integer() bool { return c.cur.Kind == "int" }
 
 // defaultRange is the range a sweep of a parameter whose value is cur opens
 // with: from half of it to half as much again.
-func defaultRange(cur paramLeaf) (from, to string) {
+func defaultRange(cur screen.Param) (from, to string) {
 	v, _ := strconv.ParseFloat(cur.Value, 64)
 	at := func(x float64) string {
 		return strconv.FormatFloat(screen.SweepValues(x, 0, 1, cur.Kind == "int")[0], 'g', -1, 64)
@@ -142,8 +142,8 @@ func (c sweepChoice) values() []float64 {
 // each with its value in p and the range a sweep of it opens with, so the
 // form's range follows the parameter chosen.
 func sweepOptions(p screen.Protocol) []views.SweepParamOption {
-	leaves := map[string]paramLeaf{}
-	for _, l := range protocolLeaves(p) {
+	leaves := map[string]screen.Param{}
+	for _, l := range p.Params() {
 		leaves[l.Path] = l
 	}
 	var out []views.SweepParamOption

@@ -48,6 +48,7 @@ func commands() []command {
 		{"user", "add a staff account (e.g. the first administrator), reset a password, list accounts", runUser},
 		{"healthcheck", "probe a running server (for container health checks)", runHealthcheck},
 		{"bench", "measure import, screening and page load on a synthetic study, each against a baseline in the same run", runBench},
+		{"ecg-check", "run the beat detector over a folder of annotated WFDB records; print sensitivity and positive predictivity", runECGCheck},
 	}
 }
 
@@ -69,7 +70,7 @@ func run(ctx context.Context, args []string, getenv func(string) string, stdout,
 func usage(w io.Writer) {
 	fmt.Fprintln(w, "usage: cohortdesk <command> [flags]\n\ncommands:")
 	for _, c := range commands() {
-		fmt.Fprintf(w, "  %-10s %s\n", c.name, c.usage)
+		fmt.Fprintf(w, "  %-12s %s\n", c.name, c.usage)
 	}
 	fmt.Fprintln(w, "\nRun `cohortdesk <command> -h` for a command's flags.")
 }

@@ -123,7 +123,7 @@ func (e Episode) firstDiagnostic() (cohort.Date, bool) {
 // confirmed reports whether a diagnostic recording of the episode settled on AF.
 func (e Episode) confirmed() bool {
 	for _, r := range e.Recordings {
-		if r.diagnostic() && r.Conclusion.Rhythm == overread.AF {
+		if r.Conclusion.ConfirmsAF(r.TooShort) {
 			return true
 		}
 	}

@@ -35,6 +35,9 @@ var allowList = map[Export][]string{
 		"format_version", "referral_code", "issued_study_day", "protocol",
 		"age_band", "sex", "flagged_weeks", "heart_rate", "recording",
 		"over_read", "risk", "contact_route", "cautions",
+		// Whether it waits for sign-off, and who signed it off on which study
+		// day: the signer is study staff, not the participant.
+		"draft", "sign_off",
 	},
 	MonitorCases: {
 		"referral_code", "site_code", "age_band", "sex",

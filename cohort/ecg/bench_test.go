@@ -3,7 +3,9 @@ package ecg_test
 import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/rr"
 	"testing"
+	"time"
 )
 
 // benchSignal makes a noisy sinus recording of the given length at 500 Hz.
@@ -54,4 +56,31 @@ func BenchmarkBaselineLowPass5min(b *testing.B) {
 		_ = ecg.LowPass(w.Samples)
 	}
 	b.ReportMetric(float64(len(w.Samples))*float64(b.N)/b.Elapsed().Seconds(), "samples/s")
+}
+
+// BenchmarkAnalyseVersusDetect5min runs the whole analysis of intake
+// (stored resolution, quality check, detection per usable stretch,
+// premature beats, hint) and, in the same iteration, the detector alone
+// over the same 5 min recording at 500 Hz, and reports the ratio of their
+// times: what the steps around the detector cost.
+func BenchmarkAnalyseVersusDetect5min(b *testing.B) {
+	w := benchSignal(b, 300)
+	p := rr.DefaultParams()
+	var analyse, detect time.Duration
+	b.ResetTimer()
+	for b.Loop() {
+		t0 := time.Now()
+		if _, err := ecg.Analyse(w, ecg.Limits{}, p); err != nil {
+			b.Fatal(err)
+		}
+		t1 := time.Now()
+		if _, err := ecg.Detect(w); err != nil {
+			b.Fatal(err)
+		}
+		analyse += t1.Sub(t0)
+		detect += time.Since(t1)
+	}
+	b.ReportMetric(analyse.Seconds()/float64(b.N)*1000, "analyse-ms/op")
+	b.ReportMetric(detect.Seconds()/float64(b.N)*1000, "detect-ms/op")
+	b.ReportMetric(analyse.Seconds()/detect.Seconds(), "analyse/detect")
 }

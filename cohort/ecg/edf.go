@@ -72,7 +72,8 @@ const edfAnnotationLabel = "EDF Annotations"
 // EDFOptions steer ReadEDF.
 type EDFOptions struct {
 	// Label picks the signal whose label matches (case-insensitive, spaces
-	// trimmed). Empty picks the first signal that is not an annotation signal.
+	// trimmed); it must be in volts. Empty picks the ECG leads by label and
+	// unit (Classify, ChooseLead).
 	Label string
 	// Location is the time zone of the header's start date and time, which EDF
 	// stores as local clock time without a zone. Nil means UTC.
@@ -100,7 +101,7 @@ type EDFHeader struct {
 	Records       int     // data records read
 	RecordSeconds float64 // duration of one data record
 	Signals       []EDFSignal
-	Chosen        int      // index into Signals of the signal returned
+	Chosen        int      // index into Signals of the lead chosen for analysis
 	Warnings      []string // oddities that did not stop reading
 }
 
@@ -116,9 +117,16 @@ type EDFIdentity struct {
 
 // EDFFile is the result of ReadEDF.
 type EDFFile struct {
+	// Waveform is the lead chosen for analysis, Leads[ChosenLead].Waveform.
 	Waveform Waveform
-	Header   EDFHeader
-	Identity EDFIdentity // PHI; see EDFIdentity
+	// Signals lists every signal but the annotation signals; Leads holds
+	// the ECG leads among them (or, without any, the unlabelled signals in
+	// volts), in file order.
+	Signals    []SignalInfo
+	Leads      []Lead
+	ChosenLead int
+	Header     EDFHeader
+	Identity   EDFIdentity // PHI; see EDFIdentity
 }
 
 // edfReader carries the input and builds positioned errors.
@@ -148,26 +156,6 @@ func edfText(b []byte) string {
 	return strings.TrimSpace(sb.String())
 }
 
-// edfNumber parses a numeric header field: plain decimal notation only, so
-// that "NaN", "Inf" or hexadecimal floats are rejected like any other junk.
-func edfNumber(b []byte) (float64, error) {
-	s := strings.TrimSpace(string(b))
-	if s == "" {
-		return 0, errors.New("empty, want a number")
-	}
-	for i := 0; i < len(s); i++ {
-		c := s[i]
-		if !(c >= '0' && c <= '9' || c == '.' || c == '-' || c == '+' || c == 'e' || c == 'E') {
-			return 0, fmt.Errorf("%q is not a number", s)
-		}
-	}
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsInf(v, 0) {
-		return 0, fmt.Errorf("%q is not a number", s)
-	}
-	return v, nil
-}
-
 // edfInt parses an integer header field.
 func edfInt(b []byte) (int, error) {
 	s := strings.TrimSpace(string(b))
@@ -181,16 +169,20 @@ func edfInt(b []byte) (int, error) {
 	return v, nil
 }
 
-// ReadEDF reads one signal of an EDF or EDF+ file and converts it to
-// millivolts.
+// ReadEDF reads an EDF or EDF+ file: it lists every signal, reads the ECG
+// leads among them (by label and unit, see Classify; or the one signal
+// opt.Label names) and converts them to millivolts. A file without an ECG
+// signal is refused with the list of what it holds.
 //
 // Digital values d become physical values with the line through (DigMin,
-// PhysMin) and (DigMax, PhysMax), then the physical dimension (nV, uV, µV, mV
-// or V) is scaled to mV. Annotation signals are skipped. A record count of -1
-// (allowed by the specification only while recording) is replaced by the
-// number of whole records in the file. EDF+D files are read when their records
-// are contiguous; a real gap is refused, because the waveform would otherwise
-// join two moments that are not adjacent.
+// PhysMin) and (DigMax, PhysMax), then the physical dimension (nV, uV, µV,
+// mV or V, in the spellings mvPerUnit knows) is scaled to mV. A digital
+// value outside [DigMin, DigMax] is clipped to the range, and the header's
+// warnings say how many were. Annotation signals are skipped. A record
+// count of -1 (allowed by the specification only while recording) is
+// replaced by the number of whole records in the file. EDF+D files are read
+// when their records are contiguous; a real gap is refused, because the
+// waveform would otherwise join two moments that are not adjacent.
 //
 // Errors are *InputError values naming the field, its byte offset, and the
 // signal and data record concerned; they match ErrFormat.
@@ -251,7 +243,7 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 	if nrec < -1 {
 		return f, r.fail("number of data records", edfOffRecords, 0, 0, fmt.Errorf("%d, want -1 or more", nrec))
 	}
-	dur, err := edfNumber(field(edfOffDuration, 8))
+	dur, err := parseDecimal(string(field(edfOffDuration, 8)))
 	if err != nil {
 		return f, r.fail("duration of a data record", edfOffDuration, 0, 0, err)
 	}
@@ -302,11 +294,11 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 		s.Annotation = s.Label == edfAnnotationLabel
 
 		o, b := at(3, i)
-		if s.PhysMin, err = edfNumber(b); err != nil {
+		if s.PhysMin, err = parseDecimal(string(b)); err != nil {
 			return f, r.fail("physical minimum", int64(o), i+1, 0, err)
 		}
 		o, b = at(4, i)
-		if s.PhysMax, err = edfNumber(b); err != nil {
+		if s.PhysMax, err = parseDecimal(string(b)); err != nil {
 			return f, r.fail("physical maximum", int64(o), i+1, 0, err)
 		}
 		o, b = at(5, i)
@@ -346,45 +338,68 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 		recBytes += 2 * s.SamplesPerRecord
 	}
 
-	// Choose the signal.
-	chosen := -1
-	for i, s := range h.Signals {
-		if s.Annotation {
-			continue
-		}
-		if opt.Label == "" || strings.EqualFold(strings.TrimSpace(opt.Label), s.Label) {
-			chosen = i
-			break
-		}
-	}
-	if chosen < 0 {
-		var labels []string
-		for _, s := range h.Signals {
-			if !s.Annotation {
-				labels = append(labels, strconv.Quote(s.Label))
-			}
-		}
-		if len(labels) == 0 {
-			return f, r.fail("label", int64(bases[0]), 0, 0, errors.New("the file holds annotation signals only"))
-		}
-		return f, r.fail("label", int64(bases[0]), 0, 0,
-			fmt.Errorf("no signal labelled %q (labels: %s)", opt.Label, strings.Join(labels, ", ")))
-	}
-	h.Chosen = chosen
-	sig := h.Signals[chosen]
-
 	if math.IsNaN(dur) || dur <= 0 {
 		return f, r.fail("duration of a data record", edfOffDuration, 0, 0, fmt.Errorf("%g s, want a positive duration", dur))
 	}
 	h.RecordSeconds = dur
-	rate := float64(sig.SamplesPerRecord) / dur
-	if rate < MinFileRateHz || rate > MaxFileRateHz {
-		return f, r.fail("number of samples in each data record", int64(bases[8]+chosen*8), chosen+1, 0,
-			fmt.Errorf("%d samples per %g s record is %g Hz, outside %d-%d Hz", sig.SamplesPerRecord, dur, rate, MinFileRateHz, MaxFileRateHz))
+
+	// Every signal is listed; the ECG leads among them are read.
+	var infos []SignalInfo
+	for i, s := range h.Signals {
+		if s.Annotation {
+			continue
+		}
+		infos = append(infos, SignalInfo{Number: i + 1, Label: s.Label, Unit: s.Dimension,
+			RateHz: float64(s.SamplesPerRecord) / dur, Kind: Classify(s.Label, s.Dimension)})
 	}
-	scale, err := mvPerUnit(sig.Dimension)
-	if err != nil {
-		return f, r.fail("physical dimension", int64(bases[2]+chosen*8), chosen+1, 0, err)
+	if len(infos) == 0 {
+		return f, r.fail("label", int64(bases[0]), 0, 0, errors.New("the file holds annotation signals only"))
+	}
+	f.Signals = infos
+	var keep []int // signal numbers (1-based) of the leads read
+	chosenLead := 0
+	if opt.Label != "" {
+		var labels []string
+		for _, in := range infos {
+			labels = append(labels, strconv.Quote(in.Label))
+			if len(keep) == 0 && strings.EqualFold(strings.TrimSpace(opt.Label), in.Label) {
+				keep = []int{in.Number}
+			}
+		}
+		if len(keep) == 0 {
+			return f, r.fail("label", int64(bases[0]), 0, 0,
+				fmt.Errorf("no signal labelled %q (labels: %s)", opt.Label, strings.Join(labels, ", ")))
+		}
+		if sig := h.Signals[keep[0]-1]; !isVolt(sig.Dimension) {
+			return f, r.fail("physical dimension", int64(bases[2]+(keep[0]-1)*8), keep[0], 0,
+				fmt.Errorf("%q is not a unit of voltage (nV, uV, µV, mV or V)", sig.Dimension))
+		}
+	} else {
+		var warning, refusal string
+		keep, chosenLead, warning, refusal = ChooseLead(infos)
+		if refusal != "" {
+			// An ECG label with a unit that is not a voltage is named by its
+			// field: the likeliest mistake of a writer.
+			for _, in := range infos {
+				if Classify(in.Label, "mV") == KindECG && !isVolt(in.Unit) {
+					return f, r.fail("physical dimension", int64(bases[2]+(in.Number-1)*8), in.Number, 0,
+						fmt.Errorf("%q is not a unit of voltage (nV, uV, µV, mV or V), so signal %d cannot be the ECG; %s", in.Unit, in.Number, refusal))
+				}
+			}
+			return f, r.fail("label", int64(bases[0]), 0, 0, errors.New(refusal))
+		}
+		if warning != "" {
+			h.Warnings = append(h.Warnings, warning)
+		}
+	}
+	h.Chosen = keep[chosenLead] - 1
+	for _, num := range keep {
+		sig := h.Signals[num-1]
+		rate := float64(sig.SamplesPerRecord) / dur
+		if rate < MinFileRateHz || rate > MaxFileRateHz {
+			return f, r.fail("number of samples in each data record", int64(bases[8]+(num-1)*8), num, 0,
+				fmt.Errorf("%d samples per %g s record is %g Hz, outside %d-%d Hz", sig.SamplesPerRecord, dur, rate, MinFileRateHz, MaxFileRateHz))
+		}
 	}
 
 	// Data records.
@@ -408,31 +423,60 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 	}
 	h.Records = nrec
 
-	sigOff, annOff, annSig := 0, -1, -1
+	// Offsets of the signals within a data record.
+	offsets := make([]int, len(h.Signals))
+	annSig := -1
 	for i, s := range h.Signals {
-		if i < chosen {
-			sigOff += 2 * s.SamplesPerRecord
+		if i > 0 {
+			offsets[i] = offsets[i-1] + 2*h.Signals[i-1].SamplesPerRecord
 		}
 		if s.Annotation && annSig < 0 {
 			annSig = i
-			annOff = 0
-			for _, t := range h.Signals[:i] {
-				annOff += 2 * t.SamplesPerRecord
+		}
+	}
+	for _, num := range keep {
+		sig := h.Signals[num-1]
+		scale, _ := mvPerUnit(sig.Dimension)
+		gain := (sig.PhysMax - sig.PhysMin) / float64(sig.DigMax-sig.DigMin)
+		phys := func(d int) float64 { return (sig.PhysMin + float64(d-sig.DigMin)*gain) * scale }
+		spr := sig.SamplesPerRecord
+		samples := make([]float64, nrec*spr)
+		clipped := 0
+		for rec := 0; rec < nrec; rec++ {
+			p := hb + rec*recBytes + offsets[num-1]
+			out := samples[rec*spr : (rec+1)*spr]
+			for k := range out {
+				d := int(int16(binary.LittleEndian.Uint16(data[p+2*k:])))
+				// A value outside the declared digital range is clipped to
+				// it, as common EDF readers do: the range is what the
+				// recorder could measure.
+				if d < sig.DigMin || d > sig.DigMax {
+					d = min(max(d, sig.DigMin), sig.DigMax)
+					clipped++
+				}
+				out[k] = phys(d)
 			}
 		}
-	}
-
-	gain := (sig.PhysMax - sig.PhysMin) / float64(sig.DigMax-sig.DigMin)
-	spr := sig.SamplesPerRecord
-	samples := make([]float64, nrec*spr)
-	for rec := 0; rec < nrec; rec++ {
-		p := hb + rec*recBytes + sigOff
-		out := samples[rec*spr : (rec+1)*spr]
-		for k := range out {
-			d := int16(binary.LittleEndian.Uint16(data[p+2*k:]))
-			out[k] = (sig.PhysMin + float64(int(d)-sig.DigMin)*gain) * scale
+		if clipped > 0 {
+			what := "samples"
+			if clipped == 1 {
+				what = "sample"
+			}
+			h.Warnings = append(h.Warnings, fmt.Sprintf("signal %d %q: %d %s outside the declared digital range %d..%d clipped to it",
+				num, sig.Label, clipped, what, sig.DigMin, sig.DigMax))
 		}
+		rate := float64(spr) / dur
+		lo, hi := phys(sig.DigMin), phys(sig.DigMax)
+		f.Leads = append(f.Leads, Lead{Signal: num, Limits: Limits{min(lo, hi), max(lo, hi)}, Waveform: Waveform{
+			Samples: samples,
+			RateHz:  rate,
+			Label:   sig.Label,
+			Source: fmt.Sprintf("%s signal %d of %d %q, %g Hz, %s, transducer %q, prefiltering %q",
+				h.Variant, num, ns, sig.Label, rate, sig.Dimension, sig.Transducer, sig.Prefilter),
+		}})
 	}
+	f.ChosenLead = chosenLead
+	chosenRate := f.Leads[chosenLead].Waveform.RateHz
 
 	// EDF+ time keeping: the first annotation of each record gives its onset.
 	if plus {
@@ -446,7 +490,7 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 			alen := 2 * h.Signals[annSig].SamplesPerRecord
 			var first float64
 			for rec := 0; rec < nrec; rec++ {
-				p := hb + rec*recBytes + annOff
+				p := hb + rec*recBytes + offsets[annSig]
 				onset, err := talOnset(data[p : p+alen])
 				if err != nil {
 					if h.Variant == "EDF+D" {
@@ -466,7 +510,7 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 					break // EDF+C is contiguous by definition; only the start matters
 				}
 				expect := first + float64(rec)*dur
-				if math.Abs(onset-expect) > 0.5/rate {
+				if math.Abs(onset-expect) > 0.5/chosenRate {
 					return f, r.fail("time-keeping annotation", int64(p), annSig+1, rec+1,
 						fmt.Errorf("record starts at %g s, %g s after the previous one ends; discontinuous recordings: %w", onset, onset-expect, ErrUnsupported))
 				}
@@ -474,30 +518,17 @@ func ReadEDF(data []byte, opt EDFOptions) (EDFFile, error) {
 		}
 	}
 
-	f.Waveform = Waveform{
-		Samples: samples,
-		RateHz:  rate,
-		Start:   h.Start,
-		Label:   sig.Label,
-		Source: fmt.Sprintf("%s signal %d of %d %q, %g Hz, %s, transducer %q, prefiltering %q",
-			h.Variant, chosen+1, ns, sig.Label, rate, sig.Dimension, sig.Transducer, sig.Prefilter),
+	for i := range f.Leads {
+		f.Leads[i].Waveform.Start = h.Start
 	}
+	f.Waveform = f.Leads[chosenLead].Waveform
 	return f, nil
 }
 
-// mvPerUnit gives the factor from a physical dimension to millivolts.
-func mvPerUnit(dim string) (float64, error) {
-	switch dim {
-	case "nV":
-		return 1e-6, nil
-	case "uV", "µV":
-		return 1e-3, nil
-	case "mV":
-		return 1, nil
-	case "V":
-		return 1e3, nil
-	}
-	return 0, fmt.Errorf("%q, want nV, uV (or µV), mV or V", dim)
+// isVolt reports whether a physical dimension is a unit of voltage.
+func isVolt(dim string) bool {
+	_, ok := mvPerUnit(dim)
+	return ok
 }
 
 // fieldErr positions an error found by a helper.

@@ -219,6 +219,29 @@ func TestReadEDFUnitsAndLabels(t *testing.T) {
 	}
 }
 
+// A digital value outside the declared range is clipped to it, as common
+// EDF readers do, and the header says how many were: the plain file's
+// digital range is -1000..1000 for -500..500 uV, so 1500 reads as 500 uV
+// and -2000 as -500 uV (hand-worked).
+func TestReadEDFClipsToTheDigitalRange(t *testing.T) {
+	spec := plainSpec(t)
+	spec.data = le16(nil, 0, 1500, -200, 1000, -2000, 2, 4, 6)
+	f, err := ecg.ReadEDF(spec.bytes(t), ecg.EDFOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := f.Waveform.Samples; got[1] != 0.5 || got[4] != -0.5 || got[3] != 0.5 {
+		t.Errorf("samples %v, want 1500 and -2000 clipped to 0.5 and -0.5 mV", got)
+	}
+	want := `signal 1 "ECG I": 2 samples outside the declared digital range -1000..1000 clipped to it`
+	if len(f.Header.Warnings) != 1 || f.Header.Warnings[0] != want {
+		t.Errorf("warnings %q, want %q", f.Header.Warnings, want)
+	}
+	if l := f.Leads[0].Limits; l.Min != -0.5 || l.Max != 0.5 {
+		t.Errorf("limits %+v, want -0.5..0.5 mV", l)
+	}
+}
+
 func TestReadEDFUnknownRecordCount(t *testing.T) {
 	// -1 records: the count comes from the file length (EDF+ 2003 allows -1
 	// while recording only; from memory).

@@ -20,10 +20,10 @@ func TestHint(t *testing.T) {
 		wantText     []string
 	}{
 		{"sinus, two full segments", ecgtest.SinusRR(300, 800, 1), 2, false, []string{"RR not AF-like", "0 of 2 segments of 128 beats"}},
-		{"AF-like, two full segments", ecgtest.AFRR(300, 750, 1), 2, true, []string{"RR irregular, AF-like", "2 of 2 segments of 128 beats"}},
+		{"AF-like, two full segments", ecgtest.AFRR(300, 750, 1), 2, true, []string{"RR irregularly irregular, AF-like", "2 of 2 segments of 128 beats"}},
 		// Seed 6: about 1 in 20 independent series falls outside the
 		// turning-point band by design of the test (1.96 SD); seed 2 does.
-		{"AF-like 30 s strip", ecgtest.AFRR(40, 750, 6), 1, true, []string{"RR irregular, AF-like", "1 of 1 segment of 40 beats"}},
+		{"AF-like 30 s strip", ecgtest.AFRR(40, 750, 6), 1, true, []string{"RR irregularly irregular, AF-like", "1 of 1 segment of 40 beats"}},
 		{"too short", ecgtest.AFRR(12, 750, 3), 0, false, []string{"too few beats (12 RR intervals)"}},
 	}
 	for _, tt := range tests {

@@ -85,6 +85,17 @@ type StripRow struct {
 	// Clipped counts trace points held at the row's edge because the signal
 	// went beyond it.
 	Clipped int
+	// Shaded are the unusable stretches within this row (see Mark).
+	Shaded []Shade
+	// Premature are the x positions of the premature beats in this row, a
+	// subset of Beats (see Mark).
+	Premature []float64
+}
+
+// Shade is an unusable stretch on a row, from X0 to X1 in millimetres.
+type Shade struct {
+	X0, X1 float64
+	Kind   Artefact
 }
 
 // StripLayout is a waveform laid out on ECG paper, ready to draw.
@@ -233,4 +244,35 @@ func PathD(points []Point) string {
 		num(p.Y)
 	}
 	return string(b)
+}
+
+// Mark adds to a layout of a waveform at rateHz the unusable stretches of q
+// (shaded) and the premature beats (indices into beats, the sample indices
+// the layout was made with), row by row.
+func Mark(l StripLayout, rateHz float64, q *Quality, beats, premature []int) StripLayout {
+	o := l.Options
+	if !(rateHz > 0) {
+		return l
+	}
+	perRow := o.RowSeconds * rateHz
+	x := func(i, i0 int) float64 { return o.MarginMM + float64(i-i0)/rateHz*o.SpeedMMPerS }
+	for r := range l.Rows {
+		row := &l.Rows[r]
+		i0 := int(math.Round(float64(r) * perRow))
+		i1 := int(math.Round(float64(r+1) * perRow))
+		if q != nil {
+			for _, st := range q.Stretches {
+				a, b := max(st.Start, i0), min(st.End, i1)
+				if a < b {
+					row.Shaded = append(row.Shaded, Shade{X0: x(a, i0), X1: x(b, i0), Kind: st.Kind})
+				}
+			}
+		}
+		for _, k := range premature {
+			if k >= 0 && k < len(beats) && beats[k] >= i0 && beats[k] < i1 {
+				row.Premature = append(row.Premature, x(beats[k], i0))
+			}
+		}
+	}
+	return l
 }

@@ -54,6 +54,24 @@ type SynthOptions struct {
 	SNRdB float64
 	// Seed makes the wander phase and the noise reproducible.
 	Seed uint64
+	// FirstBeatS and Seconds place the beats in a recording of a given
+	// length: the first R peak FirstBeatS seconds after the first sample
+	// (default: half of rr[0]) and Seconds of samples in all, exactly
+	// round(Seconds*RateHz) of them (default: up to half of the last
+	// interval after the last R peak, and one sample more). With Seconds
+	// the time after the last R peak is the start of an interval that the
+	// recording cuts off: the phase runs at the last interval's speed, slower
+	// when the tail is longer than that interval, and never reaches another
+	// QRS. A scripted recording of exactly 30 s then lasts 30 s, not a few
+	// samples less, which matters to the 30 s rule (MinDiagnosticSeconds).
+	FirstBeatS, Seconds float64
+	// BeatWaves gives some beats a shape of their own: beat k (0-based,
+	// the R peak at RTimes[k]) is drawn with BeatWaves[k] instead of Waves,
+	// for example a premature ventricular beat with a wide QRS and no P
+	// wave. A beat's shape holds from halfway after the previous R peak to
+	// halfway to the next, where the phase passes pi and every wave of
+	// either shape has died away. The amplitude scale is set by Waves.
+	BeatWaves map[int][]Wave
 }
 
 // Synthetic is a generated recording with its ground truth.
@@ -127,10 +145,16 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	}
 	scale := amp * 2 * math.Pi / peak
 
-	// R-peak times (s), from half the first interval on.
+	// R-peak times (s), from half the first interval on (or FirstBeatS).
 	n := len(rrMs)
 	rT := make([]float64, n+1)
 	rT[0] = rrMs[0] / 2000
+	if o.FirstBeatS != 0 {
+		if !(o.FirstBeatS > 0 && o.FirstBeatS < 10) {
+			return Synthetic{}, fmt.Errorf("ecg: synthesize: first beat at %g s, want more than 0 and under 10 s", o.FirstBeatS)
+		}
+		rT[0] = o.FirstBeatS
+	}
 	for k := 0; k < n; k++ {
 		rT[k+1] = rT[k] + rrMs[k]/1000
 	}
@@ -138,6 +162,15 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	ns := int(math.Floor(total*fs)) + 1
 	if float64(ns-1)/fs > total {
 		ns--
+	}
+	if o.Seconds != 0 {
+		// The scripted length may end on the last beat; allow for the
+		// rounding of summing the intervals.
+		if !(o.Seconds >= rT[n]-1e-9 && o.Seconds <= MaxRecordingSeconds) {
+			return Synthetic{}, fmt.Errorf("ecg: synthesize: %g s of recording, want the last beat (at %g s) inside and at most %d s", o.Seconds, rT[n], MaxRecordingSeconds)
+		}
+		total = o.Seconds
+		ns = int(math.Round(total * fs))
 	}
 
 	// The phase speed is piecewise constant. Around every R peak (|theta| <
@@ -154,22 +187,58 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	meanRR /= float64(n)
 	wQRS := 2 * math.Pi / meanRR
 	wR := func(int) float64 { return wQRS }
-	type seg struct{ end, w float64 }
+	// Each segment also names the beat whose shape it draws; the speed is
+	// constant across the halfway point where one beat's shape gives way
+	// to the next, so that point splits a segment without changing it.
+	type seg struct {
+		end, w float64
+		beat   int
+	}
 	var segs []seg
 	q0 := math.Pi / 4 / wR(0)
+	if rT[0] <= q0 {
+		return Synthetic{}, fmt.Errorf("ecg: synthesize: first beat at %g s is inside its own QRS (%g s from the start at least)", rT[0], q0)
+	}
 	lead := 0.75 * math.Pi / (rT[0] - q0) // from -pi at t = 0 to -pi/4
-	segs = append(segs, seg{rT[0] - q0, lead}, seg{rT[0] + q0, wR(0)})
+	segs = append(segs, seg{rT[0] - q0, lead, 0}, seg{rT[0] + q0, wR(0), 0})
 	for k := 0; k < n; k++ {
 		a, b := math.Pi/4/wR(k), math.Pi/4/wR(k+1)
 		mid := rrMs[k]/1000 - a - b
 		if mid <= 0 {
 			return Synthetic{}, fmt.Errorf("ecg: synthesize: rr[%d] = %g ms is not above a quarter of the mean RR, %g ms", k, rrMs[k], 1000*meanRR)
 		}
-		segs = append(segs, seg{rT[k+1] - b, 1.5 * math.Pi / mid}, seg{rT[k+1] + b, wR(k + 1)})
+		w := 1.5 * math.Pi / mid
+		half := rT[k] + a + (0.75*math.Pi)/w // the phase passes pi here
+		segs = append(segs, seg{half, w, k}, seg{rT[k+1] - b, w, k + 1}, seg{rT[k+1] + b, wR(k + 1), k + 1})
 	}
-	segs = append(segs, seg{math.Inf(1), wR(n)})
+	tail := wR(n)
+	if o.Seconds != 0 {
+		// After the last QRS the phase runs as between beats of the last
+		// interval; a tail longer than that interval's span between QRS
+		// windows runs slower, to 90% of it, so no further QRS begins.
+		mid := segs[len(segs)-2].w
+		if left := total - segs[len(segs)-1].end; left > 0 && mid*left >= 1.5*math.Pi {
+			mid = 0.9 * 1.5 * math.Pi / left
+		}
+		tail = mid
+	}
+	segs = append(segs, seg{math.Inf(1), tail, n})
+	for k, bw := range o.BeatWaves {
+		if k < 0 || k > n {
+			return Synthetic{}, fmt.Errorf("ecg: synthesize: beat %d has its own waves, but there are beats 0-%d", k, n)
+		}
+		if len(bw) == 0 {
+			return Synthetic{}, fmt.Errorf("ecg: synthesize: beat %d has an empty list of waves", k)
+		}
+	}
+	wavesOf := func(beat int) []Wave {
+		if bw, ok := o.BeatWaves[beat]; ok {
+			return bw
+		}
+		return waves
+	}
 
-	deriv := func(s [3]float64, w float64) [3]float64 {
+	deriv := func(s [3]float64, w float64, waves []Wave) [3]float64 {
 		x, y, z := s[0], s[1], s[2]
 		r := math.Hypot(x, y)
 		a := 1 - r
@@ -192,11 +261,11 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 		}
 		return [3]float64{a*x - w*y, a*y + w*x, f - z}
 	}
-	rk4 := func(s [3]float64, w, h float64) [3]float64 {
-		k1 := deriv(s, w)
-		k2 := deriv([3]float64{s[0] + h/2*k1[0], s[1] + h/2*k1[1], s[2] + h/2*k1[2]}, w)
-		k3 := deriv([3]float64{s[0] + h/2*k2[0], s[1] + h/2*k2[1], s[2] + h/2*k2[2]}, w)
-		k4 := deriv([3]float64{s[0] + h*k3[0], s[1] + h*k3[1], s[2] + h*k3[2]}, w)
+	rk4 := func(s [3]float64, w, h float64, waves []Wave) [3]float64 {
+		k1 := deriv(s, w, waves)
+		k2 := deriv([3]float64{s[0] + h/2*k1[0], s[1] + h/2*k1[1], s[2] + h/2*k1[2]}, w, waves)
+		k3 := deriv([3]float64{s[0] + h/2*k2[0], s[1] + h/2*k2[1], s[2] + h/2*k2[2]}, w, waves)
+		k4 := deriv([3]float64{s[0] + h*k3[0], s[1] + h*k3[1], s[2] + h*k3[2]}, w, waves)
 		for i := range s {
 			s[i] += h / 6 * (k1[i] + 2*k2[i] + 2*k3[i] + k4[i])
 		}
@@ -204,14 +273,14 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	}
 	// advance integrates over a span of constant angular speed in equal steps
 	// no longer than hMax.
-	advance := func(s [3]float64, w, span float64) [3]float64 {
+	advance := func(s [3]float64, w, span float64, waves []Wave) [3]float64 {
 		if span <= 0 {
 			return s
 		}
 		steps := int(math.Ceil(span / hMax))
 		h := span / float64(steps)
 		for range steps {
-			s = rk4(s, w, h)
+			s = rk4(s, w, h, waves)
 		}
 		return s
 	}
@@ -219,7 +288,7 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	// Warm-up: 5 s at the lead-in speed, ending at phase -pi at t = 0.
 	const warm = 5.0
 	th0 := -math.Pi - lead*warm
-	s := advance([3]float64{math.Cos(th0), math.Sin(th0), 0}, lead, warm)
+	s := advance([3]float64{math.Cos(th0), math.Sin(th0), 0}, lead, warm, waves)
 
 	clean := make([]float64, ns)
 	t := 0.0
@@ -227,11 +296,11 @@ func synthesize(rrMs []float64, o SynthOptions, hMax float64) (Synthetic, error)
 	for i := range ns {
 		ti := float64(i) / fs
 		for segs[j].end <= ti {
-			s = advance(s, segs[j].w, segs[j].end-t)
+			s = advance(s, segs[j].w, segs[j].end-t, wavesOf(segs[j].beat))
 			t = segs[j].end
 			j++
 		}
-		s = advance(s, segs[j].w, ti-t)
+		s = advance(s, segs[j].w, ti-t, wavesOf(segs[j].beat))
 		t = ti
 		clean[i] = s[2] * scale
 	}

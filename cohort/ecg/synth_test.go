@@ -158,6 +158,9 @@ func TestSynthesizeRefuses(t *testing.T) {
 		{"interval under a quarter of the mean", []float64{2000, 2000, 2000, 300}, ecg.SynthOptions{}},
 		{"rate too low", []float64{800}, ecg.SynthOptions{RateHz: 10}},
 		{"no waves with amplitude", []float64{800}, ecg.SynthOptions{Waves: []ecg.Wave{{"R", 0, 0, 0.1}}}},
+		{"length ends before the last beat", []float64{800, 800}, ecg.SynthOptions{FirstBeatS: 0.5, Seconds: 2}},
+		{"first beat inside its own QRS", []float64{800, 800}, ecg.SynthOptions{FirstBeatS: 0.05}},
+		{"negative first beat", []float64{800}, ecg.SynthOptions{FirstBeatS: -1}},
 	}
 	for _, tt := range tests {
 		if _, err := ecg.Synthesize(tt.rr, tt.o); err == nil {
@@ -180,5 +183,61 @@ func TestSynthesizeLiteralAmplitude(t *testing.T) {
 	}
 	if math.Abs(slow-1) > 0.1 {
 		t.Errorf("height at 60 bpm %.3f mV, want about 1", slow)
+	}
+}
+
+// TestSynthesizeScriptedLength: with FirstBeatS and Seconds the recording has
+// exactly Seconds of samples (so a 30 s recording is 30 s to the 30 s rule,
+// MinDiagnosticSeconds), the R peaks fall at FirstBeatS plus the intervals,
+// and a tail longer than any interval (the recording cut off in a pause) holds
+// no further R wave. The times are the inputs' sums (computed).
+func TestSynthesizeScriptedLength(t *testing.T) {
+	rr := ecgtest.AFRR(38, 700, 21)
+	first := 0.4
+	last := first
+	for _, v := range rr {
+		last += v / 1000
+	}
+	for _, tc := range []struct {
+		name    string
+		seconds float64
+	}{
+		{"ends on the last beat", last},
+		{"ends 0.3 s after it", last + 0.3},
+		{"ends 2.5 s after it, longer than any interval", last + 2.5},
+		{"exactly 30 s", 30},
+	} {
+		if tc.seconds < last {
+			continue
+		}
+		for _, fs := range []float64{250, 300, 1000} {
+			s := mustSynth(t, rr, ecg.SynthOptions{RateHz: fs, FirstBeatS: first, Seconds: tc.seconds})
+			if want := int(math.Round(tc.seconds * fs)); len(s.Waveform.Samples) != want {
+				t.Errorf("%s at %g Hz: %d samples, want %d", tc.name, fs, len(s.Waveform.Samples), want)
+			}
+			if got := s.Waveform.Seconds(); math.Abs(got-tc.seconds) > 0.5/fs {
+				t.Errorf("%s at %g Hz: lasts %g s, want %g", tc.name, fs, got, tc.seconds)
+			}
+			if s.RTimes[0] != first || math.Abs(s.RTimes[len(rr)]-last) > 1e-9 {
+				t.Errorf("%s at %g Hz: R peaks from %g to %g s, want %g to %g", tc.name, fs, s.RTimes[0], s.RTimes[len(rr)], first, last)
+			}
+			// After the last QRS (50 ms on) the clean signal stays below half
+			// the R height above the baseline: no beat was added in the tail.
+			base := ecg.Median(s.Clean)
+			for i := int(math.Ceil((last + 0.05) * fs)); i < len(s.Clean); i++ {
+				if s.Clean[i]-base > 0.5 {
+					t.Errorf("%s at %g Hz: %.2f mV at %.3f s, after the last beat", tc.name, fs, s.Clean[i]-base, float64(i)/fs)
+					break
+				}
+			}
+		}
+	}
+	if testing.Short() {
+		return
+	}
+	// 30 s at 300 Hz is 9000 samples and the app's 30 s rule passes it.
+	s := mustSynth(t, ecgtest.SinusRR(30, 950, 4), ecg.SynthOptions{RateHz: 300, FirstBeatS: 0.5, Seconds: 30})
+	if got := s.Waveform.Seconds(); got < ecg.MinDiagnosticSeconds {
+		t.Errorf("a 30 s recording lasts %g s, under the 30 s rule", got)
 	}
 }

@@ -1,7 +1,10 @@
 // Package enrolment holds the rules of a participant's enrolment record: what
 // a study ID looks like, the dates an enrolment and a withdrawal may carry,
-// the age at enrolment, and the contact details the intake form checks. Like
-// all of cohort/ it is pure: the caller passes today's date in.
+// the age at enrolment, and the contact details the intake form checks; and
+// the study's enrolment against target: the history of enrolments by site and
+// week (Tally) and the projected date each target is reached (History.Project,
+// with stats.ProjectEnrolment). Like all of cohort/ it is pure: the caller
+// passes today's date in.
 package enrolment
 
 import (

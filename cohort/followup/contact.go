@@ -1,8 +1,8 @@
 package followup
 
 import (
+	"cohortdesk/cohort"
 	"fmt"
-	"strings"
 	"time"
 )
 
@@ -17,7 +17,7 @@ const (
 	ChannelLetter Channel = "letter"
 )
 
-var channelLabels = map[Channel]string{
+var channelLabels = cohort.Words[Channel]{
 	ChannelPhone:  "phone",
 	ChannelEmail:  "e-mail",
 	ChannelText:   "text message",
@@ -31,23 +31,14 @@ func Channels() []Channel {
 
 // ParseChannel reads a stored or submitted channel value.
 func ParseChannel(s string) (Channel, error) {
-	c := Channel(strings.TrimSpace(s))
-	if !c.Valid() {
-		return "", fmt.Errorf("followup: unknown contact channel %q", s)
-	}
-	return c, nil
+	return channelLabels.Parse(s, "followup: unknown contact channel")
 }
 
 // Valid reports whether c is a defined channel.
-func (c Channel) Valid() bool { _, ok := channelLabels[c]; return ok }
+func (c Channel) Valid() bool { return channelLabels.Valid(c) }
 
 // Label is the wording shown on pages; unknown values are shown quoted.
-func (c Channel) Label() string {
-	if l, ok := channelLabels[c]; ok {
-		return l
-	}
-	return fmt.Sprintf("%q", string(c))
-}
+func (c Channel) Label() string { return channelLabels.Label(c) }
 
 // Outcome is what came of one contact attempt. Values are stored.
 type Outcome string
@@ -63,7 +54,7 @@ const (
 	OutcomeDeclined    Outcome = "declined"
 )
 
-var outcomeLabels = map[Outcome]string{
+var outcomeLabels = cohort.Words[Outcome]{
 	OutcomeReached:     "reached",
 	OutcomeNoAnswer:    "no answer",
 	OutcomeMessageLeft: "message left",
@@ -78,23 +69,14 @@ func Outcomes() []Outcome {
 
 // ParseOutcome reads a stored or submitted outcome value.
 func ParseOutcome(s string) (Outcome, error) {
-	o := Outcome(strings.TrimSpace(s))
-	if !o.Valid() {
-		return "", fmt.Errorf("followup: unknown contact outcome %q", s)
-	}
-	return o, nil
+	return outcomeLabels.Parse(s, "followup: unknown contact outcome")
 }
 
 // Valid reports whether o is a defined outcome.
-func (o Outcome) Valid() bool { _, ok := outcomeLabels[o]; return ok }
+func (o Outcome) Valid() bool { return outcomeLabels.Valid(o) }
 
 // Label is the wording shown on pages; unknown values are shown quoted.
-func (o Outcome) Label() string {
-	if l, ok := outcomeLabels[o]; ok {
-		return l
-	}
-	return fmt.Sprintf("%q", string(o))
-}
+func (o Outcome) Label() string { return outcomeLabels.Label(o) }
 
 // Unanswered reports whether the attempt failed to get a conversation; only
 // such attempts count toward suggesting that a case be closed as unreachable.

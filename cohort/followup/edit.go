@@ -107,6 +107,9 @@ func (c *CaseFacts) Enter(to State, at time.Time) {
 		if c.RecordingReceivedAt.IsZero() {
 			c.RecordingReceivedAt = at
 		}
+		if from == OverRead {
+			c.OverReadAt = time.Time{} // the over-read it had was withdrawn
+		}
 	case OverRead:
 		if c.OverReadAt.IsZero() {
 			c.OverReadAt = at

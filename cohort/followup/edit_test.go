@@ -26,6 +26,7 @@ func TestEnterRecordsTheStepTimes(t *testing.T) {
 			CaseFacts{State: RecordingReceived, RecorderSentAt: t0, RecordingReceivedAt: t1}},
 		{"over-read", CaseFacts{State: RecordingReceived}, OverRead, CaseFacts{State: OverRead, OverReadAt: t1}},
 		{"closing records no step", CaseFacts{State: OverRead, OverReadAt: t0}, Referred, CaseFacts{State: Referred, OverReadAt: t0}},
+		{"over-read withdrawn", CaseFacts{State: OverRead, RecordingReceivedAt: t0, OverReadAt: t1}, RecordingReceived, CaseFacts{State: RecordingReceived, RecordingReceivedAt: t0}},
 		{"contacting records no step", CaseFacts{State: Open}, Contacting, CaseFacts{State: Contacting}},
 	} {
 		got := c.from

@@ -84,7 +84,7 @@ const (
 	ActionReferOrClose       Action = "refer_or_close"
 )
 
-var actionLabels = map[Action]string{
+var actionLabels = cohort.Words[Action]{
 	ActionFirstContact:       "make the first contact attempt",
 	ActionNextAttempt:        "try to reach the participant again",
 	ActionSuggestUnreachable: "consider closing as unreachable",
@@ -96,12 +96,7 @@ var actionLabels = map[Action]string{
 }
 
 // Label is the wording shown on pages; unknown values are shown quoted.
-func (a Action) Label() string {
-	if l, ok := actionLabels[a]; ok {
-		return l
-	}
-	return fmt.Sprintf("%q", string(a))
-}
+func (a Action) Label() string { return actionLabels.Label(a) }
 
 // CaseFacts are the recorded facts NextDue works from. Zero times are unset.
 type CaseFacts struct {

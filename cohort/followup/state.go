@@ -61,6 +61,10 @@ var allStates = []State{
 //     verdict) a repeat recording is requested. An uninterpretable verdict is
 //     stored with the recording but does not move the case to OverRead; OverRead
 //     means an interpretable verdict exists, which is what the PPV counts.
+//   - OverRead may go back to RecordingReceived when its reader withdraws or
+//     amends the reading that made it, and no recording of the case has a
+//     settled interpretable over-read any more (the system's move; nobody
+//     makes it by hand, see HandMoves).
 //   - Every non-final state may go to ClosedWithdrawn: consent can be withdrawn
 //     at any time.
 //   - Final states have no moves. A later positive week opens a new case
@@ -72,7 +76,7 @@ var stateTable = map[State]stateInfo{
 	Reached:            {"reached", false, []State{RecorderSent, ClosedDeclined, ClosedWithdrawn}},
 	RecorderSent:       {"recorder sent", false, []State{RecordingReceived, ClosedUnreachable, ClosedDeclined, ClosedWithdrawn}},
 	RecordingReceived:  {"recording received", false, []State{OverRead, RecorderSent, ClosedDeclined, ClosedWithdrawn}},
-	OverRead:           {"over-read", false, []State{Referred, ClosedNotConfirmed, ClosedWithdrawn}},
+	OverRead:           {"over-read", false, []State{Referred, ClosedNotConfirmed, ClosedWithdrawn, RecordingReceived}},
 	Referred:           {"referred", true, nil},
 	ClosedNotConfirmed: {"closed (not confirmed)", true, nil},
 	ClosedUnreachable:  {"closed (unreachable)", true, nil},

@@ -19,7 +19,7 @@ var wantNext = map[State][]State{
 	Reached:            {RecorderSent, ClosedDeclined, ClosedWithdrawn},
 	RecorderSent:       {RecordingReceived, ClosedUnreachable, ClosedDeclined, ClosedWithdrawn},
 	RecordingReceived:  {OverRead, RecorderSent, ClosedDeclined, ClosedWithdrawn},
-	OverRead:           {Referred, ClosedNotConfirmed, ClosedWithdrawn},
+	OverRead:           {Referred, ClosedNotConfirmed, ClosedWithdrawn, RecordingReceived}, // back when the reading is withdrawn
 	Referred:           nil,
 	ClosedNotConfirmed: nil,
 	ClosedUnreachable:  nil,

@@ -22,6 +22,8 @@ const (
 	StepMove      Step = "move"      // move the case to another working state
 	StepClose     Step = "close"     // end the case, with the reason
 	StepNote      Step = "note"      // change the short working note
+	StepOverRead  Step = "over_read" // read a recording of the case (on the recording's page)
+	StepSignOff   Step = "sign_off"  // sign the case's referral summary off, which refers the case
 )
 
 // WorksCases is the rule for who works cases: who may own one, take it on,
@@ -37,6 +39,10 @@ func WorksCases(r cohort.Role) bool {
 func ReachesParticipants(r cohort.Role) bool {
 	return r == cohort.Coordinator || r == cohort.Admin
 }
+
+// Clinical is the rule for the clinicians' steps: reading recordings and
+// signing referral summaries off are the investigators'.
+func Clinical(r cohort.Role) bool { return r == cohort.Investigator }
 
 // CaseWorkerRoles lists the roles WorksCases admits, for a query that picks
 // the people a case may be given to.
@@ -68,12 +74,48 @@ func oneOf(states ...State) func(State) bool {
 
 func never(State) bool { return false }
 
-// hasNext reports whether some allowed move of st leads to a final state
-// (final true) or to a working state (final false).
+// hasNext reports whether some move of st a person may make by hand
+// (HandMoves) leads to a final state (final true) or to a working state
+// (final false).
 func hasNext(final bool) func(State) bool {
 	return func(st State) bool {
-		return slices.ContainsFunc(Next(st), func(n State) bool { return n.Terminal() == final })
+		return slices.ContainsFunc(HandMoves(st), func(n State) bool { return n.Terminal() == final })
 	}
+}
+
+// stepReaches are the states a step of its own moves a case to. Such a state
+// is reached through its step only, never by a plain move or closing: the
+// shipment's date and tracking number, the return's date and the referral
+// summary's sign-off are what the state stands for.
+var stepReaches = map[State]struct {
+	step Step
+	how  string
+}{
+	RecorderSent:      {StepShipment, "record the recorder's shipment"},
+	RecordingReceived: {StepReturn, "record the recording's return (adding the recording does it too)"},
+	Referred:          {StepSignOff, "an investigator signs the case's referral summary off"},
+}
+
+// HandMoves lists the states a person may move or close a case in state from
+// to by hand, in the order to offer them: the state table's moves (Next)
+// without the states a step of their own reaches.
+func HandMoves(from State) []State {
+	var out []State
+	for _, n := range Next(from) {
+		if _, ok := stepReaches[n]; !ok {
+			out = append(out, n)
+		}
+	}
+	return out
+}
+
+// CheckHandMove checks a move or closing made by hand: CheckMove's rules,
+// and a state with a step of its own is refused with the way to reach it.
+func CheckHandMove(from, to State, reason string, closing bool) error {
+	if r, ok := stepReaches[to]; ok && from.Valid() && !from.Terminal() {
+		return &cohort.ValidationError{Fields: map[string]string{"state": fmt.Sprintf("a case becomes %s only one way: %s", to.Label(), r.how)}}
+	}
+	return CheckMove(from, to, reason, closing)
 }
 
 // stepTable is the one answer to "which steps does a case in this state
@@ -91,6 +133,13 @@ func hasNext(final bool) func(State) bool {
 //     sent (the state table's way back from "recording received").
 //   - A recording can be added once the recorder went out and until the case
 //     ends: a repeat recording may follow an unusable one or an over-read.
+//   - Moves and closings by hand offer only the states no step of their own
+//     reaches (HandMoves): "recorder sent", "recording received" and
+//     "referred" come from the shipment, the return and the sign-off.
+//   - Investigators read a case's recordings once the recorder went out (a
+//     second reading may follow the case's over-read); the triage row offers
+//     it where the case waits for it. They sign a referral summary off once
+//     the case is over-read (web/referrals.go; the summary must report AF).
 var stepTable = []stepRule{
 	{StepAssign, WorksCases, working, working},
 	{StepAttempt, ReachesParticipants, working, oneOf(Open, Contacting, RecorderSent)},
@@ -100,6 +149,8 @@ var stepTable = []stepRule{
 	{StepMove, WorksCases, hasNext(false), never},
 	{StepClose, WorksCases, hasNext(true), never},
 	{StepNote, WorksCases, working, never},
+	{StepOverRead, Clinical, oneOf(RecorderSent, RecordingReceived, OverRead), oneOf(RecordingReceived)},
+	{StepSignOff, Clinical, oneOf(OverRead), never},
 }
 
 // Offers lists the steps a case in state st offers to a person in role r,
@@ -151,9 +202,6 @@ func (s Step) OfferedIn(st State) bool {
 	return false
 }
 
-// stepMoves are the states the steps that move a case move it to.
-var stepMoves = map[Step]State{StepShipment: RecorderSent, StepReturn: RecordingReceived}
-
 // CheckStep refuses step s on a case in state st when the step table does
 // not offer it there. For a step that moves the case the message is Move's,
 // naming the allowed next states.
@@ -161,9 +209,11 @@ func CheckStep(st State, s Step) error {
 	if s.OfferedIn(st) {
 		return nil
 	}
-	if to, ok := stepMoves[s]; ok {
-		if err := Move(st, to); err != nil {
-			return err
+	for to, r := range stepReaches {
+		if r.step == s {
+			if err := Move(st, to); err != nil {
+				return err
+			}
 		}
 	}
 	return &cohort.ValidationError{Fields: map[string]string{"state": fmt.Sprintf("a case that is %s does not take this step", st.Label())}}

@@ -14,15 +14,24 @@ import (
 var wantCoordinatorOffers = map[State][]Step{
 	Open:               {StepAssign, StepAttempt, StepMove, StepClose, StepNote},
 	Contacting:         {StepAssign, StepAttempt, StepMove, StepClose, StepNote},
-	Reached:            {StepAssign, StepAttempt, StepShipment, StepMove, StepClose, StepNote},
-	RecorderSent:       {StepAssign, StepAttempt, StepShipment, StepReturn, StepRecording, StepMove, StepClose, StepNote},
-	RecordingReceived:  {StepAssign, StepAttempt, StepShipment, StepRecording, StepMove, StepClose, StepNote}, // a repeat shipment
-	OverRead:           {StepAssign, StepAttempt, StepRecording, StepClose, StepNote},                         // every way on from an over-read ends the case
+	Reached:            {StepAssign, StepAttempt, StepShipment, StepClose, StepNote},                            // "recorder sent" only by the shipment
+	RecorderSent:       {StepAssign, StepAttempt, StepShipment, StepReturn, StepRecording, StepClose, StepNote}, // "recording received" only by the return
+	RecordingReceived:  {StepAssign, StepAttempt, StepShipment, StepRecording, StepMove, StepClose, StepNote},   // a repeat shipment
+	OverRead:           {StepAssign, StepAttempt, StepRecording, StepClose, StepNote},                           // every way on from an over-read ends the case
 	Referred:           nil,
 	ClosedNotConfirmed: nil,
 	ClosedUnreachable:  nil,
 	ClosedDeclined:     nil,
 	ClosedWithdrawn:    nil,
+}
+
+// wantClinical are the investigators' own steps: reading the case's
+// recordings once the recorder went out, signing the summary off once the
+// case is over-read.
+var wantClinical = map[State][]Step{
+	RecorderSent:      {StepOverRead},
+	RecordingReceived: {StepOverRead},
+	OverRead:          {StepOverRead, StepSignOff},
 }
 
 // wantQuick are the one-click steps of a coordinator's triage row: taking the
@@ -61,14 +70,14 @@ func TestOffersByStateAndRole(t *testing.T) {
 		}{
 			{cohort.Coordinator, coord},
 			{cohort.Admin, coord},
-			{cohort.Investigator, without(coord, contactSteps)},
+			{cohort.Investigator, append(without(coord, contactSteps), wantClinical[st]...)},
 			{cohort.Monitor, nil},
 			{cohort.Role("visitor"), nil},
 		} {
 			if got := Offers(st, c.role); !slices.Equal(got, c.want) {
 				t.Errorf("Offers(%s, %s) = %v, want %v", st, c.role, got, c.want)
 			}
-			for _, s := range append(slices.Clone(coord), StepReturn) {
+			for _, s := range append(slices.Clone(coord), StepReturn, StepOverRead, StepSignOff) {
 				if got, want := Offered(st, c.role, s), slices.Contains(c.want, s); got != want {
 					t.Errorf("Offered(%s, %s, %s) = %v, want %v", st, c.role, s, got, want)
 				}
@@ -76,6 +85,9 @@ func TestOffersByStateAndRole(t *testing.T) {
 			wantQ := wantQuick[st]
 			if c.role == cohort.Investigator {
 				wantQ = without(wantQ, contactSteps)
+				if st == RecordingReceived {
+					wantQ = append(wantQ, StepOverRead) // "read the ECG" from the row
+				}
 			}
 			if c.role == cohort.Monitor || c.role == "visitor" {
 				wantQ = nil
@@ -173,5 +185,46 @@ func TestCheckStep(t *testing.T) {
 		if (c.contains == "") != (got == "") || !strings.Contains(got, c.contains) {
 			t.Errorf("CheckStep(%s, %s) = %q, want %q", c.st, c.step, got, c.contains)
 		}
+	}
+}
+
+// TestStatesWithAStepAreReachedByIt: "recorder sent", "recording received"
+// and "referred" are reached by the shipment, the return and the sign-off,
+// never by a plain move or closing, so the case page offers one way to each
+// (finding: "Move to recording received" repeated "Record return", and a case
+// could be closed as referred without a signed summary).
+func TestStatesWithAStepAreReachedByIt(t *testing.T) {
+	for _, st := range States() {
+		for _, n := range HandMoves(st) {
+			if n == RecorderSent || n == RecordingReceived || n == Referred {
+				t.Errorf("HandMoves(%s) offers %s", st, n)
+			}
+			if !CanMove(st, n) {
+				t.Errorf("HandMoves(%s) offers %s, which the state table does not allow", st, n)
+			}
+		}
+	}
+	if got, want := HandMoves(OverRead), []State{ClosedNotConfirmed, ClosedWithdrawn}; !slices.Equal(got, want) {
+		t.Errorf("HandMoves(over-read) = %v, want %v", got, want)
+	}
+	for _, c := range []struct {
+		from, to State
+		closing  bool
+		contains string
+	}{
+		{OverRead, Referred, true, "an investigator signs the case's referral summary off"},
+		{RecorderSent, RecordingReceived, false, "record the recording's return"},
+		{Reached, RecorderSent, false, "record the recorder's shipment"},
+		{OverRead, ClosedNotConfirmed, true, ""},
+		{Contacting, Reached, false, ""},
+	} {
+		got := fields(t, CheckHandMove(c.from, c.to, "a reason", c.closing))["state"]
+		if (c.contains == "") != (got == "") || !strings.Contains(got, c.contains) {
+			t.Errorf("CheckHandMove(%s, %s) = %q, want %q", c.from, c.to, got, c.contains)
+		}
+	}
+	// The system's own moves (a sign-off, a return) still pass CheckMove.
+	if err := CheckMove(OverRead, Referred, "referral summary 3 signed off", false); err != nil {
+		t.Errorf("the sign-off's move is refused: %v", err)
 	}
 }

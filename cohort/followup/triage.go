@@ -10,7 +10,8 @@ import (
 // Urgency implements; change both together.
 const OrderRule = "How this list is ordered: overdue cases first, the most overdue at the top; " +
 	"then cases due today, earliest deadline first; then new flags that nobody has taken on yet, " +
-	"oldest flag first; then recordings waiting for an over-read, oldest recording first; " +
+	"oldest flag first; then cases with a recording waiting for an over-read, oldest recording first; " +
+	"then your own other cases, coming due, earliest deadline first; " +
 	"then all other cases by due date, cases with nothing due last. " +
 	"Cases that tie are listed by study ID."
 
@@ -23,6 +24,11 @@ type TriageItem struct {
 	FlaggedAt           time.Time // when the episode was flagged
 	RecordingReceivedAt time.Time // when the recording arrived; zero when none
 	Due                 time.Time // next action's deadline from NextDue; zero when nothing is due
+	// AwaitingReads counts the case's recordings waiting for an over-read
+	// (overread.Awaits).
+	AwaitingReads int
+	// Mine marks a case the person the list is for has taken on.
+	Mine bool
 }
 
 // Bucket is the group a triage item falls in; lower buckets come first.
@@ -34,7 +40,8 @@ const (
 	BucketDueToday         Bucket = 2
 	BucketNewUnowned       Bucket = 3
 	BucketAwaitingOverRead Bucket = 4
-	BucketOther            Bucket = 5
+	BucketMine             Bucket = 5
+	BucketOther            Bucket = 6
 )
 
 // Label names the group for a heading or a badge.
@@ -48,6 +55,8 @@ func (b Bucket) Label() string {
 		return "new, not taken on"
 	case BucketAwaitingOverRead:
 		return "waiting for an over-read"
+	case BucketMine:
+		return "yours, coming due"
 	case BucketOther:
 		return "scheduled"
 	}
@@ -91,9 +100,10 @@ func (k Key) Compare(o Key) int {
 // Overdue means a deadline at or before now; the earliest deadline is the most
 // overdue. Due today means a deadline after now but no later than the next
 // local midnight, which includes deadlines from AddWorkingDays falling due at
-// the end of today. New flags are open cases without an owner; recordings
-// waiting for an over-read are cases in "recording received". The first group
-// that fits wins, so an overdue new flag is listed as overdue.
+// the end of today. New flags are open cases without an owner; cases waiting
+// for an over-read hold a recording waiting for one. The person's own cases
+// with nothing urgent come next, so a case they took on stays in sight. The
+// first group that fits wins, so an overdue new flag is listed as overdue.
 func Urgency(item TriageItem, now time.Time) Key {
 	k := Key{StudyID: item.StudyID, CaseID: item.CaseID}
 	y, m, d := now.Date()
@@ -105,8 +115,10 @@ func Urgency(item TriageItem, now time.Time) Key {
 		k.Bucket, k.At = BucketDueToday, item.Due
 	case item.State == Open && item.Owner == "":
 		k.Bucket, k.At = BucketNewUnowned, item.FlaggedAt
-	case item.State == RecordingReceived:
+	case item.AwaitingReads > 0:
 		k.Bucket, k.At = BucketAwaitingOverRead, item.RecordingReceivedAt
+	case item.Mine:
+		k.Bucket, k.At, k.Undated = BucketMine, item.Due, item.Due.IsZero()
 	default:
 		k.Bucket, k.At, k.Undated = BucketOther, item.Due, item.Due.IsZero()
 	}

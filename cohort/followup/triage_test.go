@@ -34,8 +34,12 @@ func triageList(tb testing.TB) (items []TriageItem, now time.Time) {
 		{CaseID: "c11", StudyID: "S-0100", State: Open, FlaggedAt: t("2026-04-14 08:00"), Due: t("2026-04-17 00:00")},
 		{CaseID: "c12", StudyID: "S-0200", State: Open, FlaggedAt: t("2026-04-14 08:00"), Due: t("2026-04-17 00:00")}, // same flag time: by study ID
 		// recordings waiting for an over-read, oldest recording first
-		{CaseID: "c13", StudyID: "S-0400", State: RecordingReceived, Owner: "coord-1", RecordingReceivedAt: t("2026-04-10 12:00"), Due: t("2026-04-18 00:00")},
-		{CaseID: "c14", StudyID: "S-0050", State: RecordingReceived, RecordingReceivedAt: t("2026-04-13 12:00"), Due: t("2026-04-21 00:00")},
+		{CaseID: "c13", StudyID: "S-0400", State: RecordingReceived, Owner: "coord-1", RecordingReceivedAt: t("2026-04-10 12:00"), Due: t("2026-04-18 00:00"), AwaitingReads: 1},
+		{CaseID: "c14", StudyID: "S-0050", State: RecordingReceived, RecordingReceivedAt: t("2026-04-13 12:00"), Due: t("2026-04-21 00:00"), AwaitingReads: 2},
+		// the person's own cases with nothing urgent, earliest deadline first
+		{CaseID: "c19", StudyID: "S-0900", State: Reached, Owner: "me", Due: t("2026-04-17 00:00"), Mine: true},
+		{CaseID: "c20", StudyID: "S-0800", State: RecordingReceived, Owner: "me", Due: t("2026-04-20 00:00"), Mine: true}, // its recording read: a repeat is due
+		{CaseID: "c21", StudyID: "S-0100", State: OverRead, Owner: "me", Mine: true},                                      // nothing due: last of the group
 		// the rest by due date, nothing due last
 		{CaseID: "c15", StudyID: "S-0600", State: Open, Owner: "coord-2", FlaggedAt: t("2026-04-01 08:00"), Due: t("2026-04-17 00:00")},
 		{CaseID: "c16", StudyID: "S-0060", State: RecorderSent, Owner: "coord-3", Due: t("2026-04-27 00:00")},
@@ -77,6 +81,7 @@ func TestUrgencyBuckets(t *testing.T) {
 		"c07": BucketDueToday, "c08": BucketDueToday, "c09": BucketDueToday,
 		"c10": BucketNewUnowned, "c11": BucketNewUnowned, "c12": BucketNewUnowned,
 		"c13": BucketAwaitingOverRead, "c14": BucketAwaitingOverRead,
+		"c19": BucketMine, "c20": BucketMine, "c21": BucketMine,
 		"c15": BucketOther, "c16": BucketOther, "c17": BucketOther, "c18": BucketOther,
 	}
 	for _, it := range items {
@@ -132,7 +137,7 @@ func TestOrderRuleWording(t *testing.T) {
 	}
 	// The sentence names the groups in the order Urgency uses them.
 	last := -1
-	for _, phrase := range []string{"overdue", "due today", "new flags", "over-read", "all other cases", "study ID"} {
+	for _, phrase := range []string{"overdue", "due today", "new flags", "over-read", "your own", "all other cases", "study ID"} {
 		i := strings.Index(OrderRule, phrase)
 		if i <= last {
 			t.Errorf("%q missing or out of order in OrderRule", phrase)

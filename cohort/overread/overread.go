@@ -18,7 +18,7 @@ const (
 	Uninterpretable Rhythm = "uninterpretable"
 )
 
-var rhythmLabels = map[Rhythm]string{
+var rhythmLabels = cohort.Words[Rhythm]{
 	AF:              "atrial fibrillation",
 	Flutter:         "atrial flutter",
 	Sinus:           "sinus rhythm",
@@ -30,15 +30,10 @@ var rhythmLabels = map[Rhythm]string{
 func Rhythms() []Rhythm { return []Rhythm{AF, Flutter, Sinus, Other, Uninterpretable} }
 
 // Valid reports whether r is a defined verdict.
-func (r Rhythm) Valid() bool { _, ok := rhythmLabels[r]; return ok }
+func (r Rhythm) Valid() bool { return rhythmLabels.Valid(r) }
 
 // Label is the wording on pages; unknown values are shown quoted.
-func (r Rhythm) Label() string {
-	if l, ok := rhythmLabels[r]; ok {
-		return l
-	}
-	return fmt.Sprintf("%q", string(r))
-}
+func (r Rhythm) Label() string { return rhythmLabels.Label(r) }
 
 // Interpretable reports whether the verdict names a rhythm. Only an
 // interpretable verdict moves a case on to "over-read"; an uninterpretable one
@@ -79,7 +74,7 @@ const (
 	AutoUnreadable   Auto = "unreadable"
 )
 
-var autoLabels = map[Auto]string{
+var autoLabels = cohort.Words[Auto]{
 	AutoNone:         "none given",
 	AutoAF:           "possible AF",
 	AutoSinus:        "sinus rhythm",
@@ -91,15 +86,10 @@ var autoLabels = map[Auto]string{
 func Autos() []Auto { return []Auto{AutoNone, AutoAF, AutoSinus, AutoUnclassified, AutoUnreadable} }
 
 // Valid reports whether a is a defined automatic interpretation.
-func (a Auto) Valid() bool { _, ok := autoLabels[a]; return ok }
+func (a Auto) Valid() bool { return autoLabels.Valid(a) }
 
 // Label is the wording on pages.
-func (a Auto) Label() string {
-	if l, ok := autoLabels[a]; ok {
-		return l
-	}
-	return fmt.Sprintf("%q", string(a))
-}
+func (a Auto) Label() string { return autoLabels.Label(a) }
 
 // Role is the place of a reading in the double-reading scheme. The string
 // value is stored.
@@ -112,18 +102,14 @@ const (
 	Adjudication Role = "adjudication"
 )
 
-// Label is the wording on pages.
-func (r Role) Label() string {
-	switch r {
-	case First:
-		return "first reading"
-	case Second:
-		return "second reading"
-	case Adjudication:
-		return "adjudication"
-	}
-	return fmt.Sprintf("%q", string(r))
+var roleLabels = cohort.Words[Role]{
+	First:        "first reading",
+	Second:       "second reading",
+	Adjudication: "adjudication",
 }
+
+// Label is the wording on pages; unknown values are shown quoted.
+func (r Role) Label() string { return roleLabels.Label(r) }
 
 // ReaderLabel words who gave a reading of this role, as a referral summary
 // names the reader of its verdict.
@@ -197,6 +183,15 @@ type Conclusion struct {
 // moves a case to "over-read" and what the figures count as an over-read.
 func (v Conclusion) Diagnostic(tooShort bool) bool {
 	return v.Final && v.Rhythm.Interpretable() && !tooShort
+}
+
+// ConfirmsAF is the one rule for a confirmed AF: a diagnostic recording
+// (Diagnostic) whose readings settle on atrial fibrillation. Two readers who
+// disagree settle nothing until an adjudication, so a disputed AF reading
+// confirms nothing. It is what makes a case ready to refer, what a referral's
+// sign-off requires, and what the figures count as AF confirmed.
+func (v Conclusion) ConfirmsAF(tooShort bool) bool {
+	return v.Diagnostic(tooShort) && v.Rhythm == AF
 }
 
 // byRole picks the readings apart and checks there is at most one of each.
@@ -362,3 +357,14 @@ func RhythmCategory(r Rhythm) (c Category, ok bool) {
 const CategoryMapping = "Categories compared: AF (recorder: possible AF; reader: atrial fibrillation), " +
 	"sinus rhythm (both), other or unclassified (recorder: unclassified; reader: atrial flutter or other arrhythmia), " +
 	"unreadable (recorder: unreadable; reader: uninterpretable). Recordings without an automatic interpretation are left out."
+
+// Awaits is the one rule for a recording waiting for an over-read: it has
+// no current reading, its case is still being worked (a case that ended
+// needs no more reads; its recordings leave the queue), and nobody marked
+// it as needing none (a repeat replaced it, say). Every page and file that
+// counts recordings waiting for an over-read counts these; the store
+// applies the rule in SQL (db.awaitingRead), and a test holds the two
+// together.
+func Awaits(c Conclusion, caseEnded, notNeeded bool) bool {
+	return c.Status == Unread && !caseEnded && !notNeeded
+}

@@ -170,3 +170,34 @@ func TestDiagnostic(t *testing.T) {
 		}
 	}
 }
+
+// TestConfirmsAF checks the confirmed-AF rule on resolved readings: a first
+// reading of AF alone confirms; a second reader who disagrees takes the
+// confirmation away until an adjudication settles on AF; a short recording or
+// another rhythm never confirms. The rules are the study's double-reading
+// scheme (common practice) and the 30 s minimum (from memory, as above).
+func TestConfirmsAF(t *testing.T) {
+	for _, tc := range []struct {
+		name     string
+		in       []Reading
+		tooShort bool
+		want     bool
+	}{
+		{"first reads AF", []Reading{rd(First, AF, Certain, 1, d1)}, false, true},
+		{"first AF, second sinus, no adjudication", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Sinus, Certain, 2, d2)}, false, false},
+		{"adjudicated AF", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Sinus, Certain, 2, d2), rd(Adjudication, AF, Probable, 3, d3)}, false, true},
+		{"adjudicated sinus", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, Sinus, Certain, 2, d2), rd(Adjudication, Sinus, Probable, 3, d3)}, false, false},
+		{"agreed AF", []Reading{rd(First, AF, Certain, 1, d1), rd(Second, AF, Probable, 2, d2)}, false, true},
+		{"AF on a short recording", []Reading{rd(First, AF, Certain, 1, d1)}, true, false},
+		{"flutter", []Reading{rd(First, Flutter, Certain, 1, d1)}, false, false},
+		{"unread", nil, false, false},
+	} {
+		v, err := Resolve(tc.in)
+		if err != nil {
+			t.Fatalf("%s: %v", tc.name, err)
+		}
+		if got := v.ConfirmsAF(tc.tooShort); got != tc.want {
+			t.Errorf("%s: ConfirmsAF = %v, want %v", tc.name, got, tc.want)
+		}
+	}
+}

@@ -23,6 +23,22 @@ type Summary struct {
 	Risk           RiskView       `json:"risk"`
 	ContactRoute   string         `json:"contact_route"`
 	Cautions       []string       `json:"cautions"`
+	// Draft marks a summary issued and waiting for an investigator's
+	// sign-off: it is printed as a draft and may not be sent. SignOff is
+	// set once an investigator signed it off (Sign). Summaries issued before
+	// drafts existed carry neither, so their content, digest and PDF are
+	// what they were.
+	Draft   bool         `json:"draft,omitempty"`
+	SignOff *SignOffView `json:"sign_off,omitempty"`
+}
+
+// SignOffView is who signed a summary off and on which study day. The signer
+// is a member of the study staff, named because the physician needs to know
+// who vouches for the summary; the day is a study day like every other date
+// of the summary.
+type SignOffView struct {
+	By       string `json:"by"`
+	StudyDay int    `json:"study_day"`
 }
 
 // WeekView is a flagged week as the summary shows it.

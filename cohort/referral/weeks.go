@@ -58,7 +58,7 @@ func MostIrregular(weeks []Week) int {
 }
 
 func weekView(w Week, most bool) WeekView {
-	v := WeekView{StudyWeek: w.Week, FirstDay: 7 * w.Week, LastDay: 7*w.Week + 6, Verdict: w.Verdict, Reason: w.Reason,
+	v := WeekView{StudyWeek: w.Week, FirstDay: 7 * w.Week, LastDay: 7*w.Week + 6, Verdict: w.Verdict.Label(), Reason: w.Reason,
 		WearHours: round(w.WearHours, 1), MostIrregular: most}
 	for _, wr := range w.Result.Windows {
 		v.Metrics = append(v.Metrics, Metric{

@@ -33,10 +33,18 @@ type Params struct {
 	// series; default 1.96, the two-sided 95% normal band (implementations
 	// differ, from memory).
 	TPRBandSD float64 `json:"tpr_band_sd"`
+	// ExactBins bins whole-millisecond intervals in exact integer
+	// arithmetic, so a value on an interior bin edge goes to the upper bin
+	// as a standard histogram puts it. Without it the edges are computed in
+	// floating point, as the first version of the screen did, and a value
+	// on an edge may land in the lower bin. It is not a stored parameter:
+	// screen.Protocol.RRParams sets it from the protocol's algorithm
+	// revision, so results stored under the first rule recompute exactly.
+	ExactBins bool `json:"-"`
 }
 
 // DefaultParams returns the published-method defaults (all "from memory", see
-// the field comments).
+// the field comments). ExactBins is left to the caller (see its comment).
 func DefaultParams() Params {
 	return Params{
 		SegmentBeats: 128,  // from memory, Dash 2009
@@ -129,11 +137,16 @@ func mean(x []float64) float64 {
 // entropy bins the intervals left after removing the trim shortest and trim
 // longest into bins equal-width bins spanning their range, and returns
 // -sum(p ln p) / ln(bins), which is 1 for an even spread over all bins and 0
-// when every interval falls in one bin. The scratch space is the caller's so
-// Analyse does not allocate per segment: buf has len(rr) elements, counts has
-// bins elements. Params.Validate keeps bins at 2 or more and leaves intervals
-// after trimming.
-func entropy(rr []float64, bins, trim int, buf []float64, counts []int) float64 {
+// when every interval falls in one bin. Bin k is [lo + k w, lo + (k+1) w)
+// with w = (hi - lo) / bins, and the last bin also holds hi (the convention
+// of a standard histogram). With exact set and whole-millisecond data the
+// bin of v is floor((v - lo) bins / (hi - lo)) in integer arithmetic, so a
+// value on an interior edge goes to the upper bin without fail; otherwise
+// the edges are computed in floating point. The scratch space is the
+// caller's so Analyse does not allocate per segment: buf has len(rr)
+// elements, counts has bins elements. Params.Validate keeps bins at 2 or
+// more and leaves intervals after trimming.
+func entropy(rr []float64, bins, trim int, buf []float64, counts []int, exact bool) float64 {
 	copy(buf, rr)
 	slices.Sort(buf)
 	kept := buf[trim : len(buf)-trim]
@@ -142,13 +155,24 @@ func entropy(rr []float64, bins, trim int, buf []float64, counts []int) float64 
 		return 0
 	}
 	clear(counts)
-	scale := float64(bins) / (hi - lo)
-	for _, v := range kept {
-		k := int((v - lo) * scale)
-		if k >= bins { // the maximum lands on the upper edge of the last bin
-			k = bins - 1
+	if exact && wholeMillis(kept) {
+		ilo, span, nb := int64(lo), int64(hi)-int64(lo), int64(bins)
+		for _, v := range kept {
+			k := (int64(v) - ilo) * nb / span
+			if k >= nb { // the maximum lands on the upper edge of the last bin
+				k = nb - 1
+			}
+			counts[k]++
 		}
-		counts[k]++
+	} else {
+		scale := float64(bins) / (hi - lo)
+		for _, v := range kept {
+			k := int((v - lo) * scale)
+			if k >= bins { // the maximum lands on the upper edge of the last bin
+				k = bins - 1
+			}
+			counts[k]++
+		}
 	}
 	n := float64(len(kept))
 	var h float64
@@ -159,6 +183,24 @@ func entropy(rr []float64, bins, trim int, buf []float64, counts []int) float64 
 		}
 	}
 	return h / math.Log(float64(bins))
+}
+
+// maxExactMillis bounds the intervals binned in integers: (v - lo) * bins
+// stays far inside int64 for any interval a heart produces.
+const maxExactMillis = 1 << 40
+
+// wholeMillis reports whether every (sorted) value is a whole number of
+// milliseconds within maxExactMillis.
+func wholeMillis(sorted []float64) bool {
+	if sorted[0] < -maxExactMillis || sorted[len(sorted)-1] > maxExactMillis {
+		return false
+	}
+	for _, v := range sorted {
+		if v != math.Trunc(v) {
+			return false
+		}
+	}
+	return true
 }
 
 // TurningPoints counts the interior points that are a strict local maximum or
@@ -237,7 +279,7 @@ func AppendAnalyse(dst []Segment, rr []float64, p Params) []Segment {
 		s := Segment{
 			Start:         start,
 			NRMSSD:        NormalisedRMSSD(seg),
-			Entropy:       entropy(seg, p.Bins, p.Trim, buf, counts),
+			Entropy:       entropy(seg, p.Bins, p.Trim, buf, counts, p.ExactBins),
 			TurningPoints: TurningPoints(seg),
 		}
 		s.TPR = float64(s.TurningPoints) / float64(m-2)

@@ -53,12 +53,65 @@ func TestNormalisedRMSSD(t *testing.T) {
 
 // shannonEntropy is entropy with its own scratch space and the guards
 // Params.Validate gives Analyse: 0 when bins < 2 or nothing is left after
-// trimming. The input is not modified.
+// trimming, binned exactly (the current rule). The input is not modified.
 func shannonEntropy(rr []float64, bins, trim int) float64 {
+	return shannonEntropyRule(rr, bins, trim, true)
+}
+
+func shannonEntropyRule(rr []float64, bins, trim int, exact bool) float64 {
 	if bins < 2 || trim < 0 || len(rr)-2*trim < 1 {
 		return 0
 	}
-	return entropy(rr, bins, trim, make([]float64, len(rr)), make([]int, bins))
+	return entropy(rr, bins, trim, make([]float64, len(rr)), make([]int, bins), exact)
+}
+
+// A whole-millisecond value on an interior bin edge goes to the upper bin,
+// as a standard histogram puts it (numpy.histogram's half-open bins [a, b),
+// the last one closed; from memory). 600..698 ms in 16 bins has edges every
+// 6.125 ms: edge 8 is 600 + 8 x 98/16 = 649 exactly (hand-worked), so 649
+// opens bin 8 and 648 (bin 7.84) stays in bin 7. In floating point 16/98 x
+// 49 comes out just under 8 and 649 falls into bin 7.
+func TestEntropyExactBinsOnEdges(t *testing.T) {
+	series := []float64{600, 648, 649, 698}
+	// Exact: one value in each of bins 0, 7, 8, 15: ln 4 / ln 16 = 0.5.
+	if got := shannonEntropy(series, 16, 0); !near(got, 0.5, 1e-12) {
+		t.Errorf("exact entropy = %.10f, want 0.5 (649 in bin 8)", got)
+	}
+	// The first rule (floating-point edges), kept for results stored under
+	// it: 648 and 649 share bin 7, shares 1/4, 1/2, 1/4:
+	// -(2 x 0.25 ln 0.25 + 0.5 ln 0.5) / ln 16 = 0.375.
+	if got := shannonEntropyRule(series, 16, 0, false); !near(got, 0.375, 1e-12) {
+		t.Errorf("first-rule entropy = %.10f, want 0.375 (649 in bin 7)", got)
+	}
+	// Every edge of every range 600..600+span is an exact edge: count, per
+	// value, the bin an exact rational comparison gives (lo + k w <= v <
+	// lo + (k+1) w, written without division) and compare.
+	for span := 16; span <= 400; span++ {
+		var xs []float64
+		for v := 600; v <= 600+span; v++ {
+			xs = append(xs, float64(v))
+		}
+		counts := make([]int, 16)
+		for _, x := range xs {
+			d := int(x) - 600
+			k := 0
+			for k < 15 && (k+1)*span <= d*16 {
+				k++
+			}
+			counts[k]++
+		}
+		want := 0.0
+		for _, c := range counts {
+			if c > 0 {
+				p := float64(c) / float64(len(xs))
+				want -= p * math.Log(p)
+			}
+		}
+		want /= math.Log(16)
+		if got := shannonEntropy(xs, 16, 0); !near(got, want, 1e-12) {
+			t.Fatalf("span %d: exact entropy %.12f, histogram by comparison %.12f", span, got, want)
+		}
+	}
 }
 
 func TestShannonEntropy(t *testing.T) {
@@ -99,6 +152,11 @@ func TestShannonEntropy(t *testing.T) {
 			got := shannonEntropy(in, tc.bins, tc.trim)
 			if !near(got, tc.want, 1e-12) {
 				t.Errorf("shannonEntropy = %.10f, want %.10f", got, tc.want)
+			}
+			// No value of these series lies on an edge the floating-point
+			// rule misses, so the first rule agrees.
+			if old := shannonEntropyRule(in, tc.bins, tc.trim, false); !near(old, tc.want, 1e-12) {
+				t.Errorf("first-rule entropy = %.10f, want %.10f", old, tc.want)
 			}
 			for i := range in {
 				if in[i] != tc.rr[i] {

@@ -72,7 +72,12 @@
 // Protocol holds every parameter. A protocol version is immutable once it has
 // produced results: changing anything makes a new version, and each stored
 // result names its version and carries a digest of its input readings, so any
-// verdict can be recomputed and compared byte for byte. The defaults
+// verdict can be recomputed and compared byte for byte. A correction to how
+// the screen computes is an algorithm revision (Protocol.Revision): it
+// reaches results only through a new version that names it, so a stored
+// result always recomputes under its own. Revision 1 measures usable wear
+// as the time the readings cover and bins the entropy exactly; versions
+// stored before revisions read as revision 0. The defaults
 // (DefaultProtocol) are illustrative choices of ours, to be shown as such.
 //
 // # The threshold sweep

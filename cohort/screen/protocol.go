@@ -3,7 +3,6 @@ package screen
 import (
 	"fmt"
 	"math"
-	"reflect"
 	"strconv"
 	"strings"
 
@@ -39,6 +38,29 @@ type Protocol struct {
 	// Baseline configures thresholds relative to the participant's own first
 	// weeks.
 	Baseline BaselineRule `json:"baseline"`
+	// Revision is the algorithm revision the protocol computes with. A
+	// correction to how the screen computes changes results, so it reaches
+	// them only through a protocol version that names the new revision:
+	// every stored result recomputes exactly under its own version.
+	//   - 0: the first screen. A usable window counts in full as wear;
+	//     entropy bin edges are computed in floating point.
+	//   - 1: usable wear is the time the readings cover (see
+	//     WindowResult.UsableHours); entropy bins whole-millisecond
+	//     intervals exactly (rr.Params.ExactBins).
+	// Versions stored before revisions existed have none and read as 0.
+	Revision int `json:"revision"`
+}
+
+// CurrentRevision is the newest algorithm revision, the one new protocols
+// take.
+const CurrentRevision = 1
+
+// RRParams are the beat-interval parameters as the protocol's revision
+// computes them: the one way to get parameters for rr.Analyse.
+func (p Protocol) RRParams() rr.Params {
+	q := p.RR.Params
+	q.ExactBins = p.Revision >= 1
+	return q
 }
 
 // WindowRule is the rule set of one window size. Windows are fixed and aligned
@@ -126,6 +148,7 @@ func DefaultProtocol() Protocol {
 			Params:            rr.DefaultParams(),
 		},
 		Baseline: BaselineRule{Enabled: false, Weeks: 2, Factor: 1.5}, // ours, illustrative
+		Revision: CurrentRevision,
 	}
 }
 
@@ -214,6 +237,9 @@ func (p Protocol) Validate() error {
 	if !finite(p.Baseline.Factor) || p.Baseline.Factor <= 0 {
 		e.Add("baseline.factor", "must be a finite number above 0")
 	}
+	if p.Revision < 0 || p.Revision > CurrentRevision {
+		e.Add("revision", fmt.Sprintf("must be an algorithm revision from 0 to %d (see the protocol notes)", CurrentRevision))
+	}
 	return e.Err()
 }
 
@@ -232,85 +258,31 @@ type Change struct {
 const Absent = "(none)"
 
 // Diff lists the fields whose values differ from p (old) to other (new), in
-// the order fields appear in p, then fields only in other. It walks the
-// struct by reflection, so fields added later are covered without edits here.
+// the order fields appear in p, then fields only in other. It compares
+// Params, so fields added later are covered without edits here.
 func (p Protocol) Diff(other Protocol) []Change {
-	a, b := flatten(p), flatten(other)
+	a, b := p.Params(), other.Params()
 	bm := make(map[string]string, len(b))
 	for _, kv := range b {
-		bm[kv.path] = kv.val
+		bm[kv.Path] = kv.Value
 	}
 	am := make(map[string]bool, len(a))
 	var out []Change
 	for _, kv := range a {
-		am[kv.path] = true
-		nv, ok := bm[kv.path]
+		am[kv.Path] = true
+		nv, ok := bm[kv.Path]
 		if !ok {
-			out = append(out, Change{Field: kv.path, Old: kv.val, New: Absent})
-		} else if nv != kv.val {
-			out = append(out, Change{Field: kv.path, Old: kv.val, New: nv})
+			out = append(out, Change{Field: kv.Path, Old: kv.Value, New: Absent})
+		} else if nv != kv.Value {
+			out = append(out, Change{Field: kv.Path, Old: kv.Value, New: nv})
 		}
 	}
 	for _, kv := range b {
-		if !am[kv.path] {
-			out = append(out, Change{Field: kv.path, Old: Absent, New: kv.val})
+		if !am[kv.Path] {
+			out = append(out, Change{Field: kv.Path, Old: Absent, New: kv.Value})
 		}
 	}
 	return out
-}
-
-type pathValue struct{ path, val string }
-
-// flatten lists every leaf of the protocol under its JSON path.
-func flatten(p Protocol) []pathValue {
-	var out []pathValue
-	flattenValue(reflect.ValueOf(p), "", &out)
-	return out
-}
-
-func flattenValue(v reflect.Value, path string, out *[]pathValue) {
-	switch v.Kind() {
-	case reflect.Struct:
-		t := v.Type()
-		for i := range t.NumField() {
-			sf := t.Field(i)
-			if !sf.IsExported() {
-				continue
-			}
-			name, _, _ := strings.Cut(sf.Tag.Get("json"), ",")
-			if name == "-" {
-				continue
-			}
-			if sf.Anonymous && name == "" {
-				flattenValue(v.Field(i), path, out) // inline, as encoding/json does
-				continue
-			}
-			if name == "" {
-				name = sf.Name
-			}
-			child := name
-			if path != "" {
-				child = path + "." + name
-			}
-			flattenValue(v.Field(i), child, out)
-		}
-	case reflect.Slice, reflect.Array:
-		for i := range v.Len() {
-			flattenValue(v.Index(i), fmt.Sprintf("%s[%d]", path, i), out)
-		}
-	case reflect.Bool:
-		*out = append(*out, pathValue{path, strconv.FormatBool(v.Bool())})
-	case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64:
-		*out = append(*out, pathValue{path, strconv.FormatInt(v.Int(), 10)})
-	case reflect.Uint, reflect.Uint8, reflect.Uint16, reflect.Uint32, reflect.Uint64:
-		*out = append(*out, pathValue{path, strconv.FormatUint(v.Uint(), 10)})
-	case reflect.Float32, reflect.Float64:
-		*out = append(*out, pathValue{path, strconv.FormatFloat(v.Float(), 'g', -1, 64)})
-	case reflect.String:
-		*out = append(*out, pathValue{path, v.String()})
-	default:
-		*out = append(*out, pathValue{path, fmt.Sprint(v.Interface())})
-	}
 }
 
 // Sweepable lists the parameters Sweep can vary, as JSON paths; "windows[i]"

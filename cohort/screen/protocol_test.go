@@ -110,13 +110,13 @@ func TestProtocolJSON(t *testing.T) {
 	}
 	walk(m, "")
 	var flat []string
-	for _, kv := range flatten(p) {
-		flat = append(flat, kv.path)
+	for _, kv := range p.Params() {
+		flat = append(flat, kv.Path)
 	}
 	sort.Strings(jsonPaths)
 	sort.Strings(flat)
 	if !slices.Equal(jsonPaths, flat) {
-		t.Errorf("flatten paths %v\ndiffer from JSON paths %v", flat, jsonPaths)
+		t.Errorf("Params paths %v\ndiffer from JSON paths %v", flat, jsonPaths)
 	}
 	if !slices.Contains(flat, "rr.segment_beats") {
 		t.Errorf("rr parameters are not inline: %v", flat)
@@ -277,5 +277,28 @@ func TestSweepBaselineFactor(t *testing.T) {
 		if got[i][0] != want[i] {
 			t.Errorf("factor row %d: %s, want %s", i, got[i][0], want[i])
 		}
+	}
+}
+
+// Every parameter of the default protocol and every sweepable one has its
+// own words, and a window-level sweep parameter names its window size.
+func TestParamLabels(t *testing.T) {
+	p := DefaultProtocol()
+	for _, kv := range p.Params() {
+		if l := ParamLabel(kv.Path); l == kv.Path || l == "" {
+			t.Errorf("parameter %s has no label", kv.Path)
+		}
+	}
+	for _, sp := range SweepParams(p) {
+		l := sp.Label(p)
+		if strings.Contains(l, sp.Path) {
+			t.Errorf("sweep parameter %s has no label: %q", sp.Path, l)
+		}
+		if sp.Window >= 0 && !strings.HasPrefix(l, fmt.Sprintf("%d-minute windows: ", p.Windows[sp.Window].Minutes)) {
+			t.Errorf("sweep parameter %s: %q does not name its window", sp.Path, l)
+		}
+	}
+	if got := ParamLabel("no.such_thing"); got != "no.such_thing" {
+		t.Errorf("unknown path labelled %q", got)
 	}
 }

@@ -19,6 +19,16 @@ const (
 	Insufficient Verdict = "insufficient"
 )
 
+// Label is the verdict's word on pages, summaries and reports: the stored
+// word itself; "" (a week not screened) stays "", another value is quoted.
+func (v Verdict) Label() string {
+	switch v {
+	case Positive, Negative, Insufficient, "":
+		return string(v)
+	}
+	return strconv.Quote(string(v))
+}
+
 // ParseVerdict reads a verdict word in any letter case, with surrounding
 // spaces ignored, as files from other algorithms write it.
 func ParseVerdict(s string) (Verdict, error) {
@@ -92,8 +102,14 @@ type WindowResult struct {
 	// median feeds personal baselines.
 	MeanMASD   float64 `json:"mean_masd"`
 	MedianMASD float64 `json:"median_masd"`
-	// UsableHours is the time covered by usable windows (the last window
-	// of a week may be shorter than the others).
+	// UsableHours is the usable wear this window size sees. Under
+	// Protocol.Revision 1 it is the time the readings of usable windows
+	// cover: from each usable window's first reading to its last, plus the
+	// time from one usable window's last reading to the next window's first
+	// when that window is usable too and the gap is within max_gap_seconds.
+	// Under revision 0 (the first screen) it was the whole length of every
+	// usable window (the last window of a week may be shorter), which
+	// counts a window as worn even where its readings cover part of it.
 	UsableHours float64 `json:"usable_hours"`
 	// RunMet and ShareMet say which criterion of this size made the week
 	// positive; both false unless the week had enough wear.
@@ -148,10 +164,11 @@ type Prepared struct {
 // rrShape holds the RR parameters that change the scored segments themselves.
 type rrShape struct {
 	segmentBeats, bins, trim, joinMs int
+	exactBins                        bool
 }
 
 func shapeOf(p Protocol) rrShape {
-	return rrShape{p.RR.SegmentBeats, p.RR.Bins, p.RR.Trim, p.RR.MaxJoinErrorMs}
+	return rrShape{p.RR.SegmentBeats, p.RR.Bins, p.RR.Trim, p.RR.MaxJoinErrorMs, p.RRParams().ExactBins}
 }
 
 // Week is the study week number of the prepared week.
@@ -207,7 +224,7 @@ func (pr *Prepared) scoreRR(s *cohort.Samples, p Protocol) {
 			buf = append(buf, float64(v))
 		}
 		first := len(pr.segments)
-		pr.segments = rr.AppendAnalyse(pr.segments, buf, p.RR.Params)
+		pr.segments = rr.AppendAnalyse(pr.segments, buf, p.RRParams())
 		for k := first; k < len(pr.segments); k++ {
 			seg := &pr.segments[k]
 			for _, v := range s.V[runStart+seg.Start : runStart+seg.Start+p.RR.SegmentBeats] {
@@ -275,7 +292,7 @@ func (pr *Prepared) compatible(p Protocol) error {
 		}
 	}
 	if p.RR.Enabled && (!pr.rrOn || pr.rrShape != shapeOf(p)) {
-		return fmt.Errorf("screen: week %d: RR segments were prepared with other segment_beats, bins, trim or max_join_error_ms", pr.week)
+		return fmt.Errorf("screen: week %d: RR segments were prepared with other segment_beats, bins, trim, max_join_error_ms or revision", pr.week)
 	}
 	return nil
 }
@@ -300,7 +317,7 @@ func evaluate(pr *Prepared, p Protocol, base *Baseline, full bool) (Result, erro
 		if thresholds != nil {
 			th = thresholds[i]
 		}
-		wr, s := evalRule(pr.windows[i], r, th, pr.start, pr.end, scratch, full)
+		wr, s := evalRule(pr.windows[i], r, th, pr.start, pr.end, p.Revision >= 1, scratch, full)
 		scratch = s
 		if use != nil && use.Status == "applied" {
 			wr.BaselineLevel = base.Level[i]
@@ -343,9 +360,11 @@ func evaluate(pr *Prepared, p Protocol, base *Baseline, full bool) (Result, erro
 	return res, nil
 }
 
-// evalRule classifies every window of one size. scratch is reused for the
-// median; it is returned so the caller can pass it on.
-func evalRule(sums []WindowSummary, r WindowRule, th float64, start, end int64, scratch []float64, full bool) (WindowResult, []float64) {
+// evalRule classifies every window of one size; covered measures usable
+// wear as the time the readings cover (revision 1) rather than whole
+// windows. scratch is reused for the median; it is returned so the caller
+// can pass it on.
+func evalRule(sums []WindowSummary, r WindowRule, th float64, start, end int64, covered bool, scratch []float64, full bool) (WindowResult, []float64) {
 	wr := WindowResult{Minutes: r.Minutes, Threshold: th, Windows: len(sums)}
 	minN := int32(r.MinReadings)
 	maxGap := int64(r.MaxGapSeconds) * 1000
@@ -353,8 +372,11 @@ func evalRule(sums []WindowSummary, r WindowRule, th float64, start, end int64, 
 	l := int64(r.Minutes) * 60000
 	scratch = scratch[:0]
 	var sumMASD float64
+	var coveredMs, prevLast int64
+	prevUsable := false
 	run := 0
-	for _, s := range sums {
+	for wi, s := range sums {
+		usable := false
 		switch {
 		case s.N == 0:
 			wr.Empty++
@@ -365,25 +387,41 @@ func evalRule(sums []WindowSummary, r WindowRule, th float64, start, end int64, 
 		case s.Steps > maxSteps:
 			wr.Active++
 		default:
-			wr.Usable++
-			masd := s.MASD()
-			sumMASD += masd
-			if full {
-				scratch = append(scratch, masd)
-			}
-			if masd >= th {
-				wr.Irregular++
-				run++
-				wr.LongestRun = max(wr.LongestRun, run)
-				continue
-			}
+			usable = true
+		}
+		if !usable {
+			prevUsable = false
+			run = 0
+			continue
+		}
+		ws := start + int64(wi)*l
+		first, last := ws+int64(s.First), ws+int64(s.Last)
+		coveredMs += last - first
+		if prevUsable && first-prevLast <= maxGap {
+			coveredMs += first - prevLast
+		}
+		prevUsable, prevLast = true, last
+		wr.Usable++
+		masd := s.MASD()
+		sumMASD += masd
+		if full {
+			scratch = append(scratch, masd)
+		}
+		if masd >= th {
+			wr.Irregular++
+			run++
+			wr.LongestRun = max(wr.LongestRun, run)
+			continue
 		}
 		run = 0
 	}
-	usableMs := int64(wr.Usable) * l
-	if n := len(sums); n > 0 {
-		if last := sums[n-1]; wr.Usable > 0 && isUsable(last, minN, maxGap, maxSteps) {
-			usableMs -= start + int64(n)*l - end // the last window may be short
+	usableMs := coveredMs
+	if !covered {
+		usableMs = int64(wr.Usable) * l
+		if n := len(sums); n > 0 {
+			if last := sums[n-1]; wr.Usable > 0 && isUsable(last, minN, maxGap, maxSteps) {
+				usableMs -= start + int64(n)*l - end // the last window may be short
+			}
 		}
 	}
 	wr.UsableHours = float64(usableMs) / 3.6e6

@@ -90,9 +90,9 @@ func TestRuns(t *testing.T) {
 	}
 }
 
-func TestGapsAndTooFew(t *testing.T) {
-	p := oneRule()
-	p.MinWearHours = 0.1
+// gapsWeek has five 5-minute windows of readings: usable, gappy, too few,
+// and two usable ones whose readings a long gap separates.
+func gapsWeek() cohort.Week {
 	s := testStart
 	l := 5 * minuteMs
 	w := emptyWeek()
@@ -113,6 +113,13 @@ func TestGapsAndTooFew(t *testing.T) {
 	for _, dt := range []int64{0, 10_000, 20_000, 30_000, 40_000, 2*l - 40_000, 2*l - 30_000, 2*l - 20_000, 2*l - 10_000, 2*l - 1} {
 		w.HR.Append(s+3*l+dt, 70)
 	}
+	return w
+}
+
+func TestGapsAndTooFew(t *testing.T) {
+	p := oneRule()
+	p.MinWearHours = 0.1
+	w := gapsWeek()
 	res := mustScreen(t, &w, p, nil)
 	got := res.Windows[0]
 	if got.Usable != 3 || got.Gappy != 1 || got.TooFew != 1 {
@@ -513,6 +520,17 @@ func TestBaseline(t *testing.T) {
 	} {
 		if err := call(); err == nil {
 			t.Errorf("%s: no error", name)
+		}
+	}
+}
+
+// The verdict's label is its stored word (pages, summaries and the referral
+// digest show these words unchanged); an unscreened week has none, and an
+// unknown value shows quoted rather than passing for a verdict.
+func TestVerdictLabel(t *testing.T) {
+	for v, want := range map[Verdict]string{Positive: "positive", Negative: "negative", Insufficient: "insufficient", "": "", "maybe": `"maybe"`} {
+		if got := v.Label(); got != want {
+			t.Errorf("Verdict(%q).Label() = %q, want %q", string(v), got, want)
 		}
 	}
 }

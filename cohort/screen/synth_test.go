@@ -116,10 +116,14 @@ func emptyWeek() cohort.Week {
 }
 
 // oneRule is a protocol with a single 5-minute window size and no RR method,
-// for tests whose hand-worked figures concern one window size.
+// for tests whose hand-worked figures concern one window size. It computes
+// under revision 0, whole usable windows as wear, the rule those figures
+// were worked under; revision 1's covered time has tests of its own
+// (TestCoveredWear and the ones after it).
 func oneRule() Protocol {
 	p := DefaultProtocol()
 	p.Windows = p.Windows[:1]
 	p.RR.Enabled = false
+	p.Revision = 0
 	return p
 }

@@ -22,6 +22,10 @@ type WindowSummary struct {
 	// adds its count times the share of its duration that overlaps the
 	// window; an interval of zero length counts in full where it starts.
 	Steps float64
+	// First and Last are the times of the window's first and last reading,
+	// in ms from the window's start (both 0 without readings). The time the
+	// readings cover is measured from them (Protocol.Revision 1).
+	First, Last int32
 }
 
 // MASD is the mean absolute successive difference of the window in bpm; 0
@@ -107,6 +111,8 @@ func summariseHR(out []WindowSummary, t []int64, v []int32, start, end, l int64)
 		s.SumAbs = sum
 		s.N = int32(j - i)
 		s.MaxGap = int32(maxGap)
+		ws := start + wi*l
+		s.First, s.Last = int32(t[i]-ws), int32(prevT-ws)
 		i = j
 	}
 }

@@ -51,12 +51,14 @@ func TestSummariseWindowsBoundaries(t *testing.T) {
 	w.HR.Append(s+3*l-1, 120)
 	got := SummariseWindows(nil, &w, 5)
 	want := map[int]WindowSummary{
-		// hand-worked: |64-60| + |61-64| = 7 over 2 differences; gaps 10 s and 15 s.
-		0: {SumAbs: 7, N: 3, MaxGap: 15_000},
-		// hand-worked: |80-90| = 10; gap 40 s.
-		1: {SumAbs: 10, N: 2, MaxGap: 40_000},
-		// hand-worked: a single reading has no difference and no gap.
-		2: {SumAbs: 0, N: 1, MaxGap: 0},
+		// hand-worked: |64-60| + |61-64| = 7 over 2 differences; gaps 10 s and
+		// 15 s; readings from 0 s to 25 s of the window.
+		0: {SumAbs: 7, N: 3, MaxGap: 15_000, First: 0, Last: 25_000},
+		// hand-worked: |80-90| = 10; gap 40 s; from 0 s to 40 s.
+		1: {SumAbs: 10, N: 2, MaxGap: 40_000, First: 0, Last: 40_000},
+		// hand-worked: a single reading has no difference and no gap; it
+		// sits 1 ms before the window's end.
+		2: {SumAbs: 0, N: 1, MaxGap: 0, First: 299_999, Last: 299_999},
 	}
 	if len(got) != 2016 {
 		t.Fatalf("windows = %d, want 2016", len(got))

@@ -142,7 +142,12 @@ type Median struct {
 // event time. The interval is read off the pointwise log(-log) band in the
 // manner of Brookmeyer R, Crowley J. Biometrics 1982;38:29-41: the lower bound
 // is the first time the band's lower edge is at or below 0.5, the upper bound
-// the first time its upper edge is.
+// the first time its upper edge is. Where S has reached 0 the band is not
+// defined (Greenwood's variance is infinite there), so such a step sets no
+// bound: a bound not crossed before it stays open ("not reached") rather
+// than closing at the last event, as the survival package of R reports it
+// (its log-log limits are NA where the estimate is 0, and so are the
+// median's limits that would rest on them; from memory, not run here).
 func (c Curve) Median() Median {
 	m := Median{Time: math.NaN(), Lo: math.NaN(), Hi: math.NaN()}
 	for _, st := range c.Steps {
@@ -151,6 +156,9 @@ func (c Curve) Median() Median {
 		}
 		if !m.Reached && st.Survival <= 0.5 {
 			m.Time, m.Reached = st.Time, true
+		}
+		if st.Survival == 0 {
+			continue // no band here
 		}
 		if !m.LoReached && st.Lo <= 0.5 {
 			m.Lo, m.LoReached = st.Time, true

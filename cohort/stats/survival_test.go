@@ -144,6 +144,41 @@ func TestKaplanMeierTiesAndHalf(t *testing.T) {
 	}
 }
 
+// When the estimate reaches 0 the band is undefined there, so the median's
+// interval stays open instead of closing on the last event. Three events
+// at 1, 2, 3 (hand-worked): S = 2/3, 1/3, 0; the median is 2. The band at
+// 1: Greenwood sum 1/6, ln S = -0.4055, w = 1.96 sqrt(1/6) / 0.4055 =
+// 1.9733; lower edge (2/3)^exp(1.9733) = 0.0541, upper 0.9452, so the lower
+// bound is 1. At 2: sum 1/6 + 1/2 = 2/3, w = 1.4567, upper edge
+// (1/3)^exp(-1.4567) = 0.7741; the upper edge never gets to 0.5 while
+// S > 0, and at 3 (S = 0) there is no band: not reached.
+// Before this rule both bounds read 3 from the zero step's band of 0-0, an
+// interval [3, 3] that excluded the median itself. The survival package of
+// R gives NA for such a limit (from memory, not run here).
+func TestKaplanMeierMedianIntervalOpenAtZero(t *testing.T) {
+	c := mustKM(t, obsFrom(t, 1, 2, 3))
+	m := c.Median()
+	if !m.Reached || m.Time != 2 {
+		t.Fatalf("median = %+v, want 2", m)
+	}
+	if !m.LoReached || m.Lo != 1 {
+		t.Errorf("lower bound = %+v, want 1 (computed)", m)
+	}
+	near(t, "band lower at 1", stepAt(t, c, 1).Lo, 0.0541, 0.00005)
+	if m.HiReached || !math.IsNaN(m.Hi) {
+		t.Errorf("upper bound = %v (reached %v), want not reached", m.Hi, m.HiReached)
+	}
+	near(t, "band upper at 2", stepAt(t, c, 2).Hi, 0.7741, 0.00005)
+
+	// All subjects have the event at one time: S drops from 1 to 0, the
+	// median is that time, and neither bound exists (hand-worked).
+	c = mustKM(t, obsFrom(t, 4, 4))
+	m = c.Median()
+	if !m.Reached || m.Time != 4 || m.LoReached || m.HiReached {
+		t.Errorf("all at once: median %+v, want 4 with both bounds not reached", m)
+	}
+}
+
 func TestKaplanMeierEmptyAndInvalid(t *testing.T) {
 	c := mustKM(t, nil)
 	if m := c.Median(); m.Reached || c.At(10) != 1 {

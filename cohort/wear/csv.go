@@ -1,8 +1,6 @@
 package wear
 
 import (
-	"errors"
-	"fmt"
 	"io"
 
 	"cohortdesk/cohort"
@@ -81,75 +79,30 @@ var readingColumns = []column{
 // CSVReader streams readings out of a CSV file in the format described in the
 // package documentation. It holds one record at a time, never the file.
 type CSVReader struct {
-	name    string
-	rr      *recordReader
-	idx     []int
-	ncols   int
-	started bool
-	row     Row
-	rej     *Rejection
-	err     error
-	ids     interner
-	days    dayCache
+	csvLines
+	row  Row
+	days dayCache
 }
 
 // NewCSVReader reads readings from r; name is used in messages (a file name).
 // The header is read on the first call to Next.
 func NewCSVReader(r io.Reader, name string) *CSVReader {
-	return &CSVReader{name: name, rr: newRecordReader(r)}
+	return &CSVReader{csvLines: newCSVLines(r, name, readingColumns)}
 }
 
 // Next implements Source.
 func (c *CSVReader) Next() bool {
-	if c.err != nil {
+	if !c.step() {
 		return false
 	}
-	if !c.started {
-		c.started = true
-		c.idx, c.ncols, c.err = readHeader(c.rr, c.name, readingColumns)
-		if c.err != nil {
-			return false
-		}
+	if c.rej == nil {
+		c.parse()
 	}
-	c.rej = nil
-	if err := c.rr.next(); err != nil {
-		var qe *quoteError
-		switch {
-		case err == io.EOF:
-			return false
-		case errors.As(err, &qe):
-			c.reject(ReasonBadQuoting, "", "%s at column %d", qe.msg, qe.col)
-			return true
-		default:
-			c.err = fileErr(c.name, err)
-			return false
-		}
-	}
-	c.parse()
 	return true
 }
 
 // Row implements Source.
 func (c *CSVReader) Row() Row { return c.row }
-
-// Rejection implements Source.
-func (c *CSVReader) Rejection() *Rejection { return c.rej }
-
-// Err implements Source.
-func (c *CSVReader) Err() error { return c.err }
-
-func (c *CSVReader) reject(why Reason, field, format string, args ...any) {
-	c.rej = &Rejection{
-		Reason: why,
-		File:   c.name,
-		Line:   c.rr.start,
-		Entry:  -1,
-		Offset: -1,
-		Field:  field,
-		Msg:    fmt.Sprintf(format, args...),
-		Raw:    string(c.rr.raw),
-	}
-}
 
 // parse checks one record's fields in column order and keeps either a row or
 // the first problem found.

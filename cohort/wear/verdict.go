@@ -1,8 +1,6 @@
 package wear
 
 import (
-	"errors"
-	"fmt"
 	"io"
 	"math"
 	"strconv"
@@ -42,67 +40,30 @@ var verdictColumns = []column{
 // insufficient in any letter case; model name and version are required text.
 // Bad lines are refused one by one with a Reason, as for readings.
 type VerdictReader struct {
-	name    string
-	rr      *recordReader
-	idx     []int
-	ncols   int
-	started bool
-	row     VerdictRow
-	rej     *Rejection
-	err     error
-	ids     interner
-	models  interner
+	csvLines
+	row    VerdictRow
+	models interner
 }
 
 // NewVerdictReader reads verdicts from r; name is used in messages.
 func NewVerdictReader(r io.Reader, name string) *VerdictReader {
-	return &VerdictReader{name: name, rr: newRecordReader(r)}
+	return &VerdictReader{csvLines: newCSVLines(r, name, verdictColumns)}
 }
 
 // Next moves to the next verdict or rejection; false at the end or after a
 // file-level error (see Err).
 func (v *VerdictReader) Next() bool {
-	if v.err != nil {
+	if !v.step() {
 		return false
 	}
-	if !v.started {
-		v.started = true
-		v.idx, v.ncols, v.err = readHeader(v.rr, v.name, verdictColumns)
-		if v.err != nil {
-			return false
-		}
+	if v.rej == nil {
+		v.parse()
 	}
-	v.rej = nil
-	if err := v.rr.next(); err != nil {
-		var qe *quoteError
-		switch {
-		case err == io.EOF:
-			return false
-		case errors.As(err, &qe):
-			v.reject(ReasonBadQuoting, "", "%s at column %d", qe.msg, qe.col)
-			return true
-		default:
-			v.err = fileErr(v.name, err)
-			return false
-		}
-	}
-	v.parse()
 	return true
 }
 
 // Verdict is the current row; meaningful only when Rejection is nil.
 func (v *VerdictReader) Verdict() VerdictRow { return v.row }
-
-// Rejection is the current refused line, or nil.
-func (v *VerdictReader) Rejection() *Rejection { return v.rej }
-
-// Err is the *FileError that stopped reading, or nil at a clean end.
-func (v *VerdictReader) Err() error { return v.err }
-
-func (v *VerdictReader) reject(why Reason, field, format string, args ...any) {
-	v.rej = &Rejection{Reason: why, File: v.name, Line: v.rr.start, Entry: -1, Offset: -1, Field: field,
-		Msg: fmt.Sprintf(format, args...), Raw: string(v.rr.raw)}
-}
 
 func (v *VerdictReader) parse() {
 	f := v.rr.fields

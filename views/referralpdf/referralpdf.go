@@ -61,8 +61,13 @@ func Render(sum referral.Summary, paper string) ([]byte, error) {
 		f.SetY(-12)
 		f.SetFont("Helvetica", "", 7.5)
 		f.SetTextColor(90, 100, 104)
-		f.CellFormat(0, 4, d.tr(fmt.Sprintf("Referral code %s · page %d of {nb} · de-identified: a member of the study team reviews it before release",
-			sum.ReferralCode, f.PageNo())), "", 0, "C", false, 0, "")
+		foot := fmt.Sprintf("Referral code %s · page %d of {nb} · de-identified: a member of the study team reviews it before release",
+			sum.ReferralCode, f.PageNo())
+		if sum.Draft {
+			f.SetTextColor(160, 40, 32)
+			foot = "DRAFT, not signed off · " + foot
+		}
+		f.CellFormat(0, 4, d.tr(foot), "", 0, "C", false, 0, "")
 	})
 	f.AddPage()
 
@@ -92,6 +97,7 @@ func Render(sum referral.Summary, paper string) ([]byte, error) {
 		f.CellFormat(44, 4.5, d.tr(kv[1]), "", 0, "L", false, 0, "")
 	}
 	f.SetY(y + 27)
+	d.status(sum)
 
 	d.heading("Confirmation ECG and over-read")
 	if o := sum.OverRead; o != nil {
@@ -160,6 +166,28 @@ func Render(sum referral.Summary, paper string) ([]byte, error) {
 		return nil, fmt.Errorf("web: referral PDF: %w", err)
 	}
 	return buf.Bytes(), nil
+}
+
+// status draws a draft's mark, or who signed the summary off and when; a
+// summary issued before drafts existed shows neither, as it did.
+func (d *pdfDoc) status(sum referral.Summary) {
+	switch {
+	case sum.Draft:
+		y := d.GetY()
+		d.SetFillColor(251, 226, 222)
+		d.Rect(d.left, y, d.width, 9, "F")
+		d.SetXY(d.left+3, y+2)
+		d.SetFont("Helvetica", "B", 10)
+		d.SetTextColor(160, 40, 32)
+		d.CellFormat(d.width-6, 5, d.tr(referral.DraftMark), "", 0, "L", false, 0, "")
+		d.SetTextColor(31, 42, 46)
+		d.SetY(y + 11)
+	case sum.SignOff != nil:
+		d.SetFont("Helvetica", "B", 10)
+		d.SetX(d.left)
+		d.CellFormat(0, 6, d.tr(sum.SignOff.Text()+"."), "", 1, "L", false, 0, "")
+		d.Ln(1)
+	}
 }
 
 func orDash(s string) string {

@@ -18,6 +18,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/credential"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 	"cohortdesk/web"
 
@@ -92,7 +93,7 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 			}
 			// A coordinator's start page also counts the day's work and
 			// shows the latest import.
-			if _, err := store.Triage(ctx, 1); err != nil {
+			if _, err := store.Triage(ctx, 1, u.ID); err != nil {
 				return err
 			}
 			_, err := store.Imports(ctx, 1)
@@ -102,7 +103,7 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 			if err := common(ctx); err != nil {
 				return err
 			}
-			if _, err := store.Triage(ctx, 25); err != nil {
+			if _, err := store.Triage(ctx, 25, u.ID); err != nil {
 				return err
 			}
 			_, err := store.CaseWorkers(ctx)
@@ -264,7 +265,7 @@ func wearIDs(c synthCohort) []int64 {
 func chartWeek(lines []db.WeekLine) (int, bool) {
 	best := -1
 	for _, l := range lines {
-		if l.Verdict == "positive" {
+		if l.Verdict == screen.Positive {
 			best = l.Week
 		}
 	}

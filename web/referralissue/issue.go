@@ -69,3 +69,27 @@ func Record(ctx context.Context, st Store, a cohort.Actor, d Draft, format, pape
 	}
 	return ref, pdf, nil
 }
+
+// Signer is what signing a summary off needs from the database (*db.Store).
+type Signer interface {
+	SignOffReferral(ctx context.Context, a cohort.Actor, id int64, draw db.DrawSummary) (db.Referral, error)
+}
+
+// SignOff has investigator a sign the issued summary id off: the store
+// records the signed content (naming a and the study day) with its digest and
+// the digest of its PDF, drawn here on the recorded paper, and moves the case
+// to referred.
+func SignOff(ctx context.Context, st Signer, a cohort.Actor, id int64) (db.Referral, error) {
+	return st.SignOffReferral(ctx, a, id, DrawDigest)
+}
+
+// DrawDigest draws a summary's PDF on the paper and returns its SHA-256 in
+// hex: the digest a PDF sent later must have.
+func DrawDigest(sum referral.Summary, paper string) (string, error) {
+	pdf, err := referralpdf.Render(sum, paper)
+	if err != nil {
+		return "", err
+	}
+	d := sha256.Sum256(pdf)
+	return hex.EncodeToString(d[:]), nil
+}

@@ -43,7 +43,7 @@ func (f *fakeStore) IssueReferral(_ context.Context, a cohort.Actor, in db.Refer
 
 func newFake() *fakeStore {
 	age := 71
-	return &fakeStore{basis: db.ReferralBasis{ParticipantID: 4, StudyID: "KX-0031", CaseID: 9, Source: referral.Source{
+	return &fakeStore{basis: db.ReferralBasis{ParticipantID: 4, StudyID: "KX-0031", CaseID: 9, Confirmed: true, Source: referral.Source{
 		StudyID: "KX-0031", EnrolledOn: cohort.Date{Year: 2025, Month: 1, Day: 6}, AgeAtEnrolment: &age, Sex: cohort.Female,
 		OverRead: &referral.OverRead{Role: overread.First, Rhythm: overread.AF, Confidence: overread.Certain, ReadOn: cohort.Date{Year: 2025, Month: 2, Day: 10}},
 	}}}

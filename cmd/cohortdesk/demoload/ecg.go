@@ -14,15 +14,15 @@ import (
 )
 
 // synthRecording makes the waveform of a scripted recording with the
-// dynamical ECG model (cohort/ecg): its beats fall at the script's intervals,
-// with breathing wander, and heavy noise when the script says an over-reader
-// could not read it.
+// dynamical ECG model (cohort/ecg): it lasts the script's seconds, its beats
+// fall at the script's times, with breathing wander, and heavy noise when the
+// script says an over-reader could not read it.
 func synthRecording(r demo.Recording, seed uint64) (ecg.Waveform, error) {
 	rr := make([]float64, len(r.RR))
 	for i, s := range r.RR {
 		rr[i] = s * 1000
 	}
-	o := ecg.SynthOptions{RateHz: 300, WanderMV: 0.08, WanderHz: 0.22, Seed: seed}
+	o := ecg.SynthOptions{RateHz: 300, WanderMV: 0.08, WanderHz: 0.22, Seed: seed, FirstBeatS: r.FirstBeat, Seconds: r.Seconds}
 	if r.Noisy {
 		o.Noise, o.SNRdB = true, -6
 	}
@@ -66,17 +66,13 @@ func refer(ctx context.Context, cs *db.Store, issuer cohort.Actor, signer db.Use
 		return err
 	}
 	if !d.Basis.ConfirmedAF() {
-		// The script refers some cases whose reading is not AF (atrial
-		// flutter, say); the sign-off is for confirmed AF only, so these are
-		// moved by hand as a person would, without a signed summary.
-		_, err := cs.AdvanceCase(ctx, issuer, c.ID, "referred", at, "referred by the investigator after the over-read")
-		return err
+		return fmt.Errorf("the script refers case %d, whose over-read is not atrial fibrillation", c.ID)
 	}
 	ref, _, err := referralissue.Record(ctx, cs, issuer, d, "pdf", string(demo.Paper))
 	if err != nil {
 		return fmt.Errorf("issue referral: %w", err)
 	}
-	if _, err := cs.SignOffReferral(ctx, signer.Actor("", "demo"), ref.ID); err != nil {
+	if _, err := referralissue.SignOff(ctx, cs, signer.Actor("", "demo"), ref.ID); err != nil {
 		return fmt.Errorf("sign off referral: %w", err)
 	}
 	return nil

@@ -212,8 +212,13 @@ func playCase(ctx context.Context, cs *db.Store, clk *clock, id int64, f demo.Fo
 				reader = signer
 			}
 			err = addOverRead(ctx, cs, reader, recID[ev.read], *ev.read, loc)
-		case ev.move != nil && ev.move.To == followup.Referred && len(secret) > 0:
-			err = refer(ctx, cs, actor(ev.move.By), signer, c, secret, ev.at)
+		case ev.move != nil && ev.move.To == followup.Referred:
+			// A case is referred only by signing its summary off; without a
+			// deployment secret no summary can be issued, and the case stays
+			// over-read, waiting for its summary.
+			if len(secret) > 0 {
+				err = refer(ctx, cs, actor(ev.move.By), signer, c, secret, ev.at)
+			}
 		case ev.move != nil:
 			err = playMove(ctx, cs, actor(ev.move.By), c, ev.move.To, ev.at)
 		}
@@ -239,9 +244,6 @@ func playMove(ctx context.Context, cs *db.Store, a cohort.Actor, c db.Case, to f
 	case followup.RecordingReceived, followup.OverRead:
 		// The recording's arrival and its over-read move the case themselves.
 		return nil
-	case followup.Referred:
-		// Without a deployment secret no summary can be issued: move only.
-		_, err = cs.AdvanceCase(ctx, a, c.ID, to, at, "referral summary sent to the participant's physician")
 	default:
 		if to.Terminal() {
 			_, err = cs.CloseCase(ctx, a, c.ID, db.MoveInput{Version: c.Version, To: to, Reason: closingReason(to)})

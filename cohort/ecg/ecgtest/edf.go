@@ -13,6 +13,7 @@ import (
 	"math"
 	"strconv"
 	"strings"
+	"time"
 )
 
 // EDFWriteOptions steer EncodeEDF. The zero value writes plain EDF in
@@ -47,26 +48,6 @@ type EDFWriteOptions struct {
 // keeps whole seconds only, EDF+ keeps the fraction in the first record's
 // onset.
 func EncodeEDF(w ecg.Waveform, o EDFWriteOptions) ([]byte, error) {
-	if len(w.Samples) == 0 {
-		return nil, errors.New("ecgtest: encode edf: no samples")
-	}
-	if !(w.RateHz > 0) || math.IsInf(w.RateHz, 0) {
-		return nil, fmt.Errorf("ecgtest: encode edf: sampling rate %g Hz", w.RateHz)
-	}
-	dur := o.RecordSeconds
-	if dur == 0 {
-		dur = 1
-	}
-	durS, err := fit8(dur, 0)
-	if err != nil || !(dur > 0) {
-		return nil, fmt.Errorf("ecgtest: encode edf: record duration %g s cannot be written in 8 characters", dur)
-	}
-	dur, _ = strconv.ParseFloat(durS, 64)
-	sprF := w.RateHz * dur
-	spr := int(math.Round(sprF))
-	if spr < 1 || math.Abs(sprF-float64(spr)) > 1e-9*sprF {
-		return nil, fmt.Errorf("ecgtest: encode edf: %g Hz x %g s is not a whole number of samples per record", w.RateHz, dur)
-	}
 	dim := o.Dimension
 	if dim == "" {
 		dim = "uV"
@@ -82,48 +63,137 @@ func EncodeEDF(w ecg.Waveform, o EDFWriteOptions) ([]byte, error) {
 	default:
 		return nil, fmt.Errorf("ecgtest: encode edf: dimension %q, want uV, mV or V", dim)
 	}
+	values := make([]float64, len(w.Samples))
+	for i, v := range w.Samples {
+		values[i] = v * perMV
+	}
+	label := w.Label
+	if label == "" {
+		label = "ECG"
+	}
+	return EncodeEDFChannels([]EDFChannel{{Label: label, Dimension: dim, Values: values, RateHz: w.RateHz,
+		Transducer: o.Transducer, Prefilter: o.Prefilter, PhysMin: o.PhysMin, PhysMax: o.PhysMax}}, w.Start, o)
+}
 
-	pmin, pmax := o.PhysMin, o.PhysMax
-	var pminS, pmaxS string
-	if pmin == 0 && pmax == 0 {
-		lo, hi := math.Inf(1), math.Inf(-1)
-		for _, v := range w.Samples {
-			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil, errors.New("ecgtest: encode edf: samples must be finite")
+// EDFChannel is one signal for EncodeEDFChannels: values in its own unit
+// (Dimension, written as given, any text), at its own rate.
+type EDFChannel struct {
+	Label, Dimension      string
+	Transducer, Prefilter string
+	Values                []float64
+	RateHz                float64
+	// PhysMin and PhysMax fix the physical range; when both are zero it is
+	// the data's range rounded outwards. Values outside a fixed range are
+	// clipped.
+	PhysMin, PhysMax float64
+}
+
+// ECGChannel is a waveform (mV) as an EDF channel in the unit dim: a unit
+// of microvolts (any text with a u, µ or "micro"), of volts ("V", "volt",
+// "volts") or, otherwise, of millivolts. A micro sign is written as '?'
+// (EDF headers are ASCII); PatchEDFDimension puts other bytes there.
+func ECGChannel(w ecg.Waveform, label, dim string) EDFChannel {
+	perMV := 1.0
+	l := strings.ToLower(dim)
+	switch {
+	case strings.ContainsAny(l, "uµμ") || strings.Contains(l, "micro"):
+		perMV = 1000
+	case l == "v" || strings.HasPrefix(l, "volt"):
+		perMV = 0.001
+	}
+	values := make([]float64, len(w.Samples))
+	for i, v := range w.Samples {
+		values[i] = v * perMV
+	}
+	return EDFChannel{Label: label, Dimension: dim, Values: values, RateHz: w.RateHz}
+}
+
+// EncodeEDFChannels writes several signals as one EDF (or EDF+C) file; the
+// options' RecordSeconds, Plus and identification apply, and start is the
+// recording's start. Every channel needs a whole number of samples per
+// record; the shortest channel sets the number of records, and the last
+// record of each is padded with its last value.
+func EncodeEDFChannels(chs []EDFChannel, start time.Time, o EDFWriteOptions) ([]byte, error) {
+	if len(chs) == 0 {
+		return nil, errors.New("ecgtest: encode edf: no channels")
+	}
+	dur := o.RecordSeconds
+	if dur == 0 {
+		dur = 1
+	}
+	durS, err := fit8(dur, 0)
+	if err != nil || !(dur > 0) {
+		return nil, fmt.Errorf("ecgtest: encode edf: record duration %g s cannot be written in 8 characters", dur)
+	}
+	dur, _ = strconv.ParseFloat(durS, 64)
+	type sigHdr struct{ label, trans, dim, pmin, pmax, dmin, dmax, pre, spr string }
+	var sigs []sigHdr
+	type enc struct {
+		values     []float64
+		spr        int
+		pmin, pmax float64
+	}
+	var encs []enc
+	nrec := 0
+	for ci, c := range chs {
+		if len(c.Values) == 0 {
+			return nil, fmt.Errorf("ecgtest: encode edf: channel %d has no samples", ci+1)
+		}
+		if !(c.RateHz > 0) || math.IsInf(c.RateHz, 0) {
+			return nil, fmt.Errorf("ecgtest: encode edf: channel %d: sampling rate %g Hz", ci+1, c.RateHz)
+		}
+		sprF := c.RateHz * dur
+		spr := int(math.Round(sprF))
+		if spr < 1 || math.Abs(sprF-float64(spr)) > 1e-9*sprF {
+			return nil, fmt.Errorf("ecgtest: encode edf: %g Hz x %g s is not a whole number of samples per record", c.RateHz, dur)
+		}
+		pmin, pmax := c.PhysMin, c.PhysMax
+		var pminS, pmaxS string
+		if pmin == 0 && pmax == 0 {
+			lo, hi := math.Inf(1), math.Inf(-1)
+			for _, v := range c.Values {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					return nil, errors.New("ecgtest: encode edf: samples must be finite")
+				}
+				lo, hi = min(lo, v), max(hi, v)
 			}
-			lo, hi = min(lo, v*perMV), max(hi, v*perMV)
+			if lo == hi {
+				lo, hi = lo-1, hi+1
+			}
+			if pminS, err = fit8(lo, -1); err == nil {
+				pmaxS, err = fit8(hi, +1)
+			}
+		} else {
+			if pminS, err = fit8(pmin, 0); err == nil {
+				pmaxS, err = fit8(pmax, 0)
+			}
 		}
-		if lo == hi {
-			lo, hi = lo-1, hi+1
+		if err != nil {
+			return nil, fmt.Errorf("ecgtest: encode edf: physical range: %w", err)
 		}
-		if pminS, err = fit8(lo, -1); err == nil {
-			pmaxS, err = fit8(hi, +1)
+		// Quantise with the values the reader will parse, not the ones we meant.
+		pmin, _ = strconv.ParseFloat(pminS, 64)
+		pmax, _ = strconv.ParseFloat(pmaxS, 64)
+		if pmin == pmax {
+			return nil, errors.New("ecgtest: encode edf: physical minimum equals maximum")
 		}
-	} else {
-		if pminS, err = fit8(pmin, 0); err == nil {
-			pmaxS, err = fit8(pmax, 0)
+		n := (len(c.Values) + spr - 1) / spr
+		if ci == 0 || n < nrec {
+			nrec = n
 		}
+		label := c.Label
+		sigs = append(sigs, sigHdr{label, c.Transducer, c.Dimension, pminS, pmaxS, "-32768", "32767", c.Prefilter, strconv.Itoa(spr)})
+		encs = append(encs, enc{c.Values, spr, pmin, pmax})
 	}
-	if err != nil {
-		return nil, fmt.Errorf("ecgtest: encode edf: physical range: %w", err)
-	}
-	// Quantise with the values the reader will parse, not the ones we meant.
-	pmin, _ = strconv.ParseFloat(pminS, 64)
-	pmax, _ = strconv.ParseFloat(pmaxS, 64)
-	if pmin == pmax {
-		return nil, errors.New("ecgtest: encode edf: physical minimum equals maximum")
-	}
-
-	ns := 1
+	ns := len(chs)
 	if o.Plus {
-		ns = 2
+		ns++
 	}
-	nrec := (len(w.Samples) + spr - 1) / spr
 
 	// Time keeping for EDF+: "+onset" 20 20 0, padded with zero bytes.
 	frac := 0.0
-	if !w.Start.IsZero() {
-		frac = float64(w.Start.Nanosecond()) / 1e9
+	if !start.IsZero() {
+		frac = float64(start.Nanosecond()) / 1e9
 	}
 	tal := func(rec int) string {
 		on := frac + float64(rec)*dur
@@ -151,8 +221,8 @@ func EncodeEDF(w ecg.Waveform, o EDFWriteOptions) ([]byte, error) {
 	}
 	dateS, timeS := "01.01.85", "00.00.00"
 	startdate := "X"
-	if !w.Start.IsZero() {
-		t := w.Start
+	if !start.IsZero() {
+		t := start
 		if t.Year() < 1985 || t.Year() > 2084 {
 			return nil, fmt.Errorf("ecgtest: encode edf: start year %d outside 1985-2084", t.Year())
 		}
@@ -162,10 +232,6 @@ func EncodeEDF(w ecg.Waveform, o EDFWriteOptions) ([]byte, error) {
 	}
 	if recording == "" {
 		recording = "Startdate " + startdate + " X X X"
-	}
-	label := w.Label
-	if label == "" {
-		label = "ECG"
 	}
 	reserved := ""
 	if o.Plus {
@@ -181,8 +247,6 @@ func EncodeEDF(w ecg.Waveform, o EDFWriteOptions) ([]byte, error) {
 	put(strconv.Itoa(nrec), 8)
 	put(durS, 8)
 	put(strconv.Itoa(ns), 4)
-	type sigHdr struct{ label, trans, dim, pmin, pmax, dmin, dmax, pre, spr string }
-	sigs := []sigHdr{{label, o.Transducer, dim, pminS, pmaxS, "-32768", "32767", o.Prefilter, strconv.Itoa(spr)}}
 	if o.Plus {
 		sigs = append(sigs, sigHdr{"EDF Annotations", "", "", "-1", "1", "-32768", "32767", "", strconv.Itoa(annSpr)})
 	}
@@ -203,19 +267,17 @@ func EncodeEDF(w ecg.Waveform, o EDFWriteOptions) ([]byte, error) {
 		}
 	}
 
-	recBytes := 2 * spr
-	if o.Plus {
-		recBytes += 2 * annSpr
-	}
-	out := make([]byte, hdr.Len(), hdr.Len()+nrec*recBytes)
-	copy(out, hdr.Bytes())
-	gain := 65535 / (pmax - pmin)
+	var out []byte
+	out = append(out, hdr.Bytes()...)
 	for rec := 0; rec < nrec; rec++ {
-		for k := 0; k < spr; k++ {
-			i := min(rec*spr+k, len(w.Samples)-1)
-			d := math.Round((w.Samples[i]*perMV-pmin)*gain) - 32768
-			d = math.Max(-32768, math.Min(32767, d))
-			out = binary.LittleEndian.AppendUint16(out, uint16(int16(d)))
+		for _, e := range encs {
+			gain := 65535 / (e.pmax - e.pmin)
+			for k := 0; k < e.spr; k++ {
+				i := min(rec*e.spr+k, len(e.values)-1)
+				d := math.Round((e.values[i]-e.pmin)*gain) - 32768
+				d = math.Max(-32768, math.Min(32767, d))
+				out = binary.LittleEndian.AppendUint16(out, uint16(int16(d)))
+			}
 		}
 		if o.Plus {
 			a := make([]byte, 2*annSpr)
@@ -264,4 +326,19 @@ func asciiOnly(s string) string {
 		}
 		return r
 	}, s)
+}
+
+// PatchEDFDimension writes raw bytes into the physical dimension field of
+// signal i (0-based) of an EDF file, padded with spaces: the Latin-1 micro
+// sign, or UTF-8 text, which real files hold although EDF asks for ASCII.
+func PatchEDFDimension(b []byte, i int, raw []byte) {
+	ns, _ := strconv.Atoi(strings.TrimSpace(string(b[252:256])))
+	off := 256 + ns*(16+80) + i*8 // after the labels and transducer fields (EDF specification)
+	for k := range 8 {
+		c := byte(' ')
+		if k < len(raw) {
+			c = raw[k]
+		}
+		b[off+k] = c
+	}
 }
