@@ -90,6 +90,14 @@ func TestRolesAndPHI(t *testing.T) {
 			t.Errorf("%s invalid", r)
 		}
 	}
+	if Monitor.SeesDatesAndFreeText() {
+		t.Error("monitors must not see participants' calendar dates or staff free text")
+	}
+	for _, r := range []Role{Coordinator, Investigator, Admin} {
+		if !r.SeesDatesAndFreeText() {
+			t.Errorf("%s does not see dates and free text", r)
+		}
+	}
 	if Monitor.SeesPHI() {
 		t.Error("monitors must not see PHI")
 	}

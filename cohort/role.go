@@ -60,6 +60,23 @@ func (r Role) SeesPHI() bool {
 	return false
 }
 
+// SeesDatesAndFreeText is the one rule deciding who sees the calendar dates
+// tied to a participant (enrolment, withdrawal, the days of their study
+// weeks, reading times, notes, case steps) and the free text staff write
+// about participants (notes, withdrawal reasons). Safe Harbor counts every
+// element of such a date but the year as an identifier, and free text can
+// hold anything. Roles without it (monitors) see study time instead: days
+// and weeks counted from the participant's own enrolment day, and the
+// enrolment itself as a recruitment week counted from the study's first
+// enrolment.
+func (r Role) SeesDatesAndFreeText() bool {
+	switch r {
+	case Admin, Coordinator, Investigator:
+		return true
+	}
+	return false
+}
+
 // Actor is who makes a change or views PHI: written into every audit event.
 type Actor struct {
 	UserID    int64 // 0 for the system itself (imports by command, background jobs)

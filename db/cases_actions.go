@@ -37,6 +37,7 @@ func (s *Store) userName(ctx context.Context, id int64) string {
 func (s *Store) assignEdit(name string, ownerID int64, bulk bool) caseEdit {
 	return caseEdit{
 		action: followup.EditAssign,
+		step:   followup.StepAssign,
 		intent: followup.SetOwner(name),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
 			rec.Bulk = bulk
@@ -104,6 +105,7 @@ func (s *Store) LogAttempt(ctx context.Context, a cohort.Actor, id int64, in Att
 func (s *Store) attemptEdit(a cohort.Actor, e followup.AttemptEntry, bulk bool) caseEdit {
 	return caseEdit{
 		action: followup.EditAttempt,
+		step:   followup.StepAttempt,
 		intent: followup.LogAttempt(e.Outcome),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
 			st, err := studySettings(ctx, tx)
@@ -139,13 +141,14 @@ func (s *Store) attemptEdit(a cohort.Actor, e followup.AttemptEntry, bulk bool) 
 			if a.UserID != 0 {
 				actorID = &a.UserID
 			}
-			r := &attemptRecord{At: at.UTC(), Channel: string(e.Channel), Outcome: string(e.Outcome), Note: e.Note}
+			r := &attemptRecord{At: at.UTC(), Channel: string(e.Channel), Outcome: string(e.Outcome)}
 			if err := tx.QueryRow(ctx, `
 				INSERT INTO contact_attempts (case_id, participant_id, at, channel, outcome, note, moved_to, actor_id, actor)
 				VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9) RETURNING id`,
 				cur.ID, cur.ParticipantID, at, string(e.Channel), string(e.Outcome), e.Note, moved, actorID, a.Label()).Scan(&r.ID); err != nil {
 				return err
 			}
+			r.NoteRef = freeText("contact_attempts", r.ID, "note", e.Note)
 			rec.Attempt, rec.Bulk = r, bulk
 			return nil
 		},
@@ -183,7 +186,7 @@ func (s *Store) moveEdit(action followup.Edit, in MoveInput, closing bool) caseE
 			if in.To.Terminal() {
 				next.ClosingNote = reason
 			}
-			rec.Reason = reason
+			rec.reason = reason
 			return nil
 		},
 	}
@@ -197,11 +200,9 @@ func (s *Store) RecordShipment(ctx context.Context, a cohort.Actor, id int64, ve
 	tracking = strings.TrimSpace(tracking)
 	return s.oneCaseEdit(ctx, a, id, version, caseEdit{
 		action: followup.EditShipment,
+		step:   followup.StepShipment,
 		intent: followup.SetState(followup.RecorderSent),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
-			if err := followup.CheckStep(cur.State, followup.StepShipment); err != nil {
-				return err
-			}
 			st, err := studySettings(ctx, tx)
 			if err != nil {
 				return err
@@ -222,11 +223,9 @@ func (s *Store) RecordShipment(ctx context.Context, a cohort.Actor, id int64, ve
 func (s *Store) RecordReturn(ctx context.Context, a cohort.Actor, id int64, version int, backOn cohort.Date) (Case, error) {
 	return s.oneCaseEdit(ctx, a, id, version, caseEdit{
 		action: followup.EditReturn,
+		step:   followup.StepReturn,
 		intent: followup.SetState(followup.RecordingReceived),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
-			if err := followup.CheckStep(cur.State, followup.StepReturn); err != nil {
-				return err
-			}
 			st, err := studySettings(ctx, tx)
 			if err != nil {
 				return err
@@ -247,6 +246,7 @@ func (s *Store) SetCaseNote(ctx context.Context, a cohort.Actor, id int64, versi
 	note = strings.TrimSpace(note)
 	return s.oneCaseEdit(ctx, a, id, version, caseEdit{
 		action: followup.EditNote,
+		step:   followup.StepNote,
 		intent: followup.SetNote(note),
 		apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
 			if err := followup.CheckNote(note); err != nil {

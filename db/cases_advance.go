@@ -103,7 +103,7 @@ func (s *Store) advanceCase(ctx context.Context, tx pgx.Tx, a cohort.Actor, id i
 			if to.Terminal() {
 				next.ClosingNote = reason
 			}
-			rec.Reason = reason
+			rec.reason = reason
 			return nil
 		},
 	})

@@ -20,7 +20,10 @@ import (
 
 // caseSnapshot is a case as the audit trail keeps it: every field a person can
 // change, with the version it produced, so the trail can say what any version
-// looked like. No identifying details of the participant are in it.
+// looked like. No identifying details of the participant are in it, and no
+// staff free text: the working note, the closing reason, a move's reason and
+// an attempt's note are kept by reference (textRef); the text fields are
+// filled only in events written before that rule.
 type caseSnapshot struct {
 	ID              int64          `json:"id"`
 	ParticipantID   int64          `json:"participant_id"`
@@ -39,13 +42,19 @@ type caseSnapshot struct {
 	RecordingBackAt *time.Time     `json:"recording_back_at,omitempty"`
 	OverReadAt      *time.Time     `json:"over_read_at,omitempty"`
 	ClosedAt        *time.Time     `json:"closed_at,omitempty"`
-	ClosingNote     string         `json:"closing_note,omitempty"`
-	Note            string         `json:"note,omitempty"`
+	ClosingNote     string         `json:"closing_note,omitempty"` // older events only
+	ClosingNoteRef  *textRef       `json:"closing_note_ref,omitempty"`
+	Note            string         `json:"note,omitempty"` // older events only
+	NoteRef         *textRef       `json:"note_ref,omitempty"`
 	Version         int            `json:"version"`
 	Attempt         *attemptRecord `json:"attempt,omitempty"`
 	WeeksAdded      []int          `json:"weeks_added,omitempty"`
-	Reason          string         `json:"reason,omitempty"`
+	Reason          string         `json:"reason,omitempty"` // older events only
+	ReasonRef       *textRef       `json:"reason_ref,omitempty"`
 	Bulk            bool           `json:"bulk,omitempty"`
+	// reason is the reason given for this edit, which editCase records by
+	// reference; it is not itself written.
+	reason string
 }
 
 type attemptRecord struct {
@@ -53,7 +62,8 @@ type attemptRecord struct {
 	At      time.Time `json:"at"`
 	Channel string    `json:"channel"`
 	Outcome string    `json:"outcome"`
-	Note    string    `json:"note,omitempty"`
+	Note    string    `json:"note,omitempty"` // older events only
+	NoteRef *textRef  `json:"note_ref,omitempty"`
 }
 
 func ptrTime(t time.Time) *time.Time {
@@ -69,11 +79,27 @@ func snapshotOf(c Case) caseSnapshot {
 		FirstWeek: c.FirstWeek, LastWeek: c.LastWeek, State: string(c.State), OwnerID: c.OwnerID, Owner: c.Owner,
 		NextAction: string(c.NextAction), DueAt: ptrTime(c.DueAt), ReachedAt: ptrTime(c.ReachedAt),
 		RecorderSentAt: ptrTime(c.RecorderSentAt), TrackingNumber: c.TrackingNumber, RecordingBackAt: ptrTime(c.RecordingBackAt),
-		OverReadAt: ptrTime(c.OverReadAt), ClosedAt: ptrTime(c.ClosedAt), ClosingNote: c.ClosingNote, Note: c.Note, Version: c.Version}
+		OverReadAt: ptrTime(c.OverReadAt), ClosedAt: ptrTime(c.ClosedAt), Version: c.Version,
+		ClosingNoteRef: freeText("cases", c.ID, "closing_note", c.ClosingNote), NoteRef: freeText("cases", c.ID, "note", c.Note)}
 }
 
-func (cs caseSnapshot) fields() followup.CaseFields {
-	return followup.CaseFields{State: followup.State(cs.State), Owner: cs.Owner, Note: cs.Note}
+// earlierNote stands for a working note the audit trail refers to but that
+// is no longer the case's: the trail keeps no copy of it to show.
+const earlierNote = "(an earlier note)"
+
+// fields are the snapshot's editable fields as the person who saw it saw
+// them; cur is the case as stored now. A note kept by reference is the
+// current note when the digests agree, else earlierNote, which differs from
+// any note a person can type and so counts as a change.
+func (cs caseSnapshot) fields(cur Case) followup.CaseFields {
+	note := cs.Note
+	if cs.NoteRef != nil {
+		note = earlierNote
+		if sameText("", cs.NoteRef, cur.Note) {
+			note = cur.Note
+		}
+	}
+	return followup.CaseFields{State: followup.State(cs.State), Owner: cs.Owner, Note: note}
 }
 
 // anyVersion lets the system edit a case whatever version it is at (closing
@@ -83,6 +109,10 @@ const anyVersion = -1
 // caseEdit is one kind of change to a case.
 type caseEdit struct {
 	action followup.Edit // recorded as the audit action
+	// step is the step of the case's step table a person takes (empty for
+	// the system's own edits); a case whose state does not offer it refuses
+	// the edit before anything else (followup.CheckStep).
+	step followup.Step
 	// intent is what the person meant to set, applied to the fields they saw;
 	// it words the conflict message when their copy was stale.
 	intent followup.Intent
@@ -101,6 +131,11 @@ func (s *Store) editCase(ctx context.Context, tx pgx.Tx, a cohort.Actor, id int6
 	}
 	if version != anyVersion && cur.Version != version {
 		return Case{}, staleCase(ctx, tx, cur, version, e.intent)
+	}
+	if e.step != "" {
+		if err := followup.CheckStep(cur.State, e.step); err != nil {
+			return Case{}, err
+		}
 	}
 	next := cur
 	var rec caseSnapshot
@@ -139,11 +174,32 @@ func (s *Store) editCase(ctx context.Context, tx pgx.Tx, a cohort.Actor, id int6
 		return Case{}, err
 	}
 	nw := snapshotOf(next)
-	nw.Attempt, nw.WeeksAdded, nw.Reason, nw.Bulk = rec.Attempt, rec.WeeksAdded, rec.Reason, rec.Bulk
+	nw.Attempt, nw.WeeksAdded, nw.Bulk = rec.Attempt, rec.WeeksAdded, rec.Bulk
+	if nw.ReasonRef, err = reasonRef(ctx, tx, next, rec.reason); err != nil {
+		return Case{}, err
+	}
 	if err := audit(ctx, tx, a, string(e.action), "case", strconv.FormatInt(id, 10), snapshotOf(cur), nw); err != nil {
 		return Case{}, err
 	}
 	return next, nil
+}
+
+// reasonRef keeps the reason given for an edit out of the audit event: a
+// final move's reason is the case's closing note; any other is kept in
+// audit_texts, where it can be removed, and referred to.
+func reasonRef(ctx context.Context, tx pgx.Tx, next Case, reason string) (*textRef, error) {
+	if reason == "" {
+		return nil, nil
+	}
+	if next.State.Terminal() && reason == next.ClosingNote {
+		return freeText("cases", next.ID, "closing_note", reason), nil
+	}
+	var id int64
+	if err := tx.QueryRow(ctx, `INSERT INTO audit_texts (object_type, object_id, body) VALUES ('case', $1, $2) RETURNING id`,
+		strconv.FormatInt(next.ID, 10), reason).Scan(&id); err != nil {
+		return nil, err
+	}
+	return freeText("audit_texts", id, "body", reason), nil
 }
 
 // oneCaseEdit runs one edit in its own transaction.
@@ -203,7 +259,7 @@ func staleCase(ctx context.Context, tx pgx.Tx, cur Case, version int, intent fol
 	case err == nil:
 		var base caseSnapshot
 		if json.Unmarshal(raw, &base) == nil {
-			seen := base.fields()
+			seen := base.fields(cur)
 			stale.Seen = &seen
 		}
 	case !errors.Is(err, pgx.ErrNoRows):

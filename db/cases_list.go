@@ -48,28 +48,14 @@ type CasePage struct {
 	Total int64  // cases matching the filter
 }
 
-// caseListOrder is one order of the case list: the sort expression (with
-// c.id after it the order is total), its SQL type for the cursor, and the
-// cursor's key read from a row. The due and flag orders follow an index;
-// the study ID order sorts the matching cases, which are few per study.
-type caseListOrder struct {
-	expr, typ string
-	key       func(Case) string
-}
-
-func timeKey(t time.Time) string {
-	if t.IsZero() {
-		return "infinity"
-	}
-	return t.UTC().Format(time.RFC3339Nano)
-}
-
 // caseOrders are the orders the case list can be sorted in, by the key its
-// column headers use.
-var caseOrders = map[string]caseListOrder{
-	"due":      {`coalesce(c.due_at, 'infinity'::timestamptz)`, "timestamptz", func(c Case) string { return timeKey(c.DueAt) }},
-	"flagged":  {`c.flagged_at`, "timestamptz", func(c Case) string { return timeKey(c.FlaggedAt) }},
-	"study_id": {`p.study_id`, "text", func(c Case) string { return c.StudyID }},
+// column headers use: each a sort expression, with c.id after it the order
+// is total. The due and flag orders follow an index; the study ID order
+// sorts the matching cases, which are few per study.
+var caseOrders = map[string]string{
+	"due":      `coalesce(c.due_at, 'infinity'::timestamptz)`,
+	"flagged":  `c.flagged_at`,
+	"study_id": `p.study_id`,
 }
 
 func (f CaseFilter) where(now time.Time) (string, []any, error) {
@@ -78,9 +64,6 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
 	switch {
 	case f.State != "":
-		if !f.State.Valid() {
-			return "", nil, &cohort.ValidationError{Fields: map[string]string{"state": "choose a state from the list"}}
-		}
 		conds = append(conds, "c.state = "+arg(string(f.State)))
 	case f.Scope == WorkingCases:
 		conds = append(conds, "c.closed_at IS NULL")
@@ -105,10 +88,29 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	return strings.Join(conds, " AND "), args, nil
 }
 
+// Check refuses a filter the list cannot apply: an unknown state or a
+// cursor this list did not make (a tampered or outdated page link).
+// Messages are keyed by the list's query parameters.
+func (f CaseFilter) Check() error {
+	var ve cohort.ValidationError
+	if f.State != "" && !f.State.Valid() {
+		ve.Add("state", "choose a state from the list")
+	}
+	if f.After != "" {
+		if c, ok := decodeCursor(f.After); !ok || c.ID <= 0 || c.Key != "" {
+			ve.Add("after", errBadCursor.Fields["after"])
+		}
+	}
+	return ve.Err()
+}
+
 // Cases returns one page of the filtered case list with keyset pagination.
 func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if f.Limit <= 0 || f.Limit > 500 {
 		f.Limit = 50
+	}
+	if err := f.Check(); err != nil {
+		return CasePage{}, err
 	}
 	var page CasePage
 	where, args, err := f.where(s.now())
@@ -127,12 +129,16 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 		cmp, dir = "<", " DESC"
 	}
 	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key, c.ID)
-		where += fmt.Sprintf(" AND (%s, c.id) %s ($%d::%s, $%d)", order.expr, cmp, len(args)-1, order.typ, len(args))
+		// The cursor is the last row's id alone: a deadline or a flag time
+		// in the page link would show monitors a date of a participant's
+		// case. The row's sort key is read back from it.
+		args = append(args, c.ID)
+		where += fmt.Sprintf(" AND (%s, c.id) %s (SELECT %s, c.id FROM cases c JOIN participants p ON p.id = c.participant_id WHERE c.id = $%d)",
+			order, cmp, order, len(args))
 	}
 	args = append(args, f.Limit+1)
 	rows, err := s.pool.Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
-		fmt.Sprintf(` ORDER BY %s%s, c.id%s LIMIT $%d`, order.expr, dir, dir, len(args)), args...)
+		fmt.Sprintf(` ORDER BY %s%s, c.id%s LIMIT $%d`, order, dir, dir, len(args)), args...)
 	if err != nil {
 		return page, mapErr("cases", err)
 	}
@@ -142,8 +148,7 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	}
 	if len(page.Rows) > f.Limit {
 		page.Rows = page.Rows[:f.Limit]
-		last := page.Rows[f.Limit-1]
-		page.Next = encodeCursor(cursor{Key: order.key(last), ID: last.ID})
+		page.Next = encodeCursor(cursor{ID: page.Rows[f.Limit-1].ID})
 	}
 	return page, nil
 }

@@ -214,8 +214,8 @@ func snapshotChanges(oldRaw, newRaw []byte, loc *time.Location) []FieldChange {
 	add("tracking number", o.TrackingNumber, n.TrackingNumber)
 	add("recording back", day(o.RecordingBackAt), day(n.RecordingBackAt))
 	add("over-read", day(o.OverReadAt), day(n.OverReadAt))
-	add("closing reason", o.ClosingNote, n.ClosingNote)
-	add("working note", o.Note, n.Note)
+	addText("closing reason", o.ClosingNote, o.ClosingNoteRef, n.ClosingNote, n.ClosingNoteRef, add)
+	addText("working note", o.Note, o.NoteRef, n.Note, n.NoteRef, add)
 	if len(n.WeeksAdded) > 0 {
 		ws := make([]string, len(n.WeeksAdded))
 		for i, w := range n.WeeksAdded {
@@ -223,8 +223,44 @@ func snapshotChanges(oldRaw, newRaw []byte, loc *time.Location) []FieldChange {
 		}
 		out = append(out, FieldChange{"positive weeks added", "", strings.Join(ws, ", ")})
 	}
-	if n.Reason != "" && n.Reason != n.ClosingNote {
+	switch {
+	case n.Reason != "" && n.Reason != n.ClosingNote: // an event written before free text was kept by reference
 		out = append(out, FieldChange{"reason", "", n.Reason})
+	case n.ReasonRef != nil && (n.ClosingNoteRef == nil || n.ReasonRef.SHA256 != n.ClosingNoteRef.SHA256):
+		out = append(out, FieldChange{"reason", "", textGiven})
 	}
 	return out
+}
+
+// textGiven stands in the timeline for staff free text an event refers to:
+// the trail keeps no copy (textRef); the case page shows the current text.
+const textGiven = "(text given; the audit trail keeps no copy)"
+
+// textBefore stands for the text a field held before a change.
+const textBefore = "(earlier text)"
+
+// addText adds a change of a free-text field between two snapshots, each of
+// which holds the text (older events) or refers to it. The text is shown
+// where the event holds it; a change between references shows that the
+// text changed, not what it was.
+func addText(field, oldText string, oldRef *textRef, newText string, newRef *textRef, add func(field, before, after string)) {
+	digest := func(text string, ref *textRef) string {
+		switch {
+		case ref != nil:
+			return ref.SHA256
+		case text != "":
+			return textDigest(text)
+		}
+		return ""
+	}
+	if digest(oldText, oldRef) == digest(newText, newRef) {
+		return
+	}
+	shown := func(text string, ref *textRef, stand string) string {
+		if ref != nil {
+			return stand
+		}
+		return text
+	}
+	add(field, shown(oldText, oldRef, textBefore), shown(newText, newRef, textGiven))
 }

@@ -278,6 +278,17 @@ func phiFieldsSet(i Identity, birth *cohort.Date) []string {
 	return out
 }
 
+// participantAudit is a participant as an audit event keeps it: the
+// withdrawal reason, staff free text, by reference (textRef).
+type participantAudit struct {
+	Participant
+	WithdrawalReason *textRef `json:"withdrawal_reason,omitempty"` // shadows Participant's
+}
+
+func auditedParticipant(p Participant) participantAudit {
+	return participantAudit{Participant: p, WithdrawalReason: freeText("participants", p.ID, "withdrawal_reason", p.WithdrawalReason)}
+}
+
 // UpdateParticipant edits a participant if nobody changed it since in.Version.
 // The audit event keeps old and new values of the non-PHI fields and the names
 // of the PHI fields that changed.
@@ -338,8 +349,8 @@ func (s *Store) UpdateParticipant(ctx context.Context, a cohort.Actor, id int64,
 				changedPHI = append(changedPHI, f.name)
 			}
 		}
-		return audit(ctx, tx, a, "participant.update", "participant", strconv.FormatInt(id, 10), old,
-			map[string]any{"participant": nw, "phi_fields_changed": changedPHI})
+		return audit(ctx, tx, a, "participant.update", "participant", strconv.FormatInt(id, 10), auditedParticipant(old),
+			map[string]any{"participant": auditedParticipant(nw), "phi_fields_changed": changedPHI})
 	})
 	if err != nil {
 		return Participant{}, mapErr("update participant", err)
@@ -370,7 +381,7 @@ func (s *Store) Withdraw(ctx context.Context, a cohort.Actor, id int64, on cohor
 			return err
 		}
 		return audit(ctx, tx, a, "participant.withdraw", "participant", strconv.FormatInt(id, 10),
-			map[string]any{"withdrawn_on": nil}, map[string]any{"withdrawn_on": on.String(), "reason": w.Reason})
+			map[string]any{"withdrawn_on": nil}, map[string]any{"withdrawn_on": on.String(), "reason": freeText("participants", id, "withdrawal_reason", w.Reason)})
 	})
 	if err != nil {
 		return Participant{}, mapErr("withdraw", err)

@@ -11,6 +11,8 @@ import (
 	"unicode"
 
 	"cohortdesk/cohort"
+
+	"github.com/jackc/pgx/v5"
 )
 
 // The participant list: filters, orders and keyset pages.
@@ -48,11 +50,15 @@ type ParticipantPage struct {
 
 // listOrder is one order of the participants list: the ORDER BY
 // expressions (together unique, so the order is total), the cursor's key as
-// text, read from the last row of a page, and the rows after a cursor as a
-// comparison in which %[1]s is the key's placeholder, %[2]s the id's and
-// %[3]s the operator (> ascending, < descending). The study ID and
-// enrolment orders follow an index, so any page costs about the same as the
-// first; the site order sorts the filtered rows (sites are in another table).
+// text, read from the last row of a page ("" for an order whose cursor is
+// the row's id alone), and the rows after a cursor as a comparison in which
+// %[1]s is the key's placeholder, %[2]s the id's and %[3]s the operator (>
+// ascending, < descending). The study ID and enrolment orders follow an
+// index, so any page costs about the same as the first; the site order
+// sorts the filtered rows (sites are in another table). The enrolment
+// order's cursor holds no date: the page links of a role that sees no
+// dates must not carry one (cohort.Role.SeesDatesAndFreeText), so the
+// comparison reads the cursor row's day from the table.
 type listOrder struct {
 	by    []string
 	key   string
@@ -61,8 +67,8 @@ type listOrder struct {
 
 var listOrders = map[string]listOrder{
 	"study_id": {by: []string{"p.study_id"}, key: "p.study_id", after: "p.study_id %[3]s %[1]s"},
-	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"}, key: "to_char(p.enrolled_on, 'YYYY-MM-DD') || p.study_id",
-		after: "(p.enrolled_on, p.study_id) %[3]s (left(%[1]s, 10)::date, substr(%[1]s, 11))"},
+	"enrolled": {by: []string{"p.enrolled_on", "p.study_id"},
+		after: "(p.enrolled_on, p.study_id) %[3]s (SELECT k.enrolled_on, k.study_id FROM participants k WHERE k.id = %[2]s)"},
 	"site": {by: []string{"st.code || ' ' || p.study_id", "p.id"}, key: "st.code || ' ' || p.study_id",
 		after: "(st.code || ' ' || p.study_id, p.id) %[3]s (%[1]s, %[2]s)"},
 }
@@ -134,7 +140,7 @@ func escapeLike(s string) string {
 }
 
 type cursor struct {
-	Key string `json:"k"`
+	Key string `json:"k,omitempty"`
 	ID  int64  `json:"i"`
 }
 
@@ -146,11 +152,52 @@ func encodeCursor(c cursor) string {
 func decodeCursor(s string) (cursor, bool) {
 	var c cursor
 	b, err := base64.RawURLEncoding.DecodeString(s)
-	if err != nil || json.Unmarshal(b, &c) != nil {
+	if err != nil || json.Unmarshal(b, &c) != nil || strings.ContainsRune(c.Key, 0) {
 		return c, false
 	}
 	return c, true
 }
+
+// errBadCursor refuses a page link whose cursor is not one this list made.
+var errBadCursor = &cohort.ValidationError{Fields: map[string]string{"after": "this page link is broken or out of date: go back to the first page"}}
+
+// Check refuses a filter the list cannot apply: an unknown status or order,
+// a negative number of weeks, a cursor this list did not make (a tampered or
+// outdated page link). Messages are keyed by the list's query parameters.
+func (f ParticipantFilter) Check() error {
+	var ve cohort.ValidationError
+	switch f.Status {
+	case "", "active", "withdrawn":
+	default:
+		ve.Add("status", "choose active, withdrawn or all")
+	}
+	order, ok := listOrders[f.Sort]
+	if f.Sort != "" && !ok {
+		ve.Add("sort", "choose study ID, enrolment date or site")
+	}
+	if f.PositiveWeeks < 0 || f.PositiveWeeks > MaxPositiveWeeks {
+		ve.Add("positive", fmt.Sprintf("a number of weeks from 1 to %d", MaxPositiveWeeks))
+	}
+	if f.After != "" {
+		if !ok {
+			order = listOrders["study_id"]
+		}
+		if c, good := decodeCursor(f.After); !good || !order.cursorOK(c) {
+			ve.Add("after", errBadCursor.Fields["after"])
+		}
+	}
+	return ve.Err()
+}
+
+// cursorOK reports whether c is a cursor this order makes: a record id,
+// and a key exactly when the order has one.
+func (o listOrder) cursorOK(c cursor) bool {
+	return c.ID > 0 && (o.key == "") == (c.Key == "")
+}
+
+// MaxPositiveWeeks bounds the "screen-positive in the last N weeks" filter:
+// the longest follow-up a study may set (study.follow_up_weeks).
+const MaxPositiveWeeks = 520
 
 // Participants returns one page of the filtered list, ordered by the chosen key
 // and then id, using keyset pagination so a page deep in a 100,000-row list
@@ -158,6 +205,9 @@ func decodeCursor(s string) (cursor, bool) {
 func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (ParticipantPage, error) {
 	if f.Limit <= 0 || f.Limit > 500 {
 		f.Limit = 50
+	}
+	if err := f.Check(); err != nil {
+		return ParticipantPage{}, err
 	}
 	order, ok := listOrders[f.Sort]
 	if !ok {
@@ -179,8 +229,11 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		cmp, dir = "<", " DESC"
 	}
 	if c, ok := decodeCursor(f.After); ok {
-		args = append(args, c.Key)
-		keyArg, idArg := fmt.Sprintf("$%d::text", len(args)), ""
+		keyArg, idArg := "", ""
+		if strings.Contains(order.after, "%[1]s") {
+			args = append(args, c.Key)
+			keyArg = fmt.Sprintf("$%d::text", len(args))
+		}
 		if strings.Contains(order.after, "%[2]s") {
 			args = append(args, c.ID)
 			idArg = fmt.Sprintf("$%d::bigint", len(args))
@@ -188,6 +241,9 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		where += " AND " + fmt.Sprintf(order.after, keyArg, idArg, cmp)
 	}
 	key := order.key
+	if key == "" {
+		key = "''::text"
+	}
 	nameCol := "''::text"
 	if f.WithNames {
 		nameCol = "coalesce((SELECT pi.given_name || ' ' || pi.family_name FROM participant_identity pi WHERE pi.participant_id = p.id), '')"
@@ -228,7 +284,40 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 	if len(page.Rows) > f.Limit {
 		page.Rows = page.Rows[:f.Limit]
 		last := page.Rows[f.Limit-1]
-		page.Next = encodeCursor(cursor{Key: keys[f.Limit-1], ID: last.ID})
+		page.Next = encodeCursor(cursor{Key: keys[f.Limit-1], ID: last.ID}) // Key "" for an order without one
 	}
 	return page, nil
+}
+
+// FirstEnrolment is the study's first enrolment day, from which recruitment
+// weeks count (the zero date before anyone is enrolled).
+func (s *Store) FirstEnrolment(ctx context.Context) (cohort.Date, error) {
+	var first *time.Time
+	if err := s.pool.QueryRow(ctx, `SELECT min(enrolled_on) FROM participants`).Scan(&first); err != nil {
+		return cohort.Date{}, mapErr("first enrolment", err)
+	}
+	if first == nil {
+		return cohort.Date{}, nil
+	}
+	return cohort.DateOf(*first), nil
+}
+
+// ParticipantIDs lists the ids of every participant the filter matches, in
+// id order, whatever f's order, cursor and limit: what a download of the
+// filtered list is about to contain, for its audit event.
+func (s *Store) ParticipantIDs(ctx context.Context, f ParticipantFilter) ([]int64, error) {
+	if err := f.Check(); err != nil {
+		return nil, err
+	}
+	day, weeks, err := s.statusDay(ctx, s.pool)
+	if err != nil {
+		return nil, mapErr("participant ids", err)
+	}
+	where, args := f.where(s.now().UTC(), day, weeks)
+	rows, err := s.pool.Query(ctx, `SELECT p.id FROM participants p WHERE `+where+` ORDER BY p.id`, args...)
+	if err != nil {
+		return nil, mapErr("participant ids", err)
+	}
+	ids, err := pgx.CollectRows(rows, pgx.RowTo[int64])
+	return ids, mapErr("participant ids", err)
 }

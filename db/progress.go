@@ -151,11 +151,18 @@ func (s *Store) reportTx(ctx context.Context, fn func(pgx.Tx) error) error {
 // SilentParticipant is an active participant whose watch has sent nothing for
 // a while.
 type SilentParticipant struct {
-	ID       int64
-	StudyID  string
-	SiteCode string
-	LastData *time.Time // nil: never sent anything
-	Days     int        // whole days since the last reading (or since enrolment)
+	ID         int64
+	StudyID    string
+	SiteCode   string
+	EnrolledOn cohort.Date
+	TimeZone   string     // the participant's, for study days
+	LastData   *time.Time // nil: never sent anything
+	Days       int        // whole days since the last reading (or since enrolment)
+}
+
+// Location is the participant's time zone (UTC when unreadable).
+func (sp SilentParticipant) Location() *time.Location {
+	return Participant{TimeZone: sp.TimeZone}.Location()
 }
 
 // SilentParticipants lists active participants with no reading in the last
@@ -165,7 +172,7 @@ func (s *Store) SilentParticipants(ctx context.Context, days int) ([]SilentParti
 	var out []SilentParticipant
 	err := s.reportTx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `
-			SELECT p.id, p.study_id, st.code, last.ms, p.enrolled_on
+			SELECT p.id, p.study_id, st.code, last.ms, p.enrolled_on, p.time_zone
 			FROM participants p JOIN sites st ON st.id = p.site_id
 			LEFT JOIN LATERAL (SELECT max(last_ms) AS ms FROM wear_weeks w WHERE w.participant_id = p.id) last ON true
 			WHERE p.withdrawn_on IS NULL
@@ -181,9 +188,10 @@ func (s *Store) SilentParticipants(ctx context.Context, days int) ([]SilentParti
 			var sp SilentParticipant
 			var ms *int64
 			var enrolled time.Time
-			if err := rows.Scan(&sp.ID, &sp.StudyID, &sp.SiteCode, &ms, &enrolled); err != nil {
+			if err := rows.Scan(&sp.ID, &sp.StudyID, &sp.SiteCode, &ms, &enrolled, &sp.TimeZone); err != nil {
 				return err
 			}
+			sp.EnrolledOn = cohort.DateOf(enrolled)
 			since := enrolled
 			if ms != nil {
 				t := time.UnixMilli(*ms).UTC()

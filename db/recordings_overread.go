@@ -31,16 +31,16 @@ type OverReadInput struct {
 
 // readingAudit is a reading as the audit trail keeps it.
 type readingAudit struct {
-	ID         int64  `json:"id"`
-	CaseID     int64  `json:"case_id"`
-	Role       string `json:"role"`
-	Rhythm     string `json:"rhythm"`
-	Confidence string `json:"confidence"`
-	Comment    string `json:"comment,omitempty"`
-	ReaderID   int64  `json:"reader_id"`
-	Reader     string `json:"reader"`
-	ReadOn     string `json:"read_on"`
-	Verdict    string `json:"verdict"`
+	ID         int64    `json:"id"`
+	CaseID     int64    `json:"case_id"`
+	Role       string   `json:"role"`
+	Rhythm     string   `json:"rhythm"`
+	Confidence string   `json:"confidence"`
+	Comment    *textRef `json:"comment,omitempty"` // free text, by reference
+	ReaderID   int64    `json:"reader_id"`
+	Reader     string   `json:"reader"`
+	ReadOn     string   `json:"read_on"`
+	Verdict    string   `json:"verdict"`
 }
 
 // AddOverRead enters a reading of a recording: the first, an optional second
@@ -99,7 +99,7 @@ func (s *Store) AddOverRead(ctx context.Context, a cohort.Actor, recordingID int
 			return err
 		}
 		rec := readingAudit{ID: id, CaseID: caseID, Role: string(next.Role), Rhythm: string(next.Rhythm), Confidence: string(next.Confidence),
-			Comment: e.Comment, ReaderID: next.ReaderID, Reader: next.Reader, ReadOn: next.On.String(), Verdict: string(v.Status)}
+			Comment: freeText("over_reads", id, "comment", e.Comment), ReaderID: next.ReaderID, Reader: next.Reader, ReadOn: next.On.String(), Verdict: string(v.Status)}
 		if err := audit(ctx, tx, a, "over_read.add", "recording", strconv.FormatInt(recordingID, 10), nil, rec); err != nil {
 			return err
 		}

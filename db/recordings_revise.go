@@ -94,16 +94,17 @@ func (s *Store) ReviseOverRead(ctx context.Context, a cohort.Actor, recordingID 
 			return err
 		}
 		reason := strings.TrimSpace(in.Reason)
-		if _, err := tx.Exec(ctx, `
+		var revID int64
+		if err := tx.QueryRow(ctx, `
 			INSERT INTO over_read_revisions (over_read_id, recording_id, case_id, participant_id, role, rhythm, confidence, comment,
 			    reader_id, reader, read_on, created_by, created_at, change, reason, changed_by_id, changed_by, changed_at)
 			SELECT id, recording_id, case_id, participant_id, role, rhythm, confidence, comment, reader_id, reader, read_on, created_by,
 			       created_at, $2, $3, $4, $5, $6
-			FROM over_reads WHERE id = $1`, old.ID, string(in.Change), reason, actorID(a), a.Label(), s.now()); err != nil {
+			FROM over_reads WHERE id = $1 RETURNING id`, old.ID, string(in.Change), reason, actorID(a), a.Label(), s.now()).Scan(&revID); err != nil {
 			return err
 		}
 		before := readingAudit{ID: old.ID, CaseID: caseID, Role: string(old.Role), Rhythm: string(old.Rhythm), Confidence: string(old.Confidence),
-			Comment: old.Comment, ReaderID: old.ReaderID, Reader: old.Reader, ReadOn: old.On.String()}
+			Comment: freeText("over_read_revisions", revID, "comment", old.Comment), ReaderID: old.ReaderID, Reader: old.Reader, ReadOn: old.On.String()}
 		var after any
 		if in.Change == overread.Amended {
 			if _, err := tx.Exec(ctx, `UPDATE over_reads SET rhythm = $2, confidence = $3, created_by = $4, created_at = $5 WHERE id = $1`,
@@ -121,7 +122,7 @@ func (s *Store) ReviseOverRead(ctx context.Context, a cohort.Actor, recordingID 
 			action = "over_read.withdraw"
 		}
 		if err := audit(ctx, tx, a, action, "recording", strconv.FormatInt(recordingID, 10), before,
-			map[string]any{"reading": after, "reason": reason}); err != nil {
+			map[string]any{"reading": after, "reason": freeText("over_read_revisions", revID, "reason", reason)}); err != nil {
 			return err
 		}
 		return s.followReadings(ctx, tx, a, c, in.Change)

@@ -163,7 +163,8 @@ func (s *Store) AddNote(ctx context.Context, a cohort.Actor, participantID int64
 			participantID, body, actorID, a.Label()).Scan(&id); err != nil {
 			return err
 		}
-		return audit(ctx, tx, a, "participant.note", "participant", strconv.FormatInt(participantID, 10), nil, map[string]any{"note_id": id, "body": body})
+		return audit(ctx, tx, a, "participant.note", "participant", strconv.FormatInt(participantID, 10), nil,
+			map[string]any{"note_id": id, "body": freeText("participant_notes", id, "body", body)})
 	})
 	return mapErr("add note", err)
 }

@@ -5,7 +5,6 @@ import (
 	"crypto/sha256"
 	"fmt"
 	"io"
-	"sort"
 	"strconv"
 	"strings"
 	"time"
@@ -52,17 +51,9 @@ type VerdictImport struct {
 	Rejections []VerdictRejection
 }
 
-type verdictKey struct {
-	pid         int64
-	week        int
-	model, mver string
-}
-
-type verdictVal struct {
-	score   *float64
-	verdict string
-	line    int
-}
+// verdictBatch is how many lines are parsed before they are copied to the
+// staging table: memory holds one batch, whatever the file's size.
+const verdictBatch = 8192
 
 // ImportVerdicts reads a CSV of verdicts from another algorithm (see
 // wear.VerdictReader) and stores the good lines beside our own results, in one
@@ -71,187 +62,228 @@ type verdictVal struct {
 // and reasons. Importing the same file again changes no verdict: each line is
 // then a duplicate. A file that cannot be read at all (wrong header) is
 // recorded as failed and returned as a validation error on "file".
+//
+// The file streams, as the wear importer's does: lines are parsed a batch at
+// a time and copied into a staging table inside the transaction, so memory
+// holds one batch and the study's study IDs, whatever the file's size. The
+// rules that need the whole file (a line repeating an earlier line's
+// participant, week and model is a duplicate when it agrees with the first
+// such line and refused when it does not) are applied to the staging table
+// by SQL at the end.
 func (s *Store) ImportVerdicts(ctx context.Context, a cohort.Actor, name string, r io.Reader) (VerdictImport, error) {
 	out := VerdictImport{File: name, ByReason: map[string]int{}}
 	h := sha256.New()
 	counter := &byteCounter{r: io.TeeReader(r, h)}
-	vr := wear.NewVerdictReader(counter, name)
-	var rows []wear.VerdictRow
-	reject := func(line int, code, label, field, msg, raw string) {
-		out.Rejected++
-		out.ByReason[label]++
-		if len(out.Rejections) < maxStoredRejects {
-			out.Rejections = append(out.Rejections, VerdictRejection{Line: line, Code: code, Reason: label, Field: field, Message: msg, Raw: raw})
-		}
+	ids, err := s.studyIDs(ctx)
+	if err != nil {
+		return out, err
 	}
-	for vr.Next() {
-		out.Rows++
-		if rej := vr.Rejection(); rej != nil {
-			reject(rej.Line, rej.Reason.String(), rej.Reason.Label(), rej.Field, rej.Msg, rej.Raw)
-			continue
+	var readErr error
+	err = s.inTx(ctx, func(tx pgx.Tx) error {
+		var actorID *int64
+		if a.UserID != 0 {
+			actorID = &a.UserID
 		}
-		row := vr.Verdict()
-		if len(row.ModelName) > 100 || len(row.ModelVersion) > 100 {
-			reject(row.Line, wear.ReasonOutOfRange.String(), wear.ReasonOutOfRange.Label(), "model_name", "model name and version must be at most 100 characters each", "")
-			continue
+		if err := tx.QueryRow(ctx, `INSERT INTO imports (kind, file_name, file_sha256, size_bytes, status, finished_at, actor_id, actor)
+			VALUES ('verdicts_csv', $1, '', 0, 'running', NULL, $2, $3) RETURNING id`, name, actorID, a.Label()).Scan(&out.ImportID); err != nil {
+			return err
 		}
-		if row.Week > 32767 {
-			reject(row.Line, wear.ReasonBadWeek.String(), wear.ReasonBadWeek.Label(), "study_week", fmt.Sprintf("study week %d is beyond any study", row.Week), "")
-			continue
+		if _, err := tx.Exec(ctx, `
+			CREATE TEMP TABLE verdict_stage (line bigint, pid bigint, week smallint, model text, mver text, score float8, verdict text) ON COMMIT DROP;
+			CREATE TEMP TABLE verdict_refused (line bigint, code text, label text, field text, message text, raw text) ON COMMIT DROP`); err != nil {
+			return err
 		}
-		rows = append(rows, row)
-	}
-	_, _ = io.Copy(io.Discard, counter) // hash the whole file even after an early stop
-	out.SHA256 = fmt.Sprintf("%x", h.Sum(nil))
-	if err := vr.Err(); err != nil {
-		msg := err.Error()
+		var good, refused [][]any
+		refuse := func(line int, code, label, field, msg, raw string) {
+			out.Rejected++
+			out.ByReason[label]++
+			refused = append(refused, []any{int64(line), code, label, field, msg, raw})
+		}
+		flush := func() error {
+			if len(good) > 0 {
+				if _, err := tx.CopyFrom(ctx, pgx.Identifier{"verdict_stage"}, []string{"line", "pid", "week", "model", "mver", "score", "verdict"}, pgx.CopyFromRows(good)); err != nil {
+					return err
+				}
+			}
+			if len(refused) > 0 {
+				if _, err := tx.CopyFrom(ctx, pgx.Identifier{"verdict_refused"}, []string{"line", "code", "label", "field", "message", "raw"}, pgx.CopyFromRows(refused)); err != nil {
+					return err
+				}
+			}
+			good, refused = good[:0], refused[:0]
+			return nil
+		}
+		vr := wear.NewVerdictReader(counter, name)
+		for vr.Next() {
+			out.Rows++
+			if rej := vr.Rejection(); rej != nil {
+				refuse(rej.Line, rej.Reason.String(), rej.Reason.Label(), rej.Field, rej.Msg, rej.Raw)
+			} else if row := vr.Verdict(); len(row.ModelName) > 100 || len(row.ModelVersion) > 100 {
+				refuse(row.Line, wear.ReasonOutOfRange.String(), wear.ReasonOutOfRange.Label(), "model_name", "model name and version must be at most 100 characters each", "")
+			} else if row.Week > 32767 {
+				refuse(row.Line, wear.ReasonBadWeek.String(), wear.ReasonBadWeek.Label(), "study_week", fmt.Sprintf("study week %d is beyond any study", row.Week), "")
+			} else if pid := ids[row.StudyID]; pid == 0 {
+				refuse(row.Line, wear.ReasonUnknownParticipant.String(), wear.ReasonUnknownParticipant.Label(), "study_id",
+					fmt.Sprintf("study ID %q matches no enrolled participant", row.StudyID), "")
+			} else {
+				var score *float64
+				if row.HasScore {
+					sc := row.Score
+					score = &sc
+				}
+				good = append(good, []any{int64(row.Line), pid, int16(row.Week), row.ModelName, row.ModelVersion, score, string(row.Verdict)})
+			}
+			if len(good)+len(refused) >= verdictBatch {
+				if err := flush(); err != nil {
+					return err
+				}
+			}
+		}
+		_, _ = io.Copy(io.Discard, counter) // hash the whole file even after an early stop
+		out.SHA256 = fmt.Sprintf("%x", h.Sum(nil))
+		if readErr = vr.Err(); readErr != nil {
+			return readErr // nothing of the file is kept; the failure is recorded below
+		}
+		if err := flush(); err != nil {
+			return err
+		}
+		return s.settleVerdicts(ctx, tx, a, name, h.Sum(nil), counter.n, &out)
+	})
+	if readErr != nil {
+		msg := readErr.Error()
 		if ferr := s.recordFailedImport(ctx, a, name, h.Sum(nil), counter.n, msg); ferr != nil {
 			return out, ferr
 		}
 		return out, &cohort.ValidationError{Fields: map[string]string{"file": "the file could not be read, nothing was stored: " + msg}}
 	}
-
-	// Map study IDs to participants; unknown ones are refused line by line.
-	ids := map[string]int64{}
-	var studyIDs []string
-	for _, row := range rows {
-		if _, ok := ids[row.StudyID]; !ok {
-			ids[row.StudyID] = 0
-			studyIDs = append(studyIDs, row.StudyID)
-		}
-	}
-	if len(studyIDs) > 0 {
-		prows, err := s.pool.Query(ctx, `SELECT study_id, id FROM participants WHERE study_id = ANY($1)`, studyIDs)
-		if err != nil {
-			return out, mapErr("verdict participants", err)
-		}
-		for prows.Next() {
-			var sid string
-			var id int64
-			if err := prows.Scan(&sid, &id); err != nil {
-				prows.Close()
-				return out, mapErr("verdict participants", err)
-			}
-			ids[sid] = id
-		}
-		if err := prows.Err(); err != nil {
-			return out, mapErr("verdict participants", err)
-		}
-	}
-
-	// One value per key: exact repeats are duplicates, different ones refused.
-	seen := map[verdictKey]verdictVal{}
-	var keep []verdictKey
-	var late []VerdictRejection
-	for _, row := range rows {
-		pid := ids[row.StudyID]
-		if pid == 0 {
-			late = append(late, VerdictRejection{Line: row.Line, Code: wear.ReasonUnknownParticipant.String(), Reason: wear.ReasonUnknownParticipant.Label(),
-				Field: "study_id", Message: fmt.Sprintf("study ID %q matches no enrolled participant", row.StudyID)})
-			continue
-		}
-		k := verdictKey{pid, row.Week, row.ModelName, row.ModelVersion}
-		v := verdictVal{verdict: string(row.Verdict), line: row.Line}
-		if row.HasScore {
-			sc := row.Score
-			v.score = &sc
-		}
-		if prev, ok := seen[k]; ok {
-			if prev.verdict == v.verdict && sameScore(prev.score, v.score) {
-				out.Duplicates++
-				continue
-			}
-			late = append(late, VerdictRejection{Line: row.Line, Code: ReasonConflictingRow, Reason: "conflicts with an earlier line",
-				Field: "verdict", Message: fmt.Sprintf("line %d gave this participant, week and model another verdict or score", prev.line)})
-			continue
-		}
-		seen[k] = v
-		keep = append(keep, k)
-	}
-	for _, rj := range late {
-		reject(rj.Line, rj.Code, rj.Reason, rj.Field, rj.Message, rj.Raw)
-	}
-	sort.SliceStable(out.Rejections, func(i, j int) bool { return out.Rejections[i].Line < out.Rejections[j].Line })
-
-	pids := make([]int64, len(keep))
-	weeks := make([]int16, len(keep))
-	models := make([]string, len(keep))
-	mvers := make([]string, len(keep))
-	scores := make([]*float64, len(keep))
-	verdicts := make([]string, len(keep))
-	for i, k := range keep {
-		v := seen[k]
-		pids[i], weeks[i], models[i], mvers[i], scores[i], verdicts[i] = k.pid, int16(k.week), k.model, k.mver, v.score, v.verdict
-	}
-
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		var actorID *int64
-		if a.UserID != 0 {
-			actorID = &a.UserID
-		}
-		if err := tx.QueryRow(ctx, `INSERT INTO imports (kind, file_name, file_sha256, size_bytes, status, finished_at, actor_id, actor,
-			rows_total, rejected, bytes_read) VALUES ('verdicts_csv', $1, $2, $3, 'running', NULL, $4, $5, $6, $7, $3) RETURNING id`,
-			name, h.Sum(nil), counter.n, actorID, a.Label(), out.Rows, out.Rejected).Scan(&out.ImportID); err != nil {
-			return err
-		}
-		if len(keep) > 0 {
-			if err := tx.QueryRow(ctx, `
-				WITH u AS (
-				  SELECT * FROM unnest($1::bigint[], $2::smallint[], $3::text[], $4::text[], $5::float8[], $6::text[])
-				         AS u(pid, week, model, mver, score, verdict)
-				), ins AS (
-				  INSERT INTO external_verdicts AS ev (participant_id, week, model_name, model_version, score, verdict, import_id)
-				  SELECT pid, week, model, mver, score, verdict, $7 FROM u
-				  ON CONFLICT (participant_id, week, model_name, model_version) DO UPDATE
-				    SET score = excluded.score, verdict = excluded.verdict, import_id = excluded.import_id
-				    WHERE ev.score IS DISTINCT FROM excluded.score OR ev.verdict IS DISTINCT FROM excluded.verdict
-				  RETURNING (xmax = 0) AS added
-				)
-				SELECT count(*) FILTER (WHERE added), count(*) FILTER (WHERE NOT added) FROM ins`,
-				pids, weeks, models, mvers, scores, verdicts, out.ImportID).Scan(&out.Added, &out.Replaced); err != nil {
-				return err
-			}
-		}
-		out.Duplicates += len(keep) - out.Added - out.Replaced
-		out.Accepted = out.Rows - out.Rejected
-		if len(out.Rejections) > 0 {
-			src := make([][]any, len(out.Rejections))
-			for i, rj := range out.Rejections {
-				msg := rj.Message
-				if rj.Field != "" && !strings.Contains(msg, rj.Field) {
-					msg = rj.Field + ": " + msg
-				}
-				src[i] = []any{out.ImportID, int32(i + 1), int64(rj.Line), rj.Code, msg, rj.Raw}
-			}
-			if _, err := tx.CopyFrom(ctx, pgx.Identifier{"import_rejects"}, []string{"import_id", "seq", "line", "reason", "message", "raw"}, pgx.CopyFromRows(src)); err != nil {
-				return err
-			}
-		}
-		reasons := map[string]int{}
-		for _, rj := range out.Rejections {
-			reasons[rj.Code]++
-		}
-		if _, err := tx.Exec(ctx, `UPDATE imports SET status = 'done', finished_at = clock_timestamp(), accepted = $2, duplicates = $3,
-			reasons = $4, message = $5 WHERE id = $1`, out.ImportID, out.Accepted, out.Duplicates, reasons, out.Summary()); err != nil {
-			return err
-		}
-		return audit(ctx, tx, a, "verdicts.import", "import", strconv.FormatInt(out.ImportID, 10), nil, map[string]any{
-			"file": name, "sha256": out.SHA256, "rows": out.Rows, "added": out.Added, "replaced": out.Replaced,
-			"duplicates": out.Duplicates, "rejected": out.Rejected})
-	})
 	return out, mapErr("import verdicts", err)
+}
+
+// studyIDs maps every participant's study ID to their id.
+func (s *Store) studyIDs(ctx context.Context) (map[string]int64, error) {
+	rows, err := s.pool.Query(ctx, `SELECT study_id, id FROM participants`)
+	if err != nil {
+		return nil, mapErr("verdict participants", err)
+	}
+	defer rows.Close()
+	ids := map[string]int64{}
+	for rows.Next() {
+		var sid string
+		var id int64
+		if err := rows.Scan(&sid, &id); err != nil {
+			return nil, mapErr("verdict participants", err)
+		}
+		ids[sid] = id
+	}
+	return ids, mapErr("verdict participants", rows.Err())
+}
+
+// settleVerdicts applies the whole-file rules to the staged lines and stores
+// the result: per participant, week and model the first line counts; a later
+// line that agrees with it is a duplicate, one that does not is refused. The
+// first lines are merged into external_verdicts, the refused lines (the first
+// maxStoredRejects by line) kept in import_rejects, and the import recorded
+// and audited.
+func (s *Store) settleVerdicts(ctx context.Context, tx pgx.Tx, a cohort.Actor, name string, sum []byte, size int64, out *VerdictImport) error {
+	const ranked = `
+		SELECT s.*, first_value(line) OVER w AS first_line, first_value(score) OVER w AS first_score, first_value(verdict) OVER w AS first_verdict
+		FROM verdict_stage s WINDOW w AS (PARTITION BY pid, week, model, mver ORDER BY line)`
+	var dups, conflicts int
+	if err := tx.QueryRow(ctx, `
+		WITH r AS (`+ranked+`), later AS (
+		  SELECT *, verdict = first_verdict AND score IS NOT DISTINCT FROM first_score AS same FROM r WHERE line <> first_line
+		), ins AS (
+		  INSERT INTO verdict_refused (line, code, label, field, message, raw)
+		  SELECT line, $1, 'conflicts with an earlier line', 'verdict',
+		         'line ' || first_line || ' gave this participant, week and model another verdict or score', '' FROM later WHERE NOT same
+		  RETURNING 1
+		)
+		SELECT (SELECT count(*) FROM later WHERE same), (SELECT count(*) FROM ins)`, ReasonConflictingRow).Scan(&dups, &conflicts); err != nil {
+		return err
+	}
+	out.Duplicates += dups
+	out.Rejected += conflicts
+	if conflicts > 0 {
+		out.ByReason["conflicts with an earlier line"] += conflicts
+	}
+	var kept int
+	if err := tx.QueryRow(ctx, `
+		WITH first AS (
+		  SELECT DISTINCT ON (pid, week, model, mver) pid, week, model, mver, score, verdict FROM verdict_stage ORDER BY pid, week, model, mver, line
+		), ins AS (
+		  INSERT INTO external_verdicts AS ev (participant_id, week, model_name, model_version, score, verdict, import_id)
+		  SELECT pid, week, model, mver, score, verdict, $1 FROM first
+		  ON CONFLICT (participant_id, week, model_name, model_version) DO UPDATE
+		    SET score = excluded.score, verdict = excluded.verdict, import_id = excluded.import_id
+		    WHERE ev.score IS DISTINCT FROM excluded.score OR ev.verdict IS DISTINCT FROM excluded.verdict
+		  RETURNING (xmax = 0) AS added
+		)
+		SELECT (SELECT count(*) FROM first), count(*) FILTER (WHERE added), count(*) FILTER (WHERE NOT added) FROM ins`,
+		out.ImportID).Scan(&kept, &out.Added, &out.Replaced); err != nil {
+		return err
+	}
+	out.Duplicates += kept - out.Added - out.Replaced
+	out.Accepted = out.Rows - out.Rejected
+	// The refused lines in line order, the first maxStoredRejects kept.
+	rows, err := tx.Query(ctx, `SELECT line, code, label, field, message, raw FROM verdict_refused ORDER BY line LIMIT $1`, maxStoredRejects)
+	if err != nil {
+		return err
+	}
+	out.Rejections, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (VerdictRejection, error) {
+		var rj VerdictRejection
+		var line int64
+		err := r.Scan(&line, &rj.Code, &rj.Reason, &rj.Field, &rj.Message, &rj.Raw)
+		rj.Line = int(line)
+		return rj, err
+	})
+	if err != nil {
+		return err
+	}
+	if len(out.Rejections) > 0 {
+		src := make([][]any, len(out.Rejections))
+		for i, rj := range out.Rejections {
+			msg := rj.Message
+			if rj.Field != "" && !strings.Contains(msg, rj.Field) {
+				msg = rj.Field + ": " + msg
+			}
+			src[i] = []any{out.ImportID, int32(i + 1), int64(rj.Line), rj.Code, msg, rj.Raw}
+		}
+		if _, err := tx.CopyFrom(ctx, pgx.Identifier{"import_rejects"}, []string{"import_id", "seq", "line", "reason", "message", "raw"}, pgx.CopyFromRows(src)); err != nil {
+			return err
+		}
+	}
+	reasons := map[string]int{}
+	if err := func() error {
+		rows, err := tx.Query(ctx, `SELECT code, count(*) FROM verdict_refused GROUP BY code`)
+		if err != nil {
+			return err
+		}
+		defer rows.Close()
+		for rows.Next() {
+			var code string
+			var n int
+			if err := rows.Scan(&code, &n); err != nil {
+				return err
+			}
+			reasons[code] = n
+		}
+		return rows.Err()
+	}(); err != nil {
+		return err
+	}
+	if _, err := tx.Exec(ctx, `UPDATE imports SET status = 'done', finished_at = clock_timestamp(), file_sha256 = $2, size_bytes = $3, bytes_read = $3,
+		rows_total = $4, rejected = $5, accepted = $6, duplicates = $7, reasons = $8, message = $9 WHERE id = $1`,
+		out.ImportID, sum, size, out.Rows, out.Rejected, out.Accepted, out.Duplicates, reasons, out.Summary()); err != nil {
+		return err
+	}
+	return audit(ctx, tx, a, "verdicts.import", "import", strconv.FormatInt(out.ImportID, 10), nil, map[string]any{
+		"file": name, "sha256": out.SHA256, "rows": out.Rows, "added": out.Added, "replaced": out.Replaced,
+		"duplicates": out.Duplicates, "rejected": out.Rejected})
 }
 
 // Summary is the import in one line.
 func (v VerdictImport) Summary() string {
 	return fmt.Sprintf("%d lines: %d new, %d changed, %d duplicates, %d refused", v.Rows, v.Added, v.Replaced, v.Duplicates, v.Rejected)
-}
-
-func sameScore(a, b *float64) bool {
-	if a == nil || b == nil {
-		return a == nil && b == nil
-	}
-	return *a == *b
 }
 
 // recordFailedImport keeps the record of a file refused as a whole.

@@ -7,22 +7,21 @@ import (
 	"net/http"
 	"net/url"
 	"strconv"
-	"strings"
 	"time"
 
-	"cohortdesk/cohort"
 	"cohortdesk/db"
 	"cohortdesk/views"
 )
 
-// auditFilter reads the filter form. From and To are whole days in the
-// study's zone; the object field takes a participant's study ID (their
-// events and those of their cases, recordings and referral summaries) or an
-// object's number; the person field a part of a name or e-mail, or an
-// account number.
-func auditFilter(q url.Values, loc *time.Location) (db.AuditFilter, views.AuditFilterForm) {
-	form := views.AuditFilterForm{Action: q.Get("action"), Object: q.Get("object"), ObjectID: strings.TrimSpace(q.Get("object_id")),
-		From: q.Get("from"), To: q.Get("to"), Actor: strings.TrimSpace(q.Get("actor"))}
+// auditFilter reads the filter form, strictly. From and To are whole days
+// in the study's zone; the object field takes a participant's study ID
+// (their events and those of their cases, recordings and referral
+// summaries) or an object's number; the person field a part of a name or
+// e-mail, or an account number.
+func auditFilter(v url.Values, loc *time.Location) (db.AuditFilter, views.AuditFilterForm, error) {
+	q := readQuery(v)
+	form := views.AuditFilterForm{Action: q.text("action"), Object: q.text("object"), ObjectID: q.text("object_id"),
+		From: q.get("from"), To: q.get("to"), Actor: q.text("actor")}
 	f := db.AuditFilter{Action: form.Action, ObjectType: form.Object, Who: form.Actor}
 	if form.ObjectID != "" {
 		if _, err := strconv.ParseInt(form.ObjectID, 10, 64); err == nil {
@@ -31,14 +30,14 @@ func auditFilter(q url.Values, loc *time.Location) (db.AuditFilter, views.AuditF
 			f.StudyID = form.ObjectID
 		}
 	}
-	if d, err := cohort.ParseDay(form.From); err == nil {
+	if d := q.date("from"); !d.IsZero() {
 		f.From = d.In(loc)
 	}
-	if d, err := cohort.ParseDay(form.To); err == nil {
+	if d := q.date("to"); !d.IsZero() {
 		f.To = d.AddDays(1).In(loc)
 	}
-	f.BeforeID, _ = strconv.ParseInt(q.Get("before"), 10, 64)
-	return f, form
+	f.BeforeID = q.id("before", "event number")
+	return f, form, q.err()
 }
 
 // auditFilterStore finds the audit trail's events and says why a filter
@@ -50,10 +49,24 @@ type auditFilterStore interface {
 func (s *Server) auditList(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	loc := s.studyZone(ctx)
-	f, form := auditFilter(r.URL.Query(), loc)
+	f, form, err := auditFilter(r.URL.Query(), loc)
+	if err != nil {
+		return err
+	}
 	f.Limit = 100
 	evs, err := s.store.AuditEvents(ctx, f)
 	if err != nil {
+		return err
+	}
+	// The trail holds what people did to participants' records (and, in
+	// events written before free text was kept by reference, what they
+	// wrote): reading it is itself recorded, with the events shown.
+	shown := make([]int64, len(evs))
+	for i, e := range evs {
+		shown[i] = e.ID
+	}
+	if err := s.store.Audit(r.Context(), s.actor(r), "audit.view", "audit_events", "", nil,
+		map[string]any{"filter": r.URL.RawQuery, "event_ids": shown}); err != nil {
 		return err
 	}
 	m := views.AuditModel{Page: s.page(r, "Audit trail", "admin"), Filter: form, Zone: loc.String()}
@@ -103,7 +116,10 @@ func auditRow(e db.AuditEvent, loc *time.Location) views.AuditRow {
 // auditCSV streams the filtered trail; the download itself is audited first.
 // The file keeps the stored values whole, for machines.
 func (s *Server) auditCSV(w http.ResponseWriter, r *http.Request) error {
-	f, _ := auditFilter(r.URL.Query(), s.studyZone(r.Context()))
+	f, _, err := auditFilter(r.URL.Query(), s.studyZone(r.Context()))
+	if err != nil {
+		return err
+	}
 	f.BeforeID = 0
 	if err := s.store.Audit(r.Context(), s.actor(r), "audit.export", "audit_events", "", nil, map[string]string{"filter": r.URL.RawQuery}); err != nil {
 		return err
@@ -112,7 +128,7 @@ func (s *Server) auditCSV(w http.ResponseWriter, r *http.Request) error {
 	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="audit-%s.csv"`, s.now().UTC().Format("20060102-1504")))
 	cw := csv.NewWriter(w)
 	_ = cw.Write([]string{"id", "at_utc", "actor_id", "actor", "action", "object_type", "object_id", "study_id", "old_value", "new_value", "client_addr", "request_id"})
-	err := s.store.EachAuditEvent(r.Context(), f, func(e db.AuditEvent) error {
+	err = s.store.EachAuditEvent(r.Context(), f, func(e db.AuditEvent) error {
 		return cw.Write([]string{strconv.FormatInt(e.ID, 10), e.At.UTC().Format(time.RFC3339Nano), strconv.FormatInt(e.ActorID, 10),
 			csvSafe(e.Actor), e.Action, e.ObjectType, csvSafe(e.ObjectID), csvSafe(e.StudyID), string(e.Old), string(e.New), e.ClientAddr, e.RequestID})
 	})

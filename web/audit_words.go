@@ -20,6 +20,7 @@ import (
 var auditActions = map[string]string{
 	"signin":                     "signed in",
 	"audit.export":               "downloaded the audit trail",
+	"audit.view":                 "read the audit trail",
 	"import.readings":            "imported wear data",
 	"import.rejects_download":    "downloaded an import's refused rows",
 	"over_read.add":              "entered an over-read",

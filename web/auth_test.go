@@ -18,7 +18,8 @@ import (
 )
 
 // TestRouteTableByRole walks every route registered on the router and checks
-// the answer for a visitor and for each role against the route table. A route
+// the answer for a visitor and for each role against the route table (HEAD,
+// served for every GET route, answers as GET does). A route
 // that is registered but missing from the table fails.
 func TestRouteTableByRole(t *testing.T) {
 	a := newApp(t)
@@ -28,6 +29,7 @@ func TestRouteTableByRole(t *testing.T) {
 	}
 	anon := a.client()
 	seen := 0
+	heads := map[string]bool{}
 	err := chi.Walk(a.srv.router, func(method, pattern string, _ http.Handler, _ ...func(http.Handler) http.Handler) error {
 		if pattern == "/assets/*" || pattern == "/signout" {
 			return nil // static files are public; sign-out is tested on its own below
@@ -37,9 +39,13 @@ func TestRouteTableByRole(t *testing.T) {
 			t.Errorf("%s %s is registered but not in the route table", method, pattern)
 			return nil
 		}
-		seen++
+		if method == "HEAD" {
+			heads[pattern] = true
+		} else {
+			seen++
+		}
 		path := strings.NewReplacer("{id}", "999999", "{code}", "XX", "{week}", "1", "{kind}", "hr").Replace(pattern)
-		do := func(c *http.Client) *http.Response {
+		do := func(c *http.Client, method string) *http.Response {
 			req, _ := http.NewRequest(method, a.ts.URL+path, strings.NewReader(""))
 			if method == "POST" {
 				req.Header.Set("Content-Type", "application/x-www-form-urlencoded")
@@ -51,7 +57,19 @@ func TestRouteTableByRole(t *testing.T) {
 			res.Body.Close()
 			return res
 		}
-		res := do(anon)
+		// HEAD answers as GET does: same status, same kind of content.
+		sameAsGet := func(who string, c *http.Client, res *http.Response) {
+			if method != "HEAD" {
+				return
+			}
+			get := do(c, "GET")
+			if res.StatusCode != get.StatusCode || res.Header.Get("Content-Type") != get.Header.Get("Content-Type") {
+				t.Errorf("%s HEAD %s: status %d %q, GET gives %d %q", who, pattern, res.StatusCode, res.Header.Get("Content-Type"),
+					get.StatusCode, get.Header.Get("Content-Type"))
+			}
+		}
+		res := do(anon, method)
+		sameAsGet("anonymous", anon, res)
 		if acc.public {
 			if res.StatusCode == http.StatusSeeOther && strings.HasPrefix(res.Header.Get("Location"), "/signin") && pattern != "/signin" {
 				t.Errorf("anonymous %s %s: sent to sign-in but the route is public", method, pattern)
@@ -60,7 +78,8 @@ func TestRouteTableByRole(t *testing.T) {
 			t.Errorf("anonymous %s %s: status %d location %q, want a redirect to sign-in", method, pattern, res.StatusCode, res.Header.Get("Location"))
 		}
 		for _, r := range cohort.Roles {
-			res := do(clients[r])
+			res := do(clients[r], method)
+			sameAsGet(string(r), clients[r], res)
 			switch {
 			case acc.allows(r) && res.StatusCode == http.StatusForbidden:
 				t.Errorf("%s %s %s: 403 but the table allows it", r, method, pattern)
@@ -79,6 +98,11 @@ func TestRouteTableByRole(t *testing.T) {
 	}
 	if seen < len(a.srv.routeTable)-1 {
 		t.Errorf("walked %d routes, table has %d", seen, len(a.srv.routeTable))
+	}
+	for _, rt := range a.srv.routeTable {
+		if rt.method == "GET" && !heads[rt.pattern] {
+			t.Errorf("GET %s answers no HEAD", rt.pattern)
+		}
 	}
 }
 

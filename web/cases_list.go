@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"net/http"
 	"net/url"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -15,11 +16,15 @@ import (
 
 // The case list and its bulk actions.
 
-// caseFilter reads the case list's filter from the query string.
-func caseFilter(r *http.Request, q url.Values, deid bool) (db.CaseFilter, views.CaseFilterForm) {
-	form := views.CaseFilterForm{State: q.Get("state"), Owner: q.Get("owner"), Site: q.Get("site"), Overdue: q.Get("overdue") == "on",
-		Search: strings.TrimSpace(q.Get("q")), Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
-	f := db.CaseFilter{Overdue: form.Overdue, After: q.Get("after"), Search: form.Search, Sort: form.Sort, Desc: form.Desc}
+// caseFilter reads the case list's filter from the query string, strictly
+// (a value the list cannot use is a queryError). me is the signed-in
+// account; workers are the people cases may be given to, nil for a role that
+// sees the list de-identified (it has no owner filter).
+func caseFilter(v url.Values, me int64, sites []db.Site, workers []db.User) (db.CaseFilter, views.CaseFilterForm, error) {
+	q := readQuery(v)
+	form := views.CaseFilterForm{State: q.get("state"), Owner: q.get("owner"), Overdue: q.flag("overdue"),
+		Search: q.text("q"), Sort: q.oneOf("sort", "due", "flagged", "study_id"), Desc: q.flag("desc")}
+	f := db.CaseFilter{Overdue: form.Overdue, After: q.get("after"), Search: form.Search, Sort: form.Sort, Desc: form.Desc}
 	switch form.State {
 	case "", "working":
 	case "final":
@@ -27,21 +32,32 @@ func caseFilter(r *http.Request, q url.Values, deid bool) (db.CaseFilter, views.
 	case "all":
 		f.Scope = db.AllCases
 	default:
-		f.State = followup.State(form.State) // an unknown state is refused by the store
+		f.State = followup.State(form.State) // an unknown state is refused by the filter's check
 	}
-	f.SiteID, _ = strconv.Atoi(form.Site)
-	if !deid {
-		switch form.Owner {
-		case "":
-		case "none":
-			f.Unowned = true
-		default:
-			if id := ownerParam(r, form.Owner); id > 0 {
-				f.OwnerID = id
-			}
+	f.SiteID = siteParam(q, "site", sites)
+	if f.SiteID > 0 {
+		form.Site = strconv.Itoa(f.SiteID)
+	}
+	switch {
+	case form.Owner == "":
+	case workers == nil:
+		q.refuse("owner", "this list has no owner filter for your role")
+	case form.Owner == "none":
+		f.Unowned = true
+	case form.Owner == "me":
+		f.OwnerID = me
+	default:
+		id, err := strconv.ParseInt(form.Owner, 10, 64)
+		if err != nil || !slices.ContainsFunc(workers, func(u db.User) bool { return u.ID == id }) {
+			q.refuse("owner", "choose a person from the list")
+			break
 		}
+		f.OwnerID = id
 	}
-	return f, form
+	if err := q.check(f.Check()); err != nil {
+		return f, form, err
+	}
+	return f, form, q.err()
 }
 
 func stateOptions() []views.Option {
@@ -62,7 +78,24 @@ func (s *Server) casesList(w http.ResponseWriter, r *http.Request) error {
 func (s *Server) renderCases(w http.ResponseWriter, r *http.Request, q url.Values, status int, msg string) error {
 	ctx := r.Context()
 	deid := !role(r).SeesPHI()
-	f, form := caseFilter(r, q, deid)
+	sites, siteList, err := s.siteOptions(ctx)
+	if err != nil {
+		return err
+	}
+	var workers []db.User
+	if !deid {
+		if workers, err = s.store.CaseWorkers(ctx); err != nil {
+			return err
+		}
+		if workers == nil {
+			workers = []db.User{}
+		}
+	}
+	u, _ := userFrom(ctx)
+	f, form, err := caseFilter(q, u.ID, siteList, workers)
+	if err != nil {
+		return err
+	}
 	page, err := s.store.Cases(ctx, f)
 	if err != nil {
 		return err
@@ -71,17 +104,9 @@ func (s *Server) renderCases(w http.ResponseWriter, r *http.Request, q url.Value
 	if err != nil {
 		return err
 	}
-	sites, _, err := s.siteOptions(ctx)
-	if err != nil {
-		return err
-	}
 	m := views.CasesModel{Page: s.page(r, "Cases", "cases"), Filter: form, States: stateOptions(), Sites: sites,
 		Total: page.Total, DeIdentified: deid, Message: msg}
 	if !deid {
-		workers, err := s.store.CaseWorkers(ctx)
-		if err != nil {
-			return err
-		}
 		m.Owners = append([]views.Option{{Value: "", Label: "anyone"}, {Value: "me", Label: "me"}, {Value: "none", Label: "nobody yet"}}, workerOptions(workers, false)...)
 		m.Assignees = workerOptions(workers, true)
 		m.CanAssign, m.CanLetter = caseWork.allows(role(r)), coordWork.allows(role(r))

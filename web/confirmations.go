@@ -71,12 +71,16 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 	return s.ok(w, r, views.Confirmations(m))
 }
 
-// statsFilter reads the statistics page's protocol and site choice.
-func statsFilter(q url.Values) cascade.Filter {
-	var f cascade.Filter
-	f.ProtocolID, _ = strconv.Atoi(q.Get("protocol"))
-	f.SiteID, _ = strconv.Atoi(q.Get("site"))
-	return f
+// statsFilter reads the statistics page's protocol and site choice (and the
+// CSV download's table), strictly.
+func statsFilter(v url.Values, sites []db.Site, tables ...string) (cascade.Filter, string, error) {
+	q := readQuery(v)
+	f := cascade.Filter{ProtocolID: protocolParam(q), SiteID: siteParam(q, "site", sites)}
+	table := ""
+	if len(tables) > 0 {
+		table = q.oneOf("table", tables...)
+	}
+	return f, table, q.err()
 }
 
 func intervalText(iv stats.Interval, n int) string {
@@ -145,11 +149,15 @@ func statsCSVHref(table string, q url.Values) string {
 func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	q := r.URL.Query()
-	a, err := s.store.Agreement(ctx, statsFilter(q))
+	sites, siteList, err := s.siteOptions(ctx)
 	if err != nil {
 		return err
 	}
-	sites, _, err := s.siteOptions(ctx)
+	f, _, err := statsFilter(q, siteList)
+	if err != nil {
+		return err
+	}
+	a, err := s.store.Agreement(ctx, f)
 	if err != nil {
 		return err
 	}
@@ -275,14 +283,18 @@ func ppvChart(groups []cascade.Group) (*charts.BoxPlot, bool) {
 // groups, km or kappa.
 func (s *Server) confirmationStatsCSV(w http.ResponseWriter, r *http.Request) error {
 	q := r.URL.Query()
-	table := q.Get("table")
+	sites, err := s.store.Sites(r.Context())
+	if err != nil {
+		return err
+	}
+	f, table, err := statsFilter(q, sites, "versions", "groups", "km", "kappa")
+	if err != nil {
+		return err
+	}
 	if table == "" {
 		table = "groups"
 	}
-	if table != "versions" && table != "groups" && table != "km" && table != "kappa" {
-		return errNotFound
-	}
-	a, err := s.store.Agreement(r.Context(), statsFilter(q))
+	a, err := s.store.Agreement(r.Context(), f)
 	if err != nil {
 		return err
 	}

@@ -377,25 +377,28 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 }
 
 // TestBrowserMonitorSeesNoPHI signs a monitor in and visits the main pages
-// and every canary participant's page of the demo (with confirmed cases
-// whose free text holds the canaries' names and phones) as the browser
-// renders them: neither the rendered text nor the page's markup holds any
-// canary value. Study IDs are not counted: monitors work by study ID. The
-// same visit as a coordinator does find the canary's name on the
-// participant page, so the check can see a leak.
+// and every canary participant's page of the demo, with a week's heart-rate
+// chart drawn, as the browser renders them. The canaries' cases hold their
+// names and phones in free text, and notes and a withdrawal reason planted on
+// top repeat name, phone, birth date, street and ZIP (plantMonitorFixture):
+// neither the rendered text nor the page's markup (the chart's options and
+// the SVG it draws included) holds any canary value, the planted free text
+// or a participant's calendar date in any common form. Study IDs are not
+// counted: monitors work by study ID. The same visit as a coordinator does
+// find the canary's name, the free text and the dates, so the check can see
+// a leak.
 func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 	a := newApp(t)
-	study, _, pids, _ := demoCanaries(t, a)
-	canaries := monitorCanaries(study)
+	f := plantMonitorFixture(t, a)
 	tb := newTab(t, a, 3*time.Minute)
-	pages := []string{"/", "/participants", "/cases", "/confirmations", "/confirmations/statistics", "/progress"}
-	sids := make([]string, 0, len(pids))
-	for sid := range pids {
+	pages := []string{"/", "/participants", "/participants?sort=enrolled", "/cases", "/confirmations", "/confirmations/statistics", "/progress", "/progress/report"}
+	sids := make([]string, 0, len(f.pids))
+	for sid := range f.pids {
 		sids = append(sids, sid)
 	}
 	slices.Sort(sids)
 	for _, sid := range sids {
-		pages = append(pages, fmt.Sprintf("/participants/%d", pids[sid]))
+		pages = append(pages, fmt.Sprintf("/participants/%d", f.pids[sid]), fmt.Sprintf("/participants/%d?week=2", f.pids[sid]))
 	}
 
 	tb.signIn(cohort.Monitor)
@@ -404,11 +407,17 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 		if st := tb.status(); st != 200 {
 			t.Errorf("monitor at %s: status %d", p, st)
 		}
-		if leaks := leaksIn(tb.visibleText(), canaries); len(leaks) > 0 {
-			t.Errorf("monitor sees PHI on %s: %v", p, leaks)
+		text, markup := tb.visibleText(), tb.markup()
+		if leaks := leaksIn(text, f.canaries); len(leaks) > 0 {
+			t.Errorf("monitor sees PHI or staff free text on %s: %v", p, leaks)
 		}
-		if leaks := leaksIn(tb.markup(), canaries); len(leaks) > 0 {
-			t.Errorf("the markup sent to a monitor on %s holds PHI: %v", p, leaks)
+		if leaks := leaksIn(markup, f.canaries); len(leaks) > 0 {
+			t.Errorf("the markup sent to a monitor on %s holds PHI or staff free text: %v", p, leaks)
+		}
+		for _, page := range []string{text, markup} {
+			if leaks := dateLeaks(page, "", f.today); len(leaks) > 0 {
+				t.Errorf("monitor sees participants' dates on %s: %v", p, leaks[:min(len(leaks), 5)])
+			}
 		}
 	}
 	if tb.has(`[data-testid="nav-triage"]`) {
@@ -416,9 +425,11 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 	}
 
 	tb.signIn(cohort.Coordinator)
-	tb.open(fmt.Sprintf("/participants/%d", pids[sids[0]]), "main")
-	if len(leaksIn(tb.visibleText(), canaries)) == 0 {
-		t.Fatal("a coordinator sees no canary value on a canary's page either: the check cannot tell a leak")
+	tb.open(fmt.Sprintf("/participants/%d?week=2", f.pids[sids[0]]), "main")
+	text, markup := tb.visibleText(), tb.markup()
+	if len(leaksIn(text, f.canaries)) == 0 || !strings.Contains(text, freeTextMarker) || len(dateLeaks(text, "", f.today)) == 0 ||
+		len(dateLeaks(markup, "", f.today)) == 0 {
+		t.Fatal("a coordinator sees no canary value, free text or date on a canary's page either: the check cannot tell a leak")
 	}
 }
 
@@ -427,7 +438,7 @@ func TestBrowserMonitorSeesNoPHI(t *testing.T) {
 func monitorCanaries(study *demo.Study) []string {
 	var out []string
 	for _, c := range study.CanaryValues() {
-		if c.Field != "study_id" {
+		if c.HiddenFromMonitors() {
 			out = append(out, c.Value)
 		}
 	}

@@ -88,7 +88,7 @@ func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db
 				threshold = res.Result.Windows[wi].Threshold // a personal baseline may have raised it
 			}
 		}
-		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli(), p.Location())
+		hc, sc, n, err := hrChart(&wk, pv.Params, wi, threshold, s.now().UnixMilli(), disclosureOf(r), p.Location())
 		if err != nil {
 			return err
 		}
@@ -137,17 +137,15 @@ func contains(list []string, s string) bool {
 
 // hrChart draws a week's cleaned heart rate on a time axis with the irregular
 // windows of the protocol's window size wi shaded, and returns how many
-// windows were irregular. Times are the participant's own (loc), whatever
-// zone the viewer's browser is in: each instant is drawn at its wall-clock
-// time in loc, on an axis the chart reads as UTC, and the axis says whose
-// time it is.
-func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64, loc *time.Location) (components.ChartModel, []string, int, error) {
+// windows were irregular. The axis is the disclosure's: for roles that see
+// dates, the participant's own time (loc), whatever zone the viewer's
+// browser is in (each instant drawn at its wall-clock time in loc, on an
+// axis the chart reads as UTC, which says whose time it is); study days for
+// a role that sees no dates (the chart's data then holds no timestamp).
+func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now int64, d disclosure, loc *time.Location) (components.ChartModel, []string, int, error) {
 	cleaned, _ := screen.Clean(w, p, now)
-	wall := func(ms int64) int64 {
-		_, off := time.UnixMilli(ms).In(loc).Zone()
-		return ms + int64(off)*1000
-	}
 	pr := screen.Prepare(&cleaned, p)
+	x, xAxis := d.timeAxis(w.Week, cleaned.Start, cleaned.End, loc)
 	rule := p.Windows[wi]
 	l := int64(rule.Minutes) * 60_000
 	var areas [][]opts.MarkAreaData
@@ -155,7 +153,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 	runStart := int64(-1)
 	closeRun := func(end int64) {
 		if runStart >= 0 && len(areas) < maxAreas {
-			areas = append(areas, []opts.MarkAreaData{{XAxis: wall(runStart)}, {XAxis: wall(end)}})
+			areas = append(areas, []opts.MarkAreaData{{XAxis: x(runStart)}, {XAxis: x(end)}})
 		}
 		runStart = -1
 	}
@@ -174,13 +172,13 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 
 	hr := cleaned.HR
 	var pts []opts.LineData
-	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{wall(t), "-"}}) }
+	gap := func(t int64) { pts = append(pts, opts.LineData{Value: []any{x(t), "-"}}) }
 	if hr.Len() <= maxHRPoints {
 		for i, t := range hr.T {
 			if i > 0 && t-hr.T[i-1] > 10*60_000 {
 				gap(t - 1)
 			}
-			pts = append(pts, opts.LineData{Value: []any{wall(t), hr.V[i]}})
+			pts = append(pts, opts.LineData{Value: []any{x(t), hr.V[i]}})
 		}
 	} else {
 		// Means over fixed buckets aligned to the week's start.
@@ -189,7 +187,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		flush := func() {
 			if n > 0 {
 				t := cleaned.Start + bucket*hrBucketMs + hrBucketMs/2
-				pts = append(pts, opts.LineData{Value: []any{wall(t), math.Round(float64(sum)/float64(n)*10) / 10}})
+				pts = append(pts, opts.LineData{Value: []any{x(t), math.Round(float64(sum)/float64(n)*10) / 10}})
 			}
 		}
 		for i, t := range hr.T {
@@ -215,8 +213,7 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 		// zoom control below the axis.
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(false)}),
 		charts.WithGridOpts(opts.Grid{Bottom: "90"}),
-		charts.WithXAxisOpts(opts.XAxis{Type: "time", Min: wall(cleaned.Start), Max: wall(cleaned.End),
-			Name: "participant's time (" + loc.String() + ")", NameLocation: "middle", NameGap: 26}),
+		charts.WithXAxisOpts(xAxis),
 		charts.WithYAxisOpts(opts.YAxis{Name: "bpm", Type: "value", Scale: opts.Bool(true)}),
 		charts.WithDataZoomOpts(opts.DataZoom{Type: "inside"}, opts.DataZoom{Type: "slider"}),
 	)

@@ -2,10 +2,9 @@ package web
 
 import (
 	"context"
-	"encoding/csv"
 	"fmt"
 	"net/http"
-	"net/url"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -22,6 +21,8 @@ import (
 type participantStore interface {
 	Sites(ctx context.Context) ([]db.Site, error)
 	Participants(ctx context.Context, f db.ParticipantFilter) (db.ParticipantPage, error)
+	FirstEnrolment(ctx context.Context) (cohort.Date, error)
+	ParticipantIDs(ctx context.Context, f db.ParticipantFilter) ([]int64, error)
 	Participant(ctx context.Context, id int64) (db.Participant, error)
 	Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (db.Identity, error)
 	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
@@ -71,21 +72,14 @@ func (d statusDay) status(p db.Participant) (cohort.ParticipantStatus, component
 	return st, components.OK
 }
 
-// participantFilter reads the filter from the query string.
-func participantFilter(q url.Values, seesPHI bool) (db.ParticipantFilter, views.ParticipantFilterForm) {
-	form := views.ParticipantFilterForm{Search: q.Get("q"), SiteID: q.Get("site"), Status: q.Get("status"),
-		PositiveWeeks: q.Get("positive"), OpenCase: q.Get("open_case") == "on", Sort: q.Get("sort"), Desc: q.Get("desc") == "on"}
-	f := db.ParticipantFilter{Search: form.Search, OpenCase: form.OpenCase, Sort: form.Sort,
-		Desc: form.Desc, After: q.Get("after"), WithNames: seesPHI}
-	if st := cohort.ParticipantStatus(form.Status); st.Valid() {
-		f.Status = st
+// firstEnrolment is the study's first enrolment day when the request's role
+// sees enrolments as recruitment weeks counted from it; otherwise nothing is
+// read.
+func (s *Server) firstEnrolment(ctx context.Context, d disclosure) (cohort.Date, error) {
+	if d.dates {
+		return cohort.Date{}, nil
 	}
-	for _, st := range cohort.ParticipantStatuses() {
-		form.Statuses = append(form.Statuses, views.Option{Value: string(st), Label: st.Label()})
-	}
-	f.SiteID, _ = strconv.Atoi(form.SiteID)
-	f.PositiveWeeks, _ = strconv.Atoi(form.PositiveWeeks)
-	return f, form
+	return s.store.FirstEnrolment(ctx)
 }
 
 func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, error) {
@@ -98,115 +92,6 @@ func (s *Server) siteOptions(ctx context.Context) ([]views.Option, []db.Site, er
 		opts[i] = views.Option{Value: strconv.Itoa(st.ID), Label: st.Code + " · " + st.Name}
 	}
 	return opts, sites, nil
-}
-
-func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error {
-	ctx := r.Context()
-	seesPHI := role(r).SeesPHI()
-	f, form := participantFilter(r.URL.Query(), seesPHI)
-	page, err := s.store.Participants(ctx, f)
-	if err != nil {
-		return err
-	}
-	sites, _, err := s.siteOptions(ctx)
-	if err != nil {
-		return err
-	}
-	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
-		CanEnrol: coordWork.allows(role(r)), Total: page.Total}
-	for _, st := range cohort.ParticipantStatuses() {
-		m.ByStatus = append(m.ByStatus, views.Tile{Key: string(st), Label: "participants " + st.Label(), Value: page.Status[st]})
-	}
-	now := s.now()
-	day, err := s.statusDay(ctx)
-	if err != nil {
-		return err
-	}
-	ids := make([]int64, 0, len(page.Rows))
-	for _, p := range page.Rows {
-		st, tone := day.status(p.Participant)
-		row := views.ParticipantListRow{ID: p.ID, StudyID: p.StudyID, Name: p.Name, Site: p.SiteCode, Sex: p.Sex.Label(),
-			AgeBand: ageBand(p.Participant, now), EnrolledOn: p.EnrolledOn.Label(), Status: st.Label(), StatusTone: tone, OpenCases: p.OpenCases}
-		if p.LastPositive != nil {
-			row.LastPositive = "week " + strconv.Itoa(*p.LastPositive)
-		}
-		m.Rows = append(m.Rows, row)
-		ids = append(ids, p.ID)
-	}
-	if seesPHI && len(ids) > 0 {
-		// Names on a list are a view of PHI: record whose.
-		if err := s.store.Audit(ctx, s.actor(r), "participant.list_phi", "participant_list", "", nil, map[string]any{"participant_ids": ids}); err != nil {
-			return err
-		}
-	}
-	q := r.URL.Query()
-	m.Sort = map[string]components.SortHead{}
-	for _, c := range []struct{ key, label string }{{"study_id", "Study ID"}, {"site", "Site"}, {"enrolled", "Enrolled"}} {
-		m.Sort[c.key] = sortHead("/participants", q, c.label, c.key, f.Sort, "study_id", f.Desc)
-	}
-	if page.Next != "" {
-		q.Set("after", page.Next)
-		m.Next = "/participants?" + q.Encode()
-	}
-	if f.After != "" {
-		q.Del("after")
-		m.First = "/participants?" + q.Encode()
-	}
-	q.Del("after")
-	m.CSV = "/participants.csv?" + q.Encode()
-	return s.ok(w, r, views.Participants(m))
-}
-
-// participantsCSV streams the whole filtered list. Names and contact details
-// only for roles that see PHI; the download is audited.
-func (s *Server) participantsCSV(w http.ResponseWriter, r *http.Request) error {
-	ctx := r.Context()
-	seesPHI := role(r).SeesPHI()
-	f, _ := participantFilter(r.URL.Query(), seesPHI)
-	f.After, f.Limit = "", 500
-	if err := s.store.Audit(ctx, s.actor(r), "participant.export_list", "participant_list", "",
-		nil, map[string]any{"filter": r.URL.RawQuery, "with_phi": seesPHI}); err != nil {
-		return err
-	}
-	w.Header().Set("Content-Type", "text/csv; charset=utf-8")
-	w.Header().Set("Content-Disposition", fmt.Sprintf(`attachment; filename="participants-%s.csv"`, s.now().UTC().Format("20060102")))
-	cw := csv.NewWriter(w)
-	head := []string{"study_id", "site", "sex", "age_band", "enrolled_on", "status", "withdrawn_on", "last_positive_week", "open_cases"}
-	if seesPHI {
-		head = append(head, "name")
-	}
-	_ = cw.Write(head)
-	now := s.now()
-	day, err := s.statusDay(ctx)
-	if err != nil {
-		return err
-	}
-	for {
-		page, err := s.store.Participants(ctx, f)
-		if err != nil {
-			return err
-		}
-		for _, p := range page.Rows {
-			st, _ := day.status(p.Participant)
-			withdrawn, last := "", ""
-			if p.WithdrawnOn != nil {
-				withdrawn = p.WithdrawnOn.String()
-			}
-			if p.LastPositive != nil {
-				last = strconv.Itoa(*p.LastPositive)
-			}
-			rec := []string{csvSafe(p.StudyID), p.SiteCode, p.Sex.Label(), ageBand(p.Participant, now), p.EnrolledOn.String(), string(st), withdrawn, last, strconv.Itoa(p.OpenCases)}
-			if seesPHI {
-				rec = append(rec, csvSafe(p.Name))
-			}
-			_ = cw.Write(rec)
-		}
-		cw.Flush()
-		if page.Next == "" {
-			return cw.Error()
-		}
-		f.After = page.Next
-	}
 }
 
 func (s *Server) participantParam(r *http.Request) (db.Participant, error) {
@@ -239,7 +124,17 @@ func verdictTone(v screen.Verdict) components.Tone {
 
 func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
+	q := readQuery(r.URL.Query())
+	chartWeek, chosen := q.number("week", 0, maxStudyWeek, "study week")
+	if err := q.err(); err != nil {
+		return err
+	}
 	p, err := s.participantParam(r)
+	if err != nil {
+		return err
+	}
+	d := disclosureOf(r)
+	first, err := s.firstEnrolment(ctx, d)
 	if err != nil {
 		return err
 	}
@@ -254,14 +149,22 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		{Label: "Site", Value: p.SiteCode},
 		{Label: "Sex", Value: p.Sex.Label()},
 		{Label: "Age band", Value: ageBand(p, s.now())},
-		{Label: "Enrolled", Value: p.EnrolledOn.Label()},
-		{Label: "Time zone", Value: p.TimeZone},
+		{Label: "Enrolled", Value: d.enrolment(first, p.EnrolledOn)},
 		{Label: "Consent version", Value: p.ConsentVersion},
 		{Label: "Watch", Value: p.WatchModel},
 		{Label: "Beat intervals", Value: map[bool]string{true: "supplied by the watch", false: "not supplied"}[p.RRCapable]},
 	}
+	if role(r).SeesPHI() {
+		// A time zone can name an area smaller than a state (a county's
+		// zone): geography, shown with the other identifying details' rule.
+		m.Facts = slices.Insert(m.Facts, 4, views.Fact{Label: "Time zone", Value: p.TimeZone})
+	}
 	if p.WithdrawnOn != nil {
-		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: p.WithdrawnOn.Label() + " (" + p.WithdrawalReason + ")"})
+		withdrawn := d.day(p.EnrolledOn, *p.WithdrawnOn)
+		if reason := d.text(p.WithdrawalReason); reason != "" {
+			withdrawn += " (" + reason + ")"
+		}
+		m.Facts = append(m.Facts, views.Fact{Label: "Withdrawn", Value: withdrawn})
 	}
 	m.Risk = []views.Fact{
 		{Label: "High blood pressure", Value: yesNo(p.Risk.Hypertension)},
@@ -287,18 +190,13 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	chartWeek := -1
-	if wk, err := strconv.Atoi(r.URL.Query().Get("week")); err == nil {
-		chartWeek = wk
-	}
-	if chartWeek < 0 {
+	if !chosen {
 		chartWeek = defaultChartWeek(lines)
 	}
 	m.ChartWeek = chartWeek
 	loc := p.Location()
 	for _, l := range lines {
-		start, end := cohort.WeekBounds(p.EnrolledOn, loc, l.Week)
-		row := views.TimelineRow{Week: l.Week, Dates: cohort.DateRangeLabel(cohort.DateOf(start), cohort.DateOf(end.AddDate(0, 0, -1))), Readings: l.Readings,
+		row := views.TimelineRow{Week: l.Week, Dates: d.weekSpan(p.EnrolledOn, loc, l.Week), Readings: l.Readings,
 			Verdict: l.Verdict.Label(), Tone: verdictTone(l.Verdict), Reason: l.Reason, ECG: l.ECG, Selected: l.Week == chartWeek,
 			Chart: fmt.Sprintf("/participants/%d?week=%d", p.ID, l.Week)}
 		if l.WearHours > 0 {
@@ -312,19 +210,25 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	if err := s.participantCharts(r, p, lines, &m); err != nil {
 		return err
 	}
-	notes, err := s.store.Notes(ctx, p.ID)
-	if err != nil {
-		return err
-	}
-	if r.URL.Query().Get("done") == "note" {
-		m.NoteSaved = "Note saved."
-	}
-	studyLoc := s.studyZone(ctx)
-	for _, n := range notes {
-		m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: when(n.At, studyLoc)})
+	m.NotesHidden = !d.dates
+	if d.dates {
+		notes, err := s.store.Notes(ctx, p.ID)
+		if err != nil {
+			return err
+		}
+		if r.URL.Query().Get("done") == "note" {
+			m.NoteSaved = "Note saved."
+		}
+		studyLoc := s.studyZone(ctx)
+		for _, n := range notes {
+			m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: when(n.At, studyLoc)})
+		}
 	}
 	return s.ok(w, r, views.ParticipantPage(m))
 }
+
+// maxStudyWeek bounds the study week a page may ask for: twenty years.
+const maxStudyWeek = 1043
 
 // defaultChartWeek is the latest screen-positive week, else the latest week
 // with readings.

@@ -4,8 +4,6 @@ import (
 	"context"
 	"fmt"
 	"net/http"
-	"net/url"
-	"strconv"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
@@ -35,14 +33,13 @@ const silentDays = 14
 // defaultWindow is the weeks of history the projection uses unless asked.
 const defaultWindow = 8
 
-// windowOf reads the projection's weeks of history, the default when the
-// value is missing or out of range (the page's own form keeps it in range).
-func windowOf(q url.Values) int {
-	w, err := strconv.Atoi(q.Get("window"))
-	if err != nil || w < 2 || w > enrolment.TrailingWeeks {
-		return defaultWindow
+// windowOf reads the projection's weeks of history: the default when the
+// parameter is missing, refused when it is out of range.
+func windowOf(q *query) int {
+	if w, ok := q.number("window", 2, enrolment.TrailingWeeks, "weeks of history"); ok {
+		return w
 	}
-	return w
+	return defaultWindow
 }
 
 // enrolFig is one row of the enrolment table on the progress page, the
@@ -113,7 +110,11 @@ func (f enrolFig) row() views.EnrolmentRow {
 }
 
 func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
-	window := windowOf(r.URL.Query())
+	q := readQuery(r.URL.Query())
+	window := windowOf(q)
+	if err := q.err(); err != nil {
+		return err
+	}
 	// The page's four reads are independent; made side by side, the page
 	// takes about as long as the slowest of them instead of their sum.
 	var (
@@ -127,6 +128,9 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	g.Go(func() (err error) { suff, err = s.store.DataSufficiency(ctx); return err })
 	g.Go(func() (err error) { silent, err = s.store.SilentParticipants(ctx, silentDays); return err })
 	g.Go(func() (err error) { section, err = s.progressCascade(ctx, r.URL.Query(), window); return err })
+	d := disclosureOf(r)
+	var first cohort.Date
+	g.Go(func() (err error) { first, err = s.firstEnrolment(ctx, d); return err })
 	if err := g.Wait(); err != nil {
 		return err
 	}
@@ -152,8 +156,8 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Bottom: "0"}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "participants"}))
 	labels := make([]string, len(h.Weeks))
-	for i, d := range h.Weeks {
-		labels[i] = d.Label()
+	for i, wk := range h.Weeks {
+		labels[i] = d.calendarWeek(first, wk)
 	}
 	line.SetXAxis(labels)
 	cum := func(weekly []int) []opts.LineData {
@@ -194,9 +198,10 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		if w.Active > 0 {
 			share = 100 * float64(w.Sufficient) / float64(w.Active)
 		}
-		sx = append(sx, w.Week.Label())
+		label := d.calendarWeek(first, w.Week)
+		sx = append(sx, label)
 		sy = append(sy, opts.LineData{Value: fmt.Sprintf("%.1f", share)})
-		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Key: w.Week.String(), Week: w.Week.Label(), Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
+		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Key: w.Week.String(), Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
 	}
 	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy)
 	sch, _, err := chartView("sufficiency", "Share of participant-weeks with enough usable wear, by calendar week", sl, false)
@@ -206,11 +211,10 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	m.SufficiencyChart = sch
 
 	m.SilentDays = silentDays
-	loc := s.studyZone(r.Context())
 	for _, sp := range silent {
 		last := "never"
 		if sp.LastData != nil {
-			last = dayOf(*sp.LastData, loc)
+			last = d.dayAt(sp.EnrolledOn, sp.Location(), *sp.LastData) // the day in the participant's zone
 		}
 		m.Silent = append(m.Silent, views.SilentRow{Href: fmt.Sprintf("/participants/%d", sp.ID), StudyID: sp.StudyID, Site: sp.SiteCode, Last: last, Days: sp.Days})
 	}

@@ -3,10 +3,10 @@ package web
 import (
 	"context"
 	"fmt"
+	"math"
 	"net/http"
 	"net/url"
 	"strconv"
-	"strings"
 	"time"
 
 	"cohortdesk/cohort"
@@ -28,47 +28,44 @@ type cascadeQuery struct {
 }
 
 // parseCascadeQuery reads protocol, site, from and to. Malformed values and
-// sites that do not exist are input errors (422); a protocol version that
-// does not exist is left for the store to refuse (404).
-func parseCascadeQuery(q url.Values, sites []db.Site) (cascadeQuery, error) {
-	var cq cascadeQuery
-	var ve cohort.ValidationError
-	if v := strings.TrimSpace(q.Get("protocol")); v != "" {
-		id, err := strconv.Atoi(v)
-		if err != nil || id <= 0 {
-			ve.Add("protocol", "choose a protocol version from the list")
-		} else {
-			cq.filter.ProtocolID, cq.protocol = id, strconv.Itoa(id)
-		}
+// sites that do not exist are refused (a queryError, 400); a protocol version
+// that does not exist is left for the store to refuse (404).
+func parseCascadeQuery(v url.Values, sites []db.Site) (cascadeQuery, error) {
+	q := readQuery(v)
+	cq := cascadeQuery{}
+	readCascadeQuery(q, sites, &cq)
+	return cq, q.err()
+}
+
+// readCascadeQuery reads the cascade's choices into cq, recording refusals
+// in q, for pages that read more parameters besides.
+func readCascadeQuery(q *query, sites []db.Site, cq *cascadeQuery) {
+	if id := protocolParam(q); id > 0 {
+		cq.filter.ProtocolID, cq.protocol = id, strconv.Itoa(id)
 	}
-	if v := strings.TrimSpace(q.Get("site")); v != "" {
-		id, _ := strconv.Atoi(v)
+	if id := siteParam(q, "site", sites); id > 0 {
+		cq.filter.SiteID, cq.site = id, strconv.Itoa(id)
 		for _, st := range sites {
 			if st.ID == id {
-				cq.filter.SiteID, cq.site, cq.siteCode = id, strconv.Itoa(id), st.Code
+				cq.siteCode = st.Code
 			}
 		}
-		if cq.site == "" {
-			ve.Add("site", "choose a site from the list")
-		}
 	}
-	day := func(field string) cohort.Date {
-		v := strings.TrimSpace(q.Get(field))
-		if v == "" {
-			return cohort.Date{}
-		}
-		d, err := cohort.ParseDate(v)
-		if err != nil || d.Year < 1900 || d.Year > 9998 {
-			ve.Add(field, "enter a date as YYYY-MM-DD")
-			return cohort.Date{}
-		}
-		return d
-	}
-	cq.from, cq.to = day("from"), day("to")
+	cq.from, cq.to = q.date("from"), q.date("to")
 	if err := cq.filter.EnrolledBetween(cq.from, cq.to); err != nil {
-		ve.Add("to", err.Error())
+		q.refuse("to", err.Error())
 	}
-	return cq, ve.Err()
+}
+
+// protocolParam reads a protocol version's number, 0 when none is chosen;
+// whether the version exists is the store's answer (404).
+func protocolParam(q *query) int {
+	id := q.id("protocol", "protocol version")
+	if id > math.MaxInt32 {
+		q.refuse("protocol", "choose a protocol version from the list")
+		return 0
+	}
+	return int(id)
 }
 
 // values are the query's choices for links, without empty ones.
@@ -203,19 +200,19 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	cq, err := parseCascadeQuery(q, sites)
-	if err != nil {
-		return err
-	}
-	exit := cascade.ExitReason(q.Get("exit"))
+	qr := readQuery(q)
+	var cq cascadeQuery
+	readCascadeQuery(qr, sites, &cq)
+	exit := cascade.ExitReason(qr.get("exit"))
 	if exit != "" && !exit.Known() {
-		return &cohort.ValidationError{Fields: map[string]string{"exit": "choose a reason shown on the cascade"}}
+		qr.refuse("exit", "choose a reason shown on the cascade")
 	}
 	page := 1
-	if v := q.Get("page"); v != "" {
-		if page, err = strconv.Atoi(v); err != nil || page < 1 {
-			return &cohort.ValidationError{Fields: map[string]string{"page": "a page number from 1"}}
-		}
+	if n, ok := qr.number("page", 1, math.MaxInt32, "page"); ok {
+		page = n
+	}
+	if err := qr.err(); err != nil {
+		return err
 	}
 	c, err := s.store.Cascade(ctx, cq.filter)
 	if err != nil {
@@ -253,6 +250,16 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 		return errNotFound
 	}
 	end := min(len(ids), start+cascadePageSize)
+	// Study IDs listed for an enrolment period would tell a role that sees no
+	// dates when each of them enrolled (narrow the period to a day and look);
+	// such a role sees the counts of a period, and the lists of the whole
+	// study.
+	unlisted, listed := "", len(ids)
+	if !disclosureOf(r).dates && (!cq.from.IsZero() || !cq.to.IsZero()) {
+		unlisted = "Participants are not listed by study ID for an enrolment period to your role: with the period, the list would show when each of them enrolled. Remove the period to see the list."
+		ids = nil
+		start, end = 0, 0
+	}
 	members, err := s.store.CascadeMembers(ctx, c.Protocol.ID, ids[start:end])
 	if err != nil {
 		return err
@@ -273,8 +280,8 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	}
 	path := "/progress/cascade/" + box.Key
 	m := views.CascadeBoxModel{Page: s.page(r, "Cascade: "+box.Label, "progress"), Protocol: c.Protocol.Label(), Period: cq.period(),
-		Box: flow.Boxes[at], Exit: label, Listed: len(ids), DeIdentified: deid, From: start + 1, Upto: end,
-		Back: cq.href("/progress") + "#cascade", BoxHref: cq.href(path)}
+		Box: flow.Boxes[at], Exit: label, Listed: listed, DeIdentified: deid, From: start + 1, Upto: end,
+		Back: cq.href("/progress") + "#cascade", BoxHref: cq.href(path), Unlisted: unlisted}
 	extra := []string{}
 	if exit != "" {
 		extra = []string{"exit", string(exit)}

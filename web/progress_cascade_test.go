@@ -410,7 +410,9 @@ func TestCascadeBoxListsItsParticipantsByRole(t *testing.T) {
 }
 
 // TestCascadeRoutesRefuseUnknownValues: unknown boxes and pages are 404,
-// malformed choices 422, never a server error.
+// malformed choices 400 (a tampered address; finding 12 of issue 14 made
+// out-of-range choices refused rather than replaced by defaults), never a
+// server error.
 func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 	a := newAppAt(t, time.Date(2026, 3, 11, 12, 0, 0, 0, time.UTC))
 	cascadeCohort(t, a)
@@ -422,20 +424,21 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 		{"/progress/cascade/nonsense", http.StatusNotFound},
 		{"/progress/cascade/enrolled?page=9", http.StatusNotFound},
 		{"/progress/cascade/enrolled?protocol=999", http.StatusNotFound},
-		{"/progress/cascade/enrolled?exit=bogus", http.StatusUnprocessableEntity},
-		{"/progress/cascade/enrolled?page=0", http.StatusUnprocessableEntity},
-		{"/progress/cascade/enrolled?page=x", http.StatusUnprocessableEntity},
-		{"/progress?from=2026-13-01", http.StatusUnprocessableEntity},
-		{"/progress?site=999", http.StatusUnprocessableEntity},
-		{"/progress?site=AA", http.StatusUnprocessableEntity},
-		{"/progress?protocol=-1", http.StatusUnprocessableEntity},
+		{"/progress/cascade/enrolled?exit=bogus", http.StatusBadRequest},
+		{"/progress/cascade/enrolled?page=0", http.StatusBadRequest},
+		{"/progress/cascade/enrolled?page=x", http.StatusBadRequest},
+		{"/progress?from=2026-13-01", http.StatusBadRequest},
+		{"/progress?site=999", http.StatusBadRequest},
+		{"/progress?site=AA", http.StatusBadRequest},
+		{"/progress?protocol=-1", http.StatusBadRequest},
 		{"/progress?protocol=999", http.StatusNotFound},
-		{"/progress/report?from=2026-02-01&to=2026-01-01", http.StatusUnprocessableEntity},
-		{"/progress/report?to=0001-01-01", http.StatusUnprocessableEntity},
-		{"/progress/report.zip?protocol=abc", http.StatusUnprocessableEntity},
+		{"/progress/report?from=2026-02-01&to=2026-01-01", http.StatusBadRequest},
+		{"/progress/report?to=0001-01-01", http.StatusBadRequest},
+		{"/progress/report.zip?protocol=abc", http.StatusBadRequest},
 		{"/progress/report.zip?protocol=999", http.StatusNotFound},
-		{"/progress/cascade/enrolled?exit=declined", http.StatusOK}, // a known reason nobody left by here: an empty list
-		{"/progress/report?window=999&paper=legal", http.StatusOK},  // out-of-range choices fall back to the defaults
+		{"/progress/cascade/enrolled?exit=declined", http.StatusOK},        // a known reason nobody left by here: an empty list
+		{"/progress/report?window=999&paper=legal", http.StatusBadRequest}, // out-of-range choices are refused
+		{"/progress/report?window=6&paper=letter", http.StatusOK},
 	} {
 		res, _ := a.get(c, tt.path)
 		if res.StatusCode != tt.want {
@@ -462,6 +465,8 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 //
 // Due: 02-09: 1; 02-16: 2; 02-23: 2. With enough wear: 02-09: 1 (S1 w0);
 // 02-16: 2 (S1 w1, S2 w0); 02-23: 1 (S2 w1; S1 w2 was insufficient).
+// A monitor sees the same rows labelled by recruitment week, counted from
+// the week of the first enrolment (S1's, 02-09): weeks 0, 1 and 2.
 func TestDataSufficiencyWorkedExample(t *testing.T) {
 	a := newAppAt(t, time.Date(2026, 3, 11, 12, 0, 0, 0, time.UTC))
 	for _, q := range []string{
@@ -478,7 +483,7 @@ func TestDataSufficiencyWorkedExample(t *testing.T) {
 	} {
 		a.exec(q)
 	}
-	_, body := a.get(a.signIn(cohort.Monitor), "/progress")
+	_, body := a.get(a.signIn(cohort.Investigator), "/progress")
 	want := map[string]string{
 		"sufficiency-2026-02-09": "9 Feb 2026 1 1 100%",
 		"sufficiency-2026-02-16": "16 Feb 2026 2 2 100%",
@@ -490,6 +495,16 @@ func TestDataSufficiencyWorkedExample(t *testing.T) {
 	for id, w := range want {
 		if got := byTestID(body, id); got != w {
 			t.Errorf("%s: %q, want %q", id, got, w)
+		}
+	}
+	_, body = a.get(a.signIn(cohort.Monitor), "/progress")
+	for id, w := range map[string]string{
+		"sufficiency-recruitment week 0": "recruitment week 0 1 1 100%",
+		"sufficiency-recruitment week 1": "recruitment week 1 2 2 100%",
+		"sufficiency-recruitment week 2": "recruitment week 2 2 1 50%",
+	} {
+		if got := byTestID(body, id); got != w {
+			t.Errorf("monitor %s: %q, want %q", id, got, w)
 		}
 	}
 }
@@ -522,7 +537,7 @@ func TestDataSufficiencyCountsWeeksEndedInTheStudyZone(t *testing.T) {
 		} {
 			a.exec(q)
 		}
-		_, body := a.get(a.signIn(cohort.Monitor), "/progress")
+		_, body := a.get(a.signIn(cohort.Investigator), "/progress")
 		if got := byTestID(body, "sufficiency-2026-02-23"); got != c.want {
 			t.Errorf("at %s: week of 2026-02-23 %q, want %q", c.now.Format(time.RFC3339), got, c.want)
 		}

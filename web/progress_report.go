@@ -12,6 +12,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/enrolment"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -36,6 +37,10 @@ type reportFigures struct {
 	agree     cascade.Agreement
 	week      reportWeek // the days reported and what the study did in them
 	today     cohort.Date
+	// disclose words the calendar weeks (dates, or recruitment weeks counted
+	// from first, the study's first enrolment) for the request's role.
+	disclose disclosure
+	first    cohort.Date
 }
 
 // readReport parses the report's choices and reads its figures.
@@ -46,14 +51,14 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	if err != nil {
 		return rf, nil, err
 	}
-	q := r.URL.Query()
-	if rf.cq, err = parseCascadeQuery(q, sites); err != nil {
-		return rf, nil, err
-	}
+	q := readQuery(r.URL.Query())
+	readCascadeQuery(q, sites, &rf.cq)
 	rf.window, rf.generated = windowOf(q), s.now()
+	q.oneOf("paper", paperA4, paperLetter)
 	loc := s.studyZone(ctx)
 	rf.today = cohort.DateOf(rf.generated.In(loc))
-	if rf.week, err = parseReportWeek(q, rf.today); err != nil {
+	rf.week = readReportWeek(q, rf.today)
+	if err := q.err(); err != nil {
 		return rf, nil, err
 	}
 	// The three reads are independent; made side by side, as on the
@@ -63,6 +68,8 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	g.Go(func() (err error) { rf.hist, err = s.store.Enrolment(gctx, rf.cq.to); return err })
 	g.Go(func() (err error) { weeks, err = s.store.DataSufficiency(gctx); return err })
 	g.Go(func() (err error) { rf.cascade, rf.agree, err = s.store.Figures(gctx, rf.cq.filter); return err })
+	rf.disclose = disclosureOf(r)
+	g.Go(func() (err error) { rf.first, err = s.firstEnrolment(gctx, rf.disclose); return err })
 	g.Go(func() (err error) {
 		rf.week.week, rf.week.sofar, err = s.store.Activity(gctx, rf.cq.filter.SiteID, rf.week.from, rf.week.to, loc)
 		return err
@@ -83,8 +90,11 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	switch {
 	case len(rf.weeks) == 0:
 		rf.weekSpan = "No completed participant-week in the period"
-	default:
+	case rf.disclose.dates:
 		rf.weekSpan = "Calendar weeks (Monday to Sunday) from " + rf.weeks[0].Week.Label() + " to the week of " + rf.weeks[len(rf.weeks)-1].Week.Label()
+	default:
+		rf.weekSpan = "Calendar weeks (Monday to Sunday), counted from the week of the study's first enrolment: from " +
+			rf.disclose.calendarWeek(rf.first, rf.weeks[0].Week) + " to " + rf.disclose.calendarWeek(rf.first, rf.weeks[len(rf.weeks)-1].Week)
 	}
 	return rf, sites, nil
 }
@@ -139,12 +149,12 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	paper := paperOf(r.URL.Query().Get("paper"), s.studyPaper(r.Context()))
+	paper := paperParam(readQuery(r.URL.Query()), s.studyPaper(r.Context())) // refused already by readReport
 	m := views.ReportModel{Page: s.page(r, "Weekly report", "progress"), Paper: paper, Protocols: protocolOptions(rf.cascade.Versions),
 		ProtoID: strconv.Itoa(rf.cascade.Protocol.ID), SiteID: rf.cq.site, From: dateText(rf.cq.from), To: dateText(rf.cq.to), Window: rf.window,
 		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.Label(),
 		Generated: when(rf.generated, s.studyZone(r.Context())), CSVHref: rf.cq.href("/progress/report.zip", append([]string{"window", strconv.Itoa(rf.window)}, rf.week.values()...)...),
-		Week: rf.week.label(), Activity: rf.week.activityFigures(), Since: rf.week.from.String(), Until: rf.week.to.String(),
+		Week: rf.week.label(rf.disclose, rf.first), Activity: rf.week.activityFigures(), Since: rf.week.from.String(), Until: rf.week.to.String(),
 		WeekSpan: rf.weekSpan, Flow: flowView(rf.cascade, rf.cq), StatsAsOf: rf.agree.AsOf.Label()}
 	m.Flow.Compact = true
 	for _, st := range sites {
@@ -162,7 +172,7 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.Total = rf.total.row()
 	for _, wk := range rf.weeks {
-		row := sufficiencyRow(wk.Week.Label(), wk.Active, wk.Sufficient)
+		row := sufficiencyRow(rf.disclose.calendarWeek(rf.first, wk.Week), wk.Active, wk.Sufficient)
 		row.Key = wk.Week.String()
 		m.Weeks = append(m.Weeks, row)
 	}
@@ -268,13 +278,21 @@ func (rf reportFigures) reportTables() []*csvTable {
 			window, count, rate, lo, hi, projected, earliest, latest)
 	}
 
-	suff := newCSVTable("sufficiency.csv", "week_monday", "participant_weeks_due", "with_enough_wear", "share")
+	weekCol := "week_monday"
+	if !rf.disclose.dates {
+		weekCol = "recruitment_week" // calendar weeks counted from the week of the first enrolment, no dates
+	}
+	suff := newCSVTable("sufficiency.csv", weekCol, "participant_weeks_due", "with_enough_wear", "share")
 	for _, w := range rf.weeks {
 		share := ""
 		if w.Active > 0 {
 			share = num(float64(w.Sufficient) / float64(w.Active))
 		}
-		suff.add(w.Week.String(), strconv.Itoa(w.Active), strconv.Itoa(w.Sufficient), share)
+		week := w.Week.String()
+		if !rf.disclose.dates {
+			week = strconv.Itoa(deid.RecruitmentWeek(rf.first, w.Week))
+		}
+		suff.add(week, strconv.Itoa(w.Active), strconv.Itoa(w.Sufficient), share)
 	}
 
 	boxes := newCSVTable("cascade.csv", "step", "box", "label", "participants", "flagged_episodes", "share_of_previous", "left", "in_progress")

@@ -312,7 +312,7 @@ func TestOverReadFlow(t *testing.T) {
 			t.Errorf("%s CSV: status %d, %d rows, %v", tbl, res.StatusCode, len(recs), err)
 		}
 	}
-	if res, _ := a.get(mon, "/confirmations/statistics.csv?table=nothing"); res.StatusCode != http.StatusNotFound {
+	if res, _ := a.get(mon, "/confirmations/statistics.csv?table=nothing"); res.StatusCode != http.StatusBadRequest {
 		t.Errorf("unknown table: %d", res.StatusCode)
 	}
 	// Monitors: counts only on the confirmations page, no recording page.

@@ -34,6 +34,15 @@ func (s *Server) studyPaper(ctx context.Context) string {
 	return string(st.Paper)
 }
 
+// paperParam reads a paper choice from the query string, strictly;
+// fallback when none is given.
+func paperParam(q *query, fallback string) string {
+	if p := q.oneOf("paper", paperA4, paperLetter); p != "" {
+		return p
+	}
+	return fallback
+}
+
 // referralPDF draws a summary as a PDF on the chosen paper.
 func referralPDF(sum referral.Summary, paper string) ([]byte, error) {
 	return referralpdf.Render(sum, paper)

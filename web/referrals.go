@@ -79,28 +79,45 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	caseID, err := caseQuery(r.URL.Query().Get("case"))
-	if err != nil {
+	q := readQuery(r.URL.Query())
+	caseID, paper := int64(0), paperParam(q, s.studyPaper(r.Context()))
+	if q.get("case") != "0" { // 0: the participant alone, as the page's own links say
+		caseID = q.id("case", "case number")
+	}
+	if err := q.err(); err != nil {
 		return err
 	}
 	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
 	}
+	return s.renderPreview(w, r, http.StatusOK, pid, d, paper, nil, "")
+}
+
+// renderPreview shows a draft with its issue form: with the warning when the
+// participant has withdrawn, and with the refusal of an issue when there is
+// one.
+func (s *Server) renderPreview(w http.ResponseWriter, r *http.Request, status int, pid int64, d referralissue.Draft, paper string, errs map[string]string, msg string) error {
 	b, sum := d.Basis, d.Summary
-	paper := paperOf(r.URL.Query().Get("paper"), s.studyPaper(r.Context()))
 	base := fmt.Sprintf("/participants/%d/referral?case=%d&paper=", pid, b.CaseID)
 	m := s.referralModel(r, sum, paper, base)
 	m.Page.Title = "Referral summary (preview)"
 	m.Preview, m.IssueAction, m.CaseID = true, fmt.Sprintf("/participants/%d/referral", pid), b.CaseID
+	m.Errors, m.Message = errs, msg
+	if b.Withdrawal != nil {
+		m.Withdrawn = b.Withdrawal.Warning()
+	}
 	if b.CaseID != 0 {
 		m.CaseHref = fmt.Sprintf("/cases/%d", b.CaseID)
 	}
-	return s.ok(w, r, views.Referral(m))
+	s.render(w, r, status, views.Referral(m))
+	return nil
 }
 
 // referralIssue builds the summary, makes its PDF, records both digests and
-// the content, and shows the issued summary (or sends its PDF).
+// the content, and shows the issued summary (or sends its PDF). A summary of
+// a withdrawn participant needs the issuer's confirmation; without it the
+// preview comes back with the warning and nothing is recorded.
 func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	pid, err := idParam(r)
 	if err != nil {
@@ -122,16 +139,26 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 		format = "html"
 	}
 	paper := paperOf(r.PostForm.Get("paper"), s.studyPaper(r.Context()))
-	ref, _, err := s.issue(r.Context(), s.actor(r), pid, caseID, format, paper)
+	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
+	}
+	d.ConfirmedWithdrawn = r.PostForm.Get(referral.ConfirmWithdrawnField) == "yes"
+	ref, _, err := referralissue.Record(r.Context(), s.store, s.actor(r), d, format, paper)
+	if err != nil {
+		f, ok := refused(r, err, nil)
+		if !ok {
+			return err
+		}
+		return s.renderPreview(w, r, f.Status, pid, d, paper, f.Fields, f.Message)
 	}
 	http.Redirect(w, r, fmt.Sprintf("/referrals/%d?done=issued", ref.ID), http.StatusSeeOther)
 	return nil
 }
 
-// issue builds, draws and records one summary (referralissue); it returns
-// the record and the PDF.
+// issue builds, draws and records one summary (referralissue) without the
+// confirmation a withdrawn participant needs; it returns the record and the
+// PDF.
 func (s *Server) issue(ctx context.Context, a cohort.Actor, pid, caseID int64, format, paper string) (db.Referral, []byte, error) {
 	d, err := s.draft(ctx, pid, caseID)
 	if err != nil {
@@ -190,9 +217,11 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	if err != nil {
 		return err
 	}
-	paper := ref.Paper
-	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p, ref.Paper)
+	q := readQuery(r.URL.Query())
+	paper := paperParam(q, ref.Paper)
+	q.oneOf("done", "signoff")
+	if err := q.err(); err != nil {
+		return err
 	}
 	m := s.referralModel(r, sum, paper, fmt.Sprintf("/referrals/%d?paper=", ref.ID))
 	m.Page.Title = "Referral summary " + sum.ReferralCode
@@ -263,9 +292,10 @@ func (s *Server) referralPDFFile(w http.ResponseWriter, r *http.Request) error {
 	if sum.Draft {
 		name += "-draft"
 	}
-	paper := ref.Paper
-	if p := r.URL.Query().Get("paper"); p != "" {
-		paper = paperOf(p, ref.Paper)
+	q := readQuery(r.URL.Query())
+	paper := paperParam(q, ref.Paper)
+	if err := q.err(); err != nil {
+		return err
 	}
 	pdf, err := referralPDF(sum, paper)
 	if err != nil {
@@ -310,7 +340,11 @@ func (s *Server) referralSignOff(w http.ResponseWriter, r *http.Request) error {
 // referralFind opens the summary preview of a participant named by study
 // ID, for summaries on request.
 func (s *Server) referralFind(w http.ResponseWriter, r *http.Request) error {
-	sid := strings.TrimSpace(r.URL.Query().Get("study_id"))
+	q := readQuery(r.URL.Query())
+	sid := q.text("study_id")
+	if err := q.err(); err != nil {
+		return err
+	}
 	p, err := s.store.ParticipantByStudyID(r.Context(), sid)
 	if err != nil {
 		if !errors.Is(err, cohort.ErrNotFound) {

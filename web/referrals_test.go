@@ -556,7 +556,7 @@ func TestReferralRoutesByRole(t *testing.T) {
 		{cohort.Coordinator, "/referrals/abc", http.StatusNotFound},
 		{cohort.Coordinator, "/participants/999999/referral", http.StatusNotFound},
 		{cohort.Coordinator, fmt.Sprintf("/participants/%d/referral?case=999999", pids[sid]), http.StatusNotFound},
-		{cohort.Coordinator, fmt.Sprintf("/participants/%d/referral?case=abc", pids[sid]), http.StatusNotFound},
+		{cohort.Coordinator, fmt.Sprintf("/participants/%d/referral?case=abc", pids[sid]), http.StatusBadRequest}, // a malformed query value (issue 14, finding 12)
 		{cohort.Coordinator, "/referrals/new?study_id=NOBODY", http.StatusUnprocessableEntity},
 		{cohort.Coordinator, "/referrals/new?study_id=" + url.QueryEscape(sid), http.StatusSeeOther},
 	} {

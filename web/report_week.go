@@ -2,9 +2,7 @@ package web
 
 import (
 	"context"
-	"net/url"
 	"strconv"
-	"strings"
 	"time"
 
 	"cohortdesk/cohort"
@@ -35,23 +33,12 @@ func lastWeek(today cohort.Date) (from, to cohort.Date) {
 	return from, from.AddDays(6)
 }
 
-// parseReportWeek reads the report's week (since, until: days, both
-// included); without them it is the last complete calendar week.
-func parseReportWeek(q url.Values, today cohort.Date) (reportWeek, error) {
+// readReportWeek reads the report's week (since, until: days, both
+// included) with the report's other parameters, strictly; without them it is
+// the last complete calendar week.
+func readReportWeek(q *query, today cohort.Date) reportWeek {
 	var w reportWeek
-	var ve cohort.ValidationError
-	day := func(field string) cohort.Date {
-		v := strings.TrimSpace(q.Get(field))
-		if v == "" {
-			return cohort.Date{}
-		}
-		d, err := cohort.ParseDay(v)
-		if err != nil || d.Year < 1900 || d.Year > 9998 {
-			ve.Add(field, "enter a date such as 23 Nov 2026")
-		}
-		return d
-	}
-	w.from, w.to = day("since"), day("until")
+	w.from, w.to = q.date("since"), q.date("until")
 	w.given = !w.from.IsZero() || !w.to.IsZero()
 	def, defTo := lastWeek(today)
 	switch {
@@ -63,9 +50,9 @@ func parseReportWeek(q url.Values, today cohort.Date) (reportWeek, error) {
 		w.to = w.from.AddDays(6)
 	}
 	if w.to.Before(w.from) {
-		ve.Add("until", "the last day is before the first")
+		q.refuse("until", "the last day is before the first")
 	}
-	return w, ve.Err()
+	return w
 }
 
 // values are the week's choice for links, when it was chosen.
@@ -76,8 +63,19 @@ func (w reportWeek) values() []string {
 	return []string{"since", w.from.String(), "until", w.to.String()}
 }
 
-// label says which days the week covers: "Mon 23 Nov – Sun 29 Nov 2026".
-func (w reportWeek) label() string { return cohort.DayRangeLabel(w.from, w.to) }
+// label says which days the week covers: "Mon 23 Nov – Sun 29 Nov 2026";
+// for a role that sees no dates, the recruitment weeks they fall in, counted
+// from the week of the study's first enrolment (first).
+func (w reportWeek) label(d disclosure, first cohort.Date) string {
+	if d.dates {
+		return cohort.DayRangeLabel(w.from, w.to)
+	}
+	a, b := d.calendarWeek(first, w.from.Monday()), d.calendarWeek(first, w.to.Monday())
+	if a == b {
+		return a
+	}
+	return a + " to " + b
+}
 
 // activityFigures are the rows of "the week": each figure's key, words and
 // values in the week and so far.

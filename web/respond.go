@@ -22,7 +22,10 @@ type appHandler func(w http.ResponseWriter, r *http.Request) error
 // statusOf maps domain errors to HTTP statuses.
 func statusOf(err error) int {
 	var ve *cohort.ValidationError
+	var qe *queryError
 	switch {
+	case errors.As(err, &qe):
+		return http.StatusBadRequest
 	case errors.As(err, &ve):
 		return http.StatusUnprocessableEntity
 	case errors.Is(err, cohort.ErrNotFound):
@@ -51,6 +54,10 @@ var (
 // wrap turns an appHandler into an http.Handler.
 func (s *Server) wrap(h appHandler) http.HandlerFunc {
 	return func(w http.ResponseWriter, r *http.Request) {
+		if err := checkRawQuery(r); err != nil {
+			s.serveError(w, r, err)
+			return
+		}
 		if err := h(w, r); err != nil {
 			s.serveError(w, r, err)
 		}
@@ -80,6 +87,8 @@ func (s *Server) serveError(w http.ResponseWriter, r *http.Request, err error) {
 		m.Heading, m.Message = "Changed by someone else", publicMessage(err, "Someone changed this record after you opened it. Reload the page to see the current version, then make your change again.")
 	case http.StatusUnprocessableEntity:
 		m.Heading, m.Message = "Please check the input", publicMessage(err, "Some of the input could not be used.")
+	case http.StatusBadRequest:
+		m.Heading, m.Message = "This address cannot be used", publicMessage(err, "The address holds values this page cannot use.")
 	case http.StatusServiceUnavailable:
 		m.Heading, m.Message = "The database cannot take changes right now", "Nothing was changed. The database is read-only, full or unreachable; try again shortly and tell the study's technical contact if it persists."
 	case http.StatusRequestEntityTooLarge:
@@ -97,6 +106,11 @@ func (s *Server) serveError(w http.ResponseWriter, r *http.Request, err error) {
 // publicMessage returns the user-safe text carried by validation and conflict
 // errors, else the fallback.
 func publicMessage(err error, fallback string) string {
+	var qe *queryError
+	if errors.As(err, &qe) {
+		return "The address holds values this page cannot use: " + qe.list() +
+			". Go back to the page and choose again, or start from its first page."
+	}
 	var ve *cohort.ValidationError
 	if errors.As(err, &ve) {
 		return ve.Error()

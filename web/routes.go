@@ -120,7 +120,13 @@ func (s *Server) buildRouter() chi.Router {
 	s.routeTable = s.routes()
 	r := chi.NewRouter()
 	for _, rt := range s.routeTable {
-		r.Method(rt.method, rt.pattern, s.guard(rt.access, s.wrap(rt.h)))
+		h := s.guard(rt.access, s.wrap(rt.h))
+		r.Method(rt.method, rt.pattern, h)
+		if rt.method == "GET" {
+			// HEAD answers as GET does, with the same status and headers; the
+			// server drops the body (net/http writes none for HEAD).
+			r.Method("HEAD", rt.pattern, h)
+		}
 	}
 	r.Handle(assets.Prefix+"*", assets.Handler())
 	// Unknown addresses: visitors go to sign-in like everywhere else, staff get 404.
@@ -131,8 +137,11 @@ func (s *Server) buildRouter() chi.Router {
 	return r
 }
 
-// accessOf finds the access level of a route in the table.
+// accessOf finds the access level of a route in the table. HEAD is GET's.
 func (s *Server) accessOf(method, pattern string) (access, bool) {
+	if method == "HEAD" {
+		method = "GET"
+	}
 	for _, rt := range s.routeTable {
 		if rt.method == method && rt.pattern == pattern {
 			return rt.access, true

@@ -246,15 +246,27 @@ func (s *Server) sweepPage(r *http.Request, q url.Values) (views.SweepModel, *sw
 func (s *Server) sweep(w http.ResponseWriter, r *http.Request) error {
 	q := r.URL.Query()
 	if q.Get("run") == "" {
-		m, _, err := s.sweepPage(r, q)
+		m, c, err := s.sweepPage(r, q)
 		if err != nil {
 			return err
 		}
-		return s.ok(w, r, views.Sweep(m))
+		status := http.StatusOK
+		if c != nil {
+			if q.Get("from") != "" || q.Get("to") != "" || q.Get("steps") != "" {
+				c.parseRange() // a range in the address is read as strictly as the form
+				maps.Copy(m.Errors, c.errs)
+			}
+			if len(c.errs) > 0 {
+				status = http.StatusBadRequest // a choice in the address the page cannot use; the form says which
+			}
+		}
+		s.render(w, r, status, views.Sweep(m))
+		return nil
 	}
-	id, err := strconv.ParseInt(q.Get("run"), 10, 64)
-	if err != nil {
-		return errNotFound
+	rq := readQuery(q)
+	id := rq.id("run", "sweep number")
+	if err := rq.err(); err != nil {
+		return err
 	}
 	run, err := s.store.SweepRun(r.Context(), id)
 	if err != nil {

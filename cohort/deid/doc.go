@@ -13,7 +13,10 @@
 // person: name, contact details, birth date, street and ZIP code, device serial
 // numbers and the like. Inside the application PHI is shown only to roles that
 // may see it (cohort.Role.SeesPHI: not monitors), and every view of it is
-// audited. Anything that leaves the application goes through this package.
+// audited. Participants' calendar dates and the free text staff write are
+// shown only to roles with cohort.Role.SeesDatesAndFreeText; the others see
+// study time (StudyTimeOf, RecruitmentWeek) and no free text. Anything that
+// leaves the application goes through this package.
 //
 // # What an export keeps
 //

@@ -35,3 +35,13 @@ func fromDays(day int) StudyTime {
 	}
 	return StudyTime{Day: day, Week: w}
 }
+
+// RecruitmentWeek is the calendar week (Monday to Sunday, ISO 8601) of the
+// study's recruitment in which day falls, counted from the week of the
+// study's first enrolment day (week 0): the period that stands for an
+// enrolment date, and labels the study's weekly counts, where dates are not
+// shown. Participants and weekly counts share the numbering, so a
+// participant enrolled in recruitment week 12 is counted in week 12.
+func RecruitmentWeek(first, day cohort.Date) int {
+	return StudyTimeOf(first.Monday(), day.Monday()).Week
+}

@@ -86,3 +86,27 @@ func TestStudyTimeOf(t *testing.T) {
 		}
 	}
 }
+
+// Recruitment weeks are calendar weeks (Monday to Sunday) counted from the
+// week of the study's first enrolment: a first enrolment on Wednesday 7
+// January 2026 makes Monday 5 January the start of week 0; Sunday 11 January
+// is still week 0 and Monday 12 January starts week 1 (dates checked
+// against a proleptic Gregorian calendar: 1 January 2026 is a Thursday).
+func TestRecruitmentWeek(t *testing.T) {
+	first := cohort.Date{Year: 2026, Month: 1, Day: 7}
+	for _, tt := range []struct {
+		day  cohort.Date
+		want int
+	}{
+		{cohort.Date{Year: 2026, Month: 1, Day: 7}, 0},
+		{cohort.Date{Year: 2026, Month: 1, Day: 5}, 0},
+		{cohort.Date{Year: 2026, Month: 1, Day: 11}, 0},
+		{cohort.Date{Year: 2026, Month: 1, Day: 12}, 1},
+		{cohort.Date{Year: 2026, Month: 3, Day: 30}, 12},
+		{cohort.Date{Year: 2026, Month: 3, Day: 29}, 11},
+	} {
+		if got := RecruitmentWeek(first, tt.day); got != tt.want {
+			t.Errorf("%s: recruitment week %d, want %d", tt.day, got, tt.want)
+		}
+	}
+}

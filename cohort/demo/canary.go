@@ -95,16 +95,22 @@ func (s *Study) chooseCanaries(sel *selector, today cohort.Date) {
 	}
 }
 
+// HiddenFromMonitors reports whether a monitor's pages may not show the
+// canary: every value but the study ID, which monitors work by.
+func (c Canary) HiddenFromMonitors() bool { return c.Field != "study_id" }
+
 // CanaryValues lists every planted canary value with its field. Five-digit ZIP
 // codes and ten-digit phone digits are ordinary digit strings, so a test
 // searching numeric output for them should match whole tokens.
 func (s *Study) CanaryValues() []Canary { return append([]Canary(nil), s.canaries...) }
 
 // Canaries lists the canary values as plain strings. None of them may appear
-// in a de-identified export, a monitor's view, a referral summary or a PDF.
-// The list includes the canaries' study IDs: study IDs are record numbers
-// (Safe Harbor identifier 8 or 18) and must never appear in de-identified
-// output, which names participants by pseudonymous codes instead.
+// in a de-identified export, a referral summary or a PDF: the list includes
+// the canaries' study IDs, which are record numbers (Safe Harbor identifier 8
+// or 18) and never leave the application, where participants are named by
+// pseudonymous codes instead. Inside the application monitors do work by
+// study ID (the README says so); they see none of the other values
+// (Canary.HiddenFromMonitors).
 func (s *Study) Canaries() []string {
 	out := make([]string, len(s.canaries))
 	for i, c := range s.canaries {

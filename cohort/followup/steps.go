@@ -216,6 +216,10 @@ func CheckStep(st State, s Step) error {
 			}
 		}
 	}
+	if st.Terminal() {
+		return &cohort.ValidationError{Fields: map[string]string{"state": fmt.Sprintf(
+			"the case is %s, which is final: it takes no more steps and nothing was recorded (a later screen-positive week opens a new case)", st.Label())}}
+	}
 	return &cohort.ValidationError{Fields: map[string]string{"state": fmt.Sprintf("a case that is %s does not take this step", st.Label())}}
 }
 

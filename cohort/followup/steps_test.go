@@ -180,6 +180,9 @@ func TestCheckStep(t *testing.T) {
 		{RecorderSent, StepReturn, ""},
 		{Reached, StepReturn, "cannot move from reached to recording received"},
 		{Open, StepRecording, "a case that is open does not take this step"},
+		{ClosedDeclined, StepAttempt, "the case is closed (declined), which is final: it takes no more steps"},
+		{Referred, StepAssign, "the case is referred, which is final"},
+		{ClosedWithdrawn, StepNote, "takes no more steps"},
 	} {
 		got := fields(t, CheckStep(c.st, c.step))["state"]
 		if (c.contains == "") != (got == "") || !strings.Contains(got, c.contains) {

@@ -333,3 +333,35 @@ func TestHeartRateChart(t *testing.T) {
 		}
 	}
 }
+
+// TestWithdrawnSummaryNeedsConfirmation: a summary of a participant who is
+// still enrolled is issued as asked; one of a withdrawn participant only
+// with the issuer's confirmation, and the warning says when they left (in
+// study days, no date), why no sign-off follows and what can still be done.
+func TestWithdrawnSummaryNeedsConfirmation(t *testing.T) {
+	enrolled := cohort.Date{Year: 2026, Month: 3, Day: 4}
+	if w := WithdrawalOf(enrolled, nil, "v2"); w != nil || CheckIssue(w, false) != nil {
+		t.Fatalf("enrolled participant: withdrawal %v, check %v", w, CheckIssue(w, false))
+	}
+	left := enrolled.AddDays(45)
+	w := WithdrawalOf(enrolled, &left, "v2")
+	if w == nil || w.StudyDay != 45 {
+		t.Fatalf("withdrawal %+v, want study day 45", w)
+	}
+	var ve *cohort.ValidationError
+	if err := CheckIssue(w, false); !errors.As(err, &ve) || ve.Fields[ConfirmWithdrawnField] == "" {
+		t.Fatalf("unconfirmed issue for a withdrawn participant: %v", err)
+	}
+	if err := CheckIssue(w, true); err != nil {
+		t.Fatalf("confirmed issue: %v", err)
+	}
+	msg := w.Warning()
+	for _, want := range []string{"study day 45", "cannot be signed off", "What you can still do", `consent version "v2"`, "participant note"} {
+		if !strings.Contains(msg, want) {
+			t.Errorf("warning lacks %q: %s", want, msg)
+		}
+	}
+	if strings.Contains(msg, left.String()) {
+		t.Errorf("warning shows the withdrawal date: %s", msg)
+	}
+}

@@ -33,6 +33,9 @@ type Store interface {
 type Draft struct {
 	Basis   db.ReferralBasis
 	Summary referral.Summary
+	// ConfirmedWithdrawn is the issuer's confirmation that a summary of a
+	// withdrawn participant (Basis.Withdrawal) may still be passed on.
+	ConfirmedWithdrawn bool
 }
 
 // Prepare builds a participant's summary as issued at the given time: for one
@@ -57,13 +60,16 @@ func Prepare(ctx context.Context, st Store, participantID, caseID int64, secret 
 // PaperLetter) and records the summary as issued by a in the format it is
 // handed out in (html, pdf or zip). It returns the record and the PDF.
 func Record(ctx context.Context, st Store, a cohort.Actor, d Draft, format, paper string) (db.Referral, []byte, error) {
+	if err := referral.CheckIssue(d.Basis.Withdrawal, d.ConfirmedWithdrawn); err != nil {
+		return db.Referral{}, nil, err
+	}
 	pdf, err := referralpdf.Render(d.Summary, paper)
 	if err != nil {
 		return db.Referral{}, nil, err
 	}
 	sum := sha256.Sum256(pdf)
 	ref, err := st.IssueReferral(ctx, a, db.ReferralIssue{Basis: d.Basis, Summary: d.Summary, Format: format, Paper: paper,
-		PDFSHA256: hex.EncodeToString(sum[:])})
+		PDFSHA256: hex.EncodeToString(sum[:]), ConfirmedWithdrawn: d.ConfirmedWithdrawn})
 	if err != nil {
 		return db.Referral{}, nil, err
 	}
