@@ -35,3 +35,12 @@ func otherCases(n int) string {
 	}
 	return "other cases"
 }
+
+// Noun is the word for a count of things, agreeing with it: "participant"
+// for 1, "participants" otherwise (for a tile whose number stands apart).
+func Noun(n int64, one string) string {
+	if n == 1 {
+		return one
+	}
+	return one + "s"
+}
