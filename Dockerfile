@@ -24,6 +24,6 @@ USER nonroot:nonroot
 EXPOSE 8080
 ENV COHORTDESK_ADDR=:8080 COHORTDESK_LOG_FORMAT=json
 HEALTHCHECK --interval=30s --timeout=3s --start-period=20s --retries=3 \
-  CMD ["/usr/local/bin/cohortdesk", "healthcheck", "-url", "http://127.0.0.1:8080/healthz"]
+  CMD ["/usr/local/bin/cohortdesk", "healthcheck", "-url", "http://127.0.0.1:8080/health"]
 ENTRYPOINT ["/usr/local/bin/cohortdesk"]
 CMD ["serve"]

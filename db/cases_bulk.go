@@ -25,16 +25,11 @@ const maxBulk = 500
 // bulk applies one edit to many cases in one transaction: all or nothing. The
 // cases are locked in id order so two bulk requests cannot deadlock.
 func (s *Store) bulk(ctx context.Context, a cohort.Actor, refs []CaseRef, edit func() caseEdit) (int, error) {
-	if len(refs) == 0 {
-		return 0, &cohort.ValidationError{Fields: map[string]string{"cases": "select at least one case"}}
+	refs, err := bulkRefs(refs)
+	if err != nil {
+		return 0, err
 	}
-	if len(refs) > maxBulk {
-		return 0, &cohort.ValidationError{Fields: map[string]string{"cases": fmt.Sprintf("select at most %d cases at once", maxBulk)}}
-	}
-	refs = slices.Clone(refs)
-	slices.SortFunc(refs, func(x, y CaseRef) int { return cmp.Compare(x.ID, y.ID) })
-	refs = slices.CompactFunc(refs, func(x, y CaseRef) bool { return x.ID == y.ID })
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
+	err = s.inTx(ctx, func(tx pgx.Tx) error {
 		for _, r := range refs {
 			if _, err := s.editCase(ctx, tx, a, r.ID, r.Version, edit()); err != nil {
 				return bulkErr(r.ID, err)
@@ -46,6 +41,20 @@ func (s *Store) bulk(ctx context.Context, a cohort.Actor, refs []CaseRef, edit f
 		return 0, mapCaseErr("bulk case edit", err)
 	}
 	return len(refs), nil
+}
+
+// bulkRefs checks a selection (at least one case, at most maxBulk) and
+// returns it in id order without repeats, the order bulk edits lock in.
+func bulkRefs(refs []CaseRef) ([]CaseRef, error) {
+	if len(refs) == 0 {
+		return nil, &cohort.ValidationError{Fields: map[string]string{"cases": "select at least one case"}}
+	}
+	if len(refs) > maxBulk {
+		return nil, &cohort.ValidationError{Fields: map[string]string{"cases": fmt.Sprintf("select at most %d cases at once", maxBulk)}}
+	}
+	refs = slices.Clone(refs)
+	slices.SortFunc(refs, func(x, y CaseRef) int { return cmp.Compare(x.ID, y.ID) })
+	return slices.CompactFunc(refs, func(x, y CaseRef) bool { return x.ID == y.ID }), nil
 }
 
 // bulkErr names the case an error in a bulk request is about.

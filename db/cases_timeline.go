@@ -27,6 +27,7 @@ const (
 	EventAttempt   CaseEventKind = "attempt"   // a contact attempt
 	EventRecording CaseEventKind = "recording" // an ECG recording of the case
 	EventOverRead  CaseEventKind = "over_read" // a clinician's over-read
+	EventMessage   CaseEventKind = "message"   // a message the desk sent (outreach_messages.go)
 )
 
 // FieldChange is one field's old and new value as shown to people.
@@ -66,6 +67,7 @@ type CaseEvent struct {
 	Attempt   *Attempt
 	Recording *RecordingRef
 	OverRead  *OverReadRef
+	Message   *Message
 }
 
 // CaseTimeline lists everything that happened to a case, newest first by when
@@ -146,7 +148,10 @@ func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([
 			}
 			out = append(out, CaseEvent{At: happened, Kind: EventOverRead, Actor: o.Reader, OverRead: &o})
 		}
-		return orows.Err()
+		if err := orows.Err(); err != nil {
+			return err
+		}
+		return appendMessageEvents(ctx, tx, c.ID, &out)
 	})
 	if err != nil {
 		return nil, mapErr("case timeline", err)

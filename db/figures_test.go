@@ -29,8 +29,8 @@ import (
 //	  P1..P7 AF, P8 and P9 sinus rhythm, P10 atrial flutter.
 //	P11's recording is read as uninterpretable on day 5.
 //	P1 and P2 are referred.
-//	Automatic interpretations: P1..P5 AF, P6 sinus, P7 none, P8 sinus,
-//	P9 AF, P10 unclassified, P11 unreadable.
+//	Recorder's own readings: P1..P5 suggest AF, P6 a regular rhythm, P7
+//	none, P8 a regular rhythm, P9 AF, P10 no rhythm call, P11 not analysed.
 //
 // The figures are read as of day 30.
 func figureCohort(t *testing.T) (*caseFixture, map[string]int64) {
@@ -62,7 +62,7 @@ func figureCohort(t *testing.T) (*caseFixture, map[string]int64) {
 	if _, err := f.s.CloseCase(ctx, f.coord, cases["P14"], db.MoveInput{Version: f.get(cases["P14"]).Version, To: "closed_unreachable", Reason: "no answer to five attempts"}); err != nil {
 		t.Fatal(err)
 	}
-	autos := []overread.Auto{"", "af", "af", "af", "af", "af", "sinus", "none", "sinus", "af", "unclassified", "unreadable"}
+	autos := []overread.Auto{"", "suggests_af", "suggests_af", "suggests_af", "suggests_af", "suggests_af", "suggests_regular", "no_reading", "suggests_regular", "suggests_af", "no_call", "not_analysed"}
 	rhythms := []overread.Rhythm{"", "af", "af", "af", "af", "af", "af", "af", "sinus", "sinus", "flutter"}
 	recs := map[string]int64{}
 	for i := 1; i <= 11; i++ {
@@ -238,9 +238,9 @@ func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 	if len(a.ByVersion) != 1 || a.ByVersion[0].Flagged != 14 || a.ByVersion[0].PPV != all.PPV {
 		t.Errorf("by version %+v", a.ByVersion)
 	}
-	// Kappa, rows automatic, columns over-read (AF, sinus, other, unreadable):
-	// AF row P1..P5 -> AF, P9 -> sinus; sinus row P6 -> AF, P8 -> sinus;
-	// unclassified P10 -> flutter (other); unreadable P11 -> uninterpretable;
+	// Kappa, rows the recorder, columns over-read (AF, regular, other, not analysable):
+	// AF row P1..P5 -> AF, P9 -> sinus; regular row P6 -> AF, P8 -> sinus;
+	// no call P10 -> flutter (other); not analysed P11 -> uninterpretable;
 	// P7 has none and is left out. po = 8/10, pe = (36+4+1+1)/100 = 0.42,
 	// kappa = 0.38/0.58 = 0.6552 (computed by hand).
 	wantTable := [][]int{{5, 1, 0, 0}, {1, 1, 0, 0}, {0, 0, 1, 0}, {0, 0, 0, 1}}

@@ -51,6 +51,7 @@ type NewJob struct {
 	Payload     any    // marshalled to JSON
 	MaxAttempts int    // 0 means 3
 	CreatedBy   string
+	RunAfter    time.Time // not before this moment; zero: now
 }
 
 const jobCols = `id, kind, label, payload, state, attempts, max_attempts, run_after, locked_by, lease_until,
@@ -93,8 +94,9 @@ func enqueue(ctx context.Context, tx pgx.Tx, j NewJob) (int64, error) {
 		return 0, fmt.Errorf("job payload: %w", err)
 	}
 	var id int64
-	err = tx.QueryRow(ctx, `INSERT INTO jobs (kind, label, payload, max_attempts, created_by) VALUES ($1, $2, $3, $4, $5) RETURNING id`,
-		j.Kind, j.Label, payload, j.MaxAttempts, j.CreatedBy).Scan(&id)
+	err = tx.QueryRow(ctx, `INSERT INTO jobs (kind, label, payload, max_attempts, created_by, run_after)
+		VALUES ($1, $2, $3, $4, $5, coalesce($6::timestamptz, clock_timestamp())) RETURNING id`,
+		j.Kind, j.Label, payload, j.MaxAttempts, j.CreatedBy, timeArg(j.RunAfter)).Scan(&id)
 	return id, err
 }
 
@@ -182,6 +184,16 @@ func (s *Store) FailJob(ctx context.Context, id int64, worker, msg string, retry
 	return state == JobFailed, nil
 }
 
+// DeferJob hands a job back to the queue to run again at at, without
+// counting the attempt, keeping why as its last message: the job itself
+// decided to wait (a message held until the participant's quiet hours end,
+// or a retry it schedules itself).
+func (s *Store) DeferJob(ctx context.Context, id int64, worker string, at time.Time, why string) error {
+	return s.heldJob(ctx, "defer job", `UPDATE jobs SET state = 'queued', attempts = greatest(attempts - 1, 0), locked_by = '',
+		lease_until = NULL, run_after = $3, error = $4
+		WHERE id = $1 AND locked_by = $2 AND state = 'running'`, id, worker, at, why)
+}
+
 // ReleaseJob hands a job back to the queue without counting the attempt, for a
 // worker that is shutting down cleanly in the middle of it.
 func (s *Store) ReleaseJob(ctx context.Context, id int64, worker string) error {
@@ -201,12 +213,15 @@ func (s *Store) heldJob(ctx context.Context, op, sql string, args ...any) error 
 	return nil
 }
 
-// Jobs lists the most recent jobs, newest first.
+// Jobs lists the most recent jobs, newest first, leaving out the outbox's
+// own (one per message, and the morning summary), whose state the outbox
+// page shows per message.
 func (s *Store) Jobs(ctx context.Context, limit int) ([]Job, error) {
 	if limit <= 0 || limit > 1000 {
 		limit = 50
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+jobCols+` FROM jobs ORDER BY id DESC LIMIT $1`, limit)
+	rows, err := s.pool.Query(ctx, `SELECT `+jobCols+` FROM jobs WHERE kind <> ALL($2) ORDER BY id DESC LIMIT $1`,
+		limit, []string{JobSendMessage, JobMorningSummary})
 	if err != nil {
 		return nil, mapErr("jobs", err)
 	}

@@ -253,3 +253,33 @@ func TestWorkerStopsCleanlyOnCancel(t *testing.T) {
 		t.Fatalf("job after shutdown: %+v", j)
 	}
 }
+
+// TestLaterDefersWithoutCountingTheAttempt: a job that asks to run later
+// goes back to the queue at the time it named, its attempt not counted,
+// its reason kept; it is not claimed before then.
+func TestLaterDefersWithoutCountingTheAttempt(t *testing.T) {
+	s := db.New(dbtest.Pool(t), nil)
+	ctx := context.Background()
+	id, err := s.Enqueue(ctx, db.NewJob{Kind: "wait", MaxAttempts: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var runs int
+	at := time.Now().Add(time.Hour)
+	w := &db.Worker{Store: s, Handlers: map[string]db.JobFunc{"wait": func(context.Context, db.Job, func(int64, int64) error) (string, error) {
+		runs++
+		return "", db.Later(at, "held until the quiet hours end")
+	}}}
+	for range 2 {
+		if _, err := w.RunOne(ctx, 0); err != nil {
+			t.Fatal(err)
+		}
+	}
+	j, err := s.Job(ctx, id)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if runs != 1 || j.State != db.JobQueued || j.Attempts != 0 || j.Error != "held until the quiet hours end" || j.RunAfter.Sub(at).Abs() > time.Millisecond {
+		t.Fatalf("after Later: runs %d, %s, attempts %d, %q, run after %v (want %v)", runs, j.State, j.Attempts, j.Error, j.RunAfter, at)
+	}
+}

@@ -167,25 +167,35 @@ func (s *Store) ParticipantByStudyID(ctx context.Context, studyID string) (Parti
 // the view in the audit trail. This is the only reader of participant_identity
 // for display; refusing other roles here keeps the rule in one place.
 func (s *Store) Identity(ctx context.Context, a cohort.Actor, participantID int64, purpose string) (Identity, error) {
+	var id Identity
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var err error
+		id, err = identityIn(ctx, tx, a, participantID, purpose)
+		return err
+	})
+	return id, mapErr("identity", err)
+}
+
+// identityIn is Identity inside the caller's transaction, for a change that
+// uses the details (a message made out to the participant): the role check
+// and the audited view are the same.
+func identityIn(ctx context.Context, tx pgx.Tx, a cohort.Actor, participantID int64, purpose string) (Identity, error) {
 	if !a.Role.SeesPHI() {
 		return Identity{}, fmt.Errorf("db: identity: role %s: %w", a.Role, cohort.ErrForbidden)
 	}
 	var id Identity
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		var birth *time.Time
-		err := tx.QueryRow(ctx, `SELECT given_name, family_name, birth_date, phone, email, street, city, zip, device_serial
-			FROM participant_identity WHERE participant_id = $1`, participantID).
-			Scan(&id.GivenName, &id.FamilyName, &birth, &id.Phone, &id.Email, &id.Street, &id.City, &id.ZIP, &id.DeviceSerial)
-		if err != nil && err != pgx.ErrNoRows {
-			return err
-		}
-		if birth != nil {
-			d := cohort.DateOf(*birth)
-			id.BirthDate = &d
-		}
-		return audit(ctx, tx, a, "participant.view_phi", "participant", strconv.FormatInt(participantID, 10), nil, map[string]string{"purpose": purpose})
-	})
-	return id, mapErr("identity", err)
+	var birth *time.Time
+	err := tx.QueryRow(ctx, `SELECT given_name, family_name, birth_date, phone, email, street, city, zip, device_serial
+		FROM participant_identity WHERE participant_id = $1`, participantID).
+		Scan(&id.GivenName, &id.FamilyName, &birth, &id.Phone, &id.Email, &id.Street, &id.City, &id.ZIP, &id.DeviceSerial)
+	if err != nil && err != pgx.ErrNoRows {
+		return id, err
+	}
+	if birth != nil {
+		d := cohort.DateOf(*birth)
+		id.BirthDate = &d
+	}
+	return id, audit(ctx, tx, a, "participant.view_phi", "participant", strconv.FormatInt(participantID, 10), nil, map[string]string{"purpose": purpose})
 }
 
 // ParticipantInput is the enrol and edit form, read.

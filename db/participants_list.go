@@ -166,10 +166,8 @@ var errBadCursor = &cohort.ValidationError{Fields: map[string]string{"after": "t
 // outdated page link). Messages are keyed by the list's query parameters.
 func (f ParticipantFilter) Check() error {
 	var ve cohort.ValidationError
-	switch f.Status {
-	case "", "active", "withdrawn":
-	default:
-		ve.Add("status", "choose active, withdrawn or all")
+	if f.Status != "" && !f.Status.Valid() {
+		ve.Add("status", "choose active, completed, withdrawn or all")
 	}
 	order, ok := listOrders[f.Sort]
 	if f.Sort != "" && !ok {

@@ -9,6 +9,7 @@ import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
 )
 
@@ -27,7 +28,7 @@ func TestUsableLengthDecidesDiagnostic(t *testing.T) {
 	w := syn.Waveform
 	w.Samples = slices.Clone(w.Samples)
 	ecgtest.InjectFlat(&w, 10, 30, 0)
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(-time.Hour), File: ecgtest.EncodeCSV(w), Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(-time.Hour), File: ecgtest.EncodeCSV(w), Auto: overread.AutoSuggestsAF})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -22,7 +22,7 @@ func TestOverReadCorrections(t *testing.T) {
 	f, cases, second := newRecordingFixture(t, 1)
 	ctx := context.Background()
 	f.clock.set(fixedNow.Add(48 * time.Hour))
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: overread.AutoSuggestsAF})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -101,11 +101,11 @@ func TestRecordingMarkedNotNeeded(t *testing.T) {
 	f, cases, _ := newRecordingFixture(t, 1)
 	ctx := context.Background()
 	f.clock.set(fixedNow.Add(48 * time.Hour))
-	short, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 12, Auto: "unreadable"})
+	short, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 12, Auto: overread.AutoNotAnalysed})
 	if err != nil {
 		t.Fatal(err)
 	}
-	repeat, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(2 * time.Hour), DurationS: 40, Auto: "af"})
+	repeat, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(2 * time.Hour), DurationS: 40, Auto: overread.AutoSuggestsAF})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -108,11 +108,11 @@ func TestAddRecordingFiles(t *testing.T) {
 	} {
 		t.Run(tc.format, func(t *testing.T) {
 			w, want := synth(t, 40, 250, 3)
-			rec, err := f.s.AddRecording(ctx, f.coord, cases[tc.sid], ecg.RecordingInput{TakenAt: taken, Auto: "sinus", File: tc.file(w), FileName: "strip." + tc.format})
+			rec, err := f.s.AddRecording(ctx, f.coord, cases[tc.sid], ecg.RecordingInput{TakenAt: taken, Auto: overread.AutoSuggestsRegular, File: tc.file(w), FileName: "strip." + tc.format})
 			if err != nil {
 				t.Fatal(err)
 			}
-			if rec.Format != tc.format || rec.TooShort || rec.Auto != overread.AutoSinus || rec.RateHz != 250 {
+			if rec.Format != tc.format || rec.TooShort || rec.Auto != overread.AutoSuggestsRegular || rec.RateHz != 250 {
 				t.Errorf("stored %+v", rec)
 			}
 			if got := len(rec.Beats); got != want || rec.Hint.Beats != want {
@@ -184,7 +184,7 @@ func TestAddRecordingRefusals(t *testing.T) {
 		{"no time", id, ecg.RecordingInput{DurationS: 40}, "taken_at", []string{"taken"}},
 		{"future", id, ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 40}, "taken_at", []string{"future"}},
 		{"before the flag", id, ecg.RecordingInput{TakenAt: fixedNow.AddDate(0, 0, -3), DurationS: 40}, "taken_at", []string{"flagged"}},
-		{"bad auto", id, ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40, Auto: "maybe"}, "auto", []string{"interpretation"}},
+		{"bad auto", id, ecg.RecordingInput{TakenAt: fixedNow, DurationS: 40, Auto: "maybe"}, "auto", []string{"readings of the recorder"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := f.s.AddRecording(ctx, f.coord, tc.caseID, tc.in)
@@ -238,7 +238,7 @@ func TestShortRecording(t *testing.T) {
 	f, cases, _ := newRecordingFixture(t, 1)
 	ctx := context.Background()
 	w, _ := synth(t, 20, 500, 6)
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, File: ecgtest.EncodeCSV(w), Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow, File: ecgtest.EncodeCSV(w), Auto: overread.AutoSuggestsAF})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -265,7 +265,7 @@ func TestDoubleReadingAndAdjudication(t *testing.T) {
 	f, cases, second := newRecordingFixture(t, 2)
 	ctx := context.Background()
 	f.clock.set(fixedNow.Add(48 * time.Hour))
-	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: "af"})
+	rec, err := f.s.AddRecording(ctx, f.coord, cases["P1"], ecg.RecordingInput{TakenAt: fixedNow.Add(time.Hour), DurationS: 45, Auto: overread.AutoSuggestsAF})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -365,7 +365,7 @@ func TestLoaderPath(t *testing.T) {
 	loader := cohort.Actor{Name: "demo loader"}
 	w, want := synth(t, 60, 500, 8)
 	taken, received := fixedNow.Add(30*time.Hour), fixedNow.Add(80*time.Hour)
-	rec, err := f.s.AddRecording(ctx, loader, cases["P1"], ecg.RecordingInput{TakenAt: taken, ReceivedAt: received, Auto: "sinus", Samples: w.Samples, RateHz: w.RateHz})
+	rec, err := f.s.AddRecording(ctx, loader, cases["P1"], ecg.RecordingInput{TakenAt: taken, ReceivedAt: received, Auto: overread.AutoSuggestsRegular, Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -37,6 +37,22 @@ func Permanent(err error) error {
 	return permanent{err}
 }
 
+// later asks the worker to run the job again at a given time without counting
+// the attempt.
+type later struct {
+	at  time.Time
+	why string
+}
+
+// Error says why the job waits.
+func (l later) Error() string { return l.why }
+
+// Later is what a job returns to run again at at without counting the
+// attempt: the job schedules its own retries (a message that keeps its own
+// count of tries) or waits for a moment (the end of a participant's quiet
+// hours). why is kept on the job.
+func Later(at time.Time, why string) error { return later{at, why} }
+
 // Worker takes jobs from the queue and runs them, one at a time. Several
 // workers, in one process or many, may share a database.
 type Worker struct {
@@ -186,6 +202,11 @@ func (w *Worker) process(parent context.Context, j Job) error {
 	case parent.Err() != nil:
 		w.Log.Info("job handed back at shutdown", "job", j.ID)
 		return w.Store.ReleaseJob(rctx, j.ID, w.Name)
+	case errors.As(err, new(later)):
+		var l later
+		errors.As(err, &l)
+		w.Log.Info("job deferred", "job", j.ID, "until", l.at, "why", l.why)
+		return w.Store.DeferJob(rctx, j.ID, w.Name, l.at, l.why)
 	case err != nil:
 		var p permanent
 		retry := !errors.As(err, &p)

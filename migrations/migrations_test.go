@@ -10,6 +10,7 @@ import (
 	"cohortdesk/db/dbtest"
 	"cohortdesk/migrations"
 
+	"github.com/jackc/pgx/v5/pgxpool"
 	"github.com/jackc/pgx/v5/stdlib"
 	"github.com/pressly/goose/v3"
 )
@@ -52,20 +53,7 @@ func TestUpOnEmptyDatabase(t *testing.T) {
 // the store as it was stored, its job now of the kind the workers run.
 func TestSweepsTakeOverStoredExplorations(t *testing.T) {
 	ctx := context.Background()
-	pool, err := db.Open(ctx, dbtest.Empty(t), 2)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer pool.Close()
-	sqlDB := stdlib.OpenDBFromPool(pool)
-	defer sqlDB.Close()
-	p, err := goose.NewProvider(goose.DialectPostgres, sqlDB, migrations.FS())
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := p.UpTo(ctx, 9); err != nil {
-		t.Fatal(err)
-	}
+	pool := migratedTo(t, 9)
 	params, err := json.Marshal(screen.DefaultProtocol())
 	if err != nil {
 		t.Fatal(err)
@@ -105,4 +93,27 @@ func TestSweepsTakeOverStoredExplorations(t *testing.T) {
 	if err := pool.QueryRow(ctx, `SELECT count(*) FROM jobs WHERE kind = 'explore'`).Scan(&left); err != nil || left != 0 {
 		t.Fatalf("%d jobs of the old kind (err %v)", left, err)
 	}
+}
+
+// migratedTo is a fresh database with the migrations up to version applied,
+// for a test that stores rows as an earlier schema held them and then
+// checks what a later file does with them. It is closed when the test ends.
+func migratedTo(t *testing.T, version int64) *pgxpool.Pool {
+	t.Helper()
+	ctx := context.Background()
+	pool, err := db.Open(ctx, dbtest.Empty(t), 2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(pool.Close)
+	sqlDB := stdlib.OpenDBFromPool(pool)
+	defer sqlDB.Close()
+	p, err := goose.NewProvider(goose.DialectPostgres, sqlDB, migrations.FS())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := p.UpTo(ctx, version); err != nil {
+		t.Fatal(err)
+	}
+	return pool
 }

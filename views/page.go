@@ -2,16 +2,19 @@
 // page takes one view model built by its handler; views never query anything.
 package views
 
+import "cohortdesk/views/components"
+
 // Page is what the layout needs on every page.
 type Page struct {
-	Title   string    // the page's own title, before the app name
-	Area    string    // key of the navigation area the page belongs to
-	Study   string    // study name shown in the header
-	User    *User     // nil when signed out
-	Nav     []NavItem // areas this user may open, in order
-	Flash   string    // one-off notice after a redirect
-	Scripts []string  // extra script URLs, e.g. the chart library
-	Assets  AssetURLs // cache-busted URLs of the shared assets
+	Title   string               // the page's own title, before the app name
+	Area    string               // key of the navigation area the page belongs to
+	Study   string               // study name shown in the header
+	User    *User                // nil when signed out
+	Nav     []NavItem            // areas this user may open, in order
+	Flash   string               // one-off notice after a redirect
+	Scripts []string             // extra script URLs, e.g. the chart library
+	Keys    []components.KeyHint // the page's keys for this reader (web/keys.go)
+	Assets  AssetURLs            // cache-busted URLs of the shared assets
 }
 
 // User is the signed-in person as the layout shows them.
@@ -25,7 +28,7 @@ type NavItem struct {
 	Key   string
 	Label string
 	Href  string
-	Key1  string // keyboard shortcut after "g", e.g. "t" for triage
+	Key1  string // the area's number key, printed on its tab (web/keys.go)
 }
 
 // AssetURLs are the hashed URLs of files every page loads.
@@ -33,4 +36,8 @@ type AssetURLs struct {
 	CSS  string
 	JS   string
 	HTMX string
+	// PartCSS and PartJS are further stylesheets and scripts every page
+	// loads, one concern a file (cautions, keys, chart colours).
+	PartCSS []string
+	PartJS  []string
 }

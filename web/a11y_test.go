@@ -280,6 +280,7 @@ func a11yFixture(t *testing.T, a *app) []a11yPage {
 		t.Fatal(err)
 	}
 	pages = append(pages, p("recording with several leads", "/recordings/{id}", fmt.Sprintf("/recordings/%d", multi.ID)))
+	pages = append(pages, outreachPages(t, a)...)
 	var imp int64
 	if err := a.store.Pool().QueryRow(ctx, `SELECT id FROM imports ORDER BY id LIMIT 1`).Scan(&imp); err == nil {
 		pages = append(pages, p("import report", "/imports/{id}", fmt.Sprintf("/imports/%d", imp)))
@@ -317,7 +318,7 @@ func TestAccessibilityOfMainPages(t *testing.T) {
 	// done in forms.
 	tabWalked := map[string]bool{"case page": true, "recording page": true, "recording with several leads": true, "referral preview": true, "referral summary": true,
 		"participant page": true, "new participant": true, "exports": true, "study settings": true, "account": true,
-		"change password": true, "second factor set-up": true}
+		"change password": true, "second factor set-up": true, "case page with a message": true, "message template": true}
 
 	t.Run("visitor", func(t *testing.T) {
 		t.Parallel()

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/web/browsertest"
 
 	"github.com/chromedp/chromedp"
@@ -35,7 +36,7 @@ func TestBrowserRecordingToStatistics(t *testing.T) {
 		chromedp.Navigate(fmt.Sprintf("%s/cases/%d", base, ids[0])),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="form-recording"]`)),
 		chromedp.SetUploadFiles(chromedp.ID("waveform"), []string{file}),
-		chromedp.SetValue(chromedp.ID("auto"), "sinus"),
+		chromedp.SetValue(chromedp.ID("auto"), string(overread.AutoSuggestsRegular)),
 		chromedp.SetValue(chromedp.ID("taken_at"), time.Now().UTC().Format("2006-01-02T15:04")),
 		chromedp.Click(chromedp.CSS(`[data-testid="add-recording"]`)),
 		chromedp.WaitVisible(chromedp.CSS(`figure.strip svg`)),

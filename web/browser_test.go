@@ -75,7 +75,7 @@ func TestBrowserCoordinatorWorksACaseFromTriage(t *testing.T) {
 		t.Fatalf("state after shipping %q", got)
 	}
 
-	b.Do("open the case page", chromedp.Click(chromedp.CSS(row+` a[data-row-key="o"]`)), chromedp.WaitVisible(chromedp.CSS(`[data-testid="case-timeline"]`)))
+	b.Do("open the case page", chromedp.Click(chromedp.CSS(row+` a[data-row-focus]`)), chromedp.WaitVisible(chromedp.CSS(`[data-testid="case-timeline"]`)))
 	if got := b.Text("tracking number", `[data-testid="case-tracking"]`); got != "TRK-7781" {
 		t.Fatalf("tracking number on the case page %q", got)
 	}
@@ -87,13 +87,14 @@ func TestBrowserCoordinatorWorksACaseFromTriage(t *testing.T) {
 		t.Fatalf("stored case %s %q v%d (%v)", c.State, c.TrackingNumber, c.Version, err)
 	}
 
-	// Keyboard only: j focuses the first row (the next new flag), a takes it.
+	// Keyboard only: l goes to the list's first row (the next new flag), t
+	// takes it.
 	next := fmt.Sprintf("#case-%d", ids[1])
 	b.Do("keyboard: take the next case",
 		chromedp.Navigate(base+"/triage"),
 		chromedp.WaitVisible(chromedp.CSS(next)),
-		chromedp.KeyEvent("j"),
-		chromedp.KeyEvent("a"),
+		chromedp.KeyEvent("l"),
+		chromedp.KeyEvent("t"),
 		chromedp.WaitVisible(chromedp.CSS(next+` [data-testid="row-done"]`)),
 	)
 	if got := b.Text("owner via keyboard", next+` [data-testid="row-owner"]`); got != "Test Coordinator" {

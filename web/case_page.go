@@ -138,6 +138,9 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 	if m.ECG, err = s.caseECG(r, c, errs, now); err != nil {
 		return err
 	}
+	if m.Outreach, err = s.caseOutreach(r, c, errs, now); err != nil {
+		return err
+	}
 	events, err := s.store.CaseTimeline(ctx, c, loc)
 	if err != nil {
 		return err
@@ -166,8 +169,8 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 	case db.EventRecording:
 		rec := e.Recording
 		out.Title = fmt.Sprintf("ECG recording taken (%.0f s)", rec.DurationS)
-		if rec.AutoInterpretation != "" && rec.AutoInterpretation != "none" {
-			out.Lines = append(out.Lines, "recorder's own reading: "+overread.Auto(rec.AutoInterpretation).Label())
+		if a := overread.Auto(rec.AutoInterpretation); a != "" && a != overread.AutoNoReading {
+			out.Lines = append(out.Lines, overread.AutoHeading+": "+a.Label())
 		}
 		if rec.TooShort {
 			out.Lines = append(out.Lines, "shorter than 30 s: not enough for a diagnostic read")
@@ -175,6 +178,8 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 		if !rec.OverRead {
 			out.Lines = append(out.Lines, "waiting for an over-read")
 		}
+	case db.EventMessage:
+		out = messageEntry(out, *e.Message, loc)
 	case db.EventOverRead:
 		o := e.OverRead
 		out.Title = fmt.Sprintf("Over-read (%s): %s, %s", overread.Role(o.Role).Label(), overread.Rhythm(o.Rhythm).Label(), o.Confidence)

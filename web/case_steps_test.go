@@ -20,6 +20,7 @@ func TestCaseStepRoutesFollowTheStepRules(t *testing.T) {
 	routes := map[followup.Step][]string{
 		followup.StepAssign:    {"/cases/{id}/assign", "/cases/bulk/assign"},
 		followup.StepAttempt:   {"/cases/{id}/attempts", "/cases/bulk/letter"},
+		followup.StepMessage:   {"/cases/{id}/messages", "/cases/bulk/messages", "/cases/bulk/letters", "/letters/{id}/posted"},
 		followup.StepShipment:  {"/cases/{id}/shipment"},
 		followup.StepReturn:    {"/cases/{id}/return"},
 		followup.StepRecording: {"/cases/{id}/recordings"},

@@ -110,6 +110,9 @@ func (s *Server) renderCases(w http.ResponseWriter, r *http.Request, q url.Value
 		m.Owners = append([]views.Option{{Value: "", Label: "anyone"}, {Value: "me", Label: "me"}, {Value: "none", Label: "nobody yet"}}, workerOptions(workers, false)...)
 		m.Assignees = workerOptions(workers, true)
 		m.CanAssign, m.CanLetter = caseWork.allows(role(r)), coordWork.allows(role(r))
+		if m.CanLetter {
+			m.BulkOutreach = bulkOutreach()
+		}
 	}
 	if d := doneMessages[q.Get("done")]; d != "" && msg == "" {
 		m.Page.Flash = d

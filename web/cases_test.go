@@ -95,7 +95,7 @@ func TestTriagePageGroupsCountsAndOrderRule(t *testing.T) {
 		`data-testid="order-rule"`, "How this list is ordered: overdue cases first",
 		`data-testid="count-overdue"><a href="#group-overdue"><div class="num">1<`,
 		`data-testid="count-new"><a href="#group-new"><div class="num">2<`,
-		`data-testid="shortcuts"`, `data-row-key="a"`, `hx-target="#triage-board"`,
+		`data-testid="shortcuts"`, `data-row-key="t"`, `hx-target="#triage-board"`,
 		fmt.Sprintf(`id="case-%d"`, ids[0]),
 	} {
 		if !strings.Contains(body, want) {

@@ -29,11 +29,21 @@ func chartInit(id string) opts.Initialization {
 	}
 }
 
-// chartView turns a go-echarts chart into the view model our script draws, and
-// the script URLs the page must load for it (all under /assets/).
+// chartView turns a go-echarts chart into the view model our script draws, in
+// the app's colours (themeChart), and the script URLs the page must load for
+// it (all under /assets/).
 func chartView(id, label string, c echartsChart, tall bool) (components.ChartModel, []string, error) {
 	c.Validate()
-	b, err := json.Marshal(c.JSON())
+	raw, err := json.Marshal(c.JSON())
+	if err != nil {
+		return components.ChartModel{}, nil, fmt.Errorf("web: chart %s: %w", id, err)
+	}
+	var o map[string]any
+	if err := json.Unmarshal(raw, &o); err != nil {
+		return components.ChartModel{}, nil, fmt.Errorf("web: chart %s: %w", id, err)
+	}
+	themeChart(o)
+	b, err := json.Marshal(o)
 	if err != nil {
 		return components.ChartModel{}, nil, fmt.Errorf("web: chart %s: %w", id, err)
 	}

@@ -228,11 +228,10 @@ func kmChart(c stats.Curve) *charts.Line {
 		lo = append(lo, opts.LineData{Value: []float64{st.Time, round4(st.Lo)}})
 		hi = append(hi, opts.LineData{Value: []float64{st.Time, round4(st.Hi)}})
 	}
-	step := charts.WithLineChartOpts(opts.LineChart{Step: "end", ShowSymbol: opts.Bool(false)})
-	dashed := charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})
-	line.AddSeries("Kaplan-Meier estimate", est, step)
-	line.AddSeries("95% band, lower", lo, step, dashed)
-	line.AddSeries("95% band, upper", hi, step, dashed)
+	step := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{Step: "end", ShowSymbol: opts.Bool(false)})}
+	line.AddSeries("Kaplan-Meier estimate", est, with(step, paint(chartMeasure))...)
+	line.AddSeries("95% band, lower", lo, with(step, paint(chartBand))...)
+	line.AddSeries("95% band, upper", hi, with(step, paint(chartBand))...)
 	return line
 }
 
@@ -272,9 +271,10 @@ func ppvChart(groups []cascade.Group) (*charts.BoxPlot, bool) {
 		charts.WithGridOpts(opts.Grid{Bottom: "110"}),
 		charts.WithXAxisOpts(opts.XAxis{AxisLabel: &opts.AxisLabel{Interval: "0", Rotate: 35, HideOverlap: opts.Bool(false)}}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "per-episode PPV (95% Wilson interval)", Min: 0, Max: 1}))
-	bp.SetXAxis(labels).AddSeries("95% Wilson interval", data)
+	bp.SetXAxis(labels).AddSeries("95% Wilson interval", data,
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: "transparent", BorderColor: chartColour(chartBand), BorderWidth: 1.5}))
 	est := charts.NewScatter()
-	est.SetXAxis(labels).AddSeries("PPV", points)
+	est.SetXAxis(labels).AddSeries("PPV", points, paint(chartMeasure)...)
 	bp.Overlap(est)
 	return bp, true
 }

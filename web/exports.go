@@ -16,6 +16,7 @@ import (
 	"strings"
 	"time"
 
+	"cohortdesk/cohort"
 	"cohortdesk/cohort/deid"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -194,6 +195,9 @@ func (s *Server) datasetExport(w http.ResponseWriter, r *http.Request) error {
 	if err := add("README.txt", func(out io.Writer) (int, error) { return 0, writeReadme(out, now) }, false); err != nil {
 		return err
 	}
+	if err := add(cohort.CautionsFile, func(out io.Writer) (int, error) { _, err := io.WriteString(out, cohort.CautionsText()); return 0, err }, false); err != nil {
+		return err
+	}
 	mj, err := json.MarshalIndent(man, "", "  ")
 	if err != nil {
 		return err
@@ -292,9 +296,10 @@ func writeReadme(out io.Writer, now time.Time) error {
 		fmt.Fprintf(&b, "  %-24s %s\n", t.File, t.About)
 	}
 	b.WriteString("  dictionary.csv           every column of every file, with its type and rule\n")
+	b.WriteString("  " + fmt.Sprintf("%-24s", cohort.CautionsFile) + " the screening cautions: read them before using the verdicts\n")
 	b.WriteString("  manifest.json            each file's rows, size and SHA-256\n\n")
 	b.WriteString("Participants appear by pseudonymous referral code, the same in every file; the key stays with the study.\n")
-	b.WriteString("Screening verdicts are screens, not diagnoses; thresholds shipped as defaults are illustrative.\n\n")
+	b.WriteString("Screening verdicts are screens, not diagnoses; " + cohort.NegativeWeekCaution + " See " + cohort.CautionsFile + ".\n\n")
 	b.WriteString("Safe Harbor identifiers (45 CFR 164.514(b)(2)(i)) and their treatment:\n")
 	for _, id := range deid.Identifiers() {
 		fmt.Fprintf(&b, "  %2d. %s: %s. %s\n", id.Number, id.Name, id.Treatment, id.How)

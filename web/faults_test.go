@@ -241,7 +241,7 @@ func TestReadOnlyAndFullDatabase(t *testing.T) {
 }
 
 // TestDatabaseRestartWhileServing stops PostgreSQL under a running app and
-// starts it again: while it is down /readyz answers 503 and pages answer the
+// starts it again: while it is down /ready answers 503 and pages answer the
 // 503 page (not a crash or a bare 500); once it is back the same app, without
 // a restart, is ready again and the session made before the outage still
 // works, because the pgx pool replaces its broken connections.
@@ -298,8 +298,8 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 		res, body := a.get(c, path)
 		return res.StatusCode, body
 	}
-	if code, _ := status("/readyz"); code != http.StatusOK {
-		t.Fatalf("readyz before the outage: %d", code)
+	if code, _ := status("/ready"); code != http.StatusOK {
+		t.Fatalf("ready before the outage: %d", code)
 	}
 	if code, _ := status("/"); code != http.StatusOK {
 		t.Fatalf("home before the outage: %d", code)
@@ -308,16 +308,16 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 	if err := cl.Stop(); err != nil {
 		t.Fatal(err)
 	}
-	if code, _ := status("/readyz"); code != http.StatusServiceUnavailable {
-		t.Errorf("readyz while PostgreSQL is down: %d, want 503", code)
+	if code, _ := status("/ready"); code != http.StatusServiceUnavailable {
+		t.Errorf("ready while PostgreSQL is down: %d, want 503", code)
 	}
 	for _, p := range []string{"/", "/triage", "/cases"} {
 		if code, body := status(p); code != http.StatusServiceUnavailable || !strings.Contains(body, unavailableHeading) {
 			t.Errorf("%s while PostgreSQL is down: %d, want the 503 page:\n%.300s", p, code, body)
 		}
 	}
-	if res, _ := a.get(a.client(), "/healthz"); res.StatusCode != http.StatusOK {
-		t.Errorf("healthz while PostgreSQL is down: %d, want 200 (the process is alive)", res.StatusCode)
+	if res, _ := a.get(a.client(), "/health"); res.StatusCode != http.StatusOK {
+		t.Errorf("health while PostgreSQL is down: %d, want 200 (the process is alive)", res.StatusCode)
 	}
 
 	// Started again as the demo command starts it: same folder, same data, and
@@ -331,14 +331,14 @@ func TestDatabaseRestartWhileServing(t *testing.T) {
 	}
 	ready := false
 	for i := 0; i < 300 && !ready; i++ { // bounded: 30 s
-		code, _ := status("/readyz")
+		code, _ := status("/ready")
 		ready = code == http.StatusOK
 		if !ready {
 			time.Sleep(100 * time.Millisecond)
 		}
 	}
 	if !ready {
-		t.Fatal("readyz never recovered after PostgreSQL came back")
+		t.Fatal("ready never recovered after PostgreSQL came back")
 	}
 	if code, body := status("/"); code != http.StatusOK || !strings.Contains(body, "Test Coordinator") {
 		t.Fatalf("home after the outage: %d; the session made before it should still hold", code)

@@ -60,7 +60,7 @@ func TestHomeShowsCountsFromDatabase(t *testing.T) {
 
 func TestHealthAndReadiness(t *testing.T) {
 	a := newApp(t)
-	for _, p := range []string{"/healthz", "/readyz"} {
+	for _, p := range []string{"/health", "/ready"} {
 		if res, _ := get(t, a.ts.URL+p); res.StatusCode != 200 {
 			t.Errorf("%s: status %d", p, res.StatusCode)
 		}
@@ -72,14 +72,14 @@ type downStore struct{ Store }
 
 func (downStore) Ping(context.Context) error { return errors.New("connection refused") }
 
-func TestReadyzIs503WhenDatabaseIsDown(t *testing.T) {
+func TestReadyIs503WhenDatabaseIsDown(t *testing.T) {
 	ts := httptest.NewServer(New(Config{Store: downStore{}}).Handler())
 	defer ts.Close()
-	if res, _ := get(t, ts.URL+"/readyz"); res.StatusCode != http.StatusServiceUnavailable {
+	if res, _ := get(t, ts.URL+"/ready"); res.StatusCode != http.StatusServiceUnavailable {
 		t.Fatalf("status %d, want 503", res.StatusCode)
 	}
-	if res, _ := get(t, ts.URL+"/healthz"); res.StatusCode != 200 {
-		t.Fatalf("healthz status %d, want 200 while the process runs", res.StatusCode)
+	if res, _ := get(t, ts.URL+"/health"); res.StatusCode != 200 {
+		t.Fatalf("health status %d, want 200 while the process runs", res.StatusCode)
 	}
 }
 

@@ -210,7 +210,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	// Coordinator: triage, take, call, ship.
 	tb.signIn(cohort.Coordinator)
 	tb.follow("triage lists the new flag", `[data-testid="nav-triage"]`, `[data-testid="group-new"] `+row)
-	if got := b.Text("study ID on the row", row+` a[data-row-key="o"]`); got != f.sid {
+	if got := b.Text("study ID on the row", row+` a[data-row-focus]`); got != f.sid {
 		t.Fatalf("the new case's row shows %q, want %s", got, f.sid)
 	}
 	b.Do("take the case",
@@ -233,7 +233,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	)
 
 	// Coordinator: the case page, a note with identifying text, the upload.
-	tb.follow("open the case page", row+` a[data-row-key="o"]`, `[data-testid="form-recording"]`)
+	tb.follow("open the case page", row+` a[data-row-focus]`, `[data-testid="form-recording"]`)
 	b.Do("write a note", chromedp.SetValue(chromedp.ID("note"), "Call back on "+f.phone+", ask for "+f.name))
 	tb.follow("save the note", `[data-testid="form-note"] button`, `[data-testid="case-flash"]`)
 	c, err := a.store.Case(ctx, f.caseID)
@@ -249,7 +249,7 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	taken := c.FlaggedAt.In(st.Location()).Format("2006-01-02T15:04")
 	b.Do("upload the returned recording",
 		chromedp.SetUploadFiles(chromedp.ID("waveform"), []string{file}),
-		chromedp.SetValue(chromedp.ID("auto"), string(overread.AutoAF)),
+		chromedp.SetValue(chromedp.ID("auto"), string(overread.AutoSuggestsAF)),
 		chromedp.SetValue(chromedp.ID("taken_at"), taken),
 		chromedp.Click(chromedp.CSS(`[data-testid="add-recording"]`)),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="recording-flash"]`)),

@@ -83,7 +83,7 @@ func (s *Server) withLogging(next http.Handler) http.Handler {
 		start := s.now()
 		rec := &statusRecorder{ResponseWriter: w}
 		next.ServeHTTP(rec, r)
-		if r.URL.Path == "/healthz" || r.URL.Path == "/readyz" {
+		if r.URL.Path == "/health" || r.URL.Path == "/ready" {
 			return
 		}
 		s.log.Info("request", "request_id", requestID(r.Context()), "method", r.Method, "path", r.URL.Path,

@@ -14,6 +14,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/overread"
 
 	"github.com/chromedp/chromedp"
 )
@@ -31,7 +32,7 @@ func recordedCases(t *testing.T, a *app, n int, s float64) []int64 {
 		if err != nil {
 			t.Fatal(err)
 		}
-		rec, err := a.store.AddRecording(ctx, coord, id, ecg.RecordingInput{TakenAt: time.Now(), Auto: "af",
+		rec, err := a.store.AddRecording(ctx, coord, id, ecg.RecordingInput{TakenAt: time.Now(), Auto: overread.AutoSuggestsAF,
 			Samples: syn.Waveform.Samples, RateHz: syn.Waveform.RateHz})
 		if err != nil {
 			t.Fatal(err)

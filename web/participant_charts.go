@@ -219,9 +219,10 @@ func hrChart(w *cohort.Week, p screen.Protocol, wi int, threshold float64, now i
 	)
 	line.AddSeries("Heart rate", pts,
 		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
-		charts.WithLineStyleOpts(opts.LineStyle{Width: 1}),
+		charts.WithLineStyleOpts(opts.LineStyle{Width: 1, Color: chartColour(chartMeasure)}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: chartColour(chartMeasure)}),
 		charts.WithMarkAreaData(areas...),
-		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: "rgba(200, 60, 50, 0.18)"}}),
+		charts.WithMarkAreaStyleOpts(opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: chartColour(chartPositive), Opacity: opts.Float(0.18)}}),
 	)
 	label := fmt.Sprintf("Heart rate in study week %d with %d irregular %d-minute windows shaded", w.Week, irregular, rule.Minutes)
 	c, sc, err := chartView("hr-chart", label, wallClock{line}, true)
@@ -241,7 +242,10 @@ func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (compo
 		rule = pv.Params.Windows[wi]
 	}
 	var x []string
-	var runFlag, runOther []opts.BarData
+	// The run bars, one series per stored verdict, so each week's bar is
+	// drawn in its verdict's colour.
+	verdicts := []screen.Verdict{screen.Positive, screen.Negative, screen.Insufficient}
+	runs := make([][]opts.BarData, len(verdicts))
 	var shareLine, runLimitLine, shareLimitLine []opts.LineData
 	maxRun, maxShare := float64(rule.RunLength), 100*rule.MinShare
 	flagged := 0
@@ -254,11 +258,15 @@ func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (compo
 			sh = opts.LineData{Value: math.Round(wr.Share*1000) / 10}
 			maxRun, maxShare = math.Max(maxRun, float64(wr.LongestRun)), math.Max(maxShare, 100*wr.Share)
 		}
-		if r.Verdict == string(screen.Positive) {
+		if screen.Verdict(r.Verdict) == screen.Positive {
 			flagged++
-			runFlag, runOther = append(runFlag, run), append(runOther, opts.BarData{Value: "-"})
-		} else {
-			runFlag, runOther = append(runFlag, opts.BarData{Value: "-"}), append(runOther, run)
+		}
+		for i, v := range verdicts {
+			if screen.Verdict(r.Verdict) == v {
+				runs[i] = append(runs[i], run)
+			} else {
+				runs[i] = append(runs[i], opts.BarData{Value: "-"})
+			}
 		}
 		shareLine = append(shareLine, sh)
 		runLimitLine = append(runLimitLine, opts.LineData{Value: rule.RunLength})
@@ -275,21 +283,24 @@ func trendChart(results []db.StoredResult, pv db.ProtocolVersion, wi int) (compo
 		charts.WithYAxisOpts(opts.YAxis{Name: "windows in a row", Type: "value", Min: 0, Max: math.Ceil(maxRun * 1.25), MinInterval: 1}),
 	)
 	bar.ExtendYAxis(opts.YAxis{Name: "% of usable windows", Type: "value", Min: 0, Max: niceCeil(maxShare * 1.25), Position: "right"})
-	red := charts.WithItemStyleOpts(opts.ItemStyle{Color: "#b3261e"})
-	grey := charts.WithItemStyleOpts(opts.ItemStyle{Color: "#7a8a99"})
+	stack := []charts.SeriesOpts{charts.WithBarChartOpts(opts.BarChart{Stack: "run"})}
+	too := chartToken("ink-soft")
 	bar.SetXAxis(x).
-		AddSeries("longest irregular run, week flagged", runFlag, red, charts.WithBarChartOpts(opts.BarChart{Stack: "run"})).
-		AddSeries("longest irregular run, week not flagged", runOther, grey, charts.WithBarChartOpts(opts.BarChart{Stack: "run"}))
+		AddSeries("longest irregular run, week flagged", runs[0], with(stack, paint(chartPositive))...).
+		AddSeries("longest irregular run, negative week", runs[1], with(stack, paint(chartNegative))...).
+		AddSeries("longest irregular run, too little data", runs[2], with(stack, []charts.SeriesOpts{charts.WithItemStyleOpts(opts.ItemStyle{Color: too, BorderColor: too})})...)
 	line := charts.NewLine()
 	line.SetXAxis(x)
 	if rule.RunLength > 0 {
 		line.AddSeries(fmt.Sprintf("run that flags a week (%d)", rule.RunLength), runLimitLine,
-			charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1, Color: "#b3261e"}), charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}))
+			with(paint(chartThreshold), []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)})})...)
 	}
-	line.AddSeries("irregular share (%)", shareLine, charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1}))
+	line.AddSeries("irregular share (%)", shareLine, with(paint(chartMeasure), []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})})...)
 	if rule.MinShare > 0 {
 		line.AddSeries(fmt.Sprintf("share that flags a week (%s%%)", strconv.FormatFloat(100*rule.MinShare, 'g', -1, 64)), shareLimitLine,
-			charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1, ShowSymbol: opts.Bool(false)}), charts.WithLineStyleOpts(opts.LineStyle{Type: "dotted", Width: 1}))
+			charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1, ShowSymbol: opts.Bool(false)}),
+			charts.WithLineStyleOpts(opts.LineStyle{Type: "dotted", Width: 1.5, Color: chartColour(chartThreshold)}),
+			charts.WithItemStyleOpts(opts.ItemStyle{Color: chartColour(chartThreshold), BorderColor: chartColour(chartThreshold)}))
 	}
 	bar.Overlap(line)
 	note := fmt.Sprintf("Each week's %s windows under %s: the bars are the longest run of irregular windows in a row, red when the week was flagged; "+

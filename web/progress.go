@@ -169,16 +169,16 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		}
 		return out
 	}
-	for _, se := range h.Sites {
-		line.AddSeries(se.Code, cum(se.Weekly))
+	for i, se := range h.Sites {
+		line.AddSeries(se.Code, cum(se.Weekly), paintGroup(i)...)
 	}
-	line.AddSeries("all sites", cum(total))
+	line.AddSeries("all sites", cum(total), paint(chartTotal)...)
 	if tTarget > 0 {
 		tgt := make([]opts.LineData, len(labels))
 		for i := range tgt {
 			tgt[i] = opts.LineData{Value: tTarget}
 		}
-		line.AddSeries("target (all sites)", tgt, charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed"}))
+		line.AddSeries("target (all sites)", tgt, paint(chartThreshold)...)
 	}
 	ch, scripts, err := chartView("enrolment", "Cumulative enrolment by week for each site and in all, with the target", line, false)
 	if err != nil {
@@ -203,7 +203,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		sy = append(sy, opts.LineData{Value: fmt.Sprintf("%.1f", share)})
 		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Key: w.Week.String(), Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
 	}
-	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy)
+	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy, paint(chartMeasure)...)
 	sch, _, err := chartView("sufficiency", "Share of participant-weeks with enough usable wear, by calendar week", sl, false)
 	if err != nil {
 		return err

@@ -217,7 +217,7 @@ func cascadeCohort(t *testing.T, a *app) map[string]int64 {
 		      ('P4', 'recorder_sent', true), ('P5', 'closed_declined', false), ('P6', 'contacting', false),
 		      ('P11', 'recording_received', true)) AS v(sid, state, reached) ON v.sid = p.study_id`,
 		`INSERT INTO recordings (case_id, participant_id, taken_at, duration_s, auto_interpretation)
-		 SELECT c.id, c.participant_id, timestamptz '2026-02-05 10:00Z', 45, 'af' FROM cases c JOIN participants p ON p.id = c.participant_id
+		 SELECT c.id, c.participant_id, timestamptz '2026-02-05 10:00Z', 45, 'suggests_af' FROM cases c JOIN participants p ON p.id = c.participant_id
 		 WHERE p.study_id IN ('P1', 'P2', 'P3', 'P11')`,
 		`INSERT INTO over_reads (recording_id, case_id, participant_id, role, rhythm, reader, read_on)
 		 SELECT r.id, r.case_id, r.participant_id, 'first', v.rhythm, 'Reader One', date '2026-02-08'

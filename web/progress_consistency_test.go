@@ -105,7 +105,7 @@ func TestReportAgreesWithThePagesOnTheDemo(t *testing.T) {
 	// five in six recordings without a reading get one, rhythms and
 	// recorder interpretations taken in turn.
 	a.exec(`INSERT INTO recordings (case_id, participant_id, taken_at, duration_s, auto_interpretation)
-		SELECT c.id, c.participant_id, c.reached_at + interval '3 days', 45, (ARRAY['af', 'sinus', 'none', 'af', 'unclassified'])[1 + (c.id % 5)::int]
+		SELECT c.id, c.participant_id, c.reached_at + interval '3 days', 45, (ARRAY['suggests_af', 'suggests_regular', 'no_reading', 'suggests_af', 'no_call'])[1 + (c.id % 5)::int]
 		FROM cases c WHERE c.reached_at IS NOT NULL AND NOT EXISTS (SELECT 1 FROM recordings r WHERE r.case_id = c.id)`)
 	a.exec(`INSERT INTO over_reads (recording_id, case_id, participant_id, role, rhythm, reader, read_on)
 		SELECT r.id, r.case_id, r.participant_id, 'first', (ARRAY['af', 'sinus', 'af', 'uninterpretable', 'flutter', 'af'])[1 + (r.id % 6)::int],
@@ -146,7 +146,7 @@ func TestReportAgreesWithThePagesOnTheDemo(t *testing.T) {
 		b, ok := files[f.Name]
 		sum := sha256.Sum256(b)
 		recs, _ := csv.NewReader(bytes.NewReader(b)).ReadAll()
-		if !ok || hex.EncodeToString(sum[:]) != f.SHA256 || len(b) != f.Bytes || len(recs)-1 != f.Rows {
+		if !ok || hex.EncodeToString(sum[:]) != f.SHA256 || len(b) != f.Bytes || (strings.HasSuffix(f.Name, ".csv") && len(recs)-1 != f.Rows) {
 			t.Errorf("manifest entry %+v does not match the file (%d bytes, %d rows)", f, len(b), len(recs)-1)
 		}
 	}

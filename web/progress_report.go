@@ -394,6 +394,11 @@ func (s *Server) progressReportZip(w http.ResponseWriter, r *http.Request) error
 			return err
 		}
 	}
+	cf, err := zipCautions(zw)
+	if err != nil {
+		return err
+	}
+	man.Files = append(man.Files, cf)
 	mj, err := json.MarshalIndent(man, "", "  ")
 	if err != nil {
 		return fmt.Errorf("web: report manifest: %w", err)

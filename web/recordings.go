@@ -77,7 +77,7 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 	}
 	m := views.CaseECGModel{CaseID: c.ID, CanAdd: followup.StepRecording.By(role(r)), Closed: acceptsRecordings(c.State), Errors: errs,
 		MaxBytes: humanBytes(ecg.MaxFileBytes), MaxSeconds: ecg.MaxRecordingSeconds, MinRateHz: int(ecg.MinRateHz), MaxRateHz: int(ecg.MaxRateHz),
-		Values: map[string]string{"auto": "none", "received_on": now.Format("2006-01-02")}}
+		Values: map[string]string{"auto": string(overread.AutoNoReading), "received_on": now.Format("2006-01-02")}}
 	if r.MultipartForm != nil {
 		// A refused upload: show what was entered (a browser never refills a file field).
 		for _, k := range []string{"auto", "taken_at", "duration_s", "rate_hz", "received_on"} {
@@ -99,7 +99,7 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 }
 
 // recordingInput reads the intake form into typed values: times in the
-// study's zone, numbers, the recorder's interpretation, and the optional file.
+// study's zone, numbers, the recorder's own reading, and the optional file.
 // What the values may be is intake's rule (ecg.Intake).
 func (s *Server) recordingInput(r *http.Request, loc *time.Location) (ecg.RecordingInput, error) {
 	var in ecg.RecordingInput
@@ -263,7 +263,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		{Label: "Taken", Value: when(rec.TakenAt), Testid: "recording-taken"},
 		{Label: "Received", Value: dayOf(rec.ReceivedAt, loc)},
 		{Label: "Duration", Value: duration, Testid: "recording-duration"},
-		{Label: "Recorder's own interpretation", Value: rec.Auto.Label(), Testid: "recording-auto"},
+		{Label: overread.AutoHeading, Value: rec.Auto.Label(), Testid: "recording-auto"},
 		{Label: "Readings", Value: rec.Conclusion.Status.Label()},
 	}
 	if rec.HasWaveform() {

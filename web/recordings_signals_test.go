@@ -14,6 +14,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/overread"
 )
 
 // threeSignalEDF is an accelerometer, lead II and lead I (the latter two of
@@ -56,7 +57,7 @@ func TestRecordingLeadsAndSignals(t *testing.T) {
 	coord := a.signIn(cohort.Coordinator)
 	b, beats := threeSignalEDF(t)
 	taken := time.Now().UTC().Format("2006-01-02T15:04")
-	res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": taken, "auto": "sinus"}, "three.edf", b)
+	res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": taken, "auto": string(overread.AutoSuggestsRegular)}, "three.edf", b)
 	if res.StatusCode != http.StatusSeeOther {
 		t.Fatalf("upload: %d\n%.2000s", res.StatusCode, body)
 	}

@@ -15,6 +15,7 @@ import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/followup"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 )
@@ -93,13 +94,13 @@ func TestRecordingUploads(t *testing.T) {
 		{"strip.edf", "EDF+", edfFile(t, synthWave(t, 40, 250))},
 		{"strip.csv", "CSV", ecgtest.EncodeCSV(synthWave(t, 40, 500))},
 	} {
-		res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[i]), map[string]string{"taken_at": taken, "auto": "sinus"}, tc.name, tc.data)
+		res, _ := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[i]), map[string]string{"taken_at": taken, "auto": string(overread.AutoSuggestsRegular)}, tc.name, tc.data)
 		id := recordingIDFrom(t, res)
 		res, body := a.get(coord, fmt.Sprintf("/recordings/%d", id))
 		if res.StatusCode != http.StatusOK {
 			t.Fatalf("%s page: %d", tc.name, res.StatusCode)
 		}
-		for _, want := range []string{fmt.Sprintf(`data-testid="strip-rec%d"`, id), "Hint for the over-reader, not a verdict", "sinus rhythm",
+		for _, want := range []string{fmt.Sprintf(`data-testid="strip-rec%d"`, id), "Hint for the over-reader, not a verdict", overread.AutoSuggestsRegular.Label(),
 			tc.format + ", ", `data-testid="cautions"`, "Over-reads are entered by investigators"} {
 			if !strings.Contains(body, want) {
 				t.Errorf("%s page lacks %q", tc.name, want)
@@ -159,8 +160,8 @@ func TestFormValuesRefusedBesideFields(t *testing.T) {
 	coord := a.signIn(cohort.Coordinator)
 	now := time.Now().UTC().Format("2006-01-02T15:04")
 	res, body := a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": now, "duration_s": "40", "auto": "maybe"}, "", nil)
-	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-auto"`) || !strings.Contains(body, "choose one of the listed interpretations") {
-		t.Errorf("unknown interpretation: status %d", res.StatusCode)
+	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-auto"`) || !strings.Contains(body, "choose one of the listed readings of the recorder") {
+		t.Errorf("unknown reading of the recorder: status %d", res.StatusCode)
 	}
 	res, body = a.upload(coord, fmt.Sprintf("/cases/%d/recordings", ids[0]), map[string]string{"taken_at": now, "duration_s": "40.5x"}, "", nil)
 	if res.StatusCode != http.StatusUnprocessableEntity || !strings.Contains(body, `data-testid="error-duration_s"`) {
@@ -221,7 +222,7 @@ func TestOverReadFlow(t *testing.T) {
 	a := newApp(t)
 	ids := shippedCases(t, a, 1)
 	ctx := context.Background()
-	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: "af"})
+	rec, err := a.store.AddRecording(ctx, a.users[cohort.Coordinator].Actor("", ""), ids[0], ecg.RecordingInput{TakenAt: time.Now(), DurationS: 45, Auto: overread.AutoSuggestsAF})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -15,6 +15,7 @@ import (
 	"cohortdesk/cohort/deid/deidtest"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
@@ -82,7 +83,7 @@ func testSummary(tb testing.TB) referral.Summary {
 		Weeks: []referral.Week{{Week: 3, Verdict: "positive", Reason: "positive by run of 4 irregular 30-minute windows (limit 2) in 150.2 h usable wear", WearHours: 150.2,
 			Result: screen.Result{Windows: []screen.WindowResult{{Minutes: 5, Usable: 10}, {Minutes: 30, Usable: 300, Irregular: 8, Share: 0.027, LongestRun: 4, Threshold: 7, MeanMASD: 3.2}}}}},
 		HeartRate:    week,
-		Recording:    &referral.Recording{TakenAt: time.Date(2025, 2, 3, 10, 0, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, Auto: "af"},
+		Recording:    &referral.Recording{TakenAt: time.Date(2025, 2, 3, 10, 0, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, Auto: overread.AutoSuggestsAF},
 		OverRead:     &referral.OverRead{Role: "adjudication", Rhythm: "af", Confidence: "certain", ReadOn: cohort.Date{Year: 2025, Month: 2, Day: 5}},
 		ContactRoute: "Study coordinating office: reply through the secure message line quoting the referral code.",
 		Cautions:     components.CautionItems,

@@ -7,8 +7,10 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"maps"
 	"net/http"
 	"net/url"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -219,7 +221,7 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 	}
 	q := readQuery(r.URL.Query())
 	paper := paperParam(q, ref.Paper)
-	q.oneOf("done", "signoff")
+	q.oneOf("done", slices.Collect(maps.Keys(referralDone))...)
 	if err := q.err(); err != nil {
 		return err
 	}
@@ -415,6 +417,9 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 		man.Summaries = append(man.Summaries, e)
 		man.ReferralIDs = append(man.ReferralIDs, ref.ID)
 	}
+	if _, err := zipCautions(zw); err != nil {
+		return err
+	}
 	inZip := man
 	inZip.ReferralIDs = nil
 	mj, err := json.MarshalIndent(inZip, "", "  ")
@@ -487,7 +492,7 @@ func referralDoc(sum referral.Summary) views.ReferralDocView {
 	}
 	if rec := sum.Recording; rec != nil {
 		d.OverRead = append(d.OverRead, views.Fact{Label: "Recording", Value: fmt.Sprintf("study day %d, %.0f s, single lead", rec.StudyDay, rec.DurationS)},
-			views.Fact{Label: "Recorder's own reading", Value: rec.AutoInterpretation})
+			views.Fact{Label: overread.AutoHeading, Value: rec.AutoInterpretation})
 		if len(rec.MicroVolts) > 0 {
 			l := rec.Strip()
 			sv := stripView("summary-ecg", l, referralpdf.StripCaption(*rec, l))

@@ -114,7 +114,7 @@ func confirmAF(t *testing.T, a *app, pid int64, rhythm string, planted string) i
 	var rec int64
 	if err := a.store.Pool().QueryRow(ctx, `INSERT INTO recordings (case_id, participant_id, taken_at, duration_s, auto_interpretation,
 		    waveform_format, file_name, sampling_hz, samples, beats)
-		VALUES ($1, $2, $3, $4, 'af', 'csv', $5, 250, $6, $7) RETURNING id`, caseID, pid, flagged.Add(100*time.Hour), syn.Waveform.Seconds(),
+		VALUES ($1, $2, $3, $4, 'suggests_af', 'csv', $5, 250, $6, $7) RETURNING id`, caseID, pid, flagged.Add(100*time.Hour), syn.Waveform.Seconds(),
 		planted+".csv", db.EncodeSamples(syn.Waveform.Samples), beats).Scan(&rec); err != nil {
 		t.Fatal(err)
 	}
@@ -261,8 +261,8 @@ func TestReferralsAndExportsLeakNoCanary(t *testing.T) {
 		t.Fatalf("batch: status %d %s", res.StatusCode, res.Header.Get("Content-Type"))
 	}
 	files := unzip(t, batch)
-	if len(files) != len(pids)+1 {
-		t.Errorf("batch holds %d files for %d ready cases and a manifest", len(files), len(pids))
+	if len(files) != len(pids)+2 {
+		t.Errorf("batch holds %d files for %d ready cases, the cautions and a manifest", len(files), len(pids))
 	}
 	for name, b := range files {
 		if strings.HasSuffix(name, ".pdf") {

@@ -19,8 +19,8 @@ type route struct {
 // routes is the index of the application: every page and action, in one list.
 func (s *Server) routes() []route {
 	return []route{
-		{"GET", "/healthz", public, s.healthz},
-		{"GET", "/readyz", public, s.readyz},
+		{"GET", "/health", public, s.health},
+		{"GET", "/ready", public, s.ready},
 		{"GET", "/signin", public, s.signInForm},
 		{"POST", "/signin", public, s.signIn},
 		{"POST", "/signout", public, s.signOut},
@@ -69,6 +69,17 @@ func (s *Server) routes() []route {
 		{"POST", "/cases/{id}/shipment", coordWork, s.caseShipment},
 		{"POST", "/cases/{id}/return", coordWork, s.caseReturn},
 		{"POST", "/cases/{id}/note", caseWork, s.caseNote},
+		{"POST", "/cases/{id}/messages", coordWork, s.caseMessage},
+		{"POST", "/cases/bulk/messages", coordWork, s.casesBulkMessage},
+		{"POST", "/cases/bulk/letters", coordWork, s.casesBulkLetters},
+		{"GET", "/letters/{id}", coordWork, s.letterBatchShow},
+		{"GET", "/letters/{id}/pdf", coordWork, s.letterBatchPDF},
+		{"POST", "/letters/{id}/posted", coordWork, s.letterBatchPosted},
+		{"GET", "/messages/{id}", caseWork, s.messageShow},
+		{"GET", "/outbox", coordWork, s.outbox},
+		{"POST", "/participants/{id}/contact-preferences", coordWork, s.contactPreferencesSave},
+		{"POST", "/account/morning-summary", caseWork, s.morningSummary},
+		{"POST", "/outreach/receipts", public, s.deliveryReceipt}, // the text gateway, with its token
 		{"GET", "/screening", caseWork, s.screeningJobs},
 		{"GET", "/screening/external", coordWork, s.externalVerdictsForm},
 		{"POST", "/screening/external", coordWork, s.externalVerdictsImport},
@@ -113,6 +124,10 @@ func (s *Server) routes() []route {
 		{"GET", "/admin/protocols/{id}", adminOnly, s.protocolShow},
 		{"GET", "/admin/protocols/{id}/new", adminOnly, s.protocolNew},
 		{"POST", "/admin/protocols/{id}/activate", adminOnly, s.protocolActivate},
+		{"GET", "/admin/templates", adminOnly, s.templatesList},
+		{"POST", "/admin/templates", adminOnly, s.templateSave},
+		{"POST", "/admin/templates/words", adminOnly, s.templateWords},
+		{"GET", "/admin/templates/{id}", adminOnly, s.templateShow},
 	}
 }
 

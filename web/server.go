@@ -42,6 +42,7 @@ type Store interface {
 	exportStore
 	auditFilterStore
 	activityStore
+	outreachStore
 }
 
 // Config is what the server is built from.
@@ -61,6 +62,8 @@ type Config struct {
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
 	Secret []byte
+	// Outreach says which channels this server sends messages on.
+	Outreach OutreachConfig
 }
 
 // Server holds the dependencies of the handlers.
@@ -82,12 +85,14 @@ type Server struct {
 	secret         []byte
 	hashes         *hashGate
 	uploads        uploadSlots
+	outreach       OutreachConfig
 }
 
 // New builds the server and its routes.
 func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
-		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret}
+		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret,
+		outreach: cfg.Outreach}
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}
@@ -104,6 +109,9 @@ func New(cfg Config) *Server {
 		CSS:  assets.URL("css/app.css"),
 		JS:   assets.URL("js/app.js"),
 		HTMX: assets.URL("vendor/htmx/htmx.min.js"),
+		// One concern a file: the cautions, the key scheme, chart colours.
+		PartCSS: []string{assets.URL("css/cautions.css"), assets.URL("css/keys.css"), assets.URL("css/charts.css")},
+		PartJS:  []string{assets.URL("js/keys.js"), assets.URL("js/charts.js")},
 	}
 	s.router = s.buildRouter()
 	return s
@@ -134,11 +142,13 @@ func (s *Server) page(r *http.Request, title, area string) views.Page {
 	if u, ok := userFrom(r.Context()); ok {
 		p.User = &views.User{Name: u.Name, RoleLabel: u.Role.Label()}
 		p.Nav = s.navFor(u.Role)
+		p.Keys = s.keyHints(r, u.Role)
 	}
 	return p
 }
 
-// area is one entry of the main navigation.
+// area is one entry of the main navigation. Its number key (the key scheme,
+// web/keys.go) is fixed per area and printed on its tab.
 type area struct {
 	key, label, href, shortcut string
 }
@@ -146,15 +156,15 @@ type area struct {
 // areas are the main areas in order; each shows only to roles its landing
 // route allows, so the navigation can never offer a page that answers 403.
 var areas = []area{
-	{"home", "Overview", "/", "h"},
-	{"triage", "Triage", "/triage", "t"},
-	{"participants", "Participants", "/participants", "p"},
-	{"screening", "Screening", "/screening", "s"},
-	{"cases", "Cases", "/cases", "c"},
-	{"confirmations", "Confirmations", "/confirmations", "e"},
-	{"progress", "Progress", "/progress", "g"},
-	{"exports", "Exports", "/exports", "x"},
-	{"admin", "Administration", "/admin", "a"},
+	{"home", "Overview", "/", "1"},
+	{"triage", "Triage", "/triage", "2"},
+	{"participants", "Participants", "/participants", "3"},
+	{"screening", "Screening", "/screening", "4"},
+	{"cases", "Cases", "/cases", "5"},
+	{"confirmations", "Confirmations", "/confirmations", "6"},
+	{"progress", "Progress", "/progress", "7"},
+	{"exports", "Exports", "/exports", "8"},
+	{"admin", "Administration", "/admin", "9"},
 }
 
 func (s *Server) navFor(role cohort.Role) []views.NavItem {

@@ -384,14 +384,13 @@ func sweepChart(res db.SweepResult, name string) (components.ChartModel, []strin
 			ppvLo, ppvHi = append(ppvLo, percentPoint(math.NaN())), append(ppvHi, percentPoint(math.NaN()))
 		}
 	}
-	dashed := charts.WithLineStyleOpts(opts.LineStyle{Type: "dashed", Width: 1})
-	right := charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})
+	right := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})}
 	line.SetXAxis(x).
-		AddSeries("Weeks flagged", flagged).
-		AddSeries("Per-week PPV %", ppv, right).
-		AddSeries("Per-week PPV 95% CI, low", ppvLo, right, dashed).
-		AddSeries("Per-week PPV 95% CI, high", ppvHi, right, dashed).
-		AddSeries("Sensitivity %", sens, right)
+		AddSeries("Weeks flagged", flagged, paint(chartPositive)...).
+		AddSeries("Per-week PPV %", ppv, with(right, paint(chartMeasure))...).
+		AddSeries("Per-week PPV 95% CI, low", ppvLo, with(right, paint(chartBand))...).
+		AddSeries("Per-week PPV 95% CI, high", ppvHi, with(right, paint(chartBand))...).
+		AddSeries("Sensitivity %", sens, with(right, paint(chartMeasure2))...)
 	return chartView("sweep-chart", "Weeks flagged, per-week PPV and sensitivity for each value of "+name, line, true)
 }
 

@@ -130,7 +130,8 @@ func (s *Server) triageBoard(r *http.Request, acted int64, done, refusal string)
 		m.Notice += " Now " + where + "."
 		m.NoticeHref = fmt.Sprintf("/cases/%d", row.ID)
 	}
-	return m, nil
+	// The rows' one-step messages and the morning-summary choice (outreach).
+	return m, s.triageOutreach(r, &m)
 }
 
 // triage is the coordinators' morning list: the urgent groups in the order of

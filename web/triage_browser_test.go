@@ -9,6 +9,7 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
 
 	"github.com/chromedp/chromedp"
@@ -35,7 +36,7 @@ func TestBrowserTriageRowsToActFrom(t *testing.T) {
 		t.Fatal(err)
 	}
 	w := synthWave(t, 32, 250)
-	rec, err := a.store.AddRecording(ctx, coordActor, ids[2], ecg.RecordingInput{TakenAt: time.Now(), Auto: "af", Samples: w.Samples, RateHz: w.RateHz})
+	rec, err := a.store.AddRecording(ctx, coordActor, ids[2], ecg.RecordingInput{TakenAt: time.Now(), Auto: overread.AutoSuggestsAF, Samples: w.Samples, RateHz: w.RateHz})
 	if err != nil {
 		t.Fatal(err)
 	}

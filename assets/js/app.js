@@ -12,6 +12,7 @@
       if (target.getAttribute("data-drawn")) return;
       var opts;
       try { opts = JSON.parse(target.getAttribute("data-chart")); } catch (e) { return; }
+      if (window.cohortdeskCharts) opts = window.cohortdeskCharts.colour(opts);
       var chart = echarts.init(target, null, { renderer: "svg" });
       chart.setOption(opts);
       target.setAttribute("data-drawn", "1");
@@ -20,38 +21,7 @@
     });
   }
 
-  // Keyboard shortcuts: elements with data-key="g t" (a sequence) or "j".
-  var seq = "";
-  var seqTimer = null;
-  function onKey(ev) {
-    var t = ev.target;
-    if (ev.ctrlKey || ev.metaKey || ev.altKey) return;
-    if (t && (t.isContentEditable || /^(INPUT|TEXTAREA|SELECT)$/.test(t.tagName))) return;
-    seq = seq ? seq + " " + ev.key : ev.key;
-    clearTimeout(seqTimer);
-    seqTimer = setTimeout(function () { seq = ""; }, 900);
-    var el = document.querySelector('[data-key="' + CSS.escape(seq) + '"]');
-    // Keys of the focused row: data-row-key="a" inside the [data-row] that
-    // holds the focus wins over a page-wide key.
-    var row = document.activeElement && document.activeElement.closest ? document.activeElement.closest("[data-row]") : null;
-    var inRow = row ? row.querySelector('[data-row-key="' + CSS.escape(seq) + '"]') : null;
-    if (inRow) el = inRow;
-    if (el) {
-      ev.preventDefault();
-      seq = "";
-      if (el.tagName === "A" || el.tagName === "BUTTON") el.click(); else el.focus();
-      return;
-    }
-    if (ev.key === "j" || ev.key === "k") { moveRow(ev.key === "j" ? 1 : -1); ev.preventDefault(); seq = ""; }
-  }
-  function moveRow(step) {
-    var rows = Array.prototype.slice.call(document.querySelectorAll("[data-row]"));
-    if (!rows.length) return;
-    var i = rows.indexOf(document.activeElement.closest ? document.activeElement.closest("[data-row]") : null);
-    var next = rows[Math.max(0, Math.min(rows.length - 1, i + step))];
-    var focusable = next.querySelector("a, button") || next;
-    focusable.focus();
-  }
+  // Keys: assets/js/keys.js.
 
   // Uploads with visible progress: forms with data-upload show a progress bar.
   function wireUploads(root) {
@@ -116,7 +86,6 @@
 
   function init(root) { drawCharts(root); wireUploads(root); }
   document.addEventListener("DOMContentLoaded", function () { init(document); });
-  document.addEventListener("keydown", onKey);
   document.addEventListener("htmx:afterSettle", function (ev) { init(ev.target || document); });
 })();
 

@@ -34,6 +34,7 @@ type serverConfig struct {
 	TLSKey          string
 	Secret          string
 	Workers         int
+	Outreach        outreachConfig
 }
 
 // bind registers the flags, with defaults taken from the environment.
@@ -50,6 +51,7 @@ func (c *serverConfig) bind(fs *flag.FlagSet, getenv func(string) string, defaul
 	fs.StringVar(&c.TLSCert, "tls-cert", getenv("COHORTDESK_TLS_CERT"), "serve HTTPS with this certificate file (env COHORTDESK_TLS_CERT)")
 	fs.StringVar(&c.TLSKey, "tls-key", getenv("COHORTDESK_TLS_KEY"), "key file of -tls-cert (env COHORTDESK_TLS_KEY)")
 	fs.IntVar(&c.Workers, "workers", envInt(getenv, "COHORTDESK_WORKERS", 1), "background job workers in this instance (screening after imports, threshold sweeps); 0 leaves the queue to other instances (env COHORTDESK_WORKERS)")
+	c.Outreach.bind(fs, getenv)
 	fs.StringVar(&c.Secret, "secret", getenv("COHORTDESK_SECRET"), "deployment secret keying the pseudonymous referral codes, 32+ characters (env COHORTDESK_SECRET)")
 }
 
@@ -103,7 +105,7 @@ func (c *serverConfig) validate() error {
 	if _, err := c.proxies(); err != nil {
 		return err
 	}
-	return nil
+	return c.Outreach.validate()
 }
 
 func (c *serverConfig) logger(w io.Writer) *slog.Logger {

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"path/filepath"
 	"time"
 
 	"cohortdesk/db"
@@ -56,6 +57,10 @@ func runDemo(ctx context.Context, e env, args []string) error {
 			return err
 		}
 	}
+	if cfg.Outreach.OutboxDir == "" && cfg.Outreach.SMTP.Host == "" {
+		// The demo sends nothing: e-mails and text messages go to a folder.
+		cfg.Outreach.OutboxDir = filepath.Join(cl.Dir(), "outbox")
+	}
 	if err := ensureDatabase(ctx, cl, *reset); err != nil {
 		return err
 	}
@@ -92,6 +97,9 @@ func runDemo(ctx context.Context, e env, args []string) error {
 		fmt.Fprint(e.stdout, signIn)
 		fmt.Fprintf(e.stdout, "Database (for the import and user commands): DATABASE_URL='%s'\n", cfg.DatabaseURL)
 		fmt.Fprintf(e.stdout, "Its owner (for migrate): %s='%s'\n", migrateEnv, cfg.MigrateURL)
+		if cfg.Outreach.OutboxDir != "" {
+			fmt.Fprintf(e.stdout, "Messages to participants are not sent: each is written to %s (.eml and .txt files).\n", cfg.Outreach.OutboxDir)
+		}
 		fmt.Fprintf(e.stdout, "Data folder: %s. Press Ctrl-C to stop.\n\n", cl.Dir())
 	})
 }

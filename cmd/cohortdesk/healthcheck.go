@@ -13,7 +13,7 @@ import (
 func runHealthcheck(ctx context.Context, e env, args []string) error {
 	fs := flag.NewFlagSet("healthcheck", flag.ContinueOnError)
 	fs.SetOutput(e.stderr)
-	url := fs.String("url", "http://127.0.0.1:8080/healthz", "address to probe (/healthz: process up; /readyz: database reachable)")
+	url := fs.String("url", "http://127.0.0.1:8080/health", "address to probe (/health: process up; /ready: database reachable)")
 	if err := fs.Parse(args); err != nil {
 		return err
 	}

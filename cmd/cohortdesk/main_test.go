@@ -78,9 +78,9 @@ func TestDemoCommandEndToEnd(t *testing.T) {
 		if !strings.Contains(out.String(), demoload.DemoPassword) {
 			t.Errorf("pass %d: the demo sign-in is not printed:\n%s", pass, out.String())
 		}
-		res, err := http.Get(base + "/readyz")
+		res, err := http.Get(base + "/ready")
 		if err != nil || res.StatusCode != 200 {
-			t.Fatalf("pass %d: readyz %v %v", pass, res, err)
+			t.Fatalf("pass %d: ready %v %v", pass, res, err)
 		}
 		res.Body.Close()
 		email := regexp.MustCompile(`([a-z]+@example\.net)\s+Coordinator`).FindStringSubmatch(out.String())

@@ -137,6 +137,8 @@ func runScreen(ctx context.Context, e env, args []string) error {
 				return fmt.Errorf("screen: job %d failed: %s", id, j.Error)
 			}
 			fmt.Fprintln(e.stdout, j.Outcome)
+			// The verdicts just printed are screens: say so once.
+			fmt.Fprint(e.stdout, "\n"+cohort.CautionsText())
 			return nil
 		case <-tick.C:
 			if j, err := store.Job(ctx, id); err == nil {

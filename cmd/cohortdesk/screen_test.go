@@ -46,6 +46,12 @@ func TestScreenCommand(t *testing.T) {
 		!strings.Contains(got, "job 1 done: 1 of 1 participant-weeks (100%)") || !strings.Contains(got, "1 positive") {
 		t.Fatalf("output:\n%s", got)
 	}
+	// The cautions follow the verdicts, once.
+	for _, c := range append([]string{cohort.CautionsHeading}, cohort.Cautions...) {
+		if n := strings.Count(out.String(), c); n != 1 {
+			t.Errorf("the output holds the caution %q %d times, want once:\n%s", c, n, out.String())
+		}
+	}
 	for _, args := range [][]string{
 		{"screen"},
 		{"screen", "-all", "-participant", "CMD-1"},

@@ -67,7 +67,14 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 	}
 	stopWatch := watchInterruptedImports(ctx, store, interruptedEvery, log)
 	defer stopWatch()
-	stopWorkers := startWorkers(ctx, store, cfg.Workers, log)
+	snd, outreachCfg, err := cfg.Outreach.build(store, log)
+	if err != nil {
+		return err
+	}
+	if err := startOutreach(ctx, store, snd); err != nil {
+		return err
+	}
+	stopWorkers := startWorkers(ctx, store, cfg.Workers, snd.Handlers(), log)
 	defer stopWorkers()
 	proxies, err := cfg.proxies()
 	if err != nil {
@@ -85,6 +92,7 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 		},
 		DemoNote: demoNote,
 		Secret:   []byte(cfg.Secret),
+		Outreach: outreachCfg,
 	})
 	hs := web.NewHTTPServer(cfg.Addr, srv.Handler())
 	if cfg.TLSCert != "" {

@@ -1,6 +1,8 @@
 // Package guardrails holds tests that keep the layout honest: which package
-// may depend on which (imports_test.go) and how long a production file may
-// grow without a written reason (size_test.go). It has no code of its own;
+// may depend on which (imports_test.go), how long a production file may
+// grow without a written reason (size_test.go), and that no name the demo
+// generator makes is on the project's list of names to avoid
+// (demonames_test.go). It has no code of its own;
 // `go test ./...` runs it with everything else. DEVELOPERS.md describes both
 // rules.
 package guardrails

@@ -40,8 +40,8 @@ func settled(r overread.Rhythm, n int) overread.Conclusion {
 //	  P1..P7 AF, P8 and P9 sinus rhythm, P10 atrial flutter.
 //	P11's recording is read as uninterpretable on day 5.
 //	P1 and P2 are referred.
-//	Automatic interpretations: P1..P5 AF, P6 sinus, P7 none, P8 sinus,
-//	P9 AF, P10 unclassified, P11 unreadable.
+//	Recorder's own readings: P1..P5 suggest AF, P6 a regular rhythm, P7
+//	none, P8 a regular rhythm, P9 AF, P10 no rhythm call, P11 not analysed.
 //
 // The figures are read as of day 30.
 func handWorked() Rows {
@@ -63,7 +63,7 @@ func handWorked() Rows {
 		}
 		rs.People = append(rs.People, p)
 	}
-	autos := []overread.Auto{"", "af", "af", "af", "af", "af", "sinus", "none", "sinus", "af", "unclassified", "unreadable"}
+	autos := []overread.Auto{"", "suggests_af", "suggests_af", "suggests_af", "suggests_af", "suggests_af", "suggests_regular", "no_reading", "suggests_regular", "suggests_af", "no_call", "not_analysed"}
 	rhythms := []overread.Rhythm{"", "af", "af", "af", "af", "af", "af", "af", "sinus", "sinus", "flutter"}
 	for i := 1; i <= 14; i++ {
 		e := Episode{CaseID: int64(100 + i), ParticipantID: int64(i), ProtocolID: 1, Flagged: day0}
@@ -172,7 +172,7 @@ func TestCascadeFollowsTheChosenVersion(t *testing.T) {
 	// "referred" with AF; P15 a case of version 2 only.
 	rs.Episodes = append(rs.Episodes,
 		Episode{CaseID: 150, ParticipantID: 13, ProtocolID: 1, State: followup.Referred, Flagged: day(20), ReachedAt: day(20),
-			Recordings: []Recording{{ID: 300, Auto: overread.AutoAF, Conclusion: settled(overread.AF, 25)}}},
+			Recordings: []Recording{{ID: 300, Auto: overread.AutoSuggestsAF, Conclusion: settled(overread.AF, 25)}}},
 		Episode{CaseID: 151, ParticipantID: 15, ProtocolID: 2, State: followup.Contacting, Flagged: day(20)})
 	c := rs.Cascade(Filter{})
 	if got := c.Box("referred").Participants; !slices.Equal(got, []int64{1, 2, 13}) {
@@ -361,9 +361,9 @@ func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 	if len(a.ByVersion) != 1 || a.ByVersion[0].Flagged != 14 || a.ByVersion[0].PPV != all.PPV || a.ByVersion[0].Label != "default v1" {
 		t.Errorf("by version %+v", a.ByVersion)
 	}
-	// Kappa, rows automatic, columns over-read (AF, sinus, other, unreadable):
-	// AF row P1..P5 -> AF, P9 -> sinus; sinus row P6 -> AF, P8 -> sinus;
-	// unclassified P10 -> flutter (other); unreadable P11 -> uninterpretable;
+	// Kappa, rows the recorder, columns over-read (AF, regular, other, not analysable):
+	// AF row P1..P5 -> AF, P9 -> sinus; regular row P6 -> AF, P8 -> sinus;
+	// no call P10 -> flutter (other); not analysed P11 -> uninterpretable;
 	// P7 has none and is left out. po = 8/10, pe = (36+4+1+1)/100 = 0.42,
 	// kappa = 0.38/0.58 = 0.6552 (computed by hand).
 	wantTable := [][]int{{5, 1, 0, 0}, {1, 1, 0, 0}, {0, 0, 1, 0}, {0, 0, 0, 1}}
@@ -393,7 +393,7 @@ func TestAgreementWithoutReadings(t *testing.T) {
 	rs := Rows{Protocol: v1, Versions: []ProtocolRef{v1}, Loc: time.UTC, AsOf: cohort.DateOf(day(10)),
 		People: []Person{{ID: 1, Site: "AA", Sufficient: true, Positive: true}},
 		Episodes: []Episode{{CaseID: 1, ParticipantID: 1, ProtocolID: 1, State: followup.RecordingReceived, Flagged: day0, ReachedAt: day(1),
-			Recordings: []Recording{{ID: 1, Auto: overread.AutoAF, TooShort: true, Conclusion: settled(overread.AF, 4)}}}}}
+			Recordings: []Recording{{ID: 1, Auto: overread.AutoSuggestsAF, TooShort: true, Conclusion: settled(overread.AF, 4)}}}}}
 	a, err := rs.Agreement()
 	if err != nil {
 		t.Fatal(err)

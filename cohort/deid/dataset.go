@@ -1,11 +1,14 @@
 package deid
 
 import (
+	"fmt"
 	"slices"
 	"strconv"
+	"strings"
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/overread"
 )
 
 // Column describes one column of a dataset file for the data dictionary.
@@ -112,12 +115,22 @@ var datasetTables = []Table{
 		{"recording_number", "integer", "the case's recordings numbered 1, 2, ... by time taken"},
 		{"recording_study_day", "integer", "study day the recording was taken; " + studyDayDesc},
 		{"recording_duration_s", "number", "recording length in seconds"},
-		{"auto_interpretation", "text", "the recorder's own reading: none, af, sinus, unclassified or unreadable"},
+		{"auto_interpretation", "text", autoDesc()},
 		{"reader_role", "text", "first, second or adjudication"},
 		{"rhythm", "text", "af, flutter, sinus, other or uninterpretable"},
 		{"confidence", "text", "certain, probable or uncertain"},
 		{"read_study_day", "integer", "study day of the read; " + studyDayDesc},
 	}},
+}
+
+// autoDesc lists the recorder's readings with their stored values, from
+// overread's labels.
+func autoDesc() string {
+	var parts []string
+	for _, a := range overread.Autos() {
+		parts = append(parts, fmt.Sprintf("%s (%s)", a, a.Label()))
+	}
+	return "the recorder's own reading, the device's call and not a diagnosis: " + strings.Join(parts, ", ")
 }
 
 // DatasetTables returns the dataset export's files in the order the export

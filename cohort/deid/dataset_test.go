@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/overread"
 )
 
 func col(t *testing.T, e Export, row []string, name string) string {
@@ -130,7 +131,7 @@ func TestDatasetCaseAndOverReadDays(t *testing.T) {
 		}
 	}
 	or := d.OverRead(OverReadRecord{StudyID: "X-1", EnrolledOn: enrolled, Location: ny, CaseNumber: 2, RecordingNumber: 1,
-		TakenAt: flagged.Add(48 * time.Hour), DurationS: 30, AutoInterpretation: "af", Role: "first", Rhythm: "af", Confidence: "certain",
+		TakenAt: flagged.Add(48 * time.Hour), DurationS: 30, AutoInterpretation: string(overread.AutoSuggestsAF), Role: "first", Rhythm: "af", Confidence: "certain",
 		ReadOn: enrolled.AddDays(13)})
 	if got := col(t, DatasetOverReads, or, "read_study_day"); got != "13" {
 		t.Errorf("read on day 13 exported as %q", got)

@@ -442,10 +442,10 @@ func (m *sim) read(rec Recording) overread.Rhythm {
 }
 
 // autoResult imitates a recorder's own algorithm: right most of the time,
-// unclassified for rhythms it was not built for, silent on short or noisy
-// recordings.
+// making no rhythm call for rhythms it was not built for, unable to analyse
+// short or noisy recordings.
 func autoResult(r *rand.Rand, rh overread.Rhythm, short, noisy bool) overread.Auto {
-	opts := []overread.Auto{overread.AutoAF, overread.AutoSinus, overread.AutoUnclassified, overread.AutoUnreadable}
+	opts := []overread.Auto{overread.AutoSuggestsAF, overread.AutoSuggestsRegular, overread.AutoNoCall, overread.AutoNotAnalysed}
 	var ws []float64
 	switch {
 	case short:

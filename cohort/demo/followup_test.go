@@ -122,7 +122,7 @@ func TestFollowUpScriptsAreConsistent(t *testing.T) {
 			}
 			if rec.OverRead != "" {
 				lastRead = rec.OverRead
-				if (rec.Auto == overread.AutoAF) != (rec.OverRead == overread.AF) {
+				if (rec.Auto == overread.AutoSuggestsAF) != (rec.OverRead == overread.AF) {
 					disagree++
 				}
 			}

@@ -67,35 +67,50 @@ type Intake struct {
 	Vascular     risk.Answer // prior myocardial infarction, peripheral artery disease or aortic plaque
 }
 
-// Syllable tables for invented names. Given names join one part from each of
-// the first two tables; family names join a stem and an ending. The parts were
-// chosen so the joins read as names but belong to no one in particular.
-var (
-	givenStart = []string{"Ael", "Bry", "Cael", "Dov", "Eri", "Fae", "Gwi", "Hal", "Ilo", "Jas", "Kae",
-		"Lor", "Mev", "Nir", "Oss", "Pel", "Quo", "Ras", "Sev", "Tam", "Ulv", "Vey", "Wyl", "Yor", "Zen"}
-	givenEnd   = []string{"ra", "dan", "wen", "mir", "lis", "tor", "ny", "vel", "sa", "rin", "ona", "ett", "ric", "ide"}
-	familyStem = []string{"Brem", "Cald", "Dunn", "Ember", "Fal", "Glen", "Harl", "Ivers", "Kest", "Lark", "Morr",
-		"Nettle", "Pryn", "Quill", "Rook", "Sall", "Thorn", "Umber", "Vell", "Wex", "Yarrow", "Orm", "Tass", "Birch"}
-	familyEnd  = []string{"combe", "hallow", "mere", "stead", "thwaite", "wick", "worth", "gate", "holm", "meade", "shaw", "croft"}
-	streetStem = []string{"Amber", "Brindle", "Copper", "Dapple", "Elder", "Fennel", "Gorse", "Heron", "Juniper",
-		"Kettle", "Linden", "Marrow", "Nutmeg", "Osier", "Pebble", "Quarry", "Rushy", "Sorrel", "Teasel", "Willow"}
-	streetEnd  = []string{"field", "moor", "vale", "bank", "hollow", "mead", "down", "cote"}
-	streetKind = []string{"Lane", "Row", "Way", "Court", "Road", "Terrace", "Walk", "Close"}
-)
-
-// watchModel is an invented consumer watch. About a third of participants wear
-// one of the models that supply beat-to-beat intervals.
-type watchModel struct {
-	name, prefix string
-	rr           bool
-	weight       float64
+// NameParts are the syllable tables every invented personal name and street
+// is joined from. Given names join one start and one end; family names a stem
+// and an end; streets a stem, an end and a kind. The parts were chosen so the
+// joins read as names but belong to no one in particular; they are exported so
+// a test can run every name they can form through the project's list of names
+// to avoid (cmd/guardrails).
+type NameParts struct {
+	GivenStarts, GivenEnds  []string
+	FamilyStems, FamilyEnds []string
+	StreetStems, StreetEnds []string
+	StreetKinds             []string
 }
 
-var watchModels = []watchModel{
-	{"Veyra Band 3", "VB3", false, 0.36},
-	{"Orbikin S", "OKS", false, 0.30},
-	{"Pulseloom Air", "PLA", true, 0.20},
-	{"Stridewell 2", "SW2", true, 0.14},
+// Names are the tables the generator draws from.
+var Names = NameParts{
+	GivenStarts: []string{"Ael", "Bry", "Cael", "Dov", "Eri", "Fae", "Gwi", "Hal", "Ilo", "Jas", "Kae",
+		"Lor", "Mev", "Nir", "Oss", "Pel", "Quen", "Ras", "Sev", "Tam", "Ulv", "Vey", "Wyl", "Yor", "Zen"},
+	GivenEnds: []string{"ra", "dan", "wen", "mir", "lis", "tor", "ny", "vel", "sa", "rin", "ona", "ett", "ric", "isse"},
+	FamilyStems: []string{"Brann", "Cald", "Dunn", "Ember", "Fal", "Glen", "Harl", "Ivers", "Kest", "Lark", "Morr",
+		"Nettle", "Pryn", "Quill", "Rook", "Sall", "Thorn", "Umber", "Vell", "Wex", "Yarrow", "Orm", "Tass", "Birch"},
+	FamilyEnds: []string{"combe", "hallow", "mere", "stead", "thwaite", "wick", "worth", "gate", "holm", "meade", "shaw", "croft"},
+	StreetStems: []string{"Amber", "Brindle", "Coppice", "Dapple", "Elder", "Fennel", "Gorse", "Heron", "Juniper",
+		"Kettle", "Linden", "Marrow", "Nutmeg", "Osier", "Pebble", "Quarry", "Rushy", "Sorrel", "Teasel", "Willow"},
+	StreetEnds:  []string{"field", "moor", "vale", "bank", "hollow", "mead", "down", "cote"},
+	StreetKinds: []string{"Lane", "Row", "Way", "Court", "Road", "Terrace", "Walk", "Close"},
+}
+
+// Watch is an invented consumer watch model. About a third of participants
+// wear one of the models that supply beat-to-beat intervals. Models are named
+// as an invented maker and a model code, never in the style of a real
+// vendor's product line; the list is exported so a test can check the names.
+type Watch struct {
+	Name   string
+	Prefix string // of the serial numbers
+	RR     bool   // supplies beat-to-beat intervals
+	Weight float64
+}
+
+// Watches are the models participants wear, with their shares.
+var Watches = []Watch{
+	{"Veyra VW-30", "VW3", false, 0.36},
+	{"Orbikin OK-12", "OKS", false, 0.30},
+	{"Pulseloom PL-7R", "PL7", true, 0.20},
+	{"Stridewell SW-24R", "SW2", true, 0.14},
 }
 
 // withdrawalReasons are invented reasons, worded as a coordinator would note them.
@@ -230,8 +245,8 @@ func (s *Study) person(k int, e enrolment, zones map[string]*time.Location, toda
 		Enrolled: e.day,
 		index:    k,
 	}
-	p.GivenName = givenStart[r.IntN(len(givenStart))] + givenEnd[r.IntN(len(givenEnd))]
-	p.FamilyName = familyStem[r.IntN(len(familyStem))] + familyEnd[r.IntN(len(familyEnd))]
+	p.GivenName = Names.GivenStarts[r.IntN(len(Names.GivenStarts))] + Names.GivenEnds[r.IntN(len(Names.GivenEnds))]
+	p.FamilyName = Names.FamilyStems[r.IntN(len(Names.FamilyStems))] + Names.FamilyEnds[r.IntN(len(Names.FamilyEnds))]
 	switch x := r.Float64(); {
 	case x < 0.52:
 		p.Sex = cohort.Female
@@ -262,7 +277,7 @@ func (s *Study) person(k int, e enrolment, zones map[string]*time.Location, toda
 	}
 	emails[p.Email] = true
 	p.Street = fmt.Sprintf("%d %s%s %s", betweenInt(r, 2, 4980),
-		streetStem[r.IntN(len(streetStem))], streetEnd[r.IntN(len(streetEnd))], streetKind[r.IntN(len(streetKind))])
+		Names.StreetStems[r.IntN(len(Names.StreetStems))], Names.StreetEnds[r.IntN(len(Names.StreetEnds))], Names.StreetKinds[r.IntN(len(Names.StreetKinds))])
 	p.City = st.towns[pick(r, []float64{0.6, 0.25, 0.15})]
 	p.TimeZone = st.TimeZone
 	if r.Float64() < 0.06 {
@@ -274,10 +289,10 @@ func (s *Study) person(k int, e enrolment, zones map[string]*time.Location, toda
 		p.ConsentVersion = "1.1"
 	}
 	p.Intake = drawIntake(r, age, p.Sex)
-	wm := watchModels[pick(r, []float64{watchModels[0].weight, watchModels[1].weight, watchModels[2].weight, watchModels[3].weight})]
-	p.Watch, p.HasRR = wm.name, wm.rr
+	wm := Watches[pick(r, []float64{Watches[0].Weight, Watches[1].Weight, Watches[2].Weight, Watches[3].Weight})]
+	p.Watch, p.HasRR = wm.Name, wm.RR
 	for {
-		p.Serial = wm.prefix + "-" + base32(r, 4) + "-" + base32(r, 4)
+		p.Serial = wm.Prefix + "-" + base32(r, 4) + "-" + base32(r, 4)
 		if !serials[p.Serial] {
 			break
 		}

@@ -37,7 +37,7 @@ type RecordingInput struct {
 	// DurationS is the length in seconds of a recording without a waveform;
 	// with a waveform, the waveform's own length is used and this is ignored.
 	DurationS float64
-	// Auto is the recorder's own interpretation; "" is overread.AutoNone.
+	// Auto is the recorder's own reading; "" is overread.AutoNoReading.
 	Auto overread.Auto
 	// File is an uploaded EDF, EDF+, CSV or zip file, or a WFDB header,
 	// recognised by its content. The patient and recording identification
@@ -119,7 +119,7 @@ type Signal struct {
 // Intake is the one entry point for recordings: it recognises and reads the
 // file (or takes the samples), checks the recording, detects the beats,
 // computes the beat-interval hint, and settles the recording's times, length
-// and automatic interpretation. It is all or nothing: every problem is
+// and the recorder's own reading. It is all or nothing: every problem is
 // reported at once in a *cohort.ValidationError, field by field (waveform,
 // taken_at, received_on, duration_s, auto), saying what is wrong and where (the
 // byte offset and field of an EDF header, the line of a CSV file).
@@ -134,10 +134,10 @@ func Intake(in RecordingInput, o IntakeOptions) (Accepted, error) {
 	}
 	a.Auto = in.Auto
 	if a.Auto == "" {
-		a.Auto = overread.AutoNone
+		a.Auto = overread.AutoNoReading
 	}
 	if !a.Auto.Valid() {
-		ve.Add("auto", "choose one of the listed interpretations")
+		ve.Add("auto", "choose one of the listed readings of the recorder")
 	}
 	sig, msg := readSignal(in, o)
 	if msg != "" {

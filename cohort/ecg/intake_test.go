@@ -81,13 +81,13 @@ func TestIntakeFormats(t *testing.T) {
 	} {
 		t.Run(tc.format, func(t *testing.T) {
 			in := tc.in
-			in.TakenAt, in.Auto = taken, overread.AutoSinus
+			in.TakenAt, in.Auto = taken, overread.AutoSuggestsRegular
 			got, err := ecg.Intake(in, intakeOptions())
 			if err != nil {
 				t.Fatal(err)
 			}
 			sig := got.Signal
-			if sig == nil || sig.Format != tc.format || sig.Waveform.RateHz != 250 || got.Auto != overread.AutoSinus || got.TooShort {
+			if sig == nil || sig.Format != tc.format || sig.Waveform.RateHz != 250 || got.Auto != overread.AutoSuggestsRegular || got.TooShort {
 				t.Fatalf("accepted %+v", got)
 			}
 			if len(sig.Beats) != want || sig.Hint.Beats != want {
@@ -169,7 +169,7 @@ func TestIntakeRefusals(t *testing.T) {
 		{"before the flag", ecg.RecordingInput{TakenAt: flagged.AddDate(0, 0, -1), DurationS: 40}, "taken_at", []string{"flagged", "2 Jun 2026"}},
 		{"received in the future", ecg.RecordingInput{TakenAt: now, ReceivedAt: now.AddDate(0, 0, 1), DurationS: 40}, "received_on", []string{"future"}},
 		{"received before taken", ecg.RecordingInput{TakenAt: now, ReceivedAt: now.AddDate(0, 0, -1), DurationS: 40}, "received_on", []string{"before it was taken"}},
-		{"bad auto", ecg.RecordingInput{TakenAt: now, DurationS: 40, Auto: "maybe"}, "auto", []string{"interpretation"}},
+		{"bad auto", ecg.RecordingInput{TakenAt: now, DurationS: 40, Auto: "maybe"}, "auto", []string{"readings of the recorder"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := ecg.Intake(tc.in, intakeOptions())
@@ -213,7 +213,7 @@ func TestIntakeSettles(t *testing.T) {
 	if want := time.Date(2026, 6, 9, 8, 30, 0, 0, zone); !got.TakenAt.Equal(want) {
 		t.Errorf("taken at %v, want the file's start %v", got.TakenAt, want)
 	}
-	if !got.ReceivedAt.Equal(intakeNow) || got.Auto != overread.AutoNone || !got.TooShort || got.DurationS >= 30 {
+	if !got.ReceivedAt.Equal(intakeNow) || got.Auto != overread.AutoNoReading || !got.TooShort || got.DurationS >= 30 {
 		t.Errorf("accepted %+v", got)
 	}
 	// Arrival the same day an hour before the recording time: kept in the

@@ -52,17 +52,24 @@ const (
 	OutcomeMessageLeft Outcome = "message_left"
 	OutcomeWrongNumber Outcome = "wrong_number"
 	OutcomeDeclined    Outcome = "declined"
+	// OutcomeUndeliverable is set by the desk, never entered: a message it
+	// sent did not reach the participant (refused for good, or not sent
+	// after repeated failures). It says nothing about the participant, so it
+	// does not count as unanswered.
+	OutcomeUndeliverable Outcome = "undeliverable"
 )
 
 var outcomeLabels = cohort.Words[Outcome]{
-	OutcomeReached:     "reached",
-	OutcomeNoAnswer:    "no answer",
-	OutcomeMessageLeft: "message left",
-	OutcomeWrongNumber: "wrong number or address",
-	OutcomeDeclined:    "declined",
+	OutcomeReached:       "reached",
+	OutcomeNoAnswer:      "no answer",
+	OutcomeMessageLeft:   "message left",
+	OutcomeWrongNumber:   "wrong number or address",
+	OutcomeDeclined:      "declined",
+	OutcomeUndeliverable: "not delivered",
 }
 
-// Outcomes lists the outcomes in the order a form offers them.
+// Outcomes lists the outcomes people enter, in the order a form offers them
+// (OutcomeUndeliverable is the desk's own and is not among them).
 func Outcomes() []Outcome {
 	return []Outcome{OutcomeReached, OutcomeNoAnswer, OutcomeMessageLeft, OutcomeWrongNumber, OutcomeDeclined}
 }

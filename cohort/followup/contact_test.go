@@ -2,6 +2,7 @@ package followup
 
 import (
 	"regexp"
+	"slices"
 	"testing"
 )
 
@@ -115,6 +116,11 @@ func TestChannelsAndOutcomes(t *testing.T) {
 		if got, err := ParseOutcome(string(o)); err != nil || got != o {
 			t.Errorf("ParseOutcome(%q) = %q, %v", o, got, err)
 		}
+	}
+	// The desk's own outcome: valid, stored, never offered on a form, not
+	// counted as unanswered.
+	if u := OutcomeUndeliverable; !u.Valid() || u.Unanswered() || u.Label() != "not delivered" || slices.Contains(Outcomes(), u) {
+		t.Errorf("undeliverable: valid %v unanswered %v label %q", u.Valid(), u.Unanswered(), u.Label())
 	}
 	if _, err := ParseChannel("fax"); err == nil {
 		t.Error("ParseChannel accepts fax")

@@ -28,6 +28,7 @@ const (
 	EditNote      Edit = "case.note"           // the working note changed
 	EditWithdrawn Edit = "case.withdrawn"      // closed because the participant withdrew
 	EditAdvance   Edit = "case.advance"        // moved on by a step recorded elsewhere
+	EditMessage   Edit = "case.message_result" // a message the desk sent did not reach the participant
 )
 
 var editLabels = map[Edit]string{
@@ -43,6 +44,7 @@ var editLabels = map[Edit]string{
 	EditNote:      "changed the working note",
 	EditWithdrawn: "closed the case after the participant withdrew",
 	EditAdvance:   "moved the case on after a step recorded elsewhere",
+	EditMessage:   "recorded that a message did not reach the participant",
 }
 
 // Label says in a few words what the edit did, for conflict messages and the

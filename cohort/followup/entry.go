@@ -1,6 +1,7 @@
 package followup
 
 import (
+	"slices"
 	"strings"
 	"time"
 
@@ -44,7 +45,7 @@ func (e AttemptEntry) Check(flagged, now time.Time, loc *time.Location) error {
 	if !e.Channel.Valid() {
 		ve.Add("channel", "choose how you tried to reach the participant")
 	}
-	if !e.Outcome.Valid() {
+	if !slices.Contains(Outcomes(), e.Outcome) {
 		ve.Add("outcome", "choose what came of the attempt")
 	}
 	if len(e.Note) > 2000 {

@@ -44,6 +44,7 @@ func TestAttemptEntryCheck(t *testing.T) {
 			"channel": "choose how you tried to reach the participant", "outcome": "choose what came of the attempt"}},
 		{"unknown values", func(e *AttemptEntry) { e.Channel, e.Outcome = "pigeon", "maybe" }, map[string]string{
 			"channel": "choose how you tried to reach the participant", "outcome": "choose what came of the attempt"}},
+		{"the desk's own outcome", func(e *AttemptEntry) { e.Outcome = OutcomeUndeliverable }, map[string]string{"outcome": "choose what came of the attempt"}},
 		{"long note", func(e *AttemptEntry) { e.Note = strings.Repeat("x", 2001) }, map[string]string{"note": "use at most 2000 characters"}},
 		{"future", func(e *AttemptEntry) { e.At = now.Add(AttemptSkew + time.Second) }, map[string]string{"at": "the attempt time is in the future"}},
 		{"before the flag", func(e *AttemptEntry) { e.At = flagged.Add(-time.Minute) }, map[string]string{

@@ -16,6 +16,7 @@ type Step string
 const (
 	StepAssign    Step = "assign"    // give the case to someone, or take it on
 	StepAttempt   Step = "attempt"   // log an attempt to reach the participant
+	StepMessage   Step = "message"   // send a message from the desk: e-mail, text message or printed letter
 	StepShipment  Step = "shipment"  // record the recorder's shipment (or correct it while it is out)
 	StepReturn    Step = "return"    // record the day the recording came back
 	StepRecording Step = "recording" // add an ECG recording to the case
@@ -127,6 +128,9 @@ func CheckHandMove(from, to State, reason string, closing bool) error {
 //     the triage row offers it where reaching the participant is what the
 //     case waits for: open, contacting, and a recorder out whose recording
 //     is chased like a contact.
+//   - A message from the desk is a contact attempt made by the desk, so it
+//     follows the attempt's rule: every working state, one click on the
+//     triage row where reaching the participant is what the case waits for.
 //   - The shipment is recorded once the participant is reached, may be
 //     corrected (date, tracking number) while the recorder is out, and is
 //     recorded again when a returned recording was unusable and a repeat is
@@ -143,6 +147,7 @@ func CheckHandMove(from, to State, reason string, closing bool) error {
 var stepTable = []stepRule{
 	{StepAssign, WorksCases, working, working},
 	{StepAttempt, ReachesParticipants, working, oneOf(Open, Contacting, RecorderSent)},
+	{StepMessage, ReachesParticipants, working, oneOf(Open, Contacting, RecorderSent)},
 	{StepShipment, ReachesParticipants, oneOf(Reached, RecorderSent, RecordingReceived), oneOf(Reached)},
 	{StepReturn, ReachesParticipants, oneOf(RecorderSent), never},
 	{StepRecording, ReachesParticipants, oneOf(RecorderSent, RecordingReceived, OverRead), never},

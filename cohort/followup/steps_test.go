@@ -12,12 +12,12 @@ import (
 // must match (ours: the steps the case page and the triage rows offered
 // before the rule had one home). A coordinator may take every step.
 var wantCoordinatorOffers = map[State][]Step{
-	Open:               {StepAssign, StepAttempt, StepMove, StepClose, StepNote},
-	Contacting:         {StepAssign, StepAttempt, StepMove, StepClose, StepNote},
-	Reached:            {StepAssign, StepAttempt, StepShipment, StepClose, StepNote},                            // "recorder sent" only by the shipment
-	RecorderSent:       {StepAssign, StepAttempt, StepShipment, StepReturn, StepRecording, StepClose, StepNote}, // "recording received" only by the return
-	RecordingReceived:  {StepAssign, StepAttempt, StepShipment, StepRecording, StepMove, StepClose, StepNote},   // a repeat shipment
-	OverRead:           {StepAssign, StepAttempt, StepRecording, StepClose, StepNote},                           // every way on from an over-read ends the case
+	Open:               {StepAssign, StepAttempt, StepMessage, StepMove, StepClose, StepNote},
+	Contacting:         {StepAssign, StepAttempt, StepMessage, StepMove, StepClose, StepNote},
+	Reached:            {StepAssign, StepAttempt, StepMessage, StepShipment, StepClose, StepNote},                            // "recorder sent" only by the shipment
+	RecorderSent:       {StepAssign, StepAttempt, StepMessage, StepShipment, StepReturn, StepRecording, StepClose, StepNote}, // "recording received" only by the return
+	RecordingReceived:  {StepAssign, StepAttempt, StepMessage, StepShipment, StepRecording, StepMove, StepClose, StepNote},   // a repeat shipment
+	OverRead:           {StepAssign, StepAttempt, StepMessage, StepRecording, StepClose, StepNote},                           // every way on from an over-read ends the case
 	Referred:           nil,
 	ClosedNotConfirmed: nil,
 	ClosedUnreachable:  nil,
@@ -37,16 +37,16 @@ var wantClinical = map[State][]Step{
 // wantQuick are the one-click steps of a coordinator's triage row: taking the
 // case on, and the step the case waits for.
 var wantQuick = map[State][]Step{
-	Open:              {StepAssign, StepAttempt},
-	Contacting:        {StepAssign, StepAttempt},
+	Open:              {StepAssign, StepAttempt, StepMessage},
+	Contacting:        {StepAssign, StepAttempt, StepMessage},
 	Reached:           {StepAssign, StepShipment},
-	RecorderSent:      {StepAssign, StepAttempt},
+	RecorderSent:      {StepAssign, StepAttempt, StepMessage},
 	RecordingReceived: {StepAssign},
 	OverRead:          {StepAssign},
 }
 
 // contactSteps are left to the roles that reach participants.
-var contactSteps = []Step{StepAttempt, StepShipment, StepReturn, StepRecording}
+var contactSteps = []Step{StepAttempt, StepMessage, StepShipment, StepReturn, StepRecording}
 
 func without(steps []Step, drop []Step) []Step {
 	var out []Step

@@ -1,6 +1,5 @@
 // Package overread holds the rules of clinicians' over-reads of ECG
-// recordings: the verdict categories, the recorder's own automatic
-// interpretation, the order in which readings may be entered (a first reading,
+// recordings: the verdict categories, the recorder's own reading, the order in which readings may be entered (a first reading,
 // an optional second reading by another investigator, and an adjudication when
 // the two disagree) and the conclusion those readings reach.
 //
@@ -14,9 +13,11 @@
 // # Why over-reads
 //
 // A flagged participant makes a short single-lead ECG with a handheld recorder
-// mailed to them. The recorder often prints its own automatic interpretation
-// (Auto: possible AF, sinus rhythm, unclassified, unreadable), but only a
-// clinician's reading of the tracing, the over-read, decides what the study
+// mailed to them. The recorder often gives its own reading (Auto; our words
+// say plainly that it is the device's call: "device suggests AF", "device
+// suggests a regular rhythm", "device made no rhythm call", "device could
+// not analyse the trace", or "no device reading"), but only a clinician's
+// reading of the tracing, the over-read, decides what the study
 // counts. The reader gives a rhythm (Rhythm) and how sure they are
 // (Confidence). AF is diagnosed on at least 30 seconds of ECG, so a shorter
 // recording never counts as diagnostic whatever its reading.

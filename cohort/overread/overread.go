@@ -2,6 +2,7 @@ package overread
 
 import (
 	"fmt"
+	"strings"
 
 	"cohortdesk/cohort"
 )
@@ -59,36 +60,43 @@ func (c Confidence) Valid() bool { return c == Certain || c == Probable || c == 
 // Label is the wording on pages.
 func (c Confidence) Label() string { return string(c) }
 
-// Auto is the recorder's own automatic interpretation, mapped to our
-// categories. The string value is stored.
+// Auto is the recorder's own reading of its recording: the device's call,
+// never a diagnosis. The string value is stored; the words are ours and say
+// plainly that the device made the call.
 type Auto string
 
-// The automatic interpretations. AutoNone: the recorder gave none (or the
-// study does not record it); AutoUnreadable: the recorder said the tracing was
+// The recorder's own readings. AutoNoReading: the recorder gave none (or the
+// study does not record it); AutoNotAnalysed: the recorder said the trace was
 // too short or too noisy to analyse.
 const (
-	AutoNone         Auto = "none"
-	AutoAF           Auto = "af"
-	AutoSinus        Auto = "sinus"
-	AutoUnclassified Auto = "unclassified"
-	AutoUnreadable   Auto = "unreadable"
+	AutoNoReading       Auto = "no_reading"
+	AutoSuggestsAF      Auto = "suggests_af"
+	AutoSuggestsRegular Auto = "suggests_regular"
+	AutoNoCall          Auto = "no_call"
+	AutoNotAnalysed     Auto = "not_analysed"
 )
 
 var autoLabels = cohort.Words[Auto]{
-	AutoNone:         "none given",
-	AutoAF:           "possible AF",
-	AutoSinus:        "sinus rhythm",
-	AutoUnclassified: "unclassified",
-	AutoUnreadable:   "unreadable",
+	AutoNoReading:       "no device reading",
+	AutoSuggestsAF:      "device suggests AF",
+	AutoSuggestsRegular: "device suggests a regular rhythm",
+	AutoNoCall:          "device made no rhythm call",
+	AutoNotAnalysed:     "device could not analyse the trace",
 }
 
-// Autos lists the automatic interpretations in the order the form offers them.
-func Autos() []Auto { return []Auto{AutoNone, AutoAF, AutoSinus, AutoUnclassified, AutoUnreadable} }
+// AutoHeading names the recorder's own reading wherever it is shown (form
+// fields, table columns, summaries).
+const AutoHeading = "Recorder's own reading"
 
-// Valid reports whether a is a defined automatic interpretation.
+// Autos lists the recorder's readings in the order the form offers them.
+func Autos() []Auto {
+	return []Auto{AutoNoReading, AutoSuggestsAF, AutoSuggestsRegular, AutoNoCall, AutoNotAnalysed}
+}
+
+// Valid reports whether a is a defined reading of the recorder.
 func (a Auto) Valid() bool { return autoLabels.Valid(a) }
 
-// Label is the wording on pages.
+// Label is the wording on pages, files and summaries.
 func (a Auto) Label() string { return autoLabels.Label(a) }
 
 // Role is the place of a reading in the double-reading scheme. The string
@@ -304,35 +312,35 @@ func Check(existing []Reading, next Reading) error {
 }
 
 // Category is one class of the common category set in which the recorder's
-// automatic interpretation and the over-read are compared (Cohen's kappa).
-// The recorder knows fewer rhythms than a clinician, so the over-read's atrial
-// flutter and other arrhythmia fall together with the recorder's
-// "unclassified". The mapping is ours.
+// own reading and the over-read are compared (Cohen's kappa). The recorder
+// knows fewer rhythms than a clinician, so the over-read's atrial flutter and
+// other arrhythmia fall together with the recorder's "no rhythm call". The
+// mapping is ours.
 type Category string
 
 // The common categories.
 const (
-	CatAF         Category = "AF"
-	CatSinus      Category = "sinus rhythm"
-	CatOther      Category = "other or unclassified"
-	CatUnreadable Category = "unreadable"
+	CatAF            Category = "AF"
+	CatRegular       Category = "sinus or regular rhythm"
+	CatOther         Category = "another rhythm or no call"
+	CatNotAnalysable Category = "not analysable"
 )
 
 // Categories lists the common categories in table order.
-func Categories() []Category { return []Category{CatAF, CatSinus, CatOther, CatUnreadable} }
+func Categories() []Category { return []Category{CatAF, CatRegular, CatOther, CatNotAnalysable} }
 
-// AutoCategory maps an automatic interpretation to the common categories;
-// ok is false for AutoNone (nothing to compare) and unknown values.
+// AutoCategory maps a recorder's reading to the common categories; ok is
+// false for AutoNoReading (nothing to compare) and unknown values.
 func AutoCategory(a Auto) (c Category, ok bool) {
 	switch a {
-	case AutoAF:
+	case AutoSuggestsAF:
 		return CatAF, true
-	case AutoSinus:
-		return CatSinus, true
-	case AutoUnclassified:
+	case AutoSuggestsRegular:
+		return CatRegular, true
+	case AutoNoCall:
 		return CatOther, true
-	case AutoUnreadable:
-		return CatUnreadable, true
+	case AutoNotAnalysed:
+		return CatNotAnalysable, true
 	}
 	return "", false
 }
@@ -344,19 +352,42 @@ func RhythmCategory(r Rhythm) (c Category, ok bool) {
 	case AF:
 		return CatAF, true
 	case Sinus:
-		return CatSinus, true
+		return CatRegular, true
 	case Flutter, Other:
 		return CatOther, true
 	case Uninterpretable:
-		return CatUnreadable, true
+		return CatNotAnalysable, true
 	}
 	return "", false
 }
 
-// CategoryMapping describes the mapping in words, for the statistics page.
-const CategoryMapping = "Categories compared: AF (recorder: possible AF; reader: atrial fibrillation), " +
-	"sinus rhythm (both), other or unclassified (recorder: unclassified; reader: atrial flutter or other arrhythmia), " +
-	"unreadable (recorder: unreadable; reader: uninterpretable). Recordings without an automatic interpretation are left out."
+// CategoryMapping describes the mapping in words, for the statistics page and
+// the weekly report, from the labels of both sides.
+var CategoryMapping = categoryMapping()
+
+func categoryMapping() string {
+	var b strings.Builder
+	b.WriteString("Categories compared: ")
+	for i, c := range Categories() {
+		var autos, rhythms []string
+		for _, a := range Autos() {
+			if ac, ok := AutoCategory(a); ok && ac == c {
+				autos = append(autos, a.Label())
+			}
+		}
+		for _, r := range Rhythms() {
+			if rc, ok := RhythmCategory(r); ok && rc == c {
+				rhythms = append(rhythms, r.Label())
+			}
+		}
+		if i > 0 {
+			b.WriteString("; ")
+		}
+		fmt.Fprintf(&b, "%s (recorder: %s; reader: %s)", c, strings.Join(autos, " or "), strings.Join(rhythms, " or "))
+	}
+	fmt.Fprintf(&b, ". Recordings with %s are left out.", AutoNoReading.Label())
+	return b.String()
+}
 
 // Awaits is the one rule for a recording waiting for an over-read: it has
 // no current reading, its case is still being worked (a case that ended

@@ -2,6 +2,7 @@ package overread
 
 import (
 	"errors"
+	"strings"
 	"testing"
 
 	"cohortdesk/cohort"
@@ -115,7 +116,8 @@ func TestNext(t *testing.T) {
 }
 
 // TestCategoriesCoverEveryValue checks that every verdict maps to a common
-// category and every automatic interpretation except "none" does.
+// category and every reading of the recorder except "no device reading"
+// does.
 func TestCategoriesCoverEveryValue(t *testing.T) {
 	in := map[Category]bool{}
 	for _, c := range Categories() {
@@ -129,13 +131,13 @@ func TestCategoriesCoverEveryValue(t *testing.T) {
 	}
 	for _, a := range Autos() {
 		c, ok := AutoCategory(a)
-		if ok != (a != AutoNone) || (ok && !in[c]) {
+		if ok != (a != AutoNoReading) || (ok && !in[c]) {
 			t.Errorf("auto %s maps to %q, %v", a, c, ok)
 		}
 	}
 	// An empty automatic interpretation is taken as none by recording
 	// intake (ecg.Intake, tested there); here the defined values only.
-	if !AutoNone.Valid() || Auto("maybe").Valid() || !Probable.Valid() || Confidence("sure").Valid() {
+	if !AutoNoReading.Valid() || Auto("maybe").Valid() || !Probable.Valid() || Confidence("sure").Valid() {
 		t.Error("automatic interpretation or confidence validity")
 	}
 	if Rhythm("sinus_rhythm").Valid() {
@@ -198,6 +200,33 @@ func TestConfirmsAF(t *testing.T) {
 		}
 		if got := v.ConfirmsAF(tc.tooShort); got != tc.want {
 			t.Errorf("%s: ConfirmsAF = %v, want %v", tc.name, got, tc.want)
+		}
+	}
+}
+
+// TestRecorderReadingWords: the recorder's readings are worded as the
+// device's call, each distinctly, and the comparison text names every one of
+// them beside the readers' rhythms it is compared with.
+func TestRecorderReadingWords(t *testing.T) {
+	seen := map[string]bool{}
+	for _, a := range Autos() {
+		l := a.Label()
+		if !strings.Contains(l, "device") || seen[l] || !a.Valid() {
+			t.Errorf("recorder reading %s worded %q: want a distinct wording that says it is the device's", a, l)
+		}
+		seen[l] = true
+		if !strings.Contains(CategoryMapping, l) {
+			t.Errorf("the category mapping does not name %q: %s", l, CategoryMapping)
+		}
+	}
+	for _, r := range Rhythms() {
+		if !strings.Contains(CategoryMapping, r.Label()) {
+			t.Errorf("the category mapping does not name the rhythm %q", r.Label())
+		}
+	}
+	for _, c := range Categories() {
+		if !strings.Contains(CategoryMapping, string(c)+" (recorder: ") {
+			t.Errorf("the category mapping does not explain %q", c)
 		}
 	}
 }

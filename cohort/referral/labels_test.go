@@ -25,9 +25,9 @@ func TestSummaryWordsAreOverreads(t *testing.T) {
 		}
 	}
 	src := source(t)
-	src.Recording.Auto = overread.AutoSinus
-	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "sinus rhythm" {
-		t.Errorf("recorder's sinus reading worded %q, want \"sinus rhythm\" as on the recording page", got)
+	src.Recording.Auto = overread.AutoSuggestsRegular
+	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "device suggests a regular rhythm" {
+		t.Errorf("recorder's regular reading worded %q, want \"device suggests a regular rhythm\" as on the recording page", got)
 	}
 	for _, r := range overread.Rhythms() {
 		src := source(t)
@@ -53,8 +53,38 @@ func TestSummaryWordsAreOverreads(t *testing.T) {
 // the digest it recorded, both printed by that version of Build, Content and
 // Digest.
 func TestIssuedBeforeTheLabelFix(t *testing.T) {
-	const recorded = "bf278978be710b25721efcb68dff2c6cf0c3ea0b3369e96414a3b03c2302913f"
-	b, err := os.ReadFile("testdata/issued-before-label-fix.json")
+	s := verifyRecorded(t, "testdata/issued-before-label-fix.json", "bf278978be710b25721efcb68dff2c6cf0c3ea0b3369e96414a3b03c2302913f")
+	if s.Recording == nil || s.Recording.AutoInterpretation != "sinus" || s.OverRead.Rhythm != overread.AF {
+		t.Errorf("recorded words changed: %+v %+v", s.Recording, s.OverRead)
+	}
+}
+
+// TestIssuedBeforeTheRecorderWordsChanged: the recorder's readings got words
+// of our own ("possible AF" became "device suggests AF", with new stored
+// values, migration 0070). A summary issued before keeps its recorded words
+// and still matches its recorded digest. The fixture is the content the
+// program wrote then for a recorder reading of AF, and the digest it
+// recorded, both printed by that version of Build, Content and Digest.
+func TestIssuedBeforeTheRecorderWordsChanged(t *testing.T) {
+	s := verifyRecorded(t, "testdata/issued-with-earlier-recorder-words.json", "3ee58ac22454e6226836c9189c9a7e2da990fec1745e0111c22d7ddc40e80709")
+	if s.Recording == nil || s.Recording.AutoInterpretation != "possible AF" {
+		t.Errorf("recorded words changed: %+v", s.Recording)
+	}
+	// A summary issued now for the same reading uses today's words.
+	src := source(t)
+	src.Recording.Auto = overread.AutoSuggestsAF
+	if got := mustBuild(t, src).Recording.AutoInterpretation; got != "device suggests AF" {
+		t.Errorf("a new summary words the recorder's AF reading %q", got)
+	}
+}
+
+// verifyRecorded reads a recorded summary's content from a fixture, checks
+// that it is the content that was digested, decodes it as the database gives
+// it back (its own key order and spacing) and checks that its digest is still
+// the recorded one.
+func verifyRecorded(t *testing.T, file, recorded string) Summary {
+	t.Helper()
+	b, err := os.ReadFile(file)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -62,7 +92,6 @@ func TestIssuedBeforeTheLabelFix(t *testing.T) {
 	if sum := sha256.Sum256(b); hex.EncodeToString(sum[:]) != recorded {
 		t.Fatal("the fixture is not the content that was digested")
 	}
-	// As the database gives it back: its own key order and spacing.
 	var generic map[string]any
 	if err := json.Unmarshal(b, &generic); err != nil {
 		t.Fatal(err)
@@ -75,7 +104,5 @@ func TestIssuedBeforeTheLabelFix(t *testing.T) {
 	if got, _ := Digest(s); got != recorded {
 		t.Errorf("digest %s, want the recorded %s", got, recorded)
 	}
-	if s.Recording == nil || s.Recording.AutoInterpretation != "sinus" || s.OverRead.Rhythm != overread.AF {
-		t.Errorf("recorded words changed: %+v %+v", s.Recording, s.OverRead)
-	}
+	return s
 }

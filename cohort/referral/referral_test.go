@@ -12,6 +12,7 @@ import (
 	"cohortdesk/cohort/deid/deidtest"
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/ecg/ecgtest"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
 )
@@ -53,7 +54,7 @@ func source(tb testing.TB) Source {
 			{Week: 5, Verdict: "positive", Reason: "positive by run", WearHours: 101.24, Result: screen.Result{Windows: []screen.WindowResult{{Minutes: 30, Usable: 200, Irregular: 20, Share: 0.1}}}},
 			{Week: 3, Verdict: "positive", Reason: "positive by share", WearHours: 90, Result: screen.Result{Windows: []screen.WindowResult{{Minutes: 30, Usable: 200, Irregular: 50, Share: 0.25}}}},
 		},
-		Recording:    &Recording{TakenAt: time.Date(2025, 2, 20, 9, 30, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, Auto: "af"},
+		Recording:    &Recording{TakenAt: time.Date(2025, 2, 20, 9, 30, 0, 0, loc), DurationS: syn.Waveform.Seconds(), RateHz: 250, Samples: syn.Waveform.Samples, Beats: beats, Auto: overread.AutoSuggestsAF},
 		OverRead:     &OverRead{Role: "first", Rhythm: "af", Confidence: "certain", ReadOn: date(tb, "2025-02-24")},
 		ContactRoute: "Study office: reply through the secure message line quoting the referral code.",
 		Cautions:     []string{"Screening is not diagnosis."},

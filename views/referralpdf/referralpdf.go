@@ -11,6 +11,7 @@ import (
 
 	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/ecg"
+	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/referral"
 
 	"github.com/go-pdf/fpdf"
@@ -109,7 +110,7 @@ func Render(sum referral.Summary, paper string) ([]byte, error) {
 	}
 	if r := sum.Recording; r != nil {
 		d.pair("Recording", fmt.Sprintf("study day %d, %.0f s, single lead", r.StudyDay, r.DurationS), false)
-		d.pair("Recorder's own reading", r.AutoInterpretation, false)
+		d.pair(overread.AutoHeading, r.AutoInterpretation, false)
 	}
 
 	d.heading("Flagged study weeks")
@@ -122,7 +123,14 @@ func Render(sum referral.Summary, paper string) ([]byte, error) {
 		d.small(ChartCaption(*hr))
 	}
 
-	d.need(40)
+	// The cautions stay together on one page: their height, heading and
+	// all, is measured before they are drawn.
+	f.SetFont("Helvetica", "", 9)
+	lines := 0
+	for _, c := range sum.Cautions {
+		lines += len(f.SplitText(d.tr(c), d.width-4))
+	}
+	d.need(18 + float64(lines)*pdfLine)
 	d.heading("Cautions")
 	f.SetFont("Helvetica", "", 9)
 	for _, c := range sum.Cautions {

@@ -103,10 +103,25 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 			if err := common(ctx); err != nil {
 				return err
 			}
-			if _, err := store.Triage(ctx, 25, u.ID); err != nil {
+			t, err := store.Triage(ctx, 25, u.ID)
+			if err != nil {
 				return err
 			}
-			_, err := store.CaseWorkers(ctx)
+			if _, err := store.CaseWorkers(ctx); err != nil {
+				return err
+			}
+			// The rows' one-step messages and the morning-summary choice.
+			ids := make([]int64, len(t.Rows))
+			for i, r := range t.Rows {
+				ids[i] = r.ID
+			}
+			if _, err := store.Reaches(ctx, ids); err != nil {
+				return err
+			}
+			if _, err := store.StudySettings(ctx); err != nil {
+				return err
+			}
+			_, err = store.MorningSummaryWanted(ctx, actor.UserID)
 			return err
 		}},
 		{name: "participants", path: "/participants", sql: func(ctx context.Context, _ int64) error {
@@ -219,6 +234,9 @@ func mainPages(store *db.Store, c synthCohort, u db.User) []page {
 				return err
 			}
 			if _, err := store.FlaggedWeeks(ctx, cs.ParticipantID); err != nil {
+				return err
+			}
+			if _, err := store.Reaches(ctx, []int64{cs.ID}); err != nil { // the messages panel
 				return err
 			}
 			_, err = store.CaseTimeline(ctx, cs, st.Location())

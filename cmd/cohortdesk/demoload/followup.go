@@ -240,7 +240,7 @@ func playMove(ctx context.Context, cs *db.Store, a cohort.Actor, c db.Case, to f
 	var err error
 	switch to {
 	case followup.RecorderSent:
-		_, err = cs.RecordShipment(ctx, a, c.ID, c.Version, day, fmt.Sprintf("DM%09d", c.ID*7919%1000000000))
+		_, err = cs.RecordShipment(ctx, a, c.ID, c.Version, day, demo.TrackingNumber(c.ID))
 	case followup.RecordingReceived, followup.OverRead:
 		// The recording's arrival and its over-read move the case themselves.
 		return nil
