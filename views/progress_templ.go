@@ -29,7 +29,7 @@ type EnrolmentRow struct {
 
 // SufficiencyRow is one calendar week of data sufficiency.
 type SufficiencyRow struct {
-	Key        string // the week's Monday as YYYY-MM-DD, for test ids
+	Key        string // the week for test ids: its Monday as YYYY-MM-DD, or its recruitment week for roles that see no dates
 	Week       string
 	Due        int
 	Sufficient int

@@ -63,6 +63,15 @@ func (d disclosure) calendarWeek(first, monday cohort.Date) string {
 	return "recruitment week " + strconv.Itoa(deid.RecruitmentWeek(first, monday))
 }
 
+// weekKey names a calendar week in page ids (test ids, anchors): its Monday
+// as YYYY-MM-DD, or, for roles that see no dates, its recruitment week.
+func (d disclosure) weekKey(first, monday cohort.Date) string {
+	if d.dates {
+		return monday.String()
+	}
+	return d.calendarWeek(first, monday)
+}
+
 // weekSpan words the days of study week n in the participant's zone loc:
 // "4 Mar – 10 Mar 2026" (cohort.DateRangeLabel), or "days 28–34".
 func (d disclosure) weekSpan(enrolled cohort.Date, loc *time.Location, n int) string {

@@ -201,7 +201,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		label := d.calendarWeek(first, w.Week)
 		sx = append(sx, label)
 		sy = append(sy, opts.LineData{Value: fmt.Sprintf("%.1f", share)})
-		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Key: w.Week.String(), Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
+		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Key: d.weekKey(first, w.Week), Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
 	}
 	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy, paint(chartMeasure)...)
 	sch, _, err := chartView("sufficiency", "Share of participant-weeks with enough usable wear, by calendar week", sl, false)

@@ -57,7 +57,13 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	q.oneOf("paper", paperA4, paperLetter)
 	loc := s.studyZone(ctx)
 	rf.today = cohort.DateOf(rf.generated.In(loc))
-	rf.week = readReportWeek(q, rf.today)
+	// A role that sees no dates chooses the week in recruitment weeks,
+	// counted from the first enrolment: read first.
+	rf.disclose = disclosureOf(r)
+	if rf.first, err = s.firstEnrolment(ctx, rf.disclose); err != nil {
+		return rf, nil, err
+	}
+	rf.week = readReportWeek(q, rf.today, rf.disclose, rf.first)
 	if err := q.err(); err != nil {
 		return rf, nil, err
 	}
@@ -68,8 +74,6 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	g.Go(func() (err error) { rf.hist, err = s.store.Enrolment(gctx, rf.cq.to); return err })
 	g.Go(func() (err error) { weeks, err = s.store.DataSufficiency(gctx); return err })
 	g.Go(func() (err error) { rf.cascade, rf.agree, err = s.store.Figures(gctx, rf.cq.filter); return err })
-	rf.disclose = disclosureOf(r)
-	g.Go(func() (err error) { rf.first, err = s.firstEnrolment(gctx, rf.disclose); return err })
 	g.Go(func() (err error) {
 		rf.week.week, rf.week.sofar, err = s.store.Activity(gctx, rf.cq.filter.SiteID, rf.week.from, rf.week.to, loc)
 		return err
@@ -154,7 +158,7 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 		ProtoID: strconv.Itoa(rf.cascade.Protocol.ID), SiteID: rf.cq.site, From: dateText(rf.cq.from), To: dateText(rf.cq.to), Window: rf.window,
 		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.Label(),
 		Generated: when(rf.generated, s.studyZone(r.Context())), CSVHref: rf.cq.href("/progress/report.zip", append([]string{"window", strconv.Itoa(rf.window)}, rf.week.values()...)...),
-		Week: rf.week.label(rf.disclose, rf.first), Activity: rf.week.activityFigures(), Since: rf.week.from.String(), Until: rf.week.to.String(),
+		Week: rf.week.label(rf.disclose, rf.first), Activity: rf.week.activityFigures(),
 		WeekSpan: rf.weekSpan, Flow: flowView(rf.cascade, rf.cq), StatsAsOf: rf.agree.AsOf.Label()}
 	m.Flow.Compact = true
 	for _, st := range sites {
@@ -164,7 +168,13 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 		m.PaperLinks = append(m.PaperLinks, views.PaperLink{Href: rf.reportHref("/progress/report", p), Label: paperLabel(p), Current: p == paper})
 	}
 	// Ready-made weeks keep the other choices; the cascade stays cumulative.
-	m.Quick = weekLinks(rf.today, func(week []string) string {
+	if rf.disclose.dates {
+		m.Since, m.Until = rf.week.from.String(), rf.week.to.String()
+	} else {
+		a, b := rf.week.recruitmentWeeks()
+		m.RecruitmentWeeks, m.WeekFrom, m.WeekTo = true, strconv.Itoa(a), strconv.Itoa(b)
+	}
+	m.Quick = weekLinks(rf.week, rf.today, func(week []string) string {
 		return rf.cq.href("/progress/report", append([]string{"window", strconv.Itoa(rf.window), "paper", paper}, week...)...)
 	})
 	for _, f := range rf.sites {
@@ -173,7 +183,7 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	m.Total = rf.total.row()
 	for _, wk := range rf.weeks {
 		row := sufficiencyRow(rf.disclose.calendarWeek(rf.first, wk.Week), wk.Active, wk.Sufficient)
-		row.Key = wk.Week.String()
+		row.Key = rf.disclose.weekKey(rf.first, wk.Week)
 		m.Weeks = append(m.Weeks, row)
 	}
 	due, enough := rf.weeksTotal()

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/web/browsertest"
 
 	"github.com/chromedp/cdproto/cdp"
@@ -101,6 +102,26 @@ func TestWeeklyReportShowsTheWeek(t *testing.T) {
 	}
 	if got := byTestID(body, "cascade-count-enrolled"); got != everyone {
 		t.Errorf("with a week chosen, the cascade's first box holds %q participants, want every one (%s)", got, everyone)
+	}
+	// A monitor, who sees no dates, chooses the same week as a recruitment
+	// week and reads the same figures, with no day of it on the page.
+	first, err := a.store.FirstEnrolment(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rw := strconv.Itoa(deid.RecruitmentWeek(first, from))
+	_, mbody := a.get(a.signIn(cohort.Monitor), "/progress/report?week_from="+rw+"&week_to="+rw)
+	for key, w := range want {
+		row := section(mbody, "activity-"+key)
+		if got := [2]string{byTestID(row, "week"), byTestID(row, "sofar")}; got != w {
+			t.Errorf("monitor, recruitment week %s: %s reads %v, the tables %v", rw, key, got, w)
+		}
+	}
+	if got := byTestID(mbody, "report-week"); !strings.HasPrefix(got, "recruitment week "+rw) {
+		t.Errorf("the monitor's report week reads %q, want recruitment week %s", got, rw)
+	}
+	if strings.Contains(mbody, from.String()) || strings.Contains(mbody, from.Label()) {
+		t.Errorf("the monitor's report shows the week's first day %s", from)
 	}
 	for _, m := range regexp.MustCompile(`data-testid="report-quick" href="([^"]+)"`).FindAllStringSubmatch(body, -1) {
 		_, page := a.get(c, strings.ReplaceAll(m[1], "&amp;", "&"))
