@@ -138,7 +138,7 @@ func (s *Store) MessageNotDelivered(ctx context.Context, id int64, st outreach.S
 			action: followup.EditMessage,
 			intent: func(b followup.CaseFields) followup.CaseFields { return b },
 			apply: func(ctx context.Context, tx pgx.Tx, cur Case, next *Case, rec *caseSnapshot) error {
-				rec.Reason = "message " + strconv.FormatInt(id, 10) + " " + st.Label() + ": " + detail
+				rec.reason = "message " + strconv.FormatInt(id, 10) + " " + st.Label() + ": " + detail
 				_, err := tx.Exec(ctx, `UPDATE contact_attempts SET outcome = $2,
 					note = left(note || '; not delivered (' || $3 || ')', 2000) WHERE id = $1`,
 					attemptID, string(followup.OutcomeUndeliverable), st.Label())

@@ -204,7 +204,8 @@ func TestMessageNotDeliveredRecordsItOnTheCase(t *testing.T) {
 	if c.Version != 3 {
 		t.Fatalf("case version %d, want 3 (the system's edit recorded)", c.Version)
 	}
-	if n := f.count(`SELECT count(*) FROM audit_events WHERE action = 'case.message_result' AND new_value->>'reason' LIKE '%550 5.1.1%'`); n != 1 {
+	if n := f.count(`SELECT count(*) FROM audit_events e JOIN audit_texts t ON e.new_value->'reason_ref'->>'in' = 'audit_texts/' || t.id || '/body'
+		WHERE e.action = 'case.message_result' AND t.body LIKE '%550 5.1.1%'`); n != 1 {
 		t.Fatalf("%d case audit events of the failure", n)
 	}
 	// Sent again after an undeliverable message: the old status stays.

@@ -63,24 +63,22 @@ func TestBrowserFirstContactFromTriage(t *testing.T) {
 	}
 
 	// Both press the button at the same moment.
+	// The answer is the whole board: the row shows what happened if the case
+	// stays in its group, else a notice above the groups says it (a refusal
+	// as an alert).
 	answer := func(ctx context.Context) (string, error) {
-		either := `document.querySelector('` + row + ` [data-testid="row-done"], ` + row + ` [data-testid="row-error"]') !== null`
-		if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(send)),
+		either := `document.querySelector('` + row + ` [data-testid="row-done"], ` + row + ` [data-testid="row-error"], [data-testid="board-notice"], [data-testid="board-refusal"]') !== null`
+		if err := chromedp.Do(ctx, browsertest.HTMXSettled(), chromedp.Click(chromedp.CSS(send)),
 			chromedp.Poll[chromedp.Void](either, chromedp.WithPollingTimeout(30*time.Second))); err != nil {
 			return "", err
 		}
-		done, err := chromedp.Run(ctx, chromedp.Evaluate[bool](`document.querySelector('`+row+` [data-testid="row-done"]') !== null`))
-		if err != nil {
-			return "", err
-		}
-		text, err := chromedp.Run(ctx, chromedp.Text(chromedp.CSS(row+` .quick-actions`)))
-		if err != nil {
-			return "", err
-		}
-		if done {
-			return "done: " + text, nil
-		}
-		return "refused: " + text, nil
+		return chromedp.Run(ctx, chromedp.Evaluate[string](`(() => {
+			const q = s => document.querySelector(s);
+			if (q('[data-testid="board-notice"]')) return "done: " + q('[data-testid="board-notice"]').textContent;
+			if (q('[data-testid="board-refusal"]')) return "refused: " + q('[data-testid="board-refusal"]').textContent;
+			const cell = q('`+row+` .quick-actions').textContent;
+			return (q('`+row+` [data-testid="row-done"]') ? "done: " : "refused: ") + cell;
+		})()`))
 	}
 	var wg sync.WaitGroup
 	var got [2]string

@@ -125,7 +125,7 @@ func (s *Server) triageBoard(r *http.Request, acted int64, done, refusal string)
 		}
 		m.Notice = fmt.Sprintf("%s: %s", row.StudyID, done)
 		if refusal != "" {
-			m.Notice = fmt.Sprintf("%s: %s", row.StudyID, refusal)
+			m.Notice, m.NoticeRefused = fmt.Sprintf("%s: %s", row.StudyID, refusal), true
 		}
 		m.Notice += " Now " + where + "."
 		m.NoticeHref = fmt.Sprintf("/cases/%d", row.ID)

@@ -11,6 +11,7 @@ import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
+	"cohortdesk/web/browsertest"
 
 	"github.com/chromedp/chromedp"
 )
@@ -68,7 +69,7 @@ func TestBrowserTriageRowsToActFrom(t *testing.T) {
 
 	// Log an attempt from the row, the phone number at hand.
 	clicks = 0
-	b.Do("show the contact details", chromedp.Click(chromedp.CSS(row+` [data-testid="show-contact"]`)),
+	b.Do("show the contact details", browsertest.HTMXSettled(), chromedp.Click(chromedp.CSS(row+` [data-testid="show-contact"]`)),
 		chromedp.WaitVisible(chromedp.CSS(row+` [data-testid="contact-phone"]`)))
 	clicks++
 	if got := b.Text("phone", row+` [data-testid="contact-phone"]`); got != "555-0100" {
@@ -80,7 +81,7 @@ func TestBrowserTriageRowsToActFrom(t *testing.T) {
 		t.Errorf("%d audited views of the contact details, want 1", viewed)
 	}
 	b.Do("log the call that reached the participant",
-		chromedp.SetValue(chromedp.ID(fmt.Sprintf("outcome-%d", ids[0])), "reached"),
+		browsertest.HTMXSettled(), chromedp.SetValue(chromedp.ID(fmt.Sprintf("outcome-%d", ids[0])), "reached"),
 		chromedp.Click(chromedp.CSS(row+` [data-testid="attempt"] button`)),
 		chromedp.WaitVisible(chromedp.CSS(`[data-testid="group-mine"] `+row+` [data-testid="ship"]`)))
 	clicks += 2
@@ -94,7 +95,7 @@ func TestBrowserTriageRowsToActFrom(t *testing.T) {
 	if !tb.has(other + ` [data-testid="take"] button[data-confirm]`) {
 		t.Fatal("taking a colleague's case does not ask first")
 	}
-	b.Do("take the colleague's case", chromedp.Click(chromedp.CSS(other+` [data-testid="take"] button`)),
+	b.Do("take the colleague's case", browsertest.HTMXSettled(), chromedp.Click(chromedp.CSS(other+` [data-testid="take"] button`)),
 		chromedp.WaitVisible(chromedp.CSS(other+` [data-testid="row-done"]`)))
 	if got := tb.confirmed(); len(got) != 1 || !strings.Contains(got[0], "Test Investigator has taken this case on") {
 		t.Errorf("questions asked %q", got)

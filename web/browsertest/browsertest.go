@@ -183,3 +183,13 @@ func (b *Browser) Screenshot(name string) string {
 	b.tb.Logf("browser screenshot: %s", file)
 	return file
 }
+
+// HTMXSettled waits until htmx has finished every request, swap and settle
+// and has taken over every element it drives. A click between a swap and
+// htmx's processing of the new content submits the form the plain way,
+// which a slow machine makes likely.
+func HTMXSettled() chromedp.Action[chromedp.Void] {
+	return chromedp.Poll[chromedp.Void](`document.querySelector('.htmx-request, .htmx-swapping, .htmx-settling, .htmx-added') === null &&
+		[...document.querySelectorAll('[hx-get], [hx-post]')].every(e => e['htmx-internal-data'] !== undefined)`,
+		chromedp.WithPollingTimeout(30*time.Second))
+}
