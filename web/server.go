@@ -40,6 +40,8 @@ type Store interface {
 	recordingStore
 	referralStore
 	exportStore
+	auditFilterStore
+	activityStore
 	outreachStore
 }
 

@@ -4,6 +4,7 @@ import (
 	"slices"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/stats"
 )
@@ -78,10 +79,6 @@ func (rs Rows) Agreement() (Agreement, error) {
 	for _, p := range rs.People {
 		people[p.ID] = p
 	}
-	bands, err := stats.NewAgeBands(stats.DefaultAgeCuts()...)
-	if err != nil {
-		return out, err
-	}
 	for _, v := range rs.Versions {
 		g, _, err := rs.group("protocol", v.Label(), func(e Episode) bool { return e.ProtocolID == v.ID })
 		if err != nil {
@@ -117,7 +114,7 @@ func (rs Rows) Agreement() (Agreement, error) {
 	for _, s := range []cohort.Sex{cohort.Female, cohort.Male, cohort.Unknown} {
 		add(sub{"sex", s.Label()})
 	}
-	for _, l := range bands.Labels() {
+	for _, l := range deid.AgeBandLabels() {
 		add(sub{"age band", l})
 	}
 	add(sub{"age band", ageNotRecorded})
@@ -131,7 +128,7 @@ func (rs Rows) Agreement() (Agreement, error) {
 		if p.Age == nil {
 			return ageNotRecorded
 		}
-		return bands.Label(*p.Age)
+		return deid.AgeBand(*p.Age)
 	}
 	for _, sg := range subs {
 		g, _, err := rs.group(sg.dim, sg.label, func(e Episode) bool { return of(e) && key(people[e.ParticipantID], sg.dim) == sg.label })
