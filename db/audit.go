@@ -22,6 +22,9 @@ type AuditEvent struct {
 	Action     string
 	ObjectType string
 	ObjectID   string
+	// StudyID is the study ID of the participant the object belongs to (a
+	// participant, or their case, recording, referral), "" for other objects.
+	StudyID    string
 	Old        json.RawMessage
 	New        json.RawMessage
 	ClientAddr string
@@ -106,13 +109,19 @@ func (s *Store) Audit(ctx context.Context, a cohort.Actor, action, objType, objI
 
 // AuditFilter narrows the audit list.
 type AuditFilter struct {
-	Action     string // prefix, e.g. "case." or "signin"
-	ActorID    int64
+	Action  string // prefix, e.g. "case." or "signin"
+	ActorID int64
+	// Who finds events by the person who caused them: a part of their name
+	// or e-mail address (any letter case), or their account number.
+	Who        string
 	ObjectType string
 	ObjectID   string
-	From, To   time.Time // zero means open
-	BeforeID   int64     // keyset: events with a smaller id
-	Limit      int
+	// StudyID finds the events about one participant and everything of
+	// theirs (cases, recordings, referral summaries), any letter case.
+	StudyID  string
+	From, To time.Time // zero means open
+	BeforeID int64     // keyset: events with a smaller id
+	Limit    int
 }
 
 func (f AuditFilter) where() (string, []any) {
@@ -127,6 +136,12 @@ func (f AuditFilter) where() (string, []any) {
 	}
 	if f.ActorID != 0 {
 		add("actor_id = $%d", f.ActorID)
+	}
+	if w := strings.TrimSpace(f.Who); w != "" {
+		add(whoCondition, escapeLike(w))
+	}
+	if sid := strings.TrimSpace(f.StudyID); sid != "" {
+		add(studyIDCondition, sid)
 	}
 	if f.ObjectType != "" {
 		add("object_type = $%d", f.ObjectType)
@@ -157,9 +172,9 @@ func (s *Store) AuditEvents(ctx context.Context, f AuditFilter) ([]AuditEvent, e
 	where, args := f.where()
 	args = append(args, f.Limit)
 	rows, err := s.reader(ctx).Query(ctx, `
-		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id,
+		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id, `+auditStudyID+`,
 		       old_value, new_value, client_addr, request_id
-		FROM audit_events `+where+fmt.Sprintf(` ORDER BY id DESC LIMIT $%d`, len(args)), args...)
+		FROM audit_events e `+where+fmt.Sprintf(` ORDER BY id DESC LIMIT $%d`, len(args)), args...)
 	if err != nil {
 		return nil, mapErr("audit list", err)
 	}
@@ -171,9 +186,9 @@ func (s *Store) AuditEvents(ctx context.Context, f AuditFilter) ([]AuditEvent, e
 func (s *Store) EachAuditEvent(ctx context.Context, f AuditFilter, fn func(AuditEvent) error) error {
 	where, args := f.where()
 	rows, err := s.reader(ctx).Query(ctx, `
-		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id,
+		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id, `+auditStudyID+`,
 		       old_value, new_value, client_addr, request_id
-		FROM audit_events `+where+` ORDER BY id`, args...)
+		FROM audit_events e `+where+` ORDER BY id`, args...)
 	if err != nil {
 		return mapErr("audit export", err)
 	}
@@ -192,7 +207,7 @@ func (s *Store) EachAuditEvent(ctx context.Context, f AuditFilter, fn func(Audit
 
 func scanAudit(row pgx.CollectableRow) (AuditEvent, error) {
 	var e AuditEvent
-	err := row.Scan(&e.ID, &e.At, &e.ActorID, &e.Actor, &e.Action, &e.ObjectType, &e.ObjectID,
+	err := row.Scan(&e.ID, &e.At, &e.ActorID, &e.Actor, &e.Action, &e.ObjectType, &e.ObjectID, &e.StudyID,
 		&e.Old, &e.New, &e.ClientAddr, &e.RequestID)
 	return e, err
 }

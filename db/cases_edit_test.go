@@ -209,10 +209,11 @@ func TestCaseLifecycleIsAuditedAndScheduled(t *testing.T) {
 	c = step("shipped", func(v int) (db.Case, error) {
 		return f.s.RecordShipment(ctx, f.coord, id, v, day(2026, 6, 1), "TRK-0042")
 	})
-	// Sent Monday 1 June; the recording is due back 14 calendar days later,
-	// Monday 15 June, by its end (computed by hand; the 14 days are our
+	// Sent Monday 1 June; the recording is due back 14 working days later,
+	// Friday 19 June, by its end (computed by hand: two weeks of five working
+	// days from Tuesday 2 June, then four more; the 14 days are our
 	// illustrative default).
-	if c.State != followup.RecorderSent || c.TrackingNumber != "TRK-0042" || !c.DueAt.Equal(time.Date(2026, 6, 16, 0, 0, 0, 0, time.UTC)) {
+	if c.State != followup.RecorderSent || c.TrackingNumber != "TRK-0042" || !c.DueAt.Equal(time.Date(2026, 6, 20, 0, 0, 0, 0, time.UTC)) {
 		t.Fatalf("after shipping: %s %q due %v", c.State, c.TrackingNumber, c.DueAt)
 	}
 	f.clock.set(fixedNow.Add(72 * time.Hour))

@@ -151,7 +151,7 @@ func saveSettings(t *testing.T, s *db.Store, edit func(*db.StudySettings)) db.St
 	if edit != nil {
 		edit(&in)
 	}
-	st, err := s.SaveStudySettings(context.Background(), cohort.Actor{UserID: 0, Name: "admin test"}, in)
+	st, _, err := s.SaveStudySettings(context.Background(), cohort.Actor{UserID: 0, Name: "admin test"}, in)
 	if err != nil {
 		t.Fatalf("save settings: %v", err)
 	}

@@ -32,12 +32,15 @@ type CaseFilter struct {
 	Unowned bool           // cases nobody has taken on
 	Overdue bool           // deadline passed
 	SiteID  int
+	Search  string // any part of the participant's study ID (studyIDSearch)
+	Sort    string // "due" (the default), "flagged" or "study_id"
+	Desc    bool   // the order reversed
 	After   string // opaque keyset cursor from the previous page
 	Limit   int
 }
 
-// CasePage is one page of the case list, ordered by deadline (cases with
-// nothing due last), then id.
+// CasePage is one page of the case list, in the filter's order (by default
+// by deadline, cases with nothing due last), then id.
 type CasePage struct {
 	Rows  []Case
 	Next  string // cursor of the next page, "" at the end
@@ -56,7 +59,7 @@ const countCap = 10000
 // else up to countCap from the cases themselves.
 func (s *Store) caseCount(ctx context.Context, f CaseFilter, where string, args []any) (int64, bool, error) {
 	var n int64
-	if f.OwnerID > 0 || f.SiteID > 0 {
+	if f.OwnerID > 0 || f.SiteID > 0 || strings.TrimSpace(f.Search) != "" {
 		err := s.reader(ctx).QueryRow(ctx, `SELECT count(*) FROM (SELECT 1 FROM cases c JOIN participants p ON p.id = c.participant_id WHERE `+
 			where+fmt.Sprintf(` LIMIT %d) x`, countCap+1), args...).Scan(&n)
 		return min(n, countCap), n > countCap, err
@@ -83,8 +86,15 @@ func (s *Store) caseCount(ctx context.Context, f CaseFilter, where string, args 
 	return n, false, err
 }
 
-// caseOrder is the list's sort key; an expression index serves it.
-const caseOrder = `coalesce(c.due_at, 'infinity'::timestamptz)`
+// caseOrders are the orders the case list can be sorted in, by the key its
+// column headers use: each a sort expression, with c.id after it the order
+// is total. The due and flag orders follow an index; the study ID order
+// sorts the matching cases, which are few per study.
+var caseOrders = map[string]string{
+	"due":      `coalesce(c.due_at, 'infinity'::timestamptz)`,
+	"flagged":  `c.flagged_at`,
+	"study_id": `p.study_id`,
+}
 
 func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	conds := []string{"true"}
@@ -109,6 +119,9 @@ func (f CaseFilter) where(now time.Time) (string, []any, error) {
 	}
 	if f.SiteID > 0 {
 		conds = append(conds, "p.site_id = "+arg(f.SiteID))
+	}
+	if q := strings.TrimSpace(f.Search); q != "" {
+		conds = append(conds, studyIDSearch(q, arg))
 	}
 	return strings.Join(conds, " AND "), args, nil
 }
@@ -145,15 +158,25 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if page.Total, page.AtLeast, err = s.caseCount(ctx, f, where, args); err != nil {
 		return page, mapErr("cases count", err)
 	}
+	order, ok := caseOrders[f.Sort]
+	if !ok {
+		order = caseOrders["due"]
+	}
+	cmp, dir := ">", ""
+	if f.Desc {
+		cmp, dir = "<", " DESC"
+	}
 	if c, ok := decodeCursor(f.After); ok {
-		// The cursor is the last row's id alone: a deadline in the page link
-		// would show monitors a date of a participant's case.
+		// The cursor is the last row's id alone: a deadline or a flag time
+		// in the page link would show monitors a date of a participant's
+		// case. The row's sort key is read back from it.
 		args = append(args, c.ID)
-		where += fmt.Sprintf(" AND (%s, c.id) > (SELECT coalesce(k.due_at, 'infinity'::timestamptz), k.id FROM cases k WHERE k.id = $%d)", caseOrder, len(args))
+		where += fmt.Sprintf(" AND (%s, c.id) %s (SELECT %s, c.id FROM cases c JOIN participants p ON p.id = c.participant_id WHERE c.id = $%d)",
+			order, cmp, order, len(args))
 	}
 	args = append(args, f.Limit+1)
 	rows, err := s.reader(ctx).Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
-		fmt.Sprintf(` ORDER BY %s, c.id LIMIT $%d`, caseOrder, len(args)), args...)
+		fmt.Sprintf(` ORDER BY %s%s, c.id%s LIMIT $%d`, order, dir, dir, len(args)), args...)
 	if err != nil {
 		return page, mapErr("cases", err)
 	}

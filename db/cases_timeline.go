@@ -54,6 +54,7 @@ type OverReadRef struct {
 	Confidence  string
 	Reader      string
 	ReadOn      cohort.Date
+	EnteredAt   time.Time // when the reading was entered, maybe days after ReadOn
 }
 
 // CaseEvent is one entry of a case's timeline.
@@ -69,9 +70,13 @@ type CaseEvent struct {
 	Message   *Message
 }
 
-// CaseTimeline lists everything that happened to a case, newest first: the
-// audited changes (an attempt's own entry stands in for its audit event), the
-// contact attempts, the recordings and the over-reads.
+// CaseTimeline lists everything that happened to a case, newest first by when
+// it happened (not when it was entered): the audited changes (an attempt's own
+// entry stands in for its audit event), the contact attempts at their time,
+// the recordings at the time they were taken and the over-reads on the day
+// they were read. A reading entered on a later day than it was read stands at
+// the end of its reading day in the study's zone, so a reading entered today
+// for a recording read in October sits among October's events.
 func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([]CaseEvent, error) {
 	var out []CaseEvent
 	// One round trip: the five reads are sent together.
@@ -123,8 +128,12 @@ func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([
 			if err := orows.Scan(&o.ID, &o.RecordingID, &o.Role, &o.Rhythm, &o.Confidence, &o.Reader, &on, &at); err != nil {
 				return err
 			}
-			o.ReadOn = cohort.DateOf(on)
-			out = append(out, CaseEvent{At: at, Kind: EventOverRead, Actor: o.Reader, OverRead: &o})
+			o.ReadOn, o.EnteredAt = cohort.DateOf(on), at
+			happened := at
+			if cohort.DateOf(at.In(loc)) != o.ReadOn {
+				happened = o.ReadOn.AddDays(1).In(loc).Add(-time.Second)
+			}
+			out = append(out, CaseEvent{At: happened, Kind: EventOverRead, Actor: o.Reader, OverRead: &o})
 		}
 		return orows.Err()
 	})
@@ -157,7 +166,7 @@ func snapshotChanges(oldRaw, newRaw []byte, loc *time.Location) []FieldChange {
 		if t == nil {
 			return ""
 		}
-		return t.In(loc).Format("2006-01-02")
+		return cohort.DateOf(t.In(loc)).Label()
 	}
 	state := func(s string) string {
 		if s == "" {
@@ -175,7 +184,7 @@ func snapshotChanges(oldRaw, newRaw []byte, loc *time.Location) []FieldChange {
 		if t == nil {
 			return ""
 		}
-		return followup.NewCalendar(loc).DueDay(*t).String()
+		return followup.NewCalendar(loc).DueDay(*t).DayLabel()
 	}
 	weeks := func(s caseSnapshot) string {
 		if s.ID == 0 {

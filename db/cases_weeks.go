@@ -28,7 +28,8 @@ type FlaggedWeek struct {
 	ProtocolName    string
 	ProtocolVersion int
 	Week            int
-	Reason          string
+	Reason          string // the stored technical account
+	Why             string // in plain words (screen.Explain); the reason when the result cannot be read
 	WearHours       float64
 	Metrics         []Metric // the result's scalar values, by name
 	CaseID          int64    // the case holding the week, 0 when none does
@@ -39,7 +40,7 @@ type FlaggedWeek struct {
 // protocol version, with the case holding each.
 func (s *Store) FlaggedWeeks(ctx context.Context, participantID int64) ([]FlaggedWeek, error) {
 	rows, err := s.reader(ctx).Query(ctx, `
-		SELECT sr.protocol_id, pr.name, pr.version, sr.week, sr.reason, sr.wear_hours, sr.result,
+		SELECT sr.protocol_id, pr.name, pr.version, sr.week, sr.reason, sr.wear_hours, sr.result, pr.params,
 		       coalesce(cw.case_id, 0), coalesce(cw.late, false)
 		FROM screen_results sr
 		JOIN protocols pr ON pr.id = sr.protocol_id
@@ -53,12 +54,19 @@ func (s *Store) FlaggedWeeks(ctx context.Context, participantID int64) ([]Flagge
 		var w FlaggedWeek
 		var week int16
 		var hours float32
-		var raw []byte
-		if err := r.Scan(&w.ProtocolID, &w.ProtocolName, &w.ProtocolVersion, &week, &w.Reason, &hours, &raw, &w.CaseID, &w.Late); err != nil {
+		var raw, params []byte
+		if err := r.Scan(&w.ProtocolID, &w.ProtocolName, &w.ProtocolVersion, &week, &w.Reason, &hours, &raw, &params, &w.CaseID, &w.Late); err != nil {
 			return w, err
 		}
 		w.Week, w.WearHours = int(week), float64(hours)
 		w.Metrics = metrics(raw)
+		w.Why = w.Reason
+		var res screen.Result
+		var p screen.Protocol
+		if json.Unmarshal(raw, &res) == nil && json.Unmarshal(params, &p) == nil && len(res.Windows) == len(p.Windows) && res.Verdict != "" {
+			res.Verdict = screen.Positive // the stored verdict, which these rows all have
+			w.Why = screen.Explain(res, p)
+		}
 		return w, nil
 	})
 	return out, mapErr("flagged weeks", err)
@@ -76,6 +84,10 @@ func metrics(raw []byte) []Metric {
 	}
 	var out []Metric
 	for _, w := range res.Windows {
+		if w.Usable == 0 {
+			out = append(out, Metric{fmt.Sprintf("%d-minute windows", w.Minutes), "no usable window"})
+			continue
+		}
 		out = append(out, Metric{fmt.Sprintf("%d-minute windows", w.Minutes), fmt.Sprintf(
 			"%d of %d usable irregular (%s%%), longest run %d; MASD mean %s, median %s bpm, threshold %s",
 			w.Irregular, w.Usable, formatNumber(math.Round(1000*w.Share)/10), w.LongestRun,

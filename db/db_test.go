@@ -154,11 +154,18 @@ func TestParticipantFiltersAndNames(t *testing.T) {
 	if page.Total != 10 || page.Rows[0].Name != "" {
 		t.Fatalf("study ID prefix: %d, name %q", page.Total, page.Rows[0].Name)
 	}
-	// The prefix ignores case; a LIKE wildcard typed in the box is taken
+	// The search ignores case; a LIKE wildcard typed in the box is taken
 	// literally.
 	page, _ = s.Participants(ctx, db.ParticipantFilter{Search: "s00001", Limit: 100})
 	if page.Total != 10 {
 		t.Fatalf("lower-case study ID prefix: %d, want 10", page.Total)
+	}
+	// Any part of the ID finds it, with or without the separators typed.
+	for _, q := range []string{"0017", "00017", "s-000017", "S 000 017"} {
+		page, _ = s.Participants(ctx, db.ParticipantFilter{Search: q, Limit: 100})
+		if page.Total != 1 || page.Rows[0].StudyID != "S000017" {
+			t.Fatalf("search %q: %d rows, want S000017 alone", q, page.Total)
+		}
 	}
 	page, _ = s.Participants(ctx, db.ParticipantFilter{Search: "S0000_", Limit: 100})
 	if page.Total != 0 {

@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 	"time"
+	"unicode"
 
 	"cohortdesk/cohort"
 
@@ -18,7 +19,7 @@ import (
 
 // ParticipantFilter narrows and orders the participant list.
 type ParticipantFilter struct {
-	Search        string // study ID prefix; names too when WithNames
+	Search        string // any part of a study ID (studyIDSearch); names too when WithNames
 	SiteID        int
 	Status        cohort.ParticipantStatus // "" for every status
 	PositiveWeeks int                      // screen-positive within the last N study weeks (0: no filter)
@@ -80,10 +81,10 @@ func (f ParticipantFilter) where(today time.Time, statusDay cohort.Date, weeks i
 	var args []any
 	arg := func(v any) string { args = append(args, v); return "$" + strconv.Itoa(len(args)) }
 	if q := strings.TrimSpace(f.Search); q != "" {
-		// Both conditions can use an index: lower(study_id) with
-		// text_pattern_ops for the prefix, the trigram index for names (the
-		// set of matching names is read once, not per participant).
-		cond := "lower(p.study_id) LIKE " + arg(escapeLike(strings.ToLower(q))+"%")
+		// Both conditions can use a trigram index: on the study ID's letters
+		// and digits (studyIDSearch), on names (the set of matching names is
+		// read once, not per participant).
+		cond := studyIDSearch(q, arg)
 		if f.WithNames {
 			cond = "(" + cond + " OR p.id IN (SELECT pi.participant_id FROM participant_identity pi WHERE pi.search_name LIKE " +
 				arg("%"+escapeLike(strings.ToLower(q))+"%") + "))"
@@ -125,6 +126,32 @@ func (s *Store) participantCounts(ctx context.Context, f ParticipantFilter, wher
 		page.AtLeast, page.Total = true, countCap
 	}
 	return err
+}
+
+// studyIDKey is the form a study ID is searched in: its letters and digits,
+// lower case, so "0173", "qrw0173" and "QRW-0173" all find QRW-0173-K. The
+// column participants.search_id holds it, with a trigram index (migration
+// 0091).
+const studyIDKey = `p.search_id`
+
+// studyIDSearch is the condition that q appears anywhere in the study ID of
+// p, compared in studyIDKey's form: q in lower case without the separators
+// people type (hyphens, spaces, dots, slashes). Any other character is
+// looked for literally, so a LIKE wildcard typed in the box is no wildcard
+// (and, as no key holds it, finds nothing). A q of separators only is looked
+// for as typed.
+func studyIDSearch(q string, arg func(any) string) string {
+	key := strings.Map(func(r rune) rune {
+		switch r {
+		case '-', ' ', '.', '/', '\t':
+			return -1
+		}
+		return unicode.ToLower(r)
+	}, q)
+	if key == "" {
+		return "lower(p.study_id) LIKE " + arg("%"+escapeLike(strings.ToLower(q))+"%")
+	}
+	return studyIDKey + " LIKE " + arg("%"+escapeLike(key)+"%")
 }
 
 func escapeLike(s string) string {

@@ -36,7 +36,8 @@ type RecentOverRead struct {
 
 // Confirmations are the over-read work lists: recordings without any
 // reading (oldest arrival first), disagreements waiting for adjudication
-// (oldest first), and the latest readings entered (newest first).
+// (oldest first), and the latest readings, newest reading day first (a
+// reading entered late sits among the readings of its day).
 type Confirmations struct {
 	// Unread are the recordings waiting for an over-read (overread.Awaits),
 	// at most the limit; UnreadCount counts them all.
@@ -110,7 +111,7 @@ func (s *Store) Confirmations(ctx context.Context, limit int) (Confirmations, er
 			       r.id, r.case_id, p.study_id, st.code, r.too_short
 			FROM over_reads o JOIN recordings r ON r.id = o.recording_id
 			  JOIN participants p ON p.id = r.participant_id JOIN sites st ON st.id = p.site_id
-			ORDER BY o.created_at DESC, o.id DESC LIMIT $1`, limit)
+			ORDER BY o.read_on DESC, o.created_at DESC, o.id DESC LIMIT $1`, limit)
 		if err != nil {
 			return err
 		}

@@ -72,8 +72,8 @@ func studySettings(ctx context.Context, q rowQuerier) (StudySettings, error) {
 	var raw []byte
 	var days []time.Time
 	var fw int16
-	err := q.QueryRow(ctx, `SELECT name, time_zone, contact_route, enrolment_target, follow_up_weeks, service_levels, closure_days FROM study WHERE id = 1`).
-		Scan(&st.Name, &st.TimeZone, &st.ContactRoute, &st.EnrolmentTarget, &fw, &raw, &days)
+	err := q.QueryRow(ctx, `SELECT name, time_zone, contact_route, enrolment_target, follow_up_weeks, service_levels, closure_days, paper FROM study WHERE id = 1`).
+		Scan(&st.Name, &st.TimeZone, &st.ContactRoute, &st.EnrolmentTarget, &fw, &raw, &days, &st.Paper)
 	st.FollowUpWeeks = int(fw)
 	if err == pgx.ErrNoRows {
 		return st, nil
@@ -110,12 +110,13 @@ type studyAudit struct {
 	Service          followup.ServiceLevels `json:"service_levels"`
 	EpisodeGapWeeks  int                    `json:"episode_gap_weeks"`
 	ClosureDays      []string               `json:"closure_days"`
+	Paper            followup.Paper         `json:"paper"`
 	CasesRescheduled int                    `json:"cases_rescheduled,omitempty"`
 }
 
 func auditOfStudy(st StudySettings) studyAudit {
 	a := studyAudit{Name: st.Name, TimeZone: st.TimeZone, ContactRoute: st.ContactRoute, EnrolmentTarget: st.EnrolmentTarget,
-		FollowUpWeeks: st.FollowUpWeeks, Service: st.Service, EpisodeGapWeeks: st.EpisodeGapWeeks, ClosureDays: []string{}}
+		FollowUpWeeks: st.FollowUpWeeks, Service: st.Service, EpisodeGapWeeks: st.EpisodeGapWeeks, ClosureDays: []string{}, Paper: st.Paper}
 	for _, d := range st.ClosureDays {
 		a.ClosureDays = append(a.ClosureDays, d.String())
 	}
@@ -126,12 +127,14 @@ func auditOfStudy(st StudySettings) studyAudit {
 // settings, then recomputes the next action and due time of every case still
 // being worked, since deadlines depend on the service levels, the time zone
 // and the closure days. All of it commits together with one audit event (old
-// and new settings, and how many cases got a new deadline).
-func (s *Store) SaveStudySettings(ctx context.Context, a cohort.Actor, st StudySettings) (StudySettings, error) {
+// and new settings, and how many cases got a new deadline). It returns the
+// settings stored and how many cases got a new deadline.
+func (s *Store) SaveStudySettings(ctx context.Context, a cohort.Actor, st StudySettings) (StudySettings, int, error) {
 	if err := st.Validate(); err != nil {
-		return StudySettings{}, err
+		return StudySettings{}, 0, err
 	}
 	st.Configured = true
+	rescheduled := 0
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		old, err := studySettings(ctx, tx)
 		if err != nil {
@@ -146,11 +149,11 @@ func (s *Store) SaveStudySettings(ctx context.Context, a cohort.Actor, st StudyS
 			days[i] = d.String()
 		}
 		_, err = tx.Exec(ctx, `
-			INSERT INTO study (id, name, time_zone, contact_route, enrolment_target, service_levels, closure_days, follow_up_weeks, updated_at)
-			VALUES (1, $1, $2, $3, $4, $5, $6::date[], $7, now())
+			INSERT INTO study (id, name, time_zone, contact_route, enrolment_target, service_levels, closure_days, follow_up_weeks, paper, updated_at)
+			VALUES (1, $1, $2, $3, $4, $5, $6::date[], $7, $8, now())
 			ON CONFLICT (id) DO UPDATE SET name = $1, time_zone = $2, contact_route = $3, enrolment_target = $4,
-			  service_levels = $5, closure_days = $6::date[], follow_up_weeks = $7, updated_at = now()`,
-			st.Name, st.TimeZone, st.ContactRoute, st.EnrolmentTarget, svc, days, st.FollowUpWeeks)
+			  service_levels = $5, closure_days = $6::date[], follow_up_weeks = $7, paper = $8, updated_at = now()`,
+			st.Name, st.TimeZone, st.ContactRoute, st.EnrolmentTarget, svc, days, st.FollowUpWeeks, string(st.Paper))
 		if err != nil {
 			return err
 		}
@@ -158,6 +161,7 @@ func (s *Store) SaveStudySettings(ctx context.Context, a cohort.Actor, st StudyS
 		if err != nil {
 			return err
 		}
+		rescheduled = n
 		var oldAudit any
 		if old.Configured {
 			oldAudit = auditOfStudy(old)
@@ -167,7 +171,7 @@ func (s *Store) SaveStudySettings(ctx context.Context, a cohort.Actor, st StudyS
 		return audit(ctx, tx, a, "study.update", "study", "1", oldAudit, newAudit)
 	})
 	if err != nil {
-		return StudySettings{}, mapErr("save study settings", err)
+		return StudySettings{}, 0, mapErr("save study settings", err)
 	}
-	return st, nil
+	return st, rescheduled, nil
 }

@@ -21,7 +21,7 @@ func TestStudySettingsDefaultsValidationAndAudit(t *testing.T) {
 	}
 	bad := followup.DefaultStudySettings()
 	bad.TimeZone, bad.EnrolmentTarget, bad.Service.MaxAttempts, bad.EpisodeGapWeeks = "Mars/Base", -1, 0, 0
-	_, err = s.SaveStudySettings(ctx, cohort.System, bad)
+	_, _, err = s.SaveStudySettings(ctx, cohort.System, bad)
 	var ve *cohort.ValidationError
 	if !errors.As(err, &ve) {
 		t.Fatalf("bad settings: %v", err)
@@ -38,7 +38,7 @@ func TestStudySettingsDefaultsValidationAndAudit(t *testing.T) {
 	good.Name, good.TimeZone, good.EnrolmentTarget = "Rhythm study", "Europe/Lisbon", 2400
 	good.Service.FirstContactWorkingDays, good.Service.MaxAttempts, good.Service.RecordingBackWithinDays, good.EpisodeGapWeeks = 3, 4, 10, 3
 	good.ClosureDays = []cohort.Date{{Year: 2026, Month: 1, Day: 1}, {Year: 2026, Month: 12, Day: 25}}
-	if _, err := s.SaveStudySettings(ctx, cohort.Actor{UserID: 0, Name: "admin test"}, good); err != nil {
+	if _, _, err := s.SaveStudySettings(ctx, cohort.Actor{UserID: 0, Name: "admin test"}, good); err != nil {
 		t.Fatal(err)
 	}
 	st, err = s.StudySettings(ctx)

@@ -89,8 +89,8 @@ func (s *Store) sweep(ctx context.Context, protocolID int, param string, values 
 // reference standard (screen.ReferenceCase).
 func (s *Store) referenceCases(ctx context.Context) ([]screen.ReferenceCase, error) {
 	rows, err := s.pool.Query(ctx, `
-		SELECT c.id, c.participant_id, c.first_week, c.last_week, o.recording_id, o.role, o.rhythm, o.confidence, o.read_on
-		FROM over_reads o JOIN cases c ON c.id = o.case_id
+		SELECT c.id, c.participant_id, c.first_week, c.last_week, o.recording_id, r.too_short, o.role, o.rhythm, o.confidence, o.read_on
+		FROM over_reads o JOIN cases c ON c.id = o.case_id JOIN recordings r ON r.id = o.recording_id
 		ORDER BY c.id, o.recording_id, o.id`)
 	if err != nil {
 		return nil, mapErr("sweep references", err)
@@ -99,6 +99,7 @@ func (s *Store) referenceCases(ctx context.Context) ([]screen.ReferenceCase, err
 	var out []screen.ReferenceCase
 	var caseID, recID int64 = -1, -1
 	var readings []overread.Reading
+	var tooShort bool
 	settle := func() error {
 		if len(readings) == 0 {
 			return nil
@@ -108,16 +109,17 @@ func (s *Store) referenceCases(ctx context.Context) ([]screen.ReferenceCase, err
 			return fmt.Errorf("db: recording %d: %w", recID, err)
 		}
 		c := &out[len(out)-1]
-		c.Conclusions = append(c.Conclusions, v)
+		c.Recordings = append(c.Recordings, screen.ReferenceRecording{Conclusion: v, TooShort: tooShort})
 		readings = readings[:0]
 		return nil
 	}
 	for rows.Next() {
 		var cid, pid, rid int64
 		var first, last int
+		var short bool
 		var role, rhythm, conf string
 		var on time.Time
-		if err := rows.Scan(&cid, &pid, &first, &last, &rid, &role, &rhythm, &conf, &on); err != nil {
+		if err := rows.Scan(&cid, &pid, &first, &last, &rid, &short, &role, &rhythm, &conf, &on); err != nil {
 			return nil, mapErr("sweep references", err)
 		}
 		if cid != caseID || rid != recID {
@@ -128,7 +130,7 @@ func (s *Store) referenceCases(ctx context.Context) ([]screen.ReferenceCase, err
 		if cid != caseID {
 			out = append(out, screen.ReferenceCase{ParticipantID: pid, FirstWeek: first, LastWeek: last})
 		}
-		caseID, recID = cid, rid
+		caseID, recID, tooShort = cid, rid, short
 		readings = append(readings, overread.Reading{Role: overread.Role(role), Rhythm: overread.Rhythm(rhythm),
 			Confidence: overread.Confidence(conf), On: cohort.DateOf(on)})
 	}

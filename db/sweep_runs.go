@@ -55,7 +55,7 @@ func (s *Store) StartSweep(ctx context.Context, a cohort.Actor, protocolID int, 
 	var id int64
 	err = s.inTx(ctx, func(tx pgx.Tx) error {
 		job, err := enqueue(ctx, tx, NewJob{Kind: JobSweep, Payload: req, MaxAttempts: 2, CreatedBy: a.Label(),
-			Label: fmt.Sprintf("threshold sweep of %s under %s, %d values", param, pv.Label(), len(values))})
+			Label: fmt.Sprintf("threshold sweep of %s under %s, %d values", pv.Params.ParamName(param), pv.Label(), len(values))})
 		if err != nil {
 			return err
 		}
@@ -98,7 +98,7 @@ func (s *Store) sweepJob(ctx context.Context, j Job, progress func(done, total i
 	if tag.RowsAffected() != 1 {
 		return "", Permanent(fmt.Errorf("sweep job %d: no sweep records it", j.ID))
 	}
-	return fmt.Sprintf("%d participant-weeks, %d values of %s", res.Weeks, len(res.Rows), req.Param), nil
+	return fmt.Sprintf("%d participant-weeks, %d values of %s", res.Weeks, len(res.Rows), res.Protocol.Params.ParamName(req.Param)), nil
 }
 
 // sweepCols are read with the sweep's job (alias j).

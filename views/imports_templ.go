@@ -61,7 +61,7 @@ func Imports(m ImportsModel) templ.Component {
 				}()
 			}
 			ctx = templ.InitializeContext(ctx)
-			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 1, "<h1>Wear-data imports</h1><p><a class=\"button\" href=\"/imports/new\" data-key=\"+\">Import a file</a></p><table class=\"grid\" data-testid=\"imports-table\"><thead><tr><th>#</th><th>File</th><th>Format</th><th>Status</th><th>Started (UTC)</th><th>By</th><th class=\"num\">Stored</th><th class=\"num\">Refused</th><th class=\"num\">Duplicates skipped</th></tr></thead> <tbody>")
+			templ_7745c5c3_Err = templruntime.WriteString(templ_7745c5c3_Buffer, 1, "<h1>Wear-data imports</h1><p><a class=\"button\" href=\"/imports/new\" data-key=\"+\">Import a file</a></p><table class=\"grid\" data-testid=\"imports-table\"><thead><tr><th>#</th><th>File</th><th>Format</th><th>Status</th><th>Started</th><th>By</th><th class=\"num\">Stored</th><th class=\"num\">Refused</th><th class=\"num\">Duplicates skipped</th></tr></thead> <tbody>")
 			if templ_7745c5c3_Err != nil {
 				return templ_7745c5c3_Err
 			}

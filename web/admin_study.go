@@ -18,14 +18,14 @@ import (
 // studyStore reads and saves the study settings.
 type studyStore interface {
 	StudySettings(ctx context.Context) (db.StudySettings, error)
-	SaveStudySettings(ctx context.Context, a cohort.Actor, st db.StudySettings) (db.StudySettings, error)
+	SaveStudySettings(ctx context.Context, a cohort.Actor, st db.StudySettings) (db.StudySettings, int, error)
 }
 
 // studyValues fills the settings form from stored settings.
 func studyValues(st db.StudySettings) map[string]string {
 	days := make([]string, len(st.ClosureDays))
 	for i, d := range st.ClosureDays {
-		days[i] = d.String()
+		days[i] = d.Label()
 	}
 	sl := st.Service
 	return map[string]string{
@@ -41,6 +41,7 @@ func studyValues(st db.StudySettings) map[string]string {
 		"refer_or_close_within_days": strconv.Itoa(sl.ReferOrCloseWithinDays),
 		"episode_gap_weeks":          strconv.Itoa(st.EpisodeGapWeeks),
 		"closure_days":               strings.Join(days, "\n"),
+		"paper":                      string(st.Paper),
 	}
 }
 
@@ -50,8 +51,12 @@ func (s *Server) studySettings(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	m := views.StudySettingsModel{Page: s.page(r, "Study settings", "admin"), Values: studyValues(st)}
-	if r.URL.Query().Get("saved") == "1" {
-		m.Saved = "Settings saved. Deadlines of the cases still being worked were recomputed."
+	if q := r.URL.Query(); q.Get("saved") == "1" {
+		n, _ := strconv.Atoi(q.Get("rescheduled"))
+		m.Saved = "Settings saved. Deadlines of the cases still being worked were recomputed: " + plural(max(n, 0), "case") + " got a new due date."
+		if n == 0 {
+			m.Saved = "Settings saved. Deadlines of the cases still being worked were recomputed: none changed."
+		}
 	} else if !st.Configured {
 		m.Saved = "The study is not set up yet: these are the defaults. Saving them sets the study up."
 	}
@@ -62,9 +67,14 @@ func (s *Server) studySettingsSave(w http.ResponseWriter, r *http.Request) error
 	if err := r.ParseForm(); err != nil {
 		return err
 	}
-	st, err := studyInput(readForm(r.PostForm))
+	cur, err := s.store.StudySettings(r.Context())
+	if err != nil {
+		return err
+	}
+	st, err := studyInput(readForm(r.PostForm), cur.Paper)
+	rescheduled := 0
 	if err == nil {
-		_, err = s.store.SaveStudySettings(r.Context(), s.actor(r), st)
+		_, rescheduled, err = s.store.SaveStudySettings(r.Context(), s.actor(r), st)
 	}
 	if err != nil {
 		f, ok := refused(r, err, nil)
@@ -75,14 +85,15 @@ func (s *Server) studySettingsSave(w http.ResponseWriter, r *http.Request) error
 			Page: s.page(r, "Study settings", "admin"), Values: f.Values, Errors: f.Fields}))
 		return nil
 	}
-	http.Redirect(w, r, "/admin/study?saved=1", http.StatusSeeOther)
+	http.Redirect(w, r, "/admin/study?saved=1&rescheduled="+strconv.Itoa(rescheduled), http.StatusSeeOther)
 	return nil
 }
 
 // studyInput reads the settings form. Numbers that are not numbers, a zone
 // that is not a zone and closure days that are not dates are refused together
-// with what the settings' rules say about the rest.
-func studyInput(f *formReader) (db.StudySettings, error) {
+// with what the settings' rules say about the rest. A form without the paper
+// field (sent from an older page) keeps the paper the study has.
+func studyInput(f *formReader, paper followup.Paper) (db.StudySettings, error) {
 	st := db.StudySettings{Name: f.text("name"), TimeZone: f.text("time_zone"), ContactRoute: f.text("contact_route"),
 		EnrolmentTarget: f.whole("enrolment_target"), EpisodeGapWeeks: f.whole("episode_gap_weeks")}
 	if loc, err := time.LoadLocation(st.TimeZone); err == nil && followup.CheckTimeZone(st.TimeZone) == nil {
@@ -100,28 +111,42 @@ func studyInput(f *formReader) (db.StudySettings, error) {
 		f.fail("closure_days", err.Error())
 	}
 	st.ClosureDays = days
+	st.Paper = paper
+	if v := f.text("paper"); v != "" {
+		st.Paper = followup.Paper(v)
+	}
 	return st, f.check(st.Validate)
 }
 
-// closureDays reads one date per line (commas, semicolons and spaces also
-// separate), naming the line of the first entry that is not a date or that
-// followup.CheckClosureDay refuses. Duplicates are dropped; the result is
-// sorted.
+// closureDays reads one date per line, written in the date style ("24 Dec
+// 2026") or as YYYY-MM-DD (commas and semicolons also separate, and so do
+// spaces between YYYY-MM-DD dates), naming the line of the first entry that
+// is not a date or that followup.CheckClosureDay refuses. Duplicates are
+// dropped; the result is sorted.
 func closureDays(text string) ([]cohort.Date, error) {
 	var out []cohort.Date
 	seen := map[cohort.Date]bool{}
 	for i, line := range strings.Split(text, "\n") {
-		for _, v := range strings.FieldsFunc(line, func(r rune) bool { return r == ',' || r == ';' || r == ' ' || r == '\t' || r == '\r' }) {
-			d, err := cohort.ParseDate(v)
-			if err == nil {
-				err = followup.CheckClosureDay(d)
+		for _, part := range strings.FieldsFunc(line, func(r rune) bool { return r == ',' || r == ';' || r == '\r' }) {
+			if strings.TrimSpace(part) == "" {
+				continue
 			}
-			if err != nil {
-				return nil, fmt.Errorf("line %d: %q is not a date between 2000 and 2100 written YYYY-MM-DD", i+1, v)
+			entries := []string{part}
+			if _, err := cohort.ParseDay(part); err != nil {
+				entries = strings.Fields(part) // several YYYY-MM-DD dates on one line
 			}
-			if !seen[d] {
-				seen[d] = true
-				out = append(out, d)
+			for _, v := range entries {
+				d, err := cohort.ParseDay(v)
+				if err == nil {
+					err = followup.CheckClosureDay(d)
+				}
+				if err != nil {
+					return nil, fmt.Errorf("line %d: %q is not a date between 2000 and 2100 (write 24 Dec 2026 or 2026-12-24)", i+1, strings.TrimSpace(v))
+				}
+				if !seen[d] {
+					seen[d] = true
+					out = append(out, d)
+				}
 			}
 		}
 	}

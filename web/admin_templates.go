@@ -143,7 +143,7 @@ func (s *Server) renderTemplate(w http.ResponseWriter, r *http.Request, t db.Mes
 	}
 	for _, h := range hist {
 		m.History = append(m.History, views.TemplateVersionView{Href: templateHref(h.ID), Version: h.Version, By: h.CreatedBy,
-			At: h.CreatedAt.In(st.Location()).Format("2006-01-02 15:04"), Note: h.Note, Current: h.Version == m.Latest})
+			At: when(h.CreatedAt, st.Location()), Note: h.Note, Current: h.Version == m.Latest})
 	}
 	sid := strings.TrimSpace(r.URL.Query().Get("participant"))
 	var preview outreach.Message

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"net/http"
+	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
@@ -32,12 +33,12 @@ func roleOptions() []views.Option {
 	return out
 }
 
-func userRows(us []db.User) []views.UserRow {
+func userRows(us []db.User, loc *time.Location) []views.UserRow {
 	rows := make([]views.UserRow, len(us))
 	for i, u := range us {
 		last := "never"
 		if u.LastSignIn != nil {
-			last = u.LastSignIn.UTC().Format("2006-01-02 15:04 UTC")
+			last = when(*u.LastSignIn, loc)
 		}
 		rows[i] = views.UserRow{ID: u.ID, Email: u.Email, Name: u.Name, Role: u.Role.Label(), Active: u.Active, LastSignIn: last}
 	}
@@ -51,7 +52,7 @@ func (s *Server) usersPage(w http.ResponseWriter, r *http.Request, status int, f
 	}
 	p := s.page(r, "Staff accounts", "admin")
 	p.Flash = flash
-	s.render(w, r, status, views.Users(views.UsersModel{Page: p, Users: userRows(us), Form: form, Roles: roleOptions()}))
+	s.render(w, r, status, views.Users(views.UsersModel{Page: p, Users: userRows(us, s.studyZone(r.Context())), Form: form, Roles: roleOptions()}))
 	return nil
 }
 
@@ -97,7 +98,7 @@ func (s *Server) userEdit(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	return s.ok(w, r, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u})[0],
+	return s.ok(w, r, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u}, s.studyZone(r.Context()))[0],
 		Form: views.UserForm{Name: u.Name, Role: string(u.Role), Active: u.Active, Version: u.Version}, Roles: roleOptions()}))
 }
 
@@ -121,7 +122,7 @@ func (s *Server) userUpdate(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	f.Errors = no.Fields
-	s.render(w, r, no.Status, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u})[0], Form: f, Roles: roleOptions()}))
+	s.render(w, r, no.Status, views.UserEdit(views.UserEditModel{Page: s.page(r, "Edit "+u.Name, "admin"), User: userRows([]db.User{u}, s.studyZone(r.Context()))[0], Form: f, Roles: roleOptions()}))
 	return nil
 }
 

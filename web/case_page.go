@@ -8,6 +8,7 @@ import (
 	"strings"
 	"time"
 
+	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
@@ -57,7 +58,7 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		if t.IsZero() {
 			return "—"
 		}
-		return t.In(loc).Format("2006-01-02 15:04 MST")
+		return cohort.TimeLabel(t, loc)
 	}
 	owner := c.Owner
 	if owner == "" {
@@ -73,13 +74,12 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		{Label: "Flagged", Value: day(c.FlaggedAt)},
 		{Label: "Owner", Value: owner, Testid: "case-owner"},
 		{Label: "Next action", Value: next, Testid: "case-next"},
-		{Label: "Due", Value: due, Testid: "case-due"},
+		{Label: "Due", Value: strings.TrimPrefix(due, "due "), Testid: "case-due"},
 		{Label: "Reached", Value: day(c.ReachedAt)},
 		{Label: "Recorder sent", Value: day(c.RecorderSentAt), Testid: "case-sent"},
 		{Label: "Tracking number", Value: c.TrackingNumber, Testid: "case-tracking"},
 		{Label: "Recording back", Value: day(c.RecordingBackAt)},
 		{Label: "Over-read", Value: day(c.OverReadAt)},
-		{Label: "Version", Value: strconv.Itoa(c.Version)},
 	}
 	if c.UnreadRecordings > 0 {
 		m.Facts = append(m.Facts, views.FactView{Label: "Waiting for an over-read", Value: plural(c.UnreadRecordings, "recording")})
@@ -125,7 +125,7 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		return err
 	}
 	for _, w := range weeks {
-		v := views.FlaggedWeekView{Week: w.Week, Protocol: fmt.Sprintf("%s v%d", w.ProtocolName, w.ProtocolVersion), Reason: w.Reason,
+		v := views.FlaggedWeekView{Week: w.Week, Protocol: fmt.Sprintf("%s v%d", w.ProtocolName, w.ProtocolVersion), Reason: w.Why,
 			WearHours: strconv.FormatFloat(w.WearHours, 'f', 1, 64), OnCase: w.CaseID == c.ID, Late: w.Late}
 		if w.CaseID != 0 && w.CaseID != c.ID {
 			v.Elsewhere = fmt.Sprintf("/cases/%d", w.CaseID)
@@ -157,7 +157,7 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 
 // timelineEntry words one timeline event.
 func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
-	out := views.TimelineEntry{At: e.At.In(loc).Format("2006-01-02 15:04 MST"), Kind: string(e.Kind), Actor: e.Actor}
+	out := views.TimelineEntry{At: cohort.TimeLabel(e.At, loc), Kind: string(e.Kind), Actor: e.Actor}
 	switch e.Kind {
 	case db.EventAttempt:
 		a := e.Attempt
@@ -183,7 +183,13 @@ func timelineEntry(e db.CaseEvent, loc *time.Location) views.TimelineEntry {
 	case db.EventOverRead:
 		o := e.OverRead
 		out.Title = fmt.Sprintf("Over-read (%s): %s, %s", overread.Role(o.Role).Label(), overread.Rhythm(o.Rhythm).Label(), o.Confidence)
-		out.Lines = []string{"read on " + o.ReadOn.String()}
+		// A reading is placed on the day it was read; entered later, it
+		// says when.
+		out.At = o.ReadOn.Label()
+		out.Lines = []string{"read on " + o.ReadOn.Label()}
+		if cohort.DateOf(o.EnteredAt.In(loc)) != o.ReadOn {
+			out.Lines = append(out.Lines, "entered "+cohort.TimeLabel(o.EnteredAt, loc))
+		}
 	default:
 		w := e.Action.Label()
 		out.Title = strings.ToUpper(w[:1]) + w[1:]

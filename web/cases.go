@@ -113,7 +113,7 @@ func caseRow(c db.Case, st db.StudySettings, now time.Time, deid bool) views.Cas
 	}
 	row.Href = fmt.Sprintf("/cases/%d", c.ID)
 	row.Owner, row.Note = c.Owner, c.Note
-	row.Flagged = cal.DateOf(c.FlaggedAt).String()
+	row.Flagged = cal.DateOf(c.FlaggedAt).Label()
 	return row
 }
 

@@ -11,6 +11,7 @@ import (
 	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
+	"cohortdesk/views/components"
 )
 
 // The case list and its bulk actions.
@@ -21,8 +22,9 @@ import (
 // sees the list de-identified (it has no owner filter).
 func caseFilter(v url.Values, me int64, sites []db.Site, workers []db.User) (db.CaseFilter, views.CaseFilterForm, error) {
 	q := readQuery(v)
-	form := views.CaseFilterForm{State: q.get("state"), Owner: q.get("owner"), Overdue: q.flag("overdue")}
-	f := db.CaseFilter{Overdue: form.Overdue, After: q.get("after")}
+	form := views.CaseFilterForm{State: q.get("state"), Owner: q.get("owner"), Overdue: q.flag("overdue"),
+		Search: q.text("q"), Sort: q.oneOf("sort", "due", "flagged", "study_id"), Desc: q.flag("desc")}
+	f := db.CaseFilter{Overdue: form.Overdue, After: q.get("after"), Search: form.Search, Sort: form.Sort, Desc: form.Desc}
 	switch form.State {
 	case "", "working":
 	case "final":
@@ -126,6 +128,10 @@ func (s *Server) renderCases(w http.ResponseWriter, r *http.Request, q url.Value
 		}
 	}
 	m.Back = "/cases?" + clean.Encode()
+	m.Sort = map[string]components.SortHead{}
+	for _, c := range []struct{ key, label string }{{"study_id", "Study ID"}, {"due", "Due"}, {"flagged", "Flagged"}} {
+		m.Sort[c.key] = sortHead("/cases", clean, c.label, c.key, f.Sort, "due", f.Desc)
+	}
 	if page.Next != "" {
 		nq := url.Values{}
 		for k, v := range clean {

@@ -329,7 +329,7 @@ func TestStudySettingsPage(t *testing.T) {
 		t.Fatalf("save: status %d", res.StatusCode)
 	}
 	_, body = a.get(admin, "/admin/study?saved=1")
-	if !strings.Contains(body, `value="America/Denver"`) || !strings.Contains(body, "2026-12-24\n2026-12-25") || !strings.Contains(body, `data-testid="settings-saved"`) {
+	if !strings.Contains(body, `value="America/Denver"`) || !strings.Contains(body, "24 Dec 2026\n25 Dec 2026") || !strings.Contains(body, `data-testid="settings-saved"`) {
 		t.Fatal("saved settings not shown")
 	}
 	if res, _ := a.get(a.signIn(cohort.Coordinator), "/admin/study"); res.StatusCode != http.StatusForbidden {

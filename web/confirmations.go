@@ -12,6 +12,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/overread"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -42,7 +43,7 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 	}
 	loc := st.Location()
 	today := cohort.DateOf(s.now().In(loc))
-	day := func(t time.Time) string { return t.In(loc).Format("2006-01-02") }
+	day := func(t time.Time) string { return dayOf(t, loc) }
 	row := func(q db.QueueRecording) views.QueueRowView {
 		return views.QueueRowView{Href: fmt.Sprintf("/recordings/%d", q.ID), CaseHref: fmt.Sprintf("/cases/%d", q.CaseID), StudyID: q.StudyID,
 			Site: q.SiteCode, Taken: day(q.TakenAt), Received: day(q.ReceivedAt), Duration: seconds(q.DurationS), TooShort: q.TooShort,
@@ -65,7 +66,7 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 	}
 	for _, o := range lists.Recent {
 		m.Recent = append(m.Recent, views.RecentReadingView{Href: fmt.Sprintf("/recordings/%d", o.RecordingID), StudyID: o.StudyID, Site: o.SiteCode,
-			Role: o.Role.Label(), Rhythm: o.Rhythm.Label(), Reader: o.Reader, On: o.On.String(), TooShort: o.TooShort})
+			Role: o.Role.Label(), Rhythm: o.Rhythm.Label(), Reader: o.Reader, On: o.On.Label(), TooShort: o.TooShort})
 	}
 	return s.ok(w, r, views.Confirmations(m))
 }
@@ -108,11 +109,17 @@ func medianText(m stats.Median) (string, string) {
 	return day(m.Reached, m.Time), day(m.LoReached, m.Lo) + " – " + day(m.HiReached, m.Hi)
 }
 
-func statRow(g cascade.Group) views.StatRowView {
-	label := g.Label
+// groupLabel names a row of the agreement statistics, in the table and on
+// the PPV chart alike: "all", "site: DRF".
+func groupLabel(g cascade.Group) string {
 	if g.Dimension != "all" && g.Dimension != "protocol" {
-		label = g.Dimension + ": " + g.Label
+		return g.Dimension + ": " + g.Label
 	}
+	return g.Label
+}
+
+func statRow(g cascade.Group) views.StatRowView {
+	label := groupLabel(g)
 	med, ci := "—", "—"
 	if g.Flagged > 0 {
 		med, ci = medianText(g.Median)
@@ -158,9 +165,9 @@ func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error
 	if err != nil {
 		return err
 	}
-	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.String(), Protocol: a.Protocol.Label(),
+	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.Label(), Protocol: a.Protocol.Label(), PPVUnits: screen.PPVUnits,
 		Freshness: freshness(pending, s.now()),
-		ProtoID:   strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
+		ProtoID: strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
 	for _, t := range []string{"versions", "groups", "km", "kappa"} {
 		m.CSV[t] = statsCSVHref(t, q)
 	}
@@ -252,10 +259,7 @@ func ppvChart(groups []cascade.Group) (*charts.BoxPlot, bool) {
 		if g.OverRead == 0 {
 			continue
 		}
-		label := g.Label
-		if g.Dimension != "all" {
-			label = g.Dimension + " " + g.Label
-		}
+		label := groupLabel(g)
 		p := round4(g.PPV.Value())
 		labels = append(labels, label)
 		data = append(data, opts.BoxPlotData{Name: label, Value: []float64{round4(g.Wilson.Lo), p, p, p, round4(g.Wilson.Hi)}})
@@ -265,9 +269,13 @@ func ppvChart(groups []cascade.Group) (*charts.BoxPlot, bool) {
 		return nil, false
 	}
 	bp := charts.NewBoxPlot()
+	// Every interval is labelled: the axis shows every subgroup's name
+	// (interval 0), turned so long names do not collide, with room below.
 	bp.SetGlobalOptions(charts.WithInitializationOpts(chartInit("ppv")),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "item"}),
-		charts.WithYAxisOpts(opts.YAxis{Name: "PPV (95% Wilson interval)", Min: 0, Max: 1}))
+		charts.WithGridOpts(opts.Grid{Bottom: "110"}),
+		charts.WithXAxisOpts(opts.XAxis{AxisLabel: &opts.AxisLabel{Interval: "0", Rotate: 35, HideOverlap: opts.Bool(false)}}),
+		charts.WithYAxisOpts(opts.YAxis{Name: "per-episode PPV (95% Wilson interval)", Min: 0, Max: 1}))
 	bp.SetXAxis(labels).AddSeries("95% Wilson interval", data,
 		charts.WithItemStyleOpts(opts.ItemStyle{Color: "transparent", BorderColor: chartColour(chartBand), BorderWidth: 1.5}))
 	est := charts.NewScatter()

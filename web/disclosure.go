@@ -31,10 +31,10 @@ func disclosureOf(r *http.Request) disclosure {
 }
 
 // day words a calendar day of a participant enrolled on enrolled: the date
-// (YYYY-MM-DD), or "study day N".
+// in the date style (cohort.Date.Label), or "study day N".
 func (d disclosure) day(enrolled, day cohort.Date) string {
 	if d.dates {
-		return day.String()
+		return day.Label()
 	}
 	return "study day " + strconv.Itoa(deid.StudyTimeOf(enrolled, day).Day)
 }
@@ -48,7 +48,7 @@ func (d disclosure) dayAt(enrolled cohort.Date, loc *time.Location, t time.Time)
 // counted from the study's first enrolment (first).
 func (d disclosure) enrolment(first, enrolled cohort.Date) string {
 	if d.dates {
-		return enrolled.String()
+		return enrolled.Label()
 	}
 	return "recruitment week " + strconv.Itoa(deid.RecruitmentWeek(first, enrolled))
 }
@@ -58,17 +58,26 @@ func (d disclosure) enrolment(first, enrolled cohort.Date) string {
 // study's first enrolment (first), the numbering enrolments get.
 func (d disclosure) calendarWeek(first, monday cohort.Date) string {
 	if d.dates {
-		return monday.String()
+		return monday.Label()
 	}
 	return "recruitment week " + strconv.Itoa(deid.RecruitmentWeek(first, monday))
 }
 
-// weekSpan words the days of study week n: "Mar 4 – Mar 10", or
-// "days 28–34".
+// weekKey names a calendar week in page ids (test ids, anchors): its Monday
+// as YYYY-MM-DD, or, for roles that see no dates, its recruitment week.
+func (d disclosure) weekKey(first, monday cohort.Date) string {
+	if d.dates {
+		return monday.String()
+	}
+	return d.calendarWeek(first, monday)
+}
+
+// weekSpan words the days of study week n in the participant's zone loc:
+// "4 Mar – 10 Mar 2026" (cohort.DateRangeLabel), or "days 28–34".
 func (d disclosure) weekSpan(enrolled cohort.Date, loc *time.Location, n int) string {
 	if d.dates {
 		start, end := cohort.WeekBounds(enrolled, loc, n)
-		return start.Format("Jan 2") + " – " + end.AddDate(0, 0, -1).Format("Jan 2")
+		return cohort.DateRangeLabel(cohort.DateOf(start), cohort.DateOf(end.AddDate(0, 0, -1)))
 	}
 	return fmt.Sprintf("days %d–%d", 7*n, 7*n+6)
 }
@@ -83,12 +92,19 @@ func (d disclosure) text(s string) string {
 
 // timeAxis is the time axis of a chart of one participant-week that starts
 // at weekStart (Unix ms) and ends at weekEnd: for roles that see dates a
-// calendar time axis of Unix milliseconds; for the others a value axis of
+// calendar time axis in the participant's own time (loc): each instant at
+// its wall-clock time there, in milliseconds the chart must read as UTC
+// (wallClock), the axis named for the zone; for the others a value axis of
 // study days (week n's start is day 7n), so the chart's data holds no
 // timestamp. x maps a reading's Unix ms to the axis.
-func (d disclosure) timeAxis(n int, weekStart, weekEnd int64) (x func(ms int64) any, axis opts.XAxis) {
+func (d disclosure) timeAxis(n int, weekStart, weekEnd int64, loc *time.Location) (x func(ms int64) any, axis opts.XAxis) {
 	if d.dates {
-		return func(ms int64) any { return ms }, opts.XAxis{Type: "time", Min: weekStart, Max: weekEnd}
+		wall := func(ms int64) int64 {
+			_, off := time.UnixMilli(ms).In(loc).Zone()
+			return ms + int64(off)*1000
+		}
+		return func(ms int64) any { return wall(ms) }, opts.XAxis{Type: "time", Min: wall(weekStart), Max: wall(weekEnd),
+			Name: "participant's time (" + loc.String() + ")", NameLocation: "middle", NameGap: 26}
 	}
 	days := func(ms int64) float64 {
 		v := float64(7*n) + float64(ms-weekStart)/float64(24*time.Hour/time.Millisecond)

@@ -59,7 +59,7 @@ func TestMonitorSeesStudyTime(t *testing.T) {
 		t.Error("the monitor's page shows the participant's time zone")
 	}
 	_, staff := a.get(coord, path)
-	for _, want := range []string{p.enrolled.String(), p.withdrawn.String(), freeTextMarker, "Time zone"} {
+	for _, want := range []string{p.enrolled.Label(), p.withdrawn.Label(), freeTextMarker, "Time zone"} {
 		if !strings.Contains(staff, want) {
 			t.Errorf("the coordinator's page lacks %q", want)
 		}

@@ -41,7 +41,7 @@ func (s *Server) renderExports(w http.ResponseWriter, r *http.Request, status in
 	ctx := r.Context()
 	rl := role(r)
 	m := views.ExportsModel{Page: s.page(r, "Exports", "exports"), ReviewCaution: deid.ReviewCaution,
-		CanReferrals: referrals.allows(rl), CanDataset: deidExport.allows(rl), Message: msg, Errors: errs, StudyID: studyID}
+		CanReferrals: referrals.allows(rl), CanDataset: deidExport.allows(rl), Message: msg, Errors: errs, StudyID: studyID, Paper: s.studyPaper(ctx)}
 	if m.CanReferrals {
 		ready, err := s.store.ReadyToRefer(ctx)
 		if err != nil {
@@ -60,8 +60,9 @@ func (s *Server) renderExports(w http.ResponseWriter, r *http.Request, status in
 	if err != nil {
 		return err
 	}
+	loc := s.studyZone(ctx)
 	for _, e := range exports {
-		m.Exports = append(m.Exports, exportRow(e))
+		m.Exports = append(m.Exports, exportRow(e, loc))
 	}
 	refs, err := s.store.Referrals(ctx, 100)
 	if err != nil {
@@ -71,7 +72,7 @@ func (s *Server) renderExports(w http.ResponseWriter, r *http.Request, status in
 		return err
 	}
 	for _, f := range refs {
-		row := views.ReferralRowView{ID: f.ID, Code: f.Code, StudyID: f.StudyID, Issued: f.IssuedAt.UTC().Format("2006-01-02 15:04 UTC"),
+		row := views.ReferralRowView{ID: f.ID, Code: f.Code, StudyID: f.StudyID, Issued: when(f.IssuedAt, loc),
 			By: f.IssuedBy, Format: f.Format + ", " + paperLabel(f.Paper), Digest: f.ContentSHA256[:16] + "…"}
 		if m.CanReferrals {
 			row.Href = fmt.Sprintf("/referrals/%d", f.ID)
@@ -80,7 +81,7 @@ func (s *Server) renderExports(w http.ResponseWriter, r *http.Request, status in
 			row.CaseHref = fmt.Sprintf("/cases/%d", f.CaseID)
 		}
 		if !f.SignedOffAt.IsZero() {
-			row.SignedOff = f.SignedOffBy + ", " + f.SignedOffAt.UTC().Format("2006-01-02")
+			row.SignedOff = f.SignedOffBy + ", " + when(f.SignedOffAt, loc)
 		}
 		m.Referrals = append(m.Referrals, row)
 	}
@@ -91,12 +92,12 @@ func (s *Server) renderExports(w http.ResponseWriter, r *http.Request, status in
 	return nil
 }
 
-func exportRow(e db.Export) views.ExportRowView {
+func exportRow(e db.Export, loc *time.Location) views.ExportRowView {
 	kind := "de-identified dataset"
 	if e.Kind == db.ExportReferralBatch {
 		kind = "referral summaries (zip of PDFs)"
 	}
-	row := views.ExportRowView{ID: e.ID, Kind: kind, When: e.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), Who: e.Actor, File: e.FileName,
+	row := views.ExportRowView{ID: e.ID, Kind: kind, When: when(e.CreatedAt, loc), Who: e.Actor, File: e.FileName,
 		Size: strconv.FormatInt((e.Bytes+1023)/1024, 10) + " kB", Digest: e.SHA256[:16] + "…"}
 	var man struct {
 		Files []struct {

@@ -11,7 +11,6 @@ import (
 
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/views/components"
 )
 
 // maxVerdictUpload bounds a verdicts file: a line per participant-week of a
@@ -24,9 +23,11 @@ func (s *Server) externalPage(w http.ResponseWriter, r *http.Request, status int
 		return err
 	}
 	m := views.ExternalModel{Page: s.page(r, "External verdicts", "screening"), Errors: errs, Result: res}
+	loc := s.studyZone(r.Context())
 	for _, im := range list {
-		m.Imports = append(m.Imports, views.VerdictImportRow{ID: im.ID, File: im.File, Status: im.Status, Tone: components.Tone(statusTone(im.Status)),
-			When: im.StartedAt.UTC().Format("2006-01-02 15:04 UTC"), Actor: im.Actor, Message: im.Message})
+		status, tone := importOutcome(im.Status, im.Accepted, im.Rejected, im.Duplicates)
+		m.Imports = append(m.Imports, views.VerdictImportRow{ID: im.ID, File: im.File, Status: status, Tone: tone,
+			When: when(im.StartedAt, loc), Actor: im.Actor, Message: im.Message})
 	}
 	s.render(w, r, status, views.External(m))
 	return nil

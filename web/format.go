@@ -7,25 +7,20 @@ import (
 	"math"
 	"strconv"
 	"strings"
-	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/views"
 )
 
 // The small wording and encoding helpers every area's handlers share.
 
-// dayLabel shows a calendar day with its weekday, the way staff plan work.
-func dayLabel(d cohort.Date) string {
-	return time.Date(d.Year, d.Month, d.Day, 12, 0, 0, 0, time.UTC).Format("Mon 2 Jan 2006")
-}
+// dayLabel shows a calendar day with its weekday, the way staff plan work
+// (cohort.Date.DayLabel: "Thu 3 Dec 2026").
+func dayLabel(d cohort.Date) string { return d.DayLabel() }
 
-// plural counts a thing in words: "1 case", "3 cases".
-func plural(n int, one string) string {
-	if n == 1 {
-		return "1 " + one
-	}
-	return strconv.Itoa(n) + " " + one + "s"
-}
+// plural counts a thing in words: "1 case", "3 cases" (views.Plural, the
+// one rule for counted words).
+func plural(n int, one string) string { return views.Plural(n, one) }
 
 // csvSafe defuses cells that spreadsheet programs would run as formulas.
 func csvSafe(v string) string {

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
 )
 
 func formRequest(vals url.Values) *http.Request {
@@ -107,7 +108,7 @@ func TestStudySettingsFormReading(t *testing.T) {
 		"first_contact_working_days": {"two"}, "max_attempts": {"0"}, "give_up_after_days": {"14"}, "recorder_send_within_days": {"5"},
 		"recording_back_within_days": {"14"}, "over_read_within_days": {"7"}, "refer_or_close_within_days": {"3"},
 		"episode_gap_weeks": {"2"}, "closure_days": {"2026-12-25\n2026-13-01"}}
-	_, err := studyInput(readForm(form))
+	_, err := studyInput(readForm(form), followup.PaperA4)
 	var ve *cohort.ValidationError
 	if !errors.As(err, &ve) {
 		t.Fatalf("unreadable settings: %v", err)
@@ -122,7 +123,7 @@ func TestStudySettingsFormReading(t *testing.T) {
 	form.Set("max_attempts", "4")
 	form.Set("closure_days", "2026-12-25, 2026-01-01\n2026-12-25")
 	form.Set("time_zone", "Europe/Lisbon")
-	st, err := studyInput(readForm(form))
+	st, err := studyInput(readForm(form), followup.PaperA4)
 	if err != nil || st.Name != "Rhythm study" || st.TimeZone != "Europe/Lisbon" || st.Service.FirstContactWorkingDays != 3 ||
 		st.FollowUpWeeks != 0 || len(st.ClosureDays) != 2 || st.ClosureDays[0].String() != "2026-01-01" {
 		t.Fatalf("read %+v %v", st, err)
@@ -135,7 +136,7 @@ func TestStudySettingsFormReading(t *testing.T) {
 // one date per line.
 func FuzzClosureDays(f *testing.F) {
 	for _, seed := range []string{"", "2026-12-25", "2026-12-25\n2026-01-01, 2026-12-25", " 2026-02-29", "2026-13-01", "1999-12-31",
-		"2026-07-04;2026-07-03\r\n", "\t,,;", "2026-1-5", "20261225"} {
+		"2026-07-04;2026-07-03\r\n", "\t,,;", "2026-1-5", "20261225", "24 Dec 2026\nFri 25 Dec 2026", "2026-12-24 2026-12-31"} {
 		f.Add(seed)
 	}
 	f.Fuzz(func(t *testing.T, text string) {
@@ -146,7 +147,7 @@ func FuzzClosureDays(f *testing.F) {
 			}
 			return
 		}
-		var lines []string
+		var lines, labels []string
 		for i, d := range days {
 			if i > 0 && !days[i-1].Before(d) {
 				t.Fatalf("%q: days not sorted and unique: %v", text, days)
@@ -155,10 +156,17 @@ func FuzzClosureDays(f *testing.F) {
 				t.Fatalf("%q: accepted %s", text, d)
 			}
 			lines = append(lines, d.String())
+			labels = append(labels, d.Label())
 		}
 		again, err := closureDays(strings.Join(lines, "\n"))
 		if err != nil || !slices.Equal(again, days) {
 			t.Fatalf("%q: round trip gave %v (%v), want %v", text, again, err, days)
+		}
+		// The form shows the days in the date style; saved unchanged, they
+		// read back the same.
+		again, err = closureDays(strings.Join(labels, "\n"))
+		if err != nil || !slices.Equal(again, days) {
+			t.Fatalf("%q: round trip in the date style gave %v (%v), want %v", text, again, err, days)
 		}
 	})
 }

@@ -10,7 +10,6 @@ import (
 	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
-	"cohortdesk/views/components"
 )
 
 type homeStore interface {
@@ -31,19 +30,19 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 	}
 	m := views.HomeModel{
 		Page:  s.page(r, "Overview", "home"),
-		AsOf:  "at " + s.now().UTC().Format("2006-01-02 15:04 UTC"),
-		Tiles: []views.Tile{{Key: "participants", Label: "participants enrolled", Value: c.Participants}},
+		AsOf:  "at " + when(s.now(), s.studyZone(ctx)),
+		Tiles: []views.Tile{{Key: "participants", Label: views.Noun(c.Participants, "participant") + " enrolled", Value: c.Participants}},
 	}
 	list := s.may(r, "/cases")
 	for _, st := range cohort.ParticipantStatuses() {
-		t := views.Tile{Key: string(st), Label: "participants " + st.Label(), Value: c.Status[st]}
+		t := views.Tile{Key: string(st), Label: views.Noun(c.Status[st], "participant") + " " + st.Label(), Value: c.Status[st]}
 		if s.may(r, "/participants") {
 			t.Href = "/participants?status=" + string(st)
 		}
 		m.Tiles = append(m.Tiles, t)
 	}
-	m.Tiles = append(m.Tiles, views.Tile{Key: "sites", Label: "sites", Value: c.Sites})
-	waiting := views.Tile{Key: "awaiting-read", Label: "recordings waiting for an over-read", Value: int64(c.AwaitingRead)}
+	m.Tiles = append(m.Tiles, views.Tile{Key: "sites", Label: views.Noun(c.Sites, "site"), Value: c.Sites})
+	waiting := views.Tile{Key: "awaiting-read", Label: views.Noun(int64(c.AwaitingRead), "recording") + " waiting for an over-read", Value: int64(c.AwaitingRead)}
 	if s.may(r, "/confirmations") {
 		waiting.Href = "/confirmations"
 	}
@@ -57,9 +56,10 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 		for _, g := range triageGroups {
 			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.tile, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
 		}
-		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: "other cases, on schedule", Value: int64(t.Counts[followup.BucketOther]), Href: "/cases"})
+		other := int64(t.Counts[followup.BucketOther])
+		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: "other " + views.Noun(other, "case") + ", on schedule", Value: other, Href: "/cases"})
 		m.WorkNote = fmt.Sprintf("As of %s, %s (%s); the triage page lists them in order of urgency.",
-			dayLabel(t.Settings.Calendar().DateOf(t.Now)), t.Now.Format("15:04"), t.Settings.Location())
+			dayLabel(t.Settings.Calendar().DateOf(t.Now)), cohort.ClockLabel(t.Now, t.Settings.Location()), t.Settings.Location())
 	}
 	for _, st := range followup.States() {
 		n := c.Cases[st]
@@ -79,12 +79,14 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 		}
 		if len(imps) > 0 {
 			rep := imps[0]
-			when := "started " + rep.StartedAt.UTC().Format("2006-01-02 15:04 UTC")
+			loc := s.studyZone(ctx)
+			at := "started " + when(rep.StartedAt, loc)
 			if rep.FinishedAt != nil {
-				when = "finished " + rep.FinishedAt.UTC().Format("2006-01-02 15:04 UTC")
+				at = "finished " + when(*rep.FinishedAt, loc)
 			}
-			m.LastImport = &views.ImportSummary{Href: fmt.Sprintf("/imports/%d", rep.ID), File: rep.FileName, Status: rep.Status,
-				Tone: components.Tone(statusTone(rep.Status)), When: when, Accepted: rep.Accepted, Rejected: rep.Rejected}
+			status, tone := importOutcome(rep.Status, rep.Accepted, rep.Rejected, rep.Duplicates)
+			m.LastImport = &views.ImportSummary{Href: fmt.Sprintf("/imports/%d", rep.ID), File: rep.FileName, Status: status,
+				Tone: tone, When: at, Accepted: rep.Accepted, Rejected: rep.Rejected}
 		}
 	}
 	return s.ok(w, r, views.Home(m))

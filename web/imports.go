@@ -13,6 +13,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/db"
 	"cohortdesk/views"
+	"cohortdesk/views/components"
 )
 
 type importStore interface {
@@ -43,6 +44,27 @@ func statusTone(status string) string {
 	return "neutral"
 }
 
+// importOutcome words an import's status for its badge: a file read to the
+// end is "done" only when something came of it; one whose rows were all
+// refused stored nothing and says so in a warning colour, and one with some
+// rows refused says that too.
+func importOutcome(status string, accepted, rejected, duplicates int64) (string, components.Tone) {
+	if status != "done" {
+		return status, components.Tone(statusTone(status))
+	}
+	switch {
+	case accepted == 0 && rejected > 0:
+		return "nothing stored: every row refused", components.Warn
+	case rejected > 0:
+		return "done, " + plural(int(rejected), "row") + " refused", components.Warn
+	case accepted == 0 && duplicates > 0:
+		return "done, nothing new", components.Info
+	case accepted == 0:
+		return "done, nothing stored", components.Warn
+	}
+	return "done", components.OK
+}
+
 func kindLabel(kind string) string {
 	switch kind {
 	case db.ImportReadingsCSV:
@@ -61,9 +83,11 @@ func (s *Server) importsList(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	m := views.ImportsModel{Page: s.page(r, "Imports", "participants")}
+	loc := s.studyZone(r.Context())
 	for _, rep := range reps {
-		m.Rows = append(m.Rows, views.ImportRow{ID: rep.ID, File: rep.FileName, Kind: kindLabel(rep.Kind), Status: rep.Status, Tone: statusTone(rep.Status),
-			Started: rep.StartedAt.UTC().Format("2006-01-02 15:04"), Actor: rep.Actor, Accepted: rep.Accepted, Rejected: rep.Rejected, Duplicate: rep.Duplicates})
+		status, tone := importOutcome(rep.Status, rep.Accepted, rep.Rejected, rep.Duplicates)
+		m.Rows = append(m.Rows, views.ImportRow{ID: rep.ID, File: rep.FileName, Kind: kindLabel(rep.Kind), Status: status, Tone: string(tone),
+			Started: when(rep.StartedAt, loc), Actor: rep.Actor, Accepted: rep.Accepted, Rejected: rep.Rejected, Duplicate: rep.Duplicates})
 	}
 	return s.ok(w, r, views.Imports(m))
 }
@@ -165,12 +189,14 @@ func (s *Server) importShow(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
+	loc := s.studyZone(r.Context())
+	status, tone := importOutcome(rep.Status, rep.Accepted, rep.Rejected, rep.Duplicates)
 	m := views.ImportReportModel{Page: s.page(r, "Import "+rep.FileName, "participants"), ID: rep.ID, File: rep.FileName, Kind: kindLabel(rep.Kind),
-		Status: rep.Status, Tone: statusTone(rep.Status), Message: rep.Message, SHA256: rep.SHA256, Size: humanBytes(max(rep.Size, rep.BytesRead)),
-		Started: rep.StartedAt.UTC().Format("2006-01-02 15:04:05 UTC"), Actor: rep.Actor, Rows: rep.Rows, Accepted: rep.Accepted,
+		Status: status, Tone: string(tone), Message: rep.Message, SHA256: rep.SHA256, Size: humanBytes(max(rep.Size, rep.BytesRead)),
+		Started: when(rep.StartedAt, loc), Actor: rep.Actor, Rows: rep.Rows, Accepted: rep.Accepted,
 		Rejected: rep.Rejected, Duplicates: rep.Duplicates, Rejects: fmt.Sprintf("/imports/%d/rejects.csv", rep.ID)}
 	if rep.FinishedAt != nil {
-		m.Finished = rep.FinishedAt.UTC().Format("15:04:05 UTC")
+		m.Finished = when(*rep.FinishedAt, loc)
 	}
 	if rep.Status == "done" && rep.Accepted == 0 && rep.Duplicates > 0 {
 		m.SameAs = "Every reading in this file was already stored: nothing changed."

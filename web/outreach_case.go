@@ -114,7 +114,7 @@ func lastMessageLine(m *db.Message, loc *time.Location) (string, bool) {
 	if m == nil {
 		return "", false
 	}
-	return fmt.Sprintf("%s %s %s", m.Channel.Label(), m.Status.Label(), m.CreatedAt.In(loc).Format("Jan 2")), m.Status.NotDelivered()
+	return fmt.Sprintf("%s %s %s", m.Channel.Label(), m.Status.Label(), dayOf(m.CreatedAt, loc)), m.Status.NotDelivered()
 }
 
 // caseOutreach is the case page's panel of messages.
@@ -133,7 +133,7 @@ func (s *Server) caseOutreach(r *http.Request, c db.Case, errs map[string]string
 		m.Purpose = m.Purposes[0].Value
 	}
 	if p.Recorded {
-		m.PrefBy = p.UpdatedBy + " on " + p.UpdatedAt.In(now.Location()).Format("2006-01-02 15:04 MST")
+		m.PrefBy = p.UpdatedBy + " on " + when(p.UpdatedAt, now.Location())
 	}
 	m.Preferred = "none named"
 	if p.Preferred != "" {
@@ -169,7 +169,7 @@ func (s *Server) caseOutreach(r *http.Request, c db.Case, errs map[string]string
 	}
 	if rc.Last != nil && rc.Last.Status.NotDelivered() {
 		m.Failed = fmt.Sprintf("The %s of %s (%s) did not reach the participant: %s. %s", rc.Last.Channel.Label(),
-			rc.Last.CreatedAt.In(now.Location()).Format("2006-01-02"), rc.Last.Purpose.Label(), rc.Last.Status.Label()+" ("+rc.Last.Detail+")",
+			dayOf(rc.Last.CreatedAt, now.Location()), rc.Last.Purpose.Label(), rc.Last.Status.Label()+" ("+rc.Last.Detail+")",
 			"Check the contact details, or try another channel.")
 	}
 	return views.OutreachCase(m), nil

@@ -82,13 +82,13 @@ func (s *Server) renderBatch(w http.ResponseWriter, r *http.Request, id int64, s
 	}
 	loc := st.Location()
 	m := views.LetterBatchModel{Page: s.page(r, fmt.Sprintf("Letters, batch %d", id), "cases"), ID: id, Template: b.Template.Label(),
-		Paper: "A4", Created: b.CreatedBy + " on " + b.CreatedAt.In(loc).Format("2006-01-02 15:04 MST"),
+		Paper: "A4", Created: b.CreatedBy + " on " + when(b.CreatedAt, loc),
 		Skipped: b.Skipped, PDFHref: fmt.Sprintf("/letters/%d/pdf", id), Message: msg}
 	if b.Paper == outreach.PaperLetter.Name {
 		m.Paper = "US Letter"
 	}
 	if !b.PostedAt.IsZero() {
-		m.Posted = b.PostedBy + " on " + b.PostedAt.In(loc).Format("2006-01-02 15:04 MST")
+		m.Posted = b.PostedBy + " on " + when(b.PostedAt, loc)
 	}
 	for _, c := range b.Cases {
 		m.Cases = append(m.Cases, views.Option{Value: fmt.Sprintf("/cases/%d", c.CaseID), Label: c.StudyID})

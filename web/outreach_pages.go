@@ -50,7 +50,7 @@ func (s *Server) outbox(w http.ResponseWriter, r *http.Request) error {
 	for _, msg := range ob.Rows {
 		m.Rows = append(m.Rows, views.MessageRowView{ID: msg.ID, Href: fmt.Sprintf("/messages/%d", msg.ID), CaseHref: fmt.Sprintf("/cases/%d", msg.CaseID),
 			StudyID: msg.StudyID, Channel: msg.Channel.Label(), Purpose: msg.Purpose.Label(), Template: "v" + strconv.Itoa(msg.TemplateVersion),
-			Status: messageStatusLabel(msg), Tone: messageTone(msg.Status), When: msg.CreatedAt.In(st.Location()).Format("2006-01-02 15:04"), Detail: msg.Detail})
+			Status: messageStatusLabel(msg), Tone: messageTone(msg.Status), When: when(msg.CreatedAt, st.Location()), Detail: msg.Detail})
 	}
 	return s.ok(w, r, views.Outbox(m))
 }
@@ -94,14 +94,14 @@ func (s *Server) messageShow(w http.ResponseWriter, r *http.Request) error {
 		{Label: "Message", Value: msg.Purpose.Label()},
 		{Label: "Template", Value: fmt.Sprintf("version %d", msg.TemplateVersion)},
 		{Label: "Status", Value: messageStatusLabel(msg)},
-		{Label: "Queued", Value: msg.CreatedAt.In(loc).Format("2006-01-02 15:04 MST") + " by " + msg.Actor},
+		{Label: "Queued", Value: when(msg.CreatedAt, loc) + " by " + msg.Actor},
 		{Label: "Message-ID / key", Value: msg.Key},
 	}
 	if msg.Held {
-		m.Facts = append(m.Facts, views.FactView{Label: "Held until", Value: msg.SendAfter.In(loc).Format("2006-01-02 15:04 MST")})
+		m.Facts = append(m.Facts, views.FactView{Label: "Held until", Value: when(msg.SendAfter, loc)})
 	}
 	if !msg.SentAt.IsZero() {
-		m.Facts = append(m.Facts, views.FactView{Label: "Sent", Value: msg.SentAt.In(loc).Format("2006-01-02 15:04 MST")})
+		m.Facts = append(m.Facts, views.FactView{Label: "Sent", Value: when(msg.SentAt, loc)})
 	}
 	if msg.Detail != "" {
 		m.Facts = append(m.Facts, views.FactView{Label: "Answer", Value: msg.Detail})
@@ -183,10 +183,10 @@ func messageEntry(out views.TimelineEntry, m db.Message, loc *time.Location) vie
 	out.Title = strings.ToUpper(ch[:1]) + ch[1:] + " " + m.Status.Label() + ": " + m.Purpose.Label() + " (template v" + strconv.Itoa(m.TemplateVersion) + ")"
 	out.Lines = []string{"status: " + messageStatusLabel(m)}
 	if m.Status == outreach.Queued && m.Held {
-		out.Lines = append(out.Lines, "held until "+m.SendAfter.In(loc).Format("2006-01-02 15:04 MST")+", the end of the participant's quiet hours")
+		out.Lines = append(out.Lines, "held until "+when(m.SendAfter, loc)+", the end of the participant's quiet hours")
 	}
 	if !m.SentAt.IsZero() {
-		out.Lines = append(out.Lines, "sent "+m.SentAt.In(loc).Format("2006-01-02 15:04 MST"))
+		out.Lines = append(out.Lines, "sent "+when(m.SentAt, loc))
 	}
 	if m.Detail != "" {
 		out.Lines = append(out.Lines, "answer: "+m.Detail)

@@ -49,14 +49,15 @@ func (s *Server) overReadTools(r *http.Request, rec db.Recording, m *views.Recor
 	if from, err := strconv.ParseInt(r.URL.Query().Get("from"), 10, 64); err == nil && from > 0 && r.URL.Query().Get("done") == "read-next" {
 		m.PrevHref, m.Waiting = fmt.Sprintf("/recordings/%d", from), waiting
 	}
+	loc := s.studyZone(ctx)
 	for _, v := range rec.Revisions {
 		m.Earlier = append(m.Earlier, views.RevisionView{Role: v.Role.Label(), Rhythm: v.Rhythm.Label(), Confidence: v.Confidence.Label(),
-			Reader: v.Reader, On: v.On.String(), Change: v.Change.Label(), ChangedBy: v.ChangedBy,
-			ChangedAt: v.ChangedAt.UTC().Format("2006-01-02 15:04 UTC"), Reason: v.Reason})
+			Reader: v.Reader, On: v.On.Label(), Change: v.Change.Label(), ChangedBy: v.ChangedBy,
+			ChangedAt: when(v.ChangedAt, loc), Reason: v.Reason})
 	}
 	m.NotNeeded = views.NotNeededView{Reason: rec.NotNeeded, By: rec.NotNeededBy, CanSet: reads && awaits(rec)}
 	if !rec.NotNeededAt.IsZero() {
-		m.NotNeeded.At = rec.NotNeededAt.UTC().Format("2006-01-02 15:04 UTC")
+		m.NotNeeded.At = when(rec.NotNeededAt, loc)
 	}
 	last := overread.Revisable(readingsOf(rec))
 	if !reads || last == "" || rec.CaseState.Terminal() {

@@ -10,9 +10,9 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/enrolment"
 	"cohortdesk/cohort/screen"
-	"cohortdesk/cohort/stats"
 	"cohortdesk/db"
 	"cohortdesk/views"
 	"cohortdesk/views/components"
@@ -33,16 +33,14 @@ type participantStore interface {
 	Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error
 }
 
-// ageBands are the subgroup bands shown instead of exact ages.
-var ageBands, _ = stats.NewAgeBands(50, 60, 70, 80)
-
-// ageBand of a participant today, from the age at enrolment (no PHI needed).
+// ageBand of a participant today, from the age at enrolment (no PHI
+// needed), in the one set of age bands (deid.AgeBand), the referral
+// summary's.
 func ageBand(p db.Participant, now time.Time) string {
 	if p.AgeAtEnrolment == nil {
 		return "not recorded"
 	}
-	age := *p.AgeAtEnrolment + cohort.DateOf(now).DaysSince(p.EnrolledOn)/365
-	return ageBands.Label(age)
+	return deid.AgeBand(deid.AgeSince(*p.AgeAtEnrolment, p.EnrolledOn, cohort.DateOf(now.In(p.Location()))).Years)
 }
 
 // statusDay is what a participant's status is read against: the study's
@@ -181,7 +179,7 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		}
 		birth := ""
 		if id.BirthDate != nil {
-			birth = id.BirthDate.String()
+			birth = id.BirthDate.Label()
 		}
 		m.Identity = []views.Fact{{Label: "Name", Value: id.FullName()}, {Label: "Birth date", Value: birth}, {Label: "Phone", Value: id.Phone},
 			{Label: "E-mail", Value: id.Email}, {Label: "Address", Value: strings.TrimSpace(id.Street + ", " + id.City + " " + id.ZIP)},
@@ -214,8 +212,12 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.NotesHidden = !d.dates
 	if d.dates {
+		if r.URL.Query().Get("done") == "note" {
+			m.NoteSaved = "Note saved."
+		}
+		studyLoc := s.studyZone(ctx)
 		for _, n := range sheet.Notes {
-			m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: n.At.UTC().Format("2006-01-02 15:04 UTC")})
+			m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: when(n.At, studyLoc)})
 		}
 	}
 	return s.ok(w, r, views.ParticipantPage(m))
@@ -429,6 +431,6 @@ func (s *Server) participantNote(w http.ResponseWriter, r *http.Request) error {
 	if err := s.store.AddNote(r.Context(), s.actor(r), p.ID, r.PostForm.Get("body")); err != nil {
 		return err
 	}
-	http.Redirect(w, r, fmt.Sprintf("/participants/%d#notes", p.ID), http.StatusSeeOther)
+	http.Redirect(w, r, fmt.Sprintf("/participants/%d?done=note#notes", p.ID), http.StatusSeeOther)
 	return nil
 }

@@ -14,6 +14,7 @@ import (
 	"cohortdesk/cohort/deid"
 	"cohortdesk/db"
 	"cohortdesk/views"
+	"cohortdesk/views/components"
 )
 
 // participantFilter reads the filter from the query string, strictly (a
@@ -79,7 +80,7 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
 		CanEnrol: coordWork.allows(role(r)), Total: page.Total}
 	for _, st := range cohort.ParticipantStatuses() {
-		m.ByStatus = append(m.ByStatus, views.Tile{Key: string(st), Label: "participants " + st.Label(), Value: page.Status[st]})
+		m.ByStatus = append(m.ByStatus, views.Tile{Key: string(st), Label: views.Noun(page.Status[st], "participant") + " " + st.Label(), Value: page.Status[st]})
 	}
 	d := disclosureOf(r)
 	first, err := s.firstEnrolment(ctx, d)
@@ -109,6 +110,10 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 		}
 	}
 	q := r.URL.Query()
+	m.Sort = map[string]components.SortHead{}
+	for _, c := range []struct{ key, label string }{{"study_id", "Study ID"}, {"site", "Site"}, {"enrolled", "Enrolled"}} {
+		m.Sort[c.key] = sortHead("/participants", q, c.label, c.key, f.Sort, "study_id", f.Desc)
+	}
 	if page.Next != "" {
 		q.Set("after", page.Next)
 		m.Next = "/participants?" + q.Encode()

@@ -93,8 +93,9 @@ func (f enrolFig) percent() string {
 }
 
 // dates words the projection: the expected date and the range of the
-// interval's scenarios.
-func (f enrolFig) dates() (projection, earliest, latest string) {
+// interval's scenarios, each day written by day (cohort.Date.Label on
+// pages, cohort.Date.String in files).
+func (f enrolFig) dates(day func(cohort.Date) string) (projection, earliest, latest string) {
 	if !f.Projected {
 		return f.Why, "", ""
 	}
@@ -105,13 +106,13 @@ func (f enrolFig) dates() (projection, earliest, latest string) {
 	case !p.Expected.Reachable:
 		projection = "not reachable at the recent rate (no enrolments in the window)"
 	default:
-		projection = p.Expected.Date.String()
+		projection = day(p.Expected.Date)
 	}
 	if p.Optimistic.Reachable {
-		earliest = p.Optimistic.Date.String()
+		earliest = day(p.Optimistic.Date)
 		latest = "not reachable at the lower rate"
 		if p.Pessimistic.Reachable {
-			latest = p.Pessimistic.Date.String()
+			latest = day(p.Pessimistic.Date)
 		}
 	}
 	return projection, earliest, latest
@@ -120,7 +121,7 @@ func (f enrolFig) dates() (projection, earliest, latest string) {
 func (f enrolFig) row() views.EnrolmentRow {
 	row := views.EnrolmentRow{Key: f.key, Label: f.label, Target: f.Site.Target, Enrolled: f.Enrolled, Withdrawn: f.Withdrawn, Percent: f.percent()}
 	var earliest, latest string
-	row.Projection, earliest, latest = f.dates()
+	row.Projection, earliest, latest = f.dates(cohort.Date.Label)
 	if f.Projected {
 		p := f.Projection
 		row.Rate = fmt.Sprintf("%.1f a week (95%% CI %.1f–%.1f) over %d weeks", p.Expected.RatePerWeek, p.Pessimistic.RatePerWeek, p.Optimistic.RatePerWeek, p.Window)
@@ -161,7 +162,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	if err := g.Wait(); err != nil {
 		return err
 	}
-	m := views.ProgressModel{Page: s.page(r, "Progress", "progress"), Window: window, AsOf: h.Today.String()}
+	m := views.ProgressModel{Page: s.page(r, "Progress", "progress"), Window: window, AsOf: h.Today.Label()}
 	figs, all := studyFigures(h, window)
 	for _, f := range figs {
 		m.Enrolment = append(m.Enrolment, f.row())
@@ -228,7 +229,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 		label := d.calendarWeek(first, w.Week)
 		sx = append(sx, label)
 		sy = append(sy, opts.LineData{Value: fmt.Sprintf("%.1f", share)})
-		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
+		m.Sufficiency = append(m.Sufficiency, views.SufficiencyRow{Key: d.weekKey(first, w.Week), Week: label, Due: w.Active, Sufficient: w.Sufficient, Share: fmt.Sprintf("%.0f%%", share)})
 	}
 	sl.SetXAxis(sx).AddSeries("share of participant-weeks with enough usable wear", sy, paint(chartMeasure)...)
 	sch, _, err := chartView("sufficiency", "Share of participant-weeks with enough usable wear, by calendar week", sl, false)

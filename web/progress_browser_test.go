@@ -61,24 +61,27 @@ func TestBrowserPrintsWeeklyReport(t *testing.T) {
 			}
 		}
 		text := pdfText(t, pdf)
-		// pdftotext ends each page with a form feed. The cascade starts a
-		// page of its own and fits on it, every box with its count; the
-		// agreement figures start the next page.
+		// pdftotext ends each page with a form feed. The report flows from
+		// page to page so no page is left half blank (the demo's report is
+		// checked for that in TestWeeklyReportPrintFillsItsPages): the
+		// cascade may run over a page break between its boxes, but every box
+		// is printed whole, its name and its count on one page, and the
+		// agreement figures follow the cascade.
 		pages := strings.Split(text, "\f")
 		if n := len(pages) - 1; n != len(boxes) {
 			t.Errorf("%s: %d pages of text for %d pages", tt.paper, n, len(boxes))
 		}
-		starting := func(heading string) int {
+		holding := func(heading string) int {
 			for i, p := range pages {
-				if strings.HasPrefix(strings.TrimSpace(p), heading) {
+				if strings.Contains(p, heading) {
 					return i
 				}
 			}
 			return -1
 		}
-		cascadeAt, agreementAt := starting("Screening cascade"), starting("How well the flag predicts AF")
-		if cascadeAt < 1 || agreementAt != cascadeAt+1 {
-			t.Fatalf("%s: the cascade starts page %d and the agreement figures page %d; want each on a page of its own, one after the other", tt.paper, cascadeAt+1, agreementAt+1)
+		cascadeAt, agreementAt := holding("Screening cascade"), holding("How well the flag predicts AF")
+		if cascadeAt < 0 || agreementAt < cascadeAt {
+			t.Fatalf("%s: the cascade is on page %d and the agreement figures on page %d; want both, the agreement after the cascade", tt.paper, cascadeAt+1, agreementAt+1)
 		}
 		// In the text's layout a box's lines sit beside its exits' lines, so
 		// each line of a box is looked for on its own.
@@ -86,10 +89,13 @@ func TestBrowserPrintsWeeklyReport(t *testing.T) {
 		for _, id := range testIDs(html, "cascade-step-") {
 			step := section(html, id)
 			key := strings.TrimPrefix(id, "cascade-step-")
-			for _, want := range []string{label.FindStringSubmatch(step)[1], byTestID(step, "cascade-count-"+key) + " participant"} {
-				if !containsWrapped(pages[cascadeAt], want) {
-					t.Errorf("%s: the cascade's page lacks %q of box %s", tt.paper, want, key)
-				}
+			name, count := label.FindStringSubmatch(step)[1], byTestID(step, "cascade-count-"+key)+" participant"
+			whole := false
+			for _, p := range pages[cascadeAt:] {
+				whole = whole || containsWrapped(p, name) && containsWrapped(p, count)
+			}
+			if !whole {
+				t.Errorf("%s: box %s (%q, %q) is not printed whole on a page of the cascade", tt.paper, key, name, count)
 			}
 		}
 		wants := []string{

@@ -100,11 +100,11 @@ func (cq cascadeQuery) period() string {
 	case cq.from.IsZero() && cq.to.IsZero():
 		out = "all participants enrolled so far"
 	case cq.to.IsZero():
-		out = "participants enrolled from " + cq.from.String()
+		out = "participants enrolled from " + cq.from.Label()
 	case cq.from.IsZero():
-		out = "participants enrolled up to and including " + cq.to.String()
+		out = "participants enrolled up to and including " + cq.to.Label()
 	default:
-		out = "participants enrolled from " + cq.from.String() + " to " + cq.to.String() + " (both days included)"
+		out = "participants enrolled from " + cq.from.Label() + " to " + cq.to.Label() + " (both days included)"
 	}
 	if cq.siteCode != "" {
 		out += " at site " + cq.siteCode
@@ -288,7 +288,7 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	for _, p := range members {
 		row := views.CascadeMemberRow{Href: fmt.Sprintf("/participants/%d", p.ID), StudyID: p.StudyID, Site: p.SiteCode, Withdrawn: p.Withdrawn, Step: next}
 		if !deid {
-			row.Enrolled = p.EnrolledOn.String()
+			row.Enrolled = p.EnrolledOn.Label()
 		}
 		if p.Standing.Box == at && p.Standing.Exit != "" {
 			row.Step, row.InProgress = p.Standing.Exit.Label(), p.Standing.Exit.InProgress()
@@ -299,7 +299,7 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 				cv.Href = fmt.Sprintf("/cases/%d", k.ID)
 			}
 			if !deid {
-				cv.Flagged = k.FlaggedAt.In(loc).Format("2006-01-02")
+				cv.Flagged = dayOf(k.FlaggedAt, loc)
 			}
 			row.Cases = append(row.Cases, cv)
 		}

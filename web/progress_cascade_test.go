@@ -139,7 +139,7 @@ func TestProjectionWorkedExamplesThroughThePage(t *testing.T) {
 				`INSERT INTO participants (study_id, site_id, time_zone, enrolled_on) SELECT 'A-NEW-' || g, 1, 'UTC', date '2026-03-11' - (1 + 7 * (g % 4)) FROM generate_series(1, 12) g`,
 			},
 			window: "4", site: "AA",
-			rate: "3.0 a week (95% CI 1.6–5.2) over 4 weeks", projection: "2026-05-20", rng: "2026-04-22 to 2026-07-29",
+			rate: "3.0 a week (95% CI 1.6–5.2) over 4 weeks", projection: "20 May 2026", rng: "22 Apr 2026 to 29 Jul 2026",
 		},
 		{
 			// A study nine days old: 6 enrolled on days -9 (the first
@@ -154,7 +154,7 @@ func TestProjectionWorkedExamplesThroughThePage(t *testing.T) {
 				`INSERT INTO participants (study_id, site_id, time_zone, enrolled_on) SELECT 'C-' || g, 1, 'UTC', date '2026-03-11' - d FROM unnest(ARRAY[9, 8, 3, 2, 1, 0]) WITH ORDINALITY AS x(d, g)`,
 			},
 			window: "8", site: "CC",
-			rate: "3.0 a week (95% CI 1.1–6.5) over 2 weeks", projection: "2026-05-20",
+			rate: "3.0 a week (95% CI 1.1–6.5) over 2 weeks", projection: "20 May 2026",
 		},
 	}
 	for _, tt := range tests {
@@ -379,14 +379,14 @@ func TestCascadeBoxListsItsParticipantsByRole(t *testing.T) {
 		}
 	}
 	_, body := a.get(monitor, "/progress/cascade/reached")
-	if strings.Contains(body, `href="/cases/`) || strings.Contains(body, "2026-02-01") || strings.Contains(body, "2026-01-05") {
+	if strings.Contains(body, `href="/cases/`) || strings.Contains(body, "1 Feb 2026") || strings.Contains(body, "5 Jan 2026") || strings.Contains(body, "2026-02-01") || strings.Contains(body, "2026-01-05") {
 		t.Error("the monitor's list shows case links or dates")
 	}
 	if byTestID(body, "deidentified-note") == "" {
 		t.Error("the monitor's list does not say it is de-identified")
 	}
 	_, body = a.get(coord, "/progress/cascade/reached")
-	if !strings.Contains(body, `href="/cases/`) || !strings.Contains(body, "flagged 2026-02-01") || !strings.Contains(body, "2026-01-05") {
+	if !strings.Contains(body, `href="/cases/`) || !strings.Contains(body, "flagged 1 Feb 2026") || !strings.Contains(body, "5 Jan 2026") {
 		t.Error("the coordinator's list lacks case links or dates")
 	}
 
@@ -485,9 +485,9 @@ func TestDataSufficiencyWorkedExample(t *testing.T) {
 	}
 	_, body := a.get(a.signIn(cohort.Investigator), "/progress")
 	want := map[string]string{
-		"sufficiency-2026-02-09": "2026-02-09 1 1 100%",
-		"sufficiency-2026-02-16": "2026-02-16 2 2 100%",
-		"sufficiency-2026-02-23": "2026-02-23 2 1 50%",
+		"sufficiency-2026-02-09": "9 Feb 2026 1 1 100%",
+		"sufficiency-2026-02-16": "16 Feb 2026 2 2 100%",
+		"sufficiency-2026-02-23": "23 Feb 2026 2 1 50%",
 	}
 	if got := testIDs(body, "sufficiency-2"); len(got) != len(want) {
 		t.Errorf("weeks shown %v, want %d", got, len(want))
@@ -520,8 +520,8 @@ func TestDataSufficiencyCountsWeeksEndedInTheStudyZone(t *testing.T) {
 		now  time.Time
 		want string
 	}{
-		{time.Date(2026, 3, 2, 3, 0, 0, 0, time.UTC), "2026-02-23 1 1 100%"},
-		{time.Date(2026, 3, 2, 10, 0, 0, 0, time.UTC), "2026-02-23 2 1 50%"},
+		{time.Date(2026, 3, 2, 3, 0, 0, 0, time.UTC), "23 Feb 2026 1 1 100%"},
+		{time.Date(2026, 3, 2, 10, 0, 0, 0, time.UTC), "23 Feb 2026 2 1 50%"},
 	} {
 		a := newAppAt(t, c.now)
 		for _, q := range []string{

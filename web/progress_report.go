@@ -35,6 +35,8 @@ type reportFigures struct {
 	weekSpan  string
 	cascade   cascade.Cascade
 	agree     cascade.Agreement
+	week      reportWeek // the days reported and what the study did in them
+	today     cohort.Date
 	// disclose words the calendar weeks (dates, or recruitment weeks counted
 	// from first, the study's first enrolment) for the request's role.
 	disclose disclosure
@@ -53,6 +55,15 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	readCascadeQuery(q, sites, &rf.cq)
 	rf.window, rf.generated = windowOf(q), s.now()
 	q.oneOf("paper", paperA4, paperLetter)
+	loc := s.studyZone(ctx)
+	rf.today = cohort.DateOf(rf.generated.In(loc))
+	// A role that sees no dates chooses the week in recruitment weeks,
+	// counted from the first enrolment: read first.
+	rf.disclose = disclosureOf(r)
+	if rf.first, err = s.firstEnrolment(ctx, rf.disclose); err != nil {
+		return rf, nil, err
+	}
+	rf.week = readReportWeek(q, rf.today, rf.disclose, rf.first)
 	if err := q.err(); err != nil {
 		return rf, nil, err
 	}
@@ -63,8 +74,10 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	g.Go(func() (err error) { rf.hist, err = s.store.Enrolment(gctx, rf.cq.to); return err })
 	g.Go(func() (err error) { weeks, err = s.store.DataSufficiency(gctx); return err })
 	g.Go(func() (err error) { rf.cascade, rf.agree, err = s.store.Figures(gctx, rf.cq.filter); return err })
-	rf.disclose = disclosureOf(r)
-	g.Go(func() (err error) { rf.first, err = s.firstEnrolment(gctx, rf.disclose); return err })
+	g.Go(func() (err error) {
+		rf.week.week, rf.week.sofar, err = s.store.Activity(gctx, rf.cq.filter.SiteID, rf.week.from, rf.week.to, loc)
+		return err
+	})
 	if err := g.Wait(); err != nil {
 		return rf, nil, err
 	}
@@ -82,7 +95,7 @@ func (s *Server) readReport(r *http.Request) (reportFigures, []db.Site, error) {
 	case len(rf.weeks) == 0:
 		rf.weekSpan = "No completed participant-week in the period"
 	case rf.disclose.dates:
-		rf.weekSpan = "Calendar weeks (Monday to Sunday) from " + rf.weeks[0].Week.String() + " to the week of " + rf.weeks[len(rf.weeks)-1].Week.String()
+		rf.weekSpan = "Calendar weeks (Monday to Sunday) from " + rf.weeks[0].Week.Label() + " to the week of " + rf.weeks[len(rf.weeks)-1].Week.Label()
 	default:
 		rf.weekSpan = "Calendar weeks (Monday to Sunday), counted from the week of the study's first enrolment: from " +
 			rf.disclose.calendarWeek(rf.first, rf.weeks[0].Week) + " to " + rf.disclose.calendarWeek(rf.first, rf.weeks[len(rf.weeks)-1].Week)
@@ -131,7 +144,7 @@ func (rf reportFigures) reportGroups() []cascade.Group {
 
 // reportHref is the report's address with its choices and extra values.
 func (rf reportFigures) reportHref(path string, paper string, extra ...string) string {
-	return rf.cq.href(path, append([]string{"window", strconv.Itoa(rf.window), "paper", paper}, extra...)...)
+	return rf.cq.href(path, append(append([]string{"window", strconv.Itoa(rf.window), "paper", paper}, rf.week.values()...), extra...)...)
 }
 
 // progressReport is the weekly report as one printable page.
@@ -140,12 +153,13 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	if err != nil {
 		return err
 	}
-	paper := paperParam(readQuery(r.URL.Query()), paperA4) // refused already by readReport
+	paper := paperParam(readQuery(r.URL.Query()), s.studyPaper(r.Context())) // refused already by readReport
 	m := views.ReportModel{Page: s.page(r, "Weekly report", "progress"), Paper: paper, Protocols: protocolOptions(rf.cascade.Versions),
 		ProtoID: strconv.Itoa(rf.cascade.Protocol.ID), SiteID: rf.cq.site, From: dateText(rf.cq.from), To: dateText(rf.cq.to), Window: rf.window,
-		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.String(),
-		Generated: rf.generated.UTC().Format("2006-01-02 15:04 UTC"), CSVHref: rf.cq.href("/progress/report.zip", "window", strconv.Itoa(rf.window)),
-		WeekSpan: rf.weekSpan, Flow: flowView(rf.cascade, rf.cq), StatsAsOf: rf.agree.AsOf.String()}
+		Period: rf.cq.period(), Protocol: rf.cascade.Protocol.Label(), AsOf: rf.hist.Today.Label(),
+		Generated: when(rf.generated, s.studyZone(r.Context())), CSVHref: rf.cq.href("/progress/report.zip", append([]string{"window", strconv.Itoa(rf.window)}, rf.week.values()...)...),
+		Week: rf.week.label(rf.disclose, rf.first), Activity: rf.week.activityFigures(),
+		WeekSpan: rf.weekSpan, Flow: flowView(rf.cascade, rf.cq), StatsAsOf: rf.agree.AsOf.Label()}
 	m.Flow.Compact = true
 	for _, st := range sites {
 		m.Sites = append(m.Sites, views.Option{Value: strconv.Itoa(st.ID), Label: st.Code + " · " + st.Name})
@@ -153,25 +167,24 @@ func (s *Server) progressReport(w http.ResponseWriter, r *http.Request) error {
 	for _, p := range []string{paperA4, paperLetter} {
 		m.PaperLinks = append(m.PaperLinks, views.PaperLink{Href: rf.reportHref("/progress/report", p), Label: paperLabel(p), Current: p == paper})
 	}
-	// Ready-made periods keep the other choices.
-	today := cohort.DateOf(s.now().UTC())
-	quick := rf.cq
-	for _, p := range []struct {
-		label string
-		days  int
-	}{{"last 7 days", 7}, {"last 4 weeks", 28}, {"whole study", 0}} {
-		quick.from, quick.to = cohort.Date{}, cohort.Date{}
-		if p.days > 0 {
-			quick.from, quick.to = today.AddDays(1-p.days), today
-		}
-		m.Quick = append(m.Quick, views.PaperLink{Label: p.label, Href: quick.href("/progress/report", "window", strconv.Itoa(rf.window), "paper", paper)})
+	// Ready-made weeks keep the other choices; the cascade stays cumulative.
+	if rf.disclose.dates {
+		m.Since, m.Until = rf.week.from.String(), rf.week.to.String()
+	} else {
+		a, b := rf.week.recruitmentWeeks()
+		m.RecruitmentWeeks, m.WeekFrom, m.WeekTo = true, strconv.Itoa(a), strconv.Itoa(b)
 	}
+	m.Quick = weekLinks(rf.week, rf.today, func(week []string) string {
+		return rf.cq.href("/progress/report", append([]string{"window", strconv.Itoa(rf.window), "paper", paper}, week...)...)
+	})
 	for _, f := range rf.sites {
 		m.Enrolment = append(m.Enrolment, f.row())
 	}
 	m.Total = rf.total.row()
 	for _, wk := range rf.weeks {
-		m.Weeks = append(m.Weeks, sufficiencyRow(rf.disclose.calendarWeek(rf.first, wk.Week), wk.Active, wk.Sufficient))
+		row := sufficiencyRow(rf.disclose.calendarWeek(rf.first, wk.Week), wk.Active, wk.Sufficient)
+		row.Key = rf.disclose.weekKey(rf.first, wk.Week)
+		m.Weeks = append(m.Weeks, row)
 	}
 	due, enough := rf.weeksTotal()
 	m.WeeksTotal = sufficiencyRow("All weeks shown", due, enough)
@@ -199,7 +212,7 @@ func (rf reportFigures) keyFigures(m views.ReportModel) []views.ReportFigure {
 	}
 	return []views.ReportFigure{
 		{Key: "enrolled", Label: "enrolled in the period", Value: strconv.Itoa(c.Box("enrolled").Count()), Note: rf.cq.period()},
-		{Key: "enrolled-total", Label: "enrolled by " + rf.hist.Today.String() + of, Value: strconv.Itoa(total.Enrolled), Note: "target: " + total.Projection},
+		{Key: "enrolled-total", Label: "enrolled by " + rf.hist.Today.Label() + of, Value: strconv.Itoa(total.Enrolled), Note: "target: " + total.Projection},
 		{Key: "sufficiency", Label: "participant-weeks with enough wear", Value: m.WeeksTotal.Share,
 			Note: strconv.Itoa(m.WeeksTotal.Sufficient) + " of " + strconv.Itoa(m.WeeksTotal.Due)},
 		{Key: "screen-positive", Label: "screen-positive participants", Value: strconv.Itoa(c.Box("screen_positive").Count())},
@@ -261,7 +274,7 @@ func (rf reportFigures) reportTables() []*csvTable {
 		names[se.Code] = se.Name
 	}
 	for _, f := range append(append([]enrolFig{}, rf.sites...), rf.total) {
-		projected, earliest, latest := f.dates()
+		projected, earliest, latest := f.dates(cohort.Date.String)
 		window, count, rate, lo, hi := "", "", "", "", ""
 		if f.Projected {
 			window, count = strconv.Itoa(f.Projection.Window), strconv.Itoa(f.Projection.Count)
@@ -365,7 +378,7 @@ func (rf reportFigures) reportTables() []*csvTable {
 		put("kappa_lo", num(k.CI.Lo))
 		put("kappa_hi", num(k.CI.Hi))
 	}
-	return []*csvTable{sum, enrol, suff, boxes, exits, agree, kappa}
+	return []*csvTable{sum, rf.week.activityTable(), enrol, suff, boxes, exits, agree, kappa}
 }
 
 // progressReportZip downloads the weekly report's numbers: a zip of CSV

@@ -8,6 +8,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/screen"
@@ -30,9 +31,9 @@ func init() {
 
 func protocolHref(id int) string { return "/admin/protocols/" + strconv.Itoa(id) }
 
-func protocolRow(p db.ProtocolVersion, labels map[int]string) views.ProtocolRow {
+func protocolRow(p db.ProtocolVersion, labels map[int]string, loc *time.Location) views.ProtocolRow {
 	return views.ProtocolRow{ID: p.ID, Label: p.Label(), Href: protocolHref(p.ID), Active: p.Active, Used: p.Used, Results: p.Results,
-		BasedOn: labels[p.BasedOn], CreatedAt: p.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), CreatedBy: p.CreatedBy, Note: p.Note}
+		BasedOn: labels[p.BasedOn], CreatedAt: when(p.CreatedAt, loc), CreatedBy: p.CreatedBy, Note: p.Note}
 }
 
 func (s *Server) protocolsList(w http.ResponseWriter, r *http.Request) error {
@@ -45,8 +46,9 @@ func (s *Server) protocolsList(w http.ResponseWriter, r *http.Request) error {
 		labels[p.ID] = p.Label()
 	}
 	m := views.ProtocolsModel{Page: s.page(r, "Screening protocols", "admin")}
+	loc := s.studyZone(r.Context())
 	for _, p := range ps {
-		m.Rows = append(m.Rows, protocolRow(p, labels))
+		m.Rows = append(m.Rows, protocolRow(p, labels, loc))
 	}
 	if r.URL.Query().Get("activated") != "" {
 		m.Page.Flash = "The active protocol was changed."
@@ -81,7 +83,7 @@ func (s *Server) protocolShow(w http.ResponseWriter, r *http.Request) error {
 			m.Changes = append(m.Changes, views.ChangeRow{Field: c.Field, Label: screen.ParamLabel(c.Field), Old: c.Old, New: c.New})
 		}
 	}
-	m.Version = protocolRow(p, labels)
+	m.Version = protocolRow(p, labels, s.studyZone(r.Context()))
 	for _, l := range p.Params.Params() {
 		m.Params = append(m.Params, views.ParamRow{Path: l.Path, Label: screen.ParamLabel(l.Path), Value: l.Value})
 	}

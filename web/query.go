@@ -122,14 +122,14 @@ func (q *query) id(name, what string) int64 {
 	return n
 }
 
-// date reads a day as YYYY-MM-DD between the years 1900 and 9998; the zero
-// date when missing.
+// date reads a day as YYYY-MM-DD (or in the date style, cohort.ParseDay)
+// between the years 1900 and 9998; the zero date when missing.
 func (q *query) date(name string) cohort.Date {
 	v := q.get(name)
 	if v == "" {
 		return cohort.Date{}
 	}
-	d, err := cohort.ParseDate(v)
+	d, err := cohort.ParseDay(v)
 	if err != nil || d.Year < 1900 || d.Year > 9998 {
 		q.refuse(name, "enter a date as YYYY-MM-DD")
 		return cohort.Date{}

@@ -6,6 +6,7 @@ import (
 	"net/http"
 	"net/url"
 	"testing"
+	"time"
 	"unicode/utf8"
 
 	"cohortdesk/cohort/enrolment"
@@ -170,14 +171,14 @@ func FuzzAuditQuery(f *testing.F) {
 		if refusedRight(t, raw, err) {
 			return
 		}
-		af, _, err := auditFilter(v)
+		af, _, err := auditFilter(v, time.UTC)
 		if refusedRight(t, raw, err) {
 			return
 		}
 		if af.ActorID < 0 || af.BeforeID < 0 {
 			t.Fatalf("%q: filter %+v", raw, af)
 		}
-		for _, s := range []string{af.Action, af.ObjectType, af.ObjectID} {
+		for _, s := range []string{af.Action, af.ObjectType, af.ObjectID, af.StudyID, af.Who} {
 			if !utf8.ValidString(s) || len([]rune(s)) > maxQueryText {
 				t.Fatalf("%q: text %q accepted", raw, s)
 			}

@@ -92,7 +92,7 @@ func (s *Server) caseECG(r *http.Request, c db.Case, errs map[string]string, now
 	for _, rec := range recs {
 		verdict, tone := verdictView(rec)
 		m.Recordings = append(m.Recordings, views.RecordingLinkView{Href: fmt.Sprintf("/recordings/%d", rec.ID),
-			Taken: rec.TakenAt.In(now.Location()).Format("2006-01-02 15:04"), Duration: seconds(rec.DurationS), TooShort: rec.TooShort,
+			Taken: cohort.TimeLabel(rec.TakenAt, now.Location()), Duration: seconds(rec.DurationS), TooShort: rec.TooShort,
 			Auto: rec.Auto.Label(), Waveform: rec.HasWaveform(), Verdict: verdict, VerdictTone: tone})
 	}
 	return views.CaseECG(m), nil
@@ -244,7 +244,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 	}
 	loc := st.Location()
 	now := s.now().In(loc)
-	when := func(t time.Time) string { return t.In(loc).Format("2006-01-02 15:04 MST") }
+	when := func(t time.Time) string { return cohort.TimeLabel(t, loc) }
 	verdict, tone := verdictView(rec)
 	m := views.RecordingModel{Page: s.page(r, "Recording "+rec.StudyID, "confirmations"), ID: rec.ID, StudyID: rec.StudyID,
 		CaseHref: fmt.Sprintf("/cases/%d", rec.CaseID), ParticipantHref: fmt.Sprintf("/participants/%d", rec.ParticipantID),
@@ -261,7 +261,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		{Label: "Site", Value: rec.SiteCode},
 		{Label: "Case state", Value: rec.CaseState.Label()},
 		{Label: "Taken", Value: when(rec.TakenAt), Testid: "recording-taken"},
-		{Label: "Received", Value: when(rec.ReceivedAt)},
+		{Label: "Received", Value: dayOf(rec.ReceivedAt, loc)},
 		{Label: "Duration", Value: duration, Testid: "recording-duration"},
 		{Label: overread.AutoHeading, Value: rec.Auto.Label(), Testid: "recording-auto"},
 		{Label: "Readings", Value: rec.Conclusion.Status.Label()},
@@ -380,7 +380,7 @@ func readingViews(rec db.Recording) []views.ReadingView {
 	var out []views.ReadingView
 	for _, o := range rec.Readings {
 		v := views.ReadingView{Role: o.Role.Label(), Rhythm: o.Rhythm.Label(), Confidence: o.Confidence.Label(), Reader: o.Reader,
-			On: o.On.String(), Comment: o.Comment}
+			On: o.On.Label(), Comment: o.Comment}
 		if o.Role != overread.Adjudication {
 			v.RhythmDiffers = differ
 			v.ConfidenceDiffers = rec.Conclusion.ConfidenceDiffers

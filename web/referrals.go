@@ -81,7 +81,7 @@ func (s *Server) referralPreview(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	q := readQuery(r.URL.Query())
-	caseID, paper := int64(0), paperParam(q, paperA4)
+	caseID, paper := int64(0), paperParam(q, s.studyPaper(r.Context()))
 	if q.get("case") != "0" { // 0: the participant alone, as the page's own links say
 		caseID = q.id("case", "case number")
 	}
@@ -139,7 +139,7 @@ func (s *Server) referralIssue(w http.ResponseWriter, r *http.Request) error {
 	if format != "pdf" {
 		format = "html"
 	}
-	paper := paperOf(r.PostForm.Get("paper"))
+	paper := paperOf(r.PostForm.Get("paper"), s.studyPaper(r.Context()))
 	d, err := s.draft(r.Context(), pid, caseID)
 	if err != nil {
 		return err
@@ -232,7 +232,7 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 		m.Page.Flash = referralDone[r.URL.Query().Get("done")]
 	}
 	_, digest := currentContent(ref)
-	rec := &views.ReferralRecordView{ID: ref.ID, IssuedBy: ref.IssuedBy, IssuedAt: ref.IssuedAt.UTC().Format("2006-01-02 15:04 UTC"),
+	rec := &views.ReferralRecordView{ID: ref.ID, IssuedBy: ref.IssuedBy, IssuedAt: when(ref.IssuedAt, s.studyZone(r.Context())),
 		Format: ref.Format, Paper: paperLabel(ref.Paper), Digest: digest, DigestOK: ok, PDFDigest: currentPDFDigest(ref),
 		Draft: sum.Status() == referral.Drafted}
 	if len(ref.SignedContent) > 0 {
@@ -243,7 +243,7 @@ func (s *Server) renderRecorded(w http.ResponseWriter, r *http.Request, status i
 		m.CaseHref = rec.CaseHref
 	}
 	if !ref.SignedOffAt.IsZero() {
-		rec.SignedOff = "by " + ref.SignedOffBy + " on " + ref.SignedOffAt.UTC().Format("2006-01-02 15:04 UTC")
+		rec.SignedOff = "by " + ref.SignedOffBy + " on " + when(ref.SignedOffAt, s.studyZone(r.Context()))
 	}
 	signs := followup.StepSignOff.By(role(r))
 	if !signs && rec.SignedOff == "" && ref.CaseID != 0 {
@@ -392,7 +392,7 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	ctx := r.Context()
-	paper := paperOf(r.PostForm.Get("paper"))
+	paper := paperOf(r.PostForm.Get("paper"), s.studyPaper(ctx))
 	ready, err := s.store.ReadyToRefer(ctx)
 	if err != nil {
 		return err

@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io"
 	"net/http"
-	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/db"
@@ -25,6 +24,7 @@ type screeningStore interface {
 	StartSweep(ctx context.Context, a cohort.Actor, protocolID int, param string, values []float64) (int64, error)
 	SweepRun(ctx context.Context, id int64) (db.SweepRun, error)
 	SweepRuns(ctx context.Context, limit int) ([]db.SweepRun, error)
+	DecidingWindow(ctx context.Context, protocolID int) (int, bool, error)
 }
 
 func jobTone(state string) components.Tone {
@@ -37,13 +37,6 @@ func jobTone(state string) components.Tone {
 		return components.Info
 	}
 	return components.Neutral
-}
-
-func stamp(t *time.Time) string {
-	if t == nil {
-		return ""
-	}
-	return t.UTC().Format("2006-01-02 15:04:05 UTC")
 }
 
 // screeningJobs lists the screening runs with their progress and errors.
@@ -64,10 +57,11 @@ func (s *Server) screeningJobs(w http.ResponseWriter, r *http.Request) error {
 	} else if !errors.Is(err, cohort.ErrNotFound) {
 		return err
 	}
+	loc := s.studyZone(ctx)
 	for _, j := range jobs {
 		row := views.JobRow{ID: j.ID, Label: j.Label, State: j.State, Tone: jobTone(j.State), Done: j.Done, Total: j.Total,
 			Attempts: fmt.Sprintf("%d of %d", j.Attempts, j.MaxAttempts), Error: j.Error, Outcome: j.Outcome,
-			Created: stamp(&j.CreatedAt), Finished: stamp(j.FinishedAt), By: j.CreatedBy}
+			Created: when(j.CreatedAt, loc), Finished: whenPtr(j.FinishedAt, loc), By: j.CreatedBy}
 		if j.Total > 0 {
 			row.Percent = fmt.Sprintf("(%d%%)", j.Done*100/j.Total)
 		}

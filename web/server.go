@@ -42,6 +42,8 @@ type Store interface {
 	exportStore
 	standbyStore
 	metricsStore
+	auditFilterStore
+	activityStore
 	outreachStore
 }
 

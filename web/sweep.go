@@ -19,8 +19,11 @@ import (
 	"github.com/go-echarts/go-echarts/v2/opts"
 )
 
-// defaultSweepParam is the parameter the sweep page opens with.
-const defaultSweepParam = "windows[0].masd_threshold"
+// defaultSweepParam is the parameter the sweep page opens with: the MASD
+// threshold of the window size whose criteria decided the version's flags
+// (db.DecidingWindow), since a threshold of a size that decides nothing
+// changes nothing over any range.
+func defaultSweepParam(window int) string { return fmt.Sprintf("windows[%d].masd_threshold", window) }
 
 // sweepRecent is how many earlier sweeps the page lists.
 const sweepRecent = 10
@@ -41,8 +44,9 @@ type sweepChoice struct {
 
 // parseSweepChoice reads protocol and param from q against the versions
 // there are (all, not empty); an unknown version or parameter is refused
-// and the default shown instead.
-func parseSweepChoice(q url.Values, all []db.ProtocolVersion) sweepChoice {
+// and the default shown instead. deciding gives a version's deciding window
+// size (db.DecidingWindow).
+func parseSweepChoice(q url.Values, all []db.ProtocolVersion, deciding func(db.ProtocolVersion) int) sweepChoice {
 	c := sweepChoice{errs: map[string]string{}}
 	for _, p := range all {
 		if p.Active && c.version.ID == 0 {
@@ -73,7 +77,7 @@ func parseSweepChoice(q url.Values, all []db.ProtocolVersion) sweepChoice {
 		if c.param != "" {
 			c.errs["param"] = "choose one of the listed parameters"
 		}
-		c.param = defaultSweepParam
+		c.param = defaultSweepParam(deciding(c.version))
 	}
 	for _, l := range c.version.Params.Params() {
 		if l.Path == c.param {
@@ -87,15 +91,25 @@ func parseSweepChoice(q url.Values, all []db.ProtocolVersion) sweepChoice {
 // integer reports whether the parameter takes whole numbers.
 func (c sweepChoice) integer() bool { return c.cur.Kind == "int" }
 
-// withDefaults fills an empty range around the parameter's current value:
-// from half of it to half as much again, 11 values.
+// defaultRange is the range a sweep of a parameter whose value is cur opens
+// with: from half of it to half as much again.
+func defaultRange(cur screen.Param) (from, to string) {
+	v, _ := strconv.ParseFloat(cur.Value, 64)
+	at := func(x float64) string {
+		return strconv.FormatFloat(screen.SweepValues(x, 0, 1, cur.Kind == "int")[0], 'g', -1, 64)
+	}
+	return at(v * 0.5), at(v * 1.5)
+}
+
+// withDefaults fills an empty range around the parameter's current value
+// (defaultRange), 11 values.
 func (c *sweepChoice) withDefaults() {
-	curVal, _ := strconv.ParseFloat(c.cur.Value, 64)
+	from, to := defaultRange(c.cur)
 	if c.fromText == "" {
-		c.fromText = strconv.FormatFloat(screen.SweepValues(curVal*0.5, 0, 1, c.integer())[0], 'g', -1, 64)
+		c.fromText = from
 	}
 	if c.toText == "" {
-		c.toText = strconv.FormatFloat(screen.SweepValues(curVal*1.5, 0, 1, c.integer())[0], 'g', -1, 64)
+		c.toText = to
 	}
 	if c.stepsText == "" {
 		c.stepsText = "11"
@@ -124,11 +138,19 @@ func (c sweepChoice) values() []float64 {
 	return screen.SweepValues(c.from, c.to, c.steps, c.integer())
 }
 
-// sweepOptions lists the sweepable parameters of p with their labels.
-func sweepOptions(p screen.Protocol) []views.Option {
-	var out []views.Option
+// sweepOptions lists the sweepable parameters of p with their short names,
+// each with its value in p and the range a sweep of it opens with, so the
+// form's range follows the parameter chosen.
+func sweepOptions(p screen.Protocol) []views.SweepParamOption {
+	leaves := map[string]screen.Param{}
+	for _, l := range p.Params() {
+		leaves[l.Path] = l
+	}
+	var out []views.SweepParamOption
 	for _, sp := range screen.SweepParams(p) {
-		out = append(out, views.Option{Value: sp.Path, Label: sp.Label(p)})
+		from, to := defaultRange(leaves[sp.Path])
+		out = append(out, views.SweepParamOption{Value: sp.Path, Label: p.ParamName(sp.Path), Help: screen.ParamLabel(sp.Path),
+			Current: leaves[sp.Path].Value, From: from, To: to})
 	}
 	return out
 }
@@ -153,14 +175,19 @@ func sweepHref(id int64) string { return fmt.Sprintf("/sweep?run=%d", id) }
 // sweepModel is the sweep page with the list of earlier sweeps and, when
 // there is a protocol at all, the form filled from c (nil: no protocol).
 func (s *Server) sweepModel(r *http.Request, c *sweepChoice, all []db.ProtocolVersion) (views.SweepModel, error) {
-	m := views.SweepModel{Page: s.page(r, "Threshold sweep", "screening"), Errors: map[string]string{}}
+	m := views.SweepModel{Page: s.page(r, "Threshold sweep", "screening"), Errors: map[string]string{}, PPVUnits: screen.PPVUnits}
 	runs, err := s.store.SweepRuns(r.Context(), sweepRecent)
 	if err != nil {
 		return m, err
 	}
+	loc := s.studyZone(r.Context())
+	params := map[int]screen.Protocol{}
+	for _, p := range all {
+		params[p.ID] = p.Params
+	}
 	for _, run := range runs {
 		m.Recent = append(m.Recent, views.SweepRunRow{Href: sweepHref(run.ID), ID: strconv.FormatInt(run.ID, 10),
-			When: run.CreatedAt.UTC().Format("2006-01-02 15:04 UTC"), By: run.CreatedBy, Param: screen.ParamLabel(run.Param),
+			When: when(run.CreatedAt, loc), By: run.CreatedBy, Param: params[run.ProtocolID].ParamName(run.Param),
 			Values: strconv.Itoa(len(run.Values)), State: run.Job.State, Tone: components.Tone(statusTone(run.Job.State))})
 	}
 	if c == nil {
@@ -170,6 +197,7 @@ func (s *Server) sweepModel(r *http.Request, c *sweepChoice, all []db.ProtocolVe
 		m.Protocols = append(m.Protocols, views.Option{Value: strconv.Itoa(p.ID), Label: p.Label() + map[bool]string{true: " (active)"}[p.Active]})
 	}
 	m.ProtocolID, m.Params, m.Param = strconv.Itoa(c.version.ID), sweepOptions(c.version.Params), c.param
+	m.ParamName, m.Version = c.version.Params.ParamName(c.param), c.version.Label()
 	m.Current, m.From, m.To, m.Steps = c.cur.Value, c.fromText, c.toText, c.stepsText
 	for k, v := range c.errs {
 		m.Errors[k] = v
@@ -183,7 +211,20 @@ func (s *Server) sweepForm(r *http.Request, q url.Values) (*sweepChoice, []db.Pr
 	if err != nil || len(all) == 0 {
 		return nil, nil, err
 	}
-	c := parseSweepChoice(q, all)
+	var derr error
+	c := parseSweepChoice(q, all, func(v db.ProtocolVersion) int {
+		i, ok, err := s.store.DecidingWindow(r.Context(), v.ID)
+		if err != nil {
+			derr = err
+		}
+		if !ok || i < 0 || i >= len(v.Params.Windows) {
+			return 0
+		}
+		return i
+	})
+	if derr != nil {
+		return nil, nil, derr
+	}
 	c.withDefaults()
 	return &c, all, nil
 }
@@ -269,7 +310,7 @@ func (s *Server) sweep(w http.ResponseWriter, r *http.Request) error {
 			Flagged: row.Flagged, TP: row.Table.TP, FP: row.Table.FP, FN: row.Table.FN,
 			PPV: fractionPct(row.PPV), PPVCI: ciText(row.PPVCI), Sensitivity: fractionPct(row.Sensitivity), SensCI: ciText(row.SensitivityCI)})
 	}
-	chart, scripts, err := sweepChart(res)
+	chart, scripts, err := sweepChart(res, res.Protocol.Params.ParamName(res.Param))
 	if err != nil {
 		return err
 	}
@@ -317,14 +358,14 @@ func (s *Server) sweepStart(w http.ResponseWriter, r *http.Request) error {
 
 // sweepChart draws weeks flagged (left axis) and PPV and sensitivity with
 // their Wilson intervals as percentages (right axis) against the value.
-func sweepChart(res db.SweepResult) (components.ChartModel, []string, error) {
+func sweepChart(res db.SweepResult, name string) (components.ChartModel, []string, error) {
 	line := charts.NewLine()
 	line.SetGlobalOptions(
 		charts.WithInitializationOpts(chartInit("sweep-chart")),
 		charts.WithAnimation(false),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "axis"}),
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Bottom: "0"}),
-		charts.WithXAxisOpts(opts.XAxis{Name: res.Param, Type: "category", NameLocation: "middle", NameGap: 28}),
+		charts.WithXAxisOpts(opts.XAxis{Name: name, Type: "category", NameLocation: "middle", NameGap: 28}),
 		charts.WithYAxisOpts(opts.YAxis{Name: "weeks flagged", Type: "value"}),
 	)
 	line.ExtendYAxis(opts.YAxis{Name: "%", Type: "value", Min: 0, Max: 100, Position: "right"})
@@ -346,11 +387,11 @@ func sweepChart(res db.SweepResult) (components.ChartModel, []string, error) {
 	right := []charts.SeriesOpts{charts.WithLineChartOpts(opts.LineChart{YAxisIndex: 1})}
 	line.SetXAxis(x).
 		AddSeries("Weeks flagged", flagged, paint(chartPositive)...).
-		AddSeries("PPV %", ppv, with(right, paint(chartMeasure))...).
-		AddSeries("PPV 95% CI, low", ppvLo, with(right, paint(chartBand))...).
-		AddSeries("PPV 95% CI, high", ppvHi, with(right, paint(chartBand))...).
+		AddSeries("Per-week PPV %", ppv, with(right, paint(chartMeasure))...).
+		AddSeries("Per-week PPV 95% CI, low", ppvLo, with(right, paint(chartBand))...).
+		AddSeries("Per-week PPV 95% CI, high", ppvHi, with(right, paint(chartBand))...).
 		AddSeries("Sensitivity %", sens, with(right, paint(chartMeasure2))...)
-	return chartView("sweep-chart", "Weeks flagged, PPV and sensitivity for each value of "+res.Param, line, true)
+	return chartView("sweep-chart", "Weeks flagged, per-week PPV and sensitivity for each value of "+name, line, true)
 }
 
 // percentPoint is a percentage, or a gap in the line when there is no value.

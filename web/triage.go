@@ -7,6 +7,7 @@ import (
 	"strconv"
 	"strings"
 
+	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/db"
 	"cohortdesk/views"
@@ -87,7 +88,7 @@ func (s *Server) triageBoard(r *http.Request, acted int64, done, refusal string)
 	}
 	m := views.TriageModel{Page: s.page(r, "Triage", "triage"), OrderRule: followup.OrderRule, UnreadRecordings: waiting,
 		Scheduled: t.Counts[followup.BucketOther],
-		AsOf:      fmt.Sprintf("As of %s, %s (%s).", dayLabel(t.Settings.Calendar().DateOf(t.Now)), t.Now.Format("15:04"), t.Settings.Location())}
+		AsOf:      fmt.Sprintf("As of %s, %s (%s).", dayLabel(t.Settings.Calendar().DateOf(t.Now)), cohort.ClockLabel(t.Now, t.Settings.Location()), t.Settings.Location())}
 	byBucket := map[followup.Bucket][]db.TriageRow{}
 	for _, row := range t.Rows {
 		byBucket[row.Bucket] = append(byBucket[row.Bucket], row)

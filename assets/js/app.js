@@ -88,3 +88,58 @@
   document.addEventListener("DOMContentLoaded", function () { init(document); });
   document.addEventListener("htmx:afterSettle", function (ev) { init(ev.target || document); });
 })();
+
+// Date fields in the one date style. A browser draws a date field in its own
+// locale's order (12/03/2026 or 03/12/2026); beside each date field (and each
+// date-and-time field) the day it holds is written the way every page writes
+// dates ("Thu 3 Dec 2026"), so the two can never be read differently. Values
+// sent stay YYYY-MM-DD.
+(function () {
+  "use strict";
+  var days = ["Sun", "Mon", "Tue", "Wed", "Thu", "Fri", "Sat"];
+  var months = ["Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec"];
+  function style(v) {
+    var m = /^(\d{4})-(\d{2})-(\d{2})/.exec(v || "");
+    if (!m) return "";
+    var d = new Date(Date.UTC(+m[1], +m[2] - 1, +m[3]));
+    return days[d.getUTCDay()] + " " + d.getUTCDate() + " " + months[d.getUTCMonth()] + " " + d.getUTCFullYear();
+  }
+  function echo(input) {
+    var span = input.nextElementSibling;
+    if (!span || !span.classList.contains("date-echo")) {
+      span = document.createElement("span");
+      span.className = "date-echo";
+      span.setAttribute("aria-hidden", "true");
+      input.insertAdjacentElement("afterend", span);
+    }
+    span.textContent = style(input.value);
+  }
+  function wire(root) {
+    root.querySelectorAll('input[type="date"], input[type="datetime-local"]').forEach(echo);
+  }
+  document.addEventListener("input", function (ev) {
+    var t = ev.target;
+    if (t.matches && t.matches('input[type="date"], input[type="datetime-local"]')) echo(t);
+  });
+  document.addEventListener("DOMContentLoaded", function () { wire(document); });
+  document.addEventListener("htmx:afterSettle", function (ev) { wire(ev.target || document); });
+})();
+
+// The threshold sweep's range follows the parameter chosen: each option of
+// select[data-sweep-param] carries its value in the version and the range a
+// sweep of it opens with; choosing one fills From and To and says its value.
+(function () {
+  "use strict";
+  document.addEventListener("change", function (ev) {
+    var sel = ev.target;
+    if (!sel.matches || !sel.matches("select[data-sweep-param]")) return;
+    var o = sel.options[sel.selectedIndex];
+    if (!o) return;
+    var form = sel.form;
+    var from = form.querySelector("#from"), to = form.querySelector("#to");
+    if (from) from.value = o.getAttribute("data-from") || "";
+    if (to) to.value = o.getAttribute("data-to") || "";
+    document.querySelectorAll("[data-sweep-current]").forEach(function (el) { el.textContent = o.getAttribute("data-current") || ""; });
+    document.querySelectorAll("[data-sweep-name]").forEach(function (el) { el.textContent = o.textContent; });
+  });
+})();

@@ -4,6 +4,7 @@ import (
 	"slices"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/stats"
 )
@@ -177,7 +178,7 @@ func (s Sums) Agreement() (Agreement, error) {
 	for _, sx := range []cohort.Sex{cohort.Female, cohort.Male, cohort.Unknown} {
 		subs = append(subs, sub{"sex", sx.Label()})
 	}
-	for _, l := range ageBands.Labels() {
+	for _, l := range deid.AgeBandLabels() {
 		subs = append(subs, sub{"age band", l})
 	}
 	subs = append(subs, sub{"age band", AgeNotRecorded})

@@ -332,12 +332,13 @@ func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 	// over-read, 4 AF; BB 7, 5, 5, 3. Female P1..P8: 8, 8, 8, 7; male P9..P14:
 	// 6, 3, 2, 0. Aged 55 (P1..P5): 5, 5, 5, 5; aged 72 (P6..P14): 9, 6, 5, 2.
 	// Nobody flagged lacks a sex or an age, so those rows are left out; the
-	// empty age bands stay.
+	// empty age bands (the one set, deid.AgeCuts) stay.
 	type counts struct{ flagged, rec, read, af int }
 	want := map[string]counts{
 		"site: AA": {7, 6, 5, 4}, "site: BB": {7, 5, 5, 3},
 		"sex: female": {8, 8, 8, 7}, "sex: male": {6, 3, 2, 0},
-		"age band: <50": {}, "age band: 50-59": {5, 5, 5, 5}, "age band: 60-69": {}, "age band: 70-79": {9, 6, 5, 2}, "age band: 80+": {},
+		"age band: <50": {}, "age band: 50-54": {}, "age band: 55-59": {5, 5, 5, 5}, "age band: 60-64": {}, "age band: 65-69": {},
+		"age band: 70-74": {9, 6, 5, 2}, "age band: 75-79": {}, "age band: 80-84": {}, "age band: 85-89": {}, "age band: 90 or older": {},
 	}
 	var order []string
 	for _, g := range a.Groups[1:] {
@@ -352,7 +353,8 @@ func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 			t.Errorf("%s: %+v, want %+v", key, got, w)
 		}
 	}
-	wantOrder := []string{"site: AA", "site: BB", "sex: female", "sex: male", "age band: <50", "age band: 50-59", "age band: 60-69", "age band: 70-79", "age band: 80+"}
+	wantOrder := []string{"site: AA", "site: BB", "sex: female", "sex: male", "age band: <50", "age band: 50-54", "age band: 55-59", "age band: 60-64",
+		"age band: 65-69", "age band: 70-74", "age band: 75-79", "age band: 80-84", "age band: 85-89", "age band: 90 or older"}
 	if !slices.Equal(order, wantOrder) {
 		t.Errorf("groups %v, want %v", order, wantOrder)
 	}

@@ -6,8 +6,8 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/deid"
 	"cohortdesk/cohort/overread"
-	"cohortdesk/cohort/stats"
 )
 
 // The cascade and the agreement statistics are sums over participants and
@@ -176,19 +176,11 @@ func (r Recording) KappaCell() (auto, read overread.Category, ok bool) {
 // AgeNotRecorded is the age band of participants without a recorded age.
 const AgeNotRecorded = "age not recorded"
 
-// ageBands are the subgroup bands of the statistics (stats.DefaultAgeCuts).
-var ageBands = func() stats.AgeBands {
-	b, err := stats.NewAgeBands(stats.DefaultAgeCuts()...)
-	if err != nil {
-		panic(err) // the default cuts are valid; a test proves it
-	}
-	return b
-}()
-
-// AgeBand is the age band a participant's subgroup row counts them in.
+// AgeBand is the age band a participant's subgroup row counts them in: the
+// one set of bands (deid.AgeCuts) every page shows.
 func AgeBand(age *int) string {
 	if age == nil {
 		return AgeNotRecorded
 	}
-	return ageBands.Label(*age)
+	return deid.AgeBand(*age)
 }

@@ -98,6 +98,17 @@ func checkDate(field string, d cohort.Date) error {
 	return nil
 }
 
+// AgeSince is the age on the day today of a person whose age was recorded
+// at enrolment (when the birth date is not at hand): the age at enrolment
+// plus the whole years since the enrolment day, folded as FoldAge folds it.
+func AgeSince(atEnrolment int, enrolled, today cohort.Date) Age {
+	since, err := AgeAt(enrolled, today)
+	if err != nil {
+		since = 0 // today before enrolment, or no day: the age at enrolment
+	}
+	return FoldAge(atEnrolment + since)
+}
+
 // FoldAge applies the Safe Harbor age rule to an age already in whole years
 // (an age recorded at enrolment, when the birth date is not at hand): 89
 // stays 89, 90 and above become "90 or older". No birth year comes with it.

@@ -9,7 +9,6 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/overread"
-	"cohortdesk/cohort/stats"
 )
 
 // Column describes one column of a dataset file for the data dictionary.
@@ -56,7 +55,7 @@ var datasetTables = []Table{
 		{"site_code", "text", "the site's short code (no site name or place)"},
 		{"sex", "text", "F, M or U (not recorded)"},
 		{"age_at_enrolment", "text", "whole years at enrolment; ages over 89 are \"90 or older\" (identifier 3)"},
-		{"age_band", "text", "age band at enrolment (<50, 50-59, 60-69, 70-79, 80+)"},
+		{"age_band", "text", "age band at enrolment (<50, 50-54, 55-59, ... 85-89, 90 or older)"},
 		{"zip3", "text", "first three ZIP digits, 000 for the 17 prefixes of under 20,000 people in HHS's 2012 guidance; empty when not recorded (identifier 2)"},
 		{"withdrawn_study_day", "integer", "study day of withdrawal, empty while enrolled; " + studyDayDesc},
 		{"rr_capable", "yes/no", "the participant's watch records beat-to-beat intervals"},
@@ -239,7 +238,6 @@ type OverReadRecord struct {
 // its table's column order.
 type Dataset struct {
 	secret []byte
-	bands  stats.AgeBands
 	codes  map[string]string
 }
 
@@ -248,11 +246,7 @@ func NewDataset(secret []byte) (*Dataset, error) {
 	if err := CheckSecret(secret); err != nil {
 		return nil, err
 	}
-	b, err := stats.NewAgeBands(ExportAgeCuts()...)
-	if err != nil {
-		return nil, fmt.Errorf("deid: export age bands: %w", err)
-	}
-	return &Dataset{secret: secret, bands: b, codes: map[string]string{}}, nil
+	return &Dataset{secret: secret, codes: map[string]string{}}, nil
 }
 
 // Code is the referral code of a study ID, computed once per participant.
@@ -269,9 +263,7 @@ func (d *Dataset) Code(studyID string) string {
 func (d *Dataset) Participant(r ParticipantRecord) []string {
 	age, band := "", ""
 	if r.AgeAtEnrolment != nil {
-		a := FoldAge(*r.AgeAtEnrolment)
-		age = a.String()
-		band, _ = a.Band(d.bands) // the export bands end below 90, never an error
+		age, band = FoldAge(*r.AgeAtEnrolment).String(), AgeBand(*r.AgeAtEnrolment)
 	}
 	zip := ""
 	if r.ZIP != "" {

@@ -82,10 +82,10 @@ func TestDatasetParticipantRow(t *testing.T) {
 		wantAge, wantB string
 		wantZIP        string
 	}{
-		{89, "47913", "89", "80+", "479"},
-		{90, "89019", "90 or older", "80+", "000"},
-		{91, "03601", "90 or older", "80+", "000"},
-		{64, "", "64", "60-69", ""},
+		{89, "47913", "89", "85-89", "479"},
+		{90, "89019", "90 or older", "90 or older", "000"},
+		{91, "03601", "90 or older", "90 or older", "000"},
+		{64, "", "64", "60-64", ""},
 		{47, "not-a-zip", "47", "<50", "000"},
 	} {
 		age := tt.age

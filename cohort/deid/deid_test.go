@@ -190,7 +190,7 @@ func TestAgeAt(t *testing.T) {
 
 func TestAgeBand(t *testing.T) {
 	ref := mustDate(t, "2025-06-15")
-	def, _ := stats.NewAgeBands(stats.DefaultAgeCuts()...)
+	def, _ := stats.NewAgeBands(50, 60, 70, 80)
 	to90, _ := stats.NewAgeBands(50, 60, 70, 80, 90)
 	past90, _ := stats.NewAgeBands(50, 95)
 	tests := []struct {
@@ -216,4 +216,28 @@ func TestAgeBand(t *testing.T) {
 	a, _ := AgeOf(mustDate(t, "1960-01-01"), ref)
 	_, err := a.Band(past90)
 	wantInvalid(t, "band cut 95", err)
+}
+
+// TestOneAgeBandRule: the one set of age bands (AgeCuts), whatever the
+// source of the age; ages above 89 fold into the Safe Harbor category.
+// Bands ours; the fold is 45 CFR 164.514(b)(2)(i)(C).
+func TestOneAgeBandRule(t *testing.T) {
+	for age, want := range map[int]string{18: "<50", 49: "<50", 50: "50-54", 62: "60-64", 64: "60-64", 65: "65-69", 74: "70-74", 75: "75-79",
+		89: "85-89", 90: Over89Label, 104: Over89Label} {
+		if got := AgeBand(age); got != want {
+			t.Errorf("AgeBand(%d) = %q, want %q", age, got, want)
+		}
+	}
+	if got := AgeBandLabels(); len(got) != 10 || got[0] != "<50" || got[len(got)-1] != Over89Label {
+		t.Errorf("labels %v", got)
+	}
+	enrolled := cohort.Date{Year: 2025, Month: 3, Day: 1}
+	for _, tt := range []struct {
+		today cohort.Date
+		want  int
+	}{{cohort.Date{Year: 2026, Month: 2, Day: 28}, 62}, {cohort.Date{Year: 2026, Month: 3, Day: 1}, 63}, {cohort.Date{Year: 2025, Month: 1, Day: 1}, 62}} {
+		if got := AgeSince(62, enrolled, tt.today); got.Years != tt.want {
+			t.Errorf("62 at enrolment on %s, on %s: %d, want %d", enrolled, tt.today, got.Years, tt.want)
+		}
+	}
 }

@@ -29,6 +29,7 @@ import (
 	"time"
 
 	"cohortdesk/cohort"
+	"cohortdesk/cohort/followup"
 )
 
 // Defaults used when a Config field is left zero.
@@ -137,6 +138,11 @@ var siteSpecs = []siteSpec{
 // studyZone is where the study office sits; a region straddling a zone line
 // gives the demo participants in more than one zone.
 const studyZone = "America/Chicago"
+
+// Paper is the paper the demo study prints on: its office is in the United
+// States, so US Letter. The study settings hold it, and the summaries the
+// demo issues are printed on it.
+const Paper = followup.PaperLetter
 
 // otherZones are where a few participants live although they enrol at a site
 // (seasonal residents), so per-participant zones, including one without

@@ -157,7 +157,7 @@ func Intake(in RecordingInput, o IntakeOptions) (Accepted, error) {
 	case a.TakenAt.After(o.Now.Add(clockSkew)):
 		ve.Add("taken_at", "the recording time is in the future")
 	case day(a.TakenAt).Before(day(o.FlaggedAt)):
-		ve.Add("taken_at", "the recording was taken before the case was flagged ("+day(o.FlaggedAt).String()+")")
+		ve.Add("taken_at", "the recording was taken before the case was flagged ("+day(o.FlaggedAt).Label()+")")
 	}
 	a.ReceivedAt = in.ReceivedAt
 	if a.ReceivedAt.IsZero() {

@@ -166,7 +166,7 @@ func TestIntakeRefusals(t *testing.T) {
 		{"duration too long", ecg.RecordingInput{TakenAt: now, DurationS: 901}, "duration_s", []string{"at most 900"}},
 		{"no time", ecg.RecordingInput{DurationS: 40}, "taken_at", []string{"taken"}},
 		{"future", ecg.RecordingInput{TakenAt: now.Add(time.Hour), DurationS: 40}, "taken_at", []string{"future"}},
-		{"before the flag", ecg.RecordingInput{TakenAt: flagged.AddDate(0, 0, -1), DurationS: 40}, "taken_at", []string{"flagged", "2026-06-02"}},
+		{"before the flag", ecg.RecordingInput{TakenAt: flagged.AddDate(0, 0, -1), DurationS: 40}, "taken_at", []string{"flagged", "2 Jun 2026"}},
 		{"received in the future", ecg.RecordingInput{TakenAt: now, ReceivedAt: now.AddDate(0, 0, 1), DurationS: 40}, "received_on", []string{"future"}},
 		{"received before taken", ecg.RecordingInput{TakenAt: now, ReceivedAt: now.AddDate(0, 0, -1), DurationS: 40}, "received_on", []string{"before it was taken"}},
 		{"bad auto", ecg.RecordingInput{TakenAt: now, DurationS: 40, Auto: "maybe"}, "auto", []string{"readings of the recorder"}},

@@ -28,9 +28,9 @@ const (
 	FieldNote  = "note"
 )
 
-// dueLayout shows a deadline with its zone so two readers in different zones
-// cannot misread it.
-const dueLayout = "2006-01-02 15:04 MST"
+// dueLayout shows a deadline in the one date style with its zone, so two
+// readers in different zones cannot misread it (cohort.TimeLayout).
+const dueLayout = cohort.TimeLayout
 
 // Diff returns the fields that differ between before and after, each with its
 // {before, after} value as shown to people: the state's label, the deadline

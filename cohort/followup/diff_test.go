@@ -26,12 +26,12 @@ func TestDiff(t *testing.T) {
 		{"owner removed", CaseFields{State: Reached, Due: due, Note: base.Note},
 			map[string][2]string{FieldOwner: {"coord-1", ""}}},
 		{"deadline cleared and note changed", CaseFields{State: Reached, Owner: "coord-1", Note: "no calls"},
-			map[string][2]string{FieldDue: {"2026-04-16 00:00 CEST", ""}, FieldNote: {"prefers calls after 5 pm", "no calls"}}},
+			map[string][2]string{FieldDue: {"16 Apr 2026 00:00 CEST", ""}, FieldNote: {"prefers calls after 5 pm", "no calls"}}},
 		{"everything", CaseFields{State: ClosedDeclined, Owner: "coord-2", Due: due.Add(24 * time.Hour), Note: ""},
 			map[string][2]string{
 				FieldState: {"reached", "closed (declined)"},
 				FieldOwner: {"coord-1", "coord-2"},
-				FieldDue:   {"2026-04-16 00:00 CEST", "2026-04-17 00:00 CEST"},
+				FieldDue:   {"16 Apr 2026 00:00 CEST", "17 Apr 2026 00:00 CEST"},
 				FieldNote:  {"prefers calls after 5 pm", ""},
 			}},
 	}

@@ -56,7 +56,7 @@ func (e AttemptEntry) Check(flagged, now time.Time, loc *time.Location) error {
 	case e.At.After(now.Add(AttemptSkew)):
 		ve.Add("at", "the attempt time is in the future")
 	case e.At.Before(flagged.Truncate(time.Minute)):
-		ve.Add("at", "the attempt time is before the case was flagged ("+flagged.In(loc).Format("2006-01-02 15:04")+")")
+		ve.Add("at", "the attempt time is before the case was flagged ("+cohort.TimeLabel(flagged, loc)+")")
 	}
 	return ve.Err()
 }
@@ -80,7 +80,7 @@ func checkStepDay(ve *cohort.ValidationError, field string, d cohort.Date, now t
 	}
 	if !notBefore.IsZero() {
 		if first := cohort.DateOf(notBefore.In(loc)); d.Before(first) {
-			ve.Add(field, "the date is before "+what+" ("+first.String()+")")
+			ve.Add(field, "the date is before "+what+" ("+first.Label()+")")
 		}
 	}
 }

@@ -48,7 +48,7 @@ func TestAttemptEntryCheck(t *testing.T) {
 		{"long note", func(e *AttemptEntry) { e.Note = strings.Repeat("x", 2001) }, map[string]string{"note": "use at most 2000 characters"}},
 		{"future", func(e *AttemptEntry) { e.At = now.Add(AttemptSkew + time.Second) }, map[string]string{"at": "the attempt time is in the future"}},
 		{"before the flag", func(e *AttemptEntry) { e.At = flagged.Add(-time.Minute) }, map[string]string{
-			"at": "the attempt time is before the case was flagged (2026-06-01 09:30)"}},
+			"at": "the attempt time is before the case was flagged (1 Jun 2026 09:30 CDT)"}},
 	} {
 		e := ok
 		c.edit(&e)
@@ -96,7 +96,7 @@ func TestStepDays(t *testing.T) {
 		{cohort.Date{Year: 2026, Month: 6, Day: 2}, "TRK1", nil},
 		{cohort.Date{Year: 2026, Month: 5, Day: 31}, "", nil},
 		{cohort.Date{Year: 2026, Month: 6, Day: 3}, "", map[string]string{"sent_on": "the date is in the future"}},
-		{cohort.Date{Year: 2026, Month: 5, Day: 30}, "", map[string]string{"sent_on": "the date is before the participant was reached (2026-05-31)"}},
+		{cohort.Date{Year: 2026, Month: 5, Day: 30}, "", map[string]string{"sent_on": "the date is before the participant was reached (31 May 2026)"}},
 		{cohort.Date{Year: 2026, Month: 6, Day: 3}, strings.Repeat("9", 65), map[string]string{"tracking_number": "use at most 64 characters"}},
 	} {
 		got := fields(t, CheckShipment(c.day, c.tracking, reached, now, tokyo))
@@ -104,7 +104,7 @@ func TestStepDays(t *testing.T) {
 			t.Errorf("shipment on %s: %v, want %v", c.day, got, c.want)
 		}
 	}
-	if got := fields(t, CheckReturn(cohort.Date{Year: 2026, Month: 5, Day: 30}, reached, now, tokyo)); got["back_on"] != "the date is before the recorder was sent (2026-05-31)" {
+	if got := fields(t, CheckReturn(cohort.Date{Year: 2026, Month: 5, Day: 30}, reached, now, tokyo)); got["back_on"] != "the date is before the recorder was sent (31 May 2026)" {
 		t.Errorf("return before shipment: %v", got)
 	}
 	if got := fields(t, CheckReturn(cohort.Date{Year: 2026, Month: 6, Day: 2}, time.Time{}, now, tokyo)); got != nil {

@@ -11,18 +11,19 @@ import (
 // ServiceLevels are a study's promises on how fast each step happens. They are
 // study settings; the defaults are illustrative.
 //
-// Units: FirstContactWorkingDays counts working days (AddWorkingDays). The
-// other "...Days" fields count calendar days from the event's day in the
-// study's zone; when that day is not a working day the deadline moves to the
-// next working day, because a person on staff must act on it.
+// Units: every deadline ("...WithinDays" and FirstContactWorkingDays) counts
+// working days of the study's calendar from the event's day (AddWorkingDays),
+// since a person on staff must act on it: 5 means the end of the fifth
+// working day after the event. GiveUpAfterDays alone is a span of calendar
+// days, over which unanswered attempts are spread.
 type ServiceLevels struct {
 	FirstContactWorkingDays int // flag -> first contact attempt
 	MaxAttempts             int // unanswered attempts before closing as unreachable is suggested ...
 	GiveUpAfterDays         int // ... provided they span at least this many days
-	RecorderSendWithinDays  int // participant reached -> recorder shipped
-	RecordingBackWithinDays int // recorder shipped -> recording back, after which staff chase it
-	OverReadWithinDays      int // recording received -> interpretable over-read
-	ReferOrCloseWithinDays  int // over-read -> referral sent or case closed
+	RecorderSendWithinDays  int // participant reached -> recorder shipped, working days
+	RecordingBackWithinDays int // recorder shipped -> recording back, working days; after it staff chase the recording
+	OverReadWithinDays      int // recording received -> interpretable over-read, working days
+	ReferOrCloseWithinDays  int // over-read -> referral sent or case closed, working days
 }
 
 // maxSettingDays bounds every day setting; a year is far beyond any sensible
@@ -217,11 +218,11 @@ func NextDue(c CaseFacts, sl ServiceLevels, cal Calendar) (action Action, due ti
 
 	case Reached:
 		base := firstSet(c.ReachedAt, lastReached(attempts), c.FlaggedAt)
-		return ActionSendRecorder, cal.afterDays(base, sl.RecorderSendWithinDays), true
+		return ActionSendRecorder, cal.AddWorkingDays(base, sl.RecorderSendWithinDays), true
 
 	case RecorderSent:
 		sent := firstSet(c.RecorderSentAt, c.ReachedAt, c.FlaggedAt)
-		back := cal.afterDays(sent, sl.RecordingBackWithinDays)
+		back := cal.AddWorkingDays(sent, sl.RecordingBackWithinDays)
 		rd, talked := unansweredRound(attempts, sent)
 		if len(rd) == 0 {
 			if !talked.IsZero() {
@@ -236,11 +237,11 @@ func NextDue(c CaseFacts, sl ServiceLevels, cal Calendar) (action Action, due ti
 
 	case RecordingReceived:
 		base := firstSet(c.RecordingReceivedAt, c.RecorderSentAt, c.ReachedAt, c.FlaggedAt)
-		return ActionOverRead, cal.afterDays(base, sl.OverReadWithinDays), true
+		return ActionOverRead, cal.AddWorkingDays(base, sl.OverReadWithinDays), true
 
 	case OverRead:
 		base := firstSet(c.OverReadAt, c.RecordingReceivedAt, c.RecorderSentAt, c.ReachedAt, c.FlaggedAt)
-		return ActionReferOrClose, cal.afterDays(base, sl.ReferOrCloseWithinDays), true
+		return ActionReferOrClose, cal.AddWorkingDays(base, sl.ReferOrCloseWithinDays), true
 	}
 	return "", time.Time{}, false
 }

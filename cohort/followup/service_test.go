@@ -29,7 +29,7 @@ func attempt(tb testing.TB, loc *time.Location, when string, o Outcome) Attempt 
 
 func TestNextDue(t *testing.T) {
 	cal, loc := studyCalendar(t)
-	sl := DefaultServiceLevels() // 2 working days, 5 attempts over 14 days, 5, 14, 7, 3 days
+	sl := DefaultServiceLevels() // 2 working days, 5 attempts over 14 calendar days, 5, 14, 7, 3 working days
 	flag := at(t, loc, "2026-04-02 10:00")
 	a := func(when string, o Outcome) Attempt { return attempt(t, loc, when, o) }
 	na := OutcomeNoAnswer
@@ -68,17 +68,18 @@ func TestNextDue(t *testing.T) {
 			Attempts: []Attempt{a("2026-04-07 11:00", na)}}, ServiceLevels{MaxAttempts: 1}, ActionSuggestUnreachable, "2026-04-07"},
 		{"contacting: one attempt but a 7-day window", CaseFacts{State: Contacting, FlaggedAt: flag,
 			Attempts: []Attempt{a("2026-04-07 11:00", na)}}, ServiceLevels{MaxAttempts: 1, GiveUpAfterDays: 7}, ActionNextAttempt, "2026-04-14"},
-		// Reached Friday 10th: 5 calendar days is Wed 15th; reached Mon 13th:
-		// Sat 18th, moved to Mon 20th.
-		{"reached: send the recorder", CaseFacts{State: Reached, FlaggedAt: flag, ReachedAt: at(t, loc, "2026-04-10 15:00")}, sl, ActionSendRecorder, "2026-04-15"},
+		// Reached Friday 10th: 5 working days, Mon 13 to Fri 17; reached Mon
+		// 13th: Tue 14 to Fri 17 and Mon 20.
+		{"reached: send the recorder", CaseFacts{State: Reached, FlaggedAt: flag, ReachedAt: at(t, loc, "2026-04-10 15:00")}, sl, ActionSendRecorder, "2026-04-17"},
 		{"reached: deadline on a weekend moves on", CaseFacts{State: Reached, FlaggedAt: flag, ReachedAt: at(t, loc, "2026-04-13 15:00")}, sl, ActionSendRecorder, "2026-04-20"},
 		{"reached: missing time falls back to the reaching attempt", CaseFacts{State: Reached, FlaggedAt: flag,
 			Attempts: []Attempt{a("2026-04-07 11:00", na), a("2026-04-13 15:00", OutcomeReached)}}, sl, ActionSendRecorder, "2026-04-20"},
-		{"reached: nothing recorded falls back to the flag", CaseFacts{State: Reached, FlaggedAt: flag}, sl, ActionSendRecorder, "2026-04-07"},
-		// Sent Mon 13th: back within 14 days, Mon 27th.
+		// Flag Thu 2nd, holiday Fri 3rd: Mon 6 to Fri 10.
+		{"reached: nothing recorded falls back to the flag", CaseFacts{State: Reached, FlaggedAt: flag}, sl, ActionSendRecorder, "2026-04-10"},
+		// Sent Mon 13th: back within 14 working days, Tue 14 to Fri 1 May.
 		{"recorder sent: recording due back", CaseFacts{State: RecorderSent, FlaggedAt: flag, RecorderSentAt: at(t, loc, "2026-04-13 12:00"),
 			Attempts: []Attempt{a("2026-04-07 11:00", na), a("2026-04-08 11:00", na), a("2026-04-09 11:00", na),
-				a("2026-04-10 11:00", na), a("2026-04-11 11:00", OutcomeReached)}}, sl, ActionAwaitRecording, "2026-04-27"},
+				a("2026-04-10 11:00", na), a("2026-04-11 11:00", OutcomeReached)}}, sl, ActionAwaitRecording, "2026-05-01"},
 		// First chase Tue 28th; next planned 4 days later, Sat 2 May -> Mon 4 May.
 		{"recorder sent: chase paced", CaseFacts{State: RecorderSent, FlaggedAt: flag, RecorderSentAt: at(t, loc, "2026-04-13 12:00"),
 			Attempts: []Attempt{a("2026-04-28 10:00", na)}}, sl, ActionChaseRecording, "2026-05-04"},
@@ -87,17 +88,19 @@ func TestNextDue(t *testing.T) {
 		{"recorder sent: a conversation restarts the wait", CaseFacts{State: RecorderSent, FlaggedAt: flag, RecorderSentAt: at(t, loc, "2026-04-13 12:00"),
 			Attempts: []Attempt{a("2026-04-28 10:00", na), a("2026-04-29 10:00", OutcomeReached)}}, sl, ActionAwaitRecording, "2026-05-04"},
 		{"recorder sent: a conversation before the due day keeps the due day", CaseFacts{State: RecorderSent, FlaggedAt: flag, RecorderSentAt: at(t, loc, "2026-04-13 12:00"),
-			Attempts: []Attempt{a("2026-04-14 10:00", OutcomeReached)}}, sl, ActionAwaitRecording, "2026-04-27"},
+			Attempts: []Attempt{a("2026-04-14 10:00", OutcomeReached)}}, sl, ActionAwaitRecording, "2026-05-01"},
 		{"recorder sent: five unanswered chases over 14 days", CaseFacts{State: RecorderSent, FlaggedAt: flag, RecorderSentAt: at(t, loc, "2026-04-13 12:00"),
 			Attempts: []Attempt{a("2026-04-28 10:00", na), a("2026-05-04 10:00", na), a("2026-05-05 10:00", na),
 				a("2026-05-08 10:00", na), a("2026-05-12 10:00", na)}}, sl, ActionSuggestUnreachable, "2026-05-12"},
-		// Received Thu 30th: over-read within 7 days, Thu 7 May.
-		{"recording received: over-read", CaseFacts{State: RecordingReceived, FlaggedAt: flag, RecordingReceivedAt: at(t, loc, "2026-04-30 09:00")}, sl, ActionOverRead, "2026-05-07"},
-		// Over-read Fri 8 May: 3 days is Mon 11 May.
+		// Received Thu 30th: over-read within 7 working days, Fri 1 May, Mon 4
+		// to Fri 8 and Mon 11 May.
+		{"recording received: over-read", CaseFacts{State: RecordingReceived, FlaggedAt: flag, RecordingReceivedAt: at(t, loc, "2026-04-30 09:00")}, sl, ActionOverRead, "2026-05-11"},
+		// Over-read Fri 8 May: 3 working days, Mon 11 to Wed 13 May.
 		{"over-read: refer or close", CaseFacts{State: OverRead, FlaggedAt: flag, RecordingReceivedAt: at(t, loc, "2026-04-30 09:00"),
-			OverReadAt: at(t, loc, "2026-05-08 17:00")}, sl, ActionReferOrClose, "2026-05-11"},
+			OverReadAt: at(t, loc, "2026-05-08 17:00")}, sl, ActionReferOrClose, "2026-05-13"},
+		// Received Thu 30th: Fri 1 May, Mon 4, Tue 5.
 		{"over-read: missing time falls back to receipt", CaseFacts{State: OverRead, FlaggedAt: flag,
-			RecordingReceivedAt: at(t, loc, "2026-04-30 09:00")}, sl, ActionReferOrClose, "2026-05-04"},
+			RecordingReceivedAt: at(t, loc, "2026-04-30 09:00")}, sl, ActionReferOrClose, "2026-05-05"},
 		{"referred: nothing due", CaseFacts{State: Referred, FlaggedAt: flag}, sl, "", ""},
 		{"closed: nothing due", CaseFacts{State: ClosedUnreachable, FlaggedAt: flag}, sl, "", ""},
 		{"unknown state: nothing due", CaseFacts{State: "lost", FlaggedAt: flag}, sl, "", ""},
@@ -277,5 +280,38 @@ func TestActionLabels(t *testing.T) {
 	}
 	if len(seen) != len(actionLabels) {
 		t.Errorf("%d labelled actions, %d tested", len(actionLabels), len(seen))
+	}
+}
+
+// TestServiceLevelsCountWorkingDays: every deadline of the service levels
+// counts working days, as the settings page says, so raising one from 3 to 5
+// moves a due day by two working days, across a weekend (laid out by hand on
+// studyCalendar: an event on Thursday 9 April 2026 is due, 3 working days
+// later, on Tuesday 14th, and 5 working days later on Thursday 16th; counted
+// in calendar days they would be Monday 13th and Tuesday 14th).
+func TestServiceLevelsCountWorkingDays(t *testing.T) {
+	cal, loc := studyCalendar(t)
+	mustWeekday(t, "2026-04-09", time.Thursday)
+	ev := at(t, loc, "2026-04-09 10:00")
+	flag := at(t, loc, "2026-04-01 10:00")
+	for _, lv := range []struct {
+		name  string
+		set   func(*ServiceLevels, int)
+		facts CaseFacts
+	}{
+		{"first contact", func(s *ServiceLevels, n int) { s.FirstContactWorkingDays = n }, CaseFacts{State: Open, FlaggedAt: ev}},
+		{"recorder sent", func(s *ServiceLevels, n int) { s.RecorderSendWithinDays = n }, CaseFacts{State: Reached, FlaggedAt: flag, ReachedAt: ev}},
+		{"recording back", func(s *ServiceLevels, n int) { s.RecordingBackWithinDays = n }, CaseFacts{State: RecorderSent, FlaggedAt: flag, RecorderSentAt: ev}},
+		{"over-read", func(s *ServiceLevels, n int) { s.OverReadWithinDays = n }, CaseFacts{State: RecordingReceived, FlaggedAt: flag, RecordingReceivedAt: ev}},
+		{"refer or close", func(s *ServiceLevels, n int) { s.ReferOrCloseWithinDays = n }, CaseFacts{State: OverRead, FlaggedAt: flag, OverReadAt: ev}},
+	} {
+		for n, want := range map[int]string{3: "2026-04-14", 5: "2026-04-16"} {
+			sl := DefaultServiceLevels()
+			lv.set(&sl, n)
+			_, due, ok := NextDue(lv.facts, sl, cal)
+			if got := endOfDay(day(t, want), loc); !ok || !due.Equal(got) {
+				t.Errorf("%s within %d: due %s, want the end of %s", lv.name, n, due.In(loc), want)
+			}
+		}
 	}
 }

@@ -33,12 +33,36 @@ type StudySettings struct {
 	Service         ServiceLevels
 	EpisodeGapWeeks int
 	ClosureDays     []cohort.Date // days the team does not work, besides weekends; sorted
+	Paper           Paper         // the paper the study prints on
 	Configured      bool          // false until an administrator first saves the settings
 }
 
+// Paper is a paper size the study prints on. Stored as text.
+type Paper string
+
+// The paper sizes: A4 (ISO 216, 210 x 297 mm) and US Letter (8.5 x 11 in).
+const (
+	PaperA4     Paper = "a4"
+	PaperLetter Paper = "letter"
+)
+
+// Papers lists the paper sizes in the order forms offer them.
+func Papers() []Paper { return []Paper{PaperA4, PaperLetter} }
+
+// Label names the paper size: "A4", "US Letter".
+func (p Paper) Label() string {
+	if p == PaperLetter {
+		return "US Letter"
+	}
+	return "A4"
+}
+
+// Valid reports whether p is a paper size.
+func (p Paper) Valid() bool { return p == PaperA4 || p == PaperLetter }
+
 // DefaultStudySettings are the settings of a study nobody has set up yet.
 func DefaultStudySettings() StudySettings {
-	return StudySettings{TimeZone: "UTC", Service: DefaultServiceLevels(), EpisodeGapWeeks: DefaultEpisodeGapWeeks}
+	return StudySettings{TimeZone: "UTC", Service: DefaultServiceLevels(), EpisodeGapWeeks: DefaultEpisodeGapWeeks, Paper: PaperA4}
 }
 
 // Location is the study's time zone; UTC when the stored name is unreadable.
@@ -100,6 +124,9 @@ func (st StudySettings) Validate() error {
 	}
 	if st.EpisodeGapWeeks < 1 || st.EpisodeGapWeeks > MaxEpisodeGapWeeks {
 		ve.Add("episode_gap_weeks", fmt.Sprintf("%d: want 1 to %d weeks", st.EpisodeGapWeeks, MaxEpisodeGapWeeks))
+	}
+	if !st.Paper.Valid() {
+		ve.Add("paper", "choose A4 or US Letter")
 	}
 	if len(st.ClosureDays) > MaxClosureDays {
 		ve.Add("closure_days", fmt.Sprintf("%d dates: at most %d closure days", len(st.ClosureDays), MaxClosureDays))

@@ -58,7 +58,7 @@ func (e Entry) Settle(existing []Reading, today, taken cohort.Date) (Entry, erro
 	case today.Before(e.On):
 		ve.Add("read_on", "the date is in the future")
 	case e.On.Before(taken):
-		ve.Add("read_on", "the date is before the recording was taken ("+taken.String()+")")
+		ve.Add("read_on", "the date is before the recording was taken ("+taken.Label()+")")
 	}
 	if e.Rhythm.Valid() {
 		if err := Check(existing, e.Reading); err != nil {

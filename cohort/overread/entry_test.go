@@ -41,7 +41,7 @@ func TestSettle(t *testing.T) {
 		{"long comment", nil, func(e *Entry) { e.Comment = strings.Repeat("x", MaxCommentChars+1) }, "comment", "2000"},
 		{"no investigator", nil, func(e *Entry) { e.ReaderID = 0 }, "reader", "active investigator"},
 		{"day in the future", nil, func(e *Entry) { e.On = cohort.Date{Year: 2026, Month: 6, Day: 11} }, "read_on", "future"},
-		{"day before the recording", nil, func(e *Entry) { e.On = cohort.Date{Year: 2026, Month: 6, Day: 2} }, "read_on", "2026-06-03"},
+		{"day before the recording", nil, func(e *Entry) { e.On = cohort.Date{Year: 2026, Month: 6, Day: 2} }, "read_on", "3 Jun 2026"},
 		{"second by the first reader", []Reading{first}, func(e *Entry) { e.ReaderID = 7 }, "reader", "another investigator"},
 		{"not the role due", []Reading{first}, func(e *Entry) { e.Role = First }, "role", "second reading"},
 		{"unknown role", nil, func(e *Entry) { e.Role = "third" }, "role", "first reading"},

@@ -24,7 +24,6 @@ import (
 	"cohortdesk/cohort/overread"
 	"cohortdesk/cohort/risk"
 	"cohortdesk/cohort/screen"
-	"cohortdesk/cohort/stats"
 )
 
 // Source is everything the store gathers for one summary. It holds
@@ -142,13 +141,7 @@ func Build(src Source, secret []byte) (Summary, error) {
 	}
 	s.AgeBand = "not recorded"
 	if ageKnown {
-		bands, err := stats.NewAgeBands(deid.SummaryAgeCuts()...)
-		if err != nil {
-			return Summary{}, fmt.Errorf("referral: age bands: %w", err)
-		}
-		if s.AgeBand, err = age.Band(bands); err != nil {
-			return Summary{}, err
-		}
+		s.AgeBand = deid.AgeBand(age.Years)
 	}
 	weeks := slices.Clone(src.Weeks)
 	slices.SortFunc(weeks, func(a, b Week) int { return a.Week - b.Week })
@@ -191,11 +184,7 @@ func ageOf(src Source, loc *time.Location) (deid.Age, bool, error) {
 		return a, true, nil
 	}
 	if src.AgeAtEnrolment != nil {
-		since, err := deid.AgeAt(src.EnrolledOn, today)
-		if err != nil {
-			since = 0
-		}
-		return deid.FoldAge(*src.AgeAtEnrolment + since), true, nil
+		return deid.AgeSince(*src.AgeAtEnrolment, src.EnrolledOn, today), true, nil
 	}
 	return deid.Age{}, false, nil
 }

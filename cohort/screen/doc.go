@@ -86,5 +86,9 @@
 // (SweepParams lists those it can vary; CheckSweep checks a request), and
 // SweepTally counts, per value, how many weeks would flag and how those flags
 // agree with the over-read ECGs of the study's cases, so an investigator can
-// weigh a change before an administrator makes a new protocol version.
+// weigh a change before an administrator makes a new protocol version. Its
+// PPV is per participant-week, where the agreement statistics' is per
+// flagged episode (PPVUnits words the difference); both take as reference
+// only recordings long enough for a diagnostic read
+// (overread.Conclusion.Diagnostic).
 package screen

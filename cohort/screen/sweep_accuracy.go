@@ -23,38 +23,55 @@ const (
 )
 
 // ReferenceCase is a follow-up case as a sweep's reference standard sees it:
-// the participant-weeks it covers and the conclusions of its recordings'
-// readings (overread.Resolve).
+// the participant-weeks it covers and its recordings, each with the
+// conclusion of its readings (overread.Resolve).
 type ReferenceCase struct {
 	ParticipantID       int64
 	FirstWeek, LastWeek int
-	Conclusions         []overread.Conclusion
+	Recordings          []ReferenceRecording
 }
 
-// Reference is the case's reference: AF when any recording settled on AF,
-// else not AF when any settled on another interpretable rhythm, else
-// uninterpretable when any settled on that, else pending when a recording has
-// readings that settle nothing (readers disagree), else none. Recordings of
-// any length count.
+// ReferenceRecording is one recording of a reference case: the conclusion
+// of its readings and whether it is too short for a diagnostic read.
+type ReferenceRecording struct {
+	Conclusion overread.Conclusion
+	TooShort   bool // under the 30 s a single-lead diagnosis needs
+}
+
+// Reference is the case's reference, by the same rule as the screening
+// cascade and the agreement statistics (overread.Conclusion.Diagnostic):
+// only recordings long enough for a diagnostic read count. AF when any of
+// them settled on AF, else not AF when any settled on another interpretable
+// rhythm, else uninterpretable when any settled on that, else pending when a
+// recording has readings that settle nothing (readers disagree), else none.
 func (c ReferenceCase) Reference() Reference {
 	ref := RefNone
-	for _, v := range c.Conclusions {
+	for _, rec := range c.Recordings {
+		v := rec.Conclusion
 		r := RefNone
 		switch {
-		case v.Status == overread.Unread:
+		case rec.TooShort, v.Status == overread.Unread:
 		case !v.Final:
 			r = RefPending
-		case v.Rhythm == overread.AF:
+		case v.Diagnostic(rec.TooShort) && v.Rhythm == overread.AF:
 			r = RefAF
-		case v.Rhythm == overread.Uninterpretable:
-			r = RefUninterpretable
-		default:
+		case v.Diagnostic(rec.TooShort):
 			r = RefNotAF
+		default:
+			r = RefUninterpretable
 		}
 		ref = max(ref, r)
 	}
 	return ref
 }
+
+// PPVUnits links the two PPVs the app shows, in the words both pages use:
+// the threshold sweep's per-week PPV and the statistics' per-episode PPV
+// (cohort/cascade). Both count only recordings long enough for a diagnostic
+// read (overread.Conclusion.Diagnostic).
+const PPVUnits = "Per-week PPV (the threshold sweep) counts participant-weeks: of the weeks a value flags that have a diagnostic over-read, the share with AF confirmed. " +
+	"Per-episode PPV (the agreement statistics) counts flagged episodes, the follow-up cases: of the episodes with a diagnostic over-read, the share with AF confirmed. " +
+	"An episode of three flagged weeks counts once in the per-episode PPV and three times in the per-week PPV, so the two differ; both count only recordings of at least 30 s."
 
 // SweepRow is the outcome of one value of the swept parameter.
 type SweepRow struct {
@@ -63,9 +80,10 @@ type SweepRow struct {
 	// Table counts the weeks with an adjudicated over-read: TP flagged and
 	// AF, FP flagged and not AF, FN not flagged but AF, TN neither.
 	Table stats.Table2x2
-	// PPV is confirmed among flagged, Sensitivity flagged among confirmed,
-	// both over weeks with an adjudicated over-read, with Wilson 95% intervals
-	// (nil when the denominator is 0).
+	// PPV (the per-week PPV, see PPVUnits) is confirmed among flagged,
+	// Sensitivity flagged among confirmed, both over weeks with a settled
+	// diagnostic over-read, with Wilson 95% intervals (nil when the
+	// denominator is 0).
 	PPV, Sensitivity     stats.Fraction
 	PPVCI, SensitivityCI *stats.Interval
 }

@@ -103,7 +103,7 @@ func TestCaseReference(t *testing.T) {
 	} {
 		rc := ReferenceCase{}
 		for _, r := range c.recs {
-			rc.Conclusions = append(rc.Conclusions, conclusion(t, r[0], r[1], r[2]))
+			rc.Recordings = append(rc.Recordings, ReferenceRecording{Conclusion: conclusion(t, r[0], r[1], r[2])})
 		}
 		if got := rc.Reference(); got != c.want {
 			t.Errorf("%s: %d, want %d", c.name, got, c.want)
@@ -139,7 +139,7 @@ func TestSweepTallyOnHandWorkedWeeks(t *testing.T) {
 	ref := func(pid int64, recs ...[3]overread.Rhythm) ReferenceCase {
 		rc := ReferenceCase{ParticipantID: pid, FirstWeek: 1, LastWeek: 1}
 		for _, r := range recs {
-			rc.Conclusions = append(rc.Conclusions, conclusion(t, r[0], r[1], r[2]))
+			rc.Recordings = append(rc.Recordings, ReferenceRecording{Conclusion: conclusion(t, r[0], r[1], r[2])})
 		}
 		return rc
 	}
@@ -201,8 +201,8 @@ func TestSweepTallyReferenceCovers(t *testing.T) {
 		t.Fatal(err)
 	}
 	tally.Refer([]ReferenceCase{
-		{ParticipantID: 1, FirstWeek: 1, LastWeek: 3, Conclusions: []overread.Conclusion{conclusion(t, overread.Sinus, "", "")}},
-		{ParticipantID: 1, FirstWeek: 3, LastWeek: 3, Conclusions: []overread.Conclusion{conclusion(t, overread.AF, "", "")}},
+		{ParticipantID: 1, FirstWeek: 1, LastWeek: 3, Recordings: []ReferenceRecording{{Conclusion: conclusion(t, overread.Sinus, "", "")}}},
+		{ParticipantID: 1, FirstWeek: 3, LastWeek: 3, Recordings: []ReferenceRecording{{Conclusion: conclusion(t, overread.AF, "", "")}}},
 	})
 	for w := range 5 {
 		if err := tally.Add(1, tallyWeek(t, w, "I")); err != nil {
@@ -324,6 +324,34 @@ func TestSweepParams(t *testing.T) {
 	for _, sp := range got {
 		if _, err := p.With(sp.Path, 1); err != nil {
 			t.Errorf("With(%s): %v", sp.Path, err)
+		}
+	}
+}
+
+// TestCaseReferenceCountsDiagnosticRecordingsOnly: a recording shorter than
+// the 30 s a single-lead diagnosis needs is no reference, whatever its
+// readings say, as in the screening cascade and the agreement statistics
+// (overread.Conclusion.Diagnostic; the 30 s from the 2020 ESC AF
+// guidelines, from memory).
+func TestCaseReferenceCountsDiagnosticRecordingsOnly(t *testing.T) {
+	short := func(r overread.Rhythm) ReferenceRecording {
+		return ReferenceRecording{Conclusion: conclusion(t, r, "", ""), TooShort: true}
+	}
+	full := func(r overread.Rhythm) ReferenceRecording {
+		return ReferenceRecording{Conclusion: conclusion(t, r, "", "")}
+	}
+	for _, c := range []struct {
+		name string
+		recs []ReferenceRecording
+		want Reference
+	}{
+		{"a short AF recording", []ReferenceRecording{short(overread.AF)}, RefNone},
+		{"a short uninterpretable recording", []ReferenceRecording{short(overread.Uninterpretable)}, RefNone},
+		{"a short AF recording and a full sinus one", []ReferenceRecording{short(overread.AF), full(overread.Sinus)}, RefNotAF},
+		{"a full AF recording", []ReferenceRecording{full(overread.AF)}, RefAF},
+	} {
+		if got := (ReferenceCase{Recordings: c.recs}).Reference(); got != c.want {
+			t.Errorf("%s: %d, want %d", c.name, got, c.want)
 		}
 	}
 }

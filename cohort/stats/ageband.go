@@ -5,13 +5,6 @@ import (
 	"strconv"
 )
 
-// DefaultAgeCuts returns our subgroup cut points for a screening population
-// of older adults: <50, 50-59, 60-69, 70-79, 80+. Ours, not from a
-// guideline; 50 is where screening recommendations for AF usually start. A
-// function rather than a variable, so no caller can change the default for
-// everyone.
-func DefaultAgeCuts() []int { return []int{50, 60, 70, 80} }
-
 // AgeBands splits whole-year ages at cut points: with cuts 50, 60 the bands
 // are <50, 50-59 and 60+.
 type AgeBands struct {

@@ -119,7 +119,7 @@ func TestProjectEnrolmentInvalid(t *testing.T) {
 }
 
 func TestAgeBands(t *testing.T) {
-	b, err := NewAgeBands(DefaultAgeCuts()...)
+	b, err := NewAgeBands(50, 60, 70, 80)
 	if err != nil {
 		t.Fatal(err)
 	}

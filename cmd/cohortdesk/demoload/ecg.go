@@ -10,7 +10,6 @@ import (
 	"cohortdesk/cohort/ecg"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/db"
-	"cohortdesk/views/referralpdf"
 	"cohortdesk/web/referralissue"
 )
 
@@ -69,7 +68,7 @@ func refer(ctx context.Context, cs *db.Store, issuer cohort.Actor, signer db.Use
 	if !d.Basis.ConfirmedAF() {
 		return fmt.Errorf("the script refers case %d, whose over-read is not atrial fibrillation", c.ID)
 	}
-	ref, _, err := referralissue.Record(ctx, cs, issuer, d, "pdf", referralpdf.PaperLetter)
+	ref, _, err := referralissue.Record(ctx, cs, issuer, d, "pdf", string(demo.Paper))
 	if err != nil {
 		return fmt.Errorf("issue referral: %w", err)
 	}

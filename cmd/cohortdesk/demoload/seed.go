@@ -166,10 +166,10 @@ func loadStudy(ctx context.Context, store *db.Store, a cohort.Actor, st *demo.St
 		closures[i] = c.Date.String()
 	}
 	err := pgx.BeginFunc(ctx, store.Pool(), func(tx pgx.Tx) error {
-		_, err := tx.Exec(ctx, `INSERT INTO study (id, name, time_zone, contact_route, closure_days, enrolment_target, follow_up_weeks)
-			VALUES (1, $1, $2, $3, $4::date[], $5, $6)`,
+		_, err := tx.Exec(ctx, `INSERT INTO study (id, name, time_zone, contact_route, closure_days, enrolment_target, follow_up_weeks, paper)
+			VALUES (1, $1, $2, $3, $4::date[], $5, $6, $7)`,
 			st.Name, st.TimeZone, "Study coordinating office, "+st.Name+": reply through the study's secure message line quoting the referral code.",
-			closures, target, demo.WearWeeks)
+			closures, target, demo.WearWeeks, string(demo.Paper))
 		return err
 	})
 	if err != nil {
