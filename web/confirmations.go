@@ -167,7 +167,7 @@ func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error
 	}
 	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.Label(), Protocol: a.Protocol.Label(), PPVUnits: screen.PPVUnits,
 		Freshness: freshness(pending, s.now()),
-		ProtoID: strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
+		ProtoID:   strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
 	for _, t := range []string{"versions", "groups", "km", "kappa"} {
 		m.CSV[t] = statsCSVHref(t, q)
 	}
