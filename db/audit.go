@@ -10,6 +10,7 @@ import (
 	"cohortdesk/cohort"
 
 	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/pgconn"
 )
 
 // AuditEvent is one row of the append-only audit trail.
@@ -33,14 +34,36 @@ type AuditEvent struct {
 // audit writes one event inside the caller's transaction, so the change and its
 // record commit or fail together. old and new are marshalled to JSON (nil stays
 // NULL).
-func audit(ctx context.Context, tx pgx.Tx, a cohort.Actor, action, objType, objID string, old, new any) error {
-	oldJ, err := toJSON(old)
+func audit(ctx context.Context, tx execer, a cohort.Actor, action, objType, objID string, old, new any) error {
+	args, err := auditArgs(ctx, a, action, objType, objID, old, new)
 	if err != nil {
 		return err
 	}
+	if _, err = tx.Exec(ctx, auditInsert, args...); err != nil {
+		return fmt.Errorf("db: audit %s: %w", action, err)
+	}
+	return nil
+}
+
+// execer is a transaction or the pool, for a write of one statement.
+type execer interface {
+	Exec(ctx context.Context, sql string, args ...any) (pgconn.CommandTag, error)
+}
+
+// auditInsert writes one audit event ($1..$10 from auditArgs).
+const auditInsert = `
+		INSERT INTO audit_events (at, actor_id, actor, action, object_type, object_id, old_value, new_value, client_addr, request_id)
+		VALUES (coalesce($10::timestamptz, now()), $1, $2, $3, $4, $5, $6, $7, $8, $9)`
+
+// auditArgs are auditInsert's arguments.
+func auditArgs(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) ([]any, error) {
+	oldJ, err := toJSON(old)
+	if err != nil {
+		return nil, err
+	}
 	newJ, err := toJSON(new)
 	if err != nil {
-		return err
+		return nil, err
 	}
 	var actorID *int64
 	if a.UserID != 0 {
@@ -50,14 +73,7 @@ func audit(ctx context.Context, tx pgx.Tx, a cohort.Actor, action, objType, objI
 	if clk, ok := ctx.Value(historyClockKey{}).(func() time.Time); ok {
 		at = clk()
 	}
-	_, err = tx.Exec(ctx, `
-		INSERT INTO audit_events (at, actor_id, actor, action, object_type, object_id, old_value, new_value, client_addr, request_id)
-		VALUES (coalesce($10::timestamptz, now()), $1, $2, $3, $4, $5, $6, $7, $8, $9)`,
-		actorID, a.Label(), action, objType, objID, oldJ, newJ, a.Addr, a.RequestID, at)
-	if err != nil {
-		return fmt.Errorf("db: audit %s: %w", action, err)
-	}
-	return nil
+	return []any{actorID, a.Label(), action, objType, objID, oldJ, newJ, a.Addr, a.RequestID, at}, nil
 }
 
 type historyClockKey struct{}
@@ -86,10 +102,9 @@ func toJSON(v any) ([]byte, error) {
 
 // Audit records an event on its own, for things that change nothing else
 // (sign-in, sign-out, a view of PHI, a download).
+// It is one statement, committed on its own.
 func (s *Store) Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error {
-	return mapErr("record audit event", s.inTx(ctx, func(tx pgx.Tx) error {
-		return audit(ctx, tx, a, action, objType, objID, old, new)
-	}))
+	return mapErr("record audit event", audit(ctx, s.pool, a, action, objType, objID, old, new))
 }
 
 // AuditFilter narrows the audit list.
@@ -156,7 +171,7 @@ func (s *Store) AuditEvents(ctx context.Context, f AuditFilter) ([]AuditEvent, e
 	}
 	where, args := f.where()
 	args = append(args, f.Limit)
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id, `+auditStudyID+`,
 		       old_value, new_value, client_addr, request_id
 		FROM audit_events e `+where+fmt.Sprintf(` ORDER BY id DESC LIMIT $%d`, len(args)), args...)
@@ -170,7 +185,7 @@ func (s *Store) AuditEvents(ctx context.Context, f AuditFilter) ([]AuditEvent, e
 // for CSV downloads of any size.
 func (s *Store) EachAuditEvent(ctx context.Context, f AuditFilter, fn func(AuditEvent) error) error {
 	where, args := f.where()
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT id, at, coalesce(actor_id, 0), actor, action, object_type, object_id, `+auditStudyID+`,
 		       old_value, new_value, client_addr, request_id
 		FROM audit_events e `+where+` ORDER BY id`, args...)

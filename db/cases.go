@@ -61,19 +61,16 @@ const caseCols = `c.id, c.participant_id, p.study_id, p.site_id, st.code, c.prot
 	coalesce(rec.n, 0), rec.oldest, coalesce(rec.first, 0)`
 
 // caseFrom joins what a case row shows. Recordings waiting for an over-read
-// (awaitingRead) are counted once per query and joined by case (a per-case
-// lateral count cost 20 ms at 2,000 cases); a condition on c.id reaches the
-// grouped subquery through the join, so one case's page reads only its own
-// recordings.
+// (awaitingRead) are counted for each case shown (an index on recordings by
+// case, the over-read key by recording), so a page of cases costs what it
+// shows, not what the study holds.
 const caseFrom = `cases c
 	JOIN participants p ON p.id = c.participant_id
 	JOIN sites st ON st.id = p.site_id
 	LEFT JOIN users u ON u.id = c.owner_id
-	LEFT JOIN (SELECT r.case_id, count(*) AS n, min(r.created_at) AS oldest,
+	LEFT JOIN LATERAL (SELECT count(*) AS n, min(r.created_at) AS oldest,
 	        (array_agg(r.id ORDER BY r.received_at, r.id))[1] AS first
-	    FROM recordings r JOIN cases c ON c.id = r.case_id
-	    WHERE ` + awaitingRead + `
-	    GROUP BY r.case_id) rec ON rec.case_id = c.id`
+	    FROM recordings r WHERE r.case_id = c.id AND ` + awaitingRead + `) rec ON true`
 
 func timeOf(p *time.Time) time.Time {
 	if p == nil {
@@ -109,7 +106,7 @@ func scanCase(row pgx.Row, extra ...any) (Case, error) {
 
 // Case returns one case.
 func (s *Store) Case(ctx context.Context, id int64) (Case, error) {
-	c, err := scanCase(s.pool.QueryRow(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE c.id = $1`, id))
+	c, err := scanCase(s.reader(ctx).QueryRow(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE c.id = $1`, id))
 	return c, mapErr("case", err)
 }
 
@@ -132,10 +129,17 @@ type Attempt struct {
 func caseAttempts(ctx context.Context, q interface {
 	Query(context.Context, string, ...any) (pgx.Rows, error)
 }, caseID int64) ([]Attempt, error) {
-	rows, err := q.Query(ctx, `SELECT id, at, channel, outcome, note, moved_to, actor FROM contact_attempts WHERE case_id = $1 ORDER BY at, id`, caseID)
+	rows, err := q.Query(ctx, attemptsSQL, caseID)
 	if err != nil {
 		return nil, err
 	}
+	return scanAttempts(rows)
+}
+
+// attemptsSQL reads a case's contact attempts ($1), oldest first.
+const attemptsSQL = `SELECT id, at, channel, outcome, note, moved_to, actor FROM contact_attempts WHERE case_id = $1 ORDER BY at, id`
+
+func scanAttempts(rows pgx.Rows) ([]Attempt, error) {
 	return pgx.CollectRows(rows, func(r pgx.CollectableRow) (Attempt, error) {
 		var a Attempt
 		var ch, out, moved string

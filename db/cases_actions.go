@@ -78,7 +78,7 @@ func (s *Store) CaseWorkers(ctx context.Context) ([]User, error) {
 	for _, r := range followup.CaseWorkerRoles() {
 		roles = append(roles, string(r))
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+userCols+` FROM users WHERE active AND role = ANY($1) ORDER BY display_name, id`, roles)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+userCols+` FROM users WHERE active AND role = ANY($1) ORDER BY display_name, id`, roles)
 	if err != nil {
 		return nil, mapErr("case workers", err)
 	}

@@ -11,7 +11,6 @@ import (
 	"cohortdesk/cohort/followup"
 
 	"github.com/jackc/pgx/v5"
-	"github.com/jackc/pgx/v5/pgtype"
 )
 
 // CaseScope is which cases the list holds when it is not narrowed to one
@@ -46,6 +45,45 @@ type CasePage struct {
 	Rows  []Case
 	Next  string // cursor of the next page, "" at the end
 	Total int64  // cases matching the filter
+	// AtLeast: Total is a lower bound; the filter's cases were counted up
+	// to countCap and there are more.
+	AtLeast bool
+}
+
+// countCap bounds a count that no kept sum answers: a list says "at least"
+// beyond it rather than count every row of a large study on each page.
+const countCap = 10000
+
+// caseCount counts the cases the filter matches: from the sums kept by state,
+// owner and deadline hour (case_counts) when the filter is made of those,
+// else up to countCap from the cases themselves.
+func (s *Store) caseCount(ctx context.Context, f CaseFilter, where string, args []any) (int64, bool, error) {
+	var n int64
+	if f.OwnerID > 0 || f.SiteID > 0 || strings.TrimSpace(f.Search) != "" {
+		err := s.reader(ctx).QueryRow(ctx, `SELECT count(*) FROM (SELECT 1 FROM cases c JOIN participants p ON p.id = c.participant_id WHERE `+
+			where+fmt.Sprintf(` LIMIT %d) x`, countCap+1), args...).Scan(&n)
+		return min(n, countCap), n > countCap, err
+	}
+	var states []string
+	for _, st := range followup.States() {
+		switch {
+		case f.State != "":
+			if st != f.State {
+				continue
+			}
+		case f.Scope == WorkingCases && st.Terminal(), f.Scope == EndedCases && !st.Terminal():
+			continue
+		}
+		states = append(states, string(st))
+	}
+	now := s.now()
+	err := s.reader(ctx).QueryRow(ctx, `
+		SELECT (SELECT coalesce(sum(n), 0) FROM case_counts
+		        WHERE state = ANY($1) AND NOT ($2 AND owned) AND (NOT $3 OR due_hour + interval '1 hour' <= $4::timestamptz AT TIME ZONE 'UTC'))
+		     + (SELECT count(*) FROM cases c WHERE $3 AND c.closed_at IS NULL AND c.state = ANY($1) AND NOT ($2 AND c.owner_id IS NOT NULL)
+		        AND c.due_at >= date_trunc('hour', $4::timestamptz AT TIME ZONE 'UTC') AT TIME ZONE 'UTC' AND c.due_at <= $4::timestamptz)`,
+		states, f.Unowned, f.Overdue, now).Scan(&n)
+	return n, false, err
 }
 
 // caseOrders are the orders the case list can be sorted in, by the key its
@@ -117,7 +155,7 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 	if err != nil {
 		return page, err
 	}
-	if err := s.pool.QueryRow(ctx, `SELECT count(*) FROM cases c JOIN participants p ON p.id = c.participant_id WHERE `+where, args...).Scan(&page.Total); err != nil {
+	if page.Total, page.AtLeast, err = s.caseCount(ctx, f, where, args); err != nil {
 		return page, mapErr("cases count", err)
 	}
 	order, ok := caseOrders[f.Sort]
@@ -137,7 +175,7 @@ func (s *Store) Cases(ctx context.Context, f CaseFilter) (CasePage, error) {
 			order, cmp, order, len(args))
 	}
 	args = append(args, f.Limit+1)
-	rows, err := s.pool.Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE `+where+
 		fmt.Sprintf(` ORDER BY %s%s, c.id%s LIMIT $%d`, order, dir, dir, len(args)), args...)
 	if err != nil {
 		return page, mapErr("cases", err)
@@ -168,82 +206,122 @@ type Triage struct {
 	Settings         StudySettings
 }
 
-// Triage orders the cases still being worked by followup.Urgency at the
-// store's now, in the study's time zone, for the person with account id me
-// (their own cases have a group), counts every group, and returns the first
-// perGroup cases of each urgent group in full (all of them when perGroup <=
-// 0). Cases on schedule (followup.BucketOther) are counted, not returned:
-// the triage page does not list them, the case list does.
+// Triage places the cases still being worked in followup.Urgency's groups
+// at the store's now, in the study's time zone, for the person with account
+// id me (their own cases have a group), counts every group, and returns the
+// first perGroup cases of each urgent group in full, in the group's order
+// (all of them when perGroup <= 0). Cases on schedule (followup.BucketOther)
+// are counted, not returned: the triage page does not list them, the case
+// list does.
 //
-// The order needs only a few fields of every case, so those are read for all
-// cases and the full rows only for the cases returned: at 2,000 working cases
-// this halves the time of the page. The reads need no common snapshot (a case
-// changed in between shows as it now is), so they run outside a transaction.
+// The counts come from sums kept by state, owner and the hour of the
+// deadline (case_counts), with the hour that holds each of
+// followup.Deadlines counted exactly from the deadline index; the cases
+// holding a recording waiting for an over-read are kept by case
+// (figure_waiting); the person's own cases come from the owner index. Each
+// group's first rows come in the group's order from those. So the page costs
+// what it shows and what waits, however many cases are being worked.
 func (s *Store) Triage(ctx context.Context, perGroup int, me int64) (Triage, error) {
 	var t Triage
-	var items []followup.TriageItem
-	err := func() error {
-		var err error
-		if t.Settings, err = studySettings(ctx, s.pool); err != nil {
-			return err
-		}
-		rows, err := s.pool.Query(ctx, `
-			SELECT c.id, p.study_id, c.state, coalesce(u.display_name, ''), coalesce(c.owner_id, 0), c.flagged_at, c.due_at,
-			       coalesce(c.recording_back_at, rec.oldest), coalesce(rec.n, 0)
-			FROM `+caseFrom+` WHERE c.closed_at IS NULL`)
-		if err != nil {
-			return err
-		}
-		defer rows.Close()
-		for rows.Next() {
-			var id, owner int64
-			var it followup.TriageItem
-			var state string
-			var due, received pgtype.Timestamptz
-			var n int
-			if err := rows.Scan(&id, &it.StudyID, &state, &it.Owner, &owner, &it.FlaggedAt, &due, &received, &n); err != nil {
-				return err
-			}
-			it.CaseID, it.State, it.Due, it.RecordingReceivedAt = strconv.FormatInt(id, 10), followup.State(state), due.Time, received.Time
-			it.AwaitingReads, it.Mine = n, me != 0 && owner == me
-			items = append(items, it)
-			t.UnreadRecordings += n
-		}
-		return rows.Err()
-	}()
-	if err != nil {
+	var err error
+	if t.Settings, err = s.StudySettings(ctx); err != nil {
 		return t, mapErr("triage", err)
 	}
 	t.Now = s.now().In(t.Settings.Location())
-	followup.SortTriage(items, t.Now)
-	t.Counts = map[followup.Bucket]int{}
-	var ids []int64
-	var buckets []followup.Bucket
-	for _, it := range items {
-		b := followup.Urgency(it, t.Now).Bucket
-		t.Counts[b]++
-		if b != followup.BucketOther && (perGroup <= 0 || t.Counts[b] <= perGroup) {
-			id, _ := strconv.ParseInt(it.CaseID, 10, 64)
-			ids, buckets = append(ids, id), append(buckets, b)
+	overdue, today := followup.Deadlines(t.Now)
+	var working []string
+	for _, st := range followup.States() {
+		if !st.Terminal() {
+			working = append(working, string(st))
 		}
 	}
-	if len(ids) == 0 {
-		return t, nil
+	limit := any(nil)
+	if perGroup > 0 {
+		limit = perGroup
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+caseCols+` FROM `+caseFrom+` WHERE c.id = ANY($1)`, ids)
+	hour := func(at time.Time) string { return at.UTC().Truncate(time.Hour).Format("2006-01-02 15:04:05") }
+	open := string(followup.Open)
+	// A case past the first three groups: nothing due by the end of today,
+	// and not a new flag nobody has taken on.
+	const later = `c.closed_at IS NULL AND (c.due_at IS NULL OR c.due_at > $1) AND NOT (c.state = 'open' AND c.owner_id IS NULL)`
+	const waits = `EXISTS (SELECT 1 FROM figure_waiting w WHERE w.participant_id = c.participant_id AND w.case_id = c.id)`
+	b := &pgx.Batch{}
+	// Cases with a deadline at or before a moment: the whole hours before
+	// it from the sums, the hour that holds it from the cases themselves.
+	b.Queue(`
+		WITH k AS (SELECT state, owned, due_hour, sum(n) AS n FROM case_counts WHERE state = ANY($1) GROUP BY 1, 2, 3 HAVING sum(n) <> 0),
+		x AS (SELECT c.state, c.owner_id IS NOT NULL AS owned, c.due_at FROM cases c
+		      WHERE c.closed_at IS NULL AND ((c.due_at >= $2::timestamp AT TIME ZONE 'UTC' AND c.due_at <= $3::timestamptz)
+		                                  OR (c.due_at >= $4::timestamp AT TIME ZONE 'UTC' AND c.due_at <= $5::timestamptz))),
+		upto AS (
+		  SELECT (SELECT coalesce(sum(n), 0) FROM k WHERE due_hour + interval '1 hour' <= $3::timestamptz AT TIME ZONE 'UTC')
+		         + (SELECT count(*) FROM x WHERE due_at >= $2::timestamp AT TIME ZONE 'UTC' AND due_at <= $3::timestamptz) AS overdue,
+		         (SELECT coalesce(sum(n), 0) FROM k WHERE due_hour + interval '1 hour' <= $5::timestamptz AT TIME ZONE 'UTC')
+		         + (SELECT count(*) FROM x WHERE due_at >= $4::timestamp AT TIME ZONE 'UTC' AND due_at <= $5::timestamptz) AS today,
+		         (SELECT coalesce(sum(n), 0) FROM k WHERE state = $6 AND NOT owned AND due_hour + interval '1 hour' <= $5::timestamptz AT TIME ZONE 'UTC')
+		         + (SELECT count(*) FROM x WHERE state = $6 AND NOT owned AND due_at >= $4::timestamp AT TIME ZONE 'UTC' AND due_at <= $5::timestamptz) AS new_due)
+		SELECT (SELECT coalesce(sum(n), 0) FROM k), upto.overdue, upto.today,
+		       (SELECT coalesce(sum(n), 0) FROM k WHERE state = $6 AND NOT owned) - upto.new_due,
+		       (SELECT coalesce(sum(n), 0) FROM figure_unread_counts)
+		FROM upto`, working, hour(overdue), overdue, hour(today), today, open)
+	b.Queue(`SELECT count(*) FROM figure_waiting w JOIN cases c ON c.participant_id = w.participant_id AND c.id = w.case_id WHERE `+later, today)
+	b.Queue(`SELECT count(*) FROM cases c WHERE c.owner_id = $2 AND `+later+` AND NOT `+waits, today, me)
+	// Each group's first rows, in followup.Urgency's order (ties by study
+	// ID, then case id as text), each from an index in that order
+	// (migration 0042: cases carry their participant's study ID) or from
+	// the few cases waiting for an over-read.
+	const tie = `c.study_id COLLATE "C", (c.id::text) COLLATE "C"`
+	full := `SELECT ` + caseCols + ` FROM ` + caseFrom
+	b.Queue(full+` WHERE c.closed_at IS NULL AND c.due_at <= $1 ORDER BY c.due_at, `+tie+` LIMIT $2`, overdue, limit)
+	b.Queue(full+` WHERE c.closed_at IS NULL AND c.due_at > $1 AND c.due_at <= $2 ORDER BY c.due_at, `+tie+` LIMIT $3`, overdue, today, limit)
+	b.Queue(full+` WHERE c.state = $2 AND c.owner_id IS NULL AND (c.due_at IS NULL OR c.due_at > $1)
+		ORDER BY c.flagged_at, `+tie+` LIMIT $3`, today, open, limit)
+	// A recording that came in without its return being recorded dates the
+	// wait by its own arrival (triageItem).
+	b.Queue(full+` JOIN figure_waiting w ON w.participant_id = c.participant_id AND w.case_id = c.id WHERE `+later+`
+		ORDER BY coalesce(c.recording_back_at, rec.oldest), `+tie+` LIMIT $2`, today, limit)
+	b.Queue(full+` WHERE c.owner_id = $2 AND `+later+` AND NOT `+waits+` ORDER BY c.due_at, `+tie+` LIMIT $3`, today, me, limit)
+	var groups [5][]Case
+	var all, n1, n2, n3, n4, n5, unread int
+	err = s.readBatch(ctx, b, func(br pgx.BatchResults) error {
+		if err := br.QueryRow().Scan(&all, &n1, &n2, &n3, &unread); err != nil {
+			return err
+		}
+		if err := br.QueryRow().Scan(&n4); err != nil {
+			return err
+		}
+		if err := br.QueryRow().Scan(&n5); err != nil {
+			return err
+		}
+		for i := range groups {
+			rows, err := br.Query()
+			if err != nil {
+				return err
+			}
+			if groups[i], err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (Case, error) { return scanCase(r) }); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
 	if err != nil {
 		return t, mapErr("triage", err)
 	}
-	cases, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Case, error) { return scanCase(r) })
-	if err != nil {
-		return t, mapErr("triage", err)
+	if me == 0 {
+		n5, groups[4] = 0, nil
 	}
-	byID := make(map[int64]Case, len(cases))
-	for _, c := range cases {
-		byID[c.ID] = c
+	t.Counts = map[followup.Bucket]int{followup.BucketOverdue: n1, followup.BucketDueToday: n2 - n1,
+		followup.BucketNewUnowned: n3, followup.BucketAwaitingOverRead: n4, followup.BucketMine: n5}
+	t.Counts[followup.BucketOther] = all - n2 - n3 - n4 - n5
+	for b, n := range t.Counts {
+		if n == 0 {
+			delete(t.Counts, b)
+		}
 	}
-	for i, id := range ids {
-		if c, ok := byID[id]; ok { // a case closed in between drops out
+	t.UnreadRecordings = unread
+	buckets := []followup.Bucket{followup.BucketOverdue, followup.BucketDueToday, followup.BucketNewUnowned, followup.BucketAwaitingOverRead, followup.BucketMine}
+	for i, g := range groups {
+		for _, c := range g {
 			t.Rows = append(t.Rows, TriageRow{Case: c, Bucket: buckets[i]})
 		}
 	}

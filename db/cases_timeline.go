@@ -79,66 +79,53 @@ type CaseEvent struct {
 // for a recording read in October sits among October's events.
 func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([]CaseEvent, error) {
 	var out []CaseEvent
-	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly}, func(tx pgx.Tx) error {
-		rows, err := tx.Query(ctx, `
+	// One round trip: the five reads are sent together.
+	b := &pgx.Batch{}
+	b.Queue(`
 			SELECT at, actor, action, old_value, new_value FROM audit_events
 			WHERE object_type = 'case' AND object_id = $1 AND action <> 'case.attempt'
-			ORDER BY id`, strconv.FormatInt(c.ID, 10))
-		if err != nil {
-			return err
-		}
+			ORDER BY id`, strconv.FormatInt(c.ID, 10)).Query(func(rows pgx.Rows) error {
 		for rows.Next() {
 			e := CaseEvent{Kind: EventChange}
 			var oldRaw, newRaw []byte
 			var action string
 			if err := rows.Scan(&e.At, &e.Actor, &action, &oldRaw, &newRaw); err != nil {
-				rows.Close()
 				return err
 			}
 			e.Action = followup.Edit(action)
 			e.Changes = snapshotChanges(oldRaw, newRaw, loc)
 			out = append(out, e)
 		}
-		if err := rows.Err(); err != nil {
-			return err
-		}
-		attempts, err := caseAttempts(ctx, tx, c.ID)
-		if err != nil {
-			return err
-		}
+		return rows.Err()
+	})
+	b.Queue(attemptsSQL, c.ID).Query(func(rows pgx.Rows) error {
+		attempts, err := scanAttempts(rows)
 		for i := range attempts {
 			out = append(out, CaseEvent{At: attempts[i].At, Kind: EventAttempt, Actor: attempts[i].Actor, Attempt: &attempts[i]})
 		}
-		rrows, err := tx.Query(ctx, `
+		return err
+	})
+	b.Queue(`
 			SELECT r.id, r.taken_at, r.duration_s, r.auto_interpretation, r.too_short, r.created_by,
 			       EXISTS (SELECT 1 FROM over_reads o WHERE o.recording_id = r.id)
-			FROM recordings r WHERE r.case_id = $1`, c.ID)
-		if err != nil {
-			return err
-		}
+			FROM recordings r WHERE r.case_id = $1`, c.ID).Query(func(rrows pgx.Rows) error {
 		for rrows.Next() {
 			var r RecordingRef
 			var dur float32
 			var by string
 			if err := rrows.Scan(&r.ID, &r.TakenAt, &dur, &r.AutoInterpretation, &r.TooShort, &by, &r.OverRead); err != nil {
-				rrows.Close()
 				return err
 			}
 			r.DurationS = float64(dur)
 			out = append(out, CaseEvent{At: r.TakenAt, Kind: EventRecording, Actor: by, Recording: &r})
 		}
-		if err := rrows.Err(); err != nil {
-			return err
-		}
-		orows, err := tx.Query(ctx, `SELECT id, recording_id, role, rhythm, confidence, reader, read_on, created_at FROM over_reads WHERE case_id = $1`, c.ID)
-		if err != nil {
-			return err
-		}
+		return rrows.Err()
+	})
+	b.Queue(`SELECT id, recording_id, role, rhythm, confidence, reader, read_on, created_at FROM over_reads WHERE case_id = $1`, c.ID).Query(func(orows pgx.Rows) error {
 		for orows.Next() {
 			var o OverReadRef
 			var on, at time.Time
 			if err := orows.Scan(&o.ID, &o.RecordingID, &o.Role, &o.Rhythm, &o.Confidence, &o.Reader, &on, &at); err != nil {
-				orows.Close()
 				return err
 			}
 			o.ReadOn, o.EnteredAt = cohort.DateOf(on), at
@@ -148,11 +135,16 @@ func (s *Store) CaseTimeline(ctx context.Context, c Case, loc *time.Location) ([
 			}
 			out = append(out, CaseEvent{At: happened, Kind: EventOverRead, Actor: o.Reader, OverRead: &o})
 		}
-		if err := orows.Err(); err != nil {
-			return err
-		}
-		return appendMessageEvents(ctx, tx, c.ID, &out)
+		return orows.Err()
 	})
+	b.Queue(`SELECT `+messageCols+` FROM `+messageFrom+` WHERE m.case_id = $1 ORDER BY m.id`, c.ID).Query(func(rows pgx.Rows) error {
+		ms, err := collectMessages(rows, nil)
+		for i := range ms {
+			out = append(out, CaseEvent{At: ms[i].CreatedAt, Kind: EventMessage, Actor: ms[i].Actor, Message: &ms[i]})
+		}
+		return err
+	})
+	err := s.readBatch(ctx, b, func(pgx.BatchResults) error { return nil })
 	if err != nil {
 		return nil, mapErr("case timeline", err)
 	}

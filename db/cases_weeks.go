@@ -39,7 +39,7 @@ type FlaggedWeek struct {
 // FlaggedWeeks lists a participant's screen-positive weeks under every
 // protocol version, with the case holding each.
 func (s *Store) FlaggedWeeks(ctx context.Context, participantID int64) ([]FlaggedWeek, error) {
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT sr.protocol_id, pr.name, pr.version, sr.week, sr.reason, sr.wear_hours, sr.result, pr.params,
 		       coalesce(cw.case_id, 0), coalesce(cw.late, false)
 		FROM screen_results sr

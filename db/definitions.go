@@ -40,9 +40,23 @@ func participantStatus(today, weeks string) string {
 // follow-up: the one count of participants by status (the start page, the
 // participants list).
 func participantsByStatus(ctx context.Context, q querier, where string, args []any, today cohort.Date, weeks int) (map[cohort.ParticipantStatus]int64, int64, error) {
+	return countByStatus(ctx, q, "participants p", "count(*)", where, args, today, weeks)
+}
+
+// keptByStatus is participantsByStatus from the enrolment counts kept by
+// site, enrolment day and withdrawal day (enrolment_counts, migration 0040),
+// which carry the columns the rule reads: one read whatever the study's
+// size. where may name p.site_id, p.enrolled_on and p.withdrawn_on.
+func keptByStatus(ctx context.Context, q querier, where string, args []any, today cohort.Date, weeks int) (map[cohort.ParticipantStatus]int64, int64, error) {
+	return countByStatus(ctx, q, "enrolment_counts p", "sum(p.n)", where, args, today, weeks)
+}
+
+// countByStatus counts the rows of from (a relation named p) matching where
+// by participantStatus, adding up count.
+func countByStatus(ctx context.Context, q querier, from, count, where string, args []any, today cohort.Date, weeks int) (map[cohort.ParticipantStatus]int64, int64, error) {
 	n := len(args)
-	rows, err := q.Query(ctx, fmt.Sprintf(`SELECT %s, count(*) FROM participants p WHERE %s GROUP BY 1`,
-		participantStatus(fmt.Sprintf("$%d", n+1), fmt.Sprintf("$%d", n+2)), where), append(args[:n:n], today.String(), weeks)...)
+	rows, err := q.Query(ctx, fmt.Sprintf(`SELECT %s, %s FROM %s WHERE %s GROUP BY 1`,
+		participantStatus(fmt.Sprintf("$%d", n+1), fmt.Sprintf("$%d", n+2)), count, from, where), append(args[:n:n], today.String(), weeks)...)
 	if err != nil {
 		return nil, 0, err
 	}
@@ -54,7 +68,9 @@ func participantsByStatus(ctx context.Context, q querier, where string, args []a
 		if err := rows.Scan(&st, &k); err != nil {
 			return nil, 0, err
 		}
-		out[cohort.ParticipantStatus(st)] = k
+		if k != 0 {
+			out[cohort.ParticipantStatus(st)] = k
+		}
 		total += k
 	}
 	return out, total, rows.Err()
@@ -62,8 +78,8 @@ func participantsByStatus(ctx context.Context, q querier, where string, args []a
 
 // statusDay is the day and the weeks of follow-up participantStatus counts
 // with: today in the study's zone.
-func (s *Store) statusDay(ctx context.Context, q querier) (cohort.Date, int, error) {
-	st, err := studySettings(ctx, q)
+func (s *Store) statusDay(ctx context.Context) (cohort.Date, int, error) {
+	st, err := s.StudySettings(ctx)
 	if err != nil {
 		return cohort.Date{}, 0, err
 	}

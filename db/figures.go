@@ -2,9 +2,12 @@ package db
 
 // One code path per number: the screening cascade (progress page, weekly
 // report) and the agreement statistics (confirmations) are both counted by
-// cohort/cascade from the same rows, read here once per call by figureRows.
-// Nothing else in the application counts confirmed cases, over-reads or
-// flagged episodes.
+// cohort/cascade. Each participant's standing and each episode's figures are
+// computed by its rules as the rows change (figures_keep.go) and kept summed
+// in ledgers (migration 0040); the functions here add up the ledger rows the
+// filter chooses, one read per page, so their cost depends on the study's
+// sites, days and categories, not on its participants. Nothing else in the
+// application counts confirmed cases, over-reads or flagged episodes.
 
 import (
 	"context"
@@ -12,33 +15,76 @@ import (
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
-	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
 
 	"github.com/jackc/pgx/v5"
 )
 
-// figureRows reads, in one read-only snapshot, the participants chosen by f
-// with their screening flags under the chosen version, all their cases, the
-// cases' recordings and the conclusions of their readings.
-func (s *Store) figureRows(ctx context.Context, f cascade.Filter) (cascade.Rows, error) {
-	var out cascade.Rows
-	st, err := s.StudySettings(ctx)
-	if err != nil {
-		return out, err
+// filterArgs are the filter's site and enrolment period as query arguments
+// ($1 site id or 0, $2 and $3 the first day and the day after, or NULL).
+func filterArgs(f cascade.Filter) []any {
+	var from, to *string
+	if !f.From.IsZero() {
+		d := cohort.DateOf(f.From).String()
+		from = &d
 	}
-	out.Loc = st.Location()
-	asOf := f.AsOf
-	if asOf.IsZero() {
-		asOf = s.now()
+	if !f.To.IsZero() {
+		d := cohort.DateOf(f.To).String()
+		to = &d
 	}
-	out.AsOf = cohort.DateOf(asOf.In(out.Loc))
-	err = pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly, IsoLevel: pgx.RepeatableRead}, func(tx pgx.Tx) error {
-		rows, err := tx.Query(ctx, `SELECT id, name, version, active FROM protocols ORDER BY name, version, id`)
+	return []any{f.SiteID, from, to}
+}
+
+// chosenBy is the filter as a condition on a table with site_id and
+// enrolled_on columns (alias x).
+const chosenBy = `($1 = 0 OR x.site_id = $1) AND ($2::date IS NULL OR x.enrolled_on >= $2::date) AND ($3::date IS NULL OR x.enrolled_on < $3::date)`
+
+// figureSums reads, in one round trip, the sums behind the cascade and the
+// agreement statistics for the filter: every version's, so the chosen one
+// is picked by cascade.ChooseProtocol here.
+func (s *Store) figureSums(ctx context.Context, f cascade.Filter) (cascade.Counts, cascade.Sums, error) {
+	var counts cascade.Counts
+	var sums cascade.Sums
+	args := filterArgs(f)
+	period := !f.From.IsZero() || !f.To.IsZero()
+	b := &pgx.Batch{}
+	b.Queue(`SELECT id, name, version, active FROM protocols ORDER BY name, version, id`)
+	b.Queue(`SELECT coalesce((SELECT time_zone FROM study WHERE id = 1), 'UTC')`)
+	b.Queue(`SELECT st.code, x.withdrawn_on IS NOT NULL, sum(x.n) FROM enrolment_counts x JOIN sites st ON st.id = x.site_id
+		WHERE `+chosenBy+` GROUP BY 1, 2 HAVING sum(x.n) <> 0`, args...)
+	b.Queue(`SELECT x.protocol_id, x.withdrawn, x.box, x.exit, sum(x.n) FROM figure_box_counts x
+		WHERE `+chosenBy+` GROUP BY 1, 2, 3, 4 HAVING sum(x.n) <> 0`, args...)
+	// Episode sums have no enrolment day (it would multiply their rows by
+	// the days of the study); a period is added up from the episodes' own
+	// rows, which cost what the period holds.
+	stages := `SELECT x.protocol_id, st.code, x.sex, x.age_band, x.stage, x.settled, x.uninterpretable, sum(x.n)
+		FROM figure_stage_counts x JOIN sites st ON st.id = x.site_id WHERE ($1 = 0 OR x.site_id = $1) AND $2::date IS NULL AND $3::date IS NULL
+		GROUP BY 1, 2, 3, 4, 5, 6, 7 HAVING sum(x.n) <> 0`
+	times := `SELECT x.protocol_id, st.code, x.sex, x.age_band, x.event, x.closed, x.days, x.flag_day, sum(x.n)
+		FROM figure_time_counts x JOIN sites st ON st.id = x.site_id WHERE ($1 = 0 OR x.site_id = $1) AND $2::date IS NULL AND $3::date IS NULL
+		GROUP BY 1, 2, 3, 4, 5, 6, 7, 8 HAVING sum(x.n) <> 0`
+	kappa := `SELECT x.protocol_id, x.auto, x.rhythm, sum(x.n) FROM figure_kappa_counts x
+		WHERE ($1 = 0 OR x.site_id = $1) AND $2::date IS NULL AND $3::date IS NULL GROUP BY 1, 2, 3 HAVING sum(x.n) <> 0`
+	if period {
+		stages = `SELECT x.protocol_id, st.code, x.sex, x.age_band, x.stage, x.settled, x.uninterpretable, count(*)
+			FROM figure_episodes x JOIN sites st ON st.id = x.site_id WHERE ` + chosenBy + ` GROUP BY 1, 2, 3, 4, 5, 6, 7`
+		times = `SELECT x.protocol_id, st.code, x.sex, x.age_band, x.event, x.closed, x.days,
+			       CASE WHEN x.event OR x.closed THEN NULL ELSE x.flag_day END, count(*)
+			FROM figure_episodes x JOIN sites st ON st.id = x.site_id WHERE ` + chosenBy + ` GROUP BY 1, 2, 3, 4, 5, 6, 7, 8`
+		kappa = `SELECT x.protocol_id, x.auto, x.rhythm, count(*) FROM figure_recordings x WHERE ` + chosenBy + ` GROUP BY 1, 2, 3`
+	}
+	b.Queue(stages, args...)
+	b.Queue(times, args...)
+	b.Queue(kappa, args...)
+
+	var boxRows []boxRow
+	var enrolled, withdrawn int
+	err := s.readBatch(ctx, b, func(br pgx.BatchResults) error {
+		rows, err := br.Query()
 		if err != nil {
 			return err
 		}
-		out.Versions, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (cascade.ProtocolRef, error) {
+		sums.Versions, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (cascade.ProtocolRef, error) {
 			var p cascade.ProtocolRef
 			err := r.Scan(&p.ID, &p.Name, &p.Version, &p.Active)
 			return p, err
@@ -46,137 +92,193 @@ func (s *Store) figureRows(ctx context.Context, f cascade.Filter) (cascade.Rows,
 		if err != nil {
 			return err
 		}
-		if out.Protocol, err = cascade.ChooseProtocol(out.Versions, f.ProtocolID); err != nil {
+		var zone string
+		if err := br.QueryRow().Scan(&zone); err != nil {
 			return err
 		}
-		var from, to *string
-		if !f.From.IsZero() {
-			d := cohort.DateOf(f.From).String()
-			from = &d
-		}
-		if !f.To.IsZero() {
-			d := cohort.DateOf(f.To).String()
-			to = &d
-		}
-		// The chosen participants, as a condition every query below repeats.
-		const chosen = `($1 = 0 OR p.site_id = $1) AND ($2::date IS NULL OR p.enrolled_on >= $2::date) AND ($3::date IS NULL OR p.enrolled_on < $3::date)`
-		rows, err = tx.Query(ctx, `
-			WITH sr AS (
-			  SELECT participant_id, bool_or(verdict <> 'insufficient') AS sufficient, bool_or(verdict = 'positive') AS positive
-			  FROM screen_results WHERE protocol_id = $4 GROUP BY participant_id)
-			SELECT p.id, st.code, p.sex, p.age_at_enrolment, p.withdrawn_on IS NOT NULL, coalesce(sr.sufficient, false), coalesce(sr.positive, false)
-			FROM participants p JOIN sites st ON st.id = p.site_id LEFT JOIN sr ON sr.participant_id = p.id
-			WHERE `+chosen+` ORDER BY p.id`, f.SiteID, from, to, out.Protocol.ID)
+		loc, err := time.LoadLocation(zone)
 		if err != nil {
+			loc = time.UTC
+		}
+		asOf := f.AsOf
+		if asOf.IsZero() {
+			asOf = s.now()
+		}
+		sums.AsOf = cohort.DateOf(asOf.In(loc))
+		if rows, err = br.Query(); err != nil {
 			return err
 		}
-		out.People, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (cascade.Person, error) {
-			var p cascade.Person
-			var sex string
-			var age *int16
-			err := r.Scan(&p.ID, &p.Site, &sex, &age, &p.Withdrawn, &p.Sufficient, &p.Positive)
-			p.Sex = cohort.Sex(sex)
-			if age != nil {
-				a := int(*age)
-				p.Age = &a
+		seen := map[string]bool{}
+		for rows.Next() {
+			var code string
+			var w bool
+			var n int
+			if err := rows.Scan(&code, &w, &n); err != nil {
+				rows.Close()
+				return err
 			}
-			return p, err
-		})
-		if err != nil {
+			enrolled += n
+			if w {
+				withdrawn += n
+			}
+			if !seen[code] {
+				seen[code] = true
+				sums.Sites = append(sums.Sites, code)
+			}
+		}
+		if err := rows.Err(); err != nil {
 			return err
 		}
-		rows, err = tx.Query(ctx, `
-			SELECT c.id, c.participant_id, c.protocol_id, c.state, c.flagged_at, c.reached_at, c.closed_at
-			FROM cases c JOIN participants p ON p.id = c.participant_id WHERE `+chosen+` ORDER BY c.id`, f.SiteID, from, to)
-		if err != nil {
+		if rows, err = br.Query(); err != nil {
 			return err
 		}
-		out.Episodes, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (cascade.Episode, error) {
-			var e cascade.Episode
-			var state string
-			var reached, closed *time.Time
-			err := r.Scan(&e.CaseID, &e.ParticipantID, &e.ProtocolID, &state, &e.Flagged, &reached, &closed)
-			e.State, e.ReachedAt, e.ClosedAt = followup.State(state), timeOf(reached), timeOf(closed)
-			return e, err
-		})
-		if err != nil {
-			return err
-		}
-		byCase := make(map[int64]int, len(out.Episodes))
-		for i, e := range out.Episodes {
-			byCase[e.CaseID] = i
-		}
-		rows, err = tx.Query(ctx, `
-			SELECT r.id, r.case_id, r.auto_interpretation, r.too_short
-			FROM recordings r JOIN participants p ON p.id = r.participant_id WHERE `+chosen+` ORDER BY r.taken_at, r.id`, f.SiteID, from, to)
-		if err != nil {
-			return err
-		}
-		type recRow struct {
-			caseID int64
-			rec    cascade.Recording
-		}
-		recs, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (recRow, error) {
-			var x recRow
-			var auto string
-			err := r.Scan(&x.rec.ID, &x.caseID, &auto, &x.rec.TooShort)
-			x.rec.Auto = overread.Auto(auto)
+		boxRows, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (boxRow, error) {
+			var x boxRow
+			var exit string
+			err := r.Scan(&x.protocol, &x.withdrawn, &x.st.Box, &exit, &x.n)
+			x.st.Exit = cascade.ExitReason(exit)
 			return x, err
 		})
 		if err != nil {
 			return err
 		}
-		recIDs := make([]int64, len(recs))
-		for i, x := range recs {
-			recIDs[i] = x.rec.ID
+		if rows, err = br.Query(); err != nil {
+			return err
 		}
-		readings, err := readingsOf(ctx, tx, recIDs)
+		sums.Stages, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (cascade.StageCount, error) {
+			var c cascade.StageCount
+			var sex string
+			var stage int16
+			err := r.Scan(&c.Key.ProtocolID, &c.Key.Site, &sex, &c.Key.AgeBand, &stage, &c.Settled, &c.Uninterpretable, &c.N)
+			c.Key.Sex, c.Stage = cohort.Sex(sex), cascade.Stage(stage)
+			return c, err
+		})
 		if err != nil {
 			return err
 		}
-		for _, x := range recs {
-			if x.rec.Conclusion, err = conclusionOf(x.rec.ID, readings[x.rec.ID]); err != nil {
-				return err
-			}
-			e := &out.Episodes[byCase[x.caseID]]
-			e.Recordings = append(e.Recordings, x.rec)
+		if rows, err = br.Query(); err != nil {
+			return err
 		}
-		return nil
+		sums.Times, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (cascade.TimeCount, error) {
+			var c cascade.TimeCount
+			var sex string
+			var flag *time.Time
+			err := r.Scan(&c.Key.ProtocolID, &c.Key.Site, &sex, &c.Key.AgeBand, &c.Event, &c.Closed, &c.Days, &flag, &c.N)
+			c.Key.Sex = cohort.Sex(sex)
+			if flag != nil {
+				c.FlagDay = cohort.DateOf(*flag)
+			}
+			return c, err
+		})
+		if err != nil {
+			return err
+		}
+		if rows, err = br.Query(); err != nil {
+			return err
+		}
+		sums.Kappa, err = pgx.CollectRows(rows, func(r pgx.CollectableRow) (cascade.KappaCount, error) {
+			var c cascade.KappaCount
+			var a, b string
+			err := r.Scan(&c.ProtocolID, &a, &b, &c.N)
+			c.Auto, c.Rhythm = overread.Category(a), overread.Category(b)
+			return c, err
+		})
+		return err
 	})
-	return out, mapErr("figures", err)
+	if err != nil {
+		return counts, sums, mapErr("figures", err)
+	}
+	if sums.Protocol, err = cascade.ChooseProtocol(sums.Versions, f.ProtocolID); err != nil {
+		return counts, sums, err
+	}
+	// Participants with no row under the version stand where a participant
+	// without any result or case stands.
+	kept, keptWithdrawn := 0, 0
+	for _, x := range boxRows {
+		if x.protocol != sums.Protocol.ID {
+			continue
+		}
+		counts.Add(x.st, x.n)
+		kept += x.n
+		if x.withdrawn {
+			keptWithdrawn += x.n
+		}
+	}
+	counts.Add(cascade.Stand(cascade.Person{}, nil, sums.Protocol.ID), (enrolled-withdrawn)-(kept-keptWithdrawn))
+	counts.Add(cascade.Stand(cascade.Person{Withdrawn: true}, nil, sums.Protocol.ID), withdrawn-keptWithdrawn)
+	for _, c := range sums.Stages {
+		if c.Key.ProtocolID == sums.Protocol.ID && c.Stage >= cascade.StageFlagged && c.Stage <= cascade.StageReferred {
+			counts.Cases[c.Stage] += c.N
+		}
+	}
+	return counts, sums, nil
+}
+
+// boxRow is a sum of standings of one version.
+type boxRow struct {
+	protocol  int
+	withdrawn bool
+	st        cascade.Standing
+	n         int
 }
 
 // Cascade counts the screening cascade for the filter; see cascade.Cascade
-// for how each box is defined.
+// for how each box is defined. Boxes carry counts; a box's members are read
+// page by page (CascadeMembersAfter).
 func (s *Store) Cascade(ctx context.Context, f cascade.Filter) (cascade.Cascade, error) {
-	rows, err := s.figureRows(ctx, f)
+	counts, sums, err := s.figureSums(ctx, f)
 	if err != nil {
 		return cascade.Cascade{}, err
 	}
-	return rows.Cascade(f), nil
+	return counts.Cascade(f, sums.Protocol, sums.Versions), nil
 }
 
 // Agreement computes the agreement statistics for the filter's protocol
-// version (subgroups) and for every version, from the cascade's rows.
+// version (subgroups) and for every version.
 func (s *Store) Agreement(ctx context.Context, f cascade.Filter) (cascade.Agreement, error) {
-	rows, err := s.figureRows(ctx, f)
+	_, sums, err := s.figureSums(ctx, f)
 	if err != nil {
 		return cascade.Agreement{}, err
 	}
-	return rows.Agreement()
+	return sums.Agreement()
 }
 
 // Figures computes the cascade and the agreement statistics from one read,
 // so a report that shows both shows them as the database stood at one
 // moment; each is exactly what Cascade and Agreement return for f.
 func (s *Store) Figures(ctx context.Context, f cascade.Filter) (cascade.Cascade, cascade.Agreement, error) {
-	rows, err := s.figureRows(ctx, f)
+	counts, sums, err := s.figureSums(ctx, f)
 	if err != nil {
 		return cascade.Cascade{}, cascade.Agreement{}, err
 	}
-	a, err := rows.Agreement()
+	a, err := sums.Agreement()
 	if err != nil {
 		return cascade.Cascade{}, cascade.Agreement{}, err
 	}
-	return rows.Cascade(f), a, nil
+	return counts.Cascade(f, sums.Protocol, sums.Versions), a, nil
+}
+
+// FiguresPending says how current the kept figures are: how many
+// participants' figures wait to be computed after a change made outside the
+// store's transactions (a bulk load), and since when. Zero most of the time.
+type FiguresPending struct {
+	Participants int // at most PendingCap
+	Since        time.Time
+	Building     bool // the figures were never built yet
+}
+
+// PendingCap bounds the count of waiting participants: a page says "more
+// than" beyond it.
+const PendingCap = 10000
+
+// Pending reads how current the kept figures are.
+func (s *Store) Pending(ctx context.Context) (FiguresPending, error) {
+	var p FiguresPending
+	var since *time.Time
+	err := s.reader(ctx).QueryRow(ctx, `
+		SELECT (SELECT count(DISTINCT participant_id) FROM (SELECT participant_id FROM figures_dirty LIMIT $1) d),
+		       (SELECT min(marked_at) FROM figures_dirty),
+		       coalesce((SELECT built_at IS NULL FROM figures_state), false)`, PendingCap).Scan(&p.Participants, &since, &p.Building)
+	p.Since = timeOf(since)
+	return p, mapErr("figures pending", err)
 }

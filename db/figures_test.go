@@ -101,6 +101,30 @@ func (f *caseFixture) ids(sids ...string) []int64 {
 	return out
 }
 
+// boxMembers pages through the members of a box of c (or of one exit), three
+// at a time, so the keyset paging is part of what is checked.
+func boxMembers(t *testing.T, s *db.Store, c cascade.Cascade, box int, exit cascade.ExitReason) []int64 {
+	t.Helper()
+	var out []int64
+	var after int64
+	for {
+		page, err := s.CascadeMembersAfter(context.Background(), c.Filter, box, exit, after, 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, m := range page.Members {
+			out = append(out, m.ID)
+			if exit != "" && (m.Standing.Box != box || m.Standing.Exit != exit) {
+				t.Errorf("box %d exit %s lists participant %d standing %+v", box, exit, m.ID, m.Standing)
+			}
+		}
+		if page.Next == 0 {
+			return out
+		}
+		after = page.Next
+	}
+}
+
 func seq(from, to int) []string {
 	var out []string
 	for i := from; i <= to; i++ {
@@ -138,14 +162,17 @@ func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 	}
 	for i, w := range want {
 		b := c.Boxes[i]
-		if b.Key != w.key || !slices.Equal(b.Participants, f.ids(w.who...)) || len(b.Cases) != w.cases {
-			t.Errorf("box %d %s: %d participants, %d cases; want %s %d participants, %d cases", i, b.Key, b.Count(), len(b.Cases), w.key, len(w.who), w.cases)
+		if b.Key != w.key || b.Count() != len(w.who) || !slices.Equal(boxMembers(t, f.s, c, i, ""), f.ids(w.who...)) || b.CaseN != w.cases {
+			t.Errorf("box %d %s: %d participants, %d cases; want %s %d participants, %d cases", i, b.Key, b.Count(), b.CaseN, w.key, len(w.who), w.cases)
 		}
 		got := map[cascade.ExitReason][]int64{}
 		sum := 0
 		for _, e := range b.Exits {
-			got[e.Reason] = e.Participants
-			sum += len(e.Participants)
+			got[e.Reason] = boxMembers(t, f.s, c, i, e.Reason)
+			if len(got[e.Reason]) != e.N {
+				t.Errorf("%s exit %s counts %d, lists %d", b.Key, e.Reason, e.N, len(got[e.Reason]))
+			}
+			sum += e.N
 		}
 		if len(got) != len(w.exits) {
 			t.Errorf("%s exits %v, want %v", b.Key, got, w.exits)
@@ -159,7 +186,18 @@ func TestCascadeOnAHandWorkedCohort(t *testing.T) {
 			t.Errorf("%s: %d is not %d in the next box plus %d exits", b.Key, b.Count(), c.Boxes[i+1].Count(), sum)
 		}
 	}
-	if got := c.Box("referred").Cases; !slices.Equal(got, []int64{min(cases["P1"], cases["P2"]), max(cases["P1"], cases["P2"])}) {
+	referred, err := f.s.CascadeMembersAfter(context.Background(), c.Filter, len(c.Boxes)-1, "", 0, 10)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []int64
+	for _, m := range referred.Members {
+		for _, k := range m.Cases {
+			got = append(got, k.ID)
+		}
+	}
+	slices.Sort(got)
+	if !slices.Equal(got, []int64{min(cases["P1"], cases["P2"]), max(cases["P1"], cases["P2"])}) {
 		t.Errorf("referred cases %v", got)
 	}
 	// Site BB holds the even participants: P2..P16, 8 enrolled, 7 flagged.
@@ -257,7 +295,7 @@ func TestAgreementOnAHandWorkedCohort(t *testing.T) {
 		t.Fatal(err)
 	}
 	for key, n := range map[string]int{"screen_positive": all.Flagged, "recording_returned": all.WithRecording, "over_read": all.OverRead, "af_confirmed": all.Confirmed} {
-		if got := len(c.Box(key).Cases); got != n {
+		if got := c.Box(key).CaseN; got != n {
 			t.Errorf("cascade %s has %d cases, statistics %d", key, got, n)
 		}
 	}

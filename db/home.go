@@ -21,42 +21,48 @@ type Counts struct {
 	AwaitingRead int
 }
 
-// Counts reads the headline figures.
+// Counts reads the headline figures from the sums kept as participants,
+// cases and recordings change (enrolment_counts, case_counts,
+// figure_unread_counts): one read whatever the study's size.
 func (s *Store) Counts(ctx context.Context) (Counts, error) {
-	var c Counts
-	today, weeks, err := s.statusDay(ctx, s.pool)
+	c := Counts{Cases: map[followup.State]int64{}}
+	q := s.reader(ctx)
+	today, weeks, err := s.statusDay(ctx)
 	if err != nil {
 		return c, mapErr("counts", err)
 	}
-	if c.Status, c.Participants, err = participantsByStatus(ctx, s.pool, "true", nil, today, weeks); err != nil {
+	if c.Status, c.Participants, err = keptByStatus(ctx, q, "true", nil, today, weeks); err != nil {
 		return c, mapErr("counts", err)
 	}
-	if err := s.pool.QueryRow(ctx, `SELECT count(*) FROM sites`).Scan(&c.Sites); err != nil {
-		return c, mapErr("counts", err)
-	}
-	if c.AwaitingRead, err = countAwaitingRead(ctx, s.pool); err != nil {
-		return c, mapErr("counts", err)
-	}
-	rows, err := s.pool.Query(ctx, `SELECT state, count(*) FROM cases GROUP BY state`)
+	rows, err := q.Query(ctx, `
+		SELECT 'sites', count(*) FROM sites
+		UNION ALL SELECT 'unread', coalesce(sum(n), 0) FROM figure_unread_counts
+		UNION ALL (SELECT 'case:' || state, sum(n) FROM case_counts GROUP BY state HAVING sum(n) <> 0)`)
 	if err != nil {
-		return c, mapErr("case counts", err)
+		return c, mapErr("counts", err)
 	}
 	defer rows.Close()
-	c.Cases = map[followup.State]int64{}
 	for rows.Next() {
-		var st string
+		var key string
 		var n int64
-		if err := rows.Scan(&st, &n); err != nil {
-			return c, mapErr("case counts", err)
+		if err := rows.Scan(&key, &n); err != nil {
+			return c, mapErr("counts", err)
 		}
-		c.Cases[followup.State(st)] = n
+		switch key {
+		case "sites":
+			c.Sites = n
+		case "unread":
+			c.AwaitingRead = int(n)
+		default:
+			c.Cases[followup.State(key[len("case:"):])] = n
+		}
 	}
-	return c, mapErr("case counts", rows.Err())
+	return c, mapErr("counts", rows.Err())
 }
 
 // StudyName returns the study's name, or "" before the study is set up.
 func (s *Store) StudyName(ctx context.Context) (string, error) {
 	var name string
-	err := s.pool.QueryRow(ctx, `SELECT coalesce((SELECT name FROM study WHERE id = 1), '')`).Scan(&name)
+	err := s.reader(ctx).QueryRow(ctx, `SELECT coalesce((SELECT name FROM study WHERE id = 1), '')`).Scan(&name)
 	return name, mapErr("study name", err)
 }

@@ -204,6 +204,7 @@ func (s *Store) ImportReadings(ctx context.Context, a cohort.Actor, r io.Reader,
 			rep.ID, msg, now, rep.BytesRead)
 		return rep, err
 	}
+	Work.imported(rep.Accepted, s.now().Sub(rep.StartedAt))
 	return rep, nil
 }
 

@@ -38,13 +38,13 @@ func scanImport(r pgx.Row) (ImportReport, error) {
 
 // Import returns one import's report.
 func (s *Store) Import(ctx context.Context, id int64) (ImportReport, error) {
-	rep, err := scanImport(s.pool.QueryRow(ctx, `SELECT `+importCols+` FROM imports WHERE id = $1`, id))
+	rep, err := scanImport(s.reader(ctx).QueryRow(ctx, `SELECT `+importCols+` FROM imports WHERE id = $1`, id))
 	return rep, mapErr("import", err)
 }
 
 // Imports lists the latest imports, newest first.
 func (s *Store) Imports(ctx context.Context, limit int) ([]ImportReport, error) {
-	rows, err := s.pool.Query(ctx, `SELECT `+importCols+` FROM imports ORDER BY id DESC LIMIT $1`, limit)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+importCols+` FROM imports ORDER BY id DESC LIMIT $1`, limit)
 	if err != nil {
 		return nil, mapErr("imports", err)
 	}
@@ -71,7 +71,7 @@ type Reject struct {
 
 // EachReject streams an import's quarantined rows in line order.
 func (s *Store) EachReject(ctx context.Context, importID int64, fn func(Reject) error) error {
-	rows, err := s.pool.Query(ctx, `SELECT line, entry, reason, message, raw FROM import_rejects WHERE import_id = $1 ORDER BY seq`, importID)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT line, entry, reason, message, raw FROM import_rejects WHERE import_id = $1 ORDER BY seq`, importID)
 	if err != nil {
 		return mapErr("rejects", err)
 	}

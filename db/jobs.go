@@ -220,7 +220,7 @@ func (s *Store) Jobs(ctx context.Context, limit int) ([]Job, error) {
 	if limit <= 0 || limit > 1000 {
 		limit = 50
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+jobCols+` FROM jobs WHERE kind <> ALL($2) ORDER BY id DESC LIMIT $1`,
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+jobCols+` FROM jobs WHERE kind <> ALL($2) ORDER BY id DESC LIMIT $1`,
 		limit, []string{JobSendMessage, JobMorningSummary})
 	if err != nil {
 		return nil, mapErr("jobs", err)
@@ -231,7 +231,7 @@ func (s *Store) Jobs(ctx context.Context, limit int) ([]Job, error) {
 
 // Job returns one job.
 func (s *Store) Job(ctx context.Context, id int64) (Job, error) {
-	j, err := scanJob(s.pool.QueryRow(ctx, `SELECT `+jobCols+` FROM jobs WHERE id = $1`, id))
+	j, err := scanJob(s.reader(ctx).QueryRow(ctx, `SELECT `+jobCols+` FROM jobs WHERE id = $1`, id))
 	return j, mapErr("job", err)
 }
 
@@ -251,4 +251,24 @@ func prefixCols(prefix, cols string) string {
 		}
 	}
 	return string(out)
+}
+
+// QueueState is the job queue at one moment, for the metrics.
+type QueueState struct {
+	Queued, Running int
+	// OldestQueued is how long the oldest queued job has waited to be due
+	// (0 with none).
+	OldestQueued time.Duration
+}
+
+// Queue reads the job queue's depth and age from its partial indexes.
+func (s *Store) Queue(ctx context.Context) (QueueState, error) {
+	var q QueueState
+	var oldest float64
+	err := s.pool.QueryRow(ctx, `
+		SELECT (SELECT count(*) FROM jobs WHERE state = 'queued'), (SELECT count(*) FROM jobs WHERE state = 'running'),
+		       coalesce((SELECT extract(epoch FROM clock_timestamp() - min(run_after)) FROM jobs WHERE state = 'queued' AND run_after <= clock_timestamp()), 0)`).
+		Scan(&q.Queued, &q.Running, &oldest)
+	q.OldestQueued = time.Duration(oldest * float64(time.Second))
+	return q, mapErr("job queue", err)
 }

@@ -243,16 +243,3 @@ func prefColsOf(alias string) string {
 		alias + `.phone_opt_out_at IS NOT NULL, ` + alias + `.email_opt_out_at IS NOT NULL, ` + alias + `.text_opt_out_at IS NOT NULL, ` +
 		alias + `.letter_opt_out_at IS NOT NULL, ` + prefixCols(alias+".", `quiet_from, quiet_until, version, updated_at, updated_by`)
 }
-
-// appendMessageEvents adds a case's messages to its timeline, each at the
-// moment it was queued.
-func appendMessageEvents(ctx context.Context, tx pgx.Tx, caseID int64, out *[]CaseEvent) error {
-	ms, err := caseMessages(ctx, tx, caseID)
-	if err != nil {
-		return err
-	}
-	for i := range ms {
-		*out = append(*out, CaseEvent{At: ms[i].CreatedAt, Kind: EventMessage, Actor: ms[i].Actor, Message: &ms[i]})
-	}
-	return nil
-}

@@ -3,6 +3,7 @@ package db
 import (
 	"context"
 	"fmt"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -25,16 +26,19 @@ type Site struct {
 
 // Sites lists the sites by code.
 func (s *Store) Sites(ctx context.Context) ([]Site, error) {
-	rows, err := s.pool.Query(ctx, `SELECT id, code, name, time_zone, target, opened_on FROM sites ORDER BY code`)
-	if err != nil {
-		return nil, mapErr("sites", err)
-	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Site, error) {
-		var st Site
-		err := r.Scan(&st.ID, &st.Code, &st.Name, &st.TimeZone, &st.Target, &st.OpenedOn)
-		return st, err
+	out, err := remember(ctx, "sites", func() ([]Site, error) {
+		rows, err := s.reader(ctx).Query(ctx, `SELECT id, code, name, time_zone, target, opened_on FROM sites ORDER BY code`)
+		if err != nil {
+			return nil, mapErr("sites", err)
+		}
+		out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Site, error) {
+			var st Site
+			err := r.Scan(&st.ID, &st.Code, &st.Name, &st.TimeZone, &st.Target, &st.OpenedOn)
+			return st, err
+		})
+		return out, mapErr("sites", err)
 	})
-	return out, mapErr("sites", err)
+	return slices.Clone(out), err
 }
 
 // CreateSite adds a site and audits it.
@@ -151,14 +155,14 @@ func scanParticipant(row pgx.Row, extra ...any) (Participant, error) {
 
 // Participant returns one participant without PHI.
 func (s *Store) Participant(ctx context.Context, id int64) (Participant, error) {
-	row := s.pool.QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = $1`, id)
+	row := s.reader(ctx).QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.id = $1`, id)
 	p, err := scanParticipant(row)
 	return p, mapErr("participant", err)
 }
 
 // ParticipantByStudyID returns one participant without PHI.
 func (s *Store) ParticipantByStudyID(ctx context.Context, studyID string) (Participant, error) {
-	row := s.pool.QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.study_id = $1`, strings.TrimSpace(studyID))
+	row := s.reader(ctx).QueryRow(ctx, `SELECT `+participantCols+` FROM participants p JOIN sites st ON st.id = p.site_id WHERE p.study_id = $1`, strings.TrimSpace(studyID))
 	p, err := scanParticipant(row)
 	return p, mapErr("participant", err)
 }

@@ -41,9 +41,10 @@ type ParticipantRow struct {
 
 // ParticipantPage is one page of the list with the counts of the whole filter.
 type ParticipantPage struct {
-	Rows  []ParticipantRow
-	Next  string // cursor for the next page, "" at the end
-	Total int64  // rows matching the filter
+	Rows    []ParticipantRow
+	Next    string // cursor for the next page, "" at the end
+	Total   int64  // rows matching the filter
+	AtLeast bool   // the counts stopped at countCap: there are more
 	// Status counts the rows matching the filter by cohort.StatusOf today.
 	Status map[cohort.ParticipantStatus]int64
 }
@@ -107,6 +108,24 @@ func (f ParticipantFilter) where(today time.Time, statusDay cohort.Date, weeks i
 		conds = append(conds, `EXISTS (SELECT 1 FROM cases c WHERE c.participant_id = p.id AND c.closed_at IS NULL)`)
 	}
 	return strings.Join(conds, " AND "), args
+}
+
+// participantCounts counts the filter's participants by status: from the
+// enrolment sums (enrolment_counts, whose columns the filter's WHERE then
+// reads) when the filter is a site and a status, else up to countCap from the
+// participants themselves.
+func (s *Store) participantCounts(ctx context.Context, f ParticipantFilter, where string, args []any, day cohort.Date, weeks int, page *ParticipantPage) error {
+	var err error
+	if strings.TrimSpace(f.Search) == "" && f.PositiveWeeks == 0 && !f.OpenCase {
+		page.Status, page.Total, err = keptByStatus(ctx, s.reader(ctx), where, args, day, weeks)
+		return err
+	}
+	capped := fmt.Sprintf(`(SELECT p.withdrawn_on, p.enrolled_on FROM participants p WHERE %s LIMIT %d) p`, where, countCap+1)
+	page.Status, page.Total, err = countByStatus(ctx, s.reader(ctx), capped, "count(*)", "true", args, day, weeks)
+	if page.Total > countCap {
+		page.AtLeast, page.Total = true, countCap
+	}
+	return err
 }
 
 // studyIDKey is the form a study ID is searched in: its letters and digits,
@@ -212,14 +231,13 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		order = listOrders["study_id"]
 	}
 	today := s.now().UTC()
-	day, weeks, err := s.statusDay(ctx, s.pool)
+	day, weeks, err := s.statusDay(ctx)
 	if err != nil {
 		return ParticipantPage{}, mapErr("participants", err)
 	}
 	where, args := f.where(today, day, weeks)
 	var page ParticipantPage
-	// The filter reads participants only, so the counts need no join.
-	if page.Status, page.Total, err = participantsByStatus(ctx, s.pool, where, args, day, weeks); err != nil {
+	if err := s.participantCounts(ctx, f, where, args, day, weeks, &page); err != nil {
 		return page, mapErr("participants count", err)
 	}
 	cmp, dir := ">", " ASC"
@@ -247,7 +265,7 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 		nameCol = "coalesce((SELECT pi.given_name || ' ' || pi.family_name FROM participant_identity pi WHERE pi.participant_id = p.id), '')"
 	}
 	args = append(args, f.Limit+1)
-	rows, err := s.pool.Query(ctx, `
+	rows, err := s.reader(ctx).Query(ctx, `
 		SELECT `+participantCols+`, `+key+`, `+nameCol+`,
 		  (SELECT max(sr.week) FROM screen_results sr JOIN protocols pr ON pr.id = sr.protocol_id AND pr.active
 		   WHERE sr.participant_id = p.id AND sr.verdict = 'positive'),
@@ -291,7 +309,7 @@ func (s *Store) Participants(ctx context.Context, f ParticipantFilter) (Particip
 // weeks count (the zero date before anyone is enrolled).
 func (s *Store) FirstEnrolment(ctx context.Context) (cohort.Date, error) {
 	var first *time.Time
-	if err := s.pool.QueryRow(ctx, `SELECT min(enrolled_on) FROM participants`).Scan(&first); err != nil {
+	if err := s.reader(ctx).QueryRow(ctx, `SELECT min(enrolled_on) FROM participants`).Scan(&first); err != nil {
 		return cohort.Date{}, mapErr("first enrolment", err)
 	}
 	if first == nil {
@@ -307,7 +325,7 @@ func (s *Store) ParticipantIDs(ctx context.Context, f ParticipantFilter) ([]int6
 	if err := f.Check(); err != nil {
 		return nil, err
 	}
-	day, weeks, err := s.statusDay(ctx, s.pool)
+	day, weeks, err := s.statusDay(ctx)
 	if err != nil {
 		return nil, mapErr("participant ids", err)
 	}

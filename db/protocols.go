@@ -106,7 +106,7 @@ func (s *Store) EnsureDefaultProtocol(ctx context.Context) (ProtocolVersion, err
 // Protocols lists every version, newest first within each name, with the
 // number of results each produced.
 func (s *Store) Protocols(ctx context.Context) ([]ProtocolVersion, error) {
-	rows, err := s.pool.Query(ctx, `SELECT `+protocolCols+` FROM protocols ORDER BY name, version DESC`)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+protocolCols+` FROM protocols ORDER BY name, version DESC`)
 	if err != nil {
 		return nil, mapErr("protocols", err)
 	}
@@ -114,7 +114,7 @@ func (s *Store) Protocols(ctx context.Context) ([]ProtocolVersion, error) {
 	if err != nil {
 		return nil, mapErr("protocols", err)
 	}
-	counts, err := s.pool.Query(ctx, `SELECT protocol_id, count(*) FROM screen_results GROUP BY protocol_id`)
+	counts, err := s.reader(ctx).Query(ctx, `SELECT protocol_id, count(*) FROM screen_results GROUP BY protocol_id`)
 	if err != nil {
 		return nil, mapErr("protocol results", err)
 	}
@@ -139,19 +139,21 @@ func (s *Store) Protocols(ctx context.Context) ([]ProtocolVersion, error) {
 
 // Protocol returns one version; ErrNotFound when there is none.
 func (s *Store) Protocol(ctx context.Context, id int) (ProtocolVersion, error) {
-	p, err := scanProtocol(s.pool.QueryRow(ctx, `SELECT `+protocolCols+` FROM protocols WHERE id = $1`, id))
+	p, err := scanProtocol(s.reader(ctx).QueryRow(ctx, `SELECT `+protocolCols+` FROM protocols WHERE id = $1`, id))
 	if err != nil {
 		return p, mapErr("protocol", err)
 	}
-	err = s.pool.QueryRow(ctx, `SELECT count(*) FROM screen_results WHERE protocol_id = $1`, id).Scan(&p.Results)
+	err = s.reader(ctx).QueryRow(ctx, `SELECT count(*) FROM screen_results WHERE protocol_id = $1`, id).Scan(&p.Results)
 	return p, mapErr("protocol", err)
 }
 
 // ActiveProtocol returns the active version; ErrNotFound when none is active
 // (EnsureDefaultProtocol has not run).
 func (s *Store) ActiveProtocol(ctx context.Context) (ProtocolVersion, error) {
-	p, err := scanProtocol(s.pool.QueryRow(ctx, `SELECT `+protocolCols+` FROM protocols WHERE active`))
-	return p, mapErr("active protocol", err)
+	return remember(ctx, "active protocol", func() (ProtocolVersion, error) {
+		p, err := scanProtocol(s.reader(ctx).QueryRow(ctx, `SELECT `+protocolCols+` FROM protocols WHERE active`))
+		return p, mapErr("active protocol", err)
+	})
 }
 
 // NewProtocolVersion is a request for a new version derived from an old one.

@@ -98,6 +98,13 @@ func readingsOf(ctx context.Context, q querier, ids []int64) (map[int64][]OverRe
 	if err != nil {
 		return nil, err
 	}
+	return scanReadings(rows)
+}
+
+// scanReadings collects over-reads (the columns readingsOf selects) by
+// recording.
+func scanReadings(rows pgx.Rows) (map[int64][]OverRead, error) {
+	out := map[int64][]OverRead{}
 	defer rows.Close()
 	for rows.Next() {
 		var o OverRead
@@ -205,7 +212,7 @@ func withReadings(ctx context.Context, q querier, recs []Recording) error {
 
 // Recording returns one recording with its readings and verdict.
 func (s *Store) Recording(ctx context.Context, id int64) (Recording, error) {
-	r, err := scanRecording(s.pool.QueryRow(ctx, `SELECT `+recordingCols+` FROM `+recordingFrom+` WHERE r.id = $1`, id))
+	r, err := scanRecording(s.reader(ctx).QueryRow(ctx, `SELECT `+recordingCols+` FROM `+recordingFrom+` WHERE r.id = $1`, id))
 	if err != nil {
 		return Recording{}, mapErr("recording", err)
 	}
@@ -227,7 +234,7 @@ func (s *Store) Recording(ctx context.Context, id int64) (Recording, error) {
 // CaseRecordings lists a case's recordings, oldest first, with their readings
 // and verdicts. Referral summaries take the confirming recording from here.
 func (s *Store) CaseRecordings(ctx context.Context, caseID int64) ([]Recording, error) {
-	rows, err := s.pool.Query(ctx, `SELECT `+recordingCols+` FROM `+recordingFrom+` WHERE r.case_id = $1 ORDER BY r.taken_at, r.id`, caseID)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+recordingCols+` FROM `+recordingFrom+` WHERE r.case_id = $1 ORDER BY r.taken_at, r.id`, caseID)
 	if err != nil {
 		return nil, mapErr("case recordings", err)
 	}
@@ -244,7 +251,7 @@ func (s *Store) RecordingWaveform(ctx context.Context, id int64) (ecg.Waveform, 
 	var b []byte
 	var rate *float32
 	var label string
-	err := s.pool.QueryRow(ctx, `SELECT samples, sampling_hz, lead_label FROM recordings WHERE id = $1`, id).Scan(&b, &rate, &label)
+	err := s.reader(ctx).QueryRow(ctx, `SELECT samples, sampling_hz, lead_label FROM recordings WHERE id = $1`, id).Scan(&b, &rate, &label)
 	if err != nil {
 		return ecg.Waveform{}, mapErr("recording waveform", err)
 	}

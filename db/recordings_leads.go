@@ -52,8 +52,8 @@ func insertLeads(ctx context.Context, tx pgx.Tx, recordingID int64, sig *ecg.Sig
 		}
 		signal := max(l.Signal, 1)
 		_, err = tx.Exec(ctx, `
-			INSERT INTO recording_leads (recording_id, lead_index, signal_number, lead_label, source, sampling_hz, samples, beats, hint, usable_s)
-			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10)`,
+			INSERT INTO recording_leads (participant_id, recording_id, lead_index, signal_number, lead_label, source, sampling_hz, samples, beats, hint, usable_s)
+			SELECT r.participant_id, $1, $2, $3, $4, $5, $6, $7, $8, $9, $10 FROM recordings r WHERE r.id = $1`,
 			recordingID, i, signal, truncate(l.Waveform.Label, 80), truncate(l.Waveform.Source, 500), l.Waveform.RateHz,
 			EncodeSamples(l.Waveform.Samples), beatsOf(l.Beats), hint, l.UsableSeconds())
 		if err != nil {

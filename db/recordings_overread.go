@@ -141,7 +141,7 @@ func (s *Store) investigator(ctx context.Context, tx pgx.Tx, id int64) (User, er
 // Investigators lists the active investigators by name, for loaders that
 // pick a reader and for the recording page.
 func (s *Store) Investigators(ctx context.Context) ([]User, error) {
-	rows, err := s.pool.Query(ctx, `SELECT `+userCols+` FROM users WHERE active AND role = $1 ORDER BY display_name, id`, string(cohort.Investigator))
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+userCols+` FROM users WHERE active AND role = $1 ORDER BY display_name, id`, string(cohort.Investigator))
 	if err != nil {
 		return nil, mapErr("investigators", err)
 	}

@@ -53,7 +53,7 @@ func (s *Store) Confirmations(ctx context.Context, limit int) (Confirmations, er
 		limit = 100
 	}
 	var out Confirmations
-	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly, IsoLevel: pgx.RepeatableRead}, func(tx pgx.Tx) error {
+	err := s.readTx(ctx, func(tx pgx.Tx) error {
 		scan := func(r pgx.CollectableRow) (QueueRecording, error) {
 			var q QueueRecording
 			var dur float32

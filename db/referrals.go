@@ -425,7 +425,7 @@ func scanReferral(row pgx.Row, extra ...any) (Referral, error) {
 // Referral returns one issued summary with its content.
 func (s *Store) Referral(ctx context.Context, id int64) (Referral, error) {
 	var content, signedContent []byte
-	r, err := scanReferral(s.pool.QueryRow(ctx, `SELECT `+referralCols+`, f.content, f.signed_content
+	r, err := scanReferral(s.reader(ctx).QueryRow(ctx, `SELECT `+referralCols+`, f.content, f.signed_content
 		FROM referrals f JOIN participants p ON p.id = f.participant_id WHERE f.id = $1`, id), &content, &signedContent)
 	r.Content, r.SignedContent = content, signedContent
 	return r, mapErr("referral", err)
@@ -436,7 +436,7 @@ func (s *Store) Referrals(ctx context.Context, limit int) ([]Referral, error) {
 	if limit <= 0 || limit > 1000 {
 		limit = 100
 	}
-	rows, err := s.pool.Query(ctx, `SELECT `+referralCols+`
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+referralCols+`
 		FROM referrals f JOIN participants p ON p.id = f.participant_id ORDER BY f.issued_at DESC, f.id DESC LIMIT $1`, limit)
 	if err != nil {
 		return nil, mapErr("referrals", err)
@@ -469,7 +469,7 @@ type ReadyCase struct {
 // summary off.
 func (s *Store) ReadyToRefer(ctx context.Context) ([]ReadyCase, error) {
 	var out []ReadyCase
-	err := pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{AccessMode: pgx.ReadOnly, IsoLevel: pgx.RepeatableRead}, func(tx pgx.Tx) error {
+	err := s.readTx(ctx, func(tx pgx.Tx) error {
 		recs, err := concludedRecordings(ctx, tx, "r.case_id IN (SELECT id FROM cases WHERE closed_at IS NULL)")
 		if err != nil {
 			return err

@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"strconv"
+	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/screen"
@@ -179,6 +180,7 @@ func (sc *Screener) ScreenNow(ctx context.Context, participantIDs []int64, proto
 		return ScreenSummary{}, Permanent(fmt.Errorf("db: protocol %s cannot screen: %w", pv.Label(), err))
 	}
 	sum := ScreenSummary{ProtocolID: pv.ID, Protocol: pv.Label()}
+	began := time.Now()
 	total, err := s.countWeeks(ctx, participantIDs)
 	if err != nil {
 		return sum, err
@@ -248,6 +250,7 @@ func (sc *Screener) ScreenNow(ctx context.Context, participantIDs []int64, proto
 		return sum, err
 	}
 	sum.Participants = len(screened)
+	Work.screened(int64(sum.Weeks), time.Since(began))
 	if err := progress(done, total); err != nil {
 		return sum, err
 	}
@@ -365,24 +368,29 @@ type StoredResult struct {
 // ScreenResults lists a participant's results under one protocol version in
 // week order.
 func (s *Store) ScreenResults(ctx context.Context, participantID int64, protocolID int) ([]StoredResult, error) {
-	rows, err := s.pool.Query(ctx, `SELECT participant_id, protocol_id, week, verdict, reason, wear_hours, input_digest, result::text
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+storedResultCols+`
 		FROM screen_results WHERE participant_id = $1 AND protocol_id = $2 ORDER BY week`, participantID, protocolID)
 	if err != nil {
 		return nil, mapErr("screen results", err)
 	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (StoredResult, error) {
-		var sr StoredResult
-		var week int16
-		var hours float32
-		var js string
-		if err := r.Scan(&sr.ParticipantID, &sr.ProtocolID, &week, &sr.Verdict, &sr.Reason, &hours, &sr.InputDigest, &js); err != nil {
-			return sr, err
-		}
-		sr.Week, sr.WearHours, sr.JSON = int(week), float64(hours), json.RawMessage(js)
-		if err := json.Unmarshal(sr.JSON, &sr.Result); err != nil {
-			return sr, fmt.Errorf("result of week %d: %w", sr.Week, err)
-		}
-		return sr, nil
-	})
+	out, err := pgx.CollectRows(rows, scanStoredResult)
 	return out, mapErr("screen results", err)
+}
+
+// storedResultCols are the columns scanStoredResult reads.
+const storedResultCols = `participant_id, protocol_id, week, verdict, reason, wear_hours, input_digest, result::text`
+
+func scanStoredResult(r pgx.CollectableRow) (StoredResult, error) {
+	var sr StoredResult
+	var week int16
+	var hours float32
+	var js string
+	if err := r.Scan(&sr.ParticipantID, &sr.ProtocolID, &week, &sr.Verdict, &sr.Reason, &hours, &sr.InputDigest, &js); err != nil {
+		return sr, err
+	}
+	sr.Week, sr.WearHours, sr.JSON = int(week), float64(hours), json.RawMessage(js)
+	if err := json.Unmarshal(sr.JSON, &sr.Result); err != nil {
+		return sr, fmt.Errorf("result of week %d: %w", sr.Week, err)
+	}
+	return sr, nil
 }

@@ -22,8 +22,9 @@ import (
 
 // Store is the application's access to PostgreSQL.
 type Store struct {
-	pool *pgxpool.Pool
-	now  func() time.Time
+	pool    *pgxpool.Pool
+	standby *Standby // nil: every read goes to the primary
+	now     func() time.Time
 }
 
 // New wraps a pool. now is the clock; nil means time.Now.
@@ -54,6 +55,7 @@ func Open(ctx context.Context, url string, maxConns int32) (*pgxpool.Pool, error
 	// participants 0.04 -> 0.37 s), compiling plans whose cost estimates
 	// crossed jit_above_cost.
 	cfg.ConnConfig.RuntimeParams["jit"] = "off"
+	cfg.ConnConfig.Tracer = tracer{totals: &AllCalls}
 	pool, err := pgxpool.NewWithConfig(ctx, cfg)
 	if err != nil {
 		return nil, fmt.Errorf("db: %w", err)
@@ -78,9 +80,16 @@ func (s *Store) Ping(ctx context.Context) error {
 	return nil
 }
 
-// inTx runs fn in a transaction, committing when fn returns nil.
+// inTx runs fn in a transaction, committing when fn returns nil. Before the
+// commit it computes the kept figures of the participants whose rows fn
+// changed (figures_keep.go), so the change and its figures commit together.
 func (s *Store) inTx(ctx context.Context, fn func(pgx.Tx) error) error {
-	return pgx.BeginFunc(ctx, s.pool, fn)
+	return pgx.BeginFunc(ctx, s.pool, func(tx pgx.Tx) error {
+		if err := fn(tx); err != nil {
+			return err
+		}
+		return refreshMarked(ctx, tx)
+	})
 }
 
 // mapErr turns driver errors into the domain's errors so callers never look at

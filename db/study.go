@@ -94,8 +94,10 @@ func studySettings(ctx context.Context, q rowQuerier) (StudySettings, error) {
 // StudySettings returns the study's settings, or the defaults before the study
 // is set up.
 func (s *Store) StudySettings(ctx context.Context) (StudySettings, error) {
-	st, err := studySettings(ctx, s.pool)
-	return st, mapErr("study settings", err)
+	return remember(ctx, "study settings", func() (StudySettings, error) {
+		st, err := studySettings(ctx, s.reader(ctx))
+		return st, mapErr("study settings", err)
+	})
 }
 
 // studyAudit is the audited shape of the settings.

@@ -126,14 +126,14 @@ func scanSweepRun(row pgx.Row) (SweepRun, error) {
 
 // SweepRun reads one threshold sweep with its job and, once done, its result.
 func (s *Store) SweepRun(ctx context.Context, id int64) (SweepRun, error) {
-	r, err := scanSweepRun(s.pool.QueryRow(ctx, `SELECT `+sweepCols+`
+	r, err := scanSweepRun(s.reader(ctx).QueryRow(ctx, `SELECT `+sweepCols+`
 		FROM sweeps sw JOIN jobs j ON j.id = sw.job_id WHERE sw.id = $1`, id))
 	return r, mapErr("sweep", err)
 }
 
 // SweepRuns lists the latest threshold sweeps, newest first.
 func (s *Store) SweepRuns(ctx context.Context, limit int) ([]SweepRun, error) {
-	rows, err := s.pool.Query(ctx, `SELECT `+sweepCols+`
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+sweepCols+`
 		FROM sweeps sw JOIN jobs j ON j.id = sw.job_id ORDER BY sw.id DESC LIMIT $1`, limit)
 	if err != nil {
 		return nil, mapErr("sweeps", err)

@@ -31,21 +31,40 @@ type WeekLine struct {
 // Timeline lists the participant's study weeks from enrolment to the last week
 // with data (or to today's week), with the active protocol's verdicts.
 func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error) {
+	st, err := s.StudySettings(ctx)
+	if err != nil {
+		return nil, err
+	}
+	b := &pgx.Batch{}
+	lines := queueTimeline(b, p, st, s.now())
+	if err := s.readBatch(ctx, b, func(pgx.BatchResults) error { return nil }); err != nil {
+		return nil, mapErr("timeline", err)
+	}
+	return lines(), nil
+}
+
+// queueTimeline queues the timeline's reads (the weeks, the cases and the
+// recordings) on b; the function it returns lays out the weeks once the
+// batch has been read.
+func queueTimeline(b *pgx.Batch, p Participant, st StudySettings, now time.Time) func() []WeekLine {
 	loc := p.Location()
-	current := cohort.StudyWeek(p.EnrolledOn, loc, s.now())
+	current := cohort.StudyWeek(p.EnrolledOn, loc, now)
 	byWeek := map[int]*WeekLine{}
 	maxWeek := current
 	if p.WithdrawnOn != nil {
 		maxWeek = cohort.StudyWeek(p.EnrolledOn, loc, p.WithdrawnOn.In(loc))
 	}
-	var fw int16
-	if err := s.pool.QueryRow(ctx, `SELECT coalesce((SELECT follow_up_weeks FROM study WHERE id = 1), 0)`).Scan(&fw); err != nil {
-		return nil, mapErr("timeline", err)
+	if fw := st.FollowUpWeeks; fw > 0 && maxWeek > fw-1 {
+		maxWeek = fw - 1 // weeks after the participant's follow-up are not due
 	}
-	if fw > 0 && maxWeek > int(fw)-1 {
-		maxWeek = int(fw) - 1 // weeks after the participant's follow-up are not due
+	type caseSpan struct {
+		id     int64
+		state  string
+		fw, lw int16
 	}
-	rows, err := s.pool.Query(ctx, `
+	var spans []caseSpan
+	var taken []time.Time
+	b.Queue(`
 		WITH w AS (
 		  SELECT week, sum(n) AS n, sum(n) FILTER (WHERE kind = 1) AS hr, sum(n) FILTER (WHERE kind = 3) AS rr
 		  FROM wear_weeks WHERE participant_id = $1 GROUP BY week
@@ -57,72 +76,61 @@ func (s *Store) Timeline(ctx context.Context, p Participant) ([]WeekLine, error)
 		SELECT coalesce(w.week, r.week), coalesce(w.n, 0), coalesce(w.hr, 0), coalesce(w.rr, 0),
 		       coalesce(r.wear_hours, 0), coalesce(r.verdict, ''), coalesce(r.reason, '')
 		FROM w FULL JOIN r ON r.week = w.week
-		ORDER BY 1`, p.ID)
-	if err != nil {
-		return nil, mapErr("timeline", err)
-	}
-	for rows.Next() {
-		var l WeekLine
-		var week int16
-		var hours float32
-		if err := rows.Scan(&week, &l.Readings, &l.HRCount, &l.RRCount, &hours, &l.Verdict, &l.Reason); err != nil {
-			rows.Close()
-			return nil, mapErr("timeline", err)
-		}
-		l.Week, l.WearHours = int(week), float64(hours)
-		byWeek[l.Week] = &l
-		if l.Week > maxWeek {
-			maxWeek = l.Week
-		}
-	}
-	if err := rows.Err(); err != nil {
-		return nil, mapErr("timeline", err)
-	}
-	out := make([]WeekLine, 0, maxWeek+1)
-	for w := 0; w <= maxWeek; w++ {
-		if l, ok := byWeek[w]; ok {
-			out = append(out, *l)
-		} else {
-			out = append(out, WeekLine{Week: w})
-		}
-	}
-	// Cases and recordings mark the weeks they cover.
-	crow, err := s.pool.Query(ctx, `SELECT id, state, first_week, last_week FROM cases WHERE participant_id = $1 ORDER BY id`, p.ID)
-	if err != nil {
-		return nil, mapErr("timeline cases", err)
-	}
-	for crow.Next() {
-		var id int64
-		var state string
-		var fw, lw int16
-		if err := crow.Scan(&id, &state, &fw, &lw); err != nil {
-			crow.Close()
-			return nil, mapErr("timeline cases", err)
-		}
-		for w := int(fw); w <= int(lw) && w < len(out); w++ {
-			if w >= 0 {
-				out[w].CaseID, out[w].CaseState = id, followup.State(state)
+		ORDER BY 1`, p.ID).Query(func(rows pgx.Rows) error {
+		for rows.Next() {
+			var l WeekLine
+			var week int16
+			var hours float32
+			if err := rows.Scan(&week, &l.Readings, &l.HRCount, &l.RRCount, &hours, &l.Verdict, &l.Reason); err != nil {
+				return err
+			}
+			l.Week, l.WearHours = int(week), float64(hours)
+			byWeek[l.Week] = &l
+			if l.Week > maxWeek {
+				maxWeek = l.Week
 			}
 		}
-	}
-	if err := crow.Err(); err != nil {
-		return nil, mapErr("timeline cases", err)
-	}
-	rrow, err := s.pool.Query(ctx, `SELECT taken_at FROM recordings WHERE participant_id = $1`, p.ID)
-	if err != nil {
-		return nil, mapErr("timeline recordings", err)
-	}
-	for rrow.Next() {
-		var at time.Time
-		if err := rrow.Scan(&at); err != nil {
-			rrow.Close()
-			return nil, mapErr("timeline recordings", err)
+		return rows.Err()
+	})
+	// Cases and recordings mark the weeks they cover.
+	b.Queue(`SELECT id, state, first_week, last_week FROM cases WHERE participant_id = $1 ORDER BY id`, p.ID).Query(func(rows pgx.Rows) error {
+		for rows.Next() {
+			var c caseSpan
+			if err := rows.Scan(&c.id, &c.state, &c.fw, &c.lw); err != nil {
+				return err
+			}
+			spans = append(spans, c)
 		}
-		if w := cohort.StudyWeek(p.EnrolledOn, loc, at); w >= 0 && w < len(out) {
-			out[w].ECG++
+		return rows.Err()
+	})
+	b.Queue(`SELECT taken_at FROM recordings WHERE participant_id = $1`, p.ID).Query(func(rows pgx.Rows) error {
+		var err error
+		taken, err = pgx.CollectRows(rows, pgx.RowTo[time.Time])
+		return err
+	})
+	return func() []WeekLine {
+		out := make([]WeekLine, 0, maxWeek+1)
+		for w := 0; w <= maxWeek; w++ {
+			if l, ok := byWeek[w]; ok {
+				out = append(out, *l)
+			} else {
+				out = append(out, WeekLine{Week: w})
+			}
 		}
+		for _, c := range spans {
+			for w := int(c.fw); w <= int(c.lw) && w < len(out); w++ {
+				if w >= 0 {
+					out[w].CaseID, out[w].CaseState = c.id, followup.State(c.state)
+				}
+			}
+		}
+		for _, at := range taken {
+			if w := cohort.StudyWeek(p.EnrolledOn, loc, at); w >= 0 && w < len(out) {
+				out[w].ECG++
+			}
+		}
+		return out
 	}
-	return out, mapErr("timeline recordings", rrow.Err())
 }
 
 // Note is a free-text note on a participant. Notes never leave the system.
@@ -135,16 +143,21 @@ type Note struct {
 
 // Notes lists a participant's notes, newest first.
 func (s *Store) Notes(ctx context.Context, participantID int64) ([]Note, error) {
-	rows, err := s.pool.Query(ctx, `SELECT id, body, actor, created_at FROM participant_notes WHERE participant_id = $1 ORDER BY created_at DESC, id DESC`, participantID)
+	rows, err := s.reader(ctx).Query(ctx, notesSQL, participantID)
 	if err != nil {
 		return nil, mapErr("notes", err)
 	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (Note, error) {
-		var n Note
-		err := r.Scan(&n.ID, &n.Body, &n.Actor, &n.At)
-		return n, err
-	})
+	out, err := pgx.CollectRows(rows, scanNote)
 	return out, mapErr("notes", err)
+}
+
+// notesSQL reads a participant's ($1) notes for scanNote, newest first.
+const notesSQL = `SELECT id, body, actor, created_at FROM participant_notes WHERE participant_id = $1 ORDER BY created_at DESC, id DESC`
+
+func scanNote(r pgx.CollectableRow) (Note, error) {
+	var n Note
+	err := r.Scan(&n.ID, &n.Body, &n.Actor, &n.At)
+	return n, err
 }
 
 // AddNote stores a note and audits it.

@@ -87,6 +87,19 @@ func (s *Store) UserByID(ctx context.Context, id int64) (User, error) {
 	return u, mapErr("user", err)
 }
 
+// UserAndStudy returns an account by id and the study's name ("" before the
+// study is set up) in one read: what every page's access check and layout
+// need. It reads the primary, so an account deactivated a moment ago is
+// refused at once whatever the standby's lag.
+func (s *Store) UserAndStudy(ctx context.Context, id int64) (User, string, error) {
+	var u User
+	var role, study string
+	err := s.pool.QueryRow(ctx, `SELECT `+userCols+`, coalesce((SELECT name FROM study WHERE id = 1), '') FROM users WHERE id = $1`, id).
+		Scan(&u.ID, &u.Email, &u.Name, &role, &u.Active, &u.LastSignIn, &u.Version, &u.MustChangePassword, &study)
+	u.Role = cohort.Role(role)
+	return u, study, mapErr("user", err)
+}
+
 // UserForSignIn returns an account with its password hash, by e-mail.
 func (s *Store) UserForSignIn(ctx context.Context, email string) (User, error) {
 	var u User
@@ -99,7 +112,7 @@ func (s *Store) UserForSignIn(ctx context.Context, email string) (User, error) {
 
 // Users lists all accounts, active first.
 func (s *Store) Users(ctx context.Context) ([]User, error) {
-	rows, err := s.pool.Query(ctx, `SELECT `+userCols+` FROM users ORDER BY active DESC, display_name, id`)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT `+userCols+` FROM users ORDER BY active DESC, display_name, id`)
 	if err != nil {
 		return nil, mapErr("users", err)
 	}

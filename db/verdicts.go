@@ -328,19 +328,24 @@ type ExternalVerdict struct {
 
 // ExternalVerdicts lists a participant's external verdicts by week and model.
 func (s *Store) ExternalVerdicts(ctx context.Context, participantID int64) ([]ExternalVerdict, error) {
-	rows, err := s.pool.Query(ctx, `SELECT week, model_name, model_version, score, verdict, coalesce(import_id, 0)
-		FROM external_verdicts WHERE participant_id = $1 ORDER BY week, model_name, model_version`, participantID)
+	rows, err := s.reader(ctx).Query(ctx, externalSQL, participantID)
 	if err != nil {
 		return nil, mapErr("external verdicts", err)
 	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (ExternalVerdict, error) {
-		var v ExternalVerdict
-		var week int16
-		err := r.Scan(&week, &v.ModelName, &v.ModelVersion, &v.Score, &v.Verdict, &v.ImportID)
-		v.Week = int(week)
-		return v, err
-	})
+	out, err := pgx.CollectRows(rows, scanExternal)
 	return out, mapErr("external verdicts", err)
+}
+
+// externalSQL reads a participant's ($1) external verdicts for scanExternal.
+const externalSQL = `SELECT week, model_name, model_version, score, verdict, coalesce(import_id, 0)
+		FROM external_verdicts WHERE participant_id = $1 ORDER BY week, model_name, model_version`
+
+func scanExternal(r pgx.CollectableRow) (ExternalVerdict, error) {
+	var v ExternalVerdict
+	var week int16
+	err := r.Scan(&week, &v.ModelName, &v.ModelVersion, &v.Score, &v.Verdict, &v.ImportID)
+	v.Week = int(week)
+	return v, err
 }
 
 // ImportRecord is one row of the import log.
@@ -363,7 +368,7 @@ func (s *Store) VerdictImports(ctx context.Context, limit int) ([]ImportRecord, 
 	if limit <= 0 || limit > 500 {
 		limit = 20
 	}
-	rows, err := s.pool.Query(ctx, `SELECT id, kind, file_name, status, actor, started_at, rows_total, accepted, rejected, duplicates, message
+	rows, err := s.reader(ctx).Query(ctx, `SELECT id, kind, file_name, status, actor, started_at, rows_total, accepted, rejected, duplicates, message
 		FROM imports WHERE kind = 'verdicts_csv' ORDER BY id DESC LIMIT $1`, limit)
 	if err != nil {
 		return nil, mapErr("verdict imports", err)

@@ -36,7 +36,7 @@ func decodeInto(w *cohort.Week, kind int16, data []byte) error {
 // A week with no data is returned empty, not as an error.
 func (s *Store) WearWeek(ctx context.Context, p Participant, week int) (cohort.Week, error) {
 	w := emptyWeek(p, week)
-	rows, err := s.pool.Query(ctx, `SELECT kind, data FROM wear_weeks WHERE participant_id = $1 AND week = $2 ORDER BY kind`, p.ID, week)
+	rows, err := s.reader(ctx).Query(ctx, `SELECT kind, data FROM wear_weeks WHERE participant_id = $1 AND week = $2 ORDER BY kind`, p.ID, week)
 	if err != nil {
 		return w, mapErr("wear week", err)
 	}

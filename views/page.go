@@ -2,7 +2,11 @@
 // page takes one view model built by its handler; views never query anything.
 package views
 
-import "cohortdesk/views/components"
+import (
+	"strconv"
+
+	"cohortdesk/views/components"
+)
 
 // Page is what the layout needs on every page.
 type Page struct {
@@ -40,4 +44,14 @@ type AssetURLs struct {
 	// loads, one concern a file (cautions, keys, chart colours).
 	PartCSS []string
 	PartJS  []string
+}
+
+// atLeast writes a count that may have stopped counting (a list counts up to
+// a cap rather than every row of a large study): "more than N" then.
+func atLeast(n int64, stopped bool) string {
+	s := strconv.FormatInt(n, 10)
+	if stopped {
+		return "more than " + s
+	}
+	return s
 }

@@ -13,7 +13,12 @@ func Plural(n int, one string) string {
 
 // Matching says how many things a filter matches, the verb agreeing:
 // "1 case matches", "3 cases match".
-func Matching(n int64, one string) string {
+// stopped: the count stopped at n and there are more ("more than 10000
+// cases match").
+func Matching(n int64, stopped bool, one string) string {
+	if stopped {
+		return "more than " + strconv.FormatInt(n, 10) + " " + one + "s match"
+	}
 	if n == 1 {
 		return "1 " + one + " matches"
 	}

@@ -9,6 +9,9 @@ import (
 type access struct {
 	public bool
 	roles  []cohort.Role
+	// scrape: no person, only the client addresses allowed to read the
+	// metrics (Config.MetricsAllow); everyone else is refused.
+	scrape bool
 	// setup: open to a session that must first change its password or set up
 	// its second factor (the account pages); every other route sends such a
 	// session to the step it owes.
@@ -45,4 +48,5 @@ var (
 	adminOnly  = allow(cohort.Admin)
 	tuning     = allow(cohort.Investigator, cohort.Admin)   // threshold sweep: investigators weigh, admins set protocols
 	account    = access{roles: everyone.roles, setup: true} // one's own account: password, second factor
+	scrapers   = access{scrape: true}                       // the metrics: allowed monitoring addresses only, no role
 )

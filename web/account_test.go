@@ -136,7 +136,7 @@ func TestSetupSessionReachesOnlyAccountPages(t *testing.T) {
 		t.Fatalf("sign-in went to %q", res.Header.Get("Location"))
 	}
 	for _, rt := range a.srv.routeTable {
-		if rt.access.public || rt.access.setup || rt.method != "GET" {
+		if rt.access.public || rt.access.scrape || rt.access.setup || rt.method != "GET" {
 			continue
 		}
 		path := strings.NewReplacer("{id}", "1", "{code}", "XX", "{week}", "1", "{kind}", "hr", "{box}", "flagged").Replace(rt.pattern)

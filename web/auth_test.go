@@ -70,7 +70,12 @@ func TestRouteTableByRole(t *testing.T) {
 		}
 		res := do(anon, method)
 		sameAsGet("anonymous", anon, res)
-		if acc.public {
+		if acc.scrape {
+			// No address is allowed to scrape in this app: everyone is refused.
+			if res.StatusCode != http.StatusForbidden {
+				t.Errorf("anonymous %s %s: status %d, want 403 (metrics are for allowed addresses only)", method, pattern, res.StatusCode)
+			}
+		} else if acc.public {
 			if res.StatusCode == http.StatusSeeOther && strings.HasPrefix(res.Header.Get("Location"), "/signin") && pattern != "/signin" {
 				t.Errorf("anonymous %s %s: sent to sign-in but the route is public", method, pattern)
 			}

@@ -105,7 +105,7 @@ func (s *Server) renderCases(w http.ResponseWriter, r *http.Request, q url.Value
 		return err
 	}
 	m := views.CasesModel{Page: s.page(r, "Cases", "cases"), Filter: form, States: stateOptions(), Sites: sites,
-		Total: page.Total, DeIdentified: deid, Message: msg}
+		Total: page.Total, AtLeast: page.AtLeast, DeIdentified: deid, Message: msg}
 	if !deid {
 		m.Owners = append([]views.Option{{Value: "", Label: "anyone"}, {Value: "me", Label: "me"}, {Value: "none", Label: "nobody yet"}}, workerOptions(workers, false)...)
 		m.Assignees = workerOptions(workers, true)

@@ -161,8 +161,13 @@ func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error
 	if err != nil {
 		return err
 	}
+	pending, err := s.store.Pending(ctx)
+	if err != nil {
+		return err
+	}
 	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.Label(), Protocol: a.Protocol.Label(), PPVUnits: screen.PPVUnits,
-		ProtoID: strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
+		Freshness: freshness(pending, s.now()),
+		ProtoID:   strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
 	for _, t := range []string{"versions", "groups", "km", "kappa"} {
 		m.CSV[t] = statsCSVHref(t, q)
 	}

@@ -2,7 +2,6 @@ package web
 
 import (
 	"archive/zip"
-	"bytes"
 	"context"
 	"crypto/sha256"
 	"encoding/csv"
@@ -164,8 +163,12 @@ func (s *Server) datasetExport(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	now := s.now().UTC()
 	man := datasetManifest{Kind: "de-identified dataset", FormatVersion: 1, CreatedAt: now.Format("2006-01-02T15:04:05Z"), ReviewCaution: deid.ReviewCaution}
-	var buf bytes.Buffer
-	zw := zip.NewWriter(&buf)
+	buf, err := newDownloadFile()
+	if err != nil {
+		return err
+	}
+	defer buf.Close()
+	zw := zip.NewWriter(buf)
 	add := func(name string, write func(io.Writer) (int, error), counted bool) error {
 		f, err := zw.CreateHeader(&zip.FileHeader{Name: name, Method: zip.Deflate, Modified: deid.PlaceholderDate()})
 		if err != nil {
@@ -209,11 +212,11 @@ func (s *Server) datasetExport(w http.ResponseWriter, r *http.Request) error {
 		return fmt.Errorf("web: dataset zip: %w", err)
 	}
 	name := "cohortdesk-deidentified-" + now.Format("20060102-150405") + ".zip"
-	if _, err := s.store.RecordExport(ctx, s.actor(r), db.Export{Kind: db.ExportDataset, FileName: name, Bytes: int64(buf.Len()),
-		SHA256: sha256Hex(buf.Bytes()), Manifest: mj}); err != nil {
+	if _, err := s.store.RecordExport(ctx, s.actor(r), db.Export{Kind: db.ExportDataset, FileName: name, Bytes: buf.Size(),
+		SHA256: buf.SHA256(), Manifest: mj}); err != nil {
 		return err
 	}
-	return sendZip(w, name, buf.Bytes())
+	return buf.sendZip(w, name)
 }
 
 // writeTable writes one table's CSV. The header is the table's and is

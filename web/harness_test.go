@@ -120,6 +120,22 @@ func (a *app) exec(sql string, args ...any) {
 	if _, err := a.store.Pool().Exec(context.Background(), sql, args...); err != nil {
 		a.t.Fatalf("exec %s: %v", strings.SplitN(sql, "\n", 2)[0], err)
 	}
+	a.drainFigures()
+}
+
+// drainFigures computes the kept figures a write by bare SQL left waiting, as
+// the server's background pass does (db.Store.DrainFigures).
+func (a *app) drainFigures() {
+	a.t.Helper()
+	for {
+		n, err := a.store.DrainFigures(context.Background(), 1000)
+		if err != nil {
+			a.t.Fatalf("drain figures: %v", err)
+		}
+		if n == 0 {
+			return
+		}
+	}
 }
 
 func strconvFormat(n int64) string { return strconv.FormatInt(n, 10) }

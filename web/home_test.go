@@ -40,6 +40,7 @@ func TestHomeShowsCountsFromDatabase(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	a.drainFigures()
 	res, body := a.get(a.signIn(cohort.Monitor), "/")
 	if res.StatusCode != 200 {
 		t.Fatalf("status %d", res.StatusCode)

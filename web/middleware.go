@@ -17,6 +17,7 @@ type ctxKey int
 const (
 	keyRequestID ctxKey = iota
 	keyUser
+	keyStudy // the study's name, read with the user by the access check
 )
 
 // requestID returns the id given to the request by withRequestID.

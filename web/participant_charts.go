@@ -1,7 +1,6 @@
 package web
 
 import (
-	"errors"
 	"fmt"
 	"math"
 	"net/http"
@@ -31,25 +30,15 @@ const (
 // heart rate of the chosen week with irregular windows shaded, the weekly
 // screening metrics, and the verdicts of external models (kept apart from
 // ours). Everything follows the active protocol version.
-func (s *Server) participantCharts(r *http.Request, p db.Participant, lines []db.WeekLine, m *views.ParticipantModel) error {
+func (s *Server) participantCharts(r *http.Request, p db.Participant, sheet db.ParticipantSheet, m *views.ParticipantModel) error {
 	ctx := r.Context()
-	ext, err := s.store.ExternalVerdicts(ctx, p.ID)
-	if err != nil {
-		return err
-	}
-	m.External = externalRows(ext)
-	pv, err := s.store.ActiveProtocol(ctx)
-	if errors.Is(err, cohort.ErrNotFound) {
+	lines := sheet.Lines
+	m.External = externalRows(sheet.External)
+	if !sheet.HasProtocol {
 		m.ChartNote = "No screening protocol is active yet, so nothing has been screened."
 		return nil
 	}
-	if err != nil {
-		return err
-	}
-	results, err := s.store.ScreenResults(ctx, p.ID, pv.ID)
-	if err != nil {
-		return err
-	}
+	pv, results := sheet.Protocol, sheet.Results
 	var scripts []string
 	wi := mainWindow(results, pv)
 	if len(results) > 0 {

@@ -28,8 +28,7 @@ type participantStore interface {
 	Enrol(ctx context.Context, a cohort.Actor, in db.ParticipantInput) (db.Participant, error)
 	UpdateParticipant(ctx context.Context, a cohort.Actor, id int64, in db.ParticipantInput) (db.Participant, error)
 	Withdraw(ctx context.Context, a cohort.Actor, id int64, on cohort.Date, reason string, version int) (db.Participant, error)
-	Timeline(ctx context.Context, p db.Participant) ([]db.WeekLine, error)
-	Notes(ctx context.Context, participantID int64) ([]db.Note, error)
+	ParticipantSheet(ctx context.Context, p db.Participant) (db.ParticipantSheet, error)
 	AddNote(ctx context.Context, a cohort.Actor, participantID int64, body string) error
 	Audit(ctx context.Context, a cohort.Actor, action, objType, objID string, old, new any) error
 }
@@ -186,10 +185,11 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 			{Label: "E-mail", Value: id.Email}, {Label: "Address", Value: strings.TrimSpace(id.Street + ", " + id.City + " " + id.ZIP)},
 			{Label: "Watch serial", Value: id.DeviceSerial}}
 	}
-	lines, err := s.store.Timeline(ctx, p)
+	sheet, err := s.store.ParticipantSheet(ctx, p)
 	if err != nil {
 		return err
 	}
+	lines := sheet.Lines
 	if !chosen {
 		chartWeek = defaultChartWeek(lines)
 	}
@@ -207,20 +207,16 @@ func (s *Server) participantShow(w http.ResponseWriter, r *http.Request) error {
 		}
 		m.Timeline = append(m.Timeline, row)
 	}
-	if err := s.participantCharts(r, p, lines, &m); err != nil {
+	if err := s.participantCharts(r, p, sheet, &m); err != nil {
 		return err
 	}
 	m.NotesHidden = !d.dates
 	if d.dates {
-		notes, err := s.store.Notes(ctx, p.ID)
-		if err != nil {
-			return err
-		}
 		if r.URL.Query().Get("done") == "note" {
 			m.NoteSaved = "Note saved."
 		}
 		studyLoc := s.studyZone(ctx)
-		for _, n := range notes {
+		for _, n := range sheet.Notes {
 			m.Notes = append(m.Notes, views.NoteView{Body: n.Body, Actor: n.Actor, At: when(n.At, studyLoc)})
 		}
 	}

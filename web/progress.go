@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"net/http"
+	"time"
 
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/cascade"
@@ -20,15 +21,20 @@ import (
 type progressStore interface {
 	Enrolment(ctx context.Context, asOf cohort.Date) (enrolment.History, error)
 	DataSufficiency(ctx context.Context) ([]db.SufficiencyWeek, error)
-	SilentParticipants(ctx context.Context, days int) ([]db.SilentParticipant, error)
+	SilentParticipants(ctx context.Context, days int, after string, limit int) (db.SilentPage, error)
+	Pending(ctx context.Context) (db.FiguresPending, error)
 	Cascade(ctx context.Context, f cascade.Filter) (cascade.Cascade, error)
-	CascadeMembers(ctx context.Context, protocolID int, ids []int64) ([]db.CascadeMember, error)
+	CascadeMembersAfter(ctx context.Context, f cascade.Filter, box int, exit cascade.ExitReason, after int64, limit int) (db.BoxPage, error)
 	Figures(ctx context.Context, f cascade.Filter) (cascade.Cascade, cascade.Agreement, error)
 	Sites(ctx context.Context) ([]db.Site, error)
 }
 
 // silentDays is how long without data makes a participant worth a call.
 const silentDays = 14
+
+// silentPageSize is how many silent participants the progress page lists at
+// once; the rest are a "next" link away.
+const silentPageSize = 25
 
 // defaultWindow is the weeks of history the projection uses unless asked.
 const defaultWindow = 8
@@ -40,6 +46,23 @@ func windowOf(q *query) int {
 		return w
 	}
 	return defaultWindow
+}
+
+// freshness says, when kept figures wait to be computed, how current the
+// page's figures are; "" when they are current.
+func freshness(p db.FiguresPending, now time.Time) string {
+	switch {
+	case p.Building:
+		return "The study's figures are being built for the first time; the counts below are incomplete until that finishes."
+	case p.Participants == 0:
+		return ""
+	}
+	who := plural(p.Participants, "participant")
+	if p.Participants >= db.PendingCap {
+		who = "more than " + who
+	}
+	return fmt.Sprintf("Figures of %s changed by a bulk load are being brought up to date (waiting since %s); the counts below do not include them yet.",
+		who, p.Since.UTC().Format("15:04 UTC"))
 }
 
 // enrolFig is one row of the enrolment table on the progress page, the
@@ -120,13 +143,18 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	var (
 		h       enrolment.History
 		suff    []db.SufficiencyWeek
-		silent  []db.SilentParticipant
+		silent  db.SilentPage
+		pending db.FiguresPending
 		section templ.Component
 	)
 	g, ctx := errgroup.WithContext(r.Context())
 	g.Go(func() (err error) { h, err = s.store.Enrolment(ctx, cohort.Date{}); return err })
 	g.Go(func() (err error) { suff, err = s.store.DataSufficiency(ctx); return err })
-	g.Go(func() (err error) { silent, err = s.store.SilentParticipants(ctx, silentDays); return err })
+	g.Go(func() (err error) {
+		silent, err = s.store.SilentParticipants(ctx, silentDays, r.URL.Query().Get("silent_after"), silentPageSize)
+		return err
+	})
+	g.Go(func() (err error) { pending, err = s.store.Pending(ctx); return err })
 	g.Go(func() (err error) { section, err = s.progressCascade(ctx, r.URL.Query(), window); return err })
 	d := disclosureOf(r)
 	var first cohort.Date
@@ -210,8 +238,18 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.SufficiencyChart = sch
 
-	m.SilentDays = silentDays
-	for _, sp := range silent {
+	m.SilentDays, m.SilentTotal, m.SilentAtLeast, m.Freshness = silentDays, silent.Total, silent.AtLeast, freshness(pending, s.now())
+	if silent.Next != "" {
+		q := r.URL.Query()
+		q.Set("silent_after", silent.Next)
+		m.SilentNext = "/progress?" + q.Encode() + "#silent"
+	}
+	if r.URL.Query().Get("silent_after") != "" {
+		q := r.URL.Query()
+		q.Del("silent_after")
+		m.SilentFirst = "/progress?" + q.Encode() + "#silent"
+	}
+	for _, sp := range silent.Rows {
 		last := "never"
 		if sp.LastData != nil {
 			last = d.dayAt(sp.EnrolledOn, sp.Location(), *sp.LastData) // the day in the participant's zone

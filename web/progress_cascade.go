@@ -130,13 +130,13 @@ func flowView(c cascade.Cascade, cq cascadeQuery) views.FlowView {
 	f := views.FlowView{Protocol: c.Protocol.Label(), Period: cq.period()}
 	for i, b := range c.Boxes {
 		path := "/progress/cascade/" + b.Key
-		v := views.FlowBoxView{Key: b.Key, Label: b.Label, Definition: b.Definition, Count: b.Count(), Cases: len(b.Cases),
+		v := views.FlowBoxView{Key: b.Key, Label: b.Label, Definition: b.Definition, Count: b.Count(), Cases: b.CaseN,
 			ShowCases: i >= 2, Href: cq.href(path)}
 		if i > 0 && c.Boxes[i-1].Count() > 0 {
 			v.Share = pct(float64(b.Count()) / float64(c.Boxes[i-1].Count()))
 		}
 		for _, e := range b.Exits {
-			ev := views.FlowExitView{Key: string(e.Reason), Label: e.Reason.Label(), Count: len(e.Participants),
+			ev := views.FlowExitView{Key: string(e.Reason), Label: e.Reason.Label(), Count: e.N,
 				InProgress: e.Reason.InProgress(), Href: cq.href(path, "exit", string(e.Reason))}
 			if ev.InProgress {
 				v.Waiting, v.WaitingN = append(v.Waiting, ev), v.WaitingN+ev.Count
@@ -207,10 +207,10 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	if exit != "" && !exit.Known() {
 		qr.refuse("exit", "choose a reason shown on the cascade")
 	}
-	page := 1
-	if n, ok := qr.number("page", 1, math.MaxInt32, "page"); ok {
-		page = n
-	}
+	// Pages follow each other by key: after is the last participant id of
+	// the previous page and shown how many rows came before, for numbering.
+	after := qr.id("after", "a participant id from the previous page")
+	shown, _ := qr.number("shown", 0, math.MaxInt32, "rows shown before")
 	if err := qr.err(); err != nil {
 		return err
 	}
@@ -229,41 +229,34 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	}
 	box := c.Boxes[at]
 	flow := flowView(c, cq)
-	exitOf := map[int64]cascade.ExitReason{}
-	for _, e := range box.Exits {
-		for _, id := range e.Participants {
-			exitOf[id] = e.Reason
-		}
-	}
-	ids := box.Participants
-	label := ""
+	listed, label := box.Count(), ""
 	if exit != "" {
-		ids, label = nil, exit.Label()
+		listed, label = 0, exit.Label()
 		for _, e := range box.Exits {
 			if e.Reason == exit {
-				ids = e.Participants
+				listed = e.N
 			}
 		}
 	}
-	start := (page - 1) * cascadePageSize
-	if start > 0 && start >= len(ids) {
-		return errNotFound
-	}
-	end := min(len(ids), start+cascadePageSize)
 	// Study IDs listed for an enrolment period would tell a role that sees no
 	// dates when each of them enrolled (narrow the period to a day and look);
 	// such a role sees the counts of a period, and the lists of the whole
 	// study.
-	unlisted, listed := "", len(ids)
+	unlisted := ""
+	page := db.BoxPage{}
 	if !disclosureOf(r).dates && (!cq.from.IsZero() || !cq.to.IsZero()) {
 		unlisted = "Participants are not listed by study ID for an enrolment period to your role: with the period, the list would show when each of them enrolled. Remove the period to see the list."
-		ids = nil
-		start, end = 0, 0
+	} else {
+		page, err = s.store.CascadeMembersAfter(ctx, c.Filter, at, exit, after, cascadePageSize)
 	}
-	members, err := s.store.CascadeMembers(ctx, c.Protocol.ID, ids[start:end])
 	if err != nil {
 		return err
 	}
+	if after > 0 && len(page.Members) == 0 {
+		return errNotFound
+	}
+	members := page.Members
+	start, end := shown, shown+len(members)
 	deid := !role(r).SeesPHI()
 	openCases := caseWork.allows(role(r))
 	loc := time.UTC
@@ -286,19 +279,19 @@ func (s *Server) cascadeBox(w http.ResponseWriter, r *http.Request) error {
 	if exit != "" {
 		extra = []string{"exit", string(exit)}
 	}
-	if page > 1 {
-		m.Prev = cq.href(path, append(extra, "page", strconv.Itoa(page-1))...)
+	if after > 0 {
+		m.Prev = cq.href(path, extra...) // back to the first page
 	}
-	if end < len(ids) {
-		m.Next = cq.href(path, append(extra, "page", strconv.Itoa(page+1))...)
+	if page.Next != 0 {
+		m.Next = cq.href(path, append(extra, "after", strconv.FormatInt(page.Next, 10), "shown", strconv.Itoa(end))...)
 	}
 	for _, p := range members {
 		row := views.CascadeMemberRow{Href: fmt.Sprintf("/participants/%d", p.ID), StudyID: p.StudyID, Site: p.SiteCode, Withdrawn: p.Withdrawn, Step: next}
 		if !deid {
 			row.Enrolled = p.EnrolledOn.Label()
 		}
-		if e, ok := exitOf[p.ID]; ok {
-			row.Step, row.InProgress = e.Label(), e.InProgress()
+		if p.Standing.Box == at && p.Standing.Exit != "" {
+			row.Step, row.InProgress = p.Standing.Exit.Label(), p.Standing.Exit.InProgress()
 		}
 		for _, k := range p.Cases {
 			cv := views.MemberCaseView{State: k.State.Label(), Weeks: weeksText(k.FirstWeek, k.LastWeek)}

@@ -422,11 +422,11 @@ func TestCascadeRoutesRefuseUnknownValues(t *testing.T) {
 		want int
 	}{
 		{"/progress/cascade/nonsense", http.StatusNotFound},
-		{"/progress/cascade/enrolled?page=9", http.StatusNotFound},
+		{"/progress/cascade/enrolled?after=999999&shown=200", http.StatusNotFound},
 		{"/progress/cascade/enrolled?protocol=999", http.StatusNotFound},
 		{"/progress/cascade/enrolled?exit=bogus", http.StatusBadRequest},
-		{"/progress/cascade/enrolled?page=0", http.StatusBadRequest},
-		{"/progress/cascade/enrolled?page=x", http.StatusBadRequest},
+		{"/progress/cascade/enrolled?after=0", http.StatusBadRequest},
+		{"/progress/cascade/enrolled?after=x", http.StatusBadRequest},
 		{"/progress?from=2026-13-01", http.StatusBadRequest},
 		{"/progress?site=999", http.StatusBadRequest},
 		{"/progress?site=AA", http.StatusBadRequest},
@@ -541,5 +541,37 @@ func TestDataSufficiencyCountsWeeksEndedInTheStudyZone(t *testing.T) {
 		if got := byTestID(body, "sufficiency-2026-02-23"); got != c.want {
 			t.Errorf("at %s: week of 2026-02-23 %q, want %q", c.now.Format(time.RFC3339), got, c.want)
 		}
+	}
+}
+
+// TestPagesSayHowFreshTheFiguresAre: rows loaded by bare SQL (outside the
+// store's transactions) wait for the background pass; meanwhile the progress
+// page and the statistics say how many participants' figures wait, and once
+// the pass has run the notice is gone and the figures count them.
+func TestPagesSayHowFreshTheFiguresAre(t *testing.T) {
+	a := newAppAt(t, time.Date(2026, 3, 11, 12, 0, 0, 0, time.UTC))
+	cascadeCohort(t, a)
+	c := a.signIn(cohort.Investigator)
+	if _, body := a.get(c, "/progress"); strings.Contains(body, `data-testid="figures-freshness"`) {
+		t.Fatal("a notice before anything waits")
+	}
+	// Two more screen-negative weeks for everyone, by bare SQL.
+	if _, err := a.store.Pool().Exec(context.Background(), `INSERT INTO screen_results (participant_id, protocol_id, week, verdict, reason, result, input_digest, wear_hours)
+		SELECT p.id, pr.id, w, 'negative', 'regular', '{}', 'd', 100 FROM participants p CROSS JOIN protocols pr CROSS JOIN generate_series(20, 21) w`); err != nil {
+		t.Fatal(err)
+	}
+	var n int
+	if err := a.store.Pool().QueryRow(context.Background(), `SELECT count(*) FROM participants`).Scan(&n); err != nil {
+		t.Fatal(err)
+	}
+	for _, path := range []string{"/progress", "/confirmations/statistics"} {
+		_, body := a.get(c, path)
+		if !strings.Contains(body, `data-testid="figures-freshness"`) || !strings.Contains(body, fmt.Sprintf("Figures of %d participants", n)) {
+			t.Errorf("%s: no notice of %d participants waiting", path, n)
+		}
+	}
+	a.drainFigures()
+	if _, body := a.get(c, "/progress"); strings.Contains(body, `data-testid="figures-freshness"`) {
+		t.Error("the notice stays after the background pass")
 	}
 }

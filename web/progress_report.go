@@ -313,16 +313,16 @@ func (rf reportFigures) reportTables() []*csvTable {
 			share = num(float64(b.Count()) / float64(rf.cascade.Boxes[i-1].Count()))
 		}
 		if i >= 2 {
-			cases = strconv.Itoa(len(b.Cases))
+			cases = strconv.Itoa(b.CaseN)
 		}
 		left, waiting := 0, 0
 		for _, e := range b.Exits {
 			if e.Reason.InProgress() {
-				waiting += len(e.Participants)
+				waiting += e.N
 			} else {
-				left += len(e.Participants)
+				left += e.N
 			}
-			exits.add(b.Key, string(e.Reason), e.Reason.Label(), strconv.FormatBool(e.Reason.InProgress()), strconv.Itoa(len(e.Participants)))
+			exits.add(b.Key, string(e.Reason), e.Reason.Label(), strconv.FormatBool(e.Reason.InProgress()), strconv.Itoa(e.N))
 		}
 		boxes.add(strconv.Itoa(i+1), b.Key, b.Label, strconv.Itoa(b.Count()), cases, share, strconv.Itoa(left), strconv.Itoa(waiting))
 	}

@@ -66,7 +66,7 @@ func TestTamperedQueryIsBadRequest(t *testing.T) {
 		{cohort.Investigator, "/progress?window=1", "window"},
 		{cohort.Investigator, "/progress?protocol=" + huge, "protocol"},
 		{cohort.Investigator, "/progress?from=2026-13-01", "from"},
-		{cohort.Investigator, "/progress/cascade/enrolled?page=" + huge, "page"},
+		{cohort.Investigator, "/progress/cascade/enrolled?after=" + huge, "after"},
 		{cohort.Investigator, "/progress/cascade/enrolled?exit=bogus", "exit"},
 		{cohort.Investigator, "/progress/report?paper=legal", "paper"},
 		{cohort.Investigator, "/progress/report.zip?window=0", "window"},

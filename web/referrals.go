@@ -2,7 +2,6 @@ package web
 
 import (
 	"archive/zip"
-	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
@@ -403,8 +402,12 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 	}
 	a := s.actor(r)
 	man := batchManifest{Kind: "referral summaries", Paper: paperLabel(paper), ReviewCaution: deid.ReviewCaution}
-	var buf bytes.Buffer
-	zw := zip.NewWriter(&buf)
+	buf, err := newDownloadFile()
+	if err != nil {
+		return err
+	}
+	defer buf.Close()
+	zw := zip.NewWriter(buf)
 	for _, c := range ready {
 		ref, pdf, err := s.issue(ctx, a, c.ParticipantID, c.CaseID, "zip", paper)
 		if err != nil {
@@ -437,11 +440,11 @@ func (s *Server) referralBatch(w http.ResponseWriter, r *http.Request) error {
 		return err
 	}
 	name := fmt.Sprintf("referral-summaries-%s.zip", s.now().UTC().Format("20060102-150405"))
-	if _, err := s.store.RecordExport(ctx, a, db.Export{Kind: db.ExportReferralBatch, FileName: name, Bytes: int64(buf.Len()),
-		SHA256: sha256Hex(buf.Bytes()), Manifest: rec}); err != nil {
+	if _, err := s.store.RecordExport(ctx, a, db.Export{Kind: db.ExportReferralBatch, FileName: name, Bytes: buf.Size(),
+		SHA256: buf.SHA256(), Manifest: rec}); err != nil {
 		return err
 	}
-	return sendZip(w, name, buf.Bytes())
+	return buf.sendZip(w, name)
 }
 
 // zipFile adds one file with the placeholder date, so a zip's bytes depend

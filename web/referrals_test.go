@@ -86,6 +86,7 @@ func confirmAF(t *testing.T, a *app, pid int64, rhythm string, planted string) i
 	if err != nil {
 		t.Fatal(err)
 	}
+	a.drainFigures()
 	if best < 0 {
 		t.Fatalf("participant %d has no stored week", pid)
 	}

@@ -21,6 +21,7 @@ func (s *Server) routes() []route {
 	return []route{
 		{"GET", "/health", public, s.health},
 		{"GET", "/ready", public, s.ready},
+		{"GET", "/metrics", scrapers, s.metricsPage},
 		{"GET", "/signin", public, s.signInForm},
 		{"POST", "/signin", public, s.signIn},
 		{"POST", "/signout", public, s.signOut},
@@ -134,13 +135,20 @@ func (s *Server) routes() []route {
 func (s *Server) buildRouter() chi.Router {
 	s.routeTable = s.routes()
 	r := chi.NewRouter()
+	r.Use(s.metrics.route)
 	for _, rt := range s.routeTable {
-		h := s.guard(rt.access, s.wrap(rt.h))
-		r.Method(rt.method, rt.pattern, h)
+		h := rt.h
+		if rt.method == "GET" && !rt.access.public {
+			// Pages people read may come from the standby; health,
+			// readiness and sign-in answer for the primary.
+			h = s.fromStandby(rt.pattern, h)
+		}
+		g := s.guard(rt.access, s.wrap(h))
+		r.Method(rt.method, rt.pattern, g)
 		if rt.method == "GET" {
 			// HEAD answers as GET does, with the same status and headers; the
 			// server drops the body (net/http writes none for HEAD).
-			r.Method("HEAD", rt.pattern, h)
+			r.Method("HEAD", rt.pattern, g)
 		}
 	}
 	r.Handle(assets.Prefix+"*", assets.Handler())

@@ -40,6 +40,8 @@ type Store interface {
 	recordingStore
 	referralStore
 	exportStore
+	standbyStore
+	metricsStore
 	auditFilterStore
 	activityStore
 	outreachStore
@@ -62,6 +64,11 @@ type Config struct {
 	// the same for the life of the study; without one, summaries and
 	// exports are refused.
 	Secret []byte
+	// MetricsAllow are the client addresses that may read /metrics on this
+	// listener; none by default (a separate listener serves MetricsHandler).
+	MetricsAllow []netip.Prefix
+	// StandbyPool is the standby's pool, for the metrics; nil without one.
+	StandbyPool *pgxpool.Pool
 	// Outreach says which channels this server sends messages on.
 	Outreach OutreachConfig
 }
@@ -83,6 +90,8 @@ type Server struct {
 	dummyOnce      sync.Once
 	dummy          string
 	secret         []byte
+	metrics        *metrics
+	metricsAllow   []netip.Prefix
 	hashes         *hashGate
 	uploads        uploadSlots
 	outreach       OutreachConfig
@@ -91,8 +100,9 @@ type Server struct {
 // New builds the server and its routes.
 func New(cfg Config) *Server {
 	s := &Server{store: cfg.Store, log: cfg.Logger, now: cfg.Now, trustedProxies: cfg.TrustedProxies,
-		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret,
+		pwParams: cfg.Password, demoNote: cfg.DemoNote, secret: cfg.Secret, metricsAllow: cfg.MetricsAllow,
 		outreach: cfg.Outreach}
+	s.metrics = newMetrics(s, cfg.Pool, cfg.StandbyPool)
 	if s.pwParams.Memory == 0 {
 		s.pwParams = credential.DefaultParams
 	}
@@ -120,6 +130,7 @@ func New(cfg Config) *Server {
 // Handler is the whole application with its middleware.
 func (s *Server) Handler() http.Handler {
 	var h http.Handler = s.router
+	h = s.withReads(h)
 	h = s.withSessions(h)
 	// Refuses state-changing requests that browsers mark as cross-origin
 	// (Sec-Fetch-Site, or an Origin that is not this host).
@@ -136,7 +147,9 @@ func (s *Server) Handler() http.Handler {
 // page builds the layout model every page shares.
 func (s *Server) page(r *http.Request, title, area string) views.Page {
 	p := views.Page{Title: title, Area: area, Assets: s.assets}
-	if name, err := s.store.StudyName(r.Context()); err == nil {
+	if name, ok := r.Context().Value(keyStudy).(string); ok {
+		p.Study = name
+	} else if name, err := s.store.StudyName(r.Context()); err == nil {
 		p.Study = name
 	}
 	if u, ok := userFrom(r.Context()); ok {

@@ -15,7 +15,6 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/db"
 
-	"github.com/alexedwards/scs/pgxstore"
 	"github.com/alexedwards/scs/v2"
 	"github.com/jackc/pgx/v5/pgxpool"
 )
@@ -29,12 +28,14 @@ type SessionConfig struct {
 
 func newSessions(pool *pgxpool.Pool, c SessionConfig) *scs.SessionManager {
 	sm := scs.New()
-	if pool != nil {
-		sm.Store = pgxstore.NewWithCleanupInterval(pool, 10*time.Minute)
-	}
 	sm.IdleTimeout = c.Idle
 	if sm.IdleTimeout <= 0 {
 		sm.IdleTimeout = 30 * time.Minute
+	}
+	if pool != nil {
+		st := newSessionStore(pool, sm.IdleTimeout)
+		go st.cleanup(context.Background(), 10*time.Minute)
+		sm.Store = st
 	}
 	sm.Lifetime = c.Lifetime
 	if sm.Lifetime <= 0 {
@@ -53,23 +54,31 @@ const sessionUserKey = "uid"
 
 type userStore interface {
 	UserByID(ctx context.Context, id int64) (db.User, error)
+	UserAndStudy(ctx context.Context, id int64) (db.User, string, error)
 }
 
 // currentUser loads the signed-in, still active user of the request.
 func (s *Server) currentUser(r *http.Request) (db.User, bool) {
+	u, _, ok := s.signedIn(r)
+	return u, ok
+}
+
+// signedIn loads the signed-in, still active user of the request and the
+// study's name, in one read.
+func (s *Server) signedIn(r *http.Request) (db.User, string, bool) {
 	marker := s.sessions.GetString(r.Context(), sessionUserKey)
 	if marker == "" {
-		return db.User{}, false
+		return db.User{}, "", false
 	}
 	id, err := strconv.ParseInt(strings.TrimSuffix(strings.TrimPrefix(marker, "cdu:"), ":"), 10, 64)
 	if err != nil {
-		return db.User{}, false
+		return db.User{}, "", false
 	}
-	u, err := s.store.UserByID(r.Context(), id)
+	u, study, err := s.store.UserAndStudy(r.Context(), id)
 	if err != nil || !u.Active {
-		return db.User{}, false
+		return db.User{}, "", false
 	}
-	return u, true
+	return u, study, true
 }
 
 // userFrom returns the user the guard put in the context.
@@ -99,8 +108,17 @@ func (s *Server) guard(a access, h http.Handler) http.Handler {
 	if a.public {
 		return h
 	}
+	if a.scrape {
+		return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+			if !s.mayScrape(r) {
+				s.serveError(w, r, cohort.ErrForbidden)
+				return
+			}
+			h.ServeHTTP(w, r)
+		})
+	}
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
-		u, ok := s.currentUser(r)
+		u, study, ok := s.signedIn(r)
 		if !ok {
 			s.toSignIn(w, r)
 			return
@@ -109,13 +127,13 @@ func (s *Server) guard(a access, h http.Handler) http.Handler {
 			s.toSetup(w, r, step)
 			return
 		}
+		ctx := context.WithValue(context.WithValue(r.Context(), keyUser, u), keyStudy, study)
 		if !a.allows(u.Role) {
-			ctx := context.WithValue(r.Context(), keyUser, u)
 			s.serveError(w, r.WithContext(ctx), cohort.ErrForbidden)
 			return
 		}
 		w.Header().Set("Cache-Control", "no-store")
-		h.ServeHTTP(w, r.WithContext(context.WithValue(r.Context(), keyUser, u)))
+		h.ServeHTTP(w, r.WithContext(ctx))
 	})
 }
 

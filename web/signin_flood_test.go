@@ -4,7 +4,7 @@ import (
 	"context"
 	"net/http"
 	"runtime"
-	"runtime/metrics"
+	rtmetrics "runtime/metrics"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -25,8 +25,8 @@ func TestSignInFloodKeepsMemoryBounded(t *testing.T) {
 	a, _ := newAppWith(t, Config{Password: cost, HashConcurrency: 2})
 	a.srv.dummyHash() // the unknown-account hash is made once, before the flood
 
-	sample := []metrics.Sample{{Name: "/memory/classes/heap/objects:bytes"}}
-	read := func() uint64 { metrics.Read(sample); return sample[0].Value.Uint64() }
+	sample := []rtmetrics.Sample{{Name: "/memory/classes/heap/objects:bytes"}}
+	read := func() uint64 { rtmetrics.Read(sample); return sample[0].Value.Uint64() }
 	runtime.GC()
 	base := read()
 	var peak atomic.Uint64

@@ -96,7 +96,7 @@ func TestBrowserTriageRowsToActFrom(t *testing.T) {
 		t.Fatal("taking a colleague's case does not ask first")
 	}
 	b.Do("take the colleague's case", browsertest.HTMXSettled(), chromedp.Click(chromedp.CSS(other+` [data-testid="take"] button`)),
-		chromedp.WaitVisible(chromedp.CSS(other+` [data-testid="row-done"]`)))
+		chromedp.WaitVisible(chromedp.CSS(other+` [data-testid="row-done"]`)), browsertest.HTMXSettled())
 	if got := tb.confirmed(); len(got) != 1 || !strings.Contains(got[0], "Test Investigator has taken this case on") {
 		t.Errorf("questions asked %q", got)
 	}

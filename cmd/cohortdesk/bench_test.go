@@ -42,7 +42,7 @@ func TestBenchCommand(t *testing.T) {
 	if err := json.Unmarshal(b, &rep); err != nil {
 		t.Fatal(err)
 	}
-	if rep.Import == nil || rep.Screen == nil || rep.Pages == nil || rep.Scale.Participants != 200 || rep.Pages.ServerErrors != 0 {
+	if rep.Import == nil || rep.Screen == nil || len(rep.Pages) == 0 || rep.Scale.Participants != 200 || rep.Pages[0].ServerErrors != 0 {
 		t.Errorf("JSON report: %s", b)
 	}
 	for _, bad := range [][]string{

@@ -34,6 +34,10 @@ type serverConfig struct {
 	TLSKey          string
 	Secret          string
 	Workers         int
+	ReadURL         string        // a hot standby for pages that only read; "" for none
+	ReadMaxLag      time.Duration // reads fall back to the primary beyond this lag
+	MetricsAddr     string        // a separate listener for /metrics; "" for none
+	MetricsAllow    string        // CIDRs that may read /metrics on the main listener
 	Outreach        outreachConfig
 }
 
@@ -53,12 +57,26 @@ func (c *serverConfig) bind(fs *flag.FlagSet, getenv func(string) string, defaul
 	fs.IntVar(&c.Workers, "workers", envInt(getenv, "COHORTDESK_WORKERS", 1), "background job workers in this instance (screening after imports, threshold sweeps); 0 leaves the queue to other instances (env COHORTDESK_WORKERS)")
 	c.Outreach.bind(fs, getenv)
 	fs.StringVar(&c.Secret, "secret", getenv("COHORTDESK_SECRET"), "deployment secret keying the pseudonymous referral codes, 32+ characters (env COHORTDESK_SECRET)")
+	fs.StringVar(&c.ReadURL, "database-read-url", getenv("DATABASE_READ_URL"), "PostgreSQL URL of a hot standby of DATABASE_URL: pages that only read are read there (env DATABASE_READ_URL)")
+	fs.DurationVar(&c.ReadMaxLag, "read-max-lag", envDuration(getenv, "COHORTDESK_READ_MAX_LAG", 2*time.Second), "reads fall back to the primary while the standby lags more than this (env COHORTDESK_READ_MAX_LAG)")
+	fs.StringVar(&c.MetricsAddr, "metrics-addr", getenv("COHORTDESK_METRICS_ADDR"), "serve /metrics (Prometheus text format) on this separate address, e.g. 127.0.0.1:9090 (env COHORTDESK_METRICS_ADDR)")
+	fs.StringVar(&c.MetricsAllow, "metrics-allow", getenv("COHORTDESK_METRICS_ALLOW"), "comma-separated CIDRs that may read /metrics on the main address; empty: nobody (env COHORTDESK_METRICS_ALLOW)")
 }
 
 // proxies parses TrustedProxies.
 func (c *serverConfig) proxies() ([]netip.Prefix, error) {
+	return parseCIDRs("-trusted-proxies", c.TrustedProxies)
+}
+
+// metricsAllowed parses MetricsAllow.
+func (c *serverConfig) metricsAllowed() ([]netip.Prefix, error) {
+	return parseCIDRs("-metrics-allow", c.MetricsAllow)
+}
+
+// parseCIDRs reads comma-separated CIDRs (a bare address is one host).
+func parseCIDRs(flag, list string) ([]netip.Prefix, error) {
 	var out []netip.Prefix
-	for _, p := range strings.Split(c.TrustedProxies, ",") {
+	for _, p := range strings.Split(list, ",") {
 		p = strings.TrimSpace(p)
 		if p == "" {
 			continue
@@ -70,7 +88,7 @@ func (c *serverConfig) proxies() ([]netip.Prefix, error) {
 		}
 		pref, err := netip.ParsePrefix(p)
 		if err != nil {
-			return nil, fmt.Errorf("config: -trusted-proxies: %q is not a CIDR such as 10.0.0.0/8", p)
+			return nil, fmt.Errorf("config: %s: %q is not a CIDR such as 10.0.0.0/8", flag, p)
 		}
 		out = append(out, pref)
 	}
@@ -104,6 +122,15 @@ func (c *serverConfig) validate() error {
 	}
 	if _, err := c.proxies(); err != nil {
 		return err
+	}
+	if _, err := c.metricsAllowed(); err != nil {
+		return err
+	}
+	if c.ReadMaxLag < 100*time.Millisecond || c.ReadMaxLag > time.Hour {
+		return fmt.Errorf("config: -read-max-lag %s: want 100ms to 1h", c.ReadMaxLag)
+	}
+	if c.MetricsAddr != "" && c.MetricsAddr == c.Addr {
+		return fmt.Errorf("config: -metrics-addr is the main address; leave it empty and use -metrics-allow instead")
 	}
 	return c.Outreach.validate()
 }

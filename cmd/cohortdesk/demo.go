@@ -25,6 +25,7 @@ func runDemo(ctx context.Context, e env, args []string) error {
 	seed := fs.Uint64("seed", 20260301, "seed of the fictional cohort")
 	participants := fs.Int("participants", 240, "participants in the fictional cohort")
 	reset := fs.Bool("reset", false, "drop the demo database and load the cohort again")
+	standby := fs.Bool("standby", false, "also run a hot standby of the private cluster (streaming replication, in DATA/standby) and read pages from it")
 	if err := fs.Parse(args); err != nil {
 		return err
 	}
@@ -69,6 +70,19 @@ func runDemo(ctx context.Context, e env, args []string) error {
 	// application role, which cannot rewrite the audit trail.
 	cfg.MigrateURL = cl.URL(demoDatabase)
 	cfg.DatabaseURL = cl.URLAs(demoDatabase, db.AppRole)
+	if *standby {
+		sb, err := pgcluster.StartStandby(ctx, cl, pgcluster.Config{Dir: filepath.Join(cl.Dir(), "standby"), Port: demoStandbyPort}, e.getenv)
+		if err != nil {
+			return fmt.Errorf("demo: standby: %w", err)
+		}
+		defer func() {
+			if err := sb.Stop(); err != nil {
+				log.Warn("standby stop", "err", err)
+			}
+		}()
+		cfg.ReadURL = sb.URLAs(demoDatabase, db.AppRole)
+		log.Info("standby ready", "data", sb.Dir())
+	}
 	pool, err := db.Open(ctx, cfg.DatabaseURL, int32(cfg.MaxConns))
 	if err != nil {
 		return err
@@ -103,6 +117,9 @@ func runDemo(ctx context.Context, e env, args []string) error {
 		fmt.Fprintf(e.stdout, "Data folder: %s. Press Ctrl-C to stop.\n\n", cl.Dir())
 	})
 }
+
+// demoStandbyPort names the demo standby's socket (the primary has 5432).
+const demoStandbyPort = 5433
 
 // ensureDatabase creates the demo database on first use (or after -reset).
 func ensureDatabase(ctx context.Context, cl *pgcluster.Cluster, reset bool) error {

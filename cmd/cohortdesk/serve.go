@@ -6,6 +6,7 @@ import (
 	"flag"
 	"fmt"
 	"log/slog"
+	"net/http"
 	"time"
 
 	"cohortdesk/db"
@@ -60,6 +61,28 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 		return err
 	}
 	log.Info("screening protocol", "active", active.Label())
+	// The kept figures: built once on a database that held a study before
+	// they were kept, then kept current by every change; what bulk loads
+	// leave waiting is computed in the background.
+	if err := store.EnsureFigures(ctx); err != nil {
+		return err
+	}
+	bg, stopBackground := context.WithCancel(ctx)
+	defer stopBackground()
+	go store.KeepFigures(bg, time.Second, log)
+	var standbyPool *pgxpool.Pool
+	if cfg.ReadURL != "" {
+		if standbyPool, err = db.Open(ctx, cfg.ReadURL, int32(cfg.MaxConns)); err != nil {
+			return fmt.Errorf("serve: the read database (DATABASE_READ_URL): %w", err)
+		}
+		defer standbyPool.Close()
+		store.UseStandby(bg, standbyPool, db.StandbyOptions{MaxLag: cfg.ReadMaxLag, Log: log})
+		log.Info("pages that only read go to the standby", "database", redactURL(cfg.ReadURL), "max_lag", cfg.ReadMaxLag.String())
+	}
+	allow, err := cfg.metricsAllowed()
+	if err != nil {
+		return err
+	}
 	// Uploads a killed server was receiving are useless now (their imports
 	// are marked interrupted); an hour spares other instances' live ones.
 	if n := web.RemoveStaleUploads(time.Hour); n > 0 {
@@ -90,10 +113,22 @@ func serveApp(ctx context.Context, cfg serverConfig, pool *pgxpool.Pool, log *sl
 			Lifetime: cfg.SessionLifetime,
 			Secure:   cfg.TLSCert != "" || len(proxies) > 0,
 		},
-		DemoNote: demoNote,
-		Secret:   []byte(cfg.Secret),
-		Outreach: outreachCfg,
+		DemoNote:     demoNote,
+		Secret:       []byte(cfg.Secret),
+		Outreach:     outreachCfg,
+		MetricsAllow: allow,
+		StandbyPool:  standbyPool,
 	})
+	if cfg.MetricsAddr != "" {
+		ms := web.NewHTTPServer(cfg.MetricsAddr, srv.MetricsHandler())
+		go func() {
+			log.Info("metrics listening", "addr", cfg.MetricsAddr)
+			if err := ms.ListenAndServe(); err != nil && !errors.Is(err, http.ErrServerClosed) {
+				log.Error("metrics listener", "err", err)
+			}
+		}()
+		defer ms.Close()
+	}
 	hs := web.NewHTTPServer(cfg.Addr, srv.Handler())
 	if cfg.TLSCert != "" {
 		srv.UseTLS(cfg.TLSCert, cfg.TLSKey)

@@ -68,127 +68,182 @@ type Agreement struct {
 // Conf is the confidence level of every interval of the agreement statistics.
 const Conf = 0.95
 
-// ageNotRecorded is the age band of participants without a recorded age.
-const ageNotRecorded = "age not recorded"
+// GroupKey is the subgroup an episode counts in: its version and its
+// participant's site (code), sex and age band (AgeBand).
+type GroupKey struct {
+	ProtocolID int
+	Site       string
+	Sex        cohort.Sex
+	AgeBand    string
+}
 
-// Agreement computes the agreement statistics for the rows' chosen protocol
-// version (with its subgroups) and for every version.
-func (rs Rows) Agreement() (Agreement, error) {
-	out := Agreement{Protocol: rs.Protocol, Versions: rs.Versions, AsOf: rs.AsOf, Conf: Conf}
+// StageCount is N episodes of one subgroup with the same stage and readings.
+type StageCount struct {
+	Key                      GroupKey
+	Stage                    Stage
+	Settled, Uninterpretable bool
+	N                        int
+}
+
+// TimeCount is N episodes of one subgroup with the same follow-up: an event
+// or a close Days after the flag, or (neither) still open since FlagDay.
+type TimeCount struct {
+	Key           GroupKey
+	Event, Closed bool
+	Days          int
+	FlagDay       cohort.Date // open episodes only
+	N             int
+}
+
+// KappaCount is N recordings of a version's episodes in one cell of the kappa
+// table (Recording.KappaCell).
+type KappaCount struct {
+	ProtocolID   int
+	Auto, Rhythm overread.Category
+	N            int
+}
+
+// Sums are the agreement statistics' inputs as sums over the chosen
+// participants' episodes of every version, the way storage keeps them.
+type Sums struct {
+	Protocol ProtocolRef   // the chosen version (ChooseProtocol)
+	Versions []ProtocolRef // every version
+	AsOf     cohort.Date   // open episodes are censored at this day
+	Sites    []string      // the sites of the chosen participants
+	Stages   []StageCount
+	Times    []TimeCount
+	Kappa    []KappaCount
+}
+
+// Sums adds up the rows' episodes by subgroup, each counted by
+// Episode.Figure, and their recordings by Recording.KappaCell.
+func (rs Rows) Sums() Sums {
+	out := Sums{Protocol: rs.Protocol, Versions: rs.Versions, AsOf: rs.AsOf}
 	people := make(map[int64]Person, len(rs.People))
 	for _, p := range rs.People {
 		people[p.ID] = p
+		if !slices.Contains(out.Sites, p.Site) {
+			out.Sites = append(out.Sites, p.Site)
+		}
 	}
-	for _, v := range rs.Versions {
-		g, _, err := rs.group("protocol", v.Label(), func(e Episode) bool { return e.ProtocolID == v.ID })
+	for _, e := range rs.Episodes {
+		p := people[e.ParticipantID]
+		key := GroupKey{ProtocolID: e.ProtocolID, Site: p.Site, Sex: p.Sex, AgeBand: AgeBand(p.Age)}
+		f := e.Figure(rs.Loc)
+		out.Stages = append(out.Stages, StageCount{Key: key, Stage: f.Stage, Settled: f.Settled, Uninterpretable: f.Uninterpretable, N: 1})
+		tc := TimeCount{Key: key, Event: f.Event, Closed: f.Closed, Days: f.Days, N: 1}
+		if !f.Event && !f.Closed {
+			tc.FlagDay = f.FlagDay
+		}
+		out.Times = append(out.Times, tc)
+		for _, r := range e.Recordings {
+			if a, b, ok := r.KappaCell(); ok {
+				out.Kappa = append(out.Kappa, KappaCount{ProtocolID: e.ProtocolID, Auto: a, Rhythm: b, N: 1})
+			}
+		}
+	}
+	return out
+}
+
+// Agreement computes the agreement statistics for the rows' chosen protocol
+// version (with its subgroups) and for every version: the statistics of
+// rs.Sums().
+func (rs Rows) Agreement() (Agreement, error) { return rs.Sums().Agreement() }
+
+// Agreement computes the agreement statistics for the chosen version (with
+// its subgroups) and for every version.
+func (s Sums) Agreement() (Agreement, error) {
+	out := Agreement{Protocol: s.Protocol, Versions: s.Versions, AsOf: s.AsOf, Conf: Conf}
+	for _, v := range s.Versions {
+		g, _, err := s.group("protocol", v.Label(), func(k GroupKey) bool { return k.ProtocolID == v.ID })
 		if err != nil {
 			return out, err
 		}
 		out.ByVersion = append(out.ByVersion, g)
 	}
-	of := func(e Episode) bool { return e.ProtocolID == rs.Protocol.ID }
-	all, curve, err := rs.group("all", "all", of)
+	of := func(k GroupKey) bool { return k.ProtocolID == s.Protocol.ID }
+	all, curve, err := s.group("all", "all", of)
 	if err != nil {
 		return out, err
 	}
 	out.Groups, out.Curve = append(out.Groups, all), curve
 	type sub struct{ dim, label string }
 	var subs []sub
-	seen := map[sub]bool{}
-	add := func(s sub) {
-		if !seen[s] {
-			seen[s] = true
-			subs = append(subs, s)
-		}
-	}
-	var sites []string
-	for _, p := range rs.People {
-		if !slices.Contains(sites, p.Site) {
-			sites = append(sites, p.Site)
-		}
-	}
+	sites := slices.Clone(s.Sites)
 	slices.Sort(sites)
-	for _, s := range sites {
-		add(sub{"site", s})
+	sites = slices.Compact(sites)
+	for _, st := range sites {
+		subs = append(subs, sub{"site", st})
 	}
-	for _, s := range []cohort.Sex{cohort.Female, cohort.Male, cohort.Unknown} {
-		add(sub{"sex", s.Label()})
+	for _, sx := range []cohort.Sex{cohort.Female, cohort.Male, cohort.Unknown} {
+		subs = append(subs, sub{"sex", sx.Label()})
 	}
 	for _, l := range deid.AgeBandLabels() {
-		add(sub{"age band", l})
+		subs = append(subs, sub{"age band", l})
 	}
-	add(sub{"age band", ageNotRecorded})
-	key := func(p Person, dim string) string {
+	subs = append(subs, sub{"age band", AgeNotRecorded})
+	key := func(k GroupKey, dim string) string {
 		switch dim {
 		case "site":
-			return p.Site
+			return k.Site
 		case "sex":
-			return p.Sex.Label()
+			return k.Sex.Label()
 		}
-		if p.Age == nil {
-			return ageNotRecorded
-		}
-		return deid.AgeBand(*p.Age)
+		return k.AgeBand
 	}
 	for _, sg := range subs {
-		g, _, err := rs.group(sg.dim, sg.label, func(e Episode) bool { return of(e) && key(people[e.ParticipantID], sg.dim) == sg.label })
+		g, _, err := s.group(sg.dim, sg.label, func(k GroupKey) bool { return of(k) && key(k, sg.dim) == sg.label })
 		if err != nil {
 			return out, err
 		}
-		if g.Flagged == 0 && (sg.dim == "sex" && sg.label == cohort.Unknown.Label() || sg.label == ageNotRecorded) {
+		if g.Flagged == 0 && (sg.dim == "sex" && sg.label == cohort.Unknown.Label() || sg.label == AgeNotRecorded) {
 			continue // keep the table short when nobody lacks the value
 		}
 		out.Groups = append(out.Groups, g)
 	}
-	out.Kappa = rs.kappa(of)
+	out.Kappa = s.kappa(s.Protocol.ID)
 	return out, nil
 }
 
-// group computes one row of the statistics over the episodes that match.
-func (rs Rows) group(dim, label string, match func(Episode) bool) (Group, stats.Curve, error) {
+// group computes one row of the statistics over the episodes whose subgroup
+// matches.
+func (s Sums) group(dim, label string, match func(GroupKey) bool) (Group, stats.Curve, error) {
 	g := Group{Dimension: dim, Label: label}
-	var obs []stats.Obs
 	read, uninterp := 0, 0
-	for _, e := range rs.Episodes {
-		if !match(e) {
+	for _, c := range s.Stages {
+		if !match(c.Key) {
 			continue
 		}
-		st := e.stage()
-		g.Flagged++
-		if st >= StageRecording {
-			g.WithRecording++
+		g.Flagged += c.N
+		if c.Stage >= StageRecording {
+			g.WithRecording += c.N
 		}
-		if st >= StageOverRead {
-			g.OverRead++
+		if c.Stage >= StageOverRead {
+			g.OverRead += c.N
 		}
-		if st >= StageConfirmed {
-			g.Confirmed++
+		if c.Stage >= StageConfirmed {
+			g.Confirmed += c.N
 		}
-		anySettled, onlyUninterp := false, true
-		for _, r := range e.Recordings {
-			if r.Conclusion.Final {
-				anySettled = true
-				if r.Conclusion.Rhythm != overread.Uninterpretable {
-					onlyUninterp = false
-				}
-			}
+		if c.Settled {
+			read += c.N
 		}
-		if anySettled {
-			read++
-			if onlyUninterp && st < StageOverRead {
-				uninterp++
-			}
+		if c.Uninterpretable {
+			uninterp += c.N
 		}
-		flagDay := cohort.DateOf(e.Flagged.In(rs.Loc))
-		if d, ok := e.firstDiagnostic(); ok {
-			obs = append(obs, stats.Obs{Time: float64(max(0, d.DaysSince(flagDay))), Event: true})
+	}
+	var tallies []stats.Tally
+	for _, c := range s.Times {
+		if !match(c.Key) || c.N == 0 {
 			continue
 		}
-		end := rs.AsOf
-		if e.State.Terminal() && !e.ClosedAt.IsZero() {
-			end = cohort.DateOf(e.ClosedAt.In(rs.Loc))
+		switch {
+		case c.Event:
+			tallies = append(tallies, stats.Tally{Time: float64(c.Days), Events: c.N})
+		case c.Closed:
+			tallies = append(tallies, stats.Tally{Time: float64(c.Days), Censored: c.N})
+		default:
+			tallies = append(tallies, stats.Tally{Time: float64(OpenDays(c.FlagDay, s.AsOf)), Censored: c.N})
 		}
-		obs = append(obs, stats.Obs{Time: float64(max(0, end.DaysSince(flagDay))), Event: false})
 	}
 	g.PPV = stats.Fraction{X: g.Confirmed, N: g.OverRead}
 	g.Uninterpretable = stats.Fraction{X: uninterp, N: read}
@@ -201,7 +256,7 @@ func (rs Rows) group(dim, label string, match func(Episode) bool) (Group, stats.
 			return g, stats.Curve{}, err
 		}
 	}
-	curve, err := stats.KaplanMeier(obs, Conf)
+	curve, err := stats.KaplanMeierTallies(tallies, Conf)
 	if err != nil {
 		return g, curve, err
 	}
@@ -209,27 +264,24 @@ func (rs Rows) group(dim, label string, match func(Episode) bool) (Group, stats.
 	return g, curve, nil
 }
 
-// kappa tabulates automatic interpretation against settled over-read.
-func (rs Rows) kappa(match func(Episode) bool) Kappa {
+// kappa tabulates automatic interpretation against settled over-read for the
+// recordings of one version's episodes.
+func (s Sums) kappa(protocolID int) Kappa {
 	cats := overread.Categories()
 	k := Kappa{Categories: cats, Table: make([][]int, len(cats))}
 	for i := range k.Table {
 		k.Table[i] = make([]int, len(cats))
 	}
-	index := func(c overread.Category) int { return slices.Index(cats, c) }
-	for _, e := range rs.Episodes {
-		if !match(e) {
+	for _, c := range s.Kappa {
+		if c.ProtocolID != protocolID || c.N == 0 {
 			continue
 		}
-		for _, r := range e.Recordings {
-			a, okA := overread.AutoCategory(r.Auto)
-			b, okB := overread.RhythmCategory(r.Conclusion.Rhythm)
-			if !okA || !okB || !r.Conclusion.Final || r.TooShort {
-				continue
-			}
-			k.Table[index(a)][index(b)]++
-			k.N++
+		a, b := slices.Index(cats, c.Auto), slices.Index(cats, c.Rhythm)
+		if a < 0 || b < 0 {
+			continue
 		}
+		k.Table[a][b] += c.N
+		k.N += c.N
 	}
 	if k.N == 0 {
 		k.Err = "no recording of at least 30 s has both an automatic interpretation and a settled over-read yet"

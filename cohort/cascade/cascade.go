@@ -1,15 +1,17 @@
 package cascade
 
 import (
-	"cmp"
 	"slices"
 )
 
 // Exit is the participants of a box who did not reach the next box, for one
 // reason.
 type Exit struct {
-	Reason       ExitReason
-	Participants []int64 // sorted
+	Reason ExitReason
+	N      int // participants
+	// Participants lists them, sorted, when the cascade was counted from
+	// rows (Rows.Cascade); figures kept in storage carry the count only.
+	Participants []int64
 }
 
 // Box is one box of the screening cascade.
@@ -17,19 +19,25 @@ type Box struct {
 	Key        string // stable name: see the Cascade doc comment
 	Label      string
 	Definition string // how the box is counted, in words, for the page
-	// Participants in the box, sorted. Count is its length.
-	Participants []int64
-	// Cases (flagged episodes) in the box, from "screen_positive" on: every
-	// case of the protocol version whose own stage reached the box, sorted.
-	// A participant with two cases counts once in Participants and twice here.
-	Cases []int64
+	// N is the number of participants in the box.
+	N int
+	// CaseN is the number of cases (flagged episodes) in the box, from
+	// "screen_positive" on: every case of the protocol version whose own
+	// stage reached the box. A participant with two cases counts once in N
+	// and twice here.
+	CaseN int
 	// Exits lists, by reason, the participants in this box but not in the
-	// next; empty for the last box. Count = next box's Count + all exits.
+	// next; empty for the last box. N = next box's N + all exits.
 	Exits []Exit
+	// Participants and Cases list the box's members, sorted, when the
+	// cascade was counted from rows (Rows.Cascade); figures kept in storage
+	// carry the counts only, and storage lists a box's members page by page.
+	Participants []int64
+	Cases        []int64
 }
 
 // Count is the number of participants in the box.
-func (b Box) Count() int { return len(b.Participants) }
+func (b Box) Count() int { return b.N }
 
 // Cascade is the screening cascade in the manner of a CONSORT 2010 flow
 // diagram: eight nested boxes of participants, each with the reasons for
@@ -88,67 +96,43 @@ var boxes = []struct{ key, label, def string }{
 }
 
 // Cascade counts the cascade of the rows' chosen protocol version; f is
-// recorded in the result with its ProtocolID resolved to that version.
+// recorded in the result with its ProtocolID resolved to that version. Each
+// person is placed by Stand and the boxes built by Counts.Cascade, as from
+// the sums storage keeps; the result also lists every box's members.
 func (rs Rows) Cascade(f Filter) Cascade {
-	f.ProtocolID = rs.Protocol.ID
-	out := Cascade{Filter: f, Protocol: rs.Protocol, Versions: rs.Versions}
-	// Each participant's furthest case under the version.
-	type best struct {
-		stage Stage
-		ep    *Episode
-	}
-	furthest := map[int64]best{}
+	byPerson := map[int64][]Episode{}
+	var counts Counts
 	casesAt := make([][]int64, StageReferred+1)
-	for i := range rs.Episodes {
-		e := &rs.Episodes[i]
+	for _, e := range rs.Episodes {
+		byPerson[e.ParticipantID] = append(byPerson[e.ParticipantID], e)
 		if e.ProtocolID != rs.Protocol.ID {
 			continue
 		}
 		st := e.stage()
+		counts.Cases[st]++
 		for k := StageFlagged; k <= st; k++ {
 			casesAt[k] = append(casesAt[k], e.CaseID)
 		}
-		b, ok := furthest[e.ParticipantID]
-		if !ok || st > b.stage || (st == b.stage && !e.Flagged.Before(b.ep.Flagged)) {
-			furthest[e.ParticipantID] = best{st, e}
+	}
+	stood := make([]Standing, len(rs.People))
+	for i, p := range rs.People {
+		stood[i] = Stand(p, byPerson[p.ID], rs.Protocol.ID)
+		counts.Add(stood[i], 1)
+	}
+	out := counts.Cascade(f, rs.Protocol, rs.Versions)
+	bs := out.Boxes
+	for i, p := range rs.People {
+		st := stood[i]
+		for b := 0; b <= st.Box; b++ {
+			bs[b].Participants = append(bs[b].Participants, p.ID)
 		}
-	}
-	bs := make([]Box, len(boxes))
-	for i, b := range boxes {
-		bs[i] = Box{Key: b.key, Label: b.label, Definition: b.def}
-	}
-	exits := make([]map[ExitReason][]int64, len(bs))
-	for i := range exits {
-		exits[i] = map[ExitReason][]int64{}
-	}
-	for _, p := range rs.People {
-		bs[0].Participants = append(bs[0].Participants, p.ID)
-		b, hasCase := furthest[p.ID]
-		if !p.Sufficient && !hasCase {
-			r := ExitNoWearData
-			if p.Withdrawn {
-				r = ExitWithdrawnEarly
+		if st.Exit == "" {
+			continue
+		}
+		for j := range bs[st.Box].Exits {
+			if e := &bs[st.Box].Exits[j]; e.Reason == st.Exit {
+				e.Participants = append(e.Participants, p.ID)
 			}
-			exits[0][r] = append(exits[0][r], p.ID)
-			continue
-		}
-		bs[1].Participants = append(bs[1].Participants, p.ID)
-		if !p.Positive && !hasCase {
-			exits[1][ExitScreenNegative] = append(exits[1][ExitScreenNegative], p.ID)
-			continue
-		}
-		bs[2].Participants = append(bs[2].Participants, p.ID)
-		if !hasCase {
-			exits[2][ExitNoCase] = append(exits[2][ExitNoCase], p.ID)
-			continue
-		}
-		// Box 2 holds stage StageFlagged; box 2+k holds stage k.
-		for k := StageReached; k <= b.stage; k++ {
-			bs[2+int(k)].Participants = append(bs[2+int(k)].Participants, p.ID)
-		}
-		if b.stage < StageReferred {
-			r := b.ep.exit()
-			exits[2+int(b.stage)][r] = append(exits[2+int(b.stage)][r], p.ID)
 		}
 	}
 	for k := StageFlagged; k <= StageReferred; k++ {
@@ -157,14 +141,12 @@ func (rs Rows) Cascade(f Filter) Cascade {
 	for i := range bs {
 		slices.Sort(bs[i].Participants)
 		slices.Sort(bs[i].Cases)
-		for r, ids := range exits[i] {
-			slices.Sort(ids)
-			bs[i].Exits = append(bs[i].Exits, Exit{Reason: r, Participants: ids})
+		for j := range bs[i].Exits {
+			slices.Sort(bs[i].Exits[j].Participants)
 		}
-		slices.SortFunc(bs[i].Exits, func(a, b Exit) int {
-			return cmp.Or(cmp.Compare(len(b.Participants), len(a.Participants)), cmp.Compare(a.Reason, b.Reason))
-		})
 	}
-	out.Boxes = bs
 	return out
 }
+
+// BoxCount is the number of boxes of every cascade.
+func BoxCount() int { return len(boxes) }

@@ -20,9 +20,15 @@
 // same figures by site, sex and age band, and Cohen's kappa between the
 // recorder's automatic interpretation and the settled over-read.
 //
-// Storage fills Rows (participants, their cases, the cases' recordings with
-// the effective conclusion of their readings); Rows.Cascade and
-// Rows.Agreement do the rest. Whether a recording counts as over-read is
+// Every figure is a sum over participants and their episodes, and each
+// participant's part depends on that participant's rows only: Stand places
+// a participant in the cascade, Episode.Figure gives an episode's figures,
+// Recording.KappaCell a recording's cell of the kappa table. Storage keeps
+// these per participant as the rows change and adds them up (Counts.Cascade,
+// Sums.Agreement), so a page costs what it shows, not what the study holds;
+// Rows.Cascade and Rows.Agreement count the same functions over rows read
+// whole (participants, their cases, the cases' recordings with the effective
+// conclusion of their readings), which is how the kept figures are checked. Whether a recording counts as over-read is
 // overread.Conclusion.Diagnostic, the one rule for it. Everything here is
 // pure: no I/O and no clock; the "as of" day comes in with the rows.
 //

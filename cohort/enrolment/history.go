@@ -18,11 +18,14 @@ type Site struct {
 }
 
 // Enrolled is one participant as the history counts them: their site, the
-// day they enrolled and whether they had withdrawn by the history's day.
+// day they enrolled and whether they had withdrawn by the history's day. N
+// makes it stand for N such participants (a kept count by site and day);
+// zero counts as one.
 type Enrolled struct {
 	Site      int
 	On        cohort.Date
 	Withdrawn bool
+	N         int
 }
 
 // SiteHistory is one site's enrolment history as of a day: counts per
@@ -85,18 +88,18 @@ func Tally(today cohort.Date, sites []Site, people []Enrolled) History {
 		if !ok || today.Before(p.On) {
 			continue
 		}
-		se := &h.Sites[i]
-		se.Enrolled++
+		se, n := &h.Sites[i], max(p.N, 1)
+		se.Enrolled += n
 		if p.Withdrawn {
-			se.Withdrawn++
+			se.Withdrawn += n
 		}
 		if w := p.On.Monday().DaysSince(first) / 7; w >= 0 && w < len(se.Weekly) {
-			se.Weekly[w]++
+			se.Weekly[w] += n
 		}
 		// Days 0..6 before today fall in the last period, 7..13 in the one
 		// before, and so on.
 		if back := today.DaysSince(p.On) / 7; back >= 0 && back < TrailingWeeks {
-			se.Trailing[TrailingWeeks-1-back]++
+			se.Trailing[TrailingWeeks-1-back] += n
 		}
 	}
 	return h

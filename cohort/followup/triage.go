@@ -106,10 +106,9 @@ func (k Key) Compare(o Key) int {
 // first group that fits wins, so an overdue new flag is listed as overdue.
 func Urgency(item TriageItem, now time.Time) Key {
 	k := Key{StudyID: item.StudyID, CaseID: item.CaseID}
-	y, m, d := now.Date()
-	tomorrow := time.Date(y, m, d+1, 0, 0, 0, 0, now.Location())
+	overdue, tomorrow := Deadlines(now)
 	switch {
-	case !item.Due.IsZero() && !now.Before(item.Due):
+	case !item.Due.IsZero() && !overdue.Before(item.Due):
 		k.Bucket, k.At = BucketOverdue, item.Due
 	case !item.Due.IsZero() && !item.Due.After(tomorrow):
 		k.Bucket, k.At = BucketDueToday, item.Due
@@ -123,6 +122,15 @@ func Urgency(item TriageItem, now time.Time) Key {
 		k.Bucket, k.At, k.Undated = BucketOther, item.Due, item.Due.IsZero()
 	}
 	return k
+}
+
+// Deadlines are the two moments that split deadlines into Urgency's groups
+// at now: a deadline at or before overdue is overdue, one after it and at or
+// before today is due today (today is the next midnight in now's location).
+// Storage counts the groups from kept sums with these moments.
+func Deadlines(now time.Time) (overdue, today time.Time) {
+	y, m, d := now.Date()
+	return now, time.Date(y, m, d+1, 0, 0, 0, 0, now.Location())
 }
 
 // SortTriage orders items in place by Urgency at now. Keys are computed once

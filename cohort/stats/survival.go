@@ -61,20 +61,64 @@ func KaplanMeier(obs []Obs, conf float64) (Curve, error) {
 	sorted := make([]Obs, len(obs))
 	copy(sorted, obs)
 	sort.Slice(sorted, func(i, j int) bool { return sorted[i].Time < sorted[j].Time })
+	var tallies []Tally
+	for _, o := range sorted {
+		if len(tallies) == 0 || tallies[len(tallies)-1].Time != o.Time {
+			tallies = append(tallies, Tally{Time: o.Time})
+		}
+		if o.Event {
+			tallies[len(tallies)-1].Events++
+		} else {
+			tallies[len(tallies)-1].Censored++
+		}
+	}
+	return KaplanMeierTallies(tallies, conf)
+}
+
+// Tally is the observations at one time: how many ended with the end event
+// and how many were censored there. A summary kept in storage holds its
+// observations this way, so a curve over many subjects is computed from as
+// many tallies as there are distinct times.
+type Tally struct {
+	Time     float64 // non-negative and finite
+	Events   int
+	Censored int
+}
+
+// KaplanMeierTallies is KaplanMeier over tallied observations: the same
+// curve as KaplanMeier of the observations the tallies count. Tallies may
+// come in any order and several may share a time; counts must not be
+// negative.
+func KaplanMeierTallies(tallies []Tally, conf float64) (Curve, error) {
+	if err := checkConf("kaplan-meier", conf); err != nil {
+		return Curve{}, err
+	}
+	sorted := make([]Tally, 0, len(tallies))
+	n := 0
+	for i, t := range tallies {
+		if math.IsNaN(t.Time) || math.IsInf(t.Time, 0) || t.Time < 0 {
+			return Curve{}, fmt.Errorf("stats: kaplan-meier: tally %d: time %v is not a finite non-negative number: %w", i, t.Time, ErrInvalid)
+		}
+		if t.Events < 0 || t.Censored < 0 {
+			return Curve{}, fmt.Errorf("stats: kaplan-meier: tally %d: negative count: %w", i, ErrInvalid)
+		}
+		if t.Events+t.Censored > 0 {
+			sorted = append(sorted, t)
+			n += t.Events + t.Censored
+		}
+	}
+	sort.SliceStable(sorted, func(i, j int) bool { return sorted[i].Time < sorted[j].Time })
 
 	z := normalQuantile(conf)
-	c := Curve{N: len(obs), Conf: conf}
-	atRisk := len(sorted)
+	c := Curve{N: n, Conf: conf}
+	atRisk := n
 	s, greenwood := 1.0, 0.0
 	for i := 0; i < len(sorted); {
 		t := sorted[i].Time
 		step := Step{Time: t, AtRisk: atRisk}
 		for ; i < len(sorted) && sorted[i].Time == t; i++ {
-			if sorted[i].Event {
-				step.Events++
-			} else {
-				step.Censored++
-			}
+			step.Events += sorted[i].Events
+			step.Censored += sorted[i].Censored
 		}
 		if step.Events > 0 {
 			d, r := float64(step.Events), float64(atRisk)

@@ -58,6 +58,7 @@ type Cluster struct {
 	logFile *os.File
 	done    chan error
 	cred    *syscall.Credential
+	stopped bool
 }
 
 // ErrNoBinaries means no PostgreSQL server programs were found.
@@ -460,10 +461,12 @@ func (c *Cluster) Dir() string { return c.cfg.Dir }
 
 // Stop asks the server for a fast shutdown (SIGINT: roll back open transactions,
 // close connections, checkpoint) and waits for it; after 30 s it sends SIGQUIT.
+// Stopping a stopped server does nothing.
 func (c *Cluster) Stop() error {
-	if c == nil || c.cmd == nil || c.cmd.Process == nil {
+	if c == nil || c.cmd == nil || c.cmd.Process == nil || c.stopped {
 		return nil
 	}
+	c.stopped = true
 	defer func() {
 		if c.logFile != nil {
 			c.logFile.Close()
@@ -481,4 +484,48 @@ func (c *Cluster) Stop() error {
 		<-c.done
 		return errors.New("cluster: server did not stop within 30 s; sent SIGQUIT")
 	}
+}
+
+// StartStandby starts a hot standby of primary in cfg.Dir: on first use it
+// copies the primary with pg_basebackup (streaming the write-ahead log it
+// needs, and writing the settings that make it follow the primary by
+// streaming replication), then starts it like Start. It serves reads only and
+// replays the primary's changes as they stream in. cfg.Port must differ from
+// the primary's. Stop and StartStandby again resume it where it was.
+func StartStandby(ctx context.Context, primary *Cluster, cfg Config, getenv func(string) string) (*Cluster, error) {
+	if cfg.Port == 0 || cfg.Port == primary.cfg.Port {
+		return nil, fmt.Errorf("cluster: a standby needs its own port (the primary uses %d)", primary.cfg.Port)
+	}
+	if cfg.Superuser == "" {
+		cfg.Superuser = primary.cfg.Superuser
+	}
+	dir, err := filepath.Abs(cfg.Dir)
+	if err != nil {
+		return nil, fmt.Errorf("cluster: data folder %q: %w", cfg.Dir, err)
+	}
+	pgdata := filepath.Join(dir, "pgdata")
+	if _, err := os.Stat(filepath.Join(pgdata, "PG_VERSION")); errors.Is(err, fs.ErrNotExist) {
+		if err := mkdirTraversable(filepath.Dir(dir)); err != nil {
+			return nil, fmt.Errorf("cluster: create standby folder: %w", err)
+		}
+		if err := os.Mkdir(dir, 0o700); err != nil && !errors.Is(err, fs.ErrExist) {
+			return nil, fmt.Errorf("cluster: create standby folder: %w", err)
+		}
+		if err := primary.chown(dir); err != nil {
+			return nil, err
+		}
+		// pg_basebackup creates pgdata itself (mode 0700, owned by the
+		// server user it runs as).
+		cmd := primary.command(ctx, "pg_basebackup", "-D", pgdata, "-h", primary.sockDir, "-p", strconv.Itoa(primary.cfg.Port),
+			"-U", primary.cfg.Superuser, "-X", "stream", "-c", "fast", "-R", "--no-sync")
+		if out, err := cmd.CombinedOutput(); err != nil {
+			return nil, fmt.Errorf("cluster: pg_basebackup of the primary into %s failed: %w\n%s", pgdata, err, out)
+		}
+	} else if err != nil {
+		return nil, fmt.Errorf("cluster: %w", err)
+	}
+	if _, err := os.Stat(filepath.Join(pgdata, "standby.signal")); err != nil {
+		return nil, fmt.Errorf("cluster: %s holds a cluster that is not a standby (no standby.signal)", pgdata)
+	}
+	return Start(ctx, cfg, getenv)
 }

@@ -9,6 +9,7 @@ import (
 	"strings"
 	"syscall"
 	"testing"
+	"time"
 
 	"github.com/jackc/pgx/v5"
 )
@@ -143,4 +144,77 @@ func TestMissingBinariesSayWhatToInstall(t *testing.T) {
 	if !strings.Contains(ErrNoBinaries.Error(), "apt-get install") {
 		t.Fatalf("message does not say what to install: %v", ErrNoBinaries)
 	}
+}
+
+// TestStandbyFollowsThePrimary starts a primary and a standby copied from it,
+// and shows a row written on the primary reaching the standby by streaming
+// replication, the standby refusing writes, and a stopped standby resuming
+// (and catching up) when started again.
+func TestStandbyFollowsThePrimary(t *testing.T) {
+	ctx := context.Background()
+	base := tempDir(t)
+	p, err := Start(ctx, Config{Dir: filepath.Join(base, "primary"), Port: 5601, Fast: true}, os.Getenv)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Stop()
+	exec := func(c *Cluster, sql string) error {
+		conn, err := pgx.Connect(ctx, c.URL("postgres"))
+		if err != nil {
+			return err
+		}
+		defer conn.Close(ctx)
+		_, err = conn.Exec(ctx, sql)
+		return err
+	}
+	if err := exec(p, `CREATE TABLE t (n int)`); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := StartStandby(ctx, p, Config{Dir: filepath.Join(base, "standby"), Port: 5601}, os.Getenv); err == nil {
+		t.Fatal("a standby on the primary's port was accepted")
+	}
+	s, err := StartStandby(ctx, p, Config{Dir: filepath.Join(base, "standby"), Port: 5602, Fast: true}, os.Getenv)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Stop()
+	count := func(want int) {
+		t.Helper()
+		conn, err := pgx.Connect(ctx, s.URL("postgres"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer conn.Close(ctx)
+		var n int
+		var recovering bool
+		for range 500 {
+			if err := conn.QueryRow(ctx, `SELECT pg_is_in_recovery(), (SELECT count(*) FROM t)`).Scan(&recovering, &n); err != nil {
+				t.Fatal(err)
+			}
+			if n == want {
+				break
+			}
+			time.Sleep(10 * time.Millisecond)
+		}
+		if !recovering || n != want {
+			t.Fatalf("standby: in recovery %v, %d rows, want %d", recovering, n, want)
+		}
+	}
+	if err := exec(p, `INSERT INTO t VALUES (1)`); err != nil {
+		t.Fatal(err)
+	}
+	count(1)
+	if err := exec(s, `INSERT INTO t VALUES (2)`); err == nil || !strings.Contains(err.Error(), "read-only") {
+		t.Errorf("a write on the standby: %v, want a read-only refusal", err)
+	}
+	if err := s.Stop(); err != nil {
+		t.Fatal(err)
+	}
+	if err := exec(p, `INSERT INTO t VALUES (3)`); err != nil {
+		t.Fatal(err)
+	}
+	if s, err = StartStandby(ctx, p, Config{Dir: filepath.Join(base, "standby"), Port: 5602, Fast: true}, os.Getenv); err != nil {
+		t.Fatal(err)
+	}
+	count(2)
 }

@@ -18,6 +18,7 @@ import (
 	"io"
 	"os"
 	"runtime"
+	"runtime/pprof"
 	"time"
 
 	"cohortdesk/cohort"
@@ -36,7 +37,7 @@ type Options struct {
 
 	Import, Screen, Pages bool // the parts to measure; the cohort is built whatever they are
 
-	Clients  int           // concurrent signed-in clients of the page load (default 50)
+	Clients  []int         // concurrent signed-in clients of each page load, one load per entry (default 1 and 50)
 	Only     []string      // names of the pages to load (PageNames); empty: all
 	Duration time.Duration // of the page load (default 30 s)
 	MaxConns int           // database connections of the server under load (default 20, as serve)
@@ -45,7 +46,8 @@ type Options struct {
 	Dir  string    // folder for the generated readings file (default the system's temporary folder)
 	Now  time.Time // the study's now (default the real time)
 
-	Progress io.Writer // a line per step while running; nil: silent
+	Progress   io.Writer // a line per step while running; nil: silent
+	CPUProfile string    // write a CPU profile of the page loads to this file; "": none
 }
 
 func (o *Options) defaults() {
@@ -61,8 +63,8 @@ func (o *Options) defaults() {
 	if o.WearParticipants > o.Participants {
 		o.WearParticipants = o.Participants
 	}
-	if o.Clients <= 0 {
-		o.Clients = 50
+	if len(o.Clients) == 0 {
+		o.Clients = []int{1, 50}
 	}
 	if o.Duration <= 0 {
 		o.Duration = 30 * time.Second
@@ -83,14 +85,17 @@ func (o *Options) defaults() {
 
 // Report is everything a run measured; it is written as JSON.
 type Report struct {
-	StartedAt time.Time     `json:"started_at"`
-	Machine   Machine       `json:"machine"`
-	Scale     Scale         `json:"scale"`
-	Build     float64       `json:"build_seconds"` // the synthetic cohort, without wear data
-	Import    *ImportResult `json:"import,omitempty"`
-	Screen    *ScreenResult `json:"screen,omitempty"`
-	Pages     *PagesResult  `json:"pages,omitempty"`
-	Seconds   float64       `json:"seconds"` // the whole run
+	StartedAt time.Time      `json:"started_at"`
+	Machine   Machine        `json:"machine"`
+	Scale     Scale          `json:"scale"`
+	Build     float64        `json:"build_seconds"` // the synthetic cohort, without wear data
+	Import    *ImportResult  `json:"import,omitempty"`
+	Screen    *ScreenResult  `json:"screen,omitempty"`
+	Pages     []*PagesResult `json:"pages,omitempty"` // one per number of clients
+	// Figures is how long computing every participant's kept figures from
+	// scratch took after the study was built (db.Store.RebuildFigures).
+	Figures float64 `json:"figures_seconds"`
+	Seconds float64 `json:"seconds"` // the whole run
 }
 
 // Machine describes where the run happened.
@@ -197,9 +202,37 @@ func Run(ctx context.Context, url string, o Options) (Report, error) {
 	if _, err := pool.Exec(ctx, `DROP TABLE IF EXISTS bench_plain_readings`); err != nil {
 		return rep, err
 	}
+	// The study was built by SQL with the triggers that mark changed
+	// participants off (buildCohort); every participant's kept figures are
+	// computed here from scratch, as a deployment does once at start-up.
+	t1 := time.Now()
+	if err := store.RebuildFigures(ctx); err != nil {
+		return rep, err
+	}
+	rep.Figures = time.Since(t1).Seconds()
+	say("kept figures of %d participants computed in %.1f s", c.Participants, rep.Figures)
+	if _, err := pool.Exec(ctx, `VACUUM ANALYZE figure_standings, figure_episodes, figure_recordings, figure_people, figure_box_counts,
+		figure_week_counts, figure_stage_counts, figure_time_counts, figure_kappa_counts, figure_unread_counts, figures_dirty`); err != nil {
+		return rep, err
+	}
+	if o.Pages && o.CPUProfile != "" {
+		f, err := os.Create(o.CPUProfile)
+		if err != nil {
+			return rep, fmt.Errorf("bench: %w", err)
+		}
+		defer f.Close()
+		if err := pprof.StartCPUProfile(f); err != nil {
+			return rep, fmt.Errorf("bench: %w", err)
+		}
+		defer pprof.StopCPUProfile()
+	}
 	if o.Pages {
-		if rep.Pages, err = measurePages(ctx, store, c, o, say); err != nil {
-			return rep, err
+		for _, n := range o.Clients {
+			pr, err := measurePages(ctx, store, c, o, n, say)
+			if err != nil {
+				return rep, err
+			}
+			rep.Pages = append(rep.Pages, pr)
 		}
 	}
 	rep.Seconds = time.Since(started).Seconds()

@@ -28,7 +28,7 @@ func TestRunSmall(t *testing.T) {
 	var progress bytes.Buffer
 	url := dbtest.OwnerURL(t) // the bench builds its own comparison tables
 	rep, err := Run(context.Background(), url, Options{Participants: 400, Weeks: 3, WearParticipants: 6,
-		Import: true, Screen: true, Pages: true, Clients: 4, Duration: time.Second, Dir: t.TempDir(), Progress: &progress})
+		Import: true, Screen: true, Pages: true, Clients: []int{1, 4}, Duration: time.Second, Dir: t.TempDir(), Progress: &progress})
 	if err != nil {
 		t.Fatalf("%v\n%s", err, progress.String())
 	}
@@ -44,20 +44,28 @@ func TestRunSmall(t *testing.T) {
 		sc.Positive+sc.Negative+sc.Insufficient != 18 {
 		t.Errorf("screen: %+v", sc)
 	}
-	pg := rep.Pages
-	if pg == nil || pg.ServerErrors != 0 || pg.OtherStatus != 0 || pg.TransportErrors != 0 || len(pg.Pages) != 7 {
-		t.Fatalf("pages: %+v", pg)
+	if len(rep.Pages) != 2 || rep.Pages[0].Clients != 1 || rep.Pages[1].Clients != 4 {
+		t.Fatalf("page loads: %+v", rep.Pages)
 	}
-	for _, p := range pg.Pages {
-		if p.Requests == 0 || p.Server.N != int(p.Requests) || p.SQLCalls != p.Requests || p.Server.P99 <= 0 || p.SQL.P50 <= 0 {
-			t.Errorf("page %s: %+v", p.Name, p)
+	if rep.Figures <= 0 {
+		t.Errorf("kept figures built in %v s", rep.Figures)
+	}
+	for _, pg := range rep.Pages {
+		if pg.ServerErrors != 0 || pg.OtherStatus != 0 || pg.TransportErrors != 0 || len(pg.Pages) != len(PageNames) || pg.PerCPU <= 0 {
+			t.Fatalf("pages: %+v", pg)
+		}
+		for _, p := range pg.Pages {
+			// Every page reads the session and the signed-in user at least.
+			if p.Requests == 0 || p.Server.N != int(p.Requests) || p.DB.N != int(p.Requests) || p.Calls < 2 || p.Server.P99 <= 0 || p.DB.P50 <= 0 {
+				t.Errorf("page %s: %+v", p.Name, p)
+			}
 		}
 	}
 	var table bytes.Buffer
 	if err := rep.WriteTable(&table); err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"cohortdesk importer", "pgx COPY", "SQL lag()", "/participants/{id}", "/cases/{id}"} {
+	for _, want := range []string{"cohortdesk importer", "pgx COPY", "SQL lag()", "/participants/{id}", "/cases/{id}", "/confirmations/statistics", "store calls", "per CPU"} {
 		if !strings.Contains(table.String(), want) {
 			t.Errorf("the table lacks %q:\n%s", want, table.String())
 		}
@@ -79,11 +87,11 @@ func TestRunSmall(t *testing.T) {
 func TestPagesUnderLoad(t *testing.T) {
 	var progress bytes.Buffer
 	rep, err := Run(context.Background(), dbtest.OwnerURL(t), Options{Participants: 2000, Weeks: 4, WearParticipants: 10,
-		Pages: true, Clients: 200, Duration: *loadDuration, Dir: t.TempDir(), Progress: &progress})
+		Pages: true, Clients: []int{200}, Duration: *loadDuration, Dir: t.TempDir(), Progress: &progress})
 	if err != nil {
 		t.Fatalf("%v\n%s", err, progress.String())
 	}
-	pg := rep.Pages
+	pg := rep.Pages[0]
 	if pg.Requests == 0 || pg.ServerErrors != 0 || pg.OtherStatus != 0 || pg.TransportErrors != 0 {
 		t.Errorf("%d requests: %d server errors, %d other answers, %d without an answer", pg.Requests, pg.ServerErrors, pg.OtherStatus, pg.TransportErrors)
 	}

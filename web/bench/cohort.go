@@ -149,6 +149,11 @@ func buildCohort(ctx context.Context, store *db.Store, o Options, today cohort.D
 			       (id % 900 + 1) || ' Synthetic Lane', 'Rivermouth', '0' || lpad((id % 9999)::text, 4, '0'), 'SYN' || lpad(id::text, 8, '0')
 			FROM participants`, nil},
 		{"protocol", `UPDATE protocols SET used = true WHERE id = $1`, []any{c.ProtocolID}},
+		// Millions of results by one statement: the trigger that marks
+		// their participants for the kept figures would hold them all;
+		// the run computes every participant's figures afterwards instead
+		// (db.Store.RebuildFigures).
+		{"figures marks off", `ALTER TABLE screen_results DISABLE TRIGGER screen_results_mark_ins`, nil},
 		// Results of every week so far for everyone without wear data (the
 		// screener makes those of the others); about 2% of weeks positive.
 		{"screening results", `INSERT INTO screen_results (participant_id, protocol_id, week, verdict, reason, result, input_digest, wear_hours)
@@ -182,6 +187,7 @@ func buildCohort(ctx context.Context, store *db.Store, o Options, today cohort.D
 			    WHEN 5 THEN 'reached' WHEN 6 THEN 'recorder_sent' WHEN 7 THEN 'recording_received'
 			    WHEN 8 THEN 'referred' WHEN 9 THEN 'referred' WHEN 10 THEN 'closed_unreachable' WHEN 11 THEN 'closed_declined'
 			    ELSE 'closed_not_confirmed' END AS st) x) s`, []any{c.ProtocolID, owners}},
+		{"figures marks on", `ALTER TABLE screen_results ENABLE TRIGGER screen_results_mark_ins`, nil},
 		{"case weeks", `INSERT INTO case_weeks (participant_id, protocol_id, week, case_id)
 			SELECT sr.participant_id, sr.protocol_id, sr.week, c.id FROM screen_results sr JOIN cases c ON c.participant_id = sr.participant_id
 			WHERE sr.verdict = 'positive' AND sr.protocol_id = $1`, []any{c.ProtocolID}},

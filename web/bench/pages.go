@@ -10,34 +10,31 @@ import (
 	"net/http"
 	"net/http/cookiejar"
 	"net/url"
+	"runtime"
 	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
 
-	"cohortdesk/cohort"
-	"cohortdesk/cohort/cascade"
 	"cohortdesk/cohort/credential"
-	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 	"cohortdesk/web"
-
-	"golang.org/x/sync/errgroup"
 )
 
-// PagesResult is the page load: server time per page under concurrent
-// signed-in clients, each page beside the bare time of its store calls.
+// PagesResult is one page load: server time per page under a number of
+// concurrent signed-in clients, with the database round trips each page
+// made and the time spent waiting for them.
 type PagesResult struct {
 	Clients           int          `json:"clients"`
 	Seconds           float64      `json:"seconds"`
 	MaxConns          int          `json:"db_max_conns"`
 	Requests          int64        `json:"requests"`
 	RequestsPerSecond float64      `json:"requests_per_second"`
-	ServerErrors      int64        `json:"server_errors"`    // answers 500-599
-	OtherStatus       int64        `json:"other_status"`     // answers other than 200 and 5xx (redirects to sign-in, 4xx)
-	TransportErrors   int64        `json:"transport_errors"` // no answer (connection refused or reset, timeout)
+	PerCPU            float64      `json:"requests_per_second_per_cpu"` // RequestsPerSecond over the machine's CPUs
+	ServerErrors      int64        `json:"server_errors"`               // answers 500-599
+	OtherStatus       int64        `json:"other_status"`                // answers other than 200 and 5xx (redirects to sign-in, 4xx)
+	TransportErrors   int64        `json:"transport_errors"`            // no answer (connection refused or reset, timeout)
 	Pages             []PageResult `json:"pages"`
-	SQLSeconds        float64      `json:"sql_seconds"` // the baseline pass
 }
 
 // PageResult is one page's figures, times in milliseconds.
@@ -48,206 +45,43 @@ type PageResult struct {
 	ServerErrors int64   `json:"server_errors"`
 	Server       Latency `json:"server_ms"` // handler entry to return, in-process, whole middleware stack
 	Client       Latency `json:"client_ms"` // as the load generator saw it over loopback
-	SQL          Latency `json:"sql_ms"`    // the page's store calls, made directly the same number of times
-	SQLCalls     int64   `json:"sql_calls"`
-	// RatioP50 is the page's median server time over the median time of its
-	// store calls: what HTTP, sessions, access checks and rendering add.
-	RatioP50 float64 `json:"ratio_p50"`
+	// Calls is the mean number of database round trips a request of the
+	// page made (a query, a batch of queries sent together, a COPY: one
+	// each; the session's load and save included); DB the time a request
+	// spent waiting for them, summed.
+	Calls float64 `json:"store_calls"`
+	DB    Latency `json:"db_ms"`
 }
 
 // pageHeader carries the page's name from the load generator to the timing
 // middleware.
 const pageHeader = "X-Bench-Page"
 
-// page is one of the main pages: how to address it and which store calls its
-// handler makes, in the handler's order.
+// page is one of the main pages and how to address it.
 type page struct {
 	name string
 	path string // %d is replaced by an id from ids
 	ids  []int64
-	sql  func(ctx context.Context, id int64) error
 }
 
-// mainPages lists the main pages a coordinator works with and, for each, the
-// store methods its handler calls (web/*.go): the access check (UserByID),
-// the layout (StudyName), then the page's own reads and audit writes. Kept in
-// step with the handlers by hand; the session store's load and save, which
-// every request also makes, are in the server time but not here.
-func mainPages(store *db.Store, c synthCohort, u db.User) []page {
-	actor := u.Actor("127.0.0.1", "bench")
-	common := func(ctx context.Context) error {
-		if _, err := store.UserByID(ctx, u.ID); err != nil {
-			return err
-		}
-		_, err := store.StudyName(ctx)
-		return err
-	}
+// mainPages lists the main pages a coordinator works with.
+func mainPages(c synthCohort) []page {
 	participantIDs := append(append([]int64(nil), c.Flagged...), wearIDs(c)...)
 	return []page{
-		{name: "overview", path: "/", sql: func(ctx context.Context, _ int64) error {
-			if err := common(ctx); err != nil {
-				return err
-			}
-			if _, err := store.Counts(ctx); err != nil {
-				return err
-			}
-			// A coordinator's start page also counts the day's work and
-			// shows the latest import.
-			if _, err := store.Triage(ctx, 1, u.ID); err != nil {
-				return err
-			}
-			_, err := store.Imports(ctx, 1)
-			return err
-		}},
-		{name: "triage", path: "/triage", sql: func(ctx context.Context, _ int64) error {
-			if err := common(ctx); err != nil {
-				return err
-			}
-			t, err := store.Triage(ctx, 25, u.ID)
-			if err != nil {
-				return err
-			}
-			if _, err := store.CaseWorkers(ctx); err != nil {
-				return err
-			}
-			// The rows' one-step messages and the morning-summary choice.
-			ids := make([]int64, len(t.Rows))
-			for i, r := range t.Rows {
-				ids[i] = r.ID
-			}
-			if _, err := store.Reaches(ctx, ids); err != nil {
-				return err
-			}
-			if _, err := store.StudySettings(ctx); err != nil {
-				return err
-			}
-			_, err = store.MorningSummaryWanted(ctx, actor.UserID)
-			return err
-		}},
-		{name: "participants", path: "/participants", sql: func(ctx context.Context, _ int64) error {
-			if err := common(ctx); err != nil {
-				return err
-			}
-			pg, err := store.Participants(ctx, db.ParticipantFilter{WithNames: true})
-			if err != nil {
-				return err
-			}
-			if _, err := store.Sites(ctx); err != nil {
-				return err
-			}
-			if _, err := store.StudySettings(ctx); err != nil {
-				return err
-			}
-			ids := make([]int64, len(pg.Rows))
-			for i, p := range pg.Rows {
-				ids[i] = p.ID
-			}
-			return store.Audit(ctx, actor, "participant.list_phi", "participant_list", "", nil, map[string]any{"participant_ids": ids})
-		}},
-		{name: "cases", path: "/cases", sql: func(ctx context.Context, _ int64) error {
-			if err := common(ctx); err != nil {
-				return err
-			}
-			if _, err := store.Cases(ctx, db.CaseFilter{}); err != nil {
-				return err
-			}
-			if _, err := store.StudySettings(ctx); err != nil {
-				return err
-			}
-			if _, err := store.Sites(ctx); err != nil {
-				return err
-			}
-			_, err := store.CaseWorkers(ctx)
-			return err
-		}},
-		{name: "progress", path: "/progress", sql: func(ctx context.Context, _ int64) error {
-			if err := common(ctx); err != nil {
-				return err
-			}
-			// The page makes its four reads side by side (web/progress.go).
-			g, ctx := errgroup.WithContext(ctx)
-			g.Go(func() error { _, err := store.Enrolment(ctx, cohort.Date{}); return err })
-			g.Go(func() error { _, err := store.DataSufficiency(ctx); return err })
-			g.Go(func() error { _, err := store.SilentParticipants(ctx, 14); return err })
-			g.Go(func() error {
-				// The cascade drawn on the page (active protocol, all sites).
-				if _, err := store.Sites(ctx); err != nil {
-					return err
-				}
-				_, err := store.Cascade(ctx, cascade.Filter{})
-				return err
-			})
-			return g.Wait()
-		}},
-		{name: "participant", path: "/participants/%d", ids: participantIDs, sql: func(ctx context.Context, id int64) error {
-			if err := common(ctx); err != nil {
-				return err
-			}
-			p, err := store.Participant(ctx, id)
-			if err != nil {
-				return err
-			}
-			if _, err := store.StudySettings(ctx); err != nil {
-				return err
-			}
-			if _, err := store.Identity(ctx, actor, id, "participant page"); err != nil {
-				return err
-			}
-			lines, err := store.Timeline(ctx, p)
-			if err != nil {
-				return err
-			}
-			if _, err := store.ExternalVerdicts(ctx, id); err != nil {
-				return err
-			}
-			pv, err := store.ActiveProtocol(ctx)
-			if err != nil {
-				return err
-			}
-			if _, err := store.ScreenResults(ctx, id, pv.ID); err != nil {
-				return err
-			}
-			if wk, ok := chartWeek(lines); ok {
-				if _, err := store.WearWeek(ctx, p, wk); err != nil {
-					return err
-				}
-			}
-			_, err = store.Notes(ctx, id)
-			return err
-		}},
-		{name: "case", path: "/cases/%d", ids: c.WorkingCases, sql: func(ctx context.Context, id int64) error {
-			if err := common(ctx); err != nil {
-				return err
-			}
-			cs, err := store.Case(ctx, id)
-			if err != nil {
-				return err
-			}
-			st, err := store.StudySettings(ctx)
-			if err != nil {
-				return err
-			}
-			if _, err := store.Identity(ctx, actor, cs.ParticipantID, "case page"); err != nil {
-				return err
-			}
-			if _, err := store.CaseWorkers(ctx); err != nil {
-				return err
-			}
-			if _, err := store.FlaggedWeeks(ctx, cs.ParticipantID); err != nil {
-				return err
-			}
-			if _, err := store.Reaches(ctx, []int64{cs.ID}); err != nil { // the messages panel
-				return err
-			}
-			_, err = store.CaseTimeline(ctx, cs, st.Location())
-			return err
-		}},
+		{name: "overview", path: "/"},
+		{name: "triage", path: "/triage"},
+		{name: "participants", path: "/participants"},
+		{name: "cases", path: "/cases"},
+		{name: "progress", path: "/progress"},
+		{name: "statistics", path: "/confirmations/statistics"},
+		{name: "participant", path: "/participants/%d", ids: participantIDs},
+		{name: "case", path: "/cases/%d", ids: c.WorkingCases},
 	}
 }
 
 // PageNames are the names of the main pages, in the order the load visits
 // them.
-var PageNames = []string{"overview", "triage", "participants", "cases", "progress", "participant", "case"}
+var PageNames = []string{"overview", "triage", "participants", "cases", "progress", "statistics", "participant", "case"}
 
 // pickPages keeps the pages named in only (all when empty).
 func pickPages(all []page, only []string) ([]page, error) {
@@ -277,40 +111,25 @@ func wearIDs(c synthCohort) []int64 {
 	return out
 }
 
-// chartWeek is the week whose heart rate the participant page draws (as
-// web's defaultChartWeek picks it): the latest positive week, else the latest
-// with readings; ok is false when that week has no heart rate to read.
-func chartWeek(lines []db.WeekLine) (int, bool) {
-	best := -1
-	for _, l := range lines {
-		if l.Verdict == screen.Positive {
-			best = l.Week
-		}
-	}
-	if best < 0 {
-		for _, l := range lines {
-			if l.Readings > 0 {
-				best = l.Week
-			}
-		}
-	}
-	for _, l := range lines {
-		if l.Week == best {
-			return best, l.HRCount > 0
-		}
-	}
-	return 0, false
-}
-
 // recorder collects samples per page from many goroutines.
 type recorder struct {
 	mu      sync.Mutex
 	samples map[string][]time.Duration
 	status  map[string]map[int]int64
+	calls   map[string]int64
+	db      map[string][]time.Duration
 }
 
 func newRecorder() *recorder {
-	return &recorder{samples: map[string][]time.Duration{}, status: map[string]map[int]int64{}}
+	return &recorder{samples: map[string][]time.Duration{}, status: map[string]map[int]int64{},
+		calls: map[string]int64{}, db: map[string][]time.Duration{}}
+}
+
+func (r *recorder) addCalls(name string, c *db.Calls) {
+	r.mu.Lock()
+	r.calls[name] += c.Count()
+	r.db[name] = append(r.db[name], c.Time())
+	r.mu.Unlock()
 }
 
 func (r *recorder) add(name string, d time.Duration, status int) {
@@ -354,17 +173,18 @@ func timed(h http.Handler, rec *recorder) http.Handler {
 			return
 		}
 		sw := &statusWriter{ResponseWriter: w}
+		var calls db.Calls
 		start := time.Now()
-		h.ServeHTTP(sw, r)
+		h.ServeHTTP(sw, r.WithContext(db.WithCalls(r.Context(), &calls)))
 		rec.add(name, time.Since(start), sw.status)
+		rec.addCalls(name, &calls)
 	})
 }
 
-// measurePages serves the app on a loopback port, signs in o.Clients clients
+// measurePages serves the app on a loopback port, signs in clients clients
 // and lets each request the main pages in turn (ids drawn at random) until
-// o.Duration has passed; then it makes each page's store calls directly, as
-// many times as the page was served, from as many goroutines.
-func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options, say func(string, ...any)) (*PagesResult, error) {
+// o.Duration has passed.
+func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options, clients int, say func(string, ...any)) (*PagesResult, error) {
 	srv := web.New(web.Config{Store: store, Pool: store.Pool(), Logger: slog.New(slog.DiscardHandler), Password: credential.TestParams})
 	server := newRecorder()
 	ln, err := net.Listen("tcp", "127.0.0.1:0")
@@ -376,7 +196,7 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 	defer hs.Close()
 	base := "http://" + ln.Addr().String()
 
-	pages, err := pickPages(mainPages(store, c, c.Coordinators[0]), o.Only)
+	pages, err := pickPages(mainPages(c), o.Only)
 	if err != nil {
 		return nil, err
 	}
@@ -385,15 +205,15 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 			return nil, fmt.Errorf("bench: no ids for the %s page (the cohort has no cases or participants to show)", p.name)
 		}
 	}
-	tr := &http.Transport{MaxIdleConns: o.Clients * 2, MaxIdleConnsPerHost: o.Clients * 2, IdleConnTimeout: time.Minute, DisableCompression: true}
+	tr := &http.Transport{MaxIdleConns: clients * 2, MaxIdleConnsPerHost: clients * 2, IdleConnTimeout: time.Minute, DisableCompression: true}
 	defer tr.CloseIdleConnections()
-	say("signing in %d clients ...", o.Clients)
-	clients := make([]*http.Client, o.Clients)
-	signErr := make(chan error, o.Clients)
+	say("signing in %d clients ...", clients)
+	cls := make([]*http.Client, clients)
+	signErr := make(chan error, clients)
 	var wg sync.WaitGroup
-	for i := range clients {
+	for i := range cls {
 		jar, _ := cookiejar.New(nil)
-		clients[i] = &http.Client{Transport: tr, Jar: jar, Timeout: time.Minute,
+		cls[i] = &http.Client{Transport: tr, Jar: jar, Timeout: time.Minute,
 			CheckRedirect: func(*http.Request, []*http.Request) error { return http.ErrUseLastResponse }}
 		// One after another: the server bounds the password hashes it
 		// computes at once and paces many sign-ins to one account, and the
@@ -401,7 +221,7 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 		wg.Wait()
 		wg.Go(func() {
 			u := c.Coordinators[i%len(c.Coordinators)]
-			res, err := clients[i].PostForm(base+"/signin", url.Values{"email": {u.Email}, "password": {Password}})
+			res, err := cls[i].PostForm(base+"/signin", url.Values{"email": {u.Email}, "password": {Password}})
 			if err != nil {
 				signErr <- err
 				return
@@ -418,13 +238,13 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 		return nil, err
 	}
 
-	say("%d clients request the main pages for %s ...", o.Clients, o.Duration)
+	say("%d clients request the main pages for %s ...", clients, o.Duration)
 	client := newRecorder()
 	var transportErrs atomic.Int64
 	lctx, cancel := context.WithTimeout(ctx, o.Duration)
 	defer cancel()
 	start := time.Now()
-	for i, cl := range clients {
+	for i, cl := range cls {
 		wg.Go(func() {
 			r := rand.New(rand.NewPCG(o.Seed, uint64(i)))
 			for k := i; lctx.Err() == nil; k++ {
@@ -450,9 +270,8 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 	wg.Wait()
 	elapsed := time.Since(start)
 
-	out := &PagesResult{Clients: o.Clients, Seconds: elapsed.Seconds(), MaxConns: o.MaxConns, TransportErrors: transportErrs.Load()}
-	counts := make([]int64, len(pages))
-	for i, p := range pages {
+	out := &PagesResult{Clients: clients, Seconds: elapsed.Seconds(), MaxConns: o.MaxConns, TransportErrors: transportErrs.Load()}
+	for _, p := range pages {
 		pr := PageResult{Name: p.name, Path: strings.ReplaceAll(p.path, "%d", "{id}")}
 		for status, n := range client.status[p.name] {
 			pr.Requests += n
@@ -463,70 +282,19 @@ func measurePages(ctx context.Context, store *db.Store, c synthCohort, o Options
 				out.OtherStatus += n
 			}
 		}
-		counts[i] = client.status[p.name][http.StatusOK]
 		pr.Server = latency(server.samples[p.name])
 		pr.Client = latency(client.samples[p.name])
+		pr.DB = latency(server.db[p.name])
+		if n := len(server.db[p.name]); n > 0 {
+			pr.Calls = float64(server.calls[p.name]) / float64(n)
+		}
 		out.Requests += pr.Requests
 		out.ServerErrors += pr.ServerErrors
 		out.Pages = append(out.Pages, pr)
 	}
 	out.RequestsPerSecond = float64(out.Requests) / elapsed.Seconds()
-	say("%d requests (%.0f/s), %d server errors, %d other answers, %d without an answer",
-		out.Requests, out.RequestsPerSecond, out.ServerErrors, out.OtherStatus, out.TransportErrors)
-
-	say("the same store calls, made directly, as many times, from %d goroutines ...", o.Clients)
-	sql := newRecorder()
-	remaining := make([]atomic.Int64, len(pages))
-	for i, n := range counts {
-		remaining[i].Store(n)
-	}
-	var sqlErr atomic.Value
-	t0 := time.Now()
-	for i := 0; i < o.Clients; i++ {
-		wg.Go(func() {
-			r := rand.New(rand.NewPCG(o.Seed, uint64(i)+1<<32))
-			for k := i; ctx.Err() == nil; k++ {
-				did := false
-				for j := range pages {
-					pi := (k + j) % len(pages)
-					if remaining[pi].Add(-1) < 0 {
-						continue
-					}
-					did = true
-					p := pages[pi]
-					var id int64
-					if len(p.ids) > 0 {
-						id = p.ids[r.IntN(len(p.ids))]
-					}
-					t := time.Now()
-					if err := p.sql(ctx, id); err != nil {
-						sqlErr.CompareAndSwap(nil, err)
-						return
-					}
-					sql.add(p.name, time.Since(t), 0)
-					break
-				}
-				if !did {
-					return
-				}
-			}
-		})
-	}
-	wg.Wait()
-	out.SQLSeconds = time.Since(t0).Seconds()
-	if err, _ := sqlErr.Load().(error); err != nil {
-		return nil, fmt.Errorf("bench: store calls of a page: %w", err)
-	}
-	if err := ctx.Err(); err != nil {
-		return nil, err
-	}
-	for i := range out.Pages {
-		pr := &out.Pages[i]
-		pr.SQL = latency(sql.samples[pr.Name])
-		pr.SQLCalls = int64(len(sql.samples[pr.Name]))
-		if pr.SQL.P50 > 0 {
-			pr.RatioP50 = pr.Server.P50 / pr.SQL.P50
-		}
-	}
+	out.PerCPU = out.RequestsPerSecond / float64(runtime.NumCPU())
+	say("%d requests (%.0f/s, %.0f/s per CPU), %d server errors, %d other answers, %d without an answer",
+		out.Requests, out.RequestsPerSecond, out.PerCPU, out.ServerErrors, out.OtherStatus, out.TransportErrors)
 	return out, nil
 }

@@ -81,14 +81,18 @@ func (r Report) WriteTable(w io.Writer) error {
 		p("ratio (Go / SQL); largest relative difference %.1g\t%.2fx\t\t\n", sc.MaxRelDiff, sc.Ratio)
 		p("full screen, all readings, results stored (%d positive weeks)\t%s\t%.1f\t\n\n", sc.Positive, group(sc.Full.ReadingsPerSecond), sc.Full.Seconds)
 	}
-	if pg := r.Pages; pg != nil {
-		p("Pages: %d signed-in clients for %.0f s over loopback, %d database connections: %s requests (%s/s), %d server errors, %d other answers, %d without an answer\n",
-			pg.Clients, pg.Seconds, pg.MaxConns, group(float64(pg.Requests)), group(pg.RequestsPerSecond), pg.ServerErrors, pg.OtherStatus, pg.TransportErrors)
-		p("page\trequests\tserver p50 ms\tp95\tp99\tclient p99\tSQL p50 ms\tp95\tp99\tp50 / SQL p50\t\n")
+	if r.Figures > 0 {
+		p("Kept figures of every participant computed from scratch in %.1f s\n\n", r.Figures)
+	}
+	for _, pg := range r.Pages {
+		p("Pages: %d signed-in clients for %.0f s over loopback, %d database connections: %s requests (%s/s, %.1f/s per CPU), %d server errors, %d other answers, %d without an answer\n",
+			pg.Clients, pg.Seconds, pg.MaxConns, group(float64(pg.Requests)), group(pg.RequestsPerSecond), pg.PerCPU, pg.ServerErrors, pg.OtherStatus, pg.TransportErrors)
+		p("page\trequests\tserver p50 ms\tp95\tp99\tclient p99\tstore calls\tin the database p50 ms\tp95\t\n")
 		for _, pr := range pg.Pages {
-			p("%s\t%d\t%.1f\t%.1f\t%.1f\t%.1f\t%.1f\t%.1f\t%.1f\t%.1fx\t\n", pr.Path, pr.Requests, pr.Server.P50, pr.Server.P95, pr.Server.P99,
-				pr.Client.P99, pr.SQL.P50, pr.SQL.P95, pr.SQL.P99, pr.RatioP50)
+			p("%s\t%d\t%.1f\t%.1f\t%.1f\t%.1f\t%.1f\t%.1f\t%.1f\t\n", pr.Path, pr.Requests, pr.Server.P50, pr.Server.P95, pr.Server.P99,
+				pr.Client.P99, pr.Calls, pr.DB.P50, pr.DB.P95)
 		}
+		p("\n")
 	}
 	return tw.Flush()
 }
