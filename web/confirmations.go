@@ -166,7 +166,7 @@ func (s *Server) confirmationStats(w http.ResponseWriter, r *http.Request) error
 		return err
 	}
 	m := views.StatisticsModel{Page: s.page(r, "Agreement statistics", "confirmations"), AsOf: a.AsOf.Label(), Protocol: a.Protocol.Label(), PPVUnits: screen.PPVUnits,
-		Freshness: freshness(pending, s.now()),
+		Freshness: freshness(pending, s.studyZone(ctx)),
 		ProtoID:   strconv.Itoa(a.Protocol.ID), Sites: sites, SiteID: q.Get("site"), CSV: map[string]string{}}
 	for _, t := range []string{"versions", "groups", "km", "kappa"} {
 		m.CSV[t] = statsCSVHref(t, q)

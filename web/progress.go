@@ -49,8 +49,9 @@ func windowOf(q *query) int {
 }
 
 // freshness says, when kept figures wait to be computed, how current the
-// page's figures are; "" when they are current.
-func freshness(p db.FiguresPending, now time.Time) string {
+// page's figures are; "" when they are current. The time is the study's
+// (loc), in the one date style.
+func freshness(p db.FiguresPending, loc *time.Location) string {
 	switch {
 	case p.Building:
 		return "The study's figures are being built for the first time; the counts below are incomplete until that finishes."
@@ -62,7 +63,7 @@ func freshness(p db.FiguresPending, now time.Time) string {
 		who = "more than " + who
 	}
 	return fmt.Sprintf("Figures of %s changed by a bulk load are being brought up to date (waiting since %s); the counts below do not include them yet.",
-		who, p.Since.UTC().Format("15:04 UTC"))
+		who, when(p.Since, loc))
 }
 
 // enrolFig is one row of the enrolment table on the progress page, the
@@ -238,7 +239,7 @@ func (s *Server) progress(w http.ResponseWriter, r *http.Request) error {
 	}
 	m.SufficiencyChart = sch
 
-	m.SilentDays, m.SilentTotal, m.SilentAtLeast, m.Freshness = silentDays, silent.Total, silent.AtLeast, freshness(pending, s.now())
+	m.SilentDays, m.SilentTotal, m.SilentAtLeast, m.Freshness = silentDays, silent.Total, silent.AtLeast, freshness(pending, s.studyZone(ctx))
 	if silent.Next != "" {
 		q := r.URL.Query()
 		q.Set("silent_after", silent.Next)
