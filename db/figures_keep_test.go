@@ -302,7 +302,9 @@ func newRandomStudy(t *testing.T, seed uint64, n int) *randomStudy {
 	var pids []int64
 	var protos, weeks []int32
 	var verdicts []string
-	for _, pid := range f.pids {
+	// In id order: f.pids is a map, and the walk must be the same on every
+	// run for its seed.
+	for _, pid := range slices.Sorted(maps.Values(f.pids)) {
 		for _, v := range []int{f.proto, r.v2} {
 			for w := range r.rng.IntN(8) {
 				verdict := []string{"negative", "negative", "negative", "insufficient", "positive"}[r.rng.IntN(5)]
@@ -385,7 +387,11 @@ func (r *randomStudy) step(ctx context.Context, rng *rand.Rand, id int64) error 
 			return err
 		}
 		var unread, read *db.Recording
+		confirmed := false // a recording's over-read confirms AF: a referral can be signed off
 		for i := range recs {
+			if recs[i].Conclusion.ConfirmsAF(recs[i].TooShort) {
+				confirmed = true
+			}
 			if len(recs[i].Readings) < 3 && recs[i].NotNeeded == "" && rng.IntN(2) == 0 {
 				unread = &recs[i]
 			}
@@ -394,6 +400,15 @@ func (r *randomStudy) step(ctx context.Context, rng *rand.Rand, id int64) error 
 			}
 		}
 		switch {
+		case confirmed && c.State == followup.OverRead && rng.IntN(2) == 0:
+			// A summary issued, then signed off by the investigator: the
+			// case is referred.
+			var ref db.Referral
+			if ref, err = r.issue(ctx, c); err == nil {
+				if _, err = r.s.SignOffReferral(ctx, r.inv, ref.ID, fakeDraw); err == nil {
+					r.did("signed off")
+				}
+			}
 		case read != nil && rng.IntN(6) == 0:
 			// The reader of one reading corrects it.
 			o := read.Readings[rng.IntN(len(read.Readings))]
@@ -426,15 +441,6 @@ func (r *randomStudy) step(ctx context.Context, rng *rand.Rand, id int64) error 
 			dur := []float64{45, 45, 20}[rng.IntN(3)]
 			autos := overread.Autos()
 			_, err = r.s.AddRecording(ctx, r.coord, id, ecg.RecordingInput{TakenAt: now.Add(-time.Hour), DurationS: dur, Auto: autos[rng.IntN(len(autos))]})
-		case c.State == followup.OverRead && rng.IntN(2) == 0:
-			// A summary issued, then signed off by the investigator: the
-			// case is referred.
-			var ref db.Referral
-			if ref, err = r.issue(ctx, c); err == nil {
-				if _, err = r.s.SignOffReferral(ctx, r.inv, ref.ID, fakeDraw); err == nil {
-					r.did("signed off")
-				}
-			}
 		default:
 			_, err = r.s.CloseCase(ctx, r.coord, id, db.MoveInput{Version: c.Version, To: followup.ClosedNotConfirmed, Reason: "not confirmed"})
 		}
