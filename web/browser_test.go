@@ -66,7 +66,10 @@ func TestBrowserCoordinatorWorksACaseFromTriage(t *testing.T) {
 		t.Fatalf("next action %q", got)
 	}
 
-	b.Do("mark the recorder sent",
+	// The call's answer is the board, swapped in by htmx: wait for it to
+	// settle, so the typed tracking number reaches the field, not the page
+	// (where digits open areas).
+	b.Do("mark the recorder sent", browsertest.HTMXSettled(),
 		chromedp.SendKeys(chromedp.ID(fmt.Sprintf("tracking-%d", ids[0])), "TRK-7781"),
 		chromedp.Click(chromedp.CSS(row+` [data-testid="ship"] button`)),
 		chromedp.WaitVisible(chromedp.CSS(`tr[data-state="recorder sent"]`+row)),

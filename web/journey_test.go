@@ -18,6 +18,7 @@ import (
 	"cohortdesk/cohort/ecg/ecgtest"
 	"cohortdesk/cohort/overread"
 	"cohortdesk/views/components"
+	"cohortdesk/web/browsertest"
 
 	"github.com/chromedp/cdproto/page"
 	"github.com/chromedp/chromedp"
@@ -220,16 +221,19 @@ func TestBrowserJourneyFromFlagToSignedOffReferral(t *testing.T) {
 	if got := b.Text("owner", row+` [data-testid="row-owner"]`); got != "Test Coordinator" {
 		t.Fatalf("owner after taking the case %q", got)
 	}
-	b.Do("log a call that reaches the participant",
+	// Each one-step action answers with the board, swapped in by htmx:
+	// wait for it to settle before the next, so typed keys reach the
+	// field, not the page (where digits open areas).
+	b.Do("log a call that reaches the participant", browsertest.HTMXSettled(),
 		chromedp.SetValue(chromedp.ID(fmt.Sprintf("channel-%d", f.caseID)), "phone"),
 		chromedp.SetValue(chromedp.ID(fmt.Sprintf("outcome-%d", f.caseID)), "reached"),
 		chromedp.Click(chromedp.CSS(row+` [data-testid="attempt"] button`)),
 		chromedp.WaitVisible(chromedp.CSS(row+` [data-testid="ship"]`)),
 	)
-	b.Do("mark the recorder sent",
+	b.Do("mark the recorder sent", browsertest.HTMXSettled(),
 		chromedp.SendKeys(chromedp.ID(fmt.Sprintf("tracking-%d", f.caseID)), "TRK-4410"),
 		chromedp.Click(chromedp.CSS(row+` [data-testid="ship"] button`)),
-		chromedp.WaitVisible(chromedp.CSS(`tr[data-state="recorder sent"]`+row)),
+		chromedp.WaitVisible(chromedp.CSS(`tr[data-state="recorder sent"]`+row)), browsertest.HTMXSettled(),
 	)
 
 	// Coordinator: the case page, a note with identifying text, the upload.
