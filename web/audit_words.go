@@ -56,6 +56,16 @@ var auditActions = map[string]string{
 	"export.dataset":             "exported the de-identified dataset",
 	"export.referrals":           "exported referral summaries",
 	"participant.identity_shown": "viewed identifying details",
+	// Written before the threshold sweep had its one name (migration
+	// 0010); the stored events keep their key.
+	"exploration.start": "started a threshold sweep",
+}
+
+// auditObjectKinds names object types whose stored key is not the word the
+// pages use: events written before migration 0010 name a sweep
+// "exploration".
+var auditObjectKinds = map[string]string{
+	"exploration": "sweep",
 }
 
 // auditActionLabel words an action; one nobody has worded yet reads as its
@@ -77,6 +87,9 @@ func auditActionLabel(action string) string {
 // ID, their case, recording or referral by its number and the study ID.
 func auditObjectLabel(e db.AuditEvent) string {
 	kind := strings.ReplaceAll(e.ObjectType, "_", " ")
+	if k, ok := auditObjectKinds[e.ObjectType]; ok {
+		kind = k
+	}
 	switch {
 	case e.ObjectType == "participant" && e.StudyID != "":
 		return "participant " + e.StudyID
