@@ -12,9 +12,9 @@ import (
 	"testing"
 )
 
-// maxLines is the length above which a production Go file must say at its
-// top why it is not split: a line starting "Size:" in a comment before the
-// package clause, followed by the reason.
+// maxLines is the length above which a production file (Go or templ) must
+// say at its top why it is not split: a line starting "Size:" in a comment
+// before the package clause, followed by the reason.
 const maxLines = 600
 
 // sizeMarker starts the line that gives the reason.
@@ -30,8 +30,13 @@ func lineCount(src []byte) int {
 }
 
 // sizeReason returns the reason given after sizeMarker in a comment above the
-// package clause of a Go file, and false when there is none (or it is empty).
+// package clause of a Go or templ file, and false when there is none (or it
+// is empty).
 func sizeReason(name string, src []byte) (string, bool, error) {
+	if strings.HasSuffix(name, ".templ") {
+		r, ok := templSizeReason(src)
+		return r, ok, nil
+	}
 	f, err := parser.ParseFile(token.NewFileSet(), name, src, parser.PackageClauseOnly|parser.ParseComments)
 	if err != nil {
 		return "", false, err
@@ -51,6 +56,23 @@ func sizeReason(name string, src []byte) (string, bool, error) {
 	return "", false, nil
 }
 
+// templSizeReason reads the "// Size:" line of a templ file: templ files are
+// not Go, so the lines above the package clause are read as they are.
+func templSizeReason(src []byte) (string, bool) {
+	for _, line := range strings.Split(string(src), "\n") {
+		line = strings.TrimSpace(line)
+		if strings.HasPrefix(line, "package ") {
+			break
+		}
+		if rest, ok := strings.CutPrefix(line, "//"); ok {
+			if r, ok := strings.CutPrefix(strings.TrimSpace(rest), sizeMarker); ok && strings.TrimSpace(r) != "" {
+				return strings.TrimSpace(r), true
+			}
+		}
+	}
+	return "", false
+}
+
 // sizeProblem says what is wrong with a file's length, or "" when nothing is.
 func sizeProblem(name string, src []byte) (string, error) {
 	n := lineCount(src)
@@ -64,11 +86,12 @@ func sizeProblem(name string, src []byte) (string, error) {
 		"starting %q in the comment above the package clause saying why it stays whole", name, n, maxLines, "// "+sizeMarker), nil
 }
 
-// productionGoFile reports whether a path (slash-separated, relative to the
-// module root) is a production Go file: not a test, not generated templ
-// output, not vendored assets or test data.
-func productionGoFile(rel string) bool {
-	if !strings.HasSuffix(rel, ".go") || strings.HasSuffix(rel, "_test.go") || strings.HasSuffix(rel, "_templ.go") {
+// productionFile reports whether a path (slash-separated, relative to the
+// module root) is a production Go or templ file: not a test, not generated
+// templ output, not vendored assets or test data.
+func productionFile(rel string) bool {
+	goSource := strings.HasSuffix(rel, ".go") && !strings.HasSuffix(rel, "_test.go") && !strings.HasSuffix(rel, "_templ.go")
+	if !goSource && !strings.HasSuffix(rel, ".templ") {
 		return false
 	}
 	for _, part := range strings.Split(rel, "/") {
@@ -79,11 +102,11 @@ func productionGoFile(rel string) bool {
 	return true
 }
 
-// TestProductionFileSize fails for every production Go file over maxLines
-// lines without a reason at its top.
+// TestProductionFileSize fails for every production Go or templ file over
+// maxLines lines without a reason at its top.
 func TestProductionFileSize(t *testing.T) {
 	root := moduleRoot(t)
-	checked := 0
+	checked, templs := 0, 0
 	err := filepath.WalkDir(root, func(path string, d fs.DirEntry, err error) error {
 		if err != nil {
 			return err
@@ -96,7 +119,7 @@ func TestProductionFileSize(t *testing.T) {
 			}
 			return nil
 		}
-		if !productionGoFile(rel) {
+		if !productionFile(rel) {
 			return nil
 		}
 		src, err := os.ReadFile(path)
@@ -104,6 +127,9 @@ func TestProductionFileSize(t *testing.T) {
 			return err
 		}
 		checked++
+		if strings.HasSuffix(rel, ".templ") {
+			templs++
+		}
 		msg, err := sizeProblem(rel, src)
 		if err != nil {
 			return err
@@ -116,8 +142,8 @@ func TestProductionFileSize(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if checked < 50 {
-		t.Fatalf("only %d production Go files found under %s; the walk is broken", checked, root)
+	if checked < 50 || templs < 10 {
+		t.Fatalf("only %d production files (%d templ) found under %s; the walk is broken", checked, templs, root)
 	}
 }
 
@@ -151,19 +177,42 @@ func TestSizeProblemCatchesPlantedFiles(t *testing.T) {
 			}
 		})
 	}
+	templBody := func(n int) string { return strings.Repeat("<p>x</p>\n", n) }
+	for _, tt := range []struct {
+		name    string
+		src     string
+		problem bool
+	}{
+		{"templ at the limit", "package views\n" + templBody(maxLines-1), false},
+		{"templ over, no reason", "package views\n" + templBody(maxLines), true},
+		{"templ over, reason above the package", "// Size: one form whose fields read best together.\npackage views\n" + templBody(maxLines), false},
+		{"templ over, marker below the package", "package views\n// Size: too late.\n" + templBody(maxLines), true},
+		{"templ over, marker without a reason", "// Size:\npackage views\n" + templBody(maxLines), true},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			msg, err := sizeProblem("p.templ", []byte(tt.src))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if (msg != "") != tt.problem {
+				t.Errorf("problem %q, want a problem: %v", msg, tt.problem)
+			}
+		})
+	}
 	for _, tt := range []struct {
 		path string
 		want bool
 	}{
 		{"db/cases.go", true},
+		{"views/layout.templ", true},
 		{"db/cases_test.go", false},
 		{"views/layout_templ.go", false},
 		{"assets/vendor/x/x.go", false},
 		{"web/testdata/axe/x.go", false},
 		{"README.md", false},
 	} {
-		if got := productionGoFile(tt.path); got != tt.want {
-			t.Errorf("productionGoFile(%q) = %v, want %v", tt.path, got, tt.want)
+		if got := productionFile(tt.path); got != tt.want {
+			t.Errorf("productionFile(%q) = %v, want %v", tt.path, got, tt.want)
 		}
 	}
 }
