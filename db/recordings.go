@@ -428,8 +428,8 @@ func (s *Store) AddRecording(ctx context.Context, a cohort.Actor, caseID int64, 
 		if err := audit(ctx, tx, a, "recording.add", "recording", strconv.FormatInt(id, 10), nil, rec); err != nil {
 			return err
 		}
-		if cur.State == followup.RecorderSent {
-			if _, err := s.advanceCase(ctx, tx, a, caseID, followup.RecordingReceived, acc.ReceivedAt, ""); err != nil {
+		if next, ok := followup.AfterRecording(cur.State); ok {
+			if _, err := s.advanceCase(ctx, tx, a, caseID, next, acc.ReceivedAt, ""); err != nil {
 				return err
 			}
 		}

@@ -127,7 +127,7 @@ func (s *Store) ChooseRecordingLead(ctx context.Context, a cohort.Actor, recordi
 			return err
 		}
 		nu.Index, nu.UsableS, nu.Beats = lead, float64(usable), len(beats)
-		nu.TooShort = nu.UsableS < ecg.MinDiagnosticSeconds
+		nu.TooShort = ecg.TooShort(nu.UsableS)
 		_, err = tx.Exec(ctx, `
 			UPDATE recordings SET lead_index = $2, lead_label = $3, source = $4, sampling_hz = $5, samples = $6, beats = $7, hint = $8,
 			  usable_s = $9, too_short = $10

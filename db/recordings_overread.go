@@ -110,8 +110,8 @@ func (s *Store) AddOverRead(ctx context.Context, a cohort.Actor, recordingID int
 		if err != nil {
 			return err
 		}
-		if c.State == followup.RecordingReceived {
-			_, err = s.advanceCase(ctx, tx, a, caseID, followup.OverRead, followup.StepTime(v.SettledOn, now, loc), "")
+		if next, ok := followup.AfterReadings(c.State, true); ok {
+			_, err = s.advanceCase(ctx, tx, a, caseID, next, followup.StepTime(v.SettledOn, now, loc), "")
 		}
 		return err
 	})

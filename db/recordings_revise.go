@@ -178,11 +178,13 @@ func (s *Store) followReadings(ctx context.Context, tx pgx.Tx, a cohort.Actor, c
 	if err != nil {
 		return err
 	}
+	next, ok := followup.AfterReadings(c.State, diagnostic)
 	switch {
-	case c.State == followup.RecordingReceived && diagnostic:
-		_, err = s.advanceCase(ctx, tx, a, c.ID, followup.OverRead, followup.StepTime(settled, s.now(), st.Location()), "")
-	case c.State == followup.OverRead && !diagnostic:
-		_, err = s.advanceCase(ctx, tx, a, c.ID, followup.RecordingReceived, s.now(),
+	case !ok:
+	case diagnostic:
+		_, err = s.advanceCase(ctx, tx, a, c.ID, next, followup.StepTime(settled, s.now(), st.Location()), "")
+	default:
+		_, err = s.advanceCase(ctx, tx, a, c.ID, next, s.now(),
 			fmt.Sprintf("a reading was %s: no recording of the case has a settled over-read", change.Label()))
 	}
 	return err

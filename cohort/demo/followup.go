@@ -427,7 +427,7 @@ func (m *sim) record(t time.Time, rhythm overread.Rhythm, unusable bool) Recordi
 // diagnose, or noisy) are uninterpretable; otherwise the truth, with an
 // occasional confusion between AF and flutter.
 func (m *sim) read(rec Recording) overread.Rhythm {
-	if rec.Noisy || rec.Seconds < ecg.MinDiagnosticSeconds {
+	if rec.Noisy || ecg.TooShort(rec.Seconds) {
 		return overread.Uninterpretable
 	}
 	if m.r.Float64() < 0.04 {

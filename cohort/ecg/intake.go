@@ -179,7 +179,7 @@ func Intake(in RecordingInput, o IntakeOptions) (Accepted, error) {
 	} else if !(a.DurationS > 0 && a.DurationS <= MaxRecordingSeconds) {
 		ve.Add("duration_s", fmt.Sprintf("enter the duration in seconds (more than 0, at most %d), or upload the waveform", MaxRecordingSeconds))
 	}
-	a.TooShort = a.UsableS < MinDiagnosticSeconds
+	a.TooShort = TooShort(a.UsableS)
 	if err := ve.Err(); err != nil {
 		return Accepted{}, err
 	}

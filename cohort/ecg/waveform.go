@@ -44,6 +44,11 @@ const (
 	MinDiagnosticSeconds = 30.0
 )
 
+// TooShort is the 30 s rule: a recording with fewer usable seconds cannot on
+// its own support an AF diagnosis (its readings are kept but are not an
+// over-read; see overread.Conclusion's Diagnostic).
+func TooShort(usableSeconds float64) bool { return usableSeconds < MinDiagnosticSeconds }
+
 // Sentinel errors, so callers can tell a bad file from a bad recording.
 var (
 	// ErrFormat marks input that does not follow its file format.
@@ -128,6 +133,6 @@ func CheckRecording(w Waveform) (RecordingCheck, error) {
 		}
 	}
 	c := RecordingCheck{Samples: len(w.Samples), Seconds: w.Seconds()}
-	c.TooShortForDiagnosis = c.Seconds < MinDiagnosticSeconds
+	c.TooShortForDiagnosis = TooShort(c.Seconds)
 	return c, nil
 }

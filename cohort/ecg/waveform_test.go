@@ -80,3 +80,16 @@ func TestInputErrorMessage(t *testing.T) {
 		}
 	}
 }
+
+// The 30 s rule at its edge: AF is diagnosed on at least 30 s of ECG (2020
+// ESC AF guidelines), so 30 s is enough and anything less is not.
+func TestTooShortAtThirtySeconds(t *testing.T) {
+	for _, tt := range []struct {
+		s    float64
+		want bool
+	}{{0, true}, {29.996, true}, {30, false}, {30.004, false}, {300, false}} {
+		if got := TooShort(tt.s); got != tt.want {
+			t.Errorf("TooShort(%g) = %v, want %v", tt.s, got, tt.want)
+		}
+	}
+}

@@ -239,3 +239,32 @@ func TakesRecordings(st State) string {
 	}
 	return "record the recorder's shipment first: the case is " + st.Label()
 }
+
+// The moves a case makes by itself, when what it waits for arrives. The
+// store applies them in the transaction that records the arrival.
+
+// AfterRecording is the state a case in state st moves to when a recording
+// is added to it: a case waiting for its recorder has a recording in. ok is
+// false when the case stays where it is.
+func AfterRecording(st State) (next State, ok bool) {
+	if st == RecorderSent {
+		return RecordingReceived, true
+	}
+	return st, false
+}
+
+// AfterReadings is the state a case in state st moves to when the readings
+// of its recordings change. diagnostic: at least one of its recordings now
+// has a settled over-read long enough to read (overread.Conclusion's
+// Diagnostic). A case waiting for an over-read has one; an over-read case
+// whose corrected readings no longer settle any recording waits again. ok is
+// false when the case stays where it is.
+func AfterReadings(st State, diagnostic bool) (next State, ok bool) {
+	switch {
+	case st == RecordingReceived && diagnostic:
+		return OverRead, true
+	case st == OverRead && !diagnostic:
+		return RecordingReceived, true
+	}
+	return st, false
+}

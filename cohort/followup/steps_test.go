@@ -231,3 +231,38 @@ func TestStatesWithAStepAreReachedByIt(t *testing.T) {
 		t.Errorf("the sign-off's move is refused: %v", err)
 	}
 }
+
+// The moves a case makes by itself: a recording in moves only a case
+// waiting for its recorder; readings move only between waiting for an
+// over-read and over-read, and never a closed case. Every such move is one
+// the state table allows.
+func TestMovesWhenWhatTheCaseWaitsForArrives(t *testing.T) {
+	for _, st := range States() {
+		next, ok := AfterRecording(st)
+		if want := st == RecorderSent; ok != want || (ok && next != RecordingReceived) || (!ok && next != st) {
+			t.Errorf("AfterRecording(%s) = %s, %v", st, next, ok)
+		}
+		for _, diagnostic := range []bool{true, false} {
+			next, ok := AfterReadings(st, diagnostic)
+			want := State("")
+			switch {
+			case st == RecordingReceived && diagnostic:
+				want = OverRead
+			case st == OverRead && !diagnostic:
+				want = RecordingReceived
+			}
+			if ok != (want != "") || (ok && next != want) || (!ok && next != st) {
+				t.Errorf("AfterReadings(%s, %v) = %s, %v; want %q", st, diagnostic, next, ok, want)
+			}
+			if ok && st.Terminal() {
+				t.Errorf("AfterReadings moves the closed state %s", st)
+			}
+			if ok && !CanMove(st, next) {
+				t.Errorf("AfterReadings(%s) = %s, a move the state table does not allow", st, next)
+			}
+		}
+		if ok && !CanMove(st, next) {
+			t.Errorf("AfterRecording(%s) = %s, a move the state table does not allow", st, next)
+		}
+	}
+}
