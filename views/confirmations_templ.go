@@ -240,7 +240,7 @@ func Confirmations(m ConfirmationsModel) templ.Component {
 						if templ_7745c5c3_Err != nil {
 							return templ_7745c5c3_Err
 						}
-						templ_7745c5c3_Err = components.Badge("under 30 s usable, not diagnostic", components.Warn).Render(ctx, templ_7745c5c3_Buffer)
+						templ_7745c5c3_Err = components.Badge(TooShortMark, components.Warn).Render(ctx, templ_7745c5c3_Buffer)
 						if templ_7745c5c3_Err != nil {
 							return templ_7745c5c3_Err
 						}
@@ -473,7 +473,7 @@ func queueTable(rows []QueueRowView, disagreed bool, testid string) templ.Compon
 					if templ_7745c5c3_Err != nil {
 						return templ_7745c5c3_Err
 					}
-					templ_7745c5c3_Err = components.Badge("too short for a diagnostic read", components.Warn).Render(ctx, templ_7745c5c3_Buffer)
+					templ_7745c5c3_Err = components.Badge(TooShortMark, components.Warn).Render(ctx, templ_7745c5c3_Buffer)
 					if templ_7745c5c3_Err != nil {
 						return templ_7745c5c3_Err
 					}

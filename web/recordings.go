@@ -50,7 +50,7 @@ func verdictView(r db.Recording) (string, components.Tone) {
 	case v.Status == overread.Disagreed:
 		return "readers disagree", components.Alarm
 	case r.TooShort:
-		return v.Rhythm.Label() + " (under 30 s usable, not diagnostic)", components.Neutral
+		return v.Rhythm.Label() + " (" + views.TooShortMark + ")", components.Neutral
 	case v.Rhythm == overread.AF:
 		return v.Rhythm.Label(), components.Alarm
 	case v.Rhythm == overread.Uninterpretable:
@@ -273,7 +273,7 @@ func (s *Server) renderRecording(w http.ResponseWriter, r *http.Request, rec db.
 		if q := rec.Hint.Quality; q != nil {
 			usable := q.Text(rec.RateHz)
 			if rec.TooShort {
-				usable += ": under 30 s usable, too short for a diagnostic read"
+				usable += "; " + views.TooShortMark
 			}
 			m.Facts = append(m.Facts, views.FactView{Label: "Usable signal", Value: usable, Testid: "recording-usable"})
 		}
