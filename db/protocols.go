@@ -40,7 +40,7 @@ type ProtocolVersion struct {
 }
 
 // Label names the version on screen, e.g. "standard v2".
-func (p ProtocolVersion) Label() string { return p.Name + " v" + strconv.Itoa(p.Version) }
+func (p ProtocolVersion) Label() string { return screen.VersionLabel(p.Name, p.Version) }
 
 const protocolCols = `id, name, version, params, note, coalesce(based_on, 0), active, used, created_at, created_by`
 

@@ -8,6 +8,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
+	"cohortdesk/cohort/screen"
 )
 
 // Filter chooses whose figures are counted.
@@ -59,7 +60,7 @@ func (p ProtocolRef) Label() string {
 	if p.ID == 0 {
 		return "no protocol"
 	}
-	return fmt.Sprintf("%s v%d", p.Name, p.Version)
+	return screen.VersionLabel(p.Name, p.Version)
 }
 
 // ChooseProtocol picks the version whose figures are counted: the one with

@@ -15,7 +15,6 @@ import (
 	"fmt"
 	"math"
 	"slices"
-	"strconv"
 	"strings"
 	"time"
 
@@ -76,7 +75,7 @@ func (p Protocol) Label() string {
 	if p.Name == "" {
 		return ""
 	}
-	return p.Name + " v" + strconv.Itoa(p.Version)
+	return screen.VersionLabel(p.Name, p.Version)
 }
 
 // Week is one screen-positive participant-week with its stored result.

@@ -370,3 +370,9 @@ func (p Protocol) With(param string, value float64) (Protocol, error) {
 	}
 	return q, nil
 }
+
+// VersionLabel names one stored version of a protocol as every page, CSV and
+// summary writes it: its name and version number ("default v3").
+func VersionLabel(name string, version int) string {
+	return name + " v" + strconv.Itoa(version)
+}
