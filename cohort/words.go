@@ -37,3 +37,29 @@ func (w Words[T]) Parse(s, unknown string) (T, error) {
 	}
 	return v, nil
 }
+
+// Plural counts a thing in words: "1 case", "3 cases", "2 summaries",
+// "0 weeks". The one rule for counted words on every page, CSV, PDF and
+// message.
+func Plural(n int, one string) string {
+	return strconv.Itoa(n) + " " + Noun(int64(n), one)
+}
+
+// Noun is the word for a count of things, agreeing with it: "participant"
+// for 1, "participants" otherwise (for a figure whose number stands apart).
+// The plural is English's regular one: a consonant before a final "y" makes
+// "ies" ("summary", "summaries"; "day", "days"), a final s, x, z, ch or sh
+// takes "es", every other word "s".
+func Noun(n int64, one string) string {
+	if n == 1 || one == "" {
+		return one
+	}
+	switch {
+	case strings.HasSuffix(one, "y") && len(one) > 1 && !strings.ContainsRune("aeiou", rune(one[len(one)-2])):
+		return one[:len(one)-1] + "ies"
+	case strings.HasSuffix(one, "s"), strings.HasSuffix(one, "x"), strings.HasSuffix(one, "z"),
+		strings.HasSuffix(one, "ch"), strings.HasSuffix(one, "sh"):
+		return one + "es"
+	}
+	return one + "s"
+}

@@ -57,7 +57,7 @@ func TestAdministrationSaysWhatChanged(t *testing.T) {
 	if rescheduled == 0 {
 		t.Fatal("lengthening the deadlines rescheduled no case of the demo: the check below would say nothing")
 	}
-	if want := plural(rescheduled, "case") + " got a new due date"; !strings.Contains(saved, want) {
+	if want := cohort.Plural(rescheduled, "case") + " got a new due date"; !strings.Contains(saved, want) {
 		t.Errorf("the save says %q, want it to say %q", saved, want)
 	}
 

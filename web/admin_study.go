@@ -53,7 +53,7 @@ func (s *Server) studySettings(w http.ResponseWriter, r *http.Request) error {
 	m := views.StudySettingsModel{Page: s.page(r, "Study settings", "admin"), Values: studyValues(st)}
 	if q := r.URL.Query(); q.Get("saved") == "1" {
 		n, _ := strconv.Atoi(q.Get("rescheduled"))
-		m.Saved = "Settings saved. Deadlines of the cases still being worked were recomputed: " + plural(max(n, 0), "case") + " got a new due date."
+		m.Saved = "Settings saved. Deadlines of the cases still being worked were recomputed: " + cohort.Plural(max(n, 0), "case") + " got a new due date."
 		if n == 0 {
 			m.Saved = "Settings saved. Deadlines of the cases still being worked were recomputed: none changed."
 		}

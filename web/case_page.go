@@ -11,6 +11,7 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/followup"
 	"cohortdesk/cohort/overread"
+	"cohortdesk/cohort/screen"
 	"cohortdesk/db"
 	"cohortdesk/views"
 )
@@ -82,7 +83,7 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		{Label: "Over-read", Value: day(c.OverReadAt)},
 	}
 	if c.UnreadRecordings > 0 {
-		m.Facts = append(m.Facts, views.FactView{Label: "Waiting for an over-read", Value: plural(c.UnreadRecordings, "recording")})
+		m.Facts = append(m.Facts, views.FactView{Label: "Waiting for an over-read", Value: cohort.Plural(c.UnreadRecordings, "recording")})
 	}
 	if m.Final {
 		m.Facts = append(m.Facts, views.FactView{Label: "Closed", Value: day(c.ClosedAt)}, views.FactView{Label: "Closing reason", Value: c.ClosingNote})
@@ -125,7 +126,7 @@ func (s *Server) renderCase(w http.ResponseWriter, r *http.Request, c db.Case, s
 		return err
 	}
 	for _, w := range weeks {
-		v := views.FlaggedWeekView{Week: w.Week, Protocol: fmt.Sprintf("%s v%d", w.ProtocolName, w.ProtocolVersion), Reason: w.Why,
+		v := views.FlaggedWeekView{Week: w.Week, Protocol: screen.VersionLabel(w.ProtocolName, w.ProtocolVersion), Reason: w.Why,
 			WearHours: strconv.FormatFloat(w.WearHours, 'f', 1, 64), OnCase: w.CaseID == c.ID, Late: w.Late}
 		if w.CaseID != 0 && w.CaseID != c.ID {
 			v.Elsewhere = fmt.Sprintf("/cases/%d", w.CaseID)

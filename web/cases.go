@@ -75,13 +75,13 @@ func dueView(c db.Case, cal followup.Calendar, now time.Time, deid bool) (string
 	case !now.Before(c.DueAt):
 		late := today.DaysSince(day)
 		if deid || late < 1 {
-			return "overdue " + plural(max(late, 0), "day"), components.Alarm
+			return "overdue " + cohort.Plural(max(late, 0), "day"), components.Alarm
 		}
 		return "overdue, was due " + dayLabel(day), components.Alarm
 	case day == today:
 		return "due today", components.Warn
 	case deid:
-		return "due in " + plural(day.DaysSince(today), "day"), components.Neutral
+		return "due in " + cohort.Plural(day.DaysSince(today), "day"), components.Neutral
 	}
 	return "due " + dayLabel(day), components.Neutral
 }
@@ -105,7 +105,7 @@ func caseRow(c db.Case, st db.StudySettings, now time.Time, deid bool) views.Cas
 	}
 	if deid {
 		if days := cal.DateOf(now).DaysSince(cal.DateOf(c.FlaggedAt)); days > 0 {
-			row.Flagged = plural(days, "day") + " ago"
+			row.Flagged = cohort.Plural(days, "day") + " ago"
 		} else {
 			row.Flagged = "today"
 		}

@@ -47,7 +47,7 @@ func (s *Server) confirmations(w http.ResponseWriter, r *http.Request) error {
 	row := func(q db.QueueRecording) views.QueueRowView {
 		return views.QueueRowView{Href: fmt.Sprintf("/recordings/%d", q.ID), CaseHref: fmt.Sprintf("/cases/%d", q.CaseID), StudyID: q.StudyID,
 			Site: q.SiteCode, Taken: day(q.TakenAt), Received: day(q.ReceivedAt), Duration: seconds(q.DurationS), TooShort: q.TooShort,
-			Auto: q.Auto.Label(), Waiting: plural(max(0, today.DaysSince(cohort.DateOf(q.ReceivedAt.In(loc)))), "day")}
+			Auto: q.Auto.Label(), Waiting: cohort.Plural(max(0, today.DaysSince(cohort.DateOf(q.ReceivedAt.In(loc)))), "day")}
 	}
 	for _, q := range lists.Unread {
 		m.Unread = append(m.Unread, row(q))

@@ -113,7 +113,7 @@ func exportRow(e db.Export, loc *time.Location) views.ExportRowView {
 			}
 		}
 		if n := len(man.Summaries); n > 0 {
-			row.Files = append(row.Files, plural(n, "summary"))
+			row.Files = append(row.Files, cohort.Plural(n, "summary"))
 		}
 	}
 	return row

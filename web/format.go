@@ -9,7 +9,6 @@ import (
 	"strings"
 
 	"cohortdesk/cohort"
-	"cohortdesk/views"
 )
 
 // The small wording and encoding helpers every area's handlers share.
@@ -17,10 +16,6 @@ import (
 // dayLabel shows a calendar day with its weekday, the way staff plan work
 // (cohort.Date.DayLabel: "Thu 3 Dec 2026").
 func dayLabel(d cohort.Date) string { return d.DayLabel() }
-
-// plural counts a thing in words: "1 case", "3 cases" (views.Plural, the
-// one rule for counted words).
-func plural(n int, one string) string { return views.Plural(n, one) }
 
 // csvSafe defuses cells that spreadsheet programs would run as formulas.
 func csvSafe(v string) string {

@@ -31,18 +31,18 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 	m := views.HomeModel{
 		Page:  s.page(r, "Overview", "home"),
 		AsOf:  "at " + when(s.now(), s.studyZone(ctx)),
-		Tiles: []views.Tile{{Key: "participants", Label: views.Noun(c.Participants, "participant") + " enrolled", Value: c.Participants}},
+		Tiles: []views.Tile{{Key: "participants", Label: cohort.Noun(c.Participants, "participant") + " enrolled", Value: c.Participants}},
 	}
 	list := s.may(r, "/cases")
 	for _, st := range cohort.ParticipantStatuses() {
-		t := views.Tile{Key: string(st), Label: views.Noun(c.Status[st], "participant") + " " + st.Label(), Value: c.Status[st]}
+		t := views.Tile{Key: string(st), Label: cohort.Noun(c.Status[st], "participant") + " " + st.Label(), Value: c.Status[st]}
 		if s.may(r, "/participants") {
 			t.Href = "/participants?status=" + string(st)
 		}
 		m.Tiles = append(m.Tiles, t)
 	}
-	m.Tiles = append(m.Tiles, views.Tile{Key: "sites", Label: views.Noun(c.Sites, "site"), Value: c.Sites})
-	waiting := views.Tile{Key: "awaiting-read", Label: views.Noun(int64(c.AwaitingRead), "recording") + " waiting for an over-read", Value: int64(c.AwaitingRead)}
+	m.Tiles = append(m.Tiles, views.Tile{Key: "sites", Label: cohort.Noun(c.Sites, "site"), Value: c.Sites})
+	waiting := views.Tile{Key: "awaiting-read", Label: cohort.Noun(int64(c.AwaitingRead), "recording") + " waiting for an over-read", Value: int64(c.AwaitingRead)}
 	if s.may(r, "/confirmations") {
 		waiting.Href = "/confirmations"
 	}
@@ -57,7 +57,7 @@ func (s *Server) home(w http.ResponseWriter, r *http.Request) error {
 			m.Work = append(m.Work, views.Tile{Key: "work-" + g.key, Label: g.tile, Value: int64(t.Counts[g.bucket]), Href: "/triage#group-" + g.key})
 		}
 		other := int64(t.Counts[followup.BucketOther])
-		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: "other " + views.Noun(other, "case") + ", on schedule", Value: other, Href: "/cases"})
+		m.Work = append(m.Work, views.Tile{Key: "work-scheduled", Label: "other " + cohort.Noun(other, "case") + ", on schedule", Value: other, Href: "/cases"})
 		m.WorkNote = fmt.Sprintf("As of %s, %s (%s); the triage page lists them in order of urgency.",
 			dayLabel(t.Settings.Calendar().DateOf(t.Now)), cohort.ClockLabel(t.Now, t.Settings.Location()), t.Settings.Location())
 	}

@@ -56,7 +56,7 @@ func importOutcome(status string, accepted, rejected, duplicates int64) (string,
 	case accepted == 0 && rejected > 0:
 		return "nothing stored: every row refused", components.Warn
 	case rejected > 0:
-		return "done, " + plural(int(rejected), "row") + " refused", components.Warn
+		return "done, " + cohort.Plural(int(rejected), "row") + " refused", components.Warn
 	case accepted == 0 && duplicates > 0:
 		return "done, nothing new", components.Info
 	case accepted == 0:

@@ -274,13 +274,13 @@ func (s *Server) casesBulkMessage(w http.ResponseWriter, r *http.Request) error 
 		}
 		return s.renderCases(w, r, back.Query(), f.Status, f.Message)
 	}
-	msg := fmt.Sprintf("%s queued.", plural(len(res.Queued), "message"))
+	msg := fmt.Sprintf("%s queued.", cohort.Plural(len(res.Queued), "message"))
 	if len(res.Skipped) > 0 {
 		var parts []string
 		for _, sk := range res.Skipped {
 			parts = append(parts, sk.StudyID+": "+sk.Reason)
 		}
-		msg += " Not sent to " + plural(len(res.Skipped), "case") + ": " + strings.Join(parts, "; ") + "."
+		msg += " Not sent to " + cohort.Plural(len(res.Skipped), "case") + ": " + strings.Join(parts, "; ") + "."
 	}
 	q := back.Query()
 	return s.renderCases(w, r, q, http.StatusOK, msg)

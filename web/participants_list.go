@@ -80,7 +80,7 @@ func (s *Server) participantsList(w http.ResponseWriter, r *http.Request) error 
 	m := views.ParticipantsModel{Page: s.page(r, "Participants", "participants"), Filter: form, Sites: sites, ShowNames: seesPHI,
 		CanEnrol: coordWork.allows(role(r)), Total: page.Total}
 	for _, st := range cohort.ParticipantStatuses() {
-		m.ByStatus = append(m.ByStatus, views.Tile{Key: string(st), Label: views.Noun(page.Status[st], "participant") + " " + st.Label(), Value: page.Status[st]})
+		m.ByStatus = append(m.ByStatus, views.Tile{Key: string(st), Label: cohort.Noun(page.Status[st], "participant") + " " + st.Label(), Value: page.Status[st]})
 	}
 	d := disclosureOf(r)
 	first, err := s.firstEnrolment(ctx, d)

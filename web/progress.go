@@ -58,7 +58,7 @@ func freshness(p db.FiguresPending, loc *time.Location) string {
 	case p.Participants == 0:
 		return ""
 	}
-	who := plural(p.Participants, "participant")
+	who := cohort.Plural(p.Participants, "participant")
 	if p.Participants >= db.PendingCap {
 		who = "more than " + who
 	}

@@ -179,9 +179,9 @@ func (s *Server) tryPassword(w http.ResponseWriter, r *http.Request, email, pw, 
 // waitLabel says a wait in words: "30 seconds", "4 minutes".
 func waitLabel(d time.Duration) string {
 	if d <= time.Minute {
-		return plural(int(math.Ceil(d.Seconds())), "second")
+		return cohort.Plural(int(math.Ceil(d.Seconds())), "second")
 	}
-	return plural(int(math.Ceil(d.Minutes())), "minute")
+	return cohort.Plural(int(math.Ceil(d.Minutes())), "minute")
 }
 
 func (s *Server) signOut(w http.ResponseWriter, r *http.Request) error {

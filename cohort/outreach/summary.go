@@ -42,9 +42,9 @@ func SummaryMail(name, study string, day cohort.Date, c Counts, triageURL string
 	var b strings.Builder
 	fmt.Fprintf(&b, "Good morning %s,\n\n", name)
 	fmt.Fprintf(&b, "Your follow-up work in %s today:\n\n", orStudy(study))
-	fmt.Fprintf(&b, "  %s of yours overdue\n", plural(c.Overdue, "case"))
-	fmt.Fprintf(&b, "  %s of yours due today\n", plural(c.DueToday, "case"))
-	fmt.Fprintf(&b, "  %s that nobody has taken on yet\n\n", plural(c.NewUnowned, "new flag"))
+	fmt.Fprintf(&b, "  %s of yours overdue\n", cohort.Plural(c.Overdue, "case"))
+	fmt.Fprintf(&b, "  %s of yours due today\n", cohort.Plural(c.DueToday, "case"))
+	fmt.Fprintf(&b, "  %s that nobody has taken on yet\n\n", cohort.Plural(c.NewUnowned, "new flag"))
 	if triageURL != "" {
 		fmt.Fprintf(&b, "Open triage: %s\n\n", triageURL)
 	}
@@ -57,11 +57,4 @@ func orStudy(s string) string {
 		return "the study"
 	}
 	return s
-}
-
-func plural(n int, word string) string {
-	if n == 1 {
-		return "1 " + word
-	}
-	return fmt.Sprintf("%d %ss", n, word)
 }
