@@ -256,3 +256,38 @@ func TestIntakeWFDBUploads(t *testing.T) {
 		t.Errorf("two CSV files: %q", msg)
 	}
 }
+
+// A file whose signals carry no ECG label (a voltage channel named only by
+// its number) still goes through: its first voltage signal is analysed, and
+// the warning says so and asks the reader to check the strip. The motion
+// channel before it is never taken.
+func TestIntakeWarnsWhenNoSignalIsLabelledECG(t *testing.T) {
+	const rate = 250.0
+	syn := mustSynth(t, ecgtest.SinusRR(40, 800, 11), ecg.SynthOptions{RateHz: rate, Seed: 11})
+	n := len(syn.Waveform.Samples)
+	b, err := ecgtest.EncodeEDFChannels([]ecgtest.EDFChannel{motionChannel(n, rate, "Accel X"), ecgtest.ECGChannel(syn.Waveform, "Chan 2", "uV")},
+		time.Time{}, ecgtest.EDFWriteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	acc, err := ecg.Intake(ecg.RecordingInput{File: b, TakenAt: intakeNow.Add(-time.Hour)}, intakeOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	sig := acc.Signal
+	if sig == nil || sig.Waveform.Label != "Chan 2" {
+		t.Fatalf("analysed %+v, want the voltage signal Chan 2", sig)
+	}
+	if len(sig.Beats) != len(syn.RTimes) {
+		t.Errorf("%d beats, want %d", len(sig.Beats), len(syn.RTimes))
+	}
+	warned := false
+	for _, w := range sig.Hint.Warnings {
+		if strings.Contains(w, `"Chan 2"`) && strings.Contains(w, "is taken as the ECG") && strings.Contains(w, "check the strip") {
+			warned = true
+		}
+	}
+	if !warned {
+		t.Errorf("warnings %q do not say which signal was taken as the ECG", sig.Hint.Warnings)
+	}
+}
