@@ -56,6 +56,16 @@ func containsWrapped(text, want string) bool {
 // testSummary is a fictional summary with every part filled.
 func testSummary(tb testing.TB) referral.Summary {
 	tb.Helper()
+	s, err := referral.Build(testSource(tb), []byte(testSecret))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return s
+}
+
+// testSource is the fictional participant's record behind testSummary.
+func testSource(tb testing.TB) referral.Source {
+	tb.Helper()
 	loc, _ := time.LoadLocation("America/Denver")
 	enrolled := cohort.Date{Year: 2025, Month: 1, Day: 6}
 	birth := cohort.Date{Year: 1948, Month: 9, Day: 12}
@@ -89,11 +99,7 @@ func testSummary(tb testing.TB) referral.Summary {
 		Cautions:     components.CautionItems,
 		IssuedAt:     time.Date(2025, 2, 10, 16, 0, 0, 0, time.UTC),
 	}
-	s, err := referral.Build(src, []byte(testSecret))
-	if err != nil {
-		tb.Fatal(err)
-	}
-	return s
+	return src
 }
 
 // The PDF read back holds the referral code, every caution, the scores
@@ -132,6 +138,42 @@ func TestReferralPDF(t *testing.T) {
 		}
 		if bytes.Contains(pdf, []byte("2025")) || bytes.Contains(pdf, []byte("1948")) {
 			t.Errorf("%s: the PDF bytes hold a year of the participant's dates", tt.paper)
+		}
+	}
+}
+
+// The cautions are never split across pages, wherever the summary's length
+// puts them: summaries with 1 to 30 flagged weeks move the cautions down the
+// page and past its end.
+func TestReferralPDFKeepsTheCautionsOnOnePage(t *testing.T) {
+	base := testSource(t)
+	for n := 1; n <= 30; n++ {
+		src := base
+		src.Weeks = nil
+		for i := 0; i < n; i++ {
+			w := base.Weeks[0]
+			w.Week = 3 + i
+			src.Weeks = append(src.Weeks, w)
+		}
+		sum, err := referral.Build(src, []byte(testSecret))
+		if err != nil {
+			t.Fatal(err)
+		}
+		pdf, err := referralPDF(sum, paperA4)
+		if err != nil {
+			t.Fatal(err)
+		}
+		text := pdfText(t, pdf)
+		together := false
+		for _, page := range strings.Split(text, "\f") {
+			all := true
+			for _, c := range components.CautionItems {
+				all = all && containsWrapped(page, c)
+			}
+			together = together || all
+		}
+		if !together {
+			t.Errorf("%d weeks: the cautions are split across pages (%d pages)", n, strings.Count(text, "\f"))
 		}
 	}
 }
