@@ -87,16 +87,19 @@ func (s *Store) statusDay(ctx context.Context) (cohort.Date, int, error) {
 }
 
 // RecordingsAwaitingRead counts the recordings waiting for an over-read
-// (overread.Awaits): the figure of the start page, triage and the
-// confirmations page.
+// (overread.Awaits): the figure of the start page, triage, the recording
+// page and the confirmations page. It is read from the kept sum
+// (figure_unread_counts, kept in the transaction of every change through
+// the store), so its cost does not grow with the study; rows loaded by bare
+// SQL count once the background pass has taken them in.
 func (s *Store) RecordingsAwaitingRead(ctx context.Context) (int, error) {
-	n, err := countAwaitingRead(ctx, s.pool)
+	n, err := keptAwaitingRead(ctx, s.reader(ctx))
 	return n, mapErr("recordings awaiting a read", err)
 }
 
-func countAwaitingRead(ctx context.Context, q querier) (int, error) {
+func keptAwaitingRead(ctx context.Context, q querier) (int, error) {
 	var n int
-	err := q.QueryRow(ctx, `SELECT count(*) FROM recordings r JOIN cases c ON c.id = r.case_id WHERE `+awaitingRead).Scan(&n)
+	err := q.QueryRow(ctx, `SELECT coalesce(sum(n), 0) FROM figure_unread_counts`).Scan(&n)
 	return n, err
 }
 

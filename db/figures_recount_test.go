@@ -444,3 +444,11 @@ func (s *Store) RecountParticipants(ctx context.Context, f ParticipantFilter) (m
 	where, args := f.where(s.now().UTC(), day, weeks)
 	return participantsByStatus(ctx, s.pool, where, args, day, weeks)
 }
+
+// countAwaitingRead counts the recordings waiting for an over-read from the
+// raw rows (the definition the kept figure_unread_counts must equal).
+func countAwaitingRead(ctx context.Context, q querier) (int, error) {
+	var n int
+	err := q.QueryRow(ctx, `SELECT count(*) FROM recordings r JOIN cases c ON c.id = r.case_id WHERE `+awaitingRead).Scan(&n)
+	return n, err
+}

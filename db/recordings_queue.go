@@ -72,7 +72,7 @@ func (s *Store) Confirmations(ctx context.Context, limit int) (Confirmations, er
 		if out.Unread, err = pgx.CollectRows(rows, scan); err != nil {
 			return err
 		}
-		if out.UnreadCount, err = countAwaitingRead(ctx, tx); err != nil {
+		if out.UnreadCount, err = keptAwaitingRead(ctx, tx); err != nil {
 			return err
 		}
 		// Candidates: a second reading and no adjudication, on a case still

@@ -82,11 +82,7 @@ func (s *Server) triageBoard(r *http.Request, acted int64, done, refusal string)
 		return views.TriageModel{}, err
 	}
 	workers := workerOptions(us, false)
-	waiting, err := s.store.RecordingsAwaitingRead(ctx)
-	if err != nil {
-		return views.TriageModel{}, err
-	}
-	m := views.TriageModel{Page: s.page(r, "Triage", "triage"), OrderRule: followup.OrderRule, UnreadRecordings: waiting,
+	m := views.TriageModel{Page: s.page(r, "Triage", "triage"), OrderRule: followup.OrderRule, UnreadRecordings: t.UnreadRecordings,
 		Scheduled: t.Counts[followup.BucketOther],
 		AsOf:      fmt.Sprintf("As of %s, %s (%s).", dayLabel(t.Settings.Calendar().DateOf(t.Now)), cohort.ClockLabel(t.Now, t.Settings.Location()), t.Settings.Location())}
 	byBucket := map[followup.Bucket][]db.TriageRow{}
