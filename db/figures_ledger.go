@@ -23,6 +23,8 @@ var ledgers = []struct {
 	{"figure_time_counts", []string{"protocol_id", "site_id", "sex", "age_band", "event", "closed", "days", "flag_day"}},
 	{"figure_kappa_counts", []string{"protocol_id", "site_id", "auto", "rhythm"}},
 	{"figure_unread_counts", nil},
+	{"protocol_result_counts", []string{"protocol_id"}},
+	{"message_status_counts", []string{"status"}},
 }
 
 // CompactLedgers folds every ledger into one row per key, dropping keys whose

@@ -354,3 +354,72 @@ func TestReconcileFailsStrandedMessages(t *testing.T) {
 		t.Fatalf("message %s %q", m.Status, m.Detail)
 	}
 }
+
+// The outbox's counts by status are kept as messages are written and
+// change status (migration 0093): after queueing, a try, a refusal, a
+// delivery and a folded ledger they equal a count of the messages table.
+func TestOutboxCountsAreKept(t *testing.T) {
+	f := outreachFixture(t, 3)
+	ctx := context.Background()
+	check := func(step string) {
+		t.Helper()
+		want := map[outreach.Status]int{}
+		rows, err := f.s.Pool().Query(ctx, `SELECT status, count(*) FROM messages GROUP BY 1`)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for rows.Next() {
+			var st string
+			var n int
+			rows.Scan(&st, &n)
+			want[outreach.Status(st)] = n
+		}
+		rows.Close()
+		o, err := f.s.Outbox(ctx, db.OutboxFilter{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(o.Counts) != len(want) {
+			t.Errorf("%s: outbox counts %v, the table %v", step, o.Counts, want)
+		}
+		for st, n := range want {
+			if o.Counts[st] != n {
+				t.Errorf("%s: outbox counts %v, the table %v", step, o.Counts, want)
+				break
+			}
+		}
+		for st, n := range want {
+			one, err := f.s.Outbox(ctx, db.OutboxFilter{Status: st})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(one.Rows) != n {
+				t.Errorf("%s: the %s list holds %d messages, want %d", step, st, len(one.Rows), n)
+			}
+		}
+	}
+	check("none")
+	var ids []int64
+	for _, sid := range []string{"P1", "P2", "P3"} {
+		q, err := f.s.QueueMessage(ctx, f.coord, f.caseID(sid), db.MessageInput{Version: 1, Purpose: outreach.PurposeFirstContact, Channel: followup.ChannelEmail})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, q.ID)
+	}
+	check("three queued")
+	if _, _, ok, err := f.s.BeginTry(ctx, ids[0]); err != nil || !ok {
+		t.Fatal(err, ok)
+	}
+	if err := f.s.MessageSent(ctx, ids[0], outreach.Sent, "250", ""); err != nil {
+		t.Fatal(err)
+	}
+	if err := f.s.MessageNotDelivered(ctx, ids[1], outreach.Undeliverable, "550 5.1.1 mailbox unavailable"); err != nil {
+		t.Fatal(err)
+	}
+	check("one sent, one undeliverable")
+	if err := f.s.CompactLedgers(ctx); err != nil {
+		t.Fatal(err)
+	}
+	check("ledger folded")
+}

@@ -104,7 +104,8 @@ func (s *Store) EnsureDefaultProtocol(ctx context.Context) (ProtocolVersion, err
 }
 
 // Protocols lists every version, newest first within each name, with the
-// number of results each produced.
+// number of results each produced (kept as results are written, migration
+// 0092: the page never counts the results table).
 func (s *Store) Protocols(ctx context.Context) ([]ProtocolVersion, error) {
 	rows, err := s.reader(ctx).Query(ctx, `SELECT `+protocolCols+` FROM protocols ORDER BY name, version DESC`)
 	if err != nil {
@@ -114,7 +115,7 @@ func (s *Store) Protocols(ctx context.Context) ([]ProtocolVersion, error) {
 	if err != nil {
 		return nil, mapErr("protocols", err)
 	}
-	counts, err := s.reader(ctx).Query(ctx, `SELECT protocol_id, count(*) FROM screen_results GROUP BY protocol_id`)
+	counts, err := s.reader(ctx).Query(ctx, `SELECT protocol_id, sum(n)::bigint FROM protocol_result_counts GROUP BY protocol_id`)
 	if err != nil {
 		return nil, mapErr("protocol results", err)
 	}
@@ -143,7 +144,7 @@ func (s *Store) Protocol(ctx context.Context, id int) (ProtocolVersion, error) {
 	if err != nil {
 		return p, mapErr("protocol", err)
 	}
-	err = s.reader(ctx).QueryRow(ctx, `SELECT count(*) FROM screen_results WHERE protocol_id = $1`, id).Scan(&p.Results)
+	err = s.reader(ctx).QueryRow(ctx, `SELECT coalesce(sum(n), 0)::bigint FROM protocol_result_counts WHERE protocol_id = $1`, id).Scan(&p.Results)
 	return p, mapErr("protocol", err)
 }
 

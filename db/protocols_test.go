@@ -198,3 +198,64 @@ func TestProtocolImmutableOnceUsed(t *testing.T) {
 		t.Errorf("protocol.used audited %d times, want 1", got)
 	}
 }
+
+// The protocols pages' result counts are kept as results are written
+// (migration 0092): inserted, upserted again, deleted and the ledger folded,
+// they equal a count of the results table at every step, for each version.
+func TestProtocolResultCountsAreKept(t *testing.T) {
+	s := newStore(t)
+	ctx := context.Background()
+	v1 := mustDefault(t, s)
+	v2 := newVersion(t, s, v1.ID, func(q *screen.Protocol) { q.MinWearHours = 30 })
+	seedParticipants(t, s, 40)
+	check := func(step string) {
+		t.Helper()
+		want := map[int]int64{}
+		rows, err := s.Pool().Query(ctx, `SELECT protocol_id, count(*) FROM screen_results GROUP BY 1`)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for rows.Next() {
+			var id int
+			var n int64
+			rows.Scan(&id, &n)
+			want[id] = n
+		}
+		rows.Close()
+		all, err := s.Protocols(ctx)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, p := range all {
+			one, err := s.Protocol(ctx, p.ID)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if p.Results != want[p.ID] || one.Results != want[p.ID] {
+				t.Errorf("%s: %s lists %d results, its page %d; the table holds %d", step, p.Label(), p.Results, one.Results, want[p.ID])
+			}
+		}
+	}
+	write := func(protocol, weeks int) {
+		t.Helper()
+		mustExec(t, s, `INSERT INTO screen_results (participant_id, protocol_id, week, verdict, reason, result, input_digest)
+			SELECT p.id, $1, w, 'negative', 'test', '{}', 'x' FROM participants p CROSS JOIN generate_series(1, $2) w
+			ON CONFLICT (participant_id, protocol_id, week) DO UPDATE SET reason = 'again'`, protocol, weeks)
+	}
+	check("none")
+	write(v1.ID, 3)
+	check("first screen")
+	write(v1.ID, 5) // weeks 1-3 upserted, 4-5 new
+	write(v2.ID, 2)
+	check("screened again, and by a second version")
+	mustExec(t, s, `DELETE FROM screen_results WHERE protocol_id = $1 AND week = 5`, v1.ID)
+	check("results deleted")
+	if err := s.CompactLedgers(ctx); err != nil {
+		t.Fatal(err)
+	}
+	check("ledger folded")
+	var rowsLeft int
+	if err := s.Pool().QueryRow(ctx, `SELECT count(*) FROM protocol_result_counts`).Scan(&rowsLeft); err != nil || rowsLeft != 2 {
+		t.Errorf("the folded ledger holds %d rows (err %v), want one per version", rowsLeft, err)
+	}
+}
