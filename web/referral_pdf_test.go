@@ -127,7 +127,9 @@ func TestReferralPDF(t *testing.T) {
 			// A2 2 + H 1, up to 2 more for S2 (Lip et al. 2010, verified,
 			// secondary; CHA2DS2-VA without Sc, 2024 ESC, from memory).
 			"CHA2DS2-VASc: at least 3 (up to 5) of 9", "CHA2DS2-VA: at least 3 (up to 5) of 8",
-			referral.SourceVASc, referral.SourceVA, "atrial fibrillation", "study day 30", "25 mm/s", "10 mm/mV", sum.ContactRoute, deid.ReviewCaution},
+			referral.SourceVASc, referral.SourceVA, "atrial fibrillation", "study day 30", "25 mm/s", "10 mm/mV", sum.ContactRoute, deid.ReviewCaution,
+			// the recorder's own reading, in the words every page uses
+			overread.AutoSuggestsAF.Label()},
 			components.CautionItems...) {
 			if !containsWrapped(text, want) {
 				t.Errorf("%s: PDF text lacks %q", tt.paper, want)

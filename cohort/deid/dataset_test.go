@@ -157,3 +157,34 @@ func TestFoldAge(t *testing.T) {
 		}
 	}
 }
+
+// The data dictionary describes the recorder's own reading in the words of
+// the app (overread's labels, each with its stored value) and says it is
+// the device's call; none of the retired stored values is listed.
+func TestDatasetDictionaryWordsTheRecordersReading(t *testing.T) {
+	var desc string
+	for _, tb := range DatasetTables() {
+		for _, c := range tb.Columns {
+			if c.Name == "auto_interpretation" {
+				desc = c.Description
+			}
+		}
+	}
+	if desc == "" {
+		t.Fatal("no table describes auto_interpretation")
+	}
+	for _, a := range overread.Autos() {
+		if want := string(a) + " (" + a.Label() + ")"; !strings.Contains(desc, want) {
+			t.Errorf("the dictionary lacks %q: %s", want, desc)
+		}
+	}
+	if !strings.Contains(desc, "not a diagnosis") {
+		t.Errorf("the dictionary does not say the reading is the device's call: %s", desc)
+	}
+	// The stored values before migration 0070.
+	for _, old := range []string{"af (", "sinus (", "unclassified (", "unreadable (", "none ("} {
+		if strings.Contains(desc, " "+old) || strings.HasPrefix(desc, old) {
+			t.Errorf("the dictionary still lists the retired value %q: %s", old, desc)
+		}
+	}
+}
