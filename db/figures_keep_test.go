@@ -24,6 +24,8 @@ import (
 	"cohortdesk/cohort/referral"
 	"cohortdesk/db"
 	"cohortdesk/db/dbtest"
+
+	"github.com/jackc/pgx/v5"
 )
 
 // The kept figures (the cascade, the agreement statistics, data
@@ -556,4 +558,50 @@ func TestKeptFiguresAfterConcurrentChanges(t *testing.T) {
 	}
 	drainFigures(t, r.s)
 	compareKept(t, r.s, r.clock.now, "after concurrent changes")
+}
+
+// A change that marks more participants than one transaction computes the
+// figures of (2,000) leaves them to the background pass instead of holding
+// its transaction: the pages say how many wait, and after the pass every
+// kept figure equals a recount. Here one case sync opens a case for each of
+// 2,160 participants (every tenth of 2,400 has withdrawn and gets none).
+func TestAChangeOfVeryManyParticipantsWaitsForTheBackgroundPass(t *testing.T) {
+	s := newStore(t)
+	ctx := context.Background()
+	p := mustDefault(t, s)
+	saveSettings(t, s, nil)
+	seedParticipants(t, s, 2400)
+	mustExec(t, s, `INSERT INTO screen_results (participant_id, protocol_id, week, verdict, reason, result, input_digest, wear_hours)
+		SELECT id, $1, 1, 'positive', 'positive by test', '{}', 'x', 100 FROM participants`, p.ID)
+	drainFigures(t, s)
+	if pend, err := s.Pending(ctx); err != nil || pend.Participants != 0 {
+		t.Fatalf("%d participants wait before the change (err %v)", pend.Participants, err)
+	}
+	rows, err := s.Pool().Query(ctx, `SELECT id FROM participants ORDER BY id`)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ids, err := pgx.CollectRows(rows, pgx.RowTo[int64])
+	if err != nil {
+		t.Fatal(err)
+	}
+	opened, _, err := s.SyncCases(ctx, cohort.System, p.ID, ids)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if opened != 2160 {
+		t.Fatalf("%d cases opened, want 2160", opened)
+	}
+	pend, err := s.Pending(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if pend.Participants != 2160 {
+		t.Errorf("%d participants' figures wait after the change, want the 2160 it touched", pend.Participants)
+	}
+	drainFigures(t, s)
+	if pend, _ := s.Pending(ctx); pend.Participants != 0 {
+		t.Errorf("%d participants still wait after the background pass", pend.Participants)
+	}
+	compareKept(t, s, func() time.Time { return fixedNow }, "after the background pass")
 }
