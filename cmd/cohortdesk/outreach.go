@@ -27,6 +27,9 @@ type outreachConfig struct {
 	OutboxDir    string
 	PublicURL    string
 	SummaryAt    string
+	// The fields of the text gateway's answer, and the authority that
+	// signed its certificate (sender.GatewayConfig).
+	TextStatusField, TextRefField, TextDelivered, TextCAFile string
 }
 
 func (c *outreachConfig) bind(fs *flag.FlagSet, getenv func(string) string) {
@@ -40,6 +43,10 @@ func (c *outreachConfig) bind(fs *flag.FlagSet, getenv func(string) string) {
 	fs.StringVar(&c.TextURL, "text-url", getenv("COHORTDESK_TEXT_URL"), "HTTPS address of the text-message gateway; empty: no text messages (env COHORTDESK_TEXT_URL)")
 	fs.StringVar(&c.TextToken, "text-token", getenv("COHORTDESK_TEXT_TOKEN"), "bearer token sent to the gateway (env COHORTDESK_TEXT_TOKEN)")
 	fs.StringVar(&c.TextBody, "text-body", getenv("COHORTDESK_TEXT_BODY"), "JSON body template of the gateway with {{to}}, {{body}} and {{key}} (env COHORTDESK_TEXT_BODY)")
+	fs.StringVar(&c.TextStatusField, "text-status-field", getenv("COHORTDESK_TEXT_STATUS_FIELD"), `field of the gateway's JSON answer holding the message's state; empty: "status" (env COHORTDESK_TEXT_STATUS_FIELD)`)
+	fs.StringVar(&c.TextRefField, "text-ref-field", getenv("COHORTDESK_TEXT_REF_FIELD"), `field of the gateway's JSON answer holding its reference for the message; empty: "id" (env COHORTDESK_TEXT_REF_FIELD)`)
+	fs.StringVar(&c.TextDelivered, "text-delivered", getenv("COHORTDESK_TEXT_DELIVERED"), `comma-separated states of that field that mean the message arrived; empty: "delivered" (env COHORTDESK_TEXT_DELIVERED)`)
+	fs.StringVar(&c.TextCAFile, "text-ca-file", getenv("COHORTDESK_TEXT_CA_FILE"), "PEM file of the authority that signed the gateway's certificate; empty: the system's (env COHORTDESK_TEXT_CA_FILE)")
 	fs.StringVar(&c.ReceiptToken, "text-receipt-token", getenv("COHORTDESK_TEXT_RECEIPT_TOKEN"), "bearer token the gateway sends with delivery receipts to /outreach/receipts; empty: receipts refused (env COHORTDESK_TEXT_RECEIPT_TOKEN)")
 	fs.StringVar(&c.OutboxDir, "outbox-dir", getenv("COHORTDESK_OUTBOX_DIR"), "write e-mails and text messages to this folder instead of sending them (env COHORTDESK_OUTBOX_DIR)")
 	fs.StringVar(&c.PublicURL, "public-url", getenv("COHORTDESK_PUBLIC_URL"), "address staff open cohortdesk at, for the link in the morning summary (env COHORTDESK_PUBLIC_URL)")
@@ -58,7 +65,7 @@ func (c *outreachConfig) validate() error {
 		}
 	}
 	if c.TextURL != "" {
-		if _, err := sender.NewGateway(sender.GatewayConfig{URL: c.TextURL, Token: c.TextToken, Body: c.TextBody}, nil); err != nil {
+		if _, err := sender.NewGateway(c.gateway(), nil); err != nil {
 			return fmt.Errorf("config: %w", err)
 		}
 	}
@@ -69,6 +76,18 @@ func (c *outreachConfig) validate() error {
 		return fmt.Errorf("config: -public-url %q: want http:// or https://", c.PublicURL)
 	}
 	return nil
+}
+
+// gateway is the text gateway's configuration from the settings.
+func (c *outreachConfig) gateway() sender.GatewayConfig {
+	g := sender.GatewayConfig{URL: c.TextURL, Token: c.TextToken, Body: c.TextBody,
+		StatusField: strings.TrimSpace(c.TextStatusField), RefField: strings.TrimSpace(c.TextRefField), CAFile: c.TextCAFile}
+	for _, d := range strings.Split(c.TextDelivered, ",") {
+		if d = strings.TrimSpace(d); d != "" {
+			g.Delivered = append(g.Delivered, d)
+		}
+	}
+	return g
 }
 
 // build makes the sender of this instance's jobs and says what the web
@@ -102,7 +121,7 @@ func (c *outreachConfig) build(store *db.Store, log *slog.Logger) (*sender.Sende
 			s.Email = m
 		}
 		if c.TextURL != "" {
-			g, err := sender.NewGateway(sender.GatewayConfig{URL: c.TextURL, Token: c.TextToken, Body: c.TextBody}, nil)
+			g, err := sender.NewGateway(c.gateway(), nil)
 			if err != nil {
 				return nil, web.OutreachConfig{}, err
 			}

@@ -3,6 +3,7 @@ package outreach
 import (
 	"bytes"
 	"context"
+	"crypto/tls"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -27,7 +28,10 @@ type GatewayConfig struct {
 	// Delivered lists the values of StatusField that mean the message
 	// arrived; empty: "delivered".
 	Delivered []string
-	Timeout   time.Duration // 0: 30 s
+	// CAFile is a PEM file of the authority that signed the gateway's
+	// certificate; empty: the system's.
+	CAFile  string
+	Timeout time.Duration // 0: 30 s
 }
 
 // DefaultGatewayBody is the body template when none is configured.
@@ -72,6 +76,15 @@ func NewGateway(cfg GatewayConfig, client *http.Client) (*Gateway, error) {
 	}
 	if client == nil {
 		client = &http.Client{Timeout: cfg.Timeout}
+		if cfg.CAFile != "" {
+			pool, err := caPool(cfg.CAFile, "text gateway")
+			if err != nil {
+				return nil, err
+			}
+			t := http.DefaultTransport.(*http.Transport).Clone()
+			t.TLSClientConfig = &tls.Config{RootCAs: pool, MinVersion: tls.VersionTLS12}
+			client.Transport = t
+		}
 	}
 	return &Gateway{cfg: cfg, client: client}, nil
 }

@@ -3,10 +3,13 @@ package outreach_test
 import (
 	"context"
 	"encoding/json"
+	"encoding/pem"
 	"errors"
 	"io"
 	"net/http"
 	"net/http/httptest"
+	"os"
+	"path/filepath"
 	"strings"
 	"sync/atomic"
 	"testing"
@@ -462,5 +465,54 @@ func TestMorningSummaryCountsOnly(t *testing.T) {
 	}
 	if n := len(srv.Messages()); n != 1 {
 		t.Fatalf("a second run the same day sent %d summaries in all", n)
+	}
+}
+
+// A gateway whose answer names its fields its own way, behind a certificate
+// from its own authority: the settings name the state and reference fields,
+// the states that mean delivered, and the authority's PEM file, and the
+// answer is read by them. Without the authority the certificate is refused
+// (a temporary failure, never a message taken as sent).
+func TestTextGatewayAnswerFieldsAndAuthority(t *testing.T) {
+	gw := httptest.NewTLSServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		io.WriteString(w, `{"messageRef": 4417, "state": "DELIVRD", "status": "queued"}`)
+	}))
+	defer gw.Close()
+	ca := filepath.Join(t.TempDir(), "gateway-ca.pem")
+	if err := os.WriteFile(ca, pem.EncodeToMemory(&pem.Block{Type: "CERTIFICATE", Bytes: gw.Certificate().Raw}), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	out := sender.Outgoing{Key: "9f1c", To: "+15550101", Body: "Please contact the study team."}
+	g, err := sender.NewGateway(sender.GatewayConfig{URL: gw.URL + "/send", StatusField: "state", RefField: "messageRef",
+		Delivered: []string{"DELIVRD", "delivered"}, CAFile: ca}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := g.Send(context.Background(), out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !r.Delivered || r.Ref != "4417" {
+		t.Errorf("receipt %+v: want delivered (state DELIVRD) with reference 4417", r)
+	}
+	// The default fields read "status": queued, not delivered.
+	d, err := sender.NewGateway(sender.GatewayConfig{URL: gw.URL + "/send", CAFile: ca}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r, err := d.Send(context.Background(), out); err != nil || r.Delivered || r.Ref != "" {
+		t.Errorf("default fields: receipt %+v, err %v; want taken, not delivered, no reference", r, err)
+	}
+	// The system's authorities do not know the gateway's.
+	plain, err := sender.NewGateway(sender.GatewayConfig{URL: gw.URL + "/send"}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var refusal *sender.Refusal
+	if _, err := plain.Send(context.Background(), out); !errors.As(err, &refusal) || refusal.Permanent {
+		t.Errorf("an unknown authority: %v; want a temporary refusal", err)
+	}
+	if _, err := sender.NewGateway(sender.GatewayConfig{URL: gw.URL + "/send", CAFile: filepath.Join(t.TempDir(), "none.pem")}, nil); err == nil {
+		t.Error("a missing CA file was accepted")
 	}
 }

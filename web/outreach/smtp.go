@@ -88,13 +88,9 @@ func NewSMTP(cfg SMTPConfig) (*SMTP, error) {
 	s := &SMTP{cfg: cfg, from: from, domain: from.Address[strings.LastIndex(from.Address, "@")+1:]}
 	tlsConf := &tls.Config{ServerName: cfg.Host, MinVersion: tls.VersionTLS12}
 	if cfg.CAFile != "" {
-		pem, err := os.ReadFile(cfg.CAFile)
+		pool, err := caPool(cfg.CAFile, "SMTP")
 		if err != nil {
-			return nil, fmt.Errorf("outreach: SMTP CA file: %w", err)
-		}
-		pool := x509.NewCertPool()
-		if !pool.AppendCertsFromPEM(pem) {
-			return nil, fmt.Errorf("outreach: SMTP CA file %s holds no PEM certificate", cfg.CAFile)
+			return nil, err
 		}
 		tlsConf.RootCAs = pool
 	}
@@ -225,4 +221,18 @@ func classify(err error) error {
 		return &Refusal{Detail: detail}
 	}
 	return &Refusal{Detail: err.Error()}
+}
+
+// caPool reads a PEM file of the authorities that signed a server's
+// certificate (the mail server's or the text gateway's, named by what).
+func caPool(file, what string) (*x509.CertPool, error) {
+	pem, err := os.ReadFile(file)
+	if err != nil {
+		return nil, fmt.Errorf("outreach: %s CA file: %w", what, err)
+	}
+	pool := x509.NewCertPool()
+	if !pool.AppendCertsFromPEM(pem) {
+		return nil, fmt.Errorf("outreach: %s CA file %s holds no PEM certificate", what, file)
+	}
+	return pool, nil
 }
