@@ -188,7 +188,12 @@ func (s *Store) SaveTemplate(ctx context.Context, a cohort.Actor, in TemplateInp
 		if len(in.Note) > 500 {
 			return &cohort.ValidationError{Fields: map[string]string{"note": "use at most 500 characters"}}
 		}
-		if w := in.Warnings(words); len(w) > 0 && !in.Confirmed {
+		st, err := studySettings(ctx, tx)
+		if err != nil {
+			return err
+		}
+		study := outreach.Values{outreach.StudyName: st.Name, outreach.ContactLine: outreach.ContactLineOf(st.ContactRoute)}
+		if w := append(in.Warnings(words), in.ValueWarnings(words, study)...); len(w) > 0 && !in.Confirmed {
 			return &WordWarnings{Warnings: w}
 		}
 		if _, err := tx.Exec(ctx, `SELECT pg_advisory_xact_lock($1)`, int64(templateLockKey)); err != nil {

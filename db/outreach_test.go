@@ -336,6 +336,20 @@ func TestTemplatesAreVersionedAndWarnOnWords(t *testing.T) {
 	if !errors.As(err, &ww) || ww.Warnings[0].Term != "call" {
 		t.Fatalf("the saved list is not used: %v", err)
 	}
+	// A word of the list in the study's own name reaches every message of a
+	// template that fills it in: a warning too, named by its placeholder.
+	if err := f.s.SaveOutreachWords(ctx, admin, outreach.DefaultWords()); err != nil {
+		t.Fatal(err)
+	}
+	saveSettings(t, f.s, func(st *db.StudySettings) {
+		st.Name, st.ContactRoute = "Irregular Heartbeat Study", "call 555-0100 on working days"
+	})
+	named := db.TemplateInput{Template: outreach.Template{Purpose: outreach.PurposeReminder, Channel: followup.ChannelEmail,
+		Subject: "Hello again", Body: "Dear {{first_name}}, a message from {{study_name}}. {{contact_line}}", ReplyDays: 5}, BasedOn: 2}
+	_, err = f.s.SaveTemplate(ctx, admin, named)
+	if !errors.As(err, &ww) || len(ww.Warnings) == 0 || ww.Warnings[0].Value != outreach.StudyName {
+		t.Fatalf("a study name holding words of the list: %v", err)
+	}
 }
 
 func TestReconcileFailsStrandedMessages(t *testing.T) {

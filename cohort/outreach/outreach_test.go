@@ -90,7 +90,7 @@ func TestTemplateCheckRefusals(t *testing.T) {
 func TestWarningsNameLineAndTerm(t *testing.T) {
 	tp := Template{Body: "Dear {{first_name}},\nYour screening result was positive.\nNon-urgent: {{contact_line}}"}
 	got := tp.Warnings(DefaultWords())
-	want := []Warning{{2, "result*"}, {2, "positive"}, {3, "urgent*"}}
+	want := []Warning{{Line: 2, Term: "result*"}, {Line: 2, Term: "positive"}, {Line: 3, Term: "urgent*"}}
 	if len(got) != len(want) {
 		t.Fatalf("warnings %v, want %v", got, want)
 	}
@@ -313,5 +313,33 @@ func contains(r, o Rect) bool {
 func TestContactLineOf(t *testing.T) {
 	if got := ContactLineOf(" call 555-0100 on working days. "); got != "call 555-0100 on working days" {
 		t.Fatalf("%q", got)
+	}
+}
+
+// The study-wide values a template fills in reach every message it writes:
+// a word of the list in the study's name or contact line is a warning for
+// the template that uses them, named by its placeholder; a template that
+// does not use the value, or a participant's own value, gives none.
+func TestValueWarningsNameThePlaceholder(t *testing.T) {
+	words := DefaultWords()
+	study := Values{StudyName: "Irregular Heartbeat Screening Study", ContactLine: "call 555-0100 on working days", FirstName: "Positive"}
+	uses := Template{Body: "Dear {{first_name}},\nA message from {{study_name}}: please {{contact_line}}. {{study_name}}"}
+	got := uses.ValueWarnings(words, study)
+	if len(got) == 0 {
+		t.Fatalf("no warning for a study name holding words of the list (%q)", study[StudyName])
+	}
+	for _, w := range got {
+		if w.Value != StudyName || w.Line != 0 {
+			t.Errorf("warning %+v: want one of the study name's, without a line", w)
+		}
+		if s := w.String(); !strings.HasPrefix(s, "{{study_name}} (the study's name") || !strings.Contains(s, `"`+w.Term+`"`) {
+			t.Errorf("warning reads %q", s)
+		}
+	}
+	if len(got) != len(words.Find(study[StudyName])) {
+		t.Errorf("%d warnings for a value used twice, want one per word found (%d)", len(got), len(words.Find(study[StudyName])))
+	}
+	if w := (Template{Body: "Dear {{first_name}}, please {{contact_line}}."}).ValueWarnings(words, study); len(w) != 0 {
+		t.Errorf("warnings %v for a template that does not use the study name", w)
 	}
 }

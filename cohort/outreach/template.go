@@ -205,16 +205,25 @@ func (t Template) Check(words WordList) error {
 	return ve.Err()
 }
 
-// Warning is a word of the study's list found in a template's body, for the
-// editor to look at before saving.
+// Warning is a word of the study's list found in a template's body, or in a
+// study-wide value the template fills in, for the editor to look at before
+// saving.
 type Warning struct {
 	Line int
 	Term string
+	// Value is the placeholder whose study-wide value holds the term (the
+	// study's name, its contact line: the same in every message); "" when
+	// the term is in the template's own text, on Line.
+	Value Placeholder
 }
 
 // String words the warning for the editor.
 func (w Warning) String() string {
-	return "line " + strconv.Itoa(w.Line) + ": \"" + w.Term + "\" is on the study's word list; messages never state a diagnosis or a screening result"
+	const rule = " is on the study's word list; messages never state a diagnosis or a screening result"
+	if w.Value != "" {
+		return "{{" + string(w.Value) + "}} (" + placeholderTable[w.Value].meaning + ") holds \"" + w.Term + "\", which" + rule
+	}
+	return "line " + strconv.Itoa(w.Line) + ": \"" + w.Term + "\"" + rule
 }
 
 // Warnings lists the words of the list the body uses, by line.
@@ -223,6 +232,29 @@ func (t Template) Warnings(words WordList) []Warning {
 	for i, line := range strings.Split(t.Body, "\n") {
 		for _, h := range words.Find(line) {
 			out = append(out, Warning{Line: i + 1, Term: h.Term})
+		}
+	}
+	return out
+}
+
+// ValueWarnings lists the words of the list in the study-wide values the
+// template fills in: the study's name and its contact line are the same in
+// every message, so a word of the list there reaches every participant the
+// template writes to. Values of one participant are not checked here.
+func (t Template) ValueWarnings(words WordList, v Values) []Warning {
+	toks, err := parse(t.Body)
+	if err != nil {
+		return nil
+	}
+	var out []Warning
+	seen := map[Placeholder]bool{}
+	for _, tk := range toks {
+		if (tk.ph != StudyName && tk.ph != ContactLine) || seen[tk.ph] {
+			continue
+		}
+		seen[tk.ph] = true
+		for _, h := range words.Find(v[tk.ph]) {
+			out = append(out, Warning{Term: h.Term, Value: tk.ph})
 		}
 	}
 	return out
