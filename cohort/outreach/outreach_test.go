@@ -343,3 +343,37 @@ func TestValueWarningsNameThePlaceholder(t *testing.T) {
 		t.Errorf("warnings %v for a template that does not use the study name", w)
 	}
 }
+
+// The morning job's next run: a put-off summary is tried again a quarter of
+// an hour later while the morning lasts (four hours from the summary time,
+// the same day), else the next working morning. Monday 1 June 2026 in
+// Chicago; summaries at 07:00.
+func TestNextSummaryRun(t *testing.T) {
+	loc, err := time.LoadLocation("America/Chicago")
+	if err != nil {
+		t.Fatal(err)
+	}
+	st := followup.DefaultStudySettings()
+	st.TimeZone = "America/Chicago"
+	cal := st.Calendar()
+	at := Clock(7 * 60)
+	mon := func(h, m int) time.Time { return time.Date(2026, 6, 1, h, m, 0, 0, loc) }
+	tue7 := time.Date(2026, 6, 2, 7, 0, 0, 0, loc)
+	for _, tt := range []struct {
+		now    time.Time
+		putOff bool
+		want   time.Time
+	}{
+		{mon(7, 0), false, tue7},
+		{mon(7, 0), true, mon(7, 15)},
+		{mon(10, 45), true, mon(11, 0)}, // the last try: four hours after 07:00
+		{mon(10, 50), true, tue7},       // 11:05 is past the morning
+		{time.Date(2026, 6, 5, 10, 0, 0, 0, loc), true, time.Date(2026, 6, 5, 10, 15, 0, 0, loc)}, // Friday
+		{time.Date(2026, 6, 5, 11, 30, 0, 0, loc), true, time.Date(2026, 6, 8, 7, 0, 0, 0, loc)},  // then Monday
+		{time.Date(2026, 6, 6, 9, 0, 0, 0, loc), true, time.Date(2026, 6, 8, 7, 0, 0, 0, loc)},    // Saturday: no retry
+	} {
+		if got := NextSummaryRun(cal, loc, tt.now, at, tt.putOff); !got.Equal(tt.want) {
+			t.Errorf("NextSummaryRun(%s, put off %v) = %s, want %s", tt.now.Format("Mon 15:04"), tt.putOff, got.Format("Mon 2 Jan 15:04"), tt.want.Format("Mon 2 Jan 15:04"))
+		}
+	}
+}

@@ -34,6 +34,31 @@ func NextMorning(cal followup.Calendar, loc *time.Location, now time.Time, at Cl
 	return time.Time{}
 }
 
+// A morning summary the mail server put off (a temporary refusal) is tried
+// again every SummaryRetryEvery while the morning lasts: for SummaryRetryFor
+// after the summary time, on the same day (ours: a summary of the day's work
+// is worth sending late in the morning, not in the afternoon).
+const (
+	SummaryRetryEvery = 15 * time.Minute
+	SummaryRetryFor   = 4 * time.Hour
+)
+
+// NextSummaryRun is when the morning job runs next after a run at now:
+// SummaryRetryEvery later when some summary was put off and that is still
+// within SummaryRetryFor of today's summary time, else the next morning
+// (NextMorning).
+func NextSummaryRun(cal followup.Calendar, loc *time.Location, now time.Time, at Clock, putOff bool) time.Time {
+	if putOff {
+		d := cohort.DateOf(now.In(loc))
+		start := time.Date(d.Year, d.Month, d.Day, int(at)/60, int(at)%60, 0, 0, loc)
+		retry := now.Add(SummaryRetryEvery)
+		if cal.IsWorkingDay(d) && !retry.After(start.Add(SummaryRetryFor)) && cohort.DateOf(retry.In(loc)) == d {
+			return retry
+		}
+	}
+	return NextMorning(cal, loc, now, at)
+}
+
 // SummaryMail words the morning summary for a person named name on day:
 // the counts and a link to triage; no study ID, name or detail of any
 // participant.

@@ -397,6 +397,55 @@ func TestTextGatewayOverTLS(t *testing.T) {
 	_ = pids
 }
 
+// A morning summary the mail server puts off (451) is tried again a
+// quarter of an hour later, that morning, and sent then; the job after it
+// is the next working morning's.
+func TestMorningSummaryPutOffIsTriedAgain(t *testing.T) {
+	store := newStore(t)
+	ctx := context.Background()
+	dbtest.OutreachCases(t, store, 1)
+	if _, err := store.Pool().Exec(ctx, `INSERT INTO users (email, display_name, role, password_hash, morning_summary)
+		VALUES ('early.coordinator@example.org', 'Desk staff', 'coordinator', 'x', true)`); err != nil {
+		t.Fatal(err)
+	}
+	srv := smtptest.Start(t, smtptest.Options{})
+	srv.SetMode(smtptest.Defer)
+	now := testNow // Monday 1 June 2026, 12:00 in the study's zone (UTC)
+	snd := &sender.Sender{Store: store, Email: smtpFor(t, srv, sender.SecurityNone, "", ""), Now: func() time.Time { return now },
+		Domain: "riverside.example.org", SummaryAt: outreach.Clock(10 * 60)}
+	if err := snd.Start(ctx, store.StudySettings); err != nil {
+		t.Fatal(err)
+	}
+	w := &db.Worker{Store: store, Handlers: snd.Handlers()}
+	runQueued := func() time.Time {
+		t.Helper()
+		var next time.Time
+		store.Pool().QueryRow(ctx, `SELECT run_after FROM jobs WHERE kind = $1 AND state = 'queued'`, db.JobMorningSummary).Scan(&next)
+		store.Pool().Exec(ctx, `UPDATE jobs SET run_after = clock_timestamp() WHERE kind = $1 AND state = 'queued'`, db.JobMorningSummary)
+		if did, err := w.RunOne(ctx, 0); !did || err != nil {
+			t.Fatal(did, err)
+		}
+		return next
+	}
+	runQueued() // the run of 10:00, late: the server puts the summary off
+	if n := len(srv.Messages()); n != 0 {
+		t.Fatalf("a deferring server stored %d summaries", n)
+	}
+	srv.SetMode(smtptest.Accept)
+	now = now.Add(15 * time.Minute)
+	if next := runQueued(); !next.Equal(testNow.Add(15 * time.Minute)) {
+		t.Fatalf("the put-off summary's retry was queued for %v, want a quarter of an hour later (%v)", next, testNow.Add(15*time.Minute))
+	}
+	if got := srv.Wait(1, 10*time.Second); len(got) != 1 || got[0].Header.Get("To") != "<early.coordinator@example.org>" {
+		t.Fatalf("%d summaries after the retry: %+v", len(got), got)
+	}
+	var next time.Time
+	store.Pool().QueryRow(ctx, `SELECT run_after FROM jobs WHERE kind = $1 AND state = 'queued'`, db.JobMorningSummary).Scan(&next)
+	if want := time.Date(2026, 6, 2, 10, 0, 0, 0, time.UTC); !next.Equal(want) {
+		t.Fatalf("after the summary went, the next run is %v, want %v", next, want)
+	}
+}
+
 // TestMorningSummaryCountsOnly runs the morning job against the real mail
 // server: each person who asked gets one e-mail with the counts of their
 // overdue and due-today cases and the new flags, a link to triage and no

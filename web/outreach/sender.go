@@ -201,7 +201,7 @@ func (s *Sender) morning(ctx context.Context, _ db.Job, _ func(int64, int64) err
 	}
 	cal := m.Settings.Calendar()
 	day := cal.DateOf(m.Now)
-	sent, failed := 0, 0
+	sent, failed, putOff := 0, 0, 0
 	if cal.IsWorkingDay(day) && s.Email != nil {
 		for _, r := range m.Recipients {
 			done, err := s.Store.MorningSummarySent(ctx, r.UserID, day)
@@ -215,6 +215,9 @@ func (s *Sender) morning(ctx context.Context, _ db.Job, _ func(int64, int64) err
 			key := fmt.Sprintf("summary-%d-%s", r.UserID, day)
 			if _, err := s.Email.Send(ctx, Outgoing{Key: key, MessageID: key + "@" + s.domain(), To: r.Email, Subject: subject, Body: body}); err != nil {
 				failed++
+				if ref := (*Refusal)(nil); !errors.As(err, &ref) || !ref.Permanent {
+					putOff++ // tried again this morning
+				}
 				s.log().Warn("morning summary not sent", "user", r.UserID, "err", err)
 				continue
 			}
@@ -228,11 +231,11 @@ func (s *Sender) morning(ctx context.Context, _ db.Job, _ func(int64, int64) err
 	if at == 0 {
 		at = outreach.DefaultSummaryAt
 	}
-	next := outreach.NextMorning(cal, m.Settings.Location(), m.Now, at)
+	next := outreach.NextSummaryRun(cal, m.Settings.Location(), m.Now, at, putOff > 0)
 	if err := s.Store.EnsureMorningJob(ctx, next); err != nil {
 		return "", err
 	}
-	return fmt.Sprintf("%d summaries sent, %d not; next run %s", sent, failed, next.Format(time.RFC3339)), nil
+	return fmt.Sprintf("%d summaries sent, %d not (%d put off, tried again later this morning when it lasts); next run %s", sent, failed, putOff, next.Format(time.RFC3339)), nil
 }
 
 // Start queues the first morning-summary run (unless one waits) and fails
