@@ -197,3 +197,41 @@ func TestPathD(t *testing.T) {
 		t.Errorf("%d points gave %d bytes", len(row.Trace), len(d))
 	}
 }
+
+// Mark puts each premature beat and each unusable stretch on the row that
+// holds it, at paper position: 25 mm/s from the row's start after the 10 mm
+// margin (standard paper speed, common practice). At 250 Hz a row holds 10 s
+// (2,500 samples): beat sample 2,600 is 0.4 s into row 2, 10 mm after the
+// margin; a stretch over samples 2,400 to 2,700 is shaded at the end of row
+// 1 and the start of row 2. A premature index outside the beats is ignored.
+func TestMarkPlacesPrematureBeatsAndStretches(t *testing.T) {
+	const fs = 250
+	w := constant(3*2500, fs, 0)
+	beats := []int{100, 2600, 5100, 7400}
+	l := ecg.Layout(w, beats, ecg.StripOptions{})
+	if len(l.Rows) != 3 {
+		t.Fatalf("%d rows, want 3", len(l.Rows))
+	}
+	q := &ecg.Quality{Stretches: []ecg.Stretch{{Start: 2400, End: 2700, Kind: ecg.Flat}}}
+	l = ecg.Mark(l, fs, q, beats, []int{1, 3, 9})
+	near := func(a, b float64) bool { return math.Abs(a-b) < 1e-9 }
+	if p := l.Rows[0].Premature; len(p) != 0 {
+		t.Errorf("row 1 marks %v, want no premature beat", p)
+	}
+	if p := l.Rows[1].Premature; len(p) != 1 || !near(p[0], 10+10) {
+		t.Errorf("row 2 marks %v, want one premature beat at 20 mm", p)
+	}
+	if p := l.Rows[2].Premature; len(p) != 1 || !near(p[0], 10+(7400-5000)/250.0*25) {
+		t.Errorf("row 3 marks %v, want one premature beat at 250 mm", p)
+	}
+	s0, s1 := l.Rows[0].Shaded, l.Rows[1].Shaded
+	if len(s0) != 1 || !near(s0[0].X0, 10+240) || !near(s0[0].X1, 10+250) || s0[0].Kind != ecg.Flat {
+		t.Errorf("row 1 shades %+v, want 250-260 mm, flat line", s0)
+	}
+	if len(s1) != 1 || !near(s1[0].X0, 10) || !near(s1[0].X1, 10+20) {
+		t.Errorf("row 2 shades %+v, want 10-30 mm", s1)
+	}
+	if len(l.Rows[2].Shaded) != 0 {
+		t.Errorf("row 3 shades %+v, want none", l.Rows[2].Shaded)
+	}
+}
