@@ -124,6 +124,12 @@ func Analyse(w Waveform, lim Limits, p rr.Params) (Analysis, error) {
 	if missing > 0 {
 		h.Warnings = append(h.Warnings, fmt.Sprintf("%d samples are marked missing in the file; they are counted as lead off.", missing))
 	}
+	for _, st := range q.Stretches {
+		if st.Kind == NoBeat {
+			h.Warnings = append(h.Warnings, fmt.Sprintf("No beat was found for %s s from %s s: a pause of the heart or an electrode that lost contact; read the strip there.",
+				trimSeconds(float64(st.End-st.Start)/w.RateHz), trimSeconds(float64(st.Start)/w.RateHz)))
+		}
+	}
 	return Analysis{Waveform: w, Beats: beats, Hint: h}, nil
 }
 

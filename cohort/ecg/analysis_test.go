@@ -297,3 +297,46 @@ func TestIntakeUsableLength(t *testing.T) {
 		t.Errorf("quality %+v", acc.Signal.Hint.Quality)
 	}
 }
+
+// A pause of the heart looks like a lost electrode to the quality check: no
+// QRS for seconds while the trace goes on. It is marked as either, never
+// called lead off, and the recording says where it is and asks for the
+// strip to be read there. Sinus rhythm at 800 ms with one 3.6 s pause
+// (a sinus pause of 3 s or more is a finding to report, common practice,
+// from memory).
+func TestPauseIsNamedNotHidden(t *testing.T) {
+	rrMs := ecgtest.SinusRR(45, 800, 21)
+	rrMs[20] = 3600
+	syn, err := ecg.Synthesize(rrMs, ecg.SynthOptions{RateHz: 250, Seed: 21})
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := analyse(t, syn.Waveform)
+	var pause *ecg.Stretch
+	for i, st := range a.Hint.Quality.Stretches {
+		if st.Kind == ecg.LeadOff {
+			t.Errorf("stretch %+v is called lead off", st)
+		}
+		if st.Kind == ecg.NoBeat {
+			pause = &a.Hint.Quality.Stretches[i]
+		}
+	}
+	if pause == nil {
+		t.Fatalf("the 3.6 s pause is not marked: stretches %+v", a.Hint.Quality.Stretches)
+	}
+	// The pause lies between the 21st and 22nd beats of the synthesis.
+	from, to := syn.RTimes[20], syn.RTimes[21]
+	if s, e := float64(pause.Start)/250, float64(pause.End)/250; s < from || e > to {
+		t.Errorf("the mark %.2f-%.2f s is not inside the pause %.2f-%.2f s", s, e, from, to)
+	}
+	warned := false
+	for _, w := range a.Hint.Warnings {
+		warned = warned || (strings.Contains(w, "No beat was found") && strings.Contains(w, "a pause of the heart"))
+	}
+	if !warned {
+		t.Errorf("no warning names the pause: %q", a.Hint.Warnings)
+	}
+	if !strings.Contains(a.Hint.Quality.Text(250), "no beat found (a pause or lost contact)") {
+		t.Errorf("quality reads %q", a.Hint.Quality.Text(250))
+	}
+}

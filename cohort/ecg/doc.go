@@ -62,10 +62,14 @@
 // # Signal quality
 //
 // AssessQuality marks the stretches beat detection cannot use: lead off,
-// saturation at the digital limits, flat line, excessive noise (quality.go
-// names each method and its source). They are shaded on the strip (Mark),
-// left out of detection and of the hint, and their length comes off the
-// usable length, which the 30 s rule counts.
+// saturation at the digital limits, flat line, excessive noise, and a QRS
+// band gone quiet for 2 s or more while the trace goes on, which a lost
+// electrode and a pause of the heart both give: it is marked as either
+// ("no beat found") and the recording page says where, since a pause is a
+// finding for the reader (quality.go names each method and its source).
+// They are shaded on the strip (Mark), left out of detection and of the
+// hint, and their length comes off the usable length, which the 30 s rule
+// counts.
 //
 // # Beats
 //

@@ -13,9 +13,8 @@ type Artefact string
 
 // The kinds of unusable stretch, tested in this order.
 const (
-	// LeadOff: the recorder marked the samples as missing, the baseline
-	// left the range a skin electrode can see, or the QRS band went quiet
-	// while the signal did not (mains hum, a floating input).
+	// LeadOff: the recorder marked the samples as missing, or the baseline
+	// left the range a skin electrode can see.
 	LeadOff Artefact = "lead_off"
 	// Saturated: the signal sat at the digital limit of the recorder.
 	Saturated Artefact = "saturated"
@@ -25,6 +24,12 @@ const (
 	Noise Artefact = "noise"
 	// Short: a usable piece between two artefacts too short to analyse.
 	Short Artefact = "short"
+	// NoBeat: the QRS band went quiet for 2 s or more while the signal did
+	// not (mains hum, a floating input, or a real pause of the heart). The
+	// trace cannot tell a lost electrode from a pause, and a pause matters
+	// to the reader, so it is named as either and said on the recording
+	// page (Analyse adds a warning), not called lead off.
+	NoBeat Artefact = "no_beat"
 )
 
 // Label is the artefact in words, for the strip and the recording page.
@@ -40,6 +45,8 @@ func (a Artefact) Label() string {
 		return "excessive noise"
 	case Short:
 		return "too short between artefacts"
+	case NoBeat:
+		return "no beat found (a pause or lost contact)"
 	}
 	return string(a)
 }
@@ -177,8 +184,8 @@ const (
 	// flat line either, the electrode is picking up something other than
 	// the heart (ours: an injected lost electrode, 50 Hz hum over a
 	// decaying offset, gave under 1%; a 2 s window always holds a QRS at
-	// 30 bpm or more). It is counted as lead off. A pause of more than 2 s
-	// without a beat would be counted so too.
+	// 30 bpm or more). It is marked NoBeat: a pause of more than 2 s
+	// without a beat looks the same, so the mark names both.
 	quietPowerRatio = 0.02
 	// minUsableSeconds: a usable piece shorter than 2 s between artefacts
 	// is left out too (ours): the detector learns its thresholds over 2 s.
@@ -462,7 +469,7 @@ func noise(x []float64, fs float64, set func(int, int, Artefact)) {
 		for _, s := range stats {
 			if s.power > 0 && s.power < quietPowerRatio*med {
 				c0 := float64(s.from + (win-hop)/2)
-				set(toSamples(c0), toSamples(c0+float64(hop)), LeadOff)
+				set(toSamples(c0), toSamples(c0+float64(hop)), NoBeat)
 			}
 		}
 	}
