@@ -372,7 +372,7 @@ func (p Protocol) With(param string, value float64) (Protocol, error) {
 }
 
 // VersionLabel names one stored version of a protocol as every page, CSV and
-// summary writes it: its name and version number ("default v3").
+// summary writes it: its name and version number ("standard v3").
 func VersionLabel(name string, version int) string {
 	return name + " v" + strconv.Itoa(version)
 }

@@ -235,7 +235,7 @@ func (s *Sender) morning(ctx context.Context, _ db.Job, _ func(int64, int64) err
 	if err := s.Store.EnsureMorningJob(ctx, next); err != nil {
 		return "", err
 	}
-	return fmt.Sprintf("%d summaries sent, %d not (%d put off, tried again later this morning when it lasts); next run %s", sent, failed, putOff, next.Format(time.RFC3339)), nil
+	return fmt.Sprintf("%d summaries sent, %d not (%d of them put off by the mail server, to try again); next run %s", sent, failed, putOff, next.Format(time.RFC3339)), nil
 }
 
 // Start queues the first morning-summary run (unless one waits) and fails
