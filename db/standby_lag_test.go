@@ -1,40 +1,16 @@
 package db_test
 
 import (
-	"bytes"
 	"context"
 	"log/slog"
-	"os"
-	"path/filepath"
 	"strings"
 	"sync"
 	"testing"
 	"time"
 
-	"github.com/jackc/pgx/v5/pgxpool"
-
 	"cohortdesk/db"
-	"cohortdesk/db/pgcluster"
-	"cohortdesk/migrations"
+	"cohortdesk/db/dbtest"
 )
-
-// syncBuffer is a log buffer the standby's monitor and the test share.
-type syncBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (s *syncBuffer) Write(p []byte) (int, error) {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	return s.b.Write(p)
-}
-
-func (s *syncBuffer) String() string {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	return s.b.String()
-}
 
 // A standby that falls behind the primary by more than the setting serves
 // no reads: they go to the primary, counted under "lag" and logged, never
@@ -43,49 +19,13 @@ func (s *syncBuffer) String() string {
 // primary keeps writing, against a limit of half a second.
 func TestLaggingStandbyFallsBackToThePrimary(t *testing.T) {
 	ctx := context.Background()
-	base, err := os.MkdirTemp("", "standby-lag-")
-	if err != nil {
-		t.Fatal(err)
-	}
-	os.Chmod(base, 0o755)
-	t.Cleanup(func() { os.RemoveAll(base) })
-	primary, err := pgcluster.Start(ctx, pgcluster.Config{Dir: filepath.Join(base, "primary"), Port: 5641, Fast: true}, os.Getenv)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer primary.Stop()
-	admin, err := pgxpool.New(ctx, primary.URL("postgres"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := admin.Exec(ctx, `CREATE DATABASE app`); err != nil {
-		t.Fatal(err)
-	}
-	admin.Close()
-	pool, err := db.Open(ctx, primary.URL("app"), 8)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer pool.Close()
-	if _, err := migrations.Up(ctx, pool); err != nil {
-		t.Fatal(err)
-	}
+	pair := dbtest.StartReplicated(t, 5641, map[string]string{"recovery_min_apply_delay": "2s"})
+	pool := pair.Pool
 	store := db.New(pool, nil)
-	standby, err := pgcluster.StartStandby(ctx, primary, pgcluster.Config{Dir: filepath.Join(base, "standby"), Port: 5642, Fast: true,
-		Settings: map[string]string{"recovery_min_apply_delay": "2s"}}, os.Getenv)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer func() { standby.Stop() }()
-	spool, err := db.Open(ctx, standby.URL("app"), 4)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer spool.Close()
-	var logs syncBuffer
+	var logs dbtest.LogBuffer
 	mctx, stopMonitor := context.WithCancel(ctx)
 	defer stopMonitor()
-	sb := store.UseStandby(mctx, spool, db.StandbyOptions{MaxLag: 500 * time.Millisecond, Every: 50 * time.Millisecond,
+	sb := store.UseStandby(mctx, pair.StandbyPool, db.StandbyOptions{MaxLag: 500 * time.Millisecond, Every: 50 * time.Millisecond,
 		Log: slog.New(slog.NewTextHandler(&logs, nil))})
 	waitFor := func(what string, ok func() bool) {
 		t.Helper()

@@ -1,7 +1,6 @@
 package web
 
 import (
-	"bytes"
 	"context"
 	"fmt"
 	"io"
@@ -10,8 +9,6 @@ import (
 	"net/http/httptest"
 	"net/netip"
 	"net/url"
-	"os"
-	"path/filepath"
 	"regexp"
 	"strconv"
 	"strings"
@@ -23,29 +20,8 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
-	"cohortdesk/db/pgcluster"
-	"cohortdesk/migrations"
-
-	"github.com/jackc/pgx/v5/pgxpool"
+	"cohortdesk/db/dbtest"
 )
-
-// lockedBuffer is a log both the server and the test touch.
-type lockedBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *lockedBuffer) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
-func (l *lockedBuffer) String() string {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.String()
-}
 
 // TestReadsFromAStandbyThatGoesAwayAndComesBack runs the app on a primary
 // and a hot standby started from it (db/pgcluster, streaming replication)
@@ -61,33 +37,8 @@ func (l *lockedBuffer) String() string {
 //   - it is started again: reads return to it (log line, metric counts).
 func TestReadsFromAStandbyThatGoesAwayAndComesBack(t *testing.T) {
 	ctx := context.Background()
-	base, err := os.MkdirTemp("", "standby-test-")
-	if err != nil {
-		t.Fatal(err)
-	}
-	os.Chmod(base, 0o755)
-	t.Cleanup(func() { os.RemoveAll(base) })
-	primary, err := pgcluster.Start(ctx, pgcluster.Config{Dir: filepath.Join(base, "primary"), Port: 5631, Fast: true}, os.Getenv)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer primary.Stop()
-	admin, err := pgxpool.New(ctx, primary.URL("postgres"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := admin.Exec(ctx, `CREATE DATABASE app`); err != nil {
-		t.Fatal(err)
-	}
-	admin.Close()
-	pool, err := db.Open(ctx, primary.URL("app"), 20)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer pool.Close()
-	if _, err := migrations.Up(ctx, pool); err != nil {
-		t.Fatal(err)
-	}
+	pair := dbtest.StartReplicated(t, 5631, map[string]string{"recovery_min_apply_delay": "1s"})
+	pool := pair.Pool
 	store := db.New(pool, nil)
 	a := &app{t: t, store: store, users: map[cohort.Role]db.User{}}
 	hash, err := credential.Hash(testPassword, credential.TestParams)
@@ -107,19 +58,8 @@ func TestReadsFromAStandbyThatGoesAwayAndComesBack(t *testing.T) {
 		t.Fatal(err)
 	}
 
-	standbyCfg := pgcluster.Config{Dir: filepath.Join(base, "standby"), Port: 5632, Fast: true,
-		Settings: map[string]string{"recovery_min_apply_delay": "1s"}}
-	standby, err := pgcluster.StartStandby(ctx, primary, standbyCfg, os.Getenv)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer func() { standby.Stop() }()
-	spool, err := db.Open(ctx, standby.URL("app"), 20)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer spool.Close()
-	var logs lockedBuffer
+	spool := pair.StandbyPool
+	var logs dbtest.LogBuffer
 	log := slog.New(slog.NewTextHandler(&logs, nil))
 	mctx, stopMonitor := context.WithCancel(ctx)
 	defer stopMonitor()
@@ -205,9 +145,7 @@ func TestReadsFromAStandbyThatGoesAwayAndComesBack(t *testing.T) {
 
 	// The standby goes away in the middle of the load.
 	before := reads()
-	if err := standby.Stop(); err != nil {
-		t.Fatal(err)
-	}
+	pair.StopStandby(t)
 	gone := func() int64 { return sb.FallbackCount(db.FallbackDown) + sb.FallbackCount(db.FallbackError) }
 	waitFor("reads falling back to the primary", func() bool { return gone() > 20 && !sb.Up() })
 	servedDown := served.Load()
@@ -217,9 +155,7 @@ func TestReadsFromAStandbyThatGoesAwayAndComesBack(t *testing.T) {
 	}
 
 	// It comes back.
-	if standby, err = pgcluster.StartStandby(ctx, primary, standbyCfg, os.Getenv); err != nil {
-		t.Fatal(err)
-	}
+	pair.StartStandby(t)
 	waitFor("the standby to be used again", sb.Up)
 	back := reads()
 	waitFor("pages read from the standby again", func() bool { return reads() > back+50 })
