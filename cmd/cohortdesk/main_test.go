@@ -10,7 +10,6 @@ import (
 	"path/filepath"
 	"regexp"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 
@@ -18,25 +17,11 @@ import (
 	"cohortdesk/cohort"
 	"cohortdesk/cohort/credential"
 	"cohortdesk/db"
+	"cohortdesk/db/dbtest"
 )
 
 // syncBuffer collects a command's output while it runs.
-type syncBuffer struct {
-	mu sync.Mutex
-	b  strings.Builder
-}
-
-func (s *syncBuffer) Write(p []byte) (int, error) {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	return s.b.Write(p)
-}
-
-func (s *syncBuffer) String() string {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	return s.b.String()
-}
+type syncBuffer = dbtest.LogBuffer
 
 // TestDemoCommandEndToEnd runs the README's demo command on a free port with a
 // small cohort: it creates its private cluster, loads the study, serves, shows
